@@ -1,0 +1,36 @@
+/*
+ * fft.h -- private real FFT of power-of-two sizes (no outside dependency).
+ *
+ * A plan holds precomputed twiddles and its own scratch space, so one plan
+ * must not be executed by two threads at once.
+ *
+ * Layout of a spectrum of size n: n/2+1 complex values, interleaved
+ * (re, im), natural order: out[2k] = Re X_k, out[2k+1] = Im X_k, k = 0..n/2,
+ * with X_k = sum_j x_j exp(-2 pi i j k / n) (out[1] = out[n+1] = 0).
+ */
+#ifndef FC_FFT_H
+#define FC_FFT_H
+
+#include <stddef.h>
+
+typedef struct fc_fft_plan fc_fft_plan;
+
+/* n a power of two, 2 <= n <= 2^30; FC_OK, FC_ERR_SIZE, FC_ERR_NOMEM. */
+int fc__fft_create(size_t n, fc_fft_plan **out);
+void fc__fft_free(fc_fft_plan *p);
+size_t fc__fft_size(const fc_fft_plan *p);
+size_t fc__fft_nbytes(const fc_fft_plan *p);
+
+/* in: n reals; out: n+2 doubles. in and out must not overlap. */
+void fc__fft_forward(fc_fft_plan *p, const double *in, double *out);
+/* in: n+2 doubles (a half spectrum, read only); out: n reals, the
+   UNNORMALISED inverse: out_j = sum_k X_k exp(+2 pi i j k / n) over the full
+   Hermitian spectrum, i.e. n times the true inverse. in, out must not
+   overlap. */
+void fc__fft_inverse(fc_fft_plan *p, const double *in, double *out);
+/* acc[k] += a[k] * b[k] (complex) for the n/2+1 bins of a size-n spectrum. */
+void fc__spec_mulacc(size_t n, const double *a, const double *b, double *acc);
+/* out[k] = a[k] * b[k] (complex) for the n/2+1 bins. */
+void fc__spec_mul(size_t n, const double *a, const double *b, double *out);
+
+#endif

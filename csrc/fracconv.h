@@ -1,0 +1,237 @@
+/*
+ * fracconv.h -- the public C interface of pyfracconv.
+ *
+ * Quadrature weights of fractional integrals and derivatives on a uniform
+ * grid t_n = n*h, and fast lagged sums y_n = sum_{k<=n} c_{n-k} x_k over whole
+ * histories: batch (the full record known) and streaming (one sample at a
+ * time).
+ *
+ * Conventions for every function below:
+ *   - every function returns an int status: FC_OK (0) or one of FC_ERR_*;
+ *     fc_strerror() gives a static message for each;
+ *   - results go through out-parameters; on error, out-parameters and every
+ *     object passed in are left exactly as they were (the library checks all
+ *     arguments and all samples before it writes anything);
+ *   - the library never prints, aborts or exits and keeps no global state;
+ *     every allocation is checked and unwound on failure;
+ *   - sizes are size_t and every size computation is checked for overflow
+ *     (FC_ERR_SIZE);
+ *   - objects (fc_context, fc_stream) are opaque; one object must not be used
+ *     by two threads at once (a call that finds its object busy returns
+ *     FC_ERR_BUSY and changes nothing); different objects may be used from
+ *     different threads freely; the free functions accept NULL.
+ *
+ * Rules (u = h^a / Gamma(a+1) unless said otherwise):
+ *   FC_RULE_RECTANGLE  I^a, product rectangle rule (left end points), a > 0:
+ *                      y_n = u * sum_{k<n} b_{n-1-k} x_k, b_m = (m+1)^a - m^a
+ *   FC_RULE_TRAPEZOID  I^a, product trapezoidal rule, a > 0:
+ *                      y_n = h^a/Gamma(a+2) (A_n x_0 + sum_{1<=k<=n} a_{n-k} x_k)
+ *                      a_0 = 1, a_m = (m+1)^(a+1) - 2 m^(a+1) + (m-1)^(a+1),
+ *                      A_n = (n-1)^(a+1) - (n-1-a) n^a, y_0 = 0
+ *   FC_RULE_GRUNWALD   Riemann-Liouville derivative, Grunwald-Letnikov, a > 0:
+ *                      y_n = h^-a sum_{k<=n} g_{n-k} x_k, g_0 = 1,
+ *                      g_m = g_{m-1} (1 - (a+1)/m)
+ *   FC_RULE_L1         Caputo derivative, L1 scheme, 0 < a < 1:
+ *                      y_n = h^-a/Gamma(2-a) sum_{k<n} d_k (x_{n-k} - x_{n-k-1}),
+ *                      d_k = (k+1)^(1-a) - k^(1-a), y_0 = 0
+ *
+ * The block between FC_CDEF_BEGIN and FC_CDEF_END is read verbatim by the
+ * cffi builder (setup_build.py): keep it to plain declarations and integer
+ * #defines.
+ */
+#ifndef FRACCONV_H
+#define FRACCONV_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+#define FC_VERSION_STRING "0.1.0"
+
+/* FC_CDEF_BEGIN */
+#define FC_VERSION_MAJOR 0
+#define FC_VERSION_MINOR 1
+#define FC_VERSION_PATCH 0
+/* FC_VERSION_MAJOR*10000 + FC_VERSION_MINOR*100 + FC_VERSION_PATCH */
+#define FC_VERSION_NUMBER 100
+
+/* Status codes. */
+#define FC_OK 0
+#define FC_ERR_NULL 1        /* a required pointer argument is NULL */
+#define FC_ERR_RULE 2        /* unknown rule, or rule not valid here */
+#define FC_ERR_ORDER 3       /* order not finite, <= 0, or outside the rule's range */
+#define FC_ERR_STEP 4        /* step not finite or <= 0 */
+#define FC_ERR_SIZE 5        /* a size is zero where it must not be, or overflows */
+#define FC_ERR_NONFINITE 6   /* a sample is NaN or infinite */
+#define FC_ERR_NOMEM 7       /* an allocation failed */
+#define FC_ERR_MODE 8        /* unknown or unsupported stream mode */
+#define FC_ERR_TOL 9         /* tolerance or horizon out of range */
+#define FC_ERR_FORMAT 10     /* saved state truncated, corrupted, foreign or unknown version */
+#define FC_ERR_BUSY 11       /* the object is being used by another call */
+#define FC_ERR_KERNEL 12     /* kernel empty or not finite */
+#define FC_ERR_ARG 13        /* other invalid argument (engine, channels, buffer size) */
+#define FC_ERR_INDEX 14      /* index range beyond what the weights support (start+count > 2^53) */
+
+/* Rules. */
+#define FC_RULE_RECTANGLE 0
+#define FC_RULE_TRAPEZOID 1
+#define FC_RULE_GRUNWALD 2
+#define FC_RULE_L1 3
+
+/* Batch engines. */
+#define FC_ENGINE_AUTO 0     /* chosen by size */
+#define FC_ENGINE_DIRECT 1   /* O(N*K) direct summation */
+#define FC_ENGINE_BLOCKED 2  /* dyadic blockwise FFT, O(N log^2 N), componentwise accurate */
+#define FC_ENGINE_FFT 3      /* one full-length FFT, O(N log N), normwise accurate only */
+
+/* Stream modes. */
+#define FC_MODE_EXACT 0
+#define FC_MODE_COMPRESSED 1
+
+/* Version of the library actually linked (FC_VERSION_NUMBER at build time). */
+int fc_version(void);
+/* Static NUL-terminated version string, e.g. "0.1.0". */
+const char *fc_version_string(void);
+/* Static message for a status code; "unknown status" for codes not listed. */
+const char *fc_strerror(int status);
+
+/*
+ * Weights of a rule, scaled by the step as in the table above, for the
+ * indices m = start .. start+count-1:
+ *   RECTANGLE: h^a/Gamma(a+1) * b_m      TRAPEZOID: h^a/Gamma(a+2) * a_m
+ *   GRUNWALD:  h^-a * g_m                L1:        h^-a/Gamma(2-a) * d_m
+ * order: finite, 0 < order <= 10 (L1: 0 < order < 1); step: finite, > 0;
+ * start + count <= 2^53; out: count doubles (may be NULL when count == 0).
+ * Relative accuracy about 1e-14 for every index (no cancelling formulas).
+ */
+int fc_weights(int rule, double order, double step, uint64_t start,
+               size_t count, double *out);
+
+/*
+ * The starting weights of the trapezoid rule, h^a/Gamma(a+2) * A_n for
+ * n = start .. start+count-1 (A_0 is defined as 0). Same constraints.
+ */
+int fc_trapezoid_start(double order, double step, uint64_t start,
+                       size_t count, double *out);
+
+/*
+ * Reusable batch context: caches FFT plans and work space between calls so
+ * that repeated calls of the same size do no planning. Not thread-safe: one
+ * context per thread.
+ */
+typedef struct fc_context fc_context;
+int fc_context_create(fc_context **out);
+void fc_context_free(fc_context *ctx);
+/* Bytes currently held by the context. */
+int fc_context_nbytes(const fc_context *ctx, size_t *nbytes);
+
+/*
+ * Lagged sums of nsig signals sharing one kernel:
+ *   y[s*n + i] = sum_{k=0}^{i} kernel[i-k] * x[s*n + k],  i < n, s < nsig,
+ * with kernel[m] = 0 for m >= klen. x and y: nsig*n doubles, row-major,
+ * may not overlap; kernel: klen >= 1 finite doubles; engine: FC_ENGINE_*.
+ * ctx may be NULL (a temporary context is used). Samples must be finite
+ * (FC_ERR_NONFINITE; y untouched). n == 0 or nsig == 0 is allowed (nothing
+ * is written).
+ */
+int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
+                  const double *kernel, size_t klen, int engine, double *y);
+
+/*
+ * A rule applied to nsig signals of n samples each (x, y as above):
+ * y[s*n + i] approximates the operator at t_i = i*step. Integrals:
+ * RECTANGLE, TRAPEZOID; derivatives: GRUNWALD, L1. The weights are computed
+ * inside (count n); order and step as for fc_weights.
+ */
+int fc_apply(fc_context *ctx, int rule, double order, double step,
+             const double *x, size_t nsig, size_t n, int engine, double *y);
+
+/*
+ * The library's own real FFT (power-of-two sizes 2 .. 2^30), exposed for
+ * callers who want it and for benchmarks. A plan keeps twiddles and scratch
+ * space: one plan per thread. Spectrum layout: n/2+1 complex values
+ * interleaved (re, im) in natural order, X_k = sum_j x_j exp(-2 pi i jk/n).
+ */
+typedef struct fc_fft_plan fc_fft_plan;
+int fc_rfft_create(size_t n, fc_fft_plan **out);
+void fc_rfft_free(fc_fft_plan *p);
+/* in: n reals; out: n+2 doubles. */
+int fc_rfft_forward(fc_fft_plan *p, const double *in, double *out);
+/* in: n+2 doubles; out: n reals, scaled by 1/n (the true inverse). */
+int fc_rfft_inverse(fc_fft_plan *p, const double *in, double *out);
+
+/*
+ * Streams: samples arrive one at a time (per channel); the n-th output
+ * equals element n of fc_apply / fc_lagged_sum on the same samples, to
+ * rounding (exact mode) or to a stated tolerance (compressed mode).
+ *
+ * Samples and outputs of a push are laid out channel-fastest: for a block of
+ * count time steps, x[t*channels + c].
+ *
+ * Every function leaves the stream exactly as it was when it returns an
+ * error (a rejected block with one bad sample anywhere pushes nothing).
+ * One stream must not be used by two threads at once (FC_ERR_BUSY).
+ */
+typedef struct fc_stream fc_stream;
+
+/*
+ * A stream for a rule. channels >= 1. mode: FC_MODE_EXACT (tol and horizon
+ * ignored) or FC_MODE_COMPRESSED: tol in [1e-15, 1e-2], horizon >= 1 (the
+ * number of samples the tolerance is guaranteed for), 0 < order < 1.
+ */
+int fc_stream_create(int rule, double order, double step, size_t channels,
+                     int mode, double tol, double horizon, fc_stream **out);
+/* An exact stream for a user kernel: y_n = sum_{k<=n} kernel[n-k] x_k,
+   kernel[m] = 0 for m >= klen; klen >= 1, finite values (copied). */
+int fc_stream_create_kernel(const double *kernel, size_t klen,
+                            size_t channels, fc_stream **out);
+void fc_stream_free(fc_stream *s);
+
+/* Push one time step: x[channels] in, y[channels] out. */
+int fc_stream_push(fc_stream *s, const double *x, double *y);
+/* Push count time steps: x[count*channels] in, y[count*channels] out. */
+int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
+                         double *y);
+/* What fc_stream_push(s, x, y) would write to y, bit for bit, without
+   changing the stream. */
+int fc_stream_preview(fc_stream *s, const double *x, double *y);
+/* The history term of the next output: the part that does not depend on
+   the next sample (y = history + weight0 * x for every rule but L1, where
+   y = history + weight0 * (x - previous x)); h[channels]. */
+int fc_stream_history(fc_stream *s, double *h);
+/* Forget all samples (keeps the kernel, the reserved capacity). */
+int fc_stream_reset(fc_stream *s);
+/* Samples pushed per channel since creation or the last reset. */
+int fc_stream_count(const fc_stream *s, uint64_t *count);
+int fc_stream_channels(const fc_stream *s, size_t *channels);
+int fc_stream_mode(const fc_stream *s, int *mode);
+/* Bytes of memory the stream holds now. */
+int fc_stream_nbytes(const fc_stream *s, size_t *nbytes);
+/* Compressed mode: number of exponential terms; exact mode: 0. */
+int fc_stream_terms(const fc_stream *s, size_t *terms);
+/* Make room so that no push up to n samples in all allocates. */
+int fc_stream_reserve(fc_stream *s, uint64_t n);
+/* Size in bytes of the saved state right now. */
+int fc_stream_save_size(fc_stream *s, size_t *size);
+/* Write the state to buf (size bytes available; FC_ERR_ARG if too small);
+   *written gets the bytes used. Versioned, checksummed, little-endian. */
+int fc_stream_save(fc_stream *s, unsigned char *buf, size_t size,
+                   size_t *written);
+/* Rebuild a stream from saved bytes; FC_ERR_FORMAT for truncated,
+   corrupted, foreign or unknown-version data. */
+int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out);
+/* Scalar fast path of fc_stream_push for a stream of exactly one channel
+   (FC_ERR_ARG otherwise): the same result, bit for bit, as
+   fc_stream_push(s, &x, y); x must be finite (FC_ERR_NONFINITE); y: one
+   double. */
+int fc_stream_push1(fc_stream *s, double x, double *y);
+/* FC_CDEF_END */
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif /* FRACCONV_H */

@@ -1,0 +1,86 @@
+/*
+ * internal.h -- declarations shared by the C sources; not installed.
+ */
+#ifndef FC_INTERNAL_H
+#define FC_INTERNAL_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include <math.h>
+#include "fracconv.h"
+#include "fft.h"
+
+/* Largest supported weight index + 1 (2^53: every index exact in double). */
+#define FC_INDEX_LIMIT (UINT64_C(1) << 53)
+
+/* a*b with overflow check: returns 0 and sets *r, or returns FC_ERR_SIZE. */
+static inline int fc__mul_size(size_t a, size_t b, size_t *r)
+{
+    if (b != 0 && a > (size_t)-1 / b) return FC_ERR_SIZE;
+    *r = a * b;
+    return FC_OK;
+}
+static inline int fc__add_size(size_t a, size_t b, size_t *r)
+{
+    if (a > (size_t)-1 - b) return FC_ERR_SIZE;
+    *r = a + b;
+    return FC_OK;
+}
+/* FC_OK if all n values are finite, FC_ERR_NONFINITE otherwise. */
+int fc__check_finite(const double *x, size_t n);
+
+/*
+ * Validation of (rule, order, step) for an operator (integral or
+ * derivative): FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_STEP or FC_OK.
+ */
+int fc__check_rule(int rule, double order, double step);
+
+/*
+ * Every rule in lagged-sum form (rules.c):
+ *     y_n = sum_{k<=n} c_{n-k} u_k + corr_n * x_0
+ * where u = x, except for L1, where u_0 = 0 and u_k = x_k - x_{k-1};
+ * corr_n is zero except for the trapezoid rule.
+ *   rectangle: c_0 = 0, c_m = weights(m-1) (m >= 1)
+ *   trapezoid: c_m = weights(m); corr_0 = -c_0 (so y_0 = 0),
+ *              corr_n = start(n) - weights(n) for n >= 1
+ *   grunwald:  c_m = weights(m)
+ *   l1:        c_m = weights(m)
+ * The functions below fill c (or corr) for the indices start..start+count-1
+ * and assume fc__check_rule passed.
+ */
+int fc__lag_kernel(int rule, double order, double step, uint64_t start,
+                   size_t count, double *c);
+int fc__x0_correction(int rule, double order, double step, uint64_t start,
+                      size_t count, double *corr);
+static inline int fc__rule_uses_differences(int rule)
+{
+    return rule == FC_RULE_L1;
+}
+
+/*
+ * Compressed stream engine (compressed.c); the public fc_stream_* functions
+ * in stream.c validate the handle and the busy flag and dispatch here when
+ * the stream's mode is FC_MODE_COMPRESSED. Arguments are as for the public
+ * functions; the caller has checked pointers are non-NULL and samples are
+ * finite.
+ */
+typedef struct fc_cstream fc_cstream;
+int fc__cs_create(int rule, double order, double step, size_t channels,
+                  double tol, double horizon, fc_cstream **out);
+void fc__cs_free(fc_cstream *cs);
+int fc__cs_push_block(fc_cstream *cs, const double *x, size_t count,
+                      double *y);
+int fc__cs_preview(const fc_cstream *cs, const double *x, double *y);
+int fc__cs_history(const fc_cstream *cs, double *h);
+void fc__cs_reset(fc_cstream *cs);
+uint64_t fc__cs_count(const fc_cstream *cs);
+size_t fc__cs_nbytes(const fc_cstream *cs);
+size_t fc__cs_terms(const fc_cstream *cs);
+/* Payload after the common header written by stream.c: the size, the
+   writer, and the reader (which validates everything it reads and returns
+   FC_ERR_FORMAT on any inconsistency). */
+size_t fc__cs_save_size(const fc_cstream *cs);
+int fc__cs_save(const fc_cstream *cs, unsigned char *buf, size_t size);
+int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out);
+
+#endif

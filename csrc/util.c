@@ -1,0 +1,49 @@
+/*
+ * util.c -- version, status messages, small shared checks.
+ */
+#include "internal.h"
+
+int fc_version(void)
+{
+    return FC_VERSION_NUMBER;
+}
+
+const char *fc_version_string(void)
+{
+    return FC_VERSION_STRING;
+}
+
+const char *fc_strerror(int status)
+{
+    switch (status) {
+    case FC_OK: return "success";
+    case FC_ERR_NULL: return "a required pointer argument is NULL";
+    case FC_ERR_RULE: return "unknown rule, or a rule not valid for this operation";
+    case FC_ERR_ORDER: return "order must be finite and > 0 and within the rule's range";
+    case FC_ERR_STEP: return "step must be finite and > 0";
+    case FC_ERR_SIZE: return "size is zero where it must not be, or too large";
+    case FC_ERR_NONFINITE: return "a sample is NaN or infinite";
+    case FC_ERR_NOMEM: return "out of memory";
+    case FC_ERR_MODE: return "unknown or unsupported stream mode";
+    case FC_ERR_TOL: return "tolerance or horizon out of range";
+    case FC_ERR_FORMAT: return "saved state is truncated, corrupted, foreign or of an unknown version";
+    case FC_ERR_BUSY: return "the object is being used by another call";
+    case FC_ERR_KERNEL: return "kernel is empty or has non-finite values";
+    case FC_ERR_ARG: return "invalid argument";
+    case FC_ERR_INDEX: return "index range beyond 2^53";
+    default: return "unknown status";
+    }
+}
+
+int fc__check_finite(const double *x, size_t n)
+{
+    /* Branch-free accumulation: x - x is 0 for finite x and NaN otherwise. */
+    double acc = 0.0;
+    size_t i = 0;
+    for (; i + 4 <= n; i += 4) {
+        acc += (x[i] - x[i]) + (x[i + 1] - x[i + 1])
+             + (x[i + 2] - x[i + 2]) + (x[i + 3] - x[i + 3]);
+    }
+    for (; i < n; i++) acc += x[i] - x[i];
+    return acc == 0.0 ? FC_OK : FC_ERR_NONFINITE;
+}
