@@ -5,18 +5,12 @@
  * Engines:
  *   direct   O(N*K) summation, blocked so that a chunk of outputs stays in
  *            cache while every lag is added to it.
- *   blocked  the dyadic split of the lower triangular Toeplitz matrix (Hairer,
- *            Lubich and Schlichte, SIAM J. Sci. Stat. Comput. 6 (1985)):
- *            triangles of size FC_LEAF near the diagonal are summed directly;
- *            a square of size s (inputs [lo, lo+s), outputs [lo+s, lo+2s),
- *            lags 1 .. 2s-1) is one FFT convolution of size 2s, with one
- *            kernel spectrum per level shared by every square and signal of
- *            that level. Each square's rounding error is at the scale of its
- *            own terms, so small early outputs keep their digits.
- *            For a kernel much shorter than the record, the levels stop at the
- *            first size s* >= K-1 and squares of size s* are placed at every
- *            multiple of s* (block convolution), so the work is
- *            O(N log^2 K) instead of O(N log^2 N).
+ *   blocked  lags below FC_DIRECT_BAND summed directly; the rest cut into
+ *            segments of growing size, each an FFT block convolution whose
+ *            kernel values vary little over the lags it touches, so every
+ *            output keeps its error at the scale of its own terms
+ *            (componentwise, as direct summation); see part_shape below.
+ *            O(N log N) work for N samples (O(N log K) for K lags).
  *   fft      one FFT convolution of the whole record: O(N log N), accurate
  *            only normwise (small outputs next to large ones lose digits).
  */
@@ -25,7 +19,6 @@
 #include <stdlib.h>
 #include <string.h>
 
-#define FC_LEAF 64           /* size of the directly summed triangles */
 #define FC_DIRECT_CHUNK 256  /* outputs per cache chunk in the direct engine */
 #define FC_MAX_LOG2 30
 
@@ -99,6 +92,12 @@ static int ensure_work(fc_context *ctx, size_t doubles)
  * Outputs are taken in cache-sized chunks; within a chunk the lags are added
  * in increasing order (an axpy per lag, which the compiler vectorises).
  */
+#if defined(__GNUC__) && !defined(__clang__) && defined(__x86_64__) \
+    && defined(__linux__)
+/* AVX2 and generic versions, chosen once by the loader (no global state of
+   ours); results are the same, as no FMA contraction is allowed. */
+__attribute__((target_clones("avx2", "default")))
+#endif
 static void direct_accumulate(const double *restrict x, size_t len,
                               const double *restrict c, size_t K,
                               double *restrict y)
@@ -118,114 +117,169 @@ static void direct_accumulate(const double *restrict x, size_t len,
 }
 
 /*
- * The kernel spectrum of one level: FFT of size 2s of
- * [0, c_1, ..., c_{2s-1}] (zero beyond K), scaled by 1/(2s) so that the
- * unnormalised inverse FFT gives the convolution directly.
+ * The partitioned engine.
+ *
+ * Lags [0, D) are summed directly. Past them the lag axis is cut into
+ * segments [pW, (p+1)W) of a few sizes W = W0, R W0, R^2 W0, ...; size W
+ * carries the segments p = p0 .. R p0 - 1, so consecutive sizes tile the
+ * lags without gaps (D = p0 W0). Each segment is a uniformly partitioned
+ * overlap-save convolution with blocks of W samples and FFTs of size 2W:
+ * the spectrum Z_b of the input window [(b-1)W, (b+1)W) is computed once
+ * and reused by every segment of its size (a frequency-domain delay line),
+ * and output block i is one inverse FFT of sum_p Z_{i-p} C_p.
+ *
+ * Why segments start at p0 >= 2 blocks: the FFT's rounding error in output
+ * block i is at the scale of the largest kernel value of the segment times
+ * the window's samples, while those samples reach block i through lags
+ * between (p-1)W and (p+2)W. With p >= p0 the kernel changes by at most a
+ * factor ((p0+2)/p0)^gamma over that range (gamma the kernel's power-law
+ * exponent, estimated from the kernel itself), so each output keeps its
+ * error at the scale of its own terms sum_k |c_{n-k} x_k|, as direct
+ * summation does, whatever the input. (A square of the plain dyadic split
+ * spans lags 1 .. 2s-1 and loses up to ~3 digits after a spike against a
+ * fast-decaying Grunwald kernel; the same scheme of doubling partitions is
+ * used for zero-latency convolution, Gardner, J. Audio Eng. Soc. 43 (1995).)
  */
-static void level_spectrum(fc_fft_plan *p, size_t s, const double *c, size_t K,
-                           double *tmp, double *spec)
-{
-    size_t n2 = 2 * s;
-    double scale = 1.0 / (double)n2;
-    tmp[0] = 0.0;
-    for (size_t m = 1; m < n2; m++) tmp[m] = m < K ? c[m] * scale : 0.0;
-    fc__fft_forward(p, tmp, spec);
-}
+#define FC_DIRECT_BAND 64
 
-/*
- * One square: y[lo+s+t] += sum_{i<s} x[lo+i] * c_{s+t-i}, t < tcount, using
- * the level spectrum. work: 2s + (2s+2) + (2s+2) doubles.
- */
-static void square(fc_fft_plan *p, size_t s, const double *spec,
-                   const double *x, size_t lo, size_t tcount, double *y,
-                   double *work)
-{
-    size_t n2 = 2 * s;
-    double *buf = work;             /* 2s */
-    double *xs = work + n2;         /* 2s + 2 */
-    double *out = xs + n2 + 2;      /* 2s */
-    memcpy(buf, x + lo, s * sizeof(double));
-    memset(buf + s, 0, s * sizeof(double));
-    fc__fft_forward(p, buf, xs);
-    fc__spec_mul(n2, xs, spec, xs);
-    fc__fft_inverse(p, xs, out);
-    double *yy = y + lo + s;
-    const double *oo = out + s;
-    for (size_t t = 0; t < tcount; t++) yy[t] += oo[t];
-}
-
-/* Plan of the blocked engine for a record of n samples and K lags in use. */
 typedef struct {
-    size_t top;      /* largest square size */
-    int banded;      /* top level squares at every multiple of top */
-} blocked_shape;
+    size_t K;     /* lags in use (trailing zeros trimmed, <= n) */
+    size_t D;     /* direct lags [0, D) */
+    size_t W0;    /* first block size */
+    size_t R;     /* growth of the block size */
+    size_t p0;    /* first segment of each size */
+    size_t maxW;  /* largest block size in use */
+    size_t maxseg;/* most segments of one size */
+} part_shape;
 
-static blocked_shape blocked_shape_of(size_t n, size_t K)
+/* Power-law exponent of |c| estimated over octaves of lags; large when the
+   kernel has zeros or varies wildly (then the most cautious shape). */
+static double kernel_gamma(const double *c, size_t K)
 {
-    blocked_shape b;
-    /* triangle of size T = FC_LEAF * 2^j >= n; levels FC_LEAF .. T/2 */
-    size_t T = FC_LEAF;
-    while (T < n) T *= 2;
-    b.top = T / 2;
-    b.banded = 0;
-    /* smallest level s* >= K-1: then every used lag joins a block to itself
-       or to the next one */
-    size_t s = FC_LEAF;
-    while (s + 1 < K) s *= 2;
-    if (s < b.top) {
-        b.top = s;
-        b.banded = 1;
+    double g = 0.0;
+    for (size_t m = 8; 2 * m < K; m *= 2) {
+        double a = fabs(c[m]), b = fabs(c[2 * m]);
+        double a2 = fabs(c[m + m / 2]);
+        if (a == 0.0 || b == 0.0 || a2 == 0.0) return 1e9;
+        double r = fabs(log2(b / a));
+        if (r > g) g = r;
     }
-    return b;
+    return g;
 }
 
-static int blocked_prepare(fc_context *ctx, size_t n, size_t K,
-                           blocked_shape *shape)
+static part_shape part_shape_of(size_t n, const double *c, size_t K)
 {
-    *shape = blocked_shape_of(n, K);
-    if (n <= FC_LEAF) return FC_OK;
-    for (size_t s = FC_LEAF; s <= shape->top; s *= 2) {
-        int st = ensure_plan(ctx, 2 * s);
+    part_shape sh;
+    while (K > 1 && c[K - 1] == 0.0) K--; /* trailing zeros cost nothing */
+    if (K > n) K = n;
+    sh.K = K;
+    double g = kernel_gamma(c, K);
+    /* ((p0+2)/p0)^gamma <= 16: the error stays within ~16 eps of the
+       componentwise scale */
+    if (g <= 4.0) { sh.p0 = 2; sh.R = 8; }
+    else if (g <= 6.8) { sh.p0 = 4; sh.R = 4; }
+    else if (g <= 12.4) { sh.p0 = 8; sh.R = 2; }
+    else { sh.p0 = 16; sh.R = 2; }
+    sh.W0 = FC_DIRECT_BAND / sh.p0;
+    sh.D = sh.p0 * sh.W0;
+    sh.maxW = 0;
+    sh.maxseg = 0;
+    for (size_t W = sh.W0; sh.p0 * W < K; W *= sh.R) {
+        size_t phi = (K + W - 1) / W;
+        if (phi > sh.R * sh.p0) phi = sh.R * sh.p0;
+        sh.maxW = W;
+        if (phi - sh.p0 > sh.maxseg) sh.maxseg = phi - sh.p0;
+    }
+    return sh;
+}
+
+/* Doubles of work space: kernel spectra + window spectra ring (maxseg each)
+   + window + sum + output. */
+static int part_prepare(fc_context *ctx, size_t n, const double *c, size_t K,
+                        part_shape *sh)
+{
+    *sh = part_shape_of(n, c, K);
+    if (sh->maxW == 0) return FC_OK;
+    for (size_t W = sh->W0; W <= sh->maxW; W *= sh->R) {
+        int st = ensure_plan(ctx, 2 * W);
         if (st != FC_OK) return st;
     }
-    size_t n2 = 2 * shape->top;
-    /* tmp (2s) + spec (2s+2) + square work (6s+4) */
-    return ensure_work(ctx, 10 * n2 / 2 + 16);
+    size_t spec = 2 * sh->maxW + 2, total, t2;
+    if (fc__mul_size(spec, 2 * sh->maxseg + 3, &total) != FC_OK) return FC_ERR_SIZE;
+    if (fc__add_size(total, 16, &t2) != FC_OK) return FC_ERR_SIZE;
+    return ensure_work(ctx, t2);
 }
 
-/* Blocked engine; every allocation already made by blocked_prepare. */
-static void blocked_run(fc_context *ctx, const blocked_shape *shape,
-                        const double *x, size_t nsig, size_t n,
-                        const double *c, size_t K, double *y)
+/* buf[j] = x[(b-1)W + j] for j < 2W, zero outside [0, n). */
+static void window(const double *x, size_t n, size_t b, size_t W, double *buf)
 {
-    memset(y, 0, nsig * n * sizeof(double));
-    /* leaves: triangles of size FC_LEAF on the diagonal */
+    size_t lo = b > 0 ? (b - 1) * W : 0; /* first sample */
+    size_t off = b > 0 ? 0 : W;          /* where it goes */
+    size_t avail = lo < n ? n - lo : 0;
+    size_t cnt = 2 * W - off < avail ? 2 * W - off : avail;
+    memset(buf, 0, off * sizeof(double));
+    memcpy(buf + off, x + lo, cnt * sizeof(double));
+    memset(buf + off + cnt, 0, (2 * W - off - cnt) * sizeof(double));
+}
+
+/* One size W of the partitioned engine for every signal. */
+static void part_size(fc_context *ctx, const part_shape *sh, size_t W,
+                      const double *x, size_t nsig, size_t n, const double *c,
+                      double *y)
+{
+    const size_t n2 = 2 * W, sp = n2 + 2, K = sh->K, p0 = sh->p0;
+    size_t phi = (K + W - 1) / W;
+    if (phi > sh->R * p0) phi = sh->R * p0;
+    const size_t nseg = phi - p0;
+    fc_fft_plan *plan = plan_of(ctx, n2);
+    double *kspec = ctx->work;              /* nseg spectra */
+    double *ring = kspec + nseg * sp;       /* nseg window spectra */
+    double *buf = ring + nseg * sp;         /* 2W */
+    double *acc = buf + sp;                 /* 2W+2 */
+    double *out = acc + sp;                 /* 2W */
+    const double scale = 1.0 / (double)n2;
+
+    for (size_t j = 0; j < nseg; j++) {
+        size_t lag0 = (p0 + j) * W;
+        for (size_t m = 0; m < W; m++)
+            buf[m] = lag0 + m < K ? c[lag0 + m] * scale : 0.0;
+        memset(buf + W, 0, W * sizeof(double));
+        fc__fft_forward(plan, buf, kspec + j * sp);
+    }
+    const size_t nb = (n + W - 1) / W; /* output blocks */
     for (size_t sg = 0; sg < nsig; sg++) {
         const double *xs = x + sg * n;
         double *ys = y + sg * n;
-        for (size_t lo = 0; lo < n; lo += FC_LEAF) {
-            size_t len = n - lo < FC_LEAF ? n - lo : FC_LEAF;
-            direct_accumulate(xs + lo, len, c, K < len ? K : len, ys + lo);
+        for (size_t i = p0; i < nb; i++) {
+            /* the newest window needed: b = i - p0, samples [(b-1)W, (b+1)W) */
+            size_t b = i - p0;
+            window(xs, n, b, W, buf);
+            fc__fft_forward(plan, buf, ring + (b % nseg) * sp);
+            /* Y_i = sum_p Z_{i-p} C_p over the windows that exist */
+            size_t jmax = i - p0 + 1 < nseg ? i - p0 + 1 : nseg;
+            fc__spec_mul(n2, ring + ((i - p0) % nseg) * sp, kspec, acc);
+            for (size_t j = 1; j < jmax; j++)
+                fc__spec_mulacc(n2, ring + ((i - p0 - j) % nseg) * sp,
+                                kspec + j * sp, acc);
+            fc__fft_inverse(plan, acc, out);
+            size_t r0 = i * W;
+            size_t cnt = n - r0 < W ? n - r0 : W;
+            for (size_t t = 0; t < cnt; t++) ys[r0 + t] += out[W + t];
         }
     }
-    if (n <= FC_LEAF) return;
-    for (size_t s = FC_LEAF; s <= shape->top; s *= 2) {
-        size_t n2 = 2 * s;
-        fc_fft_plan *p = plan_of(ctx, n2);
-        double *tmp = ctx->work;
-        double *spec = tmp + n2;
-        double *sqwork = spec + n2 + 2;
-        level_spectrum(p, s, c, K, tmp, spec);
-        size_t stride = (shape->banded && s == shape->top) ? s : 2 * s;
-        for (size_t sg = 0; sg < nsig; sg++) {
-            const double *xs = x + sg * n;
-            double *ys = y + sg * n;
-            for (size_t lo = 0; lo + s < n; lo += stride) {
-                size_t tcount = n - (lo + s) < s ? n - (lo + s) : s;
-                square(p, s, spec, xs, lo, tcount, ys, sqwork);
-            }
-        }
-    }
+}
+
+/* Partitioned engine; every allocation already made by part_prepare. */
+static void part_run(fc_context *ctx, const part_shape *sh, const double *x,
+                     size_t nsig, size_t n, const double *c, double *y)
+{
+    memset(y, 0, nsig * n * sizeof(double));
+    size_t Kd = sh->K < sh->D ? sh->K : sh->D;
+    for (size_t sg = 0; sg < nsig; sg++)
+        direct_accumulate(x + sg * n, n, c, Kd, y + sg * n);
+    if (sh->maxW == 0) return;
+    for (size_t W = sh->W0; W <= sh->maxW; W *= sh->R)
+        part_size(ctx, sh, W, x, nsig, n, c, y);
 }
 
 /* One FFT convolution of the whole record. */
@@ -268,7 +322,7 @@ static void fft_run(fc_context *ctx, size_t P, const double *x, size_t nsig,
 static int choose_engine(size_t n, size_t K)
 {
     size_t Ku = K < n ? K : n;
-    if (Ku <= 2 * FC_LEAF || n <= 2 * FC_LEAF) return FC_ENGINE_DIRECT;
+    if (Ku <= 2 * FC_DIRECT_BAND || n <= 2 * FC_DIRECT_BAND) return FC_ENGINE_DIRECT;
     return FC_ENGINE_BLOCKED;
 }
 
@@ -286,10 +340,10 @@ static int lagsum_checked(fc_context *ctx, const double *x, size_t nsig,
         return FC_OK;
     }
     if (engine == FC_ENGINE_BLOCKED) {
-        blocked_shape shape;
-        int st = blocked_prepare(ctx, n, K, &shape);
+        part_shape shape;
+        int st = part_prepare(ctx, n, c, K, &shape);
         if (st != FC_OK) return st;
-        blocked_run(ctx, &shape, x, nsig, n, c, K, y);
+        part_run(ctx, &shape, x, nsig, n, c, y);
         return FC_OK;
     }
     size_t P;
@@ -359,7 +413,11 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
         ctx = own;
     }
     st = fc__lag_kernel(rule, order, step, 0, n, c);
-    if (st == FC_OK && corr) st = fc__x0_correction(rule, order, step, 0, n, cr);
+    if (st == FC_OK && corr) {
+        /* corr_n = start(n) - weights(n), and the kernel is the weights */
+        st = fc_trapezoid_start(order, step, 0, n, cr);
+        for (size_t i = 0; st == FC_OK && i < n; i++) cr[i] -= c[i];
+    }
     if (st != FC_OK) goto done;
     const double *in = x;
     if (diffs) {

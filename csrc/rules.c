@@ -41,9 +41,9 @@ int fc__x0_correction(int rule, double order, double step, uint64_t start,
     /* corr_n = start(n) - weights(n); A_0 = 0 gives corr_0 = -c_0, y_0 = 0. */
     int st = fc_trapezoid_start(order, step, start, count, corr);
     if (st != FC_OK) return st;
-    double w[256];
-    for (size_t j = 0; j < count; j += 256) {
-        size_t m = count - j < 256 ? count - j : 256;
+    double w[1024];
+    for (size_t j = 0; j < count; j += 1024) {
+        size_t m = count - j < 1024 ? count - j : 1024;
         st = fc_weights(rule, order, step, start + j, m, w);
         if (st != FC_OK) return st;
         for (size_t i = 0; i < m; i++) corr[j + i] -= w[i];

@@ -218,7 +218,8 @@ def _rows(name, samples, axis):
         raise ArgumentError(f"{name}: expected at least one dimension, got a scalar")
     ax = check_axis(axis, arr.ndim)
     moved = np.moveaxis(arr, ax, -1)
-    block = np.ascontiguousarray(moved).reshape(-1, arr.shape[ax])
+    nsig = int(np.prod(moved.shape[:-1], dtype=np.int64))
+    block = np.ascontiguousarray(moved).reshape(nsig, arr.shape[ax])
     return arr, ax, moved.shape, block
 
 
