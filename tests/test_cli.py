@@ -1,0 +1,494 @@
+"""The command line program: pyfracconv.cli.main, run in-process, and once
+through ``python -m pyfracconv``.
+
+Results are held to the library's own batch functions on the same data
+(the program must add nothing and lose no digits), and once to an identity
+with no discretisation error from /work/shared/REFERENCES.md.
+"""
+
+import math
+import os
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+import pyfracconv
+from pyfracconv import cli, demo
+from pyfracconv._core import check_order, check_rule, check_step, DERIVATIVE_RULES
+from pyfracconv._errors import ArgumentError, InputTypeError
+
+# The cautions the help texts must carry (brief of the CLI).
+CAUTIONS = [
+    "validated on the actual plant before use",
+    "actuator limits",
+    "rate limits",
+    "safe stop (emergency stop)",
+    "independent of this software",
+    "local codes, standards and licensed engineering practice",
+]
+
+
+def run(capsys, *argv):
+    code = cli.main([str(a) for a in argv])
+    cap = capsys.readouterr()
+    return code, cap.out, cap.err
+
+
+def flat(text):
+    return " ".join(text.split())
+
+
+def write_csv(path, header, rows):
+    with open(path, "w", newline="") as fh:
+        if header is not None:
+            fh.write(",".join(header) + "\n")
+        for row in rows:
+            fh.write(",".join(repr(float(v)) if not isinstance(v, str) else v
+                              for v in row) + "\n")
+
+
+def read_csv_back(path):
+    with open(path) as fh:
+        lines = fh.read().splitlines()
+    return lines
+
+
+def numbers(lines):
+    return np.array([[float(v) for v in line.split(",")] for line in lines])
+
+
+def signals(n=64, h=0.01):
+    t = np.arange(n) * h
+    return np.column_stack([np.sin(3 * t) + 1.0 / 3.0, np.exp(-t) * np.cos(t)])
+
+
+def assert_clean_error(code, err, *fragments):
+    """Exit status 2, one readable message, no traceback."""
+    assert code == 2
+    assert "Traceback" not in err
+    assert err.startswith("pyfracconv")
+    for frag in fragments:
+        assert frag in err, (frag, err)
+
+
+# ---------------------------------------------------------------- CSV
+
+def test_csv_round_trip_keeps_header_and_every_digit(tmp_path, capsys):
+    x = signals()
+    src, dst = tmp_path / "in.csv", tmp_path / "out.csv"
+    write_csv(src, ["force", "disp"], x)
+    code, out, err = run(capsys, "integral", src, "-o", dst, "--order", "0.5",
+                         "--step", "0.01", "--rule", "trapezoid")
+    assert code == 0, err
+    lines = read_csv_back(dst)
+    assert lines[0] == "force,disp"
+    got = numbers(lines[1:])
+    want = pyfracconv.integral(x, 0.5, 0.01, rule="trapezoid", axis=0)
+    # exact equality: the CSV text must read back to the very same doubles
+    np.testing.assert_array_equal(got, want)
+
+
+def test_csv_rectangle_on_constant_matches_identity(tmp_path, capsys):
+    # Rectangle rule on f = 1 gives exactly h^a n^a / Gamma(a+1) at t_n
+    # (sum_{j<n} ((j+1)^a - j^a) = n^a; /work/shared/REFERENCES.md,
+    # "Identities with no discretisation error").
+    a, h, n = 0.3, 0.25, 200
+    src, dst = tmp_path / "c.csv", tmp_path / "c_out.csv"
+    write_csv(src, ["one"], np.ones((n, 1)))
+    code, _, err = run(capsys, "integral", src, "-o", dst, "--order", a, "--step", h)
+    assert code == 0, err
+    got = numbers(read_csv_back(dst)[1:])[:, 0]
+    k = np.arange(n)
+    np.testing.assert_allclose(got, h**a * k**a / math.gamma(a + 1), rtol=1e-13, atol=0)
+
+
+def test_csv_rectangle_order_one_is_left_rectangle_rule(tmp_path, capsys):
+    # a = 1: the classical left rectangle rule, y_n = h * sum_{k<n} x_k
+    # (/work/shared/REFERENCES.md, "Order a = 1").
+    h = 0.5
+    x = np.array([1.0, 2.0, -4.0, 8.0, 0.5, 3.0])
+    src, dst = tmp_path / "r.csv", tmp_path / "r.npy"
+    write_csv(src, None, x[:, None])
+    code, _, err = run(capsys, "integral", src, "-o", dst, "--order", 1, "--step", h)
+    assert code == 0, err
+    got = np.load(dst)
+    want = h * np.concatenate([[0.0], np.cumsum(x)[:-1]])
+    np.testing.assert_allclose(got[:, 0], want, rtol=1e-14, atol=1e-15)
+
+
+def test_column_selection_by_name_in_given_order(tmp_path, capsys):
+    x = signals(40)
+    src, dst = tmp_path / "sel.csv", tmp_path / "sel_out.csv"
+    rows = [[f"2024-01-01T00:00:{k:02d}", x[k, 0], "note", x[k, 1]] for k in range(len(x))]
+    with open(src, "w") as fh:
+        fh.write("stamp, force ,label,disp\n")
+        for r in rows:
+            fh.write(f"{r[0]},{float(r[1])!r},{r[2]},{float(r[3])!r}\n")
+    code, _, err = run(capsys, "derivative", src, "-o", dst, "--order", "0.4",
+                       "--step", "0.01", "--rule", "l1", "--columns", "disp,force")
+    assert code == 0, err
+    lines = read_csv_back(dst)
+    assert lines[0] == "disp, force "  # the header fields as written
+    got = numbers(lines[1:])
+    want = pyfracconv.derivative(x[:, ::-1], 0.4, 0.01, rule="l1", axis=0)
+    np.testing.assert_array_equal(got, want)
+
+
+def test_headerless_csv_keeps_first_row_as_data(tmp_path, capsys):
+    x = signals(30)
+    src, dst = tmp_path / "nohead.csv", tmp_path / "nohead_out.csv"
+    write_csv(src, None, x)
+    code, _, err = run(capsys, "derivative", src, "-o", dst, "--order", "1.5",
+                       "--step", "0.01")
+    assert code == 0, err
+    lines = read_csv_back(dst)
+    assert len(lines) == len(x)  # no header line added, first row kept
+    got = numbers(lines)
+    np.testing.assert_array_equal(got, pyfracconv.derivative(x, 1.5, 0.01, axis=0))
+
+
+def test_blank_lines_and_bom_tolerated(tmp_path, capsys):
+    src = tmp_path / "bom.csv"
+    with open(src, "w", encoding="utf-8-sig") as fh:
+        fh.write("force\n\n1.0\n2.0\n\n4.0\n\n")
+    code, out, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5",
+                         "--step", "1")
+    assert code == 0, err
+    lines = out.splitlines()
+    assert lines[0] == "force"
+    got = numbers(lines[1:])[:, 0]
+    np.testing.assert_array_equal(got, pyfracconv.integral([1.0, 2.0, 4.0], 0.5, 1.0))
+
+
+def test_csv_to_stdout(tmp_path, capsys):
+    x = signals(20)
+    src = tmp_path / "s.csv"
+    write_csv(src, ["a", "b"], x)
+    code, out, err = run(capsys, "integral", src, "-o", "-", "--order", "2.5",
+                         "--step", "0.01")
+    assert code == 0, err
+    assert err == ""
+    lines = out.splitlines()
+    assert lines[0] == "a,b"
+    np.testing.assert_array_equal(numbers(lines[1:]),
+                                  pyfracconv.integral(x, 2.5, 0.01, axis=0))
+
+
+# ---------------------------------------------------------------- npy
+
+def test_npy_1d_in_npy_out(tmp_path, capsys):
+    x = signals(100)[:, 0]
+    src, dst = tmp_path / "x.npy", tmp_path / "y.NPY"
+    np.save(src, x)
+    code, _, err = run(capsys, "integral", src, "-o", dst, "--order", "0.7",
+                       "--step", "0.01", "--rule", "trapezoid")
+    assert code == 0, err
+    got = np.load(dst)
+    assert got.shape == x.shape and got.dtype == np.float64
+    np.testing.assert_array_equal(got, pyfracconv.integral(x, 0.7, 0.01, rule="trapezoid"))
+
+
+def test_npy_2d_in_csv_out_has_no_header(tmp_path, capsys):
+    x = (signals(50) * 1000).astype(np.int32)  # integer input is accepted
+    src, dst = tmp_path / "x2.npy", tmp_path / "x2.csv"
+    np.save(src, x)
+    code, _, err = run(capsys, "derivative", src, "-o", dst, "--order", "0.5",
+                       "--step", "0.001")
+    assert code == 0, err
+    lines = read_csv_back(dst)
+    assert len(lines) == len(x)
+    np.testing.assert_array_equal(
+        numbers(lines), pyfracconv.derivative(x.astype(float), 0.5, 0.001, axis=0))
+
+
+def test_csv_in_npy_out(tmp_path, capsys):
+    x = signals(33)
+    src, dst = tmp_path / "z.csv", tmp_path / "z.npy"
+    write_csv(src, ["p", "q"], x)
+    code, _, err = run(capsys, "integral", src, "-o", dst, "--order", "0.5",
+                       "--step", "0.01", "--columns", "q")
+    assert code == 0, err
+    got = np.load(dst)
+    assert got.shape == (33, 1)
+    np.testing.assert_array_equal(got[:, 0], pyfracconv.integral(x[:, 1], 0.5, 0.01))
+
+
+# ---------------------------------------------------------------- errors
+
+def test_missing_file_is_named(tmp_path, capsys):
+    missing = tmp_path / "nowhere.csv"
+    code, _, err = run(capsys, "integral", missing, "-o", tmp_path / "o.csv",
+                       "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, str(missing), "cannot read")
+    missing_npy = tmp_path / "nowhere.npy"
+    code, _, err = run(capsys, "integral", missing_npy, "-o", tmp_path / "o.csv",
+                       "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, str(missing_npy), "cannot read")
+
+
+def test_unreadable_input_is_named(tmp_path, capsys):
+    folder = tmp_path / "folder.csv"
+    folder.mkdir()
+    code, _, err = run(capsys, "integral", folder, "-o", "-", "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, str(folder), "cannot read")
+    src = tmp_path / "latin1.csv"
+    src.write_bytes("f\u00fcr\n1\n".encode("latin-1"))
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, str(src), "UTF-8")
+
+
+@pytest.mark.parametrize("content", ["", "\n\n  \n", ",,\n"])
+def test_empty_csv(tmp_path, capsys, content):
+    src = tmp_path / "empty.csv"
+    src.write_text(content)
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, str(src), "empty")
+
+
+def test_empty_npy_file_and_header_only_csv(tmp_path, capsys):
+    src = tmp_path / "empty.npy"
+    src.write_bytes(b"")
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, str(src), "empty")
+    src = tmp_path / "head.csv"
+    src.write_text("force,disp\n")
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, str(src), "no data rows")
+
+
+def test_missing_column_lists_available(tmp_path, capsys):
+    src = tmp_path / "cols.csv"
+    write_csv(src, ["force", "disp"], signals(5))
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5",
+                       "--step", "1", "--columns", "force,torque")
+    assert_clean_error(code, err, "'torque'", "available columns: 'force', 'disp'")
+
+
+def test_bad_number_names_line_column_and_text(tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    with open("data.csv", "w") as fh:
+        fh.write("time,force\n")
+        fh.write("0,1\n0.1,2\n\n0.2,3\n0.3,4\n")  # lines 2-6 (line 4 blank)
+        fh.write("0.4,abc\n")                    # line 7
+    code, _, err = run(capsys, "integral", "data.csv", "-o", "out.csv",
+                       "--order", "0.5", "--step", "0.1")
+    assert_clean_error(code, err,
+                       "data.csv line 7, column 'force': 'abc' is not a number")
+    assert not os.path.exists("out.csv")
+
+
+def test_bad_number_without_header_gives_column_number(tmp_path, capsys):
+    src = tmp_path / "nh.csv"
+    src.write_text("1,2,3\n4,5,6\n7,8,x9\n")
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, f"{src} line 3, column 3: 'x9' is not a number")
+
+
+def test_bad_number_in_unselected_column_is_ignored(tmp_path, capsys):
+    src = tmp_path / "u.csv"
+    src.write_text("a,b\n1,n/a\n2,n/a\n")
+    code, out, err = run(capsys, "integral", src, "-o", "-", "--order", "1",
+                         "--step", "1", "--columns", "a")
+    assert code == 0, err
+    assert numbers(out.splitlines()[1:])[:, 0].tolist() == [0.0, 1.0]
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "1", "--step", "1")
+    assert_clean_error(code, err, "line 2, column 'b': 'n/a' is not a number")
+
+
+def test_ragged_rows(tmp_path, capsys):
+    src = tmp_path / "rag.csv"
+    src.write_text("a,b\n1,2\n3,4\n5\n")
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, f"{src} line 4", "1 field(s)", "has 2")
+    src.write_text("1,2\n3,4,5\n")
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, f"{src} line 2", "3 field(s)", "line 1 has 2")
+
+
+@pytest.mark.parametrize("text", ["nan", "inf", "-Infinity", "1e999"])
+def test_non_finite_csv(tmp_path, capsys, text):
+    src = tmp_path / "nf.csv"
+    src.write_text(f"force\n1\n{text}\n")
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, f"{src} line 3, column 'force': {text!r}", "not finite")
+
+
+def test_non_finite_npy(tmp_path, capsys):
+    x = np.zeros((6, 3))
+    x[4, 2] = np.nan
+    src = tmp_path / "nf.npy"
+    np.save(src, x)
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, str(src), "[4, 2]", "nan", "not finite")
+
+
+@pytest.mark.parametrize("arr, fragment", [
+    (np.zeros((2, 2, 2)), "shape (2, 2, 2)"),
+    (np.zeros(3, dtype=complex), "complex128"),
+    (np.zeros(0), "no samples"),
+    (np.array(["a", "b"]), "<U1"),
+])
+def test_unusable_npy(tmp_path, capsys, arr, fragment):
+    src = tmp_path / "bad.npy"
+    np.save(src, arr)
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, str(src), fragment)
+
+
+def test_corrupt_npy(tmp_path, capsys):
+    src = tmp_path / "junk.npy"
+    src.write_bytes(b"this is not an npy file at all\n")
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, str(src), "not a readable .npy file")
+
+
+def test_columns_need_names(tmp_path, capsys):
+    src = tmp_path / "nh.csv"
+    src.write_text("1,2\n3,4\n")
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5",
+                       "--step", "1", "--columns", "a")
+    assert_clean_error(code, err, "--columns", "no header row")
+    npy = tmp_path / "a.npy"
+    np.save(npy, np.ones(3))
+    code, _, err = run(capsys, "integral", npy, "-o", "-", "--order", "0.5",
+                       "--step", "1", "--columns", "a")
+    assert_clean_error(code, err, "--columns", ".npy")
+
+
+def _library_message(fn, *args):
+    with pytest.raises((ArgumentError, InputTypeError)) as info:
+        fn(*args)
+    return str(info.value)
+
+
+@pytest.mark.parametrize("cmd, opts, expected", [
+    ("integral", ["--order", "-1"], lambda: _library_message(check_order, -1.0, "rectangle")),
+    ("integral", ["--order", "0"], lambda: _library_message(check_order, 0.0, "rectangle")),
+    ("integral", ["--order", "abc"], lambda: _library_message(check_order, "abc", "rectangle")),
+    ("integral", ["--order", "nan"], lambda: _library_message(check_order, float("nan"), "rectangle")),
+    ("integral", ["--order", "11"], lambda: _library_message(check_order, 11.0, "rectangle")),
+    ("derivative", ["--order", "1.5", "--rule", "l1"],
+     lambda: _library_message(check_order, 1.5, "l1")),
+    ("integral", ["--step", "0"], lambda: _library_message(check_step, 0.0)),
+    ("integral", ["--step", "-0.5"], lambda: _library_message(check_step, -0.5)),
+    ("integral", ["--step", "fast"], lambda: _library_message(check_step, "fast")),
+    ("integral", ["--rule", "simpson"],
+     lambda: _library_message(check_rule, "simpson", ("rectangle", "trapezoid"))),
+    ("derivative", ["--rule", "trapezoid"],
+     lambda: _library_message(check_rule, "trapezoid", DERIVATIVE_RULES)),
+])
+def test_bad_order_step_rule_use_library_messages(tmp_path, capsys, cmd, opts, expected):
+    src = tmp_path / "ok.csv"
+    write_csv(src, ["f"], np.ones((4, 1)))
+    base = {"--order": "0.5", "--step": "1"}
+    for k in range(0, len(opts), 2):
+        base[opts[k]] = opts[k + 1]
+    argv = [cmd, src, "-o", tmp_path / "o.csv"]
+    for k, v in base.items():
+        argv += [f"{k}={v}"]
+    code, _, err = run(capsys, *argv)
+    msg = expected()
+    assert_clean_error(code, err, msg)
+    # the library's messages name the argument and the value
+    name = opts[0].lstrip("-")  # the option under test comes first
+    assert f"{name}=" in msg
+    assert not (tmp_path / "o.csv").exists()
+
+
+def test_unknown_output_extension(tmp_path, capsys):
+    src = tmp_path / "ok.csv"
+    write_csv(src, ["f"], np.ones((4, 1)))
+    code, _, err = run(capsys, "integral", src, "-o", tmp_path / "out.txt",
+                       "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, "out.txt", ".csv", ".npy")
+
+
+def test_unwritable_output_is_named(tmp_path, capsys):
+    src = tmp_path / "ok.csv"
+    write_csv(src, ["f"], np.ones((4, 1)))
+    dst = tmp_path / "no_such_dir" / "out.csv"
+    code, _, err = run(capsys, "integral", src, "-o", dst, "--order", "0.5", "--step", "1")
+    assert_clean_error(code, err, "cannot write", str(dst))
+
+
+def test_usage_errors_exit_2(tmp_path, capsys):
+    code, _, err = run(capsys, "integral", "x.csv", "--order", "0.5", "--step", "1")
+    assert code == 2 and "-o/--output" in err
+    code, _, err = run(capsys)
+    assert code == 2 and "usage" in err
+
+
+# ---------------------------------------------------------------- help, version, demo
+
+@pytest.mark.parametrize("argv", [["--help"], ["integral", "--help"],
+                                  ["derivative", "--help"], ["demo", "--help"]])
+def test_help_carries_cautions(capsys, argv):
+    code, out, _ = run(capsys, *argv)
+    assert code == 0
+    text = flat(out)
+    for phrase in CAUTIONS:
+        assert phrase in text, phrase
+
+
+def test_version(capsys):
+    code, out, _ = run(capsys, "--version")
+    assert code == 0
+    assert out.strip() == f"pyfracconv {pyfracconv.__version__}"
+
+
+def test_demo_passes_and_says_invented(capsys):
+    code, out, err = run(capsys, "demo")
+    assert code == 0, out + err
+    assert "invented" in out.lower()
+    assert "PASS" in out and "FAIL" not in out
+    # every rule is reported, with its observed order
+    for rule in ("rectangle", "trapezoid", "grunwald", "l1"):
+        assert f"PASS  order {rule}" in out
+        assert f"PASS  scenario {rule}" in out
+
+
+def test_demo_checks_can_fail(capsys):
+    # A wrong integral (off by 0.1 %) must make the demo's checks fail.
+    def bad_integral(x, order, step, rule="rectangle", **kw):
+        return pyfracconv.integral(x, order, step, rule=rule, **kw) * 1.001
+
+    def bad_derivative(x, order, step, rule="grunwald", **kw):  # wrong order a
+        return pyfracconv.derivative(x, order * 1.02, step, rule=rule, **kw)
+
+    import io
+    buf = io.StringIO()
+    assert demo.run(buf, integral=bad_integral) == 1
+    assert "FAIL  scenario trapezoid" in buf.getvalue()
+    buf = io.StringIO()
+    assert demo.run(buf, derivative=bad_derivative) == 1
+    assert "FAIL  scenario l1" in buf.getvalue()
+
+
+# ---------------------------------------------------------------- python -m
+
+def test_python_dash_m(tmp_path):
+    x = signals(25)
+    src, dst = tmp_path / "m.csv", tmp_path / "m_out.csv"
+    write_csv(src, ["u", "v"], x)
+    env = dict(os.environ)
+    proc = subprocess.run(
+        [sys.executable, "-m", "pyfracconv", "integral", str(src), "-o", str(dst),
+         "--order", "0.5", "--step", "0.01"],
+        capture_output=True, text=True, timeout=120, env=env,
+    )
+    assert proc.returncode == 0, proc.stderr
+    lines = read_csv_back(dst)
+    assert lines[0] == "u,v"
+    # another process: allow for rounding-level differences in engine choice
+    np.testing.assert_allclose(numbers(lines[1:]),
+                               pyfracconv.integral(x, 0.5, 0.01, axis=0),
+                               rtol=1e-13, atol=1e-15)
+    proc = subprocess.run(
+        [sys.executable, "-m", "pyfracconv", "integral", str(tmp_path / "gone.csv"),
+         "-o", "-", "--order", "0.5", "--step", "0.01"],
+        capture_output=True, text=True, timeout=120, env=env,
+    )
+    assert proc.returncode == 2
+    assert "gone.csv" in proc.stderr and "Traceback" not in proc.stderr
