@@ -44,6 +44,9 @@ ffibuilder.set_source(
     include_dirs=["csrc"],
     extra_compile_args=compile_args(),
     libraries=[] if sys.platform == "win32" else ["m"],
+    depends=sorted(
+        os.path.join("csrc", f) for f in os.listdir(CSRC) if f.endswith(".h")
+    ),
 )
 
 if __name__ == "__main__":

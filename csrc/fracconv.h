@@ -158,9 +158,10 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
 typedef struct fc_fft_plan fc_fft_plan;
 int fc_rfft_create(size_t n, fc_fft_plan **out);
 void fc_rfft_free(fc_fft_plan *p);
-/* in: n reals; out: n+2 doubles. */
+/* in: n reals; out: n+2 doubles; in and out must not overlap (FC_ERR_ARG). */
 int fc_rfft_forward(fc_fft_plan *p, const double *in, double *out);
-/* in: n+2 doubles; out: n reals, scaled by 1/n (the true inverse). */
+/* in: n+2 doubles; out: n reals, scaled by 1/n (the true inverse); the
+   imaginary parts of bins 0 and n/2 are ignored; no overlap (FC_ERR_ARG). */
 int fc_rfft_inverse(fc_fft_plan *p, const double *in, double *out);
 
 /*
@@ -199,8 +200,11 @@ int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
    changing the stream. */
 int fc_stream_preview(fc_stream *s, const double *x, double *y);
 /* The history term of the next output: the part that does not depend on
-   the next sample (y = history + weight0 * x for every rule but L1, where
-   y = history + weight0 * (x - previous x)); h[channels]. */
+   the next sample, so that y = history + w0 * x for GRUNWALD and user
+   kernels (w0 = kernel[0]), y = history for RECTANGLE (w0 = 0),
+   y = history + w0 * (x - previous x) for L1, y = history + w0 * x for
+   TRAPEZOID past the first sample; the first output of TRAPEZOID and L1
+   is 0 whatever x (and so is their history). h[channels]. */
 int fc_stream_history(fc_stream *s, double *h);
 /* Forget all samples (keeps the kernel, the reserved capacity). */
 int fc_stream_reset(fc_stream *s);
