@@ -1,0 +1,1174 @@
+/*
+ * stream.c -- exact streaming lagged sums (engine 3) and the public
+ * fc_stream_* functions (which dispatch to compressed.c in
+ * FC_MODE_COMPRESSED).
+ *
+ * Algorithm: the online form of the dyadic split of the lower-triangular
+ * Toeplitz matrix (Hairer, Lubich, Schlichte, SIAM J. Sci. Stat. Comput. 6
+ * (1985)), with the kernel known in advance; the kernel is cut into P
+ * segments of each size L, 2L, 4L, ..., the non-uniform partition used for
+ * zero-latency convolution (Gardner, J. Audio Eng. Soc. 43 (1995)).
+ *
+ *   y_n = history_n + c_0 u_n,   history_n = sum_{m>=1} c_m u_{n-m}
+ *
+ * Every lag m >= 1 is handled by exactly one of:
+ *   - the leaf band, 1 <= m < L (L = FC_S_LEAF): summed directly when
+ *     u_{n-1} is known (a fixed-length dot product, fixed summation order);
+ *   - level j: block size s = L * 2^j, lags [b_j, b_j + P s) with P =
+ *     FC_S_SEGS, b_0 = L, b_{j+1} = b_j + P s_j, cut into P kernel segments
+ *     [b_j + p s, b_j + (p+1) s). Input blocks [f s, f s + s) are convolved
+ *     with the segments by FFTs of size 2s with a frequency-domain delay line
+ *     (the uniformly partitioned convolution of each level of Gardner's
+ *     non-uniform partition): frame f = sum_p X_{f-p} K_p (X_b the spectrum
+ *     of input block b, K_p of kernel segment p, one kernel spectrum per
+ *     segment for the whole stream) is one inverse FFT whose 2s-1 values are
+ *     added to the accumulator of outputs f s + b_j ...
+ * Each (input k, lag m) pair lies in exactly one block b = floor(k/s) and one
+ * segment p of exactly one band, hence in exactly one frame f = b + p: every
+ * lag is summed exactly once for every output.
+ * Timing: frame f is computed when the count reaches f s + D_j, D_j =
+ * floor(b_j/s) s >= s: blocks f-p <= f are complete then (f s + s <= f s +
+ * D_j), and its first output f s + b_j >= f s + D_j is still in the future
+ * (zero latency: history_n is complete before x_n arrives). Computing frames
+ * this late keeps the live accumulator short (< 3 s beyond the count).
+ *
+ * Cost: per level and per s samples one forward and one inverse FFT of size
+ * 2s and P spectral multiply-adds: O(log s) per sample; about log2(n/(P L))
+ * levels, so amortised O(log^2 n) per sample, plus L multiply-adds for the
+ * leaf band. The push that completes a frame at every level costs
+ * O((n/P) log n); the largest FFT is of size about 2n/P.
+ *
+ * Memory per channel: the history of u (n doubles), the ring of block
+ * spectra (at most P slots of 2s+2 doubles per level, about 4n doubles in
+ * all) and a short accumulator; shared between channels: the kernel
+ * spectra (about 4n doubles) and the FFT plans (one per level). Measured
+ * (bench/stream_memory.py, one channel): about 70 bytes per sample.
+ *
+ * Everything that a push needs (buffers, new levels, their spectra) is
+ * allocated by ex_prepare() before anything is changed; a failure leaves the
+ * stream as it was. The result of a push depends only on the samples pushed
+ * (not on how they were split into blocks or on capacities), so preview,
+ * save/load and reset reproduce outputs bit for bit.
+ */
+#include <stdlib.h>
+#include <string.h>
+#include <math.h>
+#include <stdatomic.h>
+#include "internal.h"
+
+#define FC_S_LEAF 64            /* lags 0 .. FC_S_LEAF-1 summed directly */
+#define FC_S_PAD FC_S_LEAF      /* zeros in front of each u history */
+#define FC_S_MAXLEV 24          /* levels: s = 64 * 2^j <= 2^29 (FFT <= 2^30) */
+#define FC_S_SEGS 8             /* kernel segments of size s per level */
+#define FC_S_MAXBLOCK ((size_t)1 << 29)
+#define FC_S_CORR 256           /* trapezoid correction cache chunk */
+/* lags covered by the leaf band and all levels: b_MAXLEV (about 8.6e9);
+   also the largest count a rule stream supports */
+#define FC_S_LAG_LIMIT ((uint64_t)FC_S_LEAF * \
+                        (1 + (uint64_t)FC_S_SEGS * ((UINT64_C(1) << FC_S_MAXLEV) - 1)))
+
+#define FC_S_KIND_RULE 0u
+#define FC_S_KIND_KERNEL 1u
+
+typedef struct {
+    size_t s;              /* block size */
+    uint64_t base;         /* first lag of the level */
+    uint64_t delay;        /* frame f is done when the count reaches f*s+delay */
+    size_t nseg;           /* kernel segments (<= FC_S_SEGS), = ring length */
+    size_t made;           /* segments with spectrum and ring slot allocated */
+    fc_fft_plan *plan;     /* FFT of size 2s */
+    double *kspec[FC_S_SEGS]; /* 2s+2: spectrum of c[base+p*s, base+(p+1)*s)/(2s) */
+    double *xspec[FC_S_SEGS]; /* ring slot: C spectra (2s+2 each) of block f,
+                                 slot f % nseg */
+} fc__level;
+
+struct fc_stream {
+    atomic_flag busy;
+    int mode;
+    unsigned kind;
+    int rule;
+    double order, step, tol, horizon;
+    size_t C;               /* channels */
+    fc_cstream *cs;         /* compressed mode */
+
+    /* exact mode */
+    double *kernel;         /* user kernel copy (kind kernel) */
+    size_t klen;
+    double c0;
+    double leafk[FC_S_LEAF];/* leafk[i] = c_{L-i} (i >= 1), leafk[0] = 0 */
+    uint64_t n;             /* samples pushed per channel */
+    size_t nlev;            /* levels created */
+    fc__level lev[FC_S_MAXLEV];
+    double *u;              /* C rows of FC_S_PAD + ucap doubles */
+    size_t ucap;
+    double *acc;            /* C rows of acap doubles, index k at k - abase */
+    size_t acap;
+    uint64_t abase;
+    uint64_t acc_hi;        /* acc entries >= acc_hi are zero */
+    uint64_t prep_n;        /* capacity is ready for this many samples */
+    double *xprev;          /* C: previous sample (L1) */
+    double *x0;             /* C: first sample (trapezoid) */
+    double *work;           /* 4*smax + 2 doubles */
+    size_t wcap;            /* smax the work buffer serves */
+    double corr[FC_S_CORR]; /* trapezoid corr_n cache, n in chunk*CORR + i */
+    uint64_t corr_chunk;
+    int corr_valid;
+};
+
+/* ---------------------------------------------------------------- busy */
+
+static int enter(const fc_stream *cs)
+{
+    fc_stream *s = (fc_stream *)cs; /* the object itself is never const */
+    if (atomic_flag_test_and_set_explicit(&s->busy, memory_order_acquire))
+        return FC_ERR_BUSY;
+    return FC_OK;
+}
+static void leave(const fc_stream *cs)
+{
+    fc_stream *s = (fc_stream *)cs;
+    atomic_flag_clear_explicit(&s->busy, memory_order_release);
+}
+
+/* ------------------------------------------------------------ helpers */
+
+static size_t lev_size(size_t j) { return (size_t)FC_S_LEAF << j; }
+
+/* Kernel values c[start .. start+count), zero beyond klen for kernels. */
+static int kernel_values(const fc_stream *s, uint64_t start, size_t count,
+                         double *out)
+{
+    if (s->kind == FC_S_KIND_KERNEL) {
+        for (size_t i = 0; i < count; i++) {
+            uint64_t m = start + i;
+            out[i] = m < s->klen ? s->kernel[m] : 0.0;
+        }
+        return FC_OK;
+    }
+    return fc__lag_kernel(s->rule, s->order, s->step, start, count, out);
+}
+
+static double leaf_dot(const double *k, const double *u)
+{
+    /* fixed order: 8 partial sums, combined pairwise */
+    double a0 = 0, a1 = 0, a2 = 0, a3 = 0, a4 = 0, a5 = 0, a6 = 0, a7 = 0;
+    for (size_t i = 0; i < FC_S_LEAF; i += 8) {
+        a0 += k[i] * u[i];
+        a1 += k[i + 1] * u[i + 1];
+        a2 += k[i + 2] * u[i + 2];
+        a3 += k[i + 3] * u[i + 3];
+        a4 += k[i + 4] * u[i + 4];
+        a5 += k[i + 5] * u[i + 5];
+        a6 += k[i + 6] * u[i + 6];
+        a7 += k[i + 7] * u[i + 7];
+    }
+    return ((a0 + a4) + (a2 + a6)) + ((a1 + a5) + (a3 + a7));
+}
+
+static int corr_get(fc_stream *s, uint64_t n, double *v)
+{
+    uint64_t chunk = n / FC_S_CORR;
+    if (!s->corr_valid || s->corr_chunk != chunk) {
+        int st = fc__x0_correction(s->rule, s->order, s->step,
+                                   chunk * FC_S_CORR, FC_S_CORR, s->corr);
+        if (st != FC_OK) {
+            s->corr_valid = 0;
+            return st;
+        }
+        s->corr_chunk = chunk;
+        s->corr_valid = 1;
+    }
+    *v = s->corr[n - chunk * FC_S_CORR];
+    return FC_OK;
+}
+
+static double *urow(const fc_stream *s, size_t c)
+{
+    return s->u + c * (FC_S_PAD + s->ucap) + FC_S_PAD;
+}
+static double *arow(const fc_stream *s, size_t c)
+{
+    return s->acc + c * s->acap;
+}
+
+/* History term of output s->n for channel c (trapezoid: corr given). */
+static inline double ex_hist(const fc_stream *s, size_t c, double corr)
+{
+    uint64_t n = s->n;
+    const double *uc = urow(s, c);
+    double h = arow(s, c)[n - s->abase] + leaf_dot(s->leafk, uc + n - FC_S_LEAF);
+    if (s->rule == FC_RULE_TRAPEZOID && s->kind == FC_S_KIND_RULE) {
+        if (n == 0) h = 0.0;
+        else h += corr * s->x0[c];
+    }
+    return h;
+}
+
+/* The u value pushing x would store for channel c. */
+static inline double ex_u(const fc_stream *s, size_t c, double x)
+{
+    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_L1)
+        return s->n == 0 ? 0.0 : x - s->xprev[c];
+    return x;
+}
+
+/* Output of pushing x on channel c; u gets the stored value. */
+static inline double ex_y(const fc_stream *s, size_t c, double x, double corr,
+                          double *u)
+{
+    double h = ex_hist(s, c, corr);
+    *u = ex_u(s, c, x);
+    if (s->n == 0 && s->rule == FC_RULE_TRAPEZOID && s->kind == FC_S_KIND_RULE)
+        return 0.0; /* y_0 = (c_0 + corr_0) x_0 = 0 */
+    return h + s->c0 * *u;
+}
+
+/* ------------------------------------------------------------ levels */
+
+static void lev_geom(size_t j, size_t *sz, uint64_t *base, uint64_t *delay)
+{
+    *sz = lev_size(j);
+    *base = (uint64_t)FC_S_LEAF *
+            (1 + (uint64_t)FC_S_SEGS * ((UINT64_C(1) << j) - 1));
+    *delay = (*base / *sz) * *sz;
+}
+
+/* Kernel segments level j ever needs (0: the level is not needed). */
+static size_t lev_nseg(const fc_stream *s, size_t j)
+{
+    size_t sz;
+    uint64_t base, delay;
+    if (j >= FC_S_MAXLEV) return 0;
+    if (s->kind != FC_S_KIND_KERNEL) return FC_S_SEGS;
+    lev_geom(j, &sz, &base, &delay);
+    if (base >= s->klen) return 0;
+    uint64_t k = ((uint64_t)s->klen - base + sz - 1) / sz;
+    return k < FC_S_SEGS ? (size_t)k : FC_S_SEGS;
+}
+
+static void level_free(fc__level *L)
+{
+    fc__fft_free(L->plan);
+    L->plan = NULL;
+    for (size_t p = 0; p < L->made; p++) {
+        free(L->kspec[p]);
+        free(L->xspec[p]);
+        L->kspec[p] = L->xspec[p] = NULL;
+    }
+    L->made = 0;
+}
+
+/* Spectrum of kernel segment p of level L into L->kspec[p]; tmp: 2s. */
+static int segment_spectrum(const fc_stream *s, fc__level *L, size_t p,
+                            double *tmp)
+{
+    size_t sz = L->s, n2 = 2 * sz;
+    int st = kernel_values(s, L->base + (uint64_t)p * sz, sz, tmp);
+    if (st != FC_OK) return st;
+    double scale = 1.0 / (double)n2; /* a power of two: exact */
+    for (size_t i = 0; i < sz; i++) tmp[i] *= scale;
+    memset(tmp + sz, 0, sz * sizeof(double));
+    fc__fft_forward(L->plan, tmp, L->kspec[p]);
+    return FC_OK;
+}
+
+/* Spectra of input block f of every channel into its ring slot. */
+static void block_spectra(fc_stream *s, fc__level *L, uint64_t f)
+{
+    size_t sz = L->s, n2 = 2 * sz;
+    double *t = s->work, *X = L->xspec[f % L->nseg];
+    for (size_t c = 0; c < s->C; c++, X += n2 + 2) {
+        memcpy(t, urow(s, c) + f * sz, sz * sizeof(double));
+        memset(t + sz, 0, sz * sizeof(double));
+        fc__fft_forward(L->plan, t, X);
+    }
+}
+
+/* Frame f of level j: new block spectrum, sum_p X_{f-p} K_p, one inverse
+   FFT, added to outputs f*s + base ... f*s + base + 2s - 2. */
+static void level_frame(fc_stream *s, size_t j, uint64_t f)
+{
+    fc__level *L = &s->lev[j];
+    size_t sz = L->s, n2 = 2 * sz, R = L->nseg;
+    size_t np = f + 1 < R ? (size_t)f + 1 : R;
+    double *t = s->work, *Y = t + n2;
+    uint64_t o = f * sz + L->base;
+    block_spectra(s, L, f);
+    for (size_t c = 0; c < s->C; c++) {
+        size_t off = c * (n2 + 2);
+        fc__spec_mul(n2, L->xspec[f % R] + off, L->kspec[0], Y);
+        for (size_t p = 1; p < np; p++)
+            fc__spec_mulacc(n2, L->xspec[(f - p) % R] + off, L->kspec[p], Y);
+        fc__fft_inverse(L->plan, Y, t);
+        double *a = arow(s, c) + (o - s->abase);
+        for (size_t i = 0; i + 1 < n2; i++) a[i] += t[i];
+    }
+    if (o + n2 - 1 > s->acc_hi) s->acc_hi = o + n2 - 1;
+}
+
+/* ------------------------------------------------------------ capacity */
+
+/* What a stream with n_end samples needs. */
+typedef struct {
+    size_t nlev;                /* levels */
+    size_t made[FC_S_MAXLEV];   /* segments per level */
+    size_t stop;                /* largest level block size (0: none) */
+    uint64_t ext;               /* accumulator reach beyond the count */
+    uint64_t aend;              /* accumulator must hold indices < aend */
+} ex_need;
+
+static int ex_needs(const fc_stream *s, uint64_t n_end, ex_need *nd)
+{
+    size_t j = 0, sz, nseg;
+    uint64_t base, delay;
+    nd->stop = 0;
+    nd->ext = 1;
+    while ((nseg = lev_nseg(s, j)) > 0) {
+        lev_geom(j, &sz, &base, &delay);
+        if (delay > n_end) break;
+        if (sz > FC_S_MAXBLOCK) return FC_ERR_SIZE;
+        uint64_t frames = (n_end - delay) / sz + 1;
+        nd->made[j] = frames < nseg ? (size_t)frames : nseg;
+        nd->stop = sz;
+        if (base - delay + 2 * (uint64_t)sz - 1 > nd->ext)
+            nd->ext = base - delay + 2 * (uint64_t)sz - 1;
+        j++;
+    }
+    /* lags >= FC_S_LAG_LIMIT have no level: refuse counts that need them
+       (kernel streams have klen <= FC_S_LAG_LIMIT) */
+    if (s->kind != FC_S_KIND_KERNEL && n_end >= FC_S_LAG_LIMIT)
+        return FC_ERR_SIZE;
+    nd->nlev = j;
+    nd->aend = n_end + nd->ext;
+    return FC_OK;
+}
+
+/* The largest sample count the present capacity serves without any
+   allocation, given the needs nd of some count it does serve. */
+static uint64_t ex_ready(const fc_stream *s, const ex_need *nd)
+{
+    uint64_t r = s->ucap;
+    size_t sz;
+    uint64_t base, delay;
+    if (lev_nseg(s, nd->nlev) > 0) {
+        lev_geom(nd->nlev, &sz, &base, &delay);
+        if (delay - 1 < r) r = delay - 1;
+    }
+    for (size_t j = 0; j < nd->nlev; j++) {
+        if (nd->made[j] < s->lev[j].nseg) {
+            lev_geom(j, &sz, &base, &delay);
+            uint64_t ev = delay + (uint64_t)nd->made[j] * sz - 1;
+            if (ev < r) r = ev;
+        }
+    }
+    uint64_t a = s->abase + s->acap - nd->ext;
+    if (a < r) r = a;
+    return r;
+}
+
+/*
+ * Make room for n_end samples. exact: allocate exactly what is needed
+ * (reserve); otherwise grow geometrically. All new memory is obtained
+ * (and new kernel spectra computed) before anything is changed.
+ */
+static int ex_prepare(fc_stream *s, uint64_t n_end, int exact)
+{
+    ex_need nd;
+    int st;
+    if (n_end <= s->prep_n) return FC_OK;
+    if ((st = ex_needs(s, n_end, &nd)) != FC_OK) return st;
+    if (n_end > (uint64_t)((size_t)-1)) return FC_ERR_SIZE;
+
+    size_t C = s->C;
+    int grow_u = n_end > s->ucap;
+    int grow_a = nd.aend > s->abase + s->acap;
+    int grow_w = nd.stop > s->wcap;
+    int grow_l = nd.nlev > s->nlev;
+    for (size_t j = 0; j < nd.nlev && j < s->nlev; j++)
+        if (nd.made[j] > s->lev[j].made) grow_l = 1;
+    if (!grow_u && !grow_a && !grow_w && !grow_l) {
+        s->prep_n = ex_ready(s, &nd);
+        return FC_OK;
+    }
+
+    size_t nucap = s->ucap, nacap = s->acap, nwcap = s->wcap, bytes;
+    double *nu = NULL, *na = NULL, *nw = NULL;
+    fc__level nl[FC_S_MAXLEV];
+    size_t nlev_new = nd.nlev > s->nlev ? nd.nlev : s->nlev;
+    uint64_t nbase = s->abase;
+
+    if (grow_u) {
+        nucap = (size_t)n_end;
+        if (!exact && s->ucap <= (size_t)-1 / 2 && 2 * s->ucap > nucap)
+            nucap = 2 * s->ucap;
+        size_t row;
+        if (fc__add_size(nucap, FC_S_PAD, &row) ||
+            fc__mul_size(row, C, &bytes) ||
+            fc__mul_size(bytes, sizeof(double), &bytes))
+            return FC_ERR_SIZE;
+        nu = malloc(bytes);
+        if (!nu) return FC_ERR_NOMEM;
+    }
+    if (grow_a) {
+        nbase = s->n;
+        uint64_t want = nd.aend - nbase;
+        if (!exact) want *= 2;
+        if (want > (uint64_t)((size_t)-1)) { free(nu); return FC_ERR_SIZE; }
+        nacap = (size_t)want;
+        if (fc__mul_size(nacap, C, &bytes) ||
+            fc__mul_size(bytes, sizeof(double), &bytes)) {
+            free(nu);
+            return FC_ERR_SIZE;
+        }
+        na = malloc(bytes);
+        if (!na) { free(nu); return FC_ERR_NOMEM; }
+    }
+    if (grow_w) {
+        nwcap = nd.stop;
+        if (fc__mul_size(nwcap, 4, &bytes) || fc__add_size(bytes, 2, &bytes) ||
+            fc__mul_size(bytes, sizeof(double), &bytes)) {
+            free(nu); free(na);
+            return FC_ERR_SIZE;
+        }
+        nw = malloc(bytes);
+        if (!nw) { free(nu); free(na); return FC_ERR_NOMEM; }
+    }
+    if (grow_l) {
+        double *tmp = nw ? nw : s->work;
+        memcpy(nl, s->lev, sizeof(nl));
+        for (size_t j = s->nlev; j < nd.nlev; j++) {
+            memset(&nl[j], 0, sizeof(nl[j]));
+            lev_geom(j, &nl[j].s, &nl[j].base, &nl[j].delay);
+            nl[j].nseg = lev_nseg(s, j);
+        }
+        st = FC_OK;
+        size_t j = 0, p = 0;
+        for (j = 0; j < nd.nlev && st == FC_OK; j++) {
+            size_t n2 = 2 * nl[j].s, xb;
+            p = nl[j].made;
+            if (j >= s->nlev) st = fc__fft_create(n2, &nl[j].plan);
+            if (st == FC_OK &&
+                (fc__add_size(n2, 2, &xb) || fc__mul_size(xb, C, &xb) ||
+                 fc__mul_size(xb, sizeof(double), &xb)))
+                st = FC_ERR_SIZE;
+            for (p = nl[j].made; st == FC_OK && p < nd.made[j]; p++) {
+                /* (p keeps the count made when the loop stops) */
+                nl[j].kspec[p] = malloc((n2 + 2) * sizeof(double));
+                nl[j].xspec[p] = malloc(xb);
+                if (!nl[j].kspec[p] || !nl[j].xspec[p]) {
+                    free(nl[j].kspec[p]);
+                    free(nl[j].xspec[p]);
+                    st = FC_ERR_NOMEM;
+                    break;
+                }
+                st = segment_spectrum(s, &nl[j], p, tmp);
+                if (st != FC_OK) {
+                    free(nl[j].kspec[p]);
+                    free(nl[j].xspec[p]);
+                    break;
+                }
+            }
+            if (st == FC_OK) nl[j].made = nd.made[j];
+            else nl[j].made = p; /* segments made so far at the failing level */
+        }
+        if (st != FC_OK) {
+            /* unwind: everything beyond what the stream owned */
+            for (size_t i = 0; i < j; i++) {
+                size_t old = i < s->nlev ? s->lev[i].made : 0;
+                for (size_t q = old; q < nl[i].made; q++) {
+                    free(nl[i].kspec[q]);
+                    free(nl[i].xspec[q]);
+                }
+                if (i >= s->nlev) fc__fft_free(nl[i].plan);
+            }
+            free(nu); free(na); free(nw);
+            return st;
+        }
+    }
+
+    /* commit */
+    if (nu) {
+        size_t row = FC_S_PAD + nucap, orow = FC_S_PAD + s->ucap;
+        for (size_t c = 0; c < C; c++) {
+            double *d = nu + c * row;
+            memset(d, 0, FC_S_PAD * sizeof(double));
+            if (s->n) memcpy(d + FC_S_PAD, s->u + c * orow + FC_S_PAD,
+                             (size_t)s->n * sizeof(double));
+        }
+        free(s->u);
+        s->u = nu;
+        s->ucap = nucap;
+    }
+    if (na) {
+        uint64_t live = s->acc_hi > s->n ? s->acc_hi - s->n : 0;
+        for (size_t c = 0; c < C; c++) {
+            double *d = na + c * nacap;
+            if (live) memcpy(d, s->acc + c * s->acap + (s->n - s->abase),
+                             (size_t)live * sizeof(double));
+            memset(d + live, 0, (nacap - (size_t)live) * sizeof(double));
+        }
+        free(s->acc);
+        s->acc = na;
+        s->acap = nacap;
+        s->abase = nbase;
+    }
+    if (nw) {
+        free(s->work);
+        s->work = nw;
+        s->wcap = nwcap;
+    }
+    if (grow_l) {
+        memcpy(s->lev, nl, nlev_new * sizeof(fc__level));
+        s->nlev = nlev_new;
+    }
+    s->prep_n = ex_ready(s, &nd);
+    return FC_OK;
+}
+
+/* ------------------------------------------------------------ exact ops */
+
+/* One time step of every channel; capacity prepared, samples finite. */
+static int ex_step(fc_stream *s, const double *x, double *y)
+{
+    double corr = 0.0;
+    size_t C = s->C;
+    uint64_t n = s->n;
+    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID && n > 0) {
+        int st = corr_get(s, n, &corr);
+        if (st != FC_OK) return st;
+    }
+    for (size_t c = 0; c < C; c++) {
+        double u;
+        y[c] = ex_y(s, c, x[c], corr, &u);
+        urow(s, c)[n] = u;
+    }
+    if (s->kind == FC_S_KIND_RULE) {
+        if (s->rule == FC_RULE_L1) memcpy(s->xprev, x, C * sizeof(double));
+        else if (s->rule == FC_RULE_TRAPEZOID && n == 0)
+            memcpy(s->x0, x, C * sizeof(double));
+    }
+    s->n = ++n;
+    if (n % FC_S_LEAF == 0) {
+        for (size_t j = 0; j < s->nlev; j++) {
+            const fc__level *L = &s->lev[j];
+            if (n % L->s || n < L->delay) break; /* the same for larger j */
+            level_frame(s, j, (n - L->delay) / L->s);
+        }
+    }
+    return FC_OK;
+}
+
+static int ex_preview(fc_stream *s, const double *x, double *y)
+{
+    double corr = 0.0;
+    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID && s->n > 0) {
+        int st = corr_get(s, s->n, &corr);
+        if (st != FC_OK) return st;
+    }
+    for (size_t c = 0; c < s->C; c++) {
+        double u;
+        y[c] = ex_y(s, c, x[c], corr, &u);
+    }
+    return FC_OK;
+}
+
+static int ex_history(fc_stream *s, double *h)
+{
+    double corr = 0.0;
+    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID && s->n > 0) {
+        int st = corr_get(s, s->n, &corr);
+        if (st != FC_OK) return st;
+    }
+    for (size_t c = 0; c < s->C; c++) h[c] = ex_hist(s, c, corr);
+    return FC_OK;
+}
+
+static int ex_push_block(fc_stream *s, const double *x, size_t count,
+                         double *y)
+{
+    size_t C = s->C, tot;
+    int st;
+    if (fc__mul_size(count, C, &tot)) return FC_ERR_SIZE;
+    if (tot && (st = fc__check_finite(x, tot)) != FC_OK) return st;
+    if ((uint64_t)count > UINT64_MAX - s->n) return FC_ERR_SIZE;
+    uint64_t n_end = s->n + count;
+    if ((st = ex_prepare(s, n_end, 0)) != FC_OK) return st;
+    /* the trapezoid correction of the first sample, so that the only
+       failure the loop could meet is checked before anything changes */
+    if (count && s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID) {
+        double v;
+        if ((st = corr_get(s, n_end - 1, &v)) != FC_OK) return st;
+        if (s->n > 0 && (st = corr_get(s, s->n, &v)) != FC_OK) return st;
+    }
+    for (size_t t = 0; t < count; t++) {
+        st = ex_step(s, x + t * C, y + t * C);
+        if (st != FC_OK) return st; /* not reached: weights validated */
+    }
+    return FC_OK;
+}
+
+static void ex_reset(fc_stream *s)
+{
+    if (s->acc) memset(s->acc, 0, s->C * s->acap * sizeof(double));
+    s->abase = 0;
+    s->acc_hi = 0;
+    s->n = 0;
+    s->prep_n = 0; /* capacities are rechecked (the accumulator base moved) */
+    if (s->xprev) memset(s->xprev, 0, s->C * sizeof(double));
+    if (s->x0) memset(s->x0, 0, s->C * sizeof(double));
+}
+
+static size_t ex_nbytes(const fc_stream *s)
+{
+    size_t b = sizeof(*s);
+    b += s->C * (FC_S_PAD + s->ucap) * sizeof(double) * (s->u != NULL);
+    b += s->C * s->acap * sizeof(double);
+    b += s->wcap ? (4 * s->wcap + 2) * sizeof(double) : 0;
+    b += s->klen * sizeof(double);
+    b += 2 * s->C * sizeof(double);
+    for (size_t j = 0; j < s->nlev; j++)
+        b += s->lev[j].made * (1 + s->C) * (2 * s->lev[j].s + 2) * sizeof(double) +
+             fc__fft_nbytes(s->lev[j].plan);
+    return b;
+}
+
+/* ------------------------------------------------------------ create */
+
+static void stream_free_parts(fc_stream *s)
+{
+    if (!s) return;
+    if (s->cs) fc__cs_free(s->cs);
+    for (size_t j = 0; j < s->nlev; j++) level_free(&s->lev[j]);
+    free(s->kernel);
+    free(s->u);
+    free(s->acc);
+    free(s->xprev);
+    free(s->x0);
+    free(s->work);
+    free(s);
+}
+
+void fc_stream_free(fc_stream *s)
+{
+    stream_free_parts(s);
+}
+
+static fc_stream *stream_alloc(size_t C)
+{
+    fc_stream *s = calloc(1, sizeof(*s));
+    if (!s) return NULL;
+    atomic_flag_clear(&s->busy);
+    s->C = C;
+    s->rule = -1;
+    return s;
+}
+
+/* Common exact-mode setup after kind/rule/kernel are set. */
+static int ex_init(fc_stream *s)
+{
+    size_t C = s->C, bytes;
+    double leafc[FC_S_LEAF];
+    int st;
+    if (fc__mul_size(C, sizeof(double), &bytes)) return FC_ERR_SIZE;
+    s->xprev = calloc(C, sizeof(double));
+    s->x0 = calloc(C, sizeof(double));
+    if (!s->xprev || !s->x0) return FC_ERR_NOMEM;
+    st = kernel_values(s, 0, FC_S_LEAF, leafc);
+    if (st != FC_OK) return st;
+    s->c0 = leafc[0];
+    s->leafk[0] = 0.0;
+    for (size_t i = 1; i < FC_S_LEAF; i++) s->leafk[i] = leafc[FC_S_LEAF - i];
+    /* room for the leaf band of the first samples */
+    return ex_prepare(s, 1, 1);
+}
+
+int fc_stream_create(int rule, double order, double step, size_t channels,
+                     int mode, double tol, double horizon, fc_stream **out)
+{
+    int st;
+    if (!out) return FC_ERR_NULL;
+    if ((st = fc__check_rule(rule, order, step)) != FC_OK) return st;
+    if (channels == 0) return FC_ERR_ARG;
+    if (channels > ((size_t)-1) / (8 * sizeof(double) * FC_S_PAD))
+        return FC_ERR_SIZE;
+    if (mode != FC_MODE_EXACT && mode != FC_MODE_COMPRESSED) return FC_ERR_MODE;
+    if (mode == FC_MODE_COMPRESSED) {
+        if (!(tol >= 1e-15 && tol <= 1e-2) || !(horizon >= 1.0) ||
+            !isfinite(horizon))
+            return FC_ERR_TOL;
+    }
+    fc_stream *s = stream_alloc(channels);
+    if (!s) return FC_ERR_NOMEM;
+    s->mode = mode;
+    s->kind = FC_S_KIND_RULE;
+    s->rule = rule;
+    s->order = order;
+    s->step = step;
+    s->tol = mode == FC_MODE_COMPRESSED ? tol : 0.0;
+    s->horizon = mode == FC_MODE_COMPRESSED ? horizon : 0.0;
+    if (mode == FC_MODE_COMPRESSED)
+        st = fc__cs_create(rule, order, step, channels, tol, horizon, &s->cs);
+    else
+        st = ex_init(s);
+    if (st != FC_OK) {
+        if (mode == FC_MODE_COMPRESSED) s->cs = NULL;
+        stream_free_parts(s);
+        return st;
+    }
+    *out = s;
+    return FC_OK;
+}
+
+int fc_stream_create_kernel(const double *kernel, size_t klen,
+                            size_t channels, fc_stream **out)
+{
+    int st;
+    if (!out || !kernel) return FC_ERR_NULL;
+    if (klen == 0) return FC_ERR_KERNEL;
+    if ((uint64_t)klen > FC_S_LAG_LIMIT) return FC_ERR_SIZE;
+    if (fc__check_finite(kernel, klen) != FC_OK) return FC_ERR_KERNEL;
+    if (channels == 0) return FC_ERR_ARG;
+    if (channels > ((size_t)-1) / (8 * sizeof(double) * FC_S_PAD))
+        return FC_ERR_SIZE;
+    fc_stream *s = stream_alloc(channels);
+    if (!s) return FC_ERR_NOMEM;
+    s->mode = FC_MODE_EXACT;
+    s->kind = FC_S_KIND_KERNEL;
+    s->kernel = malloc(klen * sizeof(double));
+    if (!s->kernel) { stream_free_parts(s); return FC_ERR_NOMEM; }
+    memcpy(s->kernel, kernel, klen * sizeof(double));
+    s->klen = klen;
+    if ((st = ex_init(s)) != FC_OK) { stream_free_parts(s); return st; }
+    *out = s;
+    return FC_OK;
+}
+
+/* ------------------------------------------------------------ public ops */
+
+#define ENTER_OR_RETURN(s)                       \
+    do {                                         \
+        if (!(s)) return FC_ERR_NULL;            \
+        int st_e_ = enter(s);                    \
+        if (st_e_ != FC_OK) return st_e_;        \
+    } while (0)
+
+int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
+                         double *y)
+{
+    int st;
+    if (!s) return FC_ERR_NULL;
+    if (count && (!x || !y)) return FC_ERR_NULL;
+    if ((st = enter(s)) != FC_OK) return st;
+    if (s->mode == FC_MODE_COMPRESSED) {
+        size_t tot;
+        if (fc__mul_size(count, s->C, &tot)) st = FC_ERR_SIZE;
+        else if (tot && (st = fc__check_finite(x, tot)) != FC_OK) {}
+        else st = count ? fc__cs_push_block(s->cs, x, count, y) : FC_OK;
+    } else {
+        st = ex_push_block(s, x, count, y);
+    }
+    leave(s);
+    return st;
+}
+
+int fc_stream_push(fc_stream *s, const double *x, double *y)
+{
+    if (!s || !x || !y) return FC_ERR_NULL;
+    return fc_stream_push_block(s, x, 1, y);
+}
+
+int fc_stream_push1(fc_stream *s, double x, double *y)
+{
+    int st;
+    if (!s || !y) return FC_ERR_NULL;
+    if ((st = enter(s)) != FC_OK) return st;
+    if (s->C != 1) st = FC_ERR_ARG;
+    else if (!isfinite(x)) st = FC_ERR_NONFINITE;
+    else if (s->mode == FC_MODE_COMPRESSED) st = fc__cs_push_block(s->cs, &x, 1, y);
+    else {
+        /* inline fast path of ex_push_block for one sample */
+        if (s->n + 1 > s->prep_n) st = ex_prepare(s, s->n + 1, 0);
+        if (st == FC_OK && s->kind == FC_S_KIND_RULE &&
+            s->rule == FC_RULE_TRAPEZOID && s->n > 0) {
+            double v;
+            st = corr_get(s, s->n, &v);
+        }
+        if (st == FC_OK) st = ex_step(s, &x, y);
+    }
+    leave(s);
+    return st;
+}
+
+int fc_stream_preview(fc_stream *s, const double *x, double *y)
+{
+    int st;
+    if (!s || !x || !y) return FC_ERR_NULL;
+    if ((st = enter(s)) != FC_OK) return st;
+    if ((st = fc__check_finite(x, s->C)) == FC_OK) {
+        if (s->mode == FC_MODE_COMPRESSED) st = fc__cs_preview(s->cs, x, y);
+        else st = ex_preview(s, x, y);
+    }
+    leave(s);
+    return st;
+}
+
+int fc_stream_history(fc_stream *s, double *h)
+{
+    int st;
+    if (!s || !h) return FC_ERR_NULL;
+    if ((st = enter(s)) != FC_OK) return st;
+    if (s->mode == FC_MODE_COMPRESSED) st = fc__cs_history(s->cs, h);
+    else st = ex_history(s, h);
+    leave(s);
+    return st;
+}
+
+int fc_stream_reset(fc_stream *s)
+{
+    ENTER_OR_RETURN(s);
+    if (s->mode == FC_MODE_COMPRESSED) fc__cs_reset(s->cs);
+    else ex_reset(s);
+    leave(s);
+    return FC_OK;
+}
+
+int fc_stream_count(const fc_stream *s, uint64_t *count)
+{
+    if (!count) return FC_ERR_NULL;
+    ENTER_OR_RETURN(s);
+    *count = s->mode == FC_MODE_COMPRESSED ? fc__cs_count(s->cs) : s->n;
+    leave(s);
+    return FC_OK;
+}
+
+int fc_stream_channels(const fc_stream *s, size_t *channels)
+{
+    if (!s || !channels) return FC_ERR_NULL;
+    *channels = s->C; /* immutable */
+    return FC_OK;
+}
+
+int fc_stream_mode(const fc_stream *s, int *mode)
+{
+    if (!s || !mode) return FC_ERR_NULL;
+    *mode = s->mode; /* immutable */
+    return FC_OK;
+}
+
+int fc_stream_nbytes(const fc_stream *s, size_t *nbytes)
+{
+    if (!nbytes) return FC_ERR_NULL;
+    ENTER_OR_RETURN(s);
+    *nbytes = s->mode == FC_MODE_COMPRESSED ? sizeof(*s) + fc__cs_nbytes(s->cs)
+                                            : ex_nbytes(s);
+    leave(s);
+    return FC_OK;
+}
+
+int fc_stream_terms(const fc_stream *s, size_t *terms)
+{
+    if (!terms) return FC_ERR_NULL;
+    ENTER_OR_RETURN(s);
+    *terms = s->mode == FC_MODE_COMPRESSED ? fc__cs_terms(s->cs) : 0;
+    leave(s);
+    return FC_OK;
+}
+
+int fc_stream_reserve(fc_stream *s, uint64_t n)
+{
+    int st = FC_OK;
+    ENTER_OR_RETURN(s);
+    if (s->mode == FC_MODE_EXACT && n > s->n) st = ex_prepare(s, n, 1);
+    leave(s);
+    return st;
+}
+
+/* ------------------------------------------------------------ save/load */
+
+/*
+ * Format (all integers and doubles little-endian, doubles as IEEE-754
+ * bit patterns):
+ *   0  magic "FCSTREAM"          8 bytes
+ *   8  u32 format version (1)
+ *  12  u32 mode
+ *  16  u32 kind (0 rule, 1 kernel)
+ *  20  i32 rule (-1 for a kernel)
+ *  24  f64 order, 32 f64 step, 40 u64 channels, 48 f64 tol, 56 f64 horizon
+ *  64  u64 payload size
+ *  72  u64 FNV-1a 64 of bytes [0, 72) followed by the payload
+ *  80  payload
+ * Exact payload: u64 leaf size, u64 segments per level, u64 n, u64 klen
+ * (0 for a rule), u64 A
+ * (accumulator values kept per channel), f64 kernel[klen], f64 xprev[C],
+ * f64 x0[C], f64 u[C][n], f64 acc[C][A] (outputs n .. n+A-1). The kernel
+ * spectra and the ring of block spectra are recomputed on load (the same
+ * FFTs of the same data give the same bits).
+ * Compressed payload: what fc__cs_save writes.
+ */
+#define FC_S_HDR 80
+#define FC_S_FMT_VERSION 1u
+static const unsigned char fc_s_magic[8] = {'F', 'C', 'S', 'T', 'R', 'E', 'A', 'M'};
+
+static void put64(unsigned char *p, uint64_t v)
+{
+    for (int i = 0; i < 8; i++) p[i] = (unsigned char)(v >> (8 * i));
+}
+static void put32(unsigned char *p, uint32_t v)
+{
+    for (int i = 0; i < 4; i++) p[i] = (unsigned char)(v >> (8 * i));
+}
+static void putd(unsigned char *p, double d)
+{
+    uint64_t v;
+    memcpy(&v, &d, 8);
+    put64(p, v);
+}
+static uint64_t get64(const unsigned char *p)
+{
+    uint64_t v = 0;
+    for (int i = 7; i >= 0; i--) v = (v << 8) | p[i];
+    return v;
+}
+static uint32_t get32(const unsigned char *p)
+{
+    uint32_t v = 0;
+    for (int i = 3; i >= 0; i--) v = (v << 8) | p[i];
+    return v;
+}
+static double getd(const unsigned char *p)
+{
+    uint64_t v = get64(p);
+    double d;
+    memcpy(&d, &v, 8);
+    return d;
+}
+static uint64_t fnv1a(uint64_t h, const unsigned char *p, size_t n)
+{
+    for (size_t i = 0; i < n; i++) {
+        h ^= p[i];
+        h *= UINT64_C(0x100000001b3);
+    }
+    return h;
+}
+#define FNV_OFFSET UINT64_C(0xcbf29ce484222325)
+
+static uint64_t ex_acc_live(const fc_stream *s)
+{
+    return s->acc_hi > s->n ? s->acc_hi - s->n : 0;
+}
+
+static int payload_size(const fc_stream *s, size_t *size)
+{
+    if (s->mode == FC_MODE_COMPRESSED) {
+        *size = fc__cs_save_size(s->cs);
+        return FC_OK;
+    }
+    size_t nd = 0, t;
+    uint64_t A = ex_acc_live(s);
+    /* doubles: klen + 2C + C*n + C*A */
+    if (fc__add_size(s->klen, 2 * s->C, &nd)) return FC_ERR_SIZE;
+    if (fc__mul_size(s->C, (size_t)s->n, &t) || fc__add_size(nd, t, &nd))
+        return FC_ERR_SIZE;
+    if (fc__mul_size(s->C, (size_t)A, &t) || fc__add_size(nd, t, &nd))
+        return FC_ERR_SIZE;
+    if (fc__mul_size(nd, 8, &nd) || fc__add_size(nd, 40, &nd))
+        return FC_ERR_SIZE;
+    *size = nd;
+    return FC_OK;
+}
+
+int fc_stream_save_size(fc_stream *s, size_t *size)
+{
+    int st;
+    size_t p;
+    if (!size) return FC_ERR_NULL;
+    ENTER_OR_RETURN(s);
+    st = payload_size(s, &p);
+    if (st == FC_OK && fc__add_size(p, FC_S_HDR, &p)) st = FC_ERR_SIZE;
+    if (st == FC_OK) *size = p;
+    leave(s);
+    return st;
+}
+
+int fc_stream_save(fc_stream *s, unsigned char *buf, size_t size,
+                   size_t *written)
+{
+    int st;
+    size_t p, total;
+    if (!buf || !written) return FC_ERR_NULL;
+    ENTER_OR_RETURN(s);
+    st = payload_size(s, &p);
+    if (st == FC_OK && fc__add_size(p, FC_S_HDR, &total)) st = FC_ERR_SIZE;
+    if (st == FC_OK && size < total) st = FC_ERR_ARG;
+    if (st == FC_OK && s->mode == FC_MODE_COMPRESSED)
+        st = fc__cs_save(s->cs, buf + FC_S_HDR, p);
+    if (st != FC_OK) { leave(s); return st; }
+
+    memcpy(buf, fc_s_magic, 8);
+    put32(buf + 8, FC_S_FMT_VERSION);
+    put32(buf + 12, (uint32_t)s->mode);
+    put32(buf + 16, s->kind);
+    put32(buf + 20, (uint32_t)s->rule);
+    putd(buf + 24, s->order);
+    putd(buf + 32, s->step);
+    put64(buf + 40, (uint64_t)s->C);
+    putd(buf + 48, s->tol);
+    putd(buf + 56, s->horizon);
+    put64(buf + 64, (uint64_t)p);
+
+    if (s->mode == FC_MODE_EXACT) {
+        unsigned char *q = buf + FC_S_HDR;
+        uint64_t A = ex_acc_live(s);
+        put64(q, FC_S_LEAF);
+        put64(q + 8, FC_S_SEGS);
+        put64(q + 16, s->n);
+        put64(q + 24, (uint64_t)s->klen);
+        put64(q + 32, A);
+        q += 40;
+        for (size_t i = 0; i < s->klen; i++, q += 8) putd(q, s->kernel[i]);
+        for (size_t c = 0; c < s->C; c++, q += 8) putd(q, s->xprev[c]);
+        for (size_t c = 0; c < s->C; c++, q += 8) putd(q, s->x0[c]);
+        for (size_t c = 0; c < s->C; c++) {
+            const double *uc = urow(s, c);
+            for (uint64_t k = 0; k < s->n; k++, q += 8) putd(q, uc[k]);
+        }
+        for (size_t c = 0; c < s->C; c++) {
+            const double *ac = arow(s, c) + (s->n - s->abase);
+            for (uint64_t k = 0; k < A; k++, q += 8) putd(q, ac[k]);
+        }
+    }
+    uint64_t h = fnv1a(FNV_OFFSET, buf, 72);
+    h = fnv1a(h, buf + FC_S_HDR, p);
+    put64(buf + 72, h);
+    *written = total;
+    leave(s);
+    return FC_OK;
+}
+
+static int finite_le(const unsigned char *p, size_t count)
+{
+    for (size_t i = 0; i < count; i++)
+        if (!isfinite(getd(p + 8 * i))) return 0;
+    return 1;
+}
+
+int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out)
+{
+    int st;
+    if (!buf || !out) return FC_ERR_NULL;
+    if (size < FC_S_HDR) return FC_ERR_FORMAT;
+    if (memcmp(buf, fc_s_magic, 8) != 0) return FC_ERR_FORMAT;
+    if (get32(buf + 8) != FC_S_FMT_VERSION) return FC_ERR_FORMAT;
+    uint64_t p = get64(buf + 64);
+    if (p != (uint64_t)(size - FC_S_HDR)) return FC_ERR_FORMAT;
+    uint64_t h = fnv1a(FNV_OFFSET, buf, 72);
+    h = fnv1a(h, buf + FC_S_HDR, (size_t)p);
+    if (h != get64(buf + 72)) return FC_ERR_FORMAT;
+
+    uint32_t mode = get32(buf + 12), kind = get32(buf + 16);
+    int rule = (int)(int32_t)get32(buf + 20);
+    double order = getd(buf + 24), step = getd(buf + 32);
+    uint64_t C64 = get64(buf + 40);
+    double tol = getd(buf + 48), horizon = getd(buf + 56);
+    const unsigned char *q = buf + FC_S_HDR;
+    fc_stream *s = NULL;
+
+    if (C64 == 0 || C64 > (uint64_t)(size_t)-1) return FC_ERR_FORMAT;
+    size_t C = (size_t)C64;
+
+    if (mode == FC_MODE_COMPRESSED) {
+        if (kind != FC_S_KIND_RULE) return FC_ERR_FORMAT;
+        if (fc__check_rule(rule, order, step) != FC_OK) return FC_ERR_FORMAT;
+        if (!(tol >= 1e-15 && tol <= 1e-2) || !(horizon >= 1.0) ||
+            !isfinite(horizon))
+            return FC_ERR_FORMAT;
+        s = stream_alloc(C);
+        if (!s) return FC_ERR_NOMEM;
+        s->mode = FC_MODE_COMPRESSED;
+        s->kind = FC_S_KIND_RULE;
+        s->rule = rule;
+        s->order = order;
+        s->step = step;
+        s->tol = tol;
+        s->horizon = horizon;
+        st = fc__cs_load(q, (size_t)p, &s->cs);
+        if (st != FC_OK) {
+            s->cs = NULL;
+            stream_free_parts(s);
+            return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+        }
+        *out = s;
+        return FC_OK;
+    }
+    if (mode != FC_MODE_EXACT) return FC_ERR_FORMAT;
+    if (p < 40) return FC_ERR_FORMAT;
+    uint64_t leaf = get64(q), segs = get64(q + 8), n = get64(q + 16),
+             klen = get64(q + 24), A = get64(q + 32);
+    if (leaf != FC_S_LEAF || segs != FC_S_SEGS) return FC_ERR_FORMAT;
+    if (tol != 0.0 || horizon != 0.0) return FC_ERR_FORMAT;
+    /* sizes: every count must fit in the payload (p < 2^64/8 checked
+       piecewise so that nothing overflows) */
+    uint64_t room = (p - 40) / 8; /* doubles present */
+    if (klen > room || C64 > room) return FC_ERR_FORMAT;
+    uint64_t used = klen + 2 * C64;
+    if (used > room) return FC_ERR_FORMAT;
+    if (n > (room - used) / C64) return FC_ERR_FORMAT;
+    used += C64 * n;
+    if (A > (room - used) / C64) return FC_ERR_FORMAT;
+    used += C64 * A;
+    if (used != room || (p - 40) % 8) return FC_ERR_FORMAT;
+    if (!finite_le(q + 40, (size_t)used)) return FC_ERR_FORMAT;
+
+    q += 40;
+    if (kind == FC_S_KIND_KERNEL) {
+        if (rule != -1 || klen == 0 || klen > FC_S_LAG_LIMIT) return FC_ERR_FORMAT;
+        if (!(order == 0.0 && step == 0.0)) return FC_ERR_FORMAT;
+        double *k = malloc((size_t)klen * sizeof(double));
+        if (!k) return FC_ERR_NOMEM;
+        for (size_t i = 0; i < klen; i++) k[i] = getd(q + 8 * i);
+        st = fc_stream_create_kernel(k, (size_t)klen, C, &s);
+        free(k);
+        if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+    } else if (kind == FC_S_KIND_RULE) {
+        if (klen != 0) return FC_ERR_FORMAT;
+        if (fc__check_rule(rule, order, step) != FC_OK) return FC_ERR_FORMAT;
+        st = fc_stream_create(rule, order, step, C, FC_MODE_EXACT, 0, 0, &s);
+        if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+    } else {
+        return FC_ERR_FORMAT;
+    }
+    q += 8 * klen;
+    ex_need nd;
+    if (ex_needs(s, n, &nd) != FC_OK || n + A > nd.aend) {
+        fc_stream_free(s);
+        return FC_ERR_FORMAT;
+    }
+    st = ex_prepare(s, n, 1);
+    if (st != FC_OK) {
+        fc_stream_free(s);
+        return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+    }
+    for (size_t c = 0; c < C; c++, q += 8) s->xprev[c] = getd(q);
+    for (size_t c = 0; c < C; c++, q += 8) s->x0[c] = getd(q);
+    s->n = n;
+    for (size_t c = 0; c < C; c++) {
+        double *uc = urow(s, c);
+        for (uint64_t k = 0; k < n; k++, q += 8) uc[k] = getd(q);
+    }
+    /* abase is 0 after a fresh prepare: acc index k at k */
+    for (size_t c = 0; c < C; c++) {
+        double *ac = arow(s, c) + (n - s->abase);
+        for (uint64_t k = 0; k < A; k++, q += 8) ac[k] = getd(q);
+    }
+    s->acc_hi = n + A;
+    /* the ring of block spectra: blocks of the last nseg frames done */
+    for (size_t j = 0; j < s->nlev; j++) {
+        fc__level *L = &s->lev[j];
+        if (n < L->delay) continue;
+        uint64_t fl = (n - L->delay) / L->s;
+        uint64_t f0 = fl + 1 >= L->nseg ? fl + 1 - L->nseg : 0;
+        for (uint64_t f = f0; f <= fl; f++) block_spectra(s, L, f);
+    }
+    *out = s;
+    return FC_OK;
+}

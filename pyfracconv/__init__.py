@@ -1,0 +1,42 @@
+"""pyfracconv: fractional integrals and derivatives of sampled signals.
+
+Quadrature weights (product rectangle and trapezoidal rules,
+Grunwald-Letnikov, L1) and fast, accurate lagged sums over whole
+histories: batch functions for recorded signals and streams that take one
+sample at a time.
+"""
+
+from ._errors import (
+    ArgumentError,
+    BusyError,
+    FracconvError,
+    InputTypeError,
+    OutOfMemory,
+    SampleError,
+    StateError,
+)
+from ._core import derivative, get_include, integral, lagged_sum, weights
+from ._fracconv import ffi as _ffi, lib as _lib
+
+__version__ = "0.1.0"
+#: Version string of the compiled C library (equal to __version__).
+c_version = _ffi.string(_lib.fc_version_string()).decode()
+
+from .stream import Stream
+
+__all__ = [
+    "weights",
+    "lagged_sum",
+    "integral",
+    "derivative",
+    "get_include",
+    "Stream",
+    "FracconvError",
+    "ArgumentError",
+    "SampleError",
+    "StateError",
+    "InputTypeError",
+    "OutOfMemory",
+    "BusyError",
+    "__version__",
+]
