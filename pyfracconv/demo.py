@@ -170,7 +170,7 @@ def run(out=None, integral=None, derivative=None):
         f"{DURATION:g} s;")
     say(f"sampled at {RATE:g} Hz ({n} samples, step h = {h:g} s). Operators of order "
         f"a = {a:g}.")
-    say(f"Invented springpot model of the damper: stress = E tau^a D^a strain,")
+    say("Invented springpot model of the damper: stress = E tau^a D^a strain,")
     say(f"E = {MODULUS / 1e6:g} MPa, tau = {TAU:g} s.")
     say()
 
