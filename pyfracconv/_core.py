@@ -214,19 +214,6 @@ def trapezoid_start(order, count, step=1.0, start=0):
 
 # ---------------------------------------------------------------- lagged sums
 
-try:  # the pyFFTW path of engine="fft" (pyfracconv/_fftw.py); C otherwise
-    from . import _fftw
-except Exception:  # pragma: no cover - the C engine is the fallback
-    _fftw = None
-
-
-def _fftw_wanted(n, klen):
-    """True if lagged_sum(engine="fft") runs through pyFFTW: installed,
-    and a size where it was measured faster than the C FFT (see _fftw.py).
-    integral/derivative keep the C path (fc_apply builds the kernel)."""
-    return _fftw is not None and _fftw.use_fftw(n, klen)
-
-
 def _rows(name, samples, axis):
     """Samples moved to a C-contiguous (nsig, n) float64 block."""
     arr = as_float_array(name, samples)
@@ -275,10 +262,6 @@ def lagged_sum(samples, kernel, axis=-1, engine="auto"):
         raise_nonfinite("kernel", k)
     eng = check_engine(engine)
     nsig, n = block.shape
-    if eng == lib.FC_ENGINE_FFT and block.size and _fftw_wanted(n, k.size):
-        if not np.all(np.isfinite(block)):
-            raise_nonfinite("samples", arr)
-        return _unrows(_fftw.lagged_sum_fft(block, k), moved_shape, ax)
     out = np.empty_like(block)
     st = lib.fc_lagged_sum(context(), dptr(block), nsig, n, dptr(k), k.size, eng,
                            ffi.from_buffer("double[]", out))

@@ -143,6 +143,15 @@ class Stream:
     nothing. Every rejected call (bad argument, non-finite sample, wrong
     shape) leaves the stream exactly as it was.
 
+    Compressed mode guarantee: for every n <= horizon,
+    ``|y_n - y_n(exact)| <= tol * (sum_k |c_{n-k} u_k| + |corr_n x_0|)``
+    plus rounding, where c is the rule's kernel, u the samples (their
+    differences for ``l1``) and corr_n x_0 the trapezoid rule's starting
+    term. The sum of exponentials behind it is checked against the rule's
+    weights over the whole lag range when the stream is created (creation
+    fails otherwise). Orders 0 < a < 1; memory and work per sample are
+    constant.
+
     Notes
     -----
     Exact mode memory grows like O(n) (about 40 bytes per sample and channel
@@ -194,6 +203,11 @@ class Stream:
         C = _check_channels(channels)
         m = _check_mode(mode)
         if m == lib.FC_MODE_COMPRESSED:
+            if a >= 1.0:
+                raise ArgumentError(
+                    f"order={order!r}: mode='compressed' supports orders "
+                    "0 < order < 1 (use mode='exact' for higher orders)"
+                )
             t, hz = _check_tol(tol, horizon)
         else:
             t, hz = 0.0, 0.0

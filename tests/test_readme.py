@@ -23,3 +23,11 @@ def test_ci_runs_the_readme_commands_verbatim():
     ci = open(os.path.join(ROOT, ".ci", "run"), encoding="utf-8").read()
     for cmd in setup_commands():
         assert cmd in ci, cmd
+
+
+def test_readme_python_examples_run():
+    text = open(os.path.join(ROOT, "README.md"), encoding="utf-8").read()
+    blocks = re.findall(r"```python\n(.*?)```", text, re.S)
+    assert len(blocks) >= 2
+    for i, code in enumerate(blocks):
+        exec(compile(code, f"README.md python block {i}", "exec"), {})
