@@ -26,6 +26,7 @@ SUITES = {
     "compressed": "test_bench_compressed.py",
 }
 SCRIPTS = {
+    "batch": ["first_call.py"],
     "stream": ["stream_memory.py"],
     "compressed": ["soe_terms.py"],
 }

@@ -13,7 +13,7 @@ import pytest
 from pyfracconv import Stream
 
 RULES = ["rectangle", "trapezoid", "grunwald", "l1"]
-N = 100_000
+N = 2**20
 
 
 def make(rule, mode, channels=None, tol=1e-12, horizon=1e8):
@@ -31,8 +31,8 @@ def x():
 
 @pytest.mark.parametrize("rule", RULES)
 @pytest.mark.parametrize("mode", ["compressed", "exact"])
-def test_push_many_1e5(benchmark, x, rule, mode):
-    benchmark.group = f"push_many {N} samples, {rule}"
+def test_push_many_2_20(benchmark, x, rule, mode):
+    benchmark.group = f"push_many 2^20 samples, {rule}"
 
     def run():
         s = make(rule, mode)

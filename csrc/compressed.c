@@ -137,16 +137,18 @@ struct fc_cstream {
 
 /* ---------------------------------------------------------------- push */
 
-/* Portable kernel: the same operations and order as the AVX2 one. */
+/* Portable kernel: the same operations and order as the AVX2 one. Term l
+   receives d, or inj_l * d when inj is not NULL (the one step n = B of the
+   trapezoid rule). */
 static void cs_terms_portable(size_t Lp, const double *q, const double *beta,
-                              double *S, double *Sc, double d, int commit,
-                              double acc_out[8])
+                              const double *inj, double *S, double *Sc,
+                              double d, int commit, double acc_out[8])
 {
     double acc[8] = {0, 0, 0, 0, 0, 0, 0, 0};
     for (size_t l = 0; l < Lp; l += 8) {
         for (int k = 0; k < 8; k++) {
             double qq = q[l + k], s0 = S[l + k], c0 = Sc[l + k];
-            double t = fma(-qq, s0, d);
+            double t = fma(-qq, s0, inj ? inj[l + k] * d : d);
             double t3 = t + c0;
             double s = s0 + t3;
             double z = s - s0;
@@ -176,76 +178,19 @@ static double cs_reduce8(const double a[8])
     return (v0 + v1) + (v2 + v3);
 }
 
-/* The one step n = B of the trapezoid rule: term l receives inj_l * d.
-   Same arithmetic as cs_terms_portable with a per-term input. */
-static void cs_terms_inject(size_t Lp, const double *q, const double *beta,
-                            const double *inj, double *S, double *Sc, double d,
-                            int commit, double acc_out[8])
-{
-    double acc[8] = {0, 0, 0, 0, 0, 0, 0, 0};
-    for (size_t l = 0; l < Lp; l += 8) {
-        for (int k = 0; k < 8; k++) {
-            double qq = q[l + k], s0 = S[l + k], c0 = Sc[l + k];
-            double t = fma(-qq, s0, inj[l + k] * d);
-            double t3 = t + c0;
-            double s = s0 + t3;
-            double z = s - s0;
-            double e = (s0 - (s - z)) + (t3 - z);
-            acc[k] = fma(beta[l + k], s, acc[k]);
-            if (commit) { S[l + k] = s; Sc[l + k] = e; }
-        }
-    }
-    memcpy(acc_out, acc, sizeof acc);
-}
-
 #if CS_HAVE_AVX2
 __attribute__((target("avx2,fma")))
 static void cs_terms_avx2(size_t Lp, const double *q, const double *beta,
-                          double *S, double *Sc, double d, int commit,
-                          double acc_out[8])
+                          const double *inj, double *S, double *Sc, double d,
+                          int commit, double acc_out[8])
 {
     __m256d accA = _mm256_setzero_pd(), accB = _mm256_setzero_pd();
     const __m256d dv = _mm256_set1_pd(d);
     for (size_t l = 0; l < Lp; l += 8) {
         __m256d nq0 = _mm256_sub_pd(_mm256_setzero_pd(), _mm256_loadu_pd(q + l));
         __m256d nq1 = _mm256_sub_pd(_mm256_setzero_pd(), _mm256_loadu_pd(q + l + 4));
-        __m256d s00 = _mm256_loadu_pd(S + l), s01 = _mm256_loadu_pd(S + l + 4);
-        __m256d c00 = _mm256_loadu_pd(Sc + l), c01 = _mm256_loadu_pd(Sc + l + 4);
-        __m256d t0 = _mm256_fmadd_pd(nq0, s00, dv);
-        __m256d t1 = _mm256_fmadd_pd(nq1, s01, dv);
-        t0 = _mm256_add_pd(t0, c00);
-        t1 = _mm256_add_pd(t1, c01);
-        __m256d s0 = _mm256_add_pd(s00, t0), s1 = _mm256_add_pd(s01, t1);
-        __m256d z0 = _mm256_sub_pd(s0, s00), z1 = _mm256_sub_pd(s1, s01);
-        __m256d e0 = _mm256_add_pd(_mm256_sub_pd(s00, _mm256_sub_pd(s0, z0)),
-                                   _mm256_sub_pd(t0, z0));
-        __m256d e1 = _mm256_add_pd(_mm256_sub_pd(s01, _mm256_sub_pd(s1, z1)),
-                                   _mm256_sub_pd(t1, z1));
-        accA = _mm256_fmadd_pd(_mm256_loadu_pd(beta + l), s0, accA);
-        accB = _mm256_fmadd_pd(_mm256_loadu_pd(beta + l + 4), s1, accB);
-        if (commit) {
-            _mm256_storeu_pd(S + l, s0);
-            _mm256_storeu_pd(S + l + 4, s1);
-            _mm256_storeu_pd(Sc + l, e0);
-            _mm256_storeu_pd(Sc + l + 4, e1);
-        }
-    }
-    _mm256_storeu_pd(acc_out, accA);
-    _mm256_storeu_pd(acc_out + 4, accB);
-}
-
-__attribute__((target("avx2,fma")))
-static void cs_terms_inject_avx2(size_t Lp, const double *q, const double *beta,
-                                 const double *inj, double *S, double *Sc,
-                                 double d, int commit, double acc_out[8])
-{
-    __m256d accA = _mm256_setzero_pd(), accB = _mm256_setzero_pd();
-    const __m256d dv = _mm256_set1_pd(d);
-    for (size_t l = 0; l < Lp; l += 8) {
-        __m256d nq0 = _mm256_sub_pd(_mm256_setzero_pd(), _mm256_loadu_pd(q + l));
-        __m256d nq1 = _mm256_sub_pd(_mm256_setzero_pd(), _mm256_loadu_pd(q + l + 4));
-        __m256d d0 = _mm256_mul_pd(_mm256_loadu_pd(inj + l), dv);
-        __m256d d1 = _mm256_mul_pd(_mm256_loadu_pd(inj + l + 4), dv);
+        __m256d d0 = inj ? _mm256_mul_pd(_mm256_loadu_pd(inj + l), dv) : dv;
+        __m256d d1 = inj ? _mm256_mul_pd(_mm256_loadu_pd(inj + l + 4), dv) : dv;
         __m256d s00 = _mm256_loadu_pd(S + l), s01 = _mm256_loadu_pd(S + l + 4);
         __m256d c00 = _mm256_loadu_pd(Sc + l), c01 = _mm256_loadu_pd(Sc + l + 4);
         __m256d t0 = _mm256_add_pd(_mm256_fmadd_pd(nq0, s00, d0), c00);
@@ -294,13 +239,16 @@ static int cs_cpu_avx2(void)
 static int cs_cpu_avx2(void) { return 0; }
 #endif
 
-static void cs_terms(const fc_cstream *cs, const double *q, const double *beta,
-                     double *S, double *Sc, double d, int commit, double acc[8])
+static void cs_terms(const fc_cstream *cs, const double *inj, double *S,
+                     double *Sc, double d, int commit, double acc[8])
 {
 #if CS_HAVE_AVX2
-    if (cs->simd) { cs_terms_avx2(cs->Lp, q, beta, S, Sc, d, commit, acc); return; }
+    if (cs->simd) {
+        cs_terms_avx2(cs->Lp, cs->q, cs->beta, inj, S, Sc, d, commit, acc);
+        return;
+    }
 #endif
-    cs_terms_portable(cs->Lp, q, beta, S, Sc, d, commit, acc);
+    cs_terms_portable(cs->Lp, cs->q, cs->beta, inj, S, Sc, d, commit, acc);
 }
 
 static double cs_band(const fc_cstream *cs, const double *w)
@@ -338,17 +286,8 @@ static void cs_step(fc_cstream *cs, const double *x, double *y, int mode)
         double acc[8];
         double terms = 0.0;
         if (cs->L) {
-            if (inject)
-#if CS_HAVE_AVX2
-                (cs->simd ? cs_terms_inject_avx2 : cs_terms_inject)
-#else
-                cs_terms_inject
-#endif
-                    (cs->Lp, cs->q, cs->beta, cs->inj, cs->S + c * cs->Lp,
+            cs_terms(cs, inject ? cs->inj : NULL, cs->S + c * cs->Lp,
                      cs->Sc + c * cs->Lp, d, commit, acc);
-            else
-                cs_terms(cs, cs->q, cs->beta, cs->S + c * cs->Lp,
-                         cs->Sc + c * cs->Lp, d, commit, acc);
             terms = cs_reduce8(acc);
         }
         /* window u_{n-B+1} .. u_{n-1}, u_{n-B} (weight 0) */

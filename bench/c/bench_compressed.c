@@ -26,7 +26,7 @@
 #include <time.h>
 #include "fracconv.h"
 
-#define REPS 5
+#define REPS 9
 
 static double now_ns(void)
 {
