@@ -630,6 +630,17 @@ void fc__spec_mulacc(size_t n, const double *a, const double *b, double *acc)
     fc__gen_spec_mulacc(n / 2 + 1, a, b, acc);
 }
 
+void fc__spec_dot(size_t n, const double *const *a, const double *const *b,
+                  size_t cnt, double *out)
+{
+#if FC__FFT_X86
+    if (__builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma")) {
+        fc__avx2_spec_dot(n / 2 + 1, a, b, cnt, out);
+        return;
+    }
+#endif
+    fc__gen_spec_dot(n / 2 + 1, a, b, cnt, out);
+}
 void fc__spec_mul(size_t n, const double *a, const double *b, double *out)
 {
 #if FC__FFT_X86

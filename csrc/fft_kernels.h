@@ -484,6 +484,38 @@ static void FFT_FN(spec_mulacc)(size_t nb, const double *a, const double *b,
     }
 }
 
+/* out = sum_{j<cnt} a[j] * b[j] over nb bins, the sum kept in registers
+   (every spectrum read once, out written once); cnt >= 1. */
+static void FFT_FN(spec_dot)(size_t nb, const double *const *a,
+                             const double *const *b, size_t cnt, double *out)
+{
+    size_t k = 0;
+    for (; k + 4 <= nb; k += 4) {
+        V w = VLD(b[0] + 2 * k), w2 = VLD(b[0] + 2 * k + 4);
+        V s = VCMUL(VLD(a[0] + 2 * k), VDUPRE(w), VDUPIM(w));
+        V s2 = VCMUL(VLD(a[0] + 2 * k + 4), VDUPRE(w2), VDUPIM(w2));
+        for (size_t j = 1; j < cnt; j++) {
+            w = VLD(b[j] + 2 * k);
+            w2 = VLD(b[j] + 2 * k + 4);
+            s = VADD(s, VCMUL(VLD(a[j] + 2 * k), VDUPRE(w), VDUPIM(w)));
+            s2 = VADD(s2, VCMUL(VLD(a[j] + 2 * k + 4), VDUPRE(w2), VDUPIM(w2)));
+        }
+        VST(out + 2 * k, s);
+        VST(out + 2 * k + 4, s2);
+    }
+    for (; k < nb; k++) {
+        double re = 0.0, im = 0.0;
+        for (size_t j = 0; j < cnt; j++) {
+            const double ar = a[j][2 * k], ai = a[j][2 * k + 1];
+            const double br = b[j][2 * k], bi = b[j][2 * k + 1];
+            re += ar * br - ai * bi;
+            im += ar * bi + ai * br;
+        }
+        out[2 * k] = re;
+        out[2 * k + 1] = im;
+    }
+}
+
 static void FFT_FN(spec_mul)(size_t nb, const double *a, const double *b,
                              double *out)
 {

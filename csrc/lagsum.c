@@ -211,38 +211,6 @@ static int part_prepare(fc_context *ctx, size_t n, const double *c, size_t K,
     return ensure_work(ctx, t2);
 }
 
-/*
- * acc = sum_{j<cnt} a[j] * b[j] (complex) over the n/2+1 bins of a size-n
- * spectrum, chunk by chunk so that the running sum stays in L1: every
- * spectrum is read once and the sum written once (the FFT's own vector
- * kernels do the products; a chunk of m bins is a "size 2(m-1)" spectrum).
- */
-#define FC_DOT_CHUNK 256 /* complex bins per chunk, + 1 */
-static void spec_dot(size_t n, const double *const *a, const double *const *b,
-                     size_t cnt, double *acc)
-{
-    const size_t bins = n / 2 + 1;
-    for (size_t k0 = 0; k0 < bins; k0 += FC_DOT_CHUNK) {
-        size_t m = bins - k0 < FC_DOT_CHUNK ? bins - k0 : FC_DOT_CHUNK;
-        size_t nn = 2 * (m - 1); /* n with n/2 + 1 == m */
-        double *o = acc + 2 * k0;
-        if (m == 1) { /* n = 0 would also do, but say it plainly */
-            double re = 0.0, im = 0.0;
-            for (size_t j = 0; j < cnt; j++) {
-                const double *x = a[j] + 2 * k0, *y = b[j] + 2 * k0;
-                re += x[0] * y[0] - x[1] * y[1];
-                im += x[0] * y[1] + x[1] * y[0];
-            }
-            o[0] = re;
-            o[1] = im;
-            continue;
-        }
-        fc__spec_mul(nn, a[0] + 2 * k0, b[0] + 2 * k0, o);
-        for (size_t j = 1; j < cnt; j++)
-            fc__spec_mulacc(nn, a[j] + 2 * k0, b[j] + 2 * k0, o);
-    }
-}
-
 /* buf[j] = x[(b-1)W + j] for j < 2W, zero outside [0, n). */
 static void window(const double *x, size_t n, size_t b, size_t W, double *buf)
 {
@@ -295,7 +263,7 @@ static void part_size(fc_context *ctx, const part_shape *sh, size_t W,
                 zp[j] = ring + ((i - p0 - j) % nseg) * sp;
                 cp[j] = kspec + j * sp;
             }
-            spec_dot(n2, zp, cp, jmax, acc);
+            fc__spec_dot(n2, zp, cp, jmax, acc);
             fc__fft_inverse(plan, acc, out);
             size_t r0 = i * W;
             size_t cnt = n - r0 < W ? n - r0 : W;
