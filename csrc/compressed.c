@@ -644,6 +644,23 @@ static double cs_verify(const cs_ctx *cx, size_t L, const double *q,
     return worst;
 }
 
+/* The parts of a new stream common to both shapes: the band (reversed for
+   the dot product, lag 0 apart), the trapezoid table, the parameters. */
+static void cs_finish(fc_cstream *cs, const double *cband, const double *ctab,
+                      int rule, double order, double step, double tol,
+                      double horizon)
+{
+    const size_t B = CS_BAND;
+    for (size_t jj = 0; jj + 1 < B; jj++) cs->cb[jj] = cband[B - 1 - jj];
+    cs->cb[B - 1] = 0.0;
+    cs->c0 = cband[0];
+    memcpy(cs->ctab, ctab, B * sizeof *ctab);
+    cs->rule = rule; cs->order = order; cs->step = step;
+    cs->tol = tol; cs->horizon = horizon;
+    cs->simd = cs_cpu_avx2();
+    fc__cs_reset(cs);
+}
+
 int fc__cs_create(int rule, double order, double step, size_t channels,
                   double tol, double horizon, fc_cstream **out)
 {
@@ -785,14 +802,7 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
             cs->inj[l] = rule == FC_RULE_TRAPEZOID ? ijb[l] : 1.0;
         }
         cs->L = L;
-        for (size_t jj = 0; jj + 1 < B; jj++) cs->cb[jj] = cband[B - 1 - jj];
-        cs->cb[B - 1] = 0.0;
-        cs->c0 = cband[0];
-        memcpy(cs->ctab, ctab, sizeof ctab);
-        cs->rule = rule; cs->order = order; cs->step = step;
-        cs->tol = tol; cs->horizon = horizon;
-        cs->simd = cs_cpu_avx2();
-        fc__cs_reset(cs);
+        cs_finish(cs, cband, ctab, rule, order, step, tol, horizon);
         free(tmp); free(mgeo); free(P);
         *out = cs;
         return FC_OK;
@@ -802,14 +812,7 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
         fc_cstream *cs;
         if ((st = cs_alloc(channels, 8, &cs)) != FC_OK) return st;
         cs->L = 0;
-        for (size_t jj = 0; jj + 1 < B; jj++) cs->cb[jj] = cband[B - 1 - jj];
-        cs->cb[B - 1] = 0.0;
-        cs->c0 = cband[0];
-        memcpy(cs->ctab, ctab, sizeof ctab);
-        cs->rule = rule; cs->order = order; cs->step = step;
-        cs->tol = tol; cs->horizon = horizon;
-        cs->simd = cs_cpu_avx2();
-        fc__cs_reset(cs);
+        cs_finish(cs, cband, ctab, rule, order, step, tol, horizon);
         *out = cs;
         return FC_OK;
     }

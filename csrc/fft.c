@@ -292,24 +292,7 @@ static inline fc__gv fc__g_dupim(fc__gv a)
 #define VDUPIM fc__g_dupim
 #define FFT_FN(name) fc__gen_##name
 #include "fft_kernels.h"
-#undef FFT_FN
-#undef V
-#undef VLD
-#undef VST
-#undef VADD
-#undef VSUB
-#undef VMUL
-#undef VSET1
-#undef VCONJ
-#undef VMUL_MI
-#undef VMUL_PI
-#undef VCMUL
-#undef VCMULC
-#undef VREV
-#undef VLO2
-#undef VHI2
-#undef VDUPRE
-#undef VDUPIM
+#include "fft_undef.h"
 
 /* ---------------------------------------------------------------------- */
 /* AVX2 + FMA instance (x86 only, selected at run time).                   */
@@ -352,24 +335,7 @@ static inline __m256d fc__a_hi2(__m256d a, __m256d b) { return _mm256_permute2f1
 #define VDUPIM(a) _mm256_permute_pd((a), 0xF)
 #define FFT_FN(name) fc__avx2_##name
 #include "fft_kernels.h"
-#undef FFT_FN
-#undef V
-#undef VLD
-#undef VST
-#undef VADD
-#undef VSUB
-#undef VMUL
-#undef VSET1
-#undef VCONJ
-#undef VMUL_MI
-#undef VMUL_PI
-#undef VCMUL
-#undef VCMULC
-#undef VREV
-#undef VLO2
-#undef VHI2
-#undef VDUPRE
-#undef VDUPIM
+#include "fft_undef.h"
 
 #pragma GCC pop_options
 
