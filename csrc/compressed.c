@@ -81,6 +81,24 @@
  *    as inj_l u_0 at the one step n = B: no extra state and no extra work on
  *    the other steps. For n < B the correction comes from a table.
  *
+ * CONSTRUCTION, 1 <= a < 2 (rectangle rule only). Here c_m = b_{m-1} grows
+ * like m^(a-1), but with e_0 = 1, e_j = b_j - b_{j-1} = (j+1)^a - 2 j^a +
+ * (j-1)^a (j >= 1), b_m = sum_{j<=m} e_j, so
+ *     y_n = sum_m f_m X_{n-m},  f_0 = 0, f_m = h^a/Gamma(a+1) e_{m-1},
+ * X_i = sum_{k<=i} x_k: the engine above runs unchanged on u = X with the
+ * kernel f (flag cum; X is carried in double-double, high part in xprev,
+ * low part in x0, so the payload layout is unchanged). e_j is the second
+ * difference of t^a, e_j = int_{-1}^{1} (1-|v|) a(a-1) (j+v)^(a-2) dv, and
+ * t^(a-2) = int s^(1-a) e^{-st} ds / Gamma(2-a), hence for m >= 2
+ *     f_m = K int_0^inf s^(1-a) (expm1(s)/s)^2 e^{-s m} ds,
+ *     K = -h^a sin(pi a)/pi > 0,
+ * built and verified as above against f_m from cs_fcum (a cancellation-free
+ * series in long double). Since f >= 0 and |X_i| <= sum_{k<=i} |x_k|,
+ * sum_m f_m |X_{n-m}| <= sum_k c_{n-k} |x_k|: the guarantee holds as stated,
+ * with the rounding of X (below 2 eps sum_{k<=i} |x_k| per value) inside the
+ * eps term. For a = 1, f_m = 0 for m >= 2: no terms. The trapezoid rule is
+ * not offered for a >= 1 (FC_ERR_ORDER).
+ *
  * Arithmetic of a push (identical in the portable and the AVX2 path, so
  * results do not depend on which one runs): explicit fma() for every
  * product, fixed lane structure (two accumulators of four lanes for the
@@ -116,6 +134,7 @@
 
 struct fc_cstream {
     int rule;
+    int cum;                  /* rectangle, order >= 1: engine input is X */
     int simd;                 /* 1: AVX2+FMA kernel, 0: portable */
     double order, step, tol, horizon;
     size_t C;                 /* channels */
@@ -279,8 +298,20 @@ static void cs_step(fc_cstream *cs, const double *x, double *y, int mode)
     for (size_t c = 0; c < C; c++) {
         double xc = mode == 2 ? 0.0 : x[c];
         double u;
+        double Xhi = 0.0, Xlo = 0.0;
         if (cs->rule == FC_RULE_L1) u = (n == 0 || mode == 2) ? 0.0 : xc - cs->xprev[c];
-        else u = xc;
+        else if (cs->cum) {
+            /* X_n = X_{n-1} + x_n in double-double (xprev = high part,
+               x0 = low part): two exact TwoSums (Knuth), u = X_n rounded */
+            double hi = cs->xprev[c], lo = cs->x0[c];
+            double s = hi + xc, z = s - hi;
+            double e = (hi - (s - z)) + (xc - z);
+            double t = lo + e;
+            Xhi = s + t;
+            z = Xhi - s;
+            Xlo = (s - (Xhi - z)) + (t - z);
+            u = Xhi;
+        } else u = xc;
         double *ring = cs->ring + c * 2 * B;
         double d = ring[pos];             /* u_{n-B} (0 while n < B) */
         double acc[8];
@@ -298,8 +329,11 @@ static void cs_step(fc_cstream *cs, const double *x, double *y, int mode)
         if (commit) {
             ring[pos] = u;
             ring[pos + B] = u;
-            cs->xprev[c] = xc;
-            if (n == 0) cs->x0[c] = xc;
+            if (cs->cum) { cs->xprev[c] = Xhi; cs->x0[c] = Xlo; }
+            else {
+                cs->xprev[c] = xc;
+                if (n == 0) cs->x0[c] = xc;
+            }
         }
     }
     if (commit) cs->n = n + 1;
@@ -391,7 +425,36 @@ static int cs_alloc(size_t C, size_t Lp, fc_cstream **out)
 
 /* ------------------------------------------------------ SOE construction */
 
-enum { K_RECT = 0, K_TRAP = 1, K_GRUN = 2, K_L1 = 3, K_CORR = 4 };
+enum { K_RECT = 0, K_TRAP = 1, K_GRUN = 2, K_L1 = 3, K_CORR = 4, K_RCUM = 5 };
+
+/* Rectangle rule, 1 <= a < 2: the kernel on the running sum X,
+   f_0 = 0, f_1 = h^a/Gamma(a+1), f_m = h^a/Gamma(a+1) (m^a - 2(m-1)^a + (m-2)^a)
+   (m >= 2), in long double without cancellation: m = 2 by expm1, m >= 3
+   by the binomial series m^a sum_{k>=2} (-1)^k binom(a,k) (2^k - 2) m^-k,
+   whose terms are all positive for 1 < a < 2 (and zero for a = 1). */
+static long double cs_fcum_pre(double a, double h)
+{
+    return powl((long double)h, (long double)a) / tgammal((long double)a + 1.0L);
+}
+static double cs_fcum(double a, long double pre, uint64_t m)
+{
+    long double A = a;
+    if (m == 0) return 0.0;
+    if (m == 1) return (double)pre;
+    if (a == 1.0) return 0.0;
+    if (m == 2) return (double)(pre * 2.0L * expm1l((A - 1.0L) * logl(2.0L)));
+    long double x = 1.0L / (long double)m, coef = A * (A - 1.0L) / 2.0L;
+    long double xk = x * x, p2 = 4.0L, sum = 0.0L;
+    for (int k = 2; k < 4000; k++) {
+        long double term = coef * (p2 - 2.0L) * xk;
+        sum += term;
+        if (term <= 1e-22L * sum) break;
+        coef *= ((long double)k - A) / (long double)(k + 1);
+        xk *= x;
+        p2 *= 2.0L;
+    }
+    return (double)(pre * powl((long double)m, A) * sum);
+}
 
 /* phi(s) of the densities above, without the constant K. */
 static double cs_phi(int kind, double a, double s)
@@ -417,6 +480,10 @@ static double cs_phi(int kind, double a, double s)
     case K_GRUN: {
         double v = s > 0 ? -expm1(-s) / s : 1.0;
         return exp(a * s) * pow(v, a);
+    }
+    case K_RCUM: {
+        double v = s > 0 ? expm1(s) / s : 1.0;
+        return v * v;
     }
     default: /* K_L1 */
         return s > 0 ? -expm1(-s) / s : 1.0;
@@ -657,6 +724,7 @@ static void cs_finish(fc_cstream *cs, const double *cband, const double *ctab,
     memcpy(cs->ctab, ctab, B * sizeof *ctab);
     cs->rule = rule; cs->order = order; cs->step = step;
     cs->tol = tol; cs->horizon = horizon;
+    cs->cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
     cs->simd = cs_cpu_avx2();
     fc__cs_reset(cs);
 }
@@ -667,7 +735,10 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
     int st;
     if (!out) return FC_ERR_NULL;
     if ((st = fc__check_rule(rule, order, step)) != FC_OK) return st;
-    if (!(order > 0.0 && order < 1.0)) return FC_ERR_ORDER;
+    /* 0 < a < 1 for every rule; 1 <= a < 2 for the rectangle rule, which
+       then runs on the running sum X of x (CONSTRUCTION, 1 <= a < 2) */
+    const int cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
+    if (!(order > 0.0 && order < 1.0) && !(cum && order < 2.0)) return FC_ERR_ORDER;
     if (channels == 0) return FC_ERR_ARG;
     if (!(tol >= 1e-15 && tol <= 1e-2) || !isfinite(tol)) return FC_ERR_TOL;
     if (!(horizon >= 1.0) || !isfinite(horizon) ||
@@ -685,7 +756,8 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
     cx.M = (double)M;
     cx.mlo = B;
     double spa = sin(CS_PI * a) / CS_PI;
-    switch (rule) {
+    if (cum) { cx.kind = K_RCUM; cx.p = 1.0 - a; cx.K = -spa * pow(step, a); }
+    else switch (rule) {
     case FC_RULE_RECTANGLE: cx.kind = K_RECT; cx.p = -a; cx.K = spa * pow(step, a); break;
     case FC_RULE_TRAPEZOID: cx.kind = K_TRAP; cx.p = -a; cx.K = spa * pow(step, a);
         cx.Kcorr = -spa * pow(step, a); break;
@@ -696,7 +768,12 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
 
     /* band weights and the trapezoid start table */
     double cband[CS_BAND], ctab[CS_BAND];
-    if ((st = fc__lag_kernel(rule, a, step, 0, B, cband)) != FC_OK) return st;
+    const long double fpre = cum ? cs_fcum_pre(a, step) : 0.0L;
+    if (cum) {
+        for (size_t m = 0; m < B; m++)
+            if (!isfinite(cband[m] = cs_fcum(a, fpre, m))) return FC_ERR_STEP;
+    } else if ((st = fc__lag_kernel(rule, a, step, 0, B, cband)) != FC_OK)
+        return st;
     memset(ctab, 0, sizeof ctab);
     if (rule == FC_RULE_TRAPEZOID &&
         (st = fc__x0_correction(rule, a, step, 0, B, ctab)) != FC_OK)
@@ -707,7 +784,8 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
     double *tmp = NULL;
     uint64_t *mgeo = NULL;
     long double *P = NULL;
-    if (M >= B) {
+    /* a = 1: f_m = 0 for m >= 2, the band alone is exact */
+    if (M >= B && !(cum && a == 1.0)) {
         uint64_t dense_hi = M < CS_DENSE ? M : CS_DENSE;
         cx.ndense = (size_t)(dense_hi - B + 1);
         size_t maxgeo = 0;
@@ -731,10 +809,15 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
         cx.ngeo = g;
         cx.mgeo = mgeo;
         double *cref = tmp, *corrref = tmp + ntot;
-        if ((st = fc__lag_kernel(rule, a, step, B, cx.ndense, cref)) != FC_OK) goto fail;
-        for (size_t k = 0; k < g; k++)
-            if ((st = fc__lag_kernel(rule, a, step, mgeo[k], 1, cref + cx.ndense + k)) != FC_OK)
-                goto fail;
+        if (cum) {
+            for (size_t k = 0; k < cx.ndense; k++) cref[k] = cs_fcum(a, fpre, B + k);
+            for (size_t k = 0; k < g; k++) cref[cx.ndense + k] = cs_fcum(a, fpre, mgeo[k]);
+        } else {
+            if ((st = fc__lag_kernel(rule, a, step, B, cx.ndense, cref)) != FC_OK) goto fail;
+            for (size_t k = 0; k < g; k++)
+                if ((st = fc__lag_kernel(rule, a, step, mgeo[k], 1, cref + cx.ndense + k)) != FC_OK)
+                    goto fail;
+        }
         if (rule == FC_RULE_TRAPEZOID) {
             if ((st = fc__x0_correction(rule, a, step, B, cx.ndense, corrref)) != FC_OK) goto fail;
             for (size_t k = 0; k < g; k++)
@@ -831,6 +914,8 @@ fail:
  *  40  f64 order        48  f64 step     56  f64 tol     64  f64 horizon
  *  72  f64 q[L], beta[L], inj[L], cb[B], c0, ctab[B]
  *      then per channel: ring[B] (slots 0..B-1), S[L], Sc[L], xprev, x0
+ *      (rectangle with order >= 1: ring holds X, xprev/x0 the high/low
+ *      parts of X)
  *  end u64 FNV-1a 64 of everything before it
  */
 #define CS_HDR 72
@@ -957,12 +1042,14 @@ int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
     size_t need = cs_size_for(C, L);
     if (need == 0 || need != size) return FC_ERR_FORMAT;
     if (cs_get64(buf + size - 8) != cs_fnv(buf, size - 8)) return FC_ERR_FORMAT;
-    if (fc__check_rule((int)rule, order, step) != FC_OK || !(order < 1.0))
+    const int cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
+    if (fc__check_rule((int)rule, order, step) != FC_OK ||
+        !(order < 1.0 || (cum && order < 2.0)))
         return FC_ERR_FORMAT;
     if (!(tol >= 1e-15 && tol <= 1e-2) || !(horizon >= 1.0) || !isfinite(horizon) ||
         horizon > (double)(FC_INDEX_LIMIT - 2))
         return FC_ERR_FORMAT;
-    if ((horizon >= (double)B) != (L > 0)) return FC_ERR_FORMAT;
+    if ((horizon >= (double)B && !(cum && order == 1.0)) != (L > 0)) return FC_ERR_FORMAT;
     /* every double must be finite; q in (0, 1) */
     const unsigned char *p = buf + CS_HDR;
     size_t nd;
@@ -1008,6 +1095,7 @@ int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
     cs->n = n;
     cs->rule = (int)rule; cs->order = order; cs->step = step;
     cs->tol = tol; cs->horizon = horizon;
+    cs->cum = cum;
     cs->simd = cs_cpu_avx2();
     *out = cs;
     return FC_OK;

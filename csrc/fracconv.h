@@ -181,7 +181,8 @@ typedef struct fc_stream fc_stream;
 /*
  * A stream for a rule. channels >= 1. mode: FC_MODE_EXACT (tol and horizon
  * ignored) or FC_MODE_COMPRESSED: tol in [1e-15, 1e-2], horizon >= 1 (the
- * number of samples the tolerance is guaranteed for), 0 < order < 1.
+ * number of samples the tolerance is guaranteed for), 0 < order < 1 for
+ * every rule and also 1 <= order < 2 for FC_RULE_RECTANGLE.
  */
 int fc_stream_create(int rule, double order, double step, size_t channels,
                      int mode, double tol, double horizon, fc_stream **out);

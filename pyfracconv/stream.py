@@ -149,8 +149,8 @@ class Stream:
     differences for ``l1``) and corr_n x_0 the trapezoid rule's starting
     term. The sum of exponentials behind it is checked against the rule's
     weights over the whole lag range when the stream is created (creation
-    fails otherwise). Orders 0 < a < 1; memory and work per sample are
-    constant.
+    fails otherwise). Orders 0 < a < 1, and 1 <= a < 2 for the rectangle
+    integral; memory and work per sample are constant.
 
     Notes
     -----
@@ -203,10 +203,11 @@ class Stream:
         C = _check_channels(channels)
         m = _check_mode(mode)
         if m == lib.FC_MODE_COMPRESSED:
-            if a >= 1.0:
+            if a >= 2.0 or (a >= 1.0 and rule != "rectangle"):
                 raise ArgumentError(
                     f"order={order!r}: mode='compressed' supports orders "
-                    "0 < order < 1 (use mode='exact' for higher orders)"
+                    "0 < order < 1, and 1 <= order < 2 for the integral with "
+                    "rule='rectangle' (use mode='exact' for higher orders)"
                 )
             t, hz = _check_tol(tol, horizon)
         else:
@@ -231,7 +232,8 @@ class Stream:
         Parameters
         ----------
         order : float
-            Order a > 0 (at most 10; ``mode="compressed"`` may need a < 1).
+            Order a > 0 (at most 10; ``mode="compressed"`` needs a < 1, or
+            a < 2 with ``rule="rectangle"``).
         step : float
             Grid step h > 0.
         rule : {'rectangle', 'trapezoid'}

@@ -331,7 +331,9 @@ def test_channels_match_single_streams(rule):
 
 def test_parameter_checks():
     with pytest.raises(pyfracconv.ArgumentError):
-        make("rectangle", 1.0, 1.0, 1e-12, 1e6)      # order >= 1
+        make("trapezoid", 1.0, 1.0, 1e-12, 1e6)      # order >= 1 (trapezoid)
+    with pytest.raises(pyfracconv.ArgumentError):
+        make("rectangle", 2.0, 1.0, 1e-12, 1e6)      # order >= 2
     with pytest.raises(pyfracconv.ArgumentError):
         make("grunwald", 1.5, 1.0, 1e-12, 1e6)
     for tol in [1e-16, 0.1, float("nan"), float("inf"), 0.0, -1e-10]:
@@ -356,3 +358,169 @@ def test_short_horizon_band_only_is_exact():
     c, u, corr = lag_form("grunwald", 0.5, 0.1, x)
     ref, bnd = reference_at(c, u, corr, x[0], np.arange(40))
     assert np.all(np.abs(y - ref) <= 64 * EPS * bnd)
+
+
+# ---------------------------------------------------------------------------
+# Rectangle rule with 1 <= a < 2 (csrc/compressed.c, "CONSTRUCTION,
+# 1 <= a < 2": the engine runs on the running sum X of x with the kernel
+# f_m = c_m - c_{m-1}, second differences of t^a). The guarantee under test
+# is the same as above, with c the rectangle rule's own kernel
+# c_m = h^a/Gamma(a+1) ((m)^a - (m-1)^a) (DESIGN.md section 1).
+
+HIGH_ORDERS = [1.0, 1.3, 1.7, 1.95]
+
+
+def high_check_indices(n, rng):
+    dense = np.arange(0, 400)
+    geo = np.unique(np.geomspace(400, n - 1, 24).astype(np.int64))
+    rnd = rng.integers(400, n, 6)
+    return np.unique(np.concatenate([dense, geo, rnd, [n - 1]]))
+
+
+@pytest.fixture(scope="module")
+def high_cases():
+    out = {}
+    idx = high_check_indices(N_LONG, np.random.default_rng(13))
+    step = 0.01
+    for order in HIGH_ORDERS:
+        for kind in ("random", "smooth"):
+            x = inputs(kind, N_LONG)
+            c, u, corr = lag_form("rectangle", order, step, x)
+            ref, bnd = reference_at(c, u, corr, x[0], idx)
+            ys = {tol: make("rectangle", order, step, tol, 1e8).push_many(x)
+                  for tol in (1e-10, 1e-13)}
+            out[order, kind] = dict(x=x, c=c, u=u, idx=idx, ref=ref, bnd=bnd, ys=ys)
+    return out
+
+
+@pytest.mark.parametrize("order", HIGH_ORDERS)
+@pytest.mark.parametrize("kind", ["random", "smooth"])
+@pytest.mark.parametrize("tol", [1e-10, 1e-13])
+def test_high_order_guarantee_one_million_samples(high_cases, order, kind, tol):
+    # Reference: the defining lagged sum in extended precision (as in
+    # test_guarantee_one_million_samples); allowance 64 eps for rounding.
+    d = high_cases[order, kind]
+    y = d["ys"][tol][d["idx"]]
+    err = np.abs(y - d["ref"])
+    allowed = (tol + 64 * EPS) * d["bnd"]
+    assert np.all(err[allowed == 0] == 0)
+    worst = np.max(err[allowed > 0] / allowed[allowed > 0])
+    assert worst <= 1.0, f"a={order} {kind} tol={tol}: error/bound = {worst:.3g}"
+
+
+@pytest.mark.parametrize("order", HIGH_ORDERS)
+def test_high_order_against_batch_all_indices(high_cases, order):
+    # Every index of 10^6 against the batch engine (pyfracconv.integral, a
+    # different code path), tol = 1e-10 plus the batch engine's rounding.
+    d = high_cases[order, "random"]
+    tol = 1e-10
+    exact = pyfracconv.integral(d["x"], order, step=0.01, rule="rectangle")
+    bound = pyfracconv.lagged_sum(np.abs(d["u"]), np.abs(d["c"]))
+    err = np.abs(d["ys"][tol] - exact)
+    worst = np.max(err / ((tol + 1e-13) * bound + 1e-300))
+    assert worst <= 1.0, f"a={order}: error/bound = {worst:.3g}"
+
+
+@pytest.mark.parametrize("order", [1.0, 1.3, 1.95])
+def test_high_order_impulse_response_closed_form(order):
+    # Unit impulse: y_m = c_m = h^a/Gamma(a+1) (m^a - (m-1)^a), mpmath at 40
+    # digits (DESIGN.md section 1); c_m > 0, relative tolerance tol.
+    mpmath.mp.dps = 40
+    tol, n, h = 1e-13, 1_000_000, 0.5
+    x = np.zeros(n)
+    x[0] = 1.0
+    y = make("rectangle", order, h, tol, 1e6).push_many(x)
+    assert y[0] == 0.0
+    a = mpmath.mpf(order)
+    for m in [1, 2, 3, 63, 64, 65, 1000, 12345, 654321, n - 1]:
+        ref = float(mpmath.mpf(h) ** a / mpmath.gamma(a + 1)
+                    * (mpmath.mpf(m) ** a - mpmath.mpf(m - 1) ** a))
+        rel = abs(y[m] - ref) / ref
+        assert rel <= tol + 16 * EPS, f"a={order} m={m}: rel. error {rel:.3g}"
+
+
+@pytest.mark.parametrize("order", [1.0, 1.5, 1.9])
+def test_high_order_rectangle_on_constant(order):
+    # Telescoping identity (REFERENCES.md): y_n = h^a n^a / Gamma(a+1) for
+    # x = 1; every term positive, so the bound is y_n itself.
+    mpmath.mp.dps = 30
+    tol, n, h = 1e-13, 300_000, 0.1
+    y = make("rectangle", order, h, tol, 1e6).push_many(np.ones(n))
+    for m in [1, 63, 64, 65, 1000, 54321, n - 1]:
+        ref = float(mpmath.mpf(h) ** order * mpmath.mpf(m) ** order / mpmath.gamma(order + 1))
+        assert abs(y[m] - ref) <= (tol + 64 * EPS) * ref
+
+
+def test_high_order_term_counts():
+    # a = 1: f_m = 0 beyond lag 1, no terms at all; 1 < a <= 1.95 at tol
+    # 1e-13, horizon 1e8: the same 80-term limit as for 0 < a < 1.
+    assert make("rectangle", 1.0, 1.0, 1e-13, 1e8).terms == 0
+    for order in np.linspace(1.0, 1.95, 20)[1:]:
+        s = make("rectangle", float(order), 1.0, 1e-13, 1e8)
+        assert 1 <= s.terms <= 80, (order, s.terms)
+    assert make("rectangle", 1.5, 1.0, 1e-6, 1e8).terms < make("rectangle", 1.5, 1.0, 1e-13, 1e8).terms
+    assert make("rectangle", 1.5, 1.0, 1e-13, 1e4).terms < make("rectangle", 1.5, 1.0, 1e-13, 1e8).terms
+
+
+@pytest.mark.parametrize("order", [1.0, 1.6])
+def test_high_order_state_behaviour(order):
+    # nbytes constant; preview == push bit for bit; history == output
+    # (c_0 = 0); a rejected block changes nothing; reset; channels.
+    x = inputs("random", 3000, seed=21)
+    s = make("rectangle", order, 0.1, 1e-12, 1e6)
+    nb = s.nbytes
+    for v in x[:300]:
+        p = s.preview(v)
+        h = s.history()
+        y = s.push(v)
+        assert y == p and y == h
+    s.push_many(x[300:1000])
+    bad = x[1000:1500].copy()
+    bad[77] = np.nan
+    with pytest.raises(pyfracconv.SampleError):
+        s.push_many(bad)
+    assert s.count == 1000 and s.nbytes == nb
+    y_rest = s.push_many(x[1000:])
+    fresh = make("rectangle", order, 0.1, 1e-12, 1e6)
+    y_all = fresh.push_many(x)
+    assert np.array_equal(y_all[1000:], y_rest)
+    s.reset()
+    assert np.array_equal(s.push_many(x), y_all) and s.nbytes == nb
+    X = np.stack([x, -2 * x], axis=1)
+    ym = make("rectangle", order, 0.1, 1e-12, 1e6, channels=2).push_many(X)
+    assert np.array_equal(ym[:, 0], y_all)
+    assert np.array_equal(ym[:, 1], make("rectangle", order, 0.1, 1e-12, 1e6).push_many(-2 * x))
+
+
+@pytest.mark.parametrize("order", [1.0, 1.45])
+def test_high_order_save_load_bit_for_bit(order):
+    x = inputs("random", 5000, seed=9) + 3.0     # running sum grows
+    s = make("rectangle", order, 0.05, 1e-13, 1e7, channels=2)
+    X = np.stack([x, x[::-1]], axis=1)
+    s.push_many(X[:3000])
+    t = Stream.load(s.save())
+    assert t.terms == s.terms and t.count == 3000 and t.nbytes == s.nbytes
+    assert t.order == order
+    assert np.array_equal(s.push_many(X[3000:]), t.push_many(X[3000:]))
+    for k in [0, 10, 63, 64, 65]:
+        u = make("rectangle", order, 0.05, 1e-13, 1e7)
+        u.push_many(x[:k])
+        v = Stream.load(u.save())
+        assert np.array_equal(u.push_many(x[k:300]), v.push_many(x[k:300]))
+
+
+def test_high_order_ranges_refused_with_message():
+    # derivatives stay 0 < a < 1, the trapezoid rule too, integrals a < 2
+    cases = [("grunwald", 1.0), ("grunwald", 1.5), ("l1", 0.5 + 0.5),
+             ("trapezoid", 1.0), ("trapezoid", 1.5),
+             ("rectangle", 2.0), ("rectangle", 3.5)]
+    for rule, order in cases:
+        with pytest.raises(pyfracconv.ArgumentError) as ei:
+            make(rule, order, 1.0, 1e-12, 1e6)
+        msg = str(ei.value)
+        assert f"order={order!r}" in msg
+        if not (rule == "l1"):      # l1 is refused for a >= 1 in every mode
+            assert "0 < order < 1" in msg and "1 <= order < 2" in msg, msg
+    # the edges of the new range are accepted
+    assert make("rectangle", 1.0, 1.0, 1e-12, 1e6).terms == 0
+    assert make("rectangle", 1.99, 1.0, 1e-10, 1e6).terms > 0
