@@ -585,17 +585,6 @@ void fc__fft_inverse(fc_fft_plan *p, const double *in, double *out)
     p->inv(p, in, out, 1.0);
 }
 
-void fc__spec_mulacc(size_t n, const double *a, const double *b, double *acc)
-{
-#if FC__FFT_X86
-    if (__builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma")) {
-        fc__avx2_spec_mulacc(n / 2 + 1, a, b, acc);
-        return;
-    }
-#endif
-    fc__gen_spec_mulacc(n / 2 + 1, a, b, acc);
-}
-
 void fc__spec_dot(size_t n, const double *const *a, const double *const *b,
                   size_t cnt, double *out)
 {

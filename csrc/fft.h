@@ -28,8 +28,6 @@ void fc__fft_forward(fc_fft_plan *p, const double *in, double *out);
    Hermitian spectrum, i.e. n times the true inverse. in, out must not
    overlap. */
 void fc__fft_inverse(fc_fft_plan *p, const double *in, double *out);
-/* acc[k] += a[k] * b[k] (complex) for the n/2+1 bins of a size-n spectrum. */
-void fc__spec_mulacc(size_t n, const double *a, const double *b, double *acc);
 /* out[k] = sum_{j<cnt} a[j][k] * b[j][k] (complex), n/2+1 bins, cnt >= 1. */
 void fc__spec_dot(size_t n, const double *const *a, const double *const *b,
                   size_t cnt, double *out);

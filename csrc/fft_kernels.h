@@ -467,23 +467,6 @@ static void FFT_FN(rfft_inverse)(fc_fft_plan *p, const double *in,
     else FFT_FN(cfft)(p, z, out, 1);
 }
 
-static void FFT_FN(spec_mulacc)(size_t nb, const double *a, const double *b,
-                                double *acc)
-{
-    size_t k = 0;
-    for (; k + 2 <= nb; k += 2) {
-        V x = VLD(a + 2 * k), w = VLD(b + 2 * k);
-        VST(acc + 2 * k,
-            VADD(VLD(acc + 2 * k), VCMUL(x, VDUPRE(w), VDUPIM(w))));
-    }
-    for (; k < nb; k++) {
-        const double ar = a[2 * k], ai = a[2 * k + 1];
-        const double br = b[2 * k], bi = b[2 * k + 1];
-        acc[2 * k] += ar * br - ai * bi;
-        acc[2 * k + 1] += ar * bi + ai * br;
-    }
-}
-
 /* out = sum_{j<cnt} a[j] * b[j] over nb bins, the sum kept in registers
    (every spectrum read once, out written once); cnt >= 1. */
 static void FFT_FN(spec_dot)(size_t nb, const double *const *a,
@@ -502,6 +485,15 @@ static void FFT_FN(spec_dot)(size_t nb, const double *const *a,
         }
         VST(out + 2 * k, s);
         VST(out + 2 * k + 4, s2);
+    }
+    for (; k + 2 <= nb; k += 2) { /* a last pair of bins, as in spec_mul */
+        V w = VLD(b[0] + 2 * k);
+        V s = VCMUL(VLD(a[0] + 2 * k), VDUPRE(w), VDUPIM(w));
+        for (size_t j = 1; j < cnt; j++) {
+            w = VLD(b[j] + 2 * k);
+            s = VADD(s, VCMUL(VLD(a[j] + 2 * k), VDUPRE(w), VDUPIM(w)));
+        }
+        VST(out + 2 * k, s);
     }
     for (; k < nb; k++) {
         double re = 0.0, im = 0.0;

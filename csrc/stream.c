@@ -294,11 +294,11 @@ static void level_frame(fc_stream *s, size_t j, uint64_t f)
     double *t = s->work, *Y = t + n2;
     uint64_t o = f * sz + L->base;
     block_spectra(s, L, f);
+    const double *xp[FC_S_SEGS];
     for (size_t c = 0; c < s->C; c++) {
         size_t off = c * (n2 + 2);
-        fc__spec_mul(n2, L->xspec[f % R] + off, L->kspec[0], Y);
-        for (size_t p = 1; p < np; p++)
-            fc__spec_mulacc(n2, L->xspec[(f - p) % R] + off, L->kspec[p], Y);
+        for (size_t p = 0; p < np; p++) xp[p] = L->xspec[(f - p) % R] + off;
+        fc__spec_dot(n2, xp, (const double *const *)L->kspec, np, Y);
         fc__fft_inverse(L->plan, Y, t);
         double *a = arow(s, c) + (o - s->abase);
         for (size_t i = 0; i + 1 < n2; i++) a[i] += t[i];

@@ -112,19 +112,32 @@ def long_cases():
     return out
 
 
-@pytest.mark.parametrize("rule", RULES)
-@pytest.mark.parametrize("kind", ["random", "smooth"])
-@pytest.mark.parametrize("tol", [1e-10, 1e-13])
-def test_guarantee_one_million_samples(long_cases, rule, kind, tol):
-    # Reference: the defining lagged sum in extended precision (see module
-    # docstring); allowance for rounding: 64 eps times the same bound.
-    d = long_cases[rule, kind]
+def assert_within_guarantee(d, tol, label):
+    """The compressed outputs at the sampled indices against the extended-
+    precision reference: |error| <= (tol + 64 eps) * sum_k |c_{n-k} u_k|
+    (64 eps: allowance for rounding)."""
     y = d["ys"][tol][d["idx"]]
     err = np.abs(y - d["ref"])
     allowed = (tol + 64 * EPS) * d["bnd"]
     assert np.all(err[allowed == 0] == 0)
     worst = np.max(err[allowed > 0] / allowed[allowed > 0])
-    assert worst <= 1.0, f"{rule} {kind} tol={tol}: error/bound = {worst:.3g}"
+    assert worst <= 1.0, f"{label} tol={tol}: error/bound = {worst:.3g}"
+
+
+def assert_against_batch(y, exact, bound, tol, label):
+    """Every index against a batch result; tol plus 1e-13 for the batch
+    engine's own rounding."""
+    worst = np.max(np.abs(y - exact) / ((tol + 1e-13) * bound + 1e-300))
+    assert worst <= 1.0, f"{label}: error/bound = {worst:.3g}"
+
+
+@pytest.mark.parametrize("rule", RULES)
+@pytest.mark.parametrize("kind", ["random", "smooth"])
+@pytest.mark.parametrize("tol", [1e-10, 1e-13])
+def test_guarantee_one_million_samples(long_cases, rule, kind, tol):
+    # Reference: the defining lagged sum in extended precision (see module
+    # docstring).
+    assert_within_guarantee(long_cases[rule, kind], tol, f"{rule} {kind}")
 
 
 @pytest.mark.parametrize("rule", RULES)
@@ -135,9 +148,7 @@ def test_guarantee_against_batch_all_indices(long_cases, rule):
     tol = 1e-10
     exact = pyfracconv.lagged_sum(d["u"], d["c"]) + d["corr"] * d["x"][0]
     bound = pyfracconv.lagged_sum(np.abs(d["u"]), np.abs(d["c"])) + np.abs(d["corr"] * d["x"][0])
-    err = np.abs(d["ys"][tol] - exact)
-    worst = np.max(err / ((tol + 1e-13) * bound + 1e-300))
-    assert worst <= 1.0, f"{rule}: error/bound = {worst:.3g}"
+    assert_against_batch(d["ys"][tol], exact, bound, tol, rule)
 
 
 def closed_form_lag(rule, a, h, m):
@@ -398,14 +409,8 @@ def high_cases():
 @pytest.mark.parametrize("tol", [1e-10, 1e-13])
 def test_high_order_guarantee_one_million_samples(high_cases, order, kind, tol):
     # Reference: the defining lagged sum in extended precision (as in
-    # test_guarantee_one_million_samples); allowance 64 eps for rounding.
-    d = high_cases[order, kind]
-    y = d["ys"][tol][d["idx"]]
-    err = np.abs(y - d["ref"])
-    allowed = (tol + 64 * EPS) * d["bnd"]
-    assert np.all(err[allowed == 0] == 0)
-    worst = np.max(err[allowed > 0] / allowed[allowed > 0])
-    assert worst <= 1.0, f"a={order} {kind} tol={tol}: error/bound = {worst:.3g}"
+    # test_guarantee_one_million_samples).
+    assert_within_guarantee(high_cases[order, kind], tol, f"a={order} {kind}")
 
 
 @pytest.mark.parametrize("order", HIGH_ORDERS)
@@ -416,9 +421,7 @@ def test_high_order_against_batch_all_indices(high_cases, order):
     tol = 1e-10
     exact = pyfracconv.integral(d["x"], order, step=0.01, rule="rectangle")
     bound = pyfracconv.lagged_sum(np.abs(d["u"]), np.abs(d["c"]))
-    err = np.abs(d["ys"][tol] - exact)
-    worst = np.max(err / ((tol + 1e-13) * bound + 1e-300))
-    assert worst <= 1.0, f"a={order}: error/bound = {worst:.3g}"
+    assert_against_batch(d["ys"][tol], exact, bound, tol, f"a={order}")
 
 
 @pytest.mark.parametrize("order", [1.0, 1.3, 1.95])
