@@ -74,6 +74,8 @@ extern "C" {
 #define FC_ERR_KERNEL 12     /* kernel empty or not finite */
 #define FC_ERR_ARG 13        /* other invalid argument (engine, channels, buffer size) */
 #define FC_ERR_INDEX 14      /* index range beyond what the weights support (start+count > 2^53) */
+#define FC_ERR_RANGE 15      /* a result (or a value it needs) is beyond the double range */
+#define FC_ERR_HORIZON 16    /* compressed stream: the push would pass the horizon */
 
 /* Rules. */
 #define FC_RULE_RECTANGLE 0
@@ -90,6 +92,11 @@ extern "C" {
 /* Stream modes. */
 #define FC_MODE_EXACT 0
 #define FC_MODE_COMPRESSED 1
+
+/* What a compressed stream does with a push that would take it past its
+   horizon (fc_stream_set_horizon_policy). */
+#define FC_HORIZON_REFUSE 0    /* default: FC_ERR_HORIZON, nothing changes */
+#define FC_HORIZON_CONTINUE 1  /* go on; fc_stream_past_horizon then reports 1 */
 
 /* Version of the library actually linked (FC_VERSION_NUMBER at build time). */
 int fc_version(void);
@@ -233,6 +240,33 @@ int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out);
    fc_stream_push(s, &x, y); x must be finite (FC_ERR_NONFINITE); y: one
    double. */
 int fc_stream_push1(fc_stream *s, double x, double *y);
+
+/*
+ * The horizon of a compressed stream: outputs 0 .. floor(horizon) are within
+ * the stated tolerance; nothing is promised after. By default
+ * (FC_HORIZON_REFUSE) a push or block that would produce an output beyond
+ * floor(horizon) returns FC_ERR_HORIZON and changes nothing; with
+ * FC_HORIZON_CONTINUE it proceeds and fc_stream_past_horizon reports 1.
+ * The policy is a setting of the object, not part of its saved state (a
+ * loaded stream starts with FC_HORIZON_REFUSE). Exact streams have no
+ * horizon: the policy is accepted and ignored, the flag is always 0.
+ * policy: FC_HORIZON_REFUSE or FC_HORIZON_CONTINUE (FC_ERR_ARG otherwise).
+ */
+int fc_stream_set_horizon_policy(fc_stream *s, int policy);
+int fc_stream_horizon_policy(const fc_stream *s, int *policy);
+/* 1 once an output beyond the horizon has been produced, else 0. */
+int fc_stream_past_horizon(const fc_stream *s, int *flag);
+/* Samples (per channel) that can still be pushed under the promise:
+   compressed: floor(horizon) + 1 - count (0 once past); exact: the samples
+   the stream can still take (UINT64_MAX - count for kernel streams). */
+int fc_stream_remaining(const fc_stream *s, uint64_t *remaining);
+/* The defining parameters: rule (-1 for a kernel stream), order and step
+   (0 for a kernel stream), tolerance and horizon (0 for exact streams). */
+int fc_stream_rule(const fc_stream *s, int *rule);
+int fc_stream_order(const fc_stream *s, double *order);
+int fc_stream_step(const fc_stream *s, double *step);
+int fc_stream_tol(const fc_stream *s, double *tol);
+int fc_stream_horizon(const fc_stream *s, double *horizon);
 /* FC_CDEF_END */
 
 #ifdef __cplusplus

@@ -88,6 +88,7 @@ struct fc_stream {
     unsigned kind;
     int rule;
     double order, step, tol, horizon;
+    int horizon_policy;     /* FC_HORIZON_* (compressed mode) */
     size_t C;               /* channels */
     fc_cstream *cs;         /* compressed mode */
 
@@ -752,6 +753,23 @@ int fc_stream_create_kernel(const double *kernel, size_t klen,
         if (st_e_ != FC_OK) return st_e_;        \
     } while (0)
 
+/* Outputs 0 .. floor(horizon) are under the promise of a compressed
+   stream: the samples it can still take under it. */
+static uint64_t cs_remaining(const fc_stream *s)
+{
+    uint64_t n = fc__cs_count(s->cs);
+    uint64_t lim = (uint64_t)floor(s->horizon) + 1; /* horizon < 2^53 */
+    return n < lim ? lim - n : 0;
+}
+
+/* FC_ERR_HORIZON when a block of count samples would pass the horizon and
+   the policy refuses it. */
+static int cs_horizon_check(const fc_stream *s, size_t count)
+{
+    if (s->horizon_policy != FC_HORIZON_REFUSE) return FC_OK;
+    return (uint64_t)count > cs_remaining(s) ? FC_ERR_HORIZON : FC_OK;
+}
+
 int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
                          double *y)
 {
@@ -763,6 +781,7 @@ int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
         size_t tot;
         if (fc__mul_size(count, s->C, &tot)) st = FC_ERR_SIZE;
         else if (tot && (st = fc__check_finite(x, tot)) != FC_OK) {}
+        else if ((st = cs_horizon_check(s, count)) != FC_OK) {}
         else st = count ? fc__cs_push_block(s->cs, x, count, y) : FC_OK;
     } else {
         st = ex_push_block(s, x, count, y);
@@ -784,7 +803,10 @@ int fc_stream_push1(fc_stream *s, double x, double *y)
     if ((st = enter(s)) != FC_OK) return st;
     if (s->C != 1) st = FC_ERR_ARG;
     else if (!isfinite(x)) st = FC_ERR_NONFINITE;
-    else if (s->mode == FC_MODE_COMPRESSED) st = fc__cs_push_block(s->cs, &x, 1, y);
+    else if (s->mode == FC_MODE_COMPRESSED) {
+        if ((st = cs_horizon_check(s, 1)) == FC_OK)
+            st = fc__cs_push_block(s->cs, &x, 1, y);
+    }
     else {
         /* inline fast path of ex_push_block for one sample */
         if (s->n + 1 > s->prep_n) st = ex_prepare(s, s->n + 1, 0);
@@ -881,6 +903,79 @@ int fc_stream_reserve(fc_stream *s, uint64_t n)
     if (s->mode == FC_MODE_EXACT && n > s->n) st = ex_prepare(s, n, 1);
     leave(s);
     return st;
+}
+
+int fc_stream_set_horizon_policy(fc_stream *s, int policy)
+{
+    if (policy != FC_HORIZON_REFUSE && policy != FC_HORIZON_CONTINUE)
+        return FC_ERR_ARG;
+    ENTER_OR_RETURN(s);
+    s->horizon_policy = policy;
+    leave(s);
+    return FC_OK;
+}
+
+int fc_stream_horizon_policy(const fc_stream *s, int *policy)
+{
+    if (!policy) return FC_ERR_NULL;
+    ENTER_OR_RETURN(s);
+    *policy = s->horizon_policy;
+    leave(s);
+    return FC_OK;
+}
+
+int fc_stream_past_horizon(const fc_stream *s, int *flag)
+{
+    if (!flag) return FC_ERR_NULL;
+    ENTER_OR_RETURN(s);
+    /* outputs 0 .. n-1 have been produced */
+    *flag = s->mode == FC_MODE_COMPRESSED &&
+            (double)fc__cs_count(s->cs) > floor(s->horizon) + 1.0;
+    leave(s);
+    return FC_OK;
+}
+
+int fc_stream_remaining(const fc_stream *s, uint64_t *remaining)
+{
+    if (!remaining) return FC_ERR_NULL;
+    ENTER_OR_RETURN(s);
+    if (s->mode == FC_MODE_COMPRESSED) *remaining = cs_remaining(s);
+    else if (s->kind == FC_S_KIND_KERNEL) *remaining = UINT64_MAX - s->n;
+    else *remaining = FC_S_LAG_LIMIT - 1 - s->n; /* counts < FC_S_LAG_LIMIT */
+    leave(s);
+    return FC_OK;
+}
+
+/* The defining parameters are immutable after creation: no busy guard. */
+int fc_stream_rule(const fc_stream *s, int *rule)
+{
+    if (!s || !rule) return FC_ERR_NULL;
+    *rule = s->kind == FC_S_KIND_KERNEL ? -1 : s->rule;
+    return FC_OK;
+}
+int fc_stream_order(const fc_stream *s, double *order)
+{
+    if (!s || !order) return FC_ERR_NULL;
+    *order = s->order;
+    return FC_OK;
+}
+int fc_stream_step(const fc_stream *s, double *step)
+{
+    if (!s || !step) return FC_ERR_NULL;
+    *step = s->step;
+    return FC_OK;
+}
+int fc_stream_tol(const fc_stream *s, double *tol)
+{
+    if (!s || !tol) return FC_ERR_NULL;
+    *tol = s->tol;
+    return FC_OK;
+}
+int fc_stream_horizon(const fc_stream *s, double *horizon)
+{
+    if (!s || !horizon) return FC_ERR_NULL;
+    *horizon = s->horizon;
+    return FC_OK;
 }
 
 /* ------------------------------------------------------------ save/load */

@@ -31,6 +31,8 @@ const char *fc_strerror(int status)
     case FC_ERR_KERNEL: return "kernel is empty or has non-finite values";
     case FC_ERR_ARG: return "invalid argument";
     case FC_ERR_INDEX: return "index range beyond 2^53";
+    case FC_ERR_RANGE: return "a result is beyond the range of double precision (samples, step or order too large for this operator)";
+    case FC_ERR_HORIZON: return "the push would take the compressed stream past its horizon, beyond which its tolerance is not promised";
     default: return "unknown status";
     }
 }

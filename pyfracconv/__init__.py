@@ -9,6 +9,8 @@ sample at a time.
 from ._errors import (
     ArgumentError,
     BusyError,
+    HorizonError,
+    RangeError,
     FracconvError,
     InputTypeError,
     OutOfMemory,
@@ -38,5 +40,7 @@ __all__ = [
     "InputTypeError",
     "OutOfMemory",
     "BusyError",
+    "HorizonError",
+    "RangeError",
     "__version__",
 ]

@@ -11,6 +11,8 @@ __all__ = [
     "InputTypeError",
     "OutOfMemory",
     "BusyError",
+    "RangeError",
+    "HorizonError",
     "raise_for_status",
 ]
 
@@ -43,6 +45,16 @@ class BusyError(FracconvError, RuntimeError):
     """An object was used from two threads at once."""
 
 
+class RangeError(ArgumentError):
+    """A result would be beyond the range of double precision (the samples,
+    the step or the order are too large for the operator)."""
+
+
+class HorizonError(FracconvError, RuntimeError):
+    """A push would take a compressed stream past its horizon, beyond which
+    its tolerance is not promised."""
+
+
 # C status code -> (exception class, short name); messages come from
 # fc_strerror so that C and Python say the same thing.
 _CLASSES = {
@@ -60,6 +72,8 @@ _CLASSES = {
     12: ArgumentError,  # FC_ERR_KERNEL
     13: ArgumentError,  # FC_ERR_ARG
     14: ArgumentError,  # FC_ERR_INDEX
+    15: RangeError,     # FC_ERR_RANGE
+    16: HorizonError,   # FC_ERR_HORIZON
 }
 
 
