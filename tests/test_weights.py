@@ -140,10 +140,14 @@ def test_l1_weights_against_mpmath(a):
     _check_points("l1", a)
 
 
+RANDOM_SEEDS = {"rectangle": 101, "trapezoid": 102, "grunwald": 103, "l1": 104, "start": 105}
+
+
 @pytest.mark.parametrize("rule", ["rectangle", "trapezoid", "grunwald", "l1", "start"])
 def test_random_orders_steps_and_indices(rule):
-    # Orders drawn at random over the whole allowed range, against mpmath.
-    rng = random.Random(hash(rule) % 1000)
+    # Orders drawn at random over the whole allowed range, against mpmath
+    # (a fixed seed per rule, so that every run draws the same cases).
+    rng = random.Random(RANDOM_SEEDS[rule])
     worst = 0.0
     for _ in range(8):
         a = rng.uniform(1e-3, 0.999) if rule == "l1" else rng.uniform(1e-3, 10.0)
