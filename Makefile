@@ -1,8 +1,10 @@
 # Builds the C library for compiled callers: build/libfracconv.so,
 # build/libfracconv.a, the example program and the C benchmarks.
 CC ?= cc
-CFLAGS ?= -O3
-ALL_CFLAGS = $(CFLAGS) -std=c11 -fno-math-errno -Wall -Wextra -fPIC -Icsrc
+# FC_OPT_CFLAGS and FC_STD_CFLAGS, shared with setup_build.py (the extension)
+include csrc/flags.mk
+CFLAGS ?= $(FC_OPT_CFLAGS)
+ALL_CFLAGS = $(CFLAGS) $(FC_STD_CFLAGS) -fPIC -Icsrc
 BUILD = build
 SRCS = $(sort $(wildcard csrc/*.c))
 OBJS = $(patsubst csrc/%.c,$(BUILD)/obj/%.o,$(SRCS))
@@ -16,7 +18,7 @@ all: lib example
 
 lib: $(BUILD)/libfracconv.so $(BUILD)/libfracconv.a
 
-$(BUILD)/obj/%.o: csrc/%.c $(HDRS)
+$(BUILD)/obj/%.o: csrc/%.c $(HDRS) csrc/flags.mk
 	@mkdir -p $(BUILD)/obj
 	$(CC) $(ALL_CFLAGS) -c $< -o $@
 

@@ -1,20 +1,40 @@
-"""The short shim setuptools still needs for cffi_modules."""
+"""The short shim setuptools still needs for cffi_modules.
+
+The public header csrc/fracconv.h ships inside the package as
+pyfracconv/include/fracconv.h (pyfracconv.get_include()): build_py copies it
+into the build directory, never into the source tree. An editable install
+has no copy; get_include() then finds csrc/ of the checkout.
+"""
 
 import os
-import shutil
 
 from setuptools import setup
+from setuptools.command.build_py import build_py
 
 HERE = os.path.dirname(os.path.abspath(__file__))
+HEADER = os.path.join(HERE, "csrc", "fracconv.h")
 
-# Ship the public header inside the package (pyfracconv.get_include()).
-os.makedirs(os.path.join(HERE, "pyfracconv", "include"), exist_ok=True)
-shutil.copyfile(
-    os.path.join(HERE, "csrc", "fracconv.h"),
-    os.path.join(HERE, "pyfracconv", "include", "fracconv.h"),
-)
+
+class build_py_with_header(build_py):
+    def _header_target(self):
+        return os.path.join(self.build_lib, "pyfracconv", "include", "fracconv.h")
+
+    def run(self):
+        super().run()
+        if getattr(self, "editable_mode", False):
+            return  # the checkout's csrc/ serves get_include()
+        target = self._header_target()
+        self.mkpath(os.path.dirname(target))
+        self.copy_file(HEADER, target)
+
+    def get_outputs(self, include_bytecode=True):
+        outputs = super().get_outputs(include_bytecode)
+        if getattr(self, "editable_mode", False):
+            return outputs
+        return outputs + [self._header_target()]
+
 
 setup(
     cffi_modules=["setup_build.py:ffibuilder"],
-    package_data={"pyfracconv": ["include/fracconv.h"]},
+    cmdclass={"build_py": build_py_with_header},
 )

@@ -2,6 +2,9 @@
 
 The C declarations are read from csrc/fracconv.h, between the markers
 FC_CDEF_BEGIN and FC_CDEF_END, so the header is the one source of truth.
+The compiler flags are read from csrc/flags.mk, which the Makefile includes,
+so the extension and the C library are built with the same flags
+(``python setup_build.py --print-cflags`` prints them).
 """
 
 import os
@@ -14,7 +17,11 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 CSRC = os.path.join(HERE, "csrc")
 
 
-def read_cdef(header=os.path.join(CSRC, "fracconv.h")):
+HEADER = os.path.join(CSRC, "fracconv.h")
+FLAGS_FILE = os.path.join(CSRC, "flags.mk")
+
+
+def read_cdef(header=HEADER):
     with open(header, encoding="utf-8") as fh:
         text = fh.read()
     m = re.search(r"/\* FC_CDEF_BEGIN \*/(.*)/\* FC_CDEF_END \*/", text, re.S)
@@ -29,10 +36,26 @@ def c_sources():
     )
 
 
+def read_flags(path=FLAGS_FILE):
+    """The ``NAME = words`` lines of csrc/flags.mk as {NAME: [words]}."""
+    flags = {}
+    with open(path, encoding="utf-8") as fh:
+        for line in fh:
+            line = line.split("#", 1)[0].strip()
+            if not line:
+                continue
+            m = re.fullmatch(r"([A-Za-z_][A-Za-z0-9_]*)\s*=\s*(.*)", line)
+            if m is None:
+                raise RuntimeError(f"{path}: not a plain NAME = words line: {line!r}")
+            flags[m.group(1)] = m.group(2).split()
+    return flags
+
+
 def compile_args():
     if sys.platform == "win32":
         return ["/O2"]
-    return ["-O3", "-std=c11", "-fno-math-errno", "-Wall", "-Wextra"]
+    flags = read_flags()
+    return flags["FC_OPT_CFLAGS"] + flags["FC_STD_CFLAGS"]
 
 
 ffibuilder = FFI()
@@ -46,8 +69,11 @@ ffibuilder.set_source(
     libraries=[] if sys.platform == "win32" else ["m"],
     depends=sorted(
         os.path.join("csrc", f) for f in os.listdir(CSRC) if f.endswith(".h")
-    ),
+    ) + [os.path.join("csrc", "flags.mk")],
 )
 
 if __name__ == "__main__":
-    ffibuilder.compile(verbose=True)
+    if sys.argv[1:] == ["--print-cflags"]:
+        print(" ".join(compile_args()))
+    else:
+        ffibuilder.compile(verbose=True)
