@@ -18,6 +18,7 @@ import pytest
 
 from pyfracconv._fracconv import ffi, lib
 
+# pyFFTW comes with the bench extra (pip install -e ".[test,bench]").
 pyfftw = pytest.importorskip("pyfftw")
 
 SIZES = [2**8, 2**10, 2**12, 2**14, 2**16]

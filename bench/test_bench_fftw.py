@@ -28,6 +28,10 @@ import scipy.signal
 import fftw_path as _fftw
 import pyfracconv
 
+# pyFFTW comes with the bench extra (pip install -e ".[test,bench]"); without
+# it this file is skipped, as is bench/test_bench_fft.py.
+pytest.importorskip("pyfftw")
+
 SIZES = [2**16, 2**18]
 
 
