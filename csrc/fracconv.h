@@ -86,7 +86,7 @@ extern "C" {
 /* Batch engines. */
 #define FC_ENGINE_AUTO 0     /* chosen by size */
 #define FC_ENGINE_DIRECT 1   /* O(N*K) direct summation */
-#define FC_ENGINE_BLOCKED 2  /* dyadic blockwise FFT, O(N log^2 N), componentwise accurate */
+#define FC_ENGINE_BLOCKED 2  /* partitioned FFT convolution, O(N log N), componentwise accurate */
 #define FC_ENGINE_FFT 3      /* one full-length FFT, O(N log N), normwise accurate only */
 
 /* Stream modes. */

@@ -1,5 +1,5 @@
 """Plain NumPy references for the tests: the rules exactly as written in
-DESIGN.md section 1, summed directly (O(N) per output, in extended precision
+docs/design.md section 1, summed directly (O(N) per output, in extended precision
 where the platform has it), with the componentwise error scale
 sum_k |c_{n-k} x_k| of every output."""
 

@@ -3,7 +3,8 @@ through ``python -m pyfracconv``.
 
 Results are held to the library's own batch functions on the same data
 (the program must add nothing and lose no digits), and once to an identity
-with no discretisation error from /work/shared/REFERENCES.md.
+with no discretisation error (docs/references.md: the telescoping sum of the
+rectangle weights, common practice; the order-1 special case).
 """
 
 import math
@@ -92,7 +93,8 @@ def test_csv_round_trip_keeps_header_and_every_digit(tmp_path, capsys):
 
 def test_csv_rectangle_on_constant_matches_identity(tmp_path, capsys):
     # Rectangle rule on f = 1 gives exactly h^a n^a / Gamma(a+1) at t_n
-    # (sum_{j<n} ((j+1)^a - j^a) = n^a; /work/shared/REFERENCES.md,
+    # (sum_{j<n} ((j+1)^a - j^a) = n^a, a telescoping sum: common practice;
+    # docs/references.md,
     # "Identities with no discretisation error").
     a, h, n = 0.3, 0.25, 200
     src, dst = tmp_path / "c.csv", tmp_path / "c_out.csv"
@@ -106,7 +108,7 @@ def test_csv_rectangle_on_constant_matches_identity(tmp_path, capsys):
 
 def test_csv_rectangle_order_one_is_left_rectangle_rule(tmp_path, capsys):
     # a = 1: the classical left rectangle rule, y_n = h * sum_{k<n} x_k
-    # (/work/shared/REFERENCES.md, "Order a = 1").
+    # (common practice; docs/references.md, "Order a = 1").
     h = 0.5
     x = np.array([1.0, 2.0, -4.0, 8.0, 0.5, 3.0])
     src, dst = tmp_path / "r.csv", tmp_path / "r.npy"

@@ -18,7 +18,8 @@ def grid(T, N):
 @pytest.mark.parametrize("a", [0.1, 0.5, 1.0, 2.5])
 def test_rectangle_exact_on_constants(a):
     # sum_{j<n} ((j+1)^a - j^a) = n^a, so the rule gives h^a n^a / Gamma(a+1)
-    # at t_n for f = 1 (telescoping sum; REFERENCES.md "Identities").
+    # at t_n for f = 1 (telescoping sum, common practice; docs/references.md, "Identities
+    # with no discretisation error").
     h, t = grid(2.0, 5000)
     y = pyfracconv.integral(np.ones_like(t), a, h, rule="rectangle")
     exact = t**a / special.gamma(a + 1)  # RL integral of 1 (Podlubny 1999)
@@ -28,7 +29,7 @@ def test_rectangle_exact_on_constants(a):
 @pytest.mark.parametrize("a", [0.2, 0.5, 0.9, 1.5, 3.0])
 def test_trapezoid_exact_on_linear(a):
     # The product trapezoidal rule is exact on linear f (common practice;
-    # REFERENCES.md). Closed form I^a (c0 + c1 t) = c0 t^a/Gamma(a+1)
+    # docs/references.md). Closed form I^a (c0 + c1 t) = c0 t^a/Gamma(a+1)
     # + c1 t^(a+1)/Gamma(a+2) (Podlubny 1999; Kilbas, Srivastava, Trujillo
     # 2006).
     h, t = grid(3.0, 4000)
@@ -42,7 +43,7 @@ def test_trapezoid_exact_on_linear(a):
 @pytest.mark.parametrize("a", [0.1, 0.5, 0.95])
 def test_l1_exact_on_linear(a):
     # Caputo D^a (c0 + c1 t) = c1 t^(1-a) / Gamma(2-a) (Diethelm 2010); the
-    # L1 scheme is exact on linear functions (common practice; REFERENCES.md).
+    # L1 scheme is exact on linear functions (common practice; docs/references.md).
     h, t = grid(1.0, 3000)
     y = pyfracconv.derivative(5.0 + 3.0 * t, a, h, rule="l1")
     exact = 3.0 * t ** (1 - a) / special.gamma(2 - a)
@@ -113,7 +114,8 @@ def test_integral_of_exponential(a):
 @pytest.mark.parametrize("a", [0.2, 0.5, 0.8])
 def test_caputo_of_power_and_exponential(a):
     # Caputo D^a t^2 = Gamma(3)/Gamma(3-a) t^(2-a) (Diethelm 2010) and
-    # D^a e^t = e^t P(1-a, t) (REFERENCES.md; SciPy gammainc).
+    # D^a e^t = e^t P(1-a, t) (docs/references.md, "Exponential"; Abramowitz
+    # and Stegun 6.5; SciPy gammainc).
     h, t = grid(1.0, 4000)
     y = pyfracconv.derivative(t**2, a, h, rule="l1")
     exact = 2.0 / special.gamma(3 - a) * t ** (2 - a)

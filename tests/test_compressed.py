@@ -12,12 +12,13 @@ trapezoid rule). References:
     dot products) at selected n, with the kernel from pyfracconv.weights;
   - closed forms of the weights evaluated with mpmath at 40 digits (impulse
     responses), so that the kernel the stream realises is held to the
-    defining formulas in DESIGN.md section 1 (sources there and in
-    /work/shared/REFERENCES.md), not to the library's own weights;
+    defining formulas in docs/design.md section 1 (sources there and in
+    docs/references.md), not to the library's own weights;
   - the rectangle rule on a constant, sum_{j<=n} ((j+1)^a - j^a) = (n+1)^a
-    (telescoping; REFERENCES.md "Identities with no discretisation error"),
+    (telescoping; docs/references.md "Identities with no discretisation error"),
     and the Grunwald partial sums sum_{j<=n} g_j = (-1)^n binom(a-1, n)
-    (REFERENCES.md, same section), both evaluated with mpmath.
+    (Graham, Knuth and Patashnik, Concrete Mathematics, 1994, sec. 5.1;
+    docs/references.md, same section), both evaluated with mpmath.
 """
 
 
@@ -152,7 +153,7 @@ def test_guarantee_against_batch_all_indices(long_cases, rule):
 
 
 def closed_form_lag(rule, a, h, m):
-    """c_m of the lagged-sum form from the formulas of DESIGN.md section 1,
+    """c_m of the lagged-sum form from the formulas of docs/design.md section 1,
     at 40 digits (mpmath)."""
     a = mpmath.mpf(a)
     h = mpmath.mpf(h)
@@ -190,7 +191,8 @@ def test_impulse_response_matches_closed_forms(rule, order):
 @pytest.mark.parametrize("order", [0.05, 0.5, 0.95])
 def test_rectangle_on_constant(order):
     # sum_{j<=n-1} ((j+1)^a - j^a) = n^a: y_n = h^a n^a / Gamma(a+1) exactly
-    # (REFERENCES.md identity); every term positive, so the bound is y_n.
+    # (telescoping sum, common practice; docs/references.md, "Rectangle rule on
+    # a constant"); every term positive, so the bound is y_n.
     mpmath.mp.dps = 30
     tol, n, h = 1e-13, 300_000, 0.1
     y = make("rectangle", order, h, tol, 1e6).push_many(np.ones(n))
@@ -202,7 +204,8 @@ def test_rectangle_on_constant(order):
 @pytest.mark.parametrize("order", [0.2, 0.8])
 def test_grunwald_partial_sums(order):
     # sum_{j<=n} g_j = (-1)^n binom(a-1, n) = Gamma(n+1-a)/(Gamma(1-a) Gamma(n+1))
-    # (REFERENCES.md); bound: h^-a sum_j |g_j| = h^-a (2 - that sum)
+    # (Graham, Knuth and Patashnik 1994, sec. 5.1; docs/references.md);
+    # bound: h^-a sum_j |g_j| = h^-a (2 - that sum)
     # (g_0 = 1 > 0, g_j < 0 for j >= 1).
     mpmath.mp.dps = 30
     tol, n, h = 1e-13, 300_000, 1.0
@@ -376,7 +379,7 @@ def test_short_horizon_band_only_is_exact():
 # 1 <= a < 2": the engine runs on the running sum X of x with the kernel
 # f_m = c_m - c_{m-1}, second differences of t^a). The guarantee under test
 # is the same as above, with c the rectangle rule's own kernel
-# c_m = h^a/Gamma(a+1) ((m)^a - (m-1)^a) (DESIGN.md section 1).
+# c_m = h^a/Gamma(a+1) ((m)^a - (m-1)^a) (docs/design.md section 1).
 
 HIGH_ORDERS = [1.0, 1.3, 1.7, 1.95]
 
@@ -427,7 +430,7 @@ def test_high_order_against_batch_all_indices(high_cases, order):
 @pytest.mark.parametrize("order", [1.0, 1.3, 1.95])
 def test_high_order_impulse_response_closed_form(order):
     # Unit impulse: y_m = c_m = h^a/Gamma(a+1) (m^a - (m-1)^a), mpmath at 40
-    # digits (DESIGN.md section 1); c_m > 0, relative tolerance tol.
+    # digits (docs/design.md section 1); c_m > 0, relative tolerance tol.
     mpmath.mp.dps = 40
     tol, n, h = 1e-13, 1_000_000, 0.5
     x = np.zeros(n)
@@ -444,7 +447,7 @@ def test_high_order_impulse_response_closed_form(order):
 
 @pytest.mark.parametrize("order", [1.0, 1.5, 1.9])
 def test_high_order_rectangle_on_constant(order):
-    # Telescoping identity (REFERENCES.md): y_n = h^a n^a / Gamma(a+1) for
+    # Telescoping identity (docs/references.md): y_n = h^a n^a / Gamma(a+1) for
     # x = 1; every term positive, so the bound is y_n itself.
     mpmath.mp.dps = 30
     tol, n, h = 1e-13, 300_000, 0.1

@@ -2,7 +2,7 @@
 tested by its own file, here only its dispatch through Stream).
 
 References used here:
-  - plain O(N^2) NumPy sums of the rules exactly as written in DESIGN.md
+  - plain O(N^2) NumPy sums of the rules exactly as written in docs/design.md
     section 1 (the tables of Diethelm, Ford, Freed, Numer. Algorithms 36
     (2004) for the product rules; Lubich, SIAM J. Math. Anal. 17 (1986) for
     Grunwald-Letnikov; Lin and Xu, J. Comput. Phys. 225 (2007) for L1), with
@@ -43,7 +43,7 @@ _WCACHE = {}
 
 def _mp_weights(rule, a, h, N):
     """Scaled weights (and the trapezoid starting weights) by mpmath, as
-    written in the table of DESIGN.md section 1."""
+    written in the table of docs/design.md section 1."""
     key = (rule, a, h, N)
     if key in _WCACHE:
         return _WCACHE[key]
@@ -225,7 +225,7 @@ def test_every_lag_exactly_once_integer_data():
 
 
 def test_identity_rectangle_constant():
-    # REFERENCES.md: the rectangle rule on f = 1 gives h^a n^a / Gamma(a+1)
+    # docs/references.md: the rectangle rule on f = 1 gives h^a n^a / Gamma(a+1)
     # exactly (telescoping sum of (j+1)^a - j^a).
     a, h, N = 0.37, 0.02, 5000
     s = Stream.integral(a, h)

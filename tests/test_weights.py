@@ -2,14 +2,14 @@
 
 References (cited beside each check):
   - mpmath at 60 significant digits evaluating the defining formulas of the
-    weights (DESIGN.md section 1 / fracconv.h), with the order taken as the
+    weights (docs/design.md section 1 / fracconv.h), with the order taken as the
     exact binary value of the float passed to the library. mpmath works in
     arbitrary precision, so the differences (m+1)^a - m^a etc. that cancel in
     double keep 60 - 2*12 >= 36 digits even at m = 1e12;
   - the Grunwald-Letnikov coefficients g_m = (-1)^m binom(a, m)
     (Podlubny, Fractional Differential Equations, Academic Press 1999,
     section 2.2), evaluated with mpmath.binomial;
-  - identities with no discretisation error from REFERENCES.md: the
+  - identities with no discretisation error from docs/references.md: the
     rectangle weights telescope, sum_{j<=n} b_j = (n+1)^a; the
     Grunwald-Letnikov partial sums sum_{j<=n} (-1)^j binom(a, j) =
     (-1)^n binom(a-1, n); integer orders give (-1)^m binom(a, m) exactly
@@ -54,7 +54,7 @@ INDICES = sorted(
 
 def _mp_weight(rule, a, m, h):
     """Scaled weight of `rule` at index m, from the defining formula
-    (fracconv.h, DESIGN.md section 1) in mpmath arithmetic."""
+    (fracconv.h, docs/design.md section 1) in mpmath arithmetic."""
     # A few extra digits for tiny orders, where (m+1)^a - m^a ~ a/m.
     with mpmath.workdps(60 + max(0, int(-math.log10(a))) + 10):
         A, H, M = mpmath.mpf(a), mpmath.mpf(h), mpmath.mpf(m)
@@ -175,7 +175,7 @@ def test_steps_whose_scale_factor_leaves_the_double_range():
 
 @pytest.mark.parametrize("a", [1e-3, 0.3, 0.999, 1.7, 4.2, 10.0])
 def test_rectangle_weights_telescope(a):
-    # sum_{j<=n} ((j+1)^a - j^a) = (n+1)^a (REFERENCES.md, "Rectangle rule
+    # sum_{j<=n} ((j+1)^a - j^a) = (n+1)^a (docs/references.md, "Rectangle rule
     # on a constant"): the scaled sum is h^a (n+1)^a / Gamma(a+1).
     h, n = 0.25, 1 << 17
     w = pyfracconv.weights("rectangle", a, n, step=h)
@@ -193,7 +193,8 @@ def test_rectangle_weights_telescope(a):
 
 @pytest.mark.parametrize("a", [1e-3, 0.5, 0.999, 1 + 1e-9, 2.5, 6.3, 10.0])
 def test_grunwald_partial_sums(a):
-    # sum_{j<=n} (-1)^j binom(a, j) = (-1)^n binom(a-1, n) (REFERENCES.md,
+    # sum_{j<=n} (-1)^j binom(a, j) = (-1)^n binom(a-1, n) (Graham, Knuth and
+    # Patashnik, Concrete Mathematics, 1994, sec. 5.1; docs/references.md,
     # "Grunwald-Letnikov partial sums"), reference by mpmath.binomial.
     n = 1 << 15
     g = pyfracconv.weights("grunwald", a, n)  # step 1: unscaled g_m
@@ -222,7 +223,7 @@ def test_grunwald_integer_orders_are_binomials(a):
 def test_order_one_gives_the_classical_rules():
     # a = 1: rectangle weights h (left rectangle rule), trapezoid a_0 = 1,
     # a_m = 2, scaled by h/2 (composite trapezoidal rule), A_n = 1 scaled
-    # by h/2 for n >= 1 (REFERENCES.md, "Order a = 1"; common practice).
+    # by h/2 for n >= 1 (docs/references.md, "Order a = 1"; common practice).
     h = 0.3
     for start in (0, 7, 10**12):
         r = pyfracconv.weights("rectangle", 1.0, 50, step=h, start=start)
