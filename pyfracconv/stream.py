@@ -276,12 +276,12 @@ class Stream:
         C = int(_get(lib.fc_stream_channels, s, "size_t *"))
         if scalar and C != 1:
             raise StateError(
-                f"data: saved by a scalar stream but holds {C} channels"
+                f"the envelope says channels=None but the state holds {C} channels"
             )
         mode = int(_get(lib.fc_stream_mode, s, "int *"))
         rule = int(_get(lib.fc_stream_rule, s, "int *"))
         if mode not in _MODE_NAMES or (rule != -1 and rule not in _RULE_NAMES):
-            raise StateError(f"data: unknown mode {mode} or rule {rule}")
+            raise StateError(f"unknown mode {mode} or rule {rule}")
         self._C = C
         self._scalar = bool(scalar)
         self._mode = _MODE_NAMES[mode]
