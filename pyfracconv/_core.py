@@ -96,6 +96,19 @@ def _physical_memory():
         return None
 
 
+_RAM = _physical_memory()
+
+
+def check_bytes(what, need, kind="the result"):
+    """OutOfMemory naming ``what`` if ``need`` bytes exceed this machine's
+    physical memory (checked before allocating)."""
+    if _RAM is not None and need > _RAM:
+        raise OutOfMemory(
+            f"{what}: {kind} would need {_nbytes_text(need)}, more than "
+            f"this machine's memory ({_nbytes_text(_RAM)}); nothing was allocated"
+        )
+
+
 def new_result(n, what):
     """An empty float64 array of ``n`` elements for a result whose size the
     caller chose (``what`` names the argument, e.g. ``"count=10"``).
@@ -104,17 +117,27 @@ def new_result(n, what):
     machine's physical memory raises OutOfMemory naming the argument, and so
     does an allocation that fails."""
     need = n * 8
-    ram = _physical_memory()
-    if ram is not None and need > ram:
-        raise OutOfMemory(
-            f"{what}: the result would need {_nbytes_text(need)}, more than "
-            f"this machine's memory ({_nbytes_text(ram)}); nothing was allocated"
-        )
+    check_bytes(what, need)
     try:
         return np.empty(n, dtype=np.float64)
     except MemoryError:
         raise OutOfMemory(
             f"{what}: could not allocate the result ({_nbytes_text(need)})"
+        ) from None
+
+
+def contiguous_copy(name, arr):
+    """``arr`` as a C-contiguous float64 array; the copy (of a broadcast
+    view, say) is checked against the machine's memory first, and a failed
+    allocation is the package's OutOfMemory naming ``name``."""
+    need = 8 * int(arr.size)
+    check_bytes(name, need, f"a contiguous float64 copy of shape {arr.shape}")
+    try:
+        return np.ascontiguousarray(arr, dtype=np.float64)
+    except MemoryError:
+        raise OutOfMemory(
+            f"{name}: could not allocate a contiguous float64 copy of shape "
+            f"{arr.shape} ({_nbytes_text(need)})"
         ) from None
 
 
@@ -239,7 +262,7 @@ def as_float_array(name, values):
     """``values`` as a C-contiguous float64 ndarray (no copy when it already
     is one); InputTypeError for non-numeric data and for masked arrays."""
     if type(values) is np.ndarray and values.dtype == np.float64:
-        return values if values.flags.c_contiguous else np.ascontiguousarray(values)
+        return values if values.flags.c_contiguous else contiguous_copy(name, values)
     refuse_masked(name, values)
     try:
         arr = np.asarray(values)
@@ -251,7 +274,9 @@ def as_float_array(name, values):
         raise InputTypeError(
             f"{name}: expected real numbers, got an array of dtype {arr.dtype}"
         )
-    return np.asarray(arr, dtype=np.float64, order="C")
+    if arr.dtype == np.float64 and arr.flags.c_contiguous:
+        return arr
+    return contiguous_copy(name, arr)
 
 
 def raise_nonfinite(name, arr):
@@ -388,7 +413,7 @@ def _rows(name, samples, axis):
     ax = check_axis(axis, arr.ndim)
     moved = np.moveaxis(arr, ax, -1)
     nsig = int(np.prod(moved.shape[:-1], dtype=np.int64))
-    block = np.ascontiguousarray(moved).reshape(nsig, arr.shape[ax])
+    block = contiguous_copy(name, moved).reshape(nsig, arr.shape[ax])
     return arr, ax, moved.shape, block
 
 

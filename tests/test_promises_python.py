@@ -145,6 +145,12 @@ def test_oversized_weights_refused_before_allocating():
                      lambda: pf._core.trapezoid_start(0.5, 2**40)):
             text = message(pf.OutOfMemory, call)
             assert text.startswith("count=1099511627776"), text
+        # an 8-byte broadcast view whose contiguous copy would be 8 TiB
+        view = np.broadcast_to(1.0, (2**40,))
+        for call, name in ((lambda: pf.integral(view, 0.5, 0.1), "samples"),
+                           (lambda: pf.lagged_sum([1.0], view), "kernel")):
+            text = message(pf.OutOfMemory, call)
+            assert text.startswith(f"{name}: a contiguous float64 copy"), text
         peak = tracemalloc.get_traced_memory()[1]
     finally:
         tracemalloc.stop()
