@@ -139,11 +139,14 @@ def _horizon_error(s, what, pushing=1):
 
 def _scalar_error(name, x):
     """The exception for a scalar that cffi refused as a double."""
-    if isinstance(x, numbers.Integral) and not isinstance(x, (bool, np.bool_)):
-        return SampleError(
-            f"{name}={show(x)}: beyond the range of a double (samples must be "
-            "finite); the stream is unchanged"
-        )
+    if isinstance(x, numbers.Real) and not isinstance(x, (bool, np.bool_)):
+        try:
+            float(x)
+        except OverflowError:  # 10**400, Fraction(10**400), ...
+            return SampleError(
+                f"{name}={show(x)}: beyond the range of a double (samples must "
+                "be finite); the stream is unchanged"
+            )
     if _is_masked(x):
         return InputTypeError(
             f"{name}: masked arrays are not accepted (the mask would be ignored)"
