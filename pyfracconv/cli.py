@@ -36,6 +36,7 @@ from ._core import (
     check_step,
     derivative,
     integral,
+    show,
 )
 from ._errors import FracconvError
 
@@ -305,7 +306,7 @@ def read_npy(path, columns=None):
         where = tuple(int(i) for i in bad[0])
         text = ", ".join(str(i) for i in where)
         raise CliError(
-            f"{label}: element [{text}] is {data[where]!r}, not finite (NaN and "
+            f"{label}: element [{text}] is {show(data[where])}, not finite (NaN and "
             f"infinite samples cannot be processed)"
         )
     return data, None
