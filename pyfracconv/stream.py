@@ -256,8 +256,9 @@ class Stream:
 
     Notes
     -----
-    Exact mode memory grows like O(n) (about 40 bytes per sample and channel
-    plus shared kernel spectra; see ``bench/stream_memory.py``); work is
+    Exact mode memory grows like O(n) (about 70 bytes per sample with one
+    channel, as ``bench/stream_memory.py`` measures: the history, the block
+    spectra, the kernel spectra and the FFT plans); work is
     amortised O(log^2 n) per sample, but a single push that completes the
     largest block so far costs O(n log n).
     """
