@@ -115,6 +115,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <math.h>
+#include <float.h>
 #include "internal.h"
 
 #if (defined(__GNUC__) || defined(__clang__)) && \
@@ -150,6 +151,7 @@ struct fc_cstream {
     double *ring;             /* C * 2B, mirrored ring of u */
     double *S, *Sc;           /* C * Lp, compensated states */
     double *xprev, *x0;       /* C */
+    double umax;              /* largest accepted |u| (RANGE) */
     void *mem;
     size_t memsize;
 };
@@ -278,6 +280,20 @@ static double cs_band(const fc_cstream *cs, const double *w)
     return cs_band_portable(cs->cb, w);
 }
 
+/* X <- X + x in double-double (hi, lo): two exact TwoSums (Knuth, TAOCP
+   vol. 2, sec. 4.2.2), the result renormalised so that |lo| <= ulp(hi)/2. */
+static inline void cs_dd_add(double *hi, double *lo, double x)
+{
+    double h = *hi, l = *lo;
+    double s = h + x, z = s - h;
+    double e = (h - (s - z)) + (x - z);
+    double t = l + e;
+    double H = s + t;
+    z = H - s;
+    *lo = (s - (H - z)) + (t - z);
+    *hi = H;
+}
+
 /*
  * One time step for all channels. mode 0: push (commit), 1: preview,
  * 2: history (u_n and, at n = 0, x_0 taken as unknown = 0).
@@ -302,14 +318,10 @@ static void cs_step(fc_cstream *cs, const double *x, double *y, int mode)
         if (cs->rule == FC_RULE_L1) u = (n == 0 || mode == 2) ? 0.0 : xc - cs->xprev[c];
         else if (cs->cum) {
             /* X_n = X_{n-1} + x_n in double-double (xprev = high part,
-               x0 = low part): two exact TwoSums (Knuth), u = X_n rounded */
-            double hi = cs->xprev[c], lo = cs->x0[c];
-            double s = hi + xc, z = s - hi;
-            double e = (hi - (s - z)) + (xc - z);
-            double t = lo + e;
-            Xhi = s + t;
-            z = Xhi - s;
-            Xlo = (s - (Xhi - z)) + (t - z);
+               x0 = low part), u = X_n rounded */
+            Xhi = cs->xprev[c];
+            Xlo = cs->x0[c];
+            cs_dd_add(&Xhi, &Xlo, xc);
             u = Xhi;
         } else u = xc;
         double *ring = cs->ring + c * 2 * B;
@@ -339,9 +351,37 @@ static void cs_step(fc_cstream *cs, const double *x, double *y, int mode)
     if (commit) cs->n = n + 1;
 }
 
+/*
+ * RANGE. FC_OK if pushing the count time steps x (finite) keeps every
+ * engine input u (x; L1: x_n - x_{n-1}; rectangle with a >= 1: the running
+ * sum X) within umax, else FC_ERR_RANGE; also FC_ERR_SIZE if the count
+ * would reach 2^53 (the loader's bound). Writes nothing: the running sums
+ * and the differences are recomputed with the very operations of cs_step.
+ */
+static int cs_check_block(const fc_cstream *cs, const double *x, size_t count)
+{
+    const size_t C = cs->C;
+    const double U = cs->umax;
+    if ((uint64_t)count > FC_INDEX_LIMIT - 1 - cs->n) return FC_ERR_SIZE;
+    for (size_t c = 0; c < C; c++) {
+        double hi = cs->xprev[c], lo = cs->x0[c];
+        uint64_t n = cs->n;
+        for (size_t t = 0; t < count; t++, n++) {
+            double xc = x[t * C + c], u;
+            if (cs->rule == FC_RULE_L1) { u = n == 0 ? 0.0 : xc - hi; hi = xc; }
+            else if (cs->cum) { cs_dd_add(&hi, &lo, xc); u = hi; }
+            else u = xc;
+            if (!(fabs(u) <= U)) return FC_ERR_RANGE;
+        }
+    }
+    return FC_OK;
+}
+
 int fc__cs_push_block(fc_cstream *cs, const double *x, size_t count, double *y)
 {
+    int st;
     if (!cs || (count && (!x || !y))) return FC_ERR_NULL;
+    if ((st = cs_check_block(cs, x, count)) != FC_OK) return st;
     for (size_t t = 0; t < count; t++)
         cs_step(cs, x + t * cs->C, y + t * cs->C, 0);
     return FC_OK;
@@ -349,7 +389,9 @@ int fc__cs_push_block(fc_cstream *cs, const double *x, size_t count, double *y)
 
 int fc__cs_preview(const fc_cstream *cs, const double *x, double *y)
 {
+    int st;
     if (!cs || !x || !y) return FC_ERR_NULL;
+    if ((st = cs_check_block(cs, x, 1)) != FC_OK) return st;
     cs_step((fc_cstream *)cs, x, y, 1);   /* mode 1 writes nothing */
     return FC_OK;
 }
@@ -711,6 +753,40 @@ static double cs_verify(const cs_ctx *cx, size_t L, const double *q,
     return worst;
 }
 
+/*
+ * RANGE. If every engine input so far has |u| <= U, then every state obeys
+ * |S_l| <= (1/q_l + inj_l - 1) U <= 2 U / q_l (a geometric series; inj_l
+ * <= 2 enters once), every output |y| <= U (sum_l 2 |beta_l| / q_l +
+ * sum_j |cb_j| + |c0| + max_n |ctab_n|) (|x_0| <= U as x_0 = u_0 outside
+ * L1, where ctab is 0), and every intermediate of cs_step is bounded by
+ * the same sums (partial sums of the dot products, q S, d - q S). With
+ * G = max(2 / q_min, that sum of weights, 1) and U = DBL_MAX / (4 G) all
+ * of them stay below DBL_MAX / 2 with room for rounding (each bound is a
+ * sum of at most 2 CS_MAX_TERMS + CS_BAND + 3 terms, whose rounded value
+ * exceeds the exact one by a relative amount below 1e-13; the compensated
+ * states track the exact recursion to far better than a factor 2).
+ * Computed in a fixed order from the stored weights, so a rebuilt stream
+ * gets the same bits.
+ */
+static double cs_umax(const fc_cstream *cs)
+{
+    const size_t B = CS_BAND;
+    double gs = 1.0, go = fabs(cs->c0), cmax = 0.0;
+    for (size_t l = 0; l < cs->L; l++) {
+        double r = 2.0 / cs->q[l];
+        if (r > gs) gs = r;
+        go += 2.0 * fabs(cs->beta[l]) / cs->q[l];
+    }
+    for (size_t j = 0; j < B; j++) {
+        go += fabs(cs->cb[j]);
+        if (fabs(cs->ctab[j]) > cmax) cmax = fabs(cs->ctab[j]);
+    }
+    go += cmax;
+    double g = go > gs ? go : gs;
+    if (!(g <= 1e300)) return 0.0;      /* not reached for accepted steps */
+    return 0.25 * (DBL_MAX / g);
+}
+
 /* The parts of a new stream common to both shapes: the band (reversed for
    the dot product, lag 0 apart), the trapezoid table, the parameters. */
 static void cs_finish(fc_cstream *cs, const double *cband, const double *ctab,
@@ -726,7 +802,19 @@ static void cs_finish(fc_cstream *cs, const double *cband, const double *ctab,
     cs->tol = tol; cs->horizon = horizon;
     cs->cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
     cs->simd = cs_cpu_avx2();
+    cs->umax = cs_umax(cs);
     fc__cs_reset(cs);
+}
+
+/* sin(pi a) for 0 < a < 2 with full relative accuracy: the argument is
+   reduced exactly first (1 - a and 2 - a are exact by Sterbenz's lemma),
+   so that a near 1 does not lose digits to the rounding of pi a (the
+   relative error of sin(CS_PI * a) is about eps / |1 - a|). */
+static double cs_sinpi(double a)
+{
+    if (a <= 0.5) return sin(CS_PI * a);
+    if (a <= 1.5) return sin(CS_PI * (1.0 - a));
+    return -sin(CS_PI * (2.0 - a));
 }
 
 int fc__cs_create(int rule, double order, double step, size_t channels,
@@ -755,7 +843,7 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
     cx.tol = tol;
     cx.M = (double)M;
     cx.mlo = B;
-    double spa = sin(CS_PI * a) / CS_PI;
+    double spa = cs_sinpi(a) / CS_PI;
     if (cum) { cx.kind = K_RCUM; cx.p = 1.0 - a; cx.K = -spa * pow(step, a); }
     else switch (rule) {
     case FC_RULE_RECTANGLE: cx.kind = K_RECT; cx.p = -a; cx.K = spa * pow(step, a); break;
@@ -764,7 +852,8 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
     case FC_RULE_GRUNWALD: cx.kind = K_GRUN; cx.p = a; cx.K = -spa * pow(step, -a); break;
     default: cx.kind = K_L1; cx.p = a - 1.0; cx.K = spa * pow(step, -a); break;
     }
-    if (!isfinite(cx.K) || cx.K == 0.0) return FC_ERR_STEP;
+    /* (a = 1 in cum mode: K = sin(pi) = 0, and no terms are built) */
+    if (!isfinite(cx.K) || (cx.K == 0.0 && !(cum && a == 1.0))) return FC_ERR_STEP;
 
     /* band weights and the trapezoid start table */
     double cband[CS_BAND], ctab[CS_BAND];
@@ -1025,6 +1114,89 @@ int fc__cs_save(const fc_cstream *cs, unsigned char *buf, size_t size)
     return FC_OK;
 }
 
+/* Bit-for-bit equality of two doubles (distinguishes -0 from +0). */
+static int cs_same(double a, double b)
+{
+    return memcmp(&a, &b, sizeof a) == 0;
+}
+static int cs_zero_bits(double a) { return cs_same(a, 0.0); }
+
+/* (hi, lo) is what an exact TwoSum leaves: |lo| <= ulp(hi)/2, lo = 0 when
+   hi = 0 (a sum that rounds to zero or to a subnormal is exact). */
+static int cs_dd_ok(double hi, double lo)
+{
+    int e;
+    if (hi == 0.0) return lo == 0.0;
+    (void)frexp(hi, &e);                /* |hi| in [2^(e-1), 2^e) */
+    return fabs(lo) <= ldexp(1.0, e - 54);
+}
+
+/*
+ * The running state of a loaded stream against what cs_step can produce
+ * (every invariant below follows from cs_step and cs_check_block):
+ *  - every ring value (an engine input u) has |u| <= umax; every state
+ *    |S_l| <= 2 umax / q_l (RANGE), and (S_l, Sc_l) is a TwoSum pair;
+ *  - while n < B the ring slots n .. B-1 have never been written (+0);
+ *    the terms receive ring slot n mod B at step n, so S = Sc = +0 while
+ *    n <= B (L1: n <= B + 1, since u_0 = 0);
+ *  - n = 0: xprev = x0 = +0;
+ *  - n >= 1: outside L1, ring slot (n-1) mod B holds u_{n-1}, which is
+ *    xprev (the last sample, or for a >= 1 the high part of X); L1: slot 0
+ *    holds u_0 = +0 while n <= B, and xprev = x0 = x_0 when n = 1;
+ *  - rectangle a >= 1 (cum): (xprev, x0) is the double-double X;
+ *    otherwise x0 = x_0, which is ring slot 0 while n <= B, and |x_0| <=
+ *    umax outside L1 (x_0 = u_0).
+ */
+static int cs_state_ok(const fc_cstream *cs)
+{
+    const size_t B = CS_BAND, L = cs->L;
+    const uint64_t n = cs->n;
+    const double U = cs->umax;
+    for (size_t c = 0; c < cs->C; c++) {
+        const double *ring = cs->ring + c * 2 * B;
+        const double *S = cs->S + c * cs->Lp, *Sc = cs->Sc + c * cs->Lp;
+        const double xp = cs->xprev[c], x0 = cs->x0[c];
+        for (size_t j = 0; j < B; j++) {
+            if (!(fabs(ring[j]) <= U)) return 0;
+            if (n < B && j >= n && !cs_zero_bits(ring[j])) return 0;
+        }
+        const int quiet = n <= B || (cs->rule == FC_RULE_L1 && n <= B + 1);
+        for (size_t l = 0; l < L; l++) {
+            if (!(fabs(S[l]) * cs->q[l] <= 2.0 * U)) return 0;
+            if (!cs_dd_ok(S[l], Sc[l])) return 0;
+            if (quiet && !(cs_zero_bits(S[l]) && cs_zero_bits(Sc[l]))) return 0;
+        }
+        if (n == 0) {
+            if (!cs_zero_bits(xp) || !cs_zero_bits(x0)) return 0;
+            continue;
+        }
+        if (cs->rule == FC_RULE_L1) {
+            if (n <= B && !cs_zero_bits(ring[0])) return 0;
+            if (n == 1 && !cs_same(xp, x0)) return 0;
+        } else {
+            if (!cs_same(xp, ring[(n - 1) % B])) return 0;
+            if (cs->cum) {
+                if (!cs_dd_ok(xp, x0)) return 0;
+            } else {
+                if (!(fabs(x0) <= U)) return 0;
+                if (n <= B && !cs_same(x0, ring[0])) return 0;
+            }
+        }
+    }
+    return 1;
+}
+
+/*
+ * The payload is untrusted. Sizes: the channel count and the term count
+ * must give exactly the payload size (so nothing larger than the blob is
+ * ever allocated), and the checksum must match. Parameters: the stream is
+ * rebuilt by fc__cs_create from (rule, order, step, channels, tol,
+ * horizon) -- the construction is deterministic -- and the stored q, beta,
+ * inj, band, c0 and ctab must equal the rebuilt ones bit for bit. Only the
+ * running state (ring, S, Sc, xprev, x0, n) is then taken from the blob,
+ * and it must pass cs_state_ok. Anything else is FC_ERR_FORMAT (FC_ERR_NOMEM
+ * if the rebuild runs out of memory). Cost: one creation.
+ */
 int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
 {
     if (!buf || !out) return FC_ERR_NULL;
@@ -1038,65 +1210,61 @@ int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
     double order = cs_getd(buf + 40), step = cs_getd(buf + 48);
     double tol = cs_getd(buf + 56), horizon = cs_getd(buf + 64);
     if (C == 0 || L > CS_MAX_TERMS) return FC_ERR_FORMAT;
-    if (C > ((size_t)-1) / 4096) return FC_ERR_FORMAT;
-    size_t need = cs_size_for(C, L);
+    size_t need = cs_size_for(C, L);   /* 0 on overflow */
     if (need == 0 || need != size) return FC_ERR_FORMAT;
     if (cs_get64(buf + size - 8) != cs_fnv(buf, size - 8)) return FC_ERR_FORMAT;
-    const int cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
-    if (fc__check_rule((int)rule, order, step) != FC_OK ||
-        !(order < 1.0 || (cum && order < 2.0)))
-        return FC_ERR_FORMAT;
-    if (!(tol >= 1e-15 && tol <= 1e-2) || !(horizon >= 1.0) || !isfinite(horizon) ||
-        horizon > (double)(FC_INDEX_LIMIT - 2))
-        return FC_ERR_FORMAT;
-    if ((horizon >= (double)B && !(cum && order == 1.0)) != (L > 0)) return FC_ERR_FORMAT;
-    /* every double must be finite; q in (0, 1) */
+    if (n >= FC_INDEX_LIMIT) return FC_ERR_FORMAT;
     const unsigned char *p = buf + CS_HDR;
     size_t nd;
     if (cs_ndoubles(C, L, &nd)) return FC_ERR_FORMAT;
-    for (size_t i = 0; i < nd; i++) {
-        double v = cs_getd(p + 8 * i);
-        if (!isfinite(v)) return FC_ERR_FORMAT;
-        if (i < L && !(v > 0.0 && v < 1.0)) return FC_ERR_FORMAT;
-    }
-    size_t Lp = (size_t)((L + 7) / 8 * 8);
-    if (Lp == 0) Lp = 8;
+    for (size_t i = 0; i < nd; i++)
+        if (!isfinite(cs_getd(p + 8 * i))) return FC_ERR_FORMAT;
+
     fc_cstream *cs;
-    int st = cs_alloc((size_t)C, Lp, &cs);
-    if (st != FC_OK) return st == FC_ERR_SIZE ? FC_ERR_FORMAT : st;
-#define GETV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { (arr)[i_] = cs_getd(p); p += 8; } } while (0)
-    GETV(cs->q, L); GETV(cs->beta, L); GETV(cs->inj, L);
-    GETV(cs->cb, B);
-    cs->c0 = cs_getd(p); p += 8;
-    GETV(cs->ctab, B);
-    for (size_t c = 0; c < C; c++) {
-        double *ring = cs->ring + c * 2 * B;
-        GETV(ring, B);
-        memcpy(ring + B, ring, B * sizeof(double));
-        GETV(cs->S + c * Lp, L);
-        GETV(cs->Sc + c * Lp, L);
-        cs->xprev[c] = cs_getd(p); p += 8;
-        cs->x0[c] = cs_getd(p); p += 8;
+    int st = fc__cs_create((int)rule, order, step, (size_t)C, tol, horizon, &cs);
+    if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+    int bad = cs->L != L;
+#define SAMEV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++, p += 8) \
+        if (!bad && !cs_same((arr)[i_], cs_getd(p))) bad = 1; } while (0)
+    if (!bad) {
+        SAMEV(cs->q, L); SAMEV(cs->beta, L); SAMEV(cs->inj, L);
+        SAMEV(cs->cb, B);
+        SAMEV(&cs->c0, 1);
+        SAMEV(cs->ctab, B);
     }
-#undef GETV
-    int bad = cs->cb[B - 1] != 0.0;
-    for (size_t l = 0; l < L; l++)
-        if (rule == FC_RULE_TRAPEZOID ? !(cs->inj[l] > 0.0 && cs->inj[l] <= 2.0)
-                                      : cs->inj[l] != 1.0)
-            bad = 1;
-    if (rule != FC_RULE_TRAPEZOID)
-        for (size_t i = 0; i < B; i++)
-            if (cs->ctab[i] != 0.0) bad = 1;
+#undef SAMEV
     if (bad) {
         fc__cs_free(cs);
         return FC_ERR_FORMAT;
     }
-    cs->L = (size_t)L;
+#define GETV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { (arr)[i_] = cs_getd(p); p += 8; } } while (0)
+    for (size_t c = 0; c < C; c++) {
+        double *ring = cs->ring + c * 2 * B;
+        GETV(ring, B);
+        memcpy(ring + B, ring, B * sizeof(double));
+        GETV(cs->S + c * cs->Lp, L);
+        GETV(cs->Sc + c * cs->Lp, L);
+        cs->xprev[c] = cs_getd(p); p += 8;
+        cs->x0[c] = cs_getd(p); p += 8;
+    }
+#undef GETV
     cs->n = n;
-    cs->rule = (int)rule; cs->order = order; cs->step = step;
-    cs->tol = tol; cs->horizon = horizon;
-    cs->cum = cum;
-    cs->simd = cs_cpu_avx2();
+    if (!cs_state_ok(cs)) {
+        fc__cs_free(cs);
+        return FC_ERR_FORMAT;
+    }
     *out = cs;
     return FC_OK;
+}
+
+void fc__cs_params(const fc_cstream *cs, int *rule, double *order,
+                   double *step, size_t *channels, double *tol,
+                   double *horizon)
+{
+    *rule = cs->rule;
+    *order = cs->order;
+    *step = cs->step;
+    *channels = cs->C;
+    *tol = cs->tol;
+    *horizon = cs->horizon;
 }
