@@ -131,6 +131,7 @@
 #define CS_DENSE 10000          /* verified densely up to this lag */
 #define CS_PER_DECADE 64        /* then on a geometric grid */
 #define CS_FMT_VERSION 1u
+#define CS_MIN_ORDER 1e-280   /* smallest order offered (see fc__cs_create) */
 #define CS_PI 3.14159265358979323846
 
 struct fc_cstream {
@@ -638,7 +639,7 @@ static double cs_dtau(double p, double target)
 
 typedef struct {
     int rule, kind;
-    double a, p, K, Kcorr, tol, M;
+    double a, p, p1, K, Kcorr, tol, M;   /* p1 = p + 1, exact */
     /* verification grid and references */
     size_t ndense, ngeo;
     uint64_t mlo;              /* = B */
@@ -651,7 +652,7 @@ typedef struct {
 static int cs_build(const cs_ctx *cx, double X, size_t ng, double kappa,
                     double cB, double *q, double *w, double *wc, size_t *Lout)
 {
-    const double a = cx->a, p = cx->p, B = CS_BAND;
+    const double a = cx->a, p = cx->p, p1 = cx->p1, B = CS_BAND;
     const double dtau = cs_dtau(p, kappa * cx->tol);
     const double sL = X / cx->M;
     const double eta = 0.1;
@@ -661,7 +662,7 @@ static int cs_build(const cs_ctx *cx, double X, size_t ng, double kappa,
     /* trapezoid nodes s >= sL up to the right truncation */
     for (double j = jL;; j += 1.0) {
         double s = exp(j * dtau);
-        double W = dtau * pow(s, p + 1.0) * cs_phi(kind, a, s);
+        double W = dtau * pow(s, p1) * cs_phi(kind, a, s);
         if (s * B > 1.0 && W * exp(-s * B) < eta * cx->tol * cB) break;
         if (L + ng >= CS_MAX_TERMS) return FC_ERR_TOL;
         q[L] = -expm1(-s);
@@ -680,12 +681,12 @@ static int cs_build(const cs_ctx *cx, double X, size_t ng, double kappa,
         double xx = s / sL;
         if (xx < 1e-20) break;
         xs[i] = xx;
-        ws[i] = dtau * pow(s, p + 1.0) * cs_phi(kind, a, s);
+        ws[i] = dtau * pow(s, p1) * cs_phi(kind, a, s);
     }
     /* geometric remainder sum_{k>=0} W(s e^{-k dtau}), phi ~ phi(0) */
     s = exp(j * dtau);
     xs[i] = 0.0;
-    ws[i] = dtau * pow(s, p + 1.0) * cs_phi(kind, a, 0.0) / (-expm1(-(p + 1.0) * dtau));
+    ws[i] = dtau * pow(s, p1) * cs_phi(kind, a, 0.0) / (-expm1(-p1 * dtau));
     i++;
     double gx[CS_MAXG], gw[CS_MAXG];
     size_t n = cs_gauss_discrete(i, xs, ws, ng, wrk, gx, gw);
@@ -754,28 +755,42 @@ static double cs_verify(const cs_ctx *cx, size_t L, const double *q,
 }
 
 /*
- * RANGE. If every engine input so far has |u| <= U, then every state obeys
- * |S_l| <= (1/q_l + inj_l - 1) U <= 2 U / q_l (a geometric series; inj_l
- * <= 2 enters once), every output |y| <= U (sum_l 2 |beta_l| / q_l +
- * sum_j |cb_j| + |c0| + max_n |ctab_n|) (|x_0| <= U as x_0 = u_0 outside
- * L1, where ctab is 0), and every intermediate of cs_step is bounded by
- * the same sums (partial sums of the dot products, q S, d - q S). With
- * G = max(2 / q_min, that sum of weights, 1) and U = DBL_MAX / (4 G) all
- * of them stay below DBL_MAX / 2 with room for rounding (each bound is a
- * sum of at most 2 CS_MAX_TERMS + CS_BAND + 3 terms, whose rounded value
- * exceeds the exact one by a relative amount below 1e-13; the compensated
- * states track the exact recursion to far better than a factor 2).
- * Computed in a fixed order from the stored weights, so a rebuilt stream
- * gets the same bits.
+ * RANGE. Let U bound every engine input so far (|u| <= U: checked for
+ * each sample by cs_check_block). A state after n pushes is a geometric
+ * sum of at most n inputs, |S_l| <= U min(1/q_l, n) (times 1 + a few eps
+ * for rounding; the compensated state tracks the exact recursion, and the
+ * trapezoid's one injection has inj_l < 1), and the bound
+ *     |S_l| <= 2 U min(1/q_l, n)                                  (*)
+ * is kept by every push (from n to n + 1: (1 - q) 2U min(1/q, n) + U <=
+ * 2U min(1/q, n + 1)). The count is below 2^53 (cs_check_block), so with
+ * m_l = min(1/q_l, 2^53): every |S_l| <= 2 U m_l, every output and every
+ * partial sum of cs_step is at most U (sum_l 2 |beta_l| m_l + sum_j |cb_j|
+ * + |c0| + max_n |ctab_n|) (|x_0| <= U as x_0 = u_0 outside L1, where
+ * ctab is 0), and q S, d - q S, the padding lanes (q = 1/2) at most 4 U.
+ * With G = max(that sum of weights, 2 max_l m_l, 4) and U = DBL_MAX / (4 G)
+ * everything stays below DBL_MAX / 4 before rounding, and the rounded sums
+ * (at most 2 CS_MAX_TERMS + CS_BAND + 3 terms) exceed that by a relative
+ * 1e-13 at most: no overflow, so finite inputs give finite states and
+ * outputs. Computed in a fixed order from the stored weights, so a rebuilt
+ * stream gets the same bits. Since sum_l beta_l m_l is within a factor
+ * 1/(1 - 1/e) of sum_{m < 2^53} of the realised kernel, for step 1 this
+ * U is above 1e290 for every rule and order offered (about 1.4e291 at
+ * worst: G is then at most about 3.2 * 2^53).
  */
+static double cs_cap(double q)
+{
+    double r = 1.0 / q, cap = (double)FC_INDEX_LIMIT;
+    return r < cap ? r : cap;
+}
+
 static double cs_umax(const fc_cstream *cs)
 {
     const size_t B = CS_BAND;
-    double gs = 1.0, go = fabs(cs->c0), cmax = 0.0;
+    double gs = 4.0, go = fabs(cs->c0), cmax = 0.0;
     for (size_t l = 0; l < cs->L; l++) {
-        double r = 2.0 / cs->q[l];
-        if (r > gs) gs = r;
-        go += 2.0 * fabs(cs->beta[l]) / cs->q[l];
+        double m = cs_cap(cs->q[l]);
+        if (2.0 * m > gs) gs = 2.0 * m;
+        go += 2.0 * fabs(cs->beta[l]) * m;
     }
     for (size_t j = 0; j < B; j++) {
         go += fabs(cs->cb[j]);
@@ -827,6 +842,10 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
        then runs on the running sum X of x (CONSTRUCTION, 1 <= a < 2) */
     const int cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
     if (!(order > 0.0 && order < 1.0) && !(cum && order < 2.0)) return FC_ERR_ORDER;
+    /* below CS_MIN_ORDER the kernel beyond lag 0 (of size a / m) is
+       subnormal at lags near 2^53 and cannot be held to a relative
+       tolerance */
+    if (order < CS_MIN_ORDER) return FC_ERR_ORDER;
     if (channels == 0) return FC_ERR_ARG;
     if (!(tol >= 1e-15 && tol <= 1e-2) || !isfinite(tol)) return FC_ERR_TOL;
     if (!(horizon >= 1.0) || !isfinite(horizon) ||
@@ -844,13 +863,17 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
     cx.M = (double)M;
     cx.mlo = B;
     double spa = cs_sinpi(a) / CS_PI;
-    if (cum) { cx.kind = K_RCUM; cx.p = 1.0 - a; cx.K = -spa * pow(step, a); }
+    /* p1 = p + 1 is formed exactly (1 - a, 2 - a exact by Sterbenz's lemma
+       for 1/2 <= a <= 2; a + 1 rounds once): p1 is the exponent of s in the
+       weights, and p + 1.0 with p = a - 1 would carry an absolute error of
+       eps, a relative error eps / a for the L1 rule at small a */
+    if (cum) { cx.kind = K_RCUM; cx.p = 1.0 - a; cx.p1 = 2.0 - a; cx.K = -spa * pow(step, a); }
     else switch (rule) {
-    case FC_RULE_RECTANGLE: cx.kind = K_RECT; cx.p = -a; cx.K = spa * pow(step, a); break;
-    case FC_RULE_TRAPEZOID: cx.kind = K_TRAP; cx.p = -a; cx.K = spa * pow(step, a);
+    case FC_RULE_RECTANGLE: cx.kind = K_RECT; cx.p = -a; cx.p1 = 1.0 - a; cx.K = spa * pow(step, a); break;
+    case FC_RULE_TRAPEZOID: cx.kind = K_TRAP; cx.p = -a; cx.p1 = 1.0 - a; cx.K = spa * pow(step, a);
         cx.Kcorr = -spa * pow(step, a); break;
-    case FC_RULE_GRUNWALD: cx.kind = K_GRUN; cx.p = a; cx.K = -spa * pow(step, -a); break;
-    default: cx.kind = K_L1; cx.p = a - 1.0; cx.K = spa * pow(step, -a); break;
+    case FC_RULE_GRUNWALD: cx.kind = K_GRUN; cx.p = a; cx.p1 = a + 1.0; cx.K = -spa * pow(step, -a); break;
+    default: cx.kind = K_L1; cx.p = a - 1.0; cx.p1 = a; cx.K = spa * pow(step, -a); break;
     }
     /* (a = 1 in cum mode: K = sin(pi) = 0, and no terms are built) */
     if (!isfinite(cx.K) || (cx.K == 0.0 && !(cum && a == 1.0))) return FC_ERR_STEP;
@@ -1135,7 +1158,8 @@ static int cs_dd_ok(double hi, double lo)
  * The running state of a loaded stream against what cs_step can produce
  * (every invariant below follows from cs_step and cs_check_block):
  *  - every ring value (an engine input u) has |u| <= umax; every state
- *    |S_l| <= 2 umax / q_l (RANGE), and (S_l, Sc_l) is a TwoSum pair;
+ *    obeys (*) of RANGE, |S_l| <= 2 umax min(1/q_l, n), and (S_l, Sc_l)
+ *    is a TwoSum pair;
  *  - while n < B the ring slots n .. B-1 have never been written (+0);
  *    the terms receive ring slot n mod B at step n, so S = Sc = +0 while
  *    n <= B (L1: n <= B + 1, since u_0 = 0);
@@ -1162,7 +1186,10 @@ static int cs_state_ok(const fc_cstream *cs)
         }
         const int quiet = n <= B || (cs->rule == FC_RULE_L1 && n <= B + 1);
         for (size_t l = 0; l < L; l++) {
-            if (!(fabs(S[l]) * cs->q[l] <= 2.0 * U)) return 0;
+            /* (*) of RANGE (n >= 1 here unless S = 0 is required anyway) */
+            double mn = cs_cap(cs->q[l]);
+            if ((double)n < mn) mn = (double)n;
+            if (!(fabs(S[l]) <= 2.0 * U * mn)) return 0;
             if (!cs_dd_ok(S[l], Sc[l])) return 0;
             if (quiet && !(cs_zero_bits(S[l]) && cs_zero_bits(Sc[l]))) return 0;
         }
