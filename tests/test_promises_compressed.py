@@ -649,3 +649,18 @@ def test_loaded_stream_refuses_by_default():
     assert c_push(u, x[:30])[0] == lib.FC_OK
     st, v = c_load(c_save(u))
     assert st == lib.FC_OK and c_remaining(v) == 81 - 30 and c_policy(v) == 0
+
+
+def test_count_limit_two_to_the_53():
+    # A consistent state with count 2^53 - 1 loads (the same ring slot holds
+    # the last sample: count changed by a multiple of the band); the next
+    # push would reach 2^53, the loader's bound, and is refused with
+    # FC_ERR_SIZE even with FC_HORIZON_CONTINUE, changing nothing.
+    _, blob = saved(GRUN, 0.5, 1, 2**53 % BAND + BAND - 1)
+    forged = reseal(put(blob, HDR + 32, "Q", 2**53 - 1))
+    st, t = c_load(forged)
+    assert st == lib.FC_OK and c_count(t) == 2**53 - 1
+    assert lib.fc_stream_set_horizon_policy(t, lib.FC_HORIZON_CONTINUE) == lib.FC_OK
+    st, y = c_push(t, np.ones((1, 1)))
+    assert st == lib.FC_ERR_SIZE and np.all(y == 12345.0)
+    assert c_save(t) == forged
