@@ -866,8 +866,44 @@ static double cs_sinpi(double a)
     return -sin(CS_PI * (2.0 - a));
 }
 
-int fc__cs_create(int rule, double order, double step, size_t channels,
-                  double tol, double horizon, fc_cstream **out)
+/*
+ * The exponent p of the density, p1 = p + 1 and the constants K, Kcorr.
+ * exact = 0: as in format version 1, K from sin(CS_PI * a) and p1 = p + 1.0,
+ * which lose digits as a approaches 1 (relative error of sin about
+ * eps / |1 - a|) and, for L1, as a approaches 0 (p + 1.0 with p = a - 1
+ * has an absolute error of eps, a relative one of eps / a), so that the
+ * check at creation fails there. exact = 1: sin(pi a) after an exact
+ * argument reduction (cs_sinpi), and p1 formed exactly (1 - a and 2 - a
+ * exact by Sterbenz's lemma for 1/2 <= a <= 2; a + 1 rounds once).
+ * Creation tries exact = 0 first, so that every stream the version-1 code
+ * could build gets the same bits (and its saved blobs still load), and
+ * exact = 1 only when no candidate passes.
+ */
+static void cs_constants(cs_ctx *cx, int rule, int cum, double a, double step,
+                         int exact)
+{
+    double spa = (exact ? cs_sinpi(a) : sin(CS_PI * a)) / CS_PI;
+    if (cum) {
+        cx->kind = K_RCUM; cx->p = 1.0 - a; cx->K = -spa * pow(step, a);
+        cx->p1 = exact ? 2.0 - a : cx->p + 1.0;
+        return;
+    }
+    switch (rule) {
+    case FC_RULE_RECTANGLE: cx->kind = K_RECT; cx->p = -a; cx->K = spa * pow(step, a); break;
+    case FC_RULE_TRAPEZOID: cx->kind = K_TRAP; cx->p = -a; cx->K = spa * pow(step, a);
+        cx->Kcorr = -spa * pow(step, a); break;
+    case FC_RULE_GRUNWALD: cx->kind = K_GRUN; cx->p = a; cx->K = -spa * pow(step, -a); break;
+    default: cx->kind = K_L1; cx->p = a - 1.0; cx->K = spa * pow(step, -a); break;
+    }
+    cx->p1 = cx->p + 1.0;
+    if (exact) cx->p1 = rule == FC_RULE_L1 ? a : rule == FC_RULE_GRUNWALD ? a + 1.0 : 1.0 - a;
+}
+
+/* loading = 1: the rebuild of fc__cs_load, which also accepts orders
+   below CS_MIN_ORDER (version-1 code could build some of them at short
+   horizons, and their saved blobs must still load). */
+static int cs_create(int rule, double order, double step, size_t channels,
+                     double tol, double horizon, int loading, fc_cstream **out)
 {
     int st;
     if (!out) return FC_ERR_NULL;
@@ -879,7 +915,7 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
     /* below CS_MIN_ORDER the kernel beyond lag 0 (of size a / m) is
        subnormal at lags near 2^53 and cannot be held to a relative
        tolerance */
-    if (order < CS_MIN_ORDER) return FC_ERR_ORDER;
+    if (order < CS_MIN_ORDER && !loading) return FC_ERR_ORDER;
     if (channels == 0) return FC_ERR_ARG;
     if (!(tol >= 1e-15 && tol <= 1e-2) || !isfinite(tol)) return FC_ERR_TOL;
     if (!(horizon >= 1.0) || !isfinite(horizon) ||
@@ -896,21 +932,11 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
     cx.tol = tol;
     cx.M = (double)M;
     cx.mlo = B;
-    double spa = cs_sinpi(a) / CS_PI;
-    /* p1 = p + 1 is formed exactly (1 - a, 2 - a exact by Sterbenz's lemma
-       for 1/2 <= a <= 2; a + 1 rounds once): p1 is the exponent of s in the
-       weights, and p + 1.0 with p = a - 1 would carry an absolute error of
-       eps, a relative error eps / a for the L1 rule at small a */
-    if (cum) { cx.kind = K_RCUM; cx.p = 1.0 - a; cx.p1 = 2.0 - a; cx.K = -spa * pow(step, a); }
-    else switch (rule) {
-    case FC_RULE_RECTANGLE: cx.kind = K_RECT; cx.p = -a; cx.p1 = 1.0 - a; cx.K = spa * pow(step, a); break;
-    case FC_RULE_TRAPEZOID: cx.kind = K_TRAP; cx.p = -a; cx.p1 = 1.0 - a; cx.K = spa * pow(step, a);
-        cx.Kcorr = -spa * pow(step, a); break;
-    case FC_RULE_GRUNWALD: cx.kind = K_GRUN; cx.p = a; cx.p1 = a + 1.0; cx.K = -spa * pow(step, -a); break;
-    default: cx.kind = K_L1; cx.p = a - 1.0; cx.p1 = a; cx.K = spa * pow(step, -a); break;
-    }
-    /* (a = 1 in cum mode: K = sin(pi) = 0, and no terms are built) */
-    if (!isfinite(cx.K) || (cx.K == 0.0 && !(cum && a == 1.0))) return FC_ERR_STEP;
+    /* version-1 constants first (the blobs saved so far were built with
+       them and must rebuild to the same bits); the exact ones only if no
+       candidate passes with those (cs_constants) */
+    cs_constants(&cx, rule, cum, a, step, 0);
+    if (!isfinite(cx.K) || cx.K == 0.0) return FC_ERR_STEP;
 
     /* band weights and the trapezoid start table */
     double cband[CS_BAND], ctab[CS_BAND];
@@ -979,7 +1005,6 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
         cx.cref = cref;
         cx.corrref = corrref;
 
-        double cB = fabs(cref[0] / cx.K);
         double *qb = tmp + 2 * ntot, *wb = qb + CS_MAX_TERMS, *ijb = wb + CS_MAX_TERMS;
         double *qc = ijb + CS_MAX_TERMS, *wcand = qc + CS_MAX_TERMS, *wccand = wcand + CS_MAX_TERMS;
         double *ijc = wccand + CS_MAX_TERMS;
@@ -989,32 +1014,39 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
         };
         const double thresh = 0.6 * tol + 16.0 * 2.220446049250313e-16;
         int found = 0;
-        for (size_t ci = 0; ci < sizeof cand / sizeof cand[0]; ci++) {
-            if (found && ci >= 2) break;    /* the fallbacks only if needed */
-            size_t Lc;
-            int bs = cs_build(&cx, cand[ci].X, (size_t)cand[ci].ng, cand[ci].kappa,
-                              cB, qc, wcand, wccand, &Lc);
-            if (bs == FC_ERR_NOMEM) { st = bs; goto fail; }
-            if (bs != FC_OK) continue;
-            if (found && Lc >= Lbest) continue;
-            for (size_t l = 0; l < Lc; l++) ijc[l] = 1.0;
-            double e = cs_verify(&cx, Lc, qc, wcand, cref, P, P + 2 * CS_MAX_TERMS);
-            if (e <= thresh && rule == FC_RULE_TRAPEZOID) {
-                /* the correction actually realised: beta (inj - 1), inj rounded */
-                for (size_t l = 0; l < Lc; l++) {
-                    ijc[l] = 1.0 + wccand[l] / wcand[l];
-                    wccand[l] = (double)((long double)wcand[l] * ((long double)ijc[l] - 1.0L));
-                    if (!(ijc[l] > 0.0 && ijc[l] <= 2.0)) e = HUGE_VAL;
-                }
-                if (e <= thresh)
-                    e = cs_verify(&cx, Lc, qc, wccand, corrref, P, P + 2 * CS_MAX_TERMS);
+        for (int pass = 0; pass < 2 && !found; pass++) {
+            if (pass == 1) {
+                cs_constants(&cx, rule, cum, a, step, 1);
+                if (!isfinite(cx.K) || cx.K == 0.0) break;
             }
-            if (!(e <= thresh)) continue;
-            memcpy(qb, qc, Lc * sizeof(double));
-            memcpy(wb, wcand, Lc * sizeof(double));
-            memcpy(ijb, ijc, Lc * sizeof(double));
-            Lbest = Lc;
-            found = 1;
+            const double cB = fabs(cref[0] / cx.K);
+            for (size_t ci = 0; ci < sizeof cand / sizeof cand[0]; ci++) {
+                if (found && ci >= 2) break;    /* the fallbacks only if needed */
+                size_t Lc;
+                int bs = cs_build(&cx, cand[ci].X, (size_t)cand[ci].ng, cand[ci].kappa,
+                                  cB, qc, wcand, wccand, &Lc);
+                if (bs == FC_ERR_NOMEM) { st = bs; goto fail; }
+                if (bs != FC_OK) continue;
+                if (found && Lc >= Lbest) continue;
+                for (size_t l = 0; l < Lc; l++) ijc[l] = 1.0;
+                double e = cs_verify(&cx, Lc, qc, wcand, cref, P, P + 2 * CS_MAX_TERMS);
+                if (e <= thresh && rule == FC_RULE_TRAPEZOID) {
+                    /* the correction actually realised: beta (inj - 1), inj rounded */
+                    for (size_t l = 0; l < Lc; l++) {
+                        ijc[l] = 1.0 + wccand[l] / wcand[l];
+                        wccand[l] = (double)((long double)wcand[l] * ((long double)ijc[l] - 1.0L));
+                        if (!(ijc[l] > 0.0 && ijc[l] <= 2.0)) e = HUGE_VAL;
+                    }
+                    if (e <= thresh)
+                        e = cs_verify(&cx, Lc, qc, wccand, corrref, P, P + 2 * CS_MAX_TERMS);
+                }
+                if (!(e <= thresh)) continue;
+                memcpy(qb, qc, Lc * sizeof(double));
+                memcpy(wb, wcand, Lc * sizeof(double));
+                memcpy(ijb, ijc, Lc * sizeof(double));
+                Lbest = Lc;
+                found = 1;
+            }
         }
         if (!found) { st = FC_ERR_TOL; goto fail; }
         L = Lbest;
@@ -1048,6 +1080,12 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
 fail:
     free(tmp); free(mgeo); free(P);
     return st;
+}
+
+int fc__cs_create(int rule, double order, double step, size_t channels,
+                  double tol, double horizon, fc_cstream **out)
+{
+    return cs_create(rule, order, step, channels, tol, horizon, 0, out);
 }
 
 /* ------------------------------------------------------------ save/load */
@@ -1282,7 +1320,7 @@ int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
         if (!isfinite(cs_getd(p + 8 * i))) return FC_ERR_FORMAT;
 
     fc_cstream *cs;
-    int st = fc__cs_create((int)rule, order, step, (size_t)C, tol, horizon, &cs);
+    int st = cs_create((int)rule, order, step, (size_t)C, tol, horizon, 1, &cs);
     if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
     int bad = cs->L != L;
 #define SAMEV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++, p += 8) \
