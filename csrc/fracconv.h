@@ -198,7 +198,7 @@ typedef struct fc_stream fc_stream;
  * form (u = x; L1: u_k = x_k - x_{k-1}, u_0 = 0; corr_n x_0 only for the
  * trapezoid rule). 64 eps is the rounding allowance (16 eps in the check
  * made at creation, the rest the arithmetic of a push; measured: below
- * 13 eps); at tol = 1e-15 it dominates. Nothing is promised past the
+ * 11 eps); at tol = 1e-15 it dominates. Nothing is promised past the
  * horizon (fc_stream_set_horizon_policy). Creation returns FC_ERR_TOL if
  * no construction passes its check: seen only for FC_RULE_GRUNWALD with
  * tol < 2e-15 and horizon > 1e14.
