@@ -18,22 +18,60 @@
  * measured relative error is at most 0.6 tol + 16 eps at every checked lag
  * (the margin 0.6 covers the ripple of the error between grid points, whose
  * period is about 0.3 in log m, i.e. more than 8 grid points). Hence for
- * n <= horizon
+ * n <= floor(horizon), with eps = 2^-52,
  *
- *     |y_n - y_n(exact)| <= tol * ( sum_k |c_{n-k} u_k| + |corr_n x_0| )
+ *     |y_n - y_n(exact)| <= (tol + 64 eps) ( sum_k |c_{n-k} u_k| + |corr_n x_0| )
  *
- * plus rounding (about eps times the same sum: each state is kept as an
+ * where y_n(exact) is the lagged sum with the library's weights in exact
+ * arithmetic. The rounding allowance 64 eps is the sum of: 16 eps from the
+ * creation check (the 16 eps also absorbs the check's own long double
+ * arithmetic, below 3 eps); the dot product of the L <= 200 states in 8
+ * fma lanes of at most 25 terms and a 3-level reduction, at most 28 eps of
+ * sum_l |beta_l S_l| (Higham, Accuracy and Stability of Numerical
+ * Algorithms, 2nd ed., SIAM 2002, sec. 3.1: gamma_k for a sum of depth k);
+ * the band, 16 lanes of 4 terms, a pairwise step and a 3-level reduction,
+ * 8 eps; the final three additions, 3 eps; the states (each kept as an
  * unevaluated sum S + Sc, updated as S + ((d - q S) + Sc) with an exact
- * TwoSum (Knuth, TAOCP vol. 2, sec. 4.2.2; see cs_terms_portable), so a
- * state that integrates 10^8 samples does not lose digits; the product q Sc
- * is dropped, an error of at most one rounding of S over the memory 1/q of
- * the term). Beyond the horizon there is no guarantee (lags beyond it are
- * not represented accurately). For tol below about 1e-14 the check itself
- * is limited by the accuracy of the reference weights (the 16 eps term).
+ * TwoSum, Knuth, TAOCP vol. 2, sec. 4.2.2, see cs_terms_portable; the
+ * product q Sc is dropped, at most one rounding of S over the memory 1/q of
+ * the term), 2 eps; the rounding of u (L1 differences, the running sum X)
+ * and of the stored weights beta and cb, 2 eps; in all 59 eps, stated as 64.
+ * Measured (tests/test_promises_compressed.py, tol 1e-15, spikes, positive
+ * and alternating data, every rule): at most 10.2 eps beyond tol, i.e. an
+ * error of 3.25 tol at tol = 1e-15, and at most 0.44 tol for every
+ * tol >= 1e-14. At tol = 1e-15 the allowance dominates: the promise there
+ * is about 15 tol.
+ * Beyond the horizon there is no guarantee (lags beyond it are not
+ * represented accurately).
  *
- * If a block holds finite samples so large (|x| near 1e308) that a state
- * overflows, the outputs are not finite; the caller's finiteness check does
- * not catch that case.
+ * Creation finds no verified construction (FC_ERR_TOL) only at the extreme
+ * corner tol < 2e-15 with horizon > 1e14, and there only for the Grunwald
+ * rule (measured over 30 orders per rule at tol 1e-15 .. 1e-14 and horizons
+ * 1e12 .. 9e15). Orders below CS_MIN_ORDER = 1e-280 are refused with
+ * FC_ERR_ORDER: the kernel beyond lag 0 is of size a/m and would be
+ * subnormal at the largest horizons. Orders near the integers (a near 1
+ * from either side, a near 2, L1 with a near 0) need no special path, but
+ * where the constants of format version 1 (sin(CS_PI * a), p + 1.0) lose
+ * too many digits for the check (relative errors of eps / |1 - a| and, for
+ * L1, eps / a) creation retries with the constants computed exactly
+ * (cs_constants); the version-1 constants are tried first so that the
+ * streams the earlier code could build, and their saved blobs, are
+ * unchanged.
+ *
+ * RANGE (see cs_umax for the derivation). Finite samples never give a NaN
+ * or an infinity: each stream has a bound umax on the engine inputs u (x;
+ * L1: x_n - x_{n-1}; rectangle with a >= 1: the running sum X), fixed at
+ * creation, below which every state, partial sum and output is finite; a
+ * push or preview with some |u| > umax is refused with FC_ERR_RANGE before
+ * anything is written (cs_check_block, which also refuses a count reaching
+ * 2^53 with FC_ERR_SIZE). For step 1, umax >= 1e290 for every rule, order,
+ * tol and horizon offered (measured: 2.49e291 at the largest horizons, up
+ * to 1.7e308 at short ones).
+ *
+ * LOAD. A saved payload is untrusted: fc__cs_load rebuilds the stream from
+ * its parameters (one creation) and requires the stored weights bit for
+ * bit, then takes only the running state, checked against the invariants
+ * of cs_step (cs_state_ok).
  *
  * CONSTRUCTION. For 0 < a < 1 each kernel is a Laplace transform with a
  * sign-definite density, c_m = K int_0^inf s^p phi(s) e^{-s m} ds:
@@ -115,6 +153,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <math.h>
+#include <float.h>
 #include "internal.h"
 
 #if (defined(__GNUC__) || defined(__clang__)) && \
@@ -130,6 +169,7 @@
 #define CS_DENSE 10000          /* verified densely up to this lag */
 #define CS_PER_DECADE 64        /* then on a geometric grid */
 #define CS_FMT_VERSION 1u
+#define CS_MIN_ORDER 1e-280   /* smallest order offered (see fc__cs_create) */
 #define CS_PI 3.14159265358979323846
 
 struct fc_cstream {
@@ -150,6 +190,7 @@ struct fc_cstream {
     double *ring;             /* C * 2B, mirrored ring of u */
     double *S, *Sc;           /* C * Lp, compensated states */
     double *xprev, *x0;       /* C */
+    double umax;              /* largest accepted |u| (RANGE) */
     void *mem;
     size_t memsize;
 };
@@ -278,6 +319,20 @@ static double cs_band(const fc_cstream *cs, const double *w)
     return cs_band_portable(cs->cb, w);
 }
 
+/* X <- X + x in double-double (hi, lo): two exact TwoSums (Knuth, TAOCP
+   vol. 2, sec. 4.2.2), the result renormalised so that |lo| <= ulp(hi)/2. */
+static inline void cs_dd_add(double *hi, double *lo, double x)
+{
+    double h = *hi, l = *lo;
+    double s = h + x, z = s - h;
+    double e = (h - (s - z)) + (x - z);
+    double t = l + e;
+    double H = s + t;
+    z = H - s;
+    *lo = (s - (H - z)) + (t - z);
+    *hi = H;
+}
+
 /*
  * One time step for all channels. mode 0: push (commit), 1: preview,
  * 2: history (u_n and, at n = 0, x_0 taken as unknown = 0).
@@ -302,14 +357,10 @@ static void cs_step(fc_cstream *cs, const double *x, double *y, int mode)
         if (cs->rule == FC_RULE_L1) u = (n == 0 || mode == 2) ? 0.0 : xc - cs->xprev[c];
         else if (cs->cum) {
             /* X_n = X_{n-1} + x_n in double-double (xprev = high part,
-               x0 = low part): two exact TwoSums (Knuth), u = X_n rounded */
-            double hi = cs->xprev[c], lo = cs->x0[c];
-            double s = hi + xc, z = s - hi;
-            double e = (hi - (s - z)) + (xc - z);
-            double t = lo + e;
-            Xhi = s + t;
-            z = Xhi - s;
-            Xlo = (s - (Xhi - z)) + (t - z);
+               x0 = low part), u = X_n rounded */
+            Xhi = cs->xprev[c];
+            Xlo = cs->x0[c];
+            cs_dd_add(&Xhi, &Xlo, xc);
             u = Xhi;
         } else u = xc;
         double *ring = cs->ring + c * 2 * B;
@@ -339,9 +390,37 @@ static void cs_step(fc_cstream *cs, const double *x, double *y, int mode)
     if (commit) cs->n = n + 1;
 }
 
+/*
+ * RANGE. FC_OK if pushing the count time steps x (finite) keeps every
+ * engine input u (x; L1: x_n - x_{n-1}; rectangle with a >= 1: the running
+ * sum X) within umax, else FC_ERR_RANGE; also FC_ERR_SIZE if the count
+ * would reach 2^53 (the loader's bound). Writes nothing: the running sums
+ * and the differences are recomputed with the very operations of cs_step.
+ */
+static int cs_check_block(const fc_cstream *cs, const double *x, size_t count)
+{
+    const size_t C = cs->C;
+    const double U = cs->umax;
+    if ((uint64_t)count > FC_INDEX_LIMIT - 1 - cs->n) return FC_ERR_SIZE;
+    for (size_t c = 0; c < C; c++) {
+        double hi = cs->xprev[c], lo = cs->x0[c];
+        uint64_t n = cs->n;
+        for (size_t t = 0; t < count; t++, n++) {
+            double xc = x[t * C + c], u;
+            if (cs->rule == FC_RULE_L1) { u = n == 0 ? 0.0 : xc - hi; hi = xc; }
+            else if (cs->cum) { cs_dd_add(&hi, &lo, xc); u = hi; }
+            else u = xc;
+            if (!(fabs(u) <= U)) return FC_ERR_RANGE;
+        }
+    }
+    return FC_OK;
+}
+
 int fc__cs_push_block(fc_cstream *cs, const double *x, size_t count, double *y)
 {
+    int st;
     if (!cs || (count && (!x || !y))) return FC_ERR_NULL;
+    if ((st = cs_check_block(cs, x, count)) != FC_OK) return st;
     for (size_t t = 0; t < count; t++)
         cs_step(cs, x + t * cs->C, y + t * cs->C, 0);
     return FC_OK;
@@ -349,7 +428,9 @@ int fc__cs_push_block(fc_cstream *cs, const double *x, size_t count, double *y)
 
 int fc__cs_preview(const fc_cstream *cs, const double *x, double *y)
 {
+    int st;
     if (!cs || !x || !y) return FC_ERR_NULL;
+    if ((st = cs_check_block(cs, x, 1)) != FC_OK) return st;
     cs_step((fc_cstream *)cs, x, y, 1);   /* mode 1 writes nothing */
     return FC_OK;
 }
@@ -596,7 +677,7 @@ static double cs_dtau(double p, double target)
 
 typedef struct {
     int rule, kind;
-    double a, p, K, Kcorr, tol, M;
+    double a, p, p1, K, Kcorr, tol, M;   /* p1 = p + 1, exact */
     /* verification grid and references */
     size_t ndense, ngeo;
     uint64_t mlo;              /* = B */
@@ -609,7 +690,7 @@ typedef struct {
 static int cs_build(const cs_ctx *cx, double X, size_t ng, double kappa,
                     double cB, double *q, double *w, double *wc, size_t *Lout)
 {
-    const double a = cx->a, p = cx->p, B = CS_BAND;
+    const double a = cx->a, p = cx->p, p1 = cx->p1, B = CS_BAND;
     const double dtau = cs_dtau(p, kappa * cx->tol);
     const double sL = X / cx->M;
     const double eta = 0.1;
@@ -619,7 +700,7 @@ static int cs_build(const cs_ctx *cx, double X, size_t ng, double kappa,
     /* trapezoid nodes s >= sL up to the right truncation */
     for (double j = jL;; j += 1.0) {
         double s = exp(j * dtau);
-        double W = dtau * pow(s, p + 1.0) * cs_phi(kind, a, s);
+        double W = dtau * pow(s, p1) * cs_phi(kind, a, s);
         if (s * B > 1.0 && W * exp(-s * B) < eta * cx->tol * cB) break;
         if (L + ng >= CS_MAX_TERMS) return FC_ERR_TOL;
         q[L] = -expm1(-s);
@@ -638,12 +719,12 @@ static int cs_build(const cs_ctx *cx, double X, size_t ng, double kappa,
         double xx = s / sL;
         if (xx < 1e-20) break;
         xs[i] = xx;
-        ws[i] = dtau * pow(s, p + 1.0) * cs_phi(kind, a, s);
+        ws[i] = dtau * pow(s, p1) * cs_phi(kind, a, s);
     }
     /* geometric remainder sum_{k>=0} W(s e^{-k dtau}), phi ~ phi(0) */
     s = exp(j * dtau);
     xs[i] = 0.0;
-    ws[i] = dtau * pow(s, p + 1.0) * cs_phi(kind, a, 0.0) / (-expm1(-(p + 1.0) * dtau));
+    ws[i] = dtau * pow(s, p1) * cs_phi(kind, a, 0.0) / (-expm1(-p1 * dtau));
     i++;
     double gx[CS_MAXG], gw[CS_MAXG];
     size_t n = cs_gauss_discrete(i, xs, ws, ng, wrk, gx, gw);
@@ -711,6 +792,54 @@ static double cs_verify(const cs_ctx *cx, size_t L, const double *q,
     return worst;
 }
 
+/*
+ * RANGE. Let U bound every engine input so far (|u| <= U: checked for
+ * each sample by cs_check_block). A state after n pushes is a geometric
+ * sum of at most n inputs, |S_l| <= U min(1/q_l, n) (times 1 + a few eps
+ * for rounding; the compensated state tracks the exact recursion, and the
+ * trapezoid's one injection has inj_l < 1), and the bound
+ *     |S_l| <= 2 U min(1/q_l, n)                                  (*)
+ * is kept by every push (from n to n + 1: (1 - q) 2U min(1/q, n) + U <=
+ * 2U min(1/q, n + 1)). The count is below 2^53 (cs_check_block), so with
+ * m_l = min(1/q_l, 2^53): every |S_l| <= 2 U m_l, every output and every
+ * partial sum of cs_step is at most U (sum_l 2 |beta_l| m_l + sum_j |cb_j|
+ * + |c0| + max_n |ctab_n|) (|x_0| <= U as x_0 = u_0 outside L1, where
+ * ctab is 0), and q S, d - q S, the padding lanes (q = 1/2) at most 4 U.
+ * With G = max(that sum of weights, 2 max_l m_l, 4) and U = DBL_MAX / (4 G)
+ * everything stays below DBL_MAX / 4 before rounding, and the rounded sums
+ * (at most 2 CS_MAX_TERMS + CS_BAND + 3 terms) exceed that by a relative
+ * 1e-13 at most: no overflow, so finite inputs give finite states and
+ * outputs. Computed in a fixed order from the stored weights, so a rebuilt
+ * stream gets the same bits. Since sum_l beta_l m_l is within a factor
+ * 1/(1 - 1/e) of sum_{m < 2^53} of the realised kernel, for step 1 this
+ * U is above 1e290 for every rule and order offered (about 1.4e291 at
+ * worst: G is then at most about 3.2 * 2^53).
+ */
+static double cs_cap(double q)
+{
+    double r = 1.0 / q, cap = (double)FC_INDEX_LIMIT;
+    return r < cap ? r : cap;
+}
+
+static double cs_umax(const fc_cstream *cs)
+{
+    const size_t B = CS_BAND;
+    double gs = 4.0, go = fabs(cs->c0), cmax = 0.0;
+    for (size_t l = 0; l < cs->L; l++) {
+        double m = cs_cap(cs->q[l]);
+        if (2.0 * m > gs) gs = 2.0 * m;
+        go += 2.0 * fabs(cs->beta[l]) * m;
+    }
+    for (size_t j = 0; j < B; j++) {
+        go += fabs(cs->cb[j]);
+        if (fabs(cs->ctab[j]) > cmax) cmax = fabs(cs->ctab[j]);
+    }
+    go += cmax;
+    double g = go > gs ? go : gs;
+    if (!(g <= 1e300)) return 0.0;      /* not reached for accepted steps */
+    return 0.25 * (DBL_MAX / g);
+}
+
 /* The parts of a new stream common to both shapes: the band (reversed for
    the dot product, lag 0 apart), the trapezoid table, the parameters. */
 static void cs_finish(fc_cstream *cs, const double *cband, const double *ctab,
@@ -726,11 +855,59 @@ static void cs_finish(fc_cstream *cs, const double *cband, const double *ctab,
     cs->tol = tol; cs->horizon = horizon;
     cs->cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
     cs->simd = cs_cpu_avx2();
+    cs->umax = cs_umax(cs);
     fc__cs_reset(cs);
 }
 
-int fc__cs_create(int rule, double order, double step, size_t channels,
-                  double tol, double horizon, fc_cstream **out)
+/* sin(pi a) for 0 < a < 2 with full relative accuracy: the argument is
+   reduced exactly first (1 - a and 2 - a are exact by Sterbenz's lemma),
+   so that a near 1 does not lose digits to the rounding of pi a (the
+   relative error of sin(CS_PI * a) is about eps / |1 - a|). */
+static double cs_sinpi(double a)
+{
+    if (a <= 0.5) return sin(CS_PI * a);
+    if (a <= 1.5) return sin(CS_PI * (1.0 - a));
+    return -sin(CS_PI * (2.0 - a));
+}
+
+/*
+ * The exponent p of the density, p1 = p + 1 and the constants K, Kcorr.
+ * exact = 0: as in format version 1, K from sin(CS_PI * a) and p1 = p + 1.0,
+ * which lose digits as a approaches 1 (relative error of sin about
+ * eps / |1 - a|) and, for L1, as a approaches 0 (p + 1.0 with p = a - 1
+ * has an absolute error of eps, a relative one of eps / a), so that the
+ * check at creation fails there. exact = 1: sin(pi a) after an exact
+ * argument reduction (cs_sinpi), and p1 formed exactly (1 - a and 2 - a
+ * exact by Sterbenz's lemma for 1/2 <= a <= 2; a + 1 rounds once).
+ * Creation tries exact = 0 first, so that every stream the version-1 code
+ * could build gets the same bits (and its saved blobs still load), and
+ * exact = 1 only when no candidate passes.
+ */
+static void cs_constants(cs_ctx *cx, int rule, int cum, double a, double step,
+                         int exact)
+{
+    double spa = (exact ? cs_sinpi(a) : sin(CS_PI * a)) / CS_PI;
+    if (cum) {
+        cx->kind = K_RCUM; cx->p = 1.0 - a; cx->K = -spa * pow(step, a);
+        cx->p1 = exact ? 2.0 - a : cx->p + 1.0;
+        return;
+    }
+    switch (rule) {
+    case FC_RULE_RECTANGLE: cx->kind = K_RECT; cx->p = -a; cx->K = spa * pow(step, a); break;
+    case FC_RULE_TRAPEZOID: cx->kind = K_TRAP; cx->p = -a; cx->K = spa * pow(step, a);
+        cx->Kcorr = -spa * pow(step, a); break;
+    case FC_RULE_GRUNWALD: cx->kind = K_GRUN; cx->p = a; cx->K = -spa * pow(step, -a); break;
+    default: cx->kind = K_L1; cx->p = a - 1.0; cx->K = spa * pow(step, -a); break;
+    }
+    cx->p1 = cx->p + 1.0;
+    if (exact) cx->p1 = rule == FC_RULE_L1 ? a : rule == FC_RULE_GRUNWALD ? a + 1.0 : 1.0 - a;
+}
+
+/* loading = 1: the rebuild of fc__cs_load, which also accepts orders
+   below CS_MIN_ORDER (version-1 code could build some of them at short
+   horizons, and their saved blobs must still load). */
+static int cs_create(int rule, double order, double step, size_t channels,
+                     double tol, double horizon, int loading, fc_cstream **out)
 {
     int st;
     if (!out) return FC_ERR_NULL;
@@ -739,6 +916,10 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
        then runs on the running sum X of x (CONSTRUCTION, 1 <= a < 2) */
     const int cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
     if (!(order > 0.0 && order < 1.0) && !(cum && order < 2.0)) return FC_ERR_ORDER;
+    /* below CS_MIN_ORDER the kernel beyond lag 0 (of size a / m) is
+       subnormal at lags near 2^53 and cannot be held to a relative
+       tolerance */
+    if (order < CS_MIN_ORDER && !loading) return FC_ERR_ORDER;
     if (channels == 0) return FC_ERR_ARG;
     if (!(tol >= 1e-15 && tol <= 1e-2) || !isfinite(tol)) return FC_ERR_TOL;
     if (!(horizon >= 1.0) || !isfinite(horizon) ||
@@ -755,15 +936,10 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
     cx.tol = tol;
     cx.M = (double)M;
     cx.mlo = B;
-    double spa = sin(CS_PI * a) / CS_PI;
-    if (cum) { cx.kind = K_RCUM; cx.p = 1.0 - a; cx.K = -spa * pow(step, a); }
-    else switch (rule) {
-    case FC_RULE_RECTANGLE: cx.kind = K_RECT; cx.p = -a; cx.K = spa * pow(step, a); break;
-    case FC_RULE_TRAPEZOID: cx.kind = K_TRAP; cx.p = -a; cx.K = spa * pow(step, a);
-        cx.Kcorr = -spa * pow(step, a); break;
-    case FC_RULE_GRUNWALD: cx.kind = K_GRUN; cx.p = a; cx.K = -spa * pow(step, -a); break;
-    default: cx.kind = K_L1; cx.p = a - 1.0; cx.K = spa * pow(step, -a); break;
-    }
+    /* version-1 constants first (the blobs saved so far were built with
+       them and must rebuild to the same bits); the exact ones only if no
+       candidate passes with those (cs_constants) */
+    cs_constants(&cx, rule, cum, a, step, 0);
     if (!isfinite(cx.K) || cx.K == 0.0) return FC_ERR_STEP;
 
     /* band weights and the trapezoid start table */
@@ -833,7 +1009,6 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
         cx.cref = cref;
         cx.corrref = corrref;
 
-        double cB = fabs(cref[0] / cx.K);
         double *qb = tmp + 2 * ntot, *wb = qb + CS_MAX_TERMS, *ijb = wb + CS_MAX_TERMS;
         double *qc = ijb + CS_MAX_TERMS, *wcand = qc + CS_MAX_TERMS, *wccand = wcand + CS_MAX_TERMS;
         double *ijc = wccand + CS_MAX_TERMS;
@@ -843,32 +1018,39 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
         };
         const double thresh = 0.6 * tol + 16.0 * 2.220446049250313e-16;
         int found = 0;
-        for (size_t ci = 0; ci < sizeof cand / sizeof cand[0]; ci++) {
-            if (found && ci >= 2) break;    /* the fallbacks only if needed */
-            size_t Lc;
-            int bs = cs_build(&cx, cand[ci].X, (size_t)cand[ci].ng, cand[ci].kappa,
-                              cB, qc, wcand, wccand, &Lc);
-            if (bs == FC_ERR_NOMEM) { st = bs; goto fail; }
-            if (bs != FC_OK) continue;
-            if (found && Lc >= Lbest) continue;
-            for (size_t l = 0; l < Lc; l++) ijc[l] = 1.0;
-            double e = cs_verify(&cx, Lc, qc, wcand, cref, P, P + 2 * CS_MAX_TERMS);
-            if (e <= thresh && rule == FC_RULE_TRAPEZOID) {
-                /* the correction actually realised: beta (inj - 1), inj rounded */
-                for (size_t l = 0; l < Lc; l++) {
-                    ijc[l] = 1.0 + wccand[l] / wcand[l];
-                    wccand[l] = (double)((long double)wcand[l] * ((long double)ijc[l] - 1.0L));
-                    if (!(ijc[l] > 0.0 && ijc[l] <= 2.0)) e = HUGE_VAL;
-                }
-                if (e <= thresh)
-                    e = cs_verify(&cx, Lc, qc, wccand, corrref, P, P + 2 * CS_MAX_TERMS);
+        for (int pass = 0; pass < 2 && !found; pass++) {
+            if (pass == 1) {
+                cs_constants(&cx, rule, cum, a, step, 1);
+                if (!isfinite(cx.K) || cx.K == 0.0) break;
             }
-            if (!(e <= thresh)) continue;
-            memcpy(qb, qc, Lc * sizeof(double));
-            memcpy(wb, wcand, Lc * sizeof(double));
-            memcpy(ijb, ijc, Lc * sizeof(double));
-            Lbest = Lc;
-            found = 1;
+            const double cB = fabs(cref[0] / cx.K);
+            for (size_t ci = 0; ci < sizeof cand / sizeof cand[0]; ci++) {
+                if (found && ci >= 2) break;    /* the fallbacks only if needed */
+                size_t Lc;
+                int bs = cs_build(&cx, cand[ci].X, (size_t)cand[ci].ng, cand[ci].kappa,
+                                  cB, qc, wcand, wccand, &Lc);
+                if (bs == FC_ERR_NOMEM) { st = bs; goto fail; }
+                if (bs != FC_OK) continue;
+                if (found && Lc >= Lbest) continue;
+                for (size_t l = 0; l < Lc; l++) ijc[l] = 1.0;
+                double e = cs_verify(&cx, Lc, qc, wcand, cref, P, P + 2 * CS_MAX_TERMS);
+                if (e <= thresh && rule == FC_RULE_TRAPEZOID) {
+                    /* the correction actually realised: beta (inj - 1), inj rounded */
+                    for (size_t l = 0; l < Lc; l++) {
+                        ijc[l] = 1.0 + wccand[l] / wcand[l];
+                        wccand[l] = (double)((long double)wcand[l] * ((long double)ijc[l] - 1.0L));
+                        if (!(ijc[l] > 0.0 && ijc[l] <= 2.0)) e = HUGE_VAL;
+                    }
+                    if (e <= thresh)
+                        e = cs_verify(&cx, Lc, qc, wccand, corrref, P, P + 2 * CS_MAX_TERMS);
+                }
+                if (!(e <= thresh)) continue;
+                memcpy(qb, qc, Lc * sizeof(double));
+                memcpy(wb, wcand, Lc * sizeof(double));
+                memcpy(ijb, ijc, Lc * sizeof(double));
+                Lbest = Lc;
+                found = 1;
+            }
         }
         if (!found) { st = FC_ERR_TOL; goto fail; }
         L = Lbest;
@@ -902,6 +1084,12 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
 fail:
     free(tmp); free(mgeo); free(P);
     return st;
+}
+
+int fc__cs_create(int rule, double order, double step, size_t channels,
+                  double tol, double horizon, fc_cstream **out)
+{
+    return cs_create(rule, order, step, channels, tol, horizon, 0, out);
 }
 
 /* ------------------------------------------------------------ save/load */
@@ -1025,6 +1213,93 @@ int fc__cs_save(const fc_cstream *cs, unsigned char *buf, size_t size)
     return FC_OK;
 }
 
+/* Bit-for-bit equality of two doubles (distinguishes -0 from +0). */
+static int cs_same(double a, double b)
+{
+    return memcmp(&a, &b, sizeof a) == 0;
+}
+static int cs_zero_bits(double a) { return cs_same(a, 0.0); }
+
+/* (hi, lo) is what an exact TwoSum leaves: |lo| <= ulp(hi)/2, lo = 0 when
+   hi = 0 (a sum that rounds to zero or to a subnormal is exact). */
+static int cs_dd_ok(double hi, double lo)
+{
+    int e;
+    if (hi == 0.0) return lo == 0.0;
+    (void)frexp(hi, &e);                /* |hi| in [2^(e-1), 2^e) */
+    return fabs(lo) <= ldexp(1.0, e - 54);
+}
+
+/*
+ * The running state of a loaded stream against what cs_step can produce
+ * (every invariant below follows from cs_step and cs_check_block):
+ *  - every ring value (an engine input u) has |u| <= umax; every state
+ *    obeys (*) of RANGE, |S_l| <= 2 umax min(1/q_l, n), and (S_l, Sc_l)
+ *    is a TwoSum pair;
+ *  - while n < B the ring slots n .. B-1 have never been written (+0);
+ *    the terms receive ring slot n mod B at step n, so S = Sc = +0 while
+ *    n <= B (L1: n <= B + 1, since u_0 = 0);
+ *  - n = 0: xprev = x0 = +0;
+ *  - n >= 1: outside L1, ring slot (n-1) mod B holds u_{n-1}, which is
+ *    xprev (the last sample, or for a >= 1 the high part of X); L1: slot 0
+ *    holds u_0 = +0 while n <= B, and xprev = x0 = x_0 when n = 1;
+ *  - rectangle a >= 1 (cum): (xprev, x0) is the double-double X;
+ *    otherwise x0 = x_0, which is ring slot 0 while n <= B, and |x_0| <=
+ *    umax outside L1 (x_0 = u_0).
+ */
+static int cs_state_ok(const fc_cstream *cs)
+{
+    const size_t B = CS_BAND, L = cs->L;
+    const uint64_t n = cs->n;
+    const double U = cs->umax;
+    for (size_t c = 0; c < cs->C; c++) {
+        const double *ring = cs->ring + c * 2 * B;
+        const double *S = cs->S + c * cs->Lp, *Sc = cs->Sc + c * cs->Lp;
+        const double xp = cs->xprev[c], x0 = cs->x0[c];
+        for (size_t j = 0; j < B; j++) {
+            if (!(fabs(ring[j]) <= U)) return 0;
+            if (n < B && j >= n && !cs_zero_bits(ring[j])) return 0;
+        }
+        const int quiet = n <= B || (cs->rule == FC_RULE_L1 && n <= B + 1);
+        for (size_t l = 0; l < L; l++) {
+            /* (*) of RANGE (n >= 1 here unless S = 0 is required anyway) */
+            double mn = cs_cap(cs->q[l]);
+            if ((double)n < mn) mn = (double)n;
+            if (!(fabs(S[l]) <= 2.0 * U * mn)) return 0;
+            if (!cs_dd_ok(S[l], Sc[l])) return 0;
+            if (quiet && !(cs_zero_bits(S[l]) && cs_zero_bits(Sc[l]))) return 0;
+        }
+        if (n == 0) {
+            if (!cs_zero_bits(xp) || !cs_zero_bits(x0)) return 0;
+            continue;
+        }
+        if (cs->rule == FC_RULE_L1) {
+            if (n <= B && !cs_zero_bits(ring[0])) return 0;
+            if (n == 1 && !cs_same(xp, x0)) return 0;
+        } else {
+            if (!cs_same(xp, ring[(n - 1) % B])) return 0;
+            if (cs->cum) {
+                if (!cs_dd_ok(xp, x0)) return 0;
+            } else {
+                if (!(fabs(x0) <= U)) return 0;
+                if (n <= B && !cs_same(x0, ring[0])) return 0;
+            }
+        }
+    }
+    return 1;
+}
+
+/*
+ * The payload is untrusted. Sizes: the channel count and the term count
+ * must give exactly the payload size (so nothing larger than the blob is
+ * ever allocated), and the checksum must match. Parameters: the stream is
+ * rebuilt by fc__cs_create from (rule, order, step, channels, tol,
+ * horizon) -- the construction is deterministic -- and the stored q, beta,
+ * inj, band, c0 and ctab must equal the rebuilt ones bit for bit. Only the
+ * running state (ring, S, Sc, xprev, x0, n) is then taken from the blob,
+ * and it must pass cs_state_ok. Anything else is FC_ERR_FORMAT (FC_ERR_NOMEM
+ * if the rebuild runs out of memory). Cost: one creation.
+ */
 int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
 {
     if (!buf || !out) return FC_ERR_NULL;
@@ -1038,65 +1313,61 @@ int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
     double order = cs_getd(buf + 40), step = cs_getd(buf + 48);
     double tol = cs_getd(buf + 56), horizon = cs_getd(buf + 64);
     if (C == 0 || L > CS_MAX_TERMS) return FC_ERR_FORMAT;
-    if (C > ((size_t)-1) / 4096) return FC_ERR_FORMAT;
-    size_t need = cs_size_for(C, L);
+    size_t need = cs_size_for(C, L);   /* 0 on overflow */
     if (need == 0 || need != size) return FC_ERR_FORMAT;
     if (cs_get64(buf + size - 8) != cs_fnv(buf, size - 8)) return FC_ERR_FORMAT;
-    const int cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
-    if (fc__check_rule((int)rule, order, step) != FC_OK ||
-        !(order < 1.0 || (cum && order < 2.0)))
-        return FC_ERR_FORMAT;
-    if (!(tol >= 1e-15 && tol <= 1e-2) || !(horizon >= 1.0) || !isfinite(horizon) ||
-        horizon > (double)(FC_INDEX_LIMIT - 2))
-        return FC_ERR_FORMAT;
-    if ((horizon >= (double)B && !(cum && order == 1.0)) != (L > 0)) return FC_ERR_FORMAT;
-    /* every double must be finite; q in (0, 1) */
+    if (n >= FC_INDEX_LIMIT) return FC_ERR_FORMAT;
     const unsigned char *p = buf + CS_HDR;
     size_t nd;
     if (cs_ndoubles(C, L, &nd)) return FC_ERR_FORMAT;
-    for (size_t i = 0; i < nd; i++) {
-        double v = cs_getd(p + 8 * i);
-        if (!isfinite(v)) return FC_ERR_FORMAT;
-        if (i < L && !(v > 0.0 && v < 1.0)) return FC_ERR_FORMAT;
-    }
-    size_t Lp = (size_t)((L + 7) / 8 * 8);
-    if (Lp == 0) Lp = 8;
+    for (size_t i = 0; i < nd; i++)
+        if (!isfinite(cs_getd(p + 8 * i))) return FC_ERR_FORMAT;
+
     fc_cstream *cs;
-    int st = cs_alloc((size_t)C, Lp, &cs);
-    if (st != FC_OK) return st == FC_ERR_SIZE ? FC_ERR_FORMAT : st;
-#define GETV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { (arr)[i_] = cs_getd(p); p += 8; } } while (0)
-    GETV(cs->q, L); GETV(cs->beta, L); GETV(cs->inj, L);
-    GETV(cs->cb, B);
-    cs->c0 = cs_getd(p); p += 8;
-    GETV(cs->ctab, B);
-    for (size_t c = 0; c < C; c++) {
-        double *ring = cs->ring + c * 2 * B;
-        GETV(ring, B);
-        memcpy(ring + B, ring, B * sizeof(double));
-        GETV(cs->S + c * Lp, L);
-        GETV(cs->Sc + c * Lp, L);
-        cs->xprev[c] = cs_getd(p); p += 8;
-        cs->x0[c] = cs_getd(p); p += 8;
+    int st = cs_create((int)rule, order, step, (size_t)C, tol, horizon, 1, &cs);
+    if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+    int bad = cs->L != L;
+#define SAMEV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++, p += 8) \
+        if (!bad && !cs_same((arr)[i_], cs_getd(p))) bad = 1; } while (0)
+    if (!bad) {
+        SAMEV(cs->q, L); SAMEV(cs->beta, L); SAMEV(cs->inj, L);
+        SAMEV(cs->cb, B);
+        SAMEV(&cs->c0, 1);
+        SAMEV(cs->ctab, B);
     }
-#undef GETV
-    int bad = cs->cb[B - 1] != 0.0;
-    for (size_t l = 0; l < L; l++)
-        if (rule == FC_RULE_TRAPEZOID ? !(cs->inj[l] > 0.0 && cs->inj[l] <= 2.0)
-                                      : cs->inj[l] != 1.0)
-            bad = 1;
-    if (rule != FC_RULE_TRAPEZOID)
-        for (size_t i = 0; i < B; i++)
-            if (cs->ctab[i] != 0.0) bad = 1;
+#undef SAMEV
     if (bad) {
         fc__cs_free(cs);
         return FC_ERR_FORMAT;
     }
-    cs->L = (size_t)L;
+#define GETV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { (arr)[i_] = cs_getd(p); p += 8; } } while (0)
+    for (size_t c = 0; c < C; c++) {
+        double *ring = cs->ring + c * 2 * B;
+        GETV(ring, B);
+        memcpy(ring + B, ring, B * sizeof(double));
+        GETV(cs->S + c * cs->Lp, L);
+        GETV(cs->Sc + c * cs->Lp, L);
+        cs->xprev[c] = cs_getd(p); p += 8;
+        cs->x0[c] = cs_getd(p); p += 8;
+    }
+#undef GETV
     cs->n = n;
-    cs->rule = (int)rule; cs->order = order; cs->step = step;
-    cs->tol = tol; cs->horizon = horizon;
-    cs->cum = cum;
-    cs->simd = cs_cpu_avx2();
+    if (!cs_state_ok(cs)) {
+        fc__cs_free(cs);
+        return FC_ERR_FORMAT;
+    }
     *out = cs;
     return FC_OK;
+}
+
+void fc__cs_params(const fc_cstream *cs, int *rule, double *order,
+                   double *step, size_t *channels, double *tol,
+                   double *horizon)
+{
+    *rule = cs->rule;
+    *order = cs->order;
+    *step = cs->step;
+    *channels = cs->C;
+    *tol = cs->tol;
+    *horizon = cs->horizon;
 }

@@ -187,9 +187,36 @@ typedef struct fc_stream fc_stream;
 
 /*
  * A stream for a rule. channels >= 1. mode: FC_MODE_EXACT (tol and horizon
- * ignored) or FC_MODE_COMPRESSED: tol in [1e-15, 1e-2], horizon >= 1 (the
- * number of samples the tolerance is guaranteed for), 0 < order < 1 for
- * every rule and also 1 <= order < 2 for FC_RULE_RECTANGLE.
+ * ignored) or FC_MODE_COMPRESSED, which takes
+ *   tol in [1e-15, 1e-2] and 1 <= horizon <= 2^53 - 2, finite (else
+ *   FC_ERR_TOL); 1e-280 <= order < 1 for every rule, and also
+ *   1 <= order < 2 for FC_RULE_RECTANGLE (else FC_ERR_ORDER).
+ * Compressed-mode promise: for every output n <= floor(horizon),
+ *   |y_n - y_n(exact)| <= (tol + 64 eps) (sum_k |c_{n-k} u_k| + |corr_n x_0|)
+ * with eps = 2^-52, y_n(exact) element n of fc_apply in exact arithmetic
+ * with the library's weights (fc_weights), and c, u, corr its lagged-sum
+ * form (u = x; L1: u_k = x_k - x_{k-1}, u_0 = 0; corr_n x_0 only for the
+ * trapezoid rule). 64 eps is the rounding allowance (16 eps in the check
+ * made at creation, the rest the arithmetic of a push; measured: below
+ * 11 eps); at tol = 1e-15 it dominates. Nothing is promised past the
+ * horizon (fc_stream_set_horizon_policy). Creation returns FC_ERR_TOL if
+ * no construction passes its check: seen only for FC_RULE_GRUNWALD with
+ * tol < 2e-15 and horizon > 1e14.
+ * Range: finite samples never give NaN or inf. A compressed push or preview
+ * is refused with FC_ERR_RANGE (nothing changes) if an engine input |u|
+ * (x; L1: x_n - x_{n-1}; RECTANGLE with order >= 1: the running sum
+ * x_0 + ... + x_n) would exceed the stream's bound U = DBL_MAX / (4 G),
+ * where G = max(sum_l 2 |beta_l| m_l + sum_{j<64} |c_j| + max_n |corr_n|,
+ * 2 max_l m_l, 4), m_l = min(1/q_l, 2^53), from the stream's exponential
+ * terms beta_l (1 - q_l)^m (csrc/compressed.c, RANGE). With step = 1,
+ * U >= 1e290 for every accepted rule, order, tol and horizon (about
+ * 2.5e291 at worst; larger for short horizons). A compressed stream also
+ * refuses (FC_ERR_SIZE) a push that would bring its count to 2^53.
+ * fc_stream_load of a compressed stream rebuilds it from its parameters
+ * (the cost of one creation) and returns FC_ERR_FORMAT unless the stored
+ * weights equal the rebuilt ones bit for bit, the two headers agree, and
+ * the running state is one that pushes could have produced; a loaded
+ * stream then behaves exactly like the one that saved it.
  */
 int fc_stream_create(int rule, double order, double step, size_t channels,
                      int mode, double tol, double horizon, fc_stream **out);

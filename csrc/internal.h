@@ -82,5 +82,10 @@ size_t fc__cs_terms(const fc_cstream *cs);
 size_t fc__cs_save_size(const fc_cstream *cs);
 int fc__cs_save(const fc_cstream *cs, unsigned char *buf, size_t size);
 int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out);
+/* The defining parameters of a compressed stream (for the loader's
+   cross-check of the outer header). */
+void fc__cs_params(const fc_cstream *cs, int *rule, double *order,
+                   double *step, size_t *channels, double *tol,
+                   double *horizon);
 
 #endif

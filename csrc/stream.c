@@ -1147,6 +1147,23 @@ static int finite_le(const unsigned char *p, size_t count)
     return 1;
 }
 
+/* Compressed mode: every field the outer header shares with the payload
+   (rule, order, step, channels, tol, horizon) must agree bit for bit, so
+   that the getters and the push's channel count describe the engine that
+   was rebuilt (the payload is validated by fc__cs_load). */
+static int cs_header_matches(const fc_stream *s)
+{
+    int rule;
+    double order, step, tol, horizon;
+    size_t C;
+    fc__cs_params(s->cs, &rule, &order, &step, &C, &tol, &horizon);
+    return rule == s->rule && C == s->C &&
+           memcmp(&order, &s->order, sizeof order) == 0 &&
+           memcmp(&step, &s->step, sizeof step) == 0 &&
+           memcmp(&tol, &s->tol, sizeof tol) == 0 &&
+           memcmp(&horizon, &s->horizon, sizeof horizon) == 0;
+}
+
 int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out)
 {
     int st;
@@ -1191,6 +1208,10 @@ int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out)
             s->cs = NULL;
             stream_free_parts(s);
             return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+        }
+        if (!cs_header_matches(s)) {
+            stream_free_parts(s);
+            return FC_ERR_FORMAT;
         }
         *out = s;
         return FC_OK;
