@@ -201,7 +201,10 @@ void fc_stream_free(fc_stream *s);
 
 /* Push one time step: x[channels] in, y[channels] out. Exact mode: y may
    be x itself (in place: every sample is read before its output is
-   written); any other overlap of x and y is refused with FC_ERR_ARG. */
+   written); any other overlap of x and y is refused with FC_ERR_ARG. An
+   output beyond the double range (exact mode: possible only when the sum of
+   the magnitudes of its terms nearly is) refuses the push with
+   FC_ERR_RANGE; for a block, the whole block, and y is left untouched. */
 int fc_stream_push(fc_stream *s, const double *x, double *y);
 /* Push count time steps: x[count*channels] in, y[count*channels] out; in
    place as for fc_stream_push (y == x, or no overlap: FC_ERR_ARG). */
@@ -215,7 +218,8 @@ int fc_stream_preview(fc_stream *s, const double *x, double *y);
    kernels (w0 = kernel[0]), y = history for RECTANGLE (w0 = 0),
    y = history + w0 * (x - previous x) for L1, y = history + w0 * x for
    TRAPEZOID past the first sample; the first output of TRAPEZOID and L1
-   is 0 whatever x (and so is their history). h[channels]. */
+   is 0 whatever x (and so is their history). h[channels]. Exact mode:
+   FC_ERR_RANGE (h untouched) if the history is beyond the double range. */
 int fc_stream_history(fc_stream *s, double *h);
 /* Forget all samples (keeps the kernel, the reserved capacity). */
 int fc_stream_reset(fc_stream *s);

@@ -58,6 +58,7 @@
 #include <string.h>
 #include <math.h>
 #include <stdatomic.h>
+#include <limits.h>
 #include "internal.h"
 
 #define FC_S_BLOCK0 64          /* block size of level 0 */
@@ -88,9 +89,11 @@ typedef struct {
     size_t nseg;           /* kernel segments (<= segs), = ring length */
     size_t made;           /* segments with spectrum and ring slot allocated */
     fc_fft_plan *plan;     /* FFT of size 2s */
+    int kexp[FC_S_SEGS_MAX];  /* kspec[p] is 2^-kexp[p] times the true one */
     double *kspec[FC_S_SEGS_MAX]; /* 2s+2: spectrum of c[base+p*s, base+(p+1)*s)/(2s) */
-    double *xspec[FC_S_SEGS_MAX]; /* ring slot: C spectra (2s+2 each) of block
-                                     f, slot f % nseg */
+    double *xspec[FC_S_SEGS_MAX]; /* ring slot: C spectra of block f, slot
+                                     f % nseg, each 2s+2 doubles, its
+                                     exponent and a zero flag */
 } fc__level;
 
 struct fc_stream {
@@ -123,6 +126,7 @@ struct fc_stream {
     uint64_t prep_n;        /* capacity is ready for this many samples */
     double *xprev;          /* C: previous sample (L1) */
     double *x0;             /* C: first sample (trapezoid) */
+    double *tmp;            /* 4C: a step's outputs and u; saved xprev, x0 */
     double *work;           /* 4*smax + 2 doubles */
     size_t wcap;            /* smax the work buffer serves */
     double corr[FC_S_CORR]; /* trapezoid corr_n cache, n in chunk*CORR + i */
@@ -281,50 +285,140 @@ static void level_free(fc__level *L)
     L->made = 0;
 }
 
+/*
+ * Scaling by powers of two (exact). A block of samples or a kernel segment
+ * whose largest magnitude lies outside [2^-400, 2^400]
+ * is scaled to a largest magnitude in [1/2, 1) before its FFT, its exponent
+ * kept beside its spectrum; a frame with any scaled operand sums its
+ * products at the scale of its largest one and scales the inverse FFT back.
+ * Elsewhere (all data of ordinary size) nothing is scaled, so the results
+ * are those of the unscaled arithmetic bit for bit; with it, no spectrum or
+ * product overflows for finite samples, and an output overflows only when
+ * the sum of the magnitudes of its terms nearly does.
+ */
+#define FC_S_XSLOT(n2) ((n2) + 4) /* spectrum, exponent, zero flag */
+
+static int scale_exponent(const double *v, size_t n, int *zero)
+{
+    double mx = 0.0;
+    int e = 0;
+    for (size_t i = 0; i < n; i++) {
+        double a = fabs(v[i]);
+        if (a > mx) mx = a;
+    }
+    *zero = mx == 0.0;
+    if (mx != 0.0 && !(mx >= 0x1p-400 && mx <= 0x1p400)) (void)frexp(mx, &e);
+    return e;
+}
+
+static int log2_size(size_t n)
+{
+    int k = 0;
+    while (((size_t)1 << k) < n) k++;
+    return k;
+}
+
 /* Spectrum of kernel segment p of level L into L->kspec[p]; tmp: 2s. */
 static int segment_spectrum(const fc_stream *s, fc__level *L, size_t p,
                             double *tmp)
 {
     size_t sz = L->s, n2 = 2 * sz;
+    int zero;
     int st = kernel_values(s, L->base + (uint64_t)p * sz, sz, tmp);
     if (st != FC_OK) return st;
-    double scale = 1.0 / (double)n2; /* a power of two: exact */
-    for (size_t i = 0; i < sz; i++) tmp[i] *= scale;
+    int e = scale_exponent(tmp, sz, &zero);
+    if (e == 0) {
+        double scale = 1.0 / (double)n2; /* a power of two: exact */
+        for (size_t i = 0; i < sz; i++) tmp[i] *= scale;
+        L->kexp[p] = 0;
+    } else {
+        for (size_t i = 0; i < sz; i++) tmp[i] = ldexp(tmp[i], -e);
+        L->kexp[p] = e - log2_size(n2);
+    }
     memset(tmp + sz, 0, sz * sizeof(double));
     fc__fft_forward(L->plan, tmp, L->kspec[p]);
     return FC_OK;
 }
 
-/* Spectra of input block f of every channel into its ring slot. */
+/* Spectra of input block f of every channel into its ring slot, each with
+   its exponent at [n2+2] and a zero-block flag at [n2+3]. */
 static void block_spectra(fc_stream *s, fc__level *L, uint64_t f)
 {
     size_t sz = L->s, n2 = 2 * sz;
     double *t = s->work, *X = L->xspec[f % L->nseg];
-    for (size_t c = 0; c < s->C; c++, X += n2 + 2) {
+    for (size_t c = 0; c < s->C; c++, X += FC_S_XSLOT(n2)) {
+        int zero;
         memcpy(t, urow(s, c) + f * sz, sz * sizeof(double));
+        int e = scale_exponent(t, sz, &zero);
+        if (e != 0)
+            for (size_t i = 0; i < sz; i++) t[i] = ldexp(t[i], -e);
         memset(t + sz, 0, sz * sizeof(double));
         fc__fft_forward(L->plan, t, X);
+        X[n2 + 2] = (double)e;
+        X[n2 + 3] = zero ? 1.0 : 0.0;
     }
 }
 
+/* Y = sum_p 2^(d_p - E) X_p K_p over the nonzero blocks, E = max d_p: the
+   frame at the scale of its largest product (d_p = block exponent + kernel
+   exponent); returns E. */
+static int scaled_dot(size_t n2, const double *const *xp, const fc__level *L,
+                      size_t np, double *Y)
+{
+    int E = INT_MIN;
+    for (size_t p = 0; p < np; p++) {
+        if (xp[p][n2 + 3] != 0.0) continue;
+        int d = (int)xp[p][n2 + 2] + L->kexp[p];
+        if (d > E) E = d;
+    }
+    memset(Y, 0, (n2 + 2) * sizeof(double));
+    if (E == INT_MIN) return 0;
+    for (size_t p = 0; p < np; p++) {
+        const double *X = xp[p], *K = L->kspec[p];
+        if (X[n2 + 3] != 0.0) continue;
+        int sh = (int)X[n2 + 2] + L->kexp[p] - E;
+        if (sh < -1074) continue; /* below 2^-1074 of the largest product */
+        double g = ldexp(1.0, sh);
+        for (size_t k = 0; k < n2 + 2; k += 2) {
+            double xr = X[k] * g, xi = X[k + 1] * g;
+            Y[k] += xr * K[k] - xi * K[k + 1];
+            Y[k + 1] += xr * K[k + 1] + xi * K[k];
+        }
+    }
+    return E;
+}
+
 /* Frame f of level j: new block spectrum, sum_p X_{f-p} K_p, one inverse
-   FFT, added to outputs f*s + base ... f*s + base + 2s - 2. */
-static void level_frame(fc_stream *s, size_t j, uint64_t f)
+   FFT, added to outputs f*s + base ... f*s + base + 2s - 2 (only those >= lo:
+   lo > 0 when a refused block is undone, see ex_rollback). */
+static void level_frame(fc_stream *s, size_t j, uint64_t f, uint64_t lo)
 {
     fc__level *L = &s->lev[j];
     size_t sz = L->s, n2 = 2 * sz, R = L->nseg;
     size_t np = f + 1 < R ? (size_t)f + 1 : R;
     double *t = s->work, *Y = t + n2;
     uint64_t o = f * sz + L->base;
+    size_t i0 = lo > o ? (size_t)(lo - o) : 0;
     block_spectra(s, L, f);
     const double *xp[FC_S_SEGS_MAX];
     for (size_t c = 0; c < s->C; c++) {
-        size_t off = c * (n2 + 2);
-        for (size_t p = 0; p < np; p++) xp[p] = L->xspec[(f - p) % R] + off;
-        fc__spec_dot(n2, xp, (const double *const *)L->kspec, np, Y);
-        fc__fft_inverse(L->plan, Y, t);
+        size_t off = c * FC_S_XSLOT(n2);
+        int scaled = 0;
+        for (size_t p = 0; p < np; p++) {
+            xp[p] = L->xspec[(f - p) % R] + off;
+            if ((xp[p][n2 + 2] != 0.0 || L->kexp[p] != 0) && xp[p][n2 + 3] == 0.0)
+                scaled = 1;
+        }
         double *a = arow(s, c) + (o - s->abase);
-        for (size_t i = 0; i + 1 < n2; i++) a[i] += t[i];
+        if (!scaled) {
+            fc__spec_dot(n2, xp, (const double *const *)L->kspec, np, Y);
+            fc__fft_inverse(L->plan, Y, t);
+            for (size_t i = i0; i + 1 < n2; i++) a[i] += t[i];
+        } else {
+            int E = scaled_dot(n2, xp, L, np, Y);
+            fc__fft_inverse(L->plan, Y, t);
+            for (size_t i = i0; i + 1 < n2; i++) a[i] += ldexp(t[i], E);
+        }
     }
     if (o + n2 - 1 > s->acc_hi) s->acc_hi = o + n2 - 1;
 }
@@ -471,7 +565,7 @@ static int ex_prepare(fc_stream *s, uint64_t n_end, int exact)
             p = nl[j].made;
             if (j >= s->nlev) st = fc__fft_create(n2, &nl[j].plan);
             if (st == FC_OK &&
-                (fc__add_size(n2, 2, &xb) || fc__mul_size(xb, C, &xb) ||
+                (fc__add_size(n2, 4, &xb) || fc__mul_size(xb, C, &xb) ||
                  fc__mul_size(xb, sizeof(double), &xb)))
                 st = FC_ERR_SIZE;
             for (p = nl[j].made; st == FC_OK && p < nd.made[j]; p++) {
@@ -573,24 +667,74 @@ static int ex_step(fc_stream *s, const double *x, double *y)
     int l1 = s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_L1;
     int first = s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID &&
                 n == 0;
+    /* every output first: one that is not representable refuses the step
+       before anything changes */
+    double *yt = s->tmp, *ut = s->tmp + C;
+    for (size_t c = 0; c < C; c++) {
+        yt[c] = ex_y(s, c, x[c], corr, &ut[c]);
+        if (!isfinite(yt[c]) || !isfinite(ut[c])) return FC_ERR_RANGE;
+    }
     /* channel c reads x[c] before y[c] is written: y may be x (in place) */
     for (size_t c = 0; c < C; c++) {
-        double u, xc = x[c];
-        double yc = ex_y(s, c, xc, corr, &u);
-        urow(s, c)[n] = u;
-        if (l1) s->xprev[c] = xc;
-        else if (first) s->x0[c] = xc;
-        y[c] = yc;
+        urow(s, c)[n] = ut[c];
+        if (l1) s->xprev[c] = x[c];
+        else if (first) s->x0[c] = x[c];
+        y[c] = yt[c];
     }
     s->n = ++n;
     if (n % FC_S_BLOCK0 == 0) {
         for (size_t j = 0; j < s->nlev; j++) {
             const fc__level *L = &s->lev[j];
             if (n % L->s || n < L->delay) break; /* the same for larger j */
-            level_frame(s, j, (n - L->delay) / L->s);
+            level_frame(s, j, (n - L->delay) / L->s, 0);
         }
     }
     return FC_OK;
+}
+
+/*
+ * Undo the steps of a refused block back to count n0 (accumulator reach hi0;
+ * previous/first samples saved in tmp[2C..4C)): the accumulator from n0 on
+ * is cleared and the frames done at counts <= n0 that reach outputs >= n0
+ * are done again in their order (adding only to those outputs), after the
+ * ring of block spectra is recomputed for them: the state is that of count
+ * n0 bit for bit.
+ */
+static void ex_rollback(fc_stream *s, uint64_t n0, uint64_t hi0)
+{
+    size_t C = s->C;
+    uint64_t ff[FC_S_MAXLEV], mlo = n0 + 1;
+    for (size_t c = 0; c < C; c++)
+        memset(arow(s, c) + (n0 - s->abase), 0,
+               (s->acap - (size_t)(n0 - s->abase)) * sizeof(double));
+    for (size_t j = 0; j < s->nlev; j++) {
+        fc__level *L = &s->lev[j];
+        ff[j] = UINT64_MAX;
+        if (n0 < L->delay) continue;
+        uint64_t fl = (n0 - L->delay) / L->s;
+        uint64_t reach = L->base + 2 * (uint64_t)L->s - 2; /* last output - f s */
+        uint64_t first = n0 > reach ? (n0 - reach + L->s - 1) / L->s : 0;
+        uint64_t fr = first < fl + 1 ? first : fl + 1;
+        for (uint64_t f = fr + 1 > L->nseg ? fr + 1 - L->nseg : 0; f < fr; f++)
+            block_spectra(s, L, f);
+        if (first <= fl) {
+            ff[j] = first;
+            uint64_t m = first * L->s + L->delay;
+            if (m < mlo) mlo = m;
+        }
+    }
+    for (uint64_t m = mlo; m <= n0; m += FC_S_BLOCK0) {
+        for (size_t j = 0; j < s->nlev; j++) {
+            const fc__level *L = &s->lev[j];
+            if (m % L->s || m < L->delay) break;
+            uint64_t f = (m - L->delay) / L->s;
+            if (f >= ff[j]) level_frame(s, j, f, n0);
+        }
+    }
+    s->acc_hi = hi0;
+    s->n = n0;
+    memcpy(s->xprev, s->tmp + 2 * C, C * sizeof(double));
+    memcpy(s->x0, s->tmp + 3 * C, C * sizeof(double));
 }
 
 static int ex_preview(fc_stream *s, const double *x, double *y)
@@ -601,10 +745,12 @@ static int ex_preview(fc_stream *s, const double *x, double *y)
         int st = corr_get(s, s->n, &corr);
         if (st != FC_OK) return st;
     }
+    double *yt = s->tmp, *ut = s->tmp + s->C;
     for (size_t c = 0; c < s->C; c++) {
-        double u;
-        y[c] = ex_y(s, c, x[c], corr, &u);
+        yt[c] = ex_y(s, c, x[c], corr, &ut[c]);
+        if (!isfinite(yt[c]) || !isfinite(ut[c])) return FC_ERR_RANGE;
     }
+    memcpy(y, yt, s->C * sizeof(double)); /* memmove semantics not needed: y == x or apart */
     return FC_OK;
 }
 
@@ -615,7 +761,11 @@ static int ex_history(fc_stream *s, double *h)
         int st = corr_get(s, s->n, &corr);
         if (st != FC_OK) return st;
     }
-    for (size_t c = 0; c < s->C; c++) h[c] = ex_hist(s, c, corr);
+    for (size_t c = 0; c < s->C; c++) {
+        s->tmp[c] = ex_hist(s, c, corr);
+        if (!isfinite(s->tmp[c])) return FC_ERR_RANGE;
+    }
+    memcpy(h, s->tmp, s->C * sizeof(double));
     return FC_OK;
 }
 
@@ -638,9 +788,26 @@ static int ex_push_block(fc_stream *s, const double *x, size_t count,
         if ((st = corr_get(s, n_end - 1, &v)) != FC_OK) return st;
         if (s->n > 0 && (st = corr_get(s, s->n, &v)) != FC_OK) return st;
     }
+    /* outputs go to y only once every step has succeeded */
+    double *stage = NULL, *yb = y;
+    if (count > 1) {
+        if (!(stage = malloc(tot * sizeof(double)))) return FC_ERR_NOMEM;
+        yb = stage;
+        memcpy(s->tmp + 2 * C, s->xprev, C * sizeof(double));
+        memcpy(s->tmp + 3 * C, s->x0, C * sizeof(double));
+    }
+    uint64_t n0 = s->n, hi0 = s->acc_hi;
     for (size_t t = 0; t < count; t++) {
-        st = ex_step(s, x + t * C, y + t * C);
-        if (st != FC_OK) return st; /* not reached: weights validated */
+        st = ex_step(s, x + t * C, yb + t * C);
+        if (st != FC_OK) { /* FC_ERR_RANGE: an output beyond the double range */
+            if (t > 0) ex_rollback(s, n0, hi0);
+            free(stage);
+            return st;
+        }
+    }
+    if (stage) {
+        memcpy(y, stage, tot * sizeof(double));
+        free(stage);
     }
     return FC_OK;
 }
@@ -663,9 +830,10 @@ static size_t ex_nbytes(const fc_stream *s)
     b += s->C * s->acap * sizeof(double);
     b += s->wcap ? (4 * s->wcap + 2) * sizeof(double) : 0;
     b += s->klen * sizeof(double);
-    b += 2 * s->C * sizeof(double);
+    b += 6 * s->C * sizeof(double);
     for (size_t j = 0; j < s->nlev; j++)
-        b += s->lev[j].made * (1 + s->C) * (2 * s->lev[j].s + 2) * sizeof(double) +
+        b += s->lev[j].made * ((2 * s->lev[j].s + 2) +
+                                s->C * FC_S_XSLOT(2 * s->lev[j].s)) * sizeof(double) +
              fc__fft_nbytes(s->lev[j].plan);
     return b;
 }
@@ -682,6 +850,7 @@ static void stream_free_parts(fc_stream *s)
     free(s->acc);
     free(s->xprev);
     free(s->x0);
+    free(s->tmp);
     free(s->work);
     free(s);
 }
@@ -792,7 +961,8 @@ static int ex_init(fc_stream *s, size_t leaf, size_t segs)
     if (fc__mul_size(C, sizeof(double), &bytes)) return FC_ERR_SIZE;
     s->xprev = calloc(C, sizeof(double));
     s->x0 = calloc(C, sizeof(double));
-    if (!s->xprev || !s->x0) return FC_ERR_NOMEM;
+    s->tmp = calloc(C, 4 * sizeof(double));
+    if (!s->xprev || !s->x0 || !s->tmp) return FC_ERR_NOMEM;
     if (leaf == 0 && (st = ex_geometry(s, &leaf, &segs)) != FC_OK) return st;
     s->leaf = leaf;
     s->segs = segs;
@@ -1297,7 +1467,7 @@ static void ex_replay(fc_stream *s, uint64_t n)
         for (size_t j = 0; j < s->nlev; j++) {
             const fc__level *L = &s->lev[j];
             if (m % L->s || m < L->delay) break;
-            level_frame(s, j, (m - L->delay) / L->s);
+            level_frame(s, j, (m - L->delay) / L->s, 0);
         }
     }
 }

@@ -435,3 +435,80 @@ def test_partial_overlap_is_refused_and_changes_nothing():
     assert lib.fc_stream_push_block(s._s, p, 10, p + 20) == lib.FC_OK
     ref = np.asarray(t.push_many(buf[:20].reshape(10, C)))
     assert np.array_equal(buf[20:40].reshape(10, C), ref)
+
+
+# ---------------------------------------------------------------- huge samples
+
+@pytest.mark.parametrize("rule,a", [("rectangle", 0.5), ("trapezoid", 0.3), ("grunwald", 0.5),
+                                    ("grunwald", 2.5), ("l1", 0.5), ("rectangle", 9.5)])
+def test_huge_samples_keep_the_bound(rule, a):
+    # samples near 1e305 whose outputs are representable: the FFT blocks are
+    # scaled by powers of two, so every output keeps the componentwise bound
+    rng = np.random.default_rng(12)
+    h = 1.0 if a < 5 else 1e-4          # h^9.5 keeps rectangle 9.5 outputs in range
+    sign = (-1.0) ** np.arange(N) if rule == "grunwald" else 1.0
+    sigs = [1e305 * (0.5 + rng.random(N)) * sign, spike(N, 127, 1e306),
+            spike(N, 575, -1e305)]
+    ys = run(make_rule_stream(rule, a, h, 3), sigs)
+    idx = np.arange(N)
+    for x, y in zip(sigs, ys):
+        ref, scale = rule_reference(rule, a, h, x, idx)   # direct sum, extended precision
+        assert np.all(np.isfinite(scale))
+        assert componentwise_error(y, ref, scale) <= BOUND
+
+
+def test_huge_kernel_values_keep_the_bound():
+    rng = np.random.default_rng(13)
+    c = 1e300 * (1.0 + np.arange(N)) ** -1.0
+    sigs = [0.5 + rng.random(N), spike(N, 63, 3.0)]
+    ys = run(Stream.from_kernel(c, channels=2), sigs)
+    for x, y in zip(sigs, ys):
+        ref, scale = lag_reference(x, c, np.arange(N))   # direct sum, extended precision
+        assert componentwise_error(y, ref, scale) <= BOUND
+
+
+def c_state(ptr):
+    return c_save(ptr)
+
+
+@pytest.mark.parametrize("rule,a", [("rectangle", 0.5), ("grunwald", 9.99), ("trapezoid", 2.5)])
+def test_output_beyond_the_double_range_refuses_the_whole_block(rule, a):
+    # after x = 1.7e308 an output a step or two later overflows (common
+    # practice, the rules' weights at h = 1: rectangle b_0 = 1/Gamma(1.5) > 1,
+    # Grunwald g_1 = -a, trapezoid weights growing like k^(a-1))
+    rng = np.random.default_rng(14)
+    h = 1.0
+    A = make_rule_stream(rule, a, h, 2)
+    B = make_rule_stream(rule, a, h, 2)
+    pre = rng.standard_normal((700, 2))
+    A.push_many(pre)
+    B.push_many(pre)
+    blk = rng.standard_normal((600, 2))
+    blk[500, 1] = 1.7e308     # y at the next step: b_0 * 1.7e308 > DBL_MAX
+    x = np.ascontiguousarray(blk)
+    y = np.full_like(x, 7.25)
+    st = lib.fc_stream_push_block(A._s, ffi.from_buffer("double[]", x), 600,
+                                  ffi.from_buffer("double[]", y, require_writable=True))
+    assert st == lib.FC_ERR_RANGE
+    assert np.all(y == 7.25)                       # outputs untouched
+    assert A.count == 700 and c_state(A._s) == c_state(B._s)
+    with pytest.raises(ValueError):
+        A.push_many(blk)
+    # the refused block undid its frames exactly: the streams go on alike
+    nxt = rng.standard_normal((900, 2))
+    assert np.array_equal(np.asarray(A.push_many(nxt)), np.asarray(B.push_many(nxt)))
+    assert c_state(A._s) == c_state(B._s)
+
+
+def test_history_and_preview_beyond_the_range_are_refused():
+    s = Stream.integral(0.5, 4.0)   # b_0 = 4^0.5 / Gamma(1.5) ~ 2.26 (common practice)
+    assert s.push(1e308) == 0.0     # y_0 of the rectangle rule is 0
+    before = c_save(s._s)
+    h = ffi.new("double[1]", [5.0])
+    assert lib.fc_stream_history(s._s, h) == lib.FC_ERR_RANGE and h[0] == 5.0
+    x = ffi.new("double[1]", [1.0])
+    y = ffi.new("double[1]", [5.0])
+    assert lib.fc_stream_preview(s._s, x, y) == lib.FC_ERR_RANGE and y[0] == 5.0
+    assert lib.fc_stream_push(s._s, x, y) == lib.FC_ERR_RANGE and y[0] == 5.0
+    assert lib.fc_stream_push1(s._s, 1.0, y) == lib.FC_ERR_RANGE and y[0] == 5.0
+    assert c_save(s._s) == before
