@@ -1572,7 +1572,10 @@ static int ex_load(const unsigned char *q, size_t p, uint32_t kind, int rule,
     if (A > (room - used) / C64) return FC_ERR_FORMAT;
     used += C64 * A;
     if (used != room) return FC_ERR_FORMAT;
-    if (!finite_le(q + 40, (size_t)used)) return FC_ERR_FORMAT;
+    /* the definition and the samples must be finite; the accumulator is
+       compared bit for bit with the recomputed one (it may hold infinities
+       once huge samples have made later outputs overflow) */
+    if (!finite_le(q + 40, (size_t)(used - C64 * A))) return FC_ERR_FORMAT;
 
     const unsigned char *kq = q + 40, *xq = kq + 8 * klen, *x0q = xq + 8 * C,
                         *uq = x0q + 8 * C, *aq = uq + 8 * (size_t)(C64 * n);

@@ -512,3 +512,23 @@ def test_history_and_preview_beyond_the_range_are_refused():
     assert lib.fc_stream_push(s._s, x, y) == lib.FC_ERR_RANGE and y[0] == 5.0
     assert lib.fc_stream_push1(s._s, 1.0, y) == lib.FC_ERR_RANGE and y[0] == 5.0
     assert c_save(s._s) == before
+
+
+def test_state_with_overflowed_future_outputs_saves_and_loads():
+    # a frame has summed an overflowing contribution for later outputs while
+    # every output so far is representable: the state saves and loads (the
+    # accumulator is checked bit for bit), and the next push is refused
+    c = np.zeros(3000)
+    c[0] = 1.0
+    c[1024:] = 10.0             # 10 * 1e308 is beyond the double range
+    s = Stream.from_kernel(c)
+    y = s.push_many(np.r_[1e308, np.zeros(1023)])
+    assert y[0] == 1e308 and np.all(y[1:] == 0.0)
+    blob = c_save(s._s)
+    acc = np.frombuffer(blob, dtype="<f8", offset=Layout(blob).acc)
+    assert np.any(np.isinf(acc))
+    st, p = c_load(blob)
+    assert st == lib.FC_OK and c_save(p) == blob
+    with pytest.raises(ValueError):
+        s.push(0.0)
+    assert s.count == 1024
