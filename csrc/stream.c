@@ -300,12 +300,21 @@ static void level_free(fc__level *L)
 
 static int scale_exponent(const double *v, size_t n, int *zero)
 {
-    double mx = 0.0;
+    double m0 = 0.0, m1 = 0.0, m2 = 0.0, m3 = 0.0, mx;
     int e = 0;
-    for (size_t i = 0; i < n; i++) {
-        double a = fabs(v[i]);
-        if (a > mx) mx = a;
+    size_t i = 0;
+    for (; i + 4 <= n; i += 4) { /* four chains (n is a multiple of 64) */
+        double a0 = fabs(v[i]), a1 = fabs(v[i + 1]);
+        double a2 = fabs(v[i + 2]), a3 = fabs(v[i + 3]);
+        m0 = a0 > m0 ? a0 : m0;
+        m1 = a1 > m1 ? a1 : m1;
+        m2 = a2 > m2 ? a2 : m2;
+        m3 = a3 > m3 ? a3 : m3;
     }
+    for (; i < n; i++) m0 = fabs(v[i]) > m0 ? fabs(v[i]) : m0;
+    m0 = m1 > m0 ? m1 : m0;
+    m2 = m3 > m2 ? m3 : m2;
+    mx = m2 > m0 ? m2 : m0;
     *zero = mx == 0.0;
     if (mx != 0.0 && !(mx >= 0x1p-400 && mx <= 0x1p400)) (void)frexp(mx, &e);
     return e;
