@@ -936,6 +936,20 @@ static int ex_geometry(const fc_stream *s, size_t *leaf, size_t *segs)
             }
         }
     }
+    if (!kern && g >= 1e9) {
+        /* a rule kernel with zeros: the Grunwald weights of an integer
+           order vanish beyond lag a (binomial coefficients), and all-zero
+           segments add exact zeros; any nonzero sampled lag keeps p0 */
+        int tail_zero = 1;
+        for (uint64_t m = FC_S_BLOCK0; m < FC_S_RULE_SPAN && tail_zero; m *= 2) {
+            double a, b;
+            if ((st = rule_at(s, m, &a)) != FC_OK ||
+                (st = rule_at(s, m + m / 2, &b)) != FC_OK)
+                return st;
+            if (a != 0.0 || b != 0.0) tail_zero = 0;
+        }
+        if (tail_zero) g = 0.0;
+    }
     double r = g > 1e3 ? INFINITY : pow(830.0 / 449.0, g);
     if (r <= FC_S_KEEP_RATIO) {
         if ((st = kernel_values(s, 0, FC_S_PROBE, c)) != FC_OK) return st;
