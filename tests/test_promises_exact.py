@@ -532,3 +532,47 @@ def test_state_with_overflowed_future_outputs_saves_and_loads():
     with pytest.raises(ValueError):
         s.push(0.0)
     assert s.count == 1024
+
+
+# ------------------------------------------------- blobs of the fixed geometry
+# tests/data/exact_v1_*.bin: exact streams saved by the library before the
+# geometry was chosen per kernel (leaf 64, 8 segments for every kernel):
+# rectangle rule, h = 0.5, 2 channels, 700 samples x_k = sin(0.37 k + c) +
+# 0.1 (k mod 5).
+
+DATA = __import__("pathlib").Path(__file__).with_name("data")
+
+
+def legacy(order):
+    return (DATA / f"exact_v1_rectangle_{order}.bin").read_bytes()
+
+
+def test_blobs_of_the_fixed_geometry_still_load():
+    k = np.arange(700.0)
+    hist = np.stack([np.sin(0.37 * k + c) + 0.1 * (k % 5) for c in range(2)], axis=1)
+    nxt = np.random.default_rng(15).standard_normal((900, 2))
+    for order, geometry in ((0.5, (64, 8)), (2.5, (128, 8))):
+        b = legacy(order)
+        assert Layout(b).leaf == 64 and Layout(b).segs == 8
+        u = np.frombuffer(b, dtype="<f8", count=1400, offset=Layout(b).u).reshape(2, 700).T
+        assert np.array_equal(u, hist)
+        st, p = c_load(b)
+        assert st == lib.FC_OK
+        again = c_save(p)
+        L = Layout(again)
+        assert (L.leaf, L.segs) == geometry          # the geometry the kernel implies
+        if geometry == (64, 8):
+            assert again == b
+        st, y = c_push(p, nxt)
+        assert st == lib.FC_OK
+        x = np.concatenate([hist, nxt])
+        idx = np.arange(700, 1600)
+        for c in range(2):
+            ref, scale = rule_reference("rectangle", order, 0.5, x[:, c], idx)  # direct sum
+            assert componentwise_error(y.reshape(-1, 2)[:, c], ref, scale) <= BOUND
+    # a blob of the fixed geometry is still checked against its samples
+    b = legacy(2.5)
+    L = Layout(b)
+    v = struct.unpack_from("<d", b, L.acc + 8)[0]
+    assert refused(put(b, L.acc + 8, "<d", np.nextafter(v, 0.0)))
+    assert refused(put(b, 24, "<d", 2.4))
