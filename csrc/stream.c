@@ -43,7 +43,7 @@
  * O((n/P) log n); the largest FFT is of size about 2n/P.
  *
  * Memory per channel: the history of u (n doubles), the ring of block
- * spectra (at most P slots of 2s+2 doubles per level, about 4n doubles in
+ * spectra (at most P slots of 2s+4 doubles per level, about 4n doubles in
  * all) and a short accumulator; shared between channels: the kernel
  * spectra (about 4n doubles) and the FFT plans (one per level). Measured
  * (bench/stream_memory.py, one channel): about 70 bytes per sample.
