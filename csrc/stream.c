@@ -113,10 +113,10 @@ struct fc_stream {
     size_t leaf;            /* leaf band: lags 1 .. leaf-1 (also the u padding) */
     size_t segs;            /* kernel segments per level */
     uint64_t lag_limit;     /* b_MAXLEV of this geometry */
-    double leafk[FC_S_LEAF_MAX]; /* leafk[i] = c_{leaf-i} (i >= 1), leafk[0] = 0 */
+    double *leafk;          /* leaf: leafk[i] = c_{leaf-i} (i >= 1), leafk[0] = 0 */
     uint64_t n;             /* samples pushed per channel */
     size_t nlev;            /* levels created */
-    fc__level lev[FC_S_MAXLEV];
+    fc__level *lev;         /* FC_S_MAXLEV levels (exact mode) */
     double *u;              /* C rows of leaf + ucap doubles */
     size_t ucap;
     double *acc;            /* C rows of acap doubles, index k at k - abase */
@@ -839,7 +839,8 @@ static size_t ex_nbytes(const fc_stream *s)
     b += s->C * s->acap * sizeof(double);
     b += s->wcap ? (4 * s->wcap + 2) * sizeof(double) : 0;
     b += s->klen * sizeof(double);
-    b += 6 * s->C * sizeof(double);
+    b += 6 * s->C * sizeof(double) + s->leaf * sizeof(double) +
+         FC_S_MAXLEV * sizeof(fc__level);
     for (size_t j = 0; j < s->nlev; j++)
         b += s->lev[j].made * ((2 * s->lev[j].s + 2) +
                                 s->C * FC_S_XSLOT(2 * s->lev[j].s)) * sizeof(double) +
@@ -854,12 +855,14 @@ static void stream_free_parts(fc_stream *s)
     if (!s) return;
     if (s->cs) fc__cs_free(s->cs);
     for (size_t j = 0; j < s->nlev; j++) level_free(&s->lev[j]);
+    free(s->lev);
     free(s->kernel);
     free(s->u);
     free(s->acc);
     free(s->xprev);
     free(s->x0);
     free(s->tmp);
+    free(s->leafk);
     free(s->work);
     free(s);
 }
@@ -985,8 +988,10 @@ static int ex_init(fc_stream *s, size_t leaf, size_t segs)
     s->xprev = calloc(C, sizeof(double));
     s->x0 = calloc(C, sizeof(double));
     s->tmp = calloc(C, 4 * sizeof(double));
-    if (!s->xprev || !s->x0 || !s->tmp) return FC_ERR_NOMEM;
+    s->lev = calloc(FC_S_MAXLEV, sizeof(fc__level));
+    if (!s->xprev || !s->x0 || !s->tmp || !s->lev) return FC_ERR_NOMEM;
     if (leaf == 0 && (st = ex_geometry(s, &leaf, &segs)) != FC_OK) return st;
+    if (!(s->leafk = malloc(leaf * sizeof(double)))) return FC_ERR_NOMEM;
     s->leaf = leaf;
     s->segs = segs;
     s->lag_limit = geom_base(leaf, segs, FC_S_MAXLEV);
