@@ -226,20 +226,27 @@ int fc_stream_create_kernel(const double *kernel, size_t klen,
                             size_t channels, fc_stream **out);
 void fc_stream_free(fc_stream *s);
 
-/* Push one time step: x[channels] in, y[channels] out. */
+/* Push one time step: x[channels] in, y[channels] out. Exact mode: y may
+   be x itself (in place: every sample is read before its output is
+   written); any other overlap of x and y is refused with FC_ERR_ARG. An
+   output beyond the double range (exact mode: possible only when the sum of
+   the magnitudes of its terms nearly is) refuses the push with
+   FC_ERR_RANGE; for a block, the whole block, and y is left untouched. */
 int fc_stream_push(fc_stream *s, const double *x, double *y);
-/* Push count time steps: x[count*channels] in, y[count*channels] out. */
+/* Push count time steps: x[count*channels] in, y[count*channels] out; in
+   place as for fc_stream_push (y == x, or no overlap: FC_ERR_ARG). */
 int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
                          double *y);
 /* What fc_stream_push(s, x, y) would write to y, bit for bit, without
-   changing the stream. */
+   changing the stream; y == x or no overlap, as for fc_stream_push. */
 int fc_stream_preview(fc_stream *s, const double *x, double *y);
 /* The history term of the next output: the part that does not depend on
    the next sample, so that y = history + w0 * x for GRUNWALD and user
    kernels (w0 = kernel[0]), y = history for RECTANGLE (w0 = 0),
    y = history + w0 * (x - previous x) for L1, y = history + w0 * x for
    TRAPEZOID past the first sample; the first output of TRAPEZOID and L1
-   is 0 whatever x (and so is their history). h[channels]. */
+   is 0 whatever x (and so is their history). h[channels]. Exact mode:
+   FC_ERR_RANGE (h untouched) if the history is beyond the double range. */
 int fc_stream_history(fc_stream *s, double *h);
 /* Forget all samples (keeps the kernel, the reserved capacity). */
 int fc_stream_reset(fc_stream *s);
@@ -260,7 +267,10 @@ int fc_stream_save_size(fc_stream *s, size_t *size);
 int fc_stream_save(fc_stream *s, unsigned char *buf, size_t size,
                    size_t *written);
 /* Rebuild a stream from saved bytes; FC_ERR_FORMAT for truncated,
-   corrupted, foreign or unknown-version data. */
+   corrupted, foreign or unknown-version data, and for state that is not
+   what the stored samples imply: an exact stream's accumulator is
+   recomputed from its stored history and must match bit for bit, and its
+   first/previous-sample and geometry fields are checked. */
 int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out);
 /* Scalar fast path of fc_stream_push for a stream of exactly one channel
    (FC_ERR_ARG otherwise): the same result, bit for bit, as

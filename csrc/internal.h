@@ -58,6 +58,19 @@ static inline int fc__rule_uses_differences(int rule)
 }
 
 /*
+ * The first segment of a partitioned convolution (lagsum.c): the power-law
+ * exponent of |c_m| estimated over the octaves [m, 2m] for m = m0, 2 m0,
+ * ... with 2m < K (c read through at(ctx, m, &v)), into *gamma (1e9 when a
+ * sampled value is zero), and the first segment p0 in {2, 4, 8, 16} that
+ * keeps the FFT rounding of every segment at the scale of the terms it
+ * adds. Used by the batch engine (m0 = 8) and the exact stream (m0 = 64).
+ * Returns what at() returns on failure, FC_OK otherwise.
+ */
+typedef int (*fc__kernel_at)(const void *ctx, uint64_t m, double *v);
+int fc__segment_start(fc__kernel_at at, const void *ctx, uint64_t m0,
+                      uint64_t K, double *gamma, size_t *p0);
+
+/*
  * Compressed stream engine (compressed.c); the public fc_stream_* functions
  * in stream.c validate the handle and the busy flag and dispatch here when
  * the stream's mode is FC_MODE_COMPRESSED. Arguments are as for the public

@@ -153,34 +153,60 @@ typedef struct {
     size_t maxseg;/* most segments of one size */
 } part_shape;
 
-/* Power-law exponent of |c| estimated over octaves of lags; large when the
-   kernel has zeros or varies wildly (then the most cautious shape). */
-static double kernel_gamma(const double *c, size_t K)
+/* Array access for fc__segment_start. */
+static int array_at(const void *ctx, uint64_t m, double *v)
+{
+    *v = ((const double *)ctx)[m];
+    return FC_OK;
+}
+
+/*
+ * The power-law exponent of |c| over octaves of lags m0, 2 m0, 4 m0, ...
+ * (every octave [m, 2m] with 2m < K, sampled at m, 3m/2 and 2m), and the
+ * first segment p0 it calls for: segments start at least p0 block lengths
+ * from the outputs they feed, so that the kernel changes by at most a
+ * factor of about ((p0+2)/p0)^gamma across the samples one FFT product
+ * touches. A zero at a sampled lag gives gamma = 1e9 (the most cautious
+ * shape). Shared by the batch engine and the exact stream (stream.c).
+ */
+int fc__segment_start(fc__kernel_at at, const void *ctx, uint64_t m0,
+                      uint64_t K, double *gamma, size_t *p0)
 {
     double g = 0.0;
-    for (size_t m = 8; 2 * m < K; m *= 2) {
-        double a = fabs(c[m]), b = fabs(c[2 * m]);
-        double a2 = fabs(c[m + m / 2]);
-        if (a == 0.0 || b == 0.0 || a2 == 0.0) return 1e9;
+    for (uint64_t m = m0; 2 * m < K; m *= 2) {
+        double a, b, a2;
+        int st;
+        if ((st = at(ctx, m, &a)) != FC_OK ||
+            (st = at(ctx, 2 * m, &b)) != FC_OK ||
+            (st = at(ctx, m + m / 2, &a2)) != FC_OK)
+            return st;
+        a = fabs(a);
+        b = fabs(b);
+        a2 = fabs(a2);
+        if (a == 0.0 || b == 0.0 || a2 == 0.0) { g = 1e9; break; }
         double r = fabs(log2(b / a));
         if (r > g) g = r;
+        if (m > UINT64_MAX / 4) break;
     }
-    return g;
+    /* ((p0+2)/p0)^gamma <= 16: the error stays within ~16 eps of the
+       componentwise scale */
+    *gamma = g;
+    if (g <= 4.0) *p0 = 2;
+    else if (g <= 6.8) *p0 = 4;
+    else if (g <= 12.4) *p0 = 8;
+    else *p0 = 16;
+    return FC_OK;
 }
 
 static part_shape part_shape_of(size_t n, const double *c, size_t K)
 {
     part_shape sh;
+    double g;
     while (K > 1 && c[K - 1] == 0.0) K--; /* trailing zeros cost nothing */
     if (K > n) K = n;
     sh.K = K;
-    double g = kernel_gamma(c, K);
-    /* ((p0+2)/p0)^gamma <= 16: the error stays within ~16 eps of the
-       componentwise scale */
-    if (g <= 4.0) { sh.p0 = 2; sh.R = 8; }
-    else if (g <= 6.8) { sh.p0 = 4; sh.R = 4; }
-    else if (g <= 12.4) { sh.p0 = 8; sh.R = 2; }
-    else { sh.p0 = 16; sh.R = 2; }
+    (void)fc__segment_start(array_at, c, 8, K, &g, &sh.p0); /* cannot fail */
+    sh.R = sh.p0 == 2 ? 8 : sh.p0 == 4 ? 4 : 2;
     sh.W0 = FC_DIRECT_BAND / sh.p0;
     sh.D = sh.p0 * sh.W0;
     sh.maxW = 0;

@@ -12,10 +12,10 @@
  *   y_n = history_n + c_0 u_n,   history_n = sum_{m>=1} c_m u_{n-m}
  *
  * Every lag m >= 1 is handled by exactly one of:
- *   - the leaf band, 1 <= m < L (L = FC_S_LEAF): summed directly when
- *     u_{n-1} is known (a fixed-length dot product, fixed summation order);
- *   - level j: block size s = L * 2^j, lags [b_j, b_j + P s) with P =
- *     FC_S_SEGS, b_0 = L, b_{j+1} = b_j + P s_j, cut into P kernel segments
+ *   - the leaf band, 1 <= m < L: summed directly when u_{n-1} is known (a
+ *     fixed-length dot product, fixed summation order);
+ *   - level j: block size s = 64 * 2^j, lags [b_j, b_j + P s), b_0 = L,
+ *     b_{j+1} = b_j + P s_j, cut into P kernel segments
  *     [b_j + p s, b_j + (p+1) s). Input blocks [f s, f s + s) are convolved
  *     with the segments by FFTs of size 2s with a frequency-domain delay line
  *     (the uniformly partitioned convolution of each level of Gardner's
@@ -23,6 +23,10 @@
  *     of input block b, K_p of kernel segment p, one kernel spectrum per
  *     segment for the whole stream) is one inverse FFT whose 2s-1 values are
  *     added to the accumulator of outputs f s + b_j ...
+ * The geometry (L, P) is chosen per stream from its kernel (ex_geometry):
+ * L = 64, P = 8 where that keeps every output's FFT rounding at the scale
+ * of its own terms, otherwise L = 64 p0, P = max(8, p0) with the batch
+ * engine's first segment p0 (fc__segment_start), so that b_j >= p0 s_j.
  * Each (input k, lag m) pair lies in exactly one block b = floor(k/s) and one
  * segment p of exactly one band, hence in exactly one frame f = b + p: every
  * lag is summed exactly once for every output.
@@ -39,7 +43,7 @@
  * O((n/P) log n); the largest FFT is of size about 2n/P.
  *
  * Memory per channel: the history of u (n doubles), the ring of block
- * spectra (at most P slots of 2s+2 doubles per level, about 4n doubles in
+ * spectra (at most P slots of 2s+4 doubles per level, about 4n doubles in
  * all) and a short accumulator; shared between channels: the kernel
  * spectra (about 4n doubles) and the FFT plans (one per level). Measured
  * (bench/stream_memory.py, one channel): about 70 bytes per sample.
@@ -54,18 +58,28 @@
 #include <string.h>
 #include <math.h>
 #include <stdatomic.h>
+#include <limits.h>
 #include "internal.h"
 
-#define FC_S_LEAF 64            /* lags 0 .. FC_S_LEAF-1 summed directly */
-#define FC_S_PAD FC_S_LEAF      /* zeros in front of each u history */
+#define FC_S_BLOCK0 64          /* block size of level 0 */
+#define FC_S_LEAF 64            /* the default leaf band: lags 0 .. 63 */
+#define FC_S_SEGS 8             /* the default segments of size s per level */
+#define FC_S_LEAF_MAX 1024      /* limits of the per-stream geometry */
+#define FC_S_SEGS_MAX 16
 #define FC_S_MAXLEV 24          /* levels: s = 64 * 2^j <= 2^29 (FFT <= 2^30) */
-#define FC_S_SEGS 8             /* kernel segments of size s per level */
 #define FC_S_MAXBLOCK ((size_t)1 << 29)
 #define FC_S_CORR 256           /* trapezoid correction cache chunk */
-/* lags covered by the leaf band and all levels: b_MAXLEV (about 8.6e9);
-   also the largest count a rule stream supports */
-#define FC_S_LAG_LIMIT ((uint64_t)FC_S_LEAF * \
-                        (1 + (uint64_t)FC_S_SEGS * ((UINT64_C(1) << FC_S_MAXLEV) - 1)))
+/* lags covered by the leaf band L and all levels: b_MAXLEV = L + 64 P
+   (2^MAXLEV - 1); the default geometry's (about 8.6e9) is the smallest of
+   all, and bounds the length of a user kernel */
+#define FC_S_LAG_LIMIT ((uint64_t)FC_S_LEAF + (uint64_t)FC_S_BLOCK0 * \
+                        FC_S_SEGS * ((UINT64_C(1) << FC_S_MAXLEV) - 1))
+/* The default geometry is kept while its predicted error ratio (see
+   ex_geometry) is at most this. Measured (spikes, positive and alternating
+   data, N = 4096, every rule): error / scale about 1.3e-16 per unit of
+   ratio; the worst kept case, Grunwald at order 2.7 (ratio 56), 7e-15, a
+   fourteenth of the 1e-13 bound */
+#define FC_S_KEEP_RATIO 64.0
 
 #define FC_S_KIND_RULE 0u
 #define FC_S_KIND_KERNEL 1u
@@ -74,12 +88,14 @@ typedef struct {
     size_t s;              /* block size */
     uint64_t base;         /* first lag of the level */
     uint64_t delay;        /* frame f is done when the count reaches f*s+delay */
-    size_t nseg;           /* kernel segments (<= FC_S_SEGS), = ring length */
+    size_t nseg;           /* kernel segments (<= segs), = ring length */
     size_t made;           /* segments with spectrum and ring slot allocated */
     fc_fft_plan *plan;     /* FFT of size 2s */
-    double *kspec[FC_S_SEGS]; /* 2s+2: spectrum of c[base+p*s, base+(p+1)*s)/(2s) */
-    double *xspec[FC_S_SEGS]; /* ring slot: C spectra (2s+2 each) of block f,
-                                 slot f % nseg */
+    int kexp[FC_S_SEGS_MAX];  /* kspec[p] is 2^-kexp[p] times the true one */
+    double *kspec[FC_S_SEGS_MAX]; /* 2s+2: spectrum of c[base+p*s, base+(p+1)*s)/(2s) */
+    double *xspec[FC_S_SEGS_MAX]; /* ring slot: C spectra of block f, slot
+                                     f % nseg, each 2s+2 doubles, its
+                                     exponent and a zero flag */
 } fc__level;
 
 struct fc_stream {
@@ -96,11 +112,14 @@ struct fc_stream {
     double *kernel;         /* user kernel copy (kind kernel) */
     size_t klen;
     double c0;
-    double leafk[FC_S_LEAF];/* leafk[i] = c_{L-i} (i >= 1), leafk[0] = 0 */
+    size_t leaf;            /* leaf band: lags 1 .. leaf-1 (also the u padding) */
+    size_t segs;            /* kernel segments per level */
+    uint64_t lag_limit;     /* b_MAXLEV of this geometry */
+    double *leafk;          /* leaf: leafk[i] = c_{leaf-i} (i >= 1), leafk[0] = 0 */
     uint64_t n;             /* samples pushed per channel */
     size_t nlev;            /* levels created */
-    fc__level lev[FC_S_MAXLEV];
-    double *u;              /* C rows of FC_S_PAD + ucap doubles */
+    fc__level *lev;         /* FC_S_MAXLEV levels (exact mode) */
+    double *u;              /* C rows of leaf + ucap doubles */
     size_t ucap;
     double *acc;            /* C rows of acap doubles, index k at k - abase */
     size_t acap;
@@ -109,6 +128,7 @@ struct fc_stream {
     uint64_t prep_n;        /* capacity is ready for this many samples */
     double *xprev;          /* C: previous sample (L1) */
     double *x0;             /* C: first sample (trapezoid) */
+    double *tmp;            /* 4C: a step's outputs and u; saved xprev, x0 */
     double *work;           /* 4*smax + 2 doubles */
     size_t wcap;            /* smax the work buffer serves */
     double corr[FC_S_CORR]; /* trapezoid corr_n cache, n in chunk*CORR + i */
@@ -133,7 +153,7 @@ static void leave(const fc_stream *cs)
 
 /* ------------------------------------------------------------ helpers */
 
-static size_t lev_size(size_t j) { return (size_t)FC_S_LEAF << j; }
+static size_t lev_size(size_t j) { return (size_t)FC_S_BLOCK0 << j; }
 
 /* Kernel values c[start .. start+count), zero beyond klen for kernels. */
 static int kernel_values(const fc_stream *s, uint64_t start, size_t count,
@@ -149,11 +169,11 @@ static int kernel_values(const fc_stream *s, uint64_t start, size_t count,
     return fc__lag_kernel(s->rule, s->order, s->step, start, count, out);
 }
 
-static double leaf_dot(const double *k, const double *u)
+static double leaf_dot(const double *k, const double *u, size_t len)
 {
-    /* fixed order: 8 partial sums, combined pairwise */
+    /* fixed order: 8 partial sums, combined pairwise (len % 8 == 0) */
     double a0 = 0, a1 = 0, a2 = 0, a3 = 0, a4 = 0, a5 = 0, a6 = 0, a7 = 0;
-    for (size_t i = 0; i < FC_S_LEAF; i += 8) {
+    for (size_t i = 0; i < len; i += 8) {
         a0 += k[i] * u[i];
         a1 += k[i + 1] * u[i + 1];
         a2 += k[i + 2] * u[i + 2];
@@ -185,7 +205,7 @@ static int corr_get(fc_stream *s, uint64_t n, double *v)
 
 static double *urow(const fc_stream *s, size_t c)
 {
-    return s->u + c * (FC_S_PAD + s->ucap) + FC_S_PAD;
+    return s->u + c * (s->leaf + s->ucap) + s->leaf;
 }
 static double *arow(const fc_stream *s, size_t c)
 {
@@ -197,7 +217,7 @@ static inline double ex_hist(const fc_stream *s, size_t c, double corr)
 {
     uint64_t n = s->n;
     const double *uc = urow(s, c);
-    double h = arow(s, c)[n - s->abase] + leaf_dot(s->leafk, uc + n - FC_S_LEAF);
+    double h = arow(s, c)[n - s->abase] + leaf_dot(s->leafk, uc + n - s->leaf, s->leaf);
     if (s->rule == FC_RULE_TRAPEZOID && s->kind == FC_S_KIND_RULE) {
         if (n == 0) h = 0.0;
         else h += corr * s->x0[c];
@@ -226,11 +246,19 @@ static inline double ex_y(const fc_stream *s, size_t c, double x, double corr,
 
 /* ------------------------------------------------------------ levels */
 
-static void lev_geom(size_t j, size_t *sz, uint64_t *base, uint64_t *delay)
+/* b_j = leaf + P (s_0 + ... + s_{j-1}): b_j >= p0 s_j when leaf = p0 s_0
+   and P >= p0. */
+static uint64_t geom_base(size_t leaf, size_t segs, size_t j)
+{
+    return (uint64_t)leaf +
+           (uint64_t)segs * FC_S_BLOCK0 * ((UINT64_C(1) << j) - 1);
+}
+
+static void lev_geom(const fc_stream *s, size_t j, size_t *sz, uint64_t *base,
+                     uint64_t *delay)
 {
     *sz = lev_size(j);
-    *base = (uint64_t)FC_S_LEAF *
-            (1 + (uint64_t)FC_S_SEGS * ((UINT64_C(1) << j) - 1));
+    *base = geom_base(s->leaf, s->segs, j);
     *delay = (*base / *sz) * *sz;
 }
 
@@ -240,11 +268,11 @@ static size_t lev_nseg(const fc_stream *s, size_t j)
     size_t sz;
     uint64_t base, delay;
     if (j >= FC_S_MAXLEV) return 0;
-    if (s->kind != FC_S_KIND_KERNEL) return FC_S_SEGS;
-    lev_geom(j, &sz, &base, &delay);
+    if (s->kind != FC_S_KIND_KERNEL) return s->segs;
+    lev_geom(s, j, &sz, &base, &delay);
     if (base >= s->klen) return 0;
     uint64_t k = ((uint64_t)s->klen - base + sz - 1) / sz;
-    return k < FC_S_SEGS ? (size_t)k : FC_S_SEGS;
+    return k < s->segs ? (size_t)k : s->segs;
 }
 
 static void level_free(fc__level *L)
@@ -259,50 +287,149 @@ static void level_free(fc__level *L)
     L->made = 0;
 }
 
+/*
+ * Scaling by powers of two (exact). A block of samples or a kernel segment
+ * whose largest magnitude lies outside [2^-400, 2^400]
+ * is scaled to a largest magnitude in [1/2, 1) before its FFT, its exponent
+ * kept beside its spectrum; a frame with any scaled operand sums its
+ * products at the scale of its largest one and scales the inverse FFT back.
+ * Elsewhere (all data of ordinary size) nothing is scaled, so the results
+ * are those of the unscaled arithmetic bit for bit; with it, no spectrum or
+ * product overflows for finite samples, and an output overflows only when
+ * the sum of the magnitudes of its terms nearly does.
+ */
+#define FC_S_XSLOT(n2) ((n2) + 4) /* spectrum, exponent, zero flag */
+
+static int scale_exponent(const double *v, size_t n, int *zero)
+{
+    double m0 = 0.0, m1 = 0.0, m2 = 0.0, m3 = 0.0, mx;
+    int e = 0;
+    size_t i = 0;
+    for (; i + 4 <= n; i += 4) { /* four chains (n is a multiple of 64) */
+        double a0 = fabs(v[i]), a1 = fabs(v[i + 1]);
+        double a2 = fabs(v[i + 2]), a3 = fabs(v[i + 3]);
+        m0 = a0 > m0 ? a0 : m0;
+        m1 = a1 > m1 ? a1 : m1;
+        m2 = a2 > m2 ? a2 : m2;
+        m3 = a3 > m3 ? a3 : m3;
+    }
+    for (; i < n; i++) m0 = fabs(v[i]) > m0 ? fabs(v[i]) : m0;
+    m0 = m1 > m0 ? m1 : m0;
+    m2 = m3 > m2 ? m3 : m2;
+    mx = m2 > m0 ? m2 : m0;
+    *zero = mx == 0.0;
+    if (mx != 0.0 && !(mx >= 0x1p-400 && mx <= 0x1p400)) (void)frexp(mx, &e);
+    return e;
+}
+
+static int log2_size(size_t n)
+{
+    int k = 0;
+    while (((size_t)1 << k) < n) k++;
+    return k;
+}
+
 /* Spectrum of kernel segment p of level L into L->kspec[p]; tmp: 2s. */
 static int segment_spectrum(const fc_stream *s, fc__level *L, size_t p,
                             double *tmp)
 {
     size_t sz = L->s, n2 = 2 * sz;
+    int zero;
     int st = kernel_values(s, L->base + (uint64_t)p * sz, sz, tmp);
     if (st != FC_OK) return st;
-    double scale = 1.0 / (double)n2; /* a power of two: exact */
-    for (size_t i = 0; i < sz; i++) tmp[i] *= scale;
+    int e = scale_exponent(tmp, sz, &zero);
+    if (e == 0) {
+        double scale = 1.0 / (double)n2; /* a power of two: exact */
+        for (size_t i = 0; i < sz; i++) tmp[i] *= scale;
+        L->kexp[p] = 0;
+    } else {
+        for (size_t i = 0; i < sz; i++) tmp[i] = ldexp(tmp[i], -e);
+        L->kexp[p] = e - log2_size(n2);
+    }
     memset(tmp + sz, 0, sz * sizeof(double));
     fc__fft_forward(L->plan, tmp, L->kspec[p]);
     return FC_OK;
 }
 
-/* Spectra of input block f of every channel into its ring slot. */
+/* Spectra of input block f of every channel into its ring slot, each with
+   its exponent at [n2+2] and a zero-block flag at [n2+3]. */
 static void block_spectra(fc_stream *s, fc__level *L, uint64_t f)
 {
     size_t sz = L->s, n2 = 2 * sz;
     double *t = s->work, *X = L->xspec[f % L->nseg];
-    for (size_t c = 0; c < s->C; c++, X += n2 + 2) {
+    for (size_t c = 0; c < s->C; c++, X += FC_S_XSLOT(n2)) {
+        int zero;
         memcpy(t, urow(s, c) + f * sz, sz * sizeof(double));
+        int e = scale_exponent(t, sz, &zero);
+        if (e != 0)
+            for (size_t i = 0; i < sz; i++) t[i] = ldexp(t[i], -e);
         memset(t + sz, 0, sz * sizeof(double));
         fc__fft_forward(L->plan, t, X);
+        X[n2 + 2] = (double)e;
+        X[n2 + 3] = zero ? 1.0 : 0.0;
     }
 }
 
+/* Y = sum_p 2^(d_p - E) X_p K_p over the nonzero blocks, E = max d_p: the
+   frame at the scale of its largest product (d_p = block exponent + kernel
+   exponent); returns E. */
+static int scaled_dot(size_t n2, const double *const *xp, const fc__level *L,
+                      size_t np, double *Y)
+{
+    int E = INT_MIN;
+    for (size_t p = 0; p < np; p++) {
+        if (xp[p][n2 + 3] != 0.0) continue;
+        int d = (int)xp[p][n2 + 2] + L->kexp[p];
+        if (d > E) E = d;
+    }
+    memset(Y, 0, (n2 + 2) * sizeof(double));
+    if (E == INT_MIN) return 0;
+    for (size_t p = 0; p < np; p++) {
+        const double *X = xp[p], *K = L->kspec[p];
+        if (X[n2 + 3] != 0.0) continue;
+        int sh = (int)X[n2 + 2] + L->kexp[p] - E;
+        if (sh < -1074) continue; /* below 2^-1074 of the largest product */
+        double g = ldexp(1.0, sh);
+        for (size_t k = 0; k < n2 + 2; k += 2) {
+            double xr = X[k] * g, xi = X[k + 1] * g;
+            Y[k] += xr * K[k] - xi * K[k + 1];
+            Y[k + 1] += xr * K[k + 1] + xi * K[k];
+        }
+    }
+    return E;
+}
+
 /* Frame f of level j: new block spectrum, sum_p X_{f-p} K_p, one inverse
-   FFT, added to outputs f*s + base ... f*s + base + 2s - 2. */
-static void level_frame(fc_stream *s, size_t j, uint64_t f)
+   FFT, added to outputs f*s + base ... f*s + base + 2s - 2 (only those >= lo:
+   lo > 0 when a refused block is undone, see ex_rollback). */
+static void level_frame(fc_stream *s, size_t j, uint64_t f, uint64_t lo)
 {
     fc__level *L = &s->lev[j];
     size_t sz = L->s, n2 = 2 * sz, R = L->nseg;
     size_t np = f + 1 < R ? (size_t)f + 1 : R;
     double *t = s->work, *Y = t + n2;
     uint64_t o = f * sz + L->base;
+    size_t i0 = lo > o ? (size_t)(lo - o) : 0;
     block_spectra(s, L, f);
-    const double *xp[FC_S_SEGS];
+    const double *xp[FC_S_SEGS_MAX];
     for (size_t c = 0; c < s->C; c++) {
-        size_t off = c * (n2 + 2);
-        for (size_t p = 0; p < np; p++) xp[p] = L->xspec[(f - p) % R] + off;
-        fc__spec_dot(n2, xp, (const double *const *)L->kspec, np, Y);
-        fc__fft_inverse(L->plan, Y, t);
+        size_t off = c * FC_S_XSLOT(n2);
+        int scaled = 0;
+        for (size_t p = 0; p < np; p++) {
+            xp[p] = L->xspec[(f - p) % R] + off;
+            if ((xp[p][n2 + 2] != 0.0 || L->kexp[p] != 0) && xp[p][n2 + 3] == 0.0)
+                scaled = 1;
+        }
         double *a = arow(s, c) + (o - s->abase);
-        for (size_t i = 0; i + 1 < n2; i++) a[i] += t[i];
+        if (!scaled) {
+            fc__spec_dot(n2, xp, (const double *const *)L->kspec, np, Y);
+            fc__fft_inverse(L->plan, Y, t);
+            for (size_t i = i0; i + 1 < n2; i++) a[i] += t[i];
+        } else {
+            int E = scaled_dot(n2, xp, L, np, Y);
+            fc__fft_inverse(L->plan, Y, t);
+            for (size_t i = i0; i + 1 < n2; i++) a[i] += ldexp(t[i], E);
+        }
     }
     if (o + n2 - 1 > s->acc_hi) s->acc_hi = o + n2 - 1;
 }
@@ -325,7 +452,7 @@ static int ex_needs(const fc_stream *s, uint64_t n_end, ex_need *nd)
     nd->stop = 0;
     nd->ext = 1;
     while ((nseg = lev_nseg(s, j)) > 0) {
-        lev_geom(j, &sz, &base, &delay);
+        lev_geom(s, j, &sz, &base, &delay);
         if (delay > n_end) break;
         if (sz > FC_S_MAXBLOCK) return FC_ERR_SIZE;
         uint64_t frames = (n_end - delay) / sz + 1;
@@ -335,9 +462,9 @@ static int ex_needs(const fc_stream *s, uint64_t n_end, ex_need *nd)
             nd->ext = base - delay + 2 * (uint64_t)sz - 1;
         j++;
     }
-    /* lags >= FC_S_LAG_LIMIT have no level: refuse counts that need them
-       (kernel streams have klen <= FC_S_LAG_LIMIT) */
-    if (s->kind != FC_S_KIND_KERNEL && n_end >= FC_S_LAG_LIMIT)
+    /* lags >= lag_limit have no level: refuse counts that need them
+       (kernel streams have klen <= FC_S_LAG_LIMIT <= lag_limit) */
+    if (s->kind != FC_S_KIND_KERNEL && n_end >= s->lag_limit)
         return FC_ERR_SIZE;
     nd->nlev = j;
     nd->aend = n_end + nd->ext;
@@ -352,12 +479,12 @@ static uint64_t ex_ready(const fc_stream *s, const ex_need *nd)
     size_t sz;
     uint64_t base, delay;
     if (lev_nseg(s, nd->nlev) > 0) {
-        lev_geom(nd->nlev, &sz, &base, &delay);
+        lev_geom(s, nd->nlev, &sz, &base, &delay);
         if (delay - 1 < r) r = delay - 1;
     }
     for (size_t j = 0; j < nd->nlev; j++) {
         if (nd->made[j] < s->lev[j].nseg) {
-            lev_geom(j, &sz, &base, &delay);
+            lev_geom(s, j, &sz, &base, &delay);
             uint64_t ev = delay + (uint64_t)nd->made[j] * sz - 1;
             if (ev < r) r = ev;
         }
@@ -403,7 +530,7 @@ static int ex_prepare(fc_stream *s, uint64_t n_end, int exact)
         if (!exact && s->ucap <= (size_t)-1 / 2 && 2 * s->ucap > nucap)
             nucap = 2 * s->ucap;
         size_t row;
-        if (fc__add_size(nucap, FC_S_PAD, &row) ||
+        if (fc__add_size(nucap, s->leaf, &row) ||
             fc__mul_size(row, C, &bytes) ||
             fc__mul_size(bytes, sizeof(double), &bytes))
             return FC_ERR_SIZE;
@@ -439,7 +566,7 @@ static int ex_prepare(fc_stream *s, uint64_t n_end, int exact)
         memcpy(nl, s->lev, sizeof(nl));
         for (size_t j = s->nlev; j < nd.nlev; j++) {
             memset(&nl[j], 0, sizeof(nl[j]));
-            lev_geom(j, &nl[j].s, &nl[j].base, &nl[j].delay);
+            lev_geom(s, j, &nl[j].s, &nl[j].base, &nl[j].delay);
             nl[j].nseg = lev_nseg(s, j);
         }
         st = FC_OK;
@@ -449,7 +576,7 @@ static int ex_prepare(fc_stream *s, uint64_t n_end, int exact)
             p = nl[j].made;
             if (j >= s->nlev) st = fc__fft_create(n2, &nl[j].plan);
             if (st == FC_OK &&
-                (fc__add_size(n2, 2, &xb) || fc__mul_size(xb, C, &xb) ||
+                (fc__add_size(n2, 4, &xb) || fc__mul_size(xb, C, &xb) ||
                  fc__mul_size(xb, sizeof(double), &xb)))
                 st = FC_ERR_SIZE;
             for (p = nl[j].made; st == FC_OK && p < nd.made[j]; p++) {
@@ -489,11 +616,11 @@ static int ex_prepare(fc_stream *s, uint64_t n_end, int exact)
 
     /* commit */
     if (nu) {
-        size_t row = FC_S_PAD + nucap, orow = FC_S_PAD + s->ucap;
+        size_t pad = s->leaf, row = pad + nucap, orow = pad + s->ucap;
         for (size_t c = 0; c < C; c++) {
             double *d = nu + c * row;
-            memset(d, 0, FC_S_PAD * sizeof(double));
-            if (s->n) memcpy(d + FC_S_PAD, s->u + c * orow + FC_S_PAD,
+            memset(d, 0, pad * sizeof(double));
+            if (s->n) memcpy(d + pad, s->u + c * orow + pad,
                              (size_t)s->n * sizeof(double));
         }
         free(s->u);
@@ -528,6 +655,16 @@ static int ex_prepare(fc_stream *s, uint64_t n_end, int exact)
 
 /* ------------------------------------------------------------ exact ops */
 
+/* 1 if x[0 .. n) and y[0 .. n) overlap without being the same array. */
+static int partial_overlap(const double *x, const double *y, size_t n)
+{
+    uintptr_t a = (uintptr_t)x, b = (uintptr_t)y;
+    if (a == b || n == 0) return 0;
+    uintptr_t len = (uintptr_t)n * sizeof(double);
+    return a < b ? b - a < len : a - b < len;
+}
+
+
 /* One time step of every channel; capacity prepared, samples finite. */
 static int ex_step(fc_stream *s, const double *x, double *y)
 {
@@ -538,38 +675,93 @@ static int ex_step(fc_stream *s, const double *x, double *y)
         int st = corr_get(s, n, &corr);
         if (st != FC_OK) return st;
     }
+    int l1 = s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_L1;
+    int first = s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID &&
+                n == 0;
+    /* every output first: one that is not representable refuses the step
+       before anything changes */
+    double *yt = s->tmp, *ut = s->tmp + C;
     for (size_t c = 0; c < C; c++) {
-        double u;
-        y[c] = ex_y(s, c, x[c], corr, &u);
-        urow(s, c)[n] = u;
+        yt[c] = ex_y(s, c, x[c], corr, &ut[c]);
+        if (!isfinite(yt[c]) || !isfinite(ut[c])) return FC_ERR_RANGE;
     }
-    if (s->kind == FC_S_KIND_RULE) {
-        if (s->rule == FC_RULE_L1) memcpy(s->xprev, x, C * sizeof(double));
-        else if (s->rule == FC_RULE_TRAPEZOID && n == 0)
-            memcpy(s->x0, x, C * sizeof(double));
+    /* channel c reads x[c] before y[c] is written: y may be x (in place) */
+    for (size_t c = 0; c < C; c++) {
+        urow(s, c)[n] = ut[c];
+        if (l1) s->xprev[c] = x[c];
+        else if (first) s->x0[c] = x[c];
+        y[c] = yt[c];
     }
     s->n = ++n;
-    if (n % FC_S_LEAF == 0) {
+    if (n % FC_S_BLOCK0 == 0) {
         for (size_t j = 0; j < s->nlev; j++) {
             const fc__level *L = &s->lev[j];
             if (n % L->s || n < L->delay) break; /* the same for larger j */
-            level_frame(s, j, (n - L->delay) / L->s);
+            level_frame(s, j, (n - L->delay) / L->s, 0);
         }
     }
     return FC_OK;
 }
 
+/*
+ * Undo the steps of a refused block back to count n0 (accumulator reach hi0;
+ * previous/first samples saved in tmp[2C..4C)): the accumulator from n0 on
+ * is cleared and the frames done at counts <= n0 that reach outputs >= n0
+ * are done again in their order (adding only to those outputs), after the
+ * ring of block spectra is recomputed for them: the state is that of count
+ * n0 bit for bit.
+ */
+static void ex_rollback(fc_stream *s, uint64_t n0, uint64_t hi0)
+{
+    size_t C = s->C;
+    uint64_t ff[FC_S_MAXLEV], mlo = n0 + 1;
+    for (size_t c = 0; c < C; c++)
+        memset(arow(s, c) + (n0 - s->abase), 0,
+               (s->acap - (size_t)(n0 - s->abase)) * sizeof(double));
+    for (size_t j = 0; j < s->nlev; j++) {
+        fc__level *L = &s->lev[j];
+        ff[j] = UINT64_MAX;
+        if (n0 < L->delay) continue;
+        uint64_t fl = (n0 - L->delay) / L->s;
+        uint64_t reach = L->base + 2 * (uint64_t)L->s - 2; /* last output - f s */
+        uint64_t first = n0 > reach ? (n0 - reach + L->s - 1) / L->s : 0;
+        uint64_t fr = first < fl + 1 ? first : fl + 1;
+        for (uint64_t f = fr + 1 > L->nseg ? fr + 1 - L->nseg : 0; f < fr; f++)
+            block_spectra(s, L, f);
+        if (first <= fl) {
+            ff[j] = first;
+            uint64_t m = first * L->s + L->delay;
+            if (m < mlo) mlo = m;
+        }
+    }
+    for (uint64_t m = mlo; m <= n0; m += FC_S_BLOCK0) {
+        for (size_t j = 0; j < s->nlev; j++) {
+            const fc__level *L = &s->lev[j];
+            if (m % L->s || m < L->delay) break;
+            uint64_t f = (m - L->delay) / L->s;
+            if (f >= ff[j]) level_frame(s, j, f, n0);
+        }
+    }
+    s->acc_hi = hi0;
+    s->n = n0;
+    memcpy(s->xprev, s->tmp + 2 * C, C * sizeof(double));
+    memcpy(s->x0, s->tmp + 3 * C, C * sizeof(double));
+}
+
 static int ex_preview(fc_stream *s, const double *x, double *y)
 {
     double corr = 0.0;
+    if (partial_overlap(x, y, s->C)) return FC_ERR_ARG;
     if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID && s->n > 0) {
         int st = corr_get(s, s->n, &corr);
         if (st != FC_OK) return st;
     }
+    double *yt = s->tmp, *ut = s->tmp + s->C;
     for (size_t c = 0; c < s->C; c++) {
-        double u;
-        y[c] = ex_y(s, c, x[c], corr, &u);
+        yt[c] = ex_y(s, c, x[c], corr, &ut[c]);
+        if (!isfinite(yt[c]) || !isfinite(ut[c])) return FC_ERR_RANGE;
     }
+    memcpy(y, yt, s->C * sizeof(double)); /* memmove semantics not needed: y == x or apart */
     return FC_OK;
 }
 
@@ -580,7 +772,11 @@ static int ex_history(fc_stream *s, double *h)
         int st = corr_get(s, s->n, &corr);
         if (st != FC_OK) return st;
     }
-    for (size_t c = 0; c < s->C; c++) h[c] = ex_hist(s, c, corr);
+    for (size_t c = 0; c < s->C; c++) {
+        s->tmp[c] = ex_hist(s, c, corr);
+        if (!isfinite(s->tmp[c])) return FC_ERR_RANGE;
+    }
+    memcpy(h, s->tmp, s->C * sizeof(double));
     return FC_OK;
 }
 
@@ -590,6 +786,8 @@ static int ex_push_block(fc_stream *s, const double *x, size_t count,
     size_t C = s->C, tot;
     int st;
     if (fc__mul_size(count, C, &tot)) return FC_ERR_SIZE;
+    if (tot > (size_t)-1 / sizeof(double)) return FC_ERR_SIZE;
+    if (partial_overlap(x, y, tot)) return FC_ERR_ARG;
     if (tot && (st = fc__check_finite(x, tot)) != FC_OK) return st;
     if ((uint64_t)count > UINT64_MAX - s->n) return FC_ERR_SIZE;
     uint64_t n_end = s->n + count;
@@ -601,9 +799,26 @@ static int ex_push_block(fc_stream *s, const double *x, size_t count,
         if ((st = corr_get(s, n_end - 1, &v)) != FC_OK) return st;
         if (s->n > 0 && (st = corr_get(s, s->n, &v)) != FC_OK) return st;
     }
+    /* outputs go to y only once every step has succeeded */
+    double *stage = NULL, *yb = y;
+    if (count > 1) {
+        if (!(stage = malloc(tot * sizeof(double)))) return FC_ERR_NOMEM;
+        yb = stage;
+        memcpy(s->tmp + 2 * C, s->xprev, C * sizeof(double));
+        memcpy(s->tmp + 3 * C, s->x0, C * sizeof(double));
+    }
+    uint64_t n0 = s->n, hi0 = s->acc_hi;
     for (size_t t = 0; t < count; t++) {
-        st = ex_step(s, x + t * C, y + t * C);
-        if (st != FC_OK) return st; /* not reached: weights validated */
+        st = ex_step(s, x + t * C, yb + t * C);
+        if (st != FC_OK) { /* FC_ERR_RANGE: an output beyond the double range */
+            if (t > 0) ex_rollback(s, n0, hi0);
+            free(stage);
+            return st;
+        }
+    }
+    if (stage) {
+        memcpy(y, stage, tot * sizeof(double));
+        free(stage);
     }
     return FC_OK;
 }
@@ -622,13 +837,15 @@ static void ex_reset(fc_stream *s)
 static size_t ex_nbytes(const fc_stream *s)
 {
     size_t b = sizeof(*s);
-    b += s->C * (FC_S_PAD + s->ucap) * sizeof(double) * (s->u != NULL);
+    b += s->C * (s->leaf + s->ucap) * sizeof(double) * (s->u != NULL);
     b += s->C * s->acap * sizeof(double);
     b += s->wcap ? (4 * s->wcap + 2) * sizeof(double) : 0;
     b += s->klen * sizeof(double);
-    b += 2 * s->C * sizeof(double);
+    b += 6 * s->C * sizeof(double) + s->leaf * sizeof(double) +
+         FC_S_MAXLEV * sizeof(fc__level);
     for (size_t j = 0; j < s->nlev; j++)
-        b += s->lev[j].made * (1 + s->C) * (2 * s->lev[j].s + 2) * sizeof(double) +
+        b += s->lev[j].made * ((2 * s->lev[j].s + 2) +
+                                s->C * FC_S_XSLOT(2 * s->lev[j].s)) * sizeof(double) +
              fc__fft_nbytes(s->lev[j].plan);
     return b;
 }
@@ -640,11 +857,14 @@ static void stream_free_parts(fc_stream *s)
     if (!s) return;
     if (s->cs) fc__cs_free(s->cs);
     for (size_t j = 0; j < s->nlev; j++) level_free(&s->lev[j]);
+    free(s->lev);
     free(s->kernel);
     free(s->u);
     free(s->acc);
     free(s->xprev);
     free(s->x0);
+    free(s->tmp);
+    free(s->leafk);
     free(s->work);
     free(s);
 }
@@ -664,33 +884,139 @@ static fc_stream *stream_alloc(size_t C)
     return s;
 }
 
-/* Common exact-mode setup after kind/rule/kernel are set. */
-static int ex_init(fc_stream *s)
+/* ------------------------------------------------------------ geometry */
+
+static int rule_at(const void *ctx, uint64_t m, double *v)
+{
+    const fc_stream *s = ctx;
+    return fc__lag_kernel(s->rule, s->order, s->step, m, 1, v);
+}
+static int kern_at(const void *ctx, uint64_t m, double *v)
+{
+    const fc_stream *s = ctx;
+    *v = m < s->klen ? s->kernel[m] : 0.0;
+    return FC_OK;
+}
+
+/* lags over which a rule's exponent is estimated: [64, 2^36) */
+#define FC_S_RULE_SPAN (UINT64_C(1) << 36)
+/* lags of the default geometry's level 0 and the outputs it feeds */
+#define FC_S_PROBE (FC_S_LEAF + (FC_S_SEGS + 2) * FC_S_BLOCK0)
+
+/*
+ * The leaf band and the segments per level, chosen from the kernel.
+ *
+ * Frame f of a level (block size s, base b) adds FFT rounding at the scale
+ * of max |c| over each segment [b + p s, b + p s + s) times the block's
+ * samples, while those samples reach the frame's outputs through lags
+ * b + p s - s + 1 .. b + p s + 2s - 2. The ratio of the two kernel sizes
+ * bounds the error of every output against its own terms.
+ *
+ * The default geometry (leaf 64, 8 segments: b_0 = s_0) is kept when that
+ * ratio is at most FC_S_KEEP_RATIO: measured exactly over level 0 (lags 1
+ * .. 703; it includes lags of the leaf band), and for the levels above from
+ * the exponent gamma (level 1, b = 4.5 s, is the widest: (830/449)^gamma).
+ * Otherwise the first segment p0 of the batch engine (fc__segment_start,
+ * lags >= 64) gives leaf = 64 p0 and P = max(8, p0), so that every base
+ * b_j >= p0 s_j and the ratio is at most ((p0+2)/(p0-1))^gamma. A user
+ * kernel with a zero or a sign change at a lag >= 64 gets the most
+ * cautious shape (p0 = 16).
+ */
+static int ex_geometry(const fc_stream *s, size_t *leaf, size_t *segs)
+{
+    int kern = s->kind == FC_S_KIND_KERNEL;
+    double g, c[FC_S_PROBE];
+    size_t p0;
+    int st = fc__segment_start(kern ? kern_at : rule_at, s, FC_S_BLOCK0,
+                               kern ? (uint64_t)s->klen : FC_S_RULE_SPAN,
+                               &g, &p0);
+    if (st != FC_OK) return st;
+    if (kern) {
+        for (size_t m = FC_S_BLOCK0; m < s->klen; m++) {
+            double a = s->kernel[m];
+            if (a == 0.0 || (m > FC_S_BLOCK0 && (a < 0.0) != (s->kernel[m - 1] < 0.0))) {
+                g = 1e9;
+                p0 = 16;
+                break;
+            }
+        }
+    }
+    if (!kern && g >= 1e9) {
+        /* a rule kernel with zeros: the Grunwald weights of an integer
+           order vanish beyond lag a (binomial coefficients), and all-zero
+           segments add exact zeros; any nonzero sampled lag keeps p0 */
+        int tail_zero = 1;
+        for (uint64_t m = FC_S_BLOCK0; m < FC_S_RULE_SPAN && tail_zero; m *= 2) {
+            double a, b;
+            if ((st = rule_at(s, m, &a)) != FC_OK ||
+                (st = rule_at(s, m + m / 2, &b)) != FC_OK)
+                return st;
+            if (a != 0.0 || b != 0.0) tail_zero = 0;
+        }
+        if (tail_zero) g = 0.0;
+    }
+    double r = g > 1e3 ? INFINITY : pow(830.0 / 449.0, g);
+    if (r <= FC_S_KEEP_RATIO) {
+        if ((st = kernel_values(s, 0, FC_S_PROBE, c)) != FC_OK) return st;
+        for (size_t p = 0; p < FC_S_SEGS && r <= FC_S_KEEP_RATIO; p++) {
+            size_t b = FC_S_LEAF + p * FC_S_BLOCK0;
+            double mx = 0.0, mn = INFINITY;
+            for (size_t m = b; m < b + FC_S_BLOCK0; m++)
+                if (fabs(c[m]) > mx) mx = fabs(c[m]);
+            if (mx == 0.0) continue; /* an all-zero segment adds exact zeros */
+            for (size_t m = b - FC_S_BLOCK0 + 1; m <= b + 2 * FC_S_BLOCK0 - 2; m++)
+                if (fabs(c[m]) < mn) mn = fabs(c[m]);
+            if (mn == 0.0 || mx / mn > r) r = mn == 0.0 ? INFINITY : mx / mn;
+        }
+    }
+    if (r <= FC_S_KEEP_RATIO) {
+        *leaf = FC_S_LEAF;
+        *segs = FC_S_SEGS;
+    } else {
+        *leaf = FC_S_BLOCK0 * p0;
+        *segs = p0 > FC_S_SEGS ? p0 : FC_S_SEGS;
+    }
+    return FC_OK;
+}
+
+/* Common exact-mode setup after kind/rule/kernel are set: the geometry
+   (leaf 0: chosen from the kernel; otherwise as given), the leaf band. */
+static int ex_init(fc_stream *s, size_t leaf, size_t segs)
 {
     size_t C = s->C, bytes;
-    double leafc[FC_S_LEAF];
+    double leafc[FC_S_LEAF_MAX];
     int st;
     if (fc__mul_size(C, sizeof(double), &bytes)) return FC_ERR_SIZE;
     s->xprev = calloc(C, sizeof(double));
     s->x0 = calloc(C, sizeof(double));
-    if (!s->xprev || !s->x0) return FC_ERR_NOMEM;
-    st = kernel_values(s, 0, FC_S_LEAF, leafc);
+    s->tmp = calloc(C, 4 * sizeof(double));
+    s->lev = calloc(FC_S_MAXLEV, sizeof(fc__level));
+    if (!s->xprev || !s->x0 || !s->tmp || !s->lev) return FC_ERR_NOMEM;
+    if (leaf == 0 && (st = ex_geometry(s, &leaf, &segs)) != FC_OK) return st;
+    if (!(s->leafk = malloc(leaf * sizeof(double)))) return FC_ERR_NOMEM;
+    s->leaf = leaf;
+    s->segs = segs;
+    s->lag_limit = geom_base(leaf, segs, FC_S_MAXLEV);
+    st = kernel_values(s, 0, leaf, leafc);
     if (st != FC_OK) return st;
     s->c0 = leafc[0];
     s->leafk[0] = 0.0;
-    for (size_t i = 1; i < FC_S_LEAF; i++) s->leafk[i] = leafc[FC_S_LEAF - i];
+    for (size_t i = 1; i < leaf; i++) s->leafk[i] = leafc[leaf - i];
     /* room for the leaf band of the first samples */
     return ex_prepare(s, 1, 1);
 }
 
-int fc_stream_create(int rule, double order, double step, size_t channels,
-                     int mode, double tol, double horizon, fc_stream **out)
+/* fc_stream_create with the exact geometry given (leaf 0: chosen). */
+static int stream_create_geom(int rule, double order, double step,
+                              size_t channels, int mode, double tol,
+                              double horizon, size_t leaf, size_t segs,
+                              fc_stream **out)
 {
     int st;
     if (!out) return FC_ERR_NULL;
     if ((st = fc__check_rule(rule, order, step)) != FC_OK) return st;
     if (channels == 0) return FC_ERR_ARG;
-    if (channels > ((size_t)-1) / (8 * sizeof(double) * FC_S_PAD))
+    if (channels > ((size_t)-1) / (8 * sizeof(double) * FC_S_LEAF_MAX))
         return FC_ERR_SIZE;
     if (mode != FC_MODE_EXACT && mode != FC_MODE_COMPRESSED) return FC_ERR_MODE;
     if (mode == FC_MODE_COMPRESSED) {
@@ -710,7 +1036,7 @@ int fc_stream_create(int rule, double order, double step, size_t channels,
     if (mode == FC_MODE_COMPRESSED)
         st = fc__cs_create(rule, order, step, channels, tol, horizon, &s->cs);
     else
-        st = ex_init(s);
+        st = ex_init(s, leaf, segs);
     if (st != FC_OK) {
         if (mode == FC_MODE_COMPRESSED) s->cs = NULL;
         stream_free_parts(s);
@@ -720,8 +1046,16 @@ int fc_stream_create(int rule, double order, double step, size_t channels,
     return FC_OK;
 }
 
-int fc_stream_create_kernel(const double *kernel, size_t klen,
-                            size_t channels, fc_stream **out)
+int fc_stream_create(int rule, double order, double step, size_t channels,
+                     int mode, double tol, double horizon, fc_stream **out)
+{
+    return stream_create_geom(rule, order, step, channels, mode, tol, horizon,
+                              0, 0, out);
+}
+
+static int kernel_create_geom(const double *kernel, size_t klen,
+                              size_t channels, size_t leaf, size_t segs,
+                              fc_stream **out)
 {
     int st;
     if (!out || !kernel) return FC_ERR_NULL;
@@ -729,7 +1063,7 @@ int fc_stream_create_kernel(const double *kernel, size_t klen,
     if ((uint64_t)klen > FC_S_LAG_LIMIT) return FC_ERR_SIZE;
     if (fc__check_finite(kernel, klen) != FC_OK) return FC_ERR_KERNEL;
     if (channels == 0) return FC_ERR_ARG;
-    if (channels > ((size_t)-1) / (8 * sizeof(double) * FC_S_PAD))
+    if (channels > ((size_t)-1) / (8 * sizeof(double) * FC_S_LEAF_MAX))
         return FC_ERR_SIZE;
     fc_stream *s = stream_alloc(channels);
     if (!s) return FC_ERR_NOMEM;
@@ -739,9 +1073,15 @@ int fc_stream_create_kernel(const double *kernel, size_t klen,
     if (!s->kernel) { stream_free_parts(s); return FC_ERR_NOMEM; }
     memcpy(s->kernel, kernel, klen * sizeof(double));
     s->klen = klen;
-    if ((st = ex_init(s)) != FC_OK) { stream_free_parts(s); return st; }
+    if ((st = ex_init(s, leaf, segs)) != FC_OK) { stream_free_parts(s); return st; }
     *out = s;
     return FC_OK;
+}
+
+int fc_stream_create_kernel(const double *kernel, size_t klen,
+                            size_t channels, fc_stream **out)
+{
+    return kernel_create_geom(kernel, klen, channels, 0, 0, out);
 }
 
 /* ------------------------------------------------------------ public ops */
@@ -941,7 +1281,7 @@ int fc_stream_remaining(const fc_stream *s, uint64_t *remaining)
     ENTER_OR_RETURN(s);
     if (s->mode == FC_MODE_COMPRESSED) *remaining = cs_remaining(s);
     else if (s->kind == FC_S_KIND_KERNEL) *remaining = UINT64_MAX - s->n;
-    else *remaining = FC_S_LAG_LIMIT - 1 - s->n; /* counts < FC_S_LAG_LIMIT */
+    else *remaining = s->lag_limit - 1 - s->n; /* counts < lag_limit */
     leave(s);
     return FC_OK;
 }
@@ -1114,8 +1454,8 @@ int fc_stream_save(fc_stream *s, unsigned char *buf, size_t size,
     if (s->mode == FC_MODE_EXACT) {
         unsigned char *q = buf + FC_S_HDR;
         uint64_t A = ex_acc_live(s);
-        put64(q, FC_S_LEAF);
-        put64(q + 8, FC_S_SEGS);
+        put64(q, (uint64_t)s->leaf);
+        put64(q + 8, (uint64_t)s->segs);
         put64(q + 16, s->n);
         put64(q + 24, (uint64_t)s->klen);
         put64(q + 32, A);
@@ -1162,6 +1502,173 @@ static int cs_header_matches(const fc_stream *s)
            memcmp(&step, &s->step, sizeof step) == 0 &&
            memcmp(&tol, &s->tol, sizeof tol) == 0 &&
            memcmp(&horizon, &s->horizon, sizeof horizon) == 0;
+}
+
+/* Replay the frames of every count m = 64, 128, ... <= n over the history
+   already in place (s->n still 0): the same frames in the same order as the
+   pushes that stored it, so the accumulator and the ring of block spectra
+   come out bit for bit (the engine's state depends only on the samples). */
+static void ex_replay(fc_stream *s, uint64_t n)
+{
+    for (uint64_t m = FC_S_BLOCK0; m <= n; m += FC_S_BLOCK0) {
+        for (size_t j = 0; j < s->nlev; j++) {
+            const fc__level *L = &s->lev[j];
+            if (m % L->s || m < L->delay) break;
+            level_frame(s, j, (m - L->delay) / L->s, 0);
+        }
+    }
+}
+
+/* A new exact stream of the blob's kind with geometry (leaf, segs) (leaf 0:
+   the one its kernel implies), the C x n history at uq in place and its
+   frames replayed; FC_ERR_FORMAT if the stream cannot hold n samples. */
+static int ex_rebuild(uint32_t kind, int rule, double order, double step,
+                      const unsigned char *kq, uint64_t klen, size_t C,
+                      size_t leaf, size_t segs, const unsigned char *uq,
+                      uint64_t n, fc_stream **out)
+{
+    fc_stream *s = NULL;
+    int st;
+    if (kind == FC_S_KIND_KERNEL) {
+        double *k = malloc((size_t)klen * sizeof(double));
+        if (!k) return FC_ERR_NOMEM;
+        for (size_t i = 0; i < klen; i++) k[i] = getd(kq + 8 * i);
+        st = kernel_create_geom(k, (size_t)klen, C, leaf, segs, &s);
+        free(k);
+    } else {
+        st = stream_create_geom(rule, order, step, C, FC_MODE_EXACT, 0.0, 0.0,
+                                leaf, segs, &s);
+    }
+    if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+    ex_need nd;
+    if (ex_needs(s, n, &nd) != FC_OK) {
+        fc_stream_free(s);
+        return FC_ERR_FORMAT;
+    }
+    if ((st = ex_prepare(s, n, 1)) != FC_OK) {
+        fc_stream_free(s);
+        return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+    }
+    for (size_t c = 0; c < C; c++) {
+        double *uc = urow(s, c);
+        const unsigned char *r = uq + 8 * (size_t)(c * n);
+        for (uint64_t k = 0; k < n; k++) uc[k] = getd(r + 8 * k);
+    }
+    ex_replay(s, n);
+    s->n = n;
+    *out = s;
+    return FC_OK;
+}
+
+static uint64_t dbits(double d)
+{
+    uint64_t v;
+    memcpy(&v, &d, 8);
+    return v;
+}
+
+/* 1 if the stream's live accumulator is the C x A block at aq, bit for bit
+   (abase is 0 after a fresh prepare). */
+static int acc_matches(const fc_stream *s, const unsigned char *aq, uint64_t A)
+{
+    if (ex_acc_live(s) != A) return 0;
+    for (size_t c = 0; c < s->C; c++) {
+        const double *ac = arow(s, c) + (s->n - s->abase);
+        for (uint64_t k = 0; k < A; k++, aq += 8)
+            if (dbits(ac[k]) != get64(aq)) return 0;
+    }
+    return 1;
+}
+
+/*
+ * The exact payload q[0 .. p) of a blob whose header is hdr. Nothing derived
+ * is taken on trust: the sizes are bounded by the payload before anything is
+ * allocated; the stream is built from its definition (rule or kernel), the
+ * geometry field must be the one the kernel implies (or, from a blob written
+ * before the geometry was chosen per kernel, the former fixed one, which is
+ * then replayed only to check the blob and the stream continues in the
+ * implied geometry); the stored history u is replayed through the engine and
+ * the stored accumulator must equal the recomputed one bit for bit; the
+ * previous/first-sample fields must be what the samples imply.
+ */
+static int ex_load(const unsigned char *q, size_t p, uint32_t kind, int rule,
+                   const unsigned char *hdr, size_t C, fc_stream **out)
+{
+    uint64_t C64 = (uint64_t)C;
+    double order = getd(hdr + 24), step = getd(hdr + 32);
+    int st;
+    if (p < 40) return FC_ERR_FORMAT;
+    uint64_t leaf = get64(q), segs = get64(q + 8), n = get64(q + 16),
+             klen = get64(q + 24), A = get64(q + 32);
+    if (get64(hdr + 48) != 0 || get64(hdr + 56) != 0) return FC_ERR_FORMAT;
+    /* a geometry this code can choose */
+    int legacy = leaf == FC_S_LEAF && segs == FC_S_SEGS;
+    int known = legacy;
+    for (uint64_t p0 = 2; p0 <= 16; p0 *= 2)
+        if (leaf == FC_S_BLOCK0 * p0 && segs == (p0 > FC_S_SEGS ? p0 : FC_S_SEGS))
+            known = 1;
+    if (!known) return FC_ERR_FORMAT;
+    /* sizes: every count must fit in the payload (checked piecewise so that
+       nothing overflows) */
+    uint64_t room = (p - 40) / 8; /* doubles present */
+    if ((p - 40) % 8 || klen > room || C64 > room) return FC_ERR_FORMAT;
+    uint64_t used = klen + 2 * C64;
+    if (used > room) return FC_ERR_FORMAT;
+    if (n > (room - used) / C64) return FC_ERR_FORMAT;
+    used += C64 * n;
+    if (A > (room - used) / C64) return FC_ERR_FORMAT;
+    used += C64 * A;
+    if (used != room) return FC_ERR_FORMAT;
+    /* the definition and the samples must be finite; the accumulator is
+       compared bit for bit with the recomputed one (it may hold infinities
+       once huge samples have made later outputs overflow) */
+    if (!finite_le(q + 40, (size_t)(used - C64 * A))) return FC_ERR_FORMAT;
+
+    const unsigned char *kq = q + 40, *xq = kq + 8 * klen, *x0q = xq + 8 * C,
+                        *uq = x0q + 8 * C, *aq = uq + 8 * (size_t)(C64 * n);
+    if (kind == FC_S_KIND_KERNEL) {
+        if (rule != -1 || klen == 0 || klen > FC_S_LAG_LIMIT) return FC_ERR_FORMAT;
+        if (get64(hdr + 24) != 0 || get64(hdr + 32) != 0) return FC_ERR_FORMAT;
+    } else if (kind == FC_S_KIND_RULE) {
+        if (klen != 0) return FC_ERR_FORMAT;
+        if (fc__check_rule(rule, order, step) != FC_OK) return FC_ERR_FORMAT;
+    } else {
+        return FC_ERR_FORMAT;
+    }
+    /* the previous / first sample fields against the samples: trapezoid
+       keeps x_0 (= u_0; 0 before any sample), L1 the previous sample (free
+       once there is one; 0 before) and u_0 = 0; unused fields are 0 */
+    int trap = kind == FC_S_KIND_RULE && rule == FC_RULE_TRAPEZOID;
+    int l1 = kind == FC_S_KIND_RULE && rule == FC_RULE_L1;
+    for (size_t c = 0; c < C; c++) {
+        uint64_t xp = get64(xq + 8 * c), x0 = get64(x0q + 8 * c);
+        uint64_t u0 = n > 0 ? get64(uq + 8 * (size_t)(c * n)) : 0;
+        if (trap ? x0 != u0 : x0 != 0) return FC_ERR_FORMAT;
+        if ((!l1 || n == 0) && xp != 0) return FC_ERR_FORMAT;
+        if (l1 && u0 != 0) return FC_ERR_FORMAT;
+    }
+
+    fc_stream *s = NULL, *old = NULL;
+    st = ex_rebuild(kind, rule, order, step, kq, klen, C, 0, 0, uq, n, &s);
+    if (st != FC_OK) return st;
+    if (s->leaf != leaf || s->segs != segs) {
+        if (!legacy) { fc_stream_free(s); return FC_ERR_FORMAT; }
+        st = ex_rebuild(kind, rule, order, step, kq, klen, C, FC_S_LEAF,
+                        FC_S_SEGS, uq, n, &old);
+        if (st != FC_OK) { fc_stream_free(s); return st; }
+    }
+    if (!acc_matches(old ? old : s, aq, A)) {
+        fc_stream_free(old);
+        fc_stream_free(s);
+        return FC_ERR_FORMAT;
+    }
+    fc_stream_free(old);
+    for (size_t c = 0; c < C; c++) {
+        s->xprev[c] = getd(xq + 8 * c);
+        s->x0[c] = getd(x0q + 8 * c);
+    }
+    *out = s;
+    return FC_OK;
 }
 
 int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out)
@@ -1217,74 +1724,5 @@ int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out)
         return FC_OK;
     }
     if (mode != FC_MODE_EXACT) return FC_ERR_FORMAT;
-    if (p < 40) return FC_ERR_FORMAT;
-    uint64_t leaf = get64(q), segs = get64(q + 8), n = get64(q + 16),
-             klen = get64(q + 24), A = get64(q + 32);
-    if (leaf != FC_S_LEAF || segs != FC_S_SEGS) return FC_ERR_FORMAT;
-    if (tol != 0.0 || horizon != 0.0) return FC_ERR_FORMAT;
-    /* sizes: every count must fit in the payload (p < 2^64/8 checked
-       piecewise so that nothing overflows) */
-    uint64_t room = (p - 40) / 8; /* doubles present */
-    if (klen > room || C64 > room) return FC_ERR_FORMAT;
-    uint64_t used = klen + 2 * C64;
-    if (used > room) return FC_ERR_FORMAT;
-    if (n > (room - used) / C64) return FC_ERR_FORMAT;
-    used += C64 * n;
-    if (A > (room - used) / C64) return FC_ERR_FORMAT;
-    used += C64 * A;
-    if (used != room || (p - 40) % 8) return FC_ERR_FORMAT;
-    if (!finite_le(q + 40, (size_t)used)) return FC_ERR_FORMAT;
-
-    q += 40;
-    if (kind == FC_S_KIND_KERNEL) {
-        if (rule != -1 || klen == 0 || klen > FC_S_LAG_LIMIT) return FC_ERR_FORMAT;
-        if (!(order == 0.0 && step == 0.0)) return FC_ERR_FORMAT;
-        double *k = malloc((size_t)klen * sizeof(double));
-        if (!k) return FC_ERR_NOMEM;
-        for (size_t i = 0; i < klen; i++) k[i] = getd(q + 8 * i);
-        st = fc_stream_create_kernel(k, (size_t)klen, C, &s);
-        free(k);
-        if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
-    } else if (kind == FC_S_KIND_RULE) {
-        if (klen != 0) return FC_ERR_FORMAT;
-        if (fc__check_rule(rule, order, step) != FC_OK) return FC_ERR_FORMAT;
-        st = fc_stream_create(rule, order, step, C, FC_MODE_EXACT, 0, 0, &s);
-        if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
-    } else {
-        return FC_ERR_FORMAT;
-    }
-    q += 8 * klen;
-    ex_need nd;
-    if (ex_needs(s, n, &nd) != FC_OK || n + A > nd.aend) {
-        fc_stream_free(s);
-        return FC_ERR_FORMAT;
-    }
-    st = ex_prepare(s, n, 1);
-    if (st != FC_OK) {
-        fc_stream_free(s);
-        return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
-    }
-    for (size_t c = 0; c < C; c++, q += 8) s->xprev[c] = getd(q);
-    for (size_t c = 0; c < C; c++, q += 8) s->x0[c] = getd(q);
-    s->n = n;
-    for (size_t c = 0; c < C; c++) {
-        double *uc = urow(s, c);
-        for (uint64_t k = 0; k < n; k++, q += 8) uc[k] = getd(q);
-    }
-    /* abase is 0 after a fresh prepare: acc index k at k */
-    for (size_t c = 0; c < C; c++) {
-        double *ac = arow(s, c) + (n - s->abase);
-        for (uint64_t k = 0; k < A; k++, q += 8) ac[k] = getd(q);
-    }
-    s->acc_hi = n + A;
-    /* the ring of block spectra: blocks of the last nseg frames done */
-    for (size_t j = 0; j < s->nlev; j++) {
-        fc__level *L = &s->lev[j];
-        if (n < L->delay) continue;
-        uint64_t fl = (n - L->delay) / L->s;
-        uint64_t f0 = fl + 1 >= L->nseg ? fl + 1 - L->nseg : 0;
-        for (uint64_t f = f0; f <= fl; f++) block_spectra(s, L, f);
-    }
-    *out = s;
-    return FC_OK;
+    return ex_load(q, (size_t)p, kind, rule, buf, C, out);
 }
