@@ -4,7 +4,9 @@
  *
  * Engines:
  *   direct   O(N*K) summation, blocked so that a chunk of outputs stays in
- *            cache while every lag is added to it.
+ *            cache while every lag is added to it; lags in groups, each
+ *            group's sum added with TwoSum (componentwise accurate for
+ *            every kernel length; see direct_accumulate).
  *   blocked  lags below FC_DIRECT_BAND summed directly; the rest cut into
  *            segments of growing size, each an FFT block convolution whose
  *            kernel values vary little over the lags it touches, so every
@@ -13,6 +15,10 @@
  *            O(N log N) work for N samples (O(N log K) for K lags).
  *   fft      one FFT convolution of the whole record: O(N log N), accurate
  *            only normwise (small outputs next to large ones lose digits).
+ *
+ * fc_lagged_sum and fc_apply run every engine on samples (and a kernel)
+ * scaled by powers of two and apply the factor taken out at the end, so
+ * that finite input never overflows on the way (see lagsum_scaled).
  */
 #include "internal.h"
 
@@ -407,27 +413,190 @@ static int check_engine(int engine)
                                                                  : FC_ERR_ARG;
 }
 
+/* 1 if [a, a+na) and [b, b+nb) (doubles) share an element. */
+static int overlaps(const double *a, size_t na, const double *b, size_t nb)
+{
+    uintptr_t pa = (uintptr_t)a, pb = (uintptr_t)b;
+    return pa < pb + nb * sizeof(double) && pb < pa + na * sizeof(double);
+}
+
+/* Largest |v[i]| and sum of |v[i]| (the latter only as a bound: four
+   partial sums, so that both loops vectorise). */
+static double max_abs(const double *v, size_t n)
+{
+    double m0 = 0.0, m1 = 0.0, m2 = 0.0, m3 = 0.0;
+    size_t i = 0;
+    for (; i + 4 <= n; i += 4) {
+        double t0 = fabs(v[i]), t1 = fabs(v[i + 1]);
+        double t2 = fabs(v[i + 2]), t3 = fabs(v[i + 3]);
+        m0 = t0 > m0 ? t0 : m0;
+        m1 = t1 > m1 ? t1 : m1;
+        m2 = t2 > m2 ? t2 : m2;
+        m3 = t3 > m3 ? t3 : m3;
+    }
+    for (; i < n; i++) {
+        double t = fabs(v[i]);
+        m0 = t > m0 ? t : m0;
+    }
+    m0 = m1 > m0 ? m1 : m0;
+    m2 = m3 > m2 ? m3 : m2;
+    return m2 > m0 ? m2 : m0;
+}
+
+static double sum_abs(const double *v, size_t n)
+{
+    double s0 = 0.0, s1 = 0.0, s2 = 0.0, s3 = 0.0;
+    size_t i = 0;
+    for (; i + 4 <= n; i += 4) {
+        s0 += fabs(v[i]);
+        s1 += fabs(v[i + 1]);
+        s2 += fabs(v[i + 2]);
+        s3 += fabs(v[i + 3]);
+    }
+    for (; i < n; i++) s0 += fabs(v[i]);
+    return (s0 + s1) + (s2 + s3);
+}
+
+/*
+ * Scaling by powers of two (exact in binary floating point, except for
+ * gradual underflow). Every engine runs on samples scaled to a largest
+ * magnitude in [1/2, 1) and on a kernel of moderate size (the unit kernel
+ * of a rule, or the user's kernel scaled the same way), so no partial sum,
+ * FFT value or difference can overflow; the outputs z are then multiplied
+ * by the factor M 2^T that was taken out.
+ */
+
+/* The exponent e of v = f 2^e, 0.5 <= f < 1 (v > 0 finite). */
+static int exponent_of(double v)
+{
+    int e;
+    (void)frexp(v, &e);
+    return e;
+}
+
+/* out[i] = x[i] 2^-e, exact unless the result is subnormal (then one
+   rounding, far below the scale of the largest sample). */
+static void scale_copy(const double *x, size_t n, int e, double *out)
+{
+    if (e >= -1021 && e <= 1021) {
+        const double f = ldexp(1.0, -e);
+        for (size_t i = 0; i < n; i++) out[i] = x[i] * f;
+    } else {
+        const double f1 = ldexp(1.0, -e / 2), f2 = ldexp(1.0, -e - (-e / 2));
+        for (size_t i = 0; i < n; i++) out[i] = (x[i] * f1) * f2;
+    }
+}
+
+/*
+ * May z (every |z_n| <= zb) be multiplied by M 2^T in place without a
+ * check? Yes when zb M 2^T < 2^1023 with a factor two to spare.
+ */
+static int scale_is_safe(double zb, double M, long T)
+{
+    if (!(zb > 0.0)) return 1;
+    return (long)exponent_of(zb * M) + T <= 1022;
+}
+
+/* y[i] = z[i] M 2^T (z may be y): one multiplication when M 2^T is a
+   normal double and the caller knows nothing can overflow (fast), else
+   fc__scale_value per value (as scale_check). */
+static void scale_out(const double *z, size_t n, double M, long T, int fast,
+                      double *y)
+{
+    if (fast && T >= -1020 && T <= 1023) {
+        const double F = ldexp(M, (int)T);
+        for (size_t i = 0; i < n; i++) y[i] = z[i] * F;
+    } else {
+        for (size_t i = 0; i < n; i++) y[i] = fc__scale_value(z[i], M, T);
+    }
+}
+
+/* FC_OK if every z[i] M 2^T is finite, else FC_ERR_RANGE. */
+static int scale_check(const double *z, size_t n, double M, long T)
+{
+    for (size_t i = 0; i < n; i++)
+        if (!isfinite(fc__scale_value(z[i], M, T))) return FC_ERR_RANGE;
+    return FC_OK;
+}
+
+/*
+ * The scaled lagged sum y = (M 2^T) lagsum(in, c), in and c already
+ * scaled, |z_n| <= zb: straight into y when the scaling cannot overflow,
+ * else through a temporary that is checked first (FC_ERR_RANGE, y
+ * untouched). corr (may be NULL): z_n += corr[n] * in_x0[s*n] before
+ * scaling, and y_0 = 0 exactly (trapezoid).
+ */
+static int lagsum_scaled(fc_context *ctx, const double *in, size_t nsig,
+                         size_t n, const double *c, size_t K, int engine,
+                         const double *corr, const double *in_x0,
+                         double zb, double M, long T, double *y)
+{
+    size_t total = nsig * n;
+    int safe = scale_is_safe(zb, M, T);
+    double *z = y, *tmp = NULL;
+    if (!safe) {
+        tmp = malloc(total * sizeof(double));
+        if (tmp == NULL) return FC_ERR_NOMEM;
+        z = tmp;
+    }
+    int st = lagsum_checked(ctx, in, nsig, n, c, K, engine, z);
+    if (st == FC_OK && corr != NULL) {
+        for (size_t sg = 0; sg < nsig; sg++) {
+            double x0 = in_x0[sg * n];
+            double *zs = z + sg * n;
+            for (size_t i = 0; i < n; i++) zs[i] += corr[i] * x0;
+            zs[0] = 0.0; /* exactly, whatever the rounding above */
+        }
+    }
+    if (st == FC_OK && !safe) st = scale_check(z, total, M, T);
+    if (st == FC_OK) scale_out(z, total, M, T, safe, y);
+    free(tmp);
+    return st;
+}
+
 int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
                   const double *kernel, size_t klen, int engine, double *y)
 {
     size_t total;
     if (fc__mul_size(nsig, n, &total) != FC_OK) return FC_ERR_SIZE;
-    if (total > ((size_t)-1) / sizeof(double)) return FC_ERR_SIZE;
+    if (total > ((size_t)-1) / sizeof(double) / 2) return FC_ERR_SIZE;
     if (kernel == NULL) return FC_ERR_NULL;
     if (klen == 0) return FC_ERR_KERNEL;
     if (check_engine(engine) != FC_OK) return FC_ERR_ARG;
     if (total == 0) return FC_OK;
     if (x == NULL || y == NULL) return FC_ERR_NULL;
+    if (klen > ((size_t)-1) / sizeof(double)) return FC_ERR_SIZE;
+    if (overlaps(x, total, y, total) || overlaps(kernel, klen, y, total))
+        return FC_ERR_ARG;
     if (fc__check_finite(kernel, klen) != FC_OK) return FC_ERR_KERNEL;
     if (fc__check_finite(x, total) != FC_OK) return FC_ERR_NONFINITE;
+    size_t K = klen < n ? klen : n;
+    double xmax = max_abs(x, total), cmax = max_abs(kernel, K);
+    if (xmax == 0.0 || cmax == 0.0) {
+        memset(y, 0, total * sizeof(double));
+        return FC_OK;
+    }
+    int ex = exponent_of(xmax), ec = exponent_of(cmax);
+    size_t need;
+    if (fc__add_size(total, K, &need) != FC_OK) return FC_ERR_SIZE;
+    double *mem = malloc(need * sizeof(double));
+    if (mem == NULL) return FC_ERR_NOMEM;
+    double *xs = mem, *cs = mem + total;
+    scale_copy(x, total, ex, xs);
+    scale_copy(kernel, K, ec, cs);
+    /* |xs| < 1: |z_n| <= sum|cs| (1 + rounding) */
+    double zb = sum_abs(cs, K) * (1.0 + 1e-6);
     fc_context *own = NULL;
+    int st = FC_OK;
     if (ctx == NULL) {
-        int st = fc_context_create(&own);
-        if (st != FC_OK) return st;
+        st = fc_context_create(&own);
         ctx = own;
     }
-    int st = lagsum_checked(ctx, x, nsig, n, kernel, klen, engine, y);
+    if (st == FC_OK)
+        st = lagsum_scaled(ctx, xs, nsig, n, cs, K, engine, NULL, NULL, zb,
+                           1.0, (long)ex + ec, y);
     fc_context_free(own);
+    free(mem);
     return st;
 }
 
@@ -439,20 +608,28 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
     if (check_engine(engine) != FC_OK) return FC_ERR_ARG;
     size_t total;
     if (fc__mul_size(nsig, n, &total) != FC_OK) return FC_ERR_SIZE;
-    if (total > ((size_t)-1) / sizeof(double) / 2) return FC_ERR_SIZE;
+    if (total > ((size_t)-1) / sizeof(double) / 4) return FC_ERR_SIZE;
     if (total == 0) return FC_OK;
     if (x == NULL || y == NULL) return FC_ERR_NULL;
+    if (overlaps(x, total, y, total)) return FC_ERR_ARG;
     if (fc__check_finite(x, total) != FC_OK) return FC_ERR_NONFINITE;
+    double xmax = max_abs(x, total);
+    if (xmax == 0.0) { /* every output is exactly 0 */
+        memset(y, 0, total * sizeof(double));
+        return FC_OK;
+    }
+    int ex = exponent_of(xmax);
 
     int diffs = fc__rule_uses_differences(rule);
     int corr = rule == FC_RULE_TRAPEZOID;
-    /* kernel n, correction n (trapezoid), differences nsig*n (l1) */
-    size_t extra = n + (corr ? n : 0) + (diffs ? total : 0);
+    /* unit kernel n, unit correction n (trapezoid), scaled samples or
+       their differences nsig*n */
+    size_t extra = n + (corr ? n : 0) + total;
     double *mem = malloc(extra * sizeof(double));
     if (mem == NULL) return FC_ERR_NOMEM;
     double *c = mem;
     double *cr = corr ? c + n : NULL;
-    double *u = diffs ? c + n + (corr ? n : 0) : NULL;
+    double *u = c + n + (corr ? n : 0);
 
     fc_context *own = NULL;
     if (ctx == NULL) {
@@ -460,32 +637,27 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
         if (st != FC_OK) goto done;
         ctx = own;
     }
-    st = fc__lag_kernel(rule, order, step, 0, n, c);
-    if (st == FC_OK && corr) {
-        /* corr_n = start(n) - weights(n), and the kernel is the weights */
-        st = fc_trapezoid_start(order, step, 0, n, cr);
-        for (size_t i = 0; st == FC_OK && i < n; i++) cr[i] -= c[i];
-    }
-    if (st != FC_OK) goto done;
-    const double *in = x;
+    long double Ml;
+    long E;
+    fc__rule_scale(rule, order, step, &Ml, &E);
+    fc__unit_lag_kernel(rule, order, 0, n, c);
+    if (corr) fc__unit_x0_correction(rule, order, 0, n, cr);
+    /* samples scaled to a largest magnitude in [1/2, 1); for L1 their
+       differences, taken after scaling (so that they cannot overflow) */
+    scale_copy(x, total, ex, u);
     if (diffs) {
         for (size_t sg = 0; sg < nsig; sg++) {
-            const double *xs = x + sg * n;
             double *us = u + sg * n;
+            for (size_t i = n - 1; i > 0; i--) us[i] -= us[i - 1];
             us[0] = 0.0;
-            for (size_t i = 1; i < n; i++) us[i] = xs[i] - xs[i - 1];
-        }
-        in = u;
-    }
-    st = lagsum_checked(ctx, in, nsig, n, c, n, engine, y);
-    if (st == FC_OK && corr) {
-        for (size_t sg = 0; sg < nsig; sg++) {
-            double x0 = x[sg * n];
-            double *ys = y + sg * n;
-            for (size_t i = 0; i < n; i++) ys[i] += cr[i] * x0;
-            ys[0] = 0.0; /* exactly, whatever the rounding above */
         }
     }
+    /* |u| < 1 (differences: < 2), so |z_n| <= sum|c| |u|max + max|corr| */
+    double zb = (sum_abs(c, n) * (diffs ? 2.0 : 1.0)
+                 + (corr ? max_abs(cr, n) : 0.0)) * (1.0 + 1e-6);
+    /* for the trapezoid the x_0 term uses the scaled x_0 = u[s*n] */
+    st = lagsum_scaled(ctx, u, nsig, n, c, n, engine, cr, u, zb, (double)Ml,
+                       E + ex, y);
 done:
     fc_context_free(own);
     free(mem);
