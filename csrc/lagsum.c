@@ -503,6 +503,10 @@ static int scale_is_safe(double zb, double M, long T)
 static void scale_out(const double *z, size_t n, double M, long T, int fast,
                       double *y)
 {
+    if (fast && M == 1.0 && T == 0) {
+        if (z != y) memcpy(y, z, n * sizeof(double));
+        return;
+    }
     if (fast && T >= -1020 && T <= 1023) {
         const double F = ldexp(M, (int)T);
         for (size_t i = 0; i < n; i++) y[i] = z[i] * F;
@@ -577,15 +581,31 @@ int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
         return FC_OK;
     }
     int ex = exponent_of(xmax), ec = exponent_of(cmax);
-    size_t need;
-    if (fc__add_size(total, K, &need) != FC_OK) return FC_ERR_SIZE;
-    double *mem = malloc(need * sizeof(double));
-    if (mem == NULL) return FC_ERR_NOMEM;
-    double *xs = mem, *cs = mem + total;
-    scale_copy(x, total, ex, xs);
-    scale_copy(kernel, K, ec, cs);
-    /* |xs| < 1: |z_n| <= sum|cs| (1 + rounding) */
-    double zb = sum_abs(cs, K) * (1.0 + 1e-6);
+    /* Ordinary magnitudes are used as they are (no copy): with both
+       largest values within 2^+-400 nothing can overflow on the way
+       (partial sums and FFT values stay below 2^900), and with their
+       product above 2^-30 underflow costs no more than the documented
+       1e-290 times that product. */
+    int scaled = !(ex >= -400 && ex <= 400 && ec >= -400 && ec <= 400
+                   && ex + ec >= -30);
+    double *mem = NULL;
+    const double *xs = x, *cs = kernel;
+    double zb;
+    if (scaled) {
+        size_t need;
+        if (fc__add_size(total, K, &need) != FC_OK) return FC_ERR_SIZE;
+        mem = malloc(need * sizeof(double));
+        if (mem == NULL) return FC_ERR_NOMEM;
+        scale_copy(x, total, ex, mem);
+        scale_copy(kernel, K, ec, mem + total);
+        xs = mem;
+        cs = mem + total;
+        /* |xs| < 1: |z_n| <= sum|cs| (1 + rounding) */
+        zb = sum_abs(cs, K) * (1.0 + 1e-6);
+    } else {
+        ex = ec = 0;
+        zb = sum_abs(kernel, K) * xmax * (1.0 + 1e-6);
+    }
     fc_context *own = NULL;
     int st = FC_OK;
     if (ctx == NULL) {
@@ -619,12 +639,18 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
         return FC_OK;
     }
     int ex = exponent_of(xmax);
-
     int diffs = fc__rule_uses_differences(rule);
     int corr = rule == FC_RULE_TRAPEZOID;
+    /* Samples of ordinary magnitude (largest within 2^-30 .. 2^400, the
+       unit kernels being between 2^-600 and 2^600) are used as they are:
+       nothing can overflow on the way (below 2^900) and underflow costs no
+       more than documented; others are scaled to a largest magnitude in
+       [1/2, 1). */
+    int scaled = !(ex >= -30 && ex <= 400);
+    if (!scaled) ex = 0;
     /* unit kernel n, unit correction n (trapezoid), scaled samples or
-       their differences nsig*n */
-    size_t extra = n + (corr ? n : 0) + total;
+       their differences nsig*n (when needed) */
+    size_t extra = n + (corr ? n : 0) + (scaled || diffs ? total : 0);
     double *mem = malloc(extra * sizeof(double));
     if (mem == NULL) return FC_ERR_NOMEM;
     double *c = mem;
@@ -642,21 +668,29 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
     fc__rule_scale(rule, order, step, &Ml, &E);
     fc__unit_lag_kernel(rule, order, 0, n, c);
     if (corr) fc__unit_x0_correction(rule, order, 0, n, cr);
-    /* samples scaled to a largest magnitude in [1/2, 1); for L1 their
-       differences, taken after scaling (so that they cannot overflow) */
-    scale_copy(x, total, ex, u);
-    if (diffs) {
-        for (size_t sg = 0; sg < nsig; sg++) {
-            double *us = u + sg * n;
-            for (size_t i = n - 1; i > 0; i--) us[i] -= us[i - 1];
-            us[0] = 0.0;
+    /* the samples scaled by 2^-ex; for L1 their differences, taken after
+       scaling (so that they cannot overflow) */
+    const double *in = x;
+    if (scaled || diffs) {
+        if (scaled) scale_copy(x, total, ex, u);
+        if (diffs) {
+            const double *src = scaled ? u : x;
+            for (size_t sg = 0; sg < nsig; sg++) {
+                const double *xs = src + sg * n;
+                double *us = u + sg * n;
+                for (size_t i = n - 1; i > 0; i--) us[i] = xs[i] - xs[i - 1];
+                us[0] = 0.0;
+            }
         }
+        in = u;
     }
-    /* |u| < 1 (differences: < 2), so |z_n| <= sum|c| |u|max + max|corr| */
+    /* |x 2^-ex| <= xs (differences: 2 xs), so
+       |z_n| <= (sum|c| + max|corr|) xs, twice that for differences */
+    double xs = ldexp(xmax, -ex);
     double zb = (sum_abs(c, n) * (diffs ? 2.0 : 1.0)
-                 + (corr ? max_abs(cr, n) : 0.0)) * (1.0 + 1e-6);
-    /* for the trapezoid the x_0 term uses the scaled x_0 = u[s*n] */
-    st = lagsum_scaled(ctx, u, nsig, n, c, n, engine, cr, u, zb, (double)Ml,
+                 + (corr ? max_abs(cr, n) : 0.0)) * xs * (1.0 + 1e-6);
+    /* for the trapezoid the x_0 term uses the (scaled) x_0 = in[s*n] */
+    st = lagsum_scaled(ctx, in, nsig, n, c, n, engine, cr, in, zb, (double)Ml,
                        E + ex, y);
 done:
     fc_context_free(own);
