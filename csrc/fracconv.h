@@ -151,10 +151,12 @@ int fc_context_nbytes(const fc_context *ctx, size_t *nbytes);
  * (a temporary context is used). Samples must be finite (FC_ERR_NONFINITE;
  * y untouched). n == 0 or nsig == 0 is allowed (nothing is written).
  *
- * Accuracy: with FC_ENGINE_DIRECT, FC_ENGINE_BLOCKED and FC_ENGINE_AUTO
- * every output is within 1e-13 * sum_k |kernel[i-k] x[s*n+k]| of its exact
- * value (componentwise), for every kernel length; FC_ENGINE_FFT is accurate
- * only normwise. Any finite samples and kernel may be given: the engines
+ * Accuracy: with FC_ENGINE_DIRECT every output is within
+ * 1e-13 * sum_k |kernel[i-k] x[s*n+k]| of its exact value (componentwise)
+ * for any kernel of any length; FC_ENGINE_BLOCKED and FC_ENGINE_AUTO give
+ * the same for the rules' kernels and kernels whose size changes like a
+ * power of the lag (not for kernels with zeros or sign changes inside
+ * their range); FC_ENGINE_FFT is accurate only normwise. Any finite samples and kernel may be given: the engines
  * work on copies scaled by powers of two, so nothing overflows on the way,
  * and the call returns FC_ERR_RANGE (y untouched) exactly when an output
  * is beyond the double range (up to rounding at the boundary). Outputs in

@@ -59,7 +59,7 @@ int fc__x0_correction(int rule, double order, double step, uint64_t start,
 /*
  * Unit forms (weights.c, rules.c): every weight sequence is a unit sequence
  * (the formulas of fracconv.h without the step factor; moderate numbers:
- * between about 2^-600 and 2^600 for every index below 2^53) times the
+ * roughly between 2^-700 and 2^600 for every index below 2^53) times the
  * rule's scale factor M 2^E, 0.5 <= M < 1 (h^a/Gamma(a+1), h^a/Gamma(a+2),
  * h^-a, h^-a/Gamma(2-a)), which may itself be far outside the double
  * range. kind: a rule, or FC__START_WEIGHTS for the trapezoid start weights

@@ -390,8 +390,10 @@ def test_lagged_sum_extreme_values():
 @pytest.mark.parametrize("h", [5e-324, 1e-300, 1e-30, 1e30, 1e300, 1.7e308])
 def test_weights_extreme_steps(rule, a, h):
     # fc_weights and fc_trapezoid_start: the mpmath values of the formulas
-    # to 1e-14 relative (gradual underflow below DBL_MIN: 2^-1074 absolute),
-    # or RangeError exactly when one of them exceeds DBL_MAX.
+    # of fracconv.h (Grunwald: g_m = (-1)^m binom(a, m), Podlubny, Fractional
+    # Differential Equations, Academic Press 1999, sec. 2.2) to 1e-14
+    # relative (gradual underflow below DBL_MIN: 2^-1074 absolute), or
+    # RangeError exactly when one of them exceeds DBL_MAX.
     idx = [0, 1, 2, 5, 100, 10**6, 10**12]
     with mpmath.workdps(60):
         A, H = mpmath.mpf(a), mpmath.mpf(h)
@@ -408,12 +410,10 @@ def test_weights_extreme_steps(rule, a, h):
             else:
                 r = H ** (-A) / mpmath.gamma(2 - A) * ((M + 1) ** (1 - A) - M ** (1 - A))
             refs.append(r)
-    big = max(abs(r) for r in refs)
     for j, m in enumerate(idx):
-        if big > MP_DBL_MAX:
-            if abs(refs[j]) > MP_DBL_MAX:
-                with pytest.raises(RangeError):
-                    pyfracconv.weights(rule, a, 1, step=h, start=m)
+        if abs(refs[j]) > MP_DBL_MAX:
+            with pytest.raises(RangeError):
+                pyfracconv.weights(rule, a, 1, step=h, start=m)
             continue
         w = pyfracconv.weights(rule, a, 1, step=h, start=m)[0]
         assert np.isfinite(w)
@@ -439,6 +439,19 @@ def test_weights_range_leaves_output():
     assert st == lib.FC_ERR_RANGE and np.all(out == 7.0)
     st = lib.fc_trapezoid_start(10.0, 1e300, 0, 4, dbuf(out))
     assert st == lib.FC_ERR_RANGE and np.all(out == 7.0)
+    # Only the later weights of a run beyond DBL_MAX (mpmath: the last one
+    # is, the first one is not): refused as a whole, nothing written.
+    h, a, n = 7.2e28, 10.0, 2000
+    with mpmath.workdps(40):
+        u = mpmath.mpf(h) ** a / mpmath.gamma(a + 1)
+        last = u * ((mpmath.mpf(n - 1) + 1) ** a - mpmath.mpf(n - 1) ** a)
+        first = u
+    assert last > MP_DBL_MAX and first < MP_DBL_MAX
+    out = np.full(n, 7.0)
+    st = lib.fc_weights(lib.FC_RULE_RECTANGLE, a, h, 0, n, dbuf(out))
+    assert st == lib.FC_ERR_RANGE and np.all(out == 7.0)
+    w0 = pyfracconv.weights("rectangle", a, 1, step=h)[0]
+    assert abs(mpmath.mpf(float(w0)) - first) <= 1e-14 * first
 
 
 @pytest.mark.parametrize("kind,rule,a,h", [("derivative", "grunwald", 10.0, 1e300),
