@@ -78,7 +78,7 @@ static int scale_strict(int kind, double a, double h, uint64_t end,
     } else {
         for (size_t i = 0; i < count; i++) {
             double w = v[i], r = fc__scale_value(w, M, E);
-            bad |= !isfinite(r) | ((w != 0.0) & (fabs(r) < DBL_MIN));
+            bad |= (!isfinite(r)) | ((w != 0.0) & (fabs(r) < DBL_MIN));
             v[i] = r;
         }
     }
