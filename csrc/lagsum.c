@@ -524,19 +524,18 @@ static int scale_check(const double *z, size_t n, double M, long T)
 }
 
 /*
- * The scaled lagged sum y = (M 2^T) lagsum(in, c), in and c already
- * scaled, |z_n| <= zb: straight into y when the scaling cannot overflow,
- * else through a temporary that is checked first (FC_ERR_RANGE, y
- * untouched). corr (may be NULL): z_n += corr[n] * in_x0[s*n] before
- * scaling, and y_0 = 0 exactly (trapezoid).
+ * The scaled lagged sum: signal s of y is (M 2^T[s]) lagsum(in_s, c), in
+ * and c already scaled; straight into y when the caller found that the
+ * scaling cannot overflow (safe), else through a temporary that is checked
+ * first (FC_ERR_RANGE, y untouched). corr (may be NULL): z_n += corr[n] *
+ * in[s*n] before scaling, and y_0 = 0 exactly (trapezoid).
  */
 static int lagsum_scaled(fc_context *ctx, const double *in, size_t nsig,
                          size_t n, const double *c, size_t K, int engine,
-                         const double *corr, const double *in_x0,
-                         double zb, double M, long T, double *y)
+                         const double *corr, double M, const long *T,
+                         int safe, double *y)
 {
     size_t total = nsig * n;
-    int safe = scale_is_safe(zb, M, T);
     double *z = y, *tmp = NULL;
     if (!safe) {
         tmp = malloc(total * sizeof(double));
@@ -546,16 +545,33 @@ static int lagsum_scaled(fc_context *ctx, const double *in, size_t nsig,
     int st = lagsum_checked(ctx, in, nsig, n, c, K, engine, z);
     if (st == FC_OK && corr != NULL) {
         for (size_t sg = 0; sg < nsig; sg++) {
-            double x0 = in_x0[sg * n];
+            double x0 = in[sg * n];
             double *zs = z + sg * n;
             for (size_t i = 0; i < n; i++) zs[i] += corr[i] * x0;
             zs[0] = 0.0; /* exactly, whatever the rounding above */
         }
     }
-    if (st == FC_OK && !safe) st = scale_check(z, total, M, T);
-    if (st == FC_OK) scale_out(z, total, M, T, safe, y);
+    for (size_t sg = 0; st == FC_OK && !safe && sg < nsig; sg++)
+        st = scale_check(z + sg * n, n, M, T[sg]);
+    if (st == FC_OK)
+        for (size_t sg = 0; sg < nsig; sg++)
+            scale_out(z + sg * n, n, M, T[sg], safe, y + sg * n);
     free(tmp);
     return st;
+}
+
+/*
+ * The largest magnitude xm[s] of each signal and its exponent ex[s]
+ * (xm = f 2^ex, 0.5 <= f < 1; ex = 0 for a signal of zeros).
+ */
+static void signal_maxima(const double *x, size_t nsig, size_t n, long *ex,
+                          double *xm)
+{
+    for (size_t sg = 0; sg < nsig; sg++) {
+        double m = max_abs(x + sg * n, n);
+        xm[sg] = m;
+        ex[sg] = m > 0.0 ? exponent_of(m) : 0;
+    }
 }
 
 int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
@@ -575,36 +591,59 @@ int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
     if (fc__check_finite(kernel, klen) != FC_OK) return FC_ERR_KERNEL;
     if (fc__check_finite(x, total) != FC_OK) return FC_ERR_NONFINITE;
     size_t K = klen < n ? klen : n;
-    double xmax = max_abs(x, total), cmax = max_abs(kernel, K);
-    if (xmax == 0.0 || cmax == 0.0) {
+    double cmax = max_abs(kernel, K);
+    if (cmax == 0.0) {
         memset(y, 0, total * sizeof(double));
         return FC_OK;
     }
-    int ex = exponent_of(xmax), ec = exponent_of(cmax);
+    int ec = exponent_of(cmax);
+    size_t need;
+    if (fc__mul_size(nsig, sizeof(long) + sizeof(double), &need) != FC_OK)
+        return FC_ERR_SIZE;
+    void *meta = malloc(need);
+    if (meta == NULL) return FC_ERR_NOMEM;
+    long *T = meta;
+    double *xm = (double *)(T + nsig);
     /* Ordinary magnitudes are used as they are (no copy): with both
        largest values within 2^+-400 nothing can overflow on the way
        (partial sums and FFT values stay below 2^900), and with their
        product above 2^-30 underflow costs no more than the documented
-       1e-290 times that product. */
-    int scaled = !(ex >= -400 && ex <= 400 && ec >= -400 && ec <= 400
-                   && ex + ec >= -30);
+       1e-290 times that product. Otherwise each signal is scaled to a
+       largest magnitude in [1/2, 1), and so is the kernel. */
+    signal_maxima(x, nsig, n, T, xm);
+    int scaled = ec < -400 || ec > 400;
+    for (size_t sg = 0; sg < nsig; sg++)
+        if (xm[sg] > 0.0 && (T[sg] < -400 || T[sg] > 400 || T[sg] + ec < -30))
+            scaled = 1;
+    if (!scaled) {
+        ec = 0;
+        for (size_t sg = 0; sg < nsig; sg++) T[sg] = 0;
+    }
     double *mem = NULL;
     const double *xs = x, *cs = kernel;
-    double zb;
     if (scaled) {
-        size_t need;
-        if (fc__add_size(total, K, &need) != FC_OK) return FC_ERR_SIZE;
+        if (fc__add_size(total, K, &need) != FC_OK) {
+            free(meta);
+            return FC_ERR_SIZE;
+        }
         mem = malloc(need * sizeof(double));
-        if (mem == NULL) return FC_ERR_NOMEM;
-        scale_copy(x, total, ex, mem);
+        if (mem == NULL) {
+            free(meta);
+            return FC_ERR_NOMEM;
+        }
+        for (size_t sg = 0; sg < nsig; sg++)
+            scale_copy(x + sg * n, n, (int)T[sg], mem + sg * n);
         scale_copy(kernel, K, ec, mem + total);
         xs = mem;
         cs = mem + total;
-        /* |xs| < 1: |z_n| <= sum|cs| (1 + rounding) */
-        zb = sum_abs(cs, K) * (1.0 + 1e-6);
-    } else {
-        ex = ec = 0;
-        zb = sum_abs(kernel, K) * xmax * (1.0 + 1e-6);
+    }
+    /* |z_n| <= sum|cs| max|xs| (1 + rounding), for each signal */
+    double csum = sum_abs(cs, K) * (1.0 + 1e-6);
+    int safe = 1;
+    for (size_t sg = 0; sg < nsig; sg++) {
+        double xsm = ldexp(xm[sg], -(int)T[sg]); /* max of the signal used */
+        T[sg] += ec;
+        if (!scale_is_safe(csum * xsm, 1.0, T[sg])) safe = 0;
     }
     fc_context *own = NULL;
     int st = FC_OK;
@@ -613,10 +652,11 @@ int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
         ctx = own;
     }
     if (st == FC_OK)
-        st = lagsum_scaled(ctx, xs, nsig, n, cs, K, engine, NULL, NULL, zb,
-                           1.0, (long)ex + ec, y);
+        st = lagsum_scaled(ctx, xs, nsig, n, cs, K, engine, NULL, 1.0, T,
+                           safe, y);
     fc_context_free(own);
     free(mem);
+    free(meta);
     return st;
 }
 
@@ -633,26 +673,35 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
     if (x == NULL || y == NULL) return FC_ERR_NULL;
     if (overlaps(x, total, y, total)) return FC_ERR_ARG;
     if (fc__check_finite(x, total) != FC_OK) return FC_ERR_NONFINITE;
-    double xmax = max_abs(x, total);
-    if (xmax == 0.0) { /* every output is exactly 0 */
-        memset(y, 0, total * sizeof(double));
-        return FC_OK;
-    }
-    int ex = exponent_of(xmax);
+
     int diffs = fc__rule_uses_differences(rule);
     int corr = rule == FC_RULE_TRAPEZOID;
-    /* Samples of ordinary magnitude (largest within 2^-30 .. 2^400, the
-       unit kernels being between 2^-600 and 2^600) are used as they are:
-       nothing can overflow on the way (below 2^900) and underflow costs no
-       more than documented; others are scaled to a largest magnitude in
-       [1/2, 1). */
-    int scaled = !(ex >= -30 && ex <= 400);
-    if (!scaled) ex = 0;
+    size_t need;
+    if (fc__mul_size(nsig, sizeof(long) + sizeof(double), &need) != FC_OK)
+        return FC_ERR_SIZE;
+    void *meta = malloc(need);
+    if (meta == NULL) return FC_ERR_NOMEM;
+    long *T = meta;
+    double *xm = (double *)(T + nsig);
+    /* Samples of ordinary magnitude (every signal's largest within
+       2^-30 .. 2^400, the unit kernels being between about 2^-700 and
+       2^600) are used as they are: nothing can overflow on the way (below
+       2^900) and underflow costs no more than documented. Otherwise each
+       signal is scaled to a largest magnitude in [1/2, 1). */
+    signal_maxima(x, nsig, n, T, xm);
+    int scaled = 0;
+    for (size_t sg = 0; sg < nsig; sg++)
+        if (xm[sg] > 0.0 && (T[sg] < -30 || T[sg] > 400)) scaled = 1;
+    if (!scaled)
+        for (size_t sg = 0; sg < nsig; sg++) T[sg] = 0;
     /* unit kernel n, unit correction n (trapezoid), scaled samples or
        their differences nsig*n (when needed) */
     size_t extra = n + (corr ? n : 0) + (scaled || diffs ? total : 0);
     double *mem = malloc(extra * sizeof(double));
-    if (mem == NULL) return FC_ERR_NOMEM;
+    if (mem == NULL) {
+        free(meta);
+        return FC_ERR_NOMEM;
+    }
     double *c = mem;
     double *cr = corr ? c + n : NULL;
     double *u = c + n + (corr ? n : 0);
@@ -668,16 +717,18 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
     fc__rule_scale(rule, order, step, &Ml, &E);
     fc__unit_lag_kernel(rule, order, 0, n, c);
     if (corr) fc__unit_x0_correction(rule, order, 0, n, cr);
-    /* the samples scaled by 2^-ex; for L1 their differences, taken after
+    /* each signal scaled by 2^-ex; for L1 the differences, taken after
        scaling (so that they cannot overflow) */
     const double *in = x;
     if (scaled || diffs) {
-        if (scaled) scale_copy(x, total, ex, u);
-        if (diffs) {
-            const double *src = scaled ? u : x;
-            for (size_t sg = 0; sg < nsig; sg++) {
-                const double *xs = src + sg * n;
-                double *us = u + sg * n;
+        for (size_t sg = 0; sg < nsig; sg++) {
+            const double *xs = x + sg * n;
+            double *us = u + sg * n;
+            if (scaled) {
+                scale_copy(xs, n, (int)T[sg], us);
+                xs = us;
+            }
+            if (diffs) {
                 for (size_t i = n - 1; i > 0; i--) us[i] = xs[i] - xs[i - 1];
                 us[0] = 0.0;
             }
@@ -686,14 +737,19 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
     }
     /* |x 2^-ex| <= xs (differences: 2 xs), so
        |z_n| <= (sum|c| + max|corr|) xs, twice that for differences */
-    double xs = ldexp(xmax, -ex);
-    double zb = (sum_abs(c, n) * (diffs ? 2.0 : 1.0)
-                 + (corr ? max_abs(cr, n) : 0.0)) * xs * (1.0 + 1e-6);
-    /* for the trapezoid the x_0 term uses the (scaled) x_0 = in[s*n] */
-    st = lagsum_scaled(ctx, in, nsig, n, c, n, engine, cr, in, zb, (double)Ml,
-                       E + ex, y);
+    double cb = (sum_abs(c, n) * (diffs ? 2.0 : 1.0)
+                 + (corr ? max_abs(cr, n) : 0.0)) * (1.0 + 1e-6);
+    int safe = 1;
+    for (size_t sg = 0; sg < nsig; sg++) {
+        double xs = ldexp(xm[sg], -(int)T[sg]);
+        T[sg] += E;
+        if (!scale_is_safe(cb * xs, (double)Ml, T[sg])) safe = 0;
+    }
+    st = lagsum_scaled(ctx, in, nsig, n, c, n, engine, cr, (double)Ml, T,
+                       safe, y);
 done:
     fc_context_free(own);
     free(mem);
+    free(meta);
     return st;
 }

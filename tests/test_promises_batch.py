@@ -512,3 +512,30 @@ def test_adjacent_buffers_accepted():
                              dbuf(buf2[:n])) == lib.FC_OK
     ref, scale = lag_reference(x.copy(), np.ones(3), np.arange(n))
     assert componentwise_error(buf2[:n], ref, scale) <= TOL
+
+
+@pytest.mark.parametrize("kind,rule,a", [("integral", "rectangle", 0.5), ("integral", "trapezoid", 2.5),
+                                         ("derivative", "grunwald", 0.5), ("derivative", "l1", 0.5)])
+def test_signals_of_very_different_sizes(kind, rule, a):
+    # Each signal of a call is scaled on its own: a signal near 1e300 beside
+    # one near 1e-300 keeps every output of both within the bound (mpmath
+    # reference of the rule's formula, as above).
+    rng = np.random.default_rng(17)
+    N = 40
+    x = np.stack([rng.uniform(0.5, 1.5, N) * 1e300, rng.standard_normal(N) * 1e-300,
+                  np.zeros(N), rng.standard_normal(N)])
+    f = pyfracconv.derivative if kind == "derivative" else pyfracconv.integral
+    y = f(x, a, 1e-3, rule=rule)
+    for s in range(len(x)):
+        ref, scale, u = mp_rule(rule, a, 1e-3, x[s])
+        for n in range(N):
+            assert abs(mpmath.mpf(float(y[s, n])) - ref[n]) <= TOL * scale[n], (s, n)
+    # lagged sums, both engines, a kernel of ordinary size
+    c = 1.0 / (1.0 + np.arange(N)) ** 1.5
+    for engine in ("direct", "blocked"):
+        y = pyfracconv.lagged_sum(x, c, engine=engine)
+        for s in range(len(x)):
+            for n in range(N):
+                t = [Fraction(float(c[n - k])) * Fraction(float(x[s, k])) for k in range(n + 1)]
+                err = abs(Fraction(float(y[s, n])) - sum(t))
+                assert err <= Fraction(TOL) * sum(abs(v) for v in t), (engine, s, n)
