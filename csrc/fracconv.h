@@ -156,14 +156,17 @@ int fc_context_nbytes(const fc_context *ctx, size_t *nbytes);
  * for any kernel of any length; FC_ENGINE_BLOCKED and FC_ENGINE_AUTO give
  * the same for the rules' kernels and kernels whose size changes like a
  * power of the lag (not for kernels with zeros or sign changes inside
- * their range); FC_ENGINE_FFT is accurate only normwise. Any finite samples and kernel may be given: the engines
- * work on copies scaled by powers of two, so nothing overflows on the way,
- * and the call returns FC_ERR_RANGE (y untouched) exactly when an output
- * is beyond the double range (up to rounding at the boundary). Outputs in
- * or near the subnormal range (error scale below about 1e-290 times the
- * largest |x| times the largest |kernel|) underflow gradually: their error
- * is absolute, about n 2^-1074 times that product, and the relative bound
- * does not hold there.
+ * their range); FC_ENGINE_FFT is accurate only normwise.
+ *
+ * Range: any finite samples and kernel may be given. Signals and kernels
+ * of extreme magnitude are scaled by powers of two (each signal by its
+ * own), so nothing overflows on the way, and the call returns FC_ERR_RANGE
+ * (y untouched) exactly when an output is beyond the double range (up to
+ * rounding at the boundary). Outputs in or near the subnormal range (error
+ * scale below about 1e-290 times the largest |x| of their signal times the
+ * largest |kernel|) underflow gradually: their error is absolute, about
+ * n 2^-1074 times that product, and the relative bound does not hold
+ * there.
  */
 int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
                   const double *kernel, size_t klen, int engine, double *y);
@@ -176,8 +179,9 @@ int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
  * fc_weights. Accuracy as for fc_lagged_sum, with the terms of the rule's
  * formula (the step factor included; for L1 the terms
  * d_k (x_{n-k} - x_{n-k-1})). Any finite samples and any step are
- * accepted: the samples are scaled by a power of two (L1 differences taken
- * after scaling) and the step factor h^a/Gamma(a+1) etc. is applied last as
+ * accepted: signals of extreme magnitude are scaled by a power of two each
+ * (L1 differences taken after scaling), the weights are used without the
+ * step factor, and the factor h^a/Gamma(a+1) etc. is applied last as
  * a mantissa and a power of two, so h^a itself may be far outside the
  * double range; FC_ERR_RANGE (y untouched) exactly when an output is beyond
  * it. Outputs whose terms are in or near the subnormal range underflow

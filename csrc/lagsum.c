@@ -459,11 +459,15 @@ static double sum_abs(const double *v, size_t n)
 
 /*
  * Scaling by powers of two (exact in binary floating point, except for
- * gradual underflow). Every engine runs on samples scaled to a largest
- * magnitude in [1/2, 1) and on a kernel of moderate size (the unit kernel
- * of a rule, or the user's kernel scaled the same way), so no partial sum,
- * FFT value or difference can overflow; the outputs z are then multiplied
- * by the factor M 2^T that was taken out.
+ * gradual underflow). Every engine runs on samples of moderate size (as
+ * they are when every signal's largest magnitude is ordinary, else each
+ * signal scaled to a largest magnitude in [1/2, 1)) and on a kernel of
+ * moderate size (the unit kernel of a rule, or the user's kernel, scaled
+ * the same way when needed), so no partial sum, FFT value or difference
+ * can overflow; the outputs z of signal s are then multiplied by the factor
+ * M 2^T[s] that was taken out (one multiplication per output when that is
+ * a normal double and no output can overflow; else checked first, so that
+ * FC_ERR_RANGE leaves y untouched).
  */
 
 /* The exponent e of v = f 2^e, 0.5 <= f < 1 (v > 0 finite). */
