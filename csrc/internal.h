@@ -80,6 +80,9 @@ double fc__scale_value(double w, long double M, long E);
  */
 void fc__unit_lag_kernel(int rule, double order, uint64_t start,
                          size_t count, double *c);
+/* Both at once for the engines: the unit kernel c and its scale M 2^E. */
+void fc__unit_kernel(int rule, double order, double step, uint64_t start,
+                     size_t count, double *c, long double *M, long *E);
 void fc__unit_x0_correction(int rule, double order, uint64_t start,
                             size_t count, double *corr);
 static inline int fc__rule_uses_differences(int rule)

@@ -718,8 +718,7 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
     }
     long double Ml;
     long E;
-    fc__rule_scale(rule, order, step, &Ml, &E);
-    fc__unit_lag_kernel(rule, order, 0, n, c);
+    fc__unit_kernel(rule, order, step, 0, n, c, &Ml, &E);
     if (corr) fc__unit_x0_correction(rule, order, 0, n, cr);
     /* each signal scaled by 2^-ex; for L1 the differences, taken after
        scaling (so that they cannot overflow) */

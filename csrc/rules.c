@@ -35,6 +35,13 @@ void fc__unit_lag_kernel(int rule, double order, uint64_t start,
     fc__unit_weights(rule, order, start - 1, count, c);
 }
 
+void fc__unit_kernel(int rule, double order, double step, uint64_t start,
+                     size_t count, double *c, long double *M, long *E)
+{
+    fc__rule_scale(rule, order, step, M, E);
+    fc__unit_lag_kernel(rule, order, start, count, c);
+}
+
 void fc__unit_x0_correction(int rule, double order, uint64_t start,
                             size_t count, double *corr)
 {
