@@ -112,14 +112,21 @@ const char *fc_strerror(int status);
  *   GRUNWALD:  h^-a * g_m                L1:        h^-a/Gamma(2-a) * d_m
  * order: finite, 0 < order <= 10 (L1: 0 < order < 1); step: finite, > 0;
  * start + count <= 2^53; out: count doubles (may be NULL when count == 0).
- * Relative accuracy about 1e-14 for every index (no cancelling formulas).
+ * Relative accuracy about 1e-14 for every index (no cancelling formulas),
+ * whatever the size of the step factor itself (h^a may be far outside the
+ * double range: the factor is kept as a mantissa and a power of two).
+ * A weight beyond the double range makes the call return FC_ERR_RANGE
+ * (nothing written); weights below DBL_MIN underflow gradually to
+ * subnormal numbers or 0, with an absolute error up to 2^-1075 (a relative
+ * bound cannot hold there).
  */
 int fc_weights(int rule, double order, double step, uint64_t start,
                size_t count, double *out);
 
 /*
  * The starting weights of the trapezoid rule, h^a/Gamma(a+2) * A_n for
- * n = start .. start+count-1 (A_0 is defined as 0). Same constraints.
+ * n = start .. start+count-1 (A_0 is defined as 0). Same constraints, same
+ * accuracy, FC_ERR_RANGE and underflow as fc_weights.
  */
 int fc_trapezoid_start(double order, double step, uint64_t start,
                        size_t count, double *out);
@@ -138,20 +145,47 @@ int fc_context_nbytes(const fc_context *ctx, size_t *nbytes);
 /*
  * Lagged sums of nsig signals sharing one kernel:
  *   y[s*n + i] = sum_{k=0}^{i} kernel[i-k] * x[s*n + k],  i < n, s < nsig,
- * with kernel[m] = 0 for m >= klen. x and y: nsig*n doubles, row-major,
- * may not overlap; kernel: klen >= 1 finite doubles; engine: FC_ENGINE_*.
- * ctx may be NULL (a temporary context is used). Samples must be finite
- * (FC_ERR_NONFINITE; y untouched). n == 0 or nsig == 0 is allowed (nothing
- * is written).
+ * with kernel[m] = 0 for m >= klen. x and y: nsig*n doubles, row-major;
+ * kernel: klen >= 1 finite doubles; engine: FC_ENGINE_*. y must not overlap
+ * x or kernel (FC_ERR_ARG; in-place use is not supported). ctx may be NULL
+ * (a temporary context is used). Samples must be finite (FC_ERR_NONFINITE;
+ * y untouched). n == 0 or nsig == 0 is allowed (nothing is written).
+ *
+ * Accuracy: with FC_ENGINE_DIRECT every output is within
+ * 1e-13 * sum_k |kernel[i-k] x[s*n+k]| of its exact value (componentwise)
+ * for any kernel of any length; FC_ENGINE_BLOCKED and FC_ENGINE_AUTO give
+ * the same for the rules' kernels and kernels whose size changes like a
+ * power of the lag (not for kernels with zeros or sign changes inside
+ * their range); FC_ENGINE_FFT is accurate only normwise.
+ *
+ * Range: any finite samples and kernel may be given. Signals and kernels
+ * of extreme magnitude are scaled by powers of two (each signal by its
+ * own), so nothing overflows on the way, and the call returns FC_ERR_RANGE
+ * (y untouched) exactly when an output is beyond the double range (up to
+ * rounding at the boundary). Outputs in or near the subnormal range (error
+ * scale below about 1e-290 times the largest |x| of their signal times the
+ * largest |kernel|) underflow gradually: their error is absolute, about
+ * n 2^-1074 times that product, and the relative bound does not hold
+ * there.
  */
 int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
                   const double *kernel, size_t klen, int engine, double *y);
 
 /*
- * A rule applied to nsig signals of n samples each (x, y as above):
- * y[s*n + i] approximates the operator at t_i = i*step. Integrals:
- * RECTANGLE, TRAPEZOID; derivatives: GRUNWALD, L1. The weights are computed
- * inside (count n); order and step as for fc_weights.
+ * A rule applied to nsig signals of n samples each (x, y as above; y must
+ * not overlap x, FC_ERR_ARG): y[s*n + i] approximates the operator at
+ * t_i = i*step. Integrals: RECTANGLE, TRAPEZOID; derivatives: GRUNWALD, L1.
+ * The weights are computed inside (count n); order and step as for
+ * fc_weights. Accuracy as for fc_lagged_sum, with the terms of the rule's
+ * formula (the step factor included; for L1 the terms
+ * d_k (x_{n-k} - x_{n-k-1})). Any finite samples and any step are
+ * accepted: signals of extreme magnitude are scaled by a power of two each
+ * (L1 differences taken after scaling), the weights are used without the
+ * step factor, and the factor h^a/Gamma(a+1) etc. is applied last as
+ * a mantissa and a power of two, so h^a itself may be far outside the
+ * double range; FC_ERR_RANGE (y untouched) exactly when an output is beyond
+ * it. Outputs whose terms are in or near the subnormal range underflow
+ * gradually (absolute error, as for fc_lagged_sum).
  */
 int fc_apply(fc_context *ctx, int rule, double order, double step,
              const double *x, size_t nsig, size_t n, int engine, double *y);

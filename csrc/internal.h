@@ -46,12 +46,45 @@ int fc__check_rule(int rule, double order, double step);
  *   grunwald:  c_m = weights(m)
  *   l1:        c_m = weights(m)
  * The functions below fill c (or corr) for the indices start..start+count-1
- * and assume fc__check_rule passed.
+ * and assume fc__check_rule passed. They return FC_ERR_RANGE (the contents
+ * of c or corr then unspecified) when a value is out of the normal double
+ * range: one that overflows, or a non-zero one that would be subnormal or
+ * zero (a relative accuracy cannot hold there), so that a stream never
+ * runs with an infinite kernel or one flushed to zero.
  */
 int fc__lag_kernel(int rule, double order, double step, uint64_t start,
                    size_t count, double *c);
 int fc__x0_correction(int rule, double order, double step, uint64_t start,
                       size_t count, double *corr);
+/*
+ * Unit forms (weights.c, rules.c): every weight sequence is a unit sequence
+ * (the formulas of fracconv.h without the step factor; moderate numbers:
+ * roughly between 2^-700 and 2^600 for every index below 2^53) times the
+ * rule's scale factor M 2^E, 0.5 <= M < 1 (h^a/Gamma(a+1), h^a/Gamma(a+2),
+ * h^-a, h^-a/Gamma(2-a)), which may itself be far outside the double
+ * range. kind: a rule, or FC__START_WEIGHTS for the trapezoid start weights
+ * (whose scale is that of FC_RULE_TRAPEZOID). Arguments already checked.
+ */
+#define FC__START_WEIGHTS (-1)
+void fc__unit_weights(int kind, double a, uint64_t start, size_t count,
+                      double *out);
+void fc__rule_scale(int kind, double a, double h, long double *M, long *E);
+/* log2 of an upper bound of the unit weights of kind for indices < M. */
+double fc__unit_log2_bound(int kind, double a, uint64_t M);
+/* w M 2^E rounded to double: inf on overflow, gradual underflow. */
+double fc__scale_value(double w, long double M, long E);
+/*
+ * The unit lagged-sum kernel c (as fc__lag_kernel, without the factor) and
+ * the unit x_0 correction, for indices start .. start+count-1; the factor
+ * of both is fc__rule_scale(rule, ...).
+ */
+void fc__unit_lag_kernel(int rule, double order, uint64_t start,
+                         size_t count, double *c);
+/* Both at once for the engines: the unit kernel c and its scale M 2^E. */
+void fc__unit_kernel(int rule, double order, double step, uint64_t start,
+                     size_t count, double *c, long double *M, long *E);
+void fc__unit_x0_correction(int rule, double order, uint64_t start,
+                            size_t count, double *corr);
 static inline int fc__rule_uses_differences(int rule)
 {
     return rule == FC_RULE_L1;

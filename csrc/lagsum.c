@@ -4,7 +4,9 @@
  *
  * Engines:
  *   direct   O(N*K) summation, blocked so that a chunk of outputs stays in
- *            cache while every lag is added to it.
+ *            cache while every lag is added to it; lags in groups, each
+ *            group's sum added with TwoSum (componentwise accurate for
+ *            every kernel length; see direct_accumulate).
  *   blocked  lags below FC_DIRECT_BAND summed directly; the rest cut into
  *            segments of growing size, each an FFT block convolution whose
  *            kernel values vary little over the lags it touches, so every
@@ -13,6 +15,10 @@
  *            O(N log N) work for N samples (O(N log K) for K lags).
  *   fft      one FFT convolution of the whole record: O(N log N), accurate
  *            only normwise (small outputs next to large ones lose digits).
+ *
+ * fc_lagged_sum and fc_apply run every engine on samples (and a kernel)
+ * scaled by powers of two and apply the factor taken out at the end, so
+ * that finite input never overflows on the way (see lagsum_scaled).
  */
 #include "internal.h"
 
@@ -89,9 +95,25 @@ static int ensure_work(fc_context *ctx, size_t doubles)
 
 /*
  * y[i] += sum_{m=0}^{min(i, K-1)} c[m] * x[i-m] for 0 <= i < len.
- * Outputs are taken in cache-sized chunks; within a chunk the lags are added
- * in increasing order (an axpy per lag, which the compiler vectorises).
+ *
+ * Outputs are taken in cache-sized chunks; within a chunk the lags are
+ * added in increasing order (an axpy per lag, which the compiler
+ * vectorises). Plain recursive summation of K terms has an error up to
+ * about K eps sum|terms| (Higham, Accuracy and Stability of Numerical
+ * Algorithms, 2002, sec. 4.2), too much for long kernels (a tail of small
+ * lags below half an ulp of the running sum is dropped altogether). So the
+ * lags are taken in groups of FC_DIRECT_GROUP: the first group is summed
+ * into y as before (kernels of at most FC_DIRECT_GROUP lags give the same
+ * bits as plain summation), every later group plainly into a temporary,
+ * and that group sum is added to y with TwoSum (Knuth, TAOCP vol. 2,
+ * sec. 4.2.2), the rounding errors gathered in a correction added at the
+ * end of the chunk (cascaded summation, Higham sec. 4.3). Error about
+ * (FC_DIRECT_GROUP + 2) eps sum|terms| whatever K, for about one TwoSum
+ * (six additions) per output and group, i.e. some 5% more work than the
+ * plain sum at K >> FC_DIRECT_GROUP.
  */
+#define FC_DIRECT_GROUP 128
+
 #if defined(__GNUC__) && !defined(__clang__) && defined(__x86_64__) \
     && defined(__linux__)
 /* AVX2 and generic versions, chosen once by the loader (no global state of
@@ -102,10 +124,12 @@ static void direct_accumulate(const double *restrict x, size_t len,
                               const double *restrict c, size_t K,
                               double *restrict y)
 {
+    double grp[FC_DIRECT_CHUNK], cor[FC_DIRECT_CHUNK];
     for (size_t i0 = 0; i0 < len; i0 += FC_DIRECT_CHUNK) {
         size_t i1 = i0 + FC_DIRECT_CHUNK < len ? i0 + FC_DIRECT_CHUNK : len;
         size_t mmax = K < i1 ? K : i1; /* lags 0 .. mmax-1 */
-        for (size_t m = 0; m < mmax; m++) {
+        size_t m1 = mmax < FC_DIRECT_GROUP ? mmax : FC_DIRECT_GROUP;
+        for (size_t m = 0; m < m1; m++) {
             const double cm = c[m];
             size_t ib = i0 > m ? i0 : m;
             double *restrict yy = y + ib;
@@ -113,6 +137,33 @@ static void direct_accumulate(const double *restrict x, size_t len,
             size_t cnt = i1 - ib;
             for (size_t j = 0; j < cnt; j++) yy[j] += cm * xx[j];
         }
+        if (mmax <= FC_DIRECT_GROUP) continue;
+        size_t clen = i1 - i0;
+        for (size_t j = 0; j < clen; j++) cor[j] = 0.0;
+        for (size_t g0 = FC_DIRECT_GROUP; g0 < mmax; g0 += FC_DIRECT_GROUP) {
+            size_t g1 = g0 + FC_DIRECT_GROUP < mmax ? g0 + FC_DIRECT_GROUP : mmax;
+            size_t jb = (i0 > g0 ? i0 : g0) - i0; /* first output of lag g0 */
+            for (size_t j = jb; j < clen; j++) grp[j] = 0.0;
+            for (size_t m = g0; m < g1; m++) {
+                const double cm = c[m];
+                size_t ib = i0 > m ? i0 : m;
+                double *restrict gg = grp + (ib - i0);
+                const double *restrict xx = x + (ib - m);
+                size_t cnt = i1 - ib;
+                for (size_t j = 0; j < cnt; j++) gg[j] += cm * xx[j];
+            }
+            double *restrict yy = y + i0;
+            for (size_t j = jb; j < clen; j++) {
+                /* TwoSum: s + e = yy[j] + grp[j] exactly */
+                double a = yy[j], b = grp[j];
+                double sum = a + b;
+                double bb = sum - a;
+                double e = (a - (sum - bb)) + (b - bb);
+                yy[j] = sum;
+                cor[j] += e;
+            }
+        }
+        for (size_t j = 0; j < clen; j++) y[i0 + j] += cor[j];
     }
 }
 
@@ -388,27 +439,254 @@ static int check_engine(int engine)
                                                                  : FC_ERR_ARG;
 }
 
+/* 1 if [a, a+na) and [b, b+nb) (doubles) share an element. */
+static int overlaps(const double *a, size_t na, const double *b, size_t nb)
+{
+    uintptr_t pa = (uintptr_t)a, pb = (uintptr_t)b;
+    return pa < pb + nb * sizeof(double) && pb < pa + na * sizeof(double);
+}
+
+/* Largest |v[i]| and sum of |v[i]| (the latter only as a bound: four
+   partial sums, so that both loops vectorise). */
+static double max_abs(const double *v, size_t n)
+{
+    double m0 = 0.0, m1 = 0.0, m2 = 0.0, m3 = 0.0;
+    size_t i = 0;
+    for (; i + 4 <= n; i += 4) {
+        double t0 = fabs(v[i]), t1 = fabs(v[i + 1]);
+        double t2 = fabs(v[i + 2]), t3 = fabs(v[i + 3]);
+        m0 = t0 > m0 ? t0 : m0;
+        m1 = t1 > m1 ? t1 : m1;
+        m2 = t2 > m2 ? t2 : m2;
+        m3 = t3 > m3 ? t3 : m3;
+    }
+    for (; i < n; i++) {
+        double t = fabs(v[i]);
+        m0 = t > m0 ? t : m0;
+    }
+    m0 = m1 > m0 ? m1 : m0;
+    m2 = m3 > m2 ? m3 : m2;
+    return m2 > m0 ? m2 : m0;
+}
+
+static double sum_abs(const double *v, size_t n)
+{
+    double s0 = 0.0, s1 = 0.0, s2 = 0.0, s3 = 0.0;
+    size_t i = 0;
+    for (; i + 4 <= n; i += 4) {
+        s0 += fabs(v[i]);
+        s1 += fabs(v[i + 1]);
+        s2 += fabs(v[i + 2]);
+        s3 += fabs(v[i + 3]);
+    }
+    for (; i < n; i++) s0 += fabs(v[i]);
+    return (s0 + s1) + (s2 + s3);
+}
+
+/*
+ * Scaling by powers of two (exact in binary floating point, except for
+ * gradual underflow). Every engine runs on samples of moderate size (as
+ * they are when every signal's largest magnitude is ordinary, else each
+ * signal scaled to a largest magnitude in [1/2, 1)) and on a kernel of
+ * moderate size (the unit kernel of a rule, or the user's kernel, scaled
+ * the same way when needed), so no partial sum, FFT value or difference
+ * can overflow; the outputs z of signal s are then multiplied by the factor
+ * M 2^T[s] that was taken out (one multiplication per output when that is
+ * a normal double and no output can overflow; else checked first, so that
+ * FC_ERR_RANGE leaves y untouched).
+ */
+
+/* The exponent e of v = f 2^e, 0.5 <= f < 1 (v > 0 finite). */
+static int exponent_of(double v)
+{
+    int e;
+    (void)frexp(v, &e);
+    return e;
+}
+
+/* out[i] = x[i] 2^-e, exact unless the result is subnormal (then one
+   rounding, far below the scale of the largest sample). */
+static void scale_copy(const double *x, size_t n, int e, double *out)
+{
+    if (e >= -1021 && e <= 1021) {
+        const double f = ldexp(1.0, -e);
+        for (size_t i = 0; i < n; i++) out[i] = x[i] * f;
+    } else {
+        const double f1 = ldexp(1.0, -e / 2), f2 = ldexp(1.0, -e - (-e / 2));
+        for (size_t i = 0; i < n; i++) out[i] = (x[i] * f1) * f2;
+    }
+}
+
+/*
+ * May z (every |z_n| <= zb) be multiplied by M 2^T in place without a
+ * check? Yes when zb M 2^T < 2^1023 with a factor two to spare.
+ */
+static int scale_is_safe(double zb, double M, long T)
+{
+    if (!(zb > 0.0)) return 1;
+    return (long)exponent_of(zb * M) + T <= 1022;
+}
+
+/* y[i] = z[i] M 2^T (z may be y): one multiplication when M 2^T is a
+   normal double and the caller knows nothing can overflow (fast), else
+   fc__scale_value per value (as scale_check). */
+static void scale_out(const double *z, size_t n, double M, long T, int fast,
+                      double *y)
+{
+    if (fast && M == 1.0 && T == 0) {
+        if (z != y) memcpy(y, z, n * sizeof(double));
+        return;
+    }
+    if (fast && T >= -1020 && T <= 1023) {
+        const double F = ldexp(M, (int)T);
+        for (size_t i = 0; i < n; i++) y[i] = z[i] * F;
+    } else {
+        for (size_t i = 0; i < n; i++) y[i] = fc__scale_value(z[i], M, T);
+    }
+}
+
+/* FC_OK if every z[i] M 2^T is finite, else FC_ERR_RANGE. */
+static int scale_check(const double *z, size_t n, double M, long T)
+{
+    for (size_t i = 0; i < n; i++)
+        if (!isfinite(fc__scale_value(z[i], M, T))) return FC_ERR_RANGE;
+    return FC_OK;
+}
+
+/*
+ * The scaled lagged sum: signal s of y is (M 2^T[s]) lagsum(in_s, c), in
+ * and c already scaled; straight into y when the caller found that the
+ * scaling cannot overflow (safe), else through a temporary that is checked
+ * first (FC_ERR_RANGE, y untouched). corr (may be NULL): z_n += corr[n] *
+ * in[s*n] before scaling, and y_0 = 0 exactly (trapezoid).
+ */
+static int lagsum_scaled(fc_context *ctx, const double *in, size_t nsig,
+                         size_t n, const double *c, size_t K, int engine,
+                         const double *corr, double M, const long *T,
+                         int safe, double *y)
+{
+    size_t total = nsig * n;
+    double *z = y, *tmp = NULL;
+    if (!safe) {
+        tmp = malloc(total * sizeof(double));
+        if (tmp == NULL) return FC_ERR_NOMEM;
+        z = tmp;
+    }
+    int st = lagsum_checked(ctx, in, nsig, n, c, K, engine, z);
+    if (st == FC_OK && corr != NULL) {
+        for (size_t sg = 0; sg < nsig; sg++) {
+            double x0 = in[sg * n];
+            double *zs = z + sg * n;
+            for (size_t i = 0; i < n; i++) zs[i] += corr[i] * x0;
+            zs[0] = 0.0; /* exactly, whatever the rounding above */
+        }
+    }
+    for (size_t sg = 0; st == FC_OK && !safe && sg < nsig; sg++)
+        st = scale_check(z + sg * n, n, M, T[sg]);
+    if (st == FC_OK)
+        for (size_t sg = 0; sg < nsig; sg++)
+            scale_out(z + sg * n, n, M, T[sg], safe, y + sg * n);
+    free(tmp);
+    return st;
+}
+
+/*
+ * The largest magnitude xm[s] of each signal and its exponent ex[s]
+ * (xm = f 2^ex, 0.5 <= f < 1; ex = 0 for a signal of zeros).
+ */
+static void signal_maxima(const double *x, size_t nsig, size_t n, long *ex,
+                          double *xm)
+{
+    for (size_t sg = 0; sg < nsig; sg++) {
+        double m = max_abs(x + sg * n, n);
+        xm[sg] = m;
+        ex[sg] = m > 0.0 ? exponent_of(m) : 0;
+    }
+}
+
 int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
                   const double *kernel, size_t klen, int engine, double *y)
 {
     size_t total;
     if (fc__mul_size(nsig, n, &total) != FC_OK) return FC_ERR_SIZE;
-    if (total > ((size_t)-1) / sizeof(double)) return FC_ERR_SIZE;
+    if (total > ((size_t)-1) / sizeof(double) / 2) return FC_ERR_SIZE;
     if (kernel == NULL) return FC_ERR_NULL;
     if (klen == 0) return FC_ERR_KERNEL;
     if (check_engine(engine) != FC_OK) return FC_ERR_ARG;
     if (total == 0) return FC_OK;
     if (x == NULL || y == NULL) return FC_ERR_NULL;
+    if (klen > ((size_t)-1) / sizeof(double)) return FC_ERR_SIZE;
+    if (overlaps(x, total, y, total) || overlaps(kernel, klen, y, total))
+        return FC_ERR_ARG;
     if (fc__check_finite(kernel, klen) != FC_OK) return FC_ERR_KERNEL;
     if (fc__check_finite(x, total) != FC_OK) return FC_ERR_NONFINITE;
+    size_t K = klen < n ? klen : n;
+    double cmax = max_abs(kernel, K);
+    if (cmax == 0.0) {
+        memset(y, 0, total * sizeof(double));
+        return FC_OK;
+    }
+    int ec = exponent_of(cmax);
+    size_t need;
+    if (fc__mul_size(nsig, sizeof(long) + sizeof(double), &need) != FC_OK)
+        return FC_ERR_SIZE;
+    void *meta = malloc(need);
+    if (meta == NULL) return FC_ERR_NOMEM;
+    long *T = meta;
+    double *xm = (double *)(T + nsig);
+    /* Ordinary magnitudes are used as they are (no copy): with both
+       largest values within 2^+-400 nothing can overflow on the way
+       (partial sums and FFT values stay below 2^900), and with their
+       product above 2^-30 underflow costs no more than the documented
+       1e-290 times that product. Otherwise each signal is scaled to a
+       largest magnitude in [1/2, 1), and so is the kernel. */
+    signal_maxima(x, nsig, n, T, xm);
+    int scaled = ec < -400 || ec > 400;
+    for (size_t sg = 0; sg < nsig; sg++)
+        if (xm[sg] > 0.0 && (T[sg] < -400 || T[sg] > 400 || T[sg] + ec < -30))
+            scaled = 1;
+    if (!scaled) {
+        ec = 0;
+        for (size_t sg = 0; sg < nsig; sg++) T[sg] = 0;
+    }
+    double *mem = NULL;
+    const double *xs = x, *cs = kernel;
+    if (scaled) {
+        if (fc__add_size(total, K, &need) != FC_OK) {
+            free(meta);
+            return FC_ERR_SIZE;
+        }
+        mem = malloc(need * sizeof(double));
+        if (mem == NULL) {
+            free(meta);
+            return FC_ERR_NOMEM;
+        }
+        for (size_t sg = 0; sg < nsig; sg++)
+            scale_copy(x + sg * n, n, (int)T[sg], mem + sg * n);
+        scale_copy(kernel, K, ec, mem + total);
+        xs = mem;
+        cs = mem + total;
+    }
+    /* |z_n| <= sum|cs| max|xs| (1 + rounding), for each signal */
+    double csum = sum_abs(cs, K) * (1.0 + 1e-6);
+    int safe = 1;
+    for (size_t sg = 0; sg < nsig; sg++) {
+        double xsm = ldexp(xm[sg], -(int)T[sg]); /* max of the signal used */
+        T[sg] += ec;
+        if (!scale_is_safe(csum * xsm, 1.0, T[sg])) safe = 0;
+    }
     fc_context *own = NULL;
+    int st = FC_OK;
     if (ctx == NULL) {
-        int st = fc_context_create(&own);
-        if (st != FC_OK) return st;
+        st = fc_context_create(&own);
         ctx = own;
     }
-    int st = lagsum_checked(ctx, x, nsig, n, kernel, klen, engine, y);
+    if (st == FC_OK)
+        st = lagsum_scaled(ctx, xs, nsig, n, cs, K, engine, NULL, 1.0, T,
+                           safe, y);
     fc_context_free(own);
+    free(mem);
+    free(meta);
     return st;
 }
 
@@ -420,20 +698,43 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
     if (check_engine(engine) != FC_OK) return FC_ERR_ARG;
     size_t total;
     if (fc__mul_size(nsig, n, &total) != FC_OK) return FC_ERR_SIZE;
-    if (total > ((size_t)-1) / sizeof(double) / 2) return FC_ERR_SIZE;
+    if (total > ((size_t)-1) / sizeof(double) / 4) return FC_ERR_SIZE;
     if (total == 0) return FC_OK;
     if (x == NULL || y == NULL) return FC_ERR_NULL;
+    if (overlaps(x, total, y, total)) return FC_ERR_ARG;
     if (fc__check_finite(x, total) != FC_OK) return FC_ERR_NONFINITE;
 
     int diffs = fc__rule_uses_differences(rule);
     int corr = rule == FC_RULE_TRAPEZOID;
-    /* kernel n, correction n (trapezoid), differences nsig*n (l1) */
-    size_t extra = n + (corr ? n : 0) + (diffs ? total : 0);
+    size_t need;
+    if (fc__mul_size(nsig, sizeof(long) + sizeof(double), &need) != FC_OK)
+        return FC_ERR_SIZE;
+    void *meta = malloc(need);
+    if (meta == NULL) return FC_ERR_NOMEM;
+    long *T = meta;
+    double *xm = (double *)(T + nsig);
+    /* Samples of ordinary magnitude (every signal's largest within
+       2^-30 .. 2^400, the unit kernels being between about 2^-700 and
+       2^600) are used as they are: nothing can overflow on the way (below
+       2^900) and underflow costs no more than documented. Otherwise each
+       signal is scaled to a largest magnitude in [1/2, 1). */
+    signal_maxima(x, nsig, n, T, xm);
+    int scaled = 0;
+    for (size_t sg = 0; sg < nsig; sg++)
+        if (xm[sg] > 0.0 && (T[sg] < -30 || T[sg] > 400)) scaled = 1;
+    if (!scaled)
+        for (size_t sg = 0; sg < nsig; sg++) T[sg] = 0;
+    /* unit kernel n, unit correction n (trapezoid), scaled samples or
+       their differences nsig*n (when needed) */
+    size_t extra = n + (corr ? n : 0) + (scaled || diffs ? total : 0);
     double *mem = malloc(extra * sizeof(double));
-    if (mem == NULL) return FC_ERR_NOMEM;
+    if (mem == NULL) {
+        free(meta);
+        return FC_ERR_NOMEM;
+    }
     double *c = mem;
     double *cr = corr ? c + n : NULL;
-    double *u = diffs ? c + n + (corr ? n : 0) : NULL;
+    double *u = c + n + (corr ? n : 0);
 
     fc_context *own = NULL;
     if (ctx == NULL) {
@@ -441,34 +742,43 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
         if (st != FC_OK) goto done;
         ctx = own;
     }
-    st = fc__lag_kernel(rule, order, step, 0, n, c);
-    if (st == FC_OK && corr) {
-        /* corr_n = start(n) - weights(n), and the kernel is the weights */
-        st = fc_trapezoid_start(order, step, 0, n, cr);
-        for (size_t i = 0; st == FC_OK && i < n; i++) cr[i] -= c[i];
-    }
-    if (st != FC_OK) goto done;
+    long double Ml;
+    long E;
+    fc__unit_kernel(rule, order, step, 0, n, c, &Ml, &E);
+    if (corr) fc__unit_x0_correction(rule, order, 0, n, cr);
+    /* each signal scaled by 2^-ex; for L1 the differences, taken after
+       scaling (so that they cannot overflow) */
     const double *in = x;
-    if (diffs) {
+    if (scaled || diffs) {
         for (size_t sg = 0; sg < nsig; sg++) {
             const double *xs = x + sg * n;
             double *us = u + sg * n;
-            us[0] = 0.0;
-            for (size_t i = 1; i < n; i++) us[i] = xs[i] - xs[i - 1];
+            if (scaled) {
+                scale_copy(xs, n, (int)T[sg], us);
+                xs = us;
+            }
+            if (diffs) {
+                for (size_t i = n - 1; i > 0; i--) us[i] = xs[i] - xs[i - 1];
+                us[0] = 0.0;
+            }
         }
         in = u;
     }
-    st = lagsum_checked(ctx, in, nsig, n, c, n, engine, y);
-    if (st == FC_OK && corr) {
-        for (size_t sg = 0; sg < nsig; sg++) {
-            double x0 = x[sg * n];
-            double *ys = y + sg * n;
-            for (size_t i = 0; i < n; i++) ys[i] += cr[i] * x0;
-            ys[0] = 0.0; /* exactly, whatever the rounding above */
-        }
+    /* |x 2^-ex| <= xs (differences: 2 xs), so
+       |z_n| <= (sum|c| + max|corr|) xs, twice that for differences */
+    double cb = (sum_abs(c, n) * (diffs ? 2.0 : 1.0)
+                 + (corr ? max_abs(cr, n) : 0.0)) * (1.0 + 1e-6);
+    int safe = 1;
+    for (size_t sg = 0; sg < nsig; sg++) {
+        double xs = ldexp(xm[sg], -(int)T[sg]);
+        T[sg] += E;
+        if (!scale_is_safe(cb * xs, (double)Ml, T[sg])) safe = 0;
     }
+    st = lagsum_scaled(ctx, in, nsig, n, c, n, engine, cr, (double)Ml, T,
+                       safe, y);
 done:
     fc_context_free(own);
     free(mem);
+    free(meta);
     return st;
 }

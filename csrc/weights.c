@@ -39,11 +39,15 @@
  * C = 1/Gamma(-a) comes from the reflection-free form in rgamma_neg(),
  * exact factors near the poles times the Taylor series of 1/Gamma(1+z).
  *
- * The scale factors h^a/Gamma(a+1) etc. are formed in long double (where
- * that is wider than double; 1/Gamma from the same Taylor series) and
- * applied in one multiplication; if the factor itself is out of the double
- * range the product is formed in long double instead, so that weights
- * whose scaled value is representable stay accurate.
+ * The scale factors h^a/Gamma(a+1) etc. are kept as M 2^E (0.5 <= M < 1
+ * in long double, E an integer; fc__rule_scale), so that h^a itself may
+ * be far outside the double range (h^10 for h = 1e300). When M 2^E is a
+ * normal double with room to spare and no weight of the range can
+ * overflow, it is applied in one multiplication; otherwise each unit
+ * weight is multiplied by M and then by 2^E (one rounding, and gradual
+ * underflow), so that every weight whose scaled value is representable
+ * stays accurate, and a weight that overflows makes the call return
+ * FC_ERR_RANGE before anything is written.
  *
  * Measured against mpmath at 60 digits (tests/test_weights.py and a wider
  * scratch sweep): largest relative error about 6e-16 for every rule, orders
@@ -367,30 +371,45 @@ static long double rgamma_neg(double a)
     return sgn * p * rgamma1p_small(-z);
 }
 
-/* h^e, |e| <= 10, in long double without leaving its range: h = f 2^E,
-   0.5 <= f < 1, h^e = f^e 2^(e E) with e E exact. */
-static long double pow_step(double h, double e)
+/*
+ * h^e = m 2^E, |e| <= 10, for any positive double h (h^e itself may be far
+ * outside the double range): h = f 2^Eh, 0.5 <= f < 1, so
+ * h^e = f^e 2^(e Eh); e Eh = p + perr exactly (a product of a double and an
+ * integer of 11 bits: exact in a 64-bit long double, else split with one
+ * fma), p = ip + fp with ip the nearest integer (p - ip exact), and
+ * m = f^e 2^(fp + perr) lies within [2^-11, 2^11].
+ */
+static void pow_step(double h, double e, long double *m, long *E)
 {
-    int E;
-    double f = frexp(h, &E);
+    int Eh;
+    double f = frexp(h, &Eh);
 #if LDBL_MANT_DIG >= 64
-    long double fe = expl((long double)e * logl((long double)f));
+    long double p = (long double)e * (long double)Eh; /* exact */
+    long double ip = nearbyintl(p), fp = p - ip;
+    *m = expl((long double)e * logl((long double)f)) * exp2l(fp);
 #else
-    long double fe = pow(f, e);
+    double p = e * (double)Eh;
+    double perr = fma(e, (double)Eh, -p);
+    double ip = nearbyint(p), fp = (p - ip) + perr;
+    *m = pow(f, e) * exp2(fp);
 #endif
-    return fe * exp2l((long double)e * (long double)E);
+    *E = (long)ip;
 }
 
-/* The scale factor of a rule, in long double. */
-static long double rule_scale(int rule, double a, double h)
+/* The scale factor of a rule (kind FC__START_WEIGHTS: that of the trapezoid
+   start weights) as M 2^E, 0.5 <= M < 1. */
+void fc__rule_scale(int kind, double a, double h, long double *M, long *E)
 {
-    long double la = a;
-    switch (rule) {
-    case FC_RULE_RECTANGLE: return pow_step(h, a) * rgamma1p(la);
-    case FC_RULE_TRAPEZOID: return pow_step(h, a) * rgamma1p(1.0L + la);
-    case FC_RULE_GRUNWALD: return pow_step(h, -a);
-    default: return pow_step(h, -a) * rgamma1p(1.0L - la);
+    long double la = a, m, g;
+    switch (kind) {
+    case FC_RULE_RECTANGLE: pow_step(h, a, &m, E); g = rgamma1p(la); break;
+    case FC_RULE_GRUNWALD: pow_step(h, -a, &m, E); g = 1.0L; break;
+    case FC_RULE_L1: pow_step(h, -a, &m, E); g = rgamma1p(1.0L - la); break;
+    default: pow_step(h, a, &m, E); g = rgamma1p(1.0L + la); break;
     }
+    int k;
+    *M = frexpl(m * g, &k);
+    *E += k;
 }
 
 /* ------------------------------------------------------------- grunwald */
@@ -541,19 +560,12 @@ static int check_args(int rule, double a, double h, uint64_t start,
 }
 
 /*
- * Fill out[0..count) with the weights of `kind` (a rule, or -1 for the
- * trapezoid start weights), arguments already checked.
+ * Unscaled ("unit") weights of `kind` (a rule, or FC__START_WEIGHTS) times
+ * s, arguments already checked.
  */
-static void fill(int kind, double a, double h, uint64_t start, size_t count,
-                 double *out)
+static void fill_unit(int kind, double a, uint64_t start, size_t count,
+                      double s, double *out)
 {
-    int srule = kind < 0 ? FC_RULE_TRAPEZOID : kind;
-    long double S = rule_scale(srule, a, h);
-    /* One double multiplication when the factor is a normal double with
-       room to spare; otherwise unscaled weights, scaled in long double. */
-    int direct = S > (long double)DBL_MIN * 0x1p64L
-                 && S < (long double)DBL_MAX * 0x1p-64L;
-    double s = direct ? (double)S : 1.0;
     switch (kind) {
     case FC_RULE_RECTANGLE: first_diff_fill(a, 0, start, count, s, out); break;
     case FC_RULE_L1: first_diff_fill(a, 1, start, count, s, out); break;
@@ -561,9 +573,78 @@ static void fill(int kind, double a, double h, uint64_t start, size_t count,
     case FC_RULE_GRUNWALD: grunwald_fill(a, start, count, s, out); break;
     default: trapezoid_start_fill(a, start, count, s, out); break;
     }
-    if (!direct)
-        for (size_t i = 0; i < count; i++)
-            out[i] = (double)((long double)out[i] * S);
+}
+
+void fc__unit_weights(int kind, double a, uint64_t start, size_t count,
+                      double *out)
+{
+    if (count > 0) fill_unit(kind, a, start, count, 1.0, out);
+}
+
+/*
+ * log2 of a bound on the unit weights of `kind` for indices below M >= 1
+ * (generous: it only decides whether the one-multiplication path is safe):
+ * rectangle b_m <= (m+1)^a, l1 d_m <= 1, trapezoid a_m <= 2 (m+1)^(a+1),
+ * start A_n <= (n-1)^(a+1) + |n-1-a| n^a <= 2^5 M^(a+1),
+ * grunwald |g_m| = |binom(a, m)| <= 2^12 for a <= 10.
+ */
+double fc__unit_log2_bound(int kind, double a, uint64_t M)
+{
+    double l = log2((double)(M < 1 ? 1 : M));
+    switch (kind) {
+    case FC_RULE_RECTANGLE: return a * l + 1.0;
+    case FC_RULE_L1: return 1.0;
+    case FC_RULE_TRAPEZOID: return (a + 1.0) * l + 2.0;
+    case FC_RULE_GRUNWALD: return 12.0;
+    default: return (a + 1.0) * l + 6.0;
+    }
+}
+
+/* w M 2^E rounded to double (overflow to inf, gradual underflow). */
+double fc__scale_value(double w, long double M, long E)
+{
+    double v = (double)((long double)w * M);
+    if (E > 4096) E = 4096;
+    if (E < -4096) E = -4096;
+    return ldexp(v, (int)E);
+}
+
+/*
+ * Fill out[0..count) with the weights of `kind`, arguments already checked.
+ * One double multiplication per weight when the scale factor is a normal
+ * double with room to spare and no weight of the range can overflow;
+ * otherwise each unit weight is scaled by M 2^E on its own (one rounding
+ * and a power of two), a first pass over chunks making sure that none
+ * overflows (FC_ERR_RANGE, nothing written) and a second writing them.
+ */
+static int fill(int kind, double a, double h, uint64_t start, size_t count,
+                double *out)
+{
+    long double M;
+    long E;
+    fc__rule_scale(kind, a, h, &M, &E);
+    double lb = fc__unit_log2_bound(kind, a, start + count);
+    if (E > -958 && (double)E + lb < 1022.0) {
+        double s = (double)ldexpl(M, (int)E);
+        fill_unit(kind, a, start, count, s, out);
+        return FC_OK;
+    }
+    double buf[512];
+    for (int pass = 0; pass < 2; pass++) {
+        for (size_t j = 0; j < count; j += 512) {
+            size_t m = count - j < 512 ? count - j : 512;
+            fill_unit(kind, a, start + j, m, 1.0, buf);
+            for (size_t i = 0; i < m; i++) {
+                double v = fc__scale_value(buf[i], M, E);
+                if (pass == 0) {
+                    if (!isfinite(v)) return FC_ERR_RANGE;
+                } else {
+                    out[j + i] = v;
+                }
+            }
+        }
+    }
+    return FC_OK;
 }
 
 int fc_weights(int rule, double order, double step, uint64_t start,
@@ -571,8 +652,7 @@ int fc_weights(int rule, double order, double step, uint64_t start,
 {
     int st = check_args(rule, order, step, start, count, out);
     if (st != FC_OK) return st;
-    if (count > 0) fill(rule, order, step, start, count, out);
-    return FC_OK;
+    return count > 0 ? fill(rule, order, step, start, count, out) : FC_OK;
 }
 
 int fc_trapezoid_start(double order, double step, uint64_t start,
@@ -580,6 +660,6 @@ int fc_trapezoid_start(double order, double step, uint64_t start,
 {
     int st = check_args(FC_RULE_TRAPEZOID, order, step, start, count, out);
     if (st != FC_OK) return st;
-    if (count > 0) fill(-1, order, step, start, count, out);
-    return FC_OK;
+    return count > 0 ? fill(FC__START_WEIGHTS, order, step, start, count, out)
+                     : FC_OK;
 }
