@@ -260,19 +260,29 @@ int fc_stream_create_kernel(const double *kernel, size_t klen,
                             size_t channels, fc_stream **out);
 void fc_stream_free(fc_stream *s);
 
-/* Push one time step: x[channels] in, y[channels] out. Exact mode: y may
-   be x itself (in place: every sample is read before its output is
-   written); any other overlap of x and y is refused with FC_ERR_ARG. An
-   output beyond the double range (exact mode: possible only when the sum of
-   the magnitudes of its terms nearly is) refuses the push with
-   FC_ERR_RANGE; for a block, the whole block, and y is left untouched. */
+/* Push one time step: x[channels] in, y[channels] out. y may be x itself
+   (in place: every sample is read before its output is written); any other
+   overlap of x and y is refused with FC_ERR_ARG. An output beyond the
+   double range refuses the push with FC_ERR_RANGE, nothing changed; for a
+   block, the whole block, y untouched (exact mode: possible only when the
+   sum of the magnitudes of an output's terms nearly overflows; compressed
+   mode: see the range bound of fc_stream_create). Exact mode also returns
+   FC_ERR_RANGE when the weights a push needs are themselves beyond the
+   normal double range (far lags of extreme orders and steps; the batch
+   functions scale them instead). Compressed mode: FC_ERR_HORIZON under
+   FC_HORIZON_REFUSE when an output would lie beyond floor(horizon).
+   Allocation: none after fc_stream_reserve covers the count, except that
+   an exact-mode block whose outputs might leave the double range (samples
+   within about 2^1000 / (count * max weight)) is computed in a temporary
+   copy first. */
 int fc_stream_push(fc_stream *s, const double *x, double *y);
 /* Push count time steps: x[count*channels] in, y[count*channels] out; in
    place as for fc_stream_push (y == x, or no overlap: FC_ERR_ARG). */
 int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
                          double *y);
 /* What fc_stream_push(s, x, y) would write to y, bit for bit, without
-   changing the stream; y == x or no overlap, as for fc_stream_push. */
+   changing the stream; y == x or no overlap, as for fc_stream_push; the
+   same refusals (FC_ERR_RANGE, FC_ERR_HORIZON). */
 int fc_stream_preview(fc_stream *s, const double *x, double *y);
 /* The history term of the next output: the part that does not depend on
    the next sample, so that y = history + w0 * x for GRUNWALD and user
@@ -280,7 +290,9 @@ int fc_stream_preview(fc_stream *s, const double *x, double *y);
    y = history + w0 * (x - previous x) for L1, y = history + w0 * x for
    TRAPEZOID past the first sample; the first output of TRAPEZOID and L1
    is 0 whatever x (and so is their history). h[channels]. Exact mode:
-   FC_ERR_RANGE (h untouched) if the history is beyond the double range. */
+   FC_ERR_RANGE (h untouched) if the history is beyond the double range;
+   compressed mode: FC_ERR_HORIZON under FC_HORIZON_REFUSE when the next
+   output would lie beyond floor(horizon). */
 int fc_stream_history(fc_stream *s, double *h);
 /* Forget all samples (keeps the kernel, the reserved capacity). */
 int fc_stream_reset(fc_stream *s);

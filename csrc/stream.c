@@ -129,6 +129,8 @@ struct fc_stream {
     double *xprev;          /* C: previous sample (L1) */
     double *x0;             /* C: first sample (trapezoid) */
     double *tmp;            /* 4C: a step's outputs and u; saved xprev, x0 */
+    double klog2;           /* log2 of a bound on every |c_m| and |corr_n| */
+    double umax;            /* largest |u| stored since creation or reset */
     double *work;           /* 4*smax + 2 doubles */
     size_t wcap;            /* smax the work buffer serves */
     double corr[FC_S_CORR]; /* trapezoid corr_n cache, n in chunk*CORR + i */
@@ -688,6 +690,7 @@ static int ex_step(fc_stream *s, const double *x, double *y)
     /* channel c reads x[c] before y[c] is written: y may be x (in place) */
     for (size_t c = 0; c < C; c++) {
         urow(s, c)[n] = ut[c];
+        if (fabs(ut[c]) > s->umax) s->umax = fabs(ut[c]);
         if (l1) s->xprev[c] = x[c];
         else if (first) s->x0[c] = x[c];
         y[c] = yt[c];
@@ -780,6 +783,30 @@ static int ex_history(fc_stream *s, double *h)
     return FC_OK;
 }
 
+/*
+ * 1 when no output of a block of tot values x ending at count n_end can
+ * leave the double range, so that no step of it can fail: every output and
+ * every intermediate of the frames is at most (n_end + 1) * max|u| * max|c|
+ * (times the FFT's few-fold growth), with max|u| over the history (umax)
+ * and the block (L1: |x_k - x_{k-1}| <= 2 max|x|).
+ */
+static int ex_block_safe(const fc_stream *s, const double *x, size_t tot,
+                         uint64_t n_end)
+{
+    double m = 0.0;
+    for (size_t i = 0; i < tot; i++) m = fabs(x[i]) > m ? fabs(x[i]) : m;
+    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_L1) {
+        for (size_t c = 0; c < s->C; c++)
+            m = fabs(s->xprev[c]) > m ? fabs(s->xprev[c]) : m;
+        m *= 2.0;
+    }
+    if (s->umax > m) m = s->umax;
+    if (m == 0.0 || !isfinite(m)) return m == 0.0;
+    int e;
+    frexp(m, &e);
+    return (double)e + s->klog2 + log2((double)n_end + 1.0) + 16.0 < 1000.0;
+}
+
 static int ex_push_block(fc_stream *s, const double *x, size_t count,
                          double *y)
 {
@@ -799,9 +826,12 @@ static int ex_push_block(fc_stream *s, const double *x, size_t count,
         if ((st = corr_get(s, n_end - 1, &v)) != FC_OK) return st;
         if (s->n > 0 && (st = corr_get(s, s->n, &v)) != FC_OK) return st;
     }
-    /* outputs go to y only once every step has succeeded */
+    /* outputs go to y only once every step has succeeded: straight into y
+       when no output of the block can leave the double range (ordinary
+       data; no allocation), through a staging copy otherwise */
     double *stage = NULL, *yb = y;
-    if (count > 1) {
+    double umax0 = s->umax;
+    if (count > 1 && !ex_block_safe(s, x, tot, n_end)) {
         if (!(stage = malloc(tot * sizeof(double)))) return FC_ERR_NOMEM;
         yb = stage;
         memcpy(s->tmp + 2 * C, s->xprev, C * sizeof(double));
@@ -812,6 +842,7 @@ static int ex_push_block(fc_stream *s, const double *x, size_t count,
         st = ex_step(s, x + t * C, yb + t * C);
         if (st != FC_OK) { /* FC_ERR_RANGE: an output beyond the double range */
             if (t > 0) ex_rollback(s, n0, hi0);
+            s->umax = umax0;
             free(stage);
             return st;
         }
@@ -830,6 +861,7 @@ static void ex_reset(fc_stream *s)
     s->acc_hi = 0;
     s->n = 0;
     s->prep_n = 0; /* capacities are rechecked (the accumulator base moved) */
+    s->umax = 0.0;
     if (s->xprev) memset(s->xprev, 0, s->C * sizeof(double));
     if (s->x0) memset(s->x0, 0, s->C * sizeof(double));
 }
@@ -1002,6 +1034,20 @@ static int ex_init(fc_stream *s, size_t leaf, size_t segs)
     s->c0 = leafc[0];
     s->leafk[0] = 0.0;
     for (size_t i = 1; i < leaf; i++) s->leafk[i] = leafc[leaf - i];
+    if (s->kind == FC_S_KIND_KERNEL) {
+        double km = 0.0;
+        for (size_t i = 0; i < s->klen; i++)
+            km = fabs(s->kernel[i]) > km ? fabs(s->kernel[i]) : km;
+        s->klog2 = km > 0.0 ? log2(km) : -1100.0;
+    } else {
+        long double M;
+        long E;
+        fc__rule_scale(s->rule, s->order, s->step, &M, &E);
+        /* the trapezoid correction is a few times the weights */
+        s->klog2 = fc__unit_log2_bound(s->rule, s->order, s->lag_limit) +
+                   (double)log2l(M) + (double)E +
+                   (s->rule == FC_RULE_TRAPEZOID ? 5.0 : 0.0);
+    }
     /* room for the leaf band of the first samples */
     return ex_prepare(s, 1, 1);
 }
@@ -1119,7 +1165,9 @@ int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
     if ((st = enter(s)) != FC_OK) return st;
     if (s->mode == FC_MODE_COMPRESSED) {
         size_t tot;
-        if (fc__mul_size(count, s->C, &tot)) st = FC_ERR_SIZE;
+        if (fc__mul_size(count, s->C, &tot) ||
+            tot > (size_t)-1 / sizeof(double)) st = FC_ERR_SIZE;
+        else if (partial_overlap(x, y, tot)) st = FC_ERR_ARG;
         else if (tot && (st = fc__check_finite(x, tot)) != FC_OK) {}
         else if ((st = cs_horizon_check(s, count)) != FC_OK) {}
         else st = count ? fc__cs_push_block(s->cs, x, count, y) : FC_OK;
@@ -1167,8 +1215,10 @@ int fc_stream_preview(fc_stream *s, const double *x, double *y)
     if (!s || !x || !y) return FC_ERR_NULL;
     if ((st = enter(s)) != FC_OK) return st;
     if ((st = fc__check_finite(x, s->C)) == FC_OK) {
-        if (s->mode == FC_MODE_COMPRESSED) st = fc__cs_preview(s->cs, x, y);
-        else st = ex_preview(s, x, y);
+        if (s->mode != FC_MODE_COMPRESSED) st = ex_preview(s, x, y);
+        else if (partial_overlap(x, y, s->C)) st = FC_ERR_ARG;
+        else if ((st = cs_horizon_check(s, 1)) == FC_OK)
+            st = fc__cs_preview(s->cs, x, y);
     }
     leave(s);
     return st;
@@ -1179,8 +1229,9 @@ int fc_stream_history(fc_stream *s, double *h)
     int st;
     if (!s || !h) return FC_ERR_NULL;
     if ((st = enter(s)) != FC_OK) return st;
-    if (s->mode == FC_MODE_COMPRESSED) st = fc__cs_history(s->cs, h);
-    else st = ex_history(s, h);
+    if (s->mode != FC_MODE_COMPRESSED) st = ex_history(s, h);
+    else if ((st = cs_horizon_check(s, 1)) == FC_OK) /* the next output's */
+        st = fc__cs_history(s->cs, h);
     leave(s);
     return st;
 }
@@ -1552,7 +1603,10 @@ static int ex_rebuild(uint32_t kind, int rule, double order, double step,
     for (size_t c = 0; c < C; c++) {
         double *uc = urow(s, c);
         const unsigned char *r = uq + 8 * (size_t)(c * n);
-        for (uint64_t k = 0; k < n; k++) uc[k] = getd(r + 8 * k);
+        for (uint64_t k = 0; k < n; k++) {
+            uc[k] = getd(r + 8 * k);
+            if (fabs(uc[k]) > s->umax) s->umax = fabs(uc[k]);
+        }
     }
     ex_replay(s, n);
     s->n = n;
