@@ -940,14 +940,14 @@ static int cs_create(int rule, double order, double step, size_t channels,
        them and must rebuild to the same bits); the exact ones only if no
        candidate passes with those (cs_constants) */
     cs_constants(&cx, rule, cum, a, step, 0);
-    if (!isfinite(cx.K) || cx.K == 0.0) return FC_ERR_STEP;
+    if (!isfinite(cx.K) || cx.K == 0.0) return FC_ERR_RANGE; /* h^a or h^-a beyond the double range */
 
     /* band weights and the trapezoid start table */
     double cband[CS_BAND], ctab[CS_BAND];
     const long double fpre = cum ? cs_fcum_pre(a, step) : 0.0L;
     if (cum) {
         for (size_t m = 0; m < B; m++)
-            if (!isfinite(cband[m] = cs_fcum(a, fpre, m))) return FC_ERR_STEP;
+            if (!isfinite(cband[m] = cs_fcum(a, fpre, m))) return FC_ERR_RANGE;
     } else if ((st = fc__lag_kernel(rule, a, step, 0, B, cband)) != FC_OK)
         return st;
     memset(ctab, 0, sizeof ctab);

@@ -468,7 +468,9 @@ def lagged_sum(samples, kernel, axis=-1, engine="auto"):
         raise_nonfinite("samples", arr)
     if st == lib.FC_ERR_RANGE:
         raise RangeError(
-            "samples (or kernel): the result is beyond the double range"
+            f"samples (largest |value| {show(float(np.max(np.abs(block))))}) or "
+            f"kernel (largest |value| {show(float(np.max(np.abs(k))))}): the "
+            "result is beyond the double range"
         )
     raise_for_status(st, "lagged_sum")
     return _unrows(out, moved_shape, ax)
@@ -489,8 +491,9 @@ def _apply(kind, samples, order, step, rule, axis, engine):
         raise_nonfinite("samples", arr)
     if st == lib.FC_ERR_RANGE:
         raise RangeError(
-            f"samples (or step={show(step)}, order={show(order)}): the result "
-            "is beyond the double range"
+            f"samples (largest |value| {show(float(np.max(np.abs(block))))}), "
+            f"step={show(step)} or order={show(order)}: the result is beyond "
+            "the double range"
         )
     raise_for_status(st, f"{kind}(rule={show(rule)}, order={show(order)}, "
                          f"step={show(step)})")
