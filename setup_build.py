@@ -58,8 +58,17 @@ def compile_args():
     return flags["FC_OPT_CFLAGS"] + flags["FC_STD_CFLAGS"]
 
 
+# Python functions the C solver calls back (pyfracconv/solve.py defines
+# them with ffi.def_extern); declared here, after the header's block, since
+# the header is plain C.
+PYTHON_CALLBACKS = """
+extern "Python" int _fc_py_rhs(double, const double *, double *, void *);
+extern "Python" int _fc_py_rhs1(double, const double *, double *, void *);
+extern "Python" int _fc_py_jac(double, const double *, double *, void *);
+"""
+
 ffibuilder = FFI()
-ffibuilder.cdef(read_cdef())
+ffibuilder.cdef(read_cdef() + PYTHON_CALLBACKS)
 ffibuilder.set_source(
     "pyfracconv._fracconv",
     '#include "fracconv.h"\n',
