@@ -289,6 +289,14 @@ int fc_stream_horizon(const fc_stream *s, double *horizon);
  *                        2015): y = T + trapezoid history + w0 f(t, y)
  *                        solved by Newton's method with the user Jacobian
  *                        or a forward-difference one
+ *   FC_METHOD_IMPLICIT_RECTANGLE  implicit product rectangle rule (right
+ *                        end points, order 1): y = T + history + u f(t, y),
+ *                        u = h^a/Gamma(a+1), solved like FC_METHOD_TRAPEZOID;
+ *                        strongly damped, for stiff problems with
+ *                        non-smooth solutions; FC_MODE_EXACT only, and
+ *                        `horizon` is required, 1 <= horizon <= 2^28: the
+ *                        steps it can take (its kernel of floor(horizon)+1
+ *                        weights is allocated at creation and at load)
  * Memory: FC_MODE_EXACT (streams keep every f value) or FC_MODE_COMPRESSED
  * (bounded memory, tol and horizon as for fc_stream_create, horizon counted
  * in steps; the trapezoid rule, used by FC_METHOD_PC and
@@ -304,6 +312,7 @@ int fc_stream_horizon(const fc_stream *s, double *horizon);
 #define FC_METHOD_RECTANGLE 0
 #define FC_METHOD_PC 1
 #define FC_METHOD_TRAPEZOID 2
+#define FC_METHOD_IMPLICIT_RECTANGLE 3
 /* Solver status codes (fc_solver_strerror knows them and all others). */
 #define FC_ERR_CALLBACK 64   /* a callback returned non-zero */
 #define FC_ERR_NEWTON 65     /* Newton's method did not converge */
@@ -328,7 +337,7 @@ void fc_solver_free(fc_solver *s);
    Jacobian (fn == NULL: forward differences, m extra rhs calls each). */
 int fc_solver_set_rhs(fc_solver *s, fc_rhs_fn fn, void *user);
 int fc_solver_set_jacobian(fc_solver *s, fc_jac_fn fn, void *user);
-/* Newton's method of FC_METHOD_TRAPEZOID: stop when every residual
+/* Newton's method of the implicit methods: stop when every residual
    component |r_i| <= tol * (|y_i| + |c_i| + |w0_i f_i|), c the known part;
    tol in [1e-15, 1e-2] (default 1e-12), 1 <= maxiter <= 1000 (default 50). */
 int fc_solver_set_newton(fc_solver *s, double tol, unsigned maxiter);

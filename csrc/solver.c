@@ -15,6 +15,16 @@
  *     w0 = h^a/Gamma(a+2) (a_0 = 1).
  * So the product trapezoidal rule for y_{n+1} is T_{n+1} + history + w0 f.
  *
+ * The implicit product rectangle rule (right end points),
+ *   y_{n+1} = T_{n+1} + u sum_{k<=n} b_{n-k} f_{k+1},
+ * has no rule stream of that form (its lag-0 weight is u b_0 = u): it uses
+ * a kernel stream (fc_stream_create_kernel) with kernel u b_m, m <= horizon,
+ * fed with f_1, f_2, ...; after step n its history is
+ * u sum_{1<=k<=n} b_{n+1-k} f_k and y_{n+1} = T_{n+1} + history + u f.
+ * The solver keeps f_1 .. f_n itself for save/load (a kernel stream's blob
+ * cannot be checked against the kernel it should hold, so a loaded solver
+ * rebuilds the stream from the saved f values).
+ *
  * Methods: Diethelm, Ford and Freed, Nonlinear Dynamics 29 (2002) 3-22
  * (predictor-corrector); Garrappa, Math. Comput. Simul. 110 (2015) 96-112
  * (implicit trapezoidal rule with Newton's method).
@@ -35,7 +45,8 @@ typedef struct {
     size_t *idx;      /* their indices, increasing */
     int ident;        /* the group is every component, in order */
     fc_stream *rect;  /* NULL when the method does not need it */
-    fc_stream *trap;
+    fc_stream *trap;  /* the trapezoid stream, or the kernel stream of
+                         FC_METHOD_IMPLICIT_RECTANGLE */
 } sv_group;
 
 struct fc_solver {
@@ -75,6 +86,8 @@ struct fc_solver {
     double *J;        /* m*m */
     size_t *piv;      /* m */
     double *gb;       /* m: gather buffer */
+    double *fh;       /* implicit rectangle: f_1 .. f_n, row-major (n x m) */
+    size_t fhcap;     /* rows allocated */
 };
 
 /* ------------------------------------------------------------ helpers */
@@ -100,8 +113,16 @@ static int all_finite(const double *x, size_t n)
     return 1;
 }
 
-static int needs_rect(int method) { return method != FC_METHOD_TRAPEZOID; }
+static int needs_rect(int method)
+{
+    return method == FC_METHOD_RECTANGLE || method == FC_METHOD_PC;
+}
+/* the second stream slot: trapezoid or (implicit rectangle) kernel */
 static int needs_trap(int method) { return method != FC_METHOD_RECTANGLE; }
+static int is_implicit(int method)
+{
+    return method == FC_METHOD_TRAPEZOID || method == FC_METHOD_IMPLICIT_RECTANGLE;
+}
 
 static int check_params(size_t m, const double *orders, double step,
                         double t0, int method, int memory, double tol,
@@ -111,16 +132,20 @@ static int check_params(size_t m, const double *orders, double step,
     if (!(step > 0.0) || !isfinite(step)) return FC_ERR_STEP;
     if (!isfinite(t0)) return FC_ERR_ARG;
     if (method != FC_METHOD_RECTANGLE && method != FC_METHOD_PC &&
-        method != FC_METHOD_TRAPEZOID)
+        method != FC_METHOD_TRAPEZOID && method != FC_METHOD_IMPLICIT_RECTANGLE)
         return FC_ERR_RULE;
     if (memory != FC_MODE_EXACT && memory != FC_MODE_COMPRESSED)
         return FC_ERR_MODE;
+    if (method == FC_METHOD_IMPLICIT_RECTANGLE) {
+        if (memory != FC_MODE_EXACT) return FC_ERR_MODE;
+        if (!(horizon >= 1.0 && horizon <= 268435456.0)) return FC_ERR_TOL;
+    }
     double amax = 0.0;
     for (size_t i = 0; i < m; i++) {
         double a = orders[i];
         if (!(a > 0.0 && a <= 2.0)) return FC_ERR_ORDER;
         if (memory == FC_MODE_COMPRESSED) {
-            if (needs_trap(method) && a >= 1.0) return FC_ERR_ORDER;
+            if (method != FC_METHOD_RECTANGLE && a >= 1.0) return FC_ERR_ORDER;
             if (a >= 2.0) return FC_ERR_ORDER;
         }
         if (a > amax) amax = a;
@@ -151,6 +176,7 @@ static void free_solver(fc_solver *s)
     free(s->orders); free(s->init); free(s->y); free(s->w0);
     free(s->hr); free(s->ht); free(s->c); free(s->yc); free(s->fc);
     free(s->fs); free(s->r); free(s->J); free(s->piv); free(s->gb);
+    free(s->fh);
     free(s);
 }
 
@@ -174,7 +200,8 @@ static int build(size_t m, const double *orders, double step, double t0,
     s->m = m; s->method = method; s->memory = memory; s->K = K;
     s->step = step; s->t0 = t0;
     s->tol = memory == FC_MODE_COMPRESSED ? tol : 0.0;
-    s->horizon = memory == FC_MODE_COMPRESSED ? horizon : 0.0;
+    s->horizon = memory == FC_MODE_COMPRESSED ||
+                 method == FC_METHOD_IMPLICIT_RECTANGLE ? horizon : 0.0;
     s->ntol = 1e-12; s->nmax = 50; s->passes = 1;
     s->fail_step = UINT64_MAX; s->fail_t = 0.0;
     s->orders = malloc(vb); s->init = malloc(kb); s->y = malloc(vb);
@@ -183,7 +210,7 @@ static int build(size_t m, const double *orders, double step, double t0,
     s->yc = malloc(vb); s->fc = calloc(m, sizeof(double)); s->fs = malloc(vb);
     s->r = malloc(vb); s->gb = malloc(vb);
     s->piv = calloc(m, sizeof(size_t));
-    s->J = method == FC_METHOD_TRAPEZOID ? malloc(mm) : malloc(sizeof(double));
+    s->J = is_implicit(method) ? malloc(mm) : malloc(sizeof(double));
     if (!s->orders || !s->init || !s->y || !s->w0 || !s->hr || !s->ht ||
         !s->c || !s->yc || !s->fc || !s->fs || !s->r || !s->gb || !s->piv ||
         !s->J) {
@@ -221,12 +248,46 @@ static int build(size_t m, const double *orders, double step, double t0,
             if (orders[k] == orders[i]) g->idx[c++] = k;
         g->ident = g->nc == m;
         double w;
-        int st = fc_weights(FC_RULE_TRAPEZOID, g->order, step, 0, 1, &w);
+        int st = method == FC_METHOD_IMPLICIT_RECTANGLE
+               ? fc_weights(FC_RULE_RECTANGLE, g->order, step, 0, 1, &w)
+               : fc_weights(FC_RULE_TRAPEZOID, g->order, step, 0, 1, &w);
         if (st != FC_OK) { free_solver(s); return st; }
         for (size_t k = 0; k < g->nc; k++) s->w0[g->idx[k]] = w;
     }
     *out = s;
     return FC_OK;
+}
+
+/* The kernel stream of the implicit rectangle rule for group g. */
+static int make_kernel_stream(const fc_solver *s, const sv_group *g,
+                              fc_stream **out)
+{
+    double fl = floor(s->horizon);
+    if (fl + 1.0 > (double)((size_t)-1 / sizeof(double))) return FC_ERR_SIZE;
+    size_t K = (size_t)fl + 1;
+    double *k = malloc(K * sizeof(double));
+    if (!k) return FC_ERR_NOMEM;
+    int st = fc_weights(FC_RULE_RECTANGLE, g->order, s->step, 0, K, k);
+    if (st == FC_OK) st = fc_stream_create_kernel(k, K, g->nc, out);
+    free(k);
+    return st;
+}
+
+static int make_streams(fc_solver *s)
+{
+    int st = FC_OK;
+    for (size_t j = 0; j < s->ng && st == FC_OK; j++) {
+        sv_group *g = &s->g[j];
+        if (needs_rect(s->method))
+            st = fc_stream_create(FC_RULE_RECTANGLE, g->order, s->step, g->nc,
+                                  s->memory, s->tol, s->horizon, &g->rect);
+        if (st == FC_OK && s->method == FC_METHOD_IMPLICIT_RECTANGLE)
+            st = make_kernel_stream(s, g, &g->trap);
+        else if (st == FC_OK && needs_trap(s->method))
+            st = fc_stream_create(FC_RULE_TRAPEZOID, g->order, s->step, g->nc,
+                                  s->memory, s->tol, s->horizon, &g->trap);
+    }
+    return st;
 }
 
 int fc_solver_create(size_t m, const double *orders, double step, double t0,
@@ -246,16 +307,7 @@ int fc_solver_create(size_t m, const double *orders, double step, double t0,
     if ((st = build(m, orders, step, t0, init, method, memory, tol, horizon,
                     K, &s)) != FC_OK)
         return st;
-    for (size_t j = 0; j < s->ng; j++) {
-        sv_group *g = &s->g[j];
-        if (needs_rect(method))
-            st = fc_stream_create(FC_RULE_RECTANGLE, g->order, step, g->nc,
-                                  memory, tol, horizon, &g->rect);
-        if (st == FC_OK && needs_trap(method))
-            st = fc_stream_create(FC_RULE_TRAPEZOID, g->order, step, g->nc,
-                                  memory, tol, horizon, &g->trap);
-        if (st != FC_OK) { free_solver(s); return st; }
-    }
+    if ((st = make_streams(s)) != FC_OK) { free_solver(s); return st; }
     *out = s;
     return FC_OK;
 }
@@ -497,11 +549,32 @@ static int one_step(fc_solver *s, double t)
                 s->yc[i] = s->c[i] + s->w0[i] * s->fc[i];
         }
         return eval(s, t, stepi);
-    default: /* FC_METHOD_TRAPEZOID */
+    default: /* FC_METHOD_TRAPEZOID, FC_METHOD_IMPLICIT_RECTANGLE */
         for (size_t i = 0; i < m; i++) s->c[i] += s->ht[i];
         memcpy(s->yc, s->y, m * sizeof(double));
         return newton(s, t, stepi);
     }
+}
+
+/* Room for n rows of f history (implicit rectangle), doubling. */
+static int grow_history(fc_solver *s, uint64_t n)
+{
+    if (n <= s->fhcap) return FC_OK;
+    uint64_t want = n;
+    if (s->fhcap <= UINT64_MAX / 2 && 2 * (uint64_t)s->fhcap > want)
+        want = 2 * (uint64_t)s->fhcap;
+    size_t bytes;
+    for (int pass = 0; pass < 2; pass++) {
+        if (want <= (uint64_t)((size_t)-1) &&
+            !mul_size((size_t)want, s->m, &bytes) &&
+            !mul_size(bytes, sizeof(double), &bytes)) {
+            double *p = realloc(s->fh, bytes);
+            if (p) { s->fh = p; s->fhcap = (size_t)want; return FC_OK; }
+        }
+        if (want == n) break;
+        want = n;
+    }
+    return FC_ERR_NOMEM;
 }
 
 static int reserve(fc_solver *s, uint64_t need)
@@ -537,7 +610,8 @@ int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
     /* samples each stream holds at the end */
     if ((uint64_t)nsteps > UINT64_MAX - 1 - s->n) return FC_ERR_SIZE;
     uint64_t n_end = s->n + (uint64_t)nsteps;
-    if (s->memory == FC_MODE_COMPRESSED) {
+    if (s->memory == FC_MODE_COMPRESSED ||
+        s->method == FC_METHOD_IMPLICIT_RECTANGLE) {
         if ((double)n_end > floor(s->horizon)) return FC_ERR_HORIZON;
     }
     else if (n_end >= (UINT64_C(1) << 53)) return FC_ERR_SIZE;
@@ -551,9 +625,14 @@ int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
         }
         int st = reserve(s, n_end + 1);
         if (st != FC_OK) return st;
+        if (s->method == FC_METHOD_IMPLICIT_RECTANGLE &&
+            (st = grow_history(s, n_end)) != FC_OK)
+            return st;
     }
     s->busy = 1;
     int st = FC_OK;
+    if (!s->f0done && s->method == FC_METHOD_IMPLICIT_RECTANGLE)
+        s->f0done = 1; /* f_0 does not enter the right-end-point rule */
     if (!s->f0done) {
         memcpy(s->yc, s->y, m * sizeof(double));
         st = eval(s, s->t0, 0);
@@ -565,6 +644,7 @@ int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
         double t = s->t0 + (double)(s->n + 1) * s->step;
         if ((st = one_step(s, t)) != FC_OK) break;
         if ((st = push_all(s, s->fc)) != FC_OK) break;
+        if (s->fh) memcpy(s->fh + s->n * m, s->fc, m * sizeof(double));
         memcpy(s->y, s->yc, m * sizeof(double));
         s->n++;
         if (t_out) t_out[j] = t;
@@ -628,7 +708,8 @@ int fc_solver_nbytes(const fc_solver *s, size_t *nbytes)
     size_t m = s->m;
     size_t b = sizeof *s + s->ng * sizeof(sv_group) + m * sizeof(size_t) * 2
              + (12 + (size_t)s->K) * m * sizeof(double);
-    if (s->method == FC_METHOD_TRAPEZOID) b += m * m * sizeof(double);
+    if (is_implicit(s->method)) b += m * m * sizeof(double);
+    b += s->fhcap * m * sizeof(double);
     for (size_t j = 0; j < s->ng; j++) {
         size_t x;
         if (s->g[j].rect && fc_stream_nbytes(s->g[j].rect, &x) == FC_OK) b += x;
@@ -704,6 +785,8 @@ static uint64_t fnv1a(const unsigned char *p, size_t n)
  *  112  f64 orders[m], init[K*m], y[m]
  *       u64 number of groups; per group, for the rectangle then the
  *       trapezoid stream: u64 size (0: none) and the fc_stream_save bytes
+ *       (implicit rectangle: both 0)
+ *       u64 rows r (implicit rectangle: steps; else 0), f_1 .. f_r (r*m f64)
  *  end  u64 FNV-1a 64 of everything before
  */
 static int save_size(const fc_solver *s, size_t *size)
@@ -716,7 +799,7 @@ static int save_size(const fc_solver *s, size_t *size)
         fc_stream *st2[2] = { s->g[j].rect, s->g[j].trap };
         for (int k = 0; k < 2; k++) {
             size_t b = 0;
-            if (st2[k]) {
+            if (st2[k] && s->method != FC_METHOD_IMPLICIT_RECTANGLE) {
                 int st = fc_stream_save_size(st2[k], &b);
                 if (st != FC_OK) return st;
             }
@@ -724,6 +807,14 @@ static int save_size(const fc_solver *s, size_t *size)
                 return FC_ERR_SIZE;
         }
     }
+    size_t rows = 0;
+    if (s->method == FC_METHOD_IMPLICIT_RECTANGLE) {
+        if (s->n > (uint64_t)((size_t)-1)) return FC_ERR_SIZE;
+        rows = (size_t)s->n;
+    }
+    if (mul_size(rows, s->m, &v) || mul_size(v, 8, &v) ||
+        add_size(tot, 8, &tot) || add_size(tot, v, &tot))
+        return FC_ERR_SIZE;
     *size = tot;
     return FC_OK;
 }
@@ -772,7 +863,7 @@ int fc_solver_save(const fc_solver *s, unsigned char *buf, size_t size,
         fc_stream *st2[2] = { s->g[j].rect, s->g[j].trap };
         for (int k = 0; k < 2; k++) {
             size_t w = 0;
-            if (st2[k]) {
+            if (st2[k] && s->method != FC_METHOD_IMPLICIT_RECTANGLE) {
                 st = fc_stream_save(st2[k], p + off + 8, size - (off + 8), &w);
                 if (st != FC_OK) return st; /* buf contents unspecified */
             }
@@ -780,9 +871,45 @@ int fc_solver_save(const fc_solver *s, unsigned char *buf, size_t size,
             off += 8 + w;
         }
     }
+    uint64_t rows = s->method == FC_METHOD_IMPLICIT_RECTANGLE ? s->n : 0;
+    put_u64(p + off, rows);
+    off += 8;
+    for (size_t i = 0; i < (size_t)rows * m; i++, off += 8) put_f64(p + off, s->fh[i]);
     put_u64(p + off, fnv1a(p, off));
     off += 8;
     *written = off;
+    return FC_OK;
+}
+
+/* Implicit rectangle, load: the rows fit under the horizon. */
+static int check_kernel_room(const fc_solver *s, uint64_t rows)
+{
+    return (double)rows <= floor(s->horizon) ? FC_OK : FC_ERR_FORMAT;
+}
+
+/* Implicit rectangle, load: push the saved f_1 .. f_rows into the fresh
+   kernel streams (the result depends only on the samples, not on how they
+   were split into blocks, so later steps agree bit for bit). */
+static int refeed(fc_solver *s, size_t rows)
+{
+    size_t m = s->m;
+    for (size_t j = 0; j < s->ng; j++) {
+        sv_group *g = &s->g[j];
+        size_t tot;
+        if (mul_size(rows, g->nc, &tot) || mul_size(tot, sizeof(double), &tot))
+            return FC_ERR_SIZE;
+        double *x = malloc(tot ? tot : 1);
+        double *yo = malloc(tot ? tot : 1);
+        if (!x || !yo) { free(x); free(yo); return FC_ERR_NOMEM; }
+        for (size_t r = 0; r < rows; r++)
+            for (size_t c = 0; c < g->nc; c++)
+                x[r * g->nc + c] = s->fh[r * m + g->idx[c]];
+        int st = fc_stream_reserve(g->trap, (uint64_t)rows + 1);
+        if (st == FC_OK && rows) st = fc_stream_push_block(g->trap, x, rows, yo);
+        free(x);
+        free(yo);
+        if (st != FC_OK) return st;
+    }
     return FC_OK;
 }
 
@@ -817,7 +944,7 @@ int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out)
     uint32_t method = get_u32(buf + 12), memory = get_u32(buf + 16);
     uint32_t K = get_u32(buf + 20);
     uint64_t m64 = get_u64(buf + 24);
-    if (method > 2 || memory > 1 || (K != 1 && K != 2)) return FC_ERR_FORMAT;
+    if (method > 3 || memory > 1 || (K != 1 && K != 2)) return FC_ERR_FORMAT;
     /* every component takes (2 + K) * 8 bytes of the blob */
     if (m64 == 0 || m64 > (size - SV_HDR - 16) / (8 * (2 + (uint64_t)K)))
         return FC_ERR_FORMAT;
@@ -832,9 +959,11 @@ int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out)
         passes < 1 || passes > 100 || f0 > 1 || (f0 == 0 && n != 0) ||
         n >= (UINT64_C(1) << 53) || nrhs < f0 + n)
         return FC_ERR_FORMAT;
-    if (memory == FC_MODE_EXACT && (tol != 0.0 || horizon != 0.0))
+    if (memory == FC_MODE_EXACT && (tol != 0.0 ||
+        (method != FC_METHOD_IMPLICIT_RECTANGLE && horizon != 0.0)))
         return FC_ERR_FORMAT;
-    if (memory == FC_MODE_COMPRESSED && (double)n > floor(horizon))
+    if ((memory == FC_MODE_COMPRESSED || method == FC_METHOD_IMPLICIT_RECTANGLE)
+        && (double)n > floor(horizon))
         return FC_ERR_FORMAT;
     size_t off = SV_HDR;
     double *orders = malloc(m * sizeof(double));
@@ -872,10 +1001,12 @@ int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out)
     }
     off += 8;
     uint64_t count = f0 ? n + 1 : 0;
+    int impl = (int)method == FC_METHOD_IMPLICIT_RECTANGLE;
     for (size_t j = 0; j < s->ng; j++) {
         sv_group *g = &s->g[j];
         for (int k = 0; k < 2; k++) {
-            int want = k == 0 ? needs_rect((int)method) : needs_trap((int)method);
+            int want = !impl && (k == 0 ? needs_rect((int)method)
+                                        : needs_trap((int)method));
             if (end - off < 8) { free_solver(s); return FC_ERR_FORMAT; }
             uint64_t b = get_u64(buf + off);
             off += 8;
@@ -897,6 +1028,31 @@ int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out)
             if (k == 0) g->rect = x; else g->trap = x;
             off += (size_t)b;
         }
+    }
+    if (end - off < 8) { free_solver(s); return FC_ERR_FORMAT; }
+    uint64_t rows = get_u64(buf + off);
+    off += 8;
+    if (rows != (impl ? n : 0) || rows > (end - off) / 8 / m ||
+        rows * m * 8 != end - off) {
+        free_solver(s);
+        return FC_ERR_FORMAT;
+    }
+    if (impl) {
+        /* the f history bounded by the blob: rebuild the kernel streams */
+        if ((st = grow_history(s, rows)) != FC_OK ||
+            (rows && (st = check_kernel_room(s, rows)) != FC_OK) ||
+            (st = make_streams(s)) != FC_OK) {
+            free_solver(s);
+            return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+        }
+        for (size_t i = 0; i < (size_t)rows * m; i++)
+            s->fh[i] = get_f64(buf + off + 8 * i);
+        if (!all_finite(s->fh, (size_t)rows * m) ||
+            (st = refeed(s, (size_t)rows)) != FC_OK) {
+            free_solver(s);
+            return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+        }
+        off += (size_t)rows * m * 8;
     }
     if (off != end) { free_solver(s); return FC_ERR_FORMAT; }
     *out = s;

@@ -45,7 +45,9 @@ METHODS = {
     "rectangle": lib.FC_METHOD_RECTANGLE,
     "predictor-corrector": lib.FC_METHOD_PC,
     "trapezoid": lib.FC_METHOD_TRAPEZOID,
+    "implicit-rectangle": lib.FC_METHOD_IMPLICIT_RECTANGLE,
 }
+IMPLICIT = ("trapezoid", "implicit-rectangle")
 _METHOD_NAMES = {v: k for k, v in METHODS.items()}
 MEMORIES = {"exact": lib.FC_MODE_EXACT, "compressed": lib.FC_MODE_COMPRESSED}
 _MEMORY_NAMES = {v: k for k, v in MEMORIES.items()}
@@ -301,13 +303,30 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
             f"corrections={corr}: only used by method='predictor-corrector' "
             f"(method={meth!r})"
         )
-    if jacobian is not None and meth != "trapezoid":
-        raise ArgumentError(f"jacobian: only used by method='trapezoid' (method={meth!r})")
+    if jacobian is not None and meth not in IMPLICIT:
+        raise ArgumentError(
+            f"jacobian: only used by the implicit methods 'trapezoid' and "
+            f"'implicit-rectangle' (method={meth!r})")
     ntol = check_real("newton_tol", newton_tol)
     if not (1e-15 <= ntol <= 1e-2):
         raise ArgumentError(f"newton_tol={show(newton_tol)}: must be in [1e-15, 1e-2]")
     nmax = check_count("newton_maxiter", newton_maxiter, 1, 1000)
     tolf, hz = 0.0, 0.0
+    if meth == "implicit-rectangle":
+        if mem == "compressed":
+            raise ArgumentError(
+                "memory='compressed', method='implicit-rectangle': not available "
+                "(the right-end-point rule has no compressed stream); use "
+                "memory='exact'")
+        if horizon is None:
+            raise ArgumentError(
+                "horizon=None: required for method='implicit-rectangle' (the "
+                "number of steps it can take; its kernel is allocated at creation)")
+        hz = check_real("horizon", horizon)
+        if not (1.0 <= hz <= 2.0 ** 28):
+            raise ArgumentError(
+                f"horizon={show(horizon)}: must be in [1, 2**28] for "
+                "method='implicit-rectangle'")
     if mem == "compressed":
         if horizon is None:
             raise ArgumentError(
@@ -347,7 +366,7 @@ def _status_error(st, what):
 class Stepper:
     """A Caputo initial value problem advanced step by step (co-simulation,
     checkpoints). Arguments as for :func:`solve`; ``horizon`` (in steps) is
-    required for ``memory='compressed'``.
+    required for ``memory='compressed'`` and ``method='implicit-rectangle'``.
 
     ``advance(n)`` returns the n new times and states; :attr:`t`, :attr:`y`,
     :attr:`steps`, :attr:`rhs_evals`, :attr:`jac_evals` tell where it is;
@@ -479,7 +498,7 @@ class Stepper:
                 "singular iteration matrix); try a smaller step, a larger "
                 f"newton_maxiter or newton_tol{keep}", step, t, partial)
         if st == lib.FC_ERR_NONFINITE:
-            which = "jacobian" if self._method == "trapezoid" and fail is None and \
+            which = "rhs or jacobian" if self._method in IMPLICIT and \
                 self._run.jac is not None else "rhs"
             return RhsError(f"{which} returned a NaN or infinite value {at}{keep}",
                             step, t, partial)
@@ -590,8 +609,8 @@ class Stepper:
         # method and memory from the C bytes the loader accepted
         method = _METHOD_NAMES[int.from_bytes(b[_ENV_LEN + 12:_ENV_LEN + 16], "little")]
         memory = _MEMORY_NAMES[int.from_bytes(b[_ENV_LEN + 16:_ENV_LEN + 20], "little")]
-        if jacobian is not None and method != "trapezoid":
-            raise ArgumentError(f"jacobian: only used by method='trapezoid' (method={method!r})")
+        if jacobian is not None and method not in IMPLICIT:
+            raise ArgumentError(f"jacobian: only used by the implicit methods (method={method!r})")
         self = cls.__new__(cls)
         self._init(s, m, scalar, method, memory, rhs, jacobian)
         return self
@@ -635,11 +654,14 @@ def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
     dy0 : float or array_like, optional
         y'(t0); required when some order exceeds 1, refused otherwise.
     t0 : float, optional
-    method : {'predictor-corrector', 'rectangle', 'trapezoid'}, optional
+    method : {'predictor-corrector', 'rectangle', 'trapezoid', 'implicit-rectangle'}, optional
         Explicit product rectangle rule (order 1); the predictor-corrector
         of Diethelm, Ford and Freed 2002 (order min(2, 1+a) for smooth
         solutions); the implicit product trapezoidal rule with Newton's
-        method (Garrappa 2015), for stiff problems.
+        method (Garrappa 2015), order 2, for stiff problems with smooth
+        solutions; the implicit product rectangle rule (right end points,
+        order 1, exact memory only), strongly damped, for stiff problems
+        whose solution is not smooth at t0.
     memory : {'exact', 'compressed'}, optional
         Exact history sums (O(N log^2 N) work in all, memory grows with N)
         or compressed ones (bounded memory, relative tolerance ``tol`` over
@@ -648,16 +670,17 @@ def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
     tol : float, optional
         Tolerance of the compressed history sums, in [1e-15, 1e-2].
     horizon : float, optional
-        Steps the compressed tolerance is promised for (default n_steps).
+        Steps the compressed tolerance is promised for, and the steps
+        ``'implicit-rectangle'`` can take (default n_steps).
     jacobian : callable, optional
         ``jacobian(t, y)`` -> df/dy, shape (m, m) (a number for a scalar
-        problem); ``method='trapezoid'`` only; default forward differences.
+        problem); implicit methods only; default forward differences.
     corrections : int, optional
         Corrector passes of ``'predictor-corrector'`` (1 .. 100).
     progress : bool, optional
         A progress bar (needs the optional ``progress`` extra, tqdm).
     newton_tol, newton_maxiter : optional
-        Newton's method of ``'trapezoid'``: relative residual tolerance and
+        Newton's method of the implicit methods: relative residual tolerance and
         iteration limit per step.
 
     Returns
@@ -681,7 +704,7 @@ def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
     if not isinstance(progress, (bool, np.bool_)):
         raise InputTypeError(f"progress={show(progress)}: expected True or False")
     bar_cls = _tqdm() if progress else None
-    if horizon is None and memory == "compressed":
+    if horizon is None and (memory == "compressed" or method == "implicit-rectangle"):
         horizon = max(n, 1)
     st = Stepper(rhs, y0, order, step, dy0=dy0, t0=t0, method=method, memory=memory,
                  tol=tol, horizon=horizon, jacobian=jacobian, corrections=corrections,
