@@ -90,9 +90,9 @@ def reference_solve(f, y0, orders, h, N, dy0=None, method="predictor-corrector",
 
 def mittag_leffler(a, b, z, dps=60):
     """E_{a,b}(z) = sum_k z^k / Gamma(a k + b), summed with mpmath at dps
-    digits until the terms fall below 10^-(dps-5) of the sum (Gorenflo,
-    Kilbas, Mainardi and Rogosin, Mittag-Leffler Functions, Springer 2014,
-    eq. (4.1.1))."""
+    digits until the terms fall below 10^-(dps-5) of the sum (the defining
+    series: Gorenflo, Kilbas, Mainardi and Rogosin, Mittag-Leffler
+    Functions, Springer 2014, chapters 3 and 4)."""
     with mpmath.workdps(dps):
         z = mpmath.mpf(z)
         A = mpmath.mpf(a)
@@ -112,9 +112,10 @@ def mittag_leffler(a, b, z, dps=60):
 
 def ml_asymptotic(a, x, terms=6):
     """E_a(-x) for large x > 0: sum_{k=1}^{terms} (-1)^(k+1) x^-k /
-    Gamma(1 - a k), 0 < a < 1 (Gorenflo, Kilbas, Mainardi and Rogosin 2014,
-    asymptotic expansion (4.7.4); Podlubny, Fractional Differential
-    Equations, 1999, Theorem 1.4)."""
+    Gamma(1 - a k), 0 < a < 1 (the asymptotic expansion of Podlubny,
+    Fractional Differential Equations, 1999, Theorem 1.4; also Gorenflo,
+    Kilbas, Mainardi and Rogosin 2014). The tests check it against the
+    series where both can be evaluated."""
     with mpmath.workdps(30):
         s = mpmath.mpf(0)
         for k in range(1, terms + 1):
