@@ -295,6 +295,14 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
         da, dscalar = _values("dy0", dy0, m)
         if scalar and not dscalar:
             raise ArgumentError(f"dy0: expected a number for a scalar y0, got shape {da.shape}")
+        dfull = np.broadcast_to(da, (m,))
+        for i in range(m):
+            if orders[i] <= 1.0 and dfull[i] != 0.0:
+                name = "dy0" if dscalar else f"dy0[{i}]"
+                raise ArgumentError(
+                    f"{name}={show(float(dfull[i]))}: component {i} has order "
+                    f"{show(float(orders[i]))} <= 1, where y'(t0) is not an initial "
+                    "condition; pass 0 there")
         init = np.concatenate([np.broadcast_to(y0a, (m,)), np.broadcast_to(da, (m,))])
         init = np.ascontiguousarray(init, dtype=np.float64)
     corr = check_count("corrections", corrections, 1, 100)
