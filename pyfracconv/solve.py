@@ -238,6 +238,8 @@ def _check_memory(memory):
 def _values(name, value, m=None):
     """A real scalar or a 1-D array of finite reals as (array, scalar?)."""
     arr = as_float_array(name, value)
+    if arr.ndim == 1 and arr.size == 1 and np.ndim(value) == 0:
+        arr = arr.reshape(())  # np.ascontiguousarray makes scalars 1-D
     if arr.ndim > 1:
         raise ArgumentError(f"{name}: expected a number or a 1-D array, got shape {arr.shape}")
     if arr.ndim == 1 and arr.size == 0:
