@@ -63,15 +63,28 @@ def compile_args():
 # the header is plain C.
 PYTHON_CALLBACKS = """
 extern "Python" int _fc_py_rhs(double, const double *, double *, void *);
-extern "Python" int _fc_py_rhs1(double, const double *, double *, void *);
+extern "Python" double _fc_py_rhs1(double, double, void *);
 extern "Python" int _fc_py_jac(double, const double *, double *, void *);
+int _fc_py_rhs1_bridge(double, const double *, double *, void *);
+"""
+# A scalar rhs is called as double f(double t, double y, void *user): fewer
+# objects to build per call than pointers. A Python failure returns NaN
+# (which the solver reports as non-finite; the Python side then finds the
+# recorded failure). The bridge has the solver's callback signature.
+BRIDGE_SOURCE = """
+static double _fc_py_rhs1(double, double, void *);
+int _fc_py_rhs1_bridge(double t, const double *y, double *f, void *user)
+{
+    f[0] = _fc_py_rhs1(t, y[0], user);
+    return 0;
+}
 """
 
 ffibuilder = FFI()
 ffibuilder.cdef(read_cdef() + PYTHON_CALLBACKS)
 ffibuilder.set_source(
     "pyfracconv._fracconv",
-    '#include "fracconv.h"\n',
+    '#include "fracconv.h"\n' + BRIDGE_SOURCE,
     sources=c_sources(),
     include_dirs=["csrc"],
     extra_compile_args=compile_args(),

@@ -143,29 +143,35 @@ class _Run:
         self.yptr = y
 
 
+_NAN = float("nan")
+
+
 @ffi.def_extern()
-def _fc_py_rhs1(t, y, f, user):
+def _fc_py_rhs1(t, y, user):
+    # scalar problems: returns f; NaN after recording a failure
     run = ffi.from_handle(user)
     try:
-        v = run.fn(t, y[0])
+        v = run.fn(t, y)
     except BaseException as exc:
         run.fail = ("raised", exc, t)
-        return 1
+        return _NAN
+    if type(v) is float:
+        return v
     try:
-        f[0] = v
+        return float(v) if np.ndim(v) == 0 else _bad(run, v, t)
     except Exception:
-        try:
-            f[0] = float(np.asarray(v, dtype=np.float64).reshape(()))
-        except Exception:
-            run.fail = ("shape", v, t)
-            return 1
-    return 0
+        return _bad(run, v, t)
+
+
+def _bad(run, v, t):
+    run.fail = ("shape", v, t)
+    return _NAN
 
 
 @ffi.def_extern()
 def _fc_py_rhs(t, y, f, user):
     run = ffi.from_handle(user)
-    if y != run.yptr:
+    if run.yview is None:  # the solver passes the same buffers on every call
         run.bind(y, f)
     try:
         v = run.fn(t, run.yview)
@@ -417,7 +423,7 @@ class Stepper:
     def _set_callbacks(self, rhs, jacobian):
         self._run = _Run(rhs, jacobian, self._m, self._scalar)
         self._handle = ffi.new_handle(self._run)
-        fn = lib._fc_py_rhs1 if self._scalar else lib._fc_py_rhs
+        fn = lib._fc_py_rhs1_bridge if self._scalar else lib._fc_py_rhs
         raise_for_status(lib.fc_solver_set_rhs(self._s, fn, self._handle), "rhs")
         raise_for_status(lib.fc_solver_set_jacobian(
             self._s, lib._fc_py_jac if jacobian is not None else ffi.NULL,
@@ -507,7 +513,7 @@ class Stepper:
                 f"Newton's method did not converge {at} (newton_maxiter reached or a "
                 "singular iteration matrix); try a smaller step, a larger "
                 f"newton_maxiter or newton_tol{keep}", step, t, partial)
-        if st == lib.FC_ERR_NONFINITE:
+        if st == lib.FC_ERR_NONFINITE and fail is None:
             which = "rhs or jacobian" if self._method in IMPLICIT and \
                 self._run.jac is not None else "rhs"
             return RhsError(f"{which} returned a NaN or infinite value {at}{keep}",
