@@ -12,7 +12,7 @@ or compressed.
 from __future__ import annotations
 
 import math
-import numbers
+import struct
 import threading
 
 import numpy as np
@@ -409,10 +409,12 @@ class Stepper:
         s = ffi.gc(pp[0], lib.fc_solver_free)
         raise_for_status(lib.fc_solver_set_newton(s, p["ntol"], p["nmax"]), "newton_tol")
         raise_for_status(lib.fc_solver_set_corrections(s, p["corr"]), "corrections")
-        self._init(s, p["m"], p["scalar"], p["method"], p["memory"], rhs, jacobian)
+        self._init(s, p["m"], p["scalar"], p["method"], p["memory"], rhs, jacobian,
+                   p["horizon"])
 
-    def _init(self, s, m, scalar, method, memory, rhs, jacobian):
+    def _init(self, s, m, scalar, method, memory, rhs, jacobian, horizon):
         self._s = s
+        self._hz = horizon
         self._m = m
         self._scalar = scalar
         self._method = method
@@ -497,7 +499,16 @@ class Stepper:
         k = int(done[0])
         if st in (lib.FC_ERR_CALLBACK, lib.FC_ERR_NONFINITE, lib.FC_ERR_NEWTON):
             raise self._failure(st, make_partial(k))
+        if st == lib.FC_ERR_HORIZON:
+            hz = self._horizon()
+            raise HorizonError(
+                f"n={n}: past the horizon (horizon={hz:g} steps: {self.steps} done, "
+                f"{max(int(hz) - self.steps, 0)} left); nothing was done. Create the "
+                "stepper with a larger horizon")
         raise _status_error(st, f"advance(n={n})")
+
+    def _horizon(self):
+        return self._hz
 
     def _failure(self, st, partial):
         sp = ffi.new("uint64_t *")
@@ -627,8 +638,10 @@ class Stepper:
         memory = _MEMORY_NAMES[int.from_bytes(b[_ENV_LEN + 16:_ENV_LEN + 20], "little")]
         if jacobian is not None and method not in IMPLICIT:
             raise ArgumentError(f"jacobian: only used by the implicit methods (method={method!r})")
+        # the horizon, bytes 56..64 of the C format (csrc/solver.c)
+        horizon = struct.unpack_from("<d", b, _ENV_LEN + 56)[0]
         self = cls.__new__(cls)
-        self._init(s, m, scalar, method, memory, rhs, jacobian)
+        self._init(s, m, scalar, method, memory, rhs, jacobian, horizon)
         return self
 
 

@@ -74,7 +74,7 @@ def test_dff_example_rhs_is_the_caputo_derivative_of_its_solution(a):
             T = mpmath.mpf(t)
             # s = t (1 - w^(1/(1-a))) takes (t-s)^(-a) ds to t^(1-a)/(1-a) dw
             caputo = (T ** (1 - A) / (1 - A) / mpmath.gamma(1 - A)
-                      * mpmath.quad(lambda w: dy(T * (1 - w ** (1 / (1 - A)))), [0, 1]))
+                      * mpmath.quad(lambda w, T=T: dy(T * (1 - w ** (1 / (1 - A)))), [0, 1]))
             assert rhs(t, float(exact(t))) == pytest.approx(float(caputo), rel=1e-11, abs=1e-12)
 
 
@@ -108,7 +108,7 @@ def test_relaxation(method, a):
 def test_oscillator_with_initial_slope(method, a):
     # D^a y = -y, 1 < a <= 2: y(0) = 1, y'(0) = 0 gives E_a(-t^a); y(0) = 0,
     # y'(0) = 1 gives t E_{a,2}(-t^a) (Gorenflo, Kilbas, Mainardi and
-    # Rogosin 2014; Podlubny 1999, section 4.1); mpmath series
+    # Rogosin 2014; Podlubny 1999); mpmath series
     N, T = 1500, 3.0
     idx = np.arange(0, N + 1, 150)
     tr = idx * (T / N)

@@ -447,3 +447,40 @@ def test_public_names():
     for name in ("solve", "Stepper", "SolveResult", "SolverError", "RhsError", "NewtonError"):
         assert name in pyfracconv.__all__
     assert issubclass(RhsError, pyfracconv.SolverError) and issubclass(NewtonError, RuntimeError)
+
+
+def test_implicit_rectangle_horizon_and_loaded_horizon():
+    st = Stepper(lambda t, y: -y, 1.0, 0.5, 0.1, method="implicit-rectangle", horizon=5)
+    st.advance(5)
+    with pytest.raises(HorizonError, match=r"horizon=5 steps: 5 done, 0 left"):
+        st.advance(1)
+    again = Stepper.load(st.save(), lambda t, y: -y)
+    with pytest.raises(HorizonError, match=r"horizon=5 steps"):
+        again.advance(1)
+    assert again.steps == 5
+
+
+def test_vector_rhs_gets_a_read_only_view():
+    def rhs(t, y):
+        y[0] = 0.0
+        return -y
+
+    with pytest.raises(RhsError, match="read-only"):
+        solve(rhs, [1.0, 2.0], 0.5, 0.1, 3)
+
+
+def test_zero_steps():
+    res = solve(lambda t, y: -y, [1.0, 2.0], 0.5, 0.1, 0)
+    assert res.t.shape == (1,) and res.y.shape == (1, 2) and res.rhs_evals == 0
+
+
+def test_nbytes_bounded_in_compressed_memory():
+    # compressed memory does not grow with the steps; exact memory does
+    c = Stepper(lambda t, y: -y, 1.0, 0.5, 1e-3, memory="compressed", horizon=10**5)
+    e = Stepper(lambda t, y: -y, 1.0, 0.5, 1e-3)
+    c.advance(100)
+    e.advance(100)
+    c0, e0 = c.nbytes, e.nbytes
+    c.advance(20000)
+    e.advance(20000)
+    assert c.nbytes == c0 and e.nbytes > e0 + 20000 * 8
