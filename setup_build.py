@@ -66,6 +66,7 @@ extern "Python" int _fc_py_rhs(double, const double *, double *, void *);
 extern "Python" double _fc_py_rhs1(double, double, void *);
 extern "Python" int _fc_py_jac(double, const double *, double *, void *);
 int _fc_py_rhs1_bridge(double, const double *, double *, void *);
+int _fc_py_advance(fc_solver *, size_t, double *, double *, size_t *);
 """
 # A scalar rhs is called as double f(double t, double y, void *user): fewer
 # objects to build per call than pointers. A Python failure returns NaN
@@ -77,6 +78,16 @@ int _fc_py_rhs1_bridge(double t, const double *y, double *f, void *user)
 {
     f[0] = _fc_py_rhs1(t, y[0], user);
     return 0;
+}
+/* fc_solver_advance with the GIL held for the whole run (cffi releases it
+   around every call): each Python callback then finds it held and does
+   not take it again, which is most of the cost of a callback. */
+int _fc_py_advance(fc_solver *s, size_t n, double *t, double *y, size_t *done)
+{
+    PyGILState_STATE g = PyGILState_Ensure();
+    int st = fc_solver_advance(s, n, t, y, done);
+    PyGILState_Release(g);
+    return st;
 }
 """
 

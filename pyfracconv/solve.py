@@ -492,7 +492,7 @@ class Stepper:
         failure raise with make_partial(done) as the partial result."""
         done = ffi.new("size_t *")
         self._run.fail = None
-        st = lib.fc_solver_advance(self._s, n, ffi.from_buffer("double[]", tbuf),
+        st = lib._fc_py_advance(self._s, n, ffi.from_buffer("double[]", tbuf),
                                    ffi.from_buffer("double[]", ybuf), done)
         if st == 0:
             return
