@@ -37,7 +37,6 @@ from ._core import (
     as_float_array,
     check_compressed,
     check_order,
-    check_real,
     check_rule,
     check_step,
     show,
