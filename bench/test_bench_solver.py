@@ -73,6 +73,13 @@ def _check(res, ref):
     assert np.max(np.abs(res - ref)) <= 1e-12 * np.max(np.abs(ref))
 
 
+def _per_step(benchmark, n):
+    """The median per step, when timing is on (--benchmark-disable leaves
+    no statistics)."""
+    if benchmark.stats is not None:
+        benchmark.extra_info["us_per_step"] = benchmark.stats.stats.median / n * 1e6
+
+
 # ------------------------------------------------------------ scalar
 
 @pytest.mark.parametrize("n", [10**4, 10**5])
@@ -81,7 +88,7 @@ def test_scalar_solve(benchmark, n, memory):
     benchmark.group = f"scalar PC, {n} steps"
     res = benchmark.pedantic(solve, args=(rhs_scalar, 1.0, A, H, n),
                              kwargs={"memory": memory, "tol": 1e-12}, rounds=3, iterations=1)
-    benchmark.extra_info["us_per_step"] = benchmark.stats.stats.median / n * 1e6
+    _per_step(benchmark, n)
     assert res.rhs_evals == 2 * n + 1
 
 
@@ -109,7 +116,7 @@ def test_vector_solve(benchmark, n, memory):
     benchmark.pedantic(solve, args=(rhs_vector, y0, A, H, n),
                        kwargs={"memory": memory, "tol": 1e-12}, rounds=3 if n <= 10**4 else 1,
                        iterations=1)
-    benchmark.extra_info["us_per_step"] = benchmark.stats.stats.median / n * 1e6
+    _per_step(benchmark, n)
 
 
 @pytest.mark.parametrize("n", [10**4, 10**5])
