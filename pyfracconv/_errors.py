@@ -264,7 +264,10 @@ def nonfinite_error(name: str, values: object, after: str = "") -> SampleError:
     element of an array (C order), ``name=value`` for a scalar. ``after``
     (e.g. ``"the stream is unchanged"``) ends the message."""
     tail = f"; {after}" if after else ""
-    arr = np.asarray(values, dtype=np.float64)
+    try:
+        arr = np.asarray(values, dtype=np.float64)
+    except (TypeError, ValueError, OverflowError):  # a scalar only C could read
+        return SampleError(f"{name}={show(values)}: sample is NaN or infinite{tail}")
     if arr.ndim == 0:
         return SampleError(f"{name}={show(float(arr))}: sample is NaN or infinite{tail}")
     bad = np.flatnonzero(~np.isfinite(arr.ravel()))
