@@ -18,12 +18,12 @@ from typing import Dict, Optional, Tuple
 import numpy as np
 from numpy.typing import NDArray
 
+from . import _errors
 from ._errors import (
     ArgumentError,
     InputTypeError,
     OutOfMemory,
     SampleError,
-    nonfinite_error,
     show,
 )
 from ._fracconv import lib
@@ -370,4 +370,4 @@ def as_float_array(name: str, values: object) -> FloatArray:
 def raise_nonfinite(name: str, arr: object) -> None:
     """Raise SampleError naming the first non-finite element of ``arr``
     (:func:`pyfracconv._errors.nonfinite_error`)."""
-    raise nonfinite_error(name, arr)
+    raise _errors.nonfinite_error(name, arr)
