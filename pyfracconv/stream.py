@@ -689,11 +689,9 @@ class Stream:
             )
         ax = check_axis(axis, 2)
         if a.shape[1 - ax] != self._C:
-            want = f"(T, {self._C})" if ax == 0 else f"({self._C}, T)"
-            raise ArgumentError(
-                f"xs: expected shape {want} (time along axis={show(axis)}), "
-                f"got {a.shape}"
-            )
+            want = (f"(T, {self._C})" if ax == 0
+                    else f"({self._C}, T) (time along axis={show(axis)})")
+            raise ArgumentError(f"xs: expected shape {want}, got {a.shape}")
         return ax, a.shape[ax]
 
     def push_many(self, xs: ArrayLike, axis: int = 0) -> FloatArray:
