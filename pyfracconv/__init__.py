@@ -4,6 +4,20 @@ Quadrature weights (product rectangle and trapezoidal rules,
 Grunwald-Letnikov, L1) and fast, accurate lagged sums over whole
 histories: batch functions for recorded signals and streams that take one
 sample at a time.
+
+Examples
+--------
+The order-1 rectangle rule is the left rectangle sum (common practice), the
+same from the batch function and from a stream:
+
+>>> import pyfracconv
+>>> pyfracconv.integral([1.0, 2.0, 3.0], 1.0, 0.5)
+array([0. , 0.5, 1.5])
+>>> s = pyfracconv.Stream.integral(1.0, 0.5)
+>>> [s.push(x) for x in (1.0, 2.0, 3.0)]
+[0.0, 0.5, 1.5]
+>>> pyfracconv.c_version == pyfracconv.__version__
+True
 """
 
 from ._errors import (

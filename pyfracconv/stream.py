@@ -15,43 +15,53 @@ from __future__ import annotations
 import math
 import numbers
 import threading
+from typing import Any, Callable, Optional, Union
 
 import numpy as np
+from numpy.typing import ArrayLike, NDArray
 
+from ._checks import (
+    DERIVATIVE_RULES,
+    INTEGRAL_RULES,
+    MODES,
+    POLICIES,
+    RULES,
+    as_float_array,
+    check_axis,
+    check_channels,
+    check_compressed,
+    check_mode,
+    check_order,
+    check_policy,
+    check_rule,
+    check_step,
+    is_masked,
+    show,
+)
 from ._errors import (
     ArgumentError,
     BusyError,
+    FracconvError,
     HorizonError,
     InputTypeError,
     RangeError,
     SampleError,
     StateError,
     raise_for_status,
-)
-from ._core import (
-    DERIVATIVE_RULES,
-    INTEGRAL_RULES,
-    RULES,
-    SIZE_MAX,
-    _is_masked,
-    as_float_array,
-    check_compressed,
-    check_order,
-    check_rule,
-    check_step,
-    show,
+    status_error,
 )
 from ._fracconv import ffi, lib
 
 __all__ = ["Stream"]
 
+FloatArray = NDArray[np.float64]
+#: What a push, preview or history returns: a float for a scalar stream
+#: (channels=None), an array of shape (channels,) otherwise.
+Output = Union[float, FloatArray]
+
 _RULE_NAMES = {v: k for k, v in RULES.items()}
-_MODES = {"exact": lib.FC_MODE_EXACT, "compressed": lib.FC_MODE_COMPRESSED}
-_MODE_NAMES = {v: k for k, v in _MODES.items()}
-# What a compressed stream does with a push that would take it past its
-# horizon (the horizon_policy keyword and property).
-_POLICIES = {"refuse": lib.FC_HORIZON_REFUSE, "continue": lib.FC_HORIZON_CONTINUE}
-_POLICY_NAMES = {v: k for k, v in _POLICIES.items()}
+_MODE_NAMES = {v: k for k, v in MODES.items()}
+_POLICY_NAMES = {v: k for k, v in POLICIES.items()}
 
 # Python envelope around the C state: magic, one byte telling whether the
 # stream was made with channels=None (0x5A) or an explicit channel count
@@ -68,58 +78,15 @@ _ENV_LEN = 8
 _C_MIN_LEN = 8
 
 
-# ------------------------------------------------------------- validation
+# ------------------------------------------------------------- helpers
 
-def _check_channels(channels):
-    if channels is None:
-        return 1
-    if isinstance(channels, (bool, np.bool_)) or not isinstance(
-        channels, numbers.Integral
-    ):
-        raise InputTypeError(
-            f"channels={show(channels)}: expected None or an integer, "
-            f"got {type(channels).__name__}"
-        )
-    c = int(channels)
-    if c < 1:
-        raise ArgumentError(f"channels={show(channels)}: must be >= 1")
-    if c > SIZE_MAX:
-        raise ArgumentError(
-            f"channels={show(channels)}: must be <= {SIZE_MAX} (the largest size)"
-        )
-    return c
-
-
-def _check_mode(mode):
-    if not isinstance(mode, str) or mode not in _MODES:
-        raise ArgumentError(
-            f"mode={show(mode)}: unknown; expected one of 'exact', 'compressed'"
-        )
-    return _MODES[str(mode)]
-
-
-def _check_policy(policy):
-    if not isinstance(policy, str) or policy not in _POLICIES:
-        raise ArgumentError(
-            f"horizon_policy={show(policy)}: unknown; expected one of "
-            "'refuse', 'continue'"
-        )
-    return _POLICIES[str(policy)]
-
-
-def _first_bad(a):
-    bad = np.flatnonzero(~np.isfinite(a.ravel()))
-    i = int(bad[0])
-    return (np.unravel_index(i, a.shape) if a.ndim > 1 else (i,)), float(a.ravel()[i])
-
-
-def _get(fn, s, ctype):
+def _get(fn: Any, s: Any, ctype: str) -> Any:
     p = ffi.new(ctype)
     raise_for_status(fn(s, p), fn.__name__)
     return p[0]
 
 
-def _horizon_error(s, what, pushing=1):
+def _horizon_error(s: Any, what: str, pushing: int = 1) -> HorizonError:
     """HorizonError for a call on the C stream ``s`` that would produce
     ``pushing`` outputs past the horizon; ``what`` names the argument."""
     horizon = _get(lib.fc_stream_horizon, s, "double *")
@@ -136,9 +103,9 @@ def _horizon_error(s, what, pushing=1):
     )
 
 
-def _scalar_error(name, x):
+def _scalar_error(name: str, x: Any) -> FracconvError:
     """The exception for a scalar that cffi refused as a double."""
-    if isinstance(x, numbers.Real) and not isinstance(x, (bool, np.bool_)):
+    if not isinstance(x, (bool, np.bool_)) and isinstance(x, numbers.Real):
         try:
             float(x)
         except OverflowError:  # 10**400, Fraction(10**400), ...
@@ -146,7 +113,7 @@ def _scalar_error(name, x):
                 f"{name}={show(x)}: beyond the range of a double (samples must "
                 "be finite); the stream is unchanged"
             )
-    if _is_masked(x):
+    if is_masked(x):
         return InputTypeError(
             f"{name}: masked arrays are not accepted (the mask would be ignored)"
         )
@@ -161,23 +128,16 @@ def _scalar_error(name, x):
     )
 
 
-def _scalar_push_error(s, st, name, x):
+def _scalar_push_error(s: Any, st: Optional[int], name: str, x: Any) -> FracconvError:
     """The exception for a scalar push or preview of ``x`` on the C stream
     ``s`` that returned status ``st`` (None: cffi refused x)."""
     if st is None:
         return _scalar_error(name, x)
-    if st == lib.FC_ERR_NONFINITE:
-        if _is_masked(x):  # np.ma.masked converts to nan
-            return InputTypeError(
-                f"{name}=masked: masked values are not accepted (the mask would "
-                "be ignored); the stream is unchanged"
-            )
-        try:
-            shown = show(float(x))
-        except (TypeError, ValueError, OverflowError):
-            shown = show(x)
-        return SampleError(f"{name}={shown}: sample is NaN or infinite; "
-                           "the stream is unchanged")
+    if st == lib.FC_ERR_NONFINITE and is_masked(x):  # np.ma.masked converts to nan
+        return InputTypeError(
+            f"{name}=masked: masked values are not accepted (the mask would "
+            "be ignored); the stream is unchanged"
+        )
     if st == lib.FC_ERR_HORIZON:
         return _horizon_error(s, f"{name}={show(x)}")
     if st == lib.FC_ERR_RANGE:
@@ -185,14 +145,10 @@ def _scalar_push_error(s, st, name, x):
             f"{name}={show(x)}: the output would be beyond the double range; "
             "the stream is unchanged"
         )
-    try:
-        raise_for_status(st, name)
-    except Exception as exc:
-        return exc
-    return None  # pragma: no cover - st is never 0 here
+    return status_error(st, name, samples=(name, x), after="the stream is unchanged")
 
 
-def _make_push1(s, y1, lock):
+def _make_push1(s: Any, y1: Any, lock: Any) -> Callable[[float], float]:
     """push() of a one-channel scalar stream, with every lookup bound.
 
     The closure holds the C stream, its output buffer and its lock, never
@@ -202,13 +158,13 @@ def _make_push1(s, y1, lock):
     release = lock.release
     push1 = lib.fc_stream_push1
 
-    def push(x):
+    def push(x: float) -> float:
         if not acquire(False):
             raise BusyError("this stream is being used by another thread")
         try:
             st = push1(s, x, y1)
             if st == 0:
-                return y1[0]
+                return y1[0]  # type: ignore[no-any-return]
         except (TypeError, OverflowError):
             st = None
         finally:
@@ -228,6 +184,12 @@ class Stream:
     The n-th value returned (n = 0, 1, ...) equals element n of the batch
     function on the same samples: to rounding in ``mode="exact"``, to the
     stated tolerance in ``mode="compressed"``.
+
+    Time axis: the batch functions take time along ``axis=-1`` (the last
+    axis) by default; :meth:`push_many` takes time along ``axis=0`` by
+    default (one row per time step, ``(T, channels)``), and both accept any
+    axis through their ``axis`` argument, returning the outputs in the
+    layout of the input.
 
     A stream must not be used from two threads at once: a call that finds
     the stream in use raises :class:`pyfracconv.BusyError` and changes
@@ -260,9 +222,57 @@ class Stream:
     spectra, the kernel spectra and the FFT plans); work is
     amortised O(log^2 n) per sample, but a single push that completes the
     largest block so far costs O(n log n).
+
+    See Also
+    --------
+    pyfracconv.integral, pyfracconv.derivative, pyfracconv.lagged_sum :
+        the batch functions a stream agrees with.
+
+    Examples
+    --------
+    I^a 1 = t^a / Gamma(a+1) (Podlubny 1999); the rectangle rule gives it
+    exactly on a constant, h^a n^a / Gamma(a+1) at t_n (common practice).
+    With a = 0.5 and h = 0.25 that is 2 sqrt(t_n / pi):
+
+    >>> import numpy as np
+    >>> import pyfracconv
+    >>> s = pyfracconv.Stream.integral(0.5, 0.25)
+    >>> y = [s.push(1.0) for _ in range(5)]
+    >>> bool(np.allclose(y, 2 * np.sqrt(0.25 * np.arange(5) / np.pi), rtol=1e-14))
+    True
+
+    Two channels, time along axis 0 (the default) or along axis 1:
+
+    >>> d = pyfracconv.Stream.derivative(1.0, 0.5, channels=2)
+    >>> d.push_many([[0.0, 1.0], [1.0, 1.0], [4.0, 1.0]])   # (x_n - x_{n-1}) / h
+    array([[0., 2.],
+           [2., 0.],
+           [6., 0.]])
+    >>> d.reset()
+    >>> d.push_many([[0.0, 1.0, 4.0], [1.0, 1.0, 1.0]], axis=1)
+    array([[0., 2., 6.],
+           [2., 0., 0.]])
     """
 
-    def __init__(self, *args, **kwargs):
+    # set by _wrap (object.__new__ bypasses __init__)
+    _s: Any
+    _C: int
+    _scalar: bool
+    _mode: str
+    _compressed: bool
+    _kind: str
+    _rule: Optional[str]
+    _order: Optional[float]
+    _step: Optional[float]
+    _tol: Optional[float]
+    _horizon: Optional[float]
+    _lock: Any
+    _y1: Any
+    _x1: Any
+    _yarr: FloatArray
+    _yptr: Any
+
+    def __init__(self, *args: object, **kwargs: object) -> None:
         raise TypeError(
             "use Stream.integral(), Stream.derivative(), Stream.from_kernel() "
             "or Stream.load() to create a stream"
@@ -271,7 +281,7 @@ class Stream:
     # ------------------------------------------------------- construction
 
     @classmethod
-    def _wrap(cls, ptr, scalar):
+    def _wrap(cls, ptr: Any, scalar: bool) -> Stream:
         """A Stream around the C stream ``ptr`` (owned from now on: freed if
         this raises). Every parameter is read from the C object."""
         self = object.__new__(cls)
@@ -310,18 +320,19 @@ class Stream:
             # the hot path: a closure over prebuilt buffers (shadows the
             # documented method Stream.push on this instance); it does not
             # refer to self, so a Stream is never part of a reference cycle
-            self.push = _make_push1(s, self._y1, self._lock)
+            self.push = _make_push1(s, self._y1, self._lock)  # type: ignore[method-assign, assignment]
         return self
 
     @classmethod
-    def _create_rule(cls, rule, allowed, order, step, channels, mode, tol,
-                     horizon, horizon_policy):
+    def _create_rule(cls, rule: object, allowed: tuple[str, ...], order: object,
+                     step: object, channels: object, mode: object, tol: object,
+                     horizon: object, horizon_policy: object) -> Stream:
         code = check_rule(rule, allowed)
         a = check_order(order, rule)
         h = check_step(step)
-        C = _check_channels(channels)
-        m = _check_mode(mode)
-        pol = _check_policy(horizon_policy)
+        C = check_channels(channels)
+        m = check_mode(mode)
+        pol = check_policy(horizon_policy)
         if m == lib.FC_MODE_COMPRESSED:
             if a >= 2.0 or (a >= 1.0 and rule != "rectangle"):
                 raise ArgumentError(
@@ -369,9 +380,10 @@ class Stream:
         return self
 
     @classmethod
-    def integral(cls, order, step, rule="rectangle", channels=None,
-                 mode="exact", tol=1e-12, horizon=1e9,
-                 horizon_policy="refuse"):
+    def integral(cls, order: float, step: float, rule: str = "rectangle",
+                 channels: Optional[int] = None, mode: str = "exact",
+                 tol: float = 1e-12, horizon: float = 1e9,
+                 horizon_policy: str = "refuse") -> Stream:
         """A stream of the Riemann-Liouville integral of order ``order``.
 
         Parameters
@@ -404,14 +416,56 @@ class Stream:
         Returns
         -------
         Stream
+
+        Raises
+        ------
+        ArgumentError
+            Unknown or derivative rule, order or step out of range, bad
+            channels, mode, tol, horizon or horizon_policy, or an order
+            compressed mode cannot serve.
+        InputTypeError
+            order, step, tol or horizon not a real number, channels not an
+            integer.
+        RangeError
+            The kernel is beyond the double range (step or order too large).
+        OutOfMemory
+            The stream cannot be allocated.
+
+        See Also
+        --------
+        pyfracconv.integral : the batch integral the outputs agree with.
+        derivative, from_kernel, load : the other ways to make a stream.
+
+        Examples
+        --------
+        At order 1 the rectangle rule is the left rectangle sum
+        h (x_0 + ... + x_{n-1}) (common practice):
+
+        >>> import numpy as np
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.integral(1.0, 0.5)
+        >>> [s.push(x) for x in (1.0, 2.0, 3.0, 4.0)]
+        [0.0, 0.5, 1.5, 3.0]
+
+        A compressed stream stays within its tolerance of the exact result:
+        on a constant, h^a n^a / Gamma(a+1) (common practice; Diethelm,
+        Ford and Freed 2004), here 2 sqrt(t_n / pi):
+
+        >>> c = pyfracconv.Stream.integral(0.5, 0.01, mode="compressed",
+        ...                                tol=1e-10, horizon=1000)
+        >>> y = c.push_many(np.ones(1001))
+        >>> exact = 2 * np.sqrt(0.01 * np.arange(1001) / np.pi)
+        >>> bool(np.all(np.abs(y - exact) <= 1e-9 * exact))
+        True
         """
         return cls._create_rule(rule, INTEGRAL_RULES, order, step, channels,
                                 mode, tol, horizon, horizon_policy)
 
     @classmethod
-    def derivative(cls, order, step, rule="grunwald", channels=None,
-                   mode="exact", tol=1e-12, horizon=1e9,
-                   horizon_policy="refuse"):
+    def derivative(cls, order: float, step: float, rule: str = "grunwald",
+                   channels: Optional[int] = None, mode: str = "exact",
+                   tol: float = 1e-12, horizon: float = 1e9,
+                   horizon_policy: str = "refuse") -> Stream:
         """A stream of a fractional derivative of order ``order``.
 
         Parameters
@@ -429,12 +483,42 @@ class Stream:
         Returns
         -------
         Stream
+
+        Raises
+        ------
+        ArgumentError, InputTypeError, RangeError, OutOfMemory
+            As for :meth:`integral` (the rule must be a derivative rule).
+
+        See Also
+        --------
+        pyfracconv.derivative : the batch derivative the outputs agree with.
+        integral, from_kernel, load : the other ways to make a stream.
+
+        Examples
+        --------
+        At order 1 Grunwald-Letnikov is the backward difference quotient
+        (x_n - x_{n-1}) / h (common practice):
+
+        >>> import numpy as np
+        >>> import pyfracconv
+        >>> d = pyfracconv.Stream.derivative(1.0, 0.5)
+        >>> [d.push(x) for x in (0.0, 1.0, 4.0, 9.0)]
+        [0.0, 2.0, 6.0, 10.0]
+
+        The L1 scheme is exact on linear f (Lin and Xu 2007): the Caputo
+        derivative of t at order 0.5 is 2 sqrt(t / pi) (Diethelm 2010):
+
+        >>> c = pyfracconv.Stream.derivative(0.5, 0.25, rule="l1")
+        >>> t = 0.25 * np.arange(5)
+        >>> y = [c.push(float(tk)) for tk in t]
+        >>> bool(np.allclose(y, 2 * np.sqrt(t / np.pi), rtol=1e-13))
+        True
         """
         return cls._create_rule(rule, DERIVATIVE_RULES, order, step, channels,
                                 mode, tol, horizon, horizon_policy)
 
     @classmethod
-    def from_kernel(cls, kernel, channels=None):
+    def from_kernel(cls, kernel: ArrayLike, channels: Optional[int] = None) -> Stream:
         """An exact stream of y_n = sum_{k<=n} kernel[n-k] x_k.
 
         Parameters
@@ -448,6 +532,30 @@ class Stream:
         Returns
         -------
         Stream
+
+        Raises
+        ------
+        ArgumentError
+            kernel empty, not 1-D or not finite; bad channels.
+        InputTypeError
+            kernel not numeric or masked, channels not an integer.
+        OutOfMemory
+            The stream cannot be allocated.
+
+        See Also
+        --------
+        pyfracconv.lagged_sum : the batch sum the outputs agree with.
+        pyfracconv.weights : the kernels of the four rules.
+
+        Examples
+        --------
+        A three-tap moving sum (the causal part of a discrete convolution,
+        common practice):
+
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.from_kernel([1.0, 1.0, 1.0])
+        >>> [s.push(x) for x in (1.0, 2.0, 3.0, 4.0)]
+        [1.0, 3.0, 6.0, 9.0]
         """
         k = as_float_array("kernel", kernel)
         if k.ndim != 1 or k.size == 0:
@@ -455,9 +563,9 @@ class Stream:
                 f"kernel: expected a non-empty 1-D array, got shape {k.shape}"
             )
         if not np.all(np.isfinite(k)):
-            (i,), v = _first_bad(k)
-            raise ArgumentError(f"kernel[{i}]={show(v)}: must be finite")
-        C = _check_channels(channels)
+            i = int(np.flatnonzero(~np.isfinite(k))[0])
+            raise ArgumentError(f"kernel[{i}]={show(k[i])}: must be finite")
+        C = check_channels(channels)
         pp = ffi.new("fc_stream **")
         st = lib.fc_stream_create_kernel(ffi.from_buffer("double[]", k), k.size,
                                          C, pp)
@@ -468,10 +576,10 @@ class Stream:
 
     # ------------------------------------------------------------ helpers
 
-    def _busy(self):
+    def _busy(self) -> BusyError:
         return BusyError("this stream is being used by another thread")
 
-    def _sample_vector(self, name, x):
+    def _sample_vector(self, name: str, x: object) -> FloatArray:
         a = as_float_array(name, x)
         if a.shape != (self._C,):
             raise ArgumentError(
@@ -479,23 +587,17 @@ class Stream:
             )
         return a
 
-    def _vector_error(self, st, name, a, what="the stream is unchanged"):
+    def _vector_error(self, st: int, name: str, a: FloatArray,
+                      what: str = "the stream is unchanged") -> FracconvError:
         """The exception for a push or preview of the vector ``a``."""
-        if st == lib.FC_ERR_NONFINITE:
-            (i,), v = _first_bad(a)
-            return SampleError(f"{name}[{i}]={show(v)}: sample is NaN or "
-                               f"infinite; {what}")
         if st == lib.FC_ERR_HORIZON:
             return _horizon_error(self._s, name)
         if st == lib.FC_ERR_RANGE:
             return RangeError(f"{name}: an output would be beyond the double "
                               f"range; {what}")
-        try:
-            raise_for_status(st, name)
-        except Exception as exc:
-            return exc
+        return status_error(st, name, samples=(name, a), after=what)
 
-    def _refuse_past_horizon(self, name):
+    def _refuse_past_horizon(self, name: str) -> None:
         """HorizonError if the next output would pass the horizon of a
         compressed stream that refuses it (preview and history)."""
         if (self._compressed
@@ -504,9 +606,12 @@ class Stream:
                 and _get(lib.fc_stream_remaining, self._s, "uint64_t *") == 0):
             raise _horizon_error(self._s, name)
 
+    def _output(self) -> Output:
+        return float(self._yarr[0]) if self._scalar else self._yarr.copy()
+
     # ---------------------------------------------------------- streaming
 
-    def push(self, x):
+    def push(self, x: ArrayLike) -> Output:
         """Push one time step; return the output at this time step.
 
         Parameters
@@ -517,12 +622,39 @@ class Stream:
         Returns
         -------
         float or ndarray of shape (channels,)
+            A float for a scalar stream (``channels=None``).
 
         Raises
         ------
+        SampleError
+            A sample is NaN or infinite (or beyond the double range):
+            nothing is pushed.
+        ArgumentError
+            Wrong shape: nothing is pushed.
+        InputTypeError
+            Not numeric, or masked.
+        RangeError
+            The output would be beyond the double range: nothing is pushed.
         HorizonError
             Compressed stream with ``horizon_policy='refuse'`` at its
             horizon: nothing is pushed.
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        push_many : many time steps at once.
+        preview : what push would return, without pushing.
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.derivative(1.0, 0.5)   # (x_n - x_{n-1}) / h
+        >>> s.push(3.0), s.push(4.0)
+        (6.0, 2.0)
+        >>> v = pyfracconv.Stream.derivative(1.0, 0.5, channels=2)
+        >>> v.push([3.0, 1.0])
+        array([6., 2.])
         """
         if not self._lock.acquire(False):
             raise self._busy()
@@ -534,7 +666,7 @@ class Stream:
                     raise _scalar_error("x", x) from None
                 if st:
                     raise _scalar_push_error(self._s, st, "x", x)
-                return self._y1[0]
+                return float(self._y1[0])
             a = self._sample_vector("x", x)
             st = lib.fc_stream_push(self._s, ffi.from_buffer("double[]", a),
                                     self._yptr)
@@ -544,48 +676,110 @@ class Stream:
         finally:
             self._lock.release()
 
-    def push_many(self, xs):
+    def _block_layout(self, a: FloatArray, axis: object) -> tuple[int, int]:
+        """(time axis, T) of a block for push_many, or ArgumentError."""
+        if self._scalar:
+            if a.ndim != 1:
+                raise ArgumentError(f"xs: expected shape (T,), got {a.shape}")
+            ax = check_axis(axis, 1)
+            return ax, a.shape[0]
+        if a.ndim != 2:
+            raise ArgumentError(
+                f"xs: expected shape (T, {self._C}), got {a.shape}"
+            )
+        ax = check_axis(axis, 2)
+        if a.shape[1 - ax] != self._C:
+            want = (f"(T, {self._C})" if ax == 0
+                    else f"({self._C}, T) (time along axis={show(axis)})")
+            raise ArgumentError(f"xs: expected shape {want}, got {a.shape}")
+        return ax, a.shape[ax]
+
+    def push_many(self, xs: ArrayLike, axis: int = 0) -> FloatArray:
         """Push a block of time steps; return the outputs.
 
         Parameters
         ----------
         xs : array_like of shape (T,) (channels=None) or (T, channels)
-            Finite samples (masked arrays are refused).
+            Finite samples (masked arrays are refused); with ``axis=1``,
+            shape (channels, T).
+        axis : int, optional
+            The axis of time in ``xs``: 0 (the default, one row per time
+            step) or, for a stream with channels, 1 (one row per channel);
+            negative values count from the end. The batch functions'
+            default is the last axis; pass ``axis=-1`` to use the same
+            layout here.
 
         Returns
         -------
-        ndarray of the same shape: element t is what push(xs[t]) would have
-        returned. A block with any non-finite sample pushes nothing, and so
-        does a block that would pass the horizon of a compressed stream
-        with ``horizon_policy='refuse'`` (HorizonError).
+        ndarray
+            float64, of the shape (and layout) of ``xs``: the outputs for
+            time step t are where the samples of time step t were, what
+            push(sample t) would have returned.
+
+        Raises
+        ------
+        SampleError
+            A sample is NaN or infinite: nothing is pushed (the message
+            names the first one, indexed as in ``xs``).
+        ArgumentError
+            Wrong shape, or axis out of range: nothing is pushed.
+        InputTypeError
+            Not numeric, or masked; axis not an integer.
+        RangeError
+            An output would be beyond the double range: nothing is pushed.
+        HorizonError
+            The block would pass the horizon of a compressed stream with
+            ``horizon_policy='refuse'``: nothing is pushed.
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        push : one time step.
+        pyfracconv.integral, pyfracconv.derivative : the batch functions
+            (time along ``axis=-1``).
+
+        Examples
+        --------
+        At order 1 the rectangle rule is the left rectangle sum (common
+        practice):
+
+        >>> import numpy as np
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.integral(1.0, 0.5)
+        >>> s.push_many([1.0, 2.0, 3.0, 4.0])
+        array([0. , 0.5, 1.5, 3. ])
+
+        Blocks continue where the last push left off:
+
+        >>> s.push_many([5.0])
+        array([5.])
+
+        Channels along axis 1, or time along axis 1 (one row per channel):
+
+        >>> v = pyfracconv.Stream.integral(1.0, 0.5, channels=2)
+        >>> v.push_many([[1.0, 10.0], [2.0, 20.0], [3.0, 30.0]])
+        array([[ 0. ,  0. ],
+               [ 0.5,  5. ],
+               [ 1.5, 15. ]])
+        >>> v.reset()
+        >>> v.push_many([[1.0, 2.0, 3.0], [10.0, 20.0, 30.0]], axis=1)
+        array([[ 0. ,  0.5,  1.5],
+               [ 0. ,  5. , 15. ]])
         """
         if not self._lock.acquire(False):
             raise self._busy()
         try:
             a = as_float_array("xs", xs)
-            if self._scalar:
-                if a.ndim != 1:
-                    raise ArgumentError(f"xs: expected shape (T,), got {a.shape}")
-                T = a.shape[0]
-            else:
-                if a.ndim != 2 or a.shape[1] != self._C:
-                    raise ArgumentError(
-                        f"xs: expected shape (T, {self._C}), got {a.shape}"
-                    )
-                T = a.shape[0]
-            y = np.empty(a.shape)
+            ax, T = self._block_layout(a, axis)
+            # the C engine takes time along axis 0, row-major
+            block = a if ax == 0 else np.ascontiguousarray(a.T)
+            y = np.empty(block.shape)
             if a.size == 0:
-                return y
-            st = lib.fc_stream_push_block(self._s, ffi.from_buffer("double[]", a),
+                return y if ax == 0 else y.T
+            st = lib.fc_stream_push_block(self._s, ffi.from_buffer("double[]", block),
                                           T, ffi.from_buffer("double[]", y))
             if st:
-                if st == lib.FC_ERR_NONFINITE:
-                    idx, v = _first_bad(a)
-                    where = ", ".join(str(int(i)) for i in idx)
-                    raise SampleError(
-                        f"xs[{where}]={show(v)}: sample is NaN or infinite; "
-                        "nothing was pushed"
-                    )
                 if st == lib.FC_ERR_HORIZON:
                     raise _horizon_error(self._s, f"xs (shape {a.shape})", T)
                 if st == lib.FC_ERR_RANGE:
@@ -593,14 +787,47 @@ class Stream:
                         f"xs (shape {a.shape}): an output would be beyond the "
                         "double range; nothing was pushed"
                     )
-                raise_for_status(st, f"xs (shape {a.shape})")
-            return y
+                raise_for_status(st, f"xs (shape {a.shape})", samples=("xs", a),
+                                 after="nothing was pushed")
+            return y if ax == 0 else y.T
         finally:
             self._lock.release()
 
-    def preview(self, x):
-        """What push(x) would return, bit for bit, without pushing x
-        (HorizonError where push(x) would raise it)."""
+    def preview(self, x: ArrayLike) -> Output:
+        """What push(x) would return, bit for bit, without pushing x.
+
+        Parameters
+        ----------
+        x : float or array_like of shape (channels,)
+            Finite samples (masked arrays are refused).
+
+        Returns
+        -------
+        float or ndarray of shape (channels,)
+            The output push(x) would return; the stream is unchanged.
+
+        Raises
+        ------
+        SampleError, ArgumentError, InputTypeError, RangeError, BusyError
+            As for :meth:`push`.
+        HorizonError
+            Where push(x) would raise it.
+
+        See Also
+        --------
+        push, history
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.derivative(1.0, 0.5)   # (x_n - x_{n-1}) / h
+        >>> s.push(3.0)
+        6.0
+        >>> s.preview(4.0), s.count
+        (2.0, 1)
+        >>> s.preview(4.0) == s.push(4.0)
+        True
+        """
         if not self._lock.acquire(False):
             raise self._busy()
         try:
@@ -614,7 +841,7 @@ class Stream:
                 st = lib.fc_stream_preview(self._s, self._x1, self._y1)
                 if st:
                     raise _scalar_push_error(self._s, st, "x", x)
-                return self._y1[0]
+                return float(self._y1[0])
             a = self._sample_vector("x", x)
             if np.all(np.isfinite(a)):
                 self._refuse_past_horizon("x")
@@ -626,7 +853,7 @@ class Stream:
         finally:
             self._lock.release()
 
-    def history(self):
+    def history(self) -> Output:
         """The history term of the next output.
 
         The part of the next output that does not depend on the next sample
@@ -643,6 +870,27 @@ class Stream:
         HorizonError
             Compressed stream with ``horizon_policy='refuse'`` at its
             horizon (the next output is not promised).
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        preview : the whole next output for a given sample.
+
+        Examples
+        --------
+        Grunwald-Letnikov at order 1 is (x_n - x_{n-1}) / h (common
+        practice): the history is -x_{n-1} / h and w0 = 1 / h:
+
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.derivative(1.0, 0.5)
+        >>> s.push(3.0)
+        6.0
+        >>> past = s.history()
+        >>> past
+        -6.0
+        >>> s.push(4.0) == past + 2.0 * 4.0
+        True
         """
         if not self._lock.acquire(False):
             raise self._busy()
@@ -653,13 +901,37 @@ class Stream:
                 if st == lib.FC_ERR_HORIZON:
                     raise _horizon_error(self._s, "history()")
                 raise_for_status(st, "history()")
-            return float(self._yarr[0]) if self._scalar else self._yarr.copy()
+            return self._output()
         finally:
             self._lock.release()
 
-    def reset(self):
+    def reset(self) -> None:
         """Forget every sample (the kernel, reserved memory and the horizon
-        policy are kept)."""
+        policy are kept).
+
+        Returns
+        -------
+        None
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        count, remaining
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.integral(1.0, 0.5)
+        >>> s.push_many([1.0, 2.0]).tolist(), s.count
+        ([0.0, 0.5], 2)
+        >>> s.reset()
+        >>> s.count, s.push_many([1.0, 2.0]).tolist()
+        (0, [0.0, 0.5])
+        """
         if not self._lock.acquire(False):
             raise self._busy()
         try:
@@ -667,14 +939,50 @@ class Stream:
         finally:
             self._lock.release()
 
-    def reserve(self, n):
+    def reserve(self, n: int) -> None:
         """Make room so that pushing up to ``n`` samples in all allocates
-        nothing (exact mode; a no-op in compressed mode)."""
-        if isinstance(n, (bool, np.bool_)) or not isinstance(n, numbers.Integral):
+        nothing (exact mode; a no-op in compressed mode).
+
+        Parameters
+        ----------
+        n : int
+            Samples per channel, counted from creation or the last reset,
+            in [0, 2**64 - 1].
+
+        Returns
+        -------
+        None
+
+        Raises
+        ------
+        InputTypeError
+            n is not an integer.
+        ArgumentError
+            n is negative or beyond 2**64 - 1.
+        OutOfMemory
+            The room cannot be allocated (the stream is unchanged).
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        nbytes
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.integral(0.5, 0.1)
+        >>> before = s.nbytes
+        >>> s.reserve(10000)
+        >>> s.nbytes > before, s.count
+        (True, 0)
+        """
+        value: Any = n  # any object may come in: checked here
+        if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Integral):
             raise InputTypeError(
                 f"n={show(n)}: expected an integer, got {type(n).__name__}"
             )
-        if n < 0 or n >= 2**64:
+        if not 0 <= int(value) < 2**64:
             raise ArgumentError(f"n={show(n)}: must be in [0, 2**64 - 1]")
         if not self._lock.acquire(False):
             raise self._busy()
@@ -685,10 +993,38 @@ class Stream:
 
     # ------------------------------------------------------------ state
 
-    def save(self):
+    def save(self) -> bytes:
         """The state as bytes (a versioned, checksummed, little-endian
         format; not pickle). :meth:`load` resumes bit for bit. The horizon
-        policy is a setting, not state: it is not saved."""
+        policy is a setting, not state: it is not saved.
+
+        Returns
+        -------
+        bytes
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+        OutOfMemory
+            The bytes cannot be allocated.
+
+        See Also
+        --------
+        load
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> import pyfracconv
+        >>> x = np.sin(0.1 * np.arange(20))        # an invented test signal
+        >>> s = pyfracconv.Stream.integral(0.5, 0.1)
+        >>> _ = s.push_many(x[:10])
+        >>> blob = s.save()
+        >>> r = pyfracconv.Stream.load(blob)
+        >>> bool(np.array_equal(r.push_many(x[10:]), s.push_many(x[10:])))
+        True
+        """
         if not self._lock.acquire(False):
             raise self._busy()
         try:
@@ -711,7 +1047,7 @@ class Stream:
             self._lock.release()
 
     @classmethod
-    def load(cls, data):
+    def load(cls, data: Union[bytes, bytearray, memoryview]) -> Stream:
         """Rebuild a stream from :meth:`save` output.
 
         The loaded stream has ``horizon_policy='refuse'`` whatever the saved
@@ -720,12 +1056,39 @@ class Stream:
         (rule, order, step, tol, horizon, channels) are read from the C
         object once the C library has accepted the data.
 
+        Parameters
+        ----------
+        data : bytes-like
+            What :meth:`save` returned.
+
+        Returns
+        -------
+        Stream
+
         Raises
         ------
         InputTypeError
             data is not bytes-like.
         StateError
             data is truncated, corrupted, of another format or version.
+        OutOfMemory
+            The stream cannot be allocated.
+
+        See Also
+        --------
+        save
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.derivative(0.5, 0.01, rule="l1", channels=3)
+        >>> r = pyfracconv.Stream.load(s.save())
+        >>> r.rule, r.order, r.step, r.channels
+        ('l1', 0.5, 0.01, 3)
+        >>> pyfracconv.Stream.load(s.save()[:-1])
+        Traceback (most recent call last):
+        ...
+        pyfracconv._errors.StateError: data (... bytes): ...
         """
         if not isinstance(data, (bytes, bytearray, memoryview)):
             raise InputTypeError(
@@ -749,18 +1112,18 @@ class Stream:
             raise StateError(f"data ({len(b)} bytes): {exc}") from None
 
     @classmethod
-    def _unpickle(cls, data, horizon_policy):
+    def _unpickle(cls, data: bytes, horizon_policy: str) -> Stream:
         self = cls.load(data)
         self.horizon_policy = horizon_policy
         return self
 
-    def __reduce__(self):
+    def __reduce__(self) -> tuple[Any, tuple[bytes, str]]:
         # pickle and copy keep the horizon policy (load() alone does not)
         return (Stream._unpickle, (self.save(), self.horizon_policy))
 
     # ------------------------------------------------------- properties
 
-    def _query(self, fn, ctype):
+    def _query(self, fn: Any, ctype: str) -> Any:
         if not self._lock.acquire(False):
             raise self._busy()
         try:
@@ -769,43 +1132,165 @@ class Stream:
             self._lock.release()
 
     @property
-    def count(self):
-        """Samples pushed (per channel) since creation or the last reset."""
+    def count(self) -> int:
+        """Samples pushed (per channel) since creation or the last reset.
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        reset, remaining
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.integral(0.5, 0.1, channels=2)
+        >>> _ = s.push_many([[1.0, 2.0], [3.0, 4.0], [5.0, 6.0]])
+        >>> s.count
+        3
+        """
         return int(self._query(lib.fc_stream_count, "uint64_t *"))
 
     @property
-    def nbytes(self):
-        """Bytes of memory the C stream holds."""
+    def nbytes(self) -> int:
+        """Bytes of memory the C stream holds.
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        reserve, terms
+
+        Examples
+        --------
+        Exact mode keeps the whole history, so memory grows with the count:
+
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.integral(0.5, 0.1)
+        >>> before = s.nbytes
+        >>> _ = s.push_many([1.0] * 5000)
+        >>> s.nbytes > before
+        True
+        """
         return int(self._query(lib.fc_stream_nbytes, "size_t *"))
 
     @property
-    def terms(self):
-        """Number of exponential terms (compressed mode); 0 in exact mode."""
+    def terms(self) -> int:
+        """Number of exponential terms (compressed mode); 0 in exact mode.
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        mode, tol, horizon
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> pyfracconv.Stream.integral(0.5, 0.1).terms
+        0
+        >>> pyfracconv.Stream.integral(0.5, 0.1, mode="compressed").terms > 0
+        True
+        """
         return int(self._query(lib.fc_stream_terms, "size_t *"))
 
     @property
-    def remaining(self):
+    def remaining(self) -> int:
         """Samples (per channel) that can still be pushed under the promise:
         compressed mode floor(horizon) + 1 - count (0 once at or past the
-        horizon); exact mode the samples the stream can still take."""
+        horizon); exact mode the samples the stream can still take.
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        horizon, horizon_policy, past_horizon
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.integral(0.5, 0.1, mode="compressed", horizon=10)
+        >>> s.remaining
+        11
+        >>> _ = s.push_many([1.0] * 4)
+        >>> s.remaining
+        7
+        """
         return int(self._query(lib.fc_stream_remaining, "uint64_t *"))
 
     @property
-    def past_horizon(self):
+    def past_horizon(self) -> bool:
         """True once an output beyond the horizon has been produced (only
         possible with ``horizon_policy='continue'``); always False in exact
-        mode. reset() clears it."""
+        mode. reset() clears it.
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        horizon_policy, remaining
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.integral(0.5, 0.1, mode="compressed", horizon=2,
+        ...                                horizon_policy="continue")
+        >>> _ = s.push_many([1.0] * 3)
+        >>> s.past_horizon
+        False
+        >>> _ = s.push(1.0)                 # output 3: past the horizon
+        >>> s.past_horizon
+        True
+        """
         return bool(self._query(lib.fc_stream_past_horizon, "int *"))
 
     @property
-    def horizon_policy(self):
+    def horizon_policy(self) -> str:
         """'refuse' or 'continue': what a push past the horizon does (see
-        :meth:`integral`). Settable; a loaded stream starts with 'refuse'."""
+        :meth:`integral`). Settable; a loaded stream starts with 'refuse'.
+
+        Raises
+        ------
+        ArgumentError
+            Setting a name other than 'refuse' or 'continue' (the policy is
+            unchanged).
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        past_horizon, remaining
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.integral(0.5, 0.1, mode="compressed")
+        >>> s.horizon_policy
+        'refuse'
+        >>> s.horizon_policy = "continue"
+        >>> pyfracconv.Stream.load(s.save()).horizon_policy
+        'refuse'
+        """
         return _POLICY_NAMES[int(self._query(lib.fc_stream_horizon_policy, "int *"))]
 
     @horizon_policy.setter
-    def horizon_policy(self, policy):
-        code = _check_policy(policy)
+    def horizon_policy(self, policy: str) -> None:
+        code = check_policy(policy)
         if not self._lock.acquire(False):
             raise self._busy()
         try:
@@ -815,41 +1300,124 @@ class Stream:
             self._lock.release()
 
     @property
-    def channels(self):
-        """None (scalar stream) or the number of channels."""
+    def channels(self) -> Optional[int]:
+        """None (scalar stream) or the number of channels.
+
+        See Also
+        --------
+        push, push_many
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> pyfracconv.Stream.integral(0.5, 0.1).channels is None
+        True
+        >>> pyfracconv.Stream.integral(0.5, 0.1, channels=4).channels
+        4
+        """
         return None if self._scalar else self._C
 
     @property
-    def mode(self):
-        """'exact' or 'compressed'."""
+    def mode(self) -> str:
+        """'exact' or 'compressed'.
+
+        See Also
+        --------
+        terms, tol, horizon
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> pyfracconv.Stream.integral(0.5, 0.1).mode
+        'exact'
+        """
         return self._mode
 
     @property
-    def order(self):
-        """The order (None for a kernel stream)."""
+    def order(self) -> Optional[float]:
+        """The order (None for a kernel stream).
+
+        See Also
+        --------
+        rule, step
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> pyfracconv.Stream.derivative(0.3, 0.1).order
+        0.3
+        >>> pyfracconv.Stream.from_kernel([1.0]).order is None
+        True
+        """
         return self._order
 
     @property
-    def step(self):
-        """The step (None for a kernel stream)."""
+    def step(self) -> Optional[float]:
+        """The step (None for a kernel stream).
+
+        See Also
+        --------
+        rule, order
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> pyfracconv.Stream.derivative(0.3, 0.125).step
+        0.125
+        """
         return self._step
 
     @property
-    def rule(self):
-        """The rule name (None for a kernel stream)."""
+    def rule(self) -> Optional[str]:
+        """The rule name (None for a kernel stream).
+
+        See Also
+        --------
+        order, step
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> pyfracconv.Stream.integral(0.5, 0.1, rule="trapezoid").rule
+        'trapezoid'
+        """
         return self._rule
 
     @property
-    def tol(self):
-        """Tolerance (compressed mode), else None."""
+    def tol(self) -> Optional[float]:
+        """Tolerance (compressed mode), else None.
+
+        See Also
+        --------
+        horizon, mode
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> pyfracconv.Stream.integral(0.5, 0.1, mode="compressed", tol=1e-8).tol
+        1e-08
+        >>> pyfracconv.Stream.integral(0.5, 0.1).tol is None
+        True
+        """
         return self._tol
 
     @property
-    def horizon(self):
-        """Horizon (compressed mode), else None."""
+    def horizon(self) -> Optional[float]:
+        """Horizon (compressed mode), else None.
+
+        See Also
+        --------
+        remaining, tol, mode
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> pyfracconv.Stream.integral(0.5, 0.1, mode="compressed", horizon=500).horizon
+        500.0
+        """
         return self._horizon
 
-    def __repr__(self):
+    def __repr__(self) -> str:
         if self._kind == "kernel":
             what = "kernel"
         else:
