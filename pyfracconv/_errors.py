@@ -28,6 +28,9 @@ __all__ = [
     "BusyError",
     "RangeError",
     "HorizonError",
+    "SolverError",
+    "RhsError",
+    "NewtonError",
     "STATUS_CLASSES",
     "show",
     "nonfinite_error",
@@ -158,6 +161,28 @@ class BusyError(FracconvError, RuntimeError):
     """
 
 
+class SolverError(FracconvError, RuntimeError):
+    """A run stopped at a step: ``step`` (its index, 0 for f(t0, y0)),
+    ``time`` and ``partial`` (a :class:`pyfracconv.SolveResult` with the
+    solution up to the last good step)."""
+
+    def __init__(self, message: str, step: Optional[int] = None,
+                 time: Optional[float] = None, partial: object = None) -> None:
+        super().__init__(message)
+        self.step = step
+        self.time = time
+        self.partial = partial
+
+
+class RhsError(SolverError):
+    """The right-hand side (or the Jacobian) raised, returned a value of
+    the wrong shape, or a NaN or infinite value."""
+
+
+class NewtonError(SolverError):
+    """Newton's method of an implicit method did not converge."""
+
+
 class RangeError(ArgumentError):
     """A result would be beyond the range of double precision (the samples,
     the step or the order are too large for the operator).
@@ -222,6 +247,9 @@ STATUS_CLASSES: Dict[str, Type[FracconvError]] = {
     "FC_ERR_INDEX": ArgumentError,
     "FC_ERR_RANGE": RangeError,
     "FC_ERR_HORIZON": HorizonError,
+    "FC_ERR_CALLBACK": RhsError,
+    "FC_ERR_NEWTON": NewtonError,
+    "FC_ERR_NORHS": SolverError,
 }
 
 # The same table keyed by the numbers of the compiled library. A name the

@@ -32,6 +32,9 @@ from ._errors import (
     BusyError,
     FracconvError,
     HorizonError,
+    NewtonError,
+    RhsError,
+    SolverError,
     InputTypeError,
     OutOfMemory,
     StateError,
@@ -62,25 +65,8 @@ _ENV_LEN = 8
 
 # ------------------------------------------------------------ exceptions
 
-class SolverError(FracconvError, RuntimeError):
-    """A run stopped at a step: ``step`` (its index, 0 for f(t0, y0)),
-    ``time`` and ``partial`` (a :class:`SolveResult` with the solution up
-    to the last good step)."""
-
-    def __init__(self, message, step=None, time=None, partial=None):
-        super().__init__(message)
-        self.step = step
-        self.time = time
-        self.partial = partial
-
-
-class RhsError(SolverError):
-    """The right-hand side (or the Jacobian) raised, returned a value of
-    the wrong shape, or a NaN or infinite value."""
-
-
-class NewtonError(SolverError):
-    """Newton's method of ``method='trapezoid'`` did not converge."""
+# SolverError, RhsError and NewtonError live in _errors (the status table
+# maps the solver's statuses to them) and are re-exported here.
 
 
 # ------------------------------------------------------------ result

@@ -499,5 +499,6 @@ def test_range_errors_from_the_real_library():
     # practice), so both the weights and these outputs are out of range
     with pytest.raises(pf.RangeError, match=r"^step=1e\+40 \(or order=10\)"):
         pf.weights("rectangle", 10, 3, step=1e40)
-    with pytest.raises(pf.RangeError, match=r"^samples \(or step=1e\+40, order=10\).*largest \|sample\| 1\.0"):
+    with pytest.raises(pf.RangeError,
+                       match=r"^samples \(or step=1e\+40, order=10\).*largest \|sample\| 1\.0"):
         pf.integral(np.ones(4), 10, 1e40)
