@@ -43,3 +43,10 @@ check-c: example
 
 clean:
 	rm -rf $(BUILD)
+
+# C++17 wrapper (csrc/fracconv.hpp, header-only) and its example program.
+CXX ?= c++
+.PHONY: cpp-example
+cpp-example: $(BUILD)/example_cpp
+$(BUILD)/example_cpp: examples/example.cpp csrc/fracconv.hpp csrc/fracconv.h $(BUILD)/libfracconv.a
+	$(CXX) -O2 -std=c++17 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
