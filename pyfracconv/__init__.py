@@ -25,6 +25,7 @@ __version__ = "0.1.0"
 c_version = _ffi.string(_lib.fc_version_string()).decode()
 
 from .stream import Stream
+from .export import export_c  # noqa: E402,F401  (C99 export of a compressed operator)
 
 __all__ = [
     "weights",

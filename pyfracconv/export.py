@@ -136,9 +136,9 @@ def _scale(rule_name, order, step, x):
     if rule_name == "grunwald":
         return np.convolve(ax, np.abs(weights("grunwald", order, n, step)))[:n]
     if rule_name == "l1":
+        # y_n = sum_{m<n} d_m u_{n-m}, u_j = x_j - x_(j-1), u_0 = 0
         u = np.abs(np.diff(x, prepend=x[0]))
-        c = np.concatenate(([0.0], np.abs(weights("l1", order, n - 1, step))))
-        return np.convolve(u, c)[:n]
+        return np.convolve(u, np.abs(weights("l1", order, n, step)))[:n]
     # trapezoid: K (A_n x_0 + sum_{1<=k<=n} a_{n-k} x_k)
     w = np.abs(weights("trapezoid", order, n, step))
     ax1 = ax.copy()
@@ -258,10 +258,12 @@ def _array(name, ctype, vals, single):
 
 _CAUTION = """\
  * CAUTION. An operator inside a controller moves machinery. This file is a
- * numerical building block, not a safety function: validate the complete
- * controller on the plant (or a faithful model of it) before use, respect
- * actuator and rate limits outside this code, and keep an independent safe
- * stop that does not depend on this code or on the processor running it.
+ * numerical building block, not a safety function:
+ *   - validate the complete controller on the plant (or a faithful model
+ *     of it) before use;
+ *   - enforce actuator and rate limits outside this code;
+ *   - keep an independent safe stop that does not depend on this code or
+ *     on the processor running it.
  * Local codes, standards and licensed engineering practice take precedence
  * over anything said here."""
 
@@ -340,16 +342,20 @@ def export_c(rule, order, step, tol=1e-9, horizon=1e6, precision="double",
     rng = np.random.default_rng(seed)
     nt = min(test_length, last + 1)
     xt = rng.standard_normal(nt)
+    if single:  # inputs representable in float: the bound is for the arithmetic
+        xt = xt.astype(np.float32).astype(np.float64)
     yt = _library_outputs(s, xt)
     st = _scale(rule, a, h, xt)
 
     measured = stated = None
     method = ""
+    P = prefix
     if single:
         nm = min(_MEASURE_LEN, last + 1)
         worst = 0.0
         for fused in (False, True):
             for name, xm in _measure_inputs(nm, _MEASURE_SEED).items():
+                xm = xm.astype(np.float32).astype(np.float64)
                 ref = _library_outputs(s, xm)
                 sc = _scale(rule, a, h, xm)
                 got = _simulate(co, xm, np.float32, fused)
@@ -375,6 +381,9 @@ def export_c(rule, order, step, tol=1e-9, horizon=1e6, precision="double",
             f" * Largest measured: {measured:.3e}. Stated bound (twice that, at least\n"
             f" * 16 * 2^-24): {stated:.3e} of the error scale against the library's\n"
             f" * stream; against the exact operator add the stream's own tol + 64 eps.\n"
+            f" * The inputs were single-precision numbers (what {P}_step receives):\n"
+            f" * rounding a double input to float is not included (for the L1 rule\n"
+            f" * it can be large relative to small differences x_n - x_(n-1)).\n"
             f" * Inputs much longer than {nm} samples or of a very different shape were\n"
             f" * not measured: check them on the target.\n")
     texts = _generate(prefix, rule, a, h, t, hz, last, co, single, measured, stated,
