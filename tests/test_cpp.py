@@ -61,3 +61,28 @@ def test_header_compiles_alone_pedantic(tmp_path):
                        capture_output=True, text=True)
     assert r.returncode == 0, r.stderr
 
+
+
+def _doc_block(lang):
+    with open(os.path.join(ROOT, "docs", "compiled.md")) as f:
+        text = f.read()
+    blocks = re.findall(r"```" + lang + r"\n(.*?)```", text, re.S)
+    assert len(blocks) == 1, f"expected one {lang} block in docs/compiled.md"
+    return blocks[0]
+
+
+def test_docs_cpp_example_builds_and_runs(example, tmp_path):
+    # the README-ready example, built as its comment says (with -Werror too)
+    build = tmp_path / "build"
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
+                   capture_output=True, text=True)
+    src = tmp_path / "quick.cpp"
+    src.write_text(_doc_block("cpp"))
+    exe = tmp_path / "quick"
+    r = subprocess.run([CXX, "-std=c++17", "-Wall", "-Wextra", "-Werror", "-I",
+                        os.path.join(ROOT, "csrc"), str(src), str(build / "libfracconv.a"),
+                        "-lm", "-o", str(exe)], capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    out = subprocess.run([str(exe)], capture_output=True, text=True)
+    assert out.returncode == 0, out.stdout
+    assert "refused (status 3)" in out.stdout

@@ -202,3 +202,21 @@ def test_refusals(kwargs):
     kw.update(kwargs)
     with pytest.raises(pyfracconv.ArgumentError):
         export_c(**kw)
+
+
+def test_docs_export_example_runs(tmp_path, monkeypatch):
+    import os
+    root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+    with open(os.path.join(root, "docs", "compiled.md")) as f:
+        text = f.read()
+    py = re.findall(r"```python\n(.*?)```", text, re.S)
+    c = re.findall(r"```c\n(.*?)```", text, re.S)
+    assert len(py) == 1 and len(c) == 1
+    monkeypatch.chdir(tmp_path)
+    exec(compile(py[0], "docs/compiled.md", "exec"), {})
+    (tmp_path / "main.c").write_text(c[0])
+    r = subprocess.run([CC, *CFLAGS, "main.c", "dhalf.c", "-o", "main"],
+                       capture_output=True, text=True, cwd=tmp_path)
+    assert r.returncode == 0, r.stderr
+    out = subprocess.run(["./main"], capture_output=True, text=True, cwd=tmp_path)
+    assert out.returncode == 0 and out.stdout.startswith("0 of 300"), out.stdout

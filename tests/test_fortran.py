@@ -68,3 +68,23 @@ def test_module_constants_equal_the_c_header():
         assert header.get(name) == value, name
     # every status code of the header is in the module
     assert {k for k in header if k.startswith("FC_ERR_")} <= set(module)
+
+
+def test_docs_fortran_example_builds_and_runs(tmp_path):
+    with open(os.path.join(ROOT, "docs", "compiled.md")) as f:
+        blocks = re.findall(r"```fortran\n(.*?)```", f.read(), re.S)
+    assert len(blocks) == 1
+    build = tmp_path / "build"
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
+                   capture_output=True, text=True)
+    src = tmp_path / "quick.f90"
+    src.write_text(blocks[0])
+    exe = tmp_path / "quick"
+    r = subprocess.run([FC, "-std=f2008", "-Wall", "-Werror", "-J", str(tmp_path),
+                        os.path.join(ROOT, "fortran", "fracconv.f90"), str(src),
+                        str(build / "libfracconv.a"), "-lm", "-o", str(exe)],
+                       capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    out = subprocess.run([str(exe)], capture_output=True, text=True)
+    assert out.returncode == 0, out.stdout + out.stderr
+    assert "refused: status 3: order must be" in out.stdout
