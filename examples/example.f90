@@ -8,7 +8,8 @@
 ! time) against the batch call; the history term; a two-channel compressed
 ! stream in blocks, saved and loaded, continuing bit for bit; a refused
 ! call's status and message. Prints the first Grunwald weights (the tests
-! compare them with the Python bindings).
+! compare them with the Python bindings); with a file name as argument,
+! writes the compressed stream's saved bytes there.
 !
 ! Build: make fortran-example   (or: gfortran -std=f2008 fortran/fracconv.f90
 !        examples/example.f90 build/libfracconv.a -lm)
@@ -25,7 +26,8 @@ program example
   integer(c_signed_char), allocatable :: blob(:)
   integer(c_int64_t) :: cnt
   type(fc_stream) :: s, cs, loaded
-  integer :: st, i, failures
+  integer :: st, i, failures, unit, alen
+  character(len=4096) :: path
 
   failures = 0
   print '(a, i0)', 'libfracconv version number ', fc_version()
@@ -87,6 +89,15 @@ program example
   call expect(st == FC_OK, 'fc_stream_push_block')
   call fc_stream_save(cs, blob, st)
   call expect(st == FC_OK .and. allocated(blob), 'fc_stream_save')
+  ! optional argument: a file to write the saved bytes to (the tests load
+  ! them from Python)
+  call get_command_argument(1, path, alen)
+  if (alen > 0) then
+    open(newunit=unit, file=path(1:alen), access='stream', form='unformatted', &
+         status='replace', action='write')
+    write(unit) blob
+    close(unit)
+  end if
   call fc_stream_push_block(cs, xb(:, 151:n), y1, st)
   call fc_stream_load(loaded, blob, st)
   call expect(st == FC_OK, 'fc_stream_load')
