@@ -49,3 +49,20 @@ check-c: example solver-example
 
 clean:
 	rm -rf $(BUILD)
+
+# C++17 wrapper (csrc/fracconv.hpp, header-only) and its example program.
+CXX ?= c++
+.PHONY: cpp-example
+cpp-example: $(BUILD)/example_cpp
+$(BUILD)/example_cpp: examples/example.cpp csrc/fracconv.hpp csrc/fracconv.h $(BUILD)/libfracconv.a
+	$(CXX) -O2 -std=c++17 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
+
+# Fortran 2008 module (fortran/fracconv.f90) and its example program.
+FC = gfortran
+# -Wno-compare-reals: the example compares bit for bit on purpose
+FFLAGS = -O2 -std=f2008 -Wall -Wextra -Werror -Wno-compare-reals
+.PHONY: fortran-example
+fortran-example: $(BUILD)/example_f90
+$(BUILD)/example_f90: fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a
+	@mkdir -p $(BUILD)/fmod
+	$(FC) $(FFLAGS) -J $(BUILD)/fmod fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a -lm -o $@

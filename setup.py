@@ -12,26 +12,27 @@ from setuptools import setup
 from setuptools.command.build_py import build_py
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-HEADER = os.path.join(HERE, "csrc", "fracconv.h")
+# The C header and the header-only C++ wrapper over it.
+HEADERS = ("fracconv.h", "fracconv.hpp")
 
 
 class build_py_with_header(build_py):
-    def _header_target(self):
-        return os.path.join(self.build_lib, "pyfracconv", "include", "fracconv.h")
+    def _header_targets(self):
+        return [os.path.join(self.build_lib, "pyfracconv", "include", h) for h in HEADERS]
 
     def run(self):
         super().run()
         if getattr(self, "editable_mode", False):
             return  # the checkout's csrc/ serves get_include()
-        target = self._header_target()
-        self.mkpath(os.path.dirname(target))
-        self.copy_file(HEADER, target)
+        for name, target in zip(HEADERS, self._header_targets()):
+            self.mkpath(os.path.dirname(target))
+            self.copy_file(os.path.join(HERE, "csrc", name), target)
 
     def get_outputs(self, include_bytecode=True):
         outputs = super().get_outputs(include_bytecode)
         if getattr(self, "editable_mode", False):
             return outputs
-        return outputs + [self._header_target()]
+        return outputs + self._header_targets()
 
 
 setup(

@@ -40,6 +40,7 @@ c_version = _ffi.string(_lib.fc_version_string()).decode()
 
 from .stream import Stream
 from .solve import NewtonError, RhsError, SolveResult, SolverError, Stepper, solve
+from .export import export_c
 
 __all__ = [
     "weights",
@@ -49,6 +50,7 @@ __all__ = [
     "get_include",
     "Stream",
     "solve",
+    "export_c",
     "Stepper",
     "SolveResult",
     "SolverError",
