@@ -21,7 +21,8 @@ module fracconv
        FC_ERR_ORDER = 3, FC_ERR_STEP = 4, FC_ERR_SIZE = 5, FC_ERR_NONFINITE = 6, &
        FC_ERR_NOMEM = 7, FC_ERR_MODE = 8, FC_ERR_TOL = 9, FC_ERR_FORMAT = 10, &
        FC_ERR_BUSY = 11, FC_ERR_KERNEL = 12, FC_ERR_ARG = 13, FC_ERR_INDEX = 14, &
-       FC_ERR_RANGE = 15, FC_ERR_HORIZON = 16
+       FC_ERR_RANGE = 15, FC_ERR_HORIZON = 16, FC_ERR_CALLBACK = 64, &
+       FC_ERR_NEWTON = 65, FC_ERR_NORHS = 66
   integer, parameter, public :: FC_RULE_RECTANGLE = 0, FC_RULE_TRAPEZOID = 1, &
        FC_RULE_GRUNWALD = 2, FC_RULE_L1 = 3
   integer, parameter, public :: FC_ENGINE_AUTO = 0, FC_ENGINE_DIRECT = 1, &
