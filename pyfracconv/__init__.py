@@ -20,6 +20,23 @@ array([0. , 0.5, 1.5])
 True
 """
 
+import os as _os
+
+try:
+    from . import _fracconv  # noqa: F401  (the compiled core)
+except ImportError as _exc:  # pragma: no cover - exercised by a subprocess test
+    _here = _os.path.dirname(_os.path.abspath(__file__))
+    _checkout = _os.path.isfile(_os.path.join(_here, _os.pardir, "setup_build.py"))
+    raise ImportError(
+        "pyfracconv: the compiled core (pyfracconv._fracconv) is missing from "
+        f"{_here}. "
+        + ("This is the source checkout, which shadows an installed copy when "
+           "Python runs from its top folder: run from another directory, or "
+           "build in place with `pip install -e .`."
+           if _checkout else
+           "Reinstall the package (`pip install --force-reinstall pyfracconv`).")
+    ) from _exc
+
 from ._errors import (
     ArgumentError,
     BusyError,
