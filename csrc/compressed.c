@@ -155,6 +155,7 @@
 #include <math.h>
 #include <float.h>
 #include "internal.h"
+#include "serial.h"
 
 #if (defined(__GNUC__) || defined(__clang__)) && \
     (defined(__x86_64__) || defined(__i386__))
@@ -1109,45 +1110,6 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
 #define CS_HDR 72
 static const unsigned char cs_magic[4] = {'F', 'C', 'C', 'S'};
 
-static void cs_put64(unsigned char *p, uint64_t v)
-{
-    for (int i = 0; i < 8; i++) p[i] = (unsigned char)(v >> (8 * i));
-}
-static uint64_t cs_get64(const unsigned char *p)
-{
-    uint64_t v = 0;
-    for (int i = 7; i >= 0; i--) v = (v << 8) | p[i];
-    return v;
-}
-static void cs_put32(unsigned char *p, uint32_t v)
-{
-    for (int i = 0; i < 4; i++) p[i] = (unsigned char)(v >> (8 * i));
-}
-static uint32_t cs_get32(const unsigned char *p)
-{
-    return (uint32_t)p[0] | (uint32_t)p[1] << 8 | (uint32_t)p[2] << 16 |
-           (uint32_t)p[3] << 24;
-}
-static void cs_putd(unsigned char *p, double d)
-{
-    uint64_t v;
-    memcpy(&v, &d, 8);
-    cs_put64(p, v);
-}
-static double cs_getd(const unsigned char *p)
-{
-    uint64_t v = cs_get64(p);
-    double d;
-    memcpy(&d, &v, 8);
-    return d;
-}
-static uint64_t cs_fnv(const unsigned char *p, size_t n)
-{
-    uint64_t h = UINT64_C(14695981039346656037);
-    for (size_t i = 0; i < n; i++) { h ^= p[i]; h *= UINT64_C(1099511628211); }
-    return h;
-}
-
 /* Number of doubles after the header for (C, L); FC_ERR_SIZE on overflow. */
 static int cs_ndoubles(uint64_t C, uint64_t L, size_t *nd)
 {
@@ -1185,31 +1147,31 @@ int fc__cs_save(const fc_cstream *cs, unsigned char *buf, size_t size)
     const size_t B = CS_BAND, L = cs->L;
     unsigned char *p = buf;
     memcpy(p, cs_magic, 4);
-    cs_put32(p + 4, CS_FMT_VERSION);
-    cs_put32(p + 8, (uint32_t)cs->rule);
-    cs_put32(p + 12, (uint32_t)B);
-    cs_put64(p + 16, (uint64_t)cs->C);
-    cs_put64(p + 24, (uint64_t)L);
-    cs_put64(p + 32, cs->n);
-    cs_putd(p + 40, cs->order);
-    cs_putd(p + 48, cs->step);
-    cs_putd(p + 56, cs->tol);
-    cs_putd(p + 64, cs->horizon);
+    fc__put32(p + 4, CS_FMT_VERSION);
+    fc__put32(p + 8, (uint32_t)cs->rule);
+    fc__put32(p + 12, (uint32_t)B);
+    fc__put64(p + 16, (uint64_t)cs->C);
+    fc__put64(p + 24, (uint64_t)L);
+    fc__put64(p + 32, cs->n);
+    fc__putd(p + 40, cs->order);
+    fc__putd(p + 48, cs->step);
+    fc__putd(p + 56, cs->tol);
+    fc__putd(p + 64, cs->horizon);
     p += CS_HDR;
-#define PUTV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { cs_putd(p, (arr)[i_]); p += 8; } } while (0)
+#define PUTV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { fc__putd(p, (arr)[i_]); p += 8; } } while (0)
     PUTV(cs->q, L); PUTV(cs->beta, L); PUTV(cs->inj, L);
     PUTV(cs->cb, B);
-    cs_putd(p, cs->c0); p += 8;
+    fc__putd(p, cs->c0); p += 8;
     PUTV(cs->ctab, B);
     for (size_t c = 0; c < cs->C; c++) {
         PUTV(cs->ring + c * 2 * B, B);
         PUTV(cs->S + c * cs->Lp, L);
         PUTV(cs->Sc + c * cs->Lp, L);
-        cs_putd(p, cs->xprev[c]); p += 8;
-        cs_putd(p, cs->x0[c]); p += 8;
+        fc__putd(p, cs->xprev[c]); p += 8;
+        fc__putd(p, cs->x0[c]); p += 8;
     }
 #undef PUTV
-    cs_put64(p, cs_fnv(buf, (size_t)(p - buf)));
+    fc__put64(p, fc__fnv1a(FC__FNV_OFFSET, buf, (size_t)(p - buf)));
     return FC_OK;
 }
 
@@ -1306,29 +1268,29 @@ int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
     const size_t B = CS_BAND;
     if (size < CS_HDR + 8) return FC_ERR_FORMAT;
     if (memcmp(buf, cs_magic, 4) != 0) return FC_ERR_FORMAT;
-    if (cs_get32(buf + 4) != CS_FMT_VERSION) return FC_ERR_FORMAT;
-    uint32_t rule = cs_get32(buf + 8);
-    if (rule > FC_RULE_L1 || cs_get32(buf + 12) != B) return FC_ERR_FORMAT;
-    uint64_t C = cs_get64(buf + 16), L = cs_get64(buf + 24), n = cs_get64(buf + 32);
-    double order = cs_getd(buf + 40), step = cs_getd(buf + 48);
-    double tol = cs_getd(buf + 56), horizon = cs_getd(buf + 64);
+    if (fc__get32(buf + 4) != CS_FMT_VERSION) return FC_ERR_FORMAT;
+    uint32_t rule = fc__get32(buf + 8);
+    if (rule > FC_RULE_L1 || fc__get32(buf + 12) != B) return FC_ERR_FORMAT;
+    uint64_t C = fc__get64(buf + 16), L = fc__get64(buf + 24), n = fc__get64(buf + 32);
+    double order = fc__getd(buf + 40), step = fc__getd(buf + 48);
+    double tol = fc__getd(buf + 56), horizon = fc__getd(buf + 64);
     if (C == 0 || L > CS_MAX_TERMS) return FC_ERR_FORMAT;
     size_t need = cs_size_for(C, L);   /* 0 on overflow */
     if (need == 0 || need != size) return FC_ERR_FORMAT;
-    if (cs_get64(buf + size - 8) != cs_fnv(buf, size - 8)) return FC_ERR_FORMAT;
+    if (fc__get64(buf + size - 8) != fc__fnv1a(FC__FNV_OFFSET, buf, size - 8)) return FC_ERR_FORMAT;
     if (n >= FC_INDEX_LIMIT) return FC_ERR_FORMAT;
     const unsigned char *p = buf + CS_HDR;
     size_t nd;
     if (cs_ndoubles(C, L, &nd)) return FC_ERR_FORMAT;
     for (size_t i = 0; i < nd; i++)
-        if (!isfinite(cs_getd(p + 8 * i))) return FC_ERR_FORMAT;
+        if (!isfinite(fc__getd(p + 8 * i))) return FC_ERR_FORMAT;
 
     fc_cstream *cs;
     int st = cs_create((int)rule, order, step, (size_t)C, tol, horizon, 1, &cs);
     if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
     int bad = cs->L != L;
 #define SAMEV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++, p += 8) \
-        if (!bad && !cs_same((arr)[i_], cs_getd(p))) bad = 1; } while (0)
+        if (!bad && !cs_same((arr)[i_], fc__getd(p))) bad = 1; } while (0)
     if (!bad) {
         SAMEV(cs->q, L); SAMEV(cs->beta, L); SAMEV(cs->inj, L);
         SAMEV(cs->cb, B);
@@ -1340,15 +1302,15 @@ int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
         fc__cs_free(cs);
         return FC_ERR_FORMAT;
     }
-#define GETV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { (arr)[i_] = cs_getd(p); p += 8; } } while (0)
+#define GETV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { (arr)[i_] = fc__getd(p); p += 8; } } while (0)
     for (size_t c = 0; c < C; c++) {
         double *ring = cs->ring + c * 2 * B;
         GETV(ring, B);
         memcpy(ring + B, ring, B * sizeof(double));
         GETV(cs->S + c * cs->Lp, L);
         GETV(cs->Sc + c * cs->Lp, L);
-        cs->xprev[c] = cs_getd(p); p += 8;
-        cs->x0[c] = cs_getd(p); p += 8;
+        cs->xprev[c] = fc__getd(p); p += 8;
+        cs->x0[c] = fc__getd(p); p += 8;
     }
 #undef GETV
     cs->n = n;
