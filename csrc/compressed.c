@@ -170,11 +170,13 @@
 #define CS_DENSE 10000          /* verified densely up to this lag */
 #define CS_PER_DECADE 64        /* then on a geometric grid */
 #define CS_FMT_VERSION 1u
-#define CS_MIN_ORDER 1e-280   /* smallest order offered (see fc__cs_create) */
+#define CS_MIN_ORDER FC__CS_MIN_ORDER /* smallest order offered (the rule table) */
 #define CS_PI 3.14159265358979323846
 
 struct fc_cstream {
     int rule;
+    int x0corr;               /* the rule has an x_0 correction (trapezoid) */
+    int diffs;                /* the rule sums differences of x (L1) */
     int cum;                  /* rectangle, order >= 1: engine input is X */
     int simd;                 /* 1: AVX2+FMA kernel, 0: portable */
     double order, step, tol, horizon;
@@ -349,13 +351,13 @@ static void cs_step(fc_cstream *cs, const double *x, double *y, int mode)
     /* trapezoid: corr_n x_0 from the table for n < B; for n >= B it is
        carried by the terms, u_0 having entered term l as inj_l u_0 at
        n = B (corr_m + c_m = sum_l beta_l inj_l (1-q_l)^m) */
-    const double corr = (cs->rule == FC_RULE_TRAPEZOID && n < B) ? cs->ctab[n] : 0.0;
-    const int inject = cs->rule == FC_RULE_TRAPEZOID && n == B;
+    const double corr = (cs->x0corr && n < B) ? cs->ctab[n] : 0.0;
+    const int inject = cs->x0corr && n == B;
     for (size_t c = 0; c < C; c++) {
         double xc = mode == 2 ? 0.0 : x[c];
         double u;
         double Xhi = 0.0, Xlo = 0.0;
-        if (cs->rule == FC_RULE_L1) u = (n == 0 || mode == 2) ? 0.0 : xc - cs->xprev[c];
+        if (cs->diffs) u = (n == 0 || mode == 2) ? 0.0 : xc - cs->xprev[c];
         else if (cs->cum) {
             /* X_n = X_{n-1} + x_n in double-double (xprev = high part,
                x0 = low part), u = X_n rounded */
@@ -408,7 +410,7 @@ static int cs_check_block(const fc_cstream *cs, const double *x, size_t count)
         uint64_t n = cs->n;
         for (size_t t = 0; t < count; t++, n++) {
             double xc = x[t * C + c], u;
-            if (cs->rule == FC_RULE_L1) { u = n == 0 ? 0.0 : xc - hi; hi = xc; }
+            if (cs->diffs) { u = n == 0 ? 0.0 : xc - hi; hi = xc; }
             else if (cs->cum) { cs_dd_add(&hi, &lo, xc); u = hi; }
             else u = xc;
             if (!(fabs(u) <= U)) return FC_ERR_RANGE;
@@ -507,7 +509,11 @@ static int cs_alloc(size_t C, size_t Lp, fc_cstream **out)
 
 /* ------------------------------------------------------ SOE construction */
 
-enum { K_RECT = 0, K_TRAP = 1, K_GRUN = 2, K_L1 = 3, K_CORR = 4, K_RCUM = 5 };
+/* The density kinds: the rule table's (FC__DENS_*), and two derived
+   ones: the trapezoid's x_0 correction and the rectangle rule on the
+   running sum. */
+enum { K_RECT = FC__DENS_RECT, K_TRAP = FC__DENS_TRAP, K_GRUN = FC__DENS_GRUN,
+       K_L1 = FC__DENS_L1, K_CORR = 5, K_RCUM = 6 };
 
 /* Rectangle rule, 1 <= a < 2: the kernel on the running sum X,
    f_0 = 0, f_1 = h^a/Gamma(a+1), f_m = h^a/Gamma(a+1) (m^a - 2(m-1)^a + (m-2)^a)
@@ -567,9 +573,10 @@ static double cs_phi(int kind, double a, double s)
         double v = s > 0 ? expm1(s) / s : 1.0;
         return v * v;
     }
-    default: /* K_L1 */
+    case K_L1:
         return s > 0 ? -expm1(-s) / s : 1.0;
     }
+    return NAN; /* not a kind: every kind is listed above */
 }
 
 /* Eigen-decomposition of a small symmetric matrix (cyclic Jacobi). A: n*n,
@@ -706,7 +713,7 @@ static int cs_build(const cs_ctx *cx, double X, size_t ng, double kappa,
         if (L + ng >= CS_MAX_TERMS) return FC_ERR_TOL;
         q[L] = -expm1(-s);
         w[L] = W;
-        wc[L] = cx->rule == FC_RULE_TRAPEZOID ? W * cs_phi(K_CORR, a, s) / cs_phi(K_TRAP, a, s) : 0.0;
+        wc[L] = fc__rule_has_x0(cx->rule) ? W * cs_phi(K_CORR, a, s) / cs_phi(K_TRAP, a, s) : 0.0;
         L++;
     }
     /* left: discrete measure of the nodes s < sL, in x = s / sL */
@@ -735,7 +742,7 @@ static int cs_build(const cs_ctx *cx, double X, size_t ng, double kappa,
         if (!(sk > 0.0) || !(gw[k] > 0.0) || !isfinite(gw[k])) return FC_ERR_TOL;
         q[L] = -expm1(-sk);
         w[L] = gw[k];
-        wc[L] = cx->rule == FC_RULE_TRAPEZOID ? gw[k] * cs_phi(K_CORR, a, sk) / cs_phi(K_TRAP, a, sk) : 0.0;
+        wc[L] = fc__rule_has_x0(cx->rule) ? gw[k] * cs_phi(K_CORR, a, sk) / cs_phi(K_TRAP, a, sk) : 0.0;
         L++;
     }
     for (size_t l = 0; l < L; l++) {
@@ -854,7 +861,9 @@ static void cs_finish(fc_cstream *cs, const double *cband, const double *ctab,
     memcpy(cs->ctab, ctab, B * sizeof *ctab);
     cs->rule = rule; cs->order = order; cs->step = step;
     cs->tol = tol; cs->horizon = horizon;
-    cs->cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
+    cs->cum = order >= fc__rule(rule)->cumulative_from;
+    cs->x0corr = fc__rule_has_x0(rule);
+    cs->diffs = fc__rule_uses_differences(rule);
     cs->simd = cs_cpu_avx2();
     cs->umax = cs_umax(cs);
     fc__cs_reset(cs);
@@ -893,15 +902,18 @@ static void cs_constants(cs_ctx *cx, int rule, int cum, double a, double step,
         cx->p1 = exact ? 2.0 - a : cx->p + 1.0;
         return;
     }
-    switch (rule) {
-    case FC_RULE_RECTANGLE: cx->kind = K_RECT; cx->p = -a; cx->K = spa * pow(step, a); break;
-    case FC_RULE_TRAPEZOID: cx->kind = K_TRAP; cx->p = -a; cx->K = spa * pow(step, a);
-        cx->Kcorr = -spa * pow(step, a); break;
-    case FC_RULE_GRUNWALD: cx->kind = K_GRUN; cx->p = a; cx->K = -spa * pow(step, -a); break;
-    default: cx->kind = K_L1; cx->p = a - 1.0; cx->K = spa * pow(step, -a); break;
+    const fc__rule_desc *d = fc__rule(rule);
+    double p1x = 1.0 - a;   /* p + 1 formed exactly */
+    cx->kind = d->density;
+    switch (d->density) {
+    case K_RECT: cx->p = -a; cx->K = spa * pow(step, a); break;
+    case K_TRAP: cx->p = -a; cx->K = spa * pow(step, a); break;
+    case K_GRUN: cx->p = a; cx->K = -spa * pow(step, -a); p1x = a + 1.0; break;
+    case K_L1: cx->p = a - 1.0; cx->K = spa * pow(step, -a); p1x = a; break;
     }
+    if (fc__rule_x0(d) != NULL) cx->Kcorr = -spa * pow(step, a);
     cx->p1 = cx->p + 1.0;
-    if (exact) cx->p1 = rule == FC_RULE_L1 ? a : rule == FC_RULE_GRUNWALD ? a + 1.0 : 1.0 - a;
+    if (exact) cx->p1 = p1x;
 }
 
 /* loading = 1: the rebuild of fc__cs_load, which also accepts orders
@@ -913,14 +925,17 @@ static int cs_create(int rule, double order, double step, size_t channels,
     int st;
     if (!out) return FC_ERR_NULL;
     if ((st = fc__check_rule(rule, order, step)) != FC_OK) return st;
-    /* 0 < a < 1 for every rule; 1 <= a < 2 for the rectangle rule, which
-       then runs on the running sum X of x (CONSTRUCTION, 1 <= a < 2) */
-    const int cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
-    if (!(order > 0.0 && order < 1.0) && !(cum && order < 2.0)) return FC_ERR_ORDER;
-    /* below CS_MIN_ORDER the kernel beyond lag 0 (of size a / m) is
+    /* the rule table's compressed range: 0 < a < 1 for every rule;
+       1 <= a < 2 for the rectangle rule, which then runs on the running
+       sum X of x (CONSTRUCTION, 1 <= a < 2); below CS_MIN_ORDER (the
+       range's lower end) the kernel beyond lag 0 (of size a / m) is
        subnormal at lags near 2^53 and cannot be held to a relative
-       tolerance */
-    if (order < CS_MIN_ORDER && !loading) return FC_ERR_ORDER;
+       tolerance, but a rebuild accepts it (loading) */
+    const fc__rule_desc *d = fc__rule(rule);
+    const int cum = order >= d->cumulative_from;
+    fc__range r = d->compressed;
+    if (loading) { r.lo = 0.0; r.lo_incl = 0; }
+    if (!fc__in_range(&r, order)) return FC_ERR_ORDER;
     if (channels == 0) return FC_ERR_ARG;
     if (!(tol >= 1e-15 && tol <= 1e-2) || !isfinite(tol)) return FC_ERR_TOL;
     if (!(horizon >= 1.0) || !isfinite(horizon) ||
@@ -952,7 +967,7 @@ static int cs_create(int rule, double order, double step, size_t channels,
     } else if ((st = fc__lag_kernel(rule, a, step, 0, B, cband)) != FC_OK)
         return st;
     memset(ctab, 0, sizeof ctab);
-    if (rule == FC_RULE_TRAPEZOID &&
+    if (fc__rule_has_x0(rule) &&
         (st = fc__x0_correction(rule, a, step, 0, B, ctab)) != FC_OK)
         return st;
 
@@ -995,7 +1010,7 @@ static int cs_create(int rule, double order, double step, size_t channels,
                 if ((st = fc__lag_kernel(rule, a, step, mgeo[k], 1, cref + cx.ndense + k)) != FC_OK)
                     goto fail;
         }
-        if (rule == FC_RULE_TRAPEZOID) {
+        if (fc__rule_has_x0(rule)) {
             if ((st = fc__x0_correction(rule, a, step, B, cx.ndense, corrref)) != FC_OK) goto fail;
             for (size_t k = 0; k < g; k++)
                 if ((st = fc__x0_correction(rule, a, step, mgeo[k], 1, corrref + cx.ndense + k)) != FC_OK)
@@ -1003,7 +1018,7 @@ static int cs_create(int rule, double order, double step, size_t channels,
         }
         for (size_t k = 0; k < cx.ndense + g; k++)
             if (!isfinite(cref[k]) || cref[k] == 0.0 ||
-                (rule == FC_RULE_TRAPEZOID && (!isfinite(corrref[k]) || corrref[k] == 0.0))) {
+                (fc__rule_has_x0(rule) && (!isfinite(corrref[k]) || corrref[k] == 0.0))) {
                 st = FC_ERR_TOL;
                 goto fail;
             }
@@ -1035,7 +1050,7 @@ static int cs_create(int rule, double order, double step, size_t channels,
                 if (found && Lc >= Lbest) continue;
                 for (size_t l = 0; l < Lc; l++) ijc[l] = 1.0;
                 double e = cs_verify(&cx, Lc, qc, wcand, cref, P, P + 2 * CS_MAX_TERMS);
-                if (e <= thresh && rule == FC_RULE_TRAPEZOID) {
+                if (e <= thresh && fc__rule_has_x0(rule)) {
                     /* the correction actually realised: beta (inj - 1), inj rounded */
                     for (size_t l = 0; l < Lc; l++) {
                         ijc[l] = 1.0 + wccand[l] / wcand[l];
@@ -1065,7 +1080,7 @@ static int cs_create(int rule, double order, double step, size_t channels,
             long double rB = expl((long double)B * log1pl(-(long double)qb[l]));
             cs->q[l] = qb[l];
             cs->beta[l] = (double)((long double)wb[l] * rB);
-            cs->inj[l] = rule == FC_RULE_TRAPEZOID ? ijb[l] : 1.0;
+            cs->inj[l] = fc__rule_has_x0(rule) ? ijb[l] : 1.0;
         }
         cs->L = L;
         cs_finish(cs, cband, ctab, rule, order, step, tol, horizon);
@@ -1222,7 +1237,7 @@ static int cs_state_ok(const fc_cstream *cs)
             if (!(fabs(ring[j]) <= U)) return 0;
             if (n < B && j >= n && !cs_zero_bits(ring[j])) return 0;
         }
-        const int quiet = n <= B || (cs->rule == FC_RULE_L1 && n <= B + 1);
+        const int quiet = n <= B || (cs->diffs && n <= B + 1);
         for (size_t l = 0; l < L; l++) {
             /* (*) of RANGE (n >= 1 here unless S = 0 is required anyway) */
             double mn = cs_cap(cs->q[l]);
@@ -1235,7 +1250,7 @@ static int cs_state_ok(const fc_cstream *cs)
             if (!cs_zero_bits(xp) || !cs_zero_bits(x0)) return 0;
             continue;
         }
-        if (cs->rule == FC_RULE_L1) {
+        if (cs->diffs) {
             if (n <= B && !cs_zero_bits(ring[0])) return 0;
             if (n == 1 && !cs_same(xp, x0)) return 0;
         } else {
@@ -1270,7 +1285,9 @@ int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
     if (memcmp(buf, cs_magic, 4) != 0) return FC_ERR_FORMAT;
     if (fc__get32(buf + 4) != CS_FMT_VERSION) return FC_ERR_FORMAT;
     uint32_t rule = fc__get32(buf + 8);
-    if (rule > FC_RULE_L1 || fc__get32(buf + 12) != B) return FC_ERR_FORMAT;
+    if (rule > (uint32_t)INT32_MAX || fc__rule((int)rule) == NULL ||
+        fc__get32(buf + 12) != B)
+        return FC_ERR_FORMAT;
     uint64_t C = fc__get64(buf + 16), L = fc__get64(buf + 24), n = fc__get64(buf + 32);
     double order = fc__getd(buf + 40), step = fc__getd(buf + 48);
     double tol = fc__getd(buf + 56), horizon = fc__getd(buf + 64);

@@ -83,6 +83,29 @@ extern "C" {
 #define FC_RULE_GRUNWALD 2
 #define FC_RULE_L1 3
 
+/*
+ * The rule table. Rule numbers are part of the save format: they never
+ * change, and a new rule takes the next number.
+ *
+ * fc_rule_count: *count = the number of rules (they are 0 .. count-1).
+ *   Statuses: FC_OK, FC_ERR_NULL (count NULL).
+ * fc_rule_info: *name = the rule's static NUL-terminated name (the one the
+ *   Python package uses), *is_derivative = 0 for an integral, 1 for a
+ *   derivative. Statuses: FC_OK, FC_ERR_RULE (not a rule; nothing
+ *   written), FC_ERR_NULL (name or is_derivative NULL).
+ * fc_rule_order_range: the orders a rule accepts in a mode. mode
+ *   FC_MODE_EXACT: fc_weights, fc_apply and exact streams (one range);
+ *   FC_MODE_COMPRESSED: compressed streams (fc_stream_create). An order a
+ *   is accepted when it is finite and lo < a (lo <= a if *lo_inclusive),
+ *   a < hi (a <= hi if *hi_inclusive). Statuses: FC_OK, FC_ERR_RULE,
+ *   FC_ERR_MODE (unknown mode), FC_ERR_NULL (an out-pointer NULL);
+ *   nothing written on error.
+ */
+int fc_rule_count(int *count);
+int fc_rule_info(int rule, const char **name, int *is_derivative);
+int fc_rule_order_range(int rule, int mode, double *lo, int *lo_inclusive,
+                        double *hi, int *hi_inclusive);
+
 /* Batch engines. */
 #define FC_ENGINE_AUTO 0     /* chosen by size */
 #define FC_ENGINE_DIRECT 1   /* O(N*K) direct summation */

@@ -705,7 +705,7 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
     if (fc__check_finite(x, total) != FC_OK) return FC_ERR_NONFINITE;
 
     int diffs = fc__rule_uses_differences(rule);
-    int corr = rule == FC_RULE_TRAPEZOID;
+    int corr = fc__rule_has_x0(rule);
     size_t need;
     if (fc__mul_size(nsig, sizeof(long) + sizeof(double), &need) != FC_OK)
         return FC_ERR_SIZE;

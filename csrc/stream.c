@@ -106,6 +106,8 @@ struct fc_stream {
     int rule;
     double order, step, tol, horizon;
     int horizon_policy;     /* FC_HORIZON_* (compressed mode) */
+    int x0corr;             /* rule with an x_0 correction (rule table) */
+    int diffs;              /* rule summing differences of x (rule table) */
     size_t C;               /* channels */
     fc_cstream *cs;         /* compressed mode */
 
@@ -221,7 +223,7 @@ static inline double ex_hist(const fc_stream *s, size_t c, double corr)
     uint64_t n = s->n;
     const double *uc = urow(s, c);
     double h = arow(s, c)[n - s->abase] + leaf_dot(s->leafk, uc + n - s->leaf, s->leaf);
-    if (s->rule == FC_RULE_TRAPEZOID && s->kind == FC_S_KIND_RULE) {
+    if (s->x0corr) {
         if (n == 0) h = 0.0;
         else h += corr * s->x0[c];
     }
@@ -231,7 +233,7 @@ static inline double ex_hist(const fc_stream *s, size_t c, double corr)
 /* The u value pushing x would store for channel c. */
 static inline double ex_u(const fc_stream *s, size_t c, double x)
 {
-    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_L1)
+    if (s->diffs)
         return s->n == 0 ? 0.0 : x - s->xprev[c];
     return x;
 }
@@ -242,7 +244,7 @@ static inline double ex_y(const fc_stream *s, size_t c, double x, double corr,
 {
     double h = ex_hist(s, c, corr);
     *u = ex_u(s, c, x);
-    if (s->n == 0 && s->rule == FC_RULE_TRAPEZOID && s->kind == FC_S_KIND_RULE)
+    if (s->n == 0 && s->x0corr)
         return 0.0; /* y_0 = (c_0 + corr_0) x_0 = 0 */
     return h + s->c0 * *u;
 }
@@ -674,12 +676,12 @@ static int ex_step(fc_stream *s, const double *x, double *y)
     double corr = 0.0;
     size_t C = s->C;
     uint64_t n = s->n;
-    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID && n > 0) {
+    if (s->x0corr && n > 0) {
         int st = corr_get(s, n, &corr);
         if (st != FC_OK) return st;
     }
-    int l1 = s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_L1;
-    int first = s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID &&
+    int l1 = s->diffs;
+    int first = s->x0corr &&
                 n == 0;
     /* every output first: one that is not representable refuses the step
        before anything changes */
@@ -756,7 +758,7 @@ static int ex_preview(fc_stream *s, const double *x, double *y)
 {
     double corr = 0.0;
     if (partial_overlap(x, y, s->C)) return FC_ERR_ARG;
-    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID && s->n > 0) {
+    if (s->x0corr && s->n > 0) {
         int st = corr_get(s, s->n, &corr);
         if (st != FC_OK) return st;
     }
@@ -772,7 +774,7 @@ static int ex_preview(fc_stream *s, const double *x, double *y)
 static int ex_history(fc_stream *s, double *h)
 {
     double corr = 0.0;
-    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID && s->n > 0) {
+    if (s->x0corr && s->n > 0) {
         int st = corr_get(s, s->n, &corr);
         if (st != FC_OK) return st;
     }
@@ -796,7 +798,7 @@ static int ex_block_safe(const fc_stream *s, const double *x, size_t tot,
 {
     double m = 0.0;
     for (size_t i = 0; i < tot; i++) m = fabs(x[i]) > m ? fabs(x[i]) : m;
-    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_L1) {
+    if (s->diffs) {
         for (size_t c = 0; c < s->C; c++)
             m = fabs(s->xprev[c]) > m ? fabs(s->xprev[c]) : m;
         m *= 2.0;
@@ -822,7 +824,7 @@ static int ex_push_block(fc_stream *s, const double *x, size_t count,
     if ((st = ex_prepare(s, n_end, 0)) != FC_OK) return st;
     /* the trapezoid correction of the first sample, so that the only
        failure the loop could meet is checked before anything changes */
-    if (count && s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID) {
+    if (count && s->x0corr) {
         double v;
         if ((st = corr_get(s, n_end - 1, &v)) != FC_OK) return st;
         if (s->n > 0 && (st = corr_get(s, s->n, &v)) != FC_OK) return st;
@@ -1047,7 +1049,7 @@ static int ex_init(fc_stream *s, size_t leaf, size_t segs)
         /* the trapezoid correction is a few times the weights */
         s->klog2 = fc__unit_log2_bound(s->rule, s->order, s->lag_limit) +
                    (double)log2l(M) + (double)E +
-                   (s->rule == FC_RULE_TRAPEZOID ? 5.0 : 0.0);
+                   (s->x0corr ? 5.0 : 0.0);
     }
     /* room for the leaf band of the first samples */
     return ex_prepare(s, 1, 1);
@@ -1062,6 +1064,8 @@ static int stream_create_geom(int rule, double order, double step,
     int st;
     if (!out) return FC_ERR_NULL;
     if ((st = fc__check_rule(rule, order, step)) != FC_OK) return st;
+    if (mode == FC_MODE_EXACT && !fc__in_range(&fc__rule(rule)->exact, order))
+        return FC_ERR_ORDER;
     if (channels == 0) return FC_ERR_ARG;
     if (channels > ((size_t)-1) / (8 * sizeof(double) * FC_S_LEAF_MAX))
         return FC_ERR_SIZE;
@@ -1076,6 +1080,8 @@ static int stream_create_geom(int rule, double order, double step,
     s->mode = mode;
     s->kind = FC_S_KIND_RULE;
     s->rule = rule;
+    s->x0corr = fc__rule_has_x0(rule);
+    s->diffs = fc__rule_uses_differences(rule);
     s->order = order;
     s->step = step;
     s->tol = mode == FC_MODE_COMPRESSED ? tol : 0.0;
@@ -1199,8 +1205,7 @@ int fc_stream_push1(fc_stream *s, double x, double *y)
     else {
         /* inline fast path of ex_push_block for one sample */
         if (s->n + 1 > s->prep_n) st = ex_prepare(s, s->n + 1, 0);
-        if (st == FC_OK && s->kind == FC_S_KIND_RULE &&
-            s->rule == FC_RULE_TRAPEZOID && s->n > 0) {
+        if (st == FC_OK && s->x0corr && s->n > 0) {
             double v;
             st = corr_get(s, s->n, &v);
         }
@@ -1651,8 +1656,8 @@ static int ex_load(const unsigned char *q, size_t p, uint32_t kind, int rule,
     /* the previous / first sample fields against the samples: trapezoid
        keeps x_0 (= u_0; 0 before any sample), L1 the previous sample (free
        once there is one; 0 before) and u_0 = 0; unused fields are 0 */
-    int trap = kind == FC_S_KIND_RULE && rule == FC_RULE_TRAPEZOID;
-    int l1 = kind == FC_S_KIND_RULE && rule == FC_RULE_L1;
+    int trap = kind == FC_S_KIND_RULE && fc__rule_has_x0(rule);
+    int l1 = kind == FC_S_KIND_RULE && fc__rule_uses_differences(rule);
     for (size_t c = 0; c < C; c++) {
         uint64_t xp = fc__get64(xq + 8 * c), x0 = fc__get64(x0q + 8 * c);
         uint64_t u0 = n > 0 ? fc__get64(uq + 8 * (size_t)(c * n)) : 0;
@@ -1719,6 +1724,8 @@ int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out)
         s->mode = FC_MODE_COMPRESSED;
         s->kind = FC_S_KIND_RULE;
         s->rule = rule;
+        s->x0corr = fc__rule_has_x0(rule);
+        s->diffs = fc__rule_uses_differences(rule);
         s->order = order;
         s->step = step;
         s->tol = tol;
