@@ -427,7 +427,7 @@ static void level_frame(fc_stream *s, size_t j, uint64_t f, uint64_t lo)
         }
         double *a = arow(s, c) + (o - s->abase);
         if (!scaled) {
-            fc__spec_dot(n2, xp, (const double *const *)L->kspec, np, Y);
+            fc__spec_dot(L->plan, xp, (const double *const *)L->kspec, np, Y);
             fc__fft_inverse(L->plan, Y, t);
             for (size_t i = i0; i + 1 < n2; i++) a[i] += t[i];
         } else {
