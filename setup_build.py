@@ -27,7 +27,9 @@ def read_cdef(header=HEADER):
     m = re.search(r"/\* FC_CDEF_BEGIN \*/(.*)/\* FC_CDEF_END \*/", text, re.S)
     if m is None:
         raise RuntimeError(f"{header}: no FC_CDEF_BEGIN/FC_CDEF_END block")
-    return m.group(1)
+    # FC_API (the visibility attribute of the public functions) is a macro
+    # cffi's parser does not know: the declarations are given without it.
+    return re.sub(r"\bFC_API\s+", "", m.group(1))
 
 
 def c_sources():

@@ -155,6 +155,7 @@
 #include <math.h>
 #include <float.h>
 #include "internal.h"
+#include "serial.h"
 
 #if (defined(__GNUC__) || defined(__clang__)) && \
     (defined(__x86_64__) || defined(__i386__))
@@ -169,11 +170,13 @@
 #define CS_DENSE 10000          /* verified densely up to this lag */
 #define CS_PER_DECADE 64        /* then on a geometric grid */
 #define CS_FMT_VERSION 1u
-#define CS_MIN_ORDER 1e-280   /* smallest order offered (see fc__cs_create) */
+#define CS_MIN_ORDER FC__CS_MIN_ORDER /* smallest order offered (the rule table) */
 #define CS_PI 3.14159265358979323846
 
 struct fc_cstream {
     int rule;
+    int x0corr;               /* the rule has an x_0 correction (trapezoid) */
+    int diffs;                /* the rule sums differences of x (L1) */
     int cum;                  /* rectangle, order >= 1: engine input is X */
     int simd;                 /* 1: AVX2+FMA kernel, 0: portable */
     double order, step, tol, horizon;
@@ -348,13 +351,13 @@ static void cs_step(fc_cstream *cs, const double *x, double *y, int mode)
     /* trapezoid: corr_n x_0 from the table for n < B; for n >= B it is
        carried by the terms, u_0 having entered term l as inj_l u_0 at
        n = B (corr_m + c_m = sum_l beta_l inj_l (1-q_l)^m) */
-    const double corr = (cs->rule == FC_RULE_TRAPEZOID && n < B) ? cs->ctab[n] : 0.0;
-    const int inject = cs->rule == FC_RULE_TRAPEZOID && n == B;
+    const double corr = (cs->x0corr && n < B) ? cs->ctab[n] : 0.0;
+    const int inject = cs->x0corr && n == B;
     for (size_t c = 0; c < C; c++) {
         double xc = mode == 2 ? 0.0 : x[c];
         double u;
         double Xhi = 0.0, Xlo = 0.0;
-        if (cs->rule == FC_RULE_L1) u = (n == 0 || mode == 2) ? 0.0 : xc - cs->xprev[c];
+        if (cs->diffs) u = (n == 0 || mode == 2) ? 0.0 : xc - cs->xprev[c];
         else if (cs->cum) {
             /* X_n = X_{n-1} + x_n in double-double (xprev = high part,
                x0 = low part), u = X_n rounded */
@@ -407,7 +410,7 @@ static int cs_check_block(const fc_cstream *cs, const double *x, size_t count)
         uint64_t n = cs->n;
         for (size_t t = 0; t < count; t++, n++) {
             double xc = x[t * C + c], u;
-            if (cs->rule == FC_RULE_L1) { u = n == 0 ? 0.0 : xc - hi; hi = xc; }
+            if (cs->diffs) { u = n == 0 ? 0.0 : xc - hi; hi = xc; }
             else if (cs->cum) { cs_dd_add(&hi, &lo, xc); u = hi; }
             else u = xc;
             if (!(fabs(u) <= U)) return FC_ERR_RANGE;
@@ -506,7 +509,11 @@ static int cs_alloc(size_t C, size_t Lp, fc_cstream **out)
 
 /* ------------------------------------------------------ SOE construction */
 
-enum { K_RECT = 0, K_TRAP = 1, K_GRUN = 2, K_L1 = 3, K_CORR = 4, K_RCUM = 5 };
+/* The density kinds: the rule table's (FC__DENS_*), and two derived
+   ones: the trapezoid's x_0 correction and the rectangle rule on the
+   running sum. */
+enum { K_RECT = FC__DENS_RECT, K_TRAP = FC__DENS_TRAP, K_GRUN = FC__DENS_GRUN,
+       K_L1 = FC__DENS_L1, K_CORR = 5, K_RCUM = 6 };
 
 /* Rectangle rule, 1 <= a < 2: the kernel on the running sum X,
    f_0 = 0, f_1 = h^a/Gamma(a+1), f_m = h^a/Gamma(a+1) (m^a - 2(m-1)^a + (m-2)^a)
@@ -566,9 +573,10 @@ static double cs_phi(int kind, double a, double s)
         double v = s > 0 ? expm1(s) / s : 1.0;
         return v * v;
     }
-    default: /* K_L1 */
+    case K_L1:
         return s > 0 ? -expm1(-s) / s : 1.0;
     }
+    return NAN; /* not a kind: every kind is listed above */
 }
 
 /* Eigen-decomposition of a small symmetric matrix (cyclic Jacobi). A: n*n,
@@ -705,7 +713,7 @@ static int cs_build(const cs_ctx *cx, double X, size_t ng, double kappa,
         if (L + ng >= CS_MAX_TERMS) return FC_ERR_TOL;
         q[L] = -expm1(-s);
         w[L] = W;
-        wc[L] = cx->rule == FC_RULE_TRAPEZOID ? W * cs_phi(K_CORR, a, s) / cs_phi(K_TRAP, a, s) : 0.0;
+        wc[L] = fc__rule_has_x0(cx->rule) ? W * cs_phi(K_CORR, a, s) / cs_phi(K_TRAP, a, s) : 0.0;
         L++;
     }
     /* left: discrete measure of the nodes s < sL, in x = s / sL */
@@ -734,7 +742,7 @@ static int cs_build(const cs_ctx *cx, double X, size_t ng, double kappa,
         if (!(sk > 0.0) || !(gw[k] > 0.0) || !isfinite(gw[k])) return FC_ERR_TOL;
         q[L] = -expm1(-sk);
         w[L] = gw[k];
-        wc[L] = cx->rule == FC_RULE_TRAPEZOID ? gw[k] * cs_phi(K_CORR, a, sk) / cs_phi(K_TRAP, a, sk) : 0.0;
+        wc[L] = fc__rule_has_x0(cx->rule) ? gw[k] * cs_phi(K_CORR, a, sk) / cs_phi(K_TRAP, a, sk) : 0.0;
         L++;
     }
     for (size_t l = 0; l < L; l++) {
@@ -853,7 +861,9 @@ static void cs_finish(fc_cstream *cs, const double *cband, const double *ctab,
     memcpy(cs->ctab, ctab, B * sizeof *ctab);
     cs->rule = rule; cs->order = order; cs->step = step;
     cs->tol = tol; cs->horizon = horizon;
-    cs->cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
+    cs->cum = order >= fc__rule(rule)->cumulative_from;
+    cs->x0corr = fc__rule_has_x0(rule);
+    cs->diffs = fc__rule_uses_differences(rule);
     cs->simd = cs_cpu_avx2();
     cs->umax = cs_umax(cs);
     fc__cs_reset(cs);
@@ -892,15 +902,18 @@ static void cs_constants(cs_ctx *cx, int rule, int cum, double a, double step,
         cx->p1 = exact ? 2.0 - a : cx->p + 1.0;
         return;
     }
-    switch (rule) {
-    case FC_RULE_RECTANGLE: cx->kind = K_RECT; cx->p = -a; cx->K = spa * pow(step, a); break;
-    case FC_RULE_TRAPEZOID: cx->kind = K_TRAP; cx->p = -a; cx->K = spa * pow(step, a);
-        cx->Kcorr = -spa * pow(step, a); break;
-    case FC_RULE_GRUNWALD: cx->kind = K_GRUN; cx->p = a; cx->K = -spa * pow(step, -a); break;
-    default: cx->kind = K_L1; cx->p = a - 1.0; cx->K = spa * pow(step, -a); break;
+    const fc__rule_desc *d = fc__rule(rule);
+    double p1x = 1.0 - a;   /* p + 1 formed exactly */
+    cx->kind = d->density;
+    switch (d->density) {
+    case K_RECT: cx->p = -a; cx->K = spa * pow(step, a); break;
+    case K_TRAP: cx->p = -a; cx->K = spa * pow(step, a); break;
+    case K_GRUN: cx->p = a; cx->K = -spa * pow(step, -a); p1x = a + 1.0; break;
+    case K_L1: cx->p = a - 1.0; cx->K = spa * pow(step, -a); p1x = a; break;
     }
+    if (fc__rule_x0(d) != NULL) cx->Kcorr = -spa * pow(step, a);
     cx->p1 = cx->p + 1.0;
-    if (exact) cx->p1 = rule == FC_RULE_L1 ? a : rule == FC_RULE_GRUNWALD ? a + 1.0 : 1.0 - a;
+    if (exact) cx->p1 = p1x;
 }
 
 /* loading = 1: the rebuild of fc__cs_load, which also accepts orders
@@ -912,14 +925,17 @@ static int cs_create(int rule, double order, double step, size_t channels,
     int st;
     if (!out) return FC_ERR_NULL;
     if ((st = fc__check_rule(rule, order, step)) != FC_OK) return st;
-    /* 0 < a < 1 for every rule; 1 <= a < 2 for the rectangle rule, which
-       then runs on the running sum X of x (CONSTRUCTION, 1 <= a < 2) */
-    const int cum = rule == FC_RULE_RECTANGLE && order >= 1.0;
-    if (!(order > 0.0 && order < 1.0) && !(cum && order < 2.0)) return FC_ERR_ORDER;
-    /* below CS_MIN_ORDER the kernel beyond lag 0 (of size a / m) is
+    /* the rule table's compressed range: 0 < a < 1 for every rule;
+       1 <= a < 2 for the rectangle rule, which then runs on the running
+       sum X of x (CONSTRUCTION, 1 <= a < 2); below CS_MIN_ORDER (the
+       range's lower end) the kernel beyond lag 0 (of size a / m) is
        subnormal at lags near 2^53 and cannot be held to a relative
-       tolerance */
-    if (order < CS_MIN_ORDER && !loading) return FC_ERR_ORDER;
+       tolerance, but a rebuild accepts it (loading) */
+    const fc__rule_desc *d = fc__rule(rule);
+    const int cum = order >= d->cumulative_from;
+    fc__range r = d->compressed;
+    if (loading) { r.lo = 0.0; r.lo_incl = 0; }
+    if (!fc__in_range(&r, order)) return FC_ERR_ORDER;
     if (channels == 0) return FC_ERR_ARG;
     if (!(tol >= 1e-15 && tol <= 1e-2) || !isfinite(tol)) return FC_ERR_TOL;
     if (!(horizon >= 1.0) || !isfinite(horizon) ||
@@ -951,7 +967,7 @@ static int cs_create(int rule, double order, double step, size_t channels,
     } else if ((st = fc__lag_kernel(rule, a, step, 0, B, cband)) != FC_OK)
         return st;
     memset(ctab, 0, sizeof ctab);
-    if (rule == FC_RULE_TRAPEZOID &&
+    if (fc__rule_has_x0(rule) &&
         (st = fc__x0_correction(rule, a, step, 0, B, ctab)) != FC_OK)
         return st;
 
@@ -994,7 +1010,7 @@ static int cs_create(int rule, double order, double step, size_t channels,
                 if ((st = fc__lag_kernel(rule, a, step, mgeo[k], 1, cref + cx.ndense + k)) != FC_OK)
                     goto fail;
         }
-        if (rule == FC_RULE_TRAPEZOID) {
+        if (fc__rule_has_x0(rule)) {
             if ((st = fc__x0_correction(rule, a, step, B, cx.ndense, corrref)) != FC_OK) goto fail;
             for (size_t k = 0; k < g; k++)
                 if ((st = fc__x0_correction(rule, a, step, mgeo[k], 1, corrref + cx.ndense + k)) != FC_OK)
@@ -1002,7 +1018,7 @@ static int cs_create(int rule, double order, double step, size_t channels,
         }
         for (size_t k = 0; k < cx.ndense + g; k++)
             if (!isfinite(cref[k]) || cref[k] == 0.0 ||
-                (rule == FC_RULE_TRAPEZOID && (!isfinite(corrref[k]) || corrref[k] == 0.0))) {
+                (fc__rule_has_x0(rule) && (!isfinite(corrref[k]) || corrref[k] == 0.0))) {
                 st = FC_ERR_TOL;
                 goto fail;
             }
@@ -1034,7 +1050,7 @@ static int cs_create(int rule, double order, double step, size_t channels,
                 if (found && Lc >= Lbest) continue;
                 for (size_t l = 0; l < Lc; l++) ijc[l] = 1.0;
                 double e = cs_verify(&cx, Lc, qc, wcand, cref, P, P + 2 * CS_MAX_TERMS);
-                if (e <= thresh && rule == FC_RULE_TRAPEZOID) {
+                if (e <= thresh && fc__rule_has_x0(rule)) {
                     /* the correction actually realised: beta (inj - 1), inj rounded */
                     for (size_t l = 0; l < Lc; l++) {
                         ijc[l] = 1.0 + wccand[l] / wcand[l];
@@ -1064,7 +1080,7 @@ static int cs_create(int rule, double order, double step, size_t channels,
             long double rB = expl((long double)B * log1pl(-(long double)qb[l]));
             cs->q[l] = qb[l];
             cs->beta[l] = (double)((long double)wb[l] * rB);
-            cs->inj[l] = rule == FC_RULE_TRAPEZOID ? ijb[l] : 1.0;
+            cs->inj[l] = fc__rule_has_x0(rule) ? ijb[l] : 1.0;
         }
         cs->L = L;
         cs_finish(cs, cband, ctab, rule, order, step, tol, horizon);
@@ -1109,45 +1125,6 @@ int fc__cs_create(int rule, double order, double step, size_t channels,
 #define CS_HDR 72
 static const unsigned char cs_magic[4] = {'F', 'C', 'C', 'S'};
 
-static void cs_put64(unsigned char *p, uint64_t v)
-{
-    for (int i = 0; i < 8; i++) p[i] = (unsigned char)(v >> (8 * i));
-}
-static uint64_t cs_get64(const unsigned char *p)
-{
-    uint64_t v = 0;
-    for (int i = 7; i >= 0; i--) v = (v << 8) | p[i];
-    return v;
-}
-static void cs_put32(unsigned char *p, uint32_t v)
-{
-    for (int i = 0; i < 4; i++) p[i] = (unsigned char)(v >> (8 * i));
-}
-static uint32_t cs_get32(const unsigned char *p)
-{
-    return (uint32_t)p[0] | (uint32_t)p[1] << 8 | (uint32_t)p[2] << 16 |
-           (uint32_t)p[3] << 24;
-}
-static void cs_putd(unsigned char *p, double d)
-{
-    uint64_t v;
-    memcpy(&v, &d, 8);
-    cs_put64(p, v);
-}
-static double cs_getd(const unsigned char *p)
-{
-    uint64_t v = cs_get64(p);
-    double d;
-    memcpy(&d, &v, 8);
-    return d;
-}
-static uint64_t cs_fnv(const unsigned char *p, size_t n)
-{
-    uint64_t h = UINT64_C(14695981039346656037);
-    for (size_t i = 0; i < n; i++) { h ^= p[i]; h *= UINT64_C(1099511628211); }
-    return h;
-}
-
 /* Number of doubles after the header for (C, L); FC_ERR_SIZE on overflow. */
 static int cs_ndoubles(uint64_t C, uint64_t L, size_t *nd)
 {
@@ -1185,31 +1162,31 @@ int fc__cs_save(const fc_cstream *cs, unsigned char *buf, size_t size)
     const size_t B = CS_BAND, L = cs->L;
     unsigned char *p = buf;
     memcpy(p, cs_magic, 4);
-    cs_put32(p + 4, CS_FMT_VERSION);
-    cs_put32(p + 8, (uint32_t)cs->rule);
-    cs_put32(p + 12, (uint32_t)B);
-    cs_put64(p + 16, (uint64_t)cs->C);
-    cs_put64(p + 24, (uint64_t)L);
-    cs_put64(p + 32, cs->n);
-    cs_putd(p + 40, cs->order);
-    cs_putd(p + 48, cs->step);
-    cs_putd(p + 56, cs->tol);
-    cs_putd(p + 64, cs->horizon);
+    fc__put32(p + 4, CS_FMT_VERSION);
+    fc__put32(p + 8, (uint32_t)cs->rule);
+    fc__put32(p + 12, (uint32_t)B);
+    fc__put64(p + 16, (uint64_t)cs->C);
+    fc__put64(p + 24, (uint64_t)L);
+    fc__put64(p + 32, cs->n);
+    fc__putd(p + 40, cs->order);
+    fc__putd(p + 48, cs->step);
+    fc__putd(p + 56, cs->tol);
+    fc__putd(p + 64, cs->horizon);
     p += CS_HDR;
-#define PUTV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { cs_putd(p, (arr)[i_]); p += 8; } } while (0)
+#define PUTV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { fc__putd(p, (arr)[i_]); p += 8; } } while (0)
     PUTV(cs->q, L); PUTV(cs->beta, L); PUTV(cs->inj, L);
     PUTV(cs->cb, B);
-    cs_putd(p, cs->c0); p += 8;
+    fc__putd(p, cs->c0); p += 8;
     PUTV(cs->ctab, B);
     for (size_t c = 0; c < cs->C; c++) {
         PUTV(cs->ring + c * 2 * B, B);
         PUTV(cs->S + c * cs->Lp, L);
         PUTV(cs->Sc + c * cs->Lp, L);
-        cs_putd(p, cs->xprev[c]); p += 8;
-        cs_putd(p, cs->x0[c]); p += 8;
+        fc__putd(p, cs->xprev[c]); p += 8;
+        fc__putd(p, cs->x0[c]); p += 8;
     }
 #undef PUTV
-    cs_put64(p, cs_fnv(buf, (size_t)(p - buf)));
+    fc__put64(p, fc__fnv1a(FC__FNV_OFFSET, buf, (size_t)(p - buf)));
     return FC_OK;
 }
 
@@ -1260,7 +1237,7 @@ static int cs_state_ok(const fc_cstream *cs)
             if (!(fabs(ring[j]) <= U)) return 0;
             if (n < B && j >= n && !cs_zero_bits(ring[j])) return 0;
         }
-        const int quiet = n <= B || (cs->rule == FC_RULE_L1 && n <= B + 1);
+        const int quiet = n <= B || (cs->diffs && n <= B + 1);
         for (size_t l = 0; l < L; l++) {
             /* (*) of RANGE (n >= 1 here unless S = 0 is required anyway) */
             double mn = cs_cap(cs->q[l]);
@@ -1273,7 +1250,7 @@ static int cs_state_ok(const fc_cstream *cs)
             if (!cs_zero_bits(xp) || !cs_zero_bits(x0)) return 0;
             continue;
         }
-        if (cs->rule == FC_RULE_L1) {
+        if (cs->diffs) {
             if (n <= B && !cs_zero_bits(ring[0])) return 0;
             if (n == 1 && !cs_same(xp, x0)) return 0;
         } else {
@@ -1306,29 +1283,31 @@ int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
     const size_t B = CS_BAND;
     if (size < CS_HDR + 8) return FC_ERR_FORMAT;
     if (memcmp(buf, cs_magic, 4) != 0) return FC_ERR_FORMAT;
-    if (cs_get32(buf + 4) != CS_FMT_VERSION) return FC_ERR_FORMAT;
-    uint32_t rule = cs_get32(buf + 8);
-    if (rule > FC_RULE_L1 || cs_get32(buf + 12) != B) return FC_ERR_FORMAT;
-    uint64_t C = cs_get64(buf + 16), L = cs_get64(buf + 24), n = cs_get64(buf + 32);
-    double order = cs_getd(buf + 40), step = cs_getd(buf + 48);
-    double tol = cs_getd(buf + 56), horizon = cs_getd(buf + 64);
+    if (fc__get32(buf + 4) != CS_FMT_VERSION) return FC_ERR_FORMAT;
+    uint32_t rule = fc__get32(buf + 8);
+    if (rule > (uint32_t)INT32_MAX || fc__rule((int)rule) == NULL ||
+        fc__get32(buf + 12) != B)
+        return FC_ERR_FORMAT;
+    uint64_t C = fc__get64(buf + 16), L = fc__get64(buf + 24), n = fc__get64(buf + 32);
+    double order = fc__getd(buf + 40), step = fc__getd(buf + 48);
+    double tol = fc__getd(buf + 56), horizon = fc__getd(buf + 64);
     if (C == 0 || L > CS_MAX_TERMS) return FC_ERR_FORMAT;
     size_t need = cs_size_for(C, L);   /* 0 on overflow */
     if (need == 0 || need != size) return FC_ERR_FORMAT;
-    if (cs_get64(buf + size - 8) != cs_fnv(buf, size - 8)) return FC_ERR_FORMAT;
+    if (fc__get64(buf + size - 8) != fc__fnv1a(FC__FNV_OFFSET, buf, size - 8)) return FC_ERR_FORMAT;
     if (n >= FC_INDEX_LIMIT) return FC_ERR_FORMAT;
     const unsigned char *p = buf + CS_HDR;
     size_t nd;
     if (cs_ndoubles(C, L, &nd)) return FC_ERR_FORMAT;
     for (size_t i = 0; i < nd; i++)
-        if (!isfinite(cs_getd(p + 8 * i))) return FC_ERR_FORMAT;
+        if (!isfinite(fc__getd(p + 8 * i))) return FC_ERR_FORMAT;
 
     fc_cstream *cs;
     int st = cs_create((int)rule, order, step, (size_t)C, tol, horizon, 1, &cs);
     if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
     int bad = cs->L != L;
 #define SAMEV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++, p += 8) \
-        if (!bad && !cs_same((arr)[i_], cs_getd(p))) bad = 1; } while (0)
+        if (!bad && !cs_same((arr)[i_], fc__getd(p))) bad = 1; } while (0)
     if (!bad) {
         SAMEV(cs->q, L); SAMEV(cs->beta, L); SAMEV(cs->inj, L);
         SAMEV(cs->cb, B);
@@ -1340,15 +1319,15 @@ int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
         fc__cs_free(cs);
         return FC_ERR_FORMAT;
     }
-#define GETV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { (arr)[i_] = cs_getd(p); p += 8; } } while (0)
+#define GETV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { (arr)[i_] = fc__getd(p); p += 8; } } while (0)
     for (size_t c = 0; c < C; c++) {
         double *ring = cs->ring + c * 2 * B;
         GETV(ring, B);
         memcpy(ring + B, ring, B * sizeof(double));
         GETV(cs->S + c * cs->Lp, L);
         GETV(cs->Sc + c * cs->Lp, L);
-        cs->xprev[c] = cs_getd(p); p += 8;
-        cs->x0[c] = cs_getd(p); p += 8;
+        cs->xprev[c] = fc__getd(p); p += 8;
+        cs->x0[c] = fc__getd(p); p += 8;
     }
 #undef GETV
     cs->n = n;

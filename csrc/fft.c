@@ -96,6 +96,11 @@ struct fc_fft_plan {
     void *mem;
     void (*fwd)(fc_fft_plan *, const double *, double *);
     void (*inv)(fc_fft_plan *, const double *, double *, double);
+    /* the spectral products, chosen with fwd/inv when the plan is made
+       (the CPU is probed once per plan, never per call) */
+    void (*sdot)(size_t, const double *const *, const double *const *,
+                 size_t, double *);
+    void (*smul)(size_t, const double *, const double *, double *);
 };
 
 /* exp(-2 pi i j / N) for N a power of two: octant reduction, then cos/sin of
@@ -554,10 +559,14 @@ int fc__fft_create(size_t n, fc_fft_plan **out)
     }
     p->fwd = fc__gen_rfft_forward;
     p->inv = fc__gen_rfft_inverse;
+    p->sdot = fc__gen_spec_dot;
+    p->smul = fc__gen_spec_mul;
 #if FC__FFT_X86
     if (fc__have_avx2_fma()) {
         p->fwd = fc__avx2_rfft_forward;
         p->inv = fc__avx2_rfft_inverse;
+        p->sdot = fc__avx2_spec_dot;
+        p->smul = fc__avx2_spec_mul;
     }
 #endif
     *out = p;
@@ -585,26 +594,15 @@ void fc__fft_inverse(fc_fft_plan *p, const double *in, double *out)
     p->inv(p, in, out, 1.0);
 }
 
-void fc__spec_dot(size_t n, const double *const *a, const double *const *b,
-                  size_t cnt, double *out)
+void fc__spec_dot(const fc_fft_plan *p, const double *const *a,
+                  const double *const *b, size_t cnt, double *out)
 {
-#if FC__FFT_X86
-    if (__builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma")) {
-        fc__avx2_spec_dot(n / 2 + 1, a, b, cnt, out);
-        return;
-    }
-#endif
-    fc__gen_spec_dot(n / 2 + 1, a, b, cnt, out);
+    p->sdot(p->n / 2 + 1, a, b, cnt, out);
 }
-void fc__spec_mul(size_t n, const double *a, const double *b, double *out)
+void fc__spec_mul(const fc_fft_plan *p, const double *a, const double *b,
+                  double *out)
 {
-#if FC__FFT_X86
-    if (__builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma")) {
-        fc__avx2_spec_mul(n / 2 + 1, a, b, out);
-        return;
-    }
-#endif
-    fc__gen_spec_mul(n / 2 + 1, a, b, out);
+    p->smul(p->n / 2 + 1, a, b, out);
 }
 
 /* ---------------------------------------------------------------------- */

@@ -28,10 +28,13 @@ void fc__fft_forward(fc_fft_plan *p, const double *in, double *out);
    Hermitian spectrum, i.e. n times the true inverse. in, out must not
    overlap. */
 void fc__fft_inverse(fc_fft_plan *p, const double *in, double *out);
-/* out[k] = sum_{j<cnt} a[j][k] * b[j][k] (complex), n/2+1 bins, cnt >= 1. */
-void fc__spec_dot(size_t n, const double *const *a, const double *const *b,
-                  size_t cnt, double *out);
-/* out[k] = a[k] * b[k] (complex) for the n/2+1 bins. */
-void fc__spec_mul(size_t n, const double *a, const double *b, double *out);
+/* out[k] = sum_{j<cnt} a[j][k] * b[j][k] (complex), n/2+1 bins of the
+   plan's size n, cnt >= 1; the AVX2 or portable version chosen when the
+   plan was made. */
+void fc__spec_dot(const fc_fft_plan *p, const double *const *a,
+                  const double *const *b, size_t cnt, double *out);
+/* out[k] = a[k] * b[k] (complex) for the n/2+1 bins of the plan's size. */
+void fc__spec_mul(const fc_fft_plan *p, const double *a, const double *b,
+                  double *out);
 
 #endif

@@ -16,10 +16,23 @@
  *     every allocation is checked and unwound on failure;
  *   - sizes are size_t and every size computation is checked for overflow
  *     (FC_ERR_SIZE);
- *   - objects (fc_context, fc_stream) are opaque; one object must not be used
- *     by two threads at once (a call that finds its object busy returns
- *     FC_ERR_BUSY and changes nothing); different objects may be used from
- *     different threads freely; the free functions accept NULL.
+ *   - objects (fc_context, fc_stream, fc_fft_plan) are opaque; the free
+ *     functions accept NULL;
+ *   - threads: the functions without an object argument are thread-safe;
+ *     different objects may be used from different threads freely; one
+ *     object must not be used by two threads at once. A stream detects it:
+ *     a call that finds its stream busy returns FC_ERR_BUSY and changes
+ *     nothing (except fc_stream_free, fc_stream_channels, fc_stream_mode
+ *     and the parameter getters, which read immutable fields and take no
+ *     guard; freeing a stream in use is undefined). A context and an FFT
+ *     plan have NO busy detection: concurrent use of one is undefined;
+ *   - const: a function taking a const object does not change its state;
+ *     on a stream it still sets and clears the stream's busy flag (an
+ *     atomic flag, the one field written through a const pointer, by
+ *     design: streams are always allocated by the library, never const
+ *     objects);
+ *   - statuses: the comment "Statuses:" beside each prototype lists every
+ *     status the function can return.
  *
  * Rules (u = h^a / Gamma(a+1) unless said otherwise):
  *   FC_RULE_RECTANGLE  I^a, product rectangle rule (left end points), a > 0:
@@ -49,7 +62,25 @@
 extern "C" {
 #endif
 
-#define FC_VERSION_STRING "0.1.0"
+/*
+ * FC_API marks the public functions: with GCC and clang the library is
+ * built with -fvisibility=hidden (Makefile), so that only the functions
+ * declared FC_API are exported from the shared object. setup_build.py
+ * removes the word from the declarations it gives cffi.
+ */
+#if defined(__GNUC__) || defined(__clang__)
+#define FC_API __attribute__((visibility("default")))
+#else
+#define FC_API
+#endif
+
+/* The version is defined once, as the three numbers in the block below;
+   the string is made from them ("0.1.0"). pyproject.toml and
+   pyfracconv.__version__ state the same version (tests/test_version.py). */
+#define FC__STR2(x) #x
+#define FC__STR(x) FC__STR2(x)
+#define FC_VERSION_STRING \
+    FC__STR(FC_VERSION_MAJOR) "." FC__STR(FC_VERSION_MINOR) "." FC__STR(FC_VERSION_PATCH)
 
 /* FC_CDEF_BEGIN */
 #define FC_VERSION_MAJOR 0
@@ -83,6 +114,32 @@ extern "C" {
 #define FC_RULE_GRUNWALD 2
 #define FC_RULE_L1 3
 
+/*
+ * The rule table. Rule numbers are part of the save format: they never
+ * change, and a new rule takes the next number.
+ *
+ * fc_rule_count: *count = the number of rules (they are 0 .. count-1).
+ *   Statuses: FC_OK, FC_ERR_NULL (count NULL).
+ * fc_rule_info: *name = the rule's static NUL-terminated name (the one the
+ *   Python package uses), *is_derivative = 0 for an integral, 1 for a
+ *   derivative. Statuses: FC_OK, FC_ERR_RULE (not a rule; nothing
+ *   written), FC_ERR_NULL (name or is_derivative NULL).
+ * fc_rule_order_range: the orders a rule accepts in a mode. mode
+ *   FC_MODE_EXACT: fc_weights, fc_apply and exact streams (one range);
+ *   FC_MODE_COMPRESSED: compressed streams (fc_stream_create). An order a
+ *   is accepted when it is finite and lo < a (lo <= a if *lo_inclusive),
+ *   a < hi (a <= hi if *hi_inclusive). Statuses: FC_OK, FC_ERR_RULE,
+ *   FC_ERR_MODE (unknown mode), FC_ERR_NULL (an out-pointer NULL);
+ *   nothing written on error.
+ */
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_rule_count(int *count);
+/* Statuses: FC_OK, FC_ERR_RULE, FC_ERR_NULL. */
+FC_API int fc_rule_info(int rule, const char **name, int *is_derivative);
+/* Statuses: FC_OK, FC_ERR_RULE, FC_ERR_MODE, FC_ERR_NULL. */
+FC_API int fc_rule_order_range(int rule, int mode, double *lo, int *lo_inclusive,
+                        double *hi, int *hi_inclusive);
+
 /* Batch engines. */
 #define FC_ENGINE_AUTO 0     /* chosen by size */
 #define FC_ENGINE_DIRECT 1   /* O(N*K) direct summation */
@@ -99,11 +156,14 @@ extern "C" {
 #define FC_HORIZON_CONTINUE 1  /* go on; fc_stream_past_horizon then reports 1 */
 
 /* Version of the library actually linked (FC_VERSION_NUMBER at build time). */
-int fc_version(void);
+/* Statuses: none (returns FC_VERSION_NUMBER of the build, not a status). */
+FC_API int fc_version(void);
 /* Static NUL-terminated version string, e.g. "0.1.0". */
-const char *fc_version_string(void);
+/* Statuses: none (returns a static string). */
+FC_API const char *fc_version_string(void);
 /* Static message for a status code; "unknown status" for codes not listed. */
-const char *fc_strerror(int status);
+/* Statuses: none (returns a static string). */
+FC_API const char *fc_strerror(int status);
 
 /*
  * Weights of a rule, scaled by the step as in the table above, for the
@@ -120,7 +180,8 @@ const char *fc_strerror(int status);
  * subnormal numbers or 0, with an absolute error up to 2^-1075 (a relative
  * bound cannot hold there).
  */
-int fc_weights(int rule, double order, double step, uint64_t start,
+/* Statuses: FC_OK, FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_INDEX, FC_ERR_NULL (out NULL with count > 0), FC_ERR_RANGE. */
+FC_API int fc_weights(int rule, double order, double step, uint64_t start,
                size_t count, double *out);
 
 /*
@@ -128,7 +189,8 @@ int fc_weights(int rule, double order, double step, uint64_t start,
  * n = start .. start+count-1 (A_0 is defined as 0). Same constraints, same
  * accuracy, FC_ERR_RANGE and underflow as fc_weights.
  */
-int fc_trapezoid_start(double order, double step, uint64_t start,
+/* Statuses: FC_OK, FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_INDEX, FC_ERR_NULL, FC_ERR_RANGE. */
+FC_API int fc_trapezoid_start(double order, double step, uint64_t start,
                        size_t count, double *out);
 
 /*
@@ -137,10 +199,13 @@ int fc_trapezoid_start(double order, double step, uint64_t start,
  * context per thread.
  */
 typedef struct fc_context fc_context;
-int fc_context_create(fc_context **out);
-void fc_context_free(fc_context *ctx);
+/* Statuses: FC_OK, FC_ERR_NULL (out NULL), FC_ERR_NOMEM. */
+FC_API int fc_context_create(fc_context **out);
+/* Statuses: none (void; NULL is a no-op). */
+FC_API void fc_context_free(fc_context *ctx);
 /* Bytes currently held by the context. */
-int fc_context_nbytes(const fc_context *ctx, size_t *nbytes);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_context_nbytes(const fc_context *ctx, size_t *nbytes);
 
 /*
  * Lagged sums of nsig signals sharing one kernel:
@@ -168,7 +233,8 @@ int fc_context_nbytes(const fc_context *ctx, size_t *nbytes);
  * n 2^-1074 times that product, and the relative bound does not hold
  * there.
  */
-int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_KERNEL, FC_ERR_ARG (engine, overlap), FC_ERR_SIZE, FC_ERR_NONFINITE, FC_ERR_NOMEM, FC_ERR_RANGE. */
+FC_API int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
                   const double *kernel, size_t klen, int engine, double *y);
 
 /*
@@ -187,23 +253,9 @@ int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
  * it. Outputs whose terms are in or near the subnormal range underflow
  * gradually (absolute error, as for fc_lagged_sum).
  */
-int fc_apply(fc_context *ctx, int rule, double order, double step,
+/* Statuses: FC_OK, FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_ARG (engine, overlap), FC_ERR_SIZE, FC_ERR_NULL, FC_ERR_NONFINITE, FC_ERR_NOMEM, FC_ERR_RANGE. */
+FC_API int fc_apply(fc_context *ctx, int rule, double order, double step,
              const double *x, size_t nsig, size_t n, int engine, double *y);
-
-/*
- * The library's own real FFT (power-of-two sizes 2 .. 2^30), exposed for
- * callers who want it and for benchmarks. A plan keeps twiddles and scratch
- * space: one plan per thread. Spectrum layout: n/2+1 complex values
- * interleaved (re, im) in natural order, X_k = sum_j x_j exp(-2 pi i jk/n).
- */
-typedef struct fc_fft_plan fc_fft_plan;
-int fc_rfft_create(size_t n, fc_fft_plan **out);
-void fc_rfft_free(fc_fft_plan *p);
-/* in: n reals; out: n+2 doubles; in and out must not overlap (FC_ERR_ARG). */
-int fc_rfft_forward(fc_fft_plan *p, const double *in, double *out);
-/* in: n+2 doubles; out: n reals, scaled by 1/n (the true inverse); the
-   imaginary parts of bins 0 and n/2 are ignored; no overlap (FC_ERR_ARG). */
-int fc_rfft_inverse(fc_fft_plan *p, const double *in, double *out);
 
 /*
  * Streams: samples arrive one at a time (per channel); the n-th output
@@ -252,13 +304,16 @@ typedef struct fc_stream fc_stream;
  * the running state is one that pushes could have produced; a loaded
  * stream then behaves exactly like the one that saved it.
  */
-int fc_stream_create(int rule, double order, double step, size_t channels,
+/* Statuses: FC_OK, FC_ERR_NULL (out), FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_ARG (channels 0), FC_ERR_SIZE (channels too many), FC_ERR_MODE, FC_ERR_TOL, FC_ERR_RANGE (compressed: the step factor or a weight beyond the double range), FC_ERR_NOMEM. */
+FC_API int fc_stream_create(int rule, double order, double step, size_t channels,
                      int mode, double tol, double horizon, fc_stream **out);
 /* An exact stream for a user kernel: y_n = sum_{k<=n} kernel[n-k] x_k,
    kernel[m] = 0 for m >= klen; klen >= 1, finite values (copied). */
-int fc_stream_create_kernel(const double *kernel, size_t klen,
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_KERNEL (klen 0 or a value not finite), FC_ERR_SIZE (klen beyond the lags an exact stream covers, or channels too many), FC_ERR_ARG (channels 0), FC_ERR_NOMEM. */
+FC_API int fc_stream_create_kernel(const double *kernel, size_t klen,
                             size_t channels, fc_stream **out);
-void fc_stream_free(fc_stream *s);
+/* Statuses: none (void; NULL is a no-op). */
+FC_API void fc_stream_free(fc_stream *s);
 
 /* Push one time step: x[channels] in, y[channels] out. y may be x itself
    (in place: every sample is read before its output is written); any other
@@ -275,15 +330,18 @@ void fc_stream_free(fc_stream *s);
    an exact-mode block whose outputs might leave the double range (samples
    within about 2^1000 / (count * max weight)) is computed in a temporary
    copy first. */
-int fc_stream_push(fc_stream *s, const double *x, double *y);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (overlap), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM. */
+FC_API int fc_stream_push(fc_stream *s, const double *x, double *y);
 /* Push count time steps: x[count*channels] in, y[count*channels] out; in
    place as for fc_stream_push (y == x, or no overlap: FC_ERR_ARG). */
-int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (overlap), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM. */
+FC_API int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
                          double *y);
 /* What fc_stream_push(s, x, y) would write to y, bit for bit, without
    changing the stream; y == x or no overlap, as for fc_stream_push; the
    same refusals (FC_ERR_RANGE, FC_ERR_HORIZON). */
-int fc_stream_preview(fc_stream *s, const double *x, double *y);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (overlap), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON. */
+FC_API int fc_stream_preview(fc_stream *s, const double *x, double *y);
 /* The history term of the next output: the part that does not depend on
    the next sample, so that y = history + w0 * x for GRUNWALD and user
    kernels (w0 = kernel[0]), y = history for RECTANGLE (w0 = 0),
@@ -293,37 +351,42 @@ int fc_stream_preview(fc_stream *s, const double *x, double *y);
    FC_ERR_RANGE (h untouched) if the history is beyond the double range;
    compressed mode: FC_ERR_HORIZON under FC_HORIZON_REFUSE when the next
    output would lie beyond floor(horizon). */
-int fc_stream_history(fc_stream *s, double *h);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_RANGE, FC_ERR_HORIZON. */
+FC_API int fc_stream_history(fc_stream *s, double *h);
 /* Forget all samples (keeps the kernel, the reserved capacity). */
-int fc_stream_reset(fc_stream *s);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_stream_reset(fc_stream *s);
 /* Samples pushed per channel since creation or the last reset. */
-int fc_stream_count(const fc_stream *s, uint64_t *count);
-int fc_stream_channels(const fc_stream *s, size_t *channels);
-int fc_stream_mode(const fc_stream *s, int *mode);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_stream_count(const fc_stream *s, uint64_t *count);
+/* Statuses: FC_OK, FC_ERR_NULL (immutable field: no busy check). */
+FC_API int fc_stream_channels(const fc_stream *s, size_t *channels);
+/* Statuses: FC_OK, FC_ERR_NULL (immutable field: no busy check). */
+FC_API int fc_stream_mode(const fc_stream *s, int *mode);
 /* Bytes of memory the stream holds now. */
-int fc_stream_nbytes(const fc_stream *s, size_t *nbytes);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_stream_nbytes(const fc_stream *s, size_t *nbytes);
 /* Compressed mode: number of exponential terms; exact mode: 0. */
-int fc_stream_terms(const fc_stream *s, size_t *terms);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_stream_terms(const fc_stream *s, size_t *terms);
 /* Make room so that no push up to n samples in all allocates. */
-int fc_stream_reserve(fc_stream *s, uint64_t n);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_SIZE, FC_ERR_NOMEM. */
+FC_API int fc_stream_reserve(fc_stream *s, uint64_t n);
 /* Size in bytes of the saved state right now. */
-int fc_stream_save_size(fc_stream *s, size_t *size);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_SIZE. */
+FC_API int fc_stream_save_size(fc_stream *s, size_t *size);
 /* Write the state to buf (size bytes available; FC_ERR_ARG if too small);
    *written gets the bytes used. Versioned, checksummed, little-endian. */
-int fc_stream_save(fc_stream *s, unsigned char *buf, size_t size,
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_SIZE, FC_ERR_ARG (size too small). */
+FC_API int fc_stream_save(fc_stream *s, unsigned char *buf, size_t size,
                    size_t *written);
 /* Rebuild a stream from saved bytes; FC_ERR_FORMAT for truncated,
    corrupted, foreign or unknown-version data, and for state that is not
    what the stored samples imply: an exact stream's accumulator is
    recomputed from its stored history and must match bit for bit, and its
    first/previous-sample and geometry fields are checked. */
-int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out);
-/* Scalar fast path of fc_stream_push for a stream of exactly one channel
-   (FC_ERR_ARG otherwise): the same result, bit for bit, as
-   fc_stream_push(s, &x, y); x must be finite (FC_ERR_NONFINITE); y: one
-   double. */
-int fc_stream_push1(fc_stream *s, double x, double *y);
-
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_FORMAT, FC_ERR_NOMEM. */
+FC_API int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out);
 /*
  * The horizon of a compressed stream: outputs 0 .. floor(horizon) are within
  * the stated tolerance; nothing is promised after. By default
@@ -335,21 +398,32 @@ int fc_stream_push1(fc_stream *s, double x, double *y);
  * horizon: the policy is accepted and ignored, the flag is always 0.
  * policy: FC_HORIZON_REFUSE or FC_HORIZON_CONTINUE (FC_ERR_ARG otherwise).
  */
-int fc_stream_set_horizon_policy(fc_stream *s, int policy);
-int fc_stream_horizon_policy(const fc_stream *s, int *policy);
+/* Statuses: FC_OK, FC_ERR_ARG (policy), FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_stream_set_horizon_policy(fc_stream *s, int policy);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_stream_horizon_policy(const fc_stream *s, int *policy);
 /* 1 once an output beyond the horizon has been produced, else 0. */
-int fc_stream_past_horizon(const fc_stream *s, int *flag);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_stream_past_horizon(const fc_stream *s, int *flag);
 /* Samples (per channel) that can still be pushed under the promise:
    compressed: floor(horizon) + 1 - count (0 once past); exact: the samples
    the stream can still take (UINT64_MAX - count for kernel streams). */
-int fc_stream_remaining(const fc_stream *s, uint64_t *remaining);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_stream_remaining(const fc_stream *s, uint64_t *remaining);
 /* The defining parameters: rule (-1 for a kernel stream), order and step
    (0 for a kernel stream), tolerance and horizon (0 for exact streams). */
-int fc_stream_rule(const fc_stream *s, int *rule);
-int fc_stream_order(const fc_stream *s, double *order);
-int fc_stream_step(const fc_stream *s, double *step);
-int fc_stream_tol(const fc_stream *s, double *tol);
-int fc_stream_horizon(const fc_stream *s, double *horizon);
+/* Statuses: FC_OK, FC_ERR_NULL (immutable field: no busy check). */
+FC_API int fc_stream_rule(const fc_stream *s, int *rule);
+/* Statuses: FC_OK, FC_ERR_NULL (immutable field: no busy check). */
+FC_API int fc_stream_order(const fc_stream *s, double *order);
+/* Statuses: FC_OK, FC_ERR_NULL (immutable field: no busy check). */
+FC_API int fc_stream_step(const fc_stream *s, double *step);
+/* Statuses: FC_OK, FC_ERR_NULL (immutable field: no busy check). */
+FC_API int fc_stream_tol(const fc_stream *s, double *tol);
+/* Statuses: FC_OK, FC_ERR_NULL (immutable field: no busy check). */
+FC_API int fc_stream_horizon(const fc_stream *s, double *horizon);
+
+
 /*
  * Solver: Caputo initial value problems
  *     D^a_i y_i = f_i(t, y),   y_i^(k)(t0) = y0_{k,i},  k < ceil(a_i),
@@ -412,20 +486,26 @@ typedef int (*fc_jac_fn)(double t, const double *y, double *jac, void *user);
  * order <= 1 but must be finite); method FC_METHOD_*; memory FC_MODE_*;
  * tol, horizon: as for fc_stream_create (ignored for FC_MODE_EXACT).
  */
-int fc_solver_create(size_t m, const double *orders, double step, double t0,
-                     const double *init, int method, int memory, double tol,
-                     double horizon, fc_solver **out);
-void fc_solver_free(fc_solver *s);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_SIZE (m == 0 or too large), FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_NONFINITE (t0 or init), FC_ERR_ARG (method, horizon of the implicit rectangle rule), FC_ERR_MODE, FC_ERR_TOL, FC_ERR_RANGE, FC_ERR_NOMEM. */
+FC_API int fc_solver_create(size_t m, const double *orders, double step, double t0,
+                            const double *init, int method, int memory, double tol,
+                            double horizon, fc_solver **out);
+/* Statuses: none (void; NULL is a no-op). */
+FC_API void fc_solver_free(fc_solver *s);
 /* The right-hand side (required before advancing; fn != NULL) and the
    Jacobian (fn == NULL: forward differences, m extra rhs calls each). */
-int fc_solver_set_rhs(fc_solver *s, fc_rhs_fn fn, void *user);
-int fc_solver_set_jacobian(fc_solver *s, fc_jac_fn fn, void *user);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_solver_set_rhs(fc_solver *s, fc_rhs_fn fn, void *user);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_solver_set_jacobian(fc_solver *s, fc_jac_fn fn, void *user);
 /* Newton's method of the implicit methods: stop when every residual
    component |r_i| <= tol * (|y_i| + |c_i| + |w0_i f_i|), c the known part;
    tol in [1e-15, 1e-2] (default 1e-12), 1 <= maxiter <= 1000 (default 50). */
-int fc_solver_set_newton(fc_solver *s, double tol, unsigned maxiter);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (tol or maxiter out of range). */
+FC_API int fc_solver_set_newton(fc_solver *s, double tol, unsigned maxiter);
 /* Corrector passes of FC_METHOD_PC, 1 <= passes <= 100 (default 1). */
-int fc_solver_set_corrections(fc_solver *s, unsigned passes);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (passes out of range or method not FC_METHOD_PC). */
+FC_API int fc_solver_set_corrections(fc_solver *s, unsigned passes);
 /*
  * Advance by nsteps steps. t_out: nsteps doubles or NULL; y_out:
  * nsteps*m doubles (y_out[j*m + i] = y_i at the j-th new step) or NULL.
@@ -437,29 +517,74 @@ int fc_solver_set_corrections(fc_solver *s, unsigned passes);
  * FC_ERR_HORIZON (compressed: step count would pass the horizon),
  * FC_ERR_NOMEM (the streams' room for nsteps more samples).
  */
-int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
-                      double *y_out, size_t *done);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_NORHS, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM (refused before any work); FC_ERR_CALLBACK, FC_ERR_NONFINITE, FC_ERR_NEWTON, FC_ERR_RANGE (stop the run, *done steps kept). */
+FC_API int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
+                             double *y_out, size_t *done);
 /* Current time t0 + n*step, state y[m], steps done, dimension m. */
-int fc_solver_time(const fc_solver *s, double *t);
-int fc_solver_state(const fc_solver *s, double *y);
-int fc_solver_steps(const fc_solver *s, uint64_t *n);
-int fc_solver_dim(const fc_solver *s, size_t *m);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_solver_time(const fc_solver *s, double *t);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_solver_state(const fc_solver *s, double *y);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_solver_steps(const fc_solver *s, uint64_t *n);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_solver_dim(const fc_solver *s, size_t *m);
 /* Calls of rhs (including those of difference Jacobians) and of jac. */
-int fc_solver_counts(const fc_solver *s, uint64_t *rhs_calls,
-                     uint64_t *jac_calls);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_solver_counts(const fc_solver *s, uint64_t *rhs_calls,
+                            uint64_t *jac_calls);
 /* The step index (n+1 for the step from t_n; 0 for f(t0, y0)) and time of
    the last failed evaluation; *step = UINT64_MAX if none. */
-int fc_solver_failure(const fc_solver *s, uint64_t *step, double *t);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_solver_failure(const fc_solver *s, uint64_t *step, double *t);
 /* Bytes of memory held (streams included). */
-int fc_solver_nbytes(const fc_solver *s, size_t *nbytes);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_solver_nbytes(const fc_solver *s, size_t *nbytes);
 /* Save / load: little-endian, versioned, FNV-1a 64 checksummed; streams
    embedded as fc_stream_save blobs. A loaded solver has no callbacks. */
-int fc_solver_save_size(const fc_solver *s, size_t *size);
-int fc_solver_save(const fc_solver *s, unsigned char *buf, size_t size,
-                   size_t *written);
-int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_SIZE. */
+FC_API int fc_solver_save_size(const fc_solver *s, size_t *size);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (buffer too small), FC_ERR_SIZE. */
+FC_API int fc_solver_save(const fc_solver *s, unsigned char *buf, size_t size,
+                          size_t *written);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_FORMAT, FC_ERR_NOMEM. */
+FC_API int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out);
 /* Static message for any status code (the solver's and fc_strerror's). */
-const char *fc_solver_strerror(int status);
+/* Statuses: none (returns a static message). */
+FC_API const char *fc_solver_strerror(int status);
+
+/* ------------------------------------------------------------------
+ * EXPERIMENTAL: the functions below may change or go in any version
+ * (they are not part of the stable interface a C caller should depend
+ * on; the Python package's own scalar push uses fc_stream_push1 and moves
+ * with it).
+ * ------------------------------------------------------------------ */
+/*
+ * The library's own real FFT (power-of-two sizes 2 .. 2^30), exposed for
+ * callers who want it and for benchmarks. A plan keeps twiddles and scratch
+ * space: one plan per thread. Spectrum layout: n/2+1 complex values
+ * interleaved (re, im) in natural order, X_k = sum_j x_j exp(-2 pi i jk/n).
+ */
+typedef struct fc_fft_plan fc_fft_plan;
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_SIZE (n not a power of two in 2 .. 2^30), FC_ERR_NOMEM. */
+FC_API int fc_rfft_create(size_t n, fc_fft_plan **out);
+/* Statuses: none (void; NULL is a no-op). */
+FC_API void fc_rfft_free(fc_fft_plan *p);
+/* in: n reals; out: n+2 doubles; in and out must not overlap (FC_ERR_ARG). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (overlap). */
+FC_API int fc_rfft_forward(fc_fft_plan *p, const double *in, double *out);
+/* in: n+2 doubles; out: n reals, scaled by 1/n (the true inverse); the
+   imaginary parts of bins 0 and n/2 are ignored; no overlap (FC_ERR_ARG). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (overlap). */
+FC_API int fc_rfft_inverse(fc_fft_plan *p, const double *in, double *out);
+
+/* Scalar fast path of fc_stream_push for a stream of exactly one channel
+   (FC_ERR_ARG otherwise): the same result, bit for bit, as
+   fc_stream_push(s, &x, y); x must be finite (FC_ERR_NONFINITE); y: one
+   double. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (channels != 1), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM. */
+FC_API int fc_stream_push1(fc_stream *s, double x, double *y);
+
 /* FC_CDEF_END */
 
 #ifdef __cplusplus

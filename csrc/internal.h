@@ -30,8 +30,86 @@ static inline int fc__add_size(size_t a, size_t b, size_t *r)
 int fc__check_finite(const double *x, size_t n);
 
 /*
+ * The rule table (rules.c): one descriptor per rule, read by every engine
+ * and every range check. Adding a rule is one row, its weight filler
+ * (weights.c) and its tests (DEVELOPERS.md, "Adding a rule").
+ */
+/* A unit weight sequence: filler out[i] = s * w_{start+i} and log2 of a
+   generous bound on |w_m| for m < 2^l (it only decides whether the
+   one-multiplication scaling path is safe). */
+typedef struct {
+    void (*fill)(double a, uint64_t start, size_t count, double s,
+                 double *out);
+    double (*log2_bound)(double a, double l);
+} fc__wseq;
+extern const fc__wseq fc__seq_rectangle, fc__seq_trapezoid,
+    fc__seq_trapezoid_start, fc__seq_grunwald, fc__seq_l1;
+
+/* The scale factor of the unit weights, M 2^E (weights.c). */
+enum {
+    FC__SCALE_HA_G1 = 1,     /* h^a / Gamma(a+1) */
+    FC__SCALE_HA_G2 = 2,     /* h^a / Gamma(a+2) */
+    FC__SCALE_HNA = 3,       /* h^-a */
+    FC__SCALE_HNA_G2MA = 4   /* h^-a / Gamma(2-a) */
+};
+/* The Laplace density of the kernel that compressed mode approximates by
+   a sum of exponentials (soe construction, compressed.c). */
+enum {
+    FC__DENS_RECT = 1,       /* phi = expm1(s)/s, p = -a */
+    FC__DENS_TRAP = 2,       /* phi = (sinh(s/2)/(s/2))^2, p = -a */
+    FC__DENS_GRUN = 3,       /* phi = e^{as} ((1-e^{-s})/s)^a, p = a */
+    FC__DENS_L1 = 4          /* phi = (1-e^{-s})/s, p = a - 1 */
+};
+/* An order interval lo < a (lo <= a if lo_incl), a < hi (a <= hi if
+   hi_incl). */
+typedef struct {
+    double lo, hi;
+    int lo_incl, hi_incl;
+} fc__range;
+/* The smallest order compressed mode offers (the lower end of every
+   rule's compressed range; compressed.c explains it). */
+#define FC__CS_MIN_ORDER 1e-280
+/* A starting-correction column: y_n += corr_n x_column with
+   corr_n = S_n - c_n, S the start weights (same scale as the rule). The
+   engines implement column 0 (x_0) only; fc__rule_x0 finds it. */
+typedef struct {
+    uint64_t column;
+    const fc__wseq *start;
+} fc__corr_col;
+typedef struct {
+    int id;                  /* FC_RULE_* (part of the save format) */
+    const char *name;        /* the Python name */
+    int is_derivative;       /* 0 integral, 1 derivative */
+    fc__range batch;         /* fc_weights, fc_apply */
+    fc__range exact;         /* exact streams */
+    fc__range compressed;    /* compressed streams (creation) */
+    double cumulative_from;  /* compressed: orders >= this run on the
+                                running sum x_0 + ... + x_n (INFINITY:
+                                never) */
+    unsigned lag_shift;      /* c_m = w_{m - shift}, c_m = 0 for m < shift */
+    int uses_differences;    /* u_k = x_k - x_{k-1}, u_0 = 0 (else u = x) */
+    int scale;               /* FC__SCALE_* */
+    const fc__wseq *weights; /* the weights w_m of fc_weights */
+    int density;             /* FC__DENS_* */
+    size_t ncorr;            /* starting-correction columns */
+    const fc__corr_col *corr;
+} fc__rule_desc;
+
+/* The descriptor of a rule, NULL for a number that is not a rule. */
+const fc__rule_desc *fc__rule(int rule);
+/* The x_0 correction column of a rule, NULL if it has none. */
+const fc__corr_col *fc__rule_x0(const fc__rule_desc *d);
+/* 1 if order lies in r. */
+int fc__in_range(const fc__range *r, double order);
+/* The weight sequence and scale of kind (a rule, or FC__START_WEIGHTS);
+   kind already checked. */
+const fc__wseq *fc__weight_seq(int kind);
+int fc__weight_scale(int kind);
+
+/*
  * Validation of (rule, order, step) for an operator (integral or
- * derivative): FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_STEP or FC_OK.
+ * derivative), from the rule table's batch range: FC_ERR_RULE,
+ * FC_ERR_ORDER, FC_ERR_STEP or FC_OK.
  */
 int fc__check_rule(int rule, double order, double step);
 
@@ -87,7 +165,13 @@ void fc__unit_x0_correction(int rule, double order, uint64_t start,
                             size_t count, double *corr);
 static inline int fc__rule_uses_differences(int rule)
 {
-    return rule == FC_RULE_L1;
+    const fc__rule_desc *d = fc__rule(rule);
+    return d != NULL && d->uses_differences;
+}
+static inline int fc__rule_has_x0(int rule)
+{
+    const fc__rule_desc *d = fc__rule(rule);
+    return d != NULL && fc__rule_x0(d) != NULL;
 }
 
 /*

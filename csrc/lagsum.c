@@ -340,7 +340,7 @@ static void part_size(fc_context *ctx, const part_shape *sh, size_t W,
                 zp[j] = ring + ((i - p0 - j) % nseg) * sp;
                 cp[j] = kspec + j * sp;
             }
-            fc__spec_dot(n2, zp, cp, jmax, acc);
+            fc__spec_dot(plan, zp, cp, jmax, acc);
             fc__fft_inverse(plan, acc, out);
             size_t r0 = i * W;
             size_t cnt = n - r0 < W ? n - r0 : W;
@@ -392,7 +392,7 @@ static void fft_run(fc_context *ctx, size_t P, const double *x, size_t nsig,
         memcpy(buf, x + sg * n, n * sizeof(double));
         memset(buf + n, 0, (P - n) * sizeof(double));
         fc__fft_forward(p, buf, xs);
-        fc__spec_mul(P, xs, spec, xs);
+        fc__spec_mul(p, xs, spec, xs);
         fc__fft_inverse(p, xs, buf);
         memcpy(y + sg * n, buf, n * sizeof(double));
     }
@@ -705,7 +705,7 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
     if (fc__check_finite(x, total) != FC_OK) return FC_ERR_NONFINITE;
 
     int diffs = fc__rule_uses_differences(rule);
-    int corr = rule == FC_RULE_TRAPEZOID;
+    int corr = fc__rule_has_x0(rule);
     size_t need;
     if (fc__mul_size(nsig, sizeof(long) + sizeof(double), &need) != FC_OK)
         return FC_ERR_SIZE;

@@ -9,12 +9,106 @@
 #include <float.h>
 #include <string.h>
 
+/*
+ * The rule table. Rule numbers are part of the save format and never
+ * change; a new rule gets the next number.
+ *   batch and exact: 0 < a <= 10 (L1: 0 < a < 1);
+ *   compressed: the construction needs a completely monotone kernel and
+ *   a < 1 (for the rectangle rule also 1 <= a < 2, on the running sum),
+ *   and a >= 1e-280 (CS_MIN_ORDER in compressed.c: below it the kernel's
+ *   far lags are subnormal).
+ */
+static const fc__corr_col trapezoid_corr[] = {{0, &fc__seq_trapezoid_start}};
+
+#define R_ALL {0.0, 10.0, 0, 1}
+#define R_BELOW1 {0.0, 1.0, 0, 0}
+#define R_CS1 {FC__CS_MIN_ORDER, 1.0, 1, 0}
+#define R_CS2 {FC__CS_MIN_ORDER, 2.0, 1, 0}
+
+static const fc__rule_desc rule_table[] = {
+    {FC_RULE_RECTANGLE, "rectangle", 0, R_ALL, R_ALL, R_CS2, 1.0,
+     1, 0, FC__SCALE_HA_G1, &fc__seq_rectangle, FC__DENS_RECT, 0, NULL},
+    {FC_RULE_TRAPEZOID, "trapezoid", 0, R_ALL, R_ALL, R_CS1, INFINITY,
+     0, 0, FC__SCALE_HA_G2, &fc__seq_trapezoid, FC__DENS_TRAP, 1,
+     trapezoid_corr},
+    {FC_RULE_GRUNWALD, "grunwald", 1, R_ALL, R_ALL, R_CS1, INFINITY,
+     0, 0, FC__SCALE_HNA, &fc__seq_grunwald, FC__DENS_GRUN, 0, NULL},
+    {FC_RULE_L1, "l1", 1, R_BELOW1, R_BELOW1, R_CS1, INFINITY,
+     0, 1, FC__SCALE_HNA_G2MA, &fc__seq_l1, FC__DENS_L1, 0, NULL},
+};
+#define NRULES (sizeof rule_table / sizeof rule_table[0])
+
+const fc__rule_desc *fc__rule(int rule)
+{
+    if (rule < 0 || (size_t)rule >= NRULES) return NULL;
+    return &rule_table[rule]; /* rows are in FC_RULE_* order (test_structure) */
+}
+
+const fc__corr_col *fc__rule_x0(const fc__rule_desc *d)
+{
+    for (size_t i = 0; i < d->ncorr; i++)
+        if (d->corr[i].column == 0) return &d->corr[i];
+    return NULL;
+}
+
+int fc__in_range(const fc__range *r, double a)
+{
+    if (!isfinite(a)) return 0;
+    if (r->lo_incl ? !(a >= r->lo) : !(a > r->lo)) return 0;
+    if (r->hi_incl ? !(a <= r->hi) : !(a < r->hi)) return 0;
+    return 1;
+}
+
+const fc__wseq *fc__weight_seq(int kind)
+{
+    if (kind == FC__START_WEIGHTS)
+        return fc__rule_x0(fc__rule(FC_RULE_TRAPEZOID))->start;
+    return fc__rule(kind)->weights;
+}
+
+int fc__weight_scale(int kind)
+{
+    return fc__rule(kind == FC__START_WEIGHTS ? FC_RULE_TRAPEZOID : kind)->scale;
+}
+
 int fc__check_rule(int rule, double order, double step)
 {
-    if (rule < FC_RULE_RECTANGLE || rule > FC_RULE_L1) return FC_ERR_RULE;
-    if (!isfinite(order) || order <= 0.0 || order > 10.0) return FC_ERR_ORDER;
-    if (rule == FC_RULE_L1 && order >= 1.0) return FC_ERR_ORDER;
+    const fc__rule_desc *d = fc__rule(rule);
+    if (d == NULL) return FC_ERR_RULE;
+    if (!fc__in_range(&d->batch, order)) return FC_ERR_ORDER;
     if (!isfinite(step) || step <= 0.0) return FC_ERR_STEP;
+    return FC_OK;
+}
+
+int fc_rule_count(int *count)
+{
+    if (count == NULL) return FC_ERR_NULL;
+    *count = (int)NRULES;
+    return FC_OK;
+}
+
+int fc_rule_info(int rule, const char **name, int *is_derivative)
+{
+    const fc__rule_desc *d = fc__rule(rule);
+    if (d == NULL) return FC_ERR_RULE;
+    if (name == NULL || is_derivative == NULL) return FC_ERR_NULL;
+    *name = d->name;
+    *is_derivative = d->is_derivative;
+    return FC_OK;
+}
+
+int fc_rule_order_range(int rule, int mode, double *lo, int *lo_inclusive,
+                        double *hi, int *hi_inclusive)
+{
+    const fc__rule_desc *d = fc__rule(rule);
+    if (d == NULL) return FC_ERR_RULE;
+    if (mode != FC_MODE_EXACT && mode != FC_MODE_COMPRESSED) return FC_ERR_MODE;
+    if (!lo || !lo_inclusive || !hi || !hi_inclusive) return FC_ERR_NULL;
+    const fc__range *r = mode == FC_MODE_EXACT ? &d->exact : &d->compressed;
+    *lo = r->lo;
+    *lo_inclusive = r->lo_incl;
+    *hi = r->hi;
+    *hi_inclusive = r->hi_incl;
     return FC_OK;
 }
 
@@ -22,17 +116,14 @@ void fc__unit_lag_kernel(int rule, double order, uint64_t start,
                          size_t count, double *c)
 {
     if (count == 0) return;
-    if (rule != FC_RULE_RECTANGLE) {
-        fc__unit_weights(rule, order, start, count, c);
-        return;
-    }
-    /* rectangle: c_0 = 0, c_m = b_{m-1} */
-    if (start == 0) {
-        c[0] = 0.0;
-        fc__unit_weights(rule, order, 0, count - 1, c + 1);
-        return;
-    }
-    fc__unit_weights(rule, order, start - 1, count, c);
+    /* c_m = w_{m - shift}, zero for m < shift (rectangle: c_0 = 0,
+       c_m = b_{m-1}) */
+    uint64_t sh = fc__rule(rule)->lag_shift;
+    size_t lead = 0;
+    while (lead < count && start + lead < sh) c[lead++] = 0.0;
+    if (lead < count)
+        fc__unit_weights(rule, order, start + lead - sh, count - lead,
+                         c + lead);
 }
 
 void fc__unit_kernel(int rule, double order, double step, uint64_t start,
@@ -46,16 +137,18 @@ void fc__unit_x0_correction(int rule, double order, uint64_t start,
                             size_t count, double *corr)
 {
     if (count == 0) return;
-    if (rule != FC_RULE_TRAPEZOID) {
+    const fc__corr_col *col = fc__rule_x0(fc__rule(rule));
+    if (col == NULL) {
         memset(corr, 0, count * sizeof *corr);
         return;
     }
-    /* corr_n = start(n) - weights(n); A_0 = 0 gives corr_0 = -c_0, y_0 = 0. */
-    fc__unit_weights(FC__START_WEIGHTS, order, start, count, corr);
+    /* corr_n = S_n - c_n (trapezoid: A_0 = 0 gives corr_0 = -c_0,
+       y_0 = 0). */
+    col->start->fill(order, start, count, 1.0, corr);
     double w[1024];
     for (size_t j = 0; j < count; j += 1024) {
         size_t m = count - j < 1024 ? count - j : 1024;
-        fc__unit_weights(rule, order, start + j, m, w);
+        fc__unit_lag_kernel(rule, order, start + j, m, w);
         for (size_t i = 0; i < m; i++) corr[j + i] -= w[i];
     }
 }
@@ -73,7 +166,7 @@ static int scale_strict(int kind, double a, double h, uint64_t end,
     long E;
     fc__rule_scale(kind, a, h, &M, &E);
     double lb = fc__unit_log2_bound(kind, a, end);
-    if (kind == FC_RULE_TRAPEZOID) lb += 5.0; /* corr: start - weights */
+    if (fc__rule_has_x0(kind)) lb += 5.0; /* corr: start - weights */
     int bad = 0;
     if (E > -958 && (double)E + lb < 1022.0) {
         double s = (double)ldexpl(M, (int)E);
@@ -105,6 +198,6 @@ int fc__x0_correction(int rule, double order, double step, uint64_t start,
 {
     if (count == 0) return FC_OK;
     fc__unit_x0_correction(rule, order, start, count, corr);
-    if (rule != FC_RULE_TRAPEZOID) return FC_OK;
+    if (!fc__rule_has_x0(rule)) return FC_OK;
     return scale_strict(rule, order, step, start + count, count, corr);
 }

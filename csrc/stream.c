@@ -60,6 +60,7 @@
 #include <stdatomic.h>
 #include <limits.h>
 #include "internal.h"
+#include "serial.h"
 
 #define FC_S_BLOCK0 64          /* block size of level 0 */
 #define FC_S_LEAF 64            /* the default leaf band: lags 0 .. 63 */
@@ -105,6 +106,8 @@ struct fc_stream {
     int rule;
     double order, step, tol, horizon;
     int horizon_policy;     /* FC_HORIZON_* (compressed mode) */
+    int x0corr;             /* rule with an x_0 correction (rule table) */
+    int diffs;              /* rule summing differences of x (rule table) */
     size_t C;               /* channels */
     fc_cstream *cs;         /* compressed mode */
 
@@ -220,7 +223,7 @@ static inline double ex_hist(const fc_stream *s, size_t c, double corr)
     uint64_t n = s->n;
     const double *uc = urow(s, c);
     double h = arow(s, c)[n - s->abase] + leaf_dot(s->leafk, uc + n - s->leaf, s->leaf);
-    if (s->rule == FC_RULE_TRAPEZOID && s->kind == FC_S_KIND_RULE) {
+    if (s->x0corr) {
         if (n == 0) h = 0.0;
         else h += corr * s->x0[c];
     }
@@ -230,7 +233,7 @@ static inline double ex_hist(const fc_stream *s, size_t c, double corr)
 /* The u value pushing x would store for channel c. */
 static inline double ex_u(const fc_stream *s, size_t c, double x)
 {
-    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_L1)
+    if (s->diffs)
         return s->n == 0 ? 0.0 : x - s->xprev[c];
     return x;
 }
@@ -241,7 +244,7 @@ static inline double ex_y(const fc_stream *s, size_t c, double x, double corr,
 {
     double h = ex_hist(s, c, corr);
     *u = ex_u(s, c, x);
-    if (s->n == 0 && s->rule == FC_RULE_TRAPEZOID && s->kind == FC_S_KIND_RULE)
+    if (s->n == 0 && s->x0corr)
         return 0.0; /* y_0 = (c_0 + corr_0) x_0 = 0 */
     return h + s->c0 * *u;
 }
@@ -424,7 +427,7 @@ static void level_frame(fc_stream *s, size_t j, uint64_t f, uint64_t lo)
         }
         double *a = arow(s, c) + (o - s->abase);
         if (!scaled) {
-            fc__spec_dot(n2, xp, (const double *const *)L->kspec, np, Y);
+            fc__spec_dot(L->plan, xp, (const double *const *)L->kspec, np, Y);
             fc__fft_inverse(L->plan, Y, t);
             for (size_t i = i0; i + 1 < n2; i++) a[i] += t[i];
         } else {
@@ -673,12 +676,12 @@ static int ex_step(fc_stream *s, const double *x, double *y)
     double corr = 0.0;
     size_t C = s->C;
     uint64_t n = s->n;
-    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID && n > 0) {
+    if (s->x0corr && n > 0) {
         int st = corr_get(s, n, &corr);
         if (st != FC_OK) return st;
     }
-    int l1 = s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_L1;
-    int first = s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID &&
+    int l1 = s->diffs;
+    int first = s->x0corr &&
                 n == 0;
     /* every output first: one that is not representable refuses the step
        before anything changes */
@@ -755,7 +758,7 @@ static int ex_preview(fc_stream *s, const double *x, double *y)
 {
     double corr = 0.0;
     if (partial_overlap(x, y, s->C)) return FC_ERR_ARG;
-    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID && s->n > 0) {
+    if (s->x0corr && s->n > 0) {
         int st = corr_get(s, s->n, &corr);
         if (st != FC_OK) return st;
     }
@@ -771,7 +774,7 @@ static int ex_preview(fc_stream *s, const double *x, double *y)
 static int ex_history(fc_stream *s, double *h)
 {
     double corr = 0.0;
-    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID && s->n > 0) {
+    if (s->x0corr && s->n > 0) {
         int st = corr_get(s, s->n, &corr);
         if (st != FC_OK) return st;
     }
@@ -795,7 +798,7 @@ static int ex_block_safe(const fc_stream *s, const double *x, size_t tot,
 {
     double m = 0.0;
     for (size_t i = 0; i < tot; i++) m = fabs(x[i]) > m ? fabs(x[i]) : m;
-    if (s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_L1) {
+    if (s->diffs) {
         for (size_t c = 0; c < s->C; c++)
             m = fabs(s->xprev[c]) > m ? fabs(s->xprev[c]) : m;
         m *= 2.0;
@@ -821,7 +824,7 @@ static int ex_push_block(fc_stream *s, const double *x, size_t count,
     if ((st = ex_prepare(s, n_end, 0)) != FC_OK) return st;
     /* the trapezoid correction of the first sample, so that the only
        failure the loop could meet is checked before anything changes */
-    if (count && s->kind == FC_S_KIND_RULE && s->rule == FC_RULE_TRAPEZOID) {
+    if (count && s->x0corr) {
         double v;
         if ((st = corr_get(s, n_end - 1, &v)) != FC_OK) return st;
         if (s->n > 0 && (st = corr_get(s, s->n, &v)) != FC_OK) return st;
@@ -1046,7 +1049,7 @@ static int ex_init(fc_stream *s, size_t leaf, size_t segs)
         /* the trapezoid correction is a few times the weights */
         s->klog2 = fc__unit_log2_bound(s->rule, s->order, s->lag_limit) +
                    (double)log2l(M) + (double)E +
-                   (s->rule == FC_RULE_TRAPEZOID ? 5.0 : 0.0);
+                   (s->x0corr ? 5.0 : 0.0);
     }
     /* room for the leaf band of the first samples */
     return ex_prepare(s, 1, 1);
@@ -1061,6 +1064,8 @@ static int stream_create_geom(int rule, double order, double step,
     int st;
     if (!out) return FC_ERR_NULL;
     if ((st = fc__check_rule(rule, order, step)) != FC_OK) return st;
+    if (mode == FC_MODE_EXACT && !fc__in_range(&fc__rule(rule)->exact, order))
+        return FC_ERR_ORDER;
     if (channels == 0) return FC_ERR_ARG;
     if (channels > ((size_t)-1) / (8 * sizeof(double) * FC_S_LEAF_MAX))
         return FC_ERR_SIZE;
@@ -1075,6 +1080,8 @@ static int stream_create_geom(int rule, double order, double step,
     s->mode = mode;
     s->kind = FC_S_KIND_RULE;
     s->rule = rule;
+    s->x0corr = fc__rule_has_x0(rule);
+    s->diffs = fc__rule_uses_differences(rule);
     s->order = order;
     s->step = step;
     s->tol = mode == FC_MODE_COMPRESSED ? tol : 0.0;
@@ -1198,8 +1205,7 @@ int fc_stream_push1(fc_stream *s, double x, double *y)
     else {
         /* inline fast path of ex_push_block for one sample */
         if (s->n + 1 > s->prep_n) st = ex_prepare(s, s->n + 1, 0);
-        if (st == FC_OK && s->kind == FC_S_KIND_RULE &&
-            s->rule == FC_RULE_TRAPEZOID && s->n > 0) {
+        if (st == FC_OK && s->x0corr && s->n > 0) {
             double v;
             st = corr_get(s, s->n, &v);
         }
@@ -1395,48 +1401,6 @@ int fc_stream_horizon(const fc_stream *s, double *horizon)
 #define FC_S_FMT_VERSION 1u
 static const unsigned char fc_s_magic[8] = {'F', 'C', 'S', 'T', 'R', 'E', 'A', 'M'};
 
-static void put64(unsigned char *p, uint64_t v)
-{
-    for (int i = 0; i < 8; i++) p[i] = (unsigned char)(v >> (8 * i));
-}
-static void put32(unsigned char *p, uint32_t v)
-{
-    for (int i = 0; i < 4; i++) p[i] = (unsigned char)(v >> (8 * i));
-}
-static void putd(unsigned char *p, double d)
-{
-    uint64_t v;
-    memcpy(&v, &d, 8);
-    put64(p, v);
-}
-static uint64_t get64(const unsigned char *p)
-{
-    uint64_t v = 0;
-    for (int i = 7; i >= 0; i--) v = (v << 8) | p[i];
-    return v;
-}
-static uint32_t get32(const unsigned char *p)
-{
-    uint32_t v = 0;
-    for (int i = 3; i >= 0; i--) v = (v << 8) | p[i];
-    return v;
-}
-static double getd(const unsigned char *p)
-{
-    uint64_t v = get64(p);
-    double d;
-    memcpy(&d, &v, 8);
-    return d;
-}
-static uint64_t fnv1a(uint64_t h, const unsigned char *p, size_t n)
-{
-    for (size_t i = 0; i < n; i++) {
-        h ^= p[i];
-        h *= UINT64_C(0x100000001b3);
-    }
-    return h;
-}
-#define FNV_OFFSET UINT64_C(0xcbf29ce484222325)
 
 static uint64_t ex_acc_live(const fc_stream *s)
 {
@@ -1491,41 +1455,41 @@ int fc_stream_save(fc_stream *s, unsigned char *buf, size_t size,
     if (st != FC_OK) { leave(s); return st; }
 
     memcpy(buf, fc_s_magic, 8);
-    put32(buf + 8, FC_S_FMT_VERSION);
-    put32(buf + 12, (uint32_t)s->mode);
-    put32(buf + 16, s->kind);
-    put32(buf + 20, (uint32_t)s->rule);
-    putd(buf + 24, s->order);
-    putd(buf + 32, s->step);
-    put64(buf + 40, (uint64_t)s->C);
-    putd(buf + 48, s->tol);
-    putd(buf + 56, s->horizon);
-    put64(buf + 64, (uint64_t)p);
+    fc__put32(buf + 8, FC_S_FMT_VERSION);
+    fc__put32(buf + 12, (uint32_t)s->mode);
+    fc__put32(buf + 16, s->kind);
+    fc__put32(buf + 20, (uint32_t)s->rule);
+    fc__putd(buf + 24, s->order);
+    fc__putd(buf + 32, s->step);
+    fc__put64(buf + 40, (uint64_t)s->C);
+    fc__putd(buf + 48, s->tol);
+    fc__putd(buf + 56, s->horizon);
+    fc__put64(buf + 64, (uint64_t)p);
 
     if (s->mode == FC_MODE_EXACT) {
         unsigned char *q = buf + FC_S_HDR;
         uint64_t A = ex_acc_live(s);
-        put64(q, (uint64_t)s->leaf);
-        put64(q + 8, (uint64_t)s->segs);
-        put64(q + 16, s->n);
-        put64(q + 24, (uint64_t)s->klen);
-        put64(q + 32, A);
+        fc__put64(q, (uint64_t)s->leaf);
+        fc__put64(q + 8, (uint64_t)s->segs);
+        fc__put64(q + 16, s->n);
+        fc__put64(q + 24, (uint64_t)s->klen);
+        fc__put64(q + 32, A);
         q += 40;
-        for (size_t i = 0; i < s->klen; i++, q += 8) putd(q, s->kernel[i]);
-        for (size_t c = 0; c < s->C; c++, q += 8) putd(q, s->xprev[c]);
-        for (size_t c = 0; c < s->C; c++, q += 8) putd(q, s->x0[c]);
+        for (size_t i = 0; i < s->klen; i++, q += 8) fc__putd(q, s->kernel[i]);
+        for (size_t c = 0; c < s->C; c++, q += 8) fc__putd(q, s->xprev[c]);
+        for (size_t c = 0; c < s->C; c++, q += 8) fc__putd(q, s->x0[c]);
         for (size_t c = 0; c < s->C; c++) {
             const double *uc = urow(s, c);
-            for (uint64_t k = 0; k < s->n; k++, q += 8) putd(q, uc[k]);
+            for (uint64_t k = 0; k < s->n; k++, q += 8) fc__putd(q, uc[k]);
         }
         for (size_t c = 0; c < s->C; c++) {
             const double *ac = arow(s, c) + (s->n - s->abase);
-            for (uint64_t k = 0; k < A; k++, q += 8) putd(q, ac[k]);
+            for (uint64_t k = 0; k < A; k++, q += 8) fc__putd(q, ac[k]);
         }
     }
-    uint64_t h = fnv1a(FNV_OFFSET, buf, 72);
-    h = fnv1a(h, buf + FC_S_HDR, p);
-    put64(buf + 72, h);
+    uint64_t h = fc__fnv1a(FC__FNV_OFFSET, buf, 72);
+    h = fc__fnv1a(h, buf + FC_S_HDR, p);
+    fc__put64(buf + 72, h);
     *written = total;
     leave(s);
     return FC_OK;
@@ -1534,7 +1498,7 @@ int fc_stream_save(fc_stream *s, unsigned char *buf, size_t size,
 static int finite_le(const unsigned char *p, size_t count)
 {
     for (size_t i = 0; i < count; i++)
-        if (!isfinite(getd(p + 8 * i))) return 0;
+        if (!isfinite(fc__getd(p + 8 * i))) return 0;
     return 1;
 }
 
@@ -1583,7 +1547,7 @@ static int ex_rebuild(uint32_t kind, int rule, double order, double step,
     if (kind == FC_S_KIND_KERNEL) {
         double *k = malloc((size_t)klen * sizeof(double));
         if (!k) return FC_ERR_NOMEM;
-        for (size_t i = 0; i < klen; i++) k[i] = getd(kq + 8 * i);
+        for (size_t i = 0; i < klen; i++) k[i] = fc__getd(kq + 8 * i);
         st = kernel_create_geom(k, (size_t)klen, C, leaf, segs, &s);
         free(k);
     } else {
@@ -1604,7 +1568,7 @@ static int ex_rebuild(uint32_t kind, int rule, double order, double step,
         double *uc = urow(s, c);
         const unsigned char *r = uq + 8 * (size_t)(c * n);
         for (uint64_t k = 0; k < n; k++) {
-            uc[k] = getd(r + 8 * k);
+            uc[k] = fc__getd(r + 8 * k);
             if (fabs(uc[k]) > s->umax) s->umax = fabs(uc[k]);
         }
     }
@@ -1629,7 +1593,7 @@ static int acc_matches(const fc_stream *s, const unsigned char *aq, uint64_t A)
     for (size_t c = 0; c < s->C; c++) {
         const double *ac = arow(s, c) + (s->n - s->abase);
         for (uint64_t k = 0; k < A; k++, aq += 8)
-            if (dbits(ac[k]) != get64(aq)) return 0;
+            if (dbits(ac[k]) != fc__get64(aq)) return 0;
     }
     return 1;
 }
@@ -1649,12 +1613,12 @@ static int ex_load(const unsigned char *q, size_t p, uint32_t kind, int rule,
                    const unsigned char *hdr, size_t C, fc_stream **out)
 {
     uint64_t C64 = (uint64_t)C;
-    double order = getd(hdr + 24), step = getd(hdr + 32);
+    double order = fc__getd(hdr + 24), step = fc__getd(hdr + 32);
     int st;
     if (p < 40) return FC_ERR_FORMAT;
-    uint64_t leaf = get64(q), segs = get64(q + 8), n = get64(q + 16),
-             klen = get64(q + 24), A = get64(q + 32);
-    if (get64(hdr + 48) != 0 || get64(hdr + 56) != 0) return FC_ERR_FORMAT;
+    uint64_t leaf = fc__get64(q), segs = fc__get64(q + 8), n = fc__get64(q + 16),
+             klen = fc__get64(q + 24), A = fc__get64(q + 32);
+    if (fc__get64(hdr + 48) != 0 || fc__get64(hdr + 56) != 0) return FC_ERR_FORMAT;
     /* a geometry this code can choose */
     int legacy = leaf == FC_S_LEAF && segs == FC_S_SEGS;
     int known = legacy;
@@ -1682,7 +1646,7 @@ static int ex_load(const unsigned char *q, size_t p, uint32_t kind, int rule,
                         *uq = x0q + 8 * C, *aq = uq + 8 * (size_t)(C64 * n);
     if (kind == FC_S_KIND_KERNEL) {
         if (rule != -1 || klen == 0 || klen > FC_S_LAG_LIMIT) return FC_ERR_FORMAT;
-        if (get64(hdr + 24) != 0 || get64(hdr + 32) != 0) return FC_ERR_FORMAT;
+        if (fc__get64(hdr + 24) != 0 || fc__get64(hdr + 32) != 0) return FC_ERR_FORMAT;
     } else if (kind == FC_S_KIND_RULE) {
         if (klen != 0) return FC_ERR_FORMAT;
         if (fc__check_rule(rule, order, step) != FC_OK) return FC_ERR_FORMAT;
@@ -1692,11 +1656,11 @@ static int ex_load(const unsigned char *q, size_t p, uint32_t kind, int rule,
     /* the previous / first sample fields against the samples: trapezoid
        keeps x_0 (= u_0; 0 before any sample), L1 the previous sample (free
        once there is one; 0 before) and u_0 = 0; unused fields are 0 */
-    int trap = kind == FC_S_KIND_RULE && rule == FC_RULE_TRAPEZOID;
-    int l1 = kind == FC_S_KIND_RULE && rule == FC_RULE_L1;
+    int trap = kind == FC_S_KIND_RULE && fc__rule_has_x0(rule);
+    int l1 = kind == FC_S_KIND_RULE && fc__rule_uses_differences(rule);
     for (size_t c = 0; c < C; c++) {
-        uint64_t xp = get64(xq + 8 * c), x0 = get64(x0q + 8 * c);
-        uint64_t u0 = n > 0 ? get64(uq + 8 * (size_t)(c * n)) : 0;
+        uint64_t xp = fc__get64(xq + 8 * c), x0 = fc__get64(x0q + 8 * c);
+        uint64_t u0 = n > 0 ? fc__get64(uq + 8 * (size_t)(c * n)) : 0;
         if (trap ? x0 != u0 : x0 != 0) return FC_ERR_FORMAT;
         if ((!l1 || n == 0) && xp != 0) return FC_ERR_FORMAT;
         if (l1 && u0 != 0) return FC_ERR_FORMAT;
@@ -1718,8 +1682,8 @@ static int ex_load(const unsigned char *q, size_t p, uint32_t kind, int rule,
     }
     fc_stream_free(old);
     for (size_t c = 0; c < C; c++) {
-        s->xprev[c] = getd(xq + 8 * c);
-        s->x0[c] = getd(x0q + 8 * c);
+        s->xprev[c] = fc__getd(xq + 8 * c);
+        s->x0[c] = fc__getd(x0q + 8 * c);
     }
     *out = s;
     return FC_OK;
@@ -1731,18 +1695,18 @@ int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out)
     if (!buf || !out) return FC_ERR_NULL;
     if (size < FC_S_HDR) return FC_ERR_FORMAT;
     if (memcmp(buf, fc_s_magic, 8) != 0) return FC_ERR_FORMAT;
-    if (get32(buf + 8) != FC_S_FMT_VERSION) return FC_ERR_FORMAT;
-    uint64_t p = get64(buf + 64);
+    if (fc__get32(buf + 8) != FC_S_FMT_VERSION) return FC_ERR_FORMAT;
+    uint64_t p = fc__get64(buf + 64);
     if (p != (uint64_t)(size - FC_S_HDR)) return FC_ERR_FORMAT;
-    uint64_t h = fnv1a(FNV_OFFSET, buf, 72);
-    h = fnv1a(h, buf + FC_S_HDR, (size_t)p);
-    if (h != get64(buf + 72)) return FC_ERR_FORMAT;
+    uint64_t h = fc__fnv1a(FC__FNV_OFFSET, buf, 72);
+    h = fc__fnv1a(h, buf + FC_S_HDR, (size_t)p);
+    if (h != fc__get64(buf + 72)) return FC_ERR_FORMAT;
 
-    uint32_t mode = get32(buf + 12), kind = get32(buf + 16);
-    int rule = (int)(int32_t)get32(buf + 20);
-    double order = getd(buf + 24), step = getd(buf + 32);
-    uint64_t C64 = get64(buf + 40);
-    double tol = getd(buf + 48), horizon = getd(buf + 56);
+    uint32_t mode = fc__get32(buf + 12), kind = fc__get32(buf + 16);
+    int rule = (int)(int32_t)fc__get32(buf + 20);
+    double order = fc__getd(buf + 24), step = fc__getd(buf + 32);
+    uint64_t C64 = fc__get64(buf + 40);
+    double tol = fc__getd(buf + 48), horizon = fc__getd(buf + 56);
     const unsigned char *q = buf + FC_S_HDR;
     fc_stream *s = NULL;
 
@@ -1760,6 +1724,8 @@ int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out)
         s->mode = FC_MODE_COMPRESSED;
         s->kind = FC_S_KIND_RULE;
         s->rule = rule;
+        s->x0corr = fc__rule_has_x0(rule);
+        s->diffs = fc__rule_uses_differences(rule);
         s->order = order;
         s->step = step;
         s->tol = tol;

@@ -3,6 +3,12 @@
  */
 #include "internal.h"
 
+/* FC_VERSION_NUMBER is a literal (cffi reads it) that must follow the
+   three numbers. */
+_Static_assert(FC_VERSION_NUMBER == FC_VERSION_MAJOR * 10000 +
+               FC_VERSION_MINOR * 100 + FC_VERSION_PATCH,
+               "FC_VERSION_NUMBER does not match FC_VERSION_MAJOR/MINOR/PATCH");
+
 int fc_version(void)
 {
     return FC_VERSION_NUMBER;

@@ -400,12 +400,13 @@ static void pow_step(double h, double e, long double *m, long *E)
    start weights) as M 2^E, 0.5 <= M < 1. */
 void fc__rule_scale(int kind, double a, double h, long double *M, long *E)
 {
-    long double la = a, m, g;
-    switch (kind) {
-    case FC_RULE_RECTANGLE: pow_step(h, a, &m, E); g = rgamma1p(la); break;
-    case FC_RULE_GRUNWALD: pow_step(h, -a, &m, E); g = 1.0L; break;
-    case FC_RULE_L1: pow_step(h, -a, &m, E); g = rgamma1p(1.0L - la); break;
-    default: pow_step(h, a, &m, E); g = rgamma1p(1.0L + la); break;
+    long double la = a, m = 1.0L, g = 1.0L;
+    *E = 0;
+    switch (fc__weight_scale(kind)) {
+    case FC__SCALE_HA_G1: pow_step(h, a, &m, E); g = rgamma1p(la); break;
+    case FC__SCALE_HA_G2: pow_step(h, a, &m, E); g = rgamma1p(1.0L + la); break;
+    case FC__SCALE_HNA: pow_step(h, -a, &m, E); g = 1.0L; break;
+    case FC__SCALE_HNA_G2MA: pow_step(h, -a, &m, E); g = rgamma1p(1.0L - la); break;
     }
     int k;
     *M = frexpl(m * g, &k);
@@ -549,10 +550,8 @@ static void grunwald_fill(double a, uint64_t start, size_t count, double s,
 static int check_args(int rule, double a, double h, uint64_t start,
                       size_t count, const double *out)
 {
-    if (rule < FC_RULE_RECTANGLE || rule > FC_RULE_L1) return FC_ERR_RULE;
-    if (!isfinite(a) || a <= 0.0 || a > 10.0) return FC_ERR_ORDER;
-    if (rule == FC_RULE_L1 && a >= 1.0) return FC_ERR_ORDER;
-    if (!isfinite(h) || h <= 0.0) return FC_ERR_STEP;
+    int st = fc__check_rule(rule, a, h);
+    if (st != FC_OK) return st;
     if (start > FC_INDEX_LIMIT || (uint64_t)count > FC_INDEX_LIMIT - start)
         return FC_ERR_INDEX;
     if (out == NULL && count > 0) return FC_ERR_NULL;
@@ -566,13 +565,7 @@ static int check_args(int rule, double a, double h, uint64_t start,
 static void fill_unit(int kind, double a, uint64_t start, size_t count,
                       double s, double *out)
 {
-    switch (kind) {
-    case FC_RULE_RECTANGLE: first_diff_fill(a, 0, start, count, s, out); break;
-    case FC_RULE_L1: first_diff_fill(a, 1, start, count, s, out); break;
-    case FC_RULE_TRAPEZOID: trapezoid_fill(a, start, count, s, out); break;
-    case FC_RULE_GRUNWALD: grunwald_fill(a, start, count, s, out); break;
-    default: trapezoid_start_fill(a, start, count, s, out); break;
-    }
+    fc__weight_seq(kind)->fill(a, start, count, s, out);
 }
 
 void fc__unit_weights(int kind, double a, uint64_t start, size_t count,
@@ -591,14 +584,34 @@ void fc__unit_weights(int kind, double a, uint64_t start, size_t count,
 double fc__unit_log2_bound(int kind, double a, uint64_t M)
 {
     double l = log2((double)(M < 1 ? 1 : M));
-    switch (kind) {
-    case FC_RULE_RECTANGLE: return a * l + 1.0;
-    case FC_RULE_L1: return 1.0;
-    case FC_RULE_TRAPEZOID: return (a + 1.0) * l + 2.0;
-    case FC_RULE_GRUNWALD: return 12.0;
-    default: return (a + 1.0) * l + 6.0;
-    }
+    return fc__weight_seq(kind)->log2_bound(a, l);
 }
+
+/*
+ * The weight sequences the rule table (rules.c) points to: filler and
+ * bound of each (l = log2 of the index limit).
+ */
+static void rectangle_fill(double a, uint64_t start, size_t count, double s,
+                           double *out)
+{
+    first_diff_fill(a, 0, start, count, s, out);
+}
+static void l1_fill(double a, uint64_t start, size_t count, double s,
+                    double *out)
+{
+    first_diff_fill(a, 1, start, count, s, out);
+}
+static double rectangle_bound(double a, double l) { return a * l + 1.0; }
+static double l1_bound(double a, double l) { (void)a; (void)l; return 1.0; }
+static double trapezoid_bound(double a, double l) { return (a + 1.0) * l + 2.0; }
+static double grunwald_bound(double a, double l) { (void)a; (void)l; return 12.0; }
+static double trapezoid_start_bound(double a, double l) { return (a + 1.0) * l + 6.0; }
+
+const fc__wseq fc__seq_rectangle = {rectangle_fill, rectangle_bound};
+const fc__wseq fc__seq_trapezoid = {trapezoid_fill, trapezoid_bound};
+const fc__wseq fc__seq_trapezoid_start = {trapezoid_start_fill, trapezoid_start_bound};
+const fc__wseq fc__seq_grunwald = {grunwald_fill, grunwald_bound};
+const fc__wseq fc__seq_l1 = {l1_fill, l1_bound};
 
 /* w M 2^E rounded to double (overflow to inf, gradual underflow). */
 double fc__scale_value(double w, long double M, long E)

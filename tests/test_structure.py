@@ -1,0 +1,249 @@
+"""The structure of the C library as a C team sees it.
+
+- The shared object exports only the public names: make builds it with
+  -fvisibility=hidden and fracconv.h marks each public function FC_API, so
+  that ``nm -D`` lists exactly the header's functions, all named fc_
+  (never a private fc__ helper); the shared object carries a SONAME and
+  the usual symlinks.
+- Every prototype in the header's cffi block is preceded by a comment
+  "Statuses:" naming the statuses it can return, each a status the header
+  defines.
+- The rule table (fc_rule_info, fc_rule_order_range) states the ranges the
+  header's documentation gives (the comments of fc_weights and
+  fc_stream_create in csrc/fracconv.h, the published contract), and
+  fc_apply, exact and compressed fc_stream_create accept an order at each
+  inclusive end and just inside each exclusive one and refuse it with
+  FC_ERR_ORDER at each exclusive end and just beyond every end (the one
+  order 5e-324 just above 0 passes the order check but an exact stream
+  refuses it with FC_ERR_RANGE: its weights are not normal doubles).
+Checks of the project against its own header: no outside source.
+"""
+
+import math
+import os
+import re
+import shutil
+import subprocess
+
+import numpy as np
+import pytest
+
+from pyfracconv import _core
+from pyfracconv._fracconv import ffi, lib
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+HEADER = os.path.join(ROOT, "csrc", "fracconv.h")
+
+
+@pytest.fixture(autouse=True)
+def _sources():
+    if not os.path.exists(os.path.join(ROOT, "Makefile")):
+        pytest.fail("these checks need the source checkout (Makefile)")
+
+
+def header_text():
+    with open(HEADER, encoding="utf-8") as fh:
+        return fh.read()
+
+
+def cdef_block():
+    text = header_text()
+    m = re.search(r"/\* FC_CDEF_BEGIN \*/(.*)/\* FC_CDEF_END \*/", text, re.S)
+    assert m is not None
+    return m.group(1)
+
+
+def prototypes(block):
+    """(name, return type, start offset) of every FC_API declaration."""
+    return [(m.group(2), m.group(1).strip(), m.start())
+            for m in re.finditer(r"^FC_API\s+([A-Za-z_ ]+?\**)\s*(fc_\w+)\(", block, re.M)]
+
+
+# ------------------------------------------------------------ exported names
+
+@pytest.fixture(scope="module")
+def shared_object(tmp_path_factory):
+    if shutil.which("nm") is None:
+        pytest.skip("nm (binutils) is not installed: the exported names cannot be listed")
+    build = tmp_path_factory.mktemp("cbuild")
+    env = {k: v for k, v in os.environ.items() if k != "CFLAGS"}
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"],
+                   check=True, capture_output=True, text=True, env=env)
+    return build
+
+
+def test_shared_object_exports_only_the_public_functions(shared_object):
+    out = subprocess.run(["nm", "-D", "--defined-only", str(shared_object / "libfracconv.so")],
+                         check=True, capture_output=True, text=True).stdout
+    names = set()
+    for line in out.splitlines():
+        parts = line.split()
+        if len(parts) == 3 and parts[1] in "TtWwDdBbRrVvi":
+            names.add(parts[2])
+    assert names, out
+    bad = sorted(n for n in names if not n.startswith("fc_") or n.startswith("fc__"))
+    assert bad == [], f"names exported beside the public ones: {bad}"
+    declared = {name for name, _, _ in prototypes(cdef_block())}
+    assert names == declared
+
+
+def test_shared_object_has_soname_and_symlinks(shared_object):
+    text = header_text()
+    v = [re.search(rf"^#define FC_VERSION_{k} (\d+)", text, re.M).group(1)
+         for k in ("MAJOR", "MINOR", "PATCH")]
+    so = shared_object / "libfracconv.so"
+    assert os.readlink(so) == f"libfracconv.so.{v[0]}"
+    assert os.readlink(shared_object / f"libfracconv.so.{v[0]}") == f"libfracconv.so.{'.'.join(v)}"
+    if shutil.which("readelf") is None:
+        pytest.skip("readelf is not installed: the SONAME cannot be read")
+    dyn = subprocess.run(["readelf", "-d", str(so)], check=True, capture_output=True,
+                         text=True).stdout
+    assert f"Library soname: [libfracconv.so.{v[0]}]" in dyn
+
+
+# ------------------------------------------------------- statuses in the header
+
+def test_every_prototype_names_its_statuses():
+    block = cdef_block()
+    defined = set(re.findall(r"^#define (FC_(?:OK|ERR_\w+)) ", block, re.M))
+    protos = prototypes(block)
+    assert len(protos) >= 40
+    for name, ret, start in protos:
+        # the comment line directly above the declaration
+        before = block[:start].rstrip("\n").splitlines()[-1]
+        m = re.fullmatch(r"/\* Statuses: (.*)\. \*/", before.strip())
+        assert m, f"{name}: no 'Statuses:' comment directly above it"
+        named = set(re.findall(r"\bFC_(?:OK|ERR_[A-Z]+)\b", m.group(1)))
+        assert named <= defined, f"{name}: unknown statuses {named - defined}"
+        if ret == "int" and name != "fc_version":
+            assert "FC_OK" in named and len(named) >= 2, name
+        else:
+            assert m.group(1).startswith("none"), name
+
+
+def test_the_cffi_declarations_carry_no_visibility_macro():
+    import importlib.util
+    spec = importlib.util.spec_from_file_location("setup_build", os.path.join(ROOT, "setup_build.py"))
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    cdef = mod.read_cdef()
+    assert "FC_API" not in cdef
+    assert "int fc_rule_order_range(" in cdef
+
+
+# ------------------------------------------------------------------ rule table
+
+# The ranges fracconv.h documents (fc_weights: 0 < order <= 10, L1:
+# 0 < order < 1; fc_stream_create, compressed: 1e-280 <= order < 1, and
+# 1 <= order < 2 too for the rectangle rule), as
+# (lo, lo_inclusive, hi, hi_inclusive).
+DOC_EXACT = {"rectangle": (0.0, 0, 10.0, 1), "trapezoid": (0.0, 0, 10.0, 1),
+             "grunwald": (0.0, 0, 10.0, 1), "l1": (0.0, 0, 1.0, 0)}
+DOC_COMPRESSED = {"rectangle": (1e-280, 1, 2.0, 0), "trapezoid": (1e-280, 1, 1.0, 0),
+                  "grunwald": (1e-280, 1, 1.0, 0), "l1": (1e-280, 1, 1.0, 0)}
+
+
+def rule_info(rule):
+    name = ffi.new("char **")
+    der = ffi.new("int *")
+    st = lib.fc_rule_info(rule, ffi.cast("const char **", name), der)
+    return st, (ffi.string(name[0]).decode() if st == lib.FC_OK else None), der[0]
+
+
+def order_range(rule, mode):
+    lo, hi = ffi.new("double *"), ffi.new("double *")
+    li, hinc = ffi.new("int *"), ffi.new("int *")
+    st = lib.fc_rule_order_range(rule, mode, lo, li, hi, hinc)
+    return st, (lo[0], li[0], hi[0], hinc[0])
+
+
+def rules():
+    n = ffi.new("int *")
+    assert lib.fc_rule_count(n) == lib.FC_OK
+    return range(n[0])
+
+
+def test_rule_table_names_kinds_and_numbers():
+    seen = {}
+    for r in rules():
+        st, name, der = rule_info(r)
+        assert st == lib.FC_OK
+        seen[name] = (r, der)
+    # the numbers are part of the save format: the header's constants
+    assert {k: v[0] for k, v in seen.items()} == {
+        "rectangle": lib.FC_RULE_RECTANGLE, "trapezoid": lib.FC_RULE_TRAPEZOID,
+        "grunwald": lib.FC_RULE_GRUNWALD, "l1": lib.FC_RULE_L1}
+    assert {k: v[0] for k, v in seen.items()} == _core.RULES
+    assert sorted(k for k, v in seen.items() if not v[1]) == sorted(_core.INTEGRAL_RULES)
+    assert sorted(k for k, v in seen.items() if v[1]) == sorted(_core.DERIVATIVE_RULES)
+
+
+def test_unknown_rules_and_modes_are_refused():
+    count = len(rules())
+    for r in (-1, count, count + 1, 2**31 - 1):
+        assert rule_info(r)[0] == lib.FC_ERR_RULE
+        assert order_range(r, lib.FC_MODE_EXACT)[0] == lib.FC_ERR_RULE
+        out = ffi.new("fc_stream **")
+        assert lib.fc_stream_create(r, 0.5, 1.0, 1, lib.FC_MODE_EXACT, 0, 0, out) == lib.FC_ERR_RULE
+        x = np.zeros(4)
+        y = np.zeros(4)
+        assert lib.fc_apply(ffi.NULL, r, 0.5, 1.0, ffi.from_buffer("double[]", x), 1, 4,
+                            lib.FC_ENGINE_DIRECT, ffi.from_buffer("double[]", y)) == lib.FC_ERR_RULE
+    assert order_range(0, 2)[0] == lib.FC_ERR_MODE
+    assert order_range(0, -1)[0] == lib.FC_ERR_MODE
+
+
+def test_rule_table_ranges_are_the_documented_ones():
+    for r in rules():
+        name = rule_info(r)[1]
+        assert order_range(r, lib.FC_MODE_EXACT) == (lib.FC_OK, DOC_EXACT[name])
+        assert order_range(r, lib.FC_MODE_COMPRESSED) == (lib.FC_OK, DOC_COMPRESSED[name])
+
+
+def _apply(rule, order):
+    x = np.linspace(0.0, 1.0, 8)
+    y = np.zeros(8)
+    return lib.fc_apply(ffi.NULL, rule, order, 0.5, ffi.from_buffer("double[]", x), 1, 8,
+                        lib.FC_ENGINE_DIRECT, ffi.from_buffer("double[]", y))
+
+
+def _create(rule, order, mode):
+    out = ffi.new("fc_stream **")
+    st = lib.fc_stream_create(rule, order, 0.5, 1, mode, 1e-6, 100.0, out)
+    if st == lib.FC_OK:
+        lib.fc_stream_free(out[0])
+    return st
+
+
+def _probes(lo, li, hi, hinc):
+    """(order, accepted) at and beyond both ends."""
+    yield lo, bool(li)
+    yield math.nextafter(lo, -math.inf), False
+    if not li:
+        yield math.nextafter(lo, math.inf), True
+    yield hi, bool(hinc)
+    yield math.nextafter(hi, math.inf), False
+    if not hinc:
+        yield math.nextafter(hi, -math.inf), True
+
+
+@pytest.mark.parametrize("mode", ["exact", "compressed"])
+def test_engines_accept_exactly_the_table_ranges(mode):
+    m = lib.FC_MODE_EXACT if mode == "exact" else lib.FC_MODE_COMPRESSED
+    for r in rules():
+        st, rng = order_range(r, m)
+        assert st == lib.FC_OK
+        for order, accepted in _probes(*rng):
+            got = [_create(r, order, m)]
+            if mode == "exact":
+                got.append(_apply(r, order))
+            for g in got:
+                if accepted:
+                    # past the order check; an exact stream at a subnormal
+                    # order still refuses with FC_ERR_RANGE (its weights
+                    # leave the normal range, as fc_stream_push documents)
+                    assert g in (lib.FC_OK, lib.FC_ERR_RANGE), (rule_info(r)[1], mode, order, g)
+                    if order >= 1e-300:
+                        assert g == lib.FC_OK, (rule_info(r)[1], mode, order, g)
+                else:
+                    assert g == lib.FC_ERR_ORDER, (rule_info(r)[1], mode, order, g)
