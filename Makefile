@@ -12,7 +12,7 @@ HDRS = $(wildcard csrc/*.h)
 BENCH_SRCS = $(wildcard bench/c/*.c)
 BENCH_BINS = $(patsubst bench/c/%.c,$(BUILD)/%,$(BENCH_SRCS))
 
-.PHONY: all lib example bench-c check-c clean
+.PHONY: all lib example solver-example bench-c check-c clean
 
 all: lib example
 
@@ -34,12 +34,18 @@ example: $(BUILD)/example
 $(BUILD)/example: examples/example.c csrc/fracconv.h $(BUILD)/libfracconv.a
 	$(CC) -O2 -std=c11 -Wall -Wextra -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
 
+# The solver example (tests/test_solver_c.py builds and runs it).
+solver-example: $(BUILD)/solver_example
+$(BUILD)/solver_example: examples/solver_example.c csrc/fracconv.h $(BUILD)/libfracconv.a
+	$(CC) -O2 -std=c11 -Wall -Wextra -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
+
 bench-c: $(BENCH_BINS)
 $(BUILD)/%: bench/c/%.c csrc/fracconv.h $(BUILD)/libfracconv.a
 	$(CC) -O2 -std=c11 -Wall -Wextra -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
 
-check-c: example
+check-c: example solver-example
 	$(BUILD)/example
+	$(BUILD)/solver_example
 
 clean:
 	rm -rf $(BUILD)

@@ -58,11 +58,44 @@ def compile_args():
     return flags["FC_OPT_CFLAGS"] + flags["FC_STD_CFLAGS"]
 
 
+# Python functions the C solver calls back (pyfracconv/solve.py defines
+# them with ffi.def_extern); declared here, after the header's block, since
+# the header is plain C.
+PYTHON_CALLBACKS = """
+extern "Python" int _fc_py_rhs(double, const double *, double *, void *);
+extern "Python" double _fc_py_rhs1(double, double, void *);
+extern "Python" int _fc_py_jac(double, const double *, double *, void *);
+int _fc_py_rhs1_bridge(double, const double *, double *, void *);
+int _fc_py_advance(fc_solver *, size_t, double *, double *, size_t *);
+"""
+# A scalar rhs is called as double f(double t, double y, void *user): fewer
+# objects to build per call than pointers. A Python failure returns NaN
+# (which the solver reports as non-finite; the Python side then finds the
+# recorded failure). The bridge has the solver's callback signature.
+BRIDGE_SOURCE = """
+static double _fc_py_rhs1(double, double, void *);
+int _fc_py_rhs1_bridge(double t, const double *y, double *f, void *user)
+{
+    f[0] = _fc_py_rhs1(t, y[0], user);
+    return 0;
+}
+/* fc_solver_advance with the GIL held for the whole run (cffi releases it
+   around every call): each Python callback then finds it held and does
+   not take it again, which is most of the cost of a callback. */
+int _fc_py_advance(fc_solver *s, size_t n, double *t, double *y, size_t *done)
+{
+    PyGILState_STATE g = PyGILState_Ensure();
+    int st = fc_solver_advance(s, n, t, y, done);
+    PyGILState_Release(g);
+    return st;
+}
+"""
+
 ffibuilder = FFI()
-ffibuilder.cdef(read_cdef())
+ffibuilder.cdef(read_cdef() + PYTHON_CALLBACKS)
 ffibuilder.set_source(
     "pyfracconv._fracconv",
-    '#include "fracconv.h"\n',
+    '#include "fracconv.h"\n' + BRIDGE_SOURCE,
     sources=c_sources(),
     include_dirs=["csrc"],
     extra_compile_args=compile_args(),

@@ -350,6 +350,116 @@ int fc_stream_order(const fc_stream *s, double *order);
 int fc_stream_step(const fc_stream *s, double *step);
 int fc_stream_tol(const fc_stream *s, double *tol);
 int fc_stream_horizon(const fc_stream *s, double *horizon);
+/*
+ * Solver: Caputo initial value problems
+ *     D^a_i y_i = f_i(t, y),   y_i^(k)(t0) = y0_{k,i},  k < ceil(a_i),
+ * for y of m components, 0 < a_i <= 2 (one order per component; equal
+ * orders share streams), written as the Volterra equation
+ *     y(t) = T(t) + I^a [f(., y(.))](t),
+ * T the Taylor polynomial of the initial values (Diethelm 2010). Every
+ * method is one of the library's integral rules applied to f along the
+ * solution on the grid t_n = t0 + n*step; the history sums of the f values
+ * are kept by streams (exact or compressed).
+ *
+ * Methods:
+ *   FC_METHOD_RECTANGLE  explicit product rectangle rule (order 1):
+ *                        y_{n+1} = T_{n+1} + rectangle history
+ *   FC_METHOD_PC         predictor-corrector of Diethelm, Ford and Freed
+ *                        2002: rectangle predictor, product trapezoidal
+ *                        corrector, `corrections` corrector passes
+ *                        (default 1); order min(2, 1+a) for smooth y
+ *   FC_METHOD_TRAPEZOID  implicit product trapezoidal rule (Garrappa
+ *                        2015): y = T + trapezoid history + w0 f(t, y)
+ *                        solved by Newton's method with the user Jacobian
+ *                        or a forward-difference one
+ *   FC_METHOD_IMPLICIT_RECTANGLE  implicit product rectangle rule (right
+ *                        end points, order 1): y = T + history + u f(t, y),
+ *                        u = h^a/Gamma(a+1), solved like FC_METHOD_TRAPEZOID;
+ *                        strongly damped, for stiff problems with
+ *                        non-smooth solutions; FC_MODE_EXACT only, and
+ *                        `horizon` is required, 1 <= horizon <= 2^28: the
+ *                        steps it can take (its kernel of floor(horizon)+1
+ *                        weights is allocated at creation and at load)
+ * Memory: FC_MODE_EXACT (streams keep every f value) or FC_MODE_COMPRESSED
+ * (bounded memory, tol and horizon as for fc_stream_create, horizon counted
+ * in steps; the trapezoid rule, used by FC_METHOD_PC and
+ * FC_METHOD_TRAPEZOID, is refused for orders >= 1 (FC_ERR_ORDER), and
+ * FC_METHOD_RECTANGLE needs orders < 2).
+ *
+ * Callbacks: rhs(t, y[m], f[m], user) writes f(t, y); jac(t, y[m],
+ * J[m*m], user) writes J[i*m + j] = df_i/dy_j (row-major). A callback
+ * returning non-zero stops the advance (FC_ERR_CALLBACK); a non-finite f or
+ * J stops it with FC_ERR_NONFINITE. y and f point into buffers the solver
+ * owns for its whole life (the same addresses on every call).
+ */
+#define FC_METHOD_RECTANGLE 0
+#define FC_METHOD_PC 1
+#define FC_METHOD_TRAPEZOID 2
+#define FC_METHOD_IMPLICIT_RECTANGLE 3
+/* Solver status codes (fc_solver_strerror knows them and all others). */
+#define FC_ERR_CALLBACK 64   /* a callback returned non-zero */
+#define FC_ERR_NEWTON 65     /* Newton's method did not converge */
+#define FC_ERR_NORHS 66      /* no right-hand side set */
+
+typedef struct fc_solver fc_solver;
+typedef int (*fc_rhs_fn)(double t, const double *y, double *f, void *user);
+typedef int (*fc_jac_fn)(double t, const double *y, double *jac, void *user);
+
+/*
+ * m >= 1 components; orders[m]: finite, 0 < a <= 2; step: finite, > 0;
+ * t0 finite; init: K*m finite doubles, K = ceil(max order) (1 or 2),
+ * init[k*m + i] = y_i^(k)(t0) (row k = 1 is ignored for components of
+ * order <= 1 but must be finite); method FC_METHOD_*; memory FC_MODE_*;
+ * tol, horizon: as for fc_stream_create (ignored for FC_MODE_EXACT).
+ */
+int fc_solver_create(size_t m, const double *orders, double step, double t0,
+                     const double *init, int method, int memory, double tol,
+                     double horizon, fc_solver **out);
+void fc_solver_free(fc_solver *s);
+/* The right-hand side (required before advancing; fn != NULL) and the
+   Jacobian (fn == NULL: forward differences, m extra rhs calls each). */
+int fc_solver_set_rhs(fc_solver *s, fc_rhs_fn fn, void *user);
+int fc_solver_set_jacobian(fc_solver *s, fc_jac_fn fn, void *user);
+/* Newton's method of the implicit methods: stop when every residual
+   component |r_i| <= tol * (|y_i| + |c_i| + |w0_i f_i|), c the known part;
+   tol in [1e-15, 1e-2] (default 1e-12), 1 <= maxiter <= 1000 (default 50). */
+int fc_solver_set_newton(fc_solver *s, double tol, unsigned maxiter);
+/* Corrector passes of FC_METHOD_PC, 1 <= passes <= 100 (default 1). */
+int fc_solver_set_corrections(fc_solver *s, unsigned passes);
+/*
+ * Advance by nsteps steps. t_out: nsteps doubles or NULL; y_out:
+ * nsteps*m doubles (y_out[j*m + i] = y_i at the j-th new step) or NULL.
+ * *done gets the steps completed (always written when s and done are
+ * valid). FC_ERR_CALLBACK, FC_ERR_NONFINITE, FC_ERR_NEWTON stop the run:
+ * the *done completed steps are kept (and written to the buffers), the
+ * failing step is not; fc_solver_failure tells which step and time.
+ * Refused before any work (nothing changes, *done = 0): FC_ERR_NORHS,
+ * FC_ERR_HORIZON (compressed: step count would pass the horizon),
+ * FC_ERR_NOMEM (the streams' room for nsteps more samples).
+ */
+int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
+                      double *y_out, size_t *done);
+/* Current time t0 + n*step, state y[m], steps done, dimension m. */
+int fc_solver_time(const fc_solver *s, double *t);
+int fc_solver_state(const fc_solver *s, double *y);
+int fc_solver_steps(const fc_solver *s, uint64_t *n);
+int fc_solver_dim(const fc_solver *s, size_t *m);
+/* Calls of rhs (including those of difference Jacobians) and of jac. */
+int fc_solver_counts(const fc_solver *s, uint64_t *rhs_calls,
+                     uint64_t *jac_calls);
+/* The step index (n+1 for the step from t_n; 0 for f(t0, y0)) and time of
+   the last failed evaluation; *step = UINT64_MAX if none. */
+int fc_solver_failure(const fc_solver *s, uint64_t *step, double *t);
+/* Bytes of memory held (streams included). */
+int fc_solver_nbytes(const fc_solver *s, size_t *nbytes);
+/* Save / load: little-endian, versioned, FNV-1a 64 checksummed; streams
+   embedded as fc_stream_save blobs. A loaded solver has no callbacks. */
+int fc_solver_save_size(const fc_solver *s, size_t *size);
+int fc_solver_save(const fc_solver *s, unsigned char *buf, size_t size,
+                   size_t *written);
+int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out);
+/* Static message for any status code (the solver's and fc_strerror's). */
+const char *fc_solver_strerror(int status);
 /* FC_CDEF_END */
 
 #ifdef __cplusplus

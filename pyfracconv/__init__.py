@@ -25,6 +25,7 @@ __version__ = "0.1.0"
 c_version = _ffi.string(_lib.fc_version_string()).decode()
 
 from .stream import Stream
+from .solve import NewtonError, RhsError, SolveResult, SolverError, Stepper, solve
 
 __all__ = [
     "weights",
@@ -33,6 +34,12 @@ __all__ = [
     "derivative",
     "get_include",
     "Stream",
+    "solve",
+    "Stepper",
+    "SolveResult",
+    "SolverError",
+    "RhsError",
+    "NewtonError",
     "FracconvError",
     "ArgumentError",
     "SampleError",

@@ -1,0 +1,1060 @@
+/*
+ * solver.c -- Caputo initial value problems D^a y = f(t, y) solved as the
+ * Volterra equation y = T + I^a f(., y) with the library's product rules.
+ *
+ * Built only on the public interface (fracconv.h): the history sums of the
+ * f values are kept by fc_stream objects, one rectangle and/or one
+ * trapezoid stream per group of components sharing an order.
+ *
+ * Index conventions (csrc/fracconv.h, rules table). After step n the
+ * streams hold f_0 .. f_n (n+1 samples each), f_k = f(t_k, y_k):
+ *   rectangle history = output n+1 = u sum_{k<=n} b_{n-k} f_k
+ *     (the explicit product rectangle rule for y_{n+1});
+ *   trapezoid history = output n+1 - w0 f_{n+1}
+ *     = h^a/Gamma(a+2) (A_{n+1} f_0 + sum_{1<=k<=n} a_{n+1-k} f_k),
+ *     w0 = h^a/Gamma(a+2) (a_0 = 1).
+ * So the product trapezoidal rule for y_{n+1} is T_{n+1} + history + w0 f.
+ *
+ * The implicit product rectangle rule (right end points),
+ *   y_{n+1} = T_{n+1} + u sum_{k<=n} b_{n-k} f_{k+1},
+ * has no rule stream of that form (its lag-0 weight is u b_0 = u): it uses
+ * a kernel stream (fc_stream_create_kernel) with kernel u b_m, m <= horizon,
+ * fed with f_1, f_2, ...; after step n its history is
+ * u sum_{1<=k<=n} b_{n+1-k} f_k and y_{n+1} = T_{n+1} + history + u f.
+ * The solver keeps f_1 .. f_n itself for save/load (a kernel stream's blob
+ * cannot be checked against the kernel it should hold, so a loaded solver
+ * rebuilds the stream from the saved f values).
+ *
+ * Methods: Diethelm, Ford and Freed, Nonlinear Dynamics 29 (2002) 3-22
+ * (predictor-corrector); Garrappa, Math. Comput. Simul. 110 (2015) 96-112
+ * (implicit trapezoidal rule with Newton's method).
+ */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "fracconv.h"
+
+#define SV_MAGIC "FCSOLVE1"
+#define SV_VERSION 1u
+#define SV_HDR 112u
+
+typedef struct {
+    double order;
+    size_t nc;        /* components in the group */
+    size_t *idx;      /* their indices, increasing */
+    int ident;        /* the group is every component, in order */
+    fc_stream *rect;  /* NULL when the method does not need it */
+    fc_stream *trap;  /* the trapezoid stream, or the kernel stream of
+                         FC_METHOD_IMPLICIT_RECTANGLE */
+} sv_group;
+
+struct fc_solver {
+    size_t m;
+    int method, memory;
+    unsigned K;       /* rows of initial values: ceil(max order) */
+    double step, t0, tol, horizon;
+    double *orders;   /* m */
+    double *init;     /* K*m */
+    size_t ng;
+    sv_group *g;
+    /* state */
+    uint64_t n;       /* steps done */
+    int f0done;       /* f(t0, y0) evaluated and pushed */
+    uint64_t nrhs, njac;
+    double *y;        /* y_n */
+    /* settings (saved) */
+    double ntol;
+    unsigned nmax, passes;
+    /* callbacks (not saved) */
+    fc_rhs_fn rhs;
+    void *rhs_user;
+    fc_jac_fn jac;
+    void *jac_user;
+    /* diagnostics (not saved) */
+    uint64_t fail_step;
+    double fail_t;
+    uint64_t reserved; /* samples the streams have room for */
+    int busy;
+    /* work space */
+    double *w0;       /* m: trapezoid lag-0 weight of each component */
+    double *hr, *ht;  /* m: rectangle and trapezoid histories */
+    double *c;        /* m: known part of the implicit equation */
+    double *yc, *fc;  /* m: the buffers passed to the callbacks */
+    double *fs;       /* m: saved f (difference Jacobian) */
+    double *r;        /* m: Newton residual */
+    double *J;        /* m*m */
+    size_t *piv;      /* m */
+    double *gb;       /* m: gather buffer */
+    double *fh;       /* implicit rectangle: f_1 .. f_n, row-major (n x m) */
+    size_t fhcap;     /* rows allocated */
+};
+
+/* ------------------------------------------------------------ helpers */
+
+static int mul_size(size_t a, size_t b, size_t *r)
+{
+    if (b != 0 && a > (size_t)-1 / b) return FC_ERR_SIZE;
+    *r = a * b;
+    return FC_OK;
+}
+
+static int add_size(size_t a, size_t b, size_t *r)
+{
+    if (a > (size_t)-1 - b) return FC_ERR_SIZE;
+    *r = a + b;
+    return FC_OK;
+}
+
+static int all_finite(const double *x, size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        if (!isfinite(x[i])) return 0;
+    return 1;
+}
+
+static int needs_rect(int method)
+{
+    return method == FC_METHOD_RECTANGLE || method == FC_METHOD_PC;
+}
+/* the second stream slot: trapezoid or (implicit rectangle) kernel */
+static int needs_trap(int method) { return method != FC_METHOD_RECTANGLE; }
+static int is_implicit(int method)
+{
+    return method == FC_METHOD_TRAPEZOID || method == FC_METHOD_IMPLICIT_RECTANGLE;
+}
+
+static int check_params(size_t m, const double *orders, double step,
+                        double t0, int method, int memory, double tol,
+                        double horizon, unsigned *K)
+{
+    if (m == 0) return FC_ERR_SIZE;
+    if (!(step > 0.0) || !isfinite(step)) return FC_ERR_STEP;
+    if (!isfinite(t0)) return FC_ERR_ARG;
+    if (method != FC_METHOD_RECTANGLE && method != FC_METHOD_PC &&
+        method != FC_METHOD_TRAPEZOID && method != FC_METHOD_IMPLICIT_RECTANGLE)
+        return FC_ERR_RULE;
+    if (memory != FC_MODE_EXACT && memory != FC_MODE_COMPRESSED)
+        return FC_ERR_MODE;
+    if (method == FC_METHOD_IMPLICIT_RECTANGLE) {
+        if (memory != FC_MODE_EXACT) return FC_ERR_MODE;
+        if (!(horizon >= 1.0 && horizon <= 268435456.0)) return FC_ERR_TOL;
+    }
+    double amax = 0.0;
+    for (size_t i = 0; i < m; i++) {
+        double a = orders[i];
+        if (!(a > 0.0 && a <= 2.0)) return FC_ERR_ORDER;
+        if (memory == FC_MODE_COMPRESSED) {
+            if (method != FC_METHOD_RECTANGLE && a >= 1.0) return FC_ERR_ORDER;
+            if (a >= 2.0) return FC_ERR_ORDER;
+        }
+        if (a > amax) amax = a;
+    }
+    if (memory == FC_MODE_COMPRESSED &&
+        (!(tol >= 1e-15 && tol <= 1e-2) || !(horizon >= 1.0) ||
+         !(horizon <= 9007199254740990.0)))
+        return FC_ERR_TOL;
+    *K = amax > 1.0 ? 2u : 1u;
+    return FC_OK;
+}
+
+static void free_groups(sv_group *g, size_t ng)
+{
+    if (!g) return;
+    for (size_t j = 0; j < ng; j++) {
+        free(g[j].idx);
+        fc_stream_free(g[j].rect);
+        fc_stream_free(g[j].trap);
+    }
+    free(g);
+}
+
+static void free_solver(fc_solver *s)
+{
+    if (!s) return;
+    free_groups(s->g, s->ng);
+    free(s->orders); free(s->init); free(s->y); free(s->w0);
+    free(s->hr); free(s->ht); free(s->c); free(s->yc); free(s->fc);
+    free(s->fs); free(s->r); free(s->J); free(s->piv); free(s->gb);
+    free(s->fh);
+    free(s);
+}
+
+void fc_solver_free(fc_solver *s)
+{
+    free_solver(s);
+}
+
+/* The solver's memory without streams; groups by order (first appearance
+   order); the parameters were checked. */
+static int build(size_t m, const double *orders, double step, double t0,
+                 const double *init, int method, int memory, double tol,
+                 double horizon, unsigned K, fc_solver **out)
+{
+    size_t vb, mm, kb;
+    if (mul_size(m, sizeof(double), &vb) || mul_size(m, m, &mm) ||
+        mul_size(mm, sizeof(double), &mm) || mul_size(vb, K, &kb))
+        return FC_ERR_SIZE;
+    fc_solver *s = calloc(1, sizeof *s);
+    if (!s) return FC_ERR_NOMEM;
+    s->m = m; s->method = method; s->memory = memory; s->K = K;
+    s->step = step; s->t0 = t0;
+    s->tol = memory == FC_MODE_COMPRESSED ? tol : 0.0;
+    s->horizon = memory == FC_MODE_COMPRESSED ||
+                 method == FC_METHOD_IMPLICIT_RECTANGLE ? horizon : 0.0;
+    s->ntol = 1e-12; s->nmax = 50; s->passes = 1;
+    s->fail_step = UINT64_MAX; s->fail_t = 0.0;
+    s->orders = malloc(vb); s->init = malloc(kb); s->y = malloc(vb);
+    s->w0 = malloc(vb); s->hr = calloc(m, sizeof(double));
+    s->ht = calloc(m, sizeof(double)); s->c = malloc(vb);
+    s->yc = malloc(vb); s->fc = calloc(m, sizeof(double)); s->fs = malloc(vb);
+    s->r = malloc(vb); s->gb = malloc(vb);
+    s->piv = calloc(m, sizeof(size_t));
+    s->J = is_implicit(method) ? malloc(mm) : malloc(sizeof(double));
+    if (!s->orders || !s->init || !s->y || !s->w0 || !s->hr || !s->ht ||
+        !s->c || !s->yc || !s->fc || !s->fs || !s->r || !s->gb || !s->piv ||
+        !s->J) {
+        free_solver(s);
+        return FC_ERR_NOMEM;
+    }
+    memcpy(s->orders, orders, vb);
+    memcpy(s->init, init, kb);
+    memcpy(s->y, init, vb);
+    /* groups */
+    size_t ng = 0;
+    for (size_t i = 0; i < m; i++) {
+        size_t j = 0;
+        for (; j < i; j++)
+            if (orders[j] == orders[i]) break;
+        if (j == i) ng++;
+    }
+    s->g = calloc(ng, sizeof(sv_group));
+    if (!s->g) { free_solver(s); return FC_ERR_NOMEM; }
+    s->ng = ng;
+    size_t gi = 0;
+    for (size_t i = 0; i < m; i++) {
+        size_t j = 0;
+        for (; j < i; j++)
+            if (orders[j] == orders[i]) break;
+        if (j != i) continue;
+        sv_group *g = &s->g[gi++];
+        g->order = orders[i];
+        for (size_t k = i; k < m; k++)
+            if (orders[k] == orders[i]) g->nc++;
+        g->idx = malloc(g->nc * sizeof(size_t));
+        if (!g->idx) { free_solver(s); return FC_ERR_NOMEM; }
+        size_t c = 0;
+        for (size_t k = i; k < m; k++)
+            if (orders[k] == orders[i]) g->idx[c++] = k;
+        g->ident = g->nc == m;
+        double w;
+        int st = method == FC_METHOD_IMPLICIT_RECTANGLE
+               ? fc_weights(FC_RULE_RECTANGLE, g->order, step, 0, 1, &w)
+               : fc_weights(FC_RULE_TRAPEZOID, g->order, step, 0, 1, &w);
+        if (st != FC_OK) { free_solver(s); return st; }
+        for (size_t k = 0; k < g->nc; k++) s->w0[g->idx[k]] = w;
+    }
+    *out = s;
+    return FC_OK;
+}
+
+/* The kernel stream of the implicit rectangle rule for group g. */
+static int make_kernel_stream(const fc_solver *s, const sv_group *g,
+                              fc_stream **out)
+{
+    double fl = floor(s->horizon);
+    if (fl + 1.0 > (double)((size_t)-1 / sizeof(double))) return FC_ERR_SIZE;
+    size_t K = (size_t)fl + 1;
+    double *k = malloc(K * sizeof(double));
+    if (!k) return FC_ERR_NOMEM;
+    int st = fc_weights(FC_RULE_RECTANGLE, g->order, s->step, 0, K, k);
+    if (st == FC_OK) st = fc_stream_create_kernel(k, K, g->nc, out);
+    free(k);
+    return st;
+}
+
+static int make_streams(fc_solver *s)
+{
+    int st = FC_OK;
+    for (size_t j = 0; j < s->ng && st == FC_OK; j++) {
+        sv_group *g = &s->g[j];
+        if (needs_rect(s->method))
+            st = fc_stream_create(FC_RULE_RECTANGLE, g->order, s->step, g->nc,
+                                  s->memory, s->tol, s->horizon, &g->rect);
+        if (st == FC_OK && s->method == FC_METHOD_IMPLICIT_RECTANGLE)
+            st = make_kernel_stream(s, g, &g->trap);
+        else if (st == FC_OK && needs_trap(s->method))
+            st = fc_stream_create(FC_RULE_TRAPEZOID, g->order, s->step, g->nc,
+                                  s->memory, s->tol, s->horizon, &g->trap);
+    }
+    return st;
+}
+
+int fc_solver_create(size_t m, const double *orders, double step, double t0,
+                     const double *init, int method, int memory, double tol,
+                     double horizon, fc_solver **out)
+{
+    unsigned K;
+    int st;
+    size_t km;
+    if (!orders || !init || !out) return FC_ERR_NULL;
+    if ((st = check_params(m, orders, step, t0, method, memory, tol, horizon,
+                           &K)) != FC_OK)
+        return st;
+    if (mul_size(m, K, &km)) return FC_ERR_SIZE;
+    if (!all_finite(init, km)) return FC_ERR_NONFINITE;
+    fc_solver *s;
+    if ((st = build(m, orders, step, t0, init, method, memory, tol, horizon,
+                    K, &s)) != FC_OK)
+        return st;
+    if ((st = make_streams(s)) != FC_OK) { free_solver(s); return st; }
+    *out = s;
+    return FC_OK;
+}
+
+/* ------------------------------------------------------------ settings */
+
+int fc_solver_set_rhs(fc_solver *s, fc_rhs_fn fn, void *user)
+{
+    if (!s || !fn) return FC_ERR_NULL;
+    if (s->busy) return FC_ERR_BUSY;
+    s->rhs = fn;
+    s->rhs_user = user;
+    return FC_OK;
+}
+
+int fc_solver_set_jacobian(fc_solver *s, fc_jac_fn fn, void *user)
+{
+    if (!s) return FC_ERR_NULL;
+    if (s->busy) return FC_ERR_BUSY;
+    s->jac = fn;
+    s->jac_user = fn ? user : NULL;
+    return FC_OK;
+}
+
+int fc_solver_set_newton(fc_solver *s, double tol, unsigned maxiter)
+{
+    if (!s) return FC_ERR_NULL;
+    if (!(tol >= 1e-15 && tol <= 1e-2)) return FC_ERR_TOL;
+    if (maxiter < 1 || maxiter > 1000) return FC_ERR_ARG;
+    if (s->busy) return FC_ERR_BUSY;
+    s->ntol = tol;
+    s->nmax = maxiter;
+    return FC_OK;
+}
+
+int fc_solver_set_corrections(fc_solver *s, unsigned passes)
+{
+    if (!s) return FC_ERR_NULL;
+    if (passes < 1 || passes > 100) return FC_ERR_ARG;
+    if (s->busy) return FC_ERR_BUSY;
+    s->passes = passes;
+    return FC_OK;
+}
+
+/* ------------------------------------------------------------ stepping */
+
+static int eval(fc_solver *s, double t, uint64_t stepi)
+{
+    s->nrhs++;
+    if (s->rhs(t, s->yc, s->fc, s->rhs_user) != 0) {
+        s->fail_step = stepi; s->fail_t = t;
+        return FC_ERR_CALLBACK;
+    }
+    if (!all_finite(s->fc, s->m)) {
+        s->fail_step = stepi; s->fail_t = t;
+        return FC_ERR_NONFINITE;
+    }
+    return FC_OK;
+}
+
+/* Push f (component order) into every stream; room was reserved, so the
+   pushes do not allocate and cannot fail on valid finite samples. */
+static int push_all(fc_solver *s, const double *f)
+{
+    double dummy[1];
+    for (size_t j = 0; j < s->ng; j++) {
+        sv_group *g = &s->g[j];
+        const double *x = f;
+        if (!g->ident) {
+            for (size_t k = 0; k < g->nc; k++) s->gb[k] = f[g->idx[k]];
+            x = s->gb;
+        }
+        double *yo = g->nc == 1 ? dummy : s->r; /* outputs unused */
+        int st;
+        if (g->rect) {
+            st = g->nc == 1 ? fc_stream_push1(g->rect, x[0], dummy)
+                            : fc_stream_push(g->rect, x, yo);
+            if (st != FC_OK) return st;
+        }
+        if (g->trap) {
+            st = g->nc == 1 ? fc_stream_push1(g->trap, x[0], dummy)
+                            : fc_stream_push(g->trap, x, yo);
+            if (st != FC_OK) return st;
+        }
+    }
+    return FC_OK;
+}
+
+static int histories(fc_solver *s)
+{
+    for (size_t j = 0; j < s->ng; j++) {
+        sv_group *g = &s->g[j];
+        int st;
+        if (g->rect) {
+            double *h = g->ident ? s->hr : s->gb;
+            if ((st = fc_stream_history(g->rect, h)) != FC_OK) return st;
+            if (!g->ident)
+                for (size_t k = 0; k < g->nc; k++) s->hr[g->idx[k]] = h[k];
+        }
+        if (g->trap) {
+            double *h = g->ident ? s->ht : s->gb;
+            if ((st = fc_stream_history(g->trap, h)) != FC_OK) return st;
+            if (!g->ident)
+                for (size_t k = 0; k < g->nc; k++) s->ht[g->idx[k]] = h[k];
+        }
+    }
+    return FC_OK;
+}
+
+/* Taylor polynomial of the initial values at t0 + j*step into out. */
+static void taylor(const fc_solver *s, uint64_t j, double *out)
+{
+    size_t m = s->m;
+    if (s->K == 1) {
+        memcpy(out, s->init, m * sizeof(double));
+        return;
+    }
+    double dt = (double)j * s->step;
+    for (size_t i = 0; i < m; i++)
+        out[i] = s->init[i] + (s->orders[i] > 1.0 ? s->init[m + i] * dt : 0.0);
+}
+
+/* LU with partial pivoting of the m x m matrix A (in place) and solve
+   A d = b (b overwritten by d). 0 if singular. */
+static int lu_solve(double *A, size_t m, size_t *piv, double *b)
+{
+    for (size_t k = 0; k < m; k++) {
+        size_t p = k;
+        double big = fabs(A[k * m + k]);
+        for (size_t i = k + 1; i < m; i++)
+            if (fabs(A[i * m + k]) > big) { big = fabs(A[i * m + k]); p = i; }
+        if (!(big > 0.0) || !isfinite(big)) return 0;
+        piv[k] = p;
+        if (p != k) {
+            for (size_t j = 0; j < m; j++) {
+                double tmp = A[k * m + j];
+                A[k * m + j] = A[p * m + j];
+                A[p * m + j] = tmp;
+            }
+            double tb = b[k]; b[k] = b[p]; b[p] = tb;
+        }
+        double d = A[k * m + k];
+        for (size_t i = k + 1; i < m; i++) {
+            double l = A[i * m + k] / d;
+            A[i * m + k] = l;
+            if (l != 0.0) {
+                for (size_t j = k + 1; j < m; j++) A[i * m + j] -= l * A[k * m + j];
+                b[i] -= l * b[k];
+            }
+        }
+    }
+    for (size_t k = m; k-- > 0;) {
+        double v = b[k];
+        for (size_t j = k + 1; j < m; j++) v -= A[k * m + j] * b[j];
+        b[k] = v / A[k * m + k];
+    }
+    return all_finite(b, m);
+}
+
+/* Newton's method for yc = c + w0 .* f(t, yc); on success yc and fc hold
+   the converged point and f there. */
+static int newton(fc_solver *s, double t, uint64_t stepi)
+{
+    size_t m = s->m;
+    int st;
+    for (unsigned it = 0;; it++) {
+        if ((st = eval(s, t, stepi)) != FC_OK) return st;
+        int ok = 1;
+        for (size_t i = 0; i < m; i++) {
+            double wf = s->w0[i] * s->fc[i];
+            double ri = s->yc[i] - s->c[i] - wf;
+            s->r[i] = ri;
+            if (!(fabs(ri) <= s->ntol * (fabs(s->yc[i]) + fabs(s->c[i]) + fabs(wf))))
+                ok = 0;
+        }
+        if (ok) return FC_OK;
+        if (it >= s->nmax) break;
+        /* Jacobian df/dy at yc into J */
+        if (s->jac) {
+            s->njac++;
+            if (s->jac(t, s->yc, s->J, s->jac_user) != 0) {
+                s->fail_step = stepi; s->fail_t = t;
+                return FC_ERR_CALLBACK;
+            }
+            if (!all_finite(s->J, m * m)) {
+                s->fail_step = stepi; s->fail_t = t;
+                return FC_ERR_NONFINITE;
+            }
+        }
+        else {
+            memcpy(s->fs, s->fc, m * sizeof(double));
+            for (size_t j = 0; j < m; j++) {
+                double yj = s->yc[j];
+                double d = 1.4901161193847656e-08 * (fabs(yj) > 1.0 ? fabs(yj) : 1.0);
+                volatile double yp = yj + d;
+                d = yp - yj;
+                s->yc[j] = yp;
+                st = eval(s, t, stepi);
+                s->yc[j] = yj;
+                if (st != FC_OK) return st;
+                for (size_t i = 0; i < m; i++)
+                    s->J[i * m + j] = (s->fc[i] - s->fs[i]) / d;
+            }
+            memcpy(s->fc, s->fs, m * sizeof(double));
+        }
+        /* A = I - diag(w0) J */
+        for (size_t i = 0; i < m; i++) {
+            for (size_t j = 0; j < m; j++) s->J[i * m + j] *= -s->w0[i];
+            s->J[i * m + i] += 1.0;
+        }
+        if (!lu_solve(s->J, m, s->piv, s->r)) break;
+        for (size_t i = 0; i < m; i++) s->yc[i] -= s->r[i];
+        if (!all_finite(s->yc, m)) break;
+    }
+    s->fail_step = stepi; s->fail_t = t;
+    return FC_ERR_NEWTON;
+}
+
+/* One step n -> n+1 into yc (and fc = f(t_{n+1}, y_{n+1})). */
+static int one_step(fc_solver *s, double t)
+{
+    size_t m = s->m;
+    uint64_t stepi = s->n + 1;
+    int st = histories(s);
+    if (st != FC_OK) return st;
+    taylor(s, stepi, s->c);
+    switch (s->method) {
+    case FC_METHOD_RECTANGLE:
+        for (size_t i = 0; i < m; i++) s->yc[i] = s->c[i] + s->hr[i];
+        return eval(s, t, stepi);
+    case FC_METHOD_PC:
+        for (size_t i = 0; i < m; i++) {
+            s->yc[i] = s->c[i] + s->hr[i];
+            s->c[i] += s->ht[i];
+        }
+        for (unsigned p = 0; p < s->passes; p++) {
+            if ((st = eval(s, t, stepi)) != FC_OK) return st;
+            for (size_t i = 0; i < m; i++)
+                s->yc[i] = s->c[i] + s->w0[i] * s->fc[i];
+        }
+        return eval(s, t, stepi);
+    default: /* FC_METHOD_TRAPEZOID, FC_METHOD_IMPLICIT_RECTANGLE */
+        for (size_t i = 0; i < m; i++) s->c[i] += s->ht[i];
+        memcpy(s->yc, s->y, m * sizeof(double));
+        return newton(s, t, stepi);
+    }
+}
+
+/* Room for n rows of f history (implicit rectangle), doubling. */
+static int grow_history(fc_solver *s, uint64_t n)
+{
+    if (n <= s->fhcap) return FC_OK;
+    uint64_t want = n;
+    if (s->fhcap <= UINT64_MAX / 2 && 2 * (uint64_t)s->fhcap > want)
+        want = 2 * (uint64_t)s->fhcap;
+    size_t bytes;
+    for (int pass = 0; pass < 2; pass++) {
+        if (want <= (uint64_t)((size_t)-1) &&
+            !mul_size((size_t)want, s->m, &bytes) &&
+            !mul_size(bytes, sizeof(double), &bytes)) {
+            double *p = realloc(s->fh, bytes);
+            if (p) { s->fh = p; s->fhcap = (size_t)want; return FC_OK; }
+        }
+        if (want == n) break;
+        want = n;
+    }
+    return FC_ERR_NOMEM;
+}
+
+static int reserve(fc_solver *s, uint64_t need)
+{
+    if (need <= s->reserved) return FC_OK;
+    uint64_t want = need;
+    if (s->reserved <= UINT64_MAX / 2 && 2 * s->reserved > want)
+        want = 2 * s->reserved;
+    for (int pass = 0; pass < 2; pass++) {
+        int st = FC_OK;
+        for (size_t j = 0; j < s->ng && st == FC_OK; j++) {
+            if (s->g[j].rect) st = fc_stream_reserve(s->g[j].rect, want);
+            if (st == FC_OK && s->g[j].trap)
+                st = fc_stream_reserve(s->g[j].trap, want);
+        }
+        if (st == FC_OK) { s->reserved = want; return FC_OK; }
+        if (want == need) return st;
+        want = need;
+    }
+    return FC_ERR_NOMEM; /* not reached */
+}
+
+int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
+                      double *y_out, size_t *done)
+{
+    if (!s || !done) return FC_ERR_NULL;
+    if (s->busy) return FC_ERR_BUSY;
+    *done = 0;
+    if (!s->rhs) return FC_ERR_NORHS;
+    if (nsteps == 0) return FC_OK;
+    size_t m = s->m, tot;
+    if (y_out && mul_size(nsteps, m, &tot)) return FC_ERR_SIZE;
+    /* samples each stream holds at the end */
+    if ((uint64_t)nsteps > UINT64_MAX - 1 - s->n) return FC_ERR_SIZE;
+    uint64_t n_end = s->n + (uint64_t)nsteps;
+    if (s->memory == FC_MODE_COMPRESSED ||
+        s->method == FC_METHOD_IMPLICIT_RECTANGLE) {
+        if ((double)n_end > floor(s->horizon)) return FC_ERR_HORIZON;
+    }
+    else if (n_end >= (UINT64_C(1) << 53)) return FC_ERR_SIZE;
+    if (s->memory == FC_MODE_EXACT) {
+        for (size_t j = 0; j < s->ng; j++) {
+            uint64_t left, cnt = s->f0done ? s->n + 1 : 0;
+            fc_stream *x = s->g[j].rect ? s->g[j].rect : s->g[j].trap;
+            int st = fc_stream_remaining(x, &left);
+            if (st != FC_OK) return st;
+            if (n_end + 1 - cnt > left) return FC_ERR_SIZE;
+        }
+        int st = reserve(s, n_end + 1);
+        if (st != FC_OK) return st;
+        if (s->method == FC_METHOD_IMPLICIT_RECTANGLE &&
+            (st = grow_history(s, n_end)) != FC_OK)
+            return st;
+    }
+    s->busy = 1;
+    int st = FC_OK;
+    if (!s->f0done && s->method == FC_METHOD_IMPLICIT_RECTANGLE)
+        s->f0done = 1; /* f_0 does not enter the right-end-point rule */
+    if (!s->f0done) {
+        memcpy(s->yc, s->y, m * sizeof(double));
+        st = eval(s, s->t0, 0);
+        if (st == FC_OK) st = push_all(s, s->fc);
+        if (st == FC_OK) s->f0done = 1;
+    }
+    size_t j = 0;
+    for (; st == FC_OK && j < nsteps; j++) {
+        double t = s->t0 + (double)(s->n + 1) * s->step;
+        if ((st = one_step(s, t)) != FC_OK) break;
+        if ((st = push_all(s, s->fc)) != FC_OK) break;
+        if (s->fh) memcpy(s->fh + s->n * m, s->fc, m * sizeof(double));
+        memcpy(s->y, s->yc, m * sizeof(double));
+        s->n++;
+        if (t_out) t_out[j] = t;
+        if (y_out) memcpy(y_out + j * m, s->yc, m * sizeof(double));
+    }
+    *done = j;
+    s->busy = 0;
+    return st;
+}
+
+/* ------------------------------------------------------------ queries */
+
+int fc_solver_time(const fc_solver *s, double *t)
+{
+    if (!s || !t) return FC_ERR_NULL;
+    *t = s->t0 + (double)s->n * s->step;
+    return FC_OK;
+}
+
+int fc_solver_state(const fc_solver *s, double *y)
+{
+    if (!s || !y) return FC_ERR_NULL;
+    memcpy(y, s->y, s->m * sizeof(double));
+    return FC_OK;
+}
+
+int fc_solver_steps(const fc_solver *s, uint64_t *n)
+{
+    if (!s || !n) return FC_ERR_NULL;
+    *n = s->n;
+    return FC_OK;
+}
+
+int fc_solver_dim(const fc_solver *s, size_t *m)
+{
+    if (!s || !m) return FC_ERR_NULL;
+    *m = s->m;
+    return FC_OK;
+}
+
+int fc_solver_counts(const fc_solver *s, uint64_t *rhs_calls,
+                     uint64_t *jac_calls)
+{
+    if (!s || !rhs_calls || !jac_calls) return FC_ERR_NULL;
+    *rhs_calls = s->nrhs;
+    *jac_calls = s->njac;
+    return FC_OK;
+}
+
+int fc_solver_failure(const fc_solver *s, uint64_t *step, double *t)
+{
+    if (!s || !step || !t) return FC_ERR_NULL;
+    *step = s->fail_step;
+    *t = s->fail_t;
+    return FC_OK;
+}
+
+int fc_solver_nbytes(const fc_solver *s, size_t *nbytes)
+{
+    if (!s || !nbytes) return FC_ERR_NULL;
+    size_t m = s->m;
+    size_t b = sizeof *s + s->ng * sizeof(sv_group) + m * sizeof(size_t) * 2
+             + (12 + (size_t)s->K) * m * sizeof(double);
+    if (is_implicit(s->method)) b += m * m * sizeof(double);
+    b += s->fhcap * m * sizeof(double);
+    for (size_t j = 0; j < s->ng; j++) {
+        size_t x;
+        if (s->g[j].rect && fc_stream_nbytes(s->g[j].rect, &x) == FC_OK) b += x;
+        if (s->g[j].trap && fc_stream_nbytes(s->g[j].trap, &x) == FC_OK) b += x;
+    }
+    *nbytes = b;
+    return FC_OK;
+}
+
+const char *fc_solver_strerror(int status)
+{
+    switch (status) {
+    case FC_ERR_CALLBACK: return "a callback (right-hand side or Jacobian) returned non-zero";
+    case FC_ERR_NEWTON: return "Newton's method did not converge within the iteration limit";
+    case FC_ERR_NORHS: return "no right-hand side set (fc_solver_set_rhs)";
+    default: return fc_strerror(status);
+    }
+}
+
+/* ------------------------------------------------------------ save/load */
+
+static void put_u64(unsigned char *p, uint64_t v)
+{
+    for (int i = 0; i < 8; i++) p[i] = (unsigned char)(v >> (8 * i));
+}
+static uint64_t get_u64(const unsigned char *p)
+{
+    uint64_t v = 0;
+    for (int i = 0; i < 8; i++) v |= (uint64_t)p[i] << (8 * i);
+    return v;
+}
+static void put_u32(unsigned char *p, uint32_t v)
+{
+    for (int i = 0; i < 4; i++) p[i] = (unsigned char)(v >> (8 * i));
+}
+static uint32_t get_u32(const unsigned char *p)
+{
+    uint32_t v = 0;
+    for (int i = 0; i < 4; i++) v |= (uint32_t)p[i] << (8 * i);
+    return v;
+}
+static void put_f64(unsigned char *p, double x)
+{
+    uint64_t v;
+    memcpy(&v, &x, 8);
+    put_u64(p, v);
+}
+static double get_f64(const unsigned char *p)
+{
+    uint64_t v = get_u64(p);
+    double x;
+    memcpy(&x, &v, 8);
+    return x;
+}
+static uint64_t fnv1a(const unsigned char *p, size_t n)
+{
+    uint64_t h = UINT64_C(0xcbf29ce484222325);
+    for (size_t i = 0; i < n; i++) {
+        h ^= p[i];
+        h *= UINT64_C(0x100000001b3);
+    }
+    return h;
+}
+
+/*
+ * Layout (little-endian):
+ *    0  8 bytes "FCSOLVE1"         8  u32 version (1)
+ *   12  u32 method                16  u32 memory
+ *   20  u32 K                     24  u64 m
+ *   32  f64 step, t0, tol, horizon, newton tol (5 x 8)
+ *   72  u32 newton maxiter        76  u32 corrector passes
+ *   80  u64 steps, f0 done (0/1), rhs calls, jac calls
+ *  112  f64 orders[m], init[K*m], y[m]
+ *       u64 number of groups; per group, for the rectangle then the
+ *       trapezoid stream: u64 size (0: none) and the fc_stream_save bytes
+ *       (implicit rectangle: both 0)
+ *       u64 rows r (implicit rectangle: steps; else 0), f_1 .. f_r (r*m f64)
+ *  end  u64 FNV-1a 64 of everything before
+ */
+static int save_size(const fc_solver *s, size_t *size)
+{
+    size_t v, tot = SV_HDR;
+    if (mul_size(s->m, 2 + (size_t)s->K, &v) || mul_size(v, 8, &v) ||
+        add_size(tot, v, &tot) || add_size(tot, 16, &tot))
+        return FC_ERR_SIZE;
+    for (size_t j = 0; j < s->ng; j++) {
+        fc_stream *st2[2] = { s->g[j].rect, s->g[j].trap };
+        for (int k = 0; k < 2; k++) {
+            size_t b = 0;
+            if (st2[k] && s->method != FC_METHOD_IMPLICIT_RECTANGLE) {
+                int st = fc_stream_save_size(st2[k], &b);
+                if (st != FC_OK) return st;
+            }
+            if (add_size(tot, 8, &tot) || add_size(tot, b, &tot))
+                return FC_ERR_SIZE;
+        }
+    }
+    size_t rows = 0;
+    if (s->method == FC_METHOD_IMPLICIT_RECTANGLE) {
+        if (s->n > (uint64_t)((size_t)-1)) return FC_ERR_SIZE;
+        rows = (size_t)s->n;
+    }
+    if (mul_size(rows, s->m, &v) || mul_size(v, 8, &v) ||
+        add_size(tot, 8, &tot) || add_size(tot, v, &tot))
+        return FC_ERR_SIZE;
+    *size = tot;
+    return FC_OK;
+}
+
+int fc_solver_save_size(const fc_solver *s, size_t *size)
+{
+    if (!s || !size) return FC_ERR_NULL;
+    if (s->busy) return FC_ERR_BUSY;
+    return save_size(s, size);
+}
+
+int fc_solver_save(const fc_solver *s, unsigned char *buf, size_t size,
+                   size_t *written)
+{
+    if (!s || !buf || !written) return FC_ERR_NULL;
+    if (s->busy) return FC_ERR_BUSY;
+    size_t need;
+    int st = save_size(s, &need);
+    if (st != FC_OK) return st;
+    if (size < need) return FC_ERR_ARG;
+    unsigned char *p = buf;
+    memcpy(p, SV_MAGIC, 8);
+    put_u32(p + 8, SV_VERSION);
+    put_u32(p + 12, (uint32_t)s->method);
+    put_u32(p + 16, (uint32_t)s->memory);
+    put_u32(p + 20, s->K);
+    put_u64(p + 24, (uint64_t)s->m);
+    put_f64(p + 32, s->step);
+    put_f64(p + 40, s->t0);
+    put_f64(p + 48, s->tol);
+    put_f64(p + 56, s->horizon);
+    put_f64(p + 64, s->ntol);
+    put_u32(p + 72, s->nmax);
+    put_u32(p + 76, s->passes);
+    put_u64(p + 80, s->n);
+    put_u64(p + 88, (uint64_t)s->f0done);
+    put_u64(p + 96, s->nrhs);
+    put_u64(p + 104, s->njac);
+    size_t off = SV_HDR, m = s->m;
+    for (size_t i = 0; i < m; i++, off += 8) put_f64(p + off, s->orders[i]);
+    for (size_t i = 0; i < s->K * m; i++, off += 8) put_f64(p + off, s->init[i]);
+    for (size_t i = 0; i < m; i++, off += 8) put_f64(p + off, s->y[i]);
+    put_u64(p + off, (uint64_t)s->ng);
+    off += 8;
+    for (size_t j = 0; j < s->ng; j++) {
+        fc_stream *st2[2] = { s->g[j].rect, s->g[j].trap };
+        for (int k = 0; k < 2; k++) {
+            size_t w = 0;
+            if (st2[k] && s->method != FC_METHOD_IMPLICIT_RECTANGLE) {
+                st = fc_stream_save(st2[k], p + off + 8, size - (off + 8), &w);
+                if (st != FC_OK) return st; /* buf contents unspecified */
+            }
+            put_u64(p + off, (uint64_t)w);
+            off += 8 + w;
+        }
+    }
+    uint64_t rows = s->method == FC_METHOD_IMPLICIT_RECTANGLE ? s->n : 0;
+    put_u64(p + off, rows);
+    off += 8;
+    for (size_t i = 0; i < (size_t)rows * m; i++, off += 8) put_f64(p + off, s->fh[i]);
+    put_u64(p + off, fnv1a(p, off));
+    off += 8;
+    *written = off;
+    return FC_OK;
+}
+
+/* Implicit rectangle, load: the rows fit under the horizon. */
+static int check_kernel_room(const fc_solver *s, uint64_t rows)
+{
+    return (double)rows <= floor(s->horizon) ? FC_OK : FC_ERR_FORMAT;
+}
+
+/* Implicit rectangle, load: push the saved f_1 .. f_rows into the fresh
+   kernel streams (the result depends only on the samples, not on how they
+   were split into blocks, so later steps agree bit for bit). */
+static int refeed(fc_solver *s, size_t rows)
+{
+    size_t m = s->m;
+    for (size_t j = 0; j < s->ng; j++) {
+        sv_group *g = &s->g[j];
+        size_t tot;
+        if (mul_size(rows, g->nc, &tot) || mul_size(tot, sizeof(double), &tot))
+            return FC_ERR_SIZE;
+        double *x = malloc(tot ? tot : 1);
+        double *yo = malloc(tot ? tot : 1);
+        if (!x || !yo) { free(x); free(yo); return FC_ERR_NOMEM; }
+        for (size_t r = 0; r < rows; r++)
+            for (size_t c = 0; c < g->nc; c++)
+                x[r * g->nc + c] = s->fh[r * m + g->idx[c]];
+        int st = fc_stream_reserve(g->trap, (uint64_t)rows + 1);
+        if (st == FC_OK && rows) st = fc_stream_push_block(g->trap, x, rows, yo);
+        free(x);
+        free(yo);
+        if (st != FC_OK) return st;
+    }
+    return FC_OK;
+}
+
+/* A loaded stream must be what the solver would have made. */
+static int check_stream(fc_stream *x, int rule, const sv_group *g,
+                        const fc_solver *s, uint64_t count)
+{
+    int r, mode;
+    double a, h, tol, hz;
+    size_t ch;
+    uint64_t cnt;
+    if (fc_stream_rule(x, &r) || fc_stream_order(x, &a) ||
+        fc_stream_step(x, &h) || fc_stream_channels(x, &ch) ||
+        fc_stream_mode(x, &mode) || fc_stream_tol(x, &tol) ||
+        fc_stream_horizon(x, &hz) || fc_stream_count(x, &cnt))
+        return FC_ERR_FORMAT;
+    if (r != rule || a != g->order || h != s->step || ch != g->nc ||
+        mode != s->memory || cnt != count)
+        return FC_ERR_FORMAT;
+    if (s->memory == FC_MODE_COMPRESSED && (tol != s->tol || hz != s->horizon))
+        return FC_ERR_FORMAT;
+    return FC_OK;
+}
+
+int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out)
+{
+    if (!buf || !out) return FC_ERR_NULL;
+    if (size < SV_HDR + 16) return FC_ERR_FORMAT;
+    if (memcmp(buf, SV_MAGIC, 8) != 0) return FC_ERR_FORMAT;
+    if (get_u32(buf + 8) != SV_VERSION) return FC_ERR_FORMAT;
+    if (get_u64(buf + size - 8) != fnv1a(buf, size - 8)) return FC_ERR_FORMAT;
+    uint32_t method = get_u32(buf + 12), memory = get_u32(buf + 16);
+    uint32_t K = get_u32(buf + 20);
+    uint64_t m64 = get_u64(buf + 24);
+    if (method > 3 || memory > 1 || (K != 1 && K != 2)) return FC_ERR_FORMAT;
+    /* every component takes (2 + K) * 8 bytes of the blob */
+    if (m64 == 0 || m64 > (size - SV_HDR - 16) / (8 * (2 + (uint64_t)K)))
+        return FC_ERR_FORMAT;
+    size_t m = (size_t)m64;
+    double step = get_f64(buf + 32), t0 = get_f64(buf + 40);
+    double tol = get_f64(buf + 48), horizon = get_f64(buf + 56);
+    double ntol = get_f64(buf + 64);
+    uint32_t nmax = get_u32(buf + 72), passes = get_u32(buf + 76);
+    uint64_t n = get_u64(buf + 80), f0 = get_u64(buf + 88);
+    uint64_t nrhs = get_u64(buf + 96), njac = get_u64(buf + 104);
+    if (!(ntol >= 1e-15 && ntol <= 1e-2) || nmax < 1 || nmax > 1000 ||
+        passes < 1 || passes > 100 || f0 > 1 || (f0 == 0 && n != 0) ||
+        n >= (UINT64_C(1) << 53) || nrhs < f0 + n)
+        return FC_ERR_FORMAT;
+    if (memory == FC_MODE_EXACT && (tol != 0.0 ||
+        (method != FC_METHOD_IMPLICIT_RECTANGLE && horizon != 0.0)))
+        return FC_ERR_FORMAT;
+    if ((memory == FC_MODE_COMPRESSED || method == FC_METHOD_IMPLICIT_RECTANGLE)
+        && (double)n > floor(horizon))
+        return FC_ERR_FORMAT;
+    size_t off = SV_HDR;
+    double *orders = malloc(m * sizeof(double));
+    if (!orders) return FC_ERR_NOMEM;
+    for (size_t i = 0; i < m; i++) orders[i] = get_f64(buf + off + 8 * i);
+    unsigned Kc;
+    int st = check_params(m, orders, step, t0, (int)method, (int)memory,
+                          tol, horizon, &Kc);
+    if (st != FC_OK || Kc != K) { free(orders); return FC_ERR_FORMAT; }
+    off += 8 * m;
+    const unsigned char *pinit = buf + off;
+    off += 8 * (size_t)K * m;
+    const unsigned char *py = buf + off;
+    off += 8 * m;
+    double *init = malloc((size_t)K * m * sizeof(double));
+    if (!init) { free(orders); return FC_ERR_NOMEM; }
+    for (size_t i = 0; i < K * m; i++) init[i] = get_f64(pinit + 8 * i);
+    fc_solver *s = NULL;
+    if (all_finite(init, K * m))
+        st = build(m, orders, step, t0, init, (int)method, (int)memory, tol,
+                   horizon, K, &s);
+    else
+        st = FC_ERR_FORMAT;
+    free(orders);
+    free(init);
+    if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+    for (size_t i = 0; i < m; i++) s->y[i] = get_f64(py + 8 * i);
+    if (!all_finite(s->y, m)) { free_solver(s); return FC_ERR_FORMAT; }
+    s->ntol = ntol; s->nmax = nmax; s->passes = passes;
+    s->n = n; s->f0done = (int)f0; s->nrhs = nrhs; s->njac = njac;
+    size_t end = size - 8;
+    if (end - off < 8 || get_u64(buf + off) != (uint64_t)s->ng) {
+        free_solver(s);
+        return FC_ERR_FORMAT;
+    }
+    off += 8;
+    uint64_t count = f0 ? n + 1 : 0;
+    int impl = (int)method == FC_METHOD_IMPLICIT_RECTANGLE;
+    for (size_t j = 0; j < s->ng; j++) {
+        sv_group *g = &s->g[j];
+        for (int k = 0; k < 2; k++) {
+            int want = !impl && (k == 0 ? needs_rect((int)method)
+                                        : needs_trap((int)method));
+            if (end - off < 8) { free_solver(s); return FC_ERR_FORMAT; }
+            uint64_t b = get_u64(buf + off);
+            off += 8;
+            if ((b == 0) != !want || b > end - off) {
+                free_solver(s);
+                return FC_ERR_FORMAT;
+            }
+            if (!want) continue;
+            fc_stream *x = NULL;
+            st = fc_stream_load(buf + off, (size_t)b, &x);
+            if (st == FC_OK)
+                st = check_stream(x, k == 0 ? FC_RULE_RECTANGLE : FC_RULE_TRAPEZOID,
+                                  g, s, count);
+            if (st != FC_OK) {
+                fc_stream_free(x);
+                free_solver(s);
+                return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+            }
+            if (k == 0) g->rect = x; else g->trap = x;
+            off += (size_t)b;
+        }
+    }
+    if (end - off < 8) { free_solver(s); return FC_ERR_FORMAT; }
+    uint64_t rows = get_u64(buf + off);
+    off += 8;
+    if (rows != (impl ? n : 0) || rows > (end - off) / 8 / m ||
+        rows * m * 8 != end - off) {
+        free_solver(s);
+        return FC_ERR_FORMAT;
+    }
+    if (impl) {
+        /* the f history bounded by the blob: rebuild the kernel streams */
+        if ((st = grow_history(s, rows)) != FC_OK ||
+            (rows && (st = check_kernel_room(s, rows)) != FC_OK) ||
+            (st = make_streams(s)) != FC_OK) {
+            free_solver(s);
+            return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+        }
+        for (size_t i = 0; i < (size_t)rows * m; i++)
+            s->fh[i] = get_f64(buf + off + 8 * i);
+        if (!all_finite(s->fh, (size_t)rows * m) ||
+            (st = refeed(s, (size_t)rows)) != FC_OK) {
+            free_solver(s);
+            return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
+        }
+        off += (size_t)rows * m * 8;
+    }
+    if (off != end) { free_solver(s); return FC_ERR_FORMAT; }
+    *out = s;
+    return FC_OK;
+}

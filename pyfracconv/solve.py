@@ -1,0 +1,774 @@
+"""Caputo initial value problems: :func:`solve` and :class:`Stepper`.
+
+The problem D^a y = f(t, y), y^(k)(t0) = y0_k for k < ceil(a), 0 < a <= 2,
+is solved as the equivalent Volterra equation y = T + I^a f(., y), T the
+Taylor polynomial of the initial values (Diethelm, The Analysis of
+Fractional Differential Equations, Springer 2010), by the library's product
+rules applied to f along the solution (the C solver in ``csrc/solver.c``).
+The history sums of the f values are kept by the library's streams, exact
+or compressed.
+"""
+
+from __future__ import annotations
+
+import math
+import struct
+import threading
+
+import numpy as np
+
+from ._core import (
+    SIZE_MAX,
+    as_float_array,
+    check_bytes,
+    check_compressed,
+    check_count,
+    check_real,
+    check_step,
+    show,
+)
+from ._errors import (
+    ArgumentError,
+    BusyError,
+    FracconvError,
+    HorizonError,
+    InputTypeError,
+    OutOfMemory,
+    StateError,
+    raise_for_status,
+)
+from ._fracconv import ffi, lib
+
+__all__ = ["solve", "Stepper", "SolveResult", "SolverError", "RhsError", "NewtonError"]
+
+METHODS = {
+    "rectangle": lib.FC_METHOD_RECTANGLE,
+    "predictor-corrector": lib.FC_METHOD_PC,
+    "trapezoid": lib.FC_METHOD_TRAPEZOID,
+    "implicit-rectangle": lib.FC_METHOD_IMPLICIT_RECTANGLE,
+}
+IMPLICIT = ("trapezoid", "implicit-rectangle")
+_METHOD_NAMES = {v: k for k, v in METHODS.items()}
+MEMORIES = {"exact": lib.FC_MODE_EXACT, "compressed": lib.FC_MODE_COMPRESSED}
+_MEMORY_NAMES = {v: k for k, v in MEMORIES.items()}
+
+# Envelope of saved steppers: magic, 0x5A for a scalar problem or 0xA5 for a
+# vector one, a zero byte; then the C bytes (csrc/solver.c).
+_ENV_MAGIC = b"pyfcV1"
+_ENV_SCALAR = 0x5A
+_ENV_ARRAY = 0xA5
+_ENV_LEN = 8
+
+
+# ------------------------------------------------------------ exceptions
+
+class SolverError(FracconvError, RuntimeError):
+    """A run stopped at a step: ``step`` (its index, 0 for f(t0, y0)),
+    ``time`` and ``partial`` (a :class:`SolveResult` with the solution up
+    to the last good step)."""
+
+    def __init__(self, message, step=None, time=None, partial=None):
+        super().__init__(message)
+        self.step = step
+        self.time = time
+        self.partial = partial
+
+
+class RhsError(SolverError):
+    """The right-hand side (or the Jacobian) raised, returned a value of
+    the wrong shape, or a NaN or infinite value."""
+
+
+class NewtonError(SolverError):
+    """Newton's method of ``method='trapezoid'`` did not converge."""
+
+
+# ------------------------------------------------------------ result
+
+class SolveResult:
+    """The solution on the grid: ``t`` of shape (n+1,), ``y`` of shape
+    (n+1,) for a scalar problem or (n+1, m); ``rhs_evals`` and
+    ``jac_evals`` count the calls of the right-hand side (difference
+    Jacobians included) and of the Jacobian. Unpacks as ``t, y``."""
+
+    def __init__(self, t, y, rhs_evals, jac_evals, method, memory):
+        self.t = t
+        self.y = y
+        self.rhs_evals = int(rhs_evals)
+        self.jac_evals = int(jac_evals)
+        self.method = method
+        self.memory = memory
+
+    def __iter__(self):
+        return iter((self.t, self.y))
+
+    def __len__(self):
+        return 2
+
+    def __repr__(self):
+        return (f"SolveResult(steps={len(self.t) - 1}, shape={self.y.shape}, "
+                f"method={self.method!r}, memory={self.memory!r}, "
+                f"rhs_evals={self.rhs_evals}, jac_evals={self.jac_evals})")
+
+
+# ------------------------------------------------------------ callbacks
+
+class _Run:
+    """What the C callbacks need: the user functions, the problem shape and
+    one NumPy view of each C buffer (bound on the first call)."""
+
+    __slots__ = ("fn", "jac", "m", "shape", "jshape", "scalar", "yptr", "yview",
+                 "fview", "jptr", "jview", "fail")
+
+    def __init__(self, fn, jac, m, scalar):
+        self.fn = fn
+        self.jac = jac
+        self.m = m
+        self.scalar = scalar
+        self.shape = (m,)
+        self.jshape = (m, m)
+        self.yptr = None
+        self.yview = None
+        self.fview = None
+        self.jptr = None
+        self.jview = None
+        self.fail = None
+
+    def bind(self, y, f):
+        m = self.m
+        yv = np.frombuffer(ffi.buffer(y, 8 * m), dtype=np.float64)
+        yv.flags.writeable = False
+        self.yview = yv
+        self.fview = np.frombuffer(ffi.buffer(f, 8 * m), dtype=np.float64)
+        self.yptr = y
+
+
+_NAN = float("nan")
+
+
+@ffi.def_extern()
+def _fc_py_rhs1(t, y, user):
+    # scalar problems: returns f; NaN after recording a failure
+    run = ffi.from_handle(user)
+    try:
+        v = run.fn(t, y)
+    except BaseException as exc:
+        run.fail = ("raised", exc, t)
+        return _NAN
+    if type(v) is float:
+        return v
+    try:
+        return float(v) if np.ndim(v) == 0 else _bad(run, v, t)
+    except Exception:
+        return _bad(run, v, t)
+
+
+def _bad(run, v, t):
+    run.fail = ("shape", v, t)
+    return _NAN
+
+
+@ffi.def_extern()
+def _fc_py_rhs(t, y, f, user):
+    run = ffi.from_handle(user)
+    if run.yview is None:  # the solver passes the same buffers on every call
+        run.bind(y, f)
+    try:
+        v = run.fn(t, run.yview)
+    except BaseException as exc:
+        run.fail = ("raised", exc, t)
+        return 1
+    try:
+        if type(v) is not np.ndarray:
+            v = np.asarray(v, dtype=np.float64)
+        if v.shape != run.shape:
+            run.fail = ("shape", v, t)
+            return 1
+        run.fview[:] = v
+    except Exception:
+        run.fail = ("shape", v, t)
+        return 1
+    return 0
+
+
+@ffi.def_extern()
+def _fc_py_jac(t, y, jac, user):
+    run = ffi.from_handle(user)
+    m = run.m
+    if jac != run.jptr:
+        run.jview = np.frombuffer(ffi.buffer(jac, 8 * m * m),
+                                  dtype=np.float64).reshape(m, m)
+        run.jptr = jac
+    if y != run.yptr:
+        yv = np.frombuffer(ffi.buffer(y, 8 * m), dtype=np.float64)
+        yv.flags.writeable = False
+        yarg = yv
+    else:
+        yarg = run.yview
+    try:
+        v = run.jac(t, yarg[0] if run.scalar else yarg)
+    except BaseException as exc:
+        run.fail = ("jac raised", exc, t)
+        return 1
+    try:
+        a = np.asarray(v, dtype=np.float64)
+        if run.scalar and a.size == 1:
+            a = a.reshape(1, 1)
+        if a.shape != run.jshape:
+            run.fail = ("jac shape", v, t)
+            return 1
+        run.jview[...] = a
+    except Exception:
+        run.fail = ("jac shape", v, t)
+        return 1
+    return 0
+
+
+# ------------------------------------------------------------ checks
+
+def _check_method(method):
+    if not isinstance(method, str) or method not in METHODS:
+        expected = ", ".join(repr(k) for k in METHODS)
+        raise ArgumentError(f"method={show(method)}: unknown; expected one of {expected}")
+    return str(method)
+
+
+def _check_memory(memory):
+    if not isinstance(memory, str) or memory not in MEMORIES:
+        raise ArgumentError(
+            f"memory={show(memory)}: unknown; expected one of 'exact', 'compressed'"
+        )
+    return str(memory)
+
+
+def _values(name, value, m=None):
+    """A real scalar or a 1-D array of finite reals as (array, scalar?)."""
+    arr = as_float_array(name, value)
+    if arr.ndim == 1 and arr.size == 1 and np.ndim(value) == 0:
+        arr = arr.reshape(())  # np.ascontiguousarray makes scalars 1-D
+    if arr.ndim > 1:
+        raise ArgumentError(f"{name}: expected a number or a 1-D array, got shape {arr.shape}")
+    if arr.ndim == 1 and arr.size == 0:
+        raise ArgumentError(f"{name}: empty; expected at least one component")
+    if m is not None and arr.ndim == 1 and arr.size != m:
+        raise ArgumentError(
+            f"{name}: {arr.size} values for {m} components (shape {arr.shape}); "
+            f"expected a number or shape ({m},)"
+        )
+    bad = np.flatnonzero(~np.isfinite(arr.ravel()))
+    if bad.size:
+        i = int(bad[0])
+        where = f"[{i}]" if arr.ndim else ""
+        raise ArgumentError(f"{name}{where}={show(arr.ravel()[i])}: must be finite")
+    return arr, arr.ndim == 0
+
+
+def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
+           jacobian, corrections, newton_tol, newton_maxiter):
+    """Every argument checked; returns the keyword set for _make."""
+    if not callable(rhs):
+        raise InputTypeError(f"rhs={show(rhs)}: expected a callable f(t, y)")
+    if jacobian is not None and not callable(jacobian):
+        raise InputTypeError(f"jacobian={show(jacobian)}: expected None or a callable J(t, y)")
+    y0a, scalar = _values("y0", y0)
+    m = 1 if scalar else int(y0a.size)
+    oa, _ = _values("order", order, m)
+    orders = np.broadcast_to(oa, (m,)).astype(np.float64)
+    for i, a in enumerate(orders):
+        if not (0.0 < a <= 2.0):
+            where = "" if oa.ndim == 0 else f"[{i}]"
+            raise ArgumentError(f"order{where}={show(float(a))}: must be in (0, 2]")
+    h = check_step(step)
+    t0f = check_real("t0", t0)
+    if not math.isfinite(t0f):
+        raise ArgumentError(f"t0={show(t0)}: must be finite")
+    meth = _check_method(method)
+    mem = _check_memory(memory)
+    need_d = bool(np.any(orders > 1.0))
+    if dy0 is None:
+        if need_d:
+            i = int(np.argmax(orders > 1.0))
+            raise ArgumentError(
+                f"dy0=None: required when an order exceeds 1 (order"
+                f"{'' if oa.ndim == 0 else f'[{i}]'}={show(float(orders[i]))}: "
+                "the Caputo problem needs y'(t0) too)"
+            )
+        init = np.ascontiguousarray(np.broadcast_to(y0a, (m,)), dtype=np.float64)
+    else:
+        if not need_d:
+            raise ArgumentError(
+                f"dy0={show(dy0)}: given, but every order is <= 1, where only "
+                "y(t0) is an initial condition"
+            )
+        da, dscalar = _values("dy0", dy0, m)
+        if scalar and not dscalar:
+            raise ArgumentError(f"dy0: expected a number for a scalar y0, got shape {da.shape}")
+        dfull = np.broadcast_to(da, (m,))
+        for i in range(m):
+            if orders[i] <= 1.0 and dfull[i] != 0.0:
+                name = "dy0" if dscalar else f"dy0[{i}]"
+                raise ArgumentError(
+                    f"{name}={show(float(dfull[i]))}: component {i} has order "
+                    f"{show(float(orders[i]))} <= 1, where y'(t0) is not an initial "
+                    "condition; pass 0 there")
+        init = np.concatenate([np.broadcast_to(y0a, (m,)), np.broadcast_to(da, (m,))])
+        init = np.ascontiguousarray(init, dtype=np.float64)
+    corr = check_count("corrections", corrections, 1, 100)
+    if corr != 1 and meth != "predictor-corrector":
+        raise ArgumentError(
+            f"corrections={corr}: only used by method='predictor-corrector' "
+            f"(method={meth!r})"
+        )
+    if jacobian is not None and meth not in IMPLICIT:
+        raise ArgumentError(
+            f"jacobian: only used by the implicit methods 'trapezoid' and "
+            f"'implicit-rectangle' (method={meth!r})")
+    ntol = check_real("newton_tol", newton_tol)
+    if not (1e-15 <= ntol <= 1e-2):
+        raise ArgumentError(f"newton_tol={show(newton_tol)}: must be in [1e-15, 1e-2]")
+    nmax = check_count("newton_maxiter", newton_maxiter, 1, 1000)
+    tolf, hz = 0.0, 0.0
+    if meth == "implicit-rectangle":
+        if mem == "compressed":
+            raise ArgumentError(
+                "memory='compressed', method='implicit-rectangle': not available "
+                "(the right-end-point rule has no compressed stream); use "
+                "memory='exact'")
+        if horizon is None:
+            raise ArgumentError(
+                "horizon=None: required for method='implicit-rectangle' (the "
+                "number of steps it can take; its kernel is allocated at creation)")
+        hz = check_real("horizon", horizon)
+        if not (1.0 <= hz <= 2.0 ** 28):
+            raise ArgumentError(
+                f"horizon={show(horizon)}: must be in [1, 2**28] for "
+                "method='implicit-rectangle'")
+    if mem == "compressed":
+        if horizon is None:
+            raise ArgumentError(
+                "horizon=None: required for memory='compressed' (the number of "
+                "steps the tolerance is promised for)"
+            )
+        tolf, hz = check_compressed(tol, horizon)
+        for i, a in enumerate(orders):
+            where = "" if oa.ndim == 0 else f"[{i}]"
+            if meth != "rectangle" and a >= 1.0:
+                raise ArgumentError(
+                    f"order{where}={show(float(a))}, method={meth!r}: memory='compressed' "
+                    "supports the trapezoid rule (used by this method) only for "
+                    "orders < 1; use memory='exact' or method='rectangle'"
+                )
+            if a >= 2.0:
+                raise ArgumentError(
+                    f"order{where}={show(float(a))}: memory='compressed' needs orders < 2"
+                )
+    return dict(m=m, scalar=scalar, orders=np.ascontiguousarray(orders), h=h, t0=t0f,
+                init=init, method=meth, memory=mem, tol=tolf, horizon=hz, corr=corr,
+                ntol=ntol, nmax=nmax, rhs=rhs, jacobian=jacobian)
+
+
+def _status_error(st, what):
+    if st == lib.FC_ERR_HORIZON:
+        return HorizonError(what)
+    try:
+        raise_for_status(st, what)
+    except FracconvError as exc:
+        return exc
+    return FracconvError(what)  # pragma: no cover
+
+
+# ------------------------------------------------------------ stepper
+
+class Stepper:
+    """A Caputo initial value problem advanced step by step (co-simulation,
+    checkpoints). Arguments as for :func:`solve`; ``horizon`` (in steps) is
+    required for ``memory='compressed'`` and ``method='implicit-rectangle'``.
+
+    ``advance(n)`` returns the n new times and states; :attr:`t`, :attr:`y`,
+    :attr:`steps`, :attr:`rhs_evals`, :attr:`jac_evals` tell where it is;
+    :meth:`save` and :meth:`load` checkpoint and resume bit for bit.
+
+    The ``y`` passed to a vector right-hand side is a read-only view of the
+    solver's buffer, reused on every call: copy it to keep it.
+    """
+
+    def __init__(self, rhs, y0, order, step, *, dy0=None, t0=0.0,
+                 method="predictor-corrector", memory="exact", tol=1e-12,
+                 horizon=None, jacobian=None, corrections=1, newton_tol=1e-12,
+                 newton_maxiter=50):
+        p = _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
+                   jacobian, corrections, newton_tol, newton_maxiter)
+        pp = ffi.new("fc_solver **")
+        st = lib.fc_solver_create(
+            p["m"], ffi.from_buffer("double[]", p["orders"]), p["h"], p["t0"],
+            ffi.from_buffer("double[]", p["init"]), METHODS[p["method"]],
+            MEMORIES[p["memory"]], p["tol"], p["horizon"], pp)
+        if st:
+            raise _status_error(st, f"Stepper(order={show(order)}, step={show(step)}, "
+                                    f"method={p['method']!r}, memory={p['memory']!r})")
+        s = ffi.gc(pp[0], lib.fc_solver_free)
+        raise_for_status(lib.fc_solver_set_newton(s, p["ntol"], p["nmax"]), "newton_tol")
+        raise_for_status(lib.fc_solver_set_corrections(s, p["corr"]), "corrections")
+        self._init(s, p["m"], p["scalar"], p["method"], p["memory"], rhs, jacobian,
+                   p["horizon"])
+
+    def _init(self, s, m, scalar, method, memory, rhs, jacobian, horizon):
+        self._s = s
+        self._hz = horizon
+        self._m = m
+        self._scalar = scalar
+        self._method = method
+        self._memory = memory
+        self._lock = threading.Lock()
+        self._set_callbacks(rhs, jacobian)
+
+    def _set_callbacks(self, rhs, jacobian):
+        self._run = _Run(rhs, jacobian, self._m, self._scalar)
+        self._handle = ffi.new_handle(self._run)
+        fn = lib._fc_py_rhs1_bridge if self._scalar else lib._fc_py_rhs
+        raise_for_status(lib.fc_solver_set_rhs(self._s, fn, self._handle), "rhs")
+        raise_for_status(lib.fc_solver_set_jacobian(
+            self._s, lib._fc_py_jac if jacobian is not None else ffi.NULL,
+            self._handle), "jacobian")
+
+    # -------------------------------------------------------- queries
+
+    def _get(self, fn, ctype):
+        p = ffi.new(ctype)
+        raise_for_status(fn(self._s, p), fn.__name__)
+        return p[0]
+
+    @property
+    def t(self):
+        """Current time t0 + steps * step."""
+        return float(self._get(lib.fc_solver_time, "double *"))
+
+    @property
+    def y(self):
+        """Current state (a float, or a copy of shape (m,))."""
+        out = np.empty(self._m)
+        raise_for_status(lib.fc_solver_state(self._s, ffi.from_buffer("double[]", out)), "y")
+        return float(out[0]) if self._scalar else out
+
+    @property
+    def steps(self):
+        return int(self._get(lib.fc_solver_steps, "uint64_t *"))
+
+    def _counts(self):
+        a = ffi.new("uint64_t *")
+        b = ffi.new("uint64_t *")
+        raise_for_status(lib.fc_solver_counts(self._s, a, b), "counts")
+        return int(a[0]), int(b[0])
+
+    @property
+    def rhs_evals(self):
+        return self._counts()[0]
+
+    @property
+    def jac_evals(self):
+        return self._counts()[1]
+
+    @property
+    def nbytes(self):
+        """Bytes of memory the solver holds (its streams included)."""
+        return int(self._get(lib.fc_solver_nbytes, "size_t *"))
+
+    @property
+    def method(self):
+        return self._method
+
+    @property
+    def memory(self):
+        return self._memory
+
+    def __repr__(self):
+        return (f"Stepper(m={self._m}, method={self._method!r}, memory={self._memory!r}, "
+                f"steps={self.steps}, t={self.t!r})")
+
+    # -------------------------------------------------------- stepping
+
+    def _advance_into(self, n, tbuf, ybuf, make_partial):
+        """Advance n steps writing into tbuf (n,) and ybuf (n, m); on a
+        failure raise with make_partial(done) as the partial result."""
+        done = ffi.new("size_t *")
+        self._run.fail = None
+        st = lib._fc_py_advance(self._s, n, ffi.from_buffer("double[]", tbuf),
+                                   ffi.from_buffer("double[]", ybuf), done)
+        if st == 0:
+            return
+        k = int(done[0])
+        if st in (lib.FC_ERR_CALLBACK, lib.FC_ERR_NONFINITE, lib.FC_ERR_NEWTON):
+            raise self._failure(st, make_partial(k))
+        if st == lib.FC_ERR_HORIZON:
+            hz = self._horizon()
+            raise HorizonError(
+                f"n={n}: past the horizon (horizon={hz:g} steps: {self.steps} done, "
+                f"{max(int(hz) - self.steps, 0)} left); nothing was done. Create the "
+                "stepper with a larger horizon")
+        raise _status_error(st, f"advance(n={n})")
+
+    def _horizon(self):
+        return self._hz
+
+    def _failure(self, st, partial):
+        sp = ffi.new("uint64_t *")
+        tp = ffi.new("double *")
+        lib.fc_solver_failure(self._s, sp, tp)
+        step, t = int(sp[0]), float(tp[0])
+        at = f"at step {step}, t={t!r}"
+        fail, self._run.fail = self._run.fail, None
+        keep = f"; the solution up to step {step - 1 if step else 0} is in .partial" \
+            if step else "; nothing was computed"
+        if st == lib.FC_ERR_NEWTON:
+            return NewtonError(
+                f"Newton's method did not converge {at} (newton_maxiter reached or a "
+                "singular iteration matrix); try a smaller step, a larger "
+                f"newton_maxiter or newton_tol{keep}", step, t, partial)
+        if st == lib.FC_ERR_NONFINITE and fail is None:
+            which = "rhs or jacobian" if self._method in IMPLICIT and \
+                self._run.jac is not None else "rhs"
+            return RhsError(f"{which} returned a NaN or infinite value {at}{keep}",
+                            step, t, partial)
+        kind, obj, _ = fail if fail is not None else ("raised", None, t)
+        if kind in ("raised", "jac raised") and isinstance(obj, (KeyboardInterrupt, SystemExit)):
+            return obj
+        name = "jacobian" if kind.startswith("jac") else "rhs"
+        if kind.endswith("raised"):
+            err = RhsError(f"{name} raised {type(obj).__name__}: {obj} {at}{keep}",
+                           step, t, partial)
+            err.__cause__ = obj
+            return err
+        want = "(m, m)" if name == "jacobian" else ("a number" if self._scalar else f"shape ({self._m},)")
+        got = np.asarray(obj).shape if not isinstance(obj, (str, bytes)) else type(obj).__name__
+        return RhsError(f"{name} returned a value of shape {got}, expected {want}, {at}{keep}",
+                        step, t, partial)
+
+    def advance(self, n):
+        """Advance by n >= 0 steps; returns (t, y) of the new steps: t of
+        shape (n,), y of shape (n,) (scalar problem) or (n, m).
+
+        Raises
+        ------
+        RhsError, NewtonError
+            The run stopped at a step; ``.partial`` holds the steps of this
+            call that completed (the stepper keeps them too).
+        HorizonError
+            memory='compressed' and the step count would pass the horizon
+            (nothing done).
+        """
+        n = check_count("n", n, 0, SIZE_MAX)
+        m = self._m
+        check_bytes(f"n={n}", 8 * n * (m + 1))
+        try:
+            tb = np.empty(n)
+            yb = np.empty((n, m))
+        except MemoryError:
+            raise OutOfMemory(f"n={n}: could not allocate the result") from None
+        if not self._lock.acquire(False):
+            raise BusyError("advance: the stepper is being used by another call")
+        try:
+            def partial(k):
+                return SolveResult(tb[:k].copy(), self._shape(yb[:k].copy()),
+                                   *self._counts(), self._method, self._memory)
+            self._advance_into(n, tb, yb, partial)
+        finally:
+            self._lock.release()
+        return tb, self._shape(yb)
+
+    def _shape(self, yb):
+        return yb[:, 0] if self._scalar else yb
+
+    # -------------------------------------------------------- save/load
+
+    def save(self):
+        """The state as bytes (versioned, checksummed, little-endian; not
+        pickle). The callbacks are not saved: :meth:`load` takes them."""
+        if not self._lock.acquire(False):
+            raise BusyError("save: the stepper is being used by another call")
+        try:
+            sp = ffi.new("size_t *")
+            raise_for_status(lib.fc_solver_save_size(self._s, sp), "save()")
+            size = int(sp[0])
+            out = bytearray(_ENV_LEN + size)
+            out[:_ENV_LEN] = _ENV_MAGIC + bytes([_ENV_SCALAR if self._scalar else _ENV_ARRAY, 0])
+            view = memoryview(out)[_ENV_LEN:]
+            raise_for_status(lib.fc_solver_save(
+                self._s, ffi.from_buffer("unsigned char[]", view, require_writable=True),
+                size, sp), "save()")
+            return bytes(out[:_ENV_LEN + int(sp[0])])
+        finally:
+            self._lock.release()
+
+    @classmethod
+    def load(cls, data, rhs, jacobian=None):
+        """A stepper from :meth:`save` output, with its callbacks set again.
+
+        Raises
+        ------
+        StateError
+            data truncated, corrupted, forged, or of another format.
+        """
+        if not isinstance(data, (bytes, bytearray, memoryview)):
+            raise InputTypeError(f"data: expected bytes, got {type(data).__name__}")
+        if not callable(rhs):
+            raise InputTypeError(f"rhs={show(rhs)}: expected a callable f(t, y)")
+        if jacobian is not None and not callable(jacobian):
+            raise InputTypeError(f"jacobian={show(jacobian)}: expected None or a callable")
+        b = bytes(data)
+        if (len(b) < _ENV_LEN + 8 or b[:6] != _ENV_MAGIC
+                or b[6] not in (_ENV_SCALAR, _ENV_ARRAY) or b[7] != 0):
+            raise StateError(f"data ({len(b)} bytes): not a saved pyfracconv stepper "
+                             "(wrong magic or truncated)")
+        blob = memoryview(b)[_ENV_LEN:]
+        pp = ffi.new("fc_solver **")
+        st = lib.fc_solver_load(ffi.from_buffer("unsigned char[]", blob), len(blob), pp)
+        if st == lib.FC_ERR_FORMAT:
+            raise StateError(f"data ({len(b)} bytes): truncated, corrupted or not a "
+                             "saved stepper of this version; nothing was loaded")
+        raise_for_status(st, "load")
+        s = ffi.gc(pp[0], lib.fc_solver_free)
+        mp = ffi.new("size_t *")
+        raise_for_status(lib.fc_solver_dim(s, mp), "load")
+        m = int(mp[0])
+        scalar = b[6] == _ENV_SCALAR
+        if scalar and m != 1:
+            raise StateError(f"data: marked scalar but holds {m} components")
+        # method and memory from the C bytes the loader accepted
+        method = _METHOD_NAMES[int.from_bytes(b[_ENV_LEN + 12:_ENV_LEN + 16], "little")]
+        memory = _MEMORY_NAMES[int.from_bytes(b[_ENV_LEN + 16:_ENV_LEN + 20], "little")]
+        if jacobian is not None and method not in IMPLICIT:
+            raise ArgumentError(f"jacobian: only used by the implicit methods (method={method!r})")
+        # the horizon, bytes 56..64 of the C format (csrc/solver.c)
+        horizon = struct.unpack_from("<d", b, _ENV_LEN + 56)[0]
+        self = cls.__new__(cls)
+        self._init(s, m, scalar, method, memory, rhs, jacobian, horizon)
+        return self
+
+
+# ------------------------------------------------------------ solve
+
+def _tqdm():
+    try:
+        from tqdm import tqdm
+    except ImportError:
+        raise ImportError(
+            "progress=True needs the optional dependency tqdm: install it with "
+            "pip install 'pyfracconv[progress]' (or pip install tqdm)"
+        ) from None
+    return tqdm
+
+
+def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
+          method="predictor-corrector", memory="exact", tol=1e-12, horizon=None,
+          jacobian=None, corrections=1, progress=False, newton_tol=1e-12,
+          newton_maxiter=50):
+    """Solve the Caputo initial value problem D^a y = f(t, y) on
+    t_n = t0 + n*step, n = 0 .. n_steps.
+
+    Parameters
+    ----------
+    rhs : callable
+        ``rhs(t, y)``: y a float for a scalar ``y0`` (return a number), else
+        a read-only array of shape (m,) reused on every call (return shape
+        (m,)).
+    y0 : float or array_like of shape (m,)
+        y(t0).
+    order : float or array_like of shape (m,)
+        The order a, 0 < a <= 2, one for all components or one per
+        component.
+    step : float
+        Grid step h > 0.
+    n_steps : int
+        Number of steps, >= 0.
+    dy0 : float or array_like, optional
+        y'(t0); required when some order exceeds 1, refused otherwise.
+    t0 : float, optional
+    method : {'predictor-corrector', 'rectangle', 'trapezoid', 'implicit-rectangle'}, optional
+        Explicit product rectangle rule (order 1); the predictor-corrector
+        of Diethelm, Ford and Freed 2002 (order min(2, 1+a) for smooth
+        solutions); the implicit product trapezoidal rule with Newton's
+        method (Garrappa 2015), order 2, for stiff problems with smooth
+        solutions; the implicit product rectangle rule (right end points,
+        order 1, exact memory only), strongly damped, for stiff problems
+        whose solution is not smooth at t0.
+    memory : {'exact', 'compressed'}, optional
+        Exact history sums (O(N log^2 N) work in all, memory grows with N)
+        or compressed ones (bounded memory, relative tolerance ``tol`` over
+        ``horizon`` steps; orders < 1 for the methods using the trapezoid
+        rule, < 2 for ``'rectangle'``).
+    tol : float, optional
+        Tolerance of the compressed history sums, in [1e-15, 1e-2].
+    horizon : float, optional
+        Steps the compressed tolerance is promised for, and the steps
+        ``'implicit-rectangle'`` can take (default n_steps).
+    jacobian : callable, optional
+        ``jacobian(t, y)`` -> df/dy, shape (m, m) (a number for a scalar
+        problem); implicit methods only; default forward differences.
+    corrections : int, optional
+        Corrector passes of ``'predictor-corrector'`` (1 .. 100).
+    progress : bool, optional
+        A progress bar (needs the optional ``progress`` extra, tqdm).
+    newton_tol, newton_maxiter : optional
+        Newton's method of the implicit methods: relative residual tolerance and
+        iteration limit per step.
+
+    Returns
+    -------
+    SolveResult
+        ``t`` (n_steps+1,), ``y`` (n_steps+1,) or (n_steps+1, m),
+        ``rhs_evals``, ``jac_evals``; unpacks as ``t, y``.
+
+    Raises
+    ------
+    ArgumentError, InputTypeError
+        Bad arguments, before any work.
+    RhsError
+        rhs (or jacobian) raised, returned a wrong shape or a NaN or
+        infinite value; ``.partial`` holds the solution up to the last good
+        step, ``.step`` and ``.time`` say where.
+    NewtonError
+        Newton's method did not converge (with ``.partial``).
+    """
+    n = check_count("n_steps", n_steps, 0, SIZE_MAX - 1)
+    if not isinstance(progress, (bool, np.bool_)):
+        raise InputTypeError(f"progress={show(progress)}: expected True or False")
+    bar_cls = _tqdm() if progress else None
+    if horizon is None and (memory == "compressed" or method == "implicit-rectangle"):
+        horizon = max(n, 1)
+    st = Stepper(rhs, y0, order, step, dy0=dy0, t0=t0, method=method, memory=memory,
+                 tol=tol, horizon=horizon, jacobian=jacobian, corrections=corrections,
+                 newton_tol=newton_tol, newton_maxiter=newton_maxiter)
+    m = st._m
+    last = st.t + n * check_step(step)
+    if not math.isfinite(last):
+        raise ArgumentError(f"t0={show(t0)}, step={show(step)}, n_steps={n}: the last "
+                            "time is beyond the double range")
+    check_bytes(f"n_steps={n}", 8 * (n + 1) * (m + 1))
+    try:
+        t = np.empty(n + 1)
+        y = np.empty((n + 1, m))
+    except MemoryError:
+        raise OutOfMemory(f"n_steps={n}: could not allocate the result") from None
+    t[0] = st.t
+    y[0] = st.y
+    shape = (lambda a: a[:, 0]) if st._scalar else (lambda a: a)
+
+    def partial(k):
+        return SolveResult(t[:k + 1].copy(), shape(y[:k + 1].copy()), *st._counts(),
+                           st._method, st._memory)
+
+    with st._lock:
+        if bar_cls is None:
+            st._advance_into(n, t[1:], y[1:], lambda k: partial(k))
+        else:
+            chunk = max(1, n // 200)
+            with bar_cls(total=n, unit="step") as bar:
+                j = 0
+                while j < n:
+                    c = min(chunk, n - j)
+                    st._advance_into(c, t[1 + j:1 + j + c], y[1 + j:1 + j + c],
+                                     lambda k, j=j: partial(j + k))
+                    j += c
+                    bar.update(c)
+    rc, jc = st._counts()
+    return SolveResult(t, shape(y), rc, jc, st._method, st._memory)
