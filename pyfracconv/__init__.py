@@ -26,6 +26,7 @@ c_version = _ffi.string(_lib.fc_version_string()).decode()
 
 from .stream import Stream
 from .solve import NewtonError, RhsError, SolveResult, SolverError, Stepper, solve
+from .control import Controller, HorizonWarning
 
 __all__ = [
     "weights",
@@ -37,6 +38,8 @@ __all__ = [
     "solve",
     "Stepper",
     "SolveResult",
+    "Controller",
+    "HorizonWarning",
     "SolverError",
     "RhsError",
     "NewtonError",
