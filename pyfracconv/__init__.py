@@ -27,6 +27,7 @@ c_version = _ffi.string(_lib.fc_version_string()).decode()
 from .stream import Stream
 from .solve import NewtonError, RhsError, SolveResult, SolverError, Stepper, solve
 from .control import Controller, HorizonWarning
+from .frequency import FrequencyResponse, controller_response, operator_response
 
 __all__ = [
     "weights",
@@ -40,6 +41,9 @@ __all__ = [
     "SolveResult",
     "Controller",
     "HorizonWarning",
+    "FrequencyResponse",
+    "operator_response",
+    "controller_response",
     "SolverError",
     "RhsError",
     "NewtonError",
