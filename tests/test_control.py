@@ -280,3 +280,41 @@ def test_refusals_leave_controller_unchanged():
                dict(kd=1.0, derivative_order=1.5)]:
         with pytest.raises(pf.ArgumentError):
             make(**kw)
+
+
+def _parts(blob):
+    """(fixed part, integral stream bytes, derivative stream bytes) of a
+    controller blob (layout in csrc/controller.c)."""
+    off = 248
+    ni = struct.unpack_from("<Q", blob, off)[0]
+    si = blob[off + 8:off + 8 + ni]
+    off += 8 + ni
+    nd = struct.unpack_from("<Q", blob, off)[0]
+    sd = blob[off + 8:off + 8 + nd]
+    return blob[:248], si, sd
+
+
+def _assemble(fixed, si, sd):
+    body = (fixed + struct.pack("<Q", len(si)) + si + struct.pack("<Q", len(sd)) + sd)
+    return body + struct.pack("<Q", _fnv(body))
+
+
+@pytest.mark.parametrize("memory", ["compressed", "exact"])
+def test_forged_embedded_streams_refused(memory):
+    kw = dict(kp=1.0, ki=0.5, kd=0.1, memory=memory)
+    a = make(integral_order=0.5, **kw)
+    b = make(integral_order=0.6, **kw)          # another order
+    short = make(integral_order=0.5, **kw)      # another count
+    for c in (a, b):
+        c.update_block(np.ones(50), np.zeros(50))
+    short.update_block(np.ones(49), np.zeros(49))
+    fa, ia, da = _parts(a.save())
+    assert pf.Controller.load(_assemble(fa, ia, da)).count == 50  # reassembly is right
+    _, ib, _ = _parts(b.save())
+    _, ishort, dshort = _parts(short.save())
+    for forged in (_assemble(fa, ib, da),            # integral of order 0.6
+                   _assemble(fa, ishort, dshort),    # streams at 49 samples
+                   _assemble(fa, da, ia),            # streams swapped
+                   _assemble(fa, b"", da)):          # integral stream missing
+        with pytest.raises(pf.StateError):
+            pf.Controller.load(forged)
