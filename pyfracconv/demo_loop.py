@@ -83,8 +83,13 @@ def simulate(memory, steps=STEPS):
     q = np.empty(steps)
     th, qn = 0.0, 0.0
     upd, push = c.update, plant.push
+    # a bumpless start: the first output is the heater's present value (0,
+    # manual), so the rate limit holds from the first step on
+    c.manual(0.0)
     t0 = time.perf_counter()
     for n in range(steps):
+        if n == 1:
+            c.automatic()
         # theta_n from the fluxes before n (rectangle rule, explicit)
         th = gain * push(qn - H_CONV * th)
         qn = upd(SETPOINT, th)
@@ -126,7 +131,8 @@ def _plots(out_dir, t, runs, files):
     fig.savefig(p1 + ".tmp.png", dpi=100)
     os.replace(p1 + ".tmp.png", p1)
     plt.close(fig)
-    w = np.logspace(-4, math.log10(math.pi / STEP), 200)
+    # from 1e-2 rad/s: below, the 65536-lag series' bound is no longer small
+    w = np.logspace(-2, math.log10(math.pi / STEP), 200)
     r = controller_response(make_controller("exact"), w)
     fig, ax = plt.subplots(2, 1, sharex=True, figsize=(8, 6))
     ax[0].loglog(w, r.magnitude, label="discrete controller")
