@@ -450,29 +450,33 @@ int fc_controller_save(const fc_controller *c, unsigned char *buf, size_t size,
                          (uint32_t)p->anti_windup, (uint32_t)p->memory,
                          (uint32_t)c->manual, (uint32_t)c->have_prev,
                          (uint32_t)c->limited, 0};
-    /* Stream bytes go to the caller's buffer only once all are known good:
-       write them first at their places (buf is ours to fill). */
+    /* Written to a private copy first: the caller's buffer is touched only
+       once every part (the streams' own saves included) has succeeded. */
+    unsigned char *tmp = malloc(need);
+    if (!tmp) return FC_ERR_NOMEM;
     size_t off = 0;
-    memcpy(buf, MAGIC, 8);
-    put_u32(buf + 8, 1);
-    put_u32(buf + 12, 0);
+    memcpy(tmp, MAGIC, 8);
+    put_u32(tmp + 8, 1);
+    put_u32(tmp + 12, 0);
     off = 16;
-    for (int k = 0; k < NDBL; k++, off += 8) put_dbl(buf + off, d[k]);
-    for (int k = 0; k < NINT; k++, off += 4) put_u32(buf + off, in[k]);
-    put_u64(buf + off, c->count);
+    for (int k = 0; k < NDBL; k++, off += 8) put_dbl(tmp + off, d[k]);
+    for (int k = 0; k < NINT; k++, off += 4) put_u32(tmp + off, in[k]);
+    put_u64(tmp + off, c->count);
     off += 8;
     fc_stream *ss[2] = {c->si, c->sd};
     for (int k = 0; k < 2; k++) {
         size_t w = 0;
         if (ss[k]) {
-            st = fc_stream_save(ss[k], buf + off + 8, need - 8 - off - 8, &w);
-            if (st) return st;
+            st = fc_stream_save(ss[k], tmp + off + 8, need - 8 - off - 8, &w);
+            if (st) { free(tmp); return st; }
         }
-        put_u64(buf + off, (uint64_t)w);
+        put_u64(tmp + off, (uint64_t)w);
         off += 8 + w;
     }
-    put_u64(buf + off, fnv1a(buf, off));
+    put_u64(tmp + off, fnv1a(tmp, off));
     off += 8;
+    memcpy(buf, tmp, off);
+    free(tmp);
     *written = off;
     return FC_OK;
 }

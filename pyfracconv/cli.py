@@ -524,6 +524,9 @@ def _run_operator(args):
         if args.input != "-" or args.output != "-":
             raise CliError("--live reads standard input and writes standard "
                            "output: use INPUT '-' and -o -")
+        if args.columns is not None:
+            raise CliError("--columns is not available with --live (every data "
+                           "column is processed; --time-column excepted)")
         from .stream import Stream
         make = Stream.integral if kind == "integral" else Stream.derivative
         state = {}
@@ -588,6 +591,10 @@ def _run_control(args):
         if args.input != "-" or args.output != "-":
             raise CliError("--live reads standard input and writes standard "
                            "output: use INPUT '-' and -o -")
+        if args.columns is not None:
+            raise CliError("--columns is not available with --live (the data "
+                           "columns are setpoint, measurement; --time-column "
+                           "excepted)")
         args.step_value = step
         upd = ctl.update
 

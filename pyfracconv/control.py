@@ -91,7 +91,10 @@ class Controller:
         Output limits, low < high; infinite for none.
     rate_limit : float
         Largest change of the output per unit time (> 0; inf for none): each
-        sample moves by at most ``rate_limit * step``.
+        sample moves by at most ``rate_limit * step``, from the second
+        output on (the first has no predecessor): for a bumpless start,
+        take the first output in :meth:`manual` mode at the actuator's
+        present value, then switch to :meth:`automatic`.
     setpoint_weight, derivative_weight : float
         b and c: e_p = b r - y, e_d = c r - y. ``derivative_weight=0`` is
         derivative on the measurement (no derivative kick on setpoint steps).
