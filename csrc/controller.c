@@ -205,12 +205,27 @@ static int update1(fc_controller *c, double r, double y, double *uout)
         if (u != v && c->si && p->anti_windup == FC_AW_CONDITIONAL && xi != 0) {
             double push = p->ki * xi;
             if ((v > u && push > 0) || (v < u && push < 0)) {
+                /* Integrate only the part of e that takes the unlimited
+                   output to the limit (0 if it is there without e): the
+                   integral is affine in the new sample. */
+                double ve = v, ue = u, e0 = xi;
                 xi = 0;
                 st = fc_stream_preview(c->si, &xi, &iv);
                 if (st) return st;
                 I = p->ki * iv;
                 v = P + I + D + bias;
                 u = limit(c, v);
+                if ((ve > ue && v < ue) || (ve < ue && v > ue)) {
+                    double f = (ue - v) / (ve - v);
+                    if (f > 0 && f < 1) {
+                        xi = e0 * f;
+                        st = fc_stream_preview(c->si, &xi, &iv);
+                        if (st) return st;
+                        I = p->ki * iv;
+                        v = P + I + D + bias;
+                        u = limit(c, v);
+                    }
+                }
             }
         }
         limited = (u != v);

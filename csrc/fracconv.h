@@ -479,7 +479,9 @@ const char *fc_solver_strerror(int status);
  * Anti-windup (FC_AW_CONDITIONAL, the default): conditional integration.
  * When the output is limited (by the limits or the rate limit) and Ki*e
  * would drive the unlimited output further in the direction of the limit,
- * 0 is pushed into the integral's history instead of e. The history keeps
+ * only the part of e that brings the unlimited output to the limit is
+ * pushed into the integral's history (0 if it is beyond the limit without
+ * e; the integral is affine in the new sample). The history keeps
  * every earlier sample: for lambda < 1 the integral action then relaxes
  * (I^lambda of past samples changes with time) rather than holding still.
  * FC_AW_NONE pushes e always (for comparison).

@@ -104,8 +104,10 @@ class Controller:
         0: no filter.
     anti_windup : bool
         Conditional integration (default True): while the output is limited
-        and the error would drive it further into the limit, 0 enters the
-        integral's history instead of the error. The history keeps all
+        and the error would drive it further into the limit, only the part
+        of the error that brings the unlimited output to the limit enters the
+        integral's history (0 if it is beyond the limit without the error).
+        The history keeps all
         earlier samples, so for lambda < 1 the integral action relaxes
         (I^lambda of past samples changes with time) rather than freezing.
     integral_rule : {"trapezoid", "rectangle"} or None

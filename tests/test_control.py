@@ -318,3 +318,25 @@ def test_forged_embedded_streams_refused(memory):
                    _assemble(fa, b"", da)):          # integral stream missing
         with pytest.raises(pf.StateError):
             pf.Controller.load(forged)
+
+
+def test_anti_windup_under_the_rate_limit():
+    # Static plant y = u, setpoint 5, rate limit 1 per unit time (0.1 per
+    # sample): the output ramps. Without anti-windup the integral winds
+    # during the ramp and the output overshoots to about 7.4; with
+    # conditional integration it approaches 5 from below (measured max
+    # 4.98).
+    def peak(aw):
+        c = make(kp=1.0, ki=2.0, integral_order=0.8, step=0.1, rate_limit=1.0,
+                 anti_windup=aw)
+        c.manual(0.0)
+        c.update(0.0, 0.0)
+        c.automatic()
+        y, top = 0.0, 0.0
+        for _ in range(600):
+            y = c.update(5.0, y)
+            top = max(top, y)
+        return top, y
+    top, last = peak(True)
+    assert 4.9 < top <= 5.0 and abs(last - 5.0) < 0.2
+    assert peak(False)[0] > 7.0
