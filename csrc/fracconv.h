@@ -553,6 +553,130 @@ FC_API int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out
 /* Statuses: none (returns a static message). */
 FC_API const char *fc_solver_strerror(int status);
 
+
+/*
+ * Controller: the fractional PID law of Podlubny (IEEE Trans. Automatic
+ * Control 44, 1999) on sampled signals, t_n = n*step:
+ *     u = Kp e_p + Ki I^lambda e + D_f + bias,
+ *     e = r - y,  e_p = b r - y,  e_d = c r - y,
+ *     D_f: Kd D^mu e_d through the first-order filter
+ *          D_f[n] = (Tf D_f[n-1] + h Kd D^mu e_d[n]) / (Tf + h)  (Tf = 0: none),
+ * r the setpoint, y the measurement, b and c the setpoint weights of the
+ * proportional and derivative actions (c = 0: derivative on the measurement),
+ * the output limited to [out_min, out_max] and its change per sample to
+ * rate_limit*step (Astrom and Hagglund, Advanced PID Control, ISA 2006, for
+ * setpoint weighting, derivative filtering, anti-windup and bumpless
+ * transfer). I^lambda and D^mu are streams (fc_stream_create) of the rules
+ * integral_rule (RECTANGLE or TRAPEZOID) and derivative_rule (GRUNWALD or
+ * L1); an action whose gain is 0 keeps no stream.
+ *
+ * Anti-windup (FC_AW_CONDITIONAL, the default): conditional integration.
+ * When the output is limited (by the limits or the rate limit) and Ki*e
+ * would drive the unlimited output further in the direction of the limit,
+ * only the part of e that brings the unlimited output to the limit is
+ * pushed into the integral's history (0 if it is beyond the limit without
+ * e; the integral is affine in the new sample). The history keeps
+ * every earlier sample: for lambda < 1 the integral action then relaxes
+ * (I^lambda of past samples changes with time) rather than holding still.
+ * FC_AW_NONE pushes e always (for comparison).
+ *
+ * Manual mode (fc_controller_set_manual): the output is the manual value
+ * (clamped to the limits); the streams still receive the signals (the
+ * integral receives 0, so it does not wind up while the loop is open) and
+ * the bias tracks u_manual - (P + I + D), so that switching back to
+ * automatic gives no jump; the bias is then held.
+ *
+ * Memory: FC_MODE_COMPRESSED (bounded memory and work per update; the
+ * orders the compressed streams accept: 0 < order < 1, also 1 <= order < 2
+ * for RECTANGLE) or FC_MODE_EXACT. Compressed streams are created with
+ * FC_HORIZON_CONTINUE: past the horizon the controller keeps running
+ * (stopping a controller mid-run is the greater hazard) and
+ * fc_controller_status reports FC_CTRL_PAST_HORIZON.
+ *
+ * This software does not make a control system safe: validate in
+ * simulation and on the plant, keep actuator and rate limits in the
+ * hardware, and keep an independent safe stop that does not depend on it.
+ */
+#define FC_AW_NONE 0
+#define FC_AW_CONDITIONAL 1
+/* Bits of fc_controller_status. */
+#define FC_CTRL_LIMITED 1        /* the last output was limited (limits or rate) */
+#define FC_CTRL_PAST_HORIZON 2   /* a compressed stream is past its horizon */
+#define FC_CTRL_MANUAL 4         /* manual mode */
+
+typedef struct fc_controller_params {
+    double kp, ki, kd;               /* finite */
+    double integral_order;           /* as fc_stream_create for integral_rule */
+    double derivative_order;         /* as fc_stream_create for derivative_rule */
+    double step;                     /* finite, > 0 */
+    int integral_rule;               /* FC_RULE_RECTANGLE or FC_RULE_TRAPEZOID */
+    int derivative_rule;             /* FC_RULE_GRUNWALD or FC_RULE_L1 */
+    double out_min, out_max;         /* out_min < out_max; +-inf allowed, not NaN */
+    double rate_limit;               /* > 0 per unit time, +inf: none */
+    double setpoint_weight_p;        /* b, finite */
+    double setpoint_weight_d;        /* c, finite */
+    double filter_time;              /* Tf >= 0, finite; 0: no filter */
+    int anti_windup;                 /* FC_AW_* */
+    int memory;                      /* FC_MODE_EXACT or FC_MODE_COMPRESSED */
+    double tol, horizon;             /* compressed mode, as fc_stream_create */
+} fc_controller_params;
+
+typedef struct fc_controller fc_controller;
+
+/* Defaults: kp = 1, ki = kd = 0, orders 0.5, step 1, TRAPEZOID, GRUNWALD,
+   no limits, no rate limit, b = c = 1, Tf = 0, FC_AW_CONDITIONAL,
+   FC_MODE_COMPRESSED, tol 1e-10, horizon 1e9. */
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_controller_default_params(fc_controller_params *p);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (gains, limits, weights, filter, anti-windup scheme), FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_MODE, FC_ERR_TOL, FC_ERR_RANGE, FC_ERR_NOMEM. */
+FC_API int fc_controller_create(const fc_controller_params *p, fc_controller **out);
+/* Statuses: none (void; NULL is a no-op). */
+FC_API void fc_controller_free(fc_controller *c);
+/* One sample: setpoint r, measurement y (finite), output *u. Refused
+   (nothing changes) for non-finite input or a stream refusal. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_SIZE (nothing changes on any of them). */
+FC_API int fc_controller_update(fc_controller *c, double r, double y, double *u);
+/* n samples; u may not overlap r or y (FC_ERR_ARG). All inputs are
+   checked first (FC_ERR_NONFINITE: nothing changes). A stream refusal in
+   the middle (FC_ERR_RANGE) leaves the controller as after *done samples
+   (done may be NULL). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (overlap), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_SIZE, FC_ERR_NOMEM. */
+FC_API int fc_controller_update_block(fc_controller *c, const double *r,
+                                      const double *y, size_t n, double *u,
+                                      size_t *done);
+/* Manual mode with output u_manual (finite); automatic mode. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_NONFINITE. */
+FC_API int fc_controller_set_manual(fc_controller *c, double u_manual);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_controller_set_auto(fc_controller *c);
+/* Forget all samples, bias 0, automatic mode. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_controller_reset(fc_controller *c);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_controller_get_params(const fc_controller *c, fc_controller_params *p);
+/* FC_CTRL_* bits. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_controller_status(const fc_controller *c, int *status);
+/* The last update's terms: t[0] P, t[1] I (Ki times the integral), t[2]
+   filtered D, t[3] bias, t[4] unlimited sum, t[5] output. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_controller_terms(const fc_controller *c, double *t);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_controller_count(const fc_controller *c, uint64_t *count);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
+FC_API int fc_controller_nbytes(const fc_controller *c, size_t *nbytes);
+/* Save / load: little-endian, versioned, FNV-1a 64 checksummed; the
+   streams embedded as fc_stream_save blobs; every field bounded and
+   cross-checked on load (FC_ERR_FORMAT). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_SIZE. */
+FC_API int fc_controller_save_size(const fc_controller *c, size_t *size);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (buffer too small), FC_ERR_SIZE, FC_ERR_NOMEM. */
+FC_API int fc_controller_save(const fc_controller *c, unsigned char *buf,
+                              size_t size, size_t *written);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_FORMAT, FC_ERR_NOMEM. */
+FC_API int fc_controller_load(const unsigned char *buf, size_t size,
+                              fc_controller **out);
+
 /* ------------------------------------------------------------------
  * EXPERIMENTAL: the functions below may change or go in any version
  * (they are not part of the stable interface a C caller should depend

@@ -58,6 +58,8 @@ c_version = _ffi.string(_lib.fc_version_string()).decode()
 from .stream import Stream
 from .solve import NewtonError, RhsError, SolveResult, SolverError, Stepper, solve
 from .export import export_c
+from .control import Controller, HorizonWarning
+from .frequency import FrequencyResponse, controller_response, operator_response
 
 __all__ = [
     "weights",
@@ -70,6 +72,11 @@ __all__ = [
     "export_c",
     "Stepper",
     "SolveResult",
+    "Controller",
+    "HorizonWarning",
+    "FrequencyResponse",
+    "operator_response",
+    "controller_response",
     "SolverError",
     "RhsError",
     "NewtonError",

@@ -425,7 +425,8 @@ def test_usage_errors_exit_2(tmp_path, capsys):
 # ---------------------------------------------------------------- help, version, demo
 
 @pytest.mark.parametrize("argv", [["--help"], ["integral", "--help"],
-                                  ["derivative", "--help"], ["demo", "--help"]])
+                                  ["derivative", "--help"], ["demo", "--help"],
+                                  ["control", "--help"]])
 def test_help_carries_cautions(capsys, argv):
     code, out, _ = run(capsys, *argv)
     assert code == 0
@@ -440,8 +441,9 @@ def test_version(capsys):
     assert out.strip() == f"pyfracconv {pyfracconv.__version__}"
 
 
-def test_demo_passes_and_says_invented(capsys):
-    code, out, err = run(capsys, "demo")
+def test_demo_verify_passes_and_says_invented(capsys):
+    # the verification table, kept under --verify
+    code, out, err = run(capsys, "demo", "--verify")
     assert code == 0, out + err
     assert "invented" in out.lower()
     assert "PASS" in out and "FAIL" not in out
@@ -494,3 +496,159 @@ def test_python_dash_m(tmp_path):
     )
     assert proc.returncode == 2
     assert "gone.csv" in proc.stderr and "Traceback" not in proc.stderr
+
+
+# ---------------------------------------------------------------- the closed-loop demo
+
+def test_demo_closed_loop_writes_files_and_summary(tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    code, out, err = run(capsys, "demo", "--out-dir", tmp_path / "d")
+    assert code == 0, out + err
+    assert "INVENTED" in out and "CAUTION" in out
+    assert "loop settled with both memories" in out
+    for word in ("settling s", "overshoot %", "energy", "ctrl bytes",
+                 "largest deviation between memories"):
+        assert word in out
+    traj = tmp_path / "d" / "trajectory.csv"
+    lines = traj.read_text().splitlines()
+    assert lines[0].startswith("# invented")
+    assert lines[1] == "t,setpoint,theta_compressed,q_compressed,theta_exact,q_exact"
+    data = np.loadtxt(traj, delimiter=",", skiprows=2)
+    assert data.shape == (100000, 6)
+    # heater limits held; settles near the setpoint; memories agree
+    assert data[:, 3].min() >= 0 and data[:, 3].max() <= 60e3
+    assert abs(data[-1, 2] - 50) < 0.5
+    assert np.max(np.abs(data[:, 2] - data[:, 4])) < 1e-6
+    try:
+        import matplotlib  # noqa: F401
+        assert (tmp_path / "d" / "bode.png").exists()
+    except ImportError:
+        assert "pip install 'pyfracconv[plot]'" in out
+    assert not (tmp_path / "pyfracconv-demo").exists()
+
+
+# ---------------------------------------------------------------- options, files
+
+def test_option_messages_for_command_line_users(tmp_path, capsys):
+    src = tmp_path / "ok.csv"
+    write_csv(src, ["f"], np.ones((4, 1)))
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "abc",
+                       "--step", "1")
+    assert_clean_error(code, err, "--order abc: not a number")
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5",
+                       "--step=-1e-3")
+    assert_clean_error(code, err, "--step -1e-3: out of range", "positive")
+
+
+def test_output_may_not_be_the_input(tmp_path, capsys):
+    src = tmp_path / "ok.csv"
+    write_csv(src, ["f"], np.ones((4, 1)))
+    before = src.read_bytes()
+    code, _, err = run(capsys, "integral", src, "-o", src, "--order", "0.5",
+                       "--step", "1")
+    assert_clean_error(code, err, "is the input file")
+    assert src.read_bytes() == before
+
+
+def test_failed_write_keeps_previous_output(tmp_path, capsys, monkeypatch):
+    src, dst = tmp_path / "ok.csv", tmp_path / "out.csv"
+    write_csv(src, ["f"], np.ones((4, 1)))
+    dst.write_text("previous\n")
+
+    def boom(*a, **k):
+        raise OSError(28, "No space left on device")
+    monkeypatch.setattr(cli, "_write_csv", boom)
+    code, _, err = run(capsys, "integral", src, "-o", dst, "--order", "0.5",
+                       "--step", "1")
+    assert_clean_error(code, err, "cannot write", "No space left")
+    assert dst.read_text() == "previous\n"
+    # the temporary file is removed
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["ok.csv", "out.csv"]
+
+
+def test_comment_lines_and_delimiters(tmp_path, capsys):
+    src = tmp_path / "c.csv"
+    src.write_text("# logger export\nf\n1\n# note\n2\n3\n")
+    code, out, err = run(capsys, "integral", src, "-o", "-", "--order", "1",
+                         "--step", "1")
+    assert code == 0, err
+    assert out.splitlines() == ["f", "0.0", "1.0", "3.0"]  # rectangle: running sum
+    semi = tmp_path / "s.csv"
+    semi.write_text("1;2\n3;4\n")
+    code, _, err = run(capsys, "integral", semi, "-o", "-", "--order", "1",
+                       "--step", "1")
+    assert_clean_error(code, err, "--delimiter ';'")
+    code, out, err = run(capsys, "integral", semi, "-o", "-", "--order", "1",
+                         "--step", "1", "--delimiter", ";")
+    assert code == 0, err
+
+
+def test_control_command_equals_controller(tmp_path, capsys):
+    src = tmp_path / "loop.csv"
+    rng = np.random.default_rng(5)
+    x = np.c_[np.ones(50), rng.normal(size=50)]
+    write_csv(src, ["sp", "pv"], x)
+    code, out, err = run(capsys, "control", src, "-o", "-", "--kp", "2", "--ki",
+                         "0.5", "--integral-order", "0.7", "--step", "0.1",
+                         "--out-max", "3")
+    assert code == 0, err
+    got = numbers(out.splitlines()[1:])
+    want = pyfracconv.Controller(2.0, 0.5, 0.0, integral_order=0.7,
+                                 derivative_order=0.5, step=0.1,
+                                 output_limits=(-np.inf, 3)).update_block(x[:, 0], x[:, 1])
+    np.testing.assert_array_equal(got.ravel(), want)
+
+
+# ---------------------------------------------------------------- live
+
+def _live_proc(*args):
+    return subprocess.Popen([sys.executable, "-m", "pyfracconv", *args],
+                            stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True, bufsize=1)
+
+
+def test_live_first_line_arrives_before_stdin_closes():
+    p = _live_proc("integral", "-", "-o", "-", "--live", "--order", "1",
+                   "--step", "0.5", "--time-column", "1", "--time-tol", "1e-6")
+    try:
+        p.stdin.write("t,f\n")
+        p.stdin.write("0,2\n")
+        p.stdin.flush()
+        assert p.stdout.readline() == "t,f\n"     # header echoed at once
+        assert p.stdout.readline() == "0.0,0.0\n"  # rectangle: y_0 = 0
+        p.stdin.write("0.5,4\n")                # the slow producer's next line
+        p.stdin.flush()
+        assert p.stdout.readline() == "0.5,1.0\n"  # h * 2
+        p.stdin.write("1.2,4\n")                # time step 0.7, not 0.5
+        p.stdin.flush()
+        assert p.stdout.readline() == "1.2,3.0\n"
+        p.stdin.close()
+        assert p.wait(timeout=60) == 0
+        err = p.stderr.read()
+        assert "time step" in err and "--time-tol" in err
+    finally:
+        p.kill()
+
+
+def test_live_controller_and_closed_pipe():
+    p = _live_proc("control", "-", "-o", "-", "--live", "--kp", "2", "--step", "1")
+    try:
+        p.stdin.write("1,0.25\n")
+        p.stdin.flush()
+        assert float(p.stdout.readline()) == 1.5
+        p.stdout.close()                          # the reader goes away
+        for _ in range(200):
+            try:
+                p.stdin.write("1,0\n")
+                p.stdin.flush()
+            except BrokenPipeError:
+                break
+        try:
+            p.stdin.close()
+        except BrokenPipeError:
+            pass
+        p.wait(timeout=60)
+        err = p.stderr.read()
+        assert "Traceback" not in err
+    finally:
+        p.kill()
