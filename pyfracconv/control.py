@@ -33,7 +33,7 @@ import warnings
 
 import numpy as np
 
-from ._errors import ArgumentError, InputTypeError, StateError, raise_for_status
+from ._errors import ArgumentError, InputTypeError, raise_for_status
 from ._core import as_float_array, check_compressed, check_real, show
 from ._fracconv import ffi, lib
 
