@@ -34,6 +34,7 @@
 #include <string.h>
 
 #include "fracconv.h"
+#include "serial.h"
 
 #define SV_MAGIC "FCSOLVE1"
 #define SV_VERSION 1u
@@ -731,47 +732,16 @@ const char *fc_solver_strerror(int status)
 
 /* ------------------------------------------------------------ save/load */
 
-static void put_u64(unsigned char *p, uint64_t v)
-{
-    for (int i = 0; i < 8; i++) p[i] = (unsigned char)(v >> (8 * i));
-}
-static uint64_t get_u64(const unsigned char *p)
-{
-    uint64_t v = 0;
-    for (int i = 0; i < 8; i++) v |= (uint64_t)p[i] << (8 * i);
-    return v;
-}
-static void put_u32(unsigned char *p, uint32_t v)
-{
-    for (int i = 0; i < 4; i++) p[i] = (unsigned char)(v >> (8 * i));
-}
-static uint32_t get_u32(const unsigned char *p)
-{
-    uint32_t v = 0;
-    for (int i = 0; i < 4; i++) v |= (uint32_t)p[i] << (8 * i);
-    return v;
-}
-static void put_f64(unsigned char *p, double x)
-{
-    uint64_t v;
-    memcpy(&v, &x, 8);
-    put_u64(p, v);
-}
-static double get_f64(const unsigned char *p)
-{
-    uint64_t v = get_u64(p);
-    double x;
-    memcpy(&x, &v, 8);
-    return x;
-}
+/* The shared little-endian serializer and checksum (serial.h). */
+#define put_u64 fc__put64
+#define get_u64 fc__get64
+#define put_u32 fc__put32
+#define get_u32 fc__get32
+#define put_f64 fc__putd
+#define get_f64 fc__getd
 static uint64_t fnv1a(const unsigned char *p, size_t n)
 {
-    uint64_t h = UINT64_C(0xcbf29ce484222325);
-    for (size_t i = 0; i < n; i++) {
-        h ^= p[i];
-        h *= UINT64_C(0x100000001b3);
-    }
-    return h;
+    return fc__fnv1a(FC__FNV_OFFSET, p, n);
 }
 
 /*
