@@ -28,6 +28,8 @@ static inline int fc__add_size(size_t a, size_t b, size_t *r)
 }
 /* FC_OK if all n values are finite, FC_ERR_NONFINITE otherwise. */
 int fc__check_finite(const double *x, size_t n);
+/* Largest |v[i]| over n finite values (0 for n == 0). */
+double fc__max_abs(const double *v, size_t n);
 
 /*
  * The rule table (rules.c): one descriptor per rule, read by every engine

@@ -446,28 +446,6 @@ static int overlaps(const double *a, size_t na, const double *b, size_t nb)
     return pa < pb + nb * sizeof(double) && pb < pa + na * sizeof(double);
 }
 
-/* Largest |v[i]| and sum of |v[i]| (the latter only as a bound: four
-   partial sums, so that both loops vectorise). */
-static double max_abs(const double *v, size_t n)
-{
-    double m0 = 0.0, m1 = 0.0, m2 = 0.0, m3 = 0.0;
-    size_t i = 0;
-    for (; i + 4 <= n; i += 4) {
-        double t0 = fabs(v[i]), t1 = fabs(v[i + 1]);
-        double t2 = fabs(v[i + 2]), t3 = fabs(v[i + 3]);
-        m0 = t0 > m0 ? t0 : m0;
-        m1 = t1 > m1 ? t1 : m1;
-        m2 = t2 > m2 ? t2 : m2;
-        m3 = t3 > m3 ? t3 : m3;
-    }
-    for (; i < n; i++) {
-        double t = fabs(v[i]);
-        m0 = t > m0 ? t : m0;
-    }
-    m0 = m1 > m0 ? m1 : m0;
-    m2 = m3 > m2 ? m3 : m2;
-    return m2 > m0 ? m2 : m0;
-}
 
 static double sum_abs(const double *v, size_t n)
 {
@@ -598,7 +576,7 @@ static void signal_maxima(const double *x, size_t nsig, size_t n, long *ex,
                           double *xm)
 {
     for (size_t sg = 0; sg < nsig; sg++) {
-        double m = max_abs(x + sg * n, n);
+        double m = fc__max_abs(x + sg * n, n);
         xm[sg] = m;
         ex[sg] = m > 0.0 ? exponent_of(m) : 0;
     }
@@ -621,7 +599,7 @@ int fc_lagged_sum(fc_context *ctx, const double *x, size_t nsig, size_t n,
     if (fc__check_finite(kernel, klen) != FC_OK) return FC_ERR_KERNEL;
     if (fc__check_finite(x, total) != FC_OK) return FC_ERR_NONFINITE;
     size_t K = klen < n ? klen : n;
-    double cmax = max_abs(kernel, K);
+    double cmax = fc__max_abs(kernel, K);
     if (cmax == 0.0) {
         memset(y, 0, total * sizeof(double));
         return FC_OK;
@@ -767,7 +745,7 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
     /* |x 2^-ex| <= xs (differences: 2 xs), so
        |z_n| <= (sum|c| + max|corr|) xs, twice that for differences */
     double cb = (sum_abs(c, n) * (diffs ? 2.0 : 1.0)
-                 + (corr ? max_abs(cr, n) : 0.0)) * (1.0 + 1e-6);
+                 + (corr ? fc__max_abs(cr, n) : 0.0)) * (1.0 + 1e-6);
     int safe = 1;
     for (size_t sg = 0; sg < nsig; sg++) {
         double xs = ldexp(xm[sg], -(int)T[sg]);

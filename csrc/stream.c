@@ -307,21 +307,8 @@ static void level_free(fc__level *L)
 
 static int scale_exponent(const double *v, size_t n, int *zero)
 {
-    double m0 = 0.0, m1 = 0.0, m2 = 0.0, m3 = 0.0, mx;
+    double mx = fc__max_abs(v, n);
     int e = 0;
-    size_t i = 0;
-    for (; i + 4 <= n; i += 4) { /* four chains (n is a multiple of 64) */
-        double a0 = fabs(v[i]), a1 = fabs(v[i + 1]);
-        double a2 = fabs(v[i + 2]), a3 = fabs(v[i + 3]);
-        m0 = a0 > m0 ? a0 : m0;
-        m1 = a1 > m1 ? a1 : m1;
-        m2 = a2 > m2 ? a2 : m2;
-        m3 = a3 > m3 ? a3 : m3;
-    }
-    for (; i < n; i++) m0 = fabs(v[i]) > m0 ? fabs(v[i]) : m0;
-    m0 = m1 > m0 ? m1 : m0;
-    m2 = m3 > m2 ? m3 : m2;
-    mx = m2 > m0 ? m2 : m0;
     *zero = mx == 0.0;
     if (mx != 0.0 && !(mx >= 0x1p-400 && mx <= 0x1p400)) (void)frexp(mx, &e);
     return e;
@@ -796,12 +783,10 @@ static int ex_history(fc_stream *s, double *h)
 static int ex_block_safe(const fc_stream *s, const double *x, size_t tot,
                          uint64_t n_end)
 {
-    double m = 0.0;
-    for (size_t i = 0; i < tot; i++) m = fabs(x[i]) > m ? fabs(x[i]) : m;
+    double m = fc__max_abs(x, tot);
     if (s->diffs) {
-        for (size_t c = 0; c < s->C; c++)
-            m = fabs(s->xprev[c]) > m ? fabs(s->xprev[c]) : m;
-        m *= 2.0;
+        double p = fc__max_abs(s->xprev, s->C);
+        m = 2.0 * (p > m ? p : m);
     }
     if (s->umax > m) m = s->umax;
     if (m == 0.0 || !isfinite(m)) return m == 0.0;

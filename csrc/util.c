@@ -58,3 +58,26 @@ int fc__check_finite(const double *x, size_t n)
     for (; i < n; i++) acc += x[i] - x[i];
     return acc == 0.0 ? FC_OK : FC_ERR_NONFINITE;
 }
+
+double fc__max_abs(const double *v, size_t n)
+{
+    /* four chains, so that the loop vectorises; the maximum is exact, so
+       the order does not matter */
+    double m0 = 0.0, m1 = 0.0, m2 = 0.0, m3 = 0.0;
+    size_t i = 0;
+    for (; i + 4 <= n; i += 4) {
+        double t0 = fabs(v[i]), t1 = fabs(v[i + 1]);
+        double t2 = fabs(v[i + 2]), t3 = fabs(v[i + 3]);
+        m0 = t0 > m0 ? t0 : m0;
+        m1 = t1 > m1 ? t1 : m1;
+        m2 = t2 > m2 ? t2 : m2;
+        m3 = t3 > m3 ? t3 : m3;
+    }
+    for (; i < n; i++) {
+        double t = fabs(v[i]);
+        m0 = t > m0 ? t : m0;
+    }
+    m0 = m1 > m0 ? m1 : m0;
+    m2 = m3 > m2 ? m3 : m2;
+    return m2 > m0 ? m2 : m0;
+}
