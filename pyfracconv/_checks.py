@@ -13,7 +13,7 @@ from __future__ import annotations
 import numbers
 import os
 import sys
-from typing import Dict, Optional, Tuple
+from typing import Dict, List, Optional, Tuple
 
 import numpy as np
 from numpy.typing import NDArray
@@ -26,7 +26,7 @@ from ._errors import (
     SampleError,
     show,
 )
-from ._fracconv import lib
+from ._fracconv import ffi, lib
 
 __all__ = [
     "RULES",
@@ -36,6 +36,9 @@ __all__ = [
     "MODES",
     "POLICIES",
     "MAX_ORDER",
+    "order_range",
+    "range_text",
+    "in_range",
     "INDEX_LIMIT",
     "COMPRESSED_TOL_RANGE",
     "COMPRESSED_HORIZON_RANGE",
@@ -63,14 +66,29 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 
-RULES: Dict[str, int] = {
-    "rectangle": int(lib.FC_RULE_RECTANGLE),
-    "trapezoid": int(lib.FC_RULE_TRAPEZOID),
-    "grunwald": int(lib.FC_RULE_GRUNWALD),
-    "l1": int(lib.FC_RULE_L1),
-}
-INTEGRAL_RULES: Tuple[str, ...] = ("rectangle", "trapezoid")
-DERIVATIVE_RULES: Tuple[str, ...] = ("grunwald", "l1")
+
+
+def _rule_table() -> Tuple[Dict[str, int], Tuple[str, ...], Tuple[str, ...]]:
+    """The rule names and kinds, read from the C core's rule table
+    (fc_rule_count, fc_rule_info): Python keeps no copy of its own."""
+    n = ffi.new("int *")
+    if lib.fc_rule_count(n):  # pragma: no cover - cannot fail with a pointer
+        raise RuntimeError("fc_rule_count failed")
+    name = ffi.new("const char **")
+    deriv = ffi.new("int *")
+    rules: Dict[str, int] = {}
+    integ: List[str] = []
+    der: List[str] = []
+    for code in range(n[0]):
+        if lib.fc_rule_info(code, name, deriv):  # pragma: no cover
+            raise RuntimeError(f"fc_rule_info({code}) failed")
+        text = ffi.string(name[0]).decode("ascii")
+        rules[text] = code
+        (der if deriv[0] else integ).append(text)
+    return rules, tuple(integ), tuple(der)
+
+
+RULES, INTEGRAL_RULES, DERIVATIVE_RULES = _rule_table()
 ENGINES: Dict[str, int] = {
     "auto": int(lib.FC_ENGINE_AUTO),
     "direct": int(lib.FC_ENGINE_DIRECT),
@@ -87,7 +105,62 @@ POLICIES: Dict[str, int] = {
     "refuse": int(lib.FC_HORIZON_REFUSE),
     "continue": int(lib.FC_HORIZON_CONTINUE),
 }
-MAX_ORDER = 10.0
+
+
+OrderRange = Tuple[float, bool, float, bool]
+
+
+def order_range(rule: str, mode: int) -> OrderRange:
+    """(lo, lo_inclusive, hi, hi_inclusive): the orders ``rule`` accepts in
+    stream mode ``mode`` (FC_MODE_EXACT also covers the batch functions),
+    as the C core's rule table states them (fc_rule_order_range)."""
+    key = (rule, int(mode))
+    got = _RANGES.get(key)
+    if got is None:
+        lo, loi = ffi.new("double *"), ffi.new("int *")
+        hi, hii = ffi.new("double *"), ffi.new("int *")
+        st = lib.fc_rule_order_range(RULES[rule], int(mode), lo, loi, hi, hii)
+        if st:  # pragma: no cover - rule and mode come from the tables above
+            raise RuntimeError(f"fc_rule_order_range({rule!r}, {mode}) failed: {st}")
+        got = (float(lo[0]), bool(loi[0]), float(hi[0]), bool(hii[0]))
+        _RANGES[key] = got
+    return got
+
+
+_RANGES: Dict[Tuple[str, int], OrderRange] = {}
+
+
+def range_text(r: OrderRange) -> str:
+    """An order range as text, e.g. ``0 < order <= 10``."""
+    lo, loi, hi, hii = r
+    left = f"{lo:g} {'<=' if loi else '<'} order"
+    return f"{left} {'<=' if hii else '<'} {hi:g}"
+
+
+def compressed_text() -> str:
+    """What compressed streams take, from the rule table: the range every
+    rule shares and each rule's extension beyond it, e.g. ``0 < order < 1
+    with every rule, and 1 <= order < 2 with rule='rectangle'`` (the
+    smallest order, 1e-280, is left out of this summary)."""
+    mode = int(lib.FC_MODE_COMPRESSED)
+    ranges = {name: order_range(name, mode) for name in RULES}
+    common = min(r[2] for r in ranges.values())
+    parts = [f"0 < order < {common:g} with every rule"]
+    for name, (_lo, _loi, hi, hii) in ranges.items():
+        if hi > common:
+            parts.append(f"{common:g} <= order {'<=' if hii else '<'} {hi:g} "
+                         f"with rule={name!r}")
+    return ", and ".join(parts)
+
+
+def in_range(r: OrderRange, a: float) -> bool:
+    """Whether a finite order a lies in the range r."""
+    lo, loi, hi, hii = r
+    return (lo <= a if loi else lo < a) and (a <= hi if hii else a < hi)
+
+
+# The largest order any rule accepts (the batch functions and exact streams).
+MAX_ORDER = max(order_range(r, int(lib.FC_MODE_EXACT))[2] for r in RULES)
 INDEX_LIMIT = 2**53
 # Compressed streams (fc_stream_create in csrc/fracconv.h, fc__cs_create in
 # csrc/compressed.c): tol in [1e-15, 1e-2]; horizon in [1, 2**53 - 2], the
@@ -186,17 +259,28 @@ def check_real(name: str, value: object) -> float:
         ) from None
 
 
-def check_order(order: object, rule: object) -> float:
-    """The order as a float: finite, 0 < order <= MAX_ORDER, and below 1
-    for the 'l1' rule."""
+def check_order(order: object, rule: object, mode: Optional[int] = None) -> float:
+    """The order as a float, in the range the C core's rule table gives
+    ``rule`` (a name of RULES, already checked) in stream mode ``mode``
+    (None or FC_MODE_EXACT: the batch functions and exact streams)."""
     a = check_real("order", order)
     if not np.isfinite(a) or a <= 0.0:
         raise ArgumentError(f"order={show(order)}: must be finite and > 0")
-    if a > MAX_ORDER:
-        raise ArgumentError(f"order={show(order)}: must be <= {MAX_ORDER:g}")
-    if rule == "l1" and a >= 1.0:
+    m = int(lib.FC_MODE_EXACT) if mode is None else int(mode)
+    r = order_range(str(rule), m)
+    if not in_range(r, a):
+        if m == int(lib.FC_MODE_COMPRESSED):
+            exact = range_text(order_range(str(rule), int(lib.FC_MODE_EXACT)))
+            if a < r[0] or (a == r[0] and not r[1]):
+                need = f"needs order {'>=' if r[1] else '>'} {r[0]:g}"
+            else:
+                need = f"with rule={show(rule)} needs {range_text(r)}; it takes {compressed_text()}"
+            raise ArgumentError(
+                f"order={show(order)}: mode='compressed' {need} "
+                f"(use mode='exact', which takes {exact} with this rule)"
+            )
         raise ArgumentError(
-            f"order={show(order)}: the 'l1' rule (Caputo) needs 0 < order < 1"
+            f"order={show(order)}: rule={show(rule)} needs {range_text(r)}"
         )
     return a
 

@@ -40,7 +40,9 @@ from ._core import (
     integral,
     show,
 )
+from ._checks import order_range, range_text
 from ._errors import FracconvError
+from ._fracconv import lib
 
 __all__ = ["main", "CAUTION"]
 
@@ -631,6 +633,12 @@ def _wrap(text):
     return textwrap.fill(" ".join(text.split()), width=76, break_on_hyphens=False)
 
 
+def _order_text(rule):
+    """The orders a rule takes (batch and exact streams), from the C core's
+    rule table, written with A for the order."""
+    return range_text(order_range(rule, int(lib.FC_MODE_EXACT))).replace("order", "A")
+
+
 def _add_operator(sub, name, rules, default, what, description):
     p = sub.add_parser(
         name,
@@ -644,8 +652,8 @@ def _add_operator(sub, name, rules, default, what, description):
     p.add_argument("-o", "--output", metavar="OUTPUT", required=True,
                    help="output file, .csv or .npy ('-': CSV on standard output)")
     p.add_argument("--order", metavar="A", required=True,
-                   help="order of the operator, 0 < A <= 10"
-                        + (" (rule l1: 0 < A < 1)" if name == "derivative" else ""))
+                   help="order of the operator ("
+                        + "; ".join(f"{r}: {_order_text(r)}" for r in rules) + ")")
     p.add_argument("--step", metavar="H", required=True,
                    help="sampling step h > 0 (t_k = k*h)")
     p.add_argument("--rule", metavar="RULE", default=default,
@@ -699,8 +707,8 @@ def build_parser():
         "fractional derivative (grunwald: Riemann-Liouville; l1: Caputo)",
         "Fractional derivative of order A, from t = 0, of every column of INPUT, "
         "written to OUTPUT. Rules: grunwald (Grunwald-Letnikov approximation of "
-        "the Riemann-Liouville derivative, 0 < A <= 10, first order) or l1 (L1 "
-        "scheme for the Caputo derivative, 0 < A < 1, order 2 - A).")
+        f"the Riemann-Liouville derivative, {_order_text('grunwald')}, first order) "
+        f"or l1 (L1 scheme for the Caputo derivative, {_order_text('l1')}, order 2 - A).")
     c = sub.add_parser(
         "control",
         help="fractional PID controller over a setpoint,measurement record or live",

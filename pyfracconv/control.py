@@ -34,13 +34,14 @@ import warnings
 import numpy as np
 
 from ._errors import ArgumentError, InputTypeError, raise_for_status
+from ._checks import DERIVATIVE_RULES, INTEGRAL_RULES, RULES, in_range, order_range, range_text
 from ._core import as_float_array, check_compressed, check_real, show
 from ._fracconv import ffi, lib
 
 __all__ = ["Controller", "HorizonWarning"]
 
-_IRULES = {"rectangle": lib.FC_RULE_RECTANGLE, "trapezoid": lib.FC_RULE_TRAPEZOID}
-_DRULES = {"grunwald": lib.FC_RULE_GRUNWALD, "l1": lib.FC_RULE_L1}
+_IRULES = {r: RULES[r] for r in INTEGRAL_RULES}
+_DRULES = {r: RULES[r] for r in DERIVATIVE_RULES}
 _IRULE_NAMES = {v: k for k, v in _IRULES.items()}
 _DRULE_NAMES = {v: k for k, v in _DRULES.items()}
 _MEMORY = {"exact": lib.FC_MODE_EXACT, "compressed": lib.FC_MODE_COMPRESSED}
@@ -67,7 +68,8 @@ def default_integral_rule(order, memory):
     product rectangle rule otherwise (compressed streams take the
     trapezoid rule for 0 < order < 1 only, the rectangle rule also for
     1 <= order < 2)."""
-    if memory == "compressed" and order >= 1:
+    if memory == "compressed" and not in_range(
+            order_range("trapezoid", int(lib.FC_MODE_COMPRESSED)), order):
         return "rectangle"
     return "trapezoid"
 
@@ -201,12 +203,15 @@ class Controller:
     @staticmethod
     def _create_context(st, p):
         if st == lib.FC_ERR_ORDER:
-            return (f"integral_order={p.integral_order!r} "
-                    f"({_IRULE_NAMES.get(p.integral_rule)}) or derivative_order="
-                    f"{p.derivative_order!r} ({_DRULE_NAMES.get(p.derivative_rule)}) "
+            ir = _IRULE_NAMES.get(p.integral_rule)
+            dr = _DRULE_NAMES.get(p.derivative_rule)
+            ranges = "; ".join(
+                f"{name}: {range_text(order_range(name, int(p.memory)))}"
+                for name in (ir, dr) if name is not None)
+            return (f"integral_order={p.integral_order!r} ({ir}) or derivative_order="
+                    f"{p.derivative_order!r} ({dr}) "
                     f"with memory={_MEMORY_NAMES.get(p.memory)!r}: outside the "
-                    "rule's range (compressed: 0 < order < 1, also 1 <= order < 2 "
-                    "for the rectangle rule)")
+                    f"rule's range ({ranges})")
         return "Controller"
 
     def _init(self, c):

@@ -307,18 +307,13 @@ def export_c(rule, order, step, tol=1e-9, horizon=1e6, precision="double",
     ExportedOperator
     """
     code = check_rule(rule, tuple(RULES))
-    a = check_order(order, rule)
+    a = check_order(order, rule, lib.FC_MODE_COMPRESSED)
     h = check_step(step)
     t, hz = check_compressed(tol, horizon)
     if precision not in ("double", "single"):
         raise ArgumentError(f"precision={show(precision)}: must be 'double' or 'single'")
     if not (isinstance(prefix, str) and prefix.isidentifier() and prefix.isascii()):
         raise ArgumentError(f"prefix={show(prefix)}: must be a C identifier")
-    if a >= 2.0 or (a >= 1.0 and rule != "rectangle") or (rule == "l1" and a >= 1.0):
-        raise ArgumentError(
-            f"order={show(order)} with rule={show(rule)}: only what compressed "
-            "mode offers can be exported (0 < order < 1, and 1 <= order < 2 "
-            "for rule='rectangle')")
     if not (isinstance(test_length, int) and 1 <= test_length <= 100000):
         raise ArgumentError(f"test_length={show(test_length)}: must be an int in [1, 100000]")
     single = precision == "single"

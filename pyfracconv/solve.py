@@ -17,6 +17,7 @@ import threading
 
 import numpy as np
 
+from ._checks import in_range, order_range, range_text
 from ._core import (
     SIZE_MAX,
     as_float_array,
@@ -336,17 +337,17 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
                 "steps the tolerance is promised for)"
             )
         tolf, hz = check_compressed(tol, horizon)
+        # the history sums of the rectangle method use the product rectangle
+        # rule, every other method the product trapezoidal rule
+        rule = "rectangle" if meth == "rectangle" else "trapezoid"
+        rng = order_range(rule, int(lib.FC_MODE_COMPRESSED))
         for i, a in enumerate(orders):
             where = "" if oa.ndim == 0 else f"[{i}]"
-            if meth != "rectangle" and a >= 1.0:
+            if not in_range(rng, float(a)):
                 raise ArgumentError(
                     f"order{where}={show(float(a))}, method={meth!r}: memory='compressed' "
-                    "supports the trapezoid rule (used by this method) only for "
-                    "orders < 1; use memory='exact' or method='rectangle'"
-                )
-            if a >= 2.0:
-                raise ArgumentError(
-                    f"order{where}={show(float(a))}: memory='compressed' needs orders < 2"
+                    f"serves this method ({rule} rule) for {range_text(rng)}; use "
+                    "memory='exact'" + ("" if meth == "rectangle" else " or method='rectangle'")
                 )
     return dict(m=m, scalar=scalar, orders=np.ascontiguousarray(orders), h=h, t0=t0f,
                 init=init, method=meth, memory=mem, tol=tolf, horizon=hz, corr=corr,

@@ -328,18 +328,12 @@ class Stream:
                      step: object, channels: object, mode: object, tol: object,
                      horizon: object, horizon_policy: object) -> Stream:
         code = check_rule(rule, allowed)
-        a = check_order(order, rule)
+        m = check_mode(mode)
+        a = check_order(order, rule, m)
         h = check_step(step)
         C = check_channels(channels)
-        m = check_mode(mode)
         pol = check_policy(horizon_policy)
         if m == lib.FC_MODE_COMPRESSED:
-            if a >= 2.0 or (a >= 1.0 and rule != "rectangle"):
-                raise ArgumentError(
-                    f"order={show(order)}: mode='compressed' supports orders "
-                    "0 < order < 1, and 1 <= order < 2 for the integral with "
-                    "rule='rectangle' (use mode='exact' for higher orders)"
-                )
             t, hz = check_compressed(tol, horizon)
         else:
             t, hz = 0.0, 0.0

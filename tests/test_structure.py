@@ -28,6 +28,7 @@ import subprocess
 import numpy as np
 import pytest
 
+import pyfracconv as pf
 from pyfracconv import _core
 from pyfracconv._fracconv import ffi, lib
 
@@ -247,3 +248,28 @@ def test_engines_accept_exactly_the_table_ranges(mode):
                         assert g == lib.FC_OK, (rule_info(r)[1], mode, order, g)
                 else:
                     assert g == lib.FC_ERR_ORDER, (rule_info(r)[1], mode, order, g)
+
+
+@pytest.mark.parametrize("mode", ["exact", "compressed"])
+def test_python_checks_accept_exactly_the_table_ranges(mode):
+    # the Python layer asks the C table (fc_rule_order_range) instead of
+    # keeping its own copy: its order check must move with the table's ends
+    from pyfracconv import _checks
+    m = lib.FC_MODE_EXACT if mode == "exact" else lib.FC_MODE_COMPRESSED
+    names = {rule_info(r)[1]: r for r in rules()}
+    assert _checks.RULES == names
+    assert set(_checks.INTEGRAL_RULES) | set(_checks.DERIVATIVE_RULES) == set(names)
+    for name, r in names.items():
+        assert (name in _checks.DERIVATIVE_RULES) == bool(rule_info(r)[2])
+        st, rng = order_range(r, m)
+        assert st == lib.FC_OK
+        for order, accepted in _probes(*rng):
+            if order <= 0.0:
+                accepted = False
+            try:
+                _checks.check_order(order, name, m)
+                got = True
+            except pf.ArgumentError as e:
+                got = False
+                assert str(e).startswith(f"order={order!r}"), str(e)
+            assert got == accepted, (name, mode, order)
