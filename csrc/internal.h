@@ -55,7 +55,7 @@ enum {
     FC__SCALE_HNA_G2MA = 4   /* h^-a / Gamma(2-a) */
 };
 /* The Laplace density of the kernel that compressed mode approximates by
-   a sum of exponentials (soe construction, compressed.c). */
+   a sum of exponentials (soe_build.c). */
 enum {
     FC__DENS_RECT = 1,       /* phi = expm1(s)/s, p = -a */
     FC__DENS_TRAP = 2,       /* phi = (sinh(s/2)/(s/2))^2, p = -a */
@@ -69,7 +69,7 @@ typedef struct {
     int lo_incl, hi_incl;
 } fc__range;
 /* The smallest order compressed mode offers (the lower end of every
-   rule's compressed range; compressed.c explains it). */
+   rule's compressed range; soe_build.c explains it). */
 #define FC__CS_MIN_ORDER 1e-280
 /* A starting-correction column: y_n += corr_n x_column with
    corr_n = S_n - c_n, S the start weights (same scale as the rule). The
@@ -190,7 +190,28 @@ int fc__segment_start(fc__kernel_at at, const void *ctx, uint64_t m0,
                       uint64_t K, double *gamma, size_t *p0);
 
 /*
- * Compressed stream engine (compressed.c); the public fc_stream_* functions
+ * The sum of exponentials of a compressed stream (soe_build.c, the offline
+ * design step): lags m < FC__CS_BAND are summed exactly with the band
+ * cband[m] = c_m, every lag B <= m <= horizon by
+ * c_m ~= sum_{l<L} beta_l (1 - q_l)^(m-B) (the factor (1 - q_l)^B folded
+ * into beta_l); the trapezoid rule's x_0 enters term l as inj_l x_0 at
+ * step B and its corrections corr_n, n < B, are ctab[n]. cum: the rule
+ * runs on the running sum X of x with the kernel f (rectangle, a >= 1).
+ */
+#define FC__CS_BAND 64
+#define FC__CS_MAX_TERMS 200
+typedef struct {
+    size_t L;                       /* terms, <= FC__CS_MAX_TERMS */
+    int cum;
+    double q[FC__CS_MAX_TERMS], beta[FC__CS_MAX_TERMS], inj[FC__CS_MAX_TERMS];
+    double cband[FC__CS_BAND];      /* c_0 .. c_{B-1} (cum: f_0 .. f_{B-1}) */
+    double ctab[FC__CS_BAND];       /* corr_n, n < B (0 without x_0 term) */
+} fc__soe;
+int fc__soe_build(int rule, double order, double step, double tol,
+                  double horizon, fc__soe *out);
+
+/*
+ * Compressed stream engine (stream_compressed.c); the public fc_stream_* functions
  * in stream.c validate the handle and the busy flag and dispatch here when
  * the stream's mode is FC_MODE_COMPRESSED. Arguments are as for the public
  * functions; the caller has checked pointers are non-NULL and samples are
