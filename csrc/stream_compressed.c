@@ -89,7 +89,8 @@
 #define CS_FMT_VERSION 1u
 
 
-struct fc_cstream {
+/* The state of one compressed stream (the facade's engine pointer). */
+typedef struct cs_engine {
     int rule;
     int x0corr;               /* the rule has an x_0 correction (trapezoid) */
     int diffs;                /* the rule sums differences of x (L1) */
@@ -112,7 +113,7 @@ struct fc_cstream {
     double umax;              /* largest accepted |u| (RANGE) */
     void *mem;
     size_t memsize;
-};
+} cs_engine;
 
 /* ---------------------------------------------------------------- push */
 
@@ -218,7 +219,7 @@ static int cs_cpu_avx2(void)
 static int cs_cpu_avx2(void) { return 0; }
 #endif
 
-static void cs_terms(const fc_cstream *cs, const double *inj, double *S,
+static void cs_terms(const cs_engine *cs, const double *inj, double *S,
                      double *Sc, double d, int commit, double acc[8])
 {
 #if CS_HAVE_AVX2
@@ -230,7 +231,7 @@ static void cs_terms(const fc_cstream *cs, const double *inj, double *S,
     cs_terms_portable(cs->Lp, cs->q, cs->beta, inj, S, Sc, d, commit, acc);
 }
 
-static double cs_band(const fc_cstream *cs, const double *w)
+static double cs_band(const cs_engine *cs, const double *w)
 {
 #if CS_HAVE_AVX2
     if (cs->simd) return cs_band_avx2(cs->cb, w);
@@ -258,7 +259,7 @@ static inline void cs_dd_add(double *hi, double *lo, double x)
  * Every mode performs the same arithmetic on the values it uses, so a
  * preview equals the push bit for bit.
  */
-static void cs_step(fc_cstream *cs, const double *x, double *y, int mode)
+static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
 {
     const size_t B = CS_BAND, C = cs->C;
     const int commit = mode == 0;
@@ -316,7 +317,7 @@ static void cs_step(fc_cstream *cs, const double *x, double *y, int mode)
  * would reach 2^53 (the loader's bound). Writes nothing: the running sums
  * and the differences are recomputed with the very operations of cs_step.
  */
-static int cs_check_block(const fc_cstream *cs, const double *x, size_t count)
+static int cs_check_block(const cs_engine *cs, const double *x, size_t count)
 {
     const size_t C = cs->C;
     const double U = cs->umax;
@@ -335,35 +336,43 @@ static int cs_check_block(const fc_cstream *cs, const double *x, size_t count)
     return FC_OK;
 }
 
-int fc__cs_push_block(fc_cstream *cs, const double *x, size_t count, double *y)
+/* The facade has checked the pointers, the finiteness of the samples, the
+   overlap of x and y and the horizon (internal.h); the engine's own limits
+   (RANGE, the count below 2^53) are checked here before anything is
+   written. */
+static int cs_push_block(void *eng, const double *x, size_t count, double *y)
 {
+    cs_engine *cs = eng;
     int st;
-    if (!cs || (count && (!x || !y))) return FC_ERR_NULL;
     if ((st = cs_check_block(cs, x, count)) != FC_OK) return st;
     for (size_t t = 0; t < count; t++)
         cs_step(cs, x + t * cs->C, y + t * cs->C, 0);
     return FC_OK;
 }
 
-int fc__cs_preview(const fc_cstream *cs, const double *x, double *y)
+static int cs_push1(void *eng, double x, double *y)
 {
+    return cs_push_block(eng, &x, 1, y);
+}
+
+static int cs_preview(void *eng, const double *x, double *y)
+{
+    cs_engine *cs = eng;
     int st;
-    if (!cs || !x || !y) return FC_ERR_NULL;
     if ((st = cs_check_block(cs, x, 1)) != FC_OK) return st;
-    cs_step((fc_cstream *)cs, x, y, 1);   /* mode 1 writes nothing */
+    cs_step(cs, x, y, 1);   /* mode 1 writes nothing */
     return FC_OK;
 }
 
-int fc__cs_history(const fc_cstream *cs, double *h)
+static int cs_history(void *eng, double *h)
 {
-    if (!cs || !h) return FC_ERR_NULL;
-    cs_step((fc_cstream *)cs, NULL, h, 2);  /* mode 2 writes nothing */
+    cs_step(eng, NULL, h, 2);  /* mode 2 writes nothing */
     return FC_OK;
 }
 
-void fc__cs_reset(fc_cstream *cs)
+static void cs_reset(void *eng)
 {
-    if (!cs) return;
+    cs_engine *cs = eng;
     size_t C = cs->C, B = CS_BAND;
     memset(cs->ring, 0, C * 2 * B * sizeof(double));
     memset(cs->S, 0, C * cs->Lp * sizeof(double));
@@ -373,15 +382,23 @@ void fc__cs_reset(fc_cstream *cs)
     cs->n = 0;
 }
 
-uint64_t fc__cs_count(const fc_cstream *cs) { return cs ? cs->n : 0; }
-size_t fc__cs_nbytes(const fc_cstream *cs)
+static uint64_t cs_count(const void *eng)
 {
-    return cs ? sizeof(*cs) + cs->memsize : 0;
+    return ((const cs_engine *)eng)->n;
 }
-size_t fc__cs_terms(const fc_cstream *cs) { return cs ? cs->L : 0; }
-
-void fc__cs_free(fc_cstream *cs)
+static size_t cs_nbytes(const void *eng)
 {
+    const cs_engine *cs = eng;
+    return sizeof(*cs) + cs->memsize;
+}
+static size_t cs_nterms(const void *eng)
+{
+    return ((const cs_engine *)eng)->L;
+}
+
+static void cs_free(void *eng)
+{
+    cs_engine *cs = eng;
     if (!cs) return;
     free(cs->mem);
     free(cs);
@@ -389,7 +406,7 @@ void fc__cs_free(fc_cstream *cs)
 
 /* ------------------------------------------------------------ allocation */
 
-static int cs_alloc(size_t C, size_t Lp, fc_cstream **out)
+static int cs_alloc(size_t C, size_t Lp, cs_engine **out)
 {
     const size_t B = CS_BAND;
     size_t nd = 0, t;
@@ -399,7 +416,7 @@ static int cs_alloc(size_t C, size_t Lp, fc_cstream **out)
         fc__mul_size(per, C, &t) || fc__add_size(t, 3 * Lp + 2 * B, &nd) ||
         fc__mul_size(nd, sizeof(double), &t) || fc__add_size(t, 64, &t))
         return FC_ERR_SIZE;
-    fc_cstream *cs = calloc(1, sizeof *cs);
+    cs_engine *cs = calloc(1, sizeof *cs);
     if (!cs) return FC_ERR_NOMEM;
     cs->mem = calloc(1, t);
     if (!cs->mem) { free(cs); return FC_ERR_NOMEM; }
@@ -452,7 +469,7 @@ static double cs_cap(double q)
     return r < cap ? r : cap;
 }
 
-static double cs_umax(const fc_cstream *cs)
+static double cs_umax(const cs_engine *cs)
 {
     const size_t B = CS_BAND;
     double gs = 4.0, go = fabs(cs->c0), cmax = 0.0;
@@ -473,7 +490,7 @@ static double cs_umax(const fc_cstream *cs)
 
 /* The parts of a new stream common to both shapes: the band (reversed for
    the dot product, lag 0 apart), the trapezoid table, the parameters. */
-static void cs_finish(fc_cstream *cs, const double *cband, const double *ctab,
+static void cs_finish(cs_engine *cs, const double *cband, const double *ctab,
                       int rule, double order, double step, double tol,
                       double horizon)
 {
@@ -489,7 +506,7 @@ static void cs_finish(fc_cstream *cs, const double *cband, const double *ctab,
     cs->diffs = fc__rule_uses_differences(rule);
     cs->simd = cs_cpu_avx2();
     cs->umax = cs_umax(cs);
-    fc__cs_reset(cs);
+    cs_reset(cs);
 }
 
 /* ------------------------------------------------------------ create */
@@ -497,13 +514,13 @@ static void cs_finish(fc_cstream *cs, const double *cband, const double *ctab,
 /* A stream running the construction d (soe_build.c). */
 static int cs_from_soe(const fc__soe *d, int rule, double order, double step,
                        size_t channels, double tol, double horizon,
-                       fc_cstream **out)
+                       cs_engine **out)
 {
     int st;
     size_t L = d->L;
     size_t Lp = (L + 7) / 8 * 8;
     if (Lp == 0) Lp = 8;
-    fc_cstream *cs;
+    cs_engine *cs;
     if ((st = cs_alloc(channels, Lp, &cs)) != FC_OK) return st;
     memcpy(cs->q, d->q, L * sizeof(double));
     memcpy(cs->beta, d->beta, L * sizeof(double));
@@ -514,24 +531,12 @@ static int cs_from_soe(const fc__soe *d, int rule, double order, double step,
     return FC_OK;
 }
 
-/* loading = 1: the rebuild of fc__cs_load, which also accepts orders
-   below CS_MIN_ORDER (version-1 code could build some of them at short
-   horizons, and their saved blobs must still load). */
-static int cs_create(int rule, double order, double step, size_t channels,
-                     double tol, double horizon, int loading, fc_cstream **out)
+/* The construction of d (checked by the facade): the sum of exponentials
+   (soe_build.c), then the stream that runs it. */
+static int cs_build(int rule, double order, double step, size_t channels,
+                    double tol, double horizon, cs_engine **out)
 {
     int st;
-    if (!out) return FC_ERR_NULL;
-    if ((st = fc__check_rule(rule, order, step)) != FC_OK) return st;
-    const fc__rule_desc *d = fc__rule(rule);
-    fc__range r = d->compressed;
-    if (loading) { r.lo = 0.0; r.lo_incl = 0; }
-    if (!fc__in_range(&r, order)) return FC_ERR_ORDER;
-    if (channels == 0) return FC_ERR_ARG;
-    if (!(tol >= 1e-15 && tol <= 1e-2) || !isfinite(tol)) return FC_ERR_TOL;
-    if (!(horizon >= 1.0) || !isfinite(horizon) ||
-        horizon > (double)(FC_INDEX_LIMIT - 2))
-        return FC_ERR_TOL;
     fc__soe *soe = malloc(sizeof *soe);
     if (!soe) return FC_ERR_NOMEM;
     st = fc__soe_build(rule, order, step, tol, horizon, soe);
@@ -541,10 +546,13 @@ static int cs_create(int rule, double order, double step, size_t channels,
     return st;
 }
 
-int fc__cs_create(int rule, double order, double step, size_t channels,
-                  double tol, double horizon, fc_cstream **out)
+static int cs_create(const fc__stream_def *d, void **eng)
 {
-    return cs_create(rule, order, step, channels, tol, horizon, 0, out);
+    cs_engine *cs;
+    int st = cs_build(d->rule, d->order, d->step, d->channels, d->tol,
+                      d->horizon, &cs);
+    if (st == FC_OK) *eng = cs;
+    return st;
 }
 
 /* ------------------------------------------------------------ save/load */
@@ -587,15 +595,17 @@ static size_t cs_size_for(uint64_t C, uint64_t L)
     return t;
 }
 
-size_t fc__cs_save_size(const fc_cstream *cs)
+static int cs_save_size(const void *eng, size_t *size)
 {
-    return cs ? cs_size_for(cs->C, cs->L) : 0;
+    const cs_engine *cs = eng;
+    *size = cs_size_for(cs->C, cs->L);   /* 0: too large (cs_save refuses) */
+    return FC_OK;
 }
 
-int fc__cs_save(const fc_cstream *cs, unsigned char *buf, size_t size)
+static int cs_save(const void *eng, unsigned char *buf, size_t size)
 {
-    if (!cs || !buf) return FC_ERR_NULL;
-    size_t need = fc__cs_save_size(cs);
+    const cs_engine *cs = eng;
+    size_t need = cs_size_for(cs->C, cs->L);
     if (need == 0) return FC_ERR_SIZE;
     if (size < need) return FC_ERR_ARG;
     const size_t B = CS_BAND, L = cs->L;
@@ -663,7 +673,7 @@ static int cs_dd_ok(double hi, double lo)
  *    otherwise x0 = x_0, which is ring slot 0 while n <= B, and |x_0| <=
  *    umax outside L1 (x_0 = u_0).
  */
-static int cs_state_ok(const fc_cstream *cs)
+static int cs_state_ok(const cs_engine *cs)
 {
     const size_t B = CS_BAND, L = cs->L;
     const uint64_t n = cs->n;
@@ -705,48 +715,77 @@ static int cs_state_ok(const fc_cstream *cs)
     return 1;
 }
 
+/* The parameters a creation accepts (fc_stream_create's checks), except
+   that orders below FC__CS_MIN_ORDER are accepted too: version-1 code
+   could build some of them at short horizons, and their saved blobs must
+   still load. */
+static int cs_params_ok(int rule, double order, double step, uint64_t C,
+                        double tol, double horizon)
+{
+    if (fc__check_rule(rule, order, step) != FC_OK) return 0;
+    fc__range r = fc__rule(rule)->compressed;
+    r.lo = 0.0;
+    r.lo_incl = 0;
+    return fc__in_range(&r, order) && C != 0 && C <= FC__STREAM_CHANNELS_MAX &&
+           tol >= 1e-15 && tol <= 1e-2 && horizon >= 1.0 &&
+           horizon <= (double)(FC_INDEX_LIMIT - 2);
+}
+
 /*
  * The payload is untrusted. Sizes: the channel count and the term count
  * must give exactly the payload size (so nothing larger than the blob is
- * ever allocated), and the checksum must match. Parameters: the stream is
- * rebuilt by fc__cs_create from (rule, order, step, channels, tol,
- * horizon) -- the construction is deterministic -- and the stored q, beta,
- * inj, band, c0 and ctab must equal the rebuilt ones bit for bit. Only the
- * running state (ring, S, Sc, xprev, x0, n) is then taken from the blob,
- * and it must pass cs_state_ok. Anything else is FC_ERR_FORMAT (FC_ERR_NOMEM
- * if the rebuild runs out of memory). Cost: one creation.
+ * ever allocated), and the checksum must match. Parameters: the payload's
+ * (rule, order, step, channels, tol, horizon) must be the common header's
+ * (d) bit for bit, so that the facade's getters describe the engine that
+ * was rebuilt; the stream is rebuilt from them -- the construction is
+ * deterministic -- and the stored q, beta, inj, band, c0 and ctab must
+ * equal the rebuilt ones bit for bit. Only the running state (ring, S, Sc,
+ * xprev, x0, n) is then taken from the blob, and it must pass cs_state_ok.
+ * Anything else is FC_ERR_FORMAT (FC_ERR_NOMEM if the rebuild runs out of
+ * memory). Cost: one construction.
  */
-int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
+static int cs_load(const fc__stream_def *d, const unsigned char *buf,
+                   size_t size, void **eng)
 {
-    if (!buf || !out) return FC_ERR_NULL;
     const size_t B = CS_BAND;
-    if (size < CS_HDR + 8) return FC_ERR_FORMAT;
-    if (memcmp(buf, cs_magic, 4) != 0) return FC_ERR_FORMAT;
-    if (fc__get32(buf + 4) != CS_FMT_VERSION) return FC_ERR_FORMAT;
-    uint32_t rule = fc__get32(buf + 8);
-    if (rule > (uint32_t)INT32_MAX || fc__rule((int)rule) == NULL ||
-        fc__get32(buf + 12) != B)
+    fc__rd r;
+    if (d->kind != FC__KIND_RULE) return FC_ERR_FORMAT;
+    fc__rd_init(&r, buf, size);
+    const unsigned char *magic = fc__rd_bytes(&r, 4);
+    uint32_t version = fc__rd_u32(&r), rule = fc__rd_u32(&r);
+    uint32_t band = fc__rd_u32(&r);
+    uint64_t C = fc__rd_u64(&r), L = fc__rd_u64(&r), n = fc__rd_u64(&r);
+    double order = fc__rd_d(&r), step = fc__rd_d(&r);
+    double tol = fc__rd_d(&r), horizon = fc__rd_d(&r);
+    if (r.bad || size < CS_HDR + 8 || memcmp(magic, cs_magic, 4) != 0 ||
+        version != CS_FMT_VERSION)
         return FC_ERR_FORMAT;
-    uint64_t C = fc__get64(buf + 16), L = fc__get64(buf + 24), n = fc__get64(buf + 32);
-    double order = fc__getd(buf + 40), step = fc__getd(buf + 48);
-    double tol = fc__getd(buf + 56), horizon = fc__getd(buf + 64);
+    if (rule > (uint32_t)INT32_MAX || fc__rule((int)rule) == NULL || band != B)
+        return FC_ERR_FORMAT;
     if (C == 0 || L > CS_MAX_TERMS) return FC_ERR_FORMAT;
     size_t need = cs_size_for(C, L);   /* 0 on overflow */
     if (need == 0 || need != size) return FC_ERR_FORMAT;
-    if (fc__get64(buf + size - 8) != fc__fnv1a(FC__FNV_OFFSET, buf, size - 8)) return FC_ERR_FORMAT;
+    if (fc__get64(buf + size - 8) != fc__fnv1a(FC__FNV_OFFSET, buf, size - 8))
+        return FC_ERR_FORMAT;
     if (n >= FC_INDEX_LIMIT) return FC_ERR_FORMAT;
-    const unsigned char *p = buf + CS_HDR;
     size_t nd;
     if (cs_ndoubles(C, L, &nd)) return FC_ERR_FORMAT;
+    fc__rd v = r;   /* the doubles, read twice: checked, then taken */
     for (size_t i = 0; i < nd; i++)
-        if (!isfinite(fc__getd(p + 8 * i))) return FC_ERR_FORMAT;
+        if (!isfinite(fc__rd_d(&v))) return FC_ERR_FORMAT;
+    if ((int)rule != d->rule || C != (uint64_t)d->channels ||
+        !cs_same(order, d->order) || !cs_same(step, d->step) ||
+        !cs_same(tol, d->tol) || !cs_same(horizon, d->horizon))
+        return FC_ERR_FORMAT;
+    if (!cs_params_ok((int)rule, order, step, C, tol, horizon))
+        return FC_ERR_FORMAT;
 
-    fc_cstream *cs;
-    int st = cs_create((int)rule, order, step, (size_t)C, tol, horizon, 1, &cs);
+    cs_engine *cs;
+    int st = cs_build((int)rule, order, step, (size_t)C, tol, horizon, &cs);
     if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
     int bad = cs->L != L;
-#define SAMEV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++, p += 8) \
-        if (!bad && !cs_same((arr)[i_], fc__getd(p))) bad = 1; } while (0)
+#define SAMEV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) \
+        if (!cs_same((arr)[i_], fc__rd_d(&r))) bad = 1; } while (0)
     if (!bad) {
         SAMEV(cs->q, L); SAMEV(cs->beta, L); SAMEV(cs->inj, L);
         SAMEV(cs->cb, B);
@@ -755,37 +794,44 @@ int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out)
     }
 #undef SAMEV
     if (bad) {
-        fc__cs_free(cs);
+        cs_free(cs);
         return FC_ERR_FORMAT;
     }
-#define GETV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) { (arr)[i_] = fc__getd(p); p += 8; } } while (0)
+#define GETV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) (arr)[i_] = fc__rd_d(&r); } while (0)
     for (size_t c = 0; c < C; c++) {
         double *ring = cs->ring + c * 2 * B;
         GETV(ring, B);
         memcpy(ring + B, ring, B * sizeof(double));
         GETV(cs->S + c * cs->Lp, L);
         GETV(cs->Sc + c * cs->Lp, L);
-        cs->xprev[c] = fc__getd(p); p += 8;
-        cs->x0[c] = fc__getd(p); p += 8;
+        cs->xprev[c] = fc__rd_d(&r);
+        cs->x0[c] = fc__rd_d(&r);
     }
 #undef GETV
     cs->n = n;
-    if (!cs_state_ok(cs)) {
-        fc__cs_free(cs);
+    if (r.bad || !cs_state_ok(cs)) {
+        cs_free(cs);
         return FC_ERR_FORMAT;
     }
-    *out = cs;
+    *eng = cs;
     return FC_OK;
 }
 
-void fc__cs_params(const fc_cstream *cs, int *rule, double *order,
-                   double *step, size_t *channels, double *tol,
-                   double *horizon)
-{
-    *rule = cs->rule;
-    *order = cs->order;
-    *step = cs->step;
-    *channels = cs->C;
-    *tol = cs->tol;
-    *horizon = cs->horizon;
-}
+const fc__stream_ops fc__compressed_ops = {
+    .has_horizon = 1,
+    .create = cs_create,
+    .load = cs_load,
+    .free = cs_free,
+    .push_block = cs_push_block,
+    .push1 = cs_push1,
+    .preview = cs_preview,
+    .history = cs_history,
+    .reset = cs_reset,
+    .reserve = NULL,        /* memory is fixed at creation */
+    .count = cs_count,
+    .remaining = NULL,      /* the horizon decides (facade) */
+    .nbytes = cs_nbytes,
+    .terms = cs_nterms,
+    .save_size = cs_save_size,
+    .save = cs_save,
+};
