@@ -246,7 +246,7 @@ typedef struct {
  * horizon policy FC_HORIZON_REFUSE (has_horizon) no output would pass the
  * horizon. A refused call leaves the engine as it was.
  */
-typedef struct {
+typedef struct fc__stream_ops {
     int has_horizon;         /* tol and horizon are defining parameters */
     /* definition checked by the facade */
     int (*create)(const fc__stream_def *d, void **eng);
