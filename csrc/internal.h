@@ -198,6 +198,11 @@ int fc__segment_start(fc__kernel_at at, const void *ctx, uint64_t m0,
  * step B and its corrections corr_n, n < B, are ctab[n]. cum: the rule
  * runs on the running sum X of x with the kernel f (rectangle, a >= 1).
  */
+/* The tolerances and horizons compressed mode offers (fc_stream_create;
+   the loader checks a saved stream's against the same). */
+#define FC__CS_TOL_MIN 1e-15
+#define FC__CS_TOL_MAX 1e-2
+#define FC__CS_HORIZON_MAX ((double)(FC_INDEX_LIMIT - 2))
 #define FC__CS_BAND 64
 #define FC__CS_MAX_TERMS 200
 typedef struct {

@@ -121,12 +121,12 @@ static int check_create(int rule, double order, double step, size_t channels,
     if (channels > FC__STREAM_CHANNELS_MAX) return FC_ERR_SIZE;
     if (mode != FC_MODE_EXACT && mode != FC_MODE_COMPRESSED) return FC_ERR_MODE;
     if (mode == FC_MODE_COMPRESSED) {
-        if (!(tol >= 1e-15 && tol <= 1e-2) || !(horizon >= 1.0) ||
-            !isfinite(horizon))
+        if (!(tol >= FC__CS_TOL_MIN && tol <= FC__CS_TOL_MAX) ||
+            !(horizon >= 1.0) || !isfinite(horizon))
             return FC_ERR_TOL;
         if (!fc__in_range(&d->compressed, order)) return FC_ERR_ORDER;
         /* the count stays below 2^53 (FC_INDEX_LIMIT) */
-        if (horizon > (double)(FC_INDEX_LIMIT - 2)) return FC_ERR_TOL;
+        if (horizon > FC__CS_HORIZON_MAX) return FC_ERR_TOL;
     }
     return FC_OK;
 }

@@ -727,8 +727,8 @@ static int cs_params_ok(int rule, double order, double step, uint64_t C,
     r.lo = 0.0;
     r.lo_incl = 0;
     return fc__in_range(&r, order) && C != 0 && C <= FC__STREAM_CHANNELS_MAX &&
-           tol >= 1e-15 && tol <= 1e-2 && horizon >= 1.0 &&
-           horizon <= (double)(FC_INDEX_LIMIT - 2);
+           tol >= FC__CS_TOL_MIN && tol <= FC__CS_TOL_MAX && horizon >= 1.0 &&
+           horizon <= FC__CS_HORIZON_MAX;
 }
 
 /*
