@@ -1,4 +1,4 @@
-"""Term counts of the compressed stream (csrc/compressed.c).
+"""Term counts of the compressed stream (csrc/soe_build.c).
 
 Prints, for each rule, the number of exponential terms by order and
 tolerance at horizon 1e8 (band of 64 exact lags), plus the creation time.

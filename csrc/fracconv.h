@@ -294,7 +294,7 @@ typedef struct fc_stream fc_stream;
  * x_0 + ... + x_n) would exceed the stream's bound U = DBL_MAX / (4 G),
  * where G = max(sum_l 2 |beta_l| m_l + sum_{j<64} |c_j| + max_n |corr_n|,
  * 2 max_l m_l, 4), m_l = min(1/q_l, 2^53), from the stream's exponential
- * terms beta_l (1 - q_l)^m (csrc/compressed.c, RANGE). With step = 1,
+ * terms beta_l (1 - q_l)^m (csrc/stream_compressed.c, RANGE). With step = 1,
  * U >= 1e290 for every accepted rule, order, tol and horizon (about
  * 2.5e291 at worst; larger for short horizons). A compressed stream also
  * refuses (FC_ERR_SIZE) a push that would bring its count to 2^53.

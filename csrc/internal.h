@@ -55,7 +55,7 @@ enum {
     FC__SCALE_HNA_G2MA = 4   /* h^-a / Gamma(2-a) */
 };
 /* The Laplace density of the kernel that compressed mode approximates by
-   a sum of exponentials (soe construction, compressed.c). */
+   a sum of exponentials (soe_build.c). */
 enum {
     FC__DENS_RECT = 1,       /* phi = expm1(s)/s, p = -a */
     FC__DENS_TRAP = 2,       /* phi = (sinh(s/2)/(s/2))^2, p = -a */
@@ -69,7 +69,7 @@ typedef struct {
     int lo_incl, hi_incl;
 } fc__range;
 /* The smallest order compressed mode offers (the lower end of every
-   rule's compressed range; compressed.c explains it). */
+   rule's compressed range; soe_build.c explains it). */
 #define FC__CS_MIN_ORDER 1e-280
 /* A starting-correction column: y_n += corr_n x_column with
    corr_n = S_n - c_n, S the start weights (same scale as the rule). The
@@ -190,34 +190,91 @@ int fc__segment_start(fc__kernel_at at, const void *ctx, uint64_t m0,
                       uint64_t K, double *gamma, size_t *p0);
 
 /*
- * Compressed stream engine (compressed.c); the public fc_stream_* functions
- * in stream.c validate the handle and the busy flag and dispatch here when
- * the stream's mode is FC_MODE_COMPRESSED. Arguments are as for the public
- * functions; the caller has checked pointers are non-NULL and samples are
- * finite.
+ * The sum of exponentials of a compressed stream (soe_build.c, the offline
+ * design step): lags m < FC__CS_BAND are summed exactly with the band
+ * cband[m] = c_m, every lag B <= m <= horizon by
+ * c_m ~= sum_{l<L} beta_l (1 - q_l)^(m-B) (the factor (1 - q_l)^B folded
+ * into beta_l); the trapezoid rule's x_0 enters term l as inj_l x_0 at
+ * step B and its corrections corr_n, n < B, are ctab[n]. cum: the rule
+ * runs on the running sum X of x with the kernel f (rectangle, a >= 1).
  */
-typedef struct fc_cstream fc_cstream;
-int fc__cs_create(int rule, double order, double step, size_t channels,
-                  double tol, double horizon, fc_cstream **out);
-void fc__cs_free(fc_cstream *cs);
-int fc__cs_push_block(fc_cstream *cs, const double *x, size_t count,
-                      double *y);
-int fc__cs_preview(const fc_cstream *cs, const double *x, double *y);
-int fc__cs_history(const fc_cstream *cs, double *h);
-void fc__cs_reset(fc_cstream *cs);
-uint64_t fc__cs_count(const fc_cstream *cs);
-size_t fc__cs_nbytes(const fc_cstream *cs);
-size_t fc__cs_terms(const fc_cstream *cs);
-/* Payload after the common header written by stream.c: the size, the
-   writer, and the reader (which validates everything it reads and returns
-   FC_ERR_FORMAT on any inconsistency). */
-size_t fc__cs_save_size(const fc_cstream *cs);
-int fc__cs_save(const fc_cstream *cs, unsigned char *buf, size_t size);
-int fc__cs_load(const unsigned char *buf, size_t size, fc_cstream **out);
-/* The defining parameters of a compressed stream (for the loader's
-   cross-check of the outer header). */
-void fc__cs_params(const fc_cstream *cs, int *rule, double *order,
-                   double *step, size_t *channels, double *tol,
-                   double *horizon);
+/* The tolerances and horizons compressed mode offers (fc_stream_create;
+   the loader checks a saved stream's against the same). */
+#define FC__CS_TOL_MIN 1e-15
+#define FC__CS_TOL_MAX 1e-2
+#define FC__CS_HORIZON_MAX ((double)(FC_INDEX_LIMIT - 2))
+#define FC__CS_BAND 64
+#define FC__CS_MAX_TERMS 200
+typedef struct {
+    size_t L;                       /* terms, <= FC__CS_MAX_TERMS */
+    int cum;
+    double q[FC__CS_MAX_TERMS], beta[FC__CS_MAX_TERMS], inj[FC__CS_MAX_TERMS];
+    double cband[FC__CS_BAND];      /* c_0 .. c_{B-1} (cum: f_0 .. f_{B-1}) */
+    double ctab[FC__CS_BAND];       /* corr_n, n < B (0 without x_0 term) */
+} fc__soe;
+int fc__soe_build(int rule, double order, double step, double tol,
+                  double horizon, fc__soe *out);
+
+/*
+ * Stream engines behind one interface. stream.c (the facade) owns struct
+ * fc_stream: the busy guard, every argument and sample check (done once,
+ * there), the common save header, and dispatch through the engine's
+ * operations below; the engine's own state is an opaque pointer.
+ * stream_exact.c implements FC_MODE_EXACT (rules and user kernels),
+ * stream_compressed.c FC_MODE_COMPRESSED.
+ */
+/* What a stream is: its definition, read from fc_stream_create /
+   fc_stream_create_kernel (checked) or from a saved header (untrusted:
+   the engine's load checks what it needs). */
+#define FC__KIND_RULE 0u     /* part of the save format */
+#define FC__KIND_KERNEL 1u
+typedef struct {
+    unsigned kind;           /* FC__KIND_* */
+    int rule;                /* -1 for a kernel */
+    double order, step;      /* 0 for a kernel */
+    size_t channels;
+    double tol, horizon;     /* compressed mode; 0 in exact mode */
+    const double *kernel;    /* kind kernel (create only) */
+    size_t klen;
+} fc__stream_def;
+/* Channel limit of every stream (the exact engine's buffers of up to 8
+   rows of 1024 doubles per channel stay addressable). */
+#define FC__STREAM_CHANNELS_MAX (((size_t)-1) / (8 * sizeof(double) * 1024))
+/* The longest user kernel: the lags the exact engine's default geometry
+   covers (stream_exact.c checks this equals its FC_S_LAG_LIMIT). */
+#define FC__KERNEL_LEN_MAX (UINT64_C(64) + UINT64_C(64) * 8 * \
+                            ((UINT64_C(1) << 24) - 1))
+/*
+ * Engine operations. The facade has checked, before any call: the
+ * pointers are non-NULL; samples are finite; x and y are the same array
+ * or do not overlap; count * channels doubles fit in size_t; under the
+ * horizon policy FC_HORIZON_REFUSE (has_horizon) no output would pass the
+ * horizon. A refused call leaves the engine as it was.
+ */
+typedef struct fc__stream_ops {
+    int has_horizon;         /* tol and horizon are defining parameters */
+    /* definition checked by the facade */
+    int (*create)(const fc__stream_def *d, void **eng);
+    /* payload p[0 .. size) of a blob whose common header gave d: validates
+       everything (FC_ERR_FORMAT, or FC_ERR_NOMEM) */
+    int (*load)(const fc__stream_def *d, const unsigned char *p, size_t size,
+                void **eng);
+    void (*free)(void *eng);
+    int (*push_block)(void *eng, const double *x, size_t count, double *y);
+    int (*push1)(void *eng, double x, double *y);    /* one channel */
+    int (*preview)(void *eng, const double *x, double *y);
+    int (*history)(void *eng, double *h);
+    void (*reset)(void *eng);
+    int (*reserve)(void *eng, uint64_t n);           /* NULL: nothing to do */
+    uint64_t (*count)(const void *eng);
+    uint64_t (*remaining)(const void *eng);          /* without a horizon */
+    size_t (*nbytes)(const void *eng);
+    size_t (*terms)(const void *eng);
+    /* the payload after the common header: its size, and the writer into
+       a buffer of exactly that size */
+    int (*save_size)(const void *eng, size_t *size);
+    int (*save)(const void *eng, unsigned char *buf, size_t size);
+} fc__stream_ops;
+extern const fc__stream_ops fc__exact_ops, fc__compressed_ops;
 
 #endif

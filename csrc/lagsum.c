@@ -218,7 +218,7 @@ static int array_at(const void *ctx, uint64_t m, double *v)
  * from the outputs they feed, so that the kernel changes by at most a
  * factor of about ((p0+2)/p0)^gamma across the samples one FFT product
  * touches. A zero at a sampled lag gives gamma = 1e9 (the most cautious
- * shape). Shared by the batch engine and the exact stream (stream.c).
+ * shape). Shared by the batch engine and the exact stream (stream_exact.c).
  */
 int fc__segment_start(fc__kernel_at at, const void *ctx, uint64_t m0,
                       uint64_t K, double *gamma, size_t *p0)

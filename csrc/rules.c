@@ -15,7 +15,7 @@
  *   batch and exact: 0 < a <= 10 (L1: 0 < a < 1);
  *   compressed: the construction needs a completely monotone kernel and
  *   a < 1 (for the rectangle rule also 1 <= a < 2, on the running sum),
- *   and a >= 1e-280 (CS_MIN_ORDER in compressed.c: below it the kernel's
+ *   and a >= 1e-280 (FC__CS_MIN_ORDER, soe_build.c: below it the kernel's
  *   far lags are subnormal).
  */
 static const fc__corr_col trapezoid_corr[] = {{0, &fc__seq_trapezoid_start}};

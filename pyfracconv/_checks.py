@@ -162,8 +162,8 @@ def in_range(r: OrderRange, a: float) -> bool:
 # The largest order any rule accepts (the batch functions and exact streams).
 MAX_ORDER = max(order_range(r, int(lib.FC_MODE_EXACT))[2] for r in RULES)
 INDEX_LIMIT = 2**53
-# Compressed streams (fc_stream_create in csrc/fracconv.h, fc__cs_create in
-# csrc/compressed.c): tol in [1e-15, 1e-2]; horizon in [1, 2**53 - 2], the
+# Compressed streams (fc_stream_create in csrc/fracconv.h, checked in
+# csrc/stream.c): tol in [1e-15, 1e-2]; horizon in [1, 2**53 - 2], the
 # number of samples the tolerance is guaranteed for. The one place Python
 # keeps these ranges.
 COMPRESSED_TOL_RANGE = (1e-15, 1e-2)

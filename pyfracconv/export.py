@@ -2,14 +2,14 @@
 embedded targets.
 
 The generated code is the library's compressed engine for one channel
-(``csrc/compressed.c``, cs_step) with the stream's coefficients written in as
+(``csrc/stream_compressed.c``, cs_step) with the stream's coefficients written in as
 constants: a band of 64 exact lags, a dot product of the sum-of-exponentials
 states, and the compensated one-pole recursions S <- (1 - q) S + u. The
 state is a caller-owned struct; the update allocates nothing, does no I/O,
 calls no library function (only + - * on the chosen floating type).
 
 The coefficients are read from the compressed stream's saved state (the
-payload layout documented in ``csrc/compressed.c``: header, q[L], beta[L],
+payload layout documented in ``csrc/stream_compressed.c``: header, q[L], beta[L],
 inj[L], cb[B], c0, ctab[B], then the per-channel state).
 """
 
@@ -25,7 +25,7 @@ __all__ = ["export_c", "ExportedOperator"]
 
 BAND = 64
 _S_HDR = 80       # stream header (csrc/stream.c, save format)
-_CS_HDR = 72      # compressed payload header (csrc/compressed.c)
+_CS_HDR = 72      # compressed payload header (csrc/stream_compressed.c)
 _MEASURE_LEN = 2000
 _MEASURE_SEED = 20260
 
@@ -128,7 +128,7 @@ def _scale(rule_name, order, step, x):
     """sum_k |c_{n-k} u_k| (+ |corr_n x_0|): the size of the terms of each
     output, the quantity the library's compressed promise is relative to
     (fc_stream_create in fracconv.h). For the rectangle rule at order >= 1
-    the rule's own terms bound the engine's (compressed.c)."""
+    the rule's own terms bound the engine's (soe_build.c)."""
     from ._core import weights
     n = len(x)
     ax = np.abs(x)

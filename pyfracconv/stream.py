@@ -5,7 +5,7 @@ functions (:func:`pyfracconv.integral`, :func:`pyfracconv.derivative`,
 :func:`pyfracconv.lagged_sum`) give at that index on the same samples. In
 ``mode="exact"`` (the default) the whole history is kept and the result is
 the exact lagged sum to rounding, at amortised O(log^2 n) work per sample
-(an online dyadic split of the Toeplitz matrix, see ``csrc/stream.c``); in
+(an online dyadic split of the Toeplitz matrix, see ``csrc/stream_exact.c``); in
 ``mode="compressed"`` memory and work per sample are bounded and the result
 is within a stated tolerance over a stated horizon.
 """

@@ -1,6 +1,6 @@
-"""Tests of the compressed stream (engine 4, csrc/compressed.c).
+"""Tests of the compressed stream (engine 4, csrc/stream_compressed.c).
 
-The guarantee under test (stated in csrc/compressed.c): for every n up to
+The guarantee under test (stated in csrc/stream_compressed.c): for every n up to
 the horizon,
 
     |y_n(compressed) - y_n(exact)| <= tol * (sum_k |c_{n-k} u_k| + |corr_n x_0|)
@@ -304,7 +304,7 @@ def test_save_load_bit_for_bit(rule):
     assert t.terms == s.terms and t.count == 3000 and t.nbytes == s.nbytes
     assert np.array_equal(s.push_many(X[3000:]), t.push_many(X[3000:]))
     # saved early (ring partly filled) and around the end of the exact band
-    # (64 lags in csrc/compressed.c), it resumes too
+    # (64 lags in csrc/stream_compressed.c), it resumes too
     for k in [0, 10, 63, 64, 65]:
         u = make(rule, 0.35, 0.05, 1e-13, 1e7)
         u.push_many(x[:k])
@@ -375,7 +375,7 @@ def test_short_horizon_band_only_is_exact():
 
 
 # ---------------------------------------------------------------------------
-# Rectangle rule with 1 <= a < 2 (csrc/compressed.c, "CONSTRUCTION,
+# Rectangle rule with 1 <= a < 2 (csrc/soe_build.c, "CONSTRUCTION,
 # 1 <= a < 2": the engine runs on the running sum X of x with the kernel
 # f_m = c_m - c_{m-1}, second differences of t^a). The guarantee under test
 # is the same as above, with c the rectangle rule's own kernel

@@ -1,4 +1,4 @@
-"""The promises of the compressed stream (csrc/compressed.c, fracconv.h
+"""The promises of the compressed stream (csrc/stream_compressed.c, fracconv.h
 comment of fc_stream_create), checked through the C interface (cffi lib and
 ffi) and pyfracconv.Stream:
 
@@ -14,7 +14,7 @@ ffi) and pyfracconv.Stream:
   - the horizon policy (refuse by default, continue on request, remaining
     samples), also for a loaded stream.
 
-Blob layout used to forge blobs (csrc/stream.c and csrc/compressed.c, save
+Blob layout used to forge blobs (csrc/stream.c and csrc/stream_compressed.c, save
 format comments): outer header of 80 bytes (magic, u32 version, u32 mode,
 u32 kind, i32 rule, f64 order at 24, f64 step at 32, u64 channels at 40,
 f64 tol at 48, f64 horizon at 56, u64 payload size at 64, u64 FNV-1a 64 of
@@ -286,7 +286,7 @@ def test_forged_sample_count(count):
 
 def test_forged_running_state():
     # States a push cannot produce (invariants of cs_step, see cs_state_ok
-    # in csrc/compressed.c).
+    # in csrc/stream_compressed.c).
     _, early = saved(RECT, 0.5, 1, 10)          # n < band
     lay = payload_layout(early)
     assert_refused(reseal(put(early, lay[0]["ring"] + 8 * 20, "d", 1.0)))  # unwritten slot

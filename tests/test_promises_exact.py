@@ -173,7 +173,7 @@ def test_high_orders_at_2_to_16():
 
 
 # ---------------------------------------------------------------- saved state
-# The C blob (csrc/stream.c): 80-byte header (magic, version u32, mode u32,
+# The C blob (csrc/stream.c, csrc/stream_exact.c): 80-byte header (magic, version u32, mode u32,
 # kind u32, rule i32, order, step, channels u64, tol, horizon, payload size
 # u64, FNV-1a 64 at 72 over bytes [0, 72) then the payload); exact payload:
 # leaf u64, segments u64, n u64, klen u64, A u64, kernel[klen], xprev[C],

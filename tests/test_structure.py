@@ -16,6 +16,13 @@
   FC_ERR_ORDER at each exclusive end and just beyond every end (the one
   order 5e-324 just above 0 passes the order check but an exact stream
   refuses it with FC_ERR_RANGE: its weights are not normal doubles).
+- The stream engines are files behind one interface (docs/design.md,
+  "Layout"; csrc/internal.h, fc__stream_ops): csrc/stream.c is the facade
+  (busy guard, the argument and sample checks, the common save header)
+  and holds no engine arithmetic and no engine state; csrc/stream_exact.c
+  and csrc/stream_compressed.c each define their operations table and
+  their own state struct and leave the NULL and finiteness checks to the
+  facade; csrc/soe_build.c alone constructs the sums of exponentials.
 Checks of the project against its own header: no outside source.
 """
 
@@ -273,3 +280,74 @@ def test_python_checks_accept_exactly_the_table_ranges(mode):
                 got = False
                 assert str(e).startswith(f"order={order!r}"), str(e)
             assert got == accepted, (name, mode, order)
+
+# ------------------------------------------------------------ stream engines
+
+CSRC = os.path.join(ROOT, "csrc")
+ENGINE_FILES = ("stream.c", "stream_exact.c", "stream_compressed.c", "soe_build.c")
+
+
+def c_source(name):
+    with open(os.path.join(CSRC, name), encoding="utf-8") as fh:
+        return fh.read()
+
+
+def c_code(name):
+    """The C source without its comments (so that prose cannot satisfy or
+    break a check)."""
+    return re.sub(r"/\*.*?\*/", " ", c_source(name), flags=re.S)
+
+
+def test_stream_engines_are_separate_files():
+    present = set(os.listdir(CSRC))
+    for name in ENGINE_FILES:
+        assert name in present, name
+    assert "compressed.c" not in present  # split into the runtime and soe_build.c
+
+
+def test_stream_facade_holds_no_engine():
+    code = c_code("stream.c")
+    # no FFTs, kernels, recursions or sums of exponentials
+    for name in ("fc__fft_", "fc__spec_dot", "fc__lag_kernel", "fc__x0_correction",
+                 "fc__soe_build", "fc__segment_start", "fma(", "immintrin", "level_frame",
+                 "cs_step", "leaf_dot"):
+        assert name not in code, name
+    # the stream object keeps the common fields, the operations and an
+    # opaque engine pointer
+    m = re.search(r"struct fc_stream \{(.*?)\};", code, re.S)
+    assert m is not None
+    body = m.group(1)
+    assert re.search(r"const fc__stream_ops \*ops;", body)
+    assert re.search(r"void \*eng;", body)
+    fields = set(re.findall(r"(\w+)(?:\[\w+\])?\s*[;,]", body))
+    for exact_only in ("leaf", "segs", "lev", "u", "acc", "xprev", "x0", "kernel", "corr",
+                       "work", "umax", "cs"):
+        assert exact_only not in fields, exact_only
+    # every call goes through the table
+    for op in ("create", "load", "free", "push_block", "push1", "preview", "history",
+               "reset", "count", "nbytes", "terms", "save_size", "save"):
+        assert f"ops->{op}(" in code, op
+
+
+def test_each_engine_has_its_table_state_and_no_repeated_checks():
+    for name, table, state in (("stream_exact.c", "fc__exact_ops", "ex_engine"),
+                               ("stream_compressed.c", "fc__compressed_ops", "cs_engine")):
+        code = c_code(name)
+        assert re.search(rf"^const fc__stream_ops {table} = \{{", code, re.M), name
+        # its own state struct, the one the engine pointer stands for
+        assert re.search(rf"^\}} {state};", code, re.M), name
+        assert re.search(rf"{state} \*\w+ = eng;", code), name
+        assert "struct fc_stream" not in code, name
+        # the facade checks pointers and samples once
+        assert "FC_ERR_NULL" not in code, name
+        assert "fc__check_finite" not in code, name
+        assert "partial_overlap" not in code, name
+    facade = c_code("stream.c")
+    assert facade.count("fc__check_finite(x") == 2  # push_block and preview
+    # the construction lives in soe_build.c only
+    soe = c_code("soe_build.c")
+    assert re.search(r"^int fc__soe_build\(", soe, re.M)
+    runtime = c_code("stream_compressed.c")
+    for name in ("soe_gauss_discrete", "soe_jacobi_eig", "soe_verify", "gauss", "jacobi"):
+        assert name not in runtime, name
+    assert "cs_step" not in soe and "cs_engine" not in soe
