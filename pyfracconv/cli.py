@@ -725,7 +725,7 @@ input and output:
 memory:
   compressed (default): bounded whatever the length: about 12 KB per column
   for the stream, three buffers of 8 * ROWS * columns bytes, and up to
-  32 MiB resident of each mapped file. Outputs are within --tol of the
+  16 MiB resident of each mapped file. Outputs are within --tol of the
   exact ones (relative to the sum of the absolute terms) over --horizon
   samples (default: the record's length). Orders below 1, or below 2 for
   the rectangle integral.
@@ -776,7 +776,7 @@ def _add_chunked(sub):
                    help="compressed: samples the tolerance is promised for "
                         "(default: the record's length)")
     p.add_argument("--chunk", metavar="ROWS", type=int,
-                   help="time steps per chunk (default 2**20 values per chunk)")
+                   help="time steps per chunk (default 2**18 values per chunk)")
     p.add_argument("--progress", action="store_true",
                    help="a progress bar on standard error (needs tqdm: pip "
                         "install 'pyfracconv[progress]')")

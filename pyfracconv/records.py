@@ -61,9 +61,9 @@ PathLike = Union[str, "os.PathLike[str]"]
 #: Bytes of each mapped file processed between two mappings: pages already
 #: processed leave the process when the file is mapped again, so the
 #: resident part of each mapping stays below about this.
-MAP_BUDGET = 32 * 2**20
-#: Rows per chunk by default: 2**20 values (8 MiB) per chunk buffer.
-CHUNK_VALUES = 2**20
+MAP_BUDGET = 16 * 2**20
+#: Rows per chunk by default: 2**18 values (2 MiB) per chunk buffer.
+CHUNK_VALUES = 2**18
 #: Bytes per sample and column an exact stream holds (the largest measured
 #: by ``bench/stream_memory.py`` and by ``Stream.reserve``: 64-70 B with one
 #: column), the estimate checked against the machine's memory.
@@ -220,7 +220,7 @@ def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
         the record's length (at least that, since every output of the
         record must be within the promise).
     chunk : int, optional
-        Time steps per chunk (default 2**20 values per chunk: 2**20 //
+        Time steps per chunk (default 2**18 values per chunk: 2**18 //
         columns rows, at least 1). Results do not depend on it in
         compressed mode, and in exact mode they are those of an exact
         stream fed the same chunks.
