@@ -146,6 +146,11 @@ def integral(x: Any, order: float, step: float, rule: str = "rectangle",
         When computed: a NaN or infinite sample, named by its index in
         ``x``.
 
+    See Also
+    --------
+    pyfracconv.integral : the NumPy function applied to each block.
+    derivative, solve_many
+
     Examples
     --------
     At order 1 the rectangle rule is the left rectangle sum (common
@@ -184,6 +189,11 @@ def derivative(x: Any, order: float, step: float, rule: str = "grunwald",
     ------
     ArgumentError, InputTypeError, SampleError
         As for :func:`integral`.
+
+    See Also
+    --------
+    pyfracconv.derivative : the NumPy function applied to each block.
+    integral, solve_many
 
     Examples
     --------
@@ -298,6 +308,10 @@ def solve_many(rhs: Callable[..., Any], params: Any, y0: Value, order: Value,
     RhsError, NewtonError, ArgumentError
         When computed: the failure of one set, its message starting with
         ``params[i]=...``.
+
+    See Also
+    --------
+    pyfracconv.solve : what each parameter set goes through.
 
     Examples
     --------
