@@ -652,8 +652,11 @@ def _run_chunked(args):
     except ImportError as exc:  # --progress without tqdm
         raise CliError(str(exc)) from None
     except OSError as exc:
-        raise CliError(f"cannot write output {args.output!r}: "
-                       f"{exc.strerror or exc}; no output was written") from None
+        text = str(exc.strerror or exc)
+        if "out_path=" not in text:
+            text = (f"cannot write output {args.output!r}: {text}; no output was "
+                    "written")
+        raise CliError(text) from None
     return 0
 
 

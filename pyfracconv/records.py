@@ -27,12 +27,14 @@ figures):
 The output is written to a temporary file in the output's directory and
 renamed over ``out_path`` only when every chunk has been written and
 flushed: a failure (a bad sample found half-way, a full disk, an
-interrupt) leaves no partial output, and an older file at ``out_path``
+interrupt) leaves no partial output (the output's disk space is
+allocated before the first chunk, so a full disk is found there), and an older file at ``out_path``
 is kept as it was.
 """
 
 from __future__ import annotations
 
+import errno
 import math
 import os
 import tempfile
@@ -40,10 +42,10 @@ from typing import Any, Literal, NamedTuple, Optional, Union
 
 import numpy as np
 
+from . import _checks
 from ._checks import (
     DERIVATIVE_RULES,
     INTEGRAL_RULES,
-    check_bytes,
     check_compressed,
     check_count,
     check_mode,
@@ -51,7 +53,7 @@ from ._checks import (
     check_rule,
     check_step,
 )
-from ._errors import ArgumentError, InputTypeError, SampleError, show
+from ._errors import ArgumentError, InputTypeError, OutOfMemory, SampleError, show
 from .stream import Stream
 
 __all__ = ["apply_npy", "RecordSummary", "MAP_BUDGET", "EXACT_BYTES_PER_SAMPLE"]
@@ -175,6 +177,29 @@ class _Mapped:
         del arr  # the last reference: the mapping goes with it
 
 
+def _allocate(path: str) -> None:
+    """Reserve the disk space of the whole file now: writing through a
+    mapping into a file the disk has no room for kills the process
+    (SIGBUS) instead of raising, so a full disk must be found here."""
+    fallocate = getattr(os, "posix_fallocate", None)
+    if fallocate is None:  # pragma: no cover - not on this platform
+        return
+    size = os.path.getsize(path)
+    with open(path, "rb+") as fh:
+        try:
+            fallocate(fh.fileno(), 0, size)
+        except OSError as exc:
+            if exc.errno in (errno.EINVAL, errno.EOPNOTSUPP):
+                return  # a file system without it: writes are checked later
+            raise
+
+
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
 def _tqdm() -> Any:
     from .solve import _tqdm as solve_tqdm  # the same optional extra, 'progress'
 
@@ -247,7 +272,9 @@ def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
     OutOfMemory
         ``mode='exact'`` on a record whose history does not fit.
     OSError
-        Writing failed (the temporary file is removed; no output).
+        The output cannot be created (no room on the disk is found here,
+        before the first chunk, since the whole file is allocated at
+        once) or writing failed: the temporary file is removed, no output.
 
     See Also
     --------
@@ -319,11 +346,16 @@ def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
         s = make(order, step, rule=rule, channels=channels, mode="compressed",
                  tol=tol, horizon=hz)
     else:
-        check_bytes(f"mode='exact' on in_path={show(inp)} (shape {shape})",
-                    EXACT_BYTES_PER_SAMPLE * T * C + 3 * 8 * rows * C,
-                    "the exact stream's history (about "
-                    f"{EXACT_BYTES_PER_SAMPLE} bytes per sample and column); "
-                    "use mode='compressed' for bounded memory, which")
+        need = EXACT_BYTES_PER_SAMPLE * T * C + 3 * 8 * rows * C
+        ram = _checks._RAM
+        if ram is not None and need > ram:
+            raise OutOfMemory(
+                f"mode='exact' on in_path={show(inp)} (shape {shape}): the exact "
+                f"stream's history would need about {_checks._nbytes_text(need)} "
+                f"({EXACT_BYTES_PER_SAMPLE} bytes per sample and column), more than "
+                f"this machine's memory ({_checks._nbytes_text(ram)}); use "
+                "mode='compressed' (bounded memory); nothing was written"
+            )
         s = make(order, step, rule=rule, channels=channels, mode="exact")
         s.reserve(T)  # OutOfMemory here, before the output exists
 
@@ -340,10 +372,13 @@ def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
             del_me = np.lib.format.open_memmap(tmp, mode="w+", dtype=np.float64,
                                                shape=shape)
             del del_me
+            _allocate(tmp)
+            os.chmod(tmp, 0o666 & ~_umask())  # as np.save would create it
         except OSError as exc:
-            raise ArgumentError(
-                f"out_path={show(out)}: cannot write in {out_dir!r} "
-                f"({exc.strerror or exc})"
+            raise OSError(
+                exc.errno,
+                f"out_path={show(out)}: cannot create the output in {out_dir!r} "
+                f"({exc.strerror or exc}); nothing was written"
             ) from None
         row_bytes = 8 * C
         src_map = _Mapped(inp, "r", MAP_BUDGET)

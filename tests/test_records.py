@@ -364,6 +364,36 @@ def test_fault_in_rename_leaves_no_output(tmp_path, monkeypatch):
     assert _files(tmp_path) == ["in.npy"]
 
 
+def test_no_room_on_the_disk_is_found_before_the_first_chunk(tmp_path, monkeypatch):
+    """Writing through a mapping into a file the disk has no room for kills
+    the process (SIGBUS, POSIX mmap semantics): the space is allocated
+    first, so a full disk is an OSError before any chunk."""
+    inp = save(tmp_path, "in.npy", signal((3000,)))
+    out = str(tmp_path / "out.npy")
+    pushed = []
+    monkeypatch.setattr(Stream, "push_many", lambda self, xs, axis=0: pushed.append(1))
+
+    def full(fd, offset, length):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(os, "posix_fallocate", full)
+    with pytest.raises(OSError, match=r"out_path=.*out\.npy.*No space left") as info:
+        records.apply_npy(inp, out, "integral", 0.5, 0.01)
+    assert info.value.errno == 28
+    assert pushed == []
+    assert _files(tmp_path) == ["in.npy"]
+
+
+def test_output_file_mode_follows_the_umask(tmp_path):
+    inp = save(tmp_path, "in.npy", signal((100,)))
+    old = os.umask(0o027)
+    try:
+        records.apply_npy(inp, str(tmp_path / "o.npy"), "integral", 0.5, 0.01)
+    finally:
+        os.umask(old)
+    assert os.stat(tmp_path / "o.npy").st_mode & 0o777 == 0o640
+
+
 # ------------------------------------------------------------ progress
 
 def test_progress_bar_is_fed_and_changes_nothing(tmp_path, monkeypatch):
@@ -474,6 +504,29 @@ def test_cli_chunked_nan_leaves_no_output(tmp_path, capsys):
     code, _, err = run(capsys, "chunked", "integral", inp, "-o", str(tmp_path / "o.npy"),
                        "--order", "0.5", "--step", "0.1", "--chunk", "256")
     assert code == 2 and "element [1500] is inf" in err
+    assert _files(tmp_path) == ["in.npy"]
+
+
+def test_cli_chunked_write_failures_exit_2(tmp_path, capsys, monkeypatch):
+    inp = save(tmp_path, "in.npy", signal((100,)))
+
+    def full(fd, offset, length):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(os, "posix_fallocate", full)
+    code, _, err = run(capsys, "chunked", "integral", inp, "-o", str(tmp_path / "o.npy"),
+                       "--order", "0.5", "--step", "0.1")
+    assert code == 2 and "No space left on device" in err and "o.npy" in err
+    monkeypatch.undo()
+
+    def broken(a, b):
+        raise OSError(5, "Input/output error")
+
+    monkeypatch.setattr(os, "replace", broken)
+    code, _, err = run(capsys, "chunked", "integral", inp, "-o", str(tmp_path / "o.npy"),
+                       "--order", "0.5", "--step", "0.1")
+    monkeypatch.undo()
+    assert code == 2 and "cannot write output" in err and "Input/output error" in err
     assert _files(tmp_path) == ["in.npy"]
 
 
