@@ -241,6 +241,10 @@ def _solve_block(block: Any, first: int, rhs: Callable[..., Any], y0: Any, order
             y0k = _per_set(y0, p)
             ok = _per_set(order, p)
             dk = _per_set(dy0, p)
+        except Exception as exc:
+            raise ArgumentError(f"params[{i}]={show(p)}: y0, order or dy0 raised "
+                                f"{type(exc).__name__}: {exc}") from exc
+        try:
             res = solve((lambda t, y, p=p: rhs(t, y, p)), y0k, ok, step, n_steps,
                         dy0=dk, jacobian=(None if jacobian is None else
                                           (lambda t, y, p=p: jacobian(t, y, p))),

@@ -161,6 +161,18 @@ def test_explicit_euler_closed_form_threads():
     want = (1.0 - p[:, None] * 0.125) ** np.arange(9)[None, :]
     assert np.allclose(y, want, rtol=1e-14, atol=0)
     assert np.array_equal(t, 0.125 * np.arange(9))
+    t, Y = pfd.solve_many(decay, p, 1.0, 1.0, 0.125, 8, method="rectangle", t0=0.3)
+    assert np.array_equal(Y.compute(scheduler="threads"), y)
+    assert np.array_equal(t, pyfracconv.solve(lambda t, y: -y, 1.0, 1.0, 0.125, 8,
+                                              method="rectangle", t0=0.3).t)
+
+
+def test_per_set_value_that_raises_is_named():
+    t, Y = pfd.solve_many(decay, np.array([1.0, 0.0]), lambda p: {1.0: 1.0}[float(p)],
+                          0.5, 0.1, 5, chunk=1)
+    with pytest.raises(ArgumentError, match=r"params\[1\]=0\.0: y0, order or dy0 raised "
+                                            r"KeyError"):
+        Y.compute(scheduler="threads")
 
 
 def test_failing_set_is_named():
