@@ -6,10 +6,12 @@ to the batch functions within rounding; compressed mode to the batch
 functions (exact to rounding) and to the extended-precision reference of
 tests/reference.py within the compressed stream's stated bound
 |y_n - exact_n| <= (tol + 64 eps) sum_k |c_{n-k} u_k| (README "Streaming",
-docs/design.md section on compressed mode). For the integral rules the
-weights are positive (common practice: they are integrals of a positive
-kernel, docs/design.md section 1), so sum_k |c_{n-k} x_k| is the batch
-integral of |x|, which gives the bound at every index.
+docs/design.md section on compressed mode). For the integral rules every
+weight is positive (docs/design.md section 1: b_m = (m+1)^a - m^a, a_m
+a second difference of the convex m^(a+1), A_n the trapezoid's positive
+starting weight; common practice: each is the integral of the positive
+kernel against a nonnegative box or hat function), so sum_k |c_{n-k} x_k|
+is the batch integral of |x|, which gives the bound at every index.
 """
 
 import os
