@@ -24,11 +24,14 @@ SUITES = {
     "fftw": "test_bench_fftw.py",
     "stream": "test_bench_stream.py",
     "compressed": "test_bench_compressed.py",
+    "records": "test_bench_records.py",
+    "dask": "test_bench_dask.py",
 }
 SCRIPTS = {
     "batch": ["first_call.py"],
     "stream": ["stream_memory.py"],
     "compressed": ["soe_terms.py"],
+    "records": ["records_1e8.py"],
 }
 
 
