@@ -18,6 +18,7 @@
 #include <string.h>
 
 #include "fracconv.h"
+#include "serial.h"
 
 struct fc_controller {
     fc_controller_params p;
@@ -387,45 +388,11 @@ int fc_controller_nbytes(const fc_controller *c, size_t *nbytes)
 #define FIXED (16 + 8 * NDBL + 4 * NINT + 8)
 static const unsigned char MAGIC[8] = {'F', 'C', 'C', 'T', 'R', 'L', '0', '1'};
 
-static void put_u64(unsigned char *p, uint64_t v)
-{
-    for (int k = 0; k < 8; k++) p[k] = (unsigned char)(v >> (8 * k));
-}
-static uint64_t get_u64(const unsigned char *p)
-{
-    uint64_t v = 0;
-    for (int k = 0; k < 8; k++) v |= (uint64_t)p[k] << (8 * k);
-    return v;
-}
-static void put_u32(unsigned char *p, uint32_t v)
-{
-    for (int k = 0; k < 4; k++) p[k] = (unsigned char)(v >> (8 * k));
-}
-static uint32_t get_u32(const unsigned char *p)
-{
-    uint32_t v = 0;
-    for (int k = 0; k < 4; k++) v |= (uint32_t)p[k] << (8 * k);
-    return v;
-}
-static void put_dbl(unsigned char *p, double d)
-{
-    uint64_t v;
-    memcpy(&v, &d, 8);
-    put_u64(p, v);
-}
-static double get_dbl(const unsigned char *p)
-{
-    uint64_t v = get_u64(p);
-    double d;
-    memcpy(&d, &v, 8);
-    return d;
-}
-static uint64_t fnv1a(const unsigned char *p, size_t n)
-{
-    uint64_t h = 1469598103934665603ULL;
-    for (size_t i = 0; i < n; i++) { h ^= p[i]; h *= 1099511628211ULL; }
-    return h;
-}
+/* The controller's checksum is FNV-1a 64 (serial.h) started from this
+   basis: the save format's first version used a basis one digit short of
+   the published offset basis (14695981039346656037). It stays part of the
+   format, so that every controller saved so far still loads. */
+#define CTRL_FNV_BASIS UINT64_C(1469598103934665603)
 
 static int stream_size(fc_stream *s, size_t *n)
 {
@@ -471,12 +438,12 @@ int fc_controller_save(const fc_controller *c, unsigned char *buf, size_t size,
     if (!tmp) return FC_ERR_NOMEM;
     size_t off = 0;
     memcpy(tmp, MAGIC, 8);
-    put_u32(tmp + 8, 1);
-    put_u32(tmp + 12, 0);
+    fc__put32(tmp + 8, 1);
+    fc__put32(tmp + 12, 0);
     off = 16;
-    for (int k = 0; k < NDBL; k++, off += 8) put_dbl(tmp + off, d[k]);
-    for (int k = 0; k < NINT; k++, off += 4) put_u32(tmp + off, in[k]);
-    put_u64(tmp + off, c->count);
+    for (int k = 0; k < NDBL; k++, off += 8) fc__putd(tmp + off, d[k]);
+    for (int k = 0; k < NINT; k++, off += 4) fc__put32(tmp + off, in[k]);
+    fc__put64(tmp + off, c->count);
     off += 8;
     fc_stream *ss[2] = {c->si, c->sd};
     for (int k = 0; k < 2; k++) {
@@ -485,10 +452,10 @@ int fc_controller_save(const fc_controller *c, unsigned char *buf, size_t size,
             st = fc_stream_save(ss[k], tmp + off + 8, need - 8 - off - 8, &w);
             if (st) { free(tmp); return st; }
         }
-        put_u64(tmp + off, (uint64_t)w);
+        fc__put64(tmp + off, (uint64_t)w);
         off += 8 + w;
     }
-    put_u64(tmp + off, fnv1a(tmp, off));
+    fc__put64(tmp + off, fc__fnv1a(CTRL_FNV_BASIS, tmp, off));
     off += 8;
     memcpy(buf, tmp, off);
     free(tmp);
@@ -518,14 +485,14 @@ int fc_controller_load(const unsigned char *buf, size_t size,
     if (!buf || !out) return FC_ERR_NULL;
     if (size < FIXED + 24) return FC_ERR_FORMAT;
     if (memcmp(buf, MAGIC, 8) != 0) return FC_ERR_FORMAT;
-    if (get_u32(buf + 8) != 1 || get_u32(buf + 12) != 0) return FC_ERR_FORMAT;
-    if (get_u64(buf + size - 8) != fnv1a(buf, size - 8)) return FC_ERR_FORMAT;
+    if (fc__get32(buf + 8) != 1 || fc__get32(buf + 12) != 0) return FC_ERR_FORMAT;
+    if (fc__get64(buf + size - 8) != fc__fnv1a(CTRL_FNV_BASIS, buf, size - 8)) return FC_ERR_FORMAT;
     double d[NDBL];
     uint32_t in[NINT];
     size_t off = 16;
-    for (int k = 0; k < NDBL; k++, off += 8) d[k] = get_dbl(buf + off);
-    for (int k = 0; k < NINT; k++, off += 4) in[k] = get_u32(buf + off);
-    uint64_t count = get_u64(buf + off);
+    for (int k = 0; k < NDBL; k++, off += 8) d[k] = fc__getd(buf + off);
+    for (int k = 0; k < NINT; k++, off += 4) in[k] = fc__get32(buf + off);
+    uint64_t count = fc__get64(buf + off);
     off += 8;
     for (int k = 0; k < 6; k++) if (in[k] > 16) return FC_ERR_FORMAT;
     if (in[6] > 1 || in[7] != 0) return FC_ERR_FORMAT;
@@ -561,7 +528,7 @@ int fc_controller_load(const unsigned char *buf, size_t size,
     size_t sn[2];
     for (int k = 0; k < 2; k++) {
         if (size - 8 - off < 8) return FC_ERR_FORMAT;
-        uint64_t n = get_u64(buf + off);
+        uint64_t n = fc__get64(buf + off);
         off += 8;
         if (n > (uint64_t)(size - 8 - off)) return FC_ERR_FORMAT;
         sb[k] = buf + off;

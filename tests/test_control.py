@@ -198,6 +198,37 @@ def test_save_load_resumes_bit_for_bit(memory):
     assert np.array_equal(a.update_block(1.0, y), b.update_block(1.0, y))
 
 
+# tests/data/controller_v1_{exact,compressed}.bin: controllers saved by the
+# library before its save/load moved onto the shared serializer (made by
+# Controller(2.0, 0.7, 0.3, integral_order=0.6, derivative_order=0.4,
+# step=0.05, output_limits=(-5, 5), rate_limit=40, derivative_filter=0.1,
+# memory=..., tol=1e-10, horizon=1e6) after update_block(sp, meas) with the
+# 300 samples of _legacy_inputs()): they must still load and continue like a
+# controller fed the same samples.
+DATA = __import__("pathlib").Path(__file__).with_name("data")
+
+
+def _legacy_inputs():
+    k = np.arange(300.0)
+    sp = np.where(k < 40, 0.0, 1.0)
+    meas = 0.8 * (1 - np.exp(-k / 60.0)) + 0.01 * np.sin(0.3 * k)
+    return sp, meas
+
+
+@pytest.mark.parametrize("memory", ["compressed", "exact"])
+def test_controllers_saved_by_earlier_versions_still_load(memory):
+    blob = (DATA / f"controller_v1_{memory}.bin").read_bytes()
+    b = pf.Controller.load(blob)
+    assert b.save() == blob
+    a = pf.Controller(2.0, 0.7, 0.3, integral_order=0.6, derivative_order=0.4, step=0.05,
+                      output_limits=(-5.0, 5.0), rate_limit=40.0, derivative_filter=0.1,
+                      memory=memory, tol=1e-10, horizon=1e6)
+    a.update_block(*_legacy_inputs())
+    assert a.save() == blob
+    y = np.random.default_rng(21).normal(size=400)
+    assert np.array_equal(a.update_block(1.0, y), b.update_block(1.0, y))
+
+
 def _fnv(data):
     h = 1469598103934665603
     for x in data:
