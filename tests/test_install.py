@@ -163,3 +163,18 @@ def test_uninstall_removes_what_install_wrote(prefix):
     # and the next install works again (the other tests may run after this one)
     r = readme_c.run(readme_c.sh_blocks()["install"], ROOT, env)
     assert r.returncode == 0, r.stderr
+
+
+def test_flags_command_parts(capsys):
+    from pyfracconv.cli import main
+    assert main(["flags", "--cflags"]) == 0
+    assert capsys.readouterr().out.split() == ["-I" + pyfracconv.get_include()]
+    assert main(["flags", "--libs"]) == 0
+    d = pyfracconv.get_lib_dir()
+    assert capsys.readouterr().out.split() == [os.path.join(d, "libfracconv.so.0"),
+                                               "-Wl,-rpath," + d, "-lm"]
+    # the shared object is the library's: its SONAME and its version
+    import ctypes
+    so = ctypes.CDLL(os.path.join(d, "libfracconv.so.0"))
+    so.fc_version_string.restype = ctypes.c_char_p
+    assert so.fc_version_string().decode() == pyfracconv.c_version
