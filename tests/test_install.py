@@ -178,3 +178,14 @@ def test_flags_command_parts(capsys):
     so = ctypes.CDLL(os.path.join(d, "libfracconv.so.0"))
     so.fc_version_string.restype = ctypes.c_char_p
     assert so.fc_version_string().decode() == pyfracconv.c_version
+
+
+def test_missing_library_copy_is_explained(monkeypatch, capsys):
+    # a package built without the library (not Linux) or a removed copy
+    from pyfracconv import _core
+    from pyfracconv.cli import main
+    monkeypatch.setattr(_core.os.path, "isfile", lambda path: False)
+    with pytest.raises(FileNotFoundError, match="libfracconv.so.0, libfracconv.a.*reinstall"):
+        pyfracconv.get_lib_dir()
+    assert main(["flags"]) == 2
+    assert "no C library" in capsys.readouterr().err
