@@ -189,3 +189,15 @@ def test_missing_library_copy_is_explained(monkeypatch, capsys):
         pyfracconv.get_lib_dir()
     assert main(["flags"]) == 2
     assert "no C library" in capsys.readouterr().err
+
+
+def test_readme_static_link_on_the_prefix(prefix, work):
+    # the README's inline command for the static library, run verbatim
+    home, _ = prefix
+    cmd = re.search(r"The static library instead: `([^`]+)`", readme_c.c_section()).group(1)
+    r = readme_c.run(cmd + " && ./prog", work, {**_user_env(home),
+                     "PKG_CONFIG_PATH": f"{home}/.local/lib/pkgconfig"})
+    assert r.returncode == 0, r.stdout + r.stderr
+    assert abs(_printed_value(r.stdout) - EXACT) < 1e-12 * EXACT
+    ldd = subprocess.run(["ldd", str(work / "prog")], capture_output=True, text=True).stdout
+    assert "libfracconv" not in ldd
