@@ -1,8 +1,9 @@
-# Builds the C library for compiled callers: build/libfracconv.so (a
-# versioned shared object), build/libfracconv.a, the example program and
-# the C benchmarks. make BUILD=dir builds into dir instead of build/ (the
-# pip install uses its own build/ subfolders, which never clash with the
-# files made here).
+# Builds the C library for compiled callers: cbuild/libfracconv.so (a
+# versioned shared object), cbuild/libfracconv.a, the example programs and
+# the C benchmarks; make install PREFIX=... [DESTDIR=...] installs them.
+# make BUILD=dir builds into dir instead of cbuild/. setuptools (pip
+# install) keeps its own tree, build/, which make never touches: make
+# clean removes cbuild/ only.
 CC ?= cc
 # FC_OPT_CFLAGS and FC_STD_CFLAGS, shared with setup_build.py (the extension)
 include csrc/flags.mk
@@ -10,7 +11,7 @@ CFLAGS ?= $(FC_OPT_CFLAGS)
 # -fvisibility=hidden: only the functions fracconv.h marks FC_API are
 # exported from the shared object (nm -D lists fc_ names only).
 ALL_CFLAGS = $(CFLAGS) $(FC_STD_CFLAGS) -fPIC -fvisibility=hidden -Icsrc
-BUILD = build
+BUILD = cbuild
 # The shared object's version: the SONAME carries the major number (the
 # ABI), the file name the full version, both read from fracconv.h.
 VMAJOR := $(shell sed -n 's/^\#define FC_VERSION_MAJOR \([0-9]*\).*/\1/p' csrc/fracconv.h)
@@ -24,7 +25,7 @@ HDRS = $(wildcard csrc/*.h)
 BENCH_SRCS = $(wildcard bench/c/*.c)
 BENCH_BINS = $(patsubst bench/c/%.c,$(BUILD)/%,$(BENCH_SRCS))
 
-.PHONY: all lib example solver-example bench-c check-c clean
+.PHONY: all lib example solver-example bench-c check-c clean install uninstall fortran-mod
 
 all: lib example
 
@@ -83,3 +84,57 @@ fortran-example: $(BUILD)/example_f90
 $(BUILD)/example_f90: fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a
 	@mkdir -p $(BUILD)/fmod
 	$(FC) $(FFLAGS) -J $(BUILD)/fmod fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a -lm -o $@
+
+# ------------------------------------------------------------- install
+# make install PREFIX=/usr/local [DESTDIR=/staging]: the headers
+# (fracconv.h, fracconv.hpp), the Fortran module source fracconv.f90 (and
+# fracconv.mod after make fortran-mod), the shared library with its SONAME
+# links, the static library, pkg-config's fracconv.pc and CMake's
+# fracconvConfig.cmake + fracconvConfigVersion.cmake. The generated files
+# carry PREFIX (not DESTDIR): a staged tree works once moved to PREFIX.
+PREFIX = /usr/local
+INCLUDEDIR = $(PREFIX)/include
+LIBDIR = $(PREFIX)/lib
+PKGCONFIGDIR = $(LIBDIR)/pkgconfig
+CMAKEDIR = $(LIBDIR)/cmake/fracconv
+VERSION = $(VMAJOR).$(VMINOR).$(VPATCH)
+INSTALL = install
+# the target's pointer size, for the CMake version check
+SIZEOF_VOID_P := $(shell $(CC) -dM -E - </dev/null 2>/dev/null | sed -n 's/^\#define __SIZEOF_POINTER__ //p')
+PKG_FILES = $(BUILD)/pkg/fracconv.pc $(BUILD)/pkg/fracconvConfig.cmake $(BUILD)/pkg/fracconvConfigVersion.cmake
+SUBST = sed -e 's|@PREFIX@|$(PREFIX)|g' -e 's|@INCLUDEDIR@|$(INCLUDEDIR)|g' \
+	-e 's|@LIBDIR@|$(LIBDIR)|g' -e 's|@VERSION@|$(VERSION)|g' -e 's|@VMAJOR@|$(VMAJOR)|g' \
+	-e 's|@SOFILE@|$(SOFILE)|g' -e 's|@SONAME@|$(SONAME)|g' -e 's|@SIZEOF_VOID_P@|$(SIZEOF_VOID_P)|g'
+
+# always regenerated: PREFIX may differ from the last run
+.PHONY: $(PKG_FILES)
+$(PKG_FILES): $(BUILD)/pkg/%: packaging/%.in
+	@mkdir -p $(BUILD)/pkg
+	$(SUBST) $< > $@
+
+# The Fortran module file alone (compiler-specific; installed when built).
+fortran-mod: $(BUILD)/fmod/fracconv.mod
+$(BUILD)/fmod/fracconv.mod: fortran/fracconv.f90
+	@mkdir -p $(BUILD)/fmod
+	$(FC) $(FFLAGS) -J $(BUILD)/fmod -c $< -o $(BUILD)/fmod/fracconv.o
+
+install: lib $(PKG_FILES)
+	$(INSTALL) -d $(DESTDIR)$(INCLUDEDIR) $(DESTDIR)$(LIBDIR) $(DESTDIR)$(PKGCONFIGDIR) $(DESTDIR)$(CMAKEDIR)
+	$(INSTALL) -m 644 csrc/fracconv.h csrc/fracconv.hpp fortran/fracconv.f90 $(DESTDIR)$(INCLUDEDIR)/
+	if [ -f $(BUILD)/fmod/fracconv.mod ]; then $(INSTALL) -m 644 $(BUILD)/fmod/fracconv.mod $(DESTDIR)$(INCLUDEDIR)/; fi
+	$(INSTALL) -m 755 $(BUILD)/$(SOFILE) $(DESTDIR)$(LIBDIR)/$(SOFILE)
+	ln -sf $(SOFILE) $(DESTDIR)$(LIBDIR)/$(SONAME)
+	ln -sf $(SONAME) $(DESTDIR)$(LIBDIR)/libfracconv.so
+	$(INSTALL) -m 644 $(BUILD)/libfracconv.a $(DESTDIR)$(LIBDIR)/
+	$(INSTALL) -m 644 $(BUILD)/pkg/fracconv.pc $(DESTDIR)$(PKGCONFIGDIR)/
+	$(INSTALL) -m 644 $(BUILD)/pkg/fracconvConfig.cmake $(BUILD)/pkg/fracconvConfigVersion.cmake $(DESTDIR)$(CMAKEDIR)/
+
+# Removes what install put there (same PREFIX and DESTDIR), and the
+# package's own folder if it is left empty.
+uninstall:
+	rm -f $(DESTDIR)$(INCLUDEDIR)/fracconv.h $(DESTDIR)$(INCLUDEDIR)/fracconv.hpp \
+	      $(DESTDIR)$(INCLUDEDIR)/fracconv.f90 $(DESTDIR)$(INCLUDEDIR)/fracconv.mod \
+	      $(DESTDIR)$(LIBDIR)/$(SOFILE) $(DESTDIR)$(LIBDIR)/$(SONAME) $(DESTDIR)$(LIBDIR)/libfracconv.so \
+	      $(DESTDIR)$(LIBDIR)/libfracconv.a $(DESTDIR)$(PKGCONFIGDIR)/fracconv.pc \
+	      $(DESTDIR)$(CMAKEDIR)/fracconvConfig.cmake $(DESTDIR)$(CMAKEDIR)/fracconvConfigVersion.cmake
+	-rmdir $(DESTDIR)$(CMAKEDIR) 2>/dev/null

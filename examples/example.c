@@ -8,7 +8,7 @@
  * two agree to rounding. Then a stream fed one sample at a time must give
  * the same values as the batch call.
  *
- * Build: make example   (or: cc -Icsrc examples/example.c build/libfracconv.a -lm)
+ * Build: make example   (or: cc -Icsrc examples/example.c cbuild/libfracconv.a -lm)
  * Exit status 0 when every check passes.
  */
 #include <math.h>

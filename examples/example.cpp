@@ -10,7 +10,7 @@
 // pyfracconv::error carrying the status; move-only ownership.
 //
 // Build: make cpp-example   (or: g++ -std=c++17 -Icsrc examples/example.cpp
-//        build/libfracconv.a -lm)
+//        cbuild/libfracconv.a -lm)
 // Exit status 0 when every check passes.
 #include <cmath>
 #include <cstdio>

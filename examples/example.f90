@@ -12,7 +12,7 @@
 ! writes the compressed stream's saved bytes there.
 !
 ! Build: make fortran-example   (or: gfortran -std=f2008 fortran/fracconv.f90
-!        examples/example.f90 build/libfracconv.a -lm)
+!        examples/example.f90 cbuild/libfracconv.a -lm)
 ! Exit status 0 when every check passes.
 program example
   use, intrinsic :: iso_c_binding, only: c_double, c_int64_t, c_signed_char

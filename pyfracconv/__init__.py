@@ -48,7 +48,7 @@ from ._errors import (
     SampleError,
     StateError,
 )
-from ._core import derivative, get_include, integral, lagged_sum, weights
+from ._core import derivative, get_include, get_lib_dir, integral, lagged_sum, weights
 from ._fracconv import ffi as _ffi, lib as _lib
 
 __version__ = "0.1.0"
@@ -67,6 +67,7 @@ __all__ = [
     "integral",
     "derivative",
     "get_include",
+    "get_lib_dir",
     "Stream",
     "solve",
     "export_c",

@@ -51,6 +51,7 @@ __all__ = [
     "integral",
     "derivative",
     "get_include",
+    "get_lib_dir",
     "trapezoid_start",
     "INTEGRAL_RULES",
     "DERIVATIVE_RULES",
@@ -513,3 +514,79 @@ def get_include() -> str:
         return inc
     src = os.path.join(os.path.dirname(here), "csrc")  # a source checkout
     return src
+
+
+def _version_major() -> str:
+    return str(int(lib.FC_VERSION_MAJOR))
+
+
+def get_lib_dir() -> str:
+    """The folder holding the C library: ``libfracconv.so.MAJOR`` (the
+    shared object under its SONAME) and ``libfracconv.a``.
+
+    Returns
+    -------
+    str
+        The installed package's ``lib`` folder, or, for an editable
+        install of a source checkout, the checkout's
+        ``build/pyfracconv-lib`` (where that install put the library).
+
+    Raises
+    ------
+    FileNotFoundError
+        When the package was built without the library (platforms other
+        than Linux) or the checkout's copy is missing.
+
+    See Also
+    --------
+    get_include : the folder of the headers.
+
+    Notes
+    -----
+    ``pyfracconv flags [--cflags] [--libs] [--static]`` prints the compiler
+    and linker flags for these folders (with a run-time path, so the program
+    finds the shared object).
+
+    Examples
+    --------
+    >>> import os
+    >>> import pyfracconv
+    >>> os.path.isfile(os.path.join(pyfracconv.get_lib_dir(), "libfracconv.a"))
+    True
+    """
+    here = os.path.dirname(os.path.abspath(__file__))
+    name = "libfracconv.so." + _version_major()
+    installed = os.path.join(here, "lib")
+    checkout = os.path.join(os.path.dirname(here), "build", "pyfracconv-lib")
+    for d in (installed, checkout):
+        if os.path.isfile(os.path.join(d, name)) and os.path.isfile(
+                os.path.join(d, "libfracconv.a")):
+            return d
+    raise FileNotFoundError(
+        f"pyfracconv: no C library ({name}, libfracconv.a) in {installed}"
+        + (f" or {checkout}" if os.path.isdir(os.path.dirname(checkout)) else "")
+        + ": the package ships it on Linux; reinstall (pip install --force-reinstall "
+        "pyfracconv, or pip install -e . in a checkout), or build it with make "
+        "from the source checkout")
+
+
+def c_flags(cflags: bool = True, libs: bool = True, static: bool = False) -> list[str]:
+    """Compiler and linker flags for a C, C++ or Fortran program using the
+    package's copy of the library (what ``pyfracconv flags`` prints).
+
+    ``cflags``: ``-I`` of :func:`get_include`. ``libs``: the shared object
+    by its path, a run-time path (``-Wl,-rpath``) to its folder so the
+    program runs without ``LD_LIBRARY_PATH``, and ``-lm``; with
+    ``static=True`` the static library instead (no run-time path needed).
+    """
+    out: list[str] = []
+    if cflags:
+        out.append("-I" + get_include())
+    if libs:
+        d = get_lib_dir()
+        if static:
+            out += [os.path.join(d, "libfracconv.a"), "-lm"]
+        else:
+            out += [os.path.join(d, "libfracconv.so." + _version_major()),
+                    "-Wl,-rpath," + d, "-lm"]
+    return out

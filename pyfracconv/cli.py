@@ -9,6 +9,9 @@ Subcommands::
                           [--rule R] [--mode compressed|exact] [--tol T] [--horizon N]
                           [--chunk ROWS] [--progress]
     pyfracconv demo [--verify] [--out-dir DIR]
+    pyfracconv flags [--cflags] [--libs] [--static]
+    pyfracconv export-c --rule R --order A --step H [--tol T] [--horizon N]
+                        [--precision single|double] [--prefix NAME] -o DIR
 
 INPUT is a CSV file (comma separated, one optional header row of column
 names, every column a signal sampled at t_k = k*step) or a ``.npy`` file
@@ -36,6 +39,8 @@ from . import __version__
 from ._core import (
     DERIVATIVE_RULES,
     INTEGRAL_RULES,
+    RULES,
+    c_flags,
     check_order,
     check_rule,
     check_step,
@@ -672,6 +677,44 @@ def _run_demo(args):
     return demo_loop.run(sys.stdout, out_dir=args.out_dir)
 
 
+def _run_flags(args):
+    both = not (args.cflags or args.libs)
+    try:
+        words = c_flags(cflags=args.cflags or both, libs=args.libs or both,
+                        static=args.static)
+    except FileNotFoundError as exc:
+        raise CliError(str(exc)) from None
+    print(" ".join(words))
+    return 0
+
+
+def _run_export(args):
+    from .export import export_c
+
+    order = _real_option("order", args.order, check_order, args.rule)
+    step = _real_option("step", args.step, check_step)
+
+    def number(text):
+        try:
+            return _to_float(text)
+        except ValueError:
+            return text  # the library's check names the argument and the value
+
+    tol, horizon = number(args.tol), number(args.horizon)
+    if not os.path.isdir(args.output):
+        raise CliError(f"-o {args.output}: not an existing directory")
+    op = export_c(args.rule, order, step, tol=tol, horizon=horizon,
+                  precision=args.precision, prefix=args.prefix)
+    paths = op.write(args.output)
+    info = op.info
+    err = (f"single-precision error measured {info['measured']:.3g}, stated bound "
+           f"{info['stated']:.3g} of each output's error scale"
+           if info["stated"] is not None else "double precision")
+    print(f"{PROG}: wrote {', '.join(paths)} ({info['terms']} exponential terms; {err})",
+          file=sys.stderr)
+    return 0
+
+
 def _wrap(text):
     return textwrap.fill(" ".join(text.split()), width=76, break_on_hyphens=False)
 
@@ -889,6 +932,65 @@ def build_parser():
     d.add_argument("--out-dir", default="pyfracconv-demo", metavar="DIR",
                    help="where the demo writes its files (default ./pyfracconv-demo)")
     d.set_defaults(func=_run_demo)
+    f = sub.add_parser(
+        "flags",
+        help="compiler and linker flags for C, C++ and Fortran programs using the library",
+        description=_wrap(
+            "Print the flags that compile and link a program against the copy of "
+            "the C library inside this Python package (the header folder of "
+            "pyfracconv.get_include(), the libraries of pyfracconv.get_lib_dir()). "
+            "Without options: --cflags and --libs. The shared library is linked "
+            "by its path with a run-time path (-Wl,-rpath) to its folder, so the "
+            "program runs without LD_LIBRARY_PATH; --static links the static "
+            "library instead. Example: cc prog.c $(pyfracconv flags) -o prog. "
+            "For an installed prefix (make install) use pkg-config fracconv."),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    f.add_argument("--cflags", action="store_true", help="the -I flag of the headers")
+    f.add_argument("--libs", action="store_true", help="the library, its run-time path and -lm")
+    f.add_argument("--static", action="store_true",
+                   help="with the libraries: the static library (libfracconv.a) instead")
+    f.set_defaults(func=_run_flags)
+    e = sub.add_parser(
+        "export-c",
+        help="write a compressed-mode operator as self-contained C99 for embedded targets",
+        description=_wrap(
+            "Write a compressed-mode operator (the bounded-memory sum of "
+            "exponentials of a compressed stream, one channel) as plain C99: "
+            "PREFIX.h, PREFIX.c and a test vector PREFIX_testvec.h (inputs, the "
+            "library's outputs, each output's error scale) in directory DIR. "
+            "Coefficients are constants; the state is a struct the caller owns; "
+            "the update allocates nothing, does no I/O and calls no library "
+            "function. Single precision: the error against the library's double "
+            "precision stream is measured at export and written into the header "
+            "with a stated bound (printed on stderr too). Orders: 0 < A < 1 for "
+            "every rule, 1 <= A < 2 with rule rectangle. See docs/compiled.md."),
+        epilog=_wrap(
+            "CAUTION for controllers - exported code may end up moving machinery. "
+            "It is a numerical building block, not a safety function: validate the "
+            "complete controller on the plant (or a faithful model of it) before "
+            "use; enforce actuator limits and rate limits outside this code; keep "
+            "an independent safe stop that depends neither on this code nor on "
+            "the processor running it; local codes, standards and licensed "
+            "engineering practice take precedence.") + "\n\n" + CAUTION,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    e.add_argument("--rule", required=True, choices=tuple(RULES),
+                   help="rectangle or trapezoid (integrals), grunwald or l1 (derivatives)")
+    e.add_argument("--order", metavar="A", required=True, help="order of the operator")
+    e.add_argument("--step", metavar="H", required=True, help="sampling period h > 0")
+    e.add_argument("--tol", metavar="T", default="1e-9",
+                   help="tolerance of the compressed memory (default 1e-9)")
+    e.add_argument("--horizon", metavar="N", default="1e6",
+                   help="samples the compressed memory covers; the exported update "
+                        "refuses outputs past it (default 1e6)")
+    e.add_argument("--precision", choices=("double", "single"), default="double",
+                   help="floating type of the generated code (default double)")
+    e.add_argument("--prefix", default="fcop",
+                   help="C identifier prefix of the generated names and files (default fcop)")
+    e.add_argument("-o", "--output", metavar="DIR", required=True,
+                   help="existing directory the three files are written to")
+    e.set_defaults(func=_run_export)
     return parser
 
 

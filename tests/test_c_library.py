@@ -67,3 +67,11 @@ def test_header_cdef_block_is_what_python_sees():
     assert len(names) > 20
     for n in names:
         assert hasattr(lib, n), n
+
+
+def test_make_clean_leaves_setuptools_tree_alone():
+    # make's folder is cbuild/; build/ belongs to setuptools (pip install)
+    out = subprocess.run(["make", "-n", "-C", ROOT, "clean"], check=True,
+                         capture_output=True, text=True).stdout
+    assert "rm -rf cbuild" in out
+    assert not any(w in ("build", "build/") for ln in out.splitlines() for w in ln.split())

@@ -60,7 +60,7 @@ def test_total_examples():
 
 
 FUNCTIONS = [pyfracconv.weights, pyfracconv.lagged_sum, pyfracconv.integral,
-             pyfracconv.derivative, pyfracconv.get_include]
+             pyfracconv.derivative, pyfracconv.get_include, pyfracconv.get_lib_dir]
 METHODS = ["integral", "derivative", "from_kernel", "push", "push_many", "preview",
            "history", "reset", "reserve", "save", "load"]
 PROPERTIES = ["count", "nbytes", "terms", "remaining", "past_horizon",

@@ -220,3 +220,74 @@ def test_docs_export_example_runs(tmp_path, monkeypatch):
     assert r.returncode == 0, r.stderr
     out = subprocess.run(["./main"], capture_output=True, text=True, cwd=tmp_path)
     assert out.returncode == 0 and out.stdout.startswith("0 of 300"), out.stdout
+
+
+# ----------------------------------------------------- command line
+
+def _cli(argv, capsys):
+    from pyfracconv.cli import main
+    rc = main(argv)
+    out = capsys.readouterr()
+    return rc, out.out, out.err
+
+
+def test_cli_export_single_compiles_pedantic_and_matches(tmp_path, capsys):
+    # the command writes what export_c writes; the code compiles warning-free
+    # as C99 and stays within the stated bound of the library's double stream
+    # on inputs the export did not measure
+    if CC is None:
+        pytest.fail("gcc is needed for the export tests")
+    rc, _, err = _cli(["export-c", "--rule", "grunwald", "--order", "0.5", "--step", str(STEP),
+                       "--tol", str(TOL), "--horizon", str(HORIZON), "--precision", "single",
+                       "--prefix", "dhalf", "-o", str(tmp_path)], capsys)
+    assert rc == 0, err
+    api = export_c("grunwald", 0.5, STEP, tol=TOL, horizon=HORIZON, precision="single",
+                   prefix="dhalf")
+    for name, text in api.files.items():
+        assert (tmp_path / name).read_text() == text, name
+    stated = api.info["stated"]
+    assert f"stated bound {stated:.3g}" in err and "measured" in err
+    p = "dhalf"
+    for main, name in ((RUNNER, "run.c"), (TESTVEC, "tv.c")):
+        (tmp_path / name).write_text(main.replace("@U", p.upper()).replace("@", p))
+    exes = {}
+    for name in ("run", "tv"):
+        exe = tmp_path / name
+        r = subprocess.run([CC, *CFLAGS, "-I", str(tmp_path), str(tmp_path / f"{name}.c"),
+                            str(tmp_path / "dhalf.c"), "-o", str(exe)],
+                           capture_output=True, text=True)
+        assert r.returncode == 0 and r.stderr == "", r.stderr
+        exes[name] = exe
+    assert subprocess.run([str(exes["tv"])], capture_output=True).returncode == 0
+    x = _inputs(600, 23)["random"].astype(np.float32).astype(np.float64)
+    got = np.array([float.fromhex(v) for v in _run(exes["run"], x)])
+    ref = _library("grunwald", 0.5, x)
+    scale = _scale("grunwald", 0.5, STEP, x)
+    assert np.all(np.abs(got - ref) <= stated * scale + 1e-30)
+
+
+@pytest.mark.parametrize("argv,what", [
+    (["--rule", "l1", "--order", "1.5"], "--order 1.5"),
+    (["--rule", "grunwald", "--order", "0.5", "--tol", "abc"], "tol='abc'"),
+    (["--rule", "grunwald", "--order", "0.5", "--prefix", "9x"], "prefix='9x'"),
+    (["--rule", "grunwald", "--order", "zero"], "--order zero"),
+])
+def test_cli_export_refusals_write_nothing(argv, what, tmp_path, capsys):
+    rc, _, err = _cli(["export-c", *argv, "--step", "0.01", "-o", str(tmp_path)], capsys)
+    assert rc == 2 and what in err, err
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_cli_export_needs_an_existing_directory(tmp_path, capsys):
+    rc, _, err = _cli(["export-c", "--rule", "rectangle", "--order", "0.5", "--step", "0.01",
+                       "-o", str(tmp_path / "missing")], capsys)
+    assert rc == 2 and "not an existing directory" in err
+
+
+def test_cli_export_help_carries_the_controller_cautions(capsys):
+    rc, out, _ = _cli(["export-c", "--help"], capsys)
+    text = " ".join(out.split())
+    assert rc == 0
+    for phrase in ("validate the complete controller on the plant", "actuator limits and rate limits",
+                   "independent safe stop", "local codes", "licensed engineering practice"):
+        assert phrase in text, phrase

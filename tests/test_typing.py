@@ -31,7 +31,8 @@ def _check_annotated(func, name):
 
 
 def test_public_functions_are_annotated():
-    for name in ("weights", "lagged_sum", "integral", "derivative", "get_include"):
+    for name in ("weights", "lagged_sum", "integral", "derivative", "get_include",
+                 "get_lib_dir"):
         _check_annotated(getattr(pyfracconv, name), name)
 
 

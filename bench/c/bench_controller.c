@@ -4,7 +4,7 @@
  * (so a preemption in one run does not count); the median and the worst
  * of these per-position times are printed, with the timer's own overhead
  * (an empty pair of reads) beside them. Build: make bench-c; run
- * build/bench_controller [N]. */
+ * cbuild/bench_controller [N]. */
 #define _POSIX_C_SOURCE 199309L
 #include <math.h>
 #include <stdio.h>

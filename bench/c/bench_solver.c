@@ -6,7 +6,7 @@
  * each method with exact and compressed memory. Prints the median of 3
  * runs in microseconds per step (and per component-step for the system).
  *
- * Build: make bench-c; run: build/bench_solver [steps]   (default 1e6)
+ * Build: make bench-c; run: cbuild/bench_solver [steps]   (default 1e6)
  */
 #define _POSIX_C_SOURCE 199309L
 #include <math.h>
