@@ -21,9 +21,11 @@ D^(1/2) theta = (sqrt(alpha)/k) q_net with theta = T_s - T_0 (Caputo,
 theta(0) = 0). The net flux is the heater flux minus the convective loss
 h_c theta. The plant is simulated as the Volterra form
 theta = c I^(1/2)[q - h_c theta] by a Stream with the product rectangle
-rule (explicit: the step's value needs only earlier fluxes), because the
+rule (explicit: theta_n needs only the net fluxes before n, which the
+stream's history() gives before the flux of step n is known), because the
 loop feeds each new heater flux back one sample at a time; this is the
-explicit rectangle method of pyfracconv.solve written out step by step.
+explicit rectangle method of pyfracconv.solve (theta_n = c sum_{k<n}
+b_{n-1-k} (q_k - h_c theta_k)) written out step by step.
 
 The controller: pyfracconv.Controller, a fractional PI^lambda D^mu with
 heater limits [0, Q_MAX], a rate limit, derivative on the measurement with
@@ -81,8 +83,7 @@ def simulate(memory, steps=STEPS):
     gain = math.sqrt(ALPHA) / K_COND
     theta = np.empty(steps)
     q = np.empty(steps)
-    th, qn = 0.0, 0.0
-    upd, push = c.update, plant.push
+    upd, push, hist = c.update, plant.push, plant.history
     # a bumpless start: the first output is the heater's present value (0,
     # manual), so the rate limit holds from the first step on
     c.manual(0.0)
@@ -90,9 +91,11 @@ def simulate(memory, steps=STEPS):
     for n in range(steps):
         if n == 1:
             c.automatic()
-        # theta_n from the fluxes before n (rectangle rule, explicit)
-        th = gain * push(qn - H_CONV * th)
+        # theta_n from the net fluxes before n (rectangle rule, explicit),
+        # then the controller's flux q_n, then the net flux of step n
+        th = gain * hist()
         qn = upd(SETPOINT, th)
+        push(qn - H_CONV * th)
         theta[n] = th
         q[n] = qn
     secs = time.perf_counter() - t0
