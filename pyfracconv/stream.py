@@ -14,7 +14,6 @@ from __future__ import annotations
 
 import math
 import numbers
-import threading
 from typing import Any, Callable, Optional, Union
 
 import numpy as np
@@ -148,19 +147,56 @@ def _scalar_push_error(s: Any, st: Optional[int], name: str, x: Any) -> Fracconv
     return status_error(st, name, samples=(name, x), after="the stream is unchanged")
 
 
-def _make_push1(s: Any, y1: Any, lock: Any) -> Callable[[float], float]:
+class _Guard:
+    """The busy guard of one Stream: a non-blocking lock built on a
+    one-element list. ``list.pop`` and ``list.append`` are single calls into
+    C, atomic under the GIL (and locked per object in free-threaded builds),
+    so exactly one thread at a time can take the token; a thread that finds
+    none is refused at once (BusyError), never blocked. It costs a fraction
+    of ``threading.Lock().acquire(False)`` + ``release()`` on the scalar push
+    path (``bench/push_cost.py``). The C library keeps its own busy flag
+    underneath (fc_stream_*: FC_ERR_BUSY)."""
+
+    __slots__ = ("take", "give")
+
+    def __init__(self) -> None:
+        token: list[bool] = [True]
+        self.take = token.pop       # raises IndexError when the stream is busy
+        self.give = token.append    # give(True) after every successful take()
+
+    def acquire(self, blocking: bool = False) -> bool:
+        """Take the guard if it is free (never waits): True if taken."""
+        if blocking:
+            raise ValueError("the stream guard never blocks")
+        try:
+            self.take()
+        except IndexError:
+            return False
+        return True
+
+    def release(self) -> None:
+        self.give(True)
+
+
+def _make_push1(s: Any, y1: Any, guard: _Guard) -> Callable[[float], float]:
     """push() of a one-channel scalar stream, with every lookup bound.
 
-    The closure holds the C stream, its output buffer and its lock, never
+    The closure holds the C stream, its output buffer and its guard, never
     the Stream itself: a Stream must not be part of a reference cycle, so
-    that ``del stream`` frees the C object at once."""
-    acquire = lock.acquire
-    release = lock.release
+    that ``del stream`` frees the C object at once.
+
+    Where the time goes (``bench/push_cost.py``): the cffi call of
+    fc_stream_push1 and the C work dominate; the guard is two C-level list
+    calls, the output one read of a preallocated cffi double."""
+    take = guard.take
+    give = guard.give
     push1 = lib.fc_stream_push1
 
     def push(x: float) -> float:
-        if not acquire(False):
-            raise BusyError("this stream is being used by another thread")
+        try:
+            take()
+        except IndexError:
+            raise BusyError("this stream is being used by another thread") from None
         try:
             st = push1(s, x, y1)
             if st == 0:
@@ -168,7 +204,7 @@ def _make_push1(s: Any, y1: Any, lock: Any) -> Callable[[float], float]:
         except (TypeError, OverflowError):
             st = None
         finally:
-            release()
+            give(True)
         raise _scalar_push_error(s, st, "x", x)
 
     push.__doc__ = Stream.push.__doc__
@@ -266,7 +302,7 @@ class Stream:
     _step: Optional[float]
     _tol: Optional[float]
     _horizon: Optional[float]
-    _lock: Any
+    _lock: _Guard
     _y1: Any
     _x1: Any
     _yarr: FloatArray
@@ -311,7 +347,7 @@ class Stream:
             self._horizon = float(_get(lib.fc_stream_horizon, s, "double *"))
         else:
             self._tol = self._horizon = None
-        self._lock = threading.Lock()
+        self._lock = _Guard()
         self._y1 = ffi.new("double[1]")
         self._x1 = ffi.new("double[1]")
         self._yarr = np.empty(C)
