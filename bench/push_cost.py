@@ -1,0 +1,150 @@
+"""Where the time of a scalar Stream.push() goes: medians and ranges.
+
+    python bench/push_cost.py [--rounds R] [--calls N]
+
+Every contender runs in the same process, interleaved round by round (so
+that the load of a shared machine falls on all of them alike), on the same
+stream state: each round reloads the stream from one saved state (not
+timed), then times N calls. Printed per contender: the median, the minimum
+and the maximum over the rounds of the time per call, in ns.
+
+Contenders, for three streams (a one-tap kernel stream: the pure call
+overhead; a compressed rule stream; an exact rule stream with 2^16 samples
+of history):
+
+  bare cffi        lib.fc_stream_push1(s, x, y) with every name bound
+  + y[0]           the same and the read of the output double
+  Lock wrapper     the wrapper as it was before (threading.Lock acquire /
+                   release around the call), rebuilt here for comparison
+  Stream.push      the package's push (list-token busy guard)
+  guard only       the busy guard's take/give alone (no call)
+  Lock only        threading.Lock acquire(False) / release alone
+"""
+
+from __future__ import annotations
+
+import argparse
+import platform
+import statistics
+import threading
+import time
+from typing import Any, Callable
+
+import numpy as np
+
+from pyfracconv import Stream
+from pyfracconv._fracconv import ffi, lib
+
+
+def _lock_wrapper(s: Any, y1: Any) -> Callable[[float], float]:
+    """The scalar push as it was before: threading.Lock around the call."""
+    lock = threading.Lock()
+    acquire, release = lock.acquire, lock.release
+    push1 = lib.fc_stream_push1
+
+    def push(x: float) -> float:
+        if not acquire(False):
+            raise RuntimeError("busy")
+        try:
+            st = push1(s, x, y1)
+            if st == 0:
+                return y1[0]  # type: ignore[no-any-return]
+        finally:
+            release()
+        raise RuntimeError(st)
+
+    return push
+
+
+def _streams() -> dict[str, bytes]:
+    rng = np.random.default_rng(1)
+    k = Stream.from_kernel([1.0])
+    c = Stream.integral(0.5, 1e-3, mode="compressed", horizon=1e12)
+    c.push_many(rng.random(2**16))
+    e = Stream.integral(0.5, 1e-3)
+    e.push_many(rng.random(2**16))
+    return {"one-tap kernel": k.save(), "compressed, 2^16 pushed": c.save(),
+            "exact, 2^16 pushed": e.save()}
+
+
+def _contenders(s: Stream) -> dict[str, Callable[[], None]]:
+    cs = s._s
+    y = ffi.new("double[1]")
+    push1 = lib.fc_stream_push1
+    push = s.push
+    old = _lock_wrapper(cs, y)
+    take, give = s._lock.take, s._lock.give
+    lock = threading.Lock()
+    acq, rel = lock.acquire, lock.release
+
+    def bare() -> None:
+        push1(cs, 0.5, y)
+
+    def bare_y() -> None:
+        push1(cs, 0.5, y)
+        y[0]
+
+    def wrapper() -> None:
+        old(0.5)
+
+    def stream_push() -> None:
+        push(0.5)
+
+    def guard() -> None:
+        take()
+        give(True)
+
+    def lock_only() -> None:
+        acq(False)
+        rel()
+
+    return {"bare cffi": bare, "+ y[0]": bare_y, "Lock wrapper": wrapper,
+            "Stream.push": stream_push, "guard only": guard,
+            "Lock only": lock_only}
+
+
+KEYS = ("bare cffi", "+ y[0]", "Lock wrapper", "Stream.push", "guard only",
+        "Lock only")
+
+
+def _time(fn: Callable[[], None], n: int) -> float:
+    """ns per call of fn, over n calls (the loop's own cost subtracted)."""
+    rng = range(n)
+    t0 = time.perf_counter_ns()
+    for _ in rng:
+        fn()
+    t1 = time.perf_counter_ns()
+
+    def nothing() -> None:
+        pass
+
+    for _ in rng:
+        nothing()
+    t2 = time.perf_counter_ns()
+    return ((t1 - t0) - (t2 - t1)) / n
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("--rounds", type=int, default=15)
+    ap.add_argument("--calls", type=int, default=20000)
+    args = ap.parse_args()
+    print(f"# {time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())}, "
+          f"{platform.python_implementation()} {platform.python_version()}, "
+          f"{platform.machine()}; {args.rounds} rounds x {args.calls} calls; "
+          "ns per call, loop cost subtracted")
+    for name, blob in _streams().items():
+        res: dict[str, list[float]] = {}
+        for _ in range(args.rounds):
+            for key in KEYS:
+                # a fresh copy of the same state for every contender
+                fn = _contenders(Stream.load(blob))[key]
+                res.setdefault(key, []).append(_time(fn, args.calls))
+        print(f"\n{name}")
+        for key, v in res.items():
+            print(f"  {key:14s} median {statistics.median(v):7.1f}   "
+                  f"range {min(v):7.1f} .. {max(v):7.1f}")
+
+
+if __name__ == "__main__":
+    main()
