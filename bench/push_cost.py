@@ -14,9 +14,12 @@ of history):
 
   bare cffi        lib.fc_stream_push1(s, x, y) with every name bound
   + y[0]           the same and the read of the output double
+  bare value       lib.fc_stream_push1_value(s, x, status): the output
+                   returned, no buffer read (what Stream.push calls)
   Lock wrapper     the wrapper as it was before (threading.Lock acquire /
                    release around the call), rebuilt here for comparison
-  Stream.push      the package's push (list-token busy guard)
+  Stream.push      the package's push (list-token busy guard around
+                   fc_stream_push1_value)
   guard only       the busy guard's take/give alone (no call)
   Lock only        threading.Lock acquire(False) / release alone
 """
@@ -71,6 +74,8 @@ def _contenders(s: Stream) -> dict[str, Callable[[], None]]:
     cs = s._s
     y = ffi.new("double[1]")
     push1 = lib.fc_stream_push1
+    push1v = lib.fc_stream_push1_value
+    cell = ffi.new("int[1]")
     push = s.push
     old = _lock_wrapper(cs, y)
     take, give = s._lock.take, s._lock.give
@@ -83,6 +88,9 @@ def _contenders(s: Stream) -> dict[str, Callable[[], None]]:
     def bare_y() -> None:
         push1(cs, 0.5, y)
         y[0]
+
+    def bare_value() -> None:
+        push1v(cs, 0.5, cell)
 
     def wrapper() -> None:
         old(0.5)
@@ -98,12 +106,13 @@ def _contenders(s: Stream) -> dict[str, Callable[[], None]]:
         acq(False)
         rel()
 
-    return {"bare cffi": bare, "+ y[0]": bare_y, "Lock wrapper": wrapper,
+    return {"bare cffi": bare, "+ y[0]": bare_y, "bare value": bare_value,
+            "Lock wrapper": wrapper,
             "Stream.push": stream_push, "guard only": guard,
             "Lock only": lock_only}
 
 
-KEYS = ("bare cffi", "+ y[0]", "Lock wrapper", "Stream.push", "guard only",
+KEYS = ("bare cffi", "+ y[0]", "bare value", "Lock wrapper", "Stream.push", "guard only",
         "Lock only")
 
 

@@ -178,19 +178,21 @@ class _Guard:
         self.give(True)
 
 
-def _make_push1(s: Any, y1: Any, guard: _Guard) -> Callable[[float], float]:
+def _make_push1(s: Any, guard: _Guard) -> Callable[[float], float]:
     """push() of a one-channel scalar stream, with every lookup bound.
 
-    The closure holds the C stream, its output buffer and its guard, never
-    the Stream itself: a Stream must not be part of a reference cycle, so
-    that ``del stream`` frees the C object at once.
+    The closure holds the C stream, a status cell and the guard, never the
+    Stream itself: a Stream must not be part of a reference cycle, so that
+    ``del stream`` frees the C object at once.
 
-    Where the time goes (``bench/push_cost.py``): the cffi call of
-    fc_stream_push1 and the C work dominate; the guard is two C-level list
-    calls, the output one read of a preallocated cffi double."""
+    Where the time goes (``bench/push_cost.py``): the Python call of push,
+    the cffi call and the C work. fc_stream_push1_value returns the output
+    itself (NaN only on a refusal, whose status it writes to the cell), so
+    that no output buffer is read; the guard is two C-level list calls."""
     take = guard.take
     give = guard.give
-    push1 = lib.fc_stream_push1
+    push1 = lib.fc_stream_push1_value
+    cell = ffi.new("int[1]")
 
     def push(x: float) -> float:
         try:
@@ -198,13 +200,17 @@ def _make_push1(s: Any, y1: Any, guard: _Guard) -> Callable[[float], float]:
         except IndexError:
             raise BusyError("this stream is being used by another thread") from None
         try:
-            st = push1(s, x, y1)
-            if st == 0:
-                return y1[0]  # type: ignore[no-any-return]
+            y = push1(s, x, cell)
+            if y == y:
+                return y  # type: ignore[no-any-return]
+            st = cell[0]
+            cell[0] = 0
         except (TypeError, OverflowError):
             st = None
         finally:
             give(True)
+        if st == 0:  # not a refusal (the C library returns no NaN output)
+            return y  # type: ignore[no-any-return]
         raise _scalar_push_error(s, st, "x", x)
 
     push.__doc__ = Stream.push.__doc__
@@ -356,7 +362,7 @@ class Stream:
             # the hot path: a closure over prebuilt buffers (shadows the
             # documented method Stream.push on this instance); it does not
             # refer to self, so a Stream is never part of a reference cycle
-            self.push = _make_push1(s, self._y1, self._lock)  # type: ignore[method-assign, assignment]
+            self.push = _make_push1(s, self._lock)  # type: ignore[method-assign, assignment]
         return self
 
     @classmethod
