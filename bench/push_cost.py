@@ -31,6 +31,7 @@ import platform
 import statistics
 import threading
 import time
+import timeit
 from typing import Any, Callable
 
 import numpy as np
@@ -70,67 +71,26 @@ def _streams() -> dict[str, bytes]:
             "exact, 2^16 pushed": e.save()}
 
 
-def _contenders(s: Stream) -> dict[str, Callable[[], None]]:
-    cs = s._s
-    y = ffi.new("double[1]")
-    push1 = lib.fc_stream_push1
-    push1v = lib.fc_stream_push1_value
-    cell = ffi.new("int[1]")
-    push = s.push
-    old = _lock_wrapper(cs, y)
-    take, give = s._lock.take, s._lock.give
+#: contender: the statement timed (timeit, names bound in _names)
+STATEMENTS = {
+    "bare cffi": "push1(cs, 0.5, y)",
+    "+ y[0]": "push1(cs, 0.5, y); y[0]",
+    "bare value": "push1v(cs, 0.5, cell)",
+    "Lock wrapper": "old(0.5)",
+    "Stream.push": "push(0.5)",
+    "guard only": "take(); give(True)",
+    "Lock only": "acq(False); rel()",
+}
+
+
+def _names(s: Stream) -> dict[str, Any]:
     lock = threading.Lock()
-    acq, rel = lock.acquire, lock.release
-
-    def bare() -> None:
-        push1(cs, 0.5, y)
-
-    def bare_y() -> None:
-        push1(cs, 0.5, y)
-        y[0]
-
-    def bare_value() -> None:
-        push1v(cs, 0.5, cell)
-
-    def wrapper() -> None:
-        old(0.5)
-
-    def stream_push() -> None:
-        push(0.5)
-
-    def guard() -> None:
-        take()
-        give(True)
-
-    def lock_only() -> None:
-        acq(False)
-        rel()
-
-    return {"bare cffi": bare, "+ y[0]": bare_y, "bare value": bare_value,
-            "Lock wrapper": wrapper,
-            "Stream.push": stream_push, "guard only": guard,
-            "Lock only": lock_only}
-
-
-KEYS = ("bare cffi", "+ y[0]", "bare value", "Lock wrapper", "Stream.push", "guard only",
-        "Lock only")
-
-
-def _time(fn: Callable[[], None], n: int) -> float:
-    """ns per call of fn, over n calls (the loop's own cost subtracted)."""
-    rng = range(n)
-    t0 = time.perf_counter_ns()
-    for _ in rng:
-        fn()
-    t1 = time.perf_counter_ns()
-
-    def nothing() -> None:
-        pass
-
-    for _ in rng:
-        nothing()
-    t2 = time.perf_counter_ns()
-    return ((t1 - t0) - (t2 - t1)) / n
+    y = ffi.new("double[1]")
+    return {"cs": s._s, "y": y, "cell": ffi.new("int[1]"),
+            "push1": lib.fc_stream_push1, "push1v": lib.fc_stream_push1_value,
+            "old": _lock_wrapper(s._s, y), "push": s.push,
+            "take": s._lock.take, "give": s._lock.give,
+            "acq": lock.acquire, "rel": lock.release}
 
 
 def main() -> None:
@@ -141,14 +101,14 @@ def main() -> None:
     print(f"# {time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())}, "
           f"{platform.python_implementation()} {platform.python_version()}, "
           f"{platform.machine()}; {args.rounds} rounds x {args.calls} calls; "
-          "ns per call, loop cost subtracted")
+          "ns per call (timeit's loop included)")
     for name, blob in _streams().items():
         res: dict[str, list[float]] = {}
         for _ in range(args.rounds):
-            for key in KEYS:
+            for key, stmt in STATEMENTS.items():
                 # a fresh copy of the same state for every contender
-                fn = _contenders(Stream.load(blob))[key]
-                res.setdefault(key, []).append(_time(fn, args.calls))
+                timer = timeit.Timer(stmt, globals=_names(Stream.load(blob)))
+                res.setdefault(key, []).append(timer.timeit(args.calls) / args.calls * 1e9)
         print(f"\n{name}")
         for key, v in res.items():
             print(f"  {key:14s} median {statistics.median(v):7.1f}   "
