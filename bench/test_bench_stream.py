@@ -4,8 +4,12 @@
 
   - push_many of 2^20 samples against the batch integral of the same samples
     (the ratio is printed and stored in extra_info);
-  - push() from Python, per call (a rule stream at about 2^16 samples of
-    history, and a one-tap kernel stream: the pure call overhead);
+  - push() from Python, per call, in one group: the bare cffi calls
+    (lib.fc_stream_push1 with an output buffer, lib.fc_stream_push1_value
+    returning the output), Stream.push on an exact and on a compressed rule
+    stream at about 2^16 samples of history, and on a one-tap kernel
+    stream (the pure call overhead); bench/push_cost.py breaks the cost
+    down further;
   - what a user would otherwise write: a per-sample NumPy loop, one dot
     product over the whole history, at 2^14 and 2^16 samples, against the
     stream on the same samples;
@@ -19,6 +23,7 @@ import pytest
 
 import pyfracconv
 from pyfracconv import Stream
+from pyfracconv._fracconv import ffi, lib
 
 A, H = 0.5, 1e-3
 N_BIG = 2**20
@@ -27,6 +32,11 @@ N_BIG = 2**20
 @pytest.fixture(scope="module")
 def x_big():
     return np.random.default_rng(0).random(N_BIG)
+
+
+def _quick(benchmark):
+    """True under --benchmark-disable: the checks run on short inputs."""
+    return bool(getattr(benchmark, "disabled", False))
 
 
 def _best(fn, repeat=3):
@@ -65,6 +75,9 @@ def test_ratio_push_many_over_batch(benchmark, x_big, rule):
     """Ratio (best of 3 each): push_many of 2^20 samples on a fresh stream /
     the batch integral of the same samples."""
     benchmark.group = f"2^20 samples, {rule}"
+    benchmark.pedantic(lambda: None, rounds=1, iterations=1)
+    if benchmark.stats is None:  # --benchmark-disable: no timing
+        return
     t_batch = _best(lambda: pyfracconv.integral(x_big, A, H, rule=rule))
     t_stream = _best(lambda: Stream.integral(A, H, rule=rule).push_many(x_big))
 
@@ -83,17 +96,59 @@ def test_ratio_push_many_over_batch(benchmark, x_big, rule):
     print(f"\n[{rule}] 2^20: batch {t_batch:.3f} s, push_many {t_stream:.3f} s "
           f"({t_stream / N_BIG * 1e9:.0f} ns/sample), after reserve "
           f"{t_reserved:.3f} s; ratio push_many/batch = {ratio:.2f}")
-    benchmark.pedantic(lambda: None, rounds=1, iterations=1)
 
 
 # ---------------------------------------------------- push() per call
 
+def _rule_stream(mode="exact"):
+    if mode == "compressed":
+        s = Stream.integral(A, H, mode="compressed", horizon=1e12)
+    else:
+        s = Stream.integral(A, H)
+    s.push_many(np.random.default_rng(1).random(2**16))
+    return s
+
+
+def test_push_bare_cffi(benchmark):
+    """lib.fc_stream_push1 on the exact rule stream, every name bound."""
+    benchmark.group = "push() per call"
+    s = _rule_stream()
+    y = ffi.new("double[1]")
+    benchmark.pedantic(lib.fc_stream_push1, args=(s._s, 0.5, y), rounds=200,
+                       iterations=100, warmup_rounds=5)
+    assert y[0] == y[0]
+
+
+def test_push_bare_cffi_value(benchmark):
+    """lib.fc_stream_push1_value (what Stream.push calls), exact stream."""
+    benchmark.group = "push() per call"
+    s = _rule_stream()
+    cell = ffi.new("int[1]")
+    y = benchmark.pedantic(lib.fc_stream_push1_value, args=(s._s, 0.5, cell),
+                           rounds=200, iterations=100, warmup_rounds=5)
+    assert y == y and cell[0] == 0
+
+
 def test_push_python_rule_stream(benchmark):
     benchmark.group = "push() per call"
-    s = Stream.integral(A, H)
-    s.push_many(np.random.default_rng(1).random(2**16))
+    s = _rule_stream()
     benchmark.pedantic(s.push, args=(0.5,), rounds=200, iterations=100,
                        warmup_rounds=5)
+
+
+def test_push_python_compressed(benchmark):
+    benchmark.group = "push() per call"
+    s = _rule_stream("compressed")
+    benchmark.pedantic(s.push, args=(0.5,), rounds=200, iterations=100,
+                       warmup_rounds=5)
+
+
+def test_push_bare_cffi_compressed(benchmark):
+    benchmark.group = "push() per call"
+    s = _rule_stream("compressed")
+    y = ffi.new("double[1]")
+    benchmark.pedantic(lib.fc_stream_push1, args=(s._s, 0.5, y), rounds=200,
+                       iterations=100, warmup_rounds=5)
 
 
 def test_push_python_overhead_one_tap(benchmark):
@@ -106,7 +161,7 @@ def test_push_python_overhead_one_tap(benchmark):
 def test_push_python_amortised_2_18(benchmark):
     """2^18 pushes from Python on a fresh stream, per call."""
     benchmark.group = "push() per call"
-    x = np.random.default_rng(2).random(2**18).tolist()
+    x = np.random.default_rng(2).random(2**10 if _quick(benchmark) else 2**18).tolist()
 
     def run():
         s = Stream.integral(A, H)
@@ -146,7 +201,7 @@ def _stream_loop(x):
 @pytest.mark.parametrize("N", [2**14, 2**16], ids=["2^14", "2^16"])
 def test_naive_numpy_loop(benchmark, N):
     benchmark.group = f"per-sample loop N={N}"
-    x = np.random.default_rng(3).random(N)
+    x = np.random.default_rng(3).random(N // 16 if _quick(benchmark) else N)
     y = benchmark.pedantic(_naive_loop, args=(x,), rounds=1, iterations=1)
     assert np.allclose(y, pyfracconv.integral(x, A, H), rtol=1e-12, atol=0)
 
@@ -154,7 +209,7 @@ def test_naive_numpy_loop(benchmark, N):
 @pytest.mark.parametrize("N", [2**14, 2**16], ids=["2^14", "2^16"])
 def test_stream_push_loop(benchmark, N):
     benchmark.group = f"per-sample loop N={N}"
-    x = np.random.default_rng(3).random(N)
+    x = np.random.default_rng(3).random(N // 16 if _quick(benchmark) else N)
     y = benchmark.pedantic(_stream_loop, args=(x,), rounds=3, iterations=1)
     assert np.allclose(y, pyfracconv.integral(x, A, H), rtol=1e-12, atol=0)
 
@@ -168,7 +223,7 @@ def test_worst_single_push_2_20(benchmark, x_big, reserved):
     and, without reserve(), creates a new level (FFT plan and kernel
     spectra)."""
     benchmark.group = "worst push"
-    xs = x_big.tolist()
+    xs = (x_big[:2**12] if _quick(benchmark) else x_big).tolist()
 
     def run():
         s = Stream.integral(A, H)

@@ -709,6 +709,16 @@ FC_API int fc_rfft_inverse(fc_fft_plan *p, const double *in, double *out);
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (channels != 1), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM. */
 FC_API int fc_stream_push1(fc_stream *s, double x, double *y);
 
+/* fc_stream_push1 returning the output: the same push, bit for bit, for
+   callers whose every read of an output buffer costs (the Python package's
+   scalar push). On success returns the output (always finite: an output
+   beyond the double range refuses the push) and leaves *status untouched;
+   on refusal changes nothing, returns NaN and writes the status to
+   *status, one of those of fc_stream_push1 (FC_ERR_NULL when s or status
+   is NULL; status NULL: nothing is written). */
+/* Statuses: none (returns the output, NaN on refusal with *status one of FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG, FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM). */
+FC_API double fc_stream_push1_value(fc_stream *s, double x, int *status);
+
 /* FC_CDEF_END */
 
 #ifdef __cplusplus

@@ -226,6 +226,15 @@ int fc_stream_push1(fc_stream *s, double x, double *y)
     return st;
 }
 
+double fc_stream_push1_value(fc_stream *s, double x, int *status)
+{
+    double y;
+    int st = status ? fc_stream_push1(s, x, &y) : FC_ERR_NULL;
+    if (st == FC_OK) return y;
+    if (status) *status = st;
+    return NAN;
+}
+
 int fc_stream_preview(fc_stream *s, const double *x, double *y)
 {
     int st;

@@ -14,7 +14,6 @@ from __future__ import annotations
 
 import math
 import numbers
-import threading
 from typing import Any, Callable, Optional, Union
 
 import numpy as np
@@ -148,27 +147,70 @@ def _scalar_push_error(s: Any, st: Optional[int], name: str, x: Any) -> Fracconv
     return status_error(st, name, samples=(name, x), after="the stream is unchanged")
 
 
-def _make_push1(s: Any, y1: Any, lock: Any) -> Callable[[float], float]:
+class _Guard:
+    """The busy guard of one Stream: a non-blocking lock built on a
+    one-element list. ``list.pop`` and ``list.append`` are single calls into
+    C, atomic under the GIL (and locked per object in free-threaded builds),
+    so exactly one thread at a time can take the token; a thread that finds
+    none is refused at once (BusyError), never blocked. It costs a fraction
+    of ``threading.Lock().acquire(False)`` + ``release()`` on the scalar push
+    path (``bench/push_cost.py``). The C library keeps its own busy flag
+    underneath (fc_stream_*: FC_ERR_BUSY)."""
+
+    __slots__ = ("take", "give")
+
+    def __init__(self) -> None:
+        token: list[bool] = [True]
+        self.take = token.pop       # raises IndexError when the stream is busy
+        self.give = token.append    # give(True) after every successful take()
+
+    def acquire(self, blocking: bool = False) -> bool:
+        """Take the guard if it is free (never waits): True if taken."""
+        if blocking:
+            raise ValueError("the stream guard never blocks")
+        try:
+            self.take()
+        except IndexError:
+            return False
+        return True
+
+    def release(self) -> None:
+        self.give(True)
+
+
+def _make_push1(s: Any, guard: _Guard) -> Callable[[float], float]:
     """push() of a one-channel scalar stream, with every lookup bound.
 
-    The closure holds the C stream, its output buffer and its lock, never
-    the Stream itself: a Stream must not be part of a reference cycle, so
-    that ``del stream`` frees the C object at once."""
-    acquire = lock.acquire
-    release = lock.release
-    push1 = lib.fc_stream_push1
+    The closure holds the C stream, a status cell and the guard, never the
+    Stream itself: a Stream must not be part of a reference cycle, so that
+    ``del stream`` frees the C object at once.
+
+    Where the time goes (``bench/push_cost.py``): the Python call of push,
+    the cffi call and the C work. fc_stream_push1_value returns the output
+    itself (NaN only on a refusal, whose status it writes to the cell), so
+    that no output buffer is read; the guard is two C-level list calls."""
+    take = guard.take
+    give = guard.give
+    push1 = lib.fc_stream_push1_value
+    cell = ffi.new("int[1]")
 
     def push(x: float) -> float:
-        if not acquire(False):
-            raise BusyError("this stream is being used by another thread")
         try:
-            st = push1(s, x, y1)
-            if st == 0:
-                return y1[0]  # type: ignore[no-any-return]
+            take()
+        except IndexError:
+            raise BusyError("this stream is being used by another thread") from None
+        try:
+            y = push1(s, x, cell)
+            if y == y:
+                return y  # type: ignore[no-any-return]
+            st = cell[0]
+            cell[0] = 0
         except (TypeError, OverflowError):
             st = None
         finally:
-            release()
+            give(True)
+        if st == 0:  # not a refusal (the C library returns no NaN output)
+            return y  # type: ignore[no-any-return]
         raise _scalar_push_error(s, st, "x", x)
 
     push.__doc__ = Stream.push.__doc__
@@ -266,7 +308,7 @@ class Stream:
     _step: Optional[float]
     _tol: Optional[float]
     _horizon: Optional[float]
-    _lock: Any
+    _lock: _Guard
     _y1: Any
     _x1: Any
     _yarr: FloatArray
@@ -311,7 +353,7 @@ class Stream:
             self._horizon = float(_get(lib.fc_stream_horizon, s, "double *"))
         else:
             self._tol = self._horizon = None
-        self._lock = threading.Lock()
+        self._lock = _Guard()
         self._y1 = ffi.new("double[1]")
         self._x1 = ffi.new("double[1]")
         self._yarr = np.empty(C)
@@ -320,7 +362,7 @@ class Stream:
             # the hot path: a closure over prebuilt buffers (shadows the
             # documented method Stream.push on this instance); it does not
             # refer to self, so a Stream is never part of a reference cycle
-            self.push = _make_push1(s, self._y1, self._lock)  # type: ignore[method-assign, assignment]
+            self.push = _make_push1(s, self._lock)  # type: ignore[method-assign, assignment]
         return self
 
     @classmethod

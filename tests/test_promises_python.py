@@ -454,6 +454,19 @@ class _Injected:
         return getattr(self._lib, attr)
 
 
+class _InjectedValue(_Injected):
+    """As _Injected, for a function that returns a value and reports a
+    refusal by NaN with the status written to its last argument."""
+
+    def __getattr__(self, attr):
+        if attr == self._name:
+            def refuse(*args):
+                args[-1][0] = self._status
+                return math.nan
+            return refuse
+        return getattr(self._lib, attr)
+
+
 def test_status_order_from_compressed_creation(monkeypatch):
     import pyfracconv.stream as stream_mod
     lib = stream_mod.lib
@@ -480,7 +493,8 @@ def test_status_range_worded_per_call(monkeypatch):
     assert message(pf.RangeError, lambda: pf.lagged_sum([1e308, 1e308], [1.0, 1.0])
                    ).startswith("samples (or kernel): the result is beyond the double range "
                                 "(largest |sample| 1e+308, largest |kernel value| 1.0)")
-    monkeypatch.setattr(stream_mod, "lib", _Injected(lib, "fc_stream_push1", R))
+    # the scalar push calls fc_stream_push1_value (NaN, status in the cell)
+    monkeypatch.setattr(stream_mod, "lib", _InjectedValue(lib, "fc_stream_push1_value", R))
     s = Stream.derivative(1.0, 1e-300)
     assert message(pf.RangeError, lambda: s.push(1e300)).startswith(
         "x=1e+300: the output would be beyond the double range")
