@@ -89,7 +89,8 @@ $(BUILD)/example_f90: fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfrac
 # sanitizers (README, "Reliability"). Each builds the library from the same
 # SRCS into its own folder under $(BUILD) and runs the example programs and
 # the C tests of tests/c/ there; .ci/run runs them all.
-#   check-c-tests   the C tests (API driver, threads) against this build
+#   check-c-tests   the C tests (API driver, threads, allocation failure)
+#                   against this build
 #   check-gcc       gcc, -Werror
 #   check-clang     clang, -Werror
 #   check-portable  -DFC_NO_SIMD (no AVX2 anywhere), -Werror; outputs
@@ -114,9 +115,18 @@ $(BUILD)/tests/%: tests/c/%.c csrc/fracconv.h $(BUILD)/libfracconv.a
 	@mkdir -p $(BUILD)/tests
 	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm -pthread -o $@
 
+# The allocation-failure test routes the library's malloc, calloc and
+# realloc through its own counters by the linker (--wrap): no hook in the
+# library itself.
+WRAP_ALLOC = -Wl,--wrap=malloc,--wrap=calloc,--wrap=realloc
+$(BUILD)/tests/alloc_fail: tests/c/alloc_fail.c csrc/fracconv.h $(BUILD)/libfracconv.a
+	@mkdir -p $(BUILD)/tests
+	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm $(WRAP_ALLOC) -o $@
+
 check-c-tests: c-tests
 	$(BUILD)/tests/api_driver
 	$(BUILD)/tests/threads
+	$(BUILD)/tests/alloc_fail
 
 check-gcc:
 	$(MAKE) CC=gcc CFLAGS="$(WERROR_CFLAGS)" BUILD=$(BUILD)/gcc lib check-c check-c-tests
@@ -135,6 +145,7 @@ asan:
 	$(MAKE) CC="$(CC) $(SAN_FLAGS)" CFLAGS="-O1" BUILD=$(BUILD)/asan lib check-c c-tests
 	$(BUILD)/asan/tests/api_driver
 	$(BUILD)/asan/tests/threads
+	$(BUILD)/asan/tests/alloc_fail
 
 tsan:
 	$(MAKE) CC="$(TSAN_CC) $(TSAN_FLAGS)" CFLAGS="-O1" BUILD=$(BUILD)/tsan lib $(BUILD)/tsan/tests/threads
