@@ -138,3 +138,70 @@ uninstall:
 	      $(DESTDIR)$(LIBDIR)/libfracconv.a $(DESTDIR)$(PKGCONFIGDIR)/fracconv.pc \
 	      $(DESTDIR)$(CMAKEDIR)/fracconvConfig.cmake $(DESTDIR)$(CMAKEDIR)/fracconvConfigVersion.cmake
 	-rmdir $(DESTDIR)$(CMAKEDIR) 2>/dev/null
+
+# ---------------------------------------------------------------------------
+# Checks of the C library under other compilers, the portable build and the
+# sanitizers (README, "Reliability"). Each builds the library from the same
+# SRCS into its own folder under $(BUILD) and runs the example programs and
+# the C tests of tests/c/ there; .ci/run runs them all.
+#   check-c-tests   the C tests (API driver, threads, allocation failure)
+#                   against this build
+#   check-gcc       gcc, -Werror
+#   check-clang     clang, -Werror
+#   check-portable  -DFC_NO_SIMD (no AVX2 anywhere), -Werror; outputs
+#                   compared with the default build (tests/c/simd_compare.c)
+#   asan            AddressSanitizer + UndefinedBehaviorSanitizer (+ leaks)
+#   tsan            ThreadSanitizer on tests/c/threads.c
+CLANG ?= clang
+TSAN_CC ?= $(CC)
+WERROR_CFLAGS = $(FC_OPT_CFLAGS) -Werror
+SAN_FLAGS = -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer -g
+TSAN_FLAGS = -fsanitize=thread -g
+export ASAN_OPTIONS ?= detect_leaks=1:abort_on_error=0:strict_string_checks=1
+export UBSAN_OPTIONS ?= print_stacktrace=1:halt_on_error=1
+export TSAN_OPTIONS ?= halt_on_error=1
+C_TEST_SRCS = $(wildcard tests/c/*.c)
+C_TEST_BINS = $(patsubst tests/c/%.c,$(BUILD)/tests/%,$(C_TEST_SRCS))
+
+.PHONY: c-tests check-c-tests check-gcc check-clang check-portable asan tsan
+
+c-tests: $(C_TEST_BINS)
+$(BUILD)/tests/%: tests/c/%.c csrc/fracconv.h $(BUILD)/libfracconv.a
+	@mkdir -p $(BUILD)/tests
+	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm -pthread -o $@
+
+# The allocation-failure test routes the library's malloc, calloc and
+# realloc through its own counters by the linker (--wrap): no hook in the
+# library itself.
+WRAP_ALLOC = -Wl,--wrap=malloc,--wrap=calloc,--wrap=realloc
+$(BUILD)/tests/alloc_fail: tests/c/alloc_fail.c csrc/fracconv.h $(BUILD)/libfracconv.a
+	@mkdir -p $(BUILD)/tests
+	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm $(WRAP_ALLOC) -o $@
+
+check-c-tests: c-tests
+	$(BUILD)/tests/api_driver
+	$(BUILD)/tests/threads
+	$(BUILD)/tests/alloc_fail
+
+check-gcc:
+	$(MAKE) CC=gcc CFLAGS="$(WERROR_CFLAGS)" BUILD=$(BUILD)/gcc lib check-c check-c-tests
+
+check-clang:
+	$(MAKE) CC=$(CLANG) CFLAGS="$(WERROR_CFLAGS)" BUILD=$(BUILD)/clang lib check-c check-c-tests
+
+check-portable: $(BUILD)/tests/simd_compare
+	$(MAKE) CFLAGS="$(WERROR_CFLAGS) -DFC_NO_SIMD" BUILD=$(BUILD)/portable lib check-c check-c-tests
+	$(BUILD)/tests/simd_compare write $(BUILD)/simd_outputs.bin
+	$(BUILD)/portable/tests/simd_compare check $(BUILD)/simd_outputs.bin
+
+# The sanitizer flags go into CC, so that the library, the examples and
+# the tests are all compiled and linked with them.
+asan:
+	$(MAKE) CC="$(CC) $(SAN_FLAGS)" CFLAGS="-O1" BUILD=$(BUILD)/asan lib check-c c-tests
+	$(BUILD)/asan/tests/api_driver
+	$(BUILD)/asan/tests/threads
+	$(BUILD)/asan/tests/alloc_fail
+
+tsan:
+	$(MAKE) CC="$(TSAN_CC) $(TSAN_FLAGS)" CFLAGS="-O1" BUILD=$(BUILD)/tsan lib $(BUILD)/tsan/tests/threads
+	$(BUILD)/tsan/tests/threads

@@ -171,6 +171,21 @@ static double limit(const fc_controller *c, double v)
     return u;
 }
 
+/* An exact stream (NULL or compressed: nothing to do) made ready for one
+   more sample without allocating in the push: room for the next power of
+   two of samples (at least 64), so the growth stays geometric. Reserving
+   does not change a stream's outputs or saved state. */
+static int room_for_one(fc_stream *s)
+{
+    uint64_t n, want = 64;
+    int mode, st;
+    if (!s) return FC_OK;
+    if ((st = fc_stream_mode(s, &mode)) != FC_OK || mode != FC_MODE_EXACT) return st;
+    if ((st = fc_stream_count(s, &n)) != FC_OK) return st;
+    while (want < n + 1 && want <= UINT64_MAX / 2) want *= 2;
+    return fc_stream_reserve(s, want);
+}
+
 static int update1(fc_controller *c, double r, double y, double *uout)
 {
     if (!isfinite(r) || !isfinite(y)) return FC_ERR_NONFINITE;
@@ -234,10 +249,14 @@ static int update1(fc_controller *c, double r, double y, double *uout)
     if (!isfinite(P) || !isfinite(I) || !isfinite(D) || !isfinite(v)
         || !isfinite(bias) || !isfinite(u))
         return FC_ERR_RANGE;
+    /* Room for this sample in both streams first (an exact stream grows;
+       a failed allocation refuses the update here, with nothing changed). */
+    if ((st = room_for_one(c->sd)) != FC_OK) return st;
+    if ((st = room_for_one(c->si)) != FC_OK) return st;
     /* Every refusal is behind us: the pushes repeat the previews. */
     double tmp;
-    if (c->sd && fc_stream_push1(c->sd, ed, &tmp)) return FC_ERR_ARG;
-    if (c->si && fc_stream_push1(c->si, xi, &tmp)) return FC_ERR_ARG;
+    if (c->sd && (st = fc_stream_push1(c->sd, ed, &tmp)) != FC_OK) return st;
+    if (c->si && (st = fc_stream_push1(c->si, xi, &tmp)) != FC_OK) return st;
     c->dfilt = D;
     c->bias = bias;
     c->u_prev = u;

@@ -21,9 +21,12 @@
  *   - twiddles come from cos/sin of exact fractions reduced to the first
  *     octant, never from recurrences.
  * The kernels (fft_kernels.h) are compiled twice: portable C, and AVX2+FMA
- * on x86-64 (function-level target, chosen at plan creation with
- * __builtin_cpu_supports; no -march flag is needed and nothing global is
- * written by this file).
+ * on x86-64 (every function of that instance carries
+ * __attribute__((target("avx2,fma"))), which GCC and clang both accept;
+ * chosen at plan creation with __builtin_cpu_supports, which both provide;
+ * no -march flag is needed and nothing global is written by this file).
+ * -DFC_NO_SIMD (or -DFC__FFT_NO_SIMD) leaves the AVX2 instance out: the
+ * portable build that `make check-portable` compares with the default one.
  */
 #include <stdint.h>
 #include <stdlib.h>
@@ -33,7 +36,7 @@
 #include "internal.h"
 
 #if defined(__GNUC__) && (defined(__x86_64__) || defined(__i386__)) \
-    && !defined(FC__FFT_NO_SIMD)
+    && !defined(FC__FFT_NO_SIMD) && !defined(FC_NO_SIMD)
 #define FC__FFT_X86 1
 #include <immintrin.h>
 #else
@@ -296,30 +299,34 @@ static inline fc__gv fc__g_dupim(fc__gv a)
 #define VDUPRE fc__g_dupre
 #define VDUPIM fc__g_dupim
 #define FFT_FN(name) fc__gen_##name
+#define FFT_TARGET
 #include "fft_kernels.h"
 #include "fft_undef.h"
 
 /* ---------------------------------------------------------------------- */
 /* AVX2 + FMA instance (x86 only, selected at run time).                   */
 #if FC__FFT_X86
-#pragma GCC push_options
-#pragma GCC target("avx2,fma")
+/* On every function of this instance (the helpers below and, through
+   FFT_TARGET, the kernels): a function attribute, not a pragma region, so
+   that clang compiles it too. */
+#define FC__AVX2_FN __attribute__((target("avx2,fma")))
 
-static inline __m256d fc__a_signodd(void) { return _mm256_set_pd(-0.0, 0.0, -0.0, 0.0); }
-static inline __m256d fc__a_signeven(void) { return _mm256_set_pd(0.0, -0.0, 0.0, -0.0); }
-static inline __m256d fc__a_swap(__m256d a) { return _mm256_permute_pd(a, 0x5); }
-static inline __m256d fc__a_conj(__m256d a) { return _mm256_xor_pd(a, fc__a_signodd()); }
-static inline __m256d fc__a_mul_mi(__m256d a)
+static FC__AVX2_FN inline __m256d fc__a_signodd(void) { return _mm256_set_pd(-0.0, 0.0, -0.0, 0.0); }
+static FC__AVX2_FN inline __m256d fc__a_signeven(void) { return _mm256_set_pd(0.0, -0.0, 0.0, -0.0); }
+static FC__AVX2_FN inline __m256d fc__a_swap(__m256d a) { return _mm256_permute_pd(a, 0x5); }
+static FC__AVX2_FN inline __m256d fc__a_conj(__m256d a) { return _mm256_xor_pd(a, fc__a_signodd()); }
+static FC__AVX2_FN inline __m256d fc__a_mul_mi(__m256d a)
 { return _mm256_xor_pd(fc__a_swap(a), fc__a_signodd()); }
-static inline __m256d fc__a_mul_pi(__m256d a)
+static FC__AVX2_FN inline __m256d fc__a_mul_pi(__m256d a)
 { return _mm256_xor_pd(fc__a_swap(a), fc__a_signeven()); }
-static inline __m256d fc__a_cmul(__m256d a, __m256d wr, __m256d wi)
+static FC__AVX2_FN inline __m256d fc__a_cmul(__m256d a, __m256d wr, __m256d wi)
 { return _mm256_fmaddsub_pd(a, wr, _mm256_mul_pd(fc__a_swap(a), wi)); }
-static inline __m256d fc__a_cmulc(__m256d a, __m256d wr, __m256d wi)
+static FC__AVX2_FN inline __m256d fc__a_cmulc(__m256d a, __m256d wr, __m256d wi)
 { return _mm256_fmsubadd_pd(a, wr, _mm256_mul_pd(fc__a_swap(a), wi)); }
-static inline __m256d fc__a_rev(__m256d a) { return _mm256_permute2f128_pd(a, a, 0x01); }
-static inline __m256d fc__a_lo2(__m256d a, __m256d b) { return _mm256_permute2f128_pd(a, b, 0x20); }
-static inline __m256d fc__a_hi2(__m256d a, __m256d b) { return _mm256_permute2f128_pd(a, b, 0x31); }
+static FC__AVX2_FN inline __m256d fc__a_rev(__m256d a) { return _mm256_permute2f128_pd(a, a, 0x01); }
+static FC__AVX2_FN inline __m256d fc__a_lo2(__m256d a, __m256d b) { return _mm256_permute2f128_pd(a, b, 0x20); }
+static FC__AVX2_FN inline __m256d fc__a_hi2(__m256d a, __m256d b) { return _mm256_permute2f128_pd(a, b, 0x31); }
+static FC__AVX2_FN inline __m256d fc__a_dupim(__m256d a) { return _mm256_permute_pd(a, 0xF); }
 
 #define V __m256d
 #define VLD _mm256_loadu_pd
@@ -337,12 +344,12 @@ static inline __m256d fc__a_hi2(__m256d a, __m256d b) { return _mm256_permute2f1
 #define VLO2 fc__a_lo2
 #define VHI2 fc__a_hi2
 #define VDUPRE _mm256_movedup_pd
-#define VDUPIM(a) _mm256_permute_pd((a), 0xF)
+#define VDUPIM fc__a_dupim
 #define FFT_FN(name) fc__avx2_##name
+#define FFT_TARGET FC__AVX2_FN
 #include "fft_kernels.h"
 #include "fft_undef.h"
-
-#pragma GCC pop_options
+#undef FC__AVX2_FN
 
 static int fc__have_avx2_fma(void)
 {

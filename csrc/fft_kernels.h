@@ -7,6 +7,10 @@
  *   V             a vector of two complex doubles [re0, im0, re1, im1],
  *   VLD VST VADD VSUB VMUL VSET1 VSWAP VCONJ VMUL_MI VMUL_PI VCMUL VCMULC
  *   VREV VLO2 VHI2 VDUPRE VDUPIM  (see fft.c for their meaning),
+ *   FFT_TARGET    the attribute every function here carries: empty for the
+ *                 portable instance, __attribute__((target("avx2,fma"))) for
+ *                 the AVX2 one (a function attribute, which GCC and clang
+ *                 both understand; no pragma, no target_clones),
  *   FFT_ALWAYS_INLINE.
  * It defines the complex Stockham stages, the real-to-complex pre/post
  * passes, the two real transform drivers and the spectrum products.
@@ -61,7 +65,7 @@
 
 /* First radix-8 stage (s = 1), vectorised over p (m even). Twiddle layout
    per pair of p: for k = 1..7, [w_k(p), w_k(p+1)] (4 doubles). */
-static FFT_ALWAYS_INLINE void
+static FFT_TARGET FFT_ALWAYS_INLINE void
 FFT_FN(st_first8_body)(const double *restrict x, double *restrict y, size_t m,
                        const double *restrict tw, int inv)
 {
@@ -93,7 +97,7 @@ FFT_FN(st_first8_body)(const double *restrict x, double *restrict y, size_t m,
 
 /* Twiddled radix-8 stage, s >= 2, columns q0 .. q0+qn-1 (qn even).
    Twiddle layout: tw[14p + 2(k-1)] = w_ncur^(p k), k = 1..7. */
-static FFT_ALWAYS_INLINE void
+static FFT_TARGET FFT_ALWAYS_INLINE void
 FFT_FN(st_r8_body)(const double *restrict x, double *restrict y, size_t s,
                    size_t m, const double *restrict tw, size_t q0, size_t qn,
                    int inv)
@@ -125,7 +129,7 @@ FFT_FN(st_r8_body)(const double *restrict x, double *restrict y, size_t s,
 
 /* First stage (s = 1), vectorised over p (m even). Twiddle layout per pair
    of p: for k = 1..3, [w_k(p), w_k(p+1)] (4 doubles). */
-static FFT_ALWAYS_INLINE void
+static FFT_TARGET FFT_ALWAYS_INLINE void
 FFT_FN(st_first_body)(const double *restrict x, double *restrict y, size_t m,
                       const double *restrict tw, int inv)
 {
@@ -151,7 +155,7 @@ FFT_FN(st_first_body)(const double *restrict x, double *restrict y, size_t m,
 
 /* Twiddled radix-4 stage, s >= 2, columns q0 .. q0+qn-1 (qn even).
    Twiddle layout: tw[6p + 2(k-1)] = w_ncur^(p k), k = 1..3. */
-static FFT_ALWAYS_INLINE void
+static FFT_TARGET FFT_ALWAYS_INLINE void
 FFT_FN(st_r4_body)(const double *restrict x, double *restrict y, size_t s,
                    size_t m, const double *restrict tw, size_t q0, size_t qn,
                    int inv)
@@ -178,7 +182,7 @@ FFT_FN(st_r4_body)(const double *restrict x, double *restrict y, size_t s,
 }
 
 /* Last radix-4 stage (m = 1, no twiddles), columns q0 .. q0+qn-1. */
-static FFT_ALWAYS_INLINE void
+static FFT_TARGET FFT_ALWAYS_INLINE void
 FFT_FN(st_r4l_body)(const double *restrict x, double *restrict y, size_t s,
                     size_t q0, size_t qn, int inv)
 {
@@ -196,7 +200,7 @@ FFT_FN(st_r4l_body)(const double *restrict x, double *restrict y, size_t s,
 }
 
 /* Last radix-8 stage (m = 1), columns q0 .. q0+qn-1. */
-static FFT_ALWAYS_INLINE void
+static FFT_TARGET FFT_ALWAYS_INLINE void
 FFT_FN(st_r8l_body)(const double *restrict x, double *restrict y, size_t s,
                     size_t q0, size_t qn, int inv)
 {
@@ -221,48 +225,48 @@ FFT_FN(st_r8l_body)(const double *restrict x, double *restrict y, size_t s,
 }
 
 /* Non-inlined forward / inverse instances. */
-static void FFT_FN(st_first_f)(const double *restrict x, double *restrict y,
+static FFT_TARGET void FFT_FN(st_first_f)(const double *restrict x, double *restrict y,
                                size_t m, const double *restrict tw)
 { FFT_FN(st_first_body)(x, y, m, tw, 0); }
-static void FFT_FN(st_first_b)(const double *restrict x, double *restrict y,
+static FFT_TARGET void FFT_FN(st_first_b)(const double *restrict x, double *restrict y,
                                size_t m, const double *restrict tw)
 { FFT_FN(st_first_body)(x, y, m, tw, 1); }
-static void FFT_FN(st_r4_f)(const double *restrict x, double *restrict y,
+static FFT_TARGET void FFT_FN(st_r4_f)(const double *restrict x, double *restrict y,
                             size_t s, size_t m, const double *restrict tw,
                             size_t q0, size_t qn)
 { FFT_FN(st_r4_body)(x, y, s, m, tw, q0, qn, 0); }
-static void FFT_FN(st_r4_b)(const double *restrict x, double *restrict y,
+static FFT_TARGET void FFT_FN(st_r4_b)(const double *restrict x, double *restrict y,
                             size_t s, size_t m, const double *restrict tw,
                             size_t q0, size_t qn)
 { FFT_FN(st_r4_body)(x, y, s, m, tw, q0, qn, 1); }
-static void FFT_FN(st_first8_f)(const double *restrict x, double *restrict y,
+static FFT_TARGET void FFT_FN(st_first8_f)(const double *restrict x, double *restrict y,
                                 size_t m, const double *restrict tw)
 { FFT_FN(st_first8_body)(x, y, m, tw, 0); }
-static void FFT_FN(st_first8_b)(const double *restrict x, double *restrict y,
+static FFT_TARGET void FFT_FN(st_first8_b)(const double *restrict x, double *restrict y,
                                 size_t m, const double *restrict tw)
 { FFT_FN(st_first8_body)(x, y, m, tw, 1); }
-static void FFT_FN(st_r8_f)(const double *restrict x, double *restrict y,
+static FFT_TARGET void FFT_FN(st_r8_f)(const double *restrict x, double *restrict y,
                             size_t s, size_t m, const double *restrict tw,
                             size_t q0, size_t qn)
 { FFT_FN(st_r8_body)(x, y, s, m, tw, q0, qn, 0); }
-static void FFT_FN(st_r8_b)(const double *restrict x, double *restrict y,
+static FFT_TARGET void FFT_FN(st_r8_b)(const double *restrict x, double *restrict y,
                             size_t s, size_t m, const double *restrict tw,
                             size_t q0, size_t qn)
 { FFT_FN(st_r8_body)(x, y, s, m, tw, q0, qn, 1); }
-static void FFT_FN(st_r4l_f)(const double *restrict x, double *restrict y,
+static FFT_TARGET void FFT_FN(st_r4l_f)(const double *restrict x, double *restrict y,
                              size_t s, size_t q0, size_t qn)
 { FFT_FN(st_r4l_body)(x, y, s, q0, qn, 0); }
-static void FFT_FN(st_r4l_b)(const double *restrict x, double *restrict y,
+static FFT_TARGET void FFT_FN(st_r4l_b)(const double *restrict x, double *restrict y,
                              size_t s, size_t q0, size_t qn)
 { FFT_FN(st_r4l_body)(x, y, s, q0, qn, 1); }
-static void FFT_FN(st_r8l_f)(const double *restrict x, double *restrict y,
+static FFT_TARGET void FFT_FN(st_r8l_f)(const double *restrict x, double *restrict y,
                              size_t s, size_t q0, size_t qn)
 { FFT_FN(st_r8l_body)(x, y, s, q0, qn, 0); }
-static void FFT_FN(st_r8l_b)(const double *restrict x, double *restrict y,
+static FFT_TARGET void FFT_FN(st_r8l_b)(const double *restrict x, double *restrict y,
                              size_t s, size_t q0, size_t qn)
 { FFT_FN(st_r8l_body)(x, y, s, q0, qn, 1); }
 
-static void FFT_FN(run_stage)(const struct fc__fft_stage *st,
+static FFT_TARGET void FFT_FN(run_stage)(const struct fc__fft_stage *st,
                               const double *x, double *y, size_t q0,
                               size_t qn, int inv)
 {
@@ -296,7 +300,7 @@ static void FFT_FN(run_stage)(const struct fc__fft_stage *st,
 
 /* Stages st[0..ns) on a local buffer: input src, ping-pong between a and b
    (neither is src); returns the buffer holding the result. */
-static const double *FFT_FN(run_local)(const struct fc__fft_stage *st, int ns,
+static FFT_TARGET const double *FFT_FN(run_local)(const struct fc__fft_stage *st, int ns,
                                        const double *src, double *a,
                                        double *b, int inv)
 {
@@ -319,7 +323,7 @@ static const double *FFT_FN(run_local)(const struct fc__fft_stage *st, int ns,
  * contiguous buffers, so every stage works in cache and memory is read and
  * written twice in all.
  */
-static void FFT_FN(cfft_big)(const fc_fft_plan *p, const double *src,
+static FFT_TARGET void FFT_FN(cfft_big)(const fc_fft_plan *p, const double *src,
                              double *out, int inv)
 {
     const size_t n1 = p->n1, n2 = p->n2, bw = p->bw;
@@ -367,7 +371,7 @@ static void FFT_FN(cfft_big)(const fc_fft_plan *p, const double *src,
 /* Complex transform of size p->m (>= 16) from src into out (both m complex),
    using p->scratch; src is only read. Stage i writes out when nstages-1-i
    is even, so the last stage lands in out. */
-static void FFT_FN(cfft)(const fc_fft_plan *p, const double *src, double *out,
+static FFT_TARGET void FFT_FN(cfft)(const fc_fft_plan *p, const double *src, double *out,
                          int inv)
 {
     const int ns = p->nstages;
@@ -396,7 +400,7 @@ static void FFT_FN(cfft)(const fc_fft_plan *p, const double *src, double *out,
  * may be the same array (each pair is read before it is written).
  * k = 0 and k = M/2 are done by the caller.
  */
-static void FFT_FN(pair_pass)(const double *z, double *out, size_t M,
+static FFT_TARGET void FFT_FN(pair_pass)(const double *z, double *out, size_t M,
                               const double *e, double sc, int inv)
 {
     size_t k = 1;
@@ -426,7 +430,7 @@ static void FFT_FN(pair_pass)(const double *z, double *out, size_t M,
     }
 }
 
-static void FFT_FN(rfft_forward)(fc_fft_plan *p, const double *in,
+static FFT_TARGET void FFT_FN(rfft_forward)(fc_fft_plan *p, const double *in,
                                  double *out)
 {
     const size_t M = p->m;
@@ -444,7 +448,7 @@ static void FFT_FN(rfft_forward)(fc_fft_plan *p, const double *in,
 }
 
 /* out = sc * (unnormalised inverse); sc = 1 or 1/n. */
-static void FFT_FN(rfft_inverse)(fc_fft_plan *p, const double *in,
+static FFT_TARGET void FFT_FN(rfft_inverse)(fc_fft_plan *p, const double *in,
                                  double *out, double sc)
 {
     const size_t M = p->m, ns = (size_t)p->nstages;
@@ -469,7 +473,7 @@ static void FFT_FN(rfft_inverse)(fc_fft_plan *p, const double *in,
 
 /* out = sum_{j<cnt} a[j] * b[j] over nb bins, the sum kept in registers
    (every spectrum read once, out written once); cnt >= 1. */
-static void FFT_FN(spec_dot)(size_t nb, const double *const *a,
+static FFT_TARGET void FFT_FN(spec_dot)(size_t nb, const double *const *a,
                              const double *const *b, size_t cnt, double *out)
 {
     size_t k = 0;
@@ -508,7 +512,7 @@ static void FFT_FN(spec_dot)(size_t nb, const double *const *a,
     }
 }
 
-static void FFT_FN(spec_mul)(size_t nb, const double *a, const double *b,
+static FFT_TARGET void FFT_FN(spec_mul)(size_t nb, const double *a, const double *b,
                              double *out)
 {
     size_t k = 0;

@@ -1,6 +1,7 @@
 /* fft_undef.h -- ends one instance of fft_kernels.h (see fft.c): removes
    the vector macros it was compiled with. No include guard on purpose. */
 #undef FFT_FN
+#undef FFT_TARGET
 #undef V
 #undef VLD
 #undef VST

@@ -486,7 +486,7 @@ typedef int (*fc_jac_fn)(double t, const double *y, double *jac, void *user);
  * order <= 1 but must be finite); method FC_METHOD_*; memory FC_MODE_*;
  * tol, horizon: as for fc_stream_create (ignored for FC_MODE_EXACT).
  */
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_SIZE (m == 0 or too large), FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_NONFINITE (t0 or init), FC_ERR_ARG (method, horizon of the implicit rectangle rule), FC_ERR_MODE, FC_ERR_TOL, FC_ERR_RANGE, FC_ERR_NOMEM. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_SIZE (m == 0 or too large), FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_NONFINITE (init), FC_ERR_ARG (t0 not finite), FC_ERR_RULE (method unknown), FC_ERR_MODE, FC_ERR_TOL (tol, horizon; also the horizon of the implicit rectangle rule), FC_ERR_RANGE, FC_ERR_NOMEM. */
 FC_API int fc_solver_create(size_t m, const double *orders, double step, double t0,
                             const double *init, int method, int memory, double tol,
                             double horizon, fc_solver **out);
@@ -501,10 +501,10 @@ FC_API int fc_solver_set_jacobian(fc_solver *s, fc_jac_fn fn, void *user);
 /* Newton's method of the implicit methods: stop when every residual
    component |r_i| <= tol * (|y_i| + |c_i| + |w0_i f_i|), c the known part;
    tol in [1e-15, 1e-2] (default 1e-12), 1 <= maxiter <= 1000 (default 50). */
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (tol or maxiter out of range). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_TOL (tol out of range), FC_ERR_ARG (maxiter out of range). */
 FC_API int fc_solver_set_newton(fc_solver *s, double tol, unsigned maxiter);
 /* Corrector passes of FC_METHOD_PC, 1 <= passes <= 100 (default 1). */
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (passes out of range or method not FC_METHOD_PC). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (passes out of range; for a method other than FC_METHOD_PC the setting is accepted and has no effect). */
 FC_API int fc_solver_set_corrections(fc_solver *s, unsigned passes);
 /*
  * Advance by nsteps steps. t_out: nsteps doubles or NULL; y_out:

@@ -10,6 +10,16 @@
 #include "fracconv.h"
 #include "fft.h"
 
+/*
+ * FC_NO_SIMD: the portable build (make check-portable). fft.c and lagsum.c
+ * then leave their AVX2 versions out; every other run-time CPU probe
+ * (__builtin_cpu_supports, compressed.c) answers "not supported", so the
+ * portable kernels run, exactly as on a machine without AVX2.
+ */
+#if defined(FC_NO_SIMD) && (defined(__GNUC__) || defined(__clang__))
+#define __builtin_cpu_supports(feature) ((void)(feature), 0)
+#endif
+
 /* Largest supported weight index + 1 (2^53: every index exact in double). */
 #define FC_INDEX_LIMIT (UINT64_C(1) << 53)
 

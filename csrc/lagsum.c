@@ -114,15 +114,25 @@ static int ensure_work(fc_context *ctx, size_t doubles)
  */
 #define FC_DIRECT_GROUP 128
 
-#if defined(__GNUC__) && !defined(__clang__) && defined(__x86_64__) \
-    && defined(__linux__)
-/* AVX2 and generic versions, chosen once by the loader (no global state of
-   ours); results are the same, as no FMA contraction is allowed. */
-__attribute__((target_clones("avx2", "default")))
+#if (defined(__GNUC__) || defined(__clang__)) \
+    && (defined(__x86_64__) || defined(__i386__)) && !defined(FC_NO_SIMD)
+#define FC__DIRECT_AVX2 1
+#define FC__DIRECT_INLINE inline __attribute__((always_inline))
+#else
+#define FC__DIRECT_AVX2 0
+#define FC__DIRECT_INLINE inline
 #endif
-static void direct_accumulate(const double *restrict x, size_t len,
-                              const double *restrict c, size_t K,
-                              double *restrict y)
+
+/* The body, compiled twice below: generic, and with AVX2 enabled (function
+   attribute target("avx2"), which GCC and clang both accept; no FMA, so
+   with no FMA contraction allowed the two give the same bits). Chosen per
+   call with __builtin_cpu_supports (a read of the CPU model that the
+   compiler's runtime fills in at start-up; no global state of ours, no
+   ifunc resolver as target_clones would make). */
+static FC__DIRECT_INLINE void
+direct_accumulate_body(const double *restrict x, size_t len,
+                       const double *restrict c, size_t K,
+                       double *restrict y)
 {
     double grp[FC_DIRECT_CHUNK], cor[FC_DIRECT_CHUNK];
     for (size_t i0 = 0; i0 < len; i0 += FC_DIRECT_CHUNK) {
@@ -165,6 +175,36 @@ static void direct_accumulate(const double *restrict x, size_t len,
         }
         for (size_t j = 0; j < clen; j++) y[i0 + j] += cor[j];
     }
+}
+
+static void direct_accumulate_generic(const double *restrict x, size_t len,
+                                      const double *restrict c, size_t K,
+                                      double *restrict y)
+{
+    direct_accumulate_body(x, len, c, K, y);
+}
+
+#if FC__DIRECT_AVX2
+__attribute__((target("avx2")))
+static void direct_accumulate_avx2(const double *restrict x, size_t len,
+                                   const double *restrict c, size_t K,
+                                   double *restrict y)
+{
+    direct_accumulate_body(x, len, c, K, y);
+}
+#endif
+
+static void direct_accumulate(const double *restrict x, size_t len,
+                              const double *restrict c, size_t K,
+                              double *restrict y)
+{
+#if FC__DIRECT_AVX2
+    if (__builtin_cpu_supports("avx2")) {
+        direct_accumulate_avx2(x, len, c, K, y);
+        return;
+    }
+#endif
+    direct_accumulate_generic(x, len, c, K, y);
 }
 
 /*

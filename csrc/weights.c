@@ -472,7 +472,12 @@ typedef struct {
     double hi, lo;
 } fc_dd;
 
-/* g <- g * ((m-1) - a) / m in double-double. */
+/* g <- g * ((m-1) - a) / m in double-double. Used only where long double
+   is not extended (below); marked unused so that clang, which warns of an
+   unused static inline function, builds with -Werror either way. */
+#if defined(__GNUC__) || defined(__clang__)
+__attribute__((unused))
+#endif
 static inline fc_dd dd_gl_step(fc_dd g, double m, double a)
 {
     double nh, nl, ph, pl, q1, rh, rl;

@@ -1,0 +1,330 @@
+/*
+ * alloc_fail.c -- allocation failure (issue 14, item 4). Linked with
+ * -Wl,--wrap=malloc,--wrap=calloc,--wrap=realloc (make alloc-fail, and
+ * under AddressSanitizer by make asan-alloc), so that every allocation the
+ * library makes goes through the counters below; the k-th allocation of a
+ * call is made to fail, for k = 1, 2, ... until the call makes no more.
+ * For each k the call must return FC_ERR_NOMEM (or succeed with the same
+ * result, where the library has a fallback), leave the object exactly as
+ * it was (its saved bytes and its next outputs unchanged) and leak
+ * nothing (LeakSanitizer in make asan-alloc). Calls: create, reserve,
+ * push, save, load of exact and compressed streams; create, advance,
+ * save, load of solvers; create, update, save, load of controllers; FFT
+ * plans; batch calls with and without a context. Invented signals.
+ * The library itself has no hook: the wrapping is done by the linker, in
+ * this test binary only.
+ */
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <stdint.h>
+#include <math.h>
+#include "fracconv.h"
+
+void *__real_malloc(size_t n);
+void *__real_calloc(size_t n, size_t m);
+void *__real_realloc(void *p, size_t n);
+
+static long alloc_count, fail_at = -1; /* fail the fail_at-th (1-based) */
+static int injected;
+static int hit(void)
+{
+    if (fail_at < 0) return 0;
+    if (++alloc_count == fail_at) { injected = 1; return 1; }
+    return 0;
+}
+void *__wrap_malloc(size_t n) { return hit() ? NULL : __real_malloc(n); }
+void *__wrap_calloc(size_t n, size_t m) { return hit() ? NULL : __real_calloc(n, m); }
+void *__wrap_realloc(void *p, size_t n) { return hit() ? NULL : __real_realloc(p, n); }
+
+static void arm(long k) { alloc_count = 0; injected = 0; fail_at = k; }
+static void disarm(void) { fail_at = -1; }
+
+static int fails, checks, injections;
+
+/* Run op for k = 1, 2, ...: with the k-th allocation failing it must give
+   FC_ERR_NOMEM and `same` must hold; the first k that injects nothing
+   ends the loop (op must then succeed). */
+#define FOR_EACH_FAILURE(name, op, on_ok, same)                               \
+    do {                                                                    \
+        for (long k_ = 1; k_ < 100000; k_++) {                              \
+            int st_;                                                        \
+            arm(k_);                                                        \
+            st_ = (op);                                                     \
+            disarm();                                                       \
+            checks++;                                                       \
+            if (!injected) {                                                \
+                if (st_ != FC_OK) { fails++; printf("%s: no failure injected, status %d\n", name, st_); } \
+                else { on_ok; }                                             \
+                break;                                                      \
+            }                                                               \
+            injections++;                                                   \
+            if (st_ == FC_OK) { on_ok; continue; }                          \
+            if (st_ != FC_ERR_NOMEM) {                                      \
+                fails++;                                                    \
+                printf("%s: allocation %ld failed: status %d (%s)\n", name, k_, st_, fc_strerror(st_)); \
+            }                                                               \
+            if (!(same)) { fails++; printf("%s: allocation %ld failed: object changed\n", name, k_); } \
+        }                                                                   \
+    } while (0)
+
+/* the saved bytes of a stream, for "unchanged" checks (allocation off) */
+static unsigned char *stream_bytes(fc_stream *s, size_t *n)
+{
+    size_t sz;
+    unsigned char *b;
+    if (fc_stream_save_size(s, &sz) != FC_OK) return NULL;
+    b = malloc(sz);
+    if (b == NULL || fc_stream_save(s, b, sz, n) != FC_OK) { free(b); return NULL; }
+    return b;
+}
+static int stream_same(fc_stream *s, const unsigned char *ref, size_t n)
+{
+    size_t m;
+    unsigned char *b = stream_bytes(s, &m);
+    int same = b != NULL && m == n && memcmp(b, ref, n) == 0;
+    free(b);
+    return same;
+}
+
+static void streams(void)
+{
+    enum { N = 3000, C = 2 };
+    double *x = malloc(N * C * sizeof *x), *y = malloc(N * C * sizeof *y), *y2 = malloc(N * C * sizeof *y2);
+    for (int i = 0; i < N * C; i++) x[i] = sin(0.01 * i) + 0.3;
+    for (int mode = 0; mode < 2; mode++)
+        for (int rule = 0; rule < 4; rule++) {
+            fc_stream *s = NULL, *l = NULL, *r = NULL;
+            unsigned char *ref;
+            size_t n, wr;
+            char name[64];
+            snprintf(name, sizeof name, "stream_create mode %d rule %d", mode, rule);
+            FOR_EACH_FAILURE(name, fc_stream_create(rule, 0.4, 0.1, C, mode, 1e-9, 1e6, &s),
+                             (void)0, s == NULL);
+            if (s == NULL) { fails++; continue; }
+            /* a reference twin, pushed without failures */
+            if (fc_stream_create(rule, 0.4, 0.1, C, mode, 1e-9, 1e6, &r) != FC_OK) { fails++; continue; }
+            for (int part = 0; part < 3; part++) {
+                const double *xp = x + part * (N / 3) * C;
+                ref = stream_bytes(s, &n);
+                snprintf(name, sizeof name, "stream_push_block mode %d rule %d part %d", mode, rule, part);
+                FOR_EACH_FAILURE(name, fc_stream_push_block(s, xp, N / 3, y), (void)0, stream_same(s, ref, n));
+                free(ref);
+                if (fc_stream_push_block(r, xp, N / 3, y2) != FC_OK || memcmp(y, y2, (N / 3) * C * sizeof *y) != 0) {
+                    fails++; printf("%s: outputs differ from the twin\n", name);
+                }
+            }
+            ref = stream_bytes(s, &n);
+            snprintf(name, sizeof name, "stream_reserve mode %d rule %d", mode, rule);
+            FOR_EACH_FAILURE(name, fc_stream_reserve(s, 20000), (void)0, stream_same(s, ref, n));
+            {
+                size_t sz;
+                unsigned char *buf;
+                fc_stream_save_size(s, &sz);
+                buf = malloc(sz);
+                snprintf(name, sizeof name, "stream_save mode %d rule %d", mode, rule);
+                FOR_EACH_FAILURE(name, fc_stream_save(s, buf, sz, &wr), (void)0, stream_same(s, ref, n));
+                snprintf(name, sizeof name, "stream_load mode %d rule %d", mode, rule);
+                l = NULL;
+                FOR_EACH_FAILURE(name, fc_stream_load(buf, wr, &l),
+                                 (void)0, l == NULL);
+                if (l == NULL || !stream_same(l, ref, n)) { fails++; printf("%s: loaded stream differs\n", name); }
+                free(buf);
+            }
+            free(ref);
+            fc_stream_free(l);
+            fc_stream_free(s);
+            fc_stream_free(r);
+        }
+    {
+        double k[300];
+        fc_stream *s = NULL;
+        for (int i = 0; i < 300; i++) k[i] = 1.0 / (1 + i);
+        FOR_EACH_FAILURE("stream_create_kernel", fc_stream_create_kernel(k, 300, 2, &s), (void)0, s == NULL);
+        fc_stream_free(s);
+    }
+    free(x); free(y); free(y2);
+}
+
+static void batch(void)
+{
+    enum { N = 5000 };
+    double *x = malloc(N * sizeof *x), *y = malloc(N * sizeof *y), *yr = malloc(N * sizeof *yr);
+    fc_context *ctx = NULL;
+    for (int i = 0; i < N; i++) x[i] = cos(0.003 * i);
+    for (int e = 0; e < 4; e++) {
+        char name[64];
+        if (fc_apply(NULL, FC_RULE_GRUNWALD, 0.6, 0.01, x, 1, N, e, yr) != FC_OK) { fails++; continue; }
+        snprintf(name, sizeof name, "apply engine %d", e);
+        memset(y, 0, N * sizeof *y);
+        FOR_EACH_FAILURE(name, fc_apply(NULL, FC_RULE_GRUNWALD, 0.6, 0.01, x, 1, N, e, y),
+                         if (memcmp(y, yr, N * sizeof *y)) { fails++; printf("%s: result differs\n", name); },
+                         1);
+    }
+    FOR_EACH_FAILURE("context_create", fc_context_create(&ctx), (void)0, ctx == NULL);
+    for (int rep = 0; rep < 2; rep++)
+        FOR_EACH_FAILURE("apply with context", fc_apply(ctx, FC_RULE_L1, 0.3, 0.01, x, 1, N, FC_ENGINE_AUTO, y),
+                         (void)0, 1);
+    fc_context_free(ctx);
+    {
+        fc_fft_plan *p = NULL;
+        FOR_EACH_FAILURE("rfft_create", fc_rfft_create(1 << 18, &p), (void)0, p == NULL);
+        fc_rfft_free(p);
+    }
+    free(x); free(y); free(yr);
+}
+
+static int rhs(double t, const double *y, double *f, void *u) { (void)u; f[0] = -y[0] + cos(t); return 0; }
+
+static void solvers(void)
+{
+    for (int meth = 0; meth < 4; meth++)
+        for (int mem = 0; mem < 2; mem++) {
+            double o = 0.7, y0 = 1.0, yo[400], yo2[400];
+            fc_solver *s = NULL, *r = NULL, *l = NULL;
+            size_t done = 0, sz, wr;
+            unsigned char *buf;
+            uint64_t n0, n1;
+            char name[64];
+            if (meth == FC_METHOD_IMPLICIT_RECTANGLE && mem) continue;
+            snprintf(name, sizeof name, "solver_create %d %d", meth, mem);
+            FOR_EACH_FAILURE(name, fc_solver_create(1, &o, 0.01, 0, &y0, meth, mem, 1e-9, 5000, &s),
+                             (void)0, s == NULL);
+            if (s == NULL || fc_solver_create(1, &o, 0.01, 0, &y0, meth, mem, 1e-9, 5000, &r) != FC_OK) { fails++; continue; }
+            fc_solver_set_rhs(s, rhs, NULL);
+            fc_solver_set_rhs(r, rhs, NULL);
+            for (int part = 0; part < 2; part++) {
+                /* each k on a fresh copy (loaded with allocation on), as
+                   the solver may succeed after a failure (it retries its
+                   streams' room with a smaller size): then its outputs
+                   must be the twin's; after FC_ERR_NOMEM the copy must be
+                   unchanged, so a second advance gives the twin's too */
+                unsigned char *cp;
+                size_t csz, cwr;
+                fc_solver_advance(r, 400, NULL, yo2, &done);
+                fc_solver_save_size(s, &csz);
+                cp = malloc(csz);
+                fc_solver_save(s, cp, csz, &cwr);
+                snprintf(name, sizeof name, "solver_advance %d %d part %d", meth, mem, part);
+                for (long k = 1; k < 100000; k++) {
+                    fc_solver *t = NULL;
+                    int st;
+                    if (fc_solver_load(cp, cwr, &t) != FC_OK) { fails++; break; }
+                    fc_solver_set_rhs(t, rhs, NULL);
+                    fc_solver_steps(t, &n0);
+                    arm(k);
+                    st = fc_solver_advance(t, 400, NULL, yo, &done);
+                    disarm();
+                    checks++;
+                    if (injected) injections++;
+                    if (st == FC_ERR_NOMEM && injected) {
+                        fc_solver_steps(t, &n1);
+                        if (n1 != n0 || done != 0) { fails++; printf("%s: k %ld: steps changed\n", name, k); }
+                        st = fc_solver_advance(t, 400, NULL, yo, &done);
+                    } else if (st != FC_OK) {
+                        fails++;
+                        printf("%s: allocation %ld failed: status %d (%s)\n", name, k, st, fc_strerror(st));
+                    }
+                    if (st == FC_OK && memcmp(yo, yo2, sizeof yo)) { fails++; printf("%s: k %ld: differs from the twin\n", name, k); }
+                    fc_solver_free(t);
+                    if (!injected) break;
+                }
+                free(cp);
+                fc_solver_advance(s, 400, NULL, yo, &done);
+            }
+            fc_solver_save_size(s, &sz);
+            buf = malloc(sz);
+            snprintf(name, sizeof name, "solver_save %d %d", meth, mem);
+            FOR_EACH_FAILURE(name, fc_solver_save(s, buf, sz, &wr), (void)0, 1);
+            snprintf(name, sizeof name, "solver_load %d %d", meth, mem);
+            FOR_EACH_FAILURE(name, fc_solver_load(buf, wr, &l), (void)0, l == NULL);
+            if (l != NULL) {
+                fc_solver_set_rhs(l, rhs, NULL);
+                fc_solver_advance(l, 100, NULL, yo, &done);
+                fc_solver_advance(r, 100, NULL, yo2, &done);
+                if (memcmp(yo, yo2, 100 * sizeof *yo)) { fails++; printf("%s: loaded solver differs\n", name); }
+            }
+            free(buf);
+            fc_solver_free(s); fc_solver_free(r); fc_solver_free(l);
+        }
+}
+
+static void controllers(void)
+{
+    for (int mem = 0; mem < 2; mem++) {
+        fc_controller_params p;
+        fc_controller *c = NULL, *r = NULL, *l = NULL;
+        double rr[500], ym[500], u[500], u2[500];
+        size_t sz, wr, done;
+        uint64_t n0, n1;
+        unsigned char *buf;
+        char name[64];
+        for (int i = 0; i < 500; i++) { rr[i] = 1.0; ym[i] = 0.5 * sin(0.02 * i); }
+        fc_controller_default_params(&p);
+        p.ki = 0.4; p.kd = 0.2; p.memory = mem;
+        snprintf(name, sizeof name, "controller_create %d", mem);
+        FOR_EACH_FAILURE(name, fc_controller_create(&p, &c), (void)0, c == NULL);
+        if (c == NULL || fc_controller_create(&p, &r) != FC_OK) { fails++; continue; }
+        snprintf(name, sizeof name, "controller_update_block %d", mem);
+        fc_controller_update_block(r, rr, ym, 500, u2, NULL);
+        {
+            /* each k on a fresh copy: after FC_ERR_NOMEM at sample done the
+               copy is as after done samples (fracconv.h), so finishing the
+               block from there gives the twin's outputs */
+            unsigned char *cp;
+            size_t csz, cwr;
+            fc_controller_save_size(c, &csz);
+            cp = malloc(csz);
+            fc_controller_save(c, cp, csz, &cwr);
+            for (long k = 1; k < 100000; k++) {
+                fc_controller *t = NULL;
+                int st;
+                if (fc_controller_load(cp, cwr, &t) != FC_OK) { fails++; break; }
+                fc_controller_count(t, &n0);
+                memset(u, 0, sizeof u);
+                arm(k);
+                st = fc_controller_update_block(t, rr, ym, 500, u, &done);
+                disarm();
+                checks++;
+                if (injected) injections++;
+                if (st == FC_ERR_NOMEM && injected) {
+                    fc_controller_count(t, &n1);
+                    if (n1 != n0 + done) { fails++; printf("%s: k %ld: count %llu after %zu done\n", name, k, (unsigned long long)n1, done); }
+                    st = fc_controller_update_block(t, rr + done, ym + done, 500 - done, u + done, NULL);
+                } else if (st != FC_OK) {
+                    fails++;
+                    printf("%s: allocation %ld failed: status %d (%s)\n", name, k, st, fc_strerror(st));
+                }
+                if (st == FC_OK && memcmp(u, u2, sizeof u)) { fails++; printf("%s: k %ld: differs from the twin\n", name, k); }
+                fc_controller_free(t);
+                if (!injected) break;
+            }
+            free(cp);
+        }
+        fc_controller_update_block(c, rr, ym, 500, u, NULL);
+        fc_controller_save_size(c, &sz);
+        buf = malloc(sz);
+        snprintf(name, sizeof name, "controller_save %d", mem);
+        FOR_EACH_FAILURE(name, fc_controller_save(c, buf, sz, &wr), (void)0, 1);
+        snprintf(name, sizeof name, "controller_load %d", mem);
+        FOR_EACH_FAILURE(name, fc_controller_load(buf, wr, &l), (void)0, l == NULL);
+        if (l != NULL) {
+            fc_controller_update_block(l, rr, ym, 500, u, NULL);
+            fc_controller_update_block(r, rr, ym, 500, u2, NULL);
+            if (memcmp(u, u2, sizeof u)) { fails++; printf("%s: loaded controller differs\n", name); }
+        }
+        free(buf);
+        fc_controller_free(c); fc_controller_free(r); fc_controller_free(l);
+    }
+}
+
+int main(void)
+{
+    streams();
+    batch();
+    solvers();
+    controllers();
+    printf("alloc_fail: %d calls, %d injected failures, %d problems\n", checks, injections, fails);
+    if (injections == 0) { printf("alloc_fail: no allocation was intercepted (not linked with --wrap?)\n"); return 1; }
+    return fails ? 1 : 0;
+}

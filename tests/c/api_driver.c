@@ -1,0 +1,502 @@
+/*
+ * api_driver.c -- every public function of csrc/fracconv.h with valid and
+ * invalid arguments (NULL, zero, huge and overflowing sizes, NaN orders and
+ * steps, wrong enums), and every object (context, exact and compressed
+ * streams, solver, controller, FFT plan) through its whole life: create,
+ * use, save, load, truncated and forged saved data, free. Each call's
+ * status is compared with the one fracconv.h documents ("Statuses:"
+ * lines); exit 1 on any other. Built and run under AddressSanitizer and
+ * UndefinedBehaviorSanitizer by `make asan` (no report, no leak), and plain
+ * by `make check-c-tests`. Test signals are invented (fixed values).
+ */
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <stdint.h>
+#include <math.h>
+#include "fracconv.h"
+
+static int fails, checks;
+#define EXPECT(call, want) do {                                              \
+        int got_ = (call);                                                   \
+        checks++;                                                            \
+        if (got_ != (want)) {                                                \
+            fails++;                                                         \
+            printf("line %d: %s returned %d (%s), expected %d\n", __LINE__,  \
+                   #call, got_, fc_strerror(got_), (want));                  \
+        }                                                                    \
+    } while (0)
+#define TRUE_(cond) do { checks++; if (!(cond)) { fails++;                   \
+        printf("line %d: %s is false\n", __LINE__, #cond); } } while (0)
+
+static const double NaN_ = NAN;
+#define HUGE_SZ ((size_t)-1)
+
+/* Saved bytes: truncated at every length in a sample, and with one byte
+   flipped at sample positions, must be refused or (for a flip the checksum
+   cannot see) give a valid object; never crash. */
+typedef int (*load_fn)(const unsigned char *, size_t, void **);
+typedef void (*free_fn)(void *);
+static void blob_faults(const char *what, const unsigned char *buf, size_t n,
+                        load_fn load, free_fn fr)
+{
+    unsigned char *cp = malloc(n + 1);
+    void *obj = NULL;
+    size_t cut, step = n / 97 + 1;
+    if (cp == NULL) { fails++; return; }
+    for (cut = 0; cut < n; cut += step) {
+        memcpy(cp, buf, cut);
+        checks++;
+        if (load(cp, cut, &obj) != FC_ERR_FORMAT) {
+            fails++;
+            printf("%s: truncated to %zu bytes not refused\n", what, cut);
+            fr(obj);
+        }
+    }
+    for (cut = 0; cut < n; cut += step) {
+        int st;
+        memcpy(cp, buf, n);
+        cp[cut] ^= 0x5a;
+        obj = NULL;
+        st = load(cp, n, &obj);
+        checks++;
+        if (st != FC_ERR_FORMAT) {
+            fails++;
+            printf("%s: byte %zu flipped: status %d\n", what, cut, st);
+            fr(obj);
+        }
+    }
+    /* a forged header: the first bytes (magic) replaced */
+    memcpy(cp, buf, n);
+    memcpy(cp, "XXXXXXXX", n < 8 ? n : 8);
+    EXPECT(load(cp, n, &obj), FC_ERR_FORMAT);
+    /* one byte of garbage appended */
+    memcpy(cp, buf, n);
+    cp[n] = 0;
+    EXPECT(load(cp, n + 1, &obj), FC_ERR_FORMAT);
+    free(cp);
+}
+static int ld_stream(const unsigned char *b, size_t n, void **o) { return fc_stream_load(b, n, (fc_stream **)o); }
+static void fr_stream(void *o) { fc_stream_free(o); }
+static int ld_solver(const unsigned char *b, size_t n, void **o) { return fc_solver_load(b, n, (fc_solver **)o); }
+static void fr_solver(void *o) { fc_solver_free(o); }
+static int ld_ctrl(const unsigned char *b, size_t n, void **o) { return fc_controller_load(b, n, (fc_controller **)o); }
+static void fr_ctrl(void *o) { fc_controller_free(o); }
+
+static void test_info(void)
+{
+    int cnt, isd, loi, hii;
+    const char *nm;
+    double lo, hi;
+    TRUE_(fc_version() == FC_VERSION_NUMBER);
+    TRUE_(strcmp(fc_version_string(), FC_VERSION_STRING) == 0);
+    for (int st = -2; st < 70; st++) TRUE_(fc_strerror(st) != NULL);
+    TRUE_(fc_solver_strerror(FC_ERR_NEWTON) != NULL && fc_solver_strerror(12345) != NULL);
+    EXPECT(fc_rule_count(NULL), FC_ERR_NULL);
+    EXPECT(fc_rule_count(&cnt), FC_OK);
+    TRUE_(cnt == 4);
+    for (int r = 0; r < cnt; r++) {
+        EXPECT(fc_rule_info(r, &nm, &isd), FC_OK);
+        for (int m = 0; m < 2; m++) {
+            int st = fc_rule_order_range(r, m, &lo, &loi, &hi, &hii);
+            TRUE_(st == FC_OK || st == FC_ERR_MODE);
+        }
+    }
+    EXPECT(fc_rule_info(-1, &nm, &isd), FC_ERR_RULE);
+    EXPECT(fc_rule_info(cnt, &nm, &isd), FC_ERR_RULE);
+    EXPECT(fc_rule_info(0, NULL, &isd), FC_ERR_NULL);
+    EXPECT(fc_rule_order_range(0, 7, &lo, &loi, &hi, &hii), FC_ERR_MODE);
+    EXPECT(fc_rule_order_range(99, 0, &lo, &loi, &hi, &hii), FC_ERR_RULE);
+    EXPECT(fc_rule_order_range(0, 0, NULL, &loi, &hi, &hii), FC_ERR_NULL);
+}
+
+static void test_weights(void)
+{
+    double w[16];
+    EXPECT(fc_weights(FC_RULE_RECTANGLE, 0.5, 1.0, 0, 16, w), FC_OK);
+    EXPECT(fc_weights(FC_RULE_RECTANGLE, 0.5, 1.0, 0, 0, NULL), FC_OK);
+    EXPECT(fc_weights(FC_RULE_RECTANGLE, 0.5, 1.0, 0, 4, NULL), FC_ERR_NULL);
+    EXPECT(fc_weights(77, 0.5, 1.0, 0, 4, w), FC_ERR_RULE);
+    EXPECT(fc_weights(-1, 0.5, 1.0, 0, 4, w), FC_ERR_RULE);
+    EXPECT(fc_weights(FC_RULE_GRUNWALD, NaN_, 1.0, 0, 4, w), FC_ERR_ORDER);
+    EXPECT(fc_weights(FC_RULE_GRUNWALD, -0.5, 1.0, 0, 4, w), FC_ERR_ORDER);
+    EXPECT(fc_weights(FC_RULE_GRUNWALD, INFINITY, 1.0, 0, 4, w), FC_ERR_ORDER);
+    EXPECT(fc_weights(FC_RULE_L1, 1.5, 1.0, 0, 4, w), FC_ERR_ORDER);
+    EXPECT(fc_weights(FC_RULE_GRUNWALD, 0.5, NaN_, 0, 4, w), FC_ERR_STEP);
+    EXPECT(fc_weights(FC_RULE_GRUNWALD, 0.5, 0.0, 0, 4, w), FC_ERR_STEP);
+    EXPECT(fc_weights(FC_RULE_GRUNWALD, 0.5, -INFINITY, 0, 4, w), FC_ERR_STEP);
+    EXPECT(fc_weights(FC_RULE_GRUNWALD, 0.5, 1.0, UINT64_MAX - 1, 4, w), FC_ERR_INDEX);
+    EXPECT(fc_weights(FC_RULE_GRUNWALD, 0.5, 1.0, (UINT64_C(1) << 53) - 2, 4, w), FC_ERR_INDEX);
+    EXPECT(fc_weights(FC_RULE_RECTANGLE, 10.0, 1e300, 0, 4, w), FC_ERR_RANGE);
+    EXPECT(fc_trapezoid_start(0.5, 1.0, 0, 16, w), FC_OK);
+    EXPECT(fc_trapezoid_start(0.5, 1.0, 0, 4, NULL), FC_ERR_NULL);
+    EXPECT(fc_trapezoid_start(NaN_, 1.0, 0, 4, w), FC_ERR_ORDER);
+    EXPECT(fc_trapezoid_start(0.5, NaN_, 0, 4, w), FC_ERR_STEP);
+    EXPECT(fc_trapezoid_start(0.5, 1.0, UINT64_MAX, 4, w), FC_ERR_INDEX);
+}
+
+static void test_batch(void)
+{
+    fc_context *ctx;
+    size_t nb;
+    double x[600], y[600], k[40], y0[600];
+    for (int i = 0; i < 600; i++) x[i] = sin(0.1 * i) + 0.01 * i;
+    for (int i = 0; i < 40; i++) k[i] = 1.0 / (1.0 + i);
+    EXPECT(fc_context_create(NULL), FC_ERR_NULL);
+    EXPECT(fc_context_create(&ctx), FC_OK);
+    EXPECT(fc_context_nbytes(NULL, &nb), FC_ERR_NULL);
+    EXPECT(fc_context_nbytes(ctx, NULL), FC_ERR_NULL);
+    EXPECT(fc_context_nbytes(ctx, &nb), FC_OK);
+    for (int e = 0; e < 4; e++) {
+        EXPECT(fc_lagged_sum(ctx, x, 2, 300, k, 40, e, y), FC_OK);
+        EXPECT(fc_lagged_sum(NULL, x, 2, 300, k, 40, e, y), FC_OK);
+        for (int r = 0; r < 4; r++) {
+            EXPECT(fc_apply(ctx, r, 0.5, 0.01, x, 3, 200, e, y), FC_OK);
+            EXPECT(fc_apply(NULL, r, 0.5, 0.01, x, 1, 600, e, y), FC_OK);
+        }
+    }
+    EXPECT(fc_lagged_sum(ctx, x, 0, 300, k, 40, 0, y), FC_OK);
+    EXPECT(fc_lagged_sum(ctx, x, 2, 0, k, 40, 0, y), FC_OK);
+    EXPECT(fc_lagged_sum(ctx, NULL, 2, 300, k, 40, 0, y), FC_ERR_NULL);
+    EXPECT(fc_lagged_sum(ctx, x, 2, 300, NULL, 40, 0, y), FC_ERR_NULL);
+    EXPECT(fc_lagged_sum(ctx, x, 2, 300, k, 40, 0, NULL), FC_ERR_NULL);
+    EXPECT(fc_lagged_sum(ctx, x, 2, 300, k, 0, 0, y), FC_ERR_KERNEL);
+    EXPECT(fc_lagged_sum(ctx, x, 2, 300, k, 40, 9, y), FC_ERR_ARG);
+    EXPECT(fc_lagged_sum(ctx, x, 2, 300, k, 40, -1, y), FC_ERR_ARG);
+    EXPECT(fc_lagged_sum(ctx, x, 2, 300, k, 40, 0, x + 5), FC_ERR_ARG);
+    EXPECT(fc_lagged_sum(ctx, x, HUGE_SZ, HUGE_SZ, k, 40, 0, y), FC_ERR_SIZE);
+    EXPECT(fc_lagged_sum(ctx, x, (size_t)1 << 33, (size_t)1 << 33, k, 40, 0, y), FC_ERR_SIZE);
+    EXPECT(fc_apply(ctx, 0, 0.5, 0.01, x, HUGE_SZ / 2, 4, 0, y), FC_ERR_SIZE);
+    memcpy(y0, y, sizeof y);
+    {
+        double xb[10] = {1, 2, 3, NAN, 5, 6, 7, 8, 9, 10}, kb[3] = {1, INFINITY, 2};
+        EXPECT(fc_lagged_sum(ctx, xb, 1, 10, k, 3, 0, y), FC_ERR_NONFINITE);
+        EXPECT(fc_lagged_sum(ctx, x, 1, 10, kb, 3, 0, y), FC_ERR_KERNEL);
+        EXPECT(fc_apply(ctx, 0, 0.5, 0.01, xb, 1, 10, 0, y), FC_ERR_NONFINITE);
+        TRUE_(memcmp(y, y0, sizeof y) == 0); /* y untouched */
+    }
+    EXPECT(fc_apply(ctx, 9, 0.5, 0.01, x, 1, 10, 0, y), FC_ERR_RULE);
+    EXPECT(fc_apply(ctx, 0, NaN_, 0.01, x, 1, 10, 0, y), FC_ERR_ORDER);
+    EXPECT(fc_apply(ctx, 0, 0.5, NaN_, x, 1, 10, 0, y), FC_ERR_STEP);
+    EXPECT(fc_apply(ctx, 0, 0.5, 0.01, x, 1, 10, 5, y), FC_ERR_ARG);
+    EXPECT(fc_apply(ctx, 0, 0.5, 0.01, x, 1, 10, 0, x), FC_ERR_ARG);
+    EXPECT(fc_apply(ctx, 0, 0.5, 0.01, NULL, 1, 10, 0, y), FC_ERR_NULL);
+    {
+        double big[4] = {1e308, -1e308, 1e308, 1e308}, yb[4];
+        EXPECT(fc_apply(ctx, FC_RULE_RECTANGLE, 2.0, 1e10, big, 1, 4, 0, yb), FC_ERR_RANGE);
+    }
+    fc_context_free(ctx);
+    fc_context_free(NULL);
+}
+
+static void stream_life(fc_stream *s, size_t ch, int compressed)
+{
+    double x[64 * 4], y[64 * 4], y2[64 * 4], h[4], v;
+    uint64_t cnt, rem;
+    size_t sz, wr, nb, terms, chs;
+    int mode, pol, flag, rule;
+    unsigned char *buf;
+    fc_stream *l;
+    for (size_t i = 0; i < 64 * ch; i++) x[i] = cos(0.3 * (double)i);
+    EXPECT(fc_stream_push(s, x, y), FC_OK);
+    EXPECT(fc_stream_push_block(s, x, 64, y), FC_OK);
+    EXPECT(fc_stream_push_block(s, x, 0, y), FC_OK);
+    EXPECT(fc_stream_preview(s, x, y), FC_OK);
+    EXPECT(fc_stream_history(s, h), FC_OK);
+    EXPECT(fc_stream_count(s, &cnt), FC_OK);
+    TRUE_(cnt == 65);
+    EXPECT(fc_stream_channels(s, &chs), FC_OK);
+    TRUE_(chs == ch);
+    EXPECT(fc_stream_mode(s, &mode), FC_OK);
+    TRUE_(mode == (compressed ? FC_MODE_COMPRESSED : FC_MODE_EXACT));
+    EXPECT(fc_stream_nbytes(s, &nb), FC_OK);
+    EXPECT(fc_stream_terms(s, &terms), FC_OK);
+    EXPECT(fc_stream_reserve(s, 1000), FC_OK);
+    EXPECT(fc_stream_set_horizon_policy(s, FC_HORIZON_CONTINUE), FC_OK);
+    EXPECT(fc_stream_set_horizon_policy(s, 7), FC_ERR_ARG);
+    EXPECT(fc_stream_set_horizon_policy(s, FC_HORIZON_REFUSE), FC_OK);
+    EXPECT(fc_stream_horizon_policy(s, &pol), FC_OK);
+    EXPECT(fc_stream_past_horizon(s, &flag), FC_OK);
+    EXPECT(fc_stream_remaining(s, &rem), FC_OK);
+    EXPECT(fc_stream_rule(s, &rule), FC_OK);
+    EXPECT(fc_stream_order(s, &v), FC_OK);
+    EXPECT(fc_stream_step(s, &v), FC_OK);
+    EXPECT(fc_stream_tol(s, &v), FC_OK);
+    EXPECT(fc_stream_horizon(s, &v), FC_OK);
+    /* bad arguments: refused, nothing changes */
+    {
+        double bad[4] = {1, NAN, 1, 1};
+        EXPECT(fc_stream_push(s, bad, y), ch >= 2 ? FC_ERR_NONFINITE : FC_OK);
+        if (ch == 1) EXPECT(fc_stream_push(s, bad + 1, y), FC_ERR_NONFINITE);
+        EXPECT(fc_stream_count(s, &cnt), FC_OK);
+        TRUE_(cnt == (ch >= 2 ? 65u : 66u));
+    }
+    EXPECT(fc_stream_push(NULL, x, y), FC_ERR_NULL);
+    EXPECT(fc_stream_push(s, NULL, y), FC_ERR_NULL);
+    EXPECT(fc_stream_push(s, x, NULL), FC_ERR_NULL);
+    EXPECT(fc_stream_push_block(s, x, 64, x + 1), FC_ERR_ARG);
+    EXPECT(fc_stream_push_block(s, x, HUGE_SZ, y), FC_ERR_SIZE);
+    EXPECT(fc_stream_preview(s, NULL, y), FC_ERR_NULL);
+    EXPECT(fc_stream_history(s, NULL), FC_ERR_NULL);
+    /* a compressed stream never allocates after creation: any n is fine */
+    EXPECT(fc_stream_reserve(s, UINT64_MAX), compressed ? FC_OK : FC_ERR_SIZE);
+    EXPECT(fc_stream_count(NULL, &cnt), FC_ERR_NULL);
+    EXPECT(fc_stream_terms(s, NULL), FC_ERR_NULL);
+    EXPECT(fc_stream_order(NULL, &v), FC_ERR_NULL);
+    EXPECT(fc_stream_push1(s, 1.0, y), ch == 1 ? FC_OK : FC_ERR_ARG);
+    EXPECT(fc_stream_push1(s, NAN, y), ch == 1 ? FC_ERR_NONFINITE : FC_ERR_ARG);
+    /* save, load, resume bit for bit */
+    EXPECT(fc_stream_save_size(s, &sz), FC_OK);
+    buf = malloc(sz);
+    EXPECT(fc_stream_save(s, buf, sz - 1, &wr), FC_ERR_ARG);
+    EXPECT(fc_stream_save(s, NULL, sz, &wr), FC_ERR_NULL);
+    EXPECT(fc_stream_save(s, buf, sz, &wr), FC_OK);
+    EXPECT(fc_stream_load(NULL, sz, &l), FC_ERR_NULL);
+    EXPECT(fc_stream_load(buf, sz, NULL), FC_ERR_NULL);
+    EXPECT(fc_stream_load(buf, 0, &l), FC_ERR_FORMAT);
+    EXPECT(fc_stream_load(buf, wr, &l), FC_OK);
+    EXPECT(fc_stream_push_block(s, x, 64, y), FC_OK);
+    EXPECT(fc_stream_push_block(l, x, 64, y2), FC_OK);
+    TRUE_(memcmp(y, y2, 64 * ch * sizeof *y) == 0);
+    fc_stream_free(l);
+    blob_faults(compressed ? "compressed stream" : "exact stream", buf, wr, ld_stream, fr_stream);
+    free(buf);
+    EXPECT(fc_stream_reset(s), FC_OK);
+    EXPECT(fc_stream_count(s, &cnt), FC_OK);
+    TRUE_(cnt == 0);
+    EXPECT(fc_stream_reset(NULL), FC_ERR_NULL);
+}
+
+static void test_streams(void)
+{
+    fc_stream *s;
+    double k[5] = {1, 0.5, 0.25, 0.125, 0.0625};
+    for (int r = 0; r < 4; r++)
+        for (size_t ch = 1; ch <= 3; ch += 2) {
+            EXPECT(fc_stream_create(r, 0.4, 0.1, ch, FC_MODE_EXACT, 0, 0, &s), FC_OK);
+            stream_life(s, ch, 0);
+            fc_stream_free(s);
+            EXPECT(fc_stream_create(r, 0.4, 0.1, ch, FC_MODE_COMPRESSED, 1e-8, 1e5, &s), FC_OK);
+            stream_life(s, ch, 1);
+            fc_stream_free(s);
+        }
+    EXPECT(fc_stream_create_kernel(k, 5, 2, &s), FC_OK);
+    stream_life(s, 2, 0);
+    fc_stream_free(s);
+    fc_stream_free(NULL);
+    EXPECT(fc_stream_create(0, 0.5, 0.1, 1, 0, 0, 0, NULL), FC_ERR_NULL);
+    EXPECT(fc_stream_create(42, 0.5, 0.1, 1, 0, 0, 0, &s), FC_ERR_RULE);
+    EXPECT(fc_stream_create(0, NaN_, 0.1, 1, 0, 0, 0, &s), FC_ERR_ORDER);
+    EXPECT(fc_stream_create(0, 0.5, NaN_, 1, 0, 0, 0, &s), FC_ERR_STEP);
+    EXPECT(fc_stream_create(0, 0.5, 0.1, 0, 0, 0, 0, &s), FC_ERR_ARG);
+    EXPECT(fc_stream_create(0, 0.5, 0.1, HUGE_SZ, 0, 0, 0, &s), FC_ERR_SIZE);
+    EXPECT(fc_stream_create(0, 0.5, 0.1, 1, 5, 0, 0, &s), FC_ERR_MODE);
+    EXPECT(fc_stream_create(0, 0.5, 0.1, 1, 1, NaN_, 1e5, &s), FC_ERR_TOL);
+    EXPECT(fc_stream_create(0, 0.5, 0.1, 1, 1, 1e-8, NaN_, &s), FC_ERR_TOL);
+    EXPECT(fc_stream_create(0, 0.5, 0.1, 1, 1, 1.0, 1e5, &s), FC_ERR_TOL);
+    EXPECT(fc_stream_create(FC_RULE_GRUNWALD, 1.5, 0.1, 1, 1, 1e-8, 1e5, &s), FC_ERR_ORDER);
+    EXPECT(fc_stream_create_kernel(NULL, 5, 1, &s), FC_ERR_NULL);
+    EXPECT(fc_stream_create_kernel(k, 0, 1, &s), FC_ERR_KERNEL);
+    EXPECT(fc_stream_create_kernel(k, 5, 0, &s), FC_ERR_ARG);
+    EXPECT(fc_stream_create_kernel(k, HUGE_SZ, 1, &s), FC_ERR_SIZE);
+    EXPECT(fc_stream_create_kernel(k, 5, HUGE_SZ, &s), FC_ERR_SIZE);
+    /* horizon refusal */
+    EXPECT(fc_stream_create(0, 0.5, 0.1, 1, 1, 1e-8, 3, &s), FC_OK);
+    {
+        double x = 1, y;
+        for (int i = 0; i < 4; i++) EXPECT(fc_stream_push(s, &x, &y), FC_OK);
+        EXPECT(fc_stream_push(s, &x, &y), FC_ERR_HORIZON);
+        EXPECT(fc_stream_set_horizon_policy(s, FC_HORIZON_CONTINUE), FC_OK);
+        EXPECT(fc_stream_push(s, &x, &y), FC_OK);
+    }
+    fc_stream_free(s);
+}
+
+static int rhs(double t, const double *y, double *f, void *u) { (void)t; (void)u; f[0] = -y[0]; f[1] = -0.5 * y[1] + y[0]; return 0; }
+static int rhs_fail(double t, const double *y, double *f, void *u) { (void)y; (void)f; (void)u; return t > 0.05; }
+static int jac(double t, const double *y, double *J, void *u) { (void)t; (void)y; (void)u; J[0] = -1; J[1] = 0; J[2] = 1; J[3] = -0.5; return 0; }
+
+static void test_solver(void)
+{
+    double o[2] = {0.6, 0.9}, init[2] = {1, 0.5}, t, yv[2], yo[40], yo2[40];
+    uint64_t n, a, b;
+    size_t done, m, sz, wr, nb;
+    fc_solver *s, *l;
+    unsigned char *buf;
+    for (int meth = 0; meth < 4; meth++)
+        for (int mem = 0; mem < 2; mem++) {
+            int st = fc_solver_create(2, o, 0.01, 0.0, init, meth, mem, 1e-8, 1000, &s);
+            if (meth == FC_METHOD_IMPLICIT_RECTANGLE && mem == FC_MODE_COMPRESSED) {
+                TRUE_(st == FC_ERR_MODE);
+                continue;
+            }
+            EXPECT(st, FC_OK);
+            if (st) continue;
+            EXPECT(fc_solver_advance(s, 5, NULL, NULL, &done), FC_ERR_NORHS);
+            EXPECT(fc_solver_set_rhs(s, rhs, NULL), FC_OK);
+            EXPECT(fc_solver_set_jacobian(s, meth >= 2 ? jac : NULL, NULL), FC_OK);
+            EXPECT(fc_solver_set_newton(s, 1e-12, 20), FC_OK);
+            EXPECT(fc_solver_set_newton(s, NaN_, 20), FC_ERR_TOL);
+            EXPECT(fc_solver_set_newton(s, 1e-12, 0), FC_ERR_ARG);
+            EXPECT(fc_solver_set_corrections(s, 2), FC_OK);
+            EXPECT(fc_solver_set_corrections(s, 0), FC_ERR_ARG);
+            EXPECT(fc_solver_set_corrections(s, 101), FC_ERR_ARG);
+            EXPECT(fc_solver_advance(s, 20, NULL, yo, &done), FC_OK);
+            EXPECT(fc_solver_advance(s, 0, NULL, NULL, &done), FC_OK);
+            EXPECT(fc_solver_advance(s, HUGE_SZ, NULL, NULL, &done), FC_ERR_SIZE);
+            EXPECT(fc_solver_advance(s, 5, NULL, NULL, NULL), FC_ERR_NULL);
+            EXPECT(fc_solver_time(s, &t), FC_OK);
+            EXPECT(fc_solver_state(s, yv), FC_OK);
+            EXPECT(fc_solver_steps(s, &n), FC_OK);
+            TRUE_(n == 20);
+            EXPECT(fc_solver_dim(s, &m), FC_OK);
+            EXPECT(fc_solver_counts(s, &a, &b), FC_OK);
+            EXPECT(fc_solver_failure(s, &n, &t), FC_OK);
+            EXPECT(fc_solver_nbytes(s, &nb), FC_OK);
+            EXPECT(fc_solver_save_size(s, &sz), FC_OK);
+            buf = malloc(sz);
+            EXPECT(fc_solver_save(s, buf, sz - 1, &wr), FC_ERR_ARG);
+            EXPECT(fc_solver_save(s, buf, sz, &wr), FC_OK);
+            EXPECT(fc_solver_load(buf, wr, &l), FC_OK);
+            EXPECT(fc_solver_set_rhs(l, rhs, NULL), FC_OK);
+            if (meth >= 2) EXPECT(fc_solver_set_jacobian(l, jac, NULL), FC_OK);
+            if (meth == FC_METHOD_PC) EXPECT(fc_solver_set_corrections(l, 2), FC_OK);
+            EXPECT(fc_solver_set_newton(l, 1e-12, 20), FC_OK);
+            EXPECT(fc_solver_advance(s, 20, NULL, yo, &done), FC_OK);
+            EXPECT(fc_solver_advance(l, 20, NULL, yo2, &done), FC_OK);
+            TRUE_(memcmp(yo, yo2, sizeof yo) == 0);
+            fc_solver_free(l);
+            blob_faults("solver", buf, wr, ld_solver, fr_solver);
+            free(buf);
+            if (mem || meth == FC_METHOD_IMPLICIT_RECTANGLE) {
+                /* horizon 1000 steps: refused before any work */
+                EXPECT(fc_solver_advance(s, 2000, NULL, NULL, &done), FC_ERR_HORIZON);
+                TRUE_(done == 0);
+            }
+            EXPECT(fc_solver_set_rhs(s, rhs_fail, NULL), FC_OK);
+            EXPECT(fc_solver_advance(s, 20, NULL, NULL, &done), FC_ERR_CALLBACK);
+            fc_solver_free(s);
+        }
+    fc_solver_free(NULL);
+    EXPECT(fc_solver_create(2, o, 0.01, 0, init, 0, 0, 0, 0, NULL), FC_ERR_NULL);
+    EXPECT(fc_solver_create(2, NULL, 0.01, 0, init, 0, 0, 0, 0, &s), FC_ERR_NULL);
+    EXPECT(fc_solver_create(0, o, 0.01, 0, init, 0, 0, 0, 0, &s), FC_ERR_SIZE);
+    {
+        double bo[2] = {NAN, 0.5};
+        EXPECT(fc_solver_create(2, bo, 0.01, 0, init, 0, 0, 0, 0, &s), FC_ERR_ORDER);
+    }
+    EXPECT(fc_solver_create(2, o, NaN_, 0, init, 0, 0, 0, 0, &s), FC_ERR_STEP);
+    EXPECT(fc_solver_create(2, o, 0.01, NaN_, init, 0, 0, 0, 0, &s), FC_ERR_ARG);
+    {
+        double bi[2] = {1, INFINITY};
+        EXPECT(fc_solver_create(2, o, 0.01, 0, bi, 0, 0, 0, 0, &s), FC_ERR_NONFINITE);
+    }
+    EXPECT(fc_solver_create(2, o, 0.01, 0, init, 17, 0, 0, 0, &s), FC_ERR_RULE);
+    EXPECT(fc_solver_create(2, o, 0.01, 0, init, FC_METHOD_IMPLICIT_RECTANGLE, 0, 0, 0, &s), FC_ERR_TOL);
+    EXPECT(fc_solver_create(2, o, 0.01, 0, init, 0, 9, 0, 0, &s), FC_ERR_MODE);
+    EXPECT(fc_solver_create(2, o, 0.01, 0, init, 0, 1, NaN_, 100, &s), FC_ERR_TOL);
+    EXPECT(fc_solver_set_rhs(NULL, rhs, NULL), FC_ERR_NULL);
+    EXPECT(fc_solver_time(NULL, &t), FC_ERR_NULL);
+    EXPECT(fc_solver_load(NULL, 10, &s), FC_ERR_NULL);
+}
+
+static void test_controller(void)
+{
+    fc_controller_params p, q;
+    fc_controller *c, *l;
+    double u, t[6], r[50], ym[50], uu[50], uu2[50];
+    int st;
+    uint64_t cnt;
+    size_t sz, wr, nb, done;
+    unsigned char *buf;
+    for (int i = 0; i < 50; i++) { r[i] = 1.0; ym[i] = 0.02 * i; }
+    EXPECT(fc_controller_default_params(NULL), FC_ERR_NULL);
+    for (int mem = 0; mem < 2; mem++) {
+        EXPECT(fc_controller_default_params(&p), FC_OK);
+        p.ki = 0.4; p.kd = 0.1; p.memory = mem; p.out_min = -1; p.out_max = 1;
+        p.filter_time = 0.05; p.rate_limit = 100;
+        EXPECT(fc_controller_create(&p, &c), FC_OK);
+        EXPECT(fc_controller_update(c, 1.0, 0.0, &u), FC_OK);
+        EXPECT(fc_controller_update(c, NAN, 0.0, &u), FC_ERR_NONFINITE);
+        EXPECT(fc_controller_update(c, 1.0, 0.0, NULL), FC_ERR_NULL);
+        EXPECT(fc_controller_update_block(c, r, ym, 50, uu, &done), FC_OK);
+        EXPECT(fc_controller_update_block(c, r, ym, 50, (double *)r, &done), FC_ERR_ARG);
+        EXPECT(fc_controller_update_block(c, r, ym, HUGE_SZ, uu, &done), FC_ERR_SIZE);
+        EXPECT(fc_controller_set_manual(c, NAN), FC_ERR_NONFINITE);
+        EXPECT(fc_controller_set_manual(c, 0.3), FC_OK);
+        EXPECT(fc_controller_update(c, 1.0, 0.0, &u), FC_OK);
+        EXPECT(fc_controller_set_auto(c), FC_OK);
+        EXPECT(fc_controller_get_params(c, &q), FC_OK);
+        EXPECT(fc_controller_status(c, &st), FC_OK);
+        EXPECT(fc_controller_terms(c, t), FC_OK);
+        EXPECT(fc_controller_count(c, &cnt), FC_OK);
+        TRUE_(cnt == 52);
+        EXPECT(fc_controller_nbytes(c, &nb), FC_OK);
+        EXPECT(fc_controller_save_size(c, &sz), FC_OK);
+        buf = malloc(sz);
+        EXPECT(fc_controller_save(c, buf, sz - 1, &wr), FC_ERR_ARG);
+        EXPECT(fc_controller_save(c, buf, sz, &wr), FC_OK);
+        EXPECT(fc_controller_load(buf, wr, &l), FC_OK);
+        EXPECT(fc_controller_update_block(c, r, ym, 50, uu, NULL), FC_OK);
+        EXPECT(fc_controller_update_block(l, r, ym, 50, uu2, NULL), FC_OK);
+        TRUE_(memcmp(uu, uu2, sizeof uu) == 0);
+        fc_controller_free(l);
+        blob_faults("controller", buf, wr, ld_ctrl, fr_ctrl);
+        free(buf);
+        EXPECT(fc_controller_reset(c), FC_OK);
+        fc_controller_free(c);
+    }
+    fc_controller_free(NULL);
+    fc_controller_default_params(&p);
+    EXPECT(fc_controller_create(NULL, &c), FC_ERR_NULL);
+    EXPECT(fc_controller_create(&p, NULL), FC_ERR_NULL);
+    q = p; q.kp = NAN; EXPECT(fc_controller_create(&q, &c), FC_ERR_ARG);
+    q = p; q.out_min = 2; q.out_max = 1; EXPECT(fc_controller_create(&q, &c), FC_ERR_ARG);
+    q = p; q.anti_windup = 9; EXPECT(fc_controller_create(&q, &c), FC_ERR_ARG);
+    q = p; q.ki = 1; q.integral_rule = FC_RULE_GRUNWALD; EXPECT(fc_controller_create(&q, &c), FC_ERR_RULE);
+    q = p; q.ki = 1; q.integral_order = NAN; EXPECT(fc_controller_create(&q, &c), FC_ERR_ORDER);
+    q = p; q.step = NAN; EXPECT(fc_controller_create(&q, &c), FC_ERR_STEP);
+    q = p; q.memory = 5; EXPECT(fc_controller_create(&q, &c), FC_ERR_MODE);
+    q = p; q.ki = 1; q.tol = NAN; EXPECT(fc_controller_create(&q, &c), FC_ERR_TOL);
+    EXPECT(fc_controller_update(NULL, 1, 1, &u), FC_ERR_NULL);
+    EXPECT(fc_controller_load(NULL, 4, &c), FC_ERR_NULL);
+}
+
+static void test_fft(void)
+{
+    fc_fft_plan *p;
+    double x[64], X[66], z[64];
+    for (int i = 0; i < 64; i++) x[i] = sin(0.7 * i);
+    EXPECT(fc_rfft_create(64, NULL), FC_ERR_NULL);
+    EXPECT(fc_rfft_create(0, &p), FC_ERR_SIZE);
+    EXPECT(fc_rfft_create(1, &p), FC_ERR_SIZE);
+    EXPECT(fc_rfft_create(96, &p), FC_ERR_SIZE);
+    EXPECT(fc_rfft_create((size_t)1 << 31, &p), FC_ERR_SIZE);
+    EXPECT(fc_rfft_create(HUGE_SZ, &p), FC_ERR_SIZE);
+    for (size_t n = 2; n <= 64; n *= 2) {
+        EXPECT(fc_rfft_create(n, &p), FC_OK);
+        EXPECT(fc_rfft_forward(p, x, X), FC_OK);
+        EXPECT(fc_rfft_inverse(p, X, z), FC_OK);
+        for (size_t i = 0; i < n; i++) TRUE_(fabs(z[i] - x[i]) < 1e-13);
+        EXPECT(fc_rfft_forward(p, x, x + 1), FC_ERR_ARG);
+        EXPECT(fc_rfft_inverse(p, X, X + 1), FC_ERR_ARG);
+        EXPECT(fc_rfft_forward(NULL, x, X), FC_ERR_NULL);
+        EXPECT(fc_rfft_forward(p, NULL, X), FC_ERR_NULL);
+        EXPECT(fc_rfft_inverse(p, X, NULL), FC_ERR_NULL);
+        fc_rfft_free(p);
+    }
+    fc_rfft_free(NULL);
+}
+
+int main(void)
+{
+    test_info();
+    test_weights();
+    test_batch();
+    test_streams();
+    test_solver();
+    test_controller();
+    test_fft();
+    printf("api_driver: %d checks, %d failed\n", checks, fails);
+    return fails ? 1 : 0;
+}

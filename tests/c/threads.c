@@ -1,0 +1,115 @@
+/*
+ * threads.c -- many objects in many threads give the same results, bit for
+ * bit, as the same work done serially (fracconv.h: one object per thread;
+ * objects share no mutable state). Each task: a batch fc_apply, an exact
+ * and a compressed stream with a save/load in the middle, a controller,
+ * a solver and an FFT plan, hashed (FNV-1a 64). Run serially first, then
+ * by NTHREADS threads at once, several tasks each; built with
+ * -fsanitize=thread by `make tsan`, plain by `make check-c-tests`.
+ * Test signals are invented (fixed-seed xorshift).
+ */
+#include <pthread.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <stdint.h>
+#include <math.h>
+#include "fracconv.h"
+
+#define NTASKS 16
+#define NTHREADS 4
+
+static uint64_t fnv(const void *p, size_t n, uint64_t h)
+{
+    const unsigned char *c = p;
+    for (size_t i = 0; i < n; i++) { h ^= c[i]; h *= 1099511628211ULL; }
+    return h;
+}
+static int rhs(double t, const double *y, double *f, void *u) { (void)u; f[0] = -y[0] + sin(t); return 0; }
+
+static uint64_t task(int id)
+{
+    uint64_t h = 1469598103934665603ULL, st = 0x9E3779B97F4A7C15ULL * (uint64_t)(id + 1);
+    const int rule = id % 4;
+    enum { N = 3000 };
+    double *x = malloc(N * sizeof *x), *y = malloc(N * sizeof *y);
+    size_t sz, wr, done;
+    unsigned char *buf;
+    if (!x || !y) return 0;
+    for (int i = 0; i < N; i++) {
+        st ^= st << 13; st ^= st >> 7; st ^= st << 17;
+        x[i] = (double)(st >> 11) / 9007199254740992.0 - 0.5;
+    }
+    if (fc_apply(NULL, rule, 0.45, 0.01, x, 1, N, FC_ENGINE_AUTO, y) != FC_OK) return 0;
+    h = fnv(y, N * sizeof *y, h);
+    for (int mode = 0; mode < 2; mode++) {
+        fc_stream *s, *l;
+        if (fc_stream_create(rule, 0.45, 0.01, 1, mode, 1e-9, 1e6, &s) != FC_OK) return 0;
+        if (fc_stream_push_block(s, x, N / 2, y) != FC_OK) return 0;
+        if (fc_stream_save_size(s, &sz) != FC_OK || !(buf = malloc(sz))) return 0;
+        if (fc_stream_save(s, buf, sz, &wr) != FC_OK) return 0;
+        fc_stream_free(s);
+        if (fc_stream_load(buf, wr, &l) != FC_OK) return 0;
+        free(buf);
+        if (fc_stream_push_block(l, x + N / 2, N - N / 2, y + N / 2) != FC_OK) return 0;
+        fc_stream_free(l);
+        h = fnv(y, N * sizeof *y, h);
+    }
+    {
+        fc_controller_params p;
+        fc_controller *c;
+        double *r = calloc(N, sizeof *r);
+        fc_controller_default_params(&p);
+        p.ki = 0.3; p.kd = 0.1; p.memory = id % 2;
+        if (!r || fc_controller_create(&p, &c) != FC_OK) return 0;
+        if (fc_controller_update_block(c, r, x, N, y, NULL) != FC_OK) return 0;
+        fc_controller_free(c);
+        free(r);
+        h = fnv(y, N * sizeof *y, h);
+    }
+    {
+        double o = 0.7, y0 = 1.0;
+        fc_solver *s;
+        if (fc_solver_create(1, &o, 0.01, 0.0, &y0, id % 3, id % 2, 1e-9, 1e4, &s) != FC_OK) return 0;
+        fc_solver_set_rhs(s, rhs, NULL);
+        if (fc_solver_advance(s, 500, NULL, y, &done) != FC_OK) return 0;
+        fc_solver_free(s);
+        h = fnv(y, 500 * sizeof *y, h);
+    }
+    {
+        fc_fft_plan *p;
+        if (fc_rfft_create(1024, &p) != FC_OK) return 0;
+        fc_rfft_forward(p, x, y);
+        fc_rfft_free(p);
+        h = fnv(y, 1026 * sizeof *y, h);
+    }
+    free(x);
+    free(y);
+    return h;
+}
+
+static uint64_t par[NTASKS];
+static void *worker(void *arg)
+{
+    int t = (int)(intptr_t)arg;
+    for (int i = t; i < NTASKS; i += NTHREADS) par[i] = task(i);
+    return NULL;
+}
+
+int main(void)
+{
+    uint64_t ser[NTASKS];
+    pthread_t th[NTHREADS];
+    int bad = 0;
+    for (int i = 0; i < NTASKS; i++) {
+        ser[i] = task(i);
+        if (ser[i] == 0) { printf("task %d failed (serial)\n", i); bad = 1; }
+    }
+    for (int t = 0; t < NTHREADS; t++)
+        if (pthread_create(&th[t], NULL, worker, (void *)(intptr_t)t) != 0) { printf("pthread_create failed\n"); return 1; }
+    for (int t = 0; t < NTHREADS; t++) pthread_join(th[t], NULL);
+    for (int i = 0; i < NTASKS; i++)
+        if (par[i] != ser[i]) { printf("task %d: threaded %016llx != serial %016llx\n", i, (unsigned long long)par[i], (unsigned long long)ser[i]); bad = 1; }
+    printf("threads: %d tasks on %d threads %s\n", NTASKS, NTHREADS, bad ? "DIFFER" : "match the serial run");
+    return bad;
+}
