@@ -49,11 +49,11 @@ GRID_RULES = ("rectangle", "trapezoid", "l1")
 # Gauss-Legendre nodes and weights on [0, 1] for the integrals
 # J(s) = int_0^1 (1 - s tau)^(a-1) w(tau) d tau at s < 1/2: the integrand is
 # analytic on [0, 1] with its only singularity at tau = 1/s >= 2, so the
-# rule converges geometrically (Gautschi 2004; Trefethen, Approximation
-# Theory and Approximation Practice, 2013, ch. 19): 8 nodes for s <= 1/16
-# and 20 for 1/16 < s < 1/2 leave errors far below 2**-53 (checked against
-# mpmath in tests/test_grid.py).
-_SPLIT_S = 1.0 / 16.0
+# rule converges geometrically, like rho^(-2m) for m nodes with
+# rho = x + sqrt(x^2 - 1), x = 2/s - 1 (Gautschi 2004; Trefethen,
+# Approximation Theory and Approximation Practice, 2013, ch. 19): 4 nodes
+# for s < 1/256, 8 for s < 1/16 and 20 for s < 1/2 leave errors far below
+# 2**-53 (checked against mpmath in tests/test_grid.py).
 
 
 def _gauss(n: int) -> Tuple[FloatArray, FloatArray]:
@@ -61,8 +61,8 @@ def _gauss(n: int) -> Tuple[FloatArray, FloatArray]:
     return 0.5 * (x + 1.0), 0.5 * w
 
 
-_G8 = _gauss(8)
-_G20 = _gauss(20)
+_BUCKETS = ((-1.0, 1.0 / 256.0, _gauss(4)), (1.0 / 256.0, 1.0 / 16.0, _gauss(8)),
+            (1.0 / 16.0, 0.5, _gauss(20)))
 
 
 def _refuse_grunwald(rule: object) -> None:
@@ -146,8 +146,8 @@ def _trap_parts(a: float, d: FloatArray, e: FloatArray,
         scale = np.power(db, a) / (sb * a * (a + 1.0))
         left[big] = scale * lt
         right[big] = scale * rt
-    for lo, hi, (x, w) in ((0.0, _SPLIT_S, _G8), (_SPLIT_S, 0.5, _G20)):
-        sel = (s >= lo) & (s < hi) if lo > 0.0 else (s < hi)
+    for lo, hi, (x, w) in _BUCKETS:
+        sel = (s >= lo) & (s < hi)
         if not np.any(sel):
             continue
         ss = s[sel]
@@ -325,8 +325,11 @@ def apply_on_grid(rule: str, a: float, block: FloatArray, t: FloatArray) -> Floa
     src = np.diff(block, axis=1) if rule == "l1" else block
     n0 = 1
     while n0 < N:
-        width = n0 + 1
-        rows = max(1, min(N - n0, _BLOCK // (width * max(1, nsig))))
+        # rows * (n0 + rows) weights (and nsig times that many products)
+        # at most _BLOCK, at least one row
+        budget = _BLOCK / max(1, nsig)
+        rows = int((math.sqrt(n0 * n0 + 4.0 * budget) - n0) / 2.0)
+        rows = max(1, min(N - n0, rows))
         n1 = n0 + rows                                # rows n0 .. n1-1
         K = n1 - 1                                    # intervals 0 .. K-1
         tn = t[n0:n1, None]
