@@ -287,7 +287,8 @@ def grid_weights(rule: str, order: float, t: ArrayLike, n: int | None = None) ->
     d = tn - tt[:idx]
     e = tn - tt[1:idx + 1]
     h = np.diff(tt[:idx + 1])
-    first, second = _row_parts(name, a, d, e, h)
+    with np.errstate(over="ignore", invalid="ignore"):
+        first, second = _row_parts(name, a, d, e, h)
     if name == "l1":
         out = first
     elif name == "rectangle":
