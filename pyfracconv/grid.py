@@ -202,8 +202,8 @@ def grid_weights(rule: str, order: float, t: ArrayLike, n: int | None = None) ->
     numpy.ndarray
         ``rectangle``: n+1 weights w_k of x_0 .. x_n,
         w_k = ((t_n - t_k)^a - (t_n - t_{k+1})^a) / Gamma(a+1) for k < n and
-        w_n = 0 (Diethelm, Ford and Freed 2002, eq. for b_{j,n+1}, with the
-        grid's own end points). ``trapezoid``: n+1 weights of x_0 .. x_n,
+        w_n = 0 (on a uniform grid the weights b_{j,n+1} of Diethelm, Ford and
+        Freed 2002). ``trapezoid``: n+1 weights of x_0 .. x_n,
         the integral of (t_n - s)^(a-1)/Gamma(a) times the hat function of
         node k, w_k = L_k + R_{k-1} (L_n = R_{-1} = 0), with, for interval k
         (d = t_n - t_k, e = t_n - t_{k+1}, h = t_{k+1} - t_k),
@@ -215,7 +215,7 @@ def grid_weights(rule: str, order: float, t: ArrayLike, n: int | None = None) ->
         increments x_{k+1} - x_k, k < n,
         c_k = ((t_n - t_k)^(1-a) - (t_n - t_{k+1})^(1-a)) / (h_k Gamma(2-a))
         (the L1 scheme on a non-uniform mesh; Stynes, O'Riordan and Gracia
-        2017, section 3).
+        2017).
 
     Raises
     ------

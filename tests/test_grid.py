@@ -5,8 +5,8 @@ derivative with ``t=``), checked against outside references:
   significant digits (working precision raised to absorb the cancellation
   of the closed forms), on grids with very close and very far times;
 - closed forms I^a t^b = Gamma(b+1)/Gamma(b+1+a) t^(b+a) (Podlubny 1999,
-  section 2.3; Oldham and Spanier 1974) and the Caputo derivative
-  D^a t^b = Gamma(b+1)/Gamma(b+1-a) t^(b-a) (Diethelm 2010, appendix /
+  chapter 2; Oldham and Spanier 1974) and the Caputo derivative
+  D^a t^b = Gamma(b+1)/Gamma(b+1-a) t^(b-a) (Diethelm 2010;
   Podlubny 1999) on random, jittered and graded grids, with the published
   orders of convergence;
 - the uniform grid given as times against the uniform engines (``step=``);
@@ -67,7 +67,7 @@ def rel_err(got, want):
 
 
 def I_power(t, a, b):
-    # Podlubny 1999, (2.39); Oldham and Spanier 1974
+    # Podlubny 1999, chapter 2; Oldham and Spanier 1974
     return math.gamma(b + 1) / math.gamma(b + 1 + a) * t ** (b + a)
 
 
