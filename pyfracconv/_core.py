@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import os
 import threading
-from typing import Any
+from typing import Any, Optional
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -42,7 +42,7 @@ from ._checks import (
     refuse_masked as refuse_masked,
     show as show,
 )
-from ._errors import ArgumentError, RangeError, raise_for_status
+from ._errors import ArgumentError, InputTypeError, RangeError, raise_for_status
 from ._fracconv import ffi, lib
 
 __all__ = [
@@ -308,8 +308,51 @@ def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
     return _unrows(out, moved_shape, ax)
 
 
+def _apply_grid(kind: str, samples: object, order: object, t: object, rule: object,
+                axis: object, engine: object) -> FloatArray:
+    """integral / derivative with sample times ``t``: the direct engine of
+    :mod:`pyfracconv.grid` (no switch to the uniform engines)."""
+    from . import grid
+
+    allowed = INTEGRAL_RULES if kind == "integral" else DERIVATIVE_RULES
+    grid._refuse_grunwald(rule)
+    check_rule(rule, tuple(r for r in allowed if r in grid.GRID_RULES))
+    a = check_order(order, rule)
+    check_engine(engine)
+    if engine not in ("auto", "direct"):
+        raise ArgumentError(
+            f"engine={show(engine)}: with t= the engines are 'auto' and 'direct' "
+            "(the direct O(N^2) sum); 'blocked' and 'fft' need a uniform grid "
+            "given as step="
+        )
+    arr, ax, moved_shape, block = _rows("samples", samples, axis)
+    tt = grid.check_times(t, block.shape[1])
+    if not np.all(np.isfinite(block)):
+        raise_nonfinite("samples", arr)
+    with np.errstate(over="ignore", invalid="ignore"):
+        out = grid.apply_on_grid(str(rule), a, block, tt)
+    if not np.all(np.isfinite(out)):
+        raise RangeError(
+            f"samples (or t, order={show(order)}): the result is beyond the "
+            f"double range (largest |sample| {_largest(block)})"
+        )
+    return _unrows(out, moved_shape, ax)
+
+
 def _apply(kind: str, samples: object, order: object, step: object, rule: object,
-           axis: object, engine: object) -> FloatArray:
+           axis: object, engine: object, t: object = None) -> FloatArray:
+    if step is not None and t is not None:
+        raise ArgumentError(
+            f"step={show(step)} and t: give exactly one of step (a uniform grid "
+            "t_k = k*step) or t (the sample times), not both"
+        )
+    if step is None and t is None:
+        raise InputTypeError(
+            "step=None and t=None: give exactly one of step (a uniform grid "
+            "t_k = k*step) or t (the sample times)"
+        )
+    if t is not None:
+        return _apply_grid(kind, samples, order, t, rule, axis, engine)
     allowed = INTEGRAL_RULES if kind == "integral" else DERIVATIVE_RULES
     code = check_rule(rule, allowed)
     a = check_order(order, rule)
@@ -330,27 +373,36 @@ def _apply(kind: str, samples: object, order: object, step: object, rule: object
     return _unrows(out, moved_shape, ax)
 
 
-def integral(samples: ArrayLike, order: float, step: float, rule: str = "rectangle",
-             axis: int = -1, engine: str = "auto") -> FloatArray:
+def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
+             rule: str = "rectangle", axis: int = -1, engine: str = "auto", *,
+             t: Optional[ArrayLike] = None) -> FloatArray:
     """Riemann-Liouville fractional integral of order ``order`` of a sampled
     signal, from t = 0.
 
     Parameters
     ----------
     samples : array_like
-        f(t_k) at t_k = k*step along ``axis``. Masked arrays are refused
-        (InputTypeError), see :func:`lagged_sum`.
+        f(t_k) at t_k = k*step (or at the times ``t``) along ``axis``.
+        Masked arrays are refused (InputTypeError), see :func:`lagged_sum`.
     order : float
         0 < order <= 10.
-    step : float
-        Grid step h > 0.
+    step : float, optional
+        Grid step h > 0 of a uniform grid. Exactly one of ``step`` and ``t``
+        is given; ``step`` is the uniform path (the fast engines).
     rule : {'rectangle', 'trapezoid'}, optional
         Product rectangle rule (order 1) or product trapezoidal rule (order 2
         for smooth f).
     axis : int, optional
         Axis of time.
     engine : {'auto', 'direct', 'blocked', 'fft'}, optional
-        See :func:`lagged_sum`.
+        See :func:`lagged_sum`. With ``t``: ``'auto'`` or ``'direct'``.
+    t : array_like, 1-D, optional (keyword)
+        Sample times t_0 < t_1 < ..., finite, strictly increasing, one per
+        sample along ``axis``; the integral runs from t_0. The weights are
+        those of :func:`pyfracconv.grid.grid_weights`, applied by a direct
+        O(N^2) engine (blocks of rows, bounded memory; each value one
+        pairwise sum, componentwise accurate). A uniform ``t`` is not
+        detected: give a uniform grid as ``step`` for the fast engines.
 
     Returns
     -------
@@ -361,11 +413,15 @@ def integral(samples: ArrayLike, order: float, step: float, rule: str = "rectang
     ------
     ArgumentError
         Unknown or derivative rule, order or step out of range, samples a
-        scalar, axis out of range, unknown engine.
+        scalar, axis out of range, unknown engine; both ``step`` and ``t``;
+        ``t`` not 1-D, of another length than the samples, not finite or
+        not strictly increasing (the message names the first offending
+        index and its values); ``engine`` other than auto/direct with ``t``.
     SampleError
         A sample is NaN or infinite (the message names the first one).
     InputTypeError
-        Non-numeric or masked samples, order or step not a real number.
+        Non-numeric or masked samples or t, order or step not a real
+        number; neither ``step`` nor ``t`` given.
     RangeError
         A result beyond the range of double precision.
 
@@ -409,30 +465,50 @@ def integral(samples: ArrayLike, order: float, step: float, rule: str = "rectang
     array([[0., 0.],
            [1., 1.],
            [2., 2.]])
+
+    Time-stamped samples: ``t`` gives the times. The product trapezoidal
+    rule is exact on linear f on any grid, I^a t = t^(1+a) / Gamma(2+a)
+    (Podlubny 1999), at a = 0.5 equal to 4 t^1.5 / (3 sqrt(pi)):
+
+    >>> times = np.array([0.0, 0.1, 0.15, 0.4, 0.9, 1.0])
+    >>> y = pyfracconv.integral(times, 0.5, t=times, rule="trapezoid")
+    >>> bool(np.allclose(y, 4 * times**1.5 / (3 * np.sqrt(np.pi)), rtol=1e-13))
+    True
     """
-    return _apply("integral", samples, order, step, rule, axis, engine)
+    return _apply("integral", samples, order, step, rule, axis, engine, t)
 
 
-def derivative(samples: ArrayLike, order: float, step: float, rule: str = "grunwald",
-               axis: int = -1, engine: str = "auto") -> FloatArray:
+def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
+               rule: str = "grunwald", axis: int = -1, engine: str = "auto", *,
+               t: Optional[ArrayLike] = None) -> FloatArray:
     """Fractional derivative of a sampled signal, from t = 0.
 
     Parameters
     ----------
     samples : array_like
-        f(t_k) at t_k = k*step along ``axis``. Masked arrays are refused
-        (InputTypeError), see :func:`lagged_sum`.
+        f(t_k) at t_k = k*step (or at the times ``t``) along ``axis``.
+        Masked arrays are refused (InputTypeError), see :func:`lagged_sum`.
     order : float
         ``grunwald``: Riemann-Liouville derivative, 0 < order <= 10;
         ``l1``: Caputo derivative, 0 < order < 1.
-    step : float
-        Grid step h > 0.
+    step : float, optional
+        Grid step h > 0 of a uniform grid. Exactly one of ``step`` and ``t``
+        is given; ``step`` is the uniform path (the fast engines).
     rule : {'grunwald', 'l1'}, optional
-        Grunwald-Letnikov (order 1) or the L1 scheme (order 2 - a).
+        Grunwald-Letnikov (order 1) or the L1 scheme (order 2 - a). With
+        ``t`` only ``'l1'`` (Grunwald-Letnikov has no standard non-uniform
+        form and is refused).
     axis : int, optional
         Axis of time (default last).
     engine : {'auto', 'direct', 'blocked', 'fft'}, optional
-        See :func:`lagged_sum`.
+        See :func:`lagged_sum`. With ``t``: ``'auto'`` or ``'direct'``.
+    t : array_like, 1-D, optional (keyword)
+        Sample times t_0 < t_1 < ..., finite, strictly increasing, one per
+        sample along ``axis``; the derivative is taken from t_0. The L1
+        weights are those of :func:`pyfracconv.grid.grid_weights`, applied
+        to the sample increments by a direct O(N^2) engine (componentwise
+        accurate). A uniform ``t`` is not detected: give a uniform grid as
+        ``step`` for the fast engines.
 
     Returns
     -------
@@ -444,11 +520,15 @@ def derivative(samples: ArrayLike, order: float, step: float, rule: str = "grunw
     ArgumentError
         Unknown or integral rule, order or step out of range (``'l1'``
         needs order < 1), samples a scalar, axis out of range, unknown
-        engine.
+        engine; both ``step`` and ``t``; ``rule='grunwald'`` with ``t``;
+        ``t`` not 1-D, of another length than the samples, not finite or
+        not strictly increasing (the message names the first offending
+        index and its values); ``engine`` other than auto/direct with ``t``.
     SampleError
         A sample is NaN or infinite (the message names the first one).
     InputTypeError
-        Non-numeric or masked samples, order or step not a real number.
+        Non-numeric or masked samples or t, order or step not a real
+        number; neither ``step`` nor ``t`` given.
     RangeError
         A result beyond the range of double precision.
 
@@ -476,8 +556,16 @@ def derivative(samples: ArrayLike, order: float, step: float, rule: str = "grunw
     >>> y = pyfracconv.derivative(t, 0.5, 0.25, rule="l1")
     >>> bool(np.allclose(y, 2 * np.sqrt(t / np.pi), rtol=1e-13))
     True
+
+    The same on time-stamped samples (the L1 scheme is exact on linear f on
+    any grid, since the interpolant is f itself):
+
+    >>> times = np.array([0.0, 0.01, 0.3, 0.35, 1.0])
+    >>> y = pyfracconv.derivative(times, 0.5, t=times, rule="l1")
+    >>> bool(np.allclose(y, 2 * np.sqrt(times / np.pi), rtol=1e-13))
+    True
     """
-    return _apply("derivative", samples, order, step, rule, axis, engine)
+    return _apply("derivative", samples, order, step, rule, axis, engine, t)
 
 
 def get_include() -> str:
