@@ -215,7 +215,7 @@ typedef struct {
     double cband[FC__CS_BAND];      /* c_0 .. c_{B-1} (cum: f_0 .. f_{B-1}) */
     double ctab[FC__CS_BAND];       /* corr_n, n < B (0 without x_0 term) */
     double corrmax;                 /* trapezoid, a >= 1: max |corr_n| over
-                                       B <= n <= horizon (else 0) */
+                                       B <= n < 2^53 (else 0) */
 } fc__soe;
 int fc__soe_build(int rule, double order, double step, double tol,
                   double horizon, fc__soe *out);

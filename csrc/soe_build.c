@@ -98,8 +98,30 @@
  * free series in long double). Since f >= 0 and |X_i| <= sum_{k<=i} |x_k|,
  * sum_m f_m |X_{n-m}| <= sum_k c_{n-k} |x_k|: the guarantee holds as stated,
  * with the rounding of X (below 2 eps sum_{k<=i} |x_k| per value) inside the
- * eps term. For a = 1, f_m = 0 for m >= 2: no terms. The trapezoid rule is
- * not offered for a >= 1 (FC_ERR_ORDER).
+ * eps term. For a = 1, f_m = 0 for m >= 2: no terms.
+ *
+ * CONSTRUCTION, 1 <= a < 2, trapezoid rule (flag cum with the x_0 column,
+ * "tcum"). Likewise a_m = sum_{j<=m} e_j with e_0 = a_0 = 1 and
+ * e_j = a_j - a_{j-1}, so y_n = sum_m f_m X_{n-m} + corr_n x_0 with
+ * f_m = h^a/Gamma(a+2) e_m (soe_tcum): f_1 = h^a/Gamma(a+2) (2^(a+1) - 3)
+ * and for m >= 2 e_m = (m+1)^(a+1) - 3 m^(a+1) + 3 (m-1)^(a+1) - (m-2)^(a+1),
+ * the third difference of t^(a+1) at m - 2, e_m = int_0^3 M_3(v) (a+1) a
+ * (a-1) (m-2+v)^(a-2) dv with M_3 the cubic B-spline on [0, 3]; with
+ * int_0^3 M_3(v) e^{-s(x+v)} dv = e^{-sx} ((1 - e^{-s})/s)^3 and
+ * (a+1) a (a-1) / Gamma(2-a) = -Gamma(a+2) sin(pi a)/pi, for m >= 2
+ *     f_m = K int_0^inf s^(1-a) (expm1(s)/s)^2 ((1 - e^{-s})/s) e^{-s m} ds
+ * with the same K = -h^a sin(pi a)/pi > 0 (density K_TCUM), built and
+ * verified as above against soe_tcum. f >= 0, so the bound argument of the
+ * rectangle rule applies. The x_0 correction corr_n = h^a/Gamma(a+2)
+ * ((n+1+a) n^a - (n+1)^(a+1)) ~ -h^a a/(2 Gamma(a+1)) n^(a-1) grows and is
+ * not carried by the terms (inj = 1): the runtime adds corr_n x_0 with
+ * corr_n from fc__x0_correction, the library's own weights
+ * (stream_compressed.c, cs_corr_at). fc__soe.corrmax is the larger |corr_n|
+ * of n = B and n = 2^53 - 1 (the largest index a stream reaches, past the
+ * horizon too), |corr_n| being increasing there (checked with mpmath for
+ * a = 1 + 1e-7 .. 2 - 1e-7; for
+ * a = 1, corr_n = -h/2 for every n >= 1); creation fails with the status
+ * of the weights if either is beyond the double range.
  *
  * Cost: the weights at about 10^4 + 64 log10(horizon / 10^4) lags
  * (fc__lag_kernel) and a few candidate builds, each verified over the
@@ -558,14 +580,16 @@ int fc__soe_build(int rule, double order, double step, double tol,
     out->cum = cum;
     out->L = 0;
     out->corrmax = 0.0;
-    if (tcum && M >= B) {
+    if (tcum) {
         /* the correction corr_n x_0, n >= B, comes from the library's
-           weights at run time (stream_compressed.c); they grow like
-           n^(a-1) (|corr_n| ~ h^a a/(2 Gamma(a+1)) n^(a-1)): both ends
-           must be within the double range */
+           weights at run time (stream_compressed.c), for every n a stream
+           can reach (past the horizon too, with FC_HORIZON_CONTINUE); they
+           grow like n^(a-1) (|corr_n| ~ h^a a/(2 Gamma(a+1)) n^(a-1)):
+           both ends, n = B and the last count 2^53 - 1, must be within
+           the double range */
         double ce[2];
         if ((st = fc__x0_correction(rule, a, step, B, 1, ce)) != FC_OK ||
-            (st = fc__x0_correction(rule, a, step, M, 1, ce + 1)) != FC_OK)
+            (st = fc__x0_correction(rule, a, step, FC_INDEX_LIMIT - 1, 1, ce + 1)) != FC_OK)
             return st;
         out->corrmax = fabs(ce[0]) > fabs(ce[1]) ? fabs(ce[0]) : fabs(ce[1]);
     }

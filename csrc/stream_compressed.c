@@ -56,9 +56,17 @@
  * for bit, then takes only the running state, checked against the
  * invariants of cs_step (cs_state_ok).
  *
- * Rectangle rule, 1 <= a < 2 (flag cum): the engine runs on u = X, the
- * running sum of x, carried in double-double (high part in xprev, low part
- * in x0, so the payload layout is the same for every rule).
+ * Rectangle and trapezoid rules, 1 <= a < 2 (flag cum): the engine runs on
+ * u = X, the running sum of x, carried in double-double (high part in
+ * xprev, low part in x0, so the payload layout is the same for every
+ * rule). The trapezoid rule there (flag tcum) keeps x_0 per channel as well
+ * (xfirst, one more double per channel in the payload, for these streams
+ * only) and adds corr_n x_0 for every n: from ctab for n < B, and for
+ * n >= B from the library's weights (cs_corr_at), which the engine
+ * computes for the aligned block of CS_CORR_BLK indices holding n, so that
+ * each value depends on n alone (not on the pushes, previews or loads
+ * before it). The correction is then exact with respect to the library's
+ * weights (as in the band), and the guarantee holds as stated.
  *
  * Arithmetic of a push (identical in the portable and the AVX2 path, so
  * results do not depend on which one runs; the CPU is probed once per
@@ -272,18 +280,17 @@ static inline void cs_dd_add(double *hi, double *lo, double x)
  * Every mode performs the same arithmetic on the values it uses, so a
  * preview equals the push bit for bit.
  */
-/* tcum: corr_n for B <= n <= floor(horizon), the library's correction
-   (fc__x0_correction) computed for the aligned block of CS_CORR_BLK indices
-   holding n (cut at the horizon), so that the value depends on n alone.
-   Creation checked both ends of [B, horizon] (soe_build.c), and |corr_n|
-   grows with n there, so the status is FC_OK. */
+/* tcum: corr_n for B <= n < 2^53 (past the horizon too), the library's
+   correction (fc__x0_correction) computed for the aligned block of
+   CS_CORR_BLK indices holding n (cut at 2^53 - 1), so that the value
+   depends on n alone. Creation checked both ends, n = B and n = 2^53 - 1
+   (soe_build.c), and |corr_n| grows with n there, so the status is FC_OK. */
 static double cs_corr_at(cs_engine *cs, uint64_t n)
 {
     if (!(n >= cs->corrbase && n - cs->corrbase < cs->corrcnt)) {
         uint64_t base = n - n % CS_CORR_BLK;
-        uint64_t last = (uint64_t)floor(cs->horizon);
         size_t cnt = CS_CORR_BLK;
-        if (last - base + 1 < cnt) cnt = (size_t)(last - base + 1);
+        if (FC_INDEX_LIMIT - base < cnt) cnt = (size_t)(FC_INDEX_LIMIT - base);
         if (fc__x0_correction(cs->rule, cs->order, cs->step, base, cnt,
                               cs->corrbuf) != FC_OK) {
             cs->corrcnt = 0;

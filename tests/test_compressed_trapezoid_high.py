@@ -311,3 +311,45 @@ def test_solver_compressed_long_run_and_multi_order(method):
                    memory="compressed", tol=tol, horizon=1e4)
     assert np.allclose(Y[:, 0], y06, rtol=0, atol=1e-14)
     assert np.allclose(Y[:, 1], y15, rtol=0, atol=1e-14)
+
+
+@pytest.mark.parametrize("order", [1.0, 1.5])
+def test_past_the_horizon_continues(order):
+    # horizon_policy='continue': past the horizon nothing is promised, but
+    # the outputs stay finite (the x_0 correction is computed for every
+    # index a stream reaches); up to the horizon, the bound against the
+    # batch engine as in test_every_index_against_batch
+    h, hz, n = 0.5, 100.5, 5000
+    s = Stream.integral(order, h, rule="trapezoid", mode="compressed", tol=1e-12,
+                        horizon=hz, horizon_policy="continue")
+    x = data("random", n, seed=31)
+    y = s.push_many(x)
+    assert np.all(np.isfinite(y))
+    exact = pyfracconv.integral(x, order, step=h, rule="trapezoid")
+    c, u, corr = lag_form("trapezoid", order, h, x)
+    bound = pyfracconv.lagged_sum(np.abs(x), np.abs(c)) + np.abs(corr * x[0])
+    within = int(np.floor(hz)) + 1
+    assert np.all(np.abs(y[:within] - exact[:within]) <= (1e-12 + 1e-13) * bound[:within])
+
+
+@pytest.mark.parametrize("method", ["predictor-corrector", "trapezoid"])
+def test_stepper_checkpoint_compressed(method):
+    # a checkpoint of the stepper at a = 1.5 with compressed memory resumes
+    # bit for bit, and the whole run equals solve()
+    from pyfracconv.solve import Stepper
+
+    def rhs(t, y):
+        return -y
+
+    h, n = 2e-3, 1200
+    _, ref = solve(rhs, 1.0, A, h, n, dy0=0.0, method=method, memory="compressed",
+                   tol=1e-12, horizon=1e4)
+    s = Stepper(rhs, 1.0, A, h, dy0=0.0, method=method, memory="compressed",
+                tol=1e-12, horizon=1e4)
+    _, y1 = s.advance(500)
+    blob = s.save()
+    _, y2 = s.advance(n - 500)
+    r = Stepper.load(blob, rhs)
+    _, z2 = r.advance(n - 500)
+    assert np.array_equal(y2, z2)
+    assert np.array_equal(np.concatenate([y1, y2]), ref[1:])
