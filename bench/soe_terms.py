@@ -35,17 +35,19 @@ def main(horizon=1e8):
                 worst = max(worst, time.perf_counter() - t0)
                 row.append(s.terms)
             print(f"{tol:<9.0e}" + "".join(f"{n:>6}" for n in row) + f"   {1e3 * worst:8.1f}")
-    # rectangle rule, 1 <= a < 2 (engine on the running sum; a = 1: no terms)
-    head = "tol      " + "".join(f"{a:>6}" for a in HIGH_ORDERS) + "   max create ms"
-    print(f"\nrectangle, 1 <= a < 2\n{head}")
-    for tol in TOLS:
-        row, worst = [], 0.0
-        for a in HIGH_ORDERS:
-            t0 = time.perf_counter()
-            s = make("rectangle", a, tol, horizon)
-            worst = max(worst, time.perf_counter() - t0)
-            row.append(s.terms)
-        print(f"{tol:<9.0e}" + "".join(f"{n:>6}" for n in row) + f"   {1e3 * worst:8.1f}")
+    # rectangle and trapezoid rules, 1 <= a < 2 (engine on the running sum;
+    # a = 1: no terms)
+    for rule in ("rectangle", "trapezoid"):
+        head = "tol      " + "".join(f"{a:>6}" for a in HIGH_ORDERS) + "   max create ms"
+        print(f"\n{rule}, 1 <= a < 2\n{head}")
+        for tol in TOLS:
+            row, worst = [], 0.0
+            for a in HIGH_ORDERS:
+                t0 = time.perf_counter()
+                s = make(rule, a, tol, horizon)
+                worst = max(worst, time.perf_counter() - t0)
+                row.append(s.terms)
+            print(f"{tol:<9.0e}" + "".join(f"{n:>6}" for n in row) + f"   {1e3 * worst:8.1f}")
 
 
 if __name__ == "__main__":

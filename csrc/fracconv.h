@@ -276,7 +276,8 @@ typedef struct fc_stream fc_stream;
  * ignored) or FC_MODE_COMPRESSED, which takes
  *   tol in [1e-15, 1e-2] and 1 <= horizon <= 2^53 - 2, finite (else
  *   FC_ERR_TOL); 1e-280 <= order < 1 for every rule, and also
- *   1 <= order < 2 for FC_RULE_RECTANGLE (else FC_ERR_ORDER).
+ *   1 <= order < 2 for FC_RULE_RECTANGLE and FC_RULE_TRAPEZOID (else
+ *   FC_ERR_ORDER).
  * Compressed-mode promise: for every output n <= floor(horizon),
  *   |y_n - y_n(exact)| <= (tol + 64 eps) (sum_k |c_{n-k} u_k| + |corr_n x_0|)
  * with eps = 2^-52, y_n(exact) element n of fc_apply in exact arithmetic
@@ -290,9 +291,10 @@ typedef struct fc_stream fc_stream;
  * tol < 2e-15 and horizon > 1e14.
  * Range: finite samples never give NaN or inf. A compressed push or preview
  * is refused with FC_ERR_RANGE (nothing changes) if an engine input |u|
- * (x; L1: x_n - x_{n-1}; RECTANGLE with order >= 1: the running sum
- * x_0 + ... + x_n) would exceed the stream's bound U = DBL_MAX / (4 G),
- * where G = max(sum_l 2 |beta_l| m_l + sum_{j<64} |c_j| + max_n |corr_n|,
+ * (x; L1: x_n - x_{n-1}; RECTANGLE and TRAPEZOID with order >= 1: the
+ * running sum x_0 + ... + x_n) would exceed the stream's bound U = DBL_MAX / (4 G),
+ * where G = max(sum_l 2 |beta_l| m_l + sum_{j<64} |c_j| + max_n |corr_n|
+ * (TRAPEZOID at order >= 1: the larger of n = 64 and n = 2^53 - 1),
  * 2 max_l m_l, 4), m_l = min(1/q_l, 2^53), from the stream's exponential
  * terms beta_l (1 - q_l)^m (csrc/stream_compressed.c, RANGE). With step = 1,
  * U >= 1e290 for every accepted rule, order, tol and horizon (about
@@ -456,9 +458,9 @@ FC_API int fc_stream_horizon(const fc_stream *s, double *horizon);
  *                        weights is allocated at creation and at load)
  * Memory: FC_MODE_EXACT (streams keep every f value) or FC_MODE_COMPRESSED
  * (bounded memory, tol and horizon as for fc_stream_create, horizon counted
- * in steps; the trapezoid rule, used by FC_METHOD_PC and
- * FC_METHOD_TRAPEZOID, is refused for orders >= 1 (FC_ERR_ORDER), and
- * FC_METHOD_RECTANGLE needs orders < 2).
+ * in steps; every method but FC_METHOD_IMPLICIT_RECTANGLE, orders < 2,
+ * as the rule table's compressed ranges for the rectangle and trapezoid
+ * rules give them (fc_rule_order_range; else FC_ERR_ORDER)).
  *
  * Callbacks: rhs(t, y[m], f[m], user) writes f(t, y); jac(t, y[m],
  * J[m*m], user) writes J[i*m + j] = df_i/dy_j (row-major). A callback
@@ -588,7 +590,7 @@ FC_API const char *fc_solver_strerror(int status);
  *
  * Memory: FC_MODE_COMPRESSED (bounded memory and work per update; the
  * orders the compressed streams accept: 0 < order < 1, also 1 <= order < 2
- * for RECTANGLE) or FC_MODE_EXACT. Compressed streams are created with
+ * for RECTANGLE and TRAPEZOID) or FC_MODE_EXACT. Compressed streams are created with
  * FC_HORIZON_CONTINUE: past the horizon the controller keeps running
  * (stopping a controller mid-run is the greater hazard) and
  * fc_controller_status reports FC_CTRL_PAST_HORIZON.

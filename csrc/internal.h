@@ -206,7 +206,10 @@ int fc__segment_start(fc__kernel_at at, const void *ctx, uint64_t m0,
  * c_m ~= sum_{l<L} beta_l (1 - q_l)^(m-B) (the factor (1 - q_l)^B folded
  * into beta_l); the trapezoid rule's x_0 enters term l as inj_l x_0 at
  * step B and its corrections corr_n, n < B, are ctab[n]. cum: the rule
- * runs on the running sum X of x with the kernel f (rectangle, a >= 1).
+ * runs on the running sum X of x with the kernel f (rectangle and
+ * trapezoid, a >= 1); the trapezoid's x_0 then does not enter the terms
+ * (inj = 1): corr_n x_0 for n >= B comes from the library's weights at
+ * run time (stream_compressed.c).
  */
 /* The tolerances and horizons compressed mode offers (fc_stream_create;
    the loader checks a saved stream's against the same). */
@@ -221,6 +224,8 @@ typedef struct {
     double q[FC__CS_MAX_TERMS], beta[FC__CS_MAX_TERMS], inj[FC__CS_MAX_TERMS];
     double cband[FC__CS_BAND];      /* c_0 .. c_{B-1} (cum: f_0 .. f_{B-1}) */
     double ctab[FC__CS_BAND];       /* corr_n, n < B (0 without x_0 term) */
+    double corrmax;                 /* trapezoid, a >= 1: max |corr_n| over
+                                       B <= n < 2^53 (else 0) */
 } fc__soe;
 int fc__soe_build(int rule, double order, double step, double tol,
                   double horizon, fc__soe *out);

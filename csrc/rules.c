@@ -14,7 +14,8 @@
  * change; a new rule gets the next number.
  *   batch and exact: 0 < a <= 10 (L1: 0 < a < 1);
  *   compressed: the construction needs a completely monotone kernel and
- *   a < 1 (for the rectangle rule also 1 <= a < 2, on the running sum),
+ *   a < 1 (for the rectangle and trapezoid rules also 1 <= a < 2, on the
+ *   running sum),
  *   and a >= 1e-280 (FC__CS_MIN_ORDER, soe_build.c: below it the kernel's
  *   far lags are subnormal).
  */
@@ -28,7 +29,7 @@ static const fc__corr_col trapezoid_corr[] = {{0, &fc__seq_trapezoid_start}};
 static const fc__rule_desc rule_table[] = {
     {FC_RULE_RECTANGLE, "rectangle", 0, R_ALL, R_ALL, R_CS2, 1.0,
      1, 0, FC__SCALE_HA_G1, &fc__seq_rectangle, FC__DENS_RECT, 0, NULL},
-    {FC_RULE_TRAPEZOID, "trapezoid", 0, R_ALL, R_ALL, R_CS1, INFINITY,
+    {FC_RULE_TRAPEZOID, "trapezoid", 0, R_ALL, R_ALL, R_CS2, 1.0,
      0, 0, FC__SCALE_HA_G2, &fc__seq_trapezoid, FC__DENS_TRAP, 1,
      trapezoid_corr},
     {FC_RULE_GRUNWALD, "grunwald", 1, R_ALL, R_ALL, R_CS1, INFINITY,

@@ -98,8 +98,30 @@
  * free series in long double). Since f >= 0 and |X_i| <= sum_{k<=i} |x_k|,
  * sum_m f_m |X_{n-m}| <= sum_k c_{n-k} |x_k|: the guarantee holds as stated,
  * with the rounding of X (below 2 eps sum_{k<=i} |x_k| per value) inside the
- * eps term. For a = 1, f_m = 0 for m >= 2: no terms. The trapezoid rule is
- * not offered for a >= 1 (FC_ERR_ORDER).
+ * eps term. For a = 1, f_m = 0 for m >= 2: no terms.
+ *
+ * CONSTRUCTION, 1 <= a < 2, trapezoid rule (flag cum with the x_0 column,
+ * "tcum"). Likewise a_m = sum_{j<=m} e_j with e_0 = a_0 = 1 and
+ * e_j = a_j - a_{j-1}, so y_n = sum_m f_m X_{n-m} + corr_n x_0 with
+ * f_m = h^a/Gamma(a+2) e_m (soe_tcum): f_1 = h^a/Gamma(a+2) (2^(a+1) - 3)
+ * and for m >= 2 e_m = (m+1)^(a+1) - 3 m^(a+1) + 3 (m-1)^(a+1) - (m-2)^(a+1),
+ * the third difference of t^(a+1) at m - 2, e_m = int_0^3 M_3(v) (a+1) a
+ * (a-1) (m-2+v)^(a-2) dv with M_3 the cubic B-spline on [0, 3]; with
+ * int_0^3 M_3(v) e^{-s(x+v)} dv = e^{-sx} ((1 - e^{-s})/s)^3 and
+ * (a+1) a (a-1) / Gamma(2-a) = -Gamma(a+2) sin(pi a)/pi, for m >= 2
+ *     f_m = K int_0^inf s^(1-a) (expm1(s)/s)^2 ((1 - e^{-s})/s) e^{-s m} ds
+ * with the same K = -h^a sin(pi a)/pi > 0 (density K_TCUM), built and
+ * verified as above against soe_tcum. f >= 0, so the bound argument of the
+ * rectangle rule applies. The x_0 correction corr_n = h^a/Gamma(a+2)
+ * ((n+1+a) n^a - (n+1)^(a+1)) ~ -h^a a/(2 Gamma(a+1)) n^(a-1) grows and is
+ * not carried by the terms (inj = 1): the runtime adds corr_n x_0 with
+ * corr_n from fc__x0_correction, the library's own weights
+ * (stream_compressed.c, cs_corr_at). fc__soe.corrmax is the larger |corr_n|
+ * of n = B and n = 2^53 - 1 (the largest index a stream reaches, past the
+ * horizon too), |corr_n| being increasing there (checked with mpmath for
+ * a = 1 + 1e-7 .. 2 - 1e-7; for
+ * a = 1, corr_n = -h/2 for every n >= 1); creation fails with the status
+ * of the weights if either is beyond the double range.
  *
  * Cost: the weights at about 10^4 + 64 log10(horizon / 10^4) lags
  * (fc__lag_kernel) and a few candidate builds, each verified over the
@@ -109,6 +131,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <math.h>
+#include <float.h>
 #include "internal.h"
 
 #define SOE_BAND FC__CS_BAND          /* exact local band: lags 0 .. B-1 */
@@ -122,7 +145,7 @@
    ones: the trapezoid's x_0 correction and the rectangle rule on the
    running sum. */
 enum { K_RECT = FC__DENS_RECT, K_TRAP = FC__DENS_TRAP, K_GRUN = FC__DENS_GRUN,
-       K_L1 = FC__DENS_L1, K_CORR = 5, K_RCUM = 6 };
+       K_L1 = FC__DENS_L1, K_CORR = 5, K_RCUM = 6, K_TCUM = 7 };
 
 /* Rectangle rule, 1 <= a < 2: the kernel on the running sum X,
    f_0 = 0, f_1 = h^a/Gamma(a+1), f_m = h^a/Gamma(a+1) (m^a - 2(m-1)^a + (m-2)^a)
@@ -153,6 +176,45 @@ static double soe_fcum(double a, long double pre, uint64_t m)
     return (double)(pre * powl((long double)m, A) * sum);
 }
 
+/* Trapezoid rule, 1 <= a < 2: the kernel on the running sum X,
+   f_m = h^a/Gamma(a+2) e_m with e_0 = a_0 = 1, e_m = a_m - a_{m-1}:
+   e_1 = 2^(a+1) - 3 = 1 + 4 expm1((a-1) ln 2),
+   e_2 = 3^(a+1) - 3 2^(a+1) + 3 = 9 expm1((a-1) ln 3) - 12 expm1((a-1) ln 2),
+   e_m = (m+1)^(a+1) - 3 m^(a+1) + 3 (m-1)^(a+1) - (m-2)^(a+1) (m >= 2),
+   for m >= 3 by the binomial series
+   m^(a+1) sum_{k>=3} binom(a+1,k) T_k m^-k, T_k = 1 + 3 (-1)^k - (-2)^k,
+   whose terms are all positive for 1 < a < 2 (binom(a+1,k) and T_k both
+   have the sign (-1)^(k+1) for k >= 3) and zero for a = 1; a - 1 is
+   exact (Sterbenz). In long double without cancellation. */
+static long double soe_tcum_pre(double a, double h)
+{
+    return powl((long double)h, (long double)a) / tgammal((long double)a + 2.0L);
+}
+static double soe_tcum(double a, long double pre, uint64_t m)
+{
+    long double A = a, b = (long double)(a - 1.0);
+    if (m == 0) return (double)pre;
+    if (m == 1) return (double)(pre * (1.0L + 4.0L * expm1l(b * logl(2.0L))));
+    if (a == 1.0) return 0.0;
+    if (m == 2)
+        return (double)(pre * (9.0L * expm1l(b * logl(3.0L)) -
+                               12.0L * expm1l(b * logl(2.0L))));
+    long double x = 1.0L / (long double)m;
+    /* binom(a+1, 3) */
+    long double coef = (A + 1.0L) * A * (A - 1.0L) / 6.0L;
+    long double xk = x * x * x, p2 = 8.0L, sum = 0.0L;
+    for (int k = 3; k < 4000; k++) {
+        long double T = (k & 1) ? p2 - 2.0L : 4.0L - p2;   /* T_k */
+        long double term = coef * T * xk;
+        sum += term;
+        if (term <= 1e-22L * sum) break;
+        coef *= (A + 1.0L - (long double)k) / (long double)(k + 1);
+        xk *= x;
+        p2 *= 2.0L;
+    }
+    return (double)(pre * powl((long double)m, A + 1.0L) * sum);
+}
+
 /* phi(s) of the densities above, without the constant K. */
 static double soe_phi(int kind, double a, double s)
 {
@@ -181,6 +243,11 @@ static double soe_phi(int kind, double a, double s)
     case K_RCUM: {
         double v = s > 0 ? expm1(s) / s : 1.0;
         return v * v;
+    }
+    case K_TCUM: {
+        double v = s > 0 ? expm1(s) / s : 1.0;
+        double w = s > 0 ? -expm1(-s) / s : 1.0;
+        return v * v * w;
     }
     case K_L1:
         return s > 0 ? -expm1(-s) / s : 1.0;
@@ -294,6 +361,7 @@ static double soe_dtau(double p, double target)
 
 typedef struct {
     int rule, kind;
+    int x0inj;                 /* x_0 enters the terms (trapezoid, a < 1) */
     double a, p, p1, K, Kcorr, tol, M;   /* p1 = p + 1, exact */
     /* verification grid and references */
     size_t ndense, ngeo;
@@ -323,7 +391,7 @@ static int soe_candidate(const soe_ctx *cx, double X, size_t ng, double kappa,
         if (L + ng >= SOE_MAX_TERMS) return FC_ERR_TOL;
         q[L] = -expm1(-s);
         w[L] = W;
-        wc[L] = fc__rule_has_x0(cx->rule) ? W * soe_phi(K_CORR, a, s) / soe_phi(K_TRAP, a, s) : 0.0;
+        wc[L] = cx->x0inj ? W * soe_phi(K_CORR, a, s) / soe_phi(K_TRAP, a, s) : 0.0;
         L++;
     }
     /* left: discrete measure of the nodes s < sL, in x = s / sL */
@@ -352,7 +420,7 @@ static int soe_candidate(const soe_ctx *cx, double X, size_t ng, double kappa,
         if (!(sk > 0.0) || !(gw[k] > 0.0) || !isfinite(gw[k])) return FC_ERR_TOL;
         q[L] = -expm1(-sk);
         w[L] = gw[k];
-        wc[L] = fc__rule_has_x0(cx->rule) ? gw[k] * soe_phi(K_CORR, a, sk) / soe_phi(K_TRAP, a, sk) : 0.0;
+        wc[L] = cx->x0inj ? gw[k] * soe_phi(K_CORR, a, sk) / soe_phi(K_TRAP, a, sk) : 0.0;
         L++;
     }
     for (size_t l = 0; l < L; l++) {
@@ -439,7 +507,8 @@ static void soe_constants(soe_ctx *cx, int rule, int cum, double a, double step,
 {
     double spa = (exact ? soe_sinpi(a) : sin(SOE_PI * a)) / SOE_PI;
     if (cum) {
-        cx->kind = K_RCUM; cx->p = 1.0 - a; cx->K = -spa * pow(step, a);
+        cx->kind = fc__rule_has_x0(rule) ? K_TCUM : K_RCUM;
+        cx->p = 1.0 - a; cx->K = -spa * pow(step, a);
         cx->p1 = exact ? 2.0 - a : cx->p + 1.0;
         return;
     }
@@ -473,12 +542,15 @@ int fc__soe_build(int rule, double order, double step, double tol,
     const fc__rule_desc *d = fc__rule(rule);
     const int cum = order >= d->cumulative_from;
     const int x0 = fc__rule_has_x0(rule);
+    const int tcum = cum && x0;     /* trapezoid, a >= 1 */
+    const int x0inj = x0 && !cum;   /* x_0 enters the terms at n = B */
     const size_t B = SOE_BAND;
     const double a = order;
     const uint64_t M = (uint64_t)floor(horizon);
     soe_ctx cx;
     memset(&cx, 0, sizeof cx);
     cx.rule = rule;
+    cx.x0inj = x0inj;
     cx.a = a;
     cx.tol = tol;
     cx.M = (double)M;
@@ -491,10 +563,15 @@ int fc__soe_build(int rule, double order, double step, double tol,
 
     /* band weights and the trapezoid start table */
     double *cband = out->cband, *ctab = out->ctab;
-    const long double fpre = cum ? soe_fcum_pre(a, step) : 0.0L;
+    const long double fpre = tcum ? soe_tcum_pre(a, step)
+                             : cum ? soe_fcum_pre(a, step) : 0.0L;
     if (cum) {
-        for (size_t m = 0; m < B; m++)
-            if (!isfinite(cband[m] = soe_fcum(a, fpre, m))) return FC_ERR_RANGE;
+        for (size_t m = 0; m < B; m++) {
+            double f = tcum ? soe_tcum(a, fpre, m) : soe_fcum(a, fpre, m);
+            if (!isfinite(cband[m] = f) ||
+                (tcum && f != 0.0 && fabs(f) < DBL_MIN))
+                return FC_ERR_RANGE;
+        }
     } else if ((st = fc__lag_kernel(rule, a, step, 0, B, cband)) != FC_OK)
         return st;
     memset(ctab, 0, B * sizeof *ctab);
@@ -502,6 +579,20 @@ int fc__soe_build(int rule, double order, double step, double tol,
         return st;
     out->cum = cum;
     out->L = 0;
+    out->corrmax = 0.0;
+    if (tcum) {
+        /* the correction corr_n x_0, n >= B, comes from the library's
+           weights at run time (stream_compressed.c), for every n a stream
+           can reach (past the horizon too, with FC_HORIZON_CONTINUE); they
+           grow like n^(a-1) (|corr_n| ~ h^a a/(2 Gamma(a+1)) n^(a-1)):
+           both ends, n = B and the last count 2^53 - 1, must be within
+           the double range */
+        double ce[2];
+        if ((st = fc__x0_correction(rule, a, step, B, 1, ce)) != FC_OK ||
+            (st = fc__x0_correction(rule, a, step, FC_INDEX_LIMIT - 1, 1, ce + 1)) != FC_OK)
+            return st;
+        out->corrmax = fabs(ce[0]) > fabs(ce[1]) ? fabs(ce[0]) : fabs(ce[1]);
+    }
 
     /* horizon < B, or a = 1 on the running sum (f_m = 0 for m >= 2): the
        band alone is exact for every n <= horizon */
@@ -535,7 +626,10 @@ int fc__soe_build(int rule, double order, double step, double tol,
     cx.ngeo = g;
     cx.mgeo = mgeo;
     double *cref = tmp, *corrref = tmp + ntot;
-    if (cum) {
+    if (tcum) {
+        for (size_t k = 0; k < cx.ndense; k++) cref[k] = soe_tcum(a, fpre, B + k);
+        for (size_t k = 0; k < g; k++) cref[cx.ndense + k] = soe_tcum(a, fpre, mgeo[k]);
+    } else if (cum) {
         for (size_t k = 0; k < cx.ndense; k++) cref[k] = soe_fcum(a, fpre, B + k);
         for (size_t k = 0; k < g; k++) cref[cx.ndense + k] = soe_fcum(a, fpre, mgeo[k]);
     } else {
@@ -544,7 +638,7 @@ int fc__soe_build(int rule, double order, double step, double tol,
             if ((st = fc__lag_kernel(rule, a, step, mgeo[k], 1, cref + cx.ndense + k)) != FC_OK)
                 goto done;
     }
-    if (x0) {
+    if (x0inj) {
         if ((st = fc__x0_correction(rule, a, step, B, cx.ndense, corrref)) != FC_OK) goto done;
         for (size_t k = 0; k < g; k++)
             if ((st = fc__x0_correction(rule, a, step, mgeo[k], 1, corrref + cx.ndense + k)) != FC_OK)
@@ -552,7 +646,7 @@ int fc__soe_build(int rule, double order, double step, double tol,
     }
     for (size_t k = 0; k < cx.ndense + g; k++)
         if (!isfinite(cref[k]) || cref[k] == 0.0 ||
-            (x0 && (!isfinite(corrref[k]) || corrref[k] == 0.0))) {
+            (x0inj && (!isfinite(corrref[k]) || corrref[k] == 0.0))) {
             st = FC_ERR_TOL;
             goto done;
         }
@@ -584,7 +678,7 @@ int fc__soe_build(int rule, double order, double step, double tol,
             if (found && Lc >= Lbest) continue;
             for (size_t l = 0; l < Lc; l++) ijc[l] = 1.0;
             double e = soe_verify(&cx, Lc, qc, wcand, cref, P, P + 2 * SOE_MAX_TERMS);
-            if (e <= thresh && x0) {
+            if (e <= thresh && x0inj) {
                 /* the correction actually realised: beta (inj - 1), inj rounded */
                 for (size_t l = 0; l < Lc; l++) {
                     ijc[l] = 1.0 + wccand[l] / wcand[l];
@@ -608,7 +702,7 @@ int fc__soe_build(int rule, double order, double step, double tol,
         long double rB = expl((long double)B * log1pl(-(long double)qb[l]));
         out->q[l] = qb[l];
         out->beta[l] = (double)((long double)wb[l] * rB);
-        out->inj[l] = x0 ? ijb[l] : 1.0;
+        out->inj[l] = x0inj ? ijb[l] : 1.0;
     }
     out->L = Lbest;
     st = FC_OK;

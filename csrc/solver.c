@@ -125,6 +125,20 @@ static int is_implicit(int method)
     return method == FC_METHOD_TRAPEZOID || method == FC_METHOD_IMPLICIT_RECTANGLE;
 }
 
+/* 1 if a compressed stream of the rule accepts order a (the rule table's
+   range, fc_rule_order_range). */
+static int compressed_order_ok(int rule, double a)
+{
+    double lo, hi;
+    int li, hii;
+    if (fc_rule_order_range(rule, FC_MODE_COMPRESSED, &lo, &li, &hi, &hii) != FC_OK)
+        return 0;
+    if (!isfinite(a)) return 0;
+    if (li ? !(a >= lo) : !(a > lo)) return 0;
+    if (hii ? !(a <= hi) : !(a < hi)) return 0;
+    return 1;
+}
+
 static int check_params(size_t m, const double *orders, double step,
                         double t0, int method, int memory, double tol,
                         double horizon, unsigned *K)
@@ -146,8 +160,14 @@ static int check_params(size_t m, const double *orders, double step,
         double a = orders[i];
         if (!(a > 0.0 && a <= 2.0)) return FC_ERR_ORDER;
         if (memory == FC_MODE_COMPRESSED) {
-            if (method != FC_METHOD_RECTANGLE && a >= 1.0) return FC_ERR_ORDER;
-            if (a >= 2.0) return FC_ERR_ORDER;
+            /* the rule table's compressed ranges (rules.c): the rectangle
+               method runs the rectangle rule, the others the rectangle
+               and the trapezoid rule */
+            if (!compressed_order_ok(FC_RULE_RECTANGLE, a))
+                return FC_ERR_ORDER;
+            if (method != FC_METHOD_RECTANGLE &&
+                !compressed_order_ok(FC_RULE_TRAPEZOID, a))
+                return FC_ERR_ORDER;
         }
         if (a > amax) amax = a;
     }

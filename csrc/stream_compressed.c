@@ -56,9 +56,17 @@
  * for bit, then takes only the running state, checked against the
  * invariants of cs_step (cs_state_ok).
  *
- * Rectangle rule, 1 <= a < 2 (flag cum): the engine runs on u = X, the
- * running sum of x, carried in double-double (high part in xprev, low part
- * in x0, so the payload layout is the same for every rule).
+ * Rectangle and trapezoid rules, 1 <= a < 2 (flag cum): the engine runs on
+ * u = X, the running sum of x, carried in double-double (high part in
+ * xprev, low part in x0, so the payload layout is the same for every
+ * rule). The trapezoid rule there (flag tcum) keeps x_0 per channel as well
+ * (xfirst, one more double per channel in the payload, for these streams
+ * only) and adds corr_n x_0 for every n: from ctab for n < B, and for
+ * n >= B from the library's weights (cs_corr_at), which the engine
+ * computes for the aligned block of CS_CORR_BLK indices holding n, so that
+ * each value depends on n alone (not on the pushes, previews or loads
+ * before it). The correction is then exact with respect to the library's
+ * weights (as in the band), and the guarantee holds as stated.
  *
  * Arithmetic of a push (identical in the portable and the AVX2 path, so
  * results do not depend on which one runs; the CPU is probed once per
@@ -87,6 +95,8 @@
 #define CS_BAND FC__CS_BAND         /* exact local band: lags 0 .. CS_BAND-1 */
 #define CS_MAX_TERMS FC__CS_MAX_TERMS /* more than this: FC_ERR_TOL */
 #define CS_FMT_VERSION 1u
+#define CS_CORR_BLK 256             /* trapezoid, a >= 1: corr_n cached in
+                                       aligned blocks of this many n */
 
 
 /* The state of one compressed stream (the facade's engine pointer). */
@@ -94,7 +104,11 @@ typedef struct cs_engine {
     int rule;
     int x0corr;               /* the rule has an x_0 correction (trapezoid) */
     int diffs;                /* the rule sums differences of x (L1) */
-    int cum;                  /* rectangle, order >= 1: engine input is X */
+    int cum;                  /* rectangle, trapezoid, order >= 1: engine
+                                 input is X */
+    int tcum;                 /* trapezoid, order >= 1: corr_n x_0 (n >= B)
+                                 from the library's weights, x_0 kept in
+                                 xfirst */
     int simd;                 /* 1: AVX2+FMA kernel, 0: portable */
     double order, step, tol, horizon;
     size_t C;                 /* channels */
@@ -110,6 +124,13 @@ typedef struct cs_engine {
     double *ring;             /* C * 2B, mirrored ring of u */
     double *S, *Sc;           /* C * Lp, compensated states */
     double *xprev, *x0;       /* C */
+    double *xfirst;           /* C (tcum only, else NULL): x_0 */
+    /* tcum: corr_n for n in [corrbase, corrbase + corrcnt), recomputed from
+       n alone (not part of the state) */
+    double *corrbuf;
+    uint64_t corrbase;
+    size_t corrcnt;
+    double corrmax;           /* tcum: max |corr_n|, B <= n <= horizon */
     double umax;              /* largest accepted |u| (RANGE) */
     void *mem;
     size_t memsize;
@@ -259,6 +280,28 @@ static inline void cs_dd_add(double *hi, double *lo, double x)
  * Every mode performs the same arithmetic on the values it uses, so a
  * preview equals the push bit for bit.
  */
+/* tcum: corr_n for B <= n < 2^53 (past the horizon too), the library's
+   correction (fc__x0_correction) computed for the aligned block of
+   CS_CORR_BLK indices holding n (cut at 2^53 - 1), so that the value
+   depends on n alone. Creation checked both ends, n = B and n = 2^53 - 1
+   (soe_build.c), and |corr_n| grows with n there, so the status is FC_OK. */
+static double cs_corr_at(cs_engine *cs, uint64_t n)
+{
+    if (!(n >= cs->corrbase && n - cs->corrbase < cs->corrcnt)) {
+        uint64_t base = n - n % CS_CORR_BLK;
+        size_t cnt = CS_CORR_BLK;
+        if (FC_INDEX_LIMIT - base < cnt) cnt = (size_t)(FC_INDEX_LIMIT - base);
+        if (fc__x0_correction(cs->rule, cs->order, cs->step, base, cnt,
+                              cs->corrbuf) != FC_OK) {
+            cs->corrcnt = 0;
+            return NAN;     /* not reached (see above) */
+        }
+        cs->corrbase = base;
+        cs->corrcnt = cnt;
+    }
+    return cs->corrbuf[n - cs->corrbase];
+}
+
 static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
 {
     const size_t B = CS_BAND, C = cs->C;
@@ -268,8 +311,9 @@ static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
     /* trapezoid: corr_n x_0 from the table for n < B; for n >= B it is
        carried by the terms, u_0 having entered term l as inj_l u_0 at
        n = B (corr_m + c_m = sum_l beta_l inj_l (1-q_l)^m) */
-    const double corr = (cs->x0corr && n < B) ? cs->ctab[n] : 0.0;
-    const int inject = cs->x0corr && n == B;
+    const double corr = (cs->x0corr && n < B) ? cs->ctab[n]
+                        : cs->tcum ? cs_corr_at(cs, n) : 0.0;
+    const int inject = cs->x0corr && !cs->tcum && n == B;
     for (size_t c = 0; c < C; c++) {
         double xc = mode == 2 ? 0.0 : x[c];
         double u;
@@ -294,13 +338,17 @@ static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
         }
         /* window u_{n-B+1} .. u_{n-1}, u_{n-B} (weight 0) */
         double band = cs_band(cs, ring + pos + 1);
-        double x0 = n == 0 ? xc : cs->x0[c];
+        double x0 = n == 0 ? xc : cs->tcum ? cs->xfirst[c] : cs->x0[c];
         double yc = ((terms + band) + cs->c0 * u) + corr * x0;
         y[c] = yc;
         if (commit) {
             ring[pos] = u;
             ring[pos + B] = u;
-            if (cs->cum) { cs->xprev[c] = Xhi; cs->x0[c] = Xlo; }
+            if (cs->cum) {
+                cs->xprev[c] = Xhi;
+                cs->x0[c] = Xlo;
+                if (cs->tcum && n == 0) cs->xfirst[c] = xc;
+            }
             else {
                 cs->xprev[c] = xc;
                 if (n == 0) cs->x0[c] = xc;
@@ -379,6 +427,7 @@ static void cs_reset(void *eng)
     memset(cs->Sc, 0, C * cs->Lp * sizeof(double));
     memset(cs->xprev, 0, C * sizeof(double));
     memset(cs->x0, 0, C * sizeof(double));
+    if (cs->xfirst) memset(cs->xfirst, 0, C * sizeof(double));
     cs->n = 0;
 }
 
@@ -406,14 +455,16 @@ static void cs_free(void *eng)
 
 /* ------------------------------------------------------------ allocation */
 
-static int cs_alloc(size_t C, size_t Lp, cs_engine **out)
+static int cs_alloc(size_t C, size_t Lp, int tcum, cs_engine **out)
 {
     const size_t B = CS_BAND;
     size_t nd = 0, t;
-    /* shared: 3*Lp + 2*B; per channel: 2B + 2*Lp + 2 */
+    /* shared: 3*Lp + 2*B (tcum: + CS_CORR_BLK); per channel: 2B + 2*Lp + 2
+       (tcum: + 1) */
     size_t per;
-    if (fc__mul_size(2, Lp, &per) || fc__add_size(per, 2 * B + 2, &per) ||
-        fc__mul_size(per, C, &t) || fc__add_size(t, 3 * Lp + 2 * B, &nd) ||
+    const size_t xper = tcum ? 1 : 0, xsh = tcum ? CS_CORR_BLK : 0;
+    if (fc__mul_size(2, Lp, &per) || fc__add_size(per, 2 * B + 2 + xper, &per) ||
+        fc__mul_size(per, C, &t) || fc__add_size(t, 3 * Lp + 2 * B + xsh, &nd) ||
         fc__mul_size(nd, sizeof(double), &t) || fc__add_size(t, 64, &t))
         return FC_ERR_SIZE;
     cs_engine *cs = calloc(1, sizeof *cs);
@@ -433,6 +484,13 @@ static int cs_alloc(size_t C, size_t Lp, cs_engine **out)
     cs->Sc = p; p += C * Lp;
     cs->xprev = p; p += C;
     cs->x0 = p; p += C;
+    if (tcum) {
+        cs->xfirst = p; p += C;
+        cs->corrbuf = p; p += CS_CORR_BLK;
+    }
+    cs->tcum = tcum;
+    cs->corrbase = 0;
+    cs->corrcnt = 0;
     cs->C = C;
     cs->Lp = Lp;
     for (size_t l = 0; l < Lp; l++) { cs->q[l] = 0.5; cs->inj[l] = 1.0; }
@@ -482,6 +540,7 @@ static double cs_umax(const cs_engine *cs)
         go += fabs(cs->cb[j]);
         if (fabs(cs->ctab[j]) > cmax) cmax = fabs(cs->ctab[j]);
     }
+    if (cs->tcum && cs->corrmax > cmax) cmax = cs->corrmax;
     go += cmax;
     double g = go > gs ? go : gs;
     if (!(g <= 1e300)) return 0.0;      /* not reached for accepted steps */
@@ -502,6 +561,7 @@ static void cs_finish(cs_engine *cs, const double *cband, const double *ctab,
     cs->rule = rule; cs->order = order; cs->step = step;
     cs->tol = tol; cs->horizon = horizon;
     cs->cum = order >= fc__rule(rule)->cumulative_from; /* = fc__soe.cum */
+    /* cs->tcum: set by cs_alloc (= cum and x0corr) */
     cs->x0corr = fc__rule_has_x0(rule);
     cs->diffs = fc__rule_uses_differences(rule);
     cs->simd = cs_cpu_avx2();
@@ -521,7 +581,9 @@ static int cs_from_soe(const fc__soe *d, int rule, double order, double step,
     size_t Lp = (L + 7) / 8 * 8;
     if (Lp == 0) Lp = 8;
     cs_engine *cs;
-    if ((st = cs_alloc(channels, Lp, &cs)) != FC_OK) return st;
+    const int tcum = d->cum && fc__rule_has_x0(rule);
+    if ((st = cs_alloc(channels, Lp, tcum, &cs)) != FC_OK) return st;
+    cs->corrmax = d->corrmax;
     memcpy(cs->q, d->q, L * sizeof(double));
     memcpy(cs->beta, d->beta, L * sizeof(double));
     memcpy(cs->inj, d->inj, L * sizeof(double));
@@ -565,31 +627,35 @@ static int cs_create(const fc__stream_def *d, void **eng)
  *  40  f64 order        48  f64 step     56  f64 tol     64  f64 horizon
  *  72  f64 q[L], beta[L], inj[L], cb[B], c0, ctab[B]
  *      then per channel: ring[B] (slots 0..B-1), S[L], Sc[L], xprev, x0
- *      (rectangle with order >= 1: ring holds X, xprev/x0 the high/low
- *      parts of X)
+ *      (rectangle and trapezoid with order >= 1: ring holds X, xprev/x0
+ *      the high/low parts of X), and for the trapezoid with order >= 1
+ *      only, x_0 (these streams are new with it: every payload that
+ *      earlier code wrote has the layout without it)
  *  end u64 FNV-1a 64 of everything before it
  */
 #define CS_HDR 72
 static const unsigned char cs_magic[4] = {'F', 'C', 'C', 'S'};
 
-/* Number of doubles after the header for (C, L); FC_ERR_SIZE on overflow. */
-static int cs_ndoubles(uint64_t C, uint64_t L, size_t *nd)
+/* Number of doubles after the header for (C, L, tcum); FC_ERR_SIZE on
+   overflow. */
+static int cs_ndoubles(uint64_t C, uint64_t L, int tcum, size_t *nd)
 {
     const size_t B = CS_BAND;
     size_t per, t, sh;
     if (C > (size_t)-1 || L > CS_MAX_TERMS) return FC_ERR_SIZE;
     sh = 3 * (size_t)L + 2 * B + 1;
-    if (fc__mul_size(2, (size_t)L, &per) || fc__add_size(per, B + 2, &per) ||
+    if (fc__mul_size(2, (size_t)L, &per) ||
+        fc__add_size(per, B + 2 + (tcum ? 1 : 0), &per) ||
         fc__mul_size(per, (size_t)C, &t) || fc__add_size(t, sh, &t))
         return FC_ERR_SIZE;
     *nd = t;
     return FC_OK;
 }
 
-static size_t cs_size_for(uint64_t C, uint64_t L)
+static size_t cs_size_for(uint64_t C, uint64_t L, int tcum)
 {
     size_t nd, t;
-    if (cs_ndoubles(C, L, &nd) || fc__mul_size(nd, 8, &t) ||
+    if (cs_ndoubles(C, L, tcum, &nd) || fc__mul_size(nd, 8, &t) ||
         fc__add_size(t, CS_HDR + 8, &t))
         return 0;
     return t;
@@ -598,14 +664,14 @@ static size_t cs_size_for(uint64_t C, uint64_t L)
 static int cs_save_size(const void *eng, size_t *size)
 {
     const cs_engine *cs = eng;
-    *size = cs_size_for(cs->C, cs->L);   /* 0: too large (cs_save refuses) */
+    *size = cs_size_for(cs->C, cs->L, cs->tcum); /* 0: too large (cs_save refuses) */
     return FC_OK;
 }
 
 static int cs_save(const void *eng, unsigned char *buf, size_t size)
 {
     const cs_engine *cs = eng;
-    size_t need = cs_size_for(cs->C, cs->L);
+    size_t need = cs_size_for(cs->C, cs->L, cs->tcum);
     if (need == 0) return FC_ERR_SIZE;
     if (size < need) return FC_ERR_ARG;
     const size_t B = CS_BAND, L = cs->L;
@@ -633,6 +699,7 @@ static int cs_save(const void *eng, unsigned char *buf, size_t size)
         PUTV(cs->Sc + c * cs->Lp, L);
         fc__putd(p, cs->xprev[c]); p += 8;
         fc__putd(p, cs->x0[c]); p += 8;
+        if (cs->tcum) { fc__putd(p, cs->xfirst[c]); p += 8; }
     }
 #undef PUTV
     fc__put64(p, fc__fnv1a(FC__FNV_OFFSET, buf, (size_t)(p - buf)));
@@ -669,7 +736,9 @@ static int cs_dd_ok(double hi, double lo)
  *  - n >= 1: outside L1, ring slot (n-1) mod B holds u_{n-1}, which is
  *    xprev (the last sample, or for a >= 1 the high part of X); L1: slot 0
  *    holds u_0 = +0 while n <= B, and xprev = x0 = x_0 when n = 1;
- *  - rectangle a >= 1 (cum): (xprev, x0) is the double-double X;
+ *  - rectangle and trapezoid a >= 1 (cum): (xprev, x0) is the
+ *    double-double X; trapezoid a >= 1 (tcum): xfirst = x_0 = X_0, which
+ *    is ring slot 0 while n <= B, +0 at n = 0, and |x_0| <= umax;
  *    otherwise x0 = x_0, which is ring slot 0 while n <= B, and |x_0| <=
  *    umax outside L1 (x_0 = u_0).
  */
@@ -694,6 +763,12 @@ static int cs_state_ok(const cs_engine *cs)
             if (!(fabs(S[l]) <= 2.0 * U * mn)) return 0;
             if (!cs_dd_ok(S[l], Sc[l])) return 0;
             if (quiet && !(cs_zero_bits(S[l]) && cs_zero_bits(Sc[l]))) return 0;
+        }
+        if (cs->tcum) {
+            const double xf = cs->xfirst[c];
+            if (n == 0 && !cs_zero_bits(xf)) return 0;
+            if (!(fabs(xf) <= U)) return 0;
+            if (n >= 1 && n <= B && !cs_same(xf, ring[0])) return 0;
         }
         if (n == 0) {
             if (!cs_zero_bits(xp) || !cs_zero_bits(x0)) return 0;
@@ -763,13 +838,16 @@ static int cs_load(const fc__stream_def *d, const unsigned char *buf,
     if (rule > (uint32_t)INT32_MAX || fc__rule((int)rule) == NULL || band != B)
         return FC_ERR_FORMAT;
     if (C == 0 || L > CS_MAX_TERMS) return FC_ERR_FORMAT;
-    size_t need = cs_size_for(C, L);   /* 0 on overflow */
+    /* the trapezoid at orders >= 1 keeps x_0 per channel as well */
+    const int tcum = fc__rule_has_x0((int)rule) &&
+                     order >= fc__rule((int)rule)->cumulative_from;
+    size_t need = cs_size_for(C, L, tcum);   /* 0 on overflow */
     if (need == 0 || need != size) return FC_ERR_FORMAT;
     if (fc__get64(buf + size - 8) != fc__fnv1a(FC__FNV_OFFSET, buf, size - 8))
         return FC_ERR_FORMAT;
     if (n >= FC_INDEX_LIMIT) return FC_ERR_FORMAT;
     size_t nd;
-    if (cs_ndoubles(C, L, &nd)) return FC_ERR_FORMAT;
+    if (cs_ndoubles(C, L, tcum, &nd)) return FC_ERR_FORMAT;
     fc__rd v = r;   /* the doubles, read twice: checked, then taken */
     for (size_t i = 0; i < nd; i++)
         if (!isfinite(fc__rd_d(&v))) return FC_ERR_FORMAT;
@@ -783,7 +861,7 @@ static int cs_load(const fc__stream_def *d, const unsigned char *buf,
     cs_engine *cs;
     int st = cs_build((int)rule, order, step, (size_t)C, tol, horizon, &cs);
     if (st != FC_OK) return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;
-    int bad = cs->L != L;
+    int bad = cs->L != L || cs->tcum != tcum;
 #define SAMEV(arr, cnt) do { for (size_t i_ = 0; i_ < (cnt); i_++) \
         if (!cs_same((arr)[i_], fc__rd_d(&r))) bad = 1; } while (0)
     if (!bad) {
@@ -806,6 +884,7 @@ static int cs_load(const fc__stream_def *d, const unsigned char *buf,
         GETV(cs->Sc + c * cs->Lp, L);
         cs->xprev[c] = fc__rd_d(&r);
         cs->x0[c] = fc__rd_d(&r);
+        if (tcum) cs->xfirst[c] = fc__rd_d(&r);
     }
 #undef GETV
     cs->n = n;

@@ -165,9 +165,16 @@ int main(void)
     CHECK(st == FC_ERR_ORDER && x == (fc_solver *)&failures, "order 2.5: %d", st);
     st = fc_solver_create(1, &a, -h, 0.0, &one, FC_METHOD_PC, FC_MODE_EXACT, 0, 0, &x);
     CHECK(st == FC_ERR_STEP, "negative step: %d", st);
-    double a15 = 1.5, two[2] = { 1.0, 0.0 };
-    st = fc_solver_create(1, &a15, h, 0.0, two, FC_METHOD_PC, FC_MODE_COMPRESSED, 1e-8, 10, &x);
-    CHECK(st == FC_ERR_ORDER, "compressed trapezoid rule at order 1.5: %d", st);
+    double a2 = 2.0, two[2] = { 1.0, 0.0 };
+    st = fc_solver_create(1, &a2, h, 0.0, two, FC_METHOD_PC, FC_MODE_COMPRESSED, 1e-8, 10, &x);
+    CHECK(st == FC_ERR_ORDER, "compressed trapezoid rule at order 2: %d", st);
+    /* 1 <= order < 2 is served by compressed memory for every method but
+       the implicit rectangle rule */
+    double a15 = 1.5;
+    fc_solver *y15 = NULL;
+    st = fc_solver_create(1, &a15, h, 0.0, two, FC_METHOD_PC, FC_MODE_COMPRESSED, 1e-8, 10, &y15);
+    CHECK(st == FC_OK, "compressed predictor-corrector at order 1.5: %d", st);
+    fc_solver_free(y15);
     fc_solver_free(NULL);
     fc_solver_free(s);
 

@@ -64,12 +64,14 @@ def _choice(name, value, table):
 
 def default_integral_rule(order, memory):
     """The integral rule used when none is given: the product trapezoidal
-    rule (second order for smooth errors) where the memory accepts it, the
-    product rectangle rule otherwise (compressed streams take the
-    trapezoid rule for 0 < order < 1 only, the rectangle rule also for
-    1 <= order < 2)."""
-    if memory == "compressed" and not in_range(
-            order_range("trapezoid", int(lib.FC_MODE_COMPRESSED)), order):
+    rule (second order for smooth errors), except with compressed memory
+    at orders >= 1 or outside its compressed range, where it is the
+    product rectangle rule. (Compressed streams take both rules for
+    1 <= order < 2; the rectangle rule stays the default there because
+    it was the only one offered when controllers were first saved, so a
+    controller made without a rule keeps its outputs.)"""
+    if memory == "compressed" and (order >= 1.0 or not in_range(
+            order_range("trapezoid", int(lib.FC_MODE_COMPRESSED)), order)):
         return "rectangle"
     return "trapezoid"
 

@@ -308,6 +308,14 @@ def export_c(rule, order, step, tol=1e-9, horizon=1e6, precision="double",
     """
     code = check_rule(rule, tuple(RULES))
     a = check_order(order, rule, lib.FC_MODE_COMPRESSED)
+    if rule == "trapezoid" and a >= 1.0:
+        # the compressed trapezoid rule at 1 <= order < 2 reads its x_0
+        # correction from the library's weights at run time
+        # (csrc/stream_compressed.c); the generated code has no such table
+        raise ArgumentError(
+            f"order={show(order)}, rule='trapezoid': export_c serves the trapezoid "
+            "rule for 0 < order < 1 only; use rule='rectangle' (also 1 <= order < 2) "
+            "or a compressed Stream")
     h = check_step(step)
     t, hz = check_compressed(tol, horizon)
     if precision not in ("double", "single"):

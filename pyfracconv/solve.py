@@ -681,8 +681,8 @@ def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
     memory : {'exact', 'compressed'}, optional
         Exact history sums (O(N log^2 N) work in all, memory grows with N)
         or compressed ones (bounded memory, relative tolerance ``tol`` over
-        ``horizon`` steps; orders < 1 for the methods using the trapezoid
-        rule, < 2 for ``'rectangle'``).
+        ``horizon`` steps; orders < 2 for ``'rectangle'``,
+        ``'predictor-corrector'`` and ``'trapezoid'``).
     tol : float, optional
         Tolerance of the compressed history sums, in [1e-15, 1e-2].
     horizon : float, optional

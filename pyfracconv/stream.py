@@ -248,7 +248,7 @@ class Stream:
     term. The sum of exponentials behind it is checked against the rule's
     weights over the whole lag range when the stream is created (creation
     fails otherwise). Orders 0 < a < 1, and 1 <= a < 2 for the rectangle
-    integral; memory and work per sample are constant.
+    and trapezoid integrals; memory and work per sample are constant.
 
     Past the horizon: with ``horizon_policy="refuse"`` (the default) a
     push, block, preview or history that would produce an output n >

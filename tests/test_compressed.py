@@ -345,7 +345,7 @@ def test_channels_match_single_streams(rule):
 
 def test_parameter_checks():
     with pytest.raises(pyfracconv.ArgumentError):
-        make("trapezoid", 1.0, 1.0, 1e-12, 1e6)      # order >= 1 (trapezoid)
+        make("trapezoid", 2.0, 1.0, 1e-12, 1e6)      # order >= 2 (trapezoid)
     with pytest.raises(pyfracconv.ArgumentError):
         make("rectangle", 2.0, 1.0, 1e-12, 1e6)      # order >= 2
     with pytest.raises(pyfracconv.ArgumentError):
@@ -516,9 +516,9 @@ def test_high_order_save_load_bit_for_bit(order):
 
 
 def test_high_order_ranges_refused_with_message():
-    # derivatives stay 0 < a < 1, the trapezoid rule too, integrals a < 2
+    # derivatives stay 0 < a < 1, integrals (rectangle, trapezoid) a < 2
     cases = [("grunwald", 1.0), ("grunwald", 1.5), ("l1", 0.5 + 0.5),
-             ("trapezoid", 1.0), ("trapezoid", 1.5),
+             ("trapezoid", 2.0), ("trapezoid", 2.5),
              ("rectangle", 2.0), ("rectangle", 3.5)]
     for rule, order in cases:
         with pytest.raises(pyfracconv.ArgumentError) as ei:
@@ -530,3 +530,5 @@ def test_high_order_ranges_refused_with_message():
     # the edges of the new range are accepted
     assert make("rectangle", 1.0, 1.0, 1e-12, 1e6).terms == 0
     assert make("rectangle", 1.99, 1.0, 1e-10, 1e6).terms > 0
+    assert make("trapezoid", 1.0, 1.0, 1e-12, 1e6).terms == 0
+    assert make("trapezoid", 1.99, 1.0, 1e-10, 1e6).terms > 0

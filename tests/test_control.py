@@ -307,7 +307,7 @@ def test_refusals_leave_controller_unchanged():
     assert c.save() == before
     for kw in [dict(step=0), dict(output_limits=(1, 1)), dict(rate_limit=0),
                dict(derivative_filter=-1), dict(memory="big"),
-               dict(ki=1.0, integral_order=1.5, integral_rule="trapezoid"),
+               dict(ki=1.0, integral_order=2.5, integral_rule="trapezoid"),
                dict(kd=1.0, derivative_order=1.5)]:
         with pytest.raises(pf.ArgumentError):
             make(**kw)

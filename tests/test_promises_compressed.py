@@ -508,7 +508,8 @@ def test_near_one_impulse_response_mpmath(order):
 
 def test_order_range_boundary():
     # Documented range (fracconv.h): 1e-280 <= order < 1 for every rule,
-    # also 1 <= order < 2 for the rectangle rule; FC_ERR_ORDER outside.
+    # also 1 <= order < 2 for the rectangle and trapezoid rules;
+    # FC_ERR_ORDER outside.
     pp = ffi.new("fc_stream **")
     for rule in (RECT, TRAP, GRUN, L1):
         for order in (1e-280, float(np.nextafter(1.0, 0.0))):
@@ -521,11 +522,12 @@ def test_order_range_boundary():
             st = lib.fc_stream_create(rule, order, 1.0, 1, COMP, 1e-10, 1e6, pp)
             assert st == lib.FC_ERR_ORDER and pp[0] == ffi.NULL, (rule, order, st)
         st = lib.fc_stream_create(rule, 1.0, 1.0, 1, COMP, 1e-10, 1e6, pp)
-        assert (st == lib.FC_OK) == (rule == RECT)
+        assert (st == lib.FC_OK) == (rule in (RECT, TRAP))
         if st == lib.FC_OK:
             lib.fc_stream_free(pp[0])
-    st = lib.fc_stream_create(RECT, 2.0, 1.0, 1, COMP, 1e-10, 1e6, pp)
-    assert st == lib.FC_ERR_ORDER
+    for rule in (RECT, TRAP):
+        st = lib.fc_stream_create(rule, 2.0, 1.0, 1, COMP, 1e-10, 1e6, pp)
+        assert st == lib.FC_ERR_ORDER
 
 
 # ------------------------------------------------------------ range
@@ -535,7 +537,8 @@ BIG = 2.0 ** 964          # about 3.9e290; a power of two: scaling is exact
 
 @pytest.mark.parametrize("rule,order", [("rectangle", 0.5), ("rectangle", 0.999),
                                         ("trapezoid", 0.7), ("grunwald", 0.6),
-                                        ("l1", 0.4), ("rectangle", 1.5)])
+                                        ("l1", 0.4), ("rectangle", 1.5),
+                                        ("trapezoid", 1.5)])
 @pytest.mark.parametrize("horizon", [1e5, 1e15])
 def test_huge_samples_accepted_when_representable(rule, order, horizon):
     # Samples of magnitude 2^964 (> 1e290) with a unit step are accepted, and

@@ -229,7 +229,7 @@ BAD = [
     (dict(chunk=0), ArgumentError, "chunk=0"),
     (dict(chunk=2.5), InputTypeError, "chunk=2.5"),
     (dict(progress="yes"), InputTypeError, "progress='yes'"),
-    (dict(order=1.5), ArgumentError, "order=1.5"),  # compressed trapezoid >= 1
+    (dict(order=2.5), ArgumentError, "order=2.5"),  # compressed trapezoid >= 2
 ]
 
 
