@@ -33,7 +33,7 @@ import pytest
 import pyfracconv
 from pyfracconv import Stream, solve
 from solver_reference import mittag_leffler
-from test_compressed import EPS, lag_form, make, reference_at
+from test_compressed import EPS, check_state_behaviour, lag_form, make, reference_at
 
 ORDERS = [1.0, 1.0000001, 1.3, 1.5, 1.9, 1.9999999]
 KINDS = ["random", "positive", "alternating", "spikes"]
@@ -188,32 +188,10 @@ def test_linear_data_exact_integrals(order):
 
 @pytest.mark.parametrize("order", [1.0, 1.6])
 def test_state_behaviour(order):
-    # nbytes constant; preview == push bit for bit; history is the output
-    # without the current sample; a rejected block changes nothing; reset;
-    # channels equal single streams
-    x = data("random", 3000, seed=21)
-    s = make("trapezoid", order, 0.1, 1e-12, 1e6)
-    nb = s.nbytes
-    for v in x[:300]:
-        p = s.preview(v)
-        y = s.push(v)
-        assert y == p
-    s.push_many(x[300:1000])
-    bad = x[1000:1500].copy()
-    bad[77] = np.nan
-    with pytest.raises(pyfracconv.SampleError):
-        s.push_many(bad)
-    assert s.count == 1000 and s.nbytes == nb
-    y_rest = s.push_many(x[1000:])
-    fresh = make("trapezoid", order, 0.1, 1e-12, 1e6)
-    y_all = fresh.push_many(x)
-    assert np.array_equal(y_all[1000:], y_rest)
-    s.reset()
-    assert np.array_equal(s.push_many(x), y_all) and s.nbytes == nb
-    X = np.stack([x, -2 * x], axis=1)
-    ym = make("trapezoid", order, 0.1, 1e-12, 1e6, channels=2).push_many(X)
-    assert np.array_equal(ym[:, 0], y_all)
-    assert np.array_equal(ym[:, 1], make("trapezoid", order, 0.1, 1e-12, 1e6).push_many(-2 * x))
+    # as for the rectangle rule (test_compressed.check_state_behaviour),
+    # except that history() is not the output: c_0 != 0 for the trapezoid
+    check_state_behaviour("trapezoid", order, data("random", 3000, seed=21),
+                          history_is_output=False)
 
 
 @pytest.mark.parametrize("order", [1.0, 1.45, 1.9999999])
