@@ -49,8 +49,9 @@ from ._core import (
     show,
 )
 from ._checks import order_range, range_text
-from ._errors import FracconvError
+from ._errors import ArgumentError, FracconvError, InputTypeError
 from ._fracconv import lib
+from .records import apply_npy, open_npy
 
 __all__ = ["main", "CAUTION"]
 
@@ -316,34 +317,9 @@ def read_npy(path, columns=None):
             f"select by (only CSV files with a header row have them)"
         )
     try:
-        with open(path, "rb") as fh:
-            if os.fstat(fh.fileno()).st_size == 0:
-                raise CliError(f"{label}: file is empty")
-            arr = np.load(fh, allow_pickle=False)
-    except CliError:
-        raise
-    except OSError as exc:
-        if getattr(exc, "strerror", None):
-            raise CliError(f"cannot read input {label!r}: {exc.strerror}") from None
-        raise CliError(f"{label}: not a readable .npy file ({exc})") from None
-    except (ValueError, EOFError) as exc:
-        raise CliError(f"{label}: not a readable .npy file ({exc})") from None
-    if not isinstance(arr, np.ndarray):  # e.g. an .npz archive renamed
-        raise CliError(f"{label}: not a .npy array file")
-    if arr.dtype.kind not in "iuf":
-        raise CliError(
-            f"{label}: holds values of dtype {arr.dtype}; expected real numbers "
-            f"(integer or floating point)"
-        )
-    if arr.ndim not in (1, 2):
-        raise CliError(
-            f"{label}: array of shape {arr.shape}; expected 1-D (one signal) or "
-            f"2-D (time along axis 0, one signal per column)"
-        )
-    if arr.shape[0] == 0:
-        raise CliError(f"{label}: array of shape {arr.shape} holds no samples")
-    if arr.ndim == 2 and arr.shape[1] == 0:
-        raise CliError(f"{label}: array of shape {arr.shape} holds no columns")
+        arr = open_npy(path, label, mmap_mode=None)
+    except (ArgumentError, InputTypeError) as exc:
+        raise CliError(str(exc)) from None
     data = arr.astype(np.float64)
     bad = np.argwhere(~np.isfinite(data))
     if len(bad):
@@ -628,8 +604,6 @@ def _run_control(args):
 
 
 def _run_chunked(args):
-    from .records import apply_npy
-
     kind = args.kind
     allowed = INTEGRAL_RULES if kind == "integral" else DERIVATIVE_RULES
     rule = args.rule if args.rule is not None else allowed[0]

@@ -113,13 +113,15 @@ def _same_file(a: str, b: str) -> bool:
         return False
 
 
-def _open_input(path: str) -> np.ndarray[Any, Any]:
-    """The input record, memory-mapped read-only, after its checks."""
-    label = f"in_path={show(path)}"
+def open_npy(path: str, label: str,
+             mmap_mode: Optional[Literal["r"]] = "r") -> np.ndarray[Any, Any]:
+    """A ``.npy`` record of signals (1-D, or 2-D with time along axis 0)
+    after its checks, memory-mapped read-only by default; every error
+    names ``label``. The command line reads its ``.npy`` inputs here too."""
     try:
         if os.path.getsize(path) == 0:
             raise ArgumentError(f"{label}: the file is empty")
-        arr = np.load(path, mmap_mode="r", allow_pickle=False)
+        arr = np.load(path, mmap_mode=mmap_mode, allow_pickle=False)
     except ArgumentError:
         raise
     except OSError as exc:
@@ -326,7 +328,7 @@ def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
         raise ArgumentError(f"out_path={show(out)}: is a folder; expected a file name")
     bar_cls = _tqdm() if progress else None
 
-    src = _open_input(inp)
+    src = open_npy(inp, f"in_path={show(inp)}")
     shape = tuple(int(n) for n in src.shape)
     T = shape[0]
     C = shape[1] if len(shape) == 2 else 1
