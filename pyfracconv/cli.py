@@ -48,7 +48,7 @@ from ._core import (
     integral,
     show,
 )
-from ._checks import order_range, range_text
+from ._checks import COMPRESSED_TOL_RANGE, compressed_text, order_range, range_text
 from ._errors import ArgumentError, FracconvError, InputTypeError
 from ._fracconv import lib
 from .records import apply_npy, open_npy
@@ -699,6 +699,13 @@ def _order_text(rule):
     return range_text(order_range(rule, int(lib.FC_MODE_EXACT))).replace("order", "A")
 
 
+def _add_order_step(p, order_help):
+    """--order and --step, shared by the operator commands and chunked."""
+    p.add_argument("--order", metavar="A", required=True, help=order_help)
+    p.add_argument("--step", metavar="H", required=True,
+                   help="sampling step h > 0 (t_k = k*h)")
+
+
 def _add_operator(sub, name, rules, default, what, description):
     p = sub.add_parser(
         name,
@@ -711,11 +718,8 @@ def _add_operator(sub, name, rules, default, what, description):
                    help="CSV or .npy file of signals ('-': CSV on standard input)")
     p.add_argument("-o", "--output", metavar="OUTPUT", required=True,
                    help="output file, .csv or .npy ('-': CSV on standard output)")
-    p.add_argument("--order", metavar="A", required=True,
-                   help="order of the operator ("
-                        + "; ".join(f"{r}: {_order_text(r)}" for r in rules) + ")")
-    p.add_argument("--step", metavar="H", required=True,
-                   help="sampling step h > 0 (t_k = k*h)")
+    _add_order_step(p, "order of the operator ("
+                    + "; ".join(f"{r}: {_order_text(r)}" for r in rules) + ")")
     p.add_argument("--rule", metavar="RULE", default=default,
                    help=f"{' or '.join(rules)} (default {default})")
     p.add_argument("--columns", metavar="NAME,NAME...",
@@ -755,8 +759,8 @@ memory:
   for the stream, three buffers of 8 * ROWS * columns bytes, and up to
   16 MiB resident of each mapped file. Outputs are within --tol of the
   exact ones (relative to the sum of the absolute terms) over --horizon
-  samples (default: the record's length). Orders below 1, or below 2 for
-  the rectangle integral.
+  samples (default: the record's length).
+  {orders}
   exact: the exact stream keeps the whole history, about 70 bytes per
   sample and column (7 GB for 1e8 samples); refused when that exceeds the
   machine's memory.
@@ -778,7 +782,8 @@ def _add_chunked(sub):
             "time: compressed (bounded memory, within a stated tolerance) or "
             "exact (the whole history in memory)."
         ),
-        epilog=_CHUNKED_HELP + "\n" + CAUTION,
+        epilog=_CHUNKED_HELP.format(orders=textwrap.fill(
+            f"Orders: {compressed_text()}.", 74, subsequent_indent="  ")) + "\n" + CAUTION,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("kind", choices=("integral", "derivative"),
@@ -786,11 +791,8 @@ def _add_chunked(sub):
     p.add_argument("input", metavar="IN.npy", help="the record (.npy)")
     p.add_argument("-o", "--output", metavar="OUT.npy", required=True,
                    help="the result (.npy), not the input")
-    p.add_argument("--order", metavar="A", required=True,
-                   help="order of the operator, A > 0 (compressed: A < 1, or < 2 "
-                        "for the rectangle integral)")
-    p.add_argument("--step", metavar="H", required=True,
-                   help="sampling step h > 0 (t_k = k*h)")
+    _add_order_step(p, "order of the operator, A > 0 (compressed: "
+                    + compressed_text().replace("order", "A") + ")")
     p.add_argument("--rule", metavar="RULE",
                    help="integral: rectangle (default) or trapezoid; derivative: "
                         "grunwald (default) or l1")
@@ -798,8 +800,8 @@ def _add_chunked(sub):
                    help="compressed (default: bounded memory) or exact (memory "
                         "grows with the record)")
     p.add_argument("--tol", metavar="T",
-                   help="compressed: relative tolerance in [1e-15, 1e-2] "
-                        "(default 1e-12)")
+                   help="compressed: relative tolerance in [%g, %g] "
+                        "(default 1e-12)" % COMPRESSED_TOL_RANGE)
     p.add_argument("--horizon", metavar="N",
                    help="compressed: samples the tolerance is promised for "
                         "(default: the record's length)")

@@ -86,7 +86,7 @@ class Controller:
         keeps no stream for its action).
     integral_order, derivative_order : float
         lambda and mu. Compressed memory accepts 0 < order < 1 (and
-        1 <= lambda < 2 with the rectangle rule); exact memory 0 < order <= 10
+        1 <= lambda < 2 with either integral rule); exact memory 0 < order <= 10
         (L1: below 1).
     step : float
         Sampling period h > 0 (the time unit of the gains and of

@@ -236,7 +236,7 @@ def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
         ``'compressed'`` (default): bounded memory, outputs within ``tol``
         of the exact ones in the stream's componentwise sense (see
         :class:`pyfracconv.Stream`); orders below 1, or below 2 for the
-        rectangle integral. ``'exact'``: the exact stream, equal to the
+        integral rules (rectangle and trapezoid). ``'exact'``: the exact stream, equal to the
         batch functions to rounding, memory about 70 bytes per sample and
         column (refused before any work when that exceeds this machine's
         memory).

@@ -426,7 +426,7 @@ class Stream:
         ----------
         order : float
             Order a > 0 (at most 10; ``mode="compressed"`` needs a < 1, or
-            a < 2 with ``rule="rectangle"``).
+            a < 2 for the integral rules).
         step : float
             Grid step h > 0.
         rule : {'rectangle', 'trapezoid'}
