@@ -408,6 +408,11 @@ class Stepper:
         self._memory = memory
         self._lock = threading.Lock()
         self._set_callbacks(rhs, jacobian)
+        # step()'s buffers and their C views, made once
+        self._t1 = np.empty(1)
+        self._y1 = np.empty((1, m))
+        self._c1 = (ffi.from_buffer("double[]", self._t1),
+                    ffi.from_buffer("double[]", self._y1))
 
     def _set_callbacks(self, rhs, jacobian):
         self._run = _Run(rhs, jacobian, self._m, self._scalar)
@@ -474,13 +479,15 @@ class Stepper:
 
     # -------------------------------------------------------- stepping
 
-    def _advance_into(self, n, tbuf, ybuf, make_partial):
-        """Advance n steps writing into tbuf (n,) and ybuf (n, m); on a
-        failure raise with make_partial(done) as the partial result."""
+    def _advance_into(self, n, tbuf, ybuf, make_partial, cbufs=None):
+        """Advance n steps writing into tbuf (n,) and ybuf (n, m) (cbufs:
+        their C views when the caller holds them already); on a failure
+        raise with make_partial(done) as the partial result."""
         done = ffi.new("size_t *")
         self._run.fail = None
-        st = lib._fc_py_advance(self._s, n, ffi.from_buffer("double[]", tbuf),
-                                   ffi.from_buffer("double[]", ybuf), done)
+        tc, yc = cbufs if cbufs is not None else (
+            ffi.from_buffer("double[]", tbuf), ffi.from_buffer("double[]", ybuf))
+        st = lib._fc_py_advance(self._s, n, tc, yc, done)
         if st == 0:
             return
         k = int(done[0])
@@ -561,6 +568,41 @@ class Stepper:
         finally:
             self._lock.release()
         return tb, self._shape(yb)
+
+    def step(self):
+        """Advance by one step and return the new state: a float for a
+        scalar problem, else a new array of shape (m,). The same step as
+        ``advance(1)`` (bit for bit), without its per-call allocations:
+        for loops that feed each new state back, such as a simulated
+        plant in a control loop.
+
+        Raises
+        ------
+        RhsError, NewtonError
+            The step failed (``.partial`` is empty; nothing was advanced).
+        HorizonError
+            memory='compressed' and the step would pass the horizon.
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.01,
+        ...                        method="rectangle")
+        >>> y1 = s.step()      # explicit Euler for order 1: 1 - 0.01
+        >>> round(y1, 12), s.steps
+        (0.99, 1)
+        """
+        if not self._lock.acquire(False):
+            raise BusyError("step: the stepper is being used by another call")
+        try:
+            self._advance_into(1, self._t1, self._y1, self._no_steps, self._c1)
+        finally:
+            self._lock.release()
+        return float(self._y1[0, 0]) if self._scalar else self._y1[0].copy()
+
+    def _no_steps(self, k):
+        return SolveResult(np.empty(0), self._shape(np.empty((0, self._m))),
+                           *self._counts(), self._method, self._memory)
 
     def _shape(self, yb):
         return yb[:, 0] if self._scalar else yb
