@@ -286,7 +286,12 @@ typedef struct fc_stream fc_stream;
  * trapezoid rule). 64 eps is the rounding allowance (16 eps in the check
  * made at creation, the rest the arithmetic of a push; measured: below
  * 11 eps); at tol = 1e-15 it dominates. Nothing is promised past the
- * horizon (fc_stream_set_horizon_policy). Creation returns FC_ERR_TOL if
+ * horizon (fc_stream_set_horizon_policy). Outputs whose terms are in or
+ * near the subnormal range have an absolute error besides, below
+ * Lp DBL_MIN max_l |beta_l| (Lp: terms rounded up to 8): an exponential
+ * state or its compensation below DBL_MIN is set to zero, so that a
+ * stream fed zeros keeps the same work per sample (subnormal arithmetic
+ * is many times slower on common CPUs). Creation returns FC_ERR_TOL if
  * no construction passes its check: seen only for FC_RULE_GRUNWALD with
  * tol < 2e-15 and horizon > 1e14.
  * Range: finite samples never give NaN or inf. A compressed push or preview
