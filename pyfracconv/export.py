@@ -204,6 +204,9 @@ def _simulate(co, x, dtype, fused):
                 s = (S + t3).astype(T)
                 z = (s - S).astype(T)
                 e = ((S - (s - z)) + (t3 - z)).astype(T)
+                tiny = np.finfo(T).tiny  # the flush of the C code below
+                s = np.where(np.abs(s) >= tiny, s, T(0)).astype(T)
+                e = np.where(np.abs(e) >= tiny, e, T(0)).astype(T)
                 acc = np.zeros(8, T)
                 for blk in range(0, Lp, 8):
                     acc = fma(beta[blk:blk + 8], s[blk:blk + 8], acc)
@@ -547,6 +550,11 @@ int {P}_step({P}_state *st, {P}_real x, {P}_real *y);
                 {P}_real s = s0 + t3;
                 {P}_real zz = s - s0;
                 {P}_real e = (s0 - (s - zz)) + (t3 - zz);
+                /* below the smallest normal number: zero, as the library
+                   does, so the work per sample stays the same (subnormal
+                   arithmetic is slow or trapped on many processors) */
+                if (s < {U}_TINY && s > -{U}_TINY) s = {z};
+                if (e < {U}_TINY && e > -{U}_TINY) e = {z};
                 acc[k] = {U}_FMA({P}_beta[l + k], s, acc[k]);
                 nS[l + k] = s;
                 nSc[l + k] = e;
@@ -591,6 +599,7 @@ int {P}_step({P}_state *st, {P}_real x, {P}_real *y);
 #define {U}_USE_FMA 0
 #endif
 #endif
+#define {U}_TINY {"1.17549435082228751e-38f" if single else "2.2250738585072014e-308"}
 #if {U}_USE_FMA
 #define {U}_FMA(a, b, c) {fma_macro}((a), (b), (c))
 #else
