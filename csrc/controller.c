@@ -251,8 +251,10 @@ static int update1(fc_controller *c, double r, double y, double *uout)
         return FC_ERR_RANGE;
     /* Room for this sample in both streams first (an exact stream grows;
        a failed allocation refuses the update here, with nothing changed). */
-    if ((st = room_for_one(c->sd)) != FC_OK) return st;
-    if ((st = room_for_one(c->si)) != FC_OK) return st;
+    if (p->memory == FC_MODE_EXACT) {
+        if ((st = room_for_one(c->sd)) != FC_OK) return st;
+        if ((st = room_for_one(c->si)) != FC_OK) return st;
+    }
     /* Every refusal is behind us: the pushes repeat the previews. */
     double tmp;
     if (c->sd && (st = fc_stream_push1(c->sd, ed, &tmp)) != FC_OK) return st;
