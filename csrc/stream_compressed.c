@@ -132,6 +132,14 @@ typedef struct cs_engine {
     size_t corrcnt;
     double corrmax;           /* tcum: max |corr_n|, B <= n <= horizon */
     double umax;              /* largest accepted |u| (RANGE) */
+    /* One channel only: the states and output a preview computed, and the
+       sample and count it computed them for; a push of that very sample
+       next takes them (swapping S with pS) instead of computing the step
+       again, so a preview followed by its push costs one step. Not part
+       of the state: not saved, dropped by every push and by reset. */
+    double *pS, *pSc, py;
+    uint64_t pn, pbits;
+    int pvalid;
     void *mem;
     size_t memsize;
 } cs_engine;
@@ -140,7 +148,8 @@ typedef struct cs_engine {
 
 /* Portable kernel: the same operations and order as the AVX2 one. Term l
    receives d, or inj_l * d when inj is not NULL (the one step n = B of the
-   trapezoid rule). A new state s or compensation e below DBL_MIN in
+   trapezoid rule); the new states go to So, Sco (which may be S, Sc)
+   unless So is NULL. A new state s or compensation e below DBL_MIN in
    magnitude is set to +0 before it is used: a stream fed zeros (a
    controller's integral held at a limit, a signal that stops) would
    otherwise decay its states into the subnormal range, where arithmetic
@@ -148,8 +157,8 @@ typedef struct cs_engine {
    per sample would no longer be the same on every step. The error this
    adds is absolute, below Lp * DBL_MIN * max |beta_l| per output. */
 static void cs_terms_portable(size_t Lp, const double *q, const double *beta,
-                              const double *inj, double *S, double *Sc,
-                              double d, int commit, double acc_out[8])
+                              const double *inj, const double *S, const double *Sc,
+                              double *So, double *Sco, double d, double acc_out[8])
 {
     double acc[8] = {0, 0, 0, 0, 0, 0, 0, 0};
     for (size_t l = 0; l < Lp; l += 8) {
@@ -163,7 +172,7 @@ static void cs_terms_portable(size_t Lp, const double *q, const double *beta,
             if (!(fabs(s) >= DBL_MIN)) s = 0.0;
             if (!(fabs(e) >= DBL_MIN)) e = 0.0;
             acc[k] = fma(beta[l + k], s, acc[k]);
-            if (commit) { S[l + k] = s; Sc[l + k] = e; }
+            if (So) { So[l + k] = s; Sco[l + k] = e; }
         }
     }
     memcpy(acc_out, acc, sizeof acc);
@@ -190,8 +199,8 @@ static double cs_reduce8(const double a[8])
 #if CS_HAVE_AVX2
 __attribute__((target("avx2,fma")))
 static void cs_terms_avx2(size_t Lp, const double *q, const double *beta,
-                          const double *inj, double *S, double *Sc, double d,
-                          int commit, double acc_out[8])
+                          const double *inj, const double *S, const double *Sc,
+                          double *So, double *Sco, double d, double acc_out[8])
 {
     __m256d accA = _mm256_setzero_pd(), accB = _mm256_setzero_pd();
     const __m256d dv = _mm256_set1_pd(d);
@@ -217,11 +226,11 @@ static void cs_terms_avx2(size_t Lp, const double *q, const double *beta,
         e0 = CS_FLUSH(e0); e1 = CS_FLUSH(e1);
         accA = _mm256_fmadd_pd(_mm256_loadu_pd(beta + l), s0, accA);
         accB = _mm256_fmadd_pd(_mm256_loadu_pd(beta + l + 4), s1, accB);
-        if (commit) {
-            _mm256_storeu_pd(S + l, s0);
-            _mm256_storeu_pd(S + l + 4, s1);
-            _mm256_storeu_pd(Sc + l, e0);
-            _mm256_storeu_pd(Sc + l + 4, e1);
+        if (So) {
+            _mm256_storeu_pd(So + l, s0);
+            _mm256_storeu_pd(So + l + 4, s1);
+            _mm256_storeu_pd(Sco + l, e0);
+            _mm256_storeu_pd(Sco + l + 4, e1);
         }
     }
     _mm256_storeu_pd(acc_out, accA);
@@ -254,16 +263,17 @@ static int cs_cpu_avx2(void)
 static int cs_cpu_avx2(void) { return 0; }
 #endif
 
-static void cs_terms(const cs_engine *cs, const double *inj, double *S,
-                     double *Sc, double d, int commit, double acc[8])
+static void cs_terms(const cs_engine *cs, const double *inj, const double *S,
+                     const double *Sc, double *So, double *Sco, double d,
+                     double acc[8])
 {
 #if CS_HAVE_AVX2
     if (cs->simd) {
-        cs_terms_avx2(cs->Lp, cs->q, cs->beta, inj, S, Sc, d, commit, acc);
+        cs_terms_avx2(cs->Lp, cs->q, cs->beta, inj, S, Sc, So, Sco, d, acc);
         return;
     }
 #endif
-    cs_terms_portable(cs->Lp, cs->q, cs->beta, inj, S, Sc, d, commit, acc);
+    cs_terms_portable(cs->Lp, cs->q, cs->beta, inj, S, Sc, So, Sco, d, acc);
 }
 
 static double cs_band(const cs_engine *cs, const double *w)
@@ -290,7 +300,9 @@ static inline void cs_dd_add(double *hi, double *lo, double x)
 
 /*
  * One time step for all channels. mode 0: push (commit), 1: preview,
- * 2: history (u_n and, at n = 0, x_0 taken as unknown = 0).
+ * 2: history (u_n and, at n = 0, x_0 taken as unknown = 0), 3: push of
+ * the sample the last preview computed (one channel, cs->pvalid): its
+ * states and output are taken as they are.
  * Every mode performs the same arithmetic on the values it uses, so a
  * preview equals the push bit for bit.
  */
@@ -319,7 +331,7 @@ static double cs_corr_at(cs_engine *cs, uint64_t n)
 static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
 {
     const size_t B = CS_BAND, C = cs->C;
-    const int commit = mode == 0;
+    const int commit = mode == 0 || mode == 3;
     const uint64_t n = cs->n;
     const size_t pos = (size_t)(n % B);
     /* trapezoid: corr_n x_0 from the table for n < B; for n >= B it is
@@ -342,18 +354,35 @@ static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
             u = Xhi;
         } else u = xc;
         double *ring = cs->ring + c * 2 * B;
-        double d = ring[pos];             /* u_{n-B} (0 while n < B) */
-        double acc[8];
-        double terms = 0.0;
-        if (cs->L) {
-            cs_terms(cs, inject ? cs->inj : NULL, cs->S + c * cs->Lp,
-                     cs->Sc + c * cs->Lp, d, commit, acc);
-            terms = cs_reduce8(acc);
+        double yc;
+        if (mode == 3) {
+            double *t = cs->S;
+            cs->S = cs->pS; cs->pS = t;
+            t = cs->Sc;
+            cs->Sc = cs->pSc; cs->pSc = t;
+            yc = cs->py;
+        } else {
+            double d = ring[pos];         /* u_{n-B} (0 while n < B) */
+            double acc[8];
+            double terms = 0.0;
+            double *S = cs->S + c * cs->Lp, *Sc = cs->Sc + c * cs->Lp;
+            double *So = mode == 0 ? S : mode == 1 ? cs->pS : NULL;
+            double *Sco = mode == 0 ? Sc : mode == 1 ? cs->pSc : NULL;
+            if (cs->L) {
+                cs_terms(cs, inject ? cs->inj : NULL, S, Sc, So, Sco, d, acc);
+                terms = cs_reduce8(acc);
+            }
+            /* window u_{n-B+1} .. u_{n-1}, u_{n-B} (weight 0) */
+            double band = cs_band(cs, ring + pos + 1);
+            double x0 = n == 0 ? xc : cs->tcum ? cs->xfirst[c] : cs->x0[c];
+            yc = ((terms + band) + cs->c0 * u) + corr * x0;
+            if (mode == 1 && cs->pS) {
+                cs->py = yc;
+                cs->pn = n;
+                memcpy(&cs->pbits, &xc, sizeof xc);
+                cs->pvalid = 1;
+            }
         }
-        /* window u_{n-B+1} .. u_{n-1}, u_{n-B} (weight 0) */
-        double band = cs_band(cs, ring + pos + 1);
-        double x0 = n == 0 ? xc : cs->tcum ? cs->xfirst[c] : cs->x0[c];
-        double yc = ((terms + band) + cs->c0 * u) + corr * x0;
         y[c] = yc;
         if (commit) {
             ring[pos] = u;
@@ -369,7 +398,10 @@ static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
             }
         }
     }
-    if (commit) cs->n = n + 1;
+    if (commit) {
+        cs->n = n + 1;
+        cs->pvalid = 0;
+    }
 }
 
 /*
@@ -406,6 +438,14 @@ static int cs_push_block(void *eng, const double *x, size_t count, double *y)
 {
     cs_engine *cs = eng;
     int st;
+    uint64_t bits;
+    if (count == 1 && cs->pvalid && cs->pn == cs->n) {
+        memcpy(&bits, x, sizeof bits);
+        if (bits == cs->pbits) {      /* the previewed sample: checked then */
+            cs_step(cs, x, y, 3);
+            return FC_OK;
+        }
+    }
     if ((st = cs_check_block(cs, x, count)) != FC_OK) return st;
     for (size_t t = 0; t < count; t++)
         cs_step(cs, x + t * cs->C, y + t * cs->C, 0);
@@ -443,6 +483,7 @@ static void cs_reset(void *eng)
     memset(cs->x0, 0, C * sizeof(double));
     if (cs->xfirst) memset(cs->xfirst, 0, C * sizeof(double));
     cs->n = 0;
+    cs->pvalid = 0;
 }
 
 static uint64_t cs_count(const void *eng)
@@ -473,10 +514,11 @@ static int cs_alloc(size_t C, size_t Lp, int tcum, cs_engine **out)
 {
     const size_t B = CS_BAND;
     size_t nd = 0, t;
-    /* shared: 3*Lp + 2*B (tcum: + CS_CORR_BLK); per channel: 2B + 2*Lp + 2
-       (tcum: + 1) */
+    /* shared: 3*Lp + 2*B (tcum: + CS_CORR_BLK; one channel: + 2*Lp for
+       the preview's states); per channel: 2B + 2*Lp + 2 (tcum: + 1) */
     size_t per;
-    const size_t xper = tcum ? 1 : 0, xsh = tcum ? CS_CORR_BLK : 0;
+    const size_t xper = tcum ? 1 : 0;
+    const size_t xsh = (tcum ? CS_CORR_BLK : 0) + (C == 1 ? 2 * Lp : 0);
     if (fc__mul_size(2, Lp, &per) || fc__add_size(per, 2 * B + 2 + xper, &per) ||
         fc__mul_size(per, C, &t) || fc__add_size(t, 3 * Lp + 2 * B + xsh, &nd) ||
         fc__mul_size(nd, sizeof(double), &t) || fc__add_size(t, 64, &t))
@@ -501,6 +543,10 @@ static int cs_alloc(size_t C, size_t Lp, int tcum, cs_engine **out)
     if (tcum) {
         cs->xfirst = p; p += C;
         cs->corrbuf = p; p += CS_CORR_BLK;
+    }
+    if (C == 1) {
+        cs->pS = p; p += Lp;
+        cs->pSc = p; p += Lp;
     }
     cs->tcum = tcum;
     cs->corrbase = 0;
@@ -751,8 +797,8 @@ static int cs_dd_ok(double hi, double lo)
  *    xprev (the last sample, or for a >= 1 the high part of X); L1: slot 0
  *    holds u_0 = +0 while n <= B, and xprev = x0 = x_0 when n = 1;
  *  - rectangle and trapezoid a >= 1 (cum): (xprev, x0) is the
- *    double-double X; trapezoid a >= 1 (tcum): xfirst = x_0 = X_0, which
- *    is ring slot 0 while n <= B, +0 at n = 0, and |x_0| <= umax;
+ *    double-double X; trapezoid a >= 1 (tcum): xfirst = x_0, with
+ *    x_0 + 0 = X_0 (-0 gives +0) ring slot 0 while n <= B, +0 at n = 0, and |x_0| <= umax;
  *    otherwise x0 = x_0, which is ring slot 0 while n <= B, and |x_0| <=
  *    umax outside L1 (x_0 = u_0).
  */
@@ -782,7 +828,8 @@ static int cs_state_ok(const cs_engine *cs)
             const double xf = cs->xfirst[c];
             if (n == 0 && !cs_zero_bits(xf)) return 0;
             if (!(fabs(xf) <= U)) return 0;
-            if (n >= 1 && n <= B && !cs_same(xf, ring[0])) return 0;
+            /* X_0 = +0 + x_0 (cs_dd_add): x_0 = -0 gives X_0 = +0 */
+            if (n >= 1 && n <= B && !cs_same(xf + 0.0, ring[0])) return 0;
         }
         if (n == 0) {
             if (!cs_zero_bits(xp) || !cs_zero_bits(x0)) return 0;
