@@ -71,8 +71,11 @@ clean:
 # C++17 wrapper (csrc/fracconv.hpp, header-only) and its example program.
 CXX ?= c++
 .PHONY: cpp-example
-cpp-example: $(BUILD)/example_cpp
+cpp-example: $(BUILD)/example_cpp $(BUILD)/solver_controller_cpp
 $(BUILD)/example_cpp: examples/example.cpp csrc/fracconv.hpp csrc/fracconv.h $(BUILD)/libfracconv.a
+	$(CXX) -O2 -std=c++17 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
+# the solver and the controller through the wrapper (tests/test_cpp.py)
+$(BUILD)/solver_controller_cpp: examples/solver_controller.cpp csrc/fracconv.hpp csrc/fracconv.h $(BUILD)/libfracconv.a
 	$(CXX) -O2 -std=c++17 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
 
 # Fortran 2008 module (fortran/fracconv.f90) and its example program.
