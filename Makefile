@@ -83,10 +83,14 @@ FC = gfortran
 # -Wno-compare-reals: the example compares bit for bit on purpose
 FFLAGS = -O2 -std=f2008 -Wall -Wextra -Werror -Wno-compare-reals
 .PHONY: fortran-example
-fortran-example: $(BUILD)/example_f90
+fortran-example: $(BUILD)/example_f90 $(BUILD)/solver_controller_f90
 $(BUILD)/example_f90: fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a
 	@mkdir -p $(BUILD)/fmod
 	$(FC) $(FFLAGS) -J $(BUILD)/fmod fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a -lm -o $@
+# the solver and the controller through the module (tests/test_fortran.py)
+$(BUILD)/solver_controller_f90: fortran/fracconv.f90 examples/solver_controller.f90 $(BUILD)/libfracconv.a
+	@mkdir -p $(BUILD)/fmod-sc
+	$(FC) $(FFLAGS) -J $(BUILD)/fmod-sc fortran/fracconv.f90 examples/solver_controller.f90 $(BUILD)/libfracconv.a -lm -o $@
 
 # ------------------------------------------------------------- install
 # make install PREFIX=/usr/local [DESTDIR=/staging]: the headers
