@@ -157,75 +157,102 @@ def _simulate(co, x, dtype, fused):
     products of the fma() calls rounded once (emulated through float64, a
     double rounding that may differ from a true fma in the last bit), else
     multiply then add."""
-    T = dtype
-    Lp = co["Lp"]
-    q, beta, inj = (np.asarray(co[k], T) for k in ("qp", "betap", "injp"))
-    cb, ctab = np.asarray(co["cb"], T), np.asarray(co["ctab"], T)
-    c0 = T(co["c0"])
-    rule, cum = co["rule"], co["cum"]
-    trap, l1 = rule == lib.FC_RULE_TRAPEZOID, rule == lib.FC_RULE_L1
+    op = _OpSim(co, dtype, fused)
+    y = np.empty(len(x), dtype)
+    with np.errstate(all="ignore"):
+        for n, xv in enumerate(np.asarray(x, dtype)):
+            y[n] = op.out(xv, True)
+    return y.astype(np.float64)
 
-    def fma(a, b, c):
-        if fused:
+
+class _OpSim:
+    """One exported operator's state and update, step by step, in NumPy
+    arithmetic of type dtype (see _simulate); out(x, commit=False) is the
+    output for sample x without changing the state (the library's
+    fc_stream_preview), out(x, True) pushes it."""
+
+    def __init__(self, co, dtype, fused):
+        T = self.T = dtype
+        self.co = co
+        self.fused = fused
+        self.Lp = co["Lp"]
+        self.q, self.beta, self.inj = (np.asarray(co[k], T) for k in ("qp", "betap", "injp"))
+        self.cb, self.ctab = np.asarray(co["cb"], T), np.asarray(co["ctab"], T)
+        self.c0 = T(co["c0"])
+        self.trap = co["rule"] == lib.FC_RULE_TRAPEZOID
+        self.l1 = co["rule"] == lib.FC_RULE_L1
+        self.cum = co["cum"]
+        self.ring = np.zeros(2 * BAND, T)
+        self.S = np.zeros(self.Lp, T)
+        self.Sc = np.zeros(self.Lp, T)
+        self.xprev, self.x0s = T(0), T(0)
+        self.n = 0
+
+    def _fma(self, a, b, c):
+        T = self.T
+        if self.fused:
             return (np.asarray(a, np.float64) * np.asarray(b, np.float64)
                     + np.asarray(c, np.float64)).astype(T)
         return (a * b).astype(T) + c
 
-    ring = np.zeros(2 * BAND, T)
-    S = np.zeros(Lp, T)
-    Sc = np.zeros(Lp, T)
-    xprev, x0s = T(0), T(0)
-    y = np.empty(len(x), T)
-    with np.errstate(all="ignore"):
-        for n, xv in enumerate(np.asarray(x, T)):
-            pos = n % BAND
-            Xhi = Xlo = T(0)
-            if l1:
-                u = T(0) if n == 0 else T(xv - xprev)
-            elif cum:
-                h, lo = xprev, x0s
-                s_ = T(h + xv)
-                z = T(s_ - h)
-                e = T(T(h - T(s_ - z)) + T(xv - z))
-                t = T(lo + e)
-                H = T(s_ + t)
-                z = T(H - s_)
-                Xlo = T(T(s_ - T(H - z)) + T(t - z))
-                Xhi = H
-                u = Xhi
-            else:
-                u = xv
-            d = ring[pos]
-            terms = T(0)
-            if co["L"]:
-                dd = (inj * d).astype(T) if (trap and n == BAND) else np.full(Lp, d, T)
-                t = fma(-q, S, dd)
-                t3 = (t + Sc).astype(T)
-                s = (S + t3).astype(T)
-                z = (s - S).astype(T)
-                e = ((S - (s - z)) + (t3 - z)).astype(T)
-                acc = np.zeros(8, T)
-                for blk in range(0, Lp, 8):
-                    acc = fma(beta[blk:blk + 8], s[blk:blk + 8], acc)
-                S, Sc = s, e
-                terms = _reduce8(acc, T)
-            w = ring[pos + 1:pos + 1 + BAND]
-            acc16 = np.zeros(16, T)
-            for j in range(0, BAND, 16):
-                acc16 = fma(cb[j:j + 16], w[j:j + 16], acc16)
-            band = _reduce8((acc16[:8] + acc16[8:]).astype(T), T)
-            x0 = xv if n == 0 else x0s
-            corr = ctab[n] if (trap and n < BAND) else T(0)
-            y[n] = T(T(T(terms + band) + T(c0 * u)) + T(corr * x0))
+    def out(self, xv, commit=False):
+        T, fma, n = self.T, self._fma, self.n
+        xv = T(xv)
+        pos = n % BAND
+        Xhi = Xlo = T(0)
+        if self.l1:
+            u = T(0) if n == 0 else T(xv - self.xprev)
+        elif self.cum:
+            h, lo = self.xprev, self.x0s
+            s_ = T(h + xv)
+            z = T(s_ - h)
+            e = T(T(h - T(s_ - z)) + T(xv - z))
+            t = T(lo + e)
+            H = T(s_ + t)
+            z = T(H - s_)
+            Xlo = T(T(s_ - T(H - z)) + T(t - z))
+            Xhi = H
+            u = Xhi
+        else:
+            u = xv
+        ring = self.ring
+        d = ring[pos]
+        terms = T(0)
+        S = Sc = None
+        if self.co["L"]:
+            dd = ((self.inj * d).astype(T) if (self.trap and n == BAND)
+                  else np.full(self.Lp, d, T))
+            t = fma(-self.q, self.S, dd)
+            t3 = (t + self.Sc).astype(T)
+            s = (self.S + t3).astype(T)
+            z = (s - self.S).astype(T)
+            e = ((self.S - (s - z)) + (t3 - z)).astype(T)
+            acc = np.zeros(8, T)
+            for blk in range(0, self.Lp, 8):
+                acc = fma(self.beta[blk:blk + 8], s[blk:blk + 8], acc)
+            S, Sc = s, e
+            terms = _reduce8(acc, T)
+        w = ring[pos + 1:pos + 1 + BAND]
+        acc16 = np.zeros(16, T)
+        for j in range(0, BAND, 16):
+            acc16 = fma(self.cb[j:j + 16], w[j:j + 16], acc16)
+        band = _reduce8((acc16[:8] + acc16[8:]).astype(T), T)
+        x0 = xv if n == 0 else self.x0s
+        corr = self.ctab[n] if (self.trap and n < BAND) else T(0)
+        y = T(T(T(terms + band) + T(self.c0 * u)) + T(corr * x0))
+        if commit:
+            if S is not None:
+                self.S, self.Sc = S, Sc
             ring[pos] = u
             ring[pos + BAND] = u
-            if cum:
-                xprev, x0s = Xhi, Xlo
+            if self.cum:
+                self.xprev, self.x0s = Xhi, Xlo
             else:
-                xprev = xv
+                self.xprev = xv
                 if n == 0:
-                    x0s = xv
-    return y.astype(np.float64)
+                    self.x0s = xv
+            self.n = n + 1
+        return y
 
 
 def _reduce8(a, T):
