@@ -814,14 +814,14 @@ class _CtlSim:
         D = T(c["kd"] * draw)
         if k["tf"] > 0:
             D = T(T(T(c["tf"] * self.dfilt) + T(c["step"] * D)) / T(c["tf"] + c["step"]))
-        I = T(c["ki"] * iv)
+        Ia = T(c["ki"] * iv)
         bias = self.bias
         if self.manual:
             u = self._clamp_out(self.u_manual)
-            bias = T(u - T(T(P + I) + D))
+            bias = T(u - T(T(P + Ia) + D))
             v = u
         else:
-            v = T(T(T(P + I) + D) + bias)
+            v = T(T(T(P + Ia) + D) + bias)
             u = self._limit(v)
             if u != v and self.opi and k["aw"] and xi != 0:
                 push = T(c["ki"] * xi)
@@ -829,16 +829,16 @@ class _CtlSim:
                     ve, ue, e0 = v, u, xi
                     xi = T(0)
                     iv = self.opi.out(xi)
-                    I = T(c["ki"] * iv)
-                    v = T(T(T(P + I) + D) + bias)
+                    Ia = T(c["ki"] * iv)
+                    v = T(T(T(P + Ia) + D) + bias)
                     u = self._limit(v)
                     if (ve > ue and v < ue) or (ve < ue and v > ue):
                         f = T(T(ue - v) / T(ve - v))
                         if f > 0 and f < 1:
                             xi = T(e0 * f)
                             iv = self.opi.out(xi)
-                            I = T(c["ki"] * iv)
-                            v = T(T(T(P + I) + D) + bias)
+                            Ia = T(c["ki"] * iv)
+                            v = T(T(T(P + Ia) + D) + bias)
                             u = self._limit(v)
         if self.opd:
             self.opd.out(ed, True)
