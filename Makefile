@@ -71,8 +71,11 @@ clean:
 # C++17 wrapper (csrc/fracconv.hpp, header-only) and its example program.
 CXX ?= c++
 .PHONY: cpp-example
-cpp-example: $(BUILD)/example_cpp
+cpp-example: $(BUILD)/example_cpp $(BUILD)/solver_controller_cpp
 $(BUILD)/example_cpp: examples/example.cpp csrc/fracconv.hpp csrc/fracconv.h $(BUILD)/libfracconv.a
+	$(CXX) -O2 -std=c++17 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
+# the solver and the controller through the wrapper (tests/test_cpp.py)
+$(BUILD)/solver_controller_cpp: examples/solver_controller.cpp csrc/fracconv.hpp csrc/fracconv.h $(BUILD)/libfracconv.a
 	$(CXX) -O2 -std=c++17 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
 
 # Fortran 2008 module (fortran/fracconv.f90) and its example program.
@@ -80,10 +83,14 @@ FC = gfortran
 # -Wno-compare-reals: the example compares bit for bit on purpose
 FFLAGS = -O2 -std=f2008 -Wall -Wextra -Werror -Wno-compare-reals
 .PHONY: fortran-example
-fortran-example: $(BUILD)/example_f90
+fortran-example: $(BUILD)/example_f90 $(BUILD)/solver_controller_f90
 $(BUILD)/example_f90: fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a
 	@mkdir -p $(BUILD)/fmod
 	$(FC) $(FFLAGS) -J $(BUILD)/fmod fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a -lm -o $@
+# the solver and the controller through the module (tests/test_fortran.py)
+$(BUILD)/solver_controller_f90: fortran/fracconv.f90 examples/solver_controller.f90 $(BUILD)/libfracconv.a
+	@mkdir -p $(BUILD)/fmod-sc
+	$(FC) $(FFLAGS) -J $(BUILD)/fmod-sc fortran/fracconv.f90 examples/solver_controller.f90 $(BUILD)/libfracconv.a -lm -o $@
 
 # ------------------------------------------------------------- install
 # make install PREFIX=/usr/local [DESTDIR=/staging]: the headers

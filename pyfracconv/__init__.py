@@ -57,7 +57,7 @@ c_version = _ffi.string(_lib.fc_version_string()).decode()
 
 from .stream import Stream
 from .solve import NewtonError, RhsError, SolveResult, SolverError, Stepper, solve
-from .export import export_c
+from .export import export_c, export_controller_c
 from .control import Controller, HorizonWarning
 from .frequency import FrequencyResponse, controller_response, operator_response
 
@@ -71,6 +71,7 @@ __all__ = [
     "Stream",
     "solve",
     "export_c",
+    "export_controller_c",
     "Stepper",
     "SolveResult",
     "Controller",

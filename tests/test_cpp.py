@@ -6,8 +6,14 @@ h^a n^a / Gamma(a+1) (common practice; Podlubny 1999, docs/references.md),
 the wrapper against the C API called directly (agreement between
 interfaces: bit for bit), streams, save/load and the error type. Here the
 printed values are also checked against the closed form independently of
-the program's own verdict."""
+the program's own verdict.
 
+examples/solver_controller.cpp (the solver and controller classes): its
+relaxation solutions against the Mittag-Leffler function summed with
+mpmath, its controller outputs against pyfracconv.Controller fed the same
+inputs."""
+
+import math
 import os
 import re
 import shutil
@@ -64,15 +70,14 @@ def test_header_compiles_alone_pedantic(tmp_path):
 
 
 def _doc_block(lang):
-    with open(os.path.join(ROOT, "docs", "compiled.md")) as f:
-        text = f.read()
-    blocks = re.findall(r"```" + lang + r"\n(.*?)```", text, re.S)
-    assert len(blocks) == 1, f"expected one {lang} block in docs/compiled.md"
-    return blocks[0]
+    # the README's quick.cpp (section "Compiled callers")
+    import readme_c
+    return readme_c.doc_program(lang)
 
 
 def test_docs_cpp_example_builds_and_runs(example, tmp_path):
-    # the README-ready example, built as its comment says (with -Werror too)
+    # the README's example, built from the checkout (with -Werror too);
+    # tests/test_install.py builds it against an installed prefix
     build = tmp_path / "build"
     subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
                    capture_output=True, text=True)
@@ -86,3 +91,76 @@ def test_docs_cpp_example_builds_and_runs(example, tmp_path):
     out = subprocess.run([str(exe)], capture_output=True, text=True)
     assert out.returncode == 0, out.stdout
     assert "refused (status 3)" in out.stdout
+    # D y = -y, y(0) = 1: exp(-t) (closed form); the predictor-corrector's
+    # error at h = 0.01 is 6e-6 (measured)
+    m = re.search(r"D y = -y at t=1: (\S+)", out.stdout)
+    assert m and abs(float(m.group(1)) - math.exp(-1.0)) < 2e-5
+
+
+# ------------------------------------------------ solver and controller
+
+@pytest.fixture(scope="module")
+def solver_controller(tmp_path_factory):
+    """examples/solver_controller.cpp (make cpp-example), built and run."""
+    if CXX is None:
+        pytest.fail("g++ is needed for the C++ wrapper tests")
+    build = tmp_path_factory.mktemp("cppsc")
+    r = subprocess.run(["make", "-C", ROOT, f"BUILD={build}", f"CXX={CXX}", "lib",
+                        "cpp-example"], capture_output=True, text=True)
+    assert r.returncode == 0, r.stdout + r.stderr
+    return subprocess.run([str(build / "solver_controller_cpp")], capture_output=True, text=True)
+
+
+def test_cpp_solver_controller_program_passes(solver_controller):
+    # its own checks: lambdas with captured state as rhs and Jacobian, a
+    # callback's exception rethrown with the steps before it kept,
+    # save/load bit for bit, moved-from and bad arguments refused
+    out = solver_controller
+    assert out.returncode == 0, out.stdout + out.stderr
+    assert "all solver and controller checks passed" in out.stdout
+    assert "FAIL" not in out.stdout
+
+
+def test_cpp_solver_matches_mittag_leffler(solver_controller):
+    # D^a y = -y, y(0) = 1: y = E_a(-t^a) (Gorenflo, Kilbas, Mainardi and
+    # Rogosin, Mittag-Leffler Functions, Springer 2014), summed with mpmath
+    # (tests/solver_reference.py); a = 1 also against math.exp(-t). The
+    # bounds are the methods' errors at h = 1/256 measured once (a = 1:
+    # 9.4e-7; a = 0.6: 5.0e-6 predictor-corrector, 9.7e-6 trapezoid) with
+    # a margin of 2 to 3: a method that lost an order would fail them.
+    from solver_reference import mittag_leffler
+    rows = re.findall(r"relax (\S+) a=(\S+) t=(\S+) y=(\S+)", solver_controller.stdout)
+    assert len(rows) == 16
+    for tag, a, t, y in rows:
+        a, t, y = float(a), float(t), float.fromhex(y)
+        ref = mittag_leffler(a, 1, -t ** a)
+        if a == 1.0:
+            assert abs(ref - math.exp(-t)) < 1e-15
+            assert abs(y - ref) < 2e-6, (tag, t)
+        else:
+            assert abs(y - ref) < (3e-5 if tag == "trapezoid" else 1.5e-5), (tag, t, y - ref)
+
+
+def test_cpp_controller_equals_python_controller(solver_controller):
+    # the same parameters and inputs to pyfracconv.Controller (the same C
+    # code behind both interfaces: equal to the last bit)
+    import pyfracconv
+    rows = re.findall(r"ctl (\d+) (\S+) (\S+) (\S+)", solver_controller.stdout)
+    assert len(rows) == 600
+    c = pyfracconv.Controller(2.0, 1.5, 0.3, integral_order=0.7, derivative_order=0.4,
+                              step=0.01, output_limits=(-1.0, 1.2), rate_limit=40.0,
+                              setpoint_weight=0.8, derivative_weight=0.0,
+                              derivative_filter=0.05, integral_rule="trapezoid",
+                              derivative_rule="grunwald", memory="compressed",
+                              tol=1e-10, horizon=1e9)
+    limited = 0
+    for n, r, y, u in rows:
+        n = int(n)
+        if n == 200:
+            c.manual(0.25)
+        if n == 260:
+            c.automatic()
+        got = c.update(float.fromhex(r), float.fromhex(y))
+        assert got == float.fromhex(u), n
+        limited += c.limited
+    assert limited > 20  # the limits and the rate limit were exercised
