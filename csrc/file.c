@@ -144,6 +144,10 @@ int fc_file_read(const char *path, size_t max_size, unsigned char **data,
         err = S_ISDIR(st.st_mode) ? EISDIR : EINVAL;
         goto done;
     }
+    if (st.st_size > 0 && (uintmax_t)st.st_size > (uintmax_t)max_size) {
+        status = FC_ERR_SIZE;  /* too long already: nothing read */
+        goto done;
+    }
     cap = 4096;
     if (st.st_size > 0 && (uintmax_t)st.st_size < (uintmax_t)limit)
         cap = (size_t)st.st_size + 1;      /* + 1: see the end without a realloc */

@@ -706,8 +706,9 @@ FC_API int fc_controller_load(const unsigned char *buf, size_t size,
  * fc_file_read(path, max_size, &data, &size) reads a whole regular file
  * of at most max_size bytes into a new buffer (*data, free it with
  * fc_file_data_free; *size bytes); a longer file is refused with
- * FC_ERR_SIZE after reading at most max_size + 1 bytes, so max_size
- * bounds the memory an untrusted file can make the library allocate.
+ * FC_ERR_SIZE (before any read when its size says so, else once the
+ * (max_size + 1)-th byte is read: the file may grow), so max_size bounds
+ * the memory an untrusted file can make the library allocate.
  * The loaders treat the bytes as untrusted input (FC_ERR_FORMAT).
  *
  * Errors: FC_ERR_IO when a system call fails (missing directory or file,
