@@ -73,7 +73,7 @@ static char *dir_of(const char *path, size_t len)
    is taken as having nothing to sync. Returns 0 or an errno value. */
 static int sync_dir(const char *dir)
 {
-    int fd = open(dir, O_RDONLY | O_DIRECTORY);
+    int fd = open(dir, O_RDONLY | O_DIRECTORY | O_CLOEXEC);
     int err = 0;
     if (fd < 0) return errno;
     if (fsync(fd) != 0 && errno != EINVAL) err = errno;
@@ -104,6 +104,8 @@ int fc_file_write(const char *path, const unsigned char *data, size_t size)
     if (fd < 0) {
         err = errno;
     } else {
+        /* not inherited by programs this process starts (best effort) */
+        (void)fcntl(fd, F_SETFD, FD_CLOEXEC);
         if (write_all(fd, data, size) != 0 || fsync(fd) != 0) err = errno;
         if (close(fd) != 0 && err == 0) err = errno;
         if (err == 0 && rename(tmp, path) != 0) err = errno;
@@ -127,7 +129,7 @@ int fc_file_read(const char *path, size_t max_size, unsigned char **data,
     if (path[0] == '\0') return FC_ERR_ARG;
     /* O_NONBLOCK: opening a FIFO must not wait for a writer; it has no
        effect on reading a regular file */
-    int fd = open(path, O_RDONLY | O_NONBLOCK);
+    int fd = open(path, O_RDONLY | O_NONBLOCK | O_CLOEXEC);
     if (fd < 0) return FC_ERR_IO;
     struct stat st;
     int err = 0, status = FC_OK;

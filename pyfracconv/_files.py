@@ -10,8 +10,11 @@ treats them as untrusted input. Nothing here writes or reads a file itself.
 from __future__ import annotations
 
 import errno as errno_mod
+import numbers
 import os
-from typing import Any, Union
+from typing import Any
+
+import numpy as np
 
 from ._errors import ArgumentError, FileError, InputTypeError, StateError, raise_for_status, show
 from ._fracconv import ffi, lib
@@ -23,7 +26,6 @@ __all__ = ["DEFAULT_MAX_SIZE", "check_path", "check_write_path", "check_max_size
 #: is refused before it is all read. Pass ``max_size`` for larger states.
 DEFAULT_MAX_SIZE = 2**30
 
-PathLike = Union[str, bytes, "os.PathLike[str]", "os.PathLike[bytes]"]
 
 
 def check_path(name: str, path: object) -> bytes:
@@ -52,13 +54,15 @@ def check_write_path(path: object) -> bytes:
 
 
 def check_max_size(max_size: object) -> int:
-    if isinstance(max_size, bool) or not isinstance(max_size, int):
+    """The bound of a load_file: an integer in [0, 2**63 - 1]."""
+    if isinstance(max_size, (bool, np.bool_)) or not isinstance(max_size, numbers.Integral):
         raise InputTypeError(
             f"max_size={show(max_size)}: expected an integer, got {type(max_size).__name__}"
         )
-    if not 0 <= max_size < 2**63:
+    n = int(max_size)
+    if not 0 <= n < 2**63:
         raise ArgumentError(f"max_size={show(max_size)}: must be in [0, 2**63 - 1]")
-    return max_size
+    return n
 
 
 def _io_error(what: str, path: bytes, err: int, doing: str, after: str) -> FileError:
