@@ -104,9 +104,15 @@ int fc_file_write(const char *path, const unsigned char *data, size_t size)
     if (fd < 0) {
         err = errno;
     } else {
+        struct stat old;
         /* not inherited by programs this process starts (best effort) */
         (void)fcntl(fd, F_SETFD, FD_CLOEXEC);
-        if (write_all(fd, data, size) != 0 || fsync(fd) != 0) err = errno;
+        /* a replaced file keeps its permission bits; a new one keeps
+           mkstemp's 0600 */
+        if (stat(path, &old) == 0 && S_ISREG(old.st_mode) &&
+            fchmod(fd, old.st_mode & 07777) != 0)
+            err = errno;
+        if (err == 0 && (write_all(fd, data, size) != 0 || fsync(fd) != 0)) err = errno;
         if (close(fd) != 0 && err == 0) err = errno;
         if (err == 0 && rename(tmp, path) != 0) err = errno;
         if (err) unlink(tmp);  /* the target was not touched */

@@ -692,8 +692,9 @@ FC_API int fc_controller_load(const unsigned char *buf, size_t size,
  * fc_file_write(path, data, size) replaces the file at path atomically:
  * it writes data to a new temporary file in the same directory, named
  * path + ".tmp-XXXXXX" (mkstemp: mode 0600, so a new checkpoint file is
- * readable by its owner only), fsyncs it, renames it over path and fsyncs
- * the directory. At every moment path holds either the complete old file
+ * readable by its owner only; a file that is replaced keeps its
+ * permission bits), fsyncs it, renames it over path and fsyncs the
+ * directory. At every moment path holds either the complete old file
  * or the complete new one, also when the process is killed or the machine
  * loses power (given a file system that honours fsync). On any failure
  * before the rename the temporary file is removed and path is untouched;

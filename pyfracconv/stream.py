@@ -1164,7 +1164,8 @@ class Stream:
         (fsync), renamed over ``path``, then the directory synced
         (``fc_file_write``, csrc/fracconv.h). ``path`` holds the complete
         old file or the complete new one at every moment, also when the
-        process is killed. A new file has mode 0600. A process killed during
+        process is killed. A new file has mode 0600 (a replaced one keeps
+        its permission bits). A process killed during
         the write may leave a ``path.tmp-XXXXXX`` file behind (never under
         ``path`` itself).
 

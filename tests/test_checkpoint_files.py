@@ -172,10 +172,13 @@ def test_file_is_the_save_bytes_and_new_files_are_private(kind, tmp_path):
     assert os.listdir(tmp_path) == ["a.ckpt"]
     again = cw.load(kind, str(path))
     assert again.save() == obj.save()
-    # bytes paths too; replacing an existing file
+    # bytes paths too; replacing an existing file keeps its permission bits
+    os.chmod(path, 0o640)
     cw.step_block(obj, kind, cw.position(obj))
     obj.save_file(os.fsencode(str(path)))
     assert path.read_bytes() == obj.save()
+    assert os.stat(path).st_mode & 0o777 == 0o640
+    assert os.listdir(tmp_path) == ["a.ckpt"]
 
 
 @pytest.mark.parametrize("kind", OBJECTS)
