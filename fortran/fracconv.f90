@@ -36,6 +36,7 @@ module fracconv
   public :: fc_version, fc_error_message, fc_weights, fc_apply, fc_lagged_sum
   public :: fc_stream_create, fc_stream_free, fc_stream_push, fc_stream_push_block
   public :: fc_stream_history, fc_stream_count, fc_stream_save, fc_stream_load
+  public :: fc_stream_save_file, fc_stream_load_file
 
   interface fc_apply
     module procedure fc_apply_1, fc_apply_2
@@ -134,6 +135,18 @@ module fracconv
       import :: c_int, c_ptr, c_size_t, c_signed_char
       integer(c_signed_char), intent(in) :: buf(*)
       integer(c_size_t), value :: size
+      type(c_ptr), intent(out) :: out
+    end function
+    integer(c_int) function c_stream_save_file(s, path) bind(C, name="fc_stream_save_file")
+      import :: c_int, c_ptr, c_char
+      type(c_ptr), value :: s
+      character(kind=c_char), intent(in) :: path(*)
+    end function
+    integer(c_int) function c_stream_load_file(path, max_size, out) &
+        bind(C, name="fc_stream_load_file")
+      import :: c_int, c_ptr, c_size_t, c_char
+      character(kind=c_char), intent(in) :: path(*)
+      integer(c_size_t), value :: max_size
       type(c_ptr), intent(out) :: out
     end function
     integer(c_size_t) function c_strlen(s) bind(C, name="strlen")
@@ -364,5 +377,29 @@ contains
     status = int(c_stream_load(blob, size(blob, kind=c_size_t), p))
     if (status == FC_OK) s%p = p
   end subroutine fc_stream_load
+
+  ! The saved state written to the file path atomically (temporary file
+  ! in the same directory, fsync, rename, directory sync; fracconv.h,
+  ! "Checkpoint files"). Trailing blanks of path are not part of the name.
+  ! FC_ERR_IO: the file could not be written; the old file is unchanged.
+  subroutine fc_stream_save_file(s, path, status)
+    type(fc_stream), intent(in) :: s
+    character(len=*), intent(in) :: path
+    integer, intent(out) :: status
+    status = int(c_stream_save_file(s%p, trim(path) // c_null_char))
+  end subroutine fc_stream_save_file
+
+  ! A new stream from a file of at most max_size bytes written by
+  ! fc_stream_save_file (in any language); s is unchanged unless
+  ! status == FC_OK.
+  subroutine fc_stream_load_file(s, path, max_size, status)
+    type(fc_stream), intent(inout) :: s
+    character(len=*), intent(in) :: path
+    integer(c_size_t), intent(in) :: max_size
+    integer, intent(out) :: status
+    type(c_ptr) :: p
+    status = int(c_stream_load_file(trim(path) // c_null_char, max_size, p))
+    if (status == FC_OK) s%p = p
+  end subroutine fc_stream_load_file
 
 end module fracconv
