@@ -107,6 +107,7 @@ extern "C" {
 #define FC_ERR_INDEX 14      /* index range beyond what the weights support (start+count > 2^53) */
 #define FC_ERR_RANGE 15      /* a result (or a value it needs) is beyond the double range */
 #define FC_ERR_HORIZON 16    /* compressed stream: the push would pass the horizon */
+#define FC_ERR_IO 17         /* a file could not be opened, read, written, synced or renamed (errno says why) */
 
 /* Rules. */
 #define FC_RULE_RECTANGLE 0
@@ -683,6 +684,67 @@ FC_API int fc_controller_save(const fc_controller *c, unsigned char *buf,
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_FORMAT, FC_ERR_NOMEM. */
 FC_API int fc_controller_load(const unsigned char *buf, size_t size,
                               fc_controller **out);
+
+/*
+ * Checkpoint files (POSIX). Every object with state has a pair
+ *     fc_<object>_save_file(obj, path)
+ *     fc_<object>_load_file(path, max_size, &obj)
+ * that are its fc_<object>_save / fc_<object>_load around the two generic
+ * functions fc_file_write and fc_file_read (the same bytes as the
+ * buffer functions: a file saved here loads with fc_<object>_load and
+ * the other way round).
+ *
+ * fc_file_write(path, data, size) replaces the file at path atomically:
+ * it writes data to a new temporary file in the same directory, named
+ * path + ".tmp-XXXXXX" (mkstemp: mode 0600, so a new checkpoint file is
+ * readable by its owner only; a file that is replaced keeps its
+ * permission bits), fsyncs it, renames it over path and fsyncs the
+ * directory. At every moment path holds either the complete old file
+ * or the complete new one, also when the process is killed or the machine
+ * loses power (given a file system that honours fsync). On any failure
+ * before the rename the temporary file is removed and path is untouched;
+ * if only the final directory sync fails, path already holds the complete
+ * new file but the rename may not survive a power loss (FC_ERR_IO all the
+ * same). A process killed during the write leaves its temporary file
+ * behind (never under the name path); such path.tmp-* files may be
+ * deleted when no writer is running. One writer per path at a time.
+ *
+ * fc_file_read(path, max_size, &data, &size) reads a whole regular file
+ * of at most max_size bytes into a new buffer (*data, free it with
+ * fc_file_data_free; *size bytes); a longer file is refused with
+ * FC_ERR_SIZE (before any read when its size says so, else once the
+ * (max_size + 1)-th byte is read: the file may grow), so max_size bounds
+ * the memory an untrusted file can make the library allocate.
+ * The loaders treat the bytes as untrusted input (FC_ERR_FORMAT).
+ *
+ * Errors: FC_ERR_IO when a system call fails (missing directory or file,
+ * permission denied, disk full, not a regular file, ...): errno then
+ * holds the cause of the first failure (EISDIR for a directory, EINVAL
+ * for another non-regular file); FC_ERR_ARG for an empty path or (write)
+ * one ending in '/'. On every error *out, *data and *size are untouched
+ * and no object changes. Paths are passed to the system as they are
+ * (relative paths against the current directory).
+ */
+/* Statuses: FC_OK, FC_ERR_NULL (path, or data with size > 0), FC_ERR_ARG (path empty or ending in '/'), FC_ERR_SIZE (path too long), FC_ERR_IO, FC_ERR_NOMEM. */
+FC_API int fc_file_write(const char *path, const unsigned char *data, size_t size);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (path empty), FC_ERR_IO, FC_ERR_SIZE (file longer than max_size), FC_ERR_NOMEM. */
+FC_API int fc_file_read(const char *path, size_t max_size, unsigned char **data,
+                        size_t *size);
+/* Statuses: none (void; NULL is a no-op). */
+FC_API void fc_file_data_free(unsigned char *data);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_SIZE, FC_ERR_ARG (path empty or ending in '/'), FC_ERR_IO, FC_ERR_NOMEM. */
+FC_API int fc_stream_save_file(fc_stream *s, const char *path);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (path empty), FC_ERR_IO, FC_ERR_SIZE (file longer than max_size), FC_ERR_FORMAT, FC_ERR_NOMEM. */
+FC_API int fc_stream_load_file(const char *path, size_t max_size, fc_stream **out);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_SIZE, FC_ERR_ARG (path empty or ending in '/'), FC_ERR_IO, FC_ERR_NOMEM. */
+FC_API int fc_solver_save_file(const fc_solver *s, const char *path);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (path empty), FC_ERR_IO, FC_ERR_SIZE (file longer than max_size), FC_ERR_FORMAT, FC_ERR_NOMEM. */
+FC_API int fc_solver_load_file(const char *path, size_t max_size, fc_solver **out);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_SIZE, FC_ERR_ARG (path empty or ending in '/'), FC_ERR_IO, FC_ERR_NOMEM. */
+FC_API int fc_controller_save_file(const fc_controller *c, const char *path);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (path empty), FC_ERR_IO, FC_ERR_SIZE (file longer than max_size), FC_ERR_FORMAT, FC_ERR_NOMEM. */
+FC_API int fc_controller_load_file(const char *path, size_t max_size,
+                                   fc_controller **out);
 
 /* ------------------------------------------------------------------
  * EXPERIMENTAL: the functions below may change or go in any version

@@ -211,6 +211,15 @@ public:
         detail::check(fc_stream_load(blob.data(), blob.size(), &p), "fc_stream_load");
         return stream(p);
     }
+    /* Rebuild from a file written by save_file (at most max_size bytes
+       are read; the bytes are untrusted input, as for load). */
+    static stream load_file(const std::string &path,
+                            std::size_t max_size = std::size_t(1) << 30)
+    {
+        fc_stream *p = nullptr;
+        detail::check(fc_stream_load_file(path.c_str(), max_size, &p), "fc_stream_load_file");
+        return stream(p);
+    }
     /* Take ownership of a C stream (freed by this object). */
     explicit stream(fc_stream *owned) noexcept : p_(owned) {}
 
@@ -280,6 +289,14 @@ public:
         detail::check(fc_stream_save(live(), buf.data(), buf.size(), &written), "fc_stream_save");
         buf.resize(written);
         return buf;
+    }
+    /* save() written to the file path atomically (fc_stream_save_file:
+       temporary file, fsync, rename, directory sync); error status
+       FC_ERR_IO (errno says why) leaves the old file and the stream as
+       they were. */
+    void save_file(const std::string &path)
+    {
+        detail::check(fc_stream_save_file(live(), path.c_str()), "fc_stream_save_file");
     }
     void set_horizon_policy(int policy)
     {

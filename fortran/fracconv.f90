@@ -34,7 +34,7 @@ module fracconv
        FC_ERR_ORDER = 3, FC_ERR_STEP = 4, FC_ERR_SIZE = 5, FC_ERR_NONFINITE = 6, &
        FC_ERR_NOMEM = 7, FC_ERR_MODE = 8, FC_ERR_TOL = 9, FC_ERR_FORMAT = 10, &
        FC_ERR_BUSY = 11, FC_ERR_KERNEL = 12, FC_ERR_ARG = 13, FC_ERR_INDEX = 14, &
-       FC_ERR_RANGE = 15, FC_ERR_HORIZON = 16, FC_ERR_CALLBACK = 64, &
+       FC_ERR_RANGE = 15, FC_ERR_HORIZON = 16, FC_ERR_IO = 17, FC_ERR_CALLBACK = 64, &
        FC_ERR_NEWTON = 65, FC_ERR_NORHS = 66
   integer, parameter, public :: FC_RULE_RECTANGLE = 0, FC_RULE_TRAPEZOID = 1, &
        FC_RULE_GRUNWALD = 2, FC_RULE_L1 = 3
@@ -54,6 +54,7 @@ module fracconv
   public :: fc_version, fc_error_message, fc_weights, fc_apply, fc_lagged_sum
   public :: fc_stream_create, fc_stream_free, fc_stream_push, fc_stream_push_block
   public :: fc_stream_history, fc_stream_count, fc_stream_save, fc_stream_load
+  public :: fc_stream_save_file, fc_stream_load_file
 
   type, public :: fc_solver
     type(c_ptr) :: p = c_null_ptr
@@ -361,6 +362,18 @@ module fracconv
       import :: c_int, c_ptr, c_size_t, c_signed_char
       integer(c_signed_char), intent(in) :: buf(*)
       integer(c_size_t), value :: size
+      type(c_ptr), intent(out) :: out
+    end function
+    integer(c_int) function c_stream_save_file(s, path) bind(C, name="fc_stream_save_file")
+      import :: c_int, c_ptr, c_char
+      type(c_ptr), value :: s
+      character(kind=c_char), intent(in) :: path(*)
+    end function
+    integer(c_int) function c_stream_load_file(path, max_size, out) &
+        bind(C, name="fc_stream_load_file")
+      import :: c_int, c_ptr, c_size_t, c_char
+      character(kind=c_char), intent(in) :: path(*)
+      integer(c_size_t), value :: max_size
       type(c_ptr), intent(out) :: out
     end function
     integer(c_size_t) function c_strlen(s) bind(C, name="strlen")
@@ -919,5 +932,28 @@ contains
     status = int(c_controller_load(blob, size(blob, kind=c_size_t), p))
     if (status == FC_OK) c%p = p
   end subroutine fc_controller_load
+  ! The saved state written to the file path atomically (temporary file
+  ! in the same directory, fsync, rename, directory sync; fracconv.h,
+  ! "Checkpoint files"). Trailing blanks of path are not part of the name.
+  ! FC_ERR_IO: the file could not be written; the old file is unchanged.
+  subroutine fc_stream_save_file(s, path, status)
+    type(fc_stream), intent(in) :: s
+    character(len=*), intent(in) :: path
+    integer, intent(out) :: status
+    status = int(c_stream_save_file(s%p, trim(path) // c_null_char))
+  end subroutine fc_stream_save_file
+
+  ! A new stream from a file of at most max_size bytes written by
+  ! fc_stream_save_file (in any language); s is unchanged unless
+  ! status == FC_OK.
+  subroutine fc_stream_load_file(s, path, max_size, status)
+    type(fc_stream), intent(inout) :: s
+    character(len=*), intent(in) :: path
+    integer(c_size_t), intent(in) :: max_size
+    integer, intent(out) :: status
+    type(c_ptr) :: p
+    status = int(c_stream_load_file(trim(path) // c_null_char, max_size, p))
+    if (status == FC_OK) s%p = p
+  end subroutine fc_stream_load_file
 
 end module fracconv

@@ -40,6 +40,7 @@ except ImportError as _exc:  # pragma: no cover - exercised by a subprocess test
 from ._errors import (
     ArgumentError,
     BusyError,
+    FileError,
     HorizonError,
     RangeError,
     FracconvError,
@@ -89,6 +90,7 @@ __all__ = [
     "InputTypeError",
     "OutOfMemory",
     "BusyError",
+    "FileError",
     "HorizonError",
     "RangeError",
     "__version__",

@@ -33,9 +33,18 @@ import warnings
 
 import numpy as np
 
-from ._errors import ArgumentError, InputTypeError, raise_for_status
+from ._errors import ArgumentError, InputTypeError, StateError, raise_for_status
 from ._checks import DERIVATIVE_RULES, INTEGRAL_RULES, RULES, in_range, order_range, range_text
 from ._core import as_float_array, check_compressed, check_real, show
+from ._files import (
+    DEFAULT_MAX_SIZE,
+    check_max_size,
+    check_path,
+    check_write_path,
+    read_file,
+    state_error,
+    write_file,
+)
 from ._fracconv import ffi, lib
 
 __all__ = ["Controller", "HorizonWarning"]
@@ -385,6 +394,43 @@ class Controller:
         self = cls.__new__(cls)
         self._init(out[0])
         return self
+
+    def save_file(self, path):
+        """Write :meth:`save` to the file ``path`` atomically (temporary
+        file in the same directory, fsync, rename over ``path``, directory
+        sync; see :meth:`pyfracconv.Stream.save_file`). The bytes are those
+        of the C library's ``fc_controller_save_file``: either side reads
+        the other's files.
+
+        Raises
+        ------
+        FileError
+            The file could not be written; the old file (if any) and the
+            controller are unchanged.
+        """
+        p = check_write_path(path)
+        write_file("save_file", p, self.save(), "the controller")
+
+    @classmethod
+    def load_file(cls, path, *, max_size=DEFAULT_MAX_SIZE):
+        """A controller from a file written by :meth:`save_file` (or
+        ``fc_controller_save_file``). The file is untrusted input: at most
+        ``max_size`` bytes are read and they go through :meth:`load`.
+
+        Raises
+        ------
+        FileError
+            The file could not be read.
+        StateError
+            The file is truncated, corrupted, forged, of another format or
+            longer than max_size.
+        """
+        p = check_path("path", path)
+        data = read_file("load_file", p, check_max_size(max_size))
+        try:
+            return cls.load(data)
+        except StateError as exc:
+            raise state_error("load_file", p, exc) from None
 
     def __repr__(self):
         p = self.params

@@ -41,6 +41,15 @@ from ._errors import (
     StateError,
     raise_for_status,
 )
+from ._files import (
+    DEFAULT_MAX_SIZE,
+    check_max_size,
+    check_path,
+    check_write_path,
+    read_file,
+    state_error,
+    write_file,
+)
 from ._fracconv import ffi, lib
 
 __all__ = ["solve", "Stepper", "SolveResult", "SolverError", "RhsError", "NewtonError"]
@@ -672,6 +681,46 @@ class Stepper:
         self = cls.__new__(cls)
         self._init(s, m, scalar, method, memory, rhs, jacobian, horizon)
         return self
+
+    def save_file(self, path):
+        """Write :meth:`save` to the file ``path`` atomically (temporary
+        file in the same directory, fsync, rename over ``path``, directory
+        sync; see :meth:`pyfracconv.Stream.save_file`). The callbacks are
+        not saved.
+
+        Raises
+        ------
+        FileError
+            The file could not be written; the old file (if any) and the
+            stepper are unchanged.
+        """
+        p = check_write_path(path)
+        write_file("save_file", p, self.save(), "the stepper")
+
+    @classmethod
+    def load_file(cls, path, rhs, jacobian=None, *, max_size=DEFAULT_MAX_SIZE):
+        """A stepper from a file written by :meth:`save_file` (or by the C
+        library's ``fc_solver_save_file``: it comes back with an explicit
+        component axis), with its callbacks set again. The file is
+        untrusted input: at most ``max_size`` bytes are read and they go
+        through :meth:`load`.
+
+        Raises
+        ------
+        FileError
+            The file could not be read.
+        StateError
+            The file is truncated, corrupted, forged, of another format or
+            longer than max_size.
+        """
+        p = check_path("path", path)
+        data = read_file("load_file", p, check_max_size(max_size))
+        if data[:8] == b"FCSOLVE1":  # written by fc_solver_save_file
+            data = _ENV_MAGIC + bytes([_ENV_ARRAY, 0]) + data
+        try:
+            return cls.load(data, rhs, jacobian)
+        except StateError as exc:
+            raise state_error("load_file", p, exc) from None
 
 
 # ------------------------------------------------------------ solve

@@ -164,3 +164,57 @@ def test_cpp_controller_equals_python_controller(solver_controller):
         assert got == float.fromhex(u), n
         limited += c.limited
     assert limited > 20  # the limits and the rate limit were exercised
+
+
+CHECKPOINT_CPP = r"""
+#include <cstdio>
+#include <string>
+#include <vector>
+#include "fracconv.hpp"
+int main(int argc, char **argv)
+{
+    (void)argc;
+    std::string dir = argv[1];
+    pyfracconv::stream s(FC_RULE_L1, 0.4, 0.1, 1, FC_MODE_COMPRESSED, 1e-9, 1000.0);
+    std::vector<double> x(40);
+    for (std::size_t i = 0; i < x.size(); i++) x[i] = 0.1 * double(i);
+    s.push_block(pyfracconv::cview(x.data(), 20));
+    s.save_file(dir + "/s.ckpt");
+    pyfracconv::stream r = pyfracconv::stream::load_file(dir + "/s.ckpt");
+    std::vector<double> a = s.push_block(pyfracconv::cview(x.data() + 20, 20));
+    std::vector<double> b = r.push_block(pyfracconv::cview(x.data() + 20, 20));
+    if (a != b) { std::printf("resumed stream differs\n"); return 1; }
+    try {
+        s.save_file(dir + "/no-such-dir/s.ckpt");
+    } catch (const pyfracconv::error &e) {
+        std::printf("refused (status %d)\n", e.status());
+    }
+    try {
+        pyfracconv::stream::load_file(dir + "/s.ckpt", 10);
+    } catch (const pyfracconv::error &e) {
+        std::printf("refused (status %d)\n", e.status());
+    }
+    return 0;
+}
+"""
+
+
+def test_stream_checkpoint_files(tmp_path):
+    # pyfracconv::stream::save_file / load_file (csrc/fracconv.hpp) over
+    # fc_stream_save_file / fc_stream_load_file: resume bit for bit, and
+    # FC_ERR_IO (17) for a missing directory, FC_ERR_SIZE (5) past max_size
+    if CXX is None:
+        pytest.fail("g++ is needed for the C++ wrapper tests")
+    build = tmp_path / "build"
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
+                   capture_output=True, text=True)
+    src = tmp_path / "ckpt.cpp"
+    src.write_text(CHECKPOINT_CPP)
+    exe = tmp_path / "ckpt"
+    r = subprocess.run([CXX, "-std=c++17", "-Wall", "-Wextra", "-Werror", "-I",
+                        os.path.join(ROOT, "csrc"), str(src), str(build / "libfracconv.a"),
+                        "-lm", "-o", str(exe)], capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    out = subprocess.run([str(exe), str(tmp_path)], capture_output=True, text=True)
+    assert out.returncode == 0, out.stdout
+    assert out.stdout.splitlines() == ["refused (status 17)", "refused (status 5)"]

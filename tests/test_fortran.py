@@ -232,3 +232,63 @@ def test_f90_params_type_matches_the_c_struct():
             kind = "double" if m.group(1).startswith("real") else "int"
             f_fields += [(kind, n.strip()) for n in m.group(2).split(",")]
     assert c_fields and f_fields == c_fields
+
+
+CHECKPOINT_F90 = """
+program ckpt
+  use, intrinsic :: iso_c_binding, only: c_double, c_size_t, c_int64_t
+  use fracconv
+  implicit none
+  type(fc_stream) :: s, r
+  real(c_double) :: x(1, 40), y(1, 40), z(1, 40)
+  character(len=512) :: dir
+  integer :: st, i
+  call get_command_argument(1, dir)
+  do i = 1, 40
+    x(1, i) = 0.1_c_double * i
+  end do
+  call fc_stream_create(s, FC_RULE_L1, 0.4_c_double, 0.1_c_double, st, channels=1, &
+                        mode=FC_MODE_COMPRESSED, tol=1.0e-9_c_double, horizon=1.0e3_c_double)
+  if (st /= FC_OK) error stop 1
+  call fc_stream_push_block(s, x(:, 1:20), y(:, 1:20), st)
+  call fc_stream_save_file(s, trim(dir) // "/s.ckpt", st)
+  if (st /= FC_OK) error stop 2
+  call fc_stream_load_file(r, trim(dir) // "/s.ckpt", 1048576_c_size_t, st)
+  if (st /= FC_OK) error stop 3
+  call fc_stream_push_block(s, x(:, 21:40), y(:, 21:40), st)
+  call fc_stream_push_block(r, x(:, 21:40), z(:, 21:40), st)
+  ! bit for bit: the outputs compared as 64-bit integers
+  if (any(transfer(y(1, 21:40), 0_c_int64_t, 20) /= transfer(z(1, 21:40), 0_c_int64_t, 20))) &
+    error stop 4
+  call fc_stream_save_file(s, trim(dir) // "/no-such-dir/s.ckpt", st)
+  print "(a, i0)", "save refused: status ", st
+  call fc_stream_load_file(r, trim(dir) // "/s.ckpt", 10_c_size_t, st)
+  print "(a, i0)", "load refused: status ", st
+  call fc_stream_free(s)
+  call fc_stream_free(r)
+end program ckpt
+"""
+
+
+def test_stream_checkpoint_files(tmp_path):
+    # fc_stream_save_file / fc_stream_load_file of the module: a resumed
+    # stream continues bit for bit; FC_ERR_IO for a missing directory,
+    # FC_ERR_SIZE past max_size; the file loads in Python too
+    build = tmp_path / "build"
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
+                   capture_output=True, text=True)
+    src = tmp_path / "ckpt.f90"
+    src.write_text(CHECKPOINT_F90)
+    exe = tmp_path / "ckpt"
+    r = subprocess.run([FC, "-std=f2008", "-Wall", "-Wextra", "-Werror", "-J", str(tmp_path),
+                        os.path.join(ROOT, "fortran", "fracconv.f90"), str(src),
+                        str(build / "libfracconv.a"), "-lm", "-o", str(exe)],
+                       capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    out = subprocess.run([str(exe), str(tmp_path)], capture_output=True, text=True)
+    assert out.returncode == 0, out.stdout + out.stderr
+    assert out.stdout.split("\n")[:2] == [
+        f"save refused: status {int(pyfracconv._fracconv.lib.FC_ERR_IO)}",
+        f"load refused: status {int(pyfracconv._fracconv.lib.FC_ERR_SIZE)}"]
+    s = pyfracconv.Stream.load_file(str(tmp_path / "s.ckpt"))
+    assert s.count == 20 and s.channels == 1

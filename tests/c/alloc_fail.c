@@ -10,10 +10,15 @@
  * nothing (LeakSanitizer in make asan-alloc). Calls: create, reserve,
  * push, save, load of exact and compressed streams; create, advance,
  * save, load of solvers; create, update, save, load of controllers; FFT
- * plans; batch calls with and without a context. Invented signals.
+ * plans; batch calls with and without a context; save_file and
+ * load_file of each object (the old file must stay as it was and no
+ * temporary may be left). Invented signals.
  * The library itself has no hook: the wrapping is done by the linker, in
  * this test binary only.
  */
+#define _POSIX_C_SOURCE 200809L   /* mkdtemp, rmdir, unlink, opendir */
+#include <dirent.h>
+#include <unistd.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -318,12 +323,110 @@ static void controllers(void)
     }
 }
 
+/* ------------------------------------------------------------ files */
+
+static int dir_entries(const char *dir)
+{
+    int n = 0;
+    DIR *d = opendir(dir);
+    struct dirent *e;
+    if (d == NULL) return -1;
+    while ((e = readdir(d)) != NULL)
+        if (strcmp(e->d_name, ".") && strcmp(e->d_name, "..")) n++;
+    closedir(d);
+    return n;
+}
+
+/* the file holds exactly b[0 .. n) and is alone in dir (allocation off) */
+static int file_is(const char *dir, const char *path, const unsigned char *b, size_t n)
+{
+    unsigned char *d = NULL;
+    size_t m = 0;
+    int same;
+    if (fc_file_read(path, n + 10, &d, &m) != FC_OK) return 0;
+    same = m == n && memcmp(d, b, n) == 0 && dir_entries(dir) == 1;
+    fc_file_data_free(d);
+    return same;
+}
+
+static void files(void)
+{
+    char dir[] = "/tmp/fc_alloc_fail_XXXXXX";
+    char path[96];
+    static const unsigned char old[] = "an old checkpoint";
+    double x[200], y[200];
+    if (mkdtemp(dir) == NULL) { fails++; printf("mkdtemp failed\n"); return; }
+    snprintf(path, sizeof path, "%s/state.bin", dir);
+    for (int i = 0; i < 200; i++) x[i] = sin(0.05 * i) + 0.2;
+    for (int mode = 0; mode < 2; mode++) {
+        fc_stream *s = NULL, *l = NULL;
+        unsigned char *ref;
+        size_t n;
+        char name[64];
+        if (fc_stream_create(FC_RULE_TRAPEZOID, 0.6, 0.1, 1, mode, 1e-9, 1e4, &s) != FC_OK) { fails++; continue; }
+        fc_stream_push_block(s, x, 200, y);
+        ref = stream_bytes(s, &n);
+        fc_file_write(path, old, sizeof old);
+        snprintf(name, sizeof name, "stream_save_file mode %d", mode);
+        /* the last (successful) pass replaces the file */
+        FOR_EACH_FAILURE(name, fc_stream_save_file(s, path), (void)0,
+                         stream_same(s, ref, n) && file_is(dir, path, old, sizeof old));
+        if (!file_is(dir, path, ref, n)) { fails++; printf("%s: file is not the saved stream\n", name); }
+        snprintf(name, sizeof name, "stream_load_file mode %d", mode);
+        FOR_EACH_FAILURE(name, fc_stream_load_file(path, 1 << 20, &l), (void)0, l == NULL);
+        if (l == NULL || !stream_same(l, ref, n)) { fails++; printf("%s: loaded stream differs\n", name); }
+        free(ref);
+        fc_stream_free(l);
+        fc_stream_free(s);
+    }
+    {
+        double o = 0.7, y0 = 1.0;
+        fc_solver *s = NULL, *l = NULL;
+        if (fc_solver_create(1, &o, 0.01, 0, &y0, FC_METHOD_PC, FC_MODE_COMPRESSED, 1e-9, 5000, &s) == FC_OK) {
+            size_t done;
+            fc_solver_set_rhs(s, rhs, NULL);
+            fc_solver_advance(s, 100, NULL, NULL, &done);
+            fc_file_write(path, old, sizeof old);
+            FOR_EACH_FAILURE("solver_save_file", fc_solver_save_file(s, path), (void)0,
+                             file_is(dir, path, old, sizeof old));
+            FOR_EACH_FAILURE("solver_load_file", fc_solver_load_file(path, 1 << 20, &l), (void)0, l == NULL);
+            if (l == NULL) fails++;
+        } else {
+            fails++;
+        }
+        fc_solver_free(l);
+        fc_solver_free(s);
+    }
+    {
+        fc_controller_params p;
+        fc_controller *c = NULL, *l = NULL;
+        fc_controller_default_params(&p);
+        p.ki = 0.4; p.kd = 0.1;
+        if (fc_controller_create(&p, &c) == FC_OK) {
+            fc_controller_update_block(c, x, x + 1, 100, y, NULL);
+            fc_file_write(path, old, sizeof old);
+            FOR_EACH_FAILURE("controller_save_file", fc_controller_save_file(c, path), (void)0,
+                             file_is(dir, path, old, sizeof old));
+            FOR_EACH_FAILURE("controller_load_file", fc_controller_load_file(path, 1 << 20, &l), (void)0,
+                             l == NULL);
+            if (l == NULL) fails++;
+        } else {
+            fails++;
+        }
+        fc_controller_free(l);
+        fc_controller_free(c);
+    }
+    unlink(path);
+    if (rmdir(dir) != 0) { fails++; printf("files: a temporary was left in %s\n", dir); }
+}
+
 int main(void)
 {
     streams();
     batch();
     solvers();
     controllers();
+    files();
     printf("alloc_fail: %d calls, %d injected failures, %d problems\n", checks, injections, fails);
     if (injections == 0) { printf("alloc_fail: no allocation was intercepted (not linked with --wrap?)\n"); return 1; }
     return fails ? 1 : 0;
