@@ -89,12 +89,12 @@ typedef struct {
    compressed mode a column the construction carries in its terms (soe:
    the trapezoid density's x_0, soe_build.c) is handled by the
    construction, every other one is added at run time from the library's
-   weights (stream_compressed.c). A rule has at most FC__CORR_MAX columns,
-   each j < FC__CORR_COL_LIMIT, all different (tests/test_structure.py);
-   |S_n| stays within 2^4 of the rule's own weight bound (the log2_bound
-   of its weights: the engines' range checks assume it). */
+   weights (stream_compressed.c). What a row must respect (the engines
+   rely on it; DEVELOPERS.md, "Adding a rule"): at most FC__CORR_MAX
+   columns, all different; soe only on column 0 of an FC__DENS_TRAP rule;
+   |S_n| within 2^4 of the rule's own weight bound (the log2_bound of its
+   weights: the range checks of rules.c and stream_exact.c assume it). */
 #define FC__CORR_MAX 4
-#define FC__CORR_COL_LIMIT 64
 typedef struct {
     uint64_t column;
     const fc__wseq *start;

@@ -18,8 +18,13 @@
  *   and a >= 1e-280 (FC__CS_MIN_ORDER, soe_build.c: below it the kernel's
  *   far lags are subnormal).
  */
+/* A row's column list: its count and the list (at most FC__CORR_MAX). */
+#define COLS(list) sizeof list / sizeof list[0], list
+#define NO_COLS 0, NULL
 static const fc__corr_col trapezoid_corr[] = {
     {0, &fc__seq_trapezoid_start, 1}};
+_Static_assert(sizeof trapezoid_corr / sizeof trapezoid_corr[0] <= FC__CORR_MAX,
+               "at most FC__CORR_MAX columns");
 #ifdef FC_TEST_RULES
 /* Test builds only (tests/test_rule_columns.py compiles the library with
    -DFC_TEST_RULES; never in a shipped library, whose rule count is the
@@ -29,6 +34,8 @@ static const fc__corr_col trapezoid_corr[] = {
    engines' general column path against a direct sum. */
 static const fc__corr_col test_two_corr[] = {
     {0, &fc__seq_trapezoid_start, 1}, {1, &fc__seq_trapezoid, 0}};
+_Static_assert(sizeof test_two_corr / sizeof test_two_corr[0] <= FC__CORR_MAX,
+               "at most FC__CORR_MAX columns");
 #endif
 
 #define R_ALL {0.0, 10.0, 0, 1}
@@ -38,21 +45,21 @@ static const fc__corr_col test_two_corr[] = {
 
 /* id, name, derivative, ranges (batch, exact, compressed), compressed
    cumulative from, lag shift, uses differences, scale, weights, density,
-   correction columns (count, list), y_0 = 0 exactly */
+   correction columns (COLS(list) or NO_COLS), y_0 = 0 exactly */
 static const fc__rule_desc rule_table[] = {
     {FC_RULE_RECTANGLE, "rectangle", 0, R_ALL, R_ALL, R_CS2, 1.0,
-     1, 0, FC__SCALE_HA_G1, &fc__seq_rectangle, FC__DENS_RECT, 0, NULL, 0},
+     1, 0, FC__SCALE_HA_G1, &fc__seq_rectangle, FC__DENS_RECT, NO_COLS, 0},
     {FC_RULE_TRAPEZOID, "trapezoid", 0, R_ALL, R_ALL, R_CS2, 1.0,
-     0, 0, FC__SCALE_HA_G2, &fc__seq_trapezoid, FC__DENS_TRAP, 1,
-     trapezoid_corr, 1},
+     0, 0, FC__SCALE_HA_G2, &fc__seq_trapezoid, FC__DENS_TRAP,
+     COLS(trapezoid_corr), 1},
     {FC_RULE_GRUNWALD, "grunwald", 1, R_ALL, R_ALL, R_CS1, INFINITY,
-     0, 0, FC__SCALE_HNA, &fc__seq_grunwald, FC__DENS_GRUN, 0, NULL, 0},
+     0, 0, FC__SCALE_HNA, &fc__seq_grunwald, FC__DENS_GRUN, NO_COLS, 0},
     {FC_RULE_L1, "l1", 1, R_BELOW1, R_BELOW1, R_CS1, INFINITY,
-     0, 1, FC__SCALE_HNA_G2MA, &fc__seq_l1, FC__DENS_L1, 0, NULL, 0},
+     0, 1, FC__SCALE_HNA_G2MA, &fc__seq_l1, FC__DENS_L1, NO_COLS, 0},
 #ifdef FC_TEST_RULES
     {FC_RULE_L1 + 1, "test_two_columns", 0, R_ALL, R_ALL, R_CS2, 1.0,
-     0, 0, FC__SCALE_HA_G2, &fc__seq_trapezoid, FC__DENS_TRAP, 2,
-     test_two_corr, 1},
+     0, 0, FC__SCALE_HA_G2, &fc__seq_trapezoid, FC__DENS_TRAP,
+     COLS(test_two_corr), 1},
 #endif
 };
 #define NRULES (sizeof rule_table / sizeof rule_table[0])
