@@ -186,7 +186,8 @@ def test_exact_stream_sums_both_columns(tl, a):
     u = make_stream(tl, a, h, lib.FC_MODE_EXACT)
     push(tl, u, x[:1])
     pv, hist = np.zeros(1), np.zeros(1)
-    assert lib.fc_stream_preview(u, ffi.from_buffer("double[]", x[1:2]), ffi.from_buffer("double[]", pv)) == lib.FC_OK
+    st = lib.fc_stream_preview(u, ffi.from_buffer("double[]", x[1:2]), ffi.from_buffer("double[]", pv))
+    assert st == lib.FC_OK
     assert lib.fc_stream_history(u, ffi.from_buffer("double[]", hist)) == lib.FC_OK
     assert pv[0] == y[1]
     # x_1 taken as 0: only the x_0 terms, (a_1 + (A_1 - a_1)) x_0 = A_1 x_0
