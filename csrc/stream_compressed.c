@@ -68,14 +68,28 @@
  * before it). The correction is then exact with respect to the library's
  * weights (as in the band), and the guarantee holds as stated.
  *
+ * Other correction columns. A rule's columns (the rule table,
+ * fc__corr_col) other than the one the construction carries (soe: the
+ * trapezoid's x_0) are added at run time in the same way: x_j is kept per
+ * channel once it arrives (nx doubles per channel, saved after the fields
+ * above: no rule of today's table has such a column, so no payload of
+ * today's rules changes) and corr_n x_j, corr_n from the library's weights
+ * in aligned blocks, is added for every n >= j after the terms above, in
+ * the table's order. The guarantee then holds with |corr_n x_j| added to
+ * the sum of magnitudes (the weights are exact, one more rounding per
+ * column); RANGE: cs_check_block refuses a step whose
+ * sum_i |corr^i_n x_j| exceeds umax (or is not finite), and cs_umax counts
+ * that sum once.
+ *
  * Arithmetic of a push (identical in the portable and the AVX2 path, so
  * results do not depend on which one runs; the CPU is probed once per
  * stream and the choice kept in it): explicit fma() for every product,
  * fixed lane structure (two accumulators of four lanes for the terms, four
  * for the band), fixed reduction order. Work per sample and channel: L
  * recursions and a dot product of length B, whatever the data.
- * Memory: 3 L + 2 B doubles shared, 2 B + 2 L + 2 per channel, fixed at
- * creation; a push never allocates.
+ * Memory: 3 L + 2 B doubles shared, 2 B + 2 L + 2 per channel (the
+ * columns added at run time: CS_CORR_BLK more shared and one more per
+ * channel each), fixed at creation; a push never allocates.
  */
 #include <stdlib.h>
 #include <string.h>
@@ -403,11 +417,12 @@ static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
  * running sums and the differences are recomputed with the very
  * operations of cs_step.
  */
-static int cs_check_block(cs_engine *cs, const double *x, size_t count)
+/* The columns added at run time over count steps of x (x NULL: one step
+   whose sample is taken as 0, the history): FC_ERR_RANGE if some
+   sum_i |corr^i_n x_j| is above umax or not finite. */
+static int cs_check_extra(cs_engine *cs, const double *x, size_t count)
 {
     const size_t C = cs->C;
-    const double U = cs->umax;
-    if ((uint64_t)count > FC_INDEX_LIMIT - 1 - cs->n) return FC_ERR_SIZE;
     for (size_t t = 0; cs->nx && t < count; t++) {
         double xw[FC__CORR_MAX];
         const uint64_t n = cs->n + t;
@@ -418,12 +433,22 @@ static int cs_check_block(cs_engine *cs, const double *x, size_t count)
                 uint64_t j = cs->xj[i];
                 if (n < j) continue;
                 double xj = j < cs->n ? cs->xs[i * C + c]
-                                      : x[(size_t)(j - cs->n) * C + c];
+                            : x ? x[(size_t)(j - cs->n) * C + c] : 0.0;
                 e += fabs(xw[i]) * fabs(xj);
             }
-            if (!(e <= U)) return FC_ERR_RANGE;
+            if (!(e <= cs->umax)) return FC_ERR_RANGE;
         }
     }
+    return FC_OK;
+}
+
+static int cs_check_block(cs_engine *cs, const double *x, size_t count)
+{
+    const size_t C = cs->C;
+    const double U = cs->umax;
+    if ((uint64_t)count > FC_INDEX_LIMIT - 1 - cs->n) return FC_ERR_SIZE;
+    int st = cs_check_extra(cs, x, count);
+    if (st != FC_OK) return st;
     for (size_t c = 0; c < C; c++) {
         double hi = cs->xprev[c], lo = cs->x0[c];
         uint64_t n = cs->n;
@@ -468,6 +493,8 @@ static int cs_preview(void *eng, const double *x, double *y)
 
 static int cs_history(void *eng, double *h)
 {
+    int st = cs_check_extra(eng, NULL, 1);
+    if (st != FC_OK) return st;
     cs_step(eng, NULL, h, 2);  /* mode 2 writes nothing */
     return FC_OK;
 }
