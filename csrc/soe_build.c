@@ -15,7 +15,7 @@
  * loader of stream_compressed.c).
  *
  * GUARANTEE. The sum of exponentials is checked against the library's own
- * weights (fc__lag_kernel, fc__x0_correction) at every lag
+ * weights (fc__lag_kernel, fc__correction) at every lag
  * B <= m <= min(horizon, 10^4) and on a geometric grid of 64 lags per decade
  * beyond, up to the horizon itself; the construction fails with FC_ERR_TOL
  * unless the measured relative error is at most 0.6 tol + 16 eps at every
@@ -115,7 +115,7 @@
  * rectangle rule applies. The x_0 correction corr_n = h^a/Gamma(a+2)
  * ((n+1+a) n^a - (n+1)^(a+1)) ~ -h^a a/(2 Gamma(a+1)) n^(a-1) grows and is
  * not carried by the terms (inj = 1): the runtime adds corr_n x_0 with
- * corr_n from fc__x0_correction, the library's own weights
+ * corr_n from fc__correction (its x_0 column), the library's own weights
  * (stream_compressed.c, cs_corr_at). fc__soe.corrmax is the larger |corr_n|
  * of n = B and n = 2^53 - 1 (the largest index a stream reaches, past the
  * horizon too), |corr_n| being increasing there (checked with mpmath for
@@ -507,7 +507,7 @@ static void soe_constants(soe_ctx *cx, int rule, int cum, double a, double step,
 {
     double spa = (exact ? soe_sinpi(a) : sin(SOE_PI * a)) / SOE_PI;
     if (cum) {
-        cx->kind = fc__rule_has_x0(rule) ? K_TCUM : K_RCUM;
+        cx->kind = fc__rule_has_soe_col(rule) ? K_TCUM : K_RCUM;
         cx->p = 1.0 - a; cx->K = -spa * pow(step, a);
         cx->p1 = exact ? 2.0 - a : cx->p + 1.0;
         return;
@@ -521,7 +521,7 @@ static void soe_constants(soe_ctx *cx, int rule, int cum, double a, double step,
     case K_GRUN: cx->p = a; cx->K = -spa * pow(step, -a); p1x = a + 1.0; break;
     case K_L1: cx->p = a - 1.0; cx->K = spa * pow(step, -a); p1x = a; break;
     }
-    if (fc__rule_x0(d) != NULL) cx->Kcorr = -spa * pow(step, a);
+    if (fc__rule_soe_col(d, NULL) != NULL) cx->Kcorr = -spa * pow(step, a);
     cx->p1 = cx->p + 1.0;
     if (exact) cx->p1 = p1x;
 }
@@ -541,7 +541,10 @@ int fc__soe_build(int rule, double order, double step, double tol,
     int st;
     const fc__rule_desc *d = fc__rule(rule);
     const int cum = order >= d->cumulative_from;
-    const int x0 = fc__rule_has_x0(rule);
+    /* the column the construction carries (the trapezoid's x_0); every
+       other column is added at run time (stream_compressed.c) */
+    size_t kx = 0;
+    const int x0 = fc__rule_soe_col(d, &kx) != NULL;
     const int tcum = cum && x0;     /* trapezoid, a >= 1 */
     const int x0inj = x0 && !cum;   /* x_0 enters the terms at n = B */
     const size_t B = SOE_BAND;
@@ -575,7 +578,7 @@ int fc__soe_build(int rule, double order, double step, double tol,
     } else if ((st = fc__lag_kernel(rule, a, step, 0, B, cband)) != FC_OK)
         return st;
     memset(ctab, 0, B * sizeof *ctab);
-    if (x0 && (st = fc__x0_correction(rule, a, step, 0, B, ctab)) != FC_OK)
+    if (x0 && (st = fc__correction(rule, kx, a, step, 0, B, ctab)) != FC_OK)
         return st;
     out->cum = cum;
     out->L = 0;
@@ -588,8 +591,8 @@ int fc__soe_build(int rule, double order, double step, double tol,
            both ends, n = B and the last count 2^53 - 1, must be within
            the double range */
         double ce[2];
-        if ((st = fc__x0_correction(rule, a, step, B, 1, ce)) != FC_OK ||
-            (st = fc__x0_correction(rule, a, step, FC_INDEX_LIMIT - 1, 1, ce + 1)) != FC_OK)
+        if ((st = fc__correction(rule, kx, a, step, B, 1, ce)) != FC_OK ||
+            (st = fc__correction(rule, kx, a, step, FC_INDEX_LIMIT - 1, 1, ce + 1)) != FC_OK)
             return st;
         out->corrmax = fabs(ce[0]) > fabs(ce[1]) ? fabs(ce[0]) : fabs(ce[1]);
     }
@@ -639,9 +642,9 @@ int fc__soe_build(int rule, double order, double step, double tol,
                 goto done;
     }
     if (x0inj) {
-        if ((st = fc__x0_correction(rule, a, step, B, cx.ndense, corrref)) != FC_OK) goto done;
+        if ((st = fc__correction(rule, kx, a, step, B, cx.ndense, corrref)) != FC_OK) goto done;
         for (size_t k = 0; k < g; k++)
-            if ((st = fc__x0_correction(rule, a, step, mgeo[k], 1, corrref + cx.ndense + k)) != FC_OK)
+            if ((st = fc__correction(rule, kx, a, step, mgeo[k], 1, corrref + cx.ndense + k)) != FC_OK)
                 goto done;
     }
     for (size_t k = 0; k < cx.ndense + g; k++)

@@ -37,14 +37,16 @@ struct fc_stream {
     void *eng;              /* the engine's own state */
 };
 
-/* The engine of a mode, NULL for a number that is not a mode. */
-static const fc__stream_ops *engine_of(uint64_t mode)
+/* The engines, indexed by mode (FC_MODE_*, part of the save format). */
+static const fc__stream_ops *const engines[] = {
+    [FC_MODE_EXACT] = &fc__exact_ops,
+    [FC_MODE_COMPRESSED] = &fc__compressed_ops,
+};
+
+const fc__stream_ops *fc__stream_engine(int64_t mode)
 {
-    switch (mode) {
-    case FC_MODE_EXACT: return &fc__exact_ops;
-    case FC_MODE_COMPRESSED: return &fc__compressed_ops;
-    }
-    return NULL;
+    const int64_t n = (int64_t)(sizeof engines / sizeof engines[0]);
+    return mode >= 0 && mode < n ? engines[mode] : NULL;
 }
 
 /* ---------------------------------------------------------------- busy */
@@ -108,26 +110,25 @@ void fc_stream_free(fc_stream *s)
 }
 
 /* The checks of fc_stream_create, in the order that decides the status
-   of a call with several faults. */
+   of a call with several faults; the engine's order range (the rule
+   table's, through ops) and, for an engine with a horizon, its tolerance
+   and horizon limits. */
 static int check_create(int rule, double order, double step, size_t channels,
-                        int mode, double tol, double horizon)
+                        const fc__stream_ops *ops, double tol, double horizon)
 {
     int st;
     if ((st = fc__check_rule(rule, order, step)) != FC_OK) return st;
-    const fc__rule_desc *d = fc__rule(rule);
-    if (mode == FC_MODE_EXACT && !fc__in_range(&d->exact, order))
-        return FC_ERR_ORDER;
     if (channels == 0) return FC_ERR_ARG;
     if (channels > FC__STREAM_CHANNELS_MAX) return FC_ERR_SIZE;
-    if (mode != FC_MODE_EXACT && mode != FC_MODE_COMPRESSED) return FC_ERR_MODE;
-    if (mode == FC_MODE_COMPRESSED) {
-        if (!(tol >= FC__CS_TOL_MIN && tol <= FC__CS_TOL_MAX) ||
-            !(horizon >= 1.0) || !isfinite(horizon))
-            return FC_ERR_TOL;
-        if (!fc__in_range(&d->compressed, order)) return FC_ERR_ORDER;
-        /* the count stays below 2^53 (FC_INDEX_LIMIT) */
-        if (horizon > FC__CS_HORIZON_MAX) return FC_ERR_TOL;
-    }
+    if (ops == NULL) return FC_ERR_MODE;
+    if (ops->has_horizon &&
+        (!(tol >= ops->tol_min && tol <= ops->tol_max) ||
+         !(horizon >= 1.0) || !isfinite(horizon)))
+        return FC_ERR_TOL;
+    if (!fc__in_range(ops->order_range(fc__rule(rule)), order))
+        return FC_ERR_ORDER;
+    /* the count stays below 2^53 (FC_INDEX_LIMIT) */
+    if (ops->has_horizon && horizon > ops->horizon_max) return FC_ERR_TOL;
     return FC_OK;
 }
 
@@ -136,12 +137,13 @@ int fc_stream_create(int rule, double order, double step, size_t channels,
 {
     int st;
     if (!out) return FC_ERR_NULL;
-    st = check_create(rule, order, step, channels, mode, tol, horizon);
+    const fc__stream_ops *ops = fc__stream_engine(mode);
+    st = check_create(rule, order, step, channels, ops, tol, horizon);
     if (st != FC_OK) return st;
-    int cs = mode == FC_MODE_COMPRESSED;
     fc__stream_def d = {FC__KIND_RULE, rule, order, step, channels,
-                        cs ? tol : 0.0, cs ? horizon : 0.0, NULL, 0};
-    return stream_new(engine_of((uint64_t)mode), mode, &d, NULL, 0, out);
+                        ops->has_horizon ? tol : 0.0,
+                        ops->has_horizon ? horizon : 0.0, NULL, 0};
+    return stream_new(ops, mode, &d, NULL, 0, out);
 }
 
 int fc_stream_create_kernel(const double *kernel, size_t klen,
@@ -490,7 +492,7 @@ int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out)
     uint64_t h = fc__fnv1a(FC__FNV_OFFSET, buf, FC_S_SUM_AT);
     if (!q || fc__fnv1a(h, q, (size_t)p) != sum) return FC_ERR_FORMAT;
 
-    const fc__stream_ops *ops = engine_of(mode);
+    const fc__stream_ops *ops = fc__stream_engine(mode);
     if (C64 == 0 || C64 > FC__STREAM_CHANNELS_MAX || ops == NULL)
         return FC_ERR_FORMAT;
     d.channels = (size_t)C64;

@@ -68,14 +68,28 @@
  * before it). The correction is then exact with respect to the library's
  * weights (as in the band), and the guarantee holds as stated.
  *
+ * Other correction columns. A rule's columns (the rule table,
+ * fc__corr_col) other than the one the construction carries (soe: the
+ * trapezoid's x_0) are added at run time in the same way: x_j is kept per
+ * channel once it arrives (nx doubles per channel, saved after the fields
+ * above: no rule of today's table has such a column, so no payload of
+ * today's rules changes) and corr_n x_j, corr_n from the library's weights
+ * in aligned blocks, is added for every n >= j after the terms above, in
+ * the table's order. The guarantee then holds with |corr_n x_j| added to
+ * the sum of magnitudes (the weights are exact, one more rounding per
+ * column); RANGE: cs_check_block refuses a step whose
+ * sum_i |corr^i_n x_j| exceeds umax (or is not finite), and cs_umax counts
+ * that sum once.
+ *
  * Arithmetic of a push (identical in the portable and the AVX2 path, so
  * results do not depend on which one runs; the CPU is probed once per
  * stream and the choice kept in it): explicit fma() for every product,
  * fixed lane structure (two accumulators of four lanes for the terms, four
  * for the band), fixed reduction order. Work per sample and channel: L
  * recursions and a dot product of length B, whatever the data.
- * Memory: 3 L + 2 B doubles shared, 2 B + 2 L + 2 per channel, fixed at
- * creation; a push never allocates.
+ * Memory: 3 L + 2 B doubles shared, 2 B + 2 L + 2 per channel (the
+ * columns added at run time: CS_CORR_BLK more shared and one more per
+ * channel each), fixed at creation; a push never allocates.
  */
 #include <stdlib.h>
 #include <string.h>
@@ -95,14 +109,25 @@
 #define CS_BAND FC__CS_BAND         /* exact local band: lags 0 .. CS_BAND-1 */
 #define CS_MAX_TERMS FC__CS_MAX_TERMS /* more than this: FC_ERR_TOL */
 #define CS_FMT_VERSION 1u
-#define CS_CORR_BLK 256             /* trapezoid, a >= 1: corr_n cached in
-                                       aligned blocks of this many n */
+#define CS_CORR_BLK 256             /* corrections added at run time:
+                                       corr_n cached in aligned blocks of
+                                       this many n */
+
+/* corr_n of one correction column (d->corr[k]) for n in [base, base + cnt),
+   recomputed from n alone (not part of the state). */
+typedef struct {
+    double *buf;              /* CS_CORR_BLK */
+    uint64_t base;
+    size_t cnt;
+    size_t k;
+} cs_cache;
 
 
 /* The state of one compressed stream (the facade's engine pointer). */
 typedef struct cs_engine {
     int rule;
-    int x0corr;               /* the rule has an x_0 correction (trapezoid) */
+    int x0corr;               /* the construction carries the rule's x_0
+                                 column (trapezoid; fc__corr_col.soe) */
     int diffs;                /* the rule sums differences of x (L1) */
     int cum;                  /* rectangle, trapezoid, order >= 1: engine
                                  input is X */
@@ -125,12 +150,16 @@ typedef struct cs_engine {
     double *S, *Sc;           /* C * Lp, compensated states */
     double *xprev, *x0;       /* C */
     double *xfirst;           /* C (tcum only, else NULL): x_0 */
-    /* tcum: corr_n for n in [corrbase, corrbase + corrcnt), recomputed from
-       n alone (not part of the state) */
-    double *corrbuf;
-    uint64_t corrbase;
-    size_t corrcnt;
+    cs_cache tc;              /* tcum: the x_0 column's corr_n, n >= B */
     double corrmax;           /* tcum: max |corr_n|, B <= n <= horizon */
+    /* the other correction columns (not carried by the construction),
+       added at run time from the library's weights: nx of them, column
+       xj[i] of the rule's list, x_j of channel c in xs[i * C + c] (0
+       before it arrives) */
+    size_t nx;
+    uint64_t xj[FC__CORR_MAX];
+    cs_cache xc[FC__CORR_MAX];
+    double *xs;
     double umax;              /* largest accepted |u| (RANGE) */
     /* One channel only: the states and output a preview computed, and the
        sample and count it computed them for; a push of that very sample
@@ -306,26 +335,37 @@ static inline void cs_dd_add(double *hi, double *lo, double x)
  * Every mode performs the same arithmetic on the values it uses, so a
  * preview equals the push bit for bit.
  */
-/* tcum: corr_n for B <= n < 2^53 (past the horizon too), the library's
-   correction (fc__x0_correction) computed for the aligned block of
-   CS_CORR_BLK indices holding n (cut at 2^53 - 1), so that the value
-   depends on n alone. Creation checked both ends, n = B and n = 2^53 - 1
-   (soe_build.c), and |corr_n| grows with n there, so the status is FC_OK. */
-static double cs_corr_at(cs_engine *cs, uint64_t n)
+/* corr_n of a column added at run time, n < 2^53 (past the horizon too):
+   the library's correction (fc__correction) computed for the aligned block
+   of CS_CORR_BLK indices holding n (cut at 2^53 - 1), so that the value
+   depends on n alone; NAN if the weights leave the double range. tcum:
+   creation checked both ends, n = B and n = 2^53 - 1 (soe_build.c), and
+   |corr_n| grows with n there, so the x_0 column never gives NAN. Other
+   columns: cs_check_block refuses a step whose correction is not finite
+   or too large. */
+static double cs_corr_at(const cs_engine *cs, cs_cache *k, uint64_t n)
 {
-    if (!(n >= cs->corrbase && n - cs->corrbase < cs->corrcnt)) {
+    if (!(n >= k->base && n - k->base < k->cnt)) {
         uint64_t base = n - n % CS_CORR_BLK;
         size_t cnt = CS_CORR_BLK;
         if (FC_INDEX_LIMIT - base < cnt) cnt = (size_t)(FC_INDEX_LIMIT - base);
-        if (fc__x0_correction(cs->rule, cs->order, cs->step, base, cnt,
-                              cs->corrbuf) != FC_OK) {
-            cs->corrcnt = 0;
-            return NAN;     /* not reached (see above) */
+        if (fc__correction(cs->rule, k->k, cs->order, cs->step, base, cnt,
+                           k->buf) != FC_OK) {
+            k->cnt = 0;
+            return NAN;
         }
-        cs->corrbase = base;
-        cs->corrcnt = cnt;
+        k->base = base;
+        k->cnt = cnt;
     }
-    return cs->corrbuf[n - cs->corrbase];
+    return k->buf[n - k->base];
+}
+
+/* The corrections of the columns added at run time for output n:
+   w[i] = corr_n of column i once it has arrived (n >= j), else 0. */
+static void cs_extra_weights(cs_engine *cs, uint64_t n, double *w)
+{
+    for (size_t i = 0; i < cs->nx; i++)
+        w[i] = n >= cs->xj[i] ? cs_corr_at(cs, &cs->xc[i], n) : 0.0;
 }
 
 static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
@@ -338,8 +378,10 @@ static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
        carried by the terms, u_0 having entered term l as inj_l u_0 at
        n = B (corr_m + c_m = sum_l beta_l inj_l (1-q_l)^m) */
     const double corr = (cs->x0corr && n < B) ? cs->ctab[n]
-                        : cs->tcum ? cs_corr_at(cs, n) : 0.0;
+                        : cs->tcum ? cs_corr_at(cs, &cs->tc, n) : 0.0;
     const int inject = cs->x0corr && !cs->tcum && n == B;
+    double xw[FC__CORR_MAX];
+    cs_extra_weights(cs, n, xw);
     for (size_t c = 0; c < C; c++) {
         double xc = mode == 2 ? 0.0 : x[c];
         double u;
@@ -376,6 +418,11 @@ static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
             double band = cs_band(cs, ring + pos + 1);
             double x0 = n == 0 ? xc : cs->tcum ? cs->xfirst[c] : cs->x0[c];
             yc = ((terms + band) + cs->c0 * u) + corr * x0;
+            /* the other columns, in the table's order (x_j is the sample
+               pushed now when j = n) */
+            for (size_t i = 0; i < cs->nx; i++)
+                if (n >= cs->xj[i])
+                    yc += xw[i] * (n == cs->xj[i] ? xc : cs->xs[i * C + c]);
             if (mode == 1 && cs->pS) {
                 cs->py = yc;
                 cs->pn = n;
@@ -396,6 +443,8 @@ static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
                 cs->xprev[c] = xc;
                 if (n == 0) cs->x0[c] = xc;
             }
+            for (size_t i = 0; i < cs->nx; i++)
+                if (n == cs->xj[i]) cs->xs[i * C + c] = xc;
         }
     }
     if (commit) {
@@ -407,15 +456,45 @@ static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
 /*
  * RANGE. FC_OK if pushing the count time steps x (finite) keeps every
  * engine input u (x; L1: x_n - x_{n-1}; rectangle with a >= 1: the running
- * sum X) within umax, else FC_ERR_RANGE; also FC_ERR_SIZE if the count
- * would reach 2^53 (the loader's bound). Writes nothing: the running sums
- * and the differences are recomputed with the very operations of cs_step.
+ * sum X) within umax, and the columns added at run time within umax too
+ * (sum_i |corr^i_n x_j| <= umax for every step: cs_umax counts it once),
+ * else FC_ERR_RANGE; also FC_ERR_SIZE if the count would reach 2^53 (the
+ * loader's bound). Writes no state (only the caches of corr_n): the
+ * running sums and the differences are recomputed with the very
+ * operations of cs_step.
  */
-static int cs_check_block(const cs_engine *cs, const double *x, size_t count)
+/* The columns added at run time over count steps of x (x NULL: one step
+   whose sample is taken as 0, the history): FC_ERR_RANGE if some
+   sum_i |corr^i_n x_j| is above umax or not finite. */
+static int cs_check_extra(cs_engine *cs, const double *x, size_t count)
+{
+    const size_t C = cs->C;
+    for (size_t t = 0; cs->nx && t < count; t++) {
+        double xw[FC__CORR_MAX];
+        const uint64_t n = cs->n + t;
+        cs_extra_weights(cs, n, xw);
+        for (size_t c = 0; c < C; c++) {
+            double e = 0.0;
+            for (size_t i = 0; i < cs->nx; i++) {
+                uint64_t j = cs->xj[i];
+                if (n < j) continue;
+                double xj = j < cs->n ? cs->xs[i * C + c]
+                            : x ? x[(size_t)(j - cs->n) * C + c] : 0.0;
+                e += fabs(xw[i]) * fabs(xj);
+            }
+            if (!(e <= cs->umax)) return FC_ERR_RANGE;
+        }
+    }
+    return FC_OK;
+}
+
+static int cs_check_block(cs_engine *cs, const double *x, size_t count)
 {
     const size_t C = cs->C;
     const double U = cs->umax;
     if ((uint64_t)count > FC_INDEX_LIMIT - 1 - cs->n) return FC_ERR_SIZE;
+    int st = cs_check_extra(cs, x, count);
+    if (st != FC_OK) return st;
     for (size_t c = 0; c < C; c++) {
         double hi = cs->xprev[c], lo = cs->x0[c];
         uint64_t n = cs->n;
@@ -468,6 +547,8 @@ static int cs_preview(void *eng, const double *x, double *y)
 
 static int cs_history(void *eng, double *h)
 {
+    int st = cs_check_extra(eng, NULL, 1);
+    if (st != FC_OK) return st;
     cs_step(eng, NULL, h, 2);  /* mode 2 writes nothing */
     return FC_OK;
 }
@@ -482,6 +563,7 @@ static void cs_reset(void *eng)
     memset(cs->xprev, 0, C * sizeof(double));
     memset(cs->x0, 0, C * sizeof(double));
     if (cs->xfirst) memset(cs->xfirst, 0, C * sizeof(double));
+    if (cs->nx) memset(cs->xs, 0, cs->nx * C * sizeof(double));
     cs->n = 0;
     cs->pvalid = 0;
 }
@@ -510,15 +592,28 @@ static void cs_free(void *eng)
 
 /* ------------------------------------------------------------ allocation */
 
-static int cs_alloc(size_t C, size_t Lp, int tcum, cs_engine **out)
+/* The correction columns of a rule the runtime adds (those the
+   construction does not carry). */
+static size_t cs_runtime_cols(int rule)
+{
+    const fc__rule_desc *d = fc__rule(rule);
+    size_t m = 0;
+    for (size_t k = 0; k < d->ncorr; k++) m += !d->corr[k].soe;
+    return m;
+}
+
+static int cs_alloc(size_t C, size_t Lp, int tcum, size_t nx,
+                    cs_engine **out)
 {
     const size_t B = CS_BAND;
     size_t nd = 0, t;
-    /* shared: 3*Lp + 2*B (tcum: + CS_CORR_BLK; one channel: + 2*Lp for
-       the preview's states); per channel: 2B + 2*Lp + 2 (tcum: + 1) */
+    /* shared: 3*Lp + 2*B (tcum: + CS_CORR_BLK; + nx CS_CORR_BLK; one
+       channel: + 2*Lp for the preview's states); per channel: 2B + 2*Lp + 2
+       (tcum: + 1; + nx) */
     size_t per;
-    const size_t xper = tcum ? 1 : 0;
-    const size_t xsh = (tcum ? CS_CORR_BLK : 0) + (C == 1 ? 2 * Lp : 0);
+    const size_t xper = (tcum ? 1 : 0) + nx,
+                 xsh = (tcum ? CS_CORR_BLK : 0) + nx * CS_CORR_BLK
+                       + (C == 1 ? 2 * Lp : 0);
     if (fc__mul_size(2, Lp, &per) || fc__add_size(per, 2 * B + 2 + xper, &per) ||
         fc__mul_size(per, C, &t) || fc__add_size(t, 3 * Lp + 2 * B + xsh, &nd) ||
         fc__mul_size(nd, sizeof(double), &t) || fc__add_size(t, 64, &t))
@@ -542,15 +637,18 @@ static int cs_alloc(size_t C, size_t Lp, int tcum, cs_engine **out)
     cs->x0 = p; p += C;
     if (tcum) {
         cs->xfirst = p; p += C;
-        cs->corrbuf = p; p += CS_CORR_BLK;
+        cs->tc.buf = p; p += CS_CORR_BLK;
     }
+    for (size_t i = 0; i < nx; i++) {
+        cs->xc[i].buf = p; p += CS_CORR_BLK;
+    }
+    if (nx) { cs->xs = p; p += nx * C; }
     if (C == 1) {
         cs->pS = p; p += Lp;
         cs->pSc = p; p += Lp;
     }
     cs->tcum = tcum;
-    cs->corrbase = 0;
-    cs->corrcnt = 0;
+    cs->nx = nx;
     cs->C = C;
     cs->Lp = Lp;
     for (size_t l = 0; l < Lp; l++) { cs->q[l] = 0.5; cs->inj[l] = 1.0; }
@@ -602,6 +700,7 @@ static double cs_umax(const cs_engine *cs)
     }
     if (cs->tcum && cs->corrmax > cmax) cmax = cs->corrmax;
     go += cmax;
+    if (cs->nx) go += 1.0;  /* the other columns: at most U (cs_check_block) */
     double g = go > gs ? go : gs;
     if (!(g <= 1e300)) return 0.0;      /* not reached for accepted steps */
     return 0.25 * (DBL_MAX / g);
@@ -621,8 +720,16 @@ static void cs_finish(cs_engine *cs, const double *cband, const double *ctab,
     cs->rule = rule; cs->order = order; cs->step = step;
     cs->tol = tol; cs->horizon = horizon;
     cs->cum = order >= fc__rule(rule)->cumulative_from; /* = fc__soe.cum */
-    /* cs->tcum: set by cs_alloc (= cum and x0corr) */
-    cs->x0corr = fc__rule_has_x0(rule);
+    /* cs->tcum, cs->nx: set by cs_alloc (tcum = cum and x0corr) */
+    cs->x0corr = fc__rule_has_soe_col(rule);
+    const fc__rule_desc *d = fc__rule(rule);
+    size_t kx;
+    if (fc__rule_soe_col(d, &kx)) cs->tc.k = kx;
+    for (size_t k = 0, i = 0; k < d->ncorr; k++)
+        if (!d->corr[k].soe) {
+            cs->xj[i] = d->corr[k].column;
+            cs->xc[i++].k = k;
+        }
     cs->diffs = fc__rule_uses_differences(rule);
     cs->simd = cs_cpu_avx2();
     cs->umax = cs_umax(cs);
@@ -641,8 +748,9 @@ static int cs_from_soe(const fc__soe *d, int rule, double order, double step,
     size_t Lp = (L + 7) / 8 * 8;
     if (Lp == 0) Lp = 8;
     cs_engine *cs;
-    const int tcum = d->cum && fc__rule_has_x0(rule);
-    if ((st = cs_alloc(channels, Lp, tcum, &cs)) != FC_OK) return st;
+    const int tcum = d->cum && fc__rule_has_soe_col(rule);
+    if ((st = cs_alloc(channels, Lp, tcum, cs_runtime_cols(rule), &cs)) != FC_OK)
+        return st;
     cs->corrmax = d->corrmax;
     memcpy(cs->q, d->q, L * sizeof(double));
     memcpy(cs->beta, d->beta, L * sizeof(double));
@@ -690,32 +798,35 @@ static int cs_create(const fc__stream_def *d, void **eng)
  *      (rectangle and trapezoid with order >= 1: ring holds X, xprev/x0
  *      the high/low parts of X), and for the trapezoid with order >= 1
  *      only, x_0 (these streams are new with it: every payload that
- *      earlier code wrote has the layout without it)
+ *      earlier code wrote has the layout without it), then x_j of each
+ *      correction column the runtime adds (cs_engine.nx, in the table's
+ *      order; no rule of today's table has one)
  *  end u64 FNV-1a 64 of everything before it
  */
 #define CS_HDR 72
 static const unsigned char cs_magic[4] = {'F', 'C', 'C', 'S'};
 
-/* Number of doubles after the header for (C, L, tcum); FC_ERR_SIZE on
+/* Number of doubles after the header for (C, L, tcum, nx); FC_ERR_SIZE on
    overflow. */
-static int cs_ndoubles(uint64_t C, uint64_t L, int tcum, size_t *nd)
+static int cs_ndoubles(uint64_t C, uint64_t L, int tcum, size_t nx,
+                       size_t *nd)
 {
     const size_t B = CS_BAND;
     size_t per, t, sh;
     if (C > (size_t)-1 || L > CS_MAX_TERMS) return FC_ERR_SIZE;
     sh = 3 * (size_t)L + 2 * B + 1;
     if (fc__mul_size(2, (size_t)L, &per) ||
-        fc__add_size(per, B + 2 + (tcum ? 1 : 0), &per) ||
+        fc__add_size(per, B + 2 + (tcum ? 1 : 0) + nx, &per) ||
         fc__mul_size(per, (size_t)C, &t) || fc__add_size(t, sh, &t))
         return FC_ERR_SIZE;
     *nd = t;
     return FC_OK;
 }
 
-static size_t cs_size_for(uint64_t C, uint64_t L, int tcum)
+static size_t cs_size_for(uint64_t C, uint64_t L, int tcum, size_t nx)
 {
     size_t nd, t;
-    if (cs_ndoubles(C, L, tcum, &nd) || fc__mul_size(nd, 8, &t) ||
+    if (cs_ndoubles(C, L, tcum, nx, &nd) || fc__mul_size(nd, 8, &t) ||
         fc__add_size(t, CS_HDR + 8, &t))
         return 0;
     return t;
@@ -724,14 +835,14 @@ static size_t cs_size_for(uint64_t C, uint64_t L, int tcum)
 static int cs_save_size(const void *eng, size_t *size)
 {
     const cs_engine *cs = eng;
-    *size = cs_size_for(cs->C, cs->L, cs->tcum); /* 0: too large (cs_save refuses) */
+    *size = cs_size_for(cs->C, cs->L, cs->tcum, cs->nx); /* 0: too large (cs_save refuses) */
     return FC_OK;
 }
 
 static int cs_save(const void *eng, unsigned char *buf, size_t size)
 {
     const cs_engine *cs = eng;
-    size_t need = cs_size_for(cs->C, cs->L, cs->tcum);
+    size_t need = cs_size_for(cs->C, cs->L, cs->tcum, cs->nx);
     if (need == 0) return FC_ERR_SIZE;
     if (size < need) return FC_ERR_ARG;
     const size_t B = CS_BAND, L = cs->L;
@@ -760,6 +871,9 @@ static int cs_save(const void *eng, unsigned char *buf, size_t size)
         fc__putd(p, cs->xprev[c]); p += 8;
         fc__putd(p, cs->x0[c]); p += 8;
         if (cs->tcum) { fc__putd(p, cs->xfirst[c]); p += 8; }
+        for (size_t i = 0; i < cs->nx; i++) {
+            fc__putd(p, cs->xs[i * cs->C + c]); p += 8;
+        }
     }
 #undef PUTV
     fc__put64(p, fc__fnv1a(FC__FNV_OFFSET, buf, (size_t)(p - buf)));
@@ -797,10 +911,13 @@ static int cs_dd_ok(double hi, double lo)
  *    xprev (the last sample, or for a >= 1 the high part of X); L1: slot 0
  *    holds u_0 = +0 while n <= B, and xprev = x0 = x_0 when n = 1;
  *  - rectangle and trapezoid a >= 1 (cum): (xprev, x0) is the
- *    double-double X; trapezoid a >= 1 (tcum): xfirst = x_0, with
- *    x_0 + 0 = X_0 (-0 gives +0) ring slot 0 while n <= B, +0 at n = 0, and |x_0| <= umax;
+ *    double-double X; trapezoid a >= 1 (tcum): xfirst = x_0, where
+ *    x_0 + 0 (-0 gives +0) is ring slot 0 while n <= B, +0 at n = 0,
+ *    and |x_0| <= umax;
  *    otherwise x0 = x_0, which is ring slot 0 while n <= B, and |x_0| <=
- *    umax outside L1 (x_0 = u_0).
+ *    umax outside L1 (x_0 = u_0);
+ *  - a column added at run time: x_j = +0 while n <= j (finite once
+ *    stored; cs_check_block bounds its term at every step).
  */
 static int cs_state_ok(const cs_engine *cs)
 {
@@ -824,6 +941,8 @@ static int cs_state_ok(const cs_engine *cs)
             if (!cs_dd_ok(S[l], Sc[l])) return 0;
             if (quiet && !(cs_zero_bits(S[l]) && cs_zero_bits(Sc[l]))) return 0;
         }
+        for (size_t i = 0; i < cs->nx; i++)
+            if (n <= cs->xj[i] && !cs_zero_bits(cs->xs[i * cs->C + c])) return 0;
         if (cs->tcum) {
             const double xf = cs->xfirst[c];
             if (n == 0 && !cs_zero_bits(xf)) return 0;
@@ -900,15 +1019,16 @@ static int cs_load(const fc__stream_def *d, const unsigned char *buf,
         return FC_ERR_FORMAT;
     if (C == 0 || L > CS_MAX_TERMS) return FC_ERR_FORMAT;
     /* the trapezoid at orders >= 1 keeps x_0 per channel as well */
-    const int tcum = fc__rule_has_x0((int)rule) &&
+    const int tcum = fc__rule_has_soe_col((int)rule) &&
                      order >= fc__rule((int)rule)->cumulative_from;
-    size_t need = cs_size_for(C, L, tcum);   /* 0 on overflow */
+    const size_t nx = cs_runtime_cols((int)rule);
+    size_t need = cs_size_for(C, L, tcum, nx);   /* 0 on overflow */
     if (need == 0 || need != size) return FC_ERR_FORMAT;
     if (fc__get64(buf + size - 8) != fc__fnv1a(FC__FNV_OFFSET, buf, size - 8))
         return FC_ERR_FORMAT;
     if (n >= FC_INDEX_LIMIT) return FC_ERR_FORMAT;
     size_t nd;
-    if (cs_ndoubles(C, L, tcum, &nd)) return FC_ERR_FORMAT;
+    if (cs_ndoubles(C, L, tcum, nx, &nd)) return FC_ERR_FORMAT;
     fc__rd v = r;   /* the doubles, read twice: checked, then taken */
     for (size_t i = 0; i < nd; i++)
         if (!isfinite(fc__rd_d(&v))) return FC_ERR_FORMAT;
@@ -946,6 +1066,7 @@ static int cs_load(const fc__stream_def *d, const unsigned char *buf,
         cs->xprev[c] = fc__rd_d(&r);
         cs->x0[c] = fc__rd_d(&r);
         if (tcum) cs->xfirst[c] = fc__rd_d(&r);
+        for (size_t i = 0; i < nx; i++) cs->xs[i * (size_t)C + c] = fc__rd_d(&r);
     }
 #undef GETV
     cs->n = n;
@@ -957,8 +1078,17 @@ static int cs_load(const fc__stream_def *d, const unsigned char *buf,
     return FC_OK;
 }
 
+static const fc__range *cs_order_range(const fc__rule_desc *d)
+{
+    return &d->compressed;
+}
+
 const fc__stream_ops fc__compressed_ops = {
     .has_horizon = 1,
+    .tol_min = FC__CS_TOL_MIN,
+    .tol_max = FC__CS_TOL_MAX,
+    .horizon_max = FC__CS_HORIZON_MAX,
+    .order_range = cs_order_range,
     .create = cs_create,
     .load = cs_load,
     .free = cs_free,
