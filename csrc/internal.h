@@ -231,6 +231,20 @@ int fc__soe_build(int rule, double order, double step, double tol,
                   double horizon, fc__soe *out);
 
 /*
+ * The sum of exponentials of the continuous kernel tau^(g-1)/Gamma(g) on
+ * 1 <= tau <= R (soe_build.c, fc__soe_power; the grid engine, grid_soe.c,
+ * and the time-stamped stream): k(tau) ~= sum_l w[l] exp(-s[l] tau) with
+ * relative error <= 0.6 tol + 16 eps, checked. gm1 = g - 1 in (-1, 0)
+ * (0 < g < 1) or 0 (g = 1: one exact term). s and w malloc'ed (L each).
+ */
+#define FC__GRID_RATIO_MAX 1.2676506002282294e30   /* 2^100 */
+typedef struct {
+    size_t L;
+    double *s, *w;
+} fc__soe_pow;
+int fc__soe_power(long double gm1, double tol, double R, fc__soe_pow *out);
+
+/*
  * Stream engines behind one interface. stream.c (the facade) owns struct
  * fc_stream: the busy guard, every argument and sample check (done once,
  * there), the common save header, and dispatch through the engine's
