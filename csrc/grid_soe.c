@@ -43,7 +43,10 @@
  * grow with the number of steps but with sum_j s_l h_j over the span where
  * the term still matters (a few tens); the final sum of L terms adds at
  * most L eps S_n. Signals are scaled by a power of two each before the
- * recursion, the time scale d2^(+-a) applied last as a mantissa and a
+ * recursion (the largest |x| to just below 2^target, as large as the
+ * bounds of the states allow, so that the small samples of a signal with
+ * large ones, and their products with small e^-z - 1, stay normal
+ * numbers), the time scale d2^(+-a) applied last as a mantissa and a
  * power of two, so large samples (near 1e300) and extreme times neither
  * overflow nor lose digits on the way; FC_ERR_RANGE exactly when an output
  * is beyond the double range. Outputs in or near the subnormal range get
@@ -164,12 +167,19 @@ int fc_grid_apply(int rule, double order, const double *t, const double *x,
                       : kind == GS_TRAP ? (double)(1.0L / tgammal(al + 2.0L))
                       : (double)(1.0L / tgammal(2.0L - al));
     const double pexp = kind == GS_L1 ? -a : a;
-    /* a bound on every |scaled output| with max |x| <= 1 (log2): the sum
-       of the weights, R^a / Gamma(a+1) for the integrals, and for L1
-       sum_k c_k |dx_k| <= 2 (n-1) / Gamma(2-a) (scaled steps >= 1) */
-    const double lbound = 1.0 + (kind == GS_L1 ? log2(2.0 * (double)n) + log2(cloc)
-                                 : a * log2(R) - log2((double)tgammal(al + 1.0L)));
-
+    /* log2 of bounds, for max |x| <= 1: on every output (the sum of the
+       weights, R^a / Gamma(a+1) for the integrals; for L1
+       sum_k c_k |dx_k| <= 2 (n-1) / Gamma(2-a), scaled steps >= 1) and on
+       every state (sum_j h_j <= R for the integrals, sum_j |dx_j| <= 2n
+       for L1) */
+    const double lout = 1.0 + (kind == GS_L1 ? log2(2.0 * (double)n) + log2(cloc)
+                               : a * log2(R) - log2((double)tgammal(al + 1.0L)));
+    const double lstate = 2.0 + (kind == GS_L1 ? log2(2.0 * (double)n) : log2(R));
+    /* each signal is scaled by a power of two to a largest |x| of
+       2^target: as large as the states allow, so that small samples of a
+       signal with large ones stay normal numbers */
+    const double lmax = lout > lstate ? lout : lstate;
+    const int target = (int)floor(1000.0 - lmax);
     size_t nbuf;
     double *work = NULL, *tmp = NULL;
     st = FC_ERR_SIZE;
@@ -194,10 +204,10 @@ int fc_grid_apply(int rule, double order, const double *t, const double *x,
     int safe = 1;
     for (size_t sg = 0; sg < nsig; sg++) {
         double m = fc__max_abs(x + sg * n, n);
-        int e = 0;
+        int e = target;
         if (m > 0.0) (void)frexp(m, &e);
-        ex[sg] = e;
-        if (m > 0.0 && lbound + (double)Fe + (double)e > 1020.0) safe = 0;
+        ex[sg] = e - target;                 /* x 2^-ex[sg]: max below 2^target */
+        if (m > 0.0 && lout + (double)target + (double)Fe + (double)ex[sg] > 1020.0) safe = 0;
     }
     double *dst = y;
     if (!safe) {
