@@ -63,40 +63,6 @@
 
 #define GS_BLOCK 256            /* intervals per block of coefficients */
 
-/* 1/(i+2)! with alternating sign, i = 0 .. 17: f2(z) = sum c_i z^i. */
-static const double gs_c[18] = {
-    1.0 / 2, -1.0 / 6, 1.0 / 24, -1.0 / 120, 1.0 / 720, -1.0 / 5040,
-    1.0 / 40320, -1.0 / 362880, 1.0 / 3628800, -1.0 / 39916800,
-    1.0 / 479001600, -1.0 / 6227020800.0, 1.0 / 87178291200.0,
-    -1.0 / 1307674368000.0, 1.0 / 20922789888000.0,
-    -1.0 / 355687428096000.0, 1.0 / 6402373705728000.0,
-    -1.0 / 121645100408832000.0,
-};
-
-/* e^-z - 1, phi1(z) = (1 - e^-z)/z, f2(z) = (1 - phi1)/z for z >= 0,
-   each to a few units of 2^-53 (no cancellation: the series for z < 1,
-   truncated where the next term is below 2^-60 of the sum; expm1 above,
-   where 1 - phi1 >= 1/e loses at most a factor 3). */
-static inline void gs_phi(double z, double *em1, double *p1, double *f2)
-{
-    double r;
-    if (z < 1.0) {
-        int J = z < 1e-4 ? 4 : z < 1.0 / 64 ? 8 : z < 0.25 ? 12 : 18;
-        r = gs_c[J - 1];
-        for (int i = J - 2; i >= 0; i--) r = r * z + gs_c[i];
-        double f1 = 1.0 - z * r;
-        *f2 = r;
-        *p1 = f1;
-        *em1 = -z * f1;
-    } else {
-        double e = expm1(-z);
-        double f1 = -e / z;
-        *em1 = e;
-        *p1 = f1;
-        *f2 = (1.0 - f1) / z;
-    }
-}
-
 static int gs_overlaps(const double *a, size_t na, const double *b, size_t nb)
 {
     uintptr_t pa = (uintptr_t)a, pb = (uintptr_t)b;
@@ -245,7 +211,7 @@ int fc_grid_apply(int rule, double order, const double *t, const double *x,
             double *E = cE + i * L, *P = cP + i * L, *Q = cQ ? cQ + i * L : NULL;
             for (size_t l = 0; l < L; l++) {
                 double em1, p1, f2;
-                gs_phi(sv[l] * h, &em1, &p1, &f2);
+                fc__gs_phi(sv[l] * h, &em1, &p1, &f2);
                 E[l] = em1;
                 if (kind == GS_RECT) P[l] = h * p1;
                 else if (kind == GS_L1) P[l] = p1;
