@@ -195,6 +195,9 @@ class TimedStream:
         self._tol = float(_get(lib.fc_stream_tol, s, "double *"))
         self._horizon = float(_get(lib.fc_stream_horizon, s, "double *"))
         self._lock = _Guard()
+        self._t1 = ffi.new("double[1]")
+        self._x1 = ffi.new("double[1]")
+        self._y1 = ffi.new("double[1]")
         self._last: Optional[float] = None
         self._first: Optional[float] = None
 
@@ -235,31 +238,66 @@ class TimedStream:
                 count, ffi.from_buffer("double[]", y))
         finally:
             self._lock.release()
-        if st == lib.FC_OK:
-            if self._first is None:
-                self._first = float(t[0])
-            self._last = float(t[-1])
-            return y
+        if st != lib.FC_OK:
+            raise self._refusal(st, float(t[0]), float(t[-1]), float(np.max(np.abs(x))))
+        if self._first is None:
+            self._first = float(t[0])
+        self._last = float(t[-1])
+        return y
+
+    def _refusal(self, st: int, t_first: float, t_last: float, xmax: float) -> Exception:
         if st == lib.FC_ERR_HORIZON:
-            first = self._first if self._first is not None else float(t[0])
-            raise HorizonError(
-                f"time={show(float(t[-1]))}: past the horizon ({show(self._horizon)} "
+            first = self._first if self._first is not None else t_first
+            return HorizonError(
+                f"time={show(t_last)}: past the horizon ({show(self._horizon)} "
                 f"after the first time {show(first)}); the stream is unchanged. Set "
                 "horizon_policy='continue' to go on without the promise")
         if st == lib.FC_ERR_RANGE:
-            raise RangeError(
-                f"samples (largest |sample| {show(float(np.max(np.abs(x))))}): beyond "
+            return RangeError(
+                f"samples (largest |sample| {show(xmax)}): beyond "
                 "the range bound of this stream (csrc/stream_timed.c, RANGE); the "
                 "stream is unchanged")
         if st == lib.FC_ERR_ARG:
-            raise ArgumentError(
-                f"time={show(float(t[0]))}: a step below min_step="
+            return ArgumentError(
+                f"time={show(t_first)}: a step below min_step="
                 f"{show(self._min_step)} from the previous time (or a time not after "
                 "it); the stream is unchanged")
         if st == lib.FC_ERR_BUSY:
+            return self._busy()
+        try:
+            raise_for_status(st, "push")
+        except Exception as exc:  # every non-zero status raises
+            return exc
+        return AssertionError(f"status {st}")  # pragma: no cover
+
+    def _push_scalar(self, time: object, x: object) -> float:
+        t = check_real("time", time)
+        if not math.isfinite(t):
+            raise ArgumentError(f"time={show(t)}: sample times must be finite")
+        last = self._last
+        if last is not None and not t - last >= self._min_step:
+            raise ArgumentError(
+                f"time={show(t)}: the step from the previous time {show(last)} is "
+                f"{show(t - last)}, below min_step={show(self._min_step)} (or the "
+                "time is not after it); the stream is unchanged")
+        v = check_real("x", x)
+        if not math.isfinite(v):
+            raise nonfinite_error("x", np.array([v]))
+        if not self._lock.acquire(False):
             raise self._busy()
-        raise_for_status(st, "push")
-        raise AssertionError("unreachable")  # pragma: no cover
+        try:
+            self._t1[0] = t
+            self._x1[0] = v
+            st = lib.fc_stream_push_timed(self._s, self._t1, self._x1, 1, self._y1)
+            y = float(self._y1[0])
+        finally:
+            self._lock.release()
+        if st != lib.FC_OK:
+            raise self._refusal(st, t, t, abs(v))
+        if self._first is None:
+            self._first = t
+        self._last = t
+        return y
 
     def _samples(self, name: str, xs: object, shape: tuple[int, ...]) -> FloatArray:
         a = as_float_array(name, xs)
@@ -291,10 +329,11 @@ class TimedStream:
 
         Every refusal leaves the stream unchanged.
         """
+        if self._scalar:
+            return self._push_scalar(time, x)
         t = self._times([time], 1)
         a = self._samples("x", x, (self._C,))
-        y = self._call(t, a, 1)
-        return float(y[0]) if self._scalar else y
+        return self._call(t, a, 1)
 
     def push_many(self, times: ArrayLike, xs: ArrayLike) -> FloatArray:
         """Push T samples at T times: ``xs`` of shape (T,) for a scalar

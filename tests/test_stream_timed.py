@@ -373,3 +373,35 @@ def test_bad_bytes_are_refused():
         pf.Stream.load(blob)
     with pytest.raises(StateError, match="TimedStream.load"):
         pf.Stream.load(b"pyfcS1" + blob[6:])
+
+
+def test_scalar_refusals_change_nothing():
+    kw = dict(order=0.3, min_step=0.01, horizon=1.0, rule="l1")
+    s, twin = _twins(**kw)
+    for ti, xi in ((0.0, 1.0), (0.02, 2.0), (0.05, -1.0)):
+        assert s.push(ti, xi) == twin.push(ti, xi)
+    before = s.save()
+    for exc, call in ((ArgumentError, lambda: s.push(0.05, 1.0)),
+                      (ArgumentError, lambda: s.push(0.055, 1.0)),
+                      (ArgumentError, lambda: s.push(float("nan"), 1.0)),
+                      (SampleError, lambda: s.push(0.1, float("inf"))),
+                      (HorizonError, lambda: s.push(2.0, 1.0)),
+                      (RangeError, lambda: s.push(0.1, 1e308))):
+        with pytest.raises(exc):
+            call()
+        assert s.save() == before
+    for ti, xi in ((0.07, 0.5), (0.5, 3.0), (1.0, 0.0)):
+        assert s.push(ti, xi) == twin.push(ti, xi)
+
+
+@pytest.mark.parametrize("min_step", [1e-9, 1.0, 1e3])
+@pytest.mark.parametrize("rule,a", [("rectangle", 0.5), ("rectangle", 1.0),
+                                    ("trapezoid", 0.9), ("l1", 0.01), ("l1", 0.99)])
+def test_range_bound_accepts_1e290(rule, a, min_step):
+    # the header's statement: samples (L1: increments) up to about 1e290
+    # are accepted with a horizon of 1e6 smallest steps, and the outputs
+    # stay finite
+    s = pf.TimedStream(a, min_step, 1e6 * min_step, rule=rule)
+    x = np.array([1e290, -1e290, 1e290, 0.0, 1e290])
+    y = s.push_many(min_step * np.array([0.0, 1.0, 2.5, 1e5, 1e6]), x)
+    assert np.all(np.isfinite(y))
