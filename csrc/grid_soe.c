@@ -184,8 +184,6 @@ int fc_grid_apply(int rule, double order, const double *t, const double *x,
         dst = tmp;
     }
 
-    /* the first output of every signal */
-    for (size_t sg = 0; sg < nsig; sg++) dst[sg * n] = 0.0;
     /* Each block of intervals j0 .. j1-1 gives outputs j0+1 .. j1; the
        signals run through the block one after the other with their own
        state (kept across blocks: one pass over all signals per block). */
@@ -199,6 +197,9 @@ int fc_grid_apply(int rule, double order, const double *t, const double *x,
         if (!Sall) { free(ex); goto fail; }
         Scall = Sall + nsig * L;
     }
+    /* everything is allocated: from here on nothing fails before the
+       outputs are complete; the first output of every signal is 0 */
+    for (size_t sg = 0; sg < nsig; sg++) dst[sg * n] = 0.0;
     memset(S, 0, 2 * L * sizeof(double));
     const double *sv = soe.s, *wv = soe.w;
     for (size_t j0 = 0; j0 + 1 < n; j0 += GS_BLOCK) {
