@@ -371,10 +371,16 @@ def _apply_grid(kind: str, samples: object, order: object, t: object, rule: obje
         st = lib.fc_grid_apply(check_rule(rule), a, dptr(tc), dptr(block), nsig, n, tl,
                                ffi.from_buffer("double[]", out), ffi.NULL)
         if st == lib.FC_ERR_TOL:
-            raise ArgumentError(
-                f"t: the span t[-1] - t[0] = {show(float(tt[-1] - tt[0]))} is more "
-                "than 2**100 times the smallest step: too wide for the fast "
-                "engine; use engine='direct'")
+            width = float(tt[-1] - tt[0])
+            hmin = float(np.min(np.diff(tt)))
+            if width / hmin > 2.0 ** 99:
+                raise ArgumentError(
+                    f"t: the span t[-1] - t[0] = {show(width)} is more than 2**100 "
+                    "times the smallest step: too wide for the fast engine; use "
+                    "engine='direct'")
+            raise ArgumentError(  # pragma: no cover (not seen: tests/test_grid_fast.py)
+                f"tol={show(tl)}: no sum of exponentials met this tolerance on this "
+                "grid; use a larger tol or engine='direct'")
         if st == lib.FC_ERR_RANGE:
             raise RangeError(
                 f"samples (or t, order={show(order)}): the result is beyond the "
