@@ -405,3 +405,23 @@ def test_range_bound_accepts_1e290(rule, a, min_step):
     x = np.array([1e290, -1e290, 1e290, 0.0, 1e290])
     y = s.push_many(min_step * np.array([0.0, 1.0, 2.5, 1e5, 1e6]), x)
     assert np.all(np.isfinite(y))
+
+
+def test_in_place_push_gives_the_same_outputs():
+    # y == x is allowed (fracconv.h): the same outputs as separate buffers
+    rng = np.random.default_rng(68)
+    t = jittered(rng, 300)
+    X = rng.standard_normal((300, 2))
+    for code in (lib.FC_RULE_RECTANGLE, lib.FC_RULE_TRAPEZOID, lib.FC_RULE_L1):
+        outs = []
+        for in_place in (False, True):
+            pp = ffi.new("fc_stream **")
+            assert lib.fc_stream_create_timed(code, 0.5, 0.5e-3, 2, 1e-10, 1.0, pp) == 0
+            s = ffi.gc(pp[0], lib.fc_stream_free)
+            x = X.copy()
+            y = x if in_place else np.empty_like(x)
+            assert lib.fc_stream_push_timed(s, ffi.from_buffer("double[]", t),
+                                            ffi.from_buffer("double[]", x), 300,
+                                            ffi.from_buffer("double[]", y)) == 0
+            outs.append(y.copy())
+        np.testing.assert_array_equal(outs[0], outs[1])
