@@ -275,8 +275,10 @@ FC_API int fc_apply(fc_context *ctx, int rule, double order, double step,
  *   |y_n - y_n(exact)| <= (tol + (L + 64) eps) S_n,  eps = 2^-52,
  * y_n(exact) the rule in exact arithmetic with the exact weights on the
  * grid, S_n the sum of the absolute values of its terms (L1: of the weights
- * times the increments x_{k+1} - x_k). Work O(n L + L^2), L about
- * 40-80 for tol 1e-6 .. 1e-13 and ratios 1e6 (csrc/grid_soe.c). Any
+ * times the increments x_{k+1} - x_k). Work O(n L) plus the construction
+ * of the sum (about 100 L kernel values per decade of span / smallest
+ * step); L is 28-64 for tol 1e-6 .. 1e-13 and a span of 1e6 smallest
+ * steps (csrc/grid_soe.c). Any
  * finite samples: FC_ERR_RANGE (y untouched) exactly when an output is
  * beyond the double range; outputs near the subnormal range get an
  * absolute error.

@@ -477,8 +477,8 @@ def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
         exponentials, O(N K) work (C, fc_grid_apply), with the
         componentwise promise |y_n - y_n(direct)| <= (tol + (K + 64) 2**-52)
         times the sum of the absolute values of the terms of y_n
-        (sum_k |w_{n,k} x_k|); K is about 40-80 (tol 1e-6 .. 1e-13, spans of
-        1e6 smallest steps). ``engine='auto'`` takes the fast engine from
+        (sum_k |w_{n,k} x_k|); K is 28-64 (tol 1e-6 .. 1e-13, spans of 1e6
+        smallest steps). ``engine='auto'`` takes the fast engine from
         ``GRID_FAST_FROM`` (200) samples on, when the order allows it,
         else the direct one. A uniform ``t`` is not detected: give a
         uniform grid as ``step`` for the uniform engines.
