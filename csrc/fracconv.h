@@ -259,6 +259,37 @@ FC_API int fc_apply(fc_context *ctx, int rule, double order, double step,
              const double *x, size_t nsig, size_t n, int engine, double *y);
 
 /*
+ * A rule on any strictly increasing grid of times, by sums of exponentials
+ * (the fast engine of integral/derivative(..., t=) in Python; the direct
+ * O(n^2) engine is pyfracconv.grid): y[s*n + i] approximates the operator
+ * at t[i], from t[0], for nsig signals of n samples (x, y as for fc_apply).
+ * Rules and orders: RECTANGLE and TRAPEZOID (I^a, 0 < order <= 1), L1
+ * (Caputo, 0 < order < 1); the weights on the grid are those of
+ * pyfracconv.grid.grid_weights (product rules of Diethelm, Ford and Freed
+ * 2002; L1 of Stynes, O'Riordan and Gracia 2017). t: n finite times,
+ * strictly increasing (else FC_ERR_NONFINITE / FC_ERR_ARG); the span
+ * t[n-1] - t[0] at most 2^100 times the smallest step (else FC_ERR_TOL;
+ * the terms grow with the logarithm of that ratio). tol in [1e-15, 1e-2]
+ * (FC_ERR_TOL). y must not overlap x or t (FC_ERR_ARG). *terms (may be
+ * NULL) gets the number L of exponential terms used.
+ * Promise, for every output (componentwise):
+ *   |y_n - y_n(exact)| <= (tol + (L + 64) eps) S_n,  eps = 2^-52,
+ * y_n(exact) the rule in exact arithmetic with the exact weights on the
+ * grid, S_n the sum of the absolute values of its terms (L1: of the weights
+ * times the increments x_{k+1} - x_k). Work O(n L) plus the construction
+ * of the sum (about 100 L kernel values per decade of span / smallest
+ * step); L is 28-64 for tol 1e-6 .. 1e-13 and a span of 1e6 smallest
+ * steps (csrc/grid_soe.c). Any
+ * finite samples: FC_ERR_RANGE (y untouched) exactly when an output is
+ * beyond the double range; outputs near the subnormal range get an
+ * absolute error (exponential states below DBL_MIN are set to zero, as in
+ * compressed streams, so that runs of zeros cost no more than data).
+ */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_TOL, FC_ERR_SIZE, FC_ERR_ARG (t not increasing, overlap), FC_ERR_NONFINITE (t or x), FC_ERR_RANGE, FC_ERR_NOMEM. */
+FC_API int fc_grid_apply(int rule, double order, const double *t, const double *x,
+                         size_t nsig, size_t n, double tol, double *y, size_t *terms);
+
+/*
  * Streams: samples arrive one at a time (per channel); the n-th output
  * equals element n of fc_apply / fc_lagged_sum on the same samples, to
  * rounding (exact mode) or to a stated tolerance (compressed mode).
@@ -431,6 +462,48 @@ FC_API int fc_stream_tol(const fc_stream *s, double *tol);
 /* Statuses: FC_OK, FC_ERR_NULL (immutable field: no busy check). */
 FC_API int fc_stream_horizon(const fc_stream *s, double *horizon);
 
+
+/*
+ * A compressed stream with a time per sample: created without a fixed
+ * step, it takes (time, sample) pairs (fc_stream_push_timed). Rules:
+ * RECTANGLE, TRAPEZOID (I^a, 0 < order <= 1), L1 (Caputo, 0 < order < 1),
+ * from the first time pushed, with the weights of fc_grid_apply on the
+ * times pushed. min_step: finite, > 0, the smallest step any push may make
+ * (FC_ERR_STEP); horizon: a time span, finite, min_step <= horizon and
+ * horizon/2^floor(log2 min_step) at most 2^99 (FC_ERR_TOL; any horizon up
+ * to 2^98 min_step passes); tol in [1e-15, 1e-2]
+ * (FC_ERR_TOL). Promise, for every output n with t_n - t_0 <= horizon:
+ *   |y_n - y_n(exact)| <= (tol + (L + 64) eps) S_n
+ * as for fc_grid_apply (L = fc_stream_terms). fc_stream_push_timed: t[count]
+ * finite (FC_ERR_NONFINITE), each step t - (previous time) >= min_step
+ * (FC_ERR_ARG; a time not after the previous one included), an output past
+ * the horizon FC_ERR_HORIZON under FC_HORIZON_REFUSE (FC_HORIZON_CONTINUE:
+ * it proceeds, fc_stream_past_horizon reports 1); samples (L1: their
+ * increments) of magnitude above the stream's bound U (csrc/stream_timed.c,
+ * RANGE; about 1e290 for a horizon of 1e6 smallest steps) FC_ERR_RANGE; a
+ * count reaching 2^53 FC_ERR_SIZE. x, y: count*channels doubles, y == x or
+ * no overlap, y must not overlap t (FC_ERR_ARG). Any refusal pushes
+ * nothing of the block and changes nothing. The untimed fc_stream_push,
+ * fc_stream_push_block, fc_stream_push1, fc_stream_preview and
+ * fc_stream_history refuse such a stream with FC_ERR_ARG, and
+ * fc_stream_push_timed refuses every other stream with FC_ERR_ARG.
+ * fc_stream_step gives min_step, fc_stream_horizon the time horizon,
+ * fc_stream_mode FC_MODE_COMPRESSED, fc_stream_remaining the samples the
+ * count still allows (the horizon is a time). Save/load: fc_stream_save,
+ * fc_stream_load (kind 2 of the common header; the loader rebuilds the
+ * terms and compares them bit for bit, and checks the times, the count and
+ * the state).
+ */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_ARG (channels 0), FC_ERR_SIZE (channels too many), FC_ERR_TOL, FC_ERR_RANGE, FC_ERR_NOMEM. */
+FC_API int fc_stream_create_timed(int rule, double order, double min_step,
+                                  size_t channels, double tol, double horizon,
+                                  fc_stream **out);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (not a timed stream, step below min_step, overlap), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE. */
+FC_API int fc_stream_push_timed(fc_stream *s, const double *t, const double *x,
+                                size_t count, double *y);
+/* *timed = 1 for a stream with a time per sample, else 0. */
+/* Statuses: FC_OK, FC_ERR_NULL (immutable field: no busy check). */
+FC_API int fc_stream_is_timed(const fc_stream *s, int *timed);
 
 /*
  * Solver: Caputo initial value problems

@@ -9,6 +9,12 @@
 #include <math.h>
 #include "fracconv.h"
 #include "fft.h"
+#include <float.h>
+
+/* v, or +0 when |v| < DBL_MIN: the one-pole states of the exponential
+   engines set to zero before they decay into the subnormal range, where
+   arithmetic is many times slower (the same work on every sample). */
+static inline double fc__ftz(double v) { return fabs(v) >= DBL_MIN ? v : 0.0; }
 
 /*
  * FC_NO_SIMD: the portable build (make check-portable). fft.c and lagsum.c
@@ -261,6 +267,57 @@ int fc__soe_build(int rule, double order, double step, double tol,
                   double horizon, fc__soe *out);
 
 /*
+ * The sum of exponentials of the continuous kernel tau^(g-1)/Gamma(g) on
+ * 1 <= tau <= R (soe_build.c, fc__soe_power; the grid engine, grid_soe.c,
+ * and the time-stamped stream): k(tau) ~= sum_l w[l] exp(-s[l] tau) with
+ * relative error <= 0.6 tol + 16 eps, checked. gm1 = g - 1 in (-1, 0)
+ * (0 < g < 1) or 0 (g = 1: one exact term). s and w malloc'ed (L each).
+ */
+/* The one-pole coefficients of the grid engine and the time-stamped
+   stream (grid_soe.c, stream_timed.c): over a step of z = s h,
+   e^-z - 1, phi1(z) = (1 - e^-z)/z and f2(z) = (1 - phi1(z))/z. */
+/* 1/(i+2)! with alternating sign, i = 0 .. 17: f2(z) = sum c_i z^i. */
+static const double fc__gs_c[18] = {
+    1.0 / 2, -1.0 / 6, 1.0 / 24, -1.0 / 120, 1.0 / 720, -1.0 / 5040,
+    1.0 / 40320, -1.0 / 362880, 1.0 / 3628800, -1.0 / 39916800,
+    1.0 / 479001600, -1.0 / 6227020800.0, 1.0 / 87178291200.0,
+    -1.0 / 1307674368000.0, 1.0 / 20922789888000.0,
+    -1.0 / 355687428096000.0, 1.0 / 6402373705728000.0,
+    -1.0 / 121645100408832000.0,
+};
+
+/* e^-z - 1, phi1(z) = (1 - e^-z)/z, f2(z) = (1 - phi1)/z for z >= 0,
+   each to a few units of 2^-53 (no cancellation: the series for z < 1,
+   truncated where the next term is below 2^-60 of the sum; expm1 above,
+   where 1 - phi1 >= 1/e loses at most a factor 3). */
+static inline void fc__gs_phi(double z, double *em1, double *p1, double *f2)
+{
+    double r;
+    if (z < 1.0) {
+        int J = z < 1e-4 ? 4 : z < 1.0 / 64 ? 8 : z < 0.25 ? 12 : 18;
+        r = fc__gs_c[J - 1];
+        for (int i = J - 2; i >= 0; i--) r = r * z + fc__gs_c[i];
+        double f1 = 1.0 - z * r;
+        *f2 = r;
+        *p1 = f1;
+        *em1 = -z * f1;
+    } else {
+        double e = expm1(-z);
+        double f1 = -e / z;
+        *em1 = e;
+        *p1 = f1;
+        *f2 = (1.0 - f1) / z;
+    }
+}
+
+#define FC__GRID_RATIO_MAX 1.2676506002282294e30   /* 2^100 */
+typedef struct {
+    size_t L;
+    double *s, *w;
+} fc__soe_pow;
+int fc__soe_power(long double gm1, double tol, double R, fc__soe_pow *out);
+
+/*
  * Stream engines behind one interface. stream.c (the facade) owns struct
  * fc_stream: the busy guard, every argument and sample check (done once,
  * there), the common save header, and dispatch through the engine's
@@ -273,6 +330,8 @@ int fc__soe_build(int rule, double order, double step, double tol,
    the engine's load checks what it needs). */
 #define FC__KIND_RULE 0u     /* part of the save format */
 #define FC__KIND_KERNEL 1u
+#define FC__KIND_TIMED 2u    /* a time per sample (stream_timed.c); step
+                                holds the smallest step, horizon a time */
 typedef struct {
     unsigned kind;           /* FC__KIND_* */
     int rule;                /* -1 for a kernel */
@@ -325,10 +384,23 @@ typedef struct fc__stream_ops {
        a buffer of exactly that size */
     int (*save_size)(const void *eng, size_t *size);
     int (*save)(const void *eng, unsigned char *buf, size_t size);
+    /* a time per sample (stream_timed.c; NULL for the other engines):
+       count steps of times t[count] (finite, checked by the facade) and
+       samples x[count*channels]; refuse_past: FC_HORIZON_REFUSE */
+    int (*push_timed)(void *eng, const double *t, const double *x,
+                      size_t count, double *y, int refuse_past);
+    /* 1 once an output past the horizon was produced (NULL: the facade
+       counts samples against the horizon) */
+    int (*past)(const void *eng);
 } fc__stream_ops;
-extern const fc__stream_ops fc__exact_ops, fc__compressed_ops;
+extern const fc__stream_ops fc__exact_ops, fc__compressed_ops, fc__timed_ops;
 /* The engine of a mode (FC_MODE_*: the index of the facade's engine
-   table), NULL for a number that is not a mode (stream.c). */
+   table), NULL for a number that is not a mode (stream.c). Streams with a
+   time per sample are created and loaded through their own checks. */
 const fc__stream_ops *fc__stream_engine(int64_t mode);
+/* The definition checks of a stream with a time per sample (stream_timed.c;
+   fc_stream_create_timed and the loader). */
+int fc__timed_params_check(int rule, double order, double minstep,
+                           size_t channels, double tol, double horizon);
 
 #endif

@@ -3,7 +3,8 @@
  *
  * A stream is an engine behind one interface (fc__stream_ops, internal.h):
  * stream_exact.c (FC_MODE_EXACT, rules and user kernels) and
- * stream_compressed.c (FC_MODE_COMPRESSED). This file keeps what is common
+ * stream_compressed.c (FC_MODE_COMPRESSED) and stream_timed.c (compressed,
+ * a time per sample). This file keeps what is common
  * to both and nothing of either engine's arithmetic:
  *   - the busy guard (a stream used by two threads at once answers
  *     FC_ERR_BUSY and is left as it was);
@@ -146,6 +147,18 @@ int fc_stream_create(int rule, double order, double step, size_t channels,
     return stream_new(ops, mode, &d, NULL, 0, out);
 }
 
+int fc_stream_create_timed(int rule, double order, double min_step,
+                           size_t channels, double tol, double horizon,
+                           fc_stream **out)
+{
+    if (!out) return FC_ERR_NULL;
+    int st = fc__timed_params_check(rule, order, min_step, channels, tol, horizon);
+    if (st != FC_OK) return st;
+    fc__stream_def d = {FC__KIND_TIMED, rule, order, min_step, channels,
+                        tol, horizon, NULL, 0};
+    return stream_new(&fc__timed_ops, FC_MODE_COMPRESSED, &d, NULL, 0, out);
+}
+
 int fc_stream_create_kernel(const double *kernel, size_t klen,
                             size_t channels, fc_stream **out)
 {
@@ -169,6 +182,14 @@ static int partial_overlap(const double *x, const double *y, size_t n)
     if (a == b || n == 0) return 0;
     uintptr_t len = (uintptr_t)n * sizeof(double);
     return a < b ? b - a < len : a - b < len;
+}
+
+/* 1 if a[0 .. na) and b[0 .. nb) share an element. */
+static int any_overlap(const double *a, size_t na, const double *b, size_t nb)
+{
+    uintptr_t pa = (uintptr_t)a, pb = (uintptr_t)b;
+    if (na == 0 || nb == 0) return 0;
+    return pa < pb + nb * sizeof(double) && pb < pa + na * sizeof(double);
 }
 
 /* Outputs 0 .. floor(horizon) are under the promise of a stream with a
@@ -207,6 +228,35 @@ int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
     else if (count) st = s->ops->push_block(s->eng, x, count, y);
     leave(s);
     return st;
+}
+
+int fc_stream_push_timed(fc_stream *s, const double *t, const double *x,
+                         size_t count, double *y)
+{
+    int st;
+    size_t tot;
+    if (!s) return FC_ERR_NULL;
+    if (count && (!t || !x || !y)) return FC_ERR_NULL;
+    if ((st = enter(s)) != FC_OK) return st;
+    if (fc__mul_size(count, s->C, &tot) || tot > (size_t)-1 / sizeof(double))
+        st = FC_ERR_SIZE;
+    else if (!s->ops->push_timed) st = FC_ERR_ARG;
+    else if (partial_overlap(x, y, tot) || any_overlap(t, count, y, tot))
+        st = FC_ERR_ARG;
+    else if (count && (st = fc__check_finite(t, count)) != FC_OK) {}
+    else if (tot && (st = fc__check_finite(x, tot)) != FC_OK) {}
+    else if (count)
+        st = s->ops->push_timed(s->eng, t, x, count, y,
+                                s->horizon_policy == FC_HORIZON_REFUSE);
+    leave(s);
+    return st;
+}
+
+int fc_stream_is_timed(const fc_stream *s, int *timed)
+{
+    if (!s || !timed) return FC_ERR_NULL;
+    *timed = s->kind == FC__KIND_TIMED; /* immutable */
+    return FC_OK;
 }
 
 int fc_stream_push(fc_stream *s, const double *x, double *y)
@@ -345,7 +395,8 @@ int fc_stream_past_horizon(const fc_stream *s, int *flag)
     if (!flag) return FC_ERR_NULL;
     ENTER_OR_RETURN(s);
     /* outputs 0 .. n-1 have been produced */
-    *flag = s->ops->has_horizon &&
+    if (s->ops->past) *flag = s->ops->past(s->eng);
+    else *flag = s->ops->has_horizon &&
             (double)s->ops->count(s->eng) > floor(s->horizon) + 1.0;
     leave(s);
     return FC_OK;
@@ -401,7 +452,8 @@ int fc_stream_horizon(const fc_stream *s, double *horizon)
  *   0  magic "FCSTREAM"          8 bytes
  *   8  u32 format version (1)
  *  12  u32 mode
- *  16  u32 kind (0 rule, 1 kernel)
+ *  16  u32 kind (0 rule, 1 kernel, 2 a time per sample: then mode 1,
+ *      step the smallest step and horizon a time; stream_timed.c)
  *  20  i32 rule (-1 for a kernel)
  *  24  f64 order, 32 f64 step, 40 u64 channels, 48 f64 tol, 56 f64 horizon
  *  64  u64 payload size
@@ -493,6 +545,9 @@ int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out)
     if (!q || fc__fnv1a(h, q, (size_t)p) != sum) return FC_ERR_FORMAT;
 
     const fc__stream_ops *ops = fc__stream_engine(mode);
+    if (d.kind == FC__KIND_TIMED)
+        /* a time per sample: saved with the compressed mode */
+        ops = ops == &fc__compressed_ops ? &fc__timed_ops : NULL;
     if (C64 == 0 || C64 > FC__STREAM_CHANNELS_MAX || ops == NULL)
         return FC_ERR_FORMAT;
     d.channels = (size_t)C64;

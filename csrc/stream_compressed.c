@@ -198,8 +198,8 @@ static void cs_terms_portable(size_t Lp, const double *q, const double *beta,
             double s = s0 + t3;
             double z = s - s0;
             double e = (s0 - (s - z)) + (t3 - z);
-            if (!(fabs(s) >= DBL_MIN)) s = 0.0;
-            if (!(fabs(e) >= DBL_MIN)) e = 0.0;
+            s = fc__ftz(s);
+            e = fc__ftz(e);
             acc[k] = fma(beta[l + k], s, acc[k]);
             if (So) { So[l + k] = s; Sco[l + k] = e; }
         }

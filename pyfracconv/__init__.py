@@ -57,6 +57,7 @@ __version__ = "0.1.0"
 c_version = _ffi.string(_lib.fc_version_string()).decode()
 
 from .stream import Stream
+from .stream_timed import TimedStream
 from .solve import NewtonError, RhsError, SolveResult, SolverError, Stepper, solve
 from .export import export_c, export_controller_c
 from .control import Controller, HorizonWarning
@@ -70,6 +71,7 @@ __all__ = [
     "get_include",
     "get_lib_dir",
     "Stream",
+    "TimedStream",
     "solve",
     "export_c",
     "export_controller_c",

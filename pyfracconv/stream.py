@@ -346,6 +346,9 @@ class Stream:
             )
         mode = int(_get(lib.fc_stream_mode, s, "int *"))
         rule = int(_get(lib.fc_stream_rule, s, "int *"))
+        if int(_get(lib.fc_stream_is_timed, s, "int *")):
+            raise StateError("a stream with a time per sample: load it with "
+                             "TimedStream.load")
         if mode not in _MODE_NAMES or (rule != -1 and rule not in _RULE_NAMES):
             raise StateError(f"unknown mode {mode} or rule {rule}")
         self._C = C

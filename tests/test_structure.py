@@ -288,7 +288,8 @@ def test_python_checks_accept_exactly_the_table_ranges(mode):
 # ------------------------------------------------------------ stream engines
 
 CSRC = os.path.join(ROOT, "csrc")
-ENGINE_FILES = ("stream.c", "stream_exact.c", "stream_compressed.c", "soe_build.c")
+ENGINE_FILES = ("stream.c", "stream_exact.c", "stream_compressed.c", "stream_timed.c",
+                "soe_build.c")
 
 
 def c_source(name):
@@ -363,7 +364,8 @@ def test_engines_read_the_correction_columns_from_the_table():
 
 def test_each_engine_has_its_table_state_and_no_repeated_checks():
     for name, table, state in (("stream_exact.c", "fc__exact_ops", "ex_engine"),
-                               ("stream_compressed.c", "fc__compressed_ops", "cs_engine")):
+                               ("stream_compressed.c", "fc__compressed_ops", "cs_engine"),
+                               ("stream_timed.c", "fc__timed_ops", "ts_engine")):
         code = c_code(name)
         assert re.search(rf"^const fc__stream_ops {table} = \{{", code, re.M), name
         # its own state struct, the one the engine pointer stands for
@@ -375,7 +377,9 @@ def test_each_engine_has_its_table_state_and_no_repeated_checks():
         assert "fc__check_finite" not in code, name
         assert "partial_overlap" not in code, name
     facade = c_code("stream.c")
-    assert facade.count("fc__check_finite(x") == 2  # push_block and preview
+    # push_block, preview and push_timed (whose times are checked there too)
+    assert facade.count("fc__check_finite(x") == 3
+    assert facade.count("fc__check_finite(t") == 1
     # the construction lives in soe_build.c only
     soe = c_code("soe_build.c")
     assert re.search(r"^int fc__soe_build\(", soe, re.M)

@@ -12,7 +12,8 @@
  * save, load of solvers; create, update, save, load of controllers; FFT
  * plans; batch calls with and without a context; save_file and
  * load_file of each object (the old file must stay as it was and no
- * temporary may be left). Invented signals.
+ * temporary may be left); fc_grid_apply; create, push, save, load of
+ * streams with a time per sample. Invented signals.
  * The library itself has no hook: the wrapping is done by the linker, in
  * this test binary only.
  */
@@ -420,8 +421,58 @@ static void files(void)
     if (rmdir(dir) != 0) { fails++; printf("files: a temporary was left in %s\n", dir); }
 }
 
+/* The rules on a grid of times (fc_grid_apply) and the stream with a time
+   per sample: NOMEM leaves y (resp. the stream) as it was. */
+static void grids(void)
+{
+    enum { N = 2000, C = 2 };
+    double *t = malloc(N * sizeof *t), *x = malloc(N * C * sizeof *x);
+    double *y = malloc(N * C * sizeof *y), *yr = malloc(N * C * sizeof *yr);
+    t[0] = 0.0;
+    for (int i = 1; i < N; i++) t[i] = t[i - 1] + 0.001 * (1.0 + 0.4 * sin(3.0 * i));
+    for (int i = 0; i < N * C; i++) x[i] = cos(0.002 * i) + (i % 97 == 0 ? 1e6 : 0.0);
+    static const int rules[3] = {FC_RULE_RECTANGLE, FC_RULE_TRAPEZOID, FC_RULE_L1};
+    for (int r = 0; r < 3; r++) {
+        char name[64];
+        if (fc_grid_apply(rules[r], 0.4, t, x, C, N, 1e-11, yr, NULL) != FC_OK) { fails++; continue; }
+        snprintf(name, sizeof name, "grid_apply rule %d", rules[r]);
+        for (int i = 0; i < N * C; i++) y[i] = -7.0;
+        FOR_EACH_FAILURE(name, fc_grid_apply(rules[r], 0.4, t, x, C, N, 1e-11, y, NULL),
+                         if (memcmp(y, yr, N * C * sizeof *y)) { fails++; printf("%s: result differs\n", name); },
+                         y[0] == -7.0 && y[N * C - 1] == -7.0);
+        /* the stream with a time per sample */
+        fc_stream *s = NULL, *l = NULL;
+        snprintf(name, sizeof name, "stream_create_timed rule %d", rules[r]);
+        FOR_EACH_FAILURE(name, fc_stream_create_timed(rules[r], 0.4, 0.0005, C, 1e-10, 10.0, &s),
+                         (void)0, s == NULL);
+        if (s == NULL) { fails++; continue; }
+        {
+            unsigned char *ref;
+            size_t n, sz, wr;
+            ref = stream_bytes(s, &n);
+            snprintf(name, sizeof name, "stream_push_timed rule %d", rules[r]);
+            FOR_EACH_FAILURE(name, fc_stream_push_timed(s, t, x, N / 2, y), (void)0, stream_same(s, ref, n));
+            free(ref);
+            ref = stream_bytes(s, &n);
+            fc_stream_save_size(s, &sz);
+            unsigned char *buf = malloc(sz);
+            snprintf(name, sizeof name, "stream_save timed rule %d", rules[r]);
+            FOR_EACH_FAILURE(name, fc_stream_save(s, buf, sz, &wr), (void)0, stream_same(s, ref, n));
+            snprintf(name, sizeof name, "stream_load timed rule %d", rules[r]);
+            FOR_EACH_FAILURE(name, fc_stream_load(buf, wr, &l), (void)0, l == NULL);
+            if (l == NULL || !stream_same(l, ref, n)) { fails++; printf("%s: loaded stream differs\n", name); }
+            free(buf);
+            free(ref);
+        }
+        fc_stream_free(l);
+        fc_stream_free(s);
+    }
+    free(t); free(x); free(y); free(yr);
+}
+
 int main(void)
 {
+    grids();
     streams();
     batch();
     solvers();

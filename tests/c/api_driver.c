@@ -275,6 +275,44 @@ static void stream_life(fc_stream *s, size_t ch, int compressed)
     EXPECT(fc_stream_reset(NULL), FC_ERR_NULL);
 }
 
+/* The rules on a grid of times and the stream with a time per sample. */
+static void test_grid(void)
+{
+    enum { N = 500 };
+    double t[N], x[N], y[N], yb[N];
+    for (int i = 0; i < N; i++) { t[i] = 0.01 * i + 0.003 * sin(i); x[i] = sin(0.05 * i); }
+    size_t K = 0;
+    EXPECT(fc_grid_apply(FC_RULE_TRAPEZOID, 0.5, t, x, 1, N, 1e-10, y, &K), FC_OK);
+    TRUE_(K > 0 && y[0] == 0.0);
+    EXPECT(fc_grid_apply(FC_RULE_GRUNWALD, 0.5, t, x, 1, N, 1e-10, y, NULL), FC_ERR_RULE);
+    EXPECT(fc_grid_apply(FC_RULE_L1, 1.0, t, x, 1, N, 1e-10, y, NULL), FC_ERR_ORDER);
+    EXPECT(fc_grid_apply(FC_RULE_RECTANGLE, 0.5, t, x, 1, N, 0.5, y, NULL), FC_ERR_TOL);
+    EXPECT(fc_grid_apply(FC_RULE_RECTANGLE, 0.5, NULL, x, 1, N, 1e-10, y, NULL), FC_ERR_NULL);
+    EXPECT(fc_grid_apply(FC_RULE_RECTANGLE, 0.5, t, x, 1, N, 1e-10, x, NULL), FC_ERR_ARG);
+    EXPECT(fc_grid_apply(FC_RULE_RECTANGLE, 0.5, t, x, HUGE_SZ, 2, 1e-10, y, NULL), FC_ERR_SIZE);
+    fc_stream *s = NULL, *l = NULL;
+    EXPECT(fc_stream_create_timed(FC_RULE_TRAPEZOID, 0.5, 0.005, 1, 1e-10, 10.0, NULL), FC_ERR_NULL);
+    EXPECT(fc_stream_create_timed(FC_RULE_TRAPEZOID, 0.5, NaN_, 1, 1e-10, 10.0, &s), FC_ERR_STEP);
+    EXPECT(fc_stream_create_timed(FC_RULE_TRAPEZOID, 0.5, 0.005, 1, 1e-10, 10.0, &s), FC_OK);
+    EXPECT(fc_stream_push_timed(s, t, x, N / 2, yb), FC_OK);
+    EXPECT(fc_stream_push_timed(s, t + N / 2, x + N / 2, N - N / 2, yb + N / 2), FC_OK);
+    int timed = 0;
+    EXPECT(fc_stream_is_timed(s, &timed), FC_OK);
+    TRUE_(timed == 1);
+    EXPECT(fc_stream_push_timed(s, t, x, 1, yb), FC_ERR_ARG);          /* time not after */
+    EXPECT(fc_stream_push_timed(NULL, t, x, 1, yb), FC_ERR_NULL);
+    EXPECT(fc_stream_push(s, x, yb), FC_ERR_ARG);
+    size_t sz, wr;
+    EXPECT(fc_stream_save_size(s, &sz), FC_OK);
+    unsigned char *buf = malloc(sz);
+    EXPECT(fc_stream_save(s, buf, sz, &wr), FC_OK);
+    EXPECT(fc_stream_load(buf, wr, &l), FC_OK);
+    blob_faults("timed stream", buf, wr, ld_stream, fr_stream);
+    free(buf);
+    fc_stream_free(l);
+    fc_stream_free(s);
+}
+
 static void test_streams(void)
 {
     fc_stream *s;
@@ -654,6 +692,7 @@ static void test_files(void)
 
 int main(void)
 {
+    test_grid();
     test_info();
     test_weights();
     test_batch();
