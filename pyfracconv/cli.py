@@ -806,8 +806,8 @@ input and output:
   (and an older OUT.npy as it was). OUT.npy must not be the input.
 
 memory:
-  compressed (default): bounded whatever the length: about 12 KB per column
-  for the stream, three buffers of 8 * ROWS * columns bytes, and up to
+  compressed (default): bounded whatever the length: 5-7 KB for one column
+  and about 2 KB for each further one for the stream, three buffers of 8 * ROWS * columns bytes, and up to
   16 MiB resident of each mapped file. Outputs are within --tol of the
   exact ones (relative to the sum of the absolute terms) over --horizon
   samples (default: the record's length).

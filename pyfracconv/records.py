@@ -10,8 +10,8 @@ Memory (``README.md``, "Records larger than memory", has the measured
 figures):
 
 - ``mode="compressed"`` (the default): bounded, whatever the record's
-  length. The stream holds about 12 KB per column (its sums of
-  exponentials, fixed at creation); three chunk buffers of
+  length. The stream holds 5-7 KB for one column and about 2 KB for each
+  further one (its sums of exponentials, fixed at creation); three chunk buffers of
   ``8 * chunk * columns`` bytes (the input copy, the outputs, the engine's
   block); and at most :data:`MAP_BUDGET` bytes of each mapped file are kept
   resident, since the files are mapped again after every
