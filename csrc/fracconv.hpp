@@ -364,6 +364,15 @@ public:
         detail::check(fc_solver_load(blob.data(), blob.size(), &p), "fc_solver_load");
         return solver(p);
     }
+    /* Rebuild from a file written by save_file (at most max_size bytes are
+       read, untrusted input as for load; no callbacks: set them again). */
+    static solver load_file(const std::string &path,
+                            std::size_t max_size = std::size_t(1) << 30)
+    {
+        fc_solver *p = nullptr;
+        detail::check(fc_solver_load_file(path.c_str(), max_size, &p), "fc_solver_load_file");
+        return solver(p);
+    }
     ~solver() { fc_solver_free(p_); }
     solver(const solver &) = delete;
     solver &operator=(const solver &) = delete;
@@ -465,6 +474,11 @@ public:
         buf.resize(written);
         return buf;
     }
+    /* save() written to the file path atomically (fc_solver_save_file). */
+    void save_file(const std::string &path) const
+    {
+        detail::check(fc_solver_save_file(live(), path.c_str()), "fc_solver_save_file");
+    }
 
 private:
     struct callbacks {
@@ -555,6 +569,16 @@ public:
         detail::check(fc_controller_load(blob.data(), blob.size(), &p), "fc_controller_load");
         return controller(p);
     }
+    /* Rebuild from a file written by save_file (at most max_size bytes are
+       read, untrusted input as for load). */
+    static controller load_file(const std::string &path,
+                                std::size_t max_size = std::size_t(1) << 30)
+    {
+        fc_controller *p = nullptr;
+        detail::check(fc_controller_load_file(path.c_str(), max_size, &p),
+                      "fc_controller_load_file");
+        return controller(p);
+    }
     /* Take ownership of a C controller. */
     explicit controller(fc_controller *owned) noexcept : p_(owned) {}
     ~controller() { fc_controller_free(p_); }
@@ -637,6 +661,11 @@ public:
                       "fc_controller_save");
         buf.resize(written);
         return buf;
+    }
+    /* save() written to the file path atomically (fc_controller_save_file). */
+    void save_file(const std::string &path) const
+    {
+        detail::check(fc_controller_save_file(live(), path.c_str()), "fc_controller_save_file");
     }
 
 private:

@@ -55,6 +55,8 @@ module fracconv
   public :: fc_stream_create, fc_stream_free, fc_stream_push, fc_stream_push_block
   public :: fc_stream_history, fc_stream_count, fc_stream_save, fc_stream_load
   public :: fc_stream_save_file, fc_stream_load_file
+  public :: fc_solver_save_file, fc_solver_load_file
+  public :: fc_controller_save_file, fc_controller_load_file
 
   type, public :: fc_solver
     type(c_ptr) :: p = c_null_ptr
@@ -368,6 +370,30 @@ module fracconv
       import :: c_int, c_ptr, c_char
       type(c_ptr), value :: s
       character(kind=c_char), intent(in) :: path(*)
+    end function
+    integer(c_int) function c_solver_save_file(s, path) bind(C, name="fc_solver_save_file")
+      import :: c_int, c_ptr, c_char
+      type(c_ptr), value :: s
+      character(kind=c_char), intent(in) :: path(*)
+    end function
+    integer(c_int) function c_solver_load_file(path, max_size, out) &
+        bind(C, name="fc_solver_load_file")
+      import :: c_int, c_ptr, c_size_t, c_char
+      character(kind=c_char), intent(in) :: path(*)
+      integer(c_size_t), value :: max_size
+      type(c_ptr), intent(out) :: out
+    end function
+    integer(c_int) function c_controller_save_file(s, path) bind(C, name="fc_controller_save_file")
+      import :: c_int, c_ptr, c_char
+      type(c_ptr), value :: s
+      character(kind=c_char), intent(in) :: path(*)
+    end function
+    integer(c_int) function c_controller_load_file(path, max_size, out) &
+        bind(C, name="fc_controller_load_file")
+      import :: c_int, c_ptr, c_size_t, c_char
+      character(kind=c_char), intent(in) :: path(*)
+      integer(c_size_t), value :: max_size
+      type(c_ptr), intent(out) :: out
     end function
     integer(c_int) function c_stream_load_file(path, max_size, out) &
         bind(C, name="fc_stream_load_file")
@@ -955,5 +981,45 @@ contains
     status = int(c_stream_load_file(trim(path) // c_null_char, max_size, p))
     if (status == FC_OK) s%p = p
   end subroutine fc_stream_load_file
+
+  ! fc_solver_save: the state written to path atomically (fc_solver_save_file).
+  subroutine fc_solver_save_file(s, path, status)
+    type(fc_solver), intent(in) :: s
+    character(len=*), intent(in) :: path
+    integer, intent(out) :: status
+    status = int(c_solver_save_file(s%p, trim(path) // c_null_char))
+  end subroutine fc_solver_save_file
+
+  ! A new solver from a file of at most max_size bytes written by
+  ! fc_solver_save_file; s is unchanged unless status == FC_OK.
+  subroutine fc_solver_load_file(s, path, max_size, status)
+    type(fc_solver), intent(inout) :: s
+    character(len=*), intent(in) :: path
+    integer(c_size_t), intent(in) :: max_size
+    integer, intent(out) :: status
+    type(c_ptr) :: p
+    status = int(c_solver_load_file(trim(path) // c_null_char, max_size, p))
+    if (status == FC_OK) s%p = p
+  end subroutine fc_solver_load_file
+
+  ! fc_controller_save: the state written to path atomically (fc_controller_save_file).
+  subroutine fc_controller_save_file(c, path, status)
+    type(fc_controller), intent(in) :: c
+    character(len=*), intent(in) :: path
+    integer, intent(out) :: status
+    status = int(c_controller_save_file(c%p, trim(path) // c_null_char))
+  end subroutine fc_controller_save_file
+
+  ! A new controller from a file of at most max_size bytes written by
+  ! fc_controller_save_file; c is unchanged unless status == FC_OK.
+  subroutine fc_controller_load_file(c, path, max_size, status)
+    type(fc_controller), intent(inout) :: c
+    character(len=*), intent(in) :: path
+    integer(c_size_t), intent(in) :: max_size
+    integer, intent(out) :: status
+    type(c_ptr) :: p
+    status = int(c_controller_load_file(trim(path) // c_null_char, max_size, p))
+    if (status == FC_OK) c%p = p
+  end subroutine fc_controller_load_file
 
 end module fracconv

@@ -218,3 +218,67 @@ def test_stream_checkpoint_files(tmp_path):
     out = subprocess.run([str(exe), str(tmp_path)], capture_output=True, text=True)
     assert out.returncode == 0, out.stdout
     assert out.stdout.splitlines() == ["refused (status 17)", "refused (status 5)"]
+
+
+CHECKPOINT_SC_CPP = r"""
+#include <cstdio>
+#include <string>
+#include <vector>
+#include "fracconv.hpp"
+namespace fc = pyfracconv;
+int main(int argc, char **argv)
+{
+    (void)argc;
+    std::string dir = argv[1];
+    std::vector<double> order{0.6}, init{1.0};
+    auto relax = [](double, const double *y, double *f) { f[0] = -y[0]; };
+    fc::solver s(order, 0.01, 0.0, init);
+    s.set_rhs(relax);
+    s.advance_states(50);
+    s.save_file(dir + "/s.ckpt");
+    fc::solver r = fc::solver::load_file(dir + "/s.ckpt");
+    r.set_rhs(relax);
+    if (s.advance_states(30) != r.advance_states(30)) { std::printf("solver differs\n"); return 1; }
+    fc_controller_params p = fc::controller_defaults();
+    p.kp = 1.0; p.ki = 0.5; p.kd = 0.1; p.integral_order = 0.7; p.derivative_order = 0.4;
+    p.step = 0.01; p.out_min = -2.0; p.out_max = 2.0;
+    fc::controller c(p);
+    for (int i = 0; i < 40; i++) c.update(1.0, 0.02 * i);
+    c.save_file(dir + "/c.ckpt");
+    fc::controller d = fc::controller::load_file(dir + "/c.ckpt");
+    for (int i = 40; i < 80; i++)
+        if (c.update(1.0, 0.02 * i) != d.update(1.0, 0.02 * i)) { std::printf("controller differs\n"); return 1; }
+    try {
+        c.save_file(dir + "/no-such-dir/c.ckpt");
+    } catch (const fc::error &e) {
+        std::printf("refused (status %d)\n", e.status());
+    }
+    try {
+        fc::solver::load_file(dir + "/s.ckpt", 8);
+    } catch (const fc::error &e) {
+        std::printf("refused (status %d)\n", e.status());
+    }
+    return 0;
+}
+"""
+
+
+def test_solver_controller_checkpoint_files(tmp_path):
+    # pyfracconv::solver / controller ::save_file and ::load_file over the C
+    # pairs: resumed runs continue bit for bit (== on doubles); FC_ERR_IO
+    # (17) for a missing directory, FC_ERR_SIZE (5) past max_size
+    if CXX is None:
+        pytest.fail("g++ is needed for the C++ wrapper tests")
+    build = tmp_path / "build"
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
+                   capture_output=True, text=True)
+    src = tmp_path / "ckpt_sc.cpp"
+    src.write_text(CHECKPOINT_SC_CPP)
+    exe = tmp_path / "ckpt_sc"
+    r = subprocess.run([CXX, "-std=c++17", "-Wall", "-Wextra", "-Werror", "-I",
+                        os.path.join(ROOT, "csrc"), str(src), str(build / "libfracconv.a"),
+                        "-lm", "-o", str(exe)], capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    out = subprocess.run([str(exe), str(tmp_path)], capture_output=True, text=True)
+    assert out.returncode == 0, out.stdout
+    assert out.stdout.splitlines() == ["refused (status 17)", "refused (status 5)"]

@@ -292,3 +292,68 @@ def test_stream_checkpoint_files(tmp_path):
         f"load refused: status {int(pyfracconv._fracconv.lib.FC_ERR_SIZE)}"]
     s = pyfracconv.Stream.load_file(str(tmp_path / "s.ckpt"))
     assert s.count == 20 and s.channels == 1
+
+
+CHECKPOINT_CTRL_F90 = """
+program ckpt_ctrl
+  use, intrinsic :: iso_c_binding, only: c_double, c_size_t, c_int64_t
+  use fracconv
+  implicit none
+  type(fc_controller) :: c, d
+  type(fc_controller_params) :: p
+  type(fc_solver) :: s
+  real(c_double) :: u, v
+  character(len=512) :: dir
+  integer :: st, i
+  call get_command_argument(1, dir)
+  call fc_controller_default_params(p, st)
+  p%kp = 1; p%ki = 0.5_c_double; p%kd = 0.1_c_double
+  p%integral_order = 0.7_c_double; p%derivative_order = 0.4_c_double
+  p%step = 0.01_c_double; p%out_min = -2; p%out_max = 2
+  call fc_controller_create(c, p, st)
+  if (st /= FC_OK) error stop 1
+  do i = 0, 39
+    call fc_controller_update(c, 1.0_c_double, 0.02_c_double * i, u, st)
+  end do
+  call fc_controller_save_file(c, trim(dir) // "/c.ckpt", st)
+  if (st /= FC_OK) error stop 2
+  call fc_controller_load_file(d, trim(dir) // "/c.ckpt", 1048576_c_size_t, st)
+  if (st /= FC_OK) error stop 3
+  do i = 40, 79
+    call fc_controller_update(c, 1.0_c_double, 0.02_c_double * i, u, st)
+    call fc_controller_update(d, 1.0_c_double, 0.02_c_double * i, v, st)
+    ! bit for bit: compared as 64-bit integers
+    if (transfer(u, 0_c_int64_t) /= transfer(v, 0_c_int64_t)) error stop 4
+  end do
+  call fc_controller_save_file(c, trim(dir) // "/no-such-dir/c.ckpt", st)
+  print "(a, i0)", "save refused: status ", st
+  call fc_solver_load_file(s, trim(dir) // "/missing.ckpt", 1048576_c_size_t, st)
+  print "(a, i0)", "load refused: status ", st
+  call fc_controller_free(c)
+  call fc_controller_free(d)
+end program ckpt_ctrl
+"""
+
+
+def test_controller_solver_checkpoint_files(tmp_path):
+    # fc_controller_save_file / _load_file and fc_solver_load_file of the
+    # module: a resumed controller continues bit for bit; FC_ERR_IO for a
+    # missing directory and a missing file; the file loads in Python too
+    build = tmp_path / "build"
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
+                   capture_output=True, text=True)
+    src = tmp_path / "ckpt_ctrl.f90"
+    src.write_text(CHECKPOINT_CTRL_F90)
+    exe = tmp_path / "ckpt_ctrl"
+    r = subprocess.run([FC, "-std=f2008", "-Wall", "-Wextra", "-Werror", "-J", str(tmp_path),
+                        os.path.join(ROOT, "fortran", "fracconv.f90"), str(src),
+                        str(build / "libfracconv.a"), "-lm", "-o", str(exe)],
+                       capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    out = subprocess.run([str(exe), str(tmp_path)], capture_output=True, text=True)
+    assert out.returncode == 0, out.stdout + out.stderr
+    io = int(pyfracconv._fracconv.lib.FC_ERR_IO)
+    assert out.stdout.split("\n")[:2] == [f"save refused: status {io}",
+                                          f"load refused: status {io}"]
+    c = pyfracconv.Controller.load_file(str(tmp_path / "c.ckpt"))
+    assert c.count == 40
