@@ -247,7 +247,10 @@ int main(int argc, char **argv)
     c.save_file(dir + "/c.ckpt");
     fc::controller d = fc::controller::load_file(dir + "/c.ckpt");
     for (int i = 40; i < 80; i++)
-        if (c.update(1.0, 0.02 * i) != d.update(1.0, 0.02 * i)) { std::printf("controller differs\n"); return 1; }
+        if (c.update(1.0, 0.02 * i) != d.update(1.0, 0.02 * i)) {
+            std::printf("controller differs\n");
+            return 1;
+        }
     try {
         c.save_file(dir + "/no-such-dir/c.ckpt");
     } catch (const fc::error &e) {
