@@ -152,6 +152,8 @@ uninstall:
 #                   compared with the default build (tests/c/simd_compare.c)
 #   asan            AddressSanitizer + UndefinedBehaviorSanitizer (+ leaks)
 #   tsan            ThreadSanitizer on tests/c/threads.c
+#   valgrind        valgrind memcheck on the API driver and alloc_fail
+#   fuzz-run, fuzz-regress   libFuzzer (below)
 CLANG ?= clang
 TSAN_CC ?= $(CC)
 WERROR_CFLAGS = $(FC_OPT_CFLAGS) -Werror
@@ -205,6 +207,19 @@ asan:
 tsan:
 	$(MAKE) CC="$(TSAN_CC) $(TSAN_FLAGS)" CFLAGS="-O1" BUILD=$(BUILD)/tsan lib $(BUILD)/tsan/tests/threads
 	$(BUILD)/tsan/tests/threads
+
+# valgrind memcheck on the API driver and the allocation-failure test
+# (README, "Reliability"): any memory error or leak (definite, indirect or
+# possible) fails the target. A build of its own, -O1 -g, no sanitizers.
+VALGRIND ?= valgrind
+VALGRIND_FLAGS = --tool=memcheck --error-exitcode=99 --leak-check=full \
+	--errors-for-leak-kinds=definite,indirect,possible --show-leak-kinds=definite,indirect,possible \
+	--track-origins=yes -q
+.PHONY: valgrind
+valgrind:
+	$(MAKE) CFLAGS="-O1 -g" BUILD=$(BUILD)/valgrind lib $(BUILD)/valgrind/tests/api_driver $(BUILD)/valgrind/tests/alloc_fail
+	$(VALGRIND) $(VALGRIND_FLAGS) $(BUILD)/valgrind/tests/api_driver
+	$(VALGRIND) $(VALGRIND_FLAGS) $(BUILD)/valgrind/tests/alloc_fail
 
 # ---------------------------------------------------------------------------
 # Fuzzing (README, "Reliability"; tests/fuzz/). libFuzzer targets built by

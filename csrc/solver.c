@@ -980,9 +980,13 @@ int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out)
     uint32_t nmax = get_u32(buf + 72), passes = get_u32(buf + 76);
     uint64_t n = get_u64(buf + 80), f0 = get_u64(buf + 88);
     uint64_t nrhs = get_u64(buf + 96), njac = get_u64(buf + 104);
+    /* every step evaluates f at least once, and so does the start except
+       for the implicit rectangle rule (f_0 does not enter it: its f0done
+       is set without an evaluation, see advance) */
+    uint64_t min_rhs = (method == FC_METHOD_IMPLICIT_RECTANGLE ? 0 : f0) + n;
     if (!(ntol >= 1e-15 && ntol <= 1e-2) || nmax < 1 || nmax > 1000 ||
         passes < 1 || passes > 100 || f0 > 1 || (f0 == 0 && n != 0) ||
-        n >= (UINT64_C(1) << 53) || nrhs < f0 + n)
+        n >= (UINT64_C(1) << 53) || nrhs < min_rhs)
         return FC_ERR_FORMAT;
     if (memory == FC_MODE_EXACT && (tol != 0.0 ||
         (method != FC_METHOD_IMPLICIT_RECTANGLE && horizon != 0.0)))
