@@ -238,7 +238,7 @@ valgrind:
 #   make fuzz-corpus                regenerate tests/fuzz/corpus (saved
 #                                   states from tests/fuzz/make_corpus.c)
 # A crash leaves its input in $(FUZZ_DIR)/artifacts/ and fails the target;
-# once fixed, the input goes into the corpus folder of its target.
+# once fixed, the input goes into tests/fuzz/found/<corpus folder>/.
 FUZZ_CC ?= $(CLANG)
 FUZZ_DIR = $(BUILD)/fuzz
 FUZZ_SAN = -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer -g
@@ -252,9 +252,13 @@ FUZZ_CORPUS = tests/fuzz/corpus
 FUZZ_ENV = ASAN_OPTIONS=detect_leaks=1:allocator_may_return_null=1:abort_on_error=0 \
 	UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1
 FUZZ_FLAGS = -timeout=20 -rss_limit_mb=2048 -print_final_stats=1
-# the corpus folders of a target (tests/data holds saved streams and
-# controllers of the first format version too)
-fuzz_corpus_of = $(FUZZ_CORPUS)/$(patsubst fuzz_%,%,$(patsubst %_fixsum,%,$(1))) \
+# the corpus folders of a target: the generated seeds, the inputs of
+# faults found so far (tests/fuzz/found/, kept apart so that make
+# fuzz-corpus never removes them) and, for streams and controllers,
+# tests/data (saved states of the first format version)
+fuzz_dir_of = $(patsubst fuzz_%,%,$(patsubst %_fixsum,%,$(1)))
+fuzz_corpus_of = $(FUZZ_CORPUS)/$(call fuzz_dir_of,$(1)) \
+	$(wildcard tests/fuzz/found/$(call fuzz_dir_of,$(1))) \
 	$(if $(filter fuzz_stream_exact% fuzz_controller%,$(1)),tests/data)
 fuzz_loader_of = $(if $(filter fuzz_solver%,$(1)),1,$(if $(filter fuzz_controller%,$(1)),2,0))
 

@@ -1,6 +1,6 @@
 """Faults found by the fuzz targets (tests/fuzz/, README "Reliability"),
 kept as ordinary tests through the public Python API. Each input is also
-in the fuzz corpus (tests/fuzz/corpus/), which `make fuzz-regress` runs.
+in tests/fuzz/found/, which `make fuzz-regress` runs with the corpus.
 The expected behaviour is fracconv.h's: a loaded object behaves exactly
 like the one that saved it.
 """
@@ -11,7 +11,7 @@ import pyfracconv as pf
 
 
 def test_implicit_rectangle_stepper_with_a_tiny_step_saves_a_state_that_loads():
-    # fuzz_solver_fixsum found it (corpus: solver/found-implicit-rectangle-
+    # fuzz_solver_fixsum found it (tests/fuzz/found/solver/implicit-rectangle-
     # tiny-step-reload.bin): with a subnormal step Newton's method accepts
     # its first iterate, so a step evaluates f once; the implicit rectangle
     # rule never evaluates f(t0) either, and the loader's bound "rhs calls
