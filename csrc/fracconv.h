@@ -20,14 +20,19 @@
  *     functions accept NULL;
  *   - threads: the functions without an object argument are thread-safe;
  *     different objects may be used from different threads freely; one
- *     object must not be used by two threads at once. A stream detects it:
- *     a call that finds its stream busy returns FC_ERR_BUSY and changes
- *     nothing (except fc_stream_free, fc_stream_channels, fc_stream_mode
- *     and the parameter getters, which read immutable fields and take no
- *     guard; freeing a stream in use is undefined). A context and an FFT
- *     plan have NO busy detection: concurrent use of one is undefined;
+ *     object must not be used by two threads at once. A stream, a solver
+ *     and a controller detect it: a call that finds its object busy
+ *     returns FC_ERR_BUSY and changes nothing (except the free functions,
+ *     fc_stream_channels, fc_stream_mode, the stream parameter getters,
+ *     fc_solver_dim and fc_controller_get_params, which read immutable
+ *     fields and take no guard; freeing an object in use is undefined).
+ *     A solver is busy for the whole of fc_solver_advance, its callbacks
+ *     included: a callback that calls a function of its own solver gets
+ *     FC_ERR_BUSY. A context and an FFT plan have NO busy detection:
+ *     concurrent use of one is undefined;
  *   - const: a function taking a const object does not change its state;
- *     on a stream it still sets and clears the stream's busy flag (an
+ *     on a stream, solver or controller it still sets and clears the
+ *     object's busy flag (an
  *     atomic flag, the one field written through a const pointer, by
  *     design: streams are always allocated by the library, never const
  *     objects);
@@ -575,17 +580,17 @@ FC_API int fc_solver_create(size_t m, const double *orders, double step, double 
 FC_API void fc_solver_free(fc_solver *s);
 /* The right-hand side (required before advancing; fn != NULL) and the
    Jacobian (fn == NULL: forward differences, m extra rhs calls each). */
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_set_rhs(fc_solver *s, fc_rhs_fn fn, void *user);
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_set_jacobian(fc_solver *s, fc_jac_fn fn, void *user);
 /* Newton's method of the implicit methods: stop when every residual
    component |r_i| <= tol * (|y_i| + |c_i| + |w0_i f_i|), c the known part;
    tol in [1e-15, 1e-2] (default 1e-12), 1 <= maxiter <= 1000 (default 50). */
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_TOL (tol out of range), FC_ERR_ARG (maxiter out of range). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_TOL (tol out of range), FC_ERR_ARG (maxiter out of range). */
 FC_API int fc_solver_set_newton(fc_solver *s, double tol, unsigned maxiter);
 /* Corrector passes of FC_METHOD_PC, 1 <= passes <= 100 (default 1). */
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (passes out of range; for a method other than FC_METHOD_PC the setting is accepted and has no effect). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (passes out of range; for a method other than FC_METHOD_PC the setting is accepted and has no effect). */
 FC_API int fc_solver_set_corrections(fc_solver *s, unsigned passes);
 /*
  * Advance by nsteps steps. t_out: nsteps doubles or NULL; y_out:
@@ -598,34 +603,34 @@ FC_API int fc_solver_set_corrections(fc_solver *s, unsigned passes);
  * FC_ERR_HORIZON (compressed: step count would pass the horizon),
  * FC_ERR_NOMEM (the streams' room for nsteps more samples).
  */
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_NORHS, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM (refused before any work); FC_ERR_CALLBACK, FC_ERR_NONFINITE, FC_ERR_NEWTON, FC_ERR_RANGE (stop the run, *done steps kept). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_NORHS, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM (refused before any work); FC_ERR_CALLBACK, FC_ERR_NONFINITE, FC_ERR_NEWTON, FC_ERR_RANGE (stop the run, *done steps kept). */
 FC_API int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
                              double *y_out, size_t *done);
 /* Current time t0 + n*step, state y[m], steps done, dimension m. */
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_time(const fc_solver *s, double *t);
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_state(const fc_solver *s, double *y);
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_steps(const fc_solver *s, uint64_t *n);
 /* Statuses: FC_OK, FC_ERR_NULL. */
 FC_API int fc_solver_dim(const fc_solver *s, size_t *m);
 /* Calls of rhs (including those of difference Jacobians) and of jac. */
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_counts(const fc_solver *s, uint64_t *rhs_calls,
                             uint64_t *jac_calls);
 /* The step index (n+1 for the step from t_n; 0 for f(t0, y0)) and time of
    the last failed evaluation; *step = UINT64_MAX if none. */
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_failure(const fc_solver *s, uint64_t *step, double *t);
 /* Bytes of memory held (streams included). */
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_nbytes(const fc_solver *s, size_t *nbytes);
 /* Save / load: little-endian, versioned, FNV-1a 64 checksummed; streams
    embedded as fc_stream_save blobs. A loaded solver has no callbacks. */
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_SIZE. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_SIZE. */
 FC_API int fc_solver_save_size(const fc_solver *s, size_t *size);
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (buffer too small), FC_ERR_SIZE. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (buffer too small), FC_ERR_SIZE. */
 FC_API int fc_solver_save(const fc_solver *s, unsigned char *buf, size_t size,
                           size_t *written);
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_FORMAT, FC_ERR_NOMEM. */

@@ -21,12 +21,12 @@
 #include <stdlib.h>
 #include <string.h>
 #include <math.h>
-#include <stdatomic.h>
 #include "internal.h"
+#include "guard.h"
 #include "serial.h"
 
 struct fc_stream {
-    atomic_flag busy;
+    fc__guard busy;
     int mode;               /* FC_MODE_* */
     unsigned kind;          /* FC__KIND_* */
     int rule;               /* -1 for a kernel */
@@ -52,25 +52,12 @@ const fc__stream_ops *fc__stream_engine(int64_t mode)
 
 /* ---------------------------------------------------------------- busy */
 
-static int enter(const fc_stream *cs)
+/* The busy guard of guard.h (shared with the solver and the controller). */
+static void leave(const fc_stream *s)
 {
-    fc_stream *s = (fc_stream *)cs; /* the object itself is never const */
-    if (atomic_flag_test_and_set_explicit(&s->busy, memory_order_acquire))
-        return FC_ERR_BUSY;
-    return FC_OK;
+    fc__guard_leave(&s->busy);
 }
-static void leave(const fc_stream *cs)
-{
-    fc_stream *s = (fc_stream *)cs;
-    atomic_flag_clear_explicit(&s->busy, memory_order_release);
-}
-
-#define ENTER_OR_RETURN(s)                       \
-    do {                                         \
-        if (!(s)) return FC_ERR_NULL;            \
-        int st_e_ = enter(s);                    \
-        if (st_e_ != FC_OK) return st_e_;        \
-    } while (0)
+#define ENTER_OR_RETURN(s) FC__ENTER_OR_RETURN(s)
 
 /* ------------------------------------------------------------ create */
 
@@ -88,7 +75,7 @@ static int stream_new(const fc__stream_ops *ops, int mode,
         free(s);
         return st;
     }
-    atomic_flag_clear(&s->busy);
+    fc__guard_init(&s->busy);
     s->mode = mode;
     s->kind = d->kind;
     s->rule = d->rule;
@@ -219,7 +206,7 @@ int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
     size_t tot;
     if (!s) return FC_ERR_NULL;
     if (count && (!x || !y)) return FC_ERR_NULL;
-    if ((st = enter(s)) != FC_OK) return st;
+    if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
     if (fc__mul_size(count, s->C, &tot) || tot > (size_t)-1 / sizeof(double))
         st = FC_ERR_SIZE;
     else if (partial_overlap(x, y, tot)) st = FC_ERR_ARG;
@@ -237,7 +224,7 @@ int fc_stream_push_timed(fc_stream *s, const double *t, const double *x,
     size_t tot;
     if (!s) return FC_ERR_NULL;
     if (count && (!t || !x || !y)) return FC_ERR_NULL;
-    if ((st = enter(s)) != FC_OK) return st;
+    if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
     if (fc__mul_size(count, s->C, &tot) || tot > (size_t)-1 / sizeof(double))
         st = FC_ERR_SIZE;
     else if (!s->ops->push_timed) st = FC_ERR_ARG;
@@ -269,7 +256,7 @@ int fc_stream_push1(fc_stream *s, double x, double *y)
 {
     int st;
     if (!s || !y) return FC_ERR_NULL;
-    if ((st = enter(s)) != FC_OK) return st;
+    if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
     if (s->C != 1) st = FC_ERR_ARG;
     else if (!isfinite(x)) st = FC_ERR_NONFINITE;
     else if ((st = horizon_check(s, 1)) == FC_OK)
@@ -291,7 +278,7 @@ int fc_stream_preview(fc_stream *s, const double *x, double *y)
 {
     int st;
     if (!s || !x || !y) return FC_ERR_NULL;
-    if ((st = enter(s)) != FC_OK) return st;
+    if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
     if ((st = fc__check_finite(x, s->C)) != FC_OK) {}
     else if (partial_overlap(x, y, s->C)) st = FC_ERR_ARG;
     else if ((st = horizon_check(s, 1)) == FC_OK)
@@ -304,7 +291,7 @@ int fc_stream_history(fc_stream *s, double *h)
 {
     int st;
     if (!s || !h) return FC_ERR_NULL;
-    if ((st = enter(s)) != FC_OK) return st;
+    if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
     if ((st = horizon_check(s, 1)) == FC_OK) /* the next output's */
         st = s->ops->history(s->eng, h);
     leave(s);

@@ -386,6 +386,12 @@ class Stepper:
 
     The ``y`` passed to a vector right-hand side is a read-only view of the
     solver's buffer, reused on every call: copy it to keep it.
+
+    Threads: one stepper must not be used by two threads at once; a call
+    that finds it in use raises :class:`BusyError` and changes nothing. It
+    is in use for the whole of :meth:`advance`, its callbacks included (the
+    C library's busy guard, fc_solver_*: FC_ERR_BUSY), so a right-hand side
+    that reads its own stepper's :attr:`t` or :attr:`y` is refused too.
     """
 
     def __init__(self, rhs, y0, order, step, *, dy0=None, t0=0.0,
