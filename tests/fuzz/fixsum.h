@@ -25,15 +25,15 @@
 /* the controller format's own checksum basis (csrc/controller.c) */
 #define FIX_CTRL_BASIS UINT64_C(1469598103934665603)
 
-/* A stream blob b[0 .. n): the compressed payload's checksum (when the
-   payload starts with its magic "FCCS"), then the common header's over
+/* A stream blob b[0 .. n): the compressed or timed payload's checksum
+   (when the payload starts with its magic "FCCS" or "FCTS"), then the common header's over
    bytes [0, 72) and the payload [80, n). */
 static inline void fix_stream(unsigned char *b, size_t n)
 {
     if (n < 80) return;
     unsigned char *q = b + 80;
     size_t p = n - 80;
-    if (p >= 80 && memcmp(q, "FCCS", 4) == 0)
+    if (p >= 80 && (memcmp(q, "FCCS", 4) == 0 || memcmp(q, "FCTS", 4) == 0))
         fc__put64(q + p - 8, fc__fnv1a(FC__FNV_OFFSET, q, p - 8));
     fc__put64(b + 64, (uint64_t)p);   /* the payload size the header states */
     uint64_t h = fc__fnv1a(FC__FNV_OFFSET, b, 72);

@@ -101,7 +101,23 @@ static void use(const unsigned char *b, size_t n)
     resave(s, s_size, s_save, s_load, s_free);
     /* a push of ones on every channel (the channel count is bounded by the
        blob size, so this buffer is too) */
-    if (C <= 4096) {
+    int timed = -1;
+    check(fc_stream_is_timed(s, &timed) == FC_OK && (timed == 0 || timed == 1));
+    if (timed && C <= 4096) {
+        /* a stream with a time per sample: the untimed calls are refused
+           (fracconv.h), and a timed push far ahead lands past the horizon
+           or is refused for its step; both leave the state as it was */
+        double *x = malloc(2 * C * sizeof(double)), t = 1e300;
+        if (x) {
+            for (size_t c = 0; c < C; c++) x[c] = 1.0;
+            check(fc_stream_history(s, x + C) == FC_ERR_ARG);
+            check(fc_stream_push(s, x, x + C) == FC_ERR_ARG);
+            st = fc_stream_push_timed(s, &t, x, 1, x + C);
+            check(st == FC_OK || st == FC_ERR_HORIZON || st == FC_ERR_ARG ||
+                  st == FC_ERR_RANGE || st == FC_ERR_SIZE || st == FC_ERR_NOMEM);
+            free(x);
+        }
+    } else if (C <= 4096) {
         double *x = malloc(2 * C * sizeof(double));
         if (x) {
             for (size_t c = 0; c < C; c++) x[c] = 1.0;

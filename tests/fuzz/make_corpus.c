@@ -80,6 +80,30 @@ static void streams(void)
                 save_stream(s, mode ? "stream_compressed" : "stream_exact", name);
                 fc_stream_free(s);
             }
+    /* streams with a time per sample (saved with the compressed mode:
+       their seeds go with the compressed streams'), jittered times */
+    static const struct { int rule; double order; } tk[] = {
+        {FC_RULE_RECTANGLE, 0.5}, {FC_RULE_TRAPEZOID, 0.7}, {FC_RULE_L1, 0.4},
+    };
+    for (size_t r = 0; r < sizeof tk / sizeof tk[0]; r++)
+        for (size_t k = 0; k < 4; k++) {
+            size_t C = 1 + (k % 2), n = counts[k];
+            double t[70], x[140], y[140];
+            fc_stream *s;
+            if (fc_stream_create_timed(tk[r].rule, tk[r].order, 0.01, C, 1e-8, 100.0, &s)) {
+                failures++;
+                continue;
+            }
+            for (size_t i = 0; i < n; i++) {
+                t[i] = 0.1 * (double)i + 0.03 * sin(3.0 * (double)i);
+                for (size_t c = 0; c < C; c++) x[i * C + c] = sig(i, c);
+            }
+            if (n && fc_stream_push_timed(s, t, x, n, y)) failures++;
+            snprintf(name, sizeof name, "timed_rule%d_a%.1f_c%zu_n%zu.bin", tk[r].rule,
+                     tk[r].order, C, n);
+            save_stream(s, "stream_compressed", name);
+            fc_stream_free(s);
+        }
     /* a user kernel (exact mode only) */
     double ker[5] = {1.0, -0.5, 0.25, -0.125, 0.0625};
     for (size_t k = 0; k < 3; k++) {
