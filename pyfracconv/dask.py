@@ -82,10 +82,13 @@ def _as_dask(name: str, x: object) -> Any:
     return x
 
 
-def _block_op(block: Any, op: str, order: float, step: float, rule: str, axis: int,
-              engine: str, block_info: Any = None) -> FloatArray:
+def _block_op(block: Any, op: str, order: float, step: Optional[float], rule: str,
+              axis: int, engine: str, block_info: Any = None, t: Any = None,
+              tol: Optional[float] = None) -> FloatArray:
     fn = _np_integral if op == "integral" else _np_derivative
     try:
+        if t is not None:
+            return fn(block, order, rule=rule, axis=axis, engine=engine, t=t, tol=tol)
         return fn(block, order, step, rule=rule, axis=axis, engine=engine)
     except SampleError:
         starts = [0] * block.ndim
@@ -102,8 +105,43 @@ def _block_op(block: Any, op: str, order: float, step: float, rule: str, axis: i
         ) from None
 
 
+def _apply_times(op: str, x: object, order: object, t: object, rule: object,
+                 axis: object, engine: object, tol: object) -> Any:
+    """The operators with sample times: every argument checked now (by the
+    NumPy function on the first two times, whose messages are the ones of
+    a whole call), then each block through the NumPy function."""
+    from .grid import check_times
+
+    arr = _as_dask("x", x)
+    ax = check_axis(axis, arr.ndim)
+    tt = check_times(t, int(arr.shape[ax]))
+    fn = _np_integral if op == "integral" else _np_derivative
+    fn(np.zeros(min(2, tt.size)), order, rule=rule, engine=engine, t=tt[:2],  # type: ignore[arg-type]
+       tol=tol)  # type: ignore[arg-type]
+    if len(arr.chunks[ax]) > 1:
+        arr = arr.rechunk({ax: -1})
+    return arr.map_blocks(_block_op, op, check_real("order", order), None, str(rule), ax,
+                          str(engine), t=tt, tol=None if tol is None else check_real("tol", tol),
+                          dtype=np.float64, meta=np.empty((0,) * arr.ndim))
+
+
 def _apply(op: str, x: object, order: object, step: object, rule: object, axis: object,
-           engine: object) -> Any:
+           engine: object, t: object = None, tol: object = None) -> Any:
+    if step is not None and t is not None:
+        raise ArgumentError(
+            f"step={show(step)} and t: give exactly one of step (a uniform grid "
+            "t_k = k*step) or t (the sample times), not both")
+    if step is None and t is None:
+        raise InputTypeError(
+            "step=None and t=None: give exactly one of step (a uniform grid "
+            "t_k = k*step) or t (the sample times)")
+    if t is not None:
+        return _apply_times(op, x, order, t, rule, axis, engine, tol)
+    if tol is not None:
+        raise ArgumentError(
+            f"tol={show(tol)}: a tolerance is taken only with t= (the fast "
+            "engine on a grid of times); the uniform engines are accurate to "
+            "rounding")
     allowed = INTEGRAL_RULES if op == "integral" else DERIVATIVE_RULES
     check_rule(rule, allowed)
     a = check_order(order, rule)
@@ -117,8 +155,9 @@ def _apply(op: str, x: object, order: object, step: object, rule: object, axis: 
                           dtype=np.float64, meta=np.empty((0,) * arr.ndim))
 
 
-def integral(x: Any, order: float, step: float, rule: str = "rectangle",
-             axis: int = -1, engine: str = "auto") -> Any:
+def integral(x: Any, order: float, step: Optional[float] = None,
+             rule: str = "rectangle", axis: int = -1, engine: str = "auto", *,
+             t: Any = None, tol: Optional[float] = None) -> Any:
     """:func:`pyfracconv.integral` of a Dask array, lazily.
 
     Parameters
@@ -131,6 +170,13 @@ def integral(x: Any, order: float, step: float, rule: str = "rectangle",
         Dask array is wrapped as one block.
     order, step, rule, axis, engine
         As for :func:`pyfracconv.integral`.
+    t, tol : optional
+        Sample times instead of ``step`` (one per sample along ``axis``,
+        finite, strictly increasing) and the fast engine's tolerance, as
+        for :func:`pyfracconv.integral`; checked at the call. Each block
+        goes through ``pyfracconv.integral(block, ..., t=t)``; the engine
+        chosen by ``'auto'`` depends on the number of times only, the same
+        for every block.
 
     Returns
     -------
@@ -165,11 +211,12 @@ def integral(x: Any, order: float, step: float, rule: str = "rectangle",
            [0. , 0.5, 1. ],
            [0. , 0.5, 1. ]])
     """
-    return _apply("integral", x, order, step, rule, axis, engine)
+    return _apply("integral", x, order, step, rule, axis, engine, t, tol)
 
 
-def derivative(x: Any, order: float, step: float, rule: str = "grunwald",
-               axis: int = -1, engine: str = "auto") -> Any:
+def derivative(x: Any, order: float, step: Optional[float] = None,
+               rule: str = "grunwald", axis: int = -1, engine: str = "auto", *,
+               t: Any = None, tol: Optional[float] = None) -> Any:
     """:func:`pyfracconv.derivative` of a Dask array, lazily.
 
     Parameters
@@ -178,6 +225,8 @@ def derivative(x: Any, order: float, step: float, rule: str = "grunwald",
         As for :func:`integral`.
     order, step, rule, axis, engine
         As for :func:`pyfracconv.derivative`.
+    t, tol : optional
+        As for :func:`integral` (rule ``'l1'`` with ``t``).
 
     Returns
     -------
@@ -206,7 +255,7 @@ def derivative(x: Any, order: float, step: float, rule: str = "grunwald",
     array([[0., 2., 6.],
            [2., 0., 0.]])
     """
-    return _apply("derivative", x, order, step, rule, axis, engine)
+    return _apply("derivative", x, order, step, rule, axis, engine, t, tol)
 
 
 # ------------------------------------------------------------ solver

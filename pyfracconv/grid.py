@@ -308,6 +308,9 @@ def grid_weights(rule: str, order: float, t: ArrayLike, n: int | None = None) ->
 # Elements of one block of weights (rows of n times columns of k): bounds
 # the engine's work space to a few tens of MiB whatever the record length.
 _BLOCK = 1 << 18
+# Elements of one block of products of weights and samples (signals are
+# taken in groups that fit).
+_PRODUCTS = 1 << 20
 
 
 def apply_on_grid(rule: str, a: float, block: FloatArray, t: FloatArray) -> FloatArray:
@@ -327,9 +330,11 @@ def apply_on_grid(rule: str, a: float, block: FloatArray, t: FloatArray) -> Floa
     src = np.diff(block, axis=1) if rule == "l1" else block
     n0 = 1
     while n0 < N:
-        # rows * (n0 + rows) weights (and nsig times that many products)
-        # at most _BLOCK, at least one row
-        budget = _BLOCK / max(1, nsig)
+        # rows * (n0 + rows) weights at most _BLOCK, at least one row; the
+        # rows do not depend on the number of signals, so that each output
+        # is the same sum of the same length whatever signals come with it
+        # (a signal gives the same bits alone or in a batch)
+        budget = _BLOCK
         rows = int((math.sqrt(n0 * n0 + 4.0 * budget) - n0) / 2.0)
         rows = max(1, min(N - n0, rows))
         n1 = n0 + rows                                # rows n0 .. n1-1
@@ -355,8 +360,11 @@ def apply_on_grid(rule: str, a: float, block: FloatArray, t: FloatArray) -> Floa
             raise RangeError(
                 f"t (or order={show(a)}): a weight is beyond the double range "
                 f"(times up to {show(float(t[-1]))})")
-        prod = w[None, :, :] * x[:, None, :]
-        out[:, n0:n1] = np.sum(prod, axis=-1)
+        # the products of at most _PRODUCTS elements at a time
+        group = max(1, _PRODUCTS // w.size)
+        for s0 in range(0, nsig, group):
+            prod = w[None, :, :] * x[s0:s0 + group, None, :]
+            out[s0:s0 + group, n0:n1] = np.sum(prod, axis=-1)
         n0 = n1
     return out
 
