@@ -191,6 +191,10 @@ def test_equals_plain_loop_with_mpmath_weights(method, a, dy0):
     # on a random grid (steps spanning three decades), weights from mpmath
     rng = np.random.default_rng(5)
     t = np.concatenate([[0.2], 0.2 + np.cumsum(10.0 ** rng.uniform(-4, -1, 30))])
+    # both ways of the solver's trapezoid weights are used: intervals with
+    # h_k / (t_n - t_k) below 1/256 (binomial series) and above (grid.py)
+    ratios = np.concatenate([np.diff(t[:n + 1]) / (t[n] - t[:n]) for n in range(1, t.size)])
+    assert np.sum(ratios < 1 / 256) > 50 and np.sum(ratios >= 1 / 256) > 50
 
     def f(s, y):
         return math.cos(3 * s) - y * abs(y)
