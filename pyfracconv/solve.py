@@ -6,7 +6,9 @@ Taylor polynomial of the initial values (Diethelm, The Analysis of
 Fractional Differential Equations, Springer 2010), by the library's product
 rules applied to f along the solution (the C solver in ``csrc/solver.c``).
 The history sums of the f values are kept by the library's streams, exact
-or compressed.
+or compressed. On a given grid (``solve(..., t=grid)``) the explicit
+rectangle rule and the predictor-corrector run in Python over the weights
+of :mod:`pyfracconv.grid` (:mod:`pyfracconv.solve_grid`).
 """
 
 from __future__ import annotations
