@@ -892,12 +892,12 @@ def _add_operator(sub, name, rules, default, what, description):
                    help=f"{' or '.join(rules)} (default {default})")
     p.add_argument("--columns", metavar="NAME,NAME...",
                    help="process only these CSV columns, by header name, in this order")
-    _add_io_options(p)
+    _add_io_options(p, grid_times=True)
     p.set_defaults(func=_run_operator)
     return p
 
 
-def _add_io_options(p):
+def _add_io_options(p, grid_times=False):
     p.add_argument("--delimiter", metavar="CHAR", default=",",
                    help="field separator of the CSV input and output (default ','); "
                         "lines starting with '#' are comments and are skipped")
@@ -905,6 +905,14 @@ def _add_io_options(p):
                    help="read standard input line by line and write each output "
                         "line as soon as its input line has arrived, flushed "
                         "(INPUT and OUTPUT must be '-'); for piping a data logger")
+    if not grid_times:
+        p.add_argument("--time-column", metavar="N", type=int,
+                       help="--live: column N (1-based) holds the time; it is not "
+                            "processed but copied to the output's first column")
+        p.add_argument("--time-tol", metavar="REL", type=float,
+                       help="--live with --time-column: check that each time step "
+                            "equals --step within REL*step; report on stderr when not")
+        return
     p.add_argument("--time-column", metavar="N", type=int,
                    help="column N (1-based) holds the sample times; it is not "
                         "processed but copied to the output's first column. "

@@ -808,3 +808,12 @@ def test_time_column_help_states_the_tolerance(capsys):
     text = flat(out)
     assert "--time-tol (default 1e-09)" in text
     assert "the uniform engines" in text
+
+
+def test_control_help_keeps_the_live_time_column(capsys):
+    # the controller's --time-column is still the --live one (copied times)
+    code, out, _ = run(capsys, "control", "--help")
+    assert code == 0
+    text = flat(out)
+    assert "--live: column N (1-based) holds the time" in text
+    assert "the uniform engines" not in text
