@@ -310,3 +310,45 @@ def test_sample_times_bad_arguments_at_the_call(call, exc, text):
     with pytest.raises(exc) as info:
         call()
     assert text in str(info.value), str(info.value)
+
+
+def test_solve_many_on_a_grid_on_the_cluster_equals_solve(client):
+    from pyfracconv.grid import graded_mesh
+    t = graded_mesh(1.0, 60, 2.0)
+    P = np.array([[0.5, 1.0], [1.5, 0.2], [2.0, 0.7]])
+    tt, Y = pfd.solve_many(pair, P, [1.0, 0.0], [0.6, 0.9], t=t, chunk=2)
+    y = client.compute(Y, sync=True)
+    assert np.array_equal(tt, t) and y.shape == (3, 61, 2)
+    for i, p in enumerate(P):
+        want = pyfracconv.solve(lambda s, v, p=p: pair(s, v, p), [1.0, 0.0], [0.6, 0.9], t=t)
+        assert np.array_equal(y[i], want.y)
+
+
+def test_solve_many_on_a_grid_threads_rectangle():
+    # D^1 y = -p y by the rectangle rule on a grid is explicit Euler with
+    # the grid's steps: y_n = prod_k (1 - p h_k) (common practice)
+    t = np.array([0.0, 0.1, 0.3, 0.35, 0.6])
+    tt, Y = pfd.solve_many(decay, np.array([1.0, 2.0]), 1.0, 1.0, t=t, method="rectangle")
+    y = Y.compute(scheduler="threads")
+    for i, p in enumerate([1.0, 2.0]):
+        want = np.concatenate([[1.0], np.cumprod(1.0 - p * np.diff(t))])
+        assert np.allclose(y[i], want, rtol=1e-14, atol=1e-15)
+
+
+@pytest.mark.parametrize("call,text", [
+    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, 5, t=[0.0, 1.0]),
+     "t and step=0.1, n_steps=5: give either"),
+    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5), "step and n_steps=None"),
+    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], t0=1.0),
+     "t0=1.0: not used with t="),
+    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], method="trapezoid"),
+     "method='trapezoid': not available with t="),
+    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], memory="compressed"),
+     "memory='compressed': not available with t="),
+    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0, 1.0]),
+     "t[2]=1.0 after t[1]=1.0"),
+])
+def test_solve_many_grid_refusals(call, text):
+    with pytest.raises(ArgumentError) as info:
+        call()
+    assert text in str(info.value), str(info.value)
