@@ -6,7 +6,9 @@ Taylor polynomial of the initial values (Diethelm, The Analysis of
 Fractional Differential Equations, Springer 2010), by the library's product
 rules applied to f along the solution (the C solver in ``csrc/solver.c``).
 The history sums of the f values are kept by the library's streams, exact
-or compressed.
+or compressed. On a given grid (``solve(..., t=grid)``) the explicit
+rectangle rule and the predictor-corrector run in Python over the weights
+of :mod:`pyfracconv.grid` (:mod:`pyfracconv.solve_grid`).
 """
 
 from __future__ import annotations
@@ -742,12 +744,12 @@ def _tqdm():
     return tqdm
 
 
-def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
+def solve(rhs, y0, order, step=None, n_steps=None, *, t=None, dy0=None, t0=None,
           method="predictor-corrector", memory="exact", tol=1e-12, horizon=None,
           jacobian=None, corrections=1, progress=False, newton_tol=1e-12,
           newton_maxiter=50):
     """Solve the Caputo initial value problem D^a y = f(t, y) on
-    t_n = t0 + n*step, n = 0 .. n_steps.
+    t_n = t0 + n*step, n = 0 .. n_steps, or on a given grid ``t``.
 
     Parameters
     ----------
@@ -761,12 +763,22 @@ def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
         The order a, 0 < a <= 2, one for all components or one per
         component.
     step : float
-        Grid step h > 0.
+        Grid step h > 0 (with ``n_steps``; not with ``t``).
     n_steps : int
         Number of steps, >= 0.
+    t : array_like, optional
+        The grid instead of ``step`` and ``n_steps``: times t_0 < t_1 <
+        ... (finite, strictly increasing; graded meshes from
+        :func:`pyfracconv.grid.graded_mesh`); the problem starts at t[0].
+        Methods ``'rectangle'`` and ``'predictor-corrector'`` (their
+        non-uniform forms: Liu, Roberts and Yan, Int. J. Comput. Math. 95
+        (2018) and Numer. Algorithms 78 (2018)), exact memory, a direct
+        O(N^2) engine in Python over the weights of
+        :func:`pyfracconv.grid.grid_weights` (fine up to about 2e4 steps).
     dy0 : float or array_like, optional
         y'(t0); required when some order exceeds 1, refused otherwise.
     t0 : float, optional
+        Start time (default 0) of the uniform grid; not with ``t``.
     method : {'predictor-corrector', 'rectangle', 'trapezoid', 'implicit-rectangle'}, optional
         Explicit product rectangle rule (order 1); the predictor-corrector
         of Diethelm, Ford and Freed 2002 (order min(2, 1+a) for smooth
@@ -813,6 +825,21 @@ def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
     NewtonError
         Newton's method did not converge (with ``.partial``).
     """
+    if t is not None:
+        if step is not None or n_steps is not None:
+            given = ", ".join(f"{k}={show(v)}" for k, v in (("step", step), ("n_steps", n_steps))
+                              if v is not None)
+            raise ArgumentError(f"t and {given}: give either the grid t or step and "
+                                "n_steps, not both")
+        return _solve_grid(rhs, y0, order, t, dy0, t0, method, memory, tol, horizon,
+                           jacobian, corrections, progress, newton_tol, newton_maxiter)
+    if step is None or n_steps is None:
+        missing = " and ".join(k for k, v in (("step", step), ("n_steps", n_steps))
+                               if v is None)
+        raise ArgumentError(f"{missing}=None: give step and n_steps (a uniform grid) "
+                            "or t= (the grid's times)")
+    if t0 is None:
+        t0 = 0.0
     n = check_count("n_steps", n_steps, 0, SIZE_MAX - 1)
     if not isinstance(progress, (bool, np.bool_)):
         raise InputTypeError(f"progress={show(progress)}: expected True or False")
@@ -856,3 +883,38 @@ def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
                     bar.update(c)
     rc, jc = st._counts()
     return SolveResult(t, shape(y), rc, jc, st._method, st._memory)
+
+
+def _solve_grid(rhs, y0, order, t, dy0, t0, method, memory, tol, horizon, jacobian,
+                corrections, progress, newton_tol, newton_maxiter):
+    """solve() with t=: the arguments checked, then the grid engine."""
+    from .grid import check_times
+    from .solve_grid import GRID_METHODS, grid_method_error, solve_on_grid
+
+    times = check_times(t)
+    if times.size == 0:
+        raise ArgumentError("t: empty; expected at least the start time t[0]")
+    if t0 is not None:
+        raise ArgumentError(f"t0={show(t0)}: not used with t= (the problem starts at "
+                            f"t[0]={show(float(times[0]))})")
+    meth = _check_method(method)
+    if meth not in GRID_METHODS:
+        raise grid_method_error(meth)
+    mem = _check_memory(memory)
+    if mem != "exact":
+        raise ArgumentError(f"memory={mem!r}: not available with t= (the grid solver "
+                            "keeps every f value); use memory='exact'")
+    if horizon is not None:
+        raise ArgumentError(f"horizon={show(horizon)}: not used with t= (only by "
+                            "compressed memory and 'implicit-rectangle' on a uniform grid)")
+    if not isinstance(progress, (bool, np.bool_)):
+        raise InputTypeError(f"progress={show(progress)}: expected True or False")
+    bar_cls = _tqdm() if progress else None
+    p = _setup(rhs, y0, order, 1.0, dy0, float(times[0]), meth, mem, tol, None,
+               jacobian, corrections, newton_tol, newton_maxiter)
+    n = times.size - 1
+    check_bytes(f"t ({n + 1} times)", 8 * (n + 1) * (2 * p["m"] + 1))
+    if bar_cls is None:
+        return solve_on_grid(p, times, None, SolveResult)
+    with bar_cls(total=n, unit="step") as bar:
+        return solve_on_grid(p, times, bar, SolveResult)
