@@ -324,12 +324,7 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
         raise ArgumentError(f"newton_tol={show(newton_tol)}: must be in [1e-15, 1e-2]")
     nmax = check_count("newton_maxiter", newton_maxiter, 1, 1000)
     tolf, hz = 0.0, 0.0
-    if meth == "implicit-rectangle":
-        if mem == "compressed":
-            raise ArgumentError(
-                "memory='compressed', method='implicit-rectangle': not available "
-                "(the right-end-point rule has no compressed stream); use "
-                "memory='exact'")
+    if meth == "implicit-rectangle" and mem == "exact":
         if horizon is None:
             raise ArgumentError(
                 "horizon=None: required for method='implicit-rectangle' (the "
@@ -338,7 +333,7 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
         if not (1.0 <= hz <= 2.0 ** 28):
             raise ArgumentError(
                 f"horizon={show(horizon)}: must be in [1, 2**28] for "
-                "method='implicit-rectangle'")
+                "method='implicit-rectangle' with memory='exact'")
     if mem == "compressed":
         if horizon is None:
             raise ArgumentError(
@@ -346,18 +341,34 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
                 "steps the tolerance is promised for)"
             )
         tolf, hz = check_compressed(tol, horizon)
-        # the history sums of the rectangle method use the product rectangle
-        # rule, every other method the product trapezoidal rule
-        rule = "rectangle" if meth == "rectangle" else "trapezoid"
-        rng = order_range(rule, int(lib.FC_MODE_COMPRESSED))
+        cmode = int(lib.FC_MODE_COMPRESSED)
         for i, a in enumerate(orders):
             where = "" if oa.ndim == 0 else f"[{i}]"
-            if not in_range(rng, float(a)):
-                raise ArgumentError(
-                    f"order{where}={show(float(a))}, method={meth!r}: memory='compressed' "
-                    f"serves this method ({rule} rule) for {range_text(rng)}; use "
-                    "memory='exact'" + ("" if meth == "rectangle" else " or method='rectangle'")
-                )
+            a = float(a)
+            # the streams each method keeps (csrc/solver.c): the rectangle
+            # method the product rectangle rule; the implicit rectangle
+            # method the rectangle rule and, for its weight differences,
+            # the L1 rule of order 1 - a (a < 1) or the trapezoid rule of
+            # order a - 1 (a > 1); the others the rectangle and trapezoid rules
+            if meth == "rectangle":
+                needs = [("rectangle", a, "rectangle rule")]
+            elif meth == "implicit-rectangle":
+                needs = [("rectangle", a, "rectangle rule")]
+                if a < 1.0:
+                    needs.append(("l1", 1.0 - a, "L1 rule of order 1 - a"))
+                elif a > 1.0:
+                    needs.append(("trapezoid", a - 1.0, "trapezoid rule of order a - 1"))
+            else:
+                needs = [("rectangle", a, "rectangle rule"), ("trapezoid", a, "trapezoid rule")]
+            for rule, b, what in needs:
+                rng = order_range(rule, cmode)
+                if not in_range(rng, b):
+                    raise ArgumentError(
+                        f"order{where}={show(a)}, method={meth!r}: memory='compressed' "
+                        f"serves this method ({what}) for {range_text(rng)}"
+                        + ("" if b == a else f" (here {show(b)})")
+                        + "; use memory='exact'"
+                    )
     return dict(m=m, scalar=scalar, orders=np.ascontiguousarray(orders), h=h, t0=t0f,
                 init=init, method=meth, memory=mem, tol=tolf, horizon=hz, corr=corr,
                 ntol=ntol, nmax=nmax, rhs=rhs, jacobian=jacobian)
