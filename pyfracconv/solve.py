@@ -389,7 +389,8 @@ def _status_error(st, what):
 class Stepper:
     """A Caputo initial value problem advanced step by step (co-simulation,
     checkpoints). Arguments as for :func:`solve`; ``horizon`` (in steps) is
-    required for ``memory='compressed'`` and ``method='implicit-rectangle'``.
+    required for ``memory='compressed'`` and for ``method='implicit-rectangle'``
+    with exact memory.
 
     ``advance(n)`` returns the n new times and states; :attr:`t`, :attr:`y`,
     :attr:`steps`, :attr:`rhs_evals`, :attr:`jac_evals` tell where it is;
@@ -778,18 +779,19 @@ def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
         solutions); the implicit product trapezoidal rule with Newton's
         method (Garrappa 2015), order 2, for stiff problems with smooth
         solutions; the implicit product rectangle rule (right end points,
-        order 1, exact memory only), strongly damped, for stiff problems
-        whose solution is not smooth at t0.
+        order 1), strongly damped, for stiff problems whose solution is not
+        smooth at t0.
     memory : {'exact', 'compressed'}, optional
         Exact history sums (O(N log^2 N) work in all, memory grows with N)
         or compressed ones (bounded memory, relative tolerance ``tol`` over
-        ``horizon`` steps; orders < 2 for ``'rectangle'``,
-        ``'predictor-corrector'`` and ``'trapezoid'``).
+        ``horizon`` steps; orders < 2 for every method; for
+        ``'implicit-rectangle'`` orders above 2**-54).
     tol : float, optional
         Tolerance of the compressed history sums, in [1e-15, 1e-2].
     horizon : float, optional
         Steps the compressed tolerance is promised for, and the steps
-        ``'implicit-rectangle'`` can take (default n_steps).
+        ``'implicit-rectangle'`` with exact memory can take (at most 2**28;
+        default n_steps).
     jacobian : callable, optional
         ``jacobian(t, y)`` -> df/dy, shape (m, m) (a number for a scalar
         problem); implicit methods only; default forward differences.

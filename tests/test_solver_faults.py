@@ -63,8 +63,10 @@ class Counting:
      ["order=2.0", "method='trapezoid'"]),
     (dict(memory="compressed", order=2.0, dy0=0.0, method="rectangle"), ArgumentError,
      ["order=2.0", "< 2"]),
-    (dict(memory="compressed", method="implicit-rectangle"), ArgumentError,
-     ["implicit-rectangle", "exact"]),
+    (dict(memory="compressed", method="implicit-rectangle", order=1e-17), ArgumentError,
+     ["order=1e-17", "implicit-rectangle", "L1 rule of order 1 - a", "exact"]),
+    (dict(memory="compressed", method="implicit-rectangle", order=2.0, dy0=0.0),
+     ArgumentError, ["order=2.0", "implicit-rectangle", "< 2"]),
     (dict(memory="compressed", tol=1e-20), ArgumentError, ["tol=1e-20"]),
     (dict(memory="compressed", horizon=0.5), ArgumentError, ["horizon=0.5"]),
     (dict(progress="yes"), InputTypeError, ["progress='yes'"]),
@@ -265,7 +267,8 @@ CASES = [
     ("rectangle", "exact", 0.5), ("rectangle", "compressed", 1.4),
     ("predictor-corrector", "exact", 1.6), ("predictor-corrector", "compressed", 0.5),
     ("trapezoid", "exact", 0.7), ("trapezoid", "compressed", 0.3),
-    ("implicit-rectangle", "exact", 0.6),
+    ("implicit-rectangle", "exact", 0.6), ("implicit-rectangle", "compressed", 0.6),
+    ("implicit-rectangle", "compressed", 1.0), ("implicit-rectangle", "compressed", 1.5),
 ]
 
 
