@@ -546,7 +546,8 @@ FC_API int fc_stream_is_timed(const fc_stream *s, int *timed);
  * every stream is within its fc_stream_create bound; for the implicit
  * rectangle rule the history H_n = u sum_{1<=k<=n} b_{n+1-k} f_k
  * (u = h^a/Gamma(a+1), b_j = (j+1)^a - j^a) is then within
- * (tol + 64 eps) u S_n + 2 eps |H_n| of its exact value, S_n =
+ * (tol + 67 eps) u S_n of its value in exact arithmetic with the library's
+ * weights (3 eps: the sum of the two streams), S_n =
  * sum_k b_{n+1-k} |f_k| for 1 <= a < 2 and S_n = sum_k (b_{n-k} |f_k| +
  * b_{n+1-k} |f_k - f_{k-1}|) + |f_n| (f_0 = 0) for a < 1; for a < 1/2 the
  * L1 stream's order 1 - a is a rounded double, which changes the weight
