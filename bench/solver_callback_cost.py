@@ -23,6 +23,8 @@ import numpy as np
 from pyfracconv import solve
 from pyfracconv._core import ffi, lib
 
+solve_mod = sys.modules["pyfracconv.solve"]  # the module (pyfracconv.solve is the function)
+
 
 def rhs(t, y):
     return -y + 0.1 * math.sin(t)
@@ -36,6 +38,17 @@ def bare(fn, n):
     y = 1.0
     for i in range(n):
         fn(i * 1e-4, y)
+
+
+def run_solve(fn, n, memory, direct):
+    # direct: the scalar rhs called from C with the Python C API (the
+    # default on CPython); else the cffi callback (extern "Python")
+    keep = solve_mod._DIRECT
+    solve_mod._DIRECT = direct
+    try:
+        solve(fn, 1.0, 0.6, 1e-4, n, memory=memory)
+    finally:
+        solve_mod._DIRECT = keep
 
 
 def cffi_calls(n):
@@ -126,8 +139,11 @@ def main():
     ]
     for memory in ("exact", "compressed"):
         for name, fn in (("rhs", rhs), ("trivial", trivial)):
-            rows.append((f"solve PC {memory} {name}",
-                         lambda memory=memory, fn=fn: solve(fn, 1.0, 0.6, 1e-4, n, memory=memory)))
+            for direct in (True, False):
+                how = "direct" if direct else "cffi cb"
+                rows.append((f"solve PC {memory} {name} {how}",
+                             lambda memory=memory, fn=fn, direct=direct:
+                             run_solve(fn, n, memory, direct)))
     clib = c_rhs_lib()
     if clib is not None:
         for memory in ("exact", "compressed"):
@@ -140,7 +156,7 @@ def main():
     res = timed_rows(rows, repeat)
     for label, _ in rows:
         med, lo, hi = res[label]
-        print(f"{label:30s} {med:7.3f} s ({lo:.3f} .. {hi:.3f})  {1e9 * med / calls:6.0f} ns/call")
+        print(f"{label:34s} {med:7.3f} s ({lo:.3f} .. {hi:.3f})  {1e9 * med / calls:6.0f} ns/call")
 
 if __name__ == "__main__":
     main()

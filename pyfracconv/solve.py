@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import math
 import struct
+import sys
 import threading
 
 import numpy as np
@@ -162,6 +163,26 @@ def _fc_py_rhs1(t, y, user):
 def _bad(run, v, t):
     run.fail = ("shape", v, t)
     return _NAN
+
+
+def _rhs1_slow(run):
+    """The rest of _fc_py_rhs1 for the direct C path (_fc_py_rhs1_direct,
+    setup_build.py), which handles a float result itself: a recorded
+    exception, or another type converted or refused, as _fc_py_rhs1."""
+    def slow(t, v, raised):
+        if raised:
+            run.fail = ("raised", v, t)
+            return _NAN
+        try:
+            return float(v) if np.ndim(v) == 0 else _bad(run, v, t)
+        except Exception:
+            return _bad(run, v, t)
+    return slow
+
+
+# The scalar rhs called straight from C with the Python C API: CPython
+# only (object addresses are id()); elsewhere the cffi callback.
+_DIRECT = sys.implementation.name == "cpython"
 
 
 @ffi.def_extern()
@@ -438,8 +459,20 @@ class Stepper:
     def _set_callbacks(self, rhs, jacobian):
         self._run = _Run(rhs, jacobian, self._m, self._scalar)
         self._handle = ffi.new_handle(self._run)
-        fn = lib._fc_py_rhs1_bridge if self._scalar else lib._fc_py_rhs
-        raise_for_status(lib.fc_solver_set_rhs(self._s, fn, self._handle), "rhs")
+        user = self._handle
+        if self._scalar and _DIRECT:
+            # the C bridge calls rhs itself (one C-to-Python crossing less
+            # per call); the objects whose addresses it holds are kept here
+            slow = _rhs1_slow(self._run)
+            call = ffi.new("_fc_py_call1 *")
+            call.fn = ffi.cast("void *", id(rhs))
+            call.slow = ffi.cast("void *", id(slow))
+            self._direct = (rhs, slow, call)
+            fn, user = lib._fc_py_rhs1_direct, call
+        else:
+            self._direct = None
+            fn = lib._fc_py_rhs1_bridge if self._scalar else lib._fc_py_rhs
+        raise_for_status(lib.fc_solver_set_rhs(self._s, fn, user), "rhs")
         raise_for_status(lib.fc_solver_set_jacobian(
             self._s, lib._fc_py_jac if jacobian is not None else ffi.NULL,
             self._handle), "jacobian")

@@ -487,3 +487,68 @@ def test_nbytes_bounded_in_compressed_memory():
     c.advance(20000)
     e.advance(20000)
     assert c.nbytes == c0 and e.nbytes > e0 + 20000 * 8
+
+
+# ------------------------------------------------------------ scalar rhs paths
+
+class _CallableRhs:
+    def __call__(self, t, y):
+        return -y
+
+
+def _outcome(rhs, **kw):
+    try:
+        r = solve(rhs, 1.0, 0.5, 0.01, 30, **kw)
+        return ("ok", r.y.tobytes(), r.rhs_evals, r.jac_evals)
+    except BaseException as exc:  # noqa: BLE001 - compared between the paths
+        part = getattr(exc, "partial", None)
+        cause = exc.__cause__
+        return (type(exc).__name__, str(exc),
+                None if part is None else (part.t.tobytes(), part.y.tobytes()),
+                type(cause).__name__ if cause is not None else None,
+                cause is not None and cause.__traceback__ is not None)
+
+
+@pytest.mark.parametrize("rhs", [
+    lambda t, y: -y,
+    lambda t, y: np.float64(-y),             # a float subclass: converted
+    lambda t, y: int(-3 * y > -1),            # an int: converted
+    lambda t, y: np.array(-y),                # a 0-d array: converted
+    lambda t, y: [-y] if t > 0.1 else -y,     # a list: refused at step 11
+    lambda t, y: "x" if t > 0.1 else -y,      # a string: refused
+    lambda t, y: 1 / 0 if t > 0.1 else -y,    # raises: traceback kept
+    lambda t, y: float("nan") if t > 0.1 else -y,
+    _CallableRhs(),
+])
+@pytest.mark.parametrize("method", ["predictor-corrector", "implicit-rectangle"])
+def test_scalar_rhs_direct_path_equals_cffi_callback(rhs, method, monkeypatch):
+    # a scalar rhs is called from C through the Python C API (CPython;
+    # setup_build.py, _fc_py_rhs1_direct) instead of the cffi callback:
+    # the same results bit for bit, the same counts, the same errors with
+    # the same partial solutions
+    mod = sys.modules["pyfracconv.solve"]
+    if not mod._DIRECT:
+        pytest.skip("the direct path is CPython only")
+    kw = dict(method=method)
+    direct = _outcome(rhs, **kw)
+    monkeypatch.setattr(mod, "_DIRECT", False)
+    assert _outcome(rhs, **kw) == direct
+
+
+def test_scalar_rhs_direct_path_keyboard_interrupt_and_stepper_load():
+    def rhs(t, y):
+        if t > 0.05:
+            raise KeyboardInterrupt
+        return -y
+
+    st = Stepper(rhs, 1.0, 0.5, 0.01)
+    assert st._direct is not None or not sys.modules["pyfracconv.solve"]._DIRECT
+    with pytest.raises(KeyboardInterrupt):
+        st.advance(20)
+    assert st.steps == 5
+    # a loaded stepper calls its new rhs on the same path
+    again = Stepper.load(st.save(), lambda t, y: -y)
+    t, y = again.advance(3)
+    ref = Stepper(lambda t, y: -y, 1.0, 0.5, 0.01)
+    ref.advance(5)
+    assert np.array_equal(ref.advance(3)[1], y)
