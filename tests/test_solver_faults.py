@@ -489,6 +489,20 @@ def test_nbytes_bounded_in_compressed_memory():
     assert c.nbytes == c0 and e.nbytes > e0 + 20000 * 8
 
 
+@pytest.mark.parametrize("a", [0.5, 1.0, 1.5])
+def test_nbytes_bounded_implicit_rectangle_compressed(a):
+    # the implicit rectangle rule with compressed memory keeps two
+    # compressed streams (one at a = 1) and no f history: its memory does
+    # not grow with the steps, and its horizon is not bounded by 2**28
+    kw = {"dy0": 0.0} if a > 1 else {}
+    c = Stepper(lambda t, y: -y, 1.0, a, 1e-3, method="implicit-rectangle",
+                memory="compressed", horizon=1e12, **kw)
+    c.advance(100)
+    c0 = c.nbytes
+    c.advance(20000)
+    assert c.nbytes == c0 < 200_000
+
+
 # ------------------------------------------------------------ scalar rhs paths
 
 class _CallableRhs:
