@@ -348,7 +348,7 @@ typedef struct fc_stream fc_stream;
  * the running state is one that pushes could have produced; a loaded
  * stream then behaves exactly like the one that saved it.
  */
-/* Statuses: FC_OK, FC_ERR_NULL (out), FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_ARG (channels 0), FC_ERR_SIZE (channels too many), FC_ERR_MODE, FC_ERR_TOL, FC_ERR_RANGE (compressed: the step factor or a weight beyond the double range), FC_ERR_NOMEM. */
+/* Statuses: FC_OK, FC_ERR_NULL (out), FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_ARG (channels 0), FC_ERR_SIZE (channels too many), FC_ERR_MODE, FC_ERR_TOL, FC_ERR_RANGE (compressed: the step factor or a weight beyond the double range; exact, rules other than L1: also orders below about 1e-297, measured, whose kernel the stream cannot hold in its scaled form, although fc_apply takes them), FC_ERR_NOMEM. */
 FC_API int fc_stream_create(int rule, double order, double step, size_t channels,
                      int mode, double tol, double horizon, fc_stream **out);
 /* An exact stream for a user kernel: y_n = sum_{k<=n} kernel[n-k] x_k,
