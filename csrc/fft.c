@@ -103,6 +103,8 @@ struct fc_fft_plan {
        (the CPU is probed once per plan, never per call) */
     void (*sdot)(size_t, const double *const *, const double *const *,
                  size_t, double *);
+    void (*sdotf)(size_t, const double *const *, const double *const *,
+                  size_t, size_t, double *const *);
     void (*smul)(size_t, const double *, const double *, double *);
 };
 
@@ -567,12 +569,14 @@ int fc__fft_create(size_t n, fc_fft_plan **out)
     p->fwd = fc__gen_rfft_forward;
     p->inv = fc__gen_rfft_inverse;
     p->sdot = fc__gen_spec_dot;
+    p->sdotf = fc__gen_spec_dot_frames;
     p->smul = fc__gen_spec_mul;
 #if FC__FFT_X86
     if (fc__have_avx2_fma()) {
         p->fwd = fc__avx2_rfft_forward;
         p->inv = fc__avx2_rfft_inverse;
         p->sdot = fc__avx2_spec_dot;
+        p->sdotf = fc__avx2_spec_dot_frames;
         p->smul = fc__avx2_spec_mul;
     }
 #endif
@@ -605,6 +609,12 @@ void fc__spec_dot(const fc_fft_plan *p, const double *const *a,
                   const double *const *b, size_t cnt, double *out)
 {
     p->sdot(p->n / 2 + 1, a, b, cnt, out);
+}
+void fc__spec_dot_frames(const fc_fft_plan *p, const double *const *x,
+                         const double *const *b, size_t cnt, size_t ng,
+                         double *const *out)
+{
+    p->sdotf(p->n / 2 + 1, x, b, cnt, ng, out);
 }
 void fc__spec_mul(const fc_fft_plan *p, const double *a, const double *b,
                   double *out)

@@ -33,6 +33,13 @@ void fc__fft_inverse(fc_fft_plan *p, const double *in, double *out);
    plan was made. */
 void fc__spec_dot(const fc_fft_plan *p, const double *const *a,
                   const double *const *b, size_t cnt, double *out);
+/* ng frames of a uniformly partitioned convolution (2 <= ng <= 8): out[g]
+   = sum_{j<cnt} x[cnt-1+g-j] * b[j], each bit for bit the fc__spec_dot of
+   its own operands (x[cnt-1+g-j] with b[j], j = 0 .. cnt-1); out[g] may be
+   the spectrum x[g-1] itself, and no other of x. */
+void fc__spec_dot_frames(const fc_fft_plan *p, const double *const *x,
+                         const double *const *b, size_t cnt, size_t ng,
+                         double *const *out);
 /* out[k] = a[k] * b[k] (complex) for the n/2+1 bins of the plan's size. */
 void fc__spec_mul(const fc_fft_plan *p, const double *a, const double *b,
                   double *out);

@@ -512,6 +512,83 @@ static FFT_TARGET void FFT_FN(spec_dot)(size_t nb, const double *const *a,
     }
 }
 
+/* Several frames of one uniformly partitioned convolution at once:
+   out[g] = sum_{j<cnt} x[cnt-1+g-j] * b[j] for g < ng (2 <= ng <= 8), the
+   sum of each frame in the order of spec_dot and with its operations, so
+   that every out[g] equals spec_dot of its own operands bit for bit. Each
+   b[j] is read once for all ng frames, its real and imaginary parts
+   duplicated once per pair of bins. out[g] may be x[g-1] (every bin is read
+   for all frames before it is written), and nothing else of x. */
+#ifndef FC__SDF_B
+#define FC__SDF_B 16              /* cnt at most */
+#define FC__SDF_X (FC__SDF_B + 7) /* cnt + ng - 1 at most */
+#endif
+static FFT_TARGET FFT_ALWAYS_INLINE void
+FFT_FN(spec_dot_frames_body)(size_t nb, const double *const *x,
+                             const double *const *b, size_t cnt,
+                             size_t ng, double *const *out)
+{
+    /* the pointers in locals: the stores below cannot change them */
+    const double *xl[FC__SDF_X], *bl[FC__SDF_B];
+    double *ol[8];
+    size_t k = 0;
+    for (size_t i = 0; i < cnt + ng - 1; i++) xl[i] = x[i];
+    for (size_t j = 0; j < cnt; j++) bl[j] = b[j];
+    for (size_t g = 0; g < ng; g++) ol[g] = out[g];
+    x = xl;
+    b = bl;
+    out = ol;
+    for (; k + 2 <= nb; k += 2) {
+        V s[8];
+        V w = VLD(b[0] + 2 * k), wr = VDUPRE(w), wi = VDUPIM(w);
+        for (size_t g = 0; g < ng; g++)
+            s[g] = VCMUL(VLD(x[cnt - 1 + g] + 2 * k), wr, wi);
+        for (size_t j = 1; j < cnt; j++) {
+            w = VLD(b[j] + 2 * k);
+            wr = VDUPRE(w);
+            wi = VDUPIM(w);
+            for (size_t g = 0; g < ng; g++)
+                s[g] = VADD(s[g], VCMUL(VLD(x[cnt - 1 + g - j] + 2 * k), wr, wi));
+        }
+        for (size_t g = 0; g < ng; g++) VST(out[g] + 2 * k, s[g]);
+    }
+    for (; k < nb; k++) {
+        double re[8], im[8];
+        for (size_t g = 0; g < ng; g++) {
+            re[g] = 0.0;
+            im[g] = 0.0;
+            for (size_t j = 0; j < cnt; j++) {
+                const double *a = x[cnt - 1 + g - j];
+                const double ar = a[2 * k], ai = a[2 * k + 1];
+                const double br = b[j][2 * k], bi = b[j][2 * k + 1];
+                re[g] += ar * br - ai * bi;
+                im[g] += ar * bi + ai * br;
+            }
+        }
+        for (size_t g = 0; g < ng; g++) {
+            out[g][2 * k] = re[g];
+            out[g][2 * k + 1] = im[g];
+        }
+    }
+}
+
+/* ng a constant in each case, so that the frame loops unroll and the
+   sums stay in registers. */
+static FFT_TARGET void FFT_FN(spec_dot_frames)(size_t nb, const double *const *x,
+                                    const double *const *b, size_t cnt,
+                                    size_t ng, double *const *out)
+{
+    switch (ng) {
+    case 2: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 2, out); break;
+    case 3: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 3, out); break;
+    case 4: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 4, out); break;
+    case 5: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 5, out); break;
+    case 6: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 6, out); break;
+    case 7: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 7, out); break;
+    default: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 8, out); break;
+    }
+}
+
 static FFT_TARGET void FFT_FN(spec_mul)(size_t nb, const double *a, const double *b,
                              double *out)
 {
