@@ -70,7 +70,7 @@
 #define FC_S_MAXLEV 24          /* levels: s = 64 * 2^j <= 2^29 (FFT <= 2^30) */
 #define FC_S_MAXBLOCK ((size_t)1 << 29)
 #define FC_S_CORR 256           /* correction cache chunk (per column) */
-#define FC_S_GROUP 8            /* frames of a level computed together at most */
+#define FC_S_GROUP 4            /* frames of a level computed together at most */
 /* lags covered by the leaf band L and all levels: b_MAXLEV = L + 64 P
    (2^MAXLEV - 1); the default geometry's (about 8.6e9) is the smallest of
    all, and bounds the length of a user kernel */
@@ -721,7 +721,9 @@ static int ex_prepare(ex_engine *s, uint64_t n_end, int exact)
             free(nu);
             return FC_ERR_SIZE;
         }
-        na = malloc(bytes);
+        /* zeroed by calloc: fresh pages beyond what is ever reached are
+           then never touched */
+        na = calloc(1, bytes);
         if (!na) { free(nu); return FC_ERR_NOMEM; }
     }
     if (grow_w) {
@@ -824,7 +826,6 @@ static int ex_prepare(ex_engine *s, uint64_t n_end, int exact)
             double *d = na + c * nacap;
             if (live) memcpy(d, s->acc + c * s->acap + (s->n - s->abase),
                              (size_t)live * sizeof(double));
-            memset(d + live, 0, (nacap - (size_t)live) * sizeof(double));
         }
         free(s->acc);
         s->acc = na;
