@@ -105,6 +105,8 @@ struct fc_fft_plan {
                  size_t, double *);
     void (*sdotf)(size_t, const double *const *, const double *const *,
                   size_t, size_t, double *const *);
+    void (*sdotl)(size_t, const double *const *, const double *const *,
+                  size_t, const size_t *, size_t, double *const *);
     void (*smul)(size_t, const double *, const double *, double *);
 };
 
@@ -570,6 +572,7 @@ int fc__fft_create(size_t n, fc_fft_plan **out)
     p->inv = fc__gen_rfft_inverse;
     p->sdot = fc__gen_spec_dot;
     p->sdotf = fc__gen_spec_dot_frames;
+    p->sdotl = fc__gen_spec_dot_frames_lim;
     p->smul = fc__gen_spec_mul;
 #if FC__FFT_X86
     if (fc__have_avx2_fma()) {
@@ -577,6 +580,7 @@ int fc__fft_create(size_t n, fc_fft_plan **out)
         p->inv = fc__avx2_rfft_inverse;
         p->sdot = fc__avx2_spec_dot;
         p->sdotf = fc__avx2_spec_dot_frames;
+        p->sdotl = fc__avx2_spec_dot_frames_lim;
         p->smul = fc__avx2_spec_mul;
     }
 #endif
@@ -615,6 +619,12 @@ void fc__spec_dot_frames(const fc_fft_plan *p, const double *const *x,
                          double *const *out)
 {
     p->sdotf(p->n / 2 + 1, x, b, cnt, ng, out);
+}
+void fc__spec_dot_frames_lim(const fc_fft_plan *p, const double *const *x,
+                             const double *const *b, size_t cnt,
+                             const size_t *lim, size_t ng, double *const *out)
+{
+    p->sdotl(p->n / 2 + 1, x, b, cnt, lim, ng, out);
 }
 void fc__spec_mul(const fc_fft_plan *p, const double *a, const double *b,
                   double *out)

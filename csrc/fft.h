@@ -40,6 +40,11 @@ void fc__spec_dot(const fc_fft_plan *p, const double *const *a,
 void fc__spec_dot_frames(const fc_fft_plan *p, const double *const *x,
                          const double *const *b, size_t cnt, size_t ng,
                          double *const *out);
+/* The same with frame g summing its first lim[g] terms only (1 <= lim[g]
+   <= cnt): out[g] = sum_{j<lim[g]} x[cnt-1+g-j] * b[j]. */
+void fc__spec_dot_frames_lim(const fc_fft_plan *p, const double *const *x,
+                             const double *const *b, size_t cnt,
+                             const size_t *lim, size_t ng, double *const *out);
 /* out[k] = a[k] * b[k] (complex) for the n/2+1 bins of the plan's size. */
 void fc__spec_mul(const fc_fft_plan *p, const double *a, const double *b,
                   double *out);

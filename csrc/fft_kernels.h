@@ -589,6 +589,59 @@ static FFT_TARGET void FFT_FN(spec_dot_frames)(size_t nb, const double *const *x
     }
 }
 
+/* The same with fewer segments in the first frames: out[g] = sum_{j <
+   lim[g]} x[cnt-1+g-j] * b[j], 1 <= lim[g] <= cnt (the frames at the start
+   of a stream, before every segment has a block); x[i] is not read where
+   no lim reaches it. */
+static FFT_TARGET void FFT_FN(spec_dot_frames_lim)(size_t nb, const double *const *x,
+                                        const double *const *b, size_t cnt,
+                                        const size_t *lim, size_t ng,
+                                        double *const *out)
+{
+    const double *xl[FC__SDF_X], *bl[FC__SDF_B];
+    double *ol[8];
+    size_t k = 0;
+    for (size_t i = 0; i < cnt + ng - 1; i++) xl[i] = x[i];
+    for (size_t j = 0; j < cnt; j++) bl[j] = b[j];
+    for (size_t g = 0; g < ng; g++) ol[g] = out[g];
+    x = xl;
+    b = bl;
+    out = ol;
+    for (; k + 2 <= nb; k += 2) {
+        V s[8];
+        V w = VLD(b[0] + 2 * k), wr = VDUPRE(w), wi = VDUPIM(w);
+        for (size_t g = 0; g < ng; g++)
+            s[g] = VCMUL(VLD(x[cnt - 1 + g] + 2 * k), wr, wi);
+        for (size_t j = 1; j < cnt; j++) {
+            w = VLD(b[j] + 2 * k);
+            wr = VDUPRE(w);
+            wi = VDUPIM(w);
+            for (size_t g = 0; g < ng; g++)
+                if (j < lim[g])
+                    s[g] = VADD(s[g], VCMUL(VLD(x[cnt - 1 + g - j] + 2 * k), wr, wi));
+        }
+        for (size_t g = 0; g < ng; g++) VST(out[g] + 2 * k, s[g]);
+    }
+    for (; k < nb; k++) {
+        double re[8], im[8];
+        for (size_t g = 0; g < ng; g++) {
+            re[g] = 0.0;
+            im[g] = 0.0;
+            for (size_t j = 0; j < lim[g]; j++) {
+                const double *a = x[cnt - 1 + g - j];
+                const double ar = a[2 * k], ai = a[2 * k + 1];
+                const double br = b[j][2 * k], bi = b[j][2 * k + 1];
+                re[g] += ar * br - ai * bi;
+                im[g] += ar * bi + ai * br;
+            }
+        }
+        for (size_t g = 0; g < ng; g++) {
+            out[g][2 * k] = re[g];
+            out[g][2 * k + 1] = im[g];
+        }
+    }
+}
+
 static FFT_TARGET void FFT_FN(spec_mul)(size_t nb, const double *a, const double *b,
                              double *out)
 {

@@ -495,12 +495,13 @@ static void level_frame(ex_engine *s, size_t j, uint64_t f, uint64_t lo)
 
 /*
  * Frames f .. f+gn-1 of level j together (a block push whose samples are
- * all stored: their blocks are known; 2 <= gn <= gslots + 1, f + 1 >= nseg
- * so that every frame has all R = nseg segments). The spectra of blocks
+ * all stored: their blocks are known; 2 <= gn <= gslots + 1; the ring of
+ * R = nseg slots complete). The spectra of blocks
  * f+1 .. f+gn-1 go to gsc[0 ..]; the products of every frame are summed
  * in one pass over the bins (fc__spec_dot_frames: each kernel spectrum read
- * once for all gn frames), frame f's into the work buffer, frame f+g's
- * (g >= 1) in place of block f+g-R, whose last reader is frame f+g-1; then
+ * once for all gn frames; frame f+g has np = min(f+g+1, R) segments),
+ * frame f's into the work buffer, frame f+g's (g >= 1) in place of block
+ * f+g-R, whose last reader is frame f+g-1 (no block yet when f+g < R); then
  * the slots of blocks f+g-R and f+g are exchanged, so that the ring holds
  * the blocks it would hold after frame f+gn-1 and gsc[g-1] the products of
  * frame f+g (its exponent at [n2+2], a scaled flag at [n2+3]). Frame f is
@@ -511,7 +512,9 @@ static void level_frame(ex_engine *s, size_t j, uint64_t f, uint64_t lo)
 static void level_frames(ex_engine *s, size_t j, uint64_t f, size_t gn)
 {
     fc__level *L = &s->lev[j];
-    size_t sz = L->s, n2 = 2 * sz, R = L->nseg;
+    size_t sz = L->s, n2 = 2 * sz, R = L->nseg, lim[FC_S_GROUP];
+    for (size_t g = 0; g < gn; g++)
+        lim[g] = f + g + 1 < R ? (size_t)(f + g + 1) : R;
     double *Y = s->work + n2;
     uint64_t o = f * sz + L->base;
     block_spectra(s, L, f);
@@ -523,6 +526,10 @@ static void level_frames(ex_engine *s, size_t j, uint64_t f, size_t gn)
     for (size_t c = 0; c < s->C; c++) {
         size_t off = c * FC_S_XSLOT(n2);
         for (size_t i = 0; i < R + gn - 1; i++) {
+            if (f + 1 + i < R) { /* no block (read by no frame) */
+                xs[i] = NULL;
+                continue;
+            }
             uint64_t b = f + 1 + i - R;
             xs[i] = (b <= f ? L->xspec[b % R] : L->gsc[b - f - 1]) + off;
         }
@@ -530,12 +537,17 @@ static void level_frames(ex_engine *s, size_t j, uint64_t f, size_t gn)
         for (size_t g = 1; g < gn; g++) dst[g] = L->xspec[(f + g) % R] + off;
         int any = 0;
         for (size_t g = 0; g < gn && !any; g++) {
-            for (size_t p = 0; p < R; p++) xp[p] = xs[R - 1 + g - p];
-            any = frame_scaled(L, xp, R, n2);
+            for (size_t p = 0; p < lim[g]; p++) xp[p] = xs[R - 1 + g - p];
+            any = frame_scaled(L, xp, lim[g], n2);
         }
         if (!any) {
-            fc__spec_dot_frames(L->plan, xs, (const double *const *)L->kspec,
-                                R, gn, dst);
+            if (lim[0] == R)
+                fc__spec_dot_frames(L->plan, xs,
+                                    (const double *const *)L->kspec, R, gn, dst);
+            else
+                fc__spec_dot_frames_lim(L->plan, xs,
+                                        (const double *const *)L->kspec, R,
+                                        lim, gn, dst);
             for (size_t g = 1; g < gn; g++) dst[g][n2 + 2] = dst[g][n2 + 3] = 0.0;
             frame_add(s, L, f, c, Y, 0, 0, 0);
             continue;
@@ -543,13 +555,14 @@ static void level_frames(ex_engine *s, size_t j, uint64_t f, size_t gn)
         /* a scaled operand: the frames one by one, in their order */
         int E0 = 0, sc0 = 0;
         for (size_t g = 0; g < gn; g++) {
-            for (size_t p = 0; p < R; p++) xp[p] = xs[R - 1 + g - p];
-            int sc = frame_scaled(L, xp, R, n2), E = 0;
+            size_t np = lim[g];
+            for (size_t p = 0; p < np; p++) xp[p] = xs[R - 1 + g - p];
+            int sc = frame_scaled(L, xp, np, n2), E = 0;
             if (!sc)
-                fc__spec_dot(L->plan, xp, (const double *const *)L->kspec, R,
+                fc__spec_dot(L->plan, xp, (const double *const *)L->kspec, np,
                              dst[g]);
             else
-                E = scaled_dot(n2, xp, L, R, dst[g]);
+                E = scaled_dot(n2, xp, L, np, dst[g]);
             if (g == 0) {
                 E0 = E;
                 sc0 = sc;
@@ -594,8 +607,7 @@ static void frame_due(ex_engine *s, size_t j, uint64_t f)
         pending_frame(s, j, f);
         return;
     }
-    if (s->gend && L->gslots && f + 1 >= L->nseg && L->made == L->nseg &&
-        s->gend >= L->delay) {
+    if (s->gend && L->gslots && L->made == L->nseg && s->gend >= L->delay) {
         uint64_t last = (s->gend - L->delay) / L->s; /* the last frame due */
         uint64_t gn = last >= f ? last - f + 1 : 0;
         if (gn > L->gslots + 1) gn = L->gslots + 1;
