@@ -666,3 +666,13 @@ int fc_rfft_inverse(fc_fft_plan *p, const double *in, double *out)
     p->inv(p, in, out, 1.0 / (double)p->n);
     return FC_OK;
 }
+
+/* The leaf_dots kernel of the instance this CPU runs (probed once per
+   call of this function: the caller keeps the pointer). */
+fc__leaf_dots_fn fc__leaf_dots_kernel(void)
+{
+#if FC__FFT_X86
+    if (fc__have_avx2_fma()) return fc__avx2_leaf_dots;
+#endif
+    return fc__gen_leaf_dots;
+}

@@ -49,4 +49,13 @@ void fc__spec_dot_frames_lim(const fc_fft_plan *p, const double *const *x,
 void fc__spec_mul(const fc_fft_plan *p, const double *a, const double *b,
                   double *out);
 
+/* out[t] = sum_{i<len} k[i] u[t+i] for t < T (len a multiple of 8), each
+   in a fixed order: eight partial sums of the terms i = r mod 8, in the
+   order of i, combined ((0+4)+(2+6))+((1+5)+(3+7)), every product and sum
+   rounded by itself; the kernel of the AVX2 or portable instance, chosen
+   by fc__leaf_dots_kernel (call once, keep the pointer). */
+typedef void (*fc__leaf_dots_fn)(const double *k, const double *u, size_t len,
+                                 size_t T, double *out);
+fc__leaf_dots_fn fc__leaf_dots_kernel(void);
+
 #endif

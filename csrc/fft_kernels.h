@@ -642,6 +642,62 @@ static FFT_TARGET void FFT_FN(spec_dot_frames_lim)(size_t nb, const double *cons
     }
 }
 
+/* out[t] = the fixed-order dot product of k[0 .. len) with u[t .. t+len)
+   for t < T (len % 8 == 0): eight partial sums of the terms i = r mod 8 in
+   the order of i, combined ((0+4)+(2+6))+((1+5)+(3+7)), each product and
+   sum rounded by itself (no fused multiply-add); four outputs at a time in
+   the lanes of a vector, so the partial sums of one output are the same
+   operations as in a scalar loop. */
+static FFT_TARGET void FFT_FN(leaf_dots)(const double *k, const double *u,
+                              size_t len, size_t T, double *out)
+{
+    size_t t = 0;
+    for (; t + 4 <= T; t += 4) {
+        const double *v = u + t;
+        V a0 = VSET1(0.0), a1 = a0, a2 = a0, a3 = a0;
+        V a4 = a0, a5 = a0, a6 = a0, a7 = a0, q;
+        for (size_t i = 0; i < len; i += 8) {
+            /* one statement per product and per sum: nothing to contract */
+            q = VMUL(VSET1(k[i]), VLD(v + i));
+            a0 = VADD(a0, q);
+            q = VMUL(VSET1(k[i + 1]), VLD(v + i + 1));
+            a1 = VADD(a1, q);
+            q = VMUL(VSET1(k[i + 2]), VLD(v + i + 2));
+            a2 = VADD(a2, q);
+            q = VMUL(VSET1(k[i + 3]), VLD(v + i + 3));
+            a3 = VADD(a3, q);
+            q = VMUL(VSET1(k[i + 4]), VLD(v + i + 4));
+            a4 = VADD(a4, q);
+            q = VMUL(VSET1(k[i + 5]), VLD(v + i + 5));
+            a5 = VADD(a5, q);
+            q = VMUL(VSET1(k[i + 6]), VLD(v + i + 6));
+            a6 = VADD(a6, q);
+            q = VMUL(VSET1(k[i + 7]), VLD(v + i + 7));
+            a7 = VADD(a7, q);
+        }
+        V e = VADD(VADD(a0, a4), VADD(a2, a6));
+        V o = VADD(VADD(a1, a5), VADD(a3, a7));
+        VST(out + t, VADD(e, o));
+    }
+    for (; t < T; t++) {
+        const double *v = u + t;
+        double a0 = 0, a1 = 0, a2 = 0, a3 = 0, a4 = 0, a5 = 0, a6 = 0, a7 = 0;
+        for (size_t i = 0; i < len; i += 8) {
+            double p[8];
+            for (int r = 0; r < 8; r++) p[r] = k[i + r] * v[i + r];
+            a0 += p[0];
+            a1 += p[1];
+            a2 += p[2];
+            a3 += p[3];
+            a4 += p[4];
+            a5 += p[5];
+            a6 += p[6];
+            a7 += p[7];
+        }
+        out[t] = ((a0 + a4) + (a2 + a6)) + ((a1 + a5) + (a3 + a7));
+    }
+}
+
 static FFT_TARGET void FFT_FN(spec_mul)(size_t nb, const double *a, const double *b,
                              double *out)
 {

@@ -61,6 +61,7 @@
 #include <limits.h>
 #include "internal.h"
 #include "serial.h"
+#include "fft.h"
 
 #define FC_S_BLOCK0 64          /* block size of level 0 */
 #define FC_S_LEAF 64            /* the default leaf band: lags 0 .. 63 */
@@ -150,6 +151,9 @@ typedef struct {
                                xprev, xcol */
     double klog2;           /* log2 of a bound on every |c_m| and |corr_n| */
     double umax;            /* largest |u| stored since creation or reset */
+    double *lbuf;           /* C rows of FC_S_BLOCK0: leaf terms of the
+                               next outputs of a block push */
+    fc__leaf_dots_fn leafv; /* their kernel */
     double *work;           /* 4*smax + 2 doubles */
     size_t wcap;            /* smax the work buffer serves */
     double *corr;           /* ncorr rows of FC_S_CORR: column k's corr_n
@@ -241,12 +245,17 @@ static double *arow(const ex_engine *s, size_t c)
 }
 
 /* History term of output s->n for channel c (cv: corr_values): the
-   columns already stored (j < n), in the table's order. */
-static inline double ex_hist(const ex_engine *s, size_t c, const double *cv)
+   columns already stored (j < n), in the table's order. lv: NULL, or the
+   leaf term of channel c at lv[c * FC_S_BLOCK0] (computed ahead by the
+   same operations, s->leafv). */
+static inline double ex_hist(const ex_engine *s, size_t c, const double *cv,
+                             const double *lv)
 {
     uint64_t n = s->n;
     const double *uc = urow(s, c);
-    double h = arow(s, c)[n - s->abase] + leaf_dot(s->leafk, uc + n - s->leaf, s->leaf);
+    double h = arow(s, c)[n - s->abase] +
+               (lv ? lv[c * FC_S_BLOCK0]
+                   : leaf_dot(s->leafk, uc + n - s->leaf, s->leaf));
     if (n == 0 && s->zero_first) return 0.0;
     for (size_t k = 0; k < s->ncorr; k++)
         if (s->cols[k].column < n) h += cv[k] * s->xcol[k * s->C + c];
@@ -263,9 +272,9 @@ static inline double ex_u(const ex_engine *s, size_t c, double x)
 
 /* Output of pushing x on channel c; u gets the stored value. */
 static inline double ex_y(const ex_engine *s, size_t c, double x,
-                          const double *cv, double *u)
+                          const double *cv, const double *lv, double *u)
 {
-    double h = ex_hist(s, c, cv);
+    double h = ex_hist(s, c, cv, lv);
     *u = ex_u(s, c, x);
     if (s->n == 0 && s->zero_first)
         return 0.0; /* y_0 = (c_0 + corr_0) x_0 = 0 */
@@ -859,8 +868,9 @@ static int ex_prepare(ex_engine *s, uint64_t n_end, int exact)
 
 /* ------------------------------------------------------------ exact ops */
 
-/* One time step of every channel; capacity prepared, samples finite. */
-static int ex_step(ex_engine *s, const double *x, double *y)
+/* One time step of every channel; capacity prepared, samples finite; lv:
+   see ex_hist. */
+static int ex_step(ex_engine *s, const double *x, double *y, const double *lv)
 {
     double cv[FC__CORR_MAX];
     size_t C = s->C;
@@ -872,7 +882,7 @@ static int ex_step(ex_engine *s, const double *x, double *y)
        before anything changes */
     double *yt = s->tmp, *ut = s->tmp + C;
     for (size_t c = 0; c < C; c++) {
-        yt[c] = ex_y(s, c, x[c], cv, &ut[c]);
+        yt[c] = ex_y(s, c, x[c], cv, lv, &ut[c]);
         if (!isfinite(yt[c]) || !isfinite(ut[c])) return FC_ERR_RANGE;
     }
     /* channel c reads x[c] before y[c] is written: y may be x (in place) */
@@ -947,7 +957,7 @@ static int ex_preview(ex_engine *s, const double *x, double *y)
     if (st != FC_OK) return st;
     double *yt = s->tmp, *ut = s->tmp + s->C;
     for (size_t c = 0; c < s->C; c++) {
-        yt[c] = ex_y(s, c, x[c], cv, &ut[c]);
+        yt[c] = ex_y(s, c, x[c], cv, NULL, &ut[c]);
         if (!isfinite(yt[c]) || !isfinite(ut[c])) return FC_ERR_RANGE;
     }
     memcpy(y, yt, s->C * sizeof(double)); /* memmove semantics not needed: y == x or apart */
@@ -960,7 +970,7 @@ static int ex_history(ex_engine *s, double *h)
     int st = corr_values(s, s->n, cv);
     if (st != FC_OK) return st;
     for (size_t c = 0; c < s->C; c++) {
-        s->tmp[c] = ex_hist(s, c, cv);
+        s->tmp[c] = ex_hist(s, c, cv, NULL);
         if (!isfinite(s->tmp[c])) return FC_ERR_RANGE;
     }
     memcpy(h, s->tmp, s->C * sizeof(double));
@@ -1040,7 +1050,19 @@ static int ex_push_block(ex_engine *s, const double *x, size_t count,
         s->gend = n_end;
     }
     for (size_t t = 0; t < count; t++) {
-        st = ex_step(s, x + t * C, yb + t * C);
+        const double *lv = NULL;
+        if (s->gend) {
+            /* the leaf terms of the next outputs, all u before them stored */
+            size_t i = t % FC_S_BLOCK0;
+            if (i == 0) {
+                size_t T = count - t < FC_S_BLOCK0 ? count - t : FC_S_BLOCK0;
+                for (size_t c = 0; c < C; c++)
+                    s->leafv(s->leafk, urow(s, c) + n0 + t - s->leaf, s->leaf,
+                             T, s->lbuf + c * FC_S_BLOCK0);
+            }
+            lv = s->lbuf + i;
+        }
+        st = ex_step(s, x + t * C, yb + t * C, lv);
         if (st != FC_OK) { /* FC_ERR_RANGE: an output beyond the double range */
             s->gend = 0;
             for (size_t j = 0; j < s->nlev; j++) s->lev[j].gn = 0;
@@ -1079,7 +1101,8 @@ static size_t ex_nbytes(const ex_engine *s)
     b += s->C * s->acap * sizeof(double);
     b += s->wcap ? (4 * s->wcap + 2) * sizeof(double) : 0;
     b += s->klen * sizeof(double);
-    b += (4 + 2 * XR(s)) * s->C * sizeof(double) + s->leaf * sizeof(double) +
+    b += (4 + 2 * XR(s) + FC_S_BLOCK0) * s->C * sizeof(double) +
+         s->leaf * sizeof(double) +
          FC_S_MAXLEV * sizeof(fc__level) + s->ncorr * FC_S_CORR * sizeof(double);
     for (size_t j = 0; j < s->nlev; j++)
         b += s->lev[j].made * ((2 * s->lev[j].s + 2) +
@@ -1105,6 +1128,7 @@ static void ex_free(ex_engine *s)
     free(s->corr);
     free(s->tmp);
     free(s->leafk);
+    free(s->lbuf);
     free(s->work);
     free(s);
 }
@@ -1216,9 +1240,12 @@ static int ex_init(ex_engine *s, size_t leaf, size_t segs)
     s->xcol = calloc(C, XR(s) * sizeof(double));
     s->tmp = calloc(C, (3 + XR(s)) * sizeof(double));
     s->lev = calloc(FC_S_MAXLEV, sizeof(fc__level));
+    s->lbuf = calloc(C, FC_S_BLOCK0 * sizeof(double));
+    s->leafv = fc__leaf_dots_kernel();
     if (s->ncorr && !(s->corr = calloc(s->ncorr, FC_S_CORR * sizeof(double))))
         return FC_ERR_NOMEM;
-    if (!s->xprev || !s->xcol || !s->tmp || !s->lev) return FC_ERR_NOMEM;
+    if (!s->xprev || !s->xcol || !s->tmp || !s->lev || !s->lbuf)
+        return FC_ERR_NOMEM;
     if (leaf == 0 && (st = ex_geometry(s, &leaf, &segs)) != FC_OK) return st;
     if (!(s->leafk = malloc(leaf * sizeof(double)))) return FC_ERR_NOMEM;
     s->leaf = leaf;
@@ -1605,7 +1632,7 @@ static int op_push1(void *eng, double x, double *y)
     ex_engine *s = eng;
     int st = FC_OK;
     if (s->n + 1 > s->prep_n) st = ex_prepare(s, s->n + 1, 0);
-    if (st == FC_OK) st = ex_step(s, &x, y);
+    if (st == FC_OK) st = ex_step(s, &x, y, NULL);
     return st;
 }
 static int op_preview(void *eng, const double *x, double *y)
