@@ -43,11 +43,21 @@
  * leaf band. The push that completes a frame at every level costs
  * O((n/P) log n); the largest FFT is of size about 2n/P.
  *
+ * Block pushes (the samples of the whole block are known before its first
+ * output): the frames of a level due within the block are computed up to
+ * FC_S_GROUP at a time (level_frames), so that each kernel-segment spectrum
+ * is read from memory once per group rather than once per frame, and the
+ * leaf-band terms four outputs at a time (fc__leaf_dots). Every output is
+ * the same sum of the same rounded terms in the same order as in single
+ * pushes: only the order of independent work changes.
+ *
  * Memory per channel: the history of u (n doubles), the ring of block
  * spectra (at most P slots of 2s+4 doubles per level, about 4n doubles in
- * all) and a short accumulator; shared between channels: the kernel
- * spectra (about 4n doubles) and the FFT plans (one per level). Measured
- * (bench/stream_memory.py, one channel): about 70 bytes per sample.
+ * all; once a level's ring is complete, min(FC_S_GROUP, P) - 1 slots more
+ * for frames computed together) and a short accumulator; shared between
+ * channels: the kernel spectra (about 4n doubles) and the FFT plans (one
+ * per level). Measured (bench/stream_memory.py, one channel): about 75
+ * bytes per sample.
  *
  * Everything that a push needs (buffers, new levels, their spectra) is
  * allocated by ex_prepare() before anything is changed; a failure leaves the
