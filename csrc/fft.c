@@ -103,6 +103,10 @@ struct fc_fft_plan {
        (the CPU is probed once per plan, never per call) */
     void (*sdot)(size_t, const double *const *, const double *const *,
                  size_t, double *);
+    void (*sdotf)(size_t, const double *const *, const double *const *,
+                  size_t, size_t, double *const *);
+    void (*sdotl)(size_t, const double *const *, const double *const *,
+                  size_t, const size_t *, size_t, double *const *);
     void (*smul)(size_t, const double *, const double *, double *);
 };
 
@@ -567,12 +571,16 @@ int fc__fft_create(size_t n, fc_fft_plan **out)
     p->fwd = fc__gen_rfft_forward;
     p->inv = fc__gen_rfft_inverse;
     p->sdot = fc__gen_spec_dot;
+    p->sdotf = fc__gen_spec_dot_frames;
+    p->sdotl = fc__gen_spec_dot_frames_lim;
     p->smul = fc__gen_spec_mul;
 #if FC__FFT_X86
     if (fc__have_avx2_fma()) {
         p->fwd = fc__avx2_rfft_forward;
         p->inv = fc__avx2_rfft_inverse;
         p->sdot = fc__avx2_spec_dot;
+        p->sdotf = fc__avx2_spec_dot_frames;
+        p->sdotl = fc__avx2_spec_dot_frames_lim;
         p->smul = fc__avx2_spec_mul;
     }
 #endif
@@ -605,6 +613,18 @@ void fc__spec_dot(const fc_fft_plan *p, const double *const *a,
                   const double *const *b, size_t cnt, double *out)
 {
     p->sdot(p->n / 2 + 1, a, b, cnt, out);
+}
+void fc__spec_dot_frames(const fc_fft_plan *p, const double *const *x,
+                         const double *const *b, size_t cnt, size_t ng,
+                         double *const *out)
+{
+    p->sdotf(p->n / 2 + 1, x, b, cnt, ng, out);
+}
+void fc__spec_dot_frames_lim(const fc_fft_plan *p, const double *const *x,
+                             const double *const *b, size_t cnt,
+                             const size_t *lim, size_t ng, double *const *out)
+{
+    p->sdotl(p->n / 2 + 1, x, b, cnt, lim, ng, out);
 }
 void fc__spec_mul(const fc_fft_plan *p, const double *a, const double *b,
                   double *out)
@@ -645,4 +665,14 @@ int fc_rfft_inverse(fc_fft_plan *p, const double *in, double *out)
     if (fc__overlap(in, p->n + 2, out, p->n)) return FC_ERR_ARG;
     p->inv(p, in, out, 1.0 / (double)p->n);
     return FC_OK;
+}
+
+/* The leaf_dots kernel of the instance this CPU runs (probed once per
+   call of this function: the caller keeps the pointer). */
+fc__leaf_dots_fn fc__leaf_dots_kernel(void)
+{
+#if FC__FFT_X86
+    if (fc__have_avx2_fma()) return fc__avx2_leaf_dots;
+#endif
+    return fc__gen_leaf_dots;
 }

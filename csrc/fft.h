@@ -33,8 +33,29 @@ void fc__fft_inverse(fc_fft_plan *p, const double *in, double *out);
    plan was made. */
 void fc__spec_dot(const fc_fft_plan *p, const double *const *a,
                   const double *const *b, size_t cnt, double *out);
+/* ng frames of a uniformly partitioned convolution (2 <= ng <= 8): out[g]
+   = sum_{j<cnt} x[cnt-1+g-j] * b[j], each bit for bit the fc__spec_dot of
+   its own operands (x[cnt-1+g-j] with b[j], j = 0 .. cnt-1); out[g] may be
+   the spectrum x[g-1] itself, and no other of x. */
+void fc__spec_dot_frames(const fc_fft_plan *p, const double *const *x,
+                         const double *const *b, size_t cnt, size_t ng,
+                         double *const *out);
+/* The same with frame g summing its first lim[g] terms only (1 <= lim[g]
+   <= cnt): out[g] = sum_{j<lim[g]} x[cnt-1+g-j] * b[j]. */
+void fc__spec_dot_frames_lim(const fc_fft_plan *p, const double *const *x,
+                             const double *const *b, size_t cnt,
+                             const size_t *lim, size_t ng, double *const *out);
 /* out[k] = a[k] * b[k] (complex) for the n/2+1 bins of the plan's size. */
 void fc__spec_mul(const fc_fft_plan *p, const double *a, const double *b,
                   double *out);
+
+/* out[t] = sum_{i<len} k[i] u[t+i] for t < T (len a multiple of 8), each
+   in a fixed order: eight partial sums of the terms i = r mod 8, in the
+   order of i, combined ((0+4)+(2+6))+((1+5)+(3+7)), every product and sum
+   rounded by itself; the kernel of the AVX2 or portable instance, chosen
+   by fc__leaf_dots_kernel (call once, keep the pointer). */
+typedef void (*fc__leaf_dots_fn)(const double *k, const double *u, size_t len,
+                                 size_t T, double *out);
+fc__leaf_dots_fn fc__leaf_dots_kernel(void);
 
 #endif

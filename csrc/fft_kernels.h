@@ -512,6 +512,192 @@ static FFT_TARGET void FFT_FN(spec_dot)(size_t nb, const double *const *a,
     }
 }
 
+/* Several frames of one uniformly partitioned convolution at once:
+   out[g] = sum_{j<cnt} x[cnt-1+g-j] * b[j] for g < ng (2 <= ng <= 8), the
+   sum of each frame in the order of spec_dot and with its operations, so
+   that every out[g] equals spec_dot of its own operands bit for bit. Each
+   b[j] is read once for all ng frames, its real and imaginary parts
+   duplicated once per pair of bins. out[g] may be x[g-1] (every bin is read
+   for all frames before it is written), and nothing else of x. */
+#ifndef FC__SDF_B
+#define FC__SDF_B 16              /* cnt at most */
+#define FC__SDF_X (FC__SDF_B + 7) /* cnt + ng - 1 at most */
+#endif
+static FFT_TARGET FFT_ALWAYS_INLINE void
+FFT_FN(spec_dot_frames_body)(size_t nb, const double *const *x,
+                             const double *const *b, size_t cnt,
+                             size_t ng, double *const *out)
+{
+    /* the pointers in locals: the stores below cannot change them */
+    const double *xl[FC__SDF_X], *bl[FC__SDF_B];
+    double *ol[8];
+    size_t k = 0;
+    for (size_t i = 0; i < cnt + ng - 1; i++) xl[i] = x[i];
+    for (size_t j = 0; j < cnt; j++) bl[j] = b[j];
+    for (size_t g = 0; g < ng; g++) ol[g] = out[g];
+    x = xl;
+    b = bl;
+    out = ol;
+    for (; k + 2 <= nb; k += 2) {
+        V s[8];
+        V w = VLD(b[0] + 2 * k), wr = VDUPRE(w), wi = VDUPIM(w);
+        for (size_t g = 0; g < ng; g++)
+            s[g] = VCMUL(VLD(x[cnt - 1 + g] + 2 * k), wr, wi);
+        for (size_t j = 1; j < cnt; j++) {
+            w = VLD(b[j] + 2 * k);
+            wr = VDUPRE(w);
+            wi = VDUPIM(w);
+            for (size_t g = 0; g < ng; g++)
+                s[g] = VADD(s[g], VCMUL(VLD(x[cnt - 1 + g - j] + 2 * k), wr, wi));
+        }
+        for (size_t g = 0; g < ng; g++) VST(out[g] + 2 * k, s[g]);
+    }
+    for (; k < nb; k++) {
+        double re[8], im[8];
+        for (size_t g = 0; g < ng; g++) {
+            re[g] = 0.0;
+            im[g] = 0.0;
+            for (size_t j = 0; j < cnt; j++) {
+                const double *a = x[cnt - 1 + g - j];
+                const double ar = a[2 * k], ai = a[2 * k + 1];
+                const double br = b[j][2 * k], bi = b[j][2 * k + 1];
+                re[g] += ar * br - ai * bi;
+                im[g] += ar * bi + ai * br;
+            }
+        }
+        for (size_t g = 0; g < ng; g++) {
+            out[g][2 * k] = re[g];
+            out[g][2 * k + 1] = im[g];
+        }
+    }
+}
+
+/* ng a constant in each case, so that the frame loops unroll and the
+   sums stay in registers. */
+static FFT_TARGET void FFT_FN(spec_dot_frames)(size_t nb, const double *const *x,
+                                    const double *const *b, size_t cnt,
+                                    size_t ng, double *const *out)
+{
+    switch (ng) {
+    case 2: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 2, out); break;
+    case 3: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 3, out); break;
+    case 4: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 4, out); break;
+    case 5: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 5, out); break;
+    case 6: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 6, out); break;
+    case 7: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 7, out); break;
+    default: FFT_FN(spec_dot_frames_body)(nb, x, b, cnt, 8, out); break;
+    }
+}
+
+/* The same with fewer segments in the first frames: out[g] = sum_{j <
+   lim[g]} x[cnt-1+g-j] * b[j], 1 <= lim[g] <= cnt (the frames at the start
+   of a stream, before every segment has a block); x[i] is not read where
+   no lim reaches it. */
+static FFT_TARGET void FFT_FN(spec_dot_frames_lim)(size_t nb, const double *const *x,
+                                        const double *const *b, size_t cnt,
+                                        const size_t *lim, size_t ng,
+                                        double *const *out)
+{
+    const double *xl[FC__SDF_X], *bl[FC__SDF_B];
+    double *ol[8];
+    size_t k = 0;
+    for (size_t i = 0; i < cnt + ng - 1; i++) xl[i] = x[i];
+    for (size_t j = 0; j < cnt; j++) bl[j] = b[j];
+    for (size_t g = 0; g < ng; g++) ol[g] = out[g];
+    x = xl;
+    b = bl;
+    out = ol;
+    for (; k + 2 <= nb; k += 2) {
+        V s[8];
+        V w = VLD(b[0] + 2 * k), wr = VDUPRE(w), wi = VDUPIM(w);
+        for (size_t g = 0; g < ng; g++)
+            s[g] = VCMUL(VLD(x[cnt - 1 + g] + 2 * k), wr, wi);
+        for (size_t j = 1; j < cnt; j++) {
+            w = VLD(b[j] + 2 * k);
+            wr = VDUPRE(w);
+            wi = VDUPIM(w);
+            for (size_t g = 0; g < ng; g++)
+                if (j < lim[g])
+                    s[g] = VADD(s[g], VCMUL(VLD(x[cnt - 1 + g - j] + 2 * k), wr, wi));
+        }
+        for (size_t g = 0; g < ng; g++) VST(out[g] + 2 * k, s[g]);
+    }
+    for (; k < nb; k++) {
+        double re[8], im[8];
+        for (size_t g = 0; g < ng; g++) {
+            re[g] = 0.0;
+            im[g] = 0.0;
+            for (size_t j = 0; j < lim[g]; j++) {
+                const double *a = x[cnt - 1 + g - j];
+                const double ar = a[2 * k], ai = a[2 * k + 1];
+                const double br = b[j][2 * k], bi = b[j][2 * k + 1];
+                re[g] += ar * br - ai * bi;
+                im[g] += ar * bi + ai * br;
+            }
+        }
+        for (size_t g = 0; g < ng; g++) {
+            out[g][2 * k] = re[g];
+            out[g][2 * k + 1] = im[g];
+        }
+    }
+}
+
+/* out[t] = the fixed-order dot product of k[0 .. len) with u[t .. t+len)
+   for t < T (len % 8 == 0): eight partial sums of the terms i = r mod 8 in
+   the order of i, combined ((0+4)+(2+6))+((1+5)+(3+7)), each product and
+   sum rounded by itself (no fused multiply-add); four outputs at a time in
+   the lanes of a vector, so the partial sums of one output are the same
+   operations as in a scalar loop. */
+static FFT_TARGET void FFT_FN(leaf_dots)(const double *k, const double *u,
+                              size_t len, size_t T, double *out)
+{
+    size_t t = 0;
+    for (; t + 4 <= T; t += 4) {
+        const double *v = u + t;
+        V a0 = VSET1(0.0), a1 = a0, a2 = a0, a3 = a0;
+        V a4 = a0, a5 = a0, a6 = a0, a7 = a0, q;
+        for (size_t i = 0; i < len; i += 8) {
+            /* one statement per product and per sum: nothing to contract */
+            q = VMUL(VSET1(k[i]), VLD(v + i));
+            a0 = VADD(a0, q);
+            q = VMUL(VSET1(k[i + 1]), VLD(v + i + 1));
+            a1 = VADD(a1, q);
+            q = VMUL(VSET1(k[i + 2]), VLD(v + i + 2));
+            a2 = VADD(a2, q);
+            q = VMUL(VSET1(k[i + 3]), VLD(v + i + 3));
+            a3 = VADD(a3, q);
+            q = VMUL(VSET1(k[i + 4]), VLD(v + i + 4));
+            a4 = VADD(a4, q);
+            q = VMUL(VSET1(k[i + 5]), VLD(v + i + 5));
+            a5 = VADD(a5, q);
+            q = VMUL(VSET1(k[i + 6]), VLD(v + i + 6));
+            a6 = VADD(a6, q);
+            q = VMUL(VSET1(k[i + 7]), VLD(v + i + 7));
+            a7 = VADD(a7, q);
+        }
+        V e = VADD(VADD(a0, a4), VADD(a2, a6));
+        V o = VADD(VADD(a1, a5), VADD(a3, a7));
+        VST(out + t, VADD(e, o));
+    }
+    for (; t < T; t++) {
+        const double *v = u + t;
+        double a0 = 0, a1 = 0, a2 = 0, a3 = 0, a4 = 0, a5 = 0, a6 = 0, a7 = 0;
+        for (size_t i = 0; i < len; i += 8) {
+            double p[8];
+            for (int r = 0; r < 8; r++) p[r] = k[i + r] * v[i + r];
+            a0 += p[0];
+            a1 += p[1];
+            a2 += p[2];
+            a3 += p[3];
+            a4 += p[4];
+            a5 += p[5];
+            a6 += p[6];
+            a7 += p[7];
+        }
+        out[t] = ((a0 + a4) + (a2 + a6)) + ((a1 + a5) + (a3 + a7));
+    }
+}
+
 static FFT_TARGET void FFT_FN(spec_mul)(size_t nb, const double *a, const double *b,
                              double *out)
 {

@@ -43,11 +43,21 @@
  * leaf band. The push that completes a frame at every level costs
  * O((n/P) log n); the largest FFT is of size about 2n/P.
  *
+ * Block pushes (the samples of the whole block are known before its first
+ * output): the frames of a level due within the block are computed up to
+ * FC_S_GROUP at a time (level_frames), so that each kernel-segment spectrum
+ * is read from memory once per group rather than once per frame, and the
+ * leaf-band terms four outputs at a time (fc__leaf_dots). Every output is
+ * the same sum of the same rounded terms in the same order as in single
+ * pushes: only the order of independent work changes.
+ *
  * Memory per channel: the history of u (n doubles), the ring of block
  * spectra (at most P slots of 2s+4 doubles per level, about 4n doubles in
- * all) and a short accumulator; shared between channels: the kernel
- * spectra (about 4n doubles) and the FFT plans (one per level). Measured
- * (bench/stream_memory.py, one channel): about 70 bytes per sample.
+ * all; once a level's ring is complete, min(FC_S_GROUP, P) - 1 slots more
+ * for frames computed together) and a short accumulator; shared between
+ * channels: the kernel spectra (about 4n doubles) and the FFT plans (one
+ * per level). Measured (bench/stream_memory.py, one channel): about 75
+ * bytes per sample.
  *
  * Everything that a push needs (buffers, new levels, their spectra) is
  * allocated by ex_prepare() before anything is changed; a failure leaves the
@@ -61,6 +71,7 @@
 #include <limits.h>
 #include "internal.h"
 #include "serial.h"
+#include "fft.h"
 
 #define FC_S_BLOCK0 64          /* block size of level 0 */
 #define FC_S_LEAF 64            /* the default leaf band: lags 0 .. 63 */
@@ -70,6 +81,7 @@
 #define FC_S_MAXLEV 24          /* levels: s = 64 * 2^j <= 2^29 (FFT <= 2^30) */
 #define FC_S_MAXBLOCK ((size_t)1 << 29)
 #define FC_S_CORR 256           /* correction cache chunk (per column) */
+#define FC_S_GROUP 4            /* frames of a level computed together at most */
 /* lags covered by the leaf band L and all levels: b_MAXLEV = L + 64 P
    (2^MAXLEV - 1); the default geometry's (about 8.6e9) is the smallest of
    all, and bounds the length of a user kernel */
@@ -102,6 +114,12 @@ typedef struct {
     double *xspec[FC_S_SEGS_MAX]; /* ring slot: C spectra of block f, slot
                                      f % nseg, each 2s+2 doubles, its
                                      exponent and a zero flag */
+    size_t gslots;         /* slots of gsc (0, or min(FC_S_GROUP, nseg) - 1
+                              once the ring is complete) */
+    double *gsc[FC_S_GROUP - 1]; /* slots of the size of a ring slot, for
+                              frames computed together (see level_frames) */
+    uint64_t gf;           /* pending group: the products of frames gf+1 ..  */
+    size_t gn;             /* gf+gn-1 wait in gsc[0 ..] (gn = 0: none) */
 } fc__level;
 
 /* The state of one exact stream (the facade's engine pointer). */
@@ -132,6 +150,9 @@ typedef struct {
     uint64_t abase;
     uint64_t acc_hi;        /* acc entries >= acc_hi are zero */
     uint64_t prep_n;        /* capacity is ready for this many samples */
+    uint64_t gend;          /* within a block push: u is stored up to this
+                               count, frames due by then may be computed
+                               together; 0 otherwise */
     double *xprev;          /* C: previous sample (L1) */
     double *xcol;           /* XR(s) rows of C: x_j of column k in row k
                                (0 before it arrives; one row of zeros
@@ -140,6 +161,9 @@ typedef struct {
                                xprev, xcol */
     double klog2;           /* log2 of a bound on every |c_m| and |corr_n| */
     double umax;            /* largest |u| stored since creation or reset */
+    double *lbuf;           /* C rows of FC_S_BLOCK0: leaf terms of the
+                               next outputs of a block push */
+    fc__leaf_dots_fn leafv; /* their kernel */
     double *work;           /* 4*smax + 2 doubles */
     size_t wcap;            /* smax the work buffer serves */
     double *corr;           /* ncorr rows of FC_S_CORR: column k's corr_n
@@ -231,12 +255,17 @@ static double *arow(const ex_engine *s, size_t c)
 }
 
 /* History term of output s->n for channel c (cv: corr_values): the
-   columns already stored (j < n), in the table's order. */
-static inline double ex_hist(const ex_engine *s, size_t c, const double *cv)
+   columns already stored (j < n), in the table's order. lv: NULL, or the
+   leaf term of channel c at lv[c * FC_S_BLOCK0] (computed ahead by the
+   same operations, s->leafv). */
+static inline double ex_hist(const ex_engine *s, size_t c, const double *cv,
+                             const double *lv)
 {
     uint64_t n = s->n;
     const double *uc = urow(s, c);
-    double h = arow(s, c)[n - s->abase] + leaf_dot(s->leafk, uc + n - s->leaf, s->leaf);
+    double h = arow(s, c)[n - s->abase] +
+               (lv ? lv[c * FC_S_BLOCK0]
+                   : leaf_dot(s->leafk, uc + n - s->leaf, s->leaf));
     if (n == 0 && s->zero_first) return 0.0;
     for (size_t k = 0; k < s->ncorr; k++)
         if (s->cols[k].column < n) h += cv[k] * s->xcol[k * s->C + c];
@@ -253,9 +282,9 @@ static inline double ex_u(const ex_engine *s, size_t c, double x)
 
 /* Output of pushing x on channel c; u gets the stored value. */
 static inline double ex_y(const ex_engine *s, size_t c, double x,
-                          const double *cv, double *u)
+                          const double *cv, const double *lv, double *u)
 {
-    double h = ex_hist(s, c, cv);
+    double h = ex_hist(s, c, cv, lv);
     *u = ex_u(s, c, x);
     if (s->n == 0 && s->zero_first)
         return 0.0; /* y_0 = (c_0 + corr_0) x_0 = 0 */
@@ -297,10 +326,23 @@ static size_t lev_nseg(const ex_engine *s, size_t j)
     return k < s->segs ? (size_t)k : s->segs;
 }
 
+/* Slots for frames computed together: once the ring of nseg slots is
+   complete, min(FC_S_GROUP, nseg) - 1 more of the same size. */
+static size_t lev_gslots(size_t nseg)
+{
+    return nseg < 2 ? 0 : (nseg < FC_S_GROUP ? nseg : FC_S_GROUP) - 1;
+}
+
 static void level_free(fc__level *L)
 {
     fc__fft_free(L->plan);
     L->plan = NULL;
+    for (size_t q = 0; q < L->gslots; q++) {
+        free(L->gsc[q]);
+        L->gsc[q] = NULL;
+    }
+    L->gslots = 0;
+    L->gn = 0;
     for (size_t p = 0; p < L->made; p++) {
         free(L->kspec[p]);
         free(L->xspec[p]);
@@ -360,12 +402,13 @@ static int segment_spectrum(const ex_engine *s, fc__level *L, size_t p,
     return FC_OK;
 }
 
-/* Spectra of input block f of every channel into its ring slot, each with
+/* Spectra of input block f of every channel into the slot X, each with
    its exponent at [n2+2] and a zero-block flag at [n2+3]. */
-static void block_spectra(ex_engine *s, fc__level *L, uint64_t f)
+static void block_spectra_to(ex_engine *s, fc__level *L, uint64_t f,
+                             double *X)
 {
     size_t sz = L->s, n2 = 2 * sz;
-    double *t = s->work, *X = L->xspec[f % L->nseg];
+    double *t = s->work;
     for (size_t c = 0; c < s->C; c++, X += FC_S_XSLOT(n2)) {
         int zero;
         memcpy(t, urow(s, c) + f * sz, sz * sizeof(double));
@@ -377,6 +420,12 @@ static void block_spectra(ex_engine *s, fc__level *L, uint64_t f)
         X[n2 + 2] = (double)e;
         X[n2 + 3] = zero ? 1.0 : 0.0;
     }
+}
+
+/* The same into block f's ring slot. */
+static void block_spectra(ex_engine *s, fc__level *L, uint64_t f)
+{
+    block_spectra_to(s, L, f, L->xspec[f % L->nseg]);
 }
 
 /* Y = sum_p 2^(d_p - E) X_p K_p over the nonzero blocks, E = max d_p: the
@@ -408,6 +457,35 @@ static int scaled_dot(size_t n2, const double *const *xp, const fc__level *L,
     return E;
 }
 
+/* 1 when the frame of the np blocks xp (xp[p] the block of kernel segment
+   p) has a scaled operand (see scaled_dot). */
+static int frame_scaled(const fc__level *L, const double *const *xp,
+                        size_t np, size_t n2)
+{
+    for (size_t p = 0; p < np; p++)
+        if ((xp[p][n2 + 2] != 0.0 || L->kexp[p] != 0) && xp[p][n2 + 3] == 0.0)
+            return 1;
+    return 0;
+}
+
+/* The inverse FFT of the products Y of frame f for channel c (scaled: by
+   2^E), added to outputs f*s + base ... f*s + base + 2s - 2 (only those
+   >= lo). */
+static void frame_add(ex_engine *s, fc__level *L, uint64_t f, size_t c,
+                      const double *Y, int scaled, int E, uint64_t lo)
+{
+    size_t n2 = 2 * L->s;
+    double *t = s->work;
+    uint64_t o = f * L->s + L->base;
+    size_t i0 = lo > o ? (size_t)(lo - o) : 0;
+    double *a = arow(s, c) + (o - s->abase);
+    fc__fft_inverse(L->plan, Y, t);
+    if (!scaled)
+        for (size_t i = i0; i + 1 < n2; i++) a[i] += t[i];
+    else
+        for (size_t i = i0; i + 1 < n2; i++) a[i] += ldexp(t[i], E);
+}
+
 /* Frame f of level j: new block spectrum, sum_p X_{f-p} K_p, one inverse
    FFT, added to outputs f*s + base ... f*s + base + 2s - 2 (only those >= lo:
    lo > 0 when a refused block is undone, see ex_rollback). */
@@ -416,31 +494,148 @@ static void level_frame(ex_engine *s, size_t j, uint64_t f, uint64_t lo)
     fc__level *L = &s->lev[j];
     size_t sz = L->s, n2 = 2 * sz, R = L->nseg;
     size_t np = f + 1 < R ? (size_t)f + 1 : R;
-    double *t = s->work, *Y = t + n2;
+    double *Y = s->work + n2;
     uint64_t o = f * sz + L->base;
-    size_t i0 = lo > o ? (size_t)(lo - o) : 0;
     block_spectra(s, L, f);
     const double *xp[FC_S_SEGS_MAX];
     for (size_t c = 0; c < s->C; c++) {
         size_t off = c * FC_S_XSLOT(n2);
-        int scaled = 0;
-        for (size_t p = 0; p < np; p++) {
-            xp[p] = L->xspec[(f - p) % R] + off;
-            if ((xp[p][n2 + 2] != 0.0 || L->kexp[p] != 0) && xp[p][n2 + 3] == 0.0)
-                scaled = 1;
-        }
-        double *a = arow(s, c) + (o - s->abase);
-        if (!scaled) {
+        for (size_t p = 0; p < np; p++) xp[p] = L->xspec[(f - p) % R] + off;
+        if (!frame_scaled(L, xp, np, n2)) {
             fc__spec_dot(L->plan, xp, (const double *const *)L->kspec, np, Y);
-            fc__fft_inverse(L->plan, Y, t);
-            for (size_t i = i0; i + 1 < n2; i++) a[i] += t[i];
+            frame_add(s, L, f, c, Y, 0, 0, lo);
         } else {
             int E = scaled_dot(n2, xp, L, np, Y);
-            fc__fft_inverse(L->plan, Y, t);
-            for (size_t i = i0; i + 1 < n2; i++) a[i] += ldexp(t[i], E);
+            frame_add(s, L, f, c, Y, 1, E, lo);
         }
     }
     if (o + n2 - 1 > s->acc_hi) s->acc_hi = o + n2 - 1;
+}
+
+/*
+ * Frames f .. f+gn-1 of level j together (a block push whose samples are
+ * all stored: their blocks are known; 2 <= gn <= gslots + 1; the ring of
+ * R = nseg slots complete). The spectra of blocks
+ * f+1 .. f+gn-1 go to gsc[0 ..]; the products of every frame are summed
+ * in one pass over the bins (fc__spec_dot_frames: each kernel spectrum read
+ * once for all gn frames; frame f+g has np = min(f+g+1, R) segments),
+ * frame f's into the work buffer, frame f+g's (g >= 1) in place of block
+ * f+g-R, whose last reader is frame f+g-1 (no block yet when f+g < R); then
+ * the slots of blocks f+g-R and f+g are exchanged, so that the ring holds
+ * the blocks it would hold after frame f+gn-1 and gsc[g-1] the products of
+ * frame f+g (its exponent at [n2+2], a scaled flag at [n2+3]). Frame f is
+ * added now; frames f+g when they are due (pending_frame), each the same
+ * sums, inverse FFT and additions at the same count as level_frame's: the
+ * results are bit for bit those of frames computed one by one.
+ */
+static void level_frames(ex_engine *s, size_t j, uint64_t f, size_t gn)
+{
+    fc__level *L = &s->lev[j];
+    size_t sz = L->s, n2 = 2 * sz, R = L->nseg, lim[FC_S_GROUP];
+    for (size_t g = 0; g < gn; g++)
+        lim[g] = f + g + 1 < R ? (size_t)(f + g + 1) : R;
+    double *Y = s->work + n2;
+    uint64_t o = f * sz + L->base;
+    block_spectra(s, L, f);
+    for (size_t g = 1; g < gn; g++) block_spectra_to(s, L, f + g, L->gsc[g - 1]);
+    /* xs[i]: block f-R+1+i, i < R+gn-1 */
+    const double *xs[FC_S_SEGS_MAX + FC_S_GROUP - 1];
+    double *dst[FC_S_GROUP];
+    const double *xp[FC_S_SEGS_MAX];
+    for (size_t c = 0; c < s->C; c++) {
+        size_t off = c * FC_S_XSLOT(n2);
+        for (size_t i = 0; i < R + gn - 1; i++) {
+            if (f + 1 + i < R) { /* no block (read by no frame) */
+                xs[i] = NULL;
+                continue;
+            }
+            uint64_t b = f + 1 + i - R;
+            xs[i] = (b <= f ? L->xspec[b % R] : L->gsc[b - f - 1]) + off;
+        }
+        dst[0] = Y;
+        for (size_t g = 1; g < gn; g++) dst[g] = L->xspec[(f + g) % R] + off;
+        int any = 0;
+        for (size_t g = 0; g < gn && !any; g++) {
+            for (size_t p = 0; p < lim[g]; p++) xp[p] = xs[R - 1 + g - p];
+            any = frame_scaled(L, xp, lim[g], n2);
+        }
+        if (!any) {
+            if (lim[0] == R)
+                fc__spec_dot_frames(L->plan, xs,
+                                    (const double *const *)L->kspec, R, gn, dst);
+            else
+                fc__spec_dot_frames_lim(L->plan, xs,
+                                        (const double *const *)L->kspec, R,
+                                        lim, gn, dst);
+            for (size_t g = 1; g < gn; g++) dst[g][n2 + 2] = dst[g][n2 + 3] = 0.0;
+            frame_add(s, L, f, c, Y, 0, 0, 0);
+            continue;
+        }
+        /* a scaled operand: the frames one by one, in their order */
+        int E0 = 0, sc0 = 0;
+        for (size_t g = 0; g < gn; g++) {
+            size_t np = lim[g];
+            for (size_t p = 0; p < np; p++) xp[p] = xs[R - 1 + g - p];
+            int sc = frame_scaled(L, xp, np, n2), E = 0;
+            if (!sc)
+                fc__spec_dot(L->plan, xp, (const double *const *)L->kspec, np,
+                             dst[g]);
+            else
+                E = scaled_dot(n2, xp, L, np, dst[g]);
+            if (g == 0) {
+                E0 = E;
+                sc0 = sc;
+            } else {
+                dst[g][n2 + 2] = (double)E;
+                dst[g][n2 + 3] = sc ? 1.0 : 0.0;
+            }
+        }
+        frame_add(s, L, f, c, Y, sc0, E0, 0);
+    }
+    for (size_t g = 1; g < gn; g++) {
+        double *q = L->xspec[(f + g) % R];
+        L->xspec[(f + g) % R] = L->gsc[g - 1];
+        L->gsc[g - 1] = q;
+    }
+    L->gf = f;
+    L->gn = gn;
+    if (o + n2 - 1 > s->acc_hi) s->acc_hi = o + n2 - 1;
+}
+
+/* Frame f of level j from the products level_frames left for it. */
+static void pending_frame(ex_engine *s, size_t j, uint64_t f)
+{
+    fc__level *L = &s->lev[j];
+    size_t n2 = 2 * L->s, g = (size_t)(f - L->gf);
+    const double *Yb = L->gsc[g - 1];
+    uint64_t o = f * L->s + L->base;
+    for (size_t c = 0; c < s->C; c++) {
+        const double *Y = Yb + c * FC_S_XSLOT(n2);
+        frame_add(s, L, f, c, Y, Y[n2 + 3] != 0.0, (int)Y[n2 + 2], 0);
+    }
+    if (g + 1 == L->gn) L->gn = 0;
+    if (o + n2 - 1 > s->acc_hi) s->acc_hi = o + n2 - 1;
+}
+
+/* Frame f of level j, due now: from a pending group, with the frames due
+   after it within the samples stored (s->gend), or alone. */
+static void frame_due(ex_engine *s, size_t j, uint64_t f)
+{
+    fc__level *L = &s->lev[j];
+    if (L->gn && f > L->gf && f - L->gf < L->gn) {
+        pending_frame(s, j, f);
+        return;
+    }
+    if (s->gend && L->gslots && L->made == L->nseg && s->gend >= L->delay) {
+        uint64_t last = (s->gend - L->delay) / L->s; /* the last frame due */
+        uint64_t gn = last >= f ? last - f + 1 : 0;
+        if (gn > L->gslots + 1) gn = L->gslots + 1;
+        if (gn >= 2) {
+            level_frames(s, j, f, (size_t)gn);
+            return;
+        }
+    }
+    level_frame(s, j, f, 0);
 }
 
 /* ------------------------------------------------------------ capacity */
@@ -557,7 +752,9 @@ static int ex_prepare(ex_engine *s, uint64_t n_end, int exact)
             free(nu);
             return FC_ERR_SIZE;
         }
-        na = malloc(bytes);
+        /* zeroed by calloc: fresh pages beyond what is ever reached are
+           then never touched */
+        na = calloc(1, bytes);
         if (!na) { free(nu); return FC_ERR_NOMEM; }
     }
     if (grow_w) {
@@ -607,15 +804,33 @@ static int ex_prepare(ex_engine *s, uint64_t n_end, int exact)
             }
             if (st == FC_OK) nl[j].made = nd.made[j];
             else nl[j].made = p; /* segments made so far at the failing level */
+            /* the ring complete: the slots for frames computed together */
+            if (st == FC_OK && nl[j].made == nl[j].nseg && nl[j].gslots == 0) {
+                size_t gs = lev_gslots(nl[j].nseg);
+                for (size_t q = 0; q < gs; q++) {
+                    if (!(nl[j].gsc[q] = malloc(xb))) {
+                        while (q--) {
+                            free(nl[j].gsc[q]);
+                            nl[j].gsc[q] = NULL;
+                        }
+                        st = FC_ERR_NOMEM;
+                        break;
+                    }
+                }
+                if (st == FC_OK) nl[j].gslots = gs;
+            }
         }
         if (st != FC_OK) {
             /* unwind: everything beyond what the stream owned */
             for (size_t i = 0; i < j; i++) {
                 size_t old = i < s->nlev ? s->lev[i].made : 0;
+                size_t gold = i < s->nlev ? s->lev[i].gslots : 0;
                 for (size_t q = old; q < nl[i].made; q++) {
                     free(nl[i].kspec[q]);
                     free(nl[i].xspec[q]);
                 }
+                if (gold == 0)
+                    for (size_t q = 0; q < nl[i].gslots; q++) free(nl[i].gsc[q]);
                 if (i >= s->nlev) fc__fft_free(nl[i].plan);
             }
             free(nu); free(na); free(nw);
@@ -642,7 +857,6 @@ static int ex_prepare(ex_engine *s, uint64_t n_end, int exact)
             double *d = na + c * nacap;
             if (live) memcpy(d, s->acc + c * s->acap + (s->n - s->abase),
                              (size_t)live * sizeof(double));
-            memset(d + live, 0, (nacap - (size_t)live) * sizeof(double));
         }
         free(s->acc);
         s->acc = na;
@@ -664,8 +878,9 @@ static int ex_prepare(ex_engine *s, uint64_t n_end, int exact)
 
 /* ------------------------------------------------------------ exact ops */
 
-/* One time step of every channel; capacity prepared, samples finite. */
-static int ex_step(ex_engine *s, const double *x, double *y)
+/* One time step of every channel; capacity prepared, samples finite; lv:
+   see ex_hist. */
+static int ex_step(ex_engine *s, const double *x, double *y, const double *lv)
 {
     double cv[FC__CORR_MAX];
     size_t C = s->C;
@@ -677,7 +892,7 @@ static int ex_step(ex_engine *s, const double *x, double *y)
        before anything changes */
     double *yt = s->tmp, *ut = s->tmp + C;
     for (size_t c = 0; c < C; c++) {
-        yt[c] = ex_y(s, c, x[c], cv, &ut[c]);
+        yt[c] = ex_y(s, c, x[c], cv, lv, &ut[c]);
         if (!isfinite(yt[c]) || !isfinite(ut[c])) return FC_ERR_RANGE;
     }
     /* channel c reads x[c] before y[c] is written: y may be x (in place) */
@@ -694,7 +909,7 @@ static int ex_step(ex_engine *s, const double *x, double *y)
         for (size_t j = 0; j < s->nlev; j++) {
             const fc__level *L = &s->lev[j];
             if (n % L->s || n < L->delay) break; /* the same for larger j */
-            level_frame(s, j, (n - L->delay) / L->s, 0);
+            frame_due(s, j, (n - L->delay) / L->s);
         }
     }
     return FC_OK;
@@ -752,7 +967,7 @@ static int ex_preview(ex_engine *s, const double *x, double *y)
     if (st != FC_OK) return st;
     double *yt = s->tmp, *ut = s->tmp + s->C;
     for (size_t c = 0; c < s->C; c++) {
-        yt[c] = ex_y(s, c, x[c], cv, &ut[c]);
+        yt[c] = ex_y(s, c, x[c], cv, NULL, &ut[c]);
         if (!isfinite(yt[c]) || !isfinite(ut[c])) return FC_ERR_RANGE;
     }
     memcpy(y, yt, s->C * sizeof(double)); /* memmove semantics not needed: y == x or apart */
@@ -765,7 +980,7 @@ static int ex_history(ex_engine *s, double *h)
     int st = corr_values(s, s->n, cv);
     if (st != FC_OK) return st;
     for (size_t c = 0; c < s->C; c++) {
-        s->tmp[c] = ex_hist(s, c, cv);
+        s->tmp[c] = ex_hist(s, c, cv, NULL);
         if (!isfinite(s->tmp[c])) return FC_ERR_RANGE;
     }
     memcpy(h, s->tmp, s->C * sizeof(double));
@@ -828,15 +1043,46 @@ static int ex_push_block(ex_engine *s, const double *x, size_t count,
         memcpy(s->tmp + 3 * C, s->xcol, XR(s) * C * sizeof(double));
     }
     uint64_t n0 = s->n, hi0 = s->acc_hi;
+    if (!stage && count > 1) {
+        /* no step can fail: u of the whole block first (what ex_step
+           stores), so that frames due within the block can be computed
+           together (frame_due) */
+        for (size_t c = 0; c < C; c++) {
+            double *uc = urow(s, c) + n0;
+            if (!s->diffs) {
+                for (size_t t = 0; t < count; t++) uc[t] = x[t * C + c];
+            } else {
+                uc[0] = n0 == 0 ? 0.0 : x[c] - s->xprev[c];
+                for (size_t t = 1; t < count; t++)
+                    uc[t] = x[t * C + c] - x[(t - 1) * C + c];
+            }
+        }
+        s->gend = n_end;
+    }
     for (size_t t = 0; t < count; t++) {
-        st = ex_step(s, x + t * C, yb + t * C);
+        const double *lv = NULL;
+        if (s->gend) {
+            /* the leaf terms of the next outputs, all u before them stored */
+            size_t i = t % FC_S_BLOCK0;
+            if (i == 0) {
+                size_t T = count - t < FC_S_BLOCK0 ? count - t : FC_S_BLOCK0;
+                for (size_t c = 0; c < C; c++)
+                    s->leafv(s->leafk, urow(s, c) + n0 + t - s->leaf, s->leaf,
+                             T, s->lbuf + c * FC_S_BLOCK0);
+            }
+            lv = s->lbuf + i;
+        }
+        st = ex_step(s, x + t * C, yb + t * C, lv);
         if (st != FC_OK) { /* FC_ERR_RANGE: an output beyond the double range */
+            s->gend = 0;
+            for (size_t j = 0; j < s->nlev; j++) s->lev[j].gn = 0;
             if (t > 0) ex_rollback(s, n0, hi0);
             s->umax = umax0;
             free(stage);
             return st;
         }
     }
+    s->gend = 0;
     if (stage) {
         memcpy(y, stage, tot * sizeof(double));
         free(stage);
@@ -852,6 +1098,8 @@ static void ex_reset(ex_engine *s)
     s->n = 0;
     s->prep_n = 0; /* capacities are rechecked (the accumulator base moved) */
     s->umax = 0.0;
+    s->gend = 0;
+    for (size_t j = 0; j < s->nlev; j++) s->lev[j].gn = 0;
     if (s->xprev) memset(s->xprev, 0, s->C * sizeof(double));
     if (s->xcol) memset(s->xcol, 0, XR(s) * s->C * sizeof(double));
 }
@@ -863,11 +1111,13 @@ static size_t ex_nbytes(const ex_engine *s)
     b += s->C * s->acap * sizeof(double);
     b += s->wcap ? (4 * s->wcap + 2) * sizeof(double) : 0;
     b += s->klen * sizeof(double);
-    b += (4 + 2 * XR(s)) * s->C * sizeof(double) + s->leaf * sizeof(double) +
+    b += (4 + 2 * XR(s) + FC_S_BLOCK0) * s->C * sizeof(double) +
+         s->leaf * sizeof(double) +
          FC_S_MAXLEV * sizeof(fc__level) + s->ncorr * FC_S_CORR * sizeof(double);
     for (size_t j = 0; j < s->nlev; j++)
         b += s->lev[j].made * ((2 * s->lev[j].s + 2) +
                                 s->C * FC_S_XSLOT(2 * s->lev[j].s)) * sizeof(double) +
+             s->lev[j].gslots * s->C * FC_S_XSLOT(2 * s->lev[j].s) * sizeof(double) +
              fc__fft_nbytes(s->lev[j].plan);
     return b;
 }
@@ -888,6 +1138,7 @@ static void ex_free(ex_engine *s)
     free(s->corr);
     free(s->tmp);
     free(s->leafk);
+    free(s->lbuf);
     free(s->work);
     free(s);
 }
@@ -999,9 +1250,12 @@ static int ex_init(ex_engine *s, size_t leaf, size_t segs)
     s->xcol = calloc(C, XR(s) * sizeof(double));
     s->tmp = calloc(C, (3 + XR(s)) * sizeof(double));
     s->lev = calloc(FC_S_MAXLEV, sizeof(fc__level));
+    s->lbuf = calloc(C, FC_S_BLOCK0 * sizeof(double));
+    s->leafv = fc__leaf_dots_kernel();
     if (s->ncorr && !(s->corr = calloc(s->ncorr, FC_S_CORR * sizeof(double))))
         return FC_ERR_NOMEM;
-    if (!s->xprev || !s->xcol || !s->tmp || !s->lev) return FC_ERR_NOMEM;
+    if (!s->xprev || !s->xcol || !s->tmp || !s->lev || !s->lbuf)
+        return FC_ERR_NOMEM;
     if (leaf == 0 && (st = ex_geometry(s, &leaf, &segs)) != FC_OK) return st;
     if (!(s->leafk = malloc(leaf * sizeof(double)))) return FC_ERR_NOMEM;
     s->leaf = leaf;
@@ -1154,13 +1408,15 @@ static int finite_le(const unsigned char *p, size_t count)
    come out bit for bit (the engine's state depends only on the samples). */
 static void ex_replay(ex_engine *s, uint64_t n)
 {
+    s->gend = n; /* the whole history is stored: frames may go together */
     for (uint64_t m = FC_S_BLOCK0; m <= n; m += FC_S_BLOCK0) {
         for (size_t j = 0; j < s->nlev; j++) {
             const fc__level *L = &s->lev[j];
             if (m % L->s || m < L->delay) break;
-            level_frame(s, j, (m - L->delay) / L->s, 0);
+            frame_due(s, j, (m - L->delay) / L->s);
         }
     }
+    s->gend = 0;
 }
 
 /* A new engine for d with geometry (leaf, segs) (leaf 0: the one its
@@ -1386,7 +1642,7 @@ static int op_push1(void *eng, double x, double *y)
     ex_engine *s = eng;
     int st = FC_OK;
     if (s->n + 1 > s->prep_n) st = ex_prepare(s, s->n + 1, 0);
-    if (st == FC_OK) st = ex_step(s, &x, y);
+    if (st == FC_OK) st = ex_step(s, &x, y, NULL);
     return st;
 }
 static int op_preview(void *eng, const double *x, double *y)

@@ -18,9 +18,9 @@ figures):
   :data:`MAP_BUDGET` bytes processed. Outputs are within the stream's
   stated tolerance of the exact ones (see :class:`pyfracconv.Stream`).
 - ``mode="exact"``: the exact stream keeps the whole history, about
-  64-70 bytes per sample and column (45 with several columns), reserved
+  68-76 bytes per sample and column (47-52 with several columns), reserved
   before the first chunk: a record of n samples and c columns needs about
-  ``70 * n * c`` bytes plus the chunk buffers. A record whose estimate
+  ``76 * n * c`` bytes plus the chunk buffers. A record whose estimate
   exceeds the machine's memory is refused with
   :class:`pyfracconv.OutOfMemory` before anything is written.
 
@@ -67,9 +67,10 @@ MAP_BUDGET = 16 * 2**20
 #: Rows per chunk by default: 2**18 values (2 MiB) per chunk buffer.
 CHUNK_VALUES = 2**18
 #: Bytes per sample and column an exact stream holds (the largest measured
-#: by ``bench/stream_memory.py`` and by ``Stream.reserve``: 64-70 B with one
-#: column), the estimate checked against the machine's memory.
-EXACT_BYTES_PER_SAMPLE = 72
+#: by ``bench/stream_memory.py`` and by ``Stream.reserve``: 68-76 B with one
+#: column from 1e5 to 1e7 samples, 2026-12-03), the estimate checked
+#: against the machine's memory.
+EXACT_BYTES_PER_SAMPLE = 76
 
 _OPS = ("integral", "derivative")
 
