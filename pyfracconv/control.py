@@ -452,7 +452,7 @@ class Controller:
 
         Raises
         ------
-        ArgumentError, SampleError
+        SampleError
             output not finite (the controller is unchanged).
         InputTypeError
             output not a real number.
