@@ -622,27 +622,127 @@ class TimedStream:
 
     @property
     def count(self) -> int:
-        """Samples pushed (per channel) since creation or the last reset."""
+        """Samples pushed (per channel) since creation or the last reset.
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        push, reset
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> _ = s.push_many([0.0, 0.1, 0.5], [1.0, 1.0, 1.0])
+        >>> s.count
+        3
+        """
         return int(self._query(lib.fc_stream_count, "uint64_t *"))
 
     @property
     def terms(self) -> int:
-        """The number K of exponential terms."""
+        """The number K of exponential terms.
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        tol, horizon, nbytes
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.terms > 0
+        True
+        """
         return int(self._query(lib.fc_stream_terms, "size_t *"))
 
     @property
     def nbytes(self) -> int:
-        """Bytes of memory the C stream holds (fixed at creation)."""
+        """Bytes of memory the C stream holds (fixed at creation).
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        terms
+
+        Examples
+        --------
+        The memory stays bounded (the point of compression, common practice):
+
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> before = s.nbytes
+        >>> _ = s.push_many([0.02 * k for k in range(50)], [1.0] * 50)
+        >>> s.nbytes == before
+        True
+        """
         return int(self._query(lib.fc_stream_nbytes, "size_t *"))
 
     @property
     def past_horizon(self) -> bool:
-        """True once an output past the horizon was produced."""
+        """True once an output past the horizon was produced.
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        horizon, horizon_policy
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.horizon_policy = "continue"
+        >>> _ = s.push_many([0.0, 1.0], [1.0, 1.0])
+        >>> s.past_horizon
+        False
+        >>> _ = s.push(1.5, 1.0)           # 1.5 after the first time: past 1.0
+        >>> s.past_horizon
+        True
+        """
         return bool(self._query(lib.fc_stream_past_horizon, "int *"))
 
     @property
     def horizon_policy(self) -> str:
-        """'refuse' or 'continue' (a setting, not saved)."""
+        """'refuse' or 'continue' (a setting, not saved).
+
+        Raises
+        ------
+        ArgumentError
+            Setting a name other than 'refuse' or 'continue' (unchanged).
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        past_horizon, horizon
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.horizon_policy
+        'refuse'
+        >>> s.horizon_policy = "continue"
+        >>> s.horizon_policy
+        'continue'
+        """
         p = int(self._query(lib.fc_stream_horizon_policy, "int *"))
         return "refuse" if p == lib.FC_HORIZON_REFUSE else "continue"
 
@@ -658,26 +758,106 @@ class TimedStream:
 
     @property
     def rule(self) -> str:
+        """The rule: 'rectangle', 'trapezoid' or 'l1'.
+
+        See Also
+        --------
+        order, min_step
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.rule
+        'trapezoid'
+        """
         return self._rule
 
     @property
     def order(self) -> float:
+        """The order a.
+
+        See Also
+        --------
+        rule
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.order
+        0.5
+        """
         return self._order
 
     @property
     def min_step(self) -> float:
+        """The smallest step t_n - t_{n-1} a push may make.
+
+        See Also
+        --------
+        push, horizon
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.min_step
+        0.01
+        """
         return self._min_step
 
     @property
     def tol(self) -> float:
+        """The tolerance of the promise.
+
+        See Also
+        --------
+        terms, horizon
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.tol
+        1e-10
+        """
         return self._tol
 
     @property
     def horizon(self) -> float:
+        """The time span t_n - t_0 the promise covers.
+
+        See Also
+        --------
+        past_horizon, horizon_policy, tol
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.horizon
+        1.0
+        """
         return self._horizon
 
     @property
     def channels(self) -> Optional[int]:
+        """None for a scalar stream, else the number of channels.
+
+        See Also
+        --------
+        push, push_many
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.channels is None
+        True
+        >>> pyfracconv.TimedStream(0.5, 0.01, 1.0, channels=3).channels
+        3
+        """
         return None if self._scalar else self._C
 
     def __repr__(self) -> str:
