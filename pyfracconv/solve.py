@@ -449,18 +449,63 @@ class Stepper:
 
     @property
     def t(self):
-        """Current time t0 + steps * step."""
+        """Current time t0 + steps * step.
+
+        See Also
+        --------
+        y, steps
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(3)
+        >>> s.t
+        1.5
+        """
         return float(self._get(lib.fc_solver_time, "double *"))
 
     @property
     def y(self):
-        """Current state (a float, or a copy of shape (m,))."""
+        """Current state (a float, or a copy of shape (m,)).
+
+        See Also
+        --------
+        t, advance
+
+        Examples
+        --------
+        At order 1 the rectangle method is explicit Euler: y_n = (1 - h)^n
+        (common practice).
+
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(3)
+        >>> s.y == 0.5**3
+        True
+        >>> pyfracconv.Stepper(lambda t, y: -y, [1.0, 2.0], 0.5, 0.1).y
+        array([1., 2.])
+        """
         out = np.empty(self._m)
         raise_for_status(lib.fc_solver_state(self._s, ffi.from_buffer("double[]", out)), "y")
         return float(out[0]) if self._scalar else out
 
     @property
     def steps(self):
+        """Steps taken since t0.
+
+        See Also
+        --------
+        t, advance, step
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(3)
+        >>> s.steps
+        3
+        """
         return int(self._get(lib.fc_solver_steps, "uint64_t *"))
 
     def _counts(self):
@@ -471,23 +516,100 @@ class Stepper:
 
     @property
     def rhs_evals(self):
+        """Calls of the right-hand side so far.
+
+        See Also
+        --------
+        jac_evals, steps
+
+        Examples
+        --------
+        The predictor-corrector with one correction evaluates the right-hand
+        side twice a step (predict, evaluate, correct, evaluate: common
+        practice), after one evaluation at t0:
+
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 0.5, 0.1)
+        >>> _ = s.advance(3)
+        >>> s.rhs_evals
+        7
+        """
         return self._counts()[0]
 
     @property
     def jac_evals(self):
+        """Calls of the Jacobian so far (implicit methods with ``jacobian``;
+        0 otherwise).
+
+        See Also
+        --------
+        rhs_evals
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 0.5, 0.1, method="trapezoid",
+        ...                        jacobian=lambda t, y: -1.0)
+        >>> _ = s.advance(3)
+        >>> s.jac_evals
+        3
+        >>> pyfracconv.Stepper(lambda t, y: -y, 1.0, 0.5, 0.1).jac_evals
+        0
+        """
         return self._counts()[1]
 
     @property
     def nbytes(self):
-        """Bytes of memory the solver holds (its streams included)."""
+        """Bytes of memory the solver holds (its streams included).
+
+        See Also
+        --------
+        memory
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(3)
+        >>> s.nbytes > 0
+        True
+        """
         return int(self._get(lib.fc_solver_nbytes, "size_t *"))
 
     @property
     def method(self):
+        """The method name.
+
+        See Also
+        --------
+        memory
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(3)
+        >>> s.method
+        'rectangle'
+        """
         return self._method
 
     @property
     def memory(self):
+        """'exact' or 'compressed'.
+
+        See Also
+        --------
+        method, nbytes
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(3)
+        >>> s.memory
+        'exact'
+        """
         return self._memory
 
     def __repr__(self):
