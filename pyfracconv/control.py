@@ -570,28 +570,114 @@ class Controller:
 
     @property
     def limited(self):
-        """True if the last output was limited (output or rate limit)."""
+        """True if the last output was limited (output or rate limit).
+
+        See Also
+        --------
+        terms, update
+
+        Examples
+        --------
+        A proportional controller gives Kp (r - y), clamped to the limits
+        (common practice):
+
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1, output_limits=(-1.0, 1.0))
+        >>> c.update(1.0, 0.75), c.limited
+        (0.5, False)
+        >>> c.update(1.0, 0.0), c.limited
+        (1.0, True)
+        """
         return bool(self._status() & lib.FC_CTRL_LIMITED)
 
     @property
     def past_horizon(self):
-        """True once a compressed stream has passed its horizon."""
+        """True once a compressed stream has passed its horizon.
+
+        See Also
+        --------
+        HorizonWarning, params
+
+        Examples
+        --------
+        The controller keeps running past the horizon (stopping a controller
+        mid-run is the greater hazard) and warns once:
+
+        >>> import warnings
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(0.0, 1.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=1.0, horizon=3)
+        >>> with warnings.catch_warnings(record=True) as caught:
+        ...     warnings.simplefilter("always")
+        ...     flags = [(c.update(1.0, 0.0), c.past_horizon)[1] for _ in range(5)]
+        >>> flags, [w.category.__name__ for w in caught]
+        ([False, False, False, False, True], ['HorizonWarning'])
+        """
         return bool(self._status() & lib.FC_CTRL_PAST_HORIZON)
 
     @property
     def mode(self):
-        """'manual' or 'automatic'."""
+        """'manual' or 'automatic'.
+
+        See Also
+        --------
+        manual, automatic
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1, output_limits=(-1.0, 1.0))
+        >>> c.mode
+        'automatic'
+        >>> c.manual(0.0)
+        >>> c.mode
+        'manual'
+        """
         return "manual" if self._status() & lib.FC_CTRL_MANUAL else "automatic"
 
     @property
     def count(self):
+        """Samples taken since creation or the last reset.
+
+        See Also
+        --------
+        reset, update
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1, output_limits=(-1.0, 1.0))
+        >>> _ = c.update_block(1.0, [0.0, 0.5, 1.0])
+        >>> c.count
+        3
+        """
         n = ffi.new("uint64_t *")
         raise_for_status(lib.fc_controller_count(self._c, n), "count")
         return int(n[0])
 
     @property
     def nbytes(self):
-        """Bytes of memory held (streams included)."""
+        """Bytes of memory held (streams included).
+
+        See Also
+        --------
+        params
+
+        Examples
+        --------
+        Compressed memory stays bounded (common practice):
+
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(1.0, 0.5, 0.1, integral_order=0.5,
+        ...                           derivative_order=0.5, step=0.01)
+        >>> before = c.nbytes
+        >>> _ = c.update_block(1.0, [0.0] * 100)
+        >>> c.nbytes == before
+        True
+        """
         n = ffi.new("size_t *")
         raise_for_status(lib.fc_controller_nbytes(self._c, n), "nbytes")
         return int(n[0])
@@ -599,7 +685,22 @@ class Controller:
     @property
     def terms(self):
         """The last update's terms: proportional, integral (Ki times the
-        integral), derivative (filtered), bias, unlimited sum, output."""
+        integral), derivative (filtered), bias, unlimited sum, output.
+
+        See Also
+        --------
+        limited, update
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1, output_limits=(-1.0, 1.0))
+        >>> _ = c.update(1.0, 0.0)
+        >>> t = c.terms
+        >>> t["proportional"], t["unlimited"], t["output"]
+        (2.0, 2.0, 1.0)
+        """
         t = ffi.new("double[6]")
         raise_for_status(lib.fc_controller_terms(self._c, t), "terms")
         return dict(zip(("proportional", "integral", "derivative", "bias",
@@ -607,7 +708,23 @@ class Controller:
 
     @property
     def params(self):
-        """The parameters as keyword arguments of the constructor."""
+        """The parameters as keyword arguments of the constructor.
+
+        See Also
+        --------
+        Controller, export_controller_c
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1, output_limits=(-1.0, 1.0))
+        >>> p = c.params
+        >>> p["kp"], p["output_limits"], p["memory"], p["integral_rule"]
+        (2.0, (-1.0, 1.0), 'compressed', 'trapezoid')
+        >>> pyfracconv.Controller(**p).params == p
+        True
+        """
         p = ffi.new("fc_controller_params *")
         raise_for_status(lib.fc_controller_get_params(self._c, p), "params")
         mem = _MEMORY_NAMES[p.memory]
