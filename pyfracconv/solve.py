@@ -819,8 +819,8 @@ class Stepper:
         Examples
         --------
         A loaded stepper resumes bit for bit (Caputo D^0.5 y = -y, whose
-        solution is E_{1/2}(-sqrt t) = exp(t) erfc(sqrt t): Kilbas,
-        Mainardi and Rogosin 2014, docs/references.md):
+        solution is E_{1/2}(-sqrt t) = exp(t) erfc(sqrt t): Gorenflo,
+        Kilbas, Mainardi and Rogosin 2014, docs/references.md):
 
         >>> import math
         >>> import numpy as np
@@ -1161,8 +1161,8 @@ def solve(rhs, y0, order, step=None, n_steps=None, *, t=None, dy0=None, t0=None,
     Examples
     --------
     D^a y = -y, y(0) = 1 has the solution E_a(-t^a): at a = 1 exp(-t), at
-    a = 1/2 exp(t) erfc(sqrt t) (Kilbas, Mainardi and Rogosin 2014,
-    docs/references.md):
+    a = 1/2 exp(t) erfc(sqrt t) (Gorenflo, Kilbas, Mainardi and Rogosin
+    2014, docs/references.md):
 
     >>> import math
     >>> import pyfracconv
