@@ -256,7 +256,66 @@ class Controller:
 
     # ------------------------------------------------------------ public
     def update(self, setpoint, measurement):
-        """One sample: the output for this setpoint and measurement."""
+        """One sample: the output for this setpoint and measurement.
+
+        Parameters
+        ----------
+        setpoint : float
+            The setpoint r of this sample (finite).
+        measurement : float
+            The measured output y of the plant at this sample (finite).
+
+        Returns
+        -------
+        float
+            The controller output u, within the output and rate limits (in
+            manual mode the manual output).
+
+        Raises
+        ------
+        SampleError
+            setpoint or measurement NaN or infinite (the controller is
+            unchanged).
+        InputTypeError
+            setpoint or measurement not a real number.
+        BusyError
+            Another thread is using the controller.
+
+        Warns
+        -----
+        HorizonWarning
+            Once, when compressed memory passes its horizon (the controller
+            keeps running; the tolerance is no longer promised).
+
+        See Also
+        --------
+        update_block : many samples at once.
+        manual, automatic, reset
+
+        Notes
+        -----
+        SAFETY: as for the class: validate in simulation and on the plant,
+        keep actuator and rate limits in the hardware too, keep an
+        independent safe stop, follow local codes and licensed practice.
+
+        Examples
+        --------
+        With kp = 0, ki = 1 and integral order 1 under the rectangle rule
+        the output is Ki times the left rectangle sum of the errors (common
+        practice): h, 2h, ... after a first 0 for a constant error 1:
+
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(0.0, 1.0, integral_order=1.0, derivative_order=0.5,
+        ...                           step=0.5, integral_rule="rectangle", memory="exact")
+        >>> [c.update(1.0, 0.0) for _ in range(4)]
+        [0.0, 0.5, 1.0, 1.5]
+        >>> c.update(float("nan"), 0.0)
+        Traceback (most recent call last):
+        ...
+        pyfracconv._errors.SampleError: ...
+        >>> c.count
+        4
+        """
         if not self._lock.acquire():
             raise self._busy("update")
         try:
@@ -278,7 +337,60 @@ class Controller:
     def update_block(self, setpoints, measurements):
         """Outputs for a block of samples (arrays of one length, or a scalar
         broadcast against an array); the same values as calling
-        :meth:`update` for each sample in turn."""
+        :meth:`update` for each sample in turn.
+
+        Parameters
+        ----------
+        setpoints : array_like
+            The setpoints, one per sample (or a scalar for all).
+        measurements : array_like
+            The measurements, one per sample (or a scalar for all).
+
+        Returns
+        -------
+        numpy.ndarray
+            The outputs, one per sample.
+
+        Raises
+        ------
+        ArgumentError
+            The shapes do not broadcast.
+        SampleError
+            A NaN or infinite sample (the message names it; the controller
+            is unchanged).
+        InputTypeError
+            Not numeric.
+        BusyError
+            Another thread is using the controller.
+
+        Warns
+        -----
+        HorizonWarning
+            As for :meth:`update`.
+
+        See Also
+        --------
+        update
+
+        Notes
+        -----
+        SAFETY: as for the class: validate in simulation and on the plant,
+        keep actuator and rate limits in the hardware too, keep an
+        independent safe stop, follow local codes and licensed practice.
+
+        Examples
+        --------
+        A proportional controller gives Kp (r - y), clamped to the output
+        limits (common practice):
+
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1, output_limits=(-1.0, 1.0))
+        >>> c.update_block(1.0, [0.75, 0.5, 0.0, 2.0])
+        array([ 0.5,  1. ,  1. , -1. ])
+        >>> c.limited
+        True
+        """
         if not self._lock.acquire():
             raise self._busy("update_block")
         try:
@@ -327,17 +439,127 @@ class Controller:
     def manual(self, output):
         """Switch to manual mode with this output (updates then return it,
         clamped to the limits, while the controller tracks it for a bumpless
-        return to automatic). Call again to change the manual output."""
+        return to automatic). Call again to change the manual output.
+
+        Parameters
+        ----------
+        output : float
+            The manual output (finite; clamped to the output limits).
+
+        Returns
+        -------
+        None
+
+        Raises
+        ------
+        SampleError
+            output not finite (the controller is unchanged).
+        InputTypeError
+            output not a real number.
+        BusyError
+            Another thread is using the controller.
+
+        See Also
+        --------
+        automatic, mode
+
+        Notes
+        -----
+        SAFETY: as for the class: validate in simulation and on the plant,
+        keep actuator and rate limits in the hardware too, keep an
+        independent safe stop, follow local codes and licensed practice.
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1, output_limits=(-1.0, 1.0))
+        >>> c.manual(5.0)
+        >>> c.mode, c.update(1.0, 0.0)      # clamped to the upper limit
+        ('manual', 1.0)
+        """
         v = check_real("output", output)
         self._check(self._guarded("manual", lib.fc_controller_set_manual, v),
                     f"manual({show(output)})")
 
     def automatic(self):
-        """Switch to automatic mode (bumpless: the tracking bias is held)."""
+        """Switch to automatic mode (bumpless: the tracking bias is held).
+
+        Returns
+        -------
+        None
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the controller.
+
+        See Also
+        --------
+        manual, mode
+
+        Notes
+        -----
+        SAFETY: as for the class: validate in simulation and on the plant,
+        keep actuator and rate limits in the hardware too, keep an
+        independent safe stop, follow local codes and licensed practice.
+
+        Examples
+        --------
+        Bumpless transfer (common practice): with the error unchanged, the
+        first automatic output equals the last manual one; here a
+        proportional controller, Kp = 2, tracked the manual output 1 at
+        error 1 (bias -1), so error 0.5 then gives 0:
+
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1)
+        >>> c.manual(1.0)
+        >>> c.update(1.0, 0.0)
+        1.0
+        >>> c.automatic()
+        >>> c.mode, c.update(1.0, 0.0), c.update(1.0, 0.5)
+        ('automatic', 1.0, 0.0)
+        """
         self._check(self._guarded("automatic", lib.fc_controller_set_auto), "automatic()")
 
     def reset(self):
-        """Forget every sample, bias 0, automatic mode."""
+        """Forget every sample, bias 0, automatic mode.
+
+        Returns
+        -------
+        None
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the controller (nothing is forgotten).
+
+        See Also
+        --------
+        count, automatic
+
+        Notes
+        -----
+        SAFETY: as for the class: validate in simulation and on the plant,
+        keep actuator and rate limits in the hardware too, keep an
+        independent safe stop, follow local codes and licensed practice.
+
+        Examples
+        --------
+        After a reset the integral starts again from 0 (the left rectangle
+        sum at order 1, common practice):
+
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(0.0, 1.0, integral_order=1.0, derivative_order=0.5,
+        ...                           step=0.5, integral_rule="rectangle", memory="exact")
+        >>> c.manual(3.0)
+        >>> [c.update(1.0, 0.0) for _ in range(2)]
+        [3.0, 3.0]
+        >>> c.reset()
+        >>> c.count, c.mode, [c.update(1.0, 0.0) for _ in range(3)]
+        (0, 'automatic', [0.0, 0.5, 1.0])
+        """
         self._check(self._guarded("reset", lib.fc_controller_reset), "reset()")
         self._warned = False
 
@@ -348,28 +570,114 @@ class Controller:
 
     @property
     def limited(self):
-        """True if the last output was limited (output or rate limit)."""
+        """True if the last output was limited (output or rate limit).
+
+        See Also
+        --------
+        terms, update
+
+        Examples
+        --------
+        A proportional controller gives Kp (r - y), clamped to the limits
+        (common practice):
+
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1, output_limits=(-1.0, 1.0))
+        >>> c.update(1.0, 0.75), c.limited
+        (0.5, False)
+        >>> c.update(1.0, 0.0), c.limited
+        (1.0, True)
+        """
         return bool(self._status() & lib.FC_CTRL_LIMITED)
 
     @property
     def past_horizon(self):
-        """True once a compressed stream has passed its horizon."""
+        """True once a compressed stream has passed its horizon.
+
+        See Also
+        --------
+        HorizonWarning, params
+
+        Examples
+        --------
+        The controller keeps running past the horizon (stopping a controller
+        mid-run is the greater hazard) and warns once:
+
+        >>> import warnings
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(0.0, 1.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=1.0, horizon=3)
+        >>> with warnings.catch_warnings(record=True) as caught:
+        ...     warnings.simplefilter("always")
+        ...     flags = [(c.update(1.0, 0.0), c.past_horizon)[1] for _ in range(5)]
+        >>> flags, [w.category.__name__ for w in caught]
+        ([False, False, False, False, True], ['HorizonWarning'])
+        """
         return bool(self._status() & lib.FC_CTRL_PAST_HORIZON)
 
     @property
     def mode(self):
-        """'manual' or 'automatic'."""
+        """'manual' or 'automatic'.
+
+        See Also
+        --------
+        manual, automatic
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1, output_limits=(-1.0, 1.0))
+        >>> c.mode
+        'automatic'
+        >>> c.manual(0.0)
+        >>> c.mode
+        'manual'
+        """
         return "manual" if self._status() & lib.FC_CTRL_MANUAL else "automatic"
 
     @property
     def count(self):
+        """Samples taken since creation or the last reset.
+
+        See Also
+        --------
+        reset, update
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1, output_limits=(-1.0, 1.0))
+        >>> _ = c.update_block(1.0, [0.0, 0.5, 1.0])
+        >>> c.count
+        3
+        """
         n = ffi.new("uint64_t *")
         raise_for_status(lib.fc_controller_count(self._c, n), "count")
         return int(n[0])
 
     @property
     def nbytes(self):
-        """Bytes of memory held (streams included)."""
+        """Bytes of memory held (streams included).
+
+        See Also
+        --------
+        params
+
+        Examples
+        --------
+        Compressed memory stays bounded (common practice):
+
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(1.0, 0.5, 0.1, integral_order=0.5,
+        ...                           derivative_order=0.5, step=0.01)
+        >>> before = c.nbytes
+        >>> _ = c.update_block(1.0, [0.0] * 100)
+        >>> c.nbytes == before
+        True
+        """
         n = ffi.new("size_t *")
         raise_for_status(lib.fc_controller_nbytes(self._c, n), "nbytes")
         return int(n[0])
@@ -377,7 +685,22 @@ class Controller:
     @property
     def terms(self):
         """The last update's terms: proportional, integral (Ki times the
-        integral), derivative (filtered), bias, unlimited sum, output."""
+        integral), derivative (filtered), bias, unlimited sum, output.
+
+        See Also
+        --------
+        limited, update
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1, output_limits=(-1.0, 1.0))
+        >>> _ = c.update(1.0, 0.0)
+        >>> t = c.terms
+        >>> t["proportional"], t["unlimited"], t["output"]
+        (2.0, 2.0, 1.0)
+        """
         t = ffi.new("double[6]")
         raise_for_status(lib.fc_controller_terms(self._c, t), "terms")
         return dict(zip(("proportional", "integral", "derivative", "bias",
@@ -385,7 +708,23 @@ class Controller:
 
     @property
     def params(self):
-        """The parameters as keyword arguments of the constructor."""
+        """The parameters as keyword arguments of the constructor.
+
+        See Also
+        --------
+        Controller, export_controller_c
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(2.0, integral_order=0.5, derivative_order=0.5,
+        ...                           step=0.1, output_limits=(-1.0, 1.0))
+        >>> p = c.params
+        >>> p["kp"], p["output_limits"], p["memory"], p["integral_rule"]
+        (2.0, (-1.0, 1.0), 'compressed', 'trapezoid')
+        >>> pyfracconv.Controller(**p).params == p
+        True
+        """
         p = ffi.new("fc_controller_params *")
         raise_for_status(lib.fc_controller_get_params(self._c, p), "params")
         mem = _MEMORY_NAMES[p.memory]
@@ -404,7 +743,35 @@ class Controller:
 
     def save(self):
         """The whole state as bytes (versioned, checksummed); see
-        :meth:`load`."""
+        :meth:`load`.
+
+        Returns
+        -------
+        bytes
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the controller.
+        OutOfMemory
+            The bytes cannot be allocated.
+
+        See Also
+        --------
+        load, save_file
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(1.0, 0.5, 0.1, integral_order=0.5,
+        ...                           derivative_order=0.5, step=0.01)
+        >>> y = np.sin(0.05 * np.arange(40))   # an invented test record
+        >>> _ = c.update_block(1.0, y[:20])
+        >>> r = pyfracconv.Controller.load(c.save())
+        >>> bool(np.array_equal(r.update_block(1.0, y[20:]), c.update_block(1.0, y[20:])))
+        True
+        """
         if not self._lock.acquire():
             raise self._busy("save")
         try:
@@ -422,7 +789,49 @@ class Controller:
         """A controller from :meth:`save` bytes. The data are untrusted
         input: every field is bounded and cross-checked and the embedded
         streams are rebuilt and compared (StateError otherwise). The loaded
-        controller continues exactly, bit for bit, as the saved one would."""
+        controller continues exactly, bit for bit, as the saved one would.
+
+        Parameters
+        ----------
+        data : bytes-like
+            What :meth:`save` returned.
+
+        Returns
+        -------
+        Controller
+
+        Raises
+        ------
+        InputTypeError
+            data is not bytes-like.
+        StateError
+            data truncated, corrupted, forged, or of another format.
+        OutOfMemory
+            The controller cannot be allocated.
+
+        See Also
+        --------
+        save, load_file
+
+        Notes
+        -----
+        SAFETY: as for the class: validate in simulation and on the plant,
+        keep actuator and rate limits in the hardware too, keep an
+        independent safe stop, follow local codes and licensed practice.
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(1.0, 0.5, integral_order=0.5,
+        ...                           derivative_order=0.5, step=0.01)
+        >>> r = pyfracconv.Controller.load(c.save())
+        >>> r.params == c.params
+        True
+        >>> pyfracconv.Controller.load(c.save()[:-1])
+        Traceback (most recent call last):
+        ...
+        pyfracconv._errors.StateError: ...
+        """
         if not isinstance(data, (bytes, bytearray, memoryview)):
             raise InputTypeError(f"data: expected bytes, got {type(data).__name__}")
         b = bytes(data)
@@ -441,11 +850,46 @@ class Controller:
         of the C library's ``fc_controller_save_file``: either side reads
         the other's files.
 
+        Parameters
+        ----------
+        path : str, bytes or os.PathLike
+            The checkpoint file; its directory must exist.
+
+        Returns
+        -------
+        None
+
         Raises
         ------
         FileError
             The file could not be written; the old file (if any) and the
             controller are unchanged.
+        ArgumentError, InputTypeError
+            path is empty, ends in '/', contains NUL or is not a path.
+        BusyError
+            Another thread is using the controller.
+
+        See Also
+        --------
+        load_file, save
+
+        Examples
+        --------
+        At integral order 1 under the rectangle rule the integral action is
+        the left rectangle sum (common practice), across a file:
+
+        >>> import os, tempfile
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(0.0, 1.0, integral_order=1.0, derivative_order=0.5,
+        ...                           step=0.5, integral_rule="rectangle", memory="exact")
+        >>> [c.update(1.0, 0.0) for _ in range(2)]
+        [0.0, 0.5]
+        >>> with tempfile.TemporaryDirectory() as d:
+        ...     path = os.path.join(d, "pid.ckpt")
+        ...     c.save_file(path)
+        ...     r = pyfracconv.Controller.load_file(path)
+        >>> [r.update(1.0, 0.0) for _ in range(2)]
+        [1.0, 1.5]
         """
         p = check_write_path(path)
         write_file("save_file", p, self.save(), "the controller")
@@ -456,6 +900,17 @@ class Controller:
         ``fc_controller_save_file``). The file is untrusted input: at most
         ``max_size`` bytes are read and they go through :meth:`load`.
 
+        Parameters
+        ----------
+        path : str, bytes or os.PathLike
+            The checkpoint file.
+        max_size : int, optional
+            Longest file accepted, in bytes (default 2**30).
+
+        Returns
+        -------
+        Controller
+
         Raises
         ------
         FileError
@@ -463,6 +918,36 @@ class Controller:
         StateError
             The file is truncated, corrupted, forged, of another format or
             longer than max_size.
+        ArgumentError, InputTypeError
+            path or max_size not valid.
+
+        See Also
+        --------
+        save_file, load
+
+        Notes
+        -----
+        SAFETY: as for the class: validate in simulation and on the plant,
+        keep actuator and rate limits in the hardware too, keep an
+        independent safe stop, follow local codes and licensed practice.
+
+        Examples
+        --------
+        >>> import os, tempfile
+        >>> import pyfracconv
+        >>> c = pyfracconv.Controller(1.0, 0.5, integral_order=0.5,
+        ...                           derivative_order=0.5, step=0.01)
+        >>> with tempfile.TemporaryDirectory() as d:
+        ...     path = os.path.join(d, "pid.ckpt")
+        ...     c.save_file(path)
+        ...     r = pyfracconv.Controller.load_file(path)
+        ...     try:
+        ...         pyfracconv.Controller.load_file(path, max_size=8)
+        ...     except pyfracconv.StateError:
+        ...         print("refused: longer than max_size")
+        refused: longer than max_size
+        >>> r.params == c.params
+        True
         """
         p = check_path("path", path)
         data = read_file("load_file", p, check_max_size(max_size))

@@ -78,7 +78,47 @@ def _refuse_grunwald(rule: object) -> None:
 def check_times(t: object, length: int | None = None) -> FloatArray:
     """The sample times as a 1-D float64 array: finite, strictly increasing
     and, if ``length`` is given, of that length (errors name ``t``, the
-    first offending index and the values there)."""
+    first offending index and the values there).
+
+    Parameters
+    ----------
+    t : array_like
+        The sample times.
+    length : int, optional
+        The number of samples along the time axis the times must match.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``t`` as a 1-D float64 array.
+
+    Raises
+    ------
+    ArgumentError
+        t not 1-D, of another length, not finite or not strictly
+        increasing.
+    InputTypeError
+        t not numeric.
+
+    See Also
+    --------
+    graded_mesh : times made for solutions not smooth at t0.
+    grid_weights : the weights on such times.
+
+    Examples
+    --------
+    >>> from pyfracconv.grid import check_times
+    >>> check_times([0, 0.5, 2]).tolist()
+    [0.0, 0.5, 2.0]
+    >>> check_times([0.0, 1.0, 1.0])
+    Traceback (most recent call last):
+    ...
+    pyfracconv._errors.ArgumentError: t[2]=1.0 after t[1]=1.0: sample times must be strictly increasing
+    >>> check_times([0.0, 1.0], length=3)
+    Traceback (most recent call last):
+    ...
+    pyfracconv._errors.ArgumentError: t: has 2 times but the samples have 3 along the time axis; ...
+    """
     arr = as_float_array("t", t)
     if arr.ndim != 1:
         raise ArgumentError(f"t: expected a 1-D array of sample times, got shape {arr.shape}")

@@ -118,7 +118,52 @@ def open_npy(path: str, label: str,
              mmap_mode: Optional[Literal["r"]] = "r") -> np.ndarray[Any, Any]:
     """A ``.npy`` record of signals (1-D, or 2-D with time along axis 0)
     after its checks, memory-mapped read-only by default; every error
-    names ``label``. The command line reads its ``.npy`` inputs here too."""
+    names ``label``. The command line reads its ``.npy`` inputs here too.
+
+    Parameters
+    ----------
+    path : str
+        The ``.npy`` file.
+    label : str
+        How errors name the file (for example ``"input a.npy"``).
+    mmap_mode : {'r', None}, optional
+        ``'r'`` (default): memory-mapped read-only; None: read into memory.
+
+    Returns
+    -------
+    numpy.ndarray
+        The record, 1-D or 2-D (time along axis 0), of real numbers.
+
+    Raises
+    ------
+    ArgumentError
+        The file is empty, unreadable, not a ``.npy`` array (an ``.npz``
+        archive), not 1-D or 2-D, or holds no samples.
+    InputTypeError
+        The values are not real numbers (integer or floating point).
+
+    See Also
+    --------
+    apply_npy : an operator from one ``.npy`` file to another.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> import numpy as np
+    >>> import pyfracconv
+    >>> from pyfracconv.records import open_npy
+    >>> with tempfile.TemporaryDirectory() as d:
+    ...     path = os.path.join(d, "x.npy")
+    ...     np.save(path, np.arange(6.0).reshape(3, 2))
+    ...     print(open_npy(path, "input x.npy", mmap_mode=None).shape)
+    ...     np.save(path, np.array(["a", "b"]))
+    ...     try:
+    ...         open_npy(path, "input x.npy")
+    ...     except pyfracconv.InputTypeError as exc:
+    ...         print(exc)
+    (3, 2)
+    input x.npy: holds values of dtype <U1; expected real numbers (integer or floating point)
+    """
     try:
         if os.path.getsize(path) == 0:
             raise ArgumentError(f"{label}: the file is empty")

@@ -494,18 +494,63 @@ class Stepper:
 
     @property
     def t(self):
-        """Current time t0 + steps * step."""
+        """Current time t0 + steps * step.
+
+        See Also
+        --------
+        y, steps
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(3)
+        >>> s.t
+        1.5
+        """
         return float(self._get(lib.fc_solver_time, "double *"))
 
     @property
     def y(self):
-        """Current state (a float, or a copy of shape (m,))."""
+        """Current state (a float, or a copy of shape (m,)).
+
+        See Also
+        --------
+        t, advance
+
+        Examples
+        --------
+        At order 1 the rectangle method is explicit Euler: y_n = (1 - h)^n
+        (common practice).
+
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(3)
+        >>> s.y == 0.5**3
+        True
+        >>> pyfracconv.Stepper(lambda t, y: -y, [1.0, 2.0], 0.5, 0.1).y
+        array([1., 2.])
+        """
         out = np.empty(self._m)
         raise_for_status(lib.fc_solver_state(self._s, ffi.from_buffer("double[]", out)), "y")
         return float(out[0]) if self._scalar else out
 
     @property
     def steps(self):
+        """Steps taken since t0.
+
+        See Also
+        --------
+        t, advance, step
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(3)
+        >>> s.steps
+        3
+        """
         return int(self._get(lib.fc_solver_steps, "uint64_t *"))
 
     def _counts(self):
@@ -516,23 +561,100 @@ class Stepper:
 
     @property
     def rhs_evals(self):
+        """Calls of the right-hand side so far.
+
+        See Also
+        --------
+        jac_evals, steps
+
+        Examples
+        --------
+        The predictor-corrector with one correction evaluates the right-hand
+        side twice a step (predict, evaluate, correct, evaluate: common
+        practice), after one evaluation at t0:
+
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 0.5, 0.1)
+        >>> _ = s.advance(3)
+        >>> s.rhs_evals
+        7
+        """
         return self._counts()[0]
 
     @property
     def jac_evals(self):
+        """Calls of the Jacobian so far (implicit methods with ``jacobian``;
+        0 otherwise).
+
+        See Also
+        --------
+        rhs_evals
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 0.5, 0.1, method="trapezoid",
+        ...                        jacobian=lambda t, y: -1.0)
+        >>> _ = s.advance(3)
+        >>> s.jac_evals
+        3
+        >>> pyfracconv.Stepper(lambda t, y: -y, 1.0, 0.5, 0.1).jac_evals
+        0
+        """
         return self._counts()[1]
 
     @property
     def nbytes(self):
-        """Bytes of memory the solver holds (its streams included)."""
+        """Bytes of memory the solver holds (its streams included).
+
+        See Also
+        --------
+        memory
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(3)
+        >>> s.nbytes > 0
+        True
+        """
         return int(self._get(lib.fc_solver_nbytes, "size_t *"))
 
     @property
     def method(self):
+        """The method name.
+
+        See Also
+        --------
+        memory
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(3)
+        >>> s.method
+        'rectangle'
+        """
         return self._method
 
     @property
     def memory(self):
+        """'exact' or 'compressed'.
+
+        See Also
+        --------
+        method, nbytes
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(3)
+        >>> s.memory
+        'exact'
+        """
         return self._memory
 
     def __repr__(self):
@@ -603,6 +725,18 @@ class Stepper:
         """Advance by n >= 0 steps; returns (t, y) of the new steps: t of
         shape (n,), y of shape (n,) (scalar problem) or (n, m).
 
+        Parameters
+        ----------
+        n : int
+            Number of steps, >= 0 (0 returns empty arrays).
+
+        Returns
+        -------
+        t : numpy.ndarray
+            The n new times, shape (n,).
+        y : numpy.ndarray
+            The n new states, shape (n,) (scalar problem) or (n, m).
+
         Raises
         ------
         RhsError, NewtonError
@@ -611,6 +745,32 @@ class Stepper:
         HorizonError
             memory='compressed' and the step count would pass the horizon
             (nothing done).
+        ArgumentError, InputTypeError
+            n negative or not an integer (nothing done).
+        OutOfMemory
+            The result cannot be allocated (nothing done).
+        BusyError
+            Another call is using the stepper (nothing done).
+
+        See Also
+        --------
+        step : one step, without the per-call allocations.
+        solve : the whole grid at once.
+
+        Examples
+        --------
+        At order 1 the rectangle method is the explicit Euler method, so
+        y' = -y, y(0) = 1 gives y_n = (1 - h)^n (common practice):
+
+        >>> import numpy as np
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.1, method="rectangle")
+        >>> t, y = s.advance(3)
+        >>> np.round(t, 12), np.round(y, 12)
+        (array([0.1, 0.2, 0.3]), array([0.9  , 0.81 , 0.729]))
+        >>> t, y = s.advance(2)
+        >>> s.steps, round(s.t, 12), bool(np.isclose(y[-1], 0.9**5, rtol=1e-12))
+        (5, 0.5, True)
         """
         n = check_count("n", n, 0, SIZE_MAX)
         m = self._m
@@ -638,12 +798,23 @@ class Stepper:
         for loops that feed each new state back, such as a simulated
         plant in a control loop.
 
+        Returns
+        -------
+        float or numpy.ndarray
+            The new state y(t) at the new time :attr:`t`.
+
         Raises
         ------
         RhsError, NewtonError
             The step failed (``.partial`` is empty; nothing was advanced).
         HorizonError
             memory='compressed' and the step would pass the horizon.
+        BusyError
+            Another call is using the stepper (nothing done).
+
+        See Also
+        --------
+        advance : n steps with their times.
 
         Examples
         --------
@@ -673,7 +844,43 @@ class Stepper:
 
     def save(self):
         """The state as bytes (versioned, checksummed, little-endian; not
-        pickle). The callbacks are not saved: :meth:`load` takes them."""
+        pickle). The callbacks are not saved: :meth:`load` takes them.
+
+        Returns
+        -------
+        bytes
+
+        Raises
+        ------
+        BusyError
+            Another call is using the stepper.
+        OutOfMemory
+            The bytes cannot be allocated.
+
+        See Also
+        --------
+        load, save_file
+
+        Examples
+        --------
+        A loaded stepper resumes bit for bit (Caputo D^0.5 y = -y, whose
+        solution is E_{1/2}(-sqrt t) = exp(t) erfc(sqrt t): Gorenflo,
+        Kilbas, Mainardi and Rogosin 2014, docs/references.md):
+
+        >>> import math
+        >>> import numpy as np
+        >>> import pyfracconv
+        >>> def f(t, y):
+        ...     return -y
+        >>> s = pyfracconv.Stepper(f, 1.0, 0.5, 0.01)
+        >>> _ = s.advance(50)
+        >>> r = pyfracconv.Stepper.load(s.save(), f)
+        >>> t, y = r.advance(50)
+        >>> bool(np.array_equal(y, s.advance(50)[1]))
+        True
+        >>> bool(abs(y[-1] - math.exp(1) * math.erfc(1)) < 1e-4)
+        True
+        """
         if not self._lock.acquire(False):
             raise BusyError("save: the stepper is being used by another call")
         try:
@@ -694,10 +901,49 @@ class Stepper:
     def load(cls, data, rhs, jacobian=None):
         """A stepper from :meth:`save` output, with its callbacks set again.
 
+        Parameters
+        ----------
+        data : bytes-like
+            What :meth:`save` returned (untrusted input: checked).
+        rhs : callable
+            The right-hand side ``rhs(t, y)``, as given to the saved
+            stepper (not saved).
+        jacobian : callable, optional
+            ``jacobian(t, y)`` of the implicit methods (not saved).
+
+        Returns
+        -------
+        Stepper
+
         Raises
         ------
         StateError
             data truncated, corrupted, forged, or of another format.
+        InputTypeError
+            data not bytes-like, rhs or jacobian not callable.
+        ArgumentError
+            A jacobian for an explicit method.
+
+        See Also
+        --------
+        save, load_file
+
+        Examples
+        --------
+        At order 1 the rectangle method is the explicit Euler method:
+        y' = -y gives y_n = (1 - h)^n (common practice), also after a load:
+
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> s.step()
+        0.5
+        >>> r = pyfracconv.Stepper.load(s.save(), lambda t, y: -y)
+        >>> r.steps, r.method, r.step()
+        (1, 'rectangle', 0.25)
+        >>> pyfracconv.Stepper.load(s.save()[:-1], lambda t, y: -y)
+        Traceback (most recent call last):
+        ...
+        pyfracconv._errors.StateError: data (... bytes): ...
         """
         if not isinstance(data, (bytes, bytearray, memoryview)):
             raise InputTypeError(f"data: expected bytes, got {type(data).__name__}")
@@ -741,11 +987,44 @@ class Stepper:
         sync; see :meth:`pyfracconv.Stream.save_file`). The callbacks are
         not saved.
 
+        Parameters
+        ----------
+        path : str, bytes or os.PathLike
+            The checkpoint file; its directory must exist.
+
+        Returns
+        -------
+        None
+
         Raises
         ------
         FileError
             The file could not be written; the old file (if any) and the
             stepper are unchanged.
+        ArgumentError, InputTypeError
+            path is empty, ends in '/', contains NUL or is not a path.
+        BusyError
+            Another call is using the stepper.
+
+        See Also
+        --------
+        load_file, save, Stream.save_file
+
+        Examples
+        --------
+        At order 1 the rectangle method is the explicit Euler method:
+        y' = -y gives y_n = (1 - h)^n (common practice), across a file:
+
+        >>> import os, tempfile
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> _ = s.advance(2)
+        >>> with tempfile.TemporaryDirectory() as d:
+        ...     path = os.path.join(d, "solver.ckpt")
+        ...     s.save_file(path)
+        ...     r = pyfracconv.Stepper.load_file(path, lambda t, y: -y)
+        >>> r.step()
+        0.125
         """
         p = check_write_path(path)
         write_file("save_file", p, self.save(), "the stepper")
@@ -758,6 +1037,21 @@ class Stepper:
         untrusted input: at most ``max_size`` bytes are read and they go
         through :meth:`load`.
 
+        Parameters
+        ----------
+        path : str, bytes or os.PathLike
+            The checkpoint file.
+        rhs : callable
+            The right-hand side ``rhs(t, y)`` (not saved).
+        jacobian : callable, optional
+            ``jacobian(t, y)`` of the implicit methods (not saved).
+        max_size : int, optional
+            Longest file accepted, in bytes (default 2**30).
+
+        Returns
+        -------
+        Stepper
+
         Raises
         ------
         FileError
@@ -765,6 +1059,35 @@ class Stepper:
         StateError
             The file is truncated, corrupted, forged, of another format or
             longer than max_size.
+        InputTypeError, ArgumentError
+            As for :meth:`load`; path not a path.
+
+        See Also
+        --------
+        save_file, load
+
+        Examples
+        --------
+        At order 1 the rectangle method is the explicit Euler method:
+        y' = -y gives y_n = (1 - h)^n (common practice); a file that is not
+        a checkpoint is refused:
+
+        >>> import os, tempfile
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.5, method="rectangle")
+        >>> with tempfile.TemporaryDirectory() as d:
+        ...     path = os.path.join(d, "solver.ckpt")
+        ...     s.save_file(path)
+        ...     r = pyfracconv.Stepper.load_file(path, lambda t, y: -y)
+        ...     with open(os.path.join(d, "other"), "wb") as fh:
+        ...         _ = fh.write(b"not a checkpoint")
+        ...     try:
+        ...         pyfracconv.Stepper.load_file(os.path.join(d, "other"), lambda t, y: -y)
+        ...     except pyfracconv.StateError:
+        ...         print("refused")
+        refused
+        >>> r.step(), r.step()
+        (0.5, 0.25)
         """
         p = check_path("path", path)
         data = read_file("load_file", p, check_max_size(max_size))
@@ -870,6 +1193,38 @@ def solve(rhs, y0, order, step=None, n_steps=None, *, t=None, dy0=None, t0=None,
         step, ``.step`` and ``.time`` say where.
     NewtonError
         Newton's method did not converge (with ``.partial``).
+    HorizonError
+        memory='compressed' with more steps than ``horizon``.
+    OutOfMemory
+        The result cannot be allocated.
+
+    See Also
+    --------
+    Stepper : the same problem step by step, with checkpoints.
+    pyfracconv.grid.graded_mesh : a grid for solutions not smooth at t0.
+    pyfracconv.dask.solve_many : many parameter sets on a Dask cluster.
+
+    Examples
+    --------
+    D^a y = -y, y(0) = 1 has the solution E_a(-t^a): at a = 1 exp(-t), at
+    a = 1/2 exp(t) erfc(sqrt t) (Gorenflo, Kilbas, Mainardi and Rogosin
+    2014, docs/references.md):
+
+    >>> import math
+    >>> import pyfracconv
+    >>> t, y = pyfracconv.solve(lambda t, y: -y, 1.0, 1.0, 0.01, 100)
+    >>> float(t[-1]), bool(abs(y[-1] - math.exp(-1)) < 1e-5)
+    (1.0, True)
+    >>> r = pyfracconv.solve(lambda t, y: -y, 1.0, 0.5, 0.001, 1000)
+    >>> bool(abs(r.y[-1] - math.exp(1) * math.erfc(1)) < 1e-5)
+    True
+
+    Bad arguments are refused before any work:
+
+    >>> pyfracconv.solve(lambda t, y: -y, 1.0, 0.5, 0.01)
+    Traceback (most recent call last):
+    ...
+    pyfracconv._errors.ArgumentError: n_steps=None: give step and n_steps ...
     """
     if t is not None:
         if step is not None or n_steps is not None:

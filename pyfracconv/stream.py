@@ -1180,6 +1180,11 @@ class Stream:
             The checkpoint file (relative paths against the current
             directory); its directory must exist.
 
+        Returns
+        -------
+        None
+            The stream is unchanged; ``path`` holds its :meth:`save` bytes.
+
         Raises
         ------
         FileError
@@ -1203,9 +1208,10 @@ class Stream:
         >>> x = np.cos(0.2 * np.arange(30))        # an invented test signal
         >>> s = pyfracconv.Stream.integral(0.5, 0.1, mode="compressed", horizon=100)
         >>> _ = s.push_many(x[:20])
-        >>> path = os.path.join(tempfile.mkdtemp(), "stream.ckpt")
-        >>> s.save_file(path)
-        >>> r = pyfracconv.Stream.load_file(path)
+        >>> with tempfile.TemporaryDirectory() as d:
+        ...     path = os.path.join(d, "stream.ckpt")
+        ...     s.save_file(path)
+        ...     r = pyfracconv.Stream.load_file(path)
         >>> bool(np.array_equal(r.push_many(x[20:]), s.push_many(x[20:])))
         True
         """
@@ -1223,8 +1229,16 @@ class Stream:
         Parameters
         ----------
         path : str, bytes or os.PathLike
+            The checkpoint file (relative paths against the current
+            directory).
         max_size : int, optional
             Longest file accepted, in bytes (default 2**30).
+
+        Returns
+        -------
+        Stream
+            The saved stream, resuming bit for bit (with
+            ``horizon_policy='refuse'``, as :meth:`load`).
 
         Raises
         ------
@@ -1238,6 +1252,30 @@ class Stream:
         See Also
         --------
         save_file, load
+
+        Examples
+        --------
+        The order-1 rectangle rule is the left rectangle sum (common
+        practice): with step 1 on the samples 1, 2, 3, 4 the outputs are
+        0, 1, 3, 6, also across a checkpoint file:
+
+        >>> import os, tempfile
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stream.integral(1.0, 1.0)
+        >>> [s.push(x) for x in (1.0, 2.0)]
+        [0.0, 1.0]
+        >>> with tempfile.TemporaryDirectory() as d:
+        ...     path = os.path.join(d, "stream.ckpt")
+        ...     s.save_file(path)
+        ...     r = pyfracconv.Stream.load_file(path)
+        ...     too_small = os.path.getsize(path) - 1
+        ...     try:
+        ...         pyfracconv.Stream.load_file(path, max_size=too_small)
+        ...     except pyfracconv.StateError:
+        ...         print("refused: longer than max_size")
+        refused: longer than max_size
+        >>> [r.push(x) for x in (3.0, 4.0)]
+        [3.0, 6.0]
         """
         p = check_path("path", path)
         data = read_file("load_file", p, check_max_size(max_size))

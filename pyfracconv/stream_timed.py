@@ -313,6 +313,21 @@ class TimedStream:
         """Push one sample (or one per channel) at ``time``; returns the
         output at that time (0 at the first time).
 
+        Parameters
+        ----------
+        time : float
+            The sample's time: finite, at least ``min_step`` after the
+            previous time pushed (any finite time for the first push).
+        x : float or array_like
+            The sample: a float for a scalar stream, an array of length
+            ``channels`` otherwise.
+
+        Returns
+        -------
+        float or numpy.ndarray
+            The output at ``time`` (a float for a scalar stream, an array of
+            length ``channels`` otherwise).
+
         Raises
         ------
         ArgumentError
@@ -328,6 +343,34 @@ class TimedStream:
             Another thread is using the stream.
 
         Every refusal leaves the stream unchanged.
+
+        See Also
+        --------
+        push_many : a block of samples at once.
+        Stream.push : the same on a uniform grid.
+
+        Examples
+        --------
+        The product rectangle rule is exact on constants on any grid:
+        I^a 1 = t^a / Gamma(a+1) (Podlubny 1999), at a = 0.5 equal to
+        2 sqrt(t / pi), here at t = 1 after uneven steps:
+
+        >>> import math
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=10.0)
+        >>> [s.push(t, 1.0) for t in (0.0, 0.3, 0.35)][0]
+        0.0
+        >>> math.isclose(s.push(1.0, 1.0), 2 / math.sqrt(math.pi), rel_tol=1e-9)
+        True
+
+        A time not after the previous one is refused and changes nothing:
+
+        >>> s.push(0.5, 1.0)
+        Traceback (most recent call last):
+        ...
+        pyfracconv._errors.ArgumentError: time=0.5: the step from the previous time 1.0 is ...
+        >>> s.count
+        4
         """
         if self._scalar:
             return self._push_scalar(time, x)
@@ -338,7 +381,72 @@ class TimedStream:
     def push_many(self, times: ArrayLike, xs: ArrayLike) -> FloatArray:
         """Push T samples at T times: ``xs`` of shape (T,) for a scalar
         stream, (T, channels) otherwise; returns the outputs in that shape.
-        All or nothing: a refused block (see :meth:`push`) pushes nothing."""
+        All or nothing: a refused block (see :meth:`push`) pushes nothing.
+
+        Parameters
+        ----------
+        times : array_like
+            T finite times, increasing by at least ``min_step`` (the first
+            also from the previous time pushed, if any).
+        xs : array_like
+            The samples: shape (T,) for a scalar stream, (T, channels)
+            otherwise (time on axis 0).
+
+        Returns
+        -------
+        numpy.ndarray
+            The T outputs, shape (T,) or (T, channels).
+
+        Raises
+        ------
+        ArgumentError
+            A time not finite, a step below min_step or a time not after
+            the previous one; xs of the wrong shape.
+        InputTypeError
+            times or xs not numeric.
+        SampleError
+            A sample is NaN or infinite.
+        HorizonError
+            Past the horizon under ``horizon_policy='refuse'``.
+        RangeError
+            A sample (L1: an increment) beyond the stream's range bound.
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        push : one sample.
+        pyfracconv.integral : with ``t=``, the same rule on a whole record.
+
+        Examples
+        --------
+        The product trapezoidal rule is exact on linear f on any grid:
+        I^a t = t^(1+a) / Gamma(2+a) (Podlubny 1999); two channels, f = t
+        and f = 2 t, at a = 0.5:
+
+        >>> import math
+        >>> import numpy as np
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=10.0,
+        ...                            rule="trapezoid", channels=2)
+        >>> t = np.array([0.0, 0.2, 0.25, 0.7, 2.0])
+        >>> y = s.push_many(t, np.column_stack([t, 2 * t]))
+        >>> y.shape
+        (5, 2)
+        >>> exact = t**1.5 / math.gamma(2.5)
+        >>> bool(np.allclose(y[:, 0], exact, rtol=1e-9, atol=0)
+        ...      and np.allclose(y[:, 1], 2 * exact, rtol=1e-9, atol=0))
+        True
+
+        A block with a step below min_step pushes nothing:
+
+        >>> s.push_many([2.5, 2.501], np.ones((2, 2)))
+        Traceback (most recent call last):
+        ...
+        pyfracconv._errors.ArgumentError: ...
+        >>> s.count
+        5
+        """
         tt = as_float_array("times", times).reshape(-1)
         T = tt.size
         a = self._samples("xs", xs, (T, self._C))
@@ -349,7 +457,37 @@ class TimedStream:
         return y.reshape(T) if self._scalar else y
 
     def reset(self) -> None:
-        """Forget every sample (the next push starts again at its own time)."""
+        """Forget every sample (the next push starts again at its own time).
+
+        Returns
+        -------
+        None
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream (nothing is forgotten).
+
+        See Also
+        --------
+        push, save
+
+        Examples
+        --------
+        After a reset the stream starts again: the product rectangle rule
+        on a constant gives t^a / Gamma(a+1) from the new first time
+        (Podlubny 1999), at a = 1 the elapsed time:
+
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(1.0, min_step=0.5, horizon=10.0)
+        >>> [s.push(t, 1.0) for t in (0.0, 1.0, 3.0)]
+        [0.0, 1.0, 3.0]
+        >>> s.reset()
+        >>> s.count
+        0
+        >>> [s.push(t, 1.0) for t in (5.0, 7.0)]
+        [0.0, 2.0]
+        """
         if not self._lock.acquire(False):
             raise self._busy()
         try:
@@ -363,7 +501,35 @@ class TimedStream:
     def save(self) -> bytes:
         """The state as bytes (versioned, checksummed, little-endian; not
         pickle); :meth:`load` resumes bit for bit. The horizon policy is a
-        setting, not state: it is not saved."""
+        setting, not state: it is not saved.
+
+        Returns
+        -------
+        bytes
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+        OutOfMemory
+            The bytes cannot be allocated.
+
+        See Also
+        --------
+        load
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> import pyfracconv
+        >>> t = np.cumsum(np.linspace(0.01, 0.02, 20))  # uneven invented times
+        >>> x = np.sin(t)                               # an invented test signal
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=10.0)
+        >>> _ = s.push_many(t[:10], x[:10])
+        >>> r = pyfracconv.TimedStream.load(s.save())
+        >>> bool(np.array_equal(r.push_many(t[10:], x[10:]), s.push_many(t[10:], x[10:])))
+        True
+        """
         if not self._lock.acquire(False):
             raise self._busy()
         try:
@@ -386,7 +552,43 @@ class TimedStream:
         checks the checksum, every parameter, the rebuilt terms bit for bit,
         the times, the count and the state; StateError otherwise). The
         loaded stream has ``horizon_policy='refuse'``. The step check of
-        the first push after a load is made by the C library alone."""
+        the first push after a load is made by the C library alone.
+
+        Parameters
+        ----------
+        data : bytes-like
+            What :meth:`save` returned.
+
+        Returns
+        -------
+        TimedStream
+
+        Raises
+        ------
+        InputTypeError
+            data is not bytes-like.
+        StateError
+            data is truncated, corrupted, of another format or version, or
+            a stream without times (load that with :meth:`Stream.load`).
+        OutOfMemory
+            The stream cannot be allocated.
+
+        See Also
+        --------
+        save, Stream.load
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.25, min_step=0.1, horizon=5.0, rule="l1")
+        >>> r = pyfracconv.TimedStream.load(s.save())
+        >>> r.rule, r.order, r.min_step, r.horizon, r.horizon_policy
+        ('l1', 0.25, 0.1, 5.0, 'refuse')
+        >>> pyfracconv.TimedStream.load(pyfracconv.Stream.integral(0.5, 0.1).save())
+        Traceback (most recent call last):
+        ...
+        pyfracconv._errors.StateError: data (... bytes): not a saved pyfracconv TimedStream ...
+        """
         if not isinstance(data, (bytes, bytearray, memoryview)):
             raise InputTypeError(f"data: expected bytes, got {type(data).__name__}")
         b = bytes(data)
@@ -420,27 +622,127 @@ class TimedStream:
 
     @property
     def count(self) -> int:
-        """Samples pushed (per channel) since creation or the last reset."""
+        """Samples pushed (per channel) since creation or the last reset.
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        push, reset
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> _ = s.push_many([0.0, 0.1, 0.5], [1.0, 1.0, 1.0])
+        >>> s.count
+        3
+        """
         return int(self._query(lib.fc_stream_count, "uint64_t *"))
 
     @property
     def terms(self) -> int:
-        """The number K of exponential terms."""
+        """The number K of exponential terms.
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        tol, horizon, nbytes
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.terms > 0
+        True
+        """
         return int(self._query(lib.fc_stream_terms, "size_t *"))
 
     @property
     def nbytes(self) -> int:
-        """Bytes of memory the C stream holds (fixed at creation)."""
+        """Bytes of memory the C stream holds (fixed at creation).
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        terms
+
+        Examples
+        --------
+        The memory stays bounded (the point of compression, common practice):
+
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> before = s.nbytes
+        >>> _ = s.push_many([0.02 * k for k in range(50)], [1.0] * 50)
+        >>> s.nbytes == before
+        True
+        """
         return int(self._query(lib.fc_stream_nbytes, "size_t *"))
 
     @property
     def past_horizon(self) -> bool:
-        """True once an output past the horizon was produced."""
+        """True once an output past the horizon was produced.
+
+        Raises
+        ------
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        horizon, horizon_policy
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.horizon_policy = "continue"
+        >>> _ = s.push_many([0.0, 1.0], [1.0, 1.0])
+        >>> s.past_horizon
+        False
+        >>> _ = s.push(1.5, 1.0)           # 1.5 after the first time: past 1.0
+        >>> s.past_horizon
+        True
+        """
         return bool(self._query(lib.fc_stream_past_horizon, "int *"))
 
     @property
     def horizon_policy(self) -> str:
-        """'refuse' or 'continue' (a setting, not saved)."""
+        """'refuse' or 'continue' (a setting, not saved).
+
+        Raises
+        ------
+        ArgumentError
+            Setting a name other than 'refuse' or 'continue' (unchanged).
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        past_horizon, horizon
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.horizon_policy
+        'refuse'
+        >>> s.horizon_policy = "continue"
+        >>> s.horizon_policy
+        'continue'
+        """
         p = int(self._query(lib.fc_stream_horizon_policy, "int *"))
         return "refuse" if p == lib.FC_HORIZON_REFUSE else "continue"
 
@@ -456,26 +758,106 @@ class TimedStream:
 
     @property
     def rule(self) -> str:
+        """The rule: 'rectangle', 'trapezoid' or 'l1'.
+
+        See Also
+        --------
+        order, min_step
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.rule
+        'trapezoid'
+        """
         return self._rule
 
     @property
     def order(self) -> float:
+        """The order a.
+
+        See Also
+        --------
+        rule
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.order
+        0.5
+        """
         return self._order
 
     @property
     def min_step(self) -> float:
+        """The smallest step t_n - t_{n-1} a push may make.
+
+        See Also
+        --------
+        push, horizon
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.min_step
+        0.01
+        """
         return self._min_step
 
     @property
     def tol(self) -> float:
+        """The tolerance of the promise.
+
+        See Also
+        --------
+        terms, horizon
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.tol
+        1e-10
+        """
         return self._tol
 
     @property
     def horizon(self) -> float:
+        """The time span t_n - t_0 the promise covers.
+
+        See Also
+        --------
+        past_horizon, horizon_policy, tol
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.horizon
+        1.0
+        """
         return self._horizon
 
     @property
     def channels(self) -> Optional[int]:
+        """None for a scalar stream, else the number of channels.
+
+        See Also
+        --------
+        push, push_many
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=1.0, rule="trapezoid")
+        >>> s.channels is None
+        True
+        >>> pyfracconv.TimedStream(0.5, 0.01, 1.0, channels=3).channels
+        3
+        """
         return None if self._scalar else self._C
 
     def __repr__(self) -> str:
