@@ -197,15 +197,43 @@ FC_API int fc_trapezoid_start(double order, double step, uint64_t start,
  * Reusable batch context: caches FFT plans and work space between calls so
  * that repeated calls of the same size do no planning. Not thread-safe: one
  * context per thread.
+ *
+ * Threads: fc_context_set_threads(ctx, t) lets the batch calls given this
+ * context (fc_lagged_sum, fc_apply) use up to t threads (POSIX threads,
+ * started by the call and joined before it returns; the library keeps no
+ * thread alive between calls). The work is split over the signals and,
+ * for fewer signals than threads, over the independent segment products
+ * of the partitioned engine (and the output ranges of the direct
+ * engine); every output is computed by the same operations in the same
+ * order whatever t, so the results are the same bit for bit for every
+ * thread count. Small calls (fewer than about 2^14 samples in all) run on
+ * the calling thread. A thread, a mutex or a helper's work space that
+ * cannot be made is not an error: the call uses fewer threads (down to
+ * the calling thread alone), with the same result. Each extra thread
+ * keeps its own FFT plans and work space in the context (see
+ * fc_context_nbytes), reused by later calls. A new context, and the
+ * temporary one of a call given ctx == NULL, use 1 thread. Built with
+ * -DFC_NO_THREADS, or where POSIX threads are missing, every call runs on
+ * the calling thread. Programs linking the static library add -pthread.
  */
 typedef struct fc_context fc_context;
+/* Most threads a context may be given. */
+#define FC_THREADS_MAX 256
 /* Statuses: FC_OK, FC_ERR_NULL (out NULL), FC_ERR_NOMEM. */
 FC_API int fc_context_create(fc_context **out);
 /* Statuses: none (void; NULL is a no-op). */
 FC_API void fc_context_free(fc_context *ctx);
-/* Bytes currently held by the context. */
+/* Bytes currently held by the context (its helpers' plans and work space
+   included). */
 /* Statuses: FC_OK, FC_ERR_NULL. */
 FC_API int fc_context_nbytes(const fc_context *ctx, size_t *nbytes);
+/* Threads the batch calls given ctx may use: 1 <= threads <= FC_THREADS_MAX
+   (FC_ERR_ARG otherwise, ctx unchanged). Lowering it frees the work space
+   of the helpers no longer used. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (threads 0 or above FC_THREADS_MAX). */
+FC_API int fc_context_set_threads(fc_context *ctx, size_t threads);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_context_threads(const fc_context *ctx, size_t *threads);
 
 /*
  * Lagged sums of nsig signals sharing one kernel:

@@ -36,6 +36,14 @@ static inline int fc__add_size(size_t a, size_t b, size_t *r)
     *r = a + b;
     return FC_OK;
 }
+/*
+ * Tasks 0 .. ntasks-1 of a call run by up to nworkers threads, the calling
+ * thread being worker 0 (parallel.c). fn(arg, task, worker): worker <
+ * nworkers identifies the thread's own resources. Never fails: fewer
+ * threads run them when threads cannot be made.
+ */
+typedef void (*fc__task_fn)(void *arg, size_t task, size_t worker);
+void fc__run_tasks(size_t ntasks, size_t nworkers, fc__task_fn fn, void *arg);
 /* FC_OK if all n values are finite, FC_ERR_NONFINITE otherwise. */
 int fc__check_finite(const double *x, size_t n);
 /* Largest |v[i]| over n finite values (0 for n == 0). */
