@@ -36,6 +36,7 @@ from ._checks import (
     check_real as check_real,
     check_rule as check_rule,
     check_step as check_step,
+    check_workers as check_workers,
     contiguous_copy as contiguous_copy,
     new_result as new_result,
     raise_nonfinite as raise_nonfinite,
@@ -70,14 +71,16 @@ def dptr(arr: FloatArray) -> Any:
 _local = threading.local()
 
 
-def context() -> Any:
-    """The calling thread's batch context (FFT plans and work space)."""
+def context(threads: int = 1) -> Any:
+    """The calling thread's batch context (FFT plans and work space), set
+    to use ``threads`` threads (a count check_workers gave)."""
     ctx = getattr(_local, "ctx", None)
     if ctx is None:
         p = ffi.new("fc_context **")
         raise_for_status(lib.fc_context_create(p), "context")
         ctx = ffi.gc(p[0], lib.fc_context_free)
         _local.ctx = ctx
+    raise_for_status(lib.fc_context_set_threads(ctx, threads), "context threads")
     return ctx
 
 
@@ -221,7 +224,7 @@ def _largest(arr: FloatArray) -> str:
 
 
 def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
-               engine: str = "auto") -> FloatArray:
+               engine: str = "auto", *, workers: Optional[int] = None) -> FloatArray:
     """Causal lagged sum y_n = sum_{k<=n} kernel[n-k] * samples[k].
 
     Parameters
@@ -240,6 +243,17 @@ def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
         ``auto`` picks direct summation for short kernels and the blockwise
         FFT otherwise; both are accurate componentwise. ``fft`` (one
         full-length FFT) is accurate only normwise.
+    workers : int, optional (keyword)
+        Threads to use, SciPy's convention (as ``scipy.fft``): None (the
+        default) or 1 is the calling thread alone; a negative count counts
+        back from ``os.cpu_count()`` (-1: every CPU, -2: all but one);
+        0 is refused; more than 256 are used as 256. The work is split over
+        the signals and, for one long signal, over the independent segment
+        products of the blocked engine (the output ranges of the direct
+        one): the result is the same, bit for bit, for every value. Calls
+        with fewer than about 2**14 samples in all run on the calling
+        thread whatever the value. The C call releases the GIL, so other
+        Python threads run meanwhile.
 
     Returns
     -------
@@ -253,9 +267,9 @@ def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
         first one).
     ArgumentError
         samples is a scalar, kernel is empty or not 1-D, axis out of range,
-        unknown engine.
+        unknown engine, workers 0 or below -os.cpu_count().
     InputTypeError
-        Non-numeric or masked samples or kernel.
+        Non-numeric or masked samples or kernel, or workers not an integer.
     RangeError
         A result beyond the range of double precision.
 
@@ -285,6 +299,7 @@ def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
     array([[3., 2., 1.],
            [0., 3., 2.]])
     """
+    nthreads = check_workers(workers)
     arr, ax, moved_shape, block = _rows("samples", samples, axis)
     k = np.ascontiguousarray(as_float_array("kernel", kernel))
     if k.ndim != 1 or k.size == 0:
@@ -296,7 +311,7 @@ def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
     eng = check_engine(engine)
     nsig, n = block.shape
     out = np.empty_like(block)
-    st = lib.fc_lagged_sum(context(), dptr(block), nsig, n, dptr(k), k.size, eng,
+    st = lib.fc_lagged_sum(context(nthreads), dptr(block), nsig, n, dptr(k), k.size, eng,
                            ffi.from_buffer("double[]", out))
     if st == lib.FC_ERR_RANGE:
         raise RangeError(
@@ -340,7 +355,9 @@ def _apply_grid(kind: str, samples: object, order: object, t: object, rule: obje
 
 
 def _apply(kind: str, samples: object, order: object, step: object, rule: object,
-           axis: object, engine: object, t: object = None) -> FloatArray:
+           axis: object, engine: object, t: object = None,
+           workers: object = None) -> FloatArray:
+    nthreads = check_workers(workers)
     if step is not None and t is not None:
         raise ArgumentError(
             f"step={show(step)} and t: give exactly one of step (a uniform grid "
@@ -361,7 +378,7 @@ def _apply(kind: str, samples: object, order: object, step: object, rule: object
     arr, ax, moved_shape, block = _rows("samples", samples, axis)
     nsig, n = block.shape
     out = np.empty_like(block)
-    st = lib.fc_apply(context(), code, a, h, dptr(block), nsig, n, eng,
+    st = lib.fc_apply(context(nthreads), code, a, h, dptr(block), nsig, n, eng,
                       ffi.from_buffer("double[]", out))
     if st == lib.FC_ERR_RANGE:
         raise RangeError(
@@ -375,7 +392,8 @@ def _apply(kind: str, samples: object, order: object, step: object, rule: object
 
 def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
              rule: str = "rectangle", axis: int = -1, engine: str = "auto", *,
-             t: Optional[ArrayLike] = None) -> FloatArray:
+             t: Optional[ArrayLike] = None,
+             workers: Optional[int] = None) -> FloatArray:
     """Riemann-Liouville fractional integral of order ``order`` of a sampled
     signal, from t = 0.
 
@@ -403,6 +421,11 @@ def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
         O(N^2) engine (blocks of rows, bounded memory; each value one
         pairwise sum, componentwise accurate). A uniform ``t`` is not
         detected: give a uniform grid as ``step`` for the fast engines.
+    workers : int, optional (keyword)
+        Threads to use, SciPy's convention; see :func:`lagged_sum` (bit for
+        bit the same result for every value; the GIL is released during
+        the C call). With ``t`` the count is checked but the direct engine
+        runs on the calling thread.
 
     Returns
     -------
@@ -416,12 +439,13 @@ def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
         scalar, axis out of range, unknown engine; both ``step`` and ``t``;
         ``t`` not 1-D, of another length than the samples, not finite or
         not strictly increasing (the message names the first offending
-        index and its values); ``engine`` other than auto/direct with ``t``.
+        index and its values); ``engine`` other than auto/direct with ``t``;
+        ``workers`` 0 or below -os.cpu_count().
     SampleError
         A sample is NaN or infinite (the message names the first one).
     InputTypeError
         Non-numeric or masked samples or t, order or step not a real
-        number; neither ``step`` nor ``t`` given.
+        number; neither ``step`` nor ``t`` given; workers not an integer.
     RangeError
         A result beyond the range of double precision.
 
@@ -475,12 +499,13 @@ def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
     >>> bool(np.allclose(y, 4 * times**1.5 / (3 * np.sqrt(np.pi)), rtol=1e-13))
     True
     """
-    return _apply("integral", samples, order, step, rule, axis, engine, t)
+    return _apply("integral", samples, order, step, rule, axis, engine, t, workers)
 
 
 def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
                rule: str = "grunwald", axis: int = -1, engine: str = "auto", *,
-               t: Optional[ArrayLike] = None) -> FloatArray:
+               t: Optional[ArrayLike] = None,
+             workers: Optional[int] = None) -> FloatArray:
     """Fractional derivative of a sampled signal, from t = 0.
 
     Parameters
@@ -509,6 +534,11 @@ def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
         to the sample increments by a direct O(N^2) engine (componentwise
         accurate). A uniform ``t`` is not detected: give a uniform grid as
         ``step`` for the fast engines.
+    workers : int, optional (keyword)
+        Threads to use, SciPy's convention; see :func:`lagged_sum` (bit for
+        bit the same result for every value; the GIL is released during
+        the C call). With ``t`` the count is checked but the direct engine
+        runs on the calling thread.
 
     Returns
     -------
@@ -523,12 +553,13 @@ def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
         engine; both ``step`` and ``t``; ``rule='grunwald'`` with ``t``;
         ``t`` not 1-D, of another length than the samples, not finite or
         not strictly increasing (the message names the first offending
-        index and its values); ``engine`` other than auto/direct with ``t``.
+        index and its values); ``engine`` other than auto/direct with ``t``;
+        ``workers`` 0 or below -os.cpu_count().
     SampleError
         A sample is NaN or infinite (the message names the first one).
     InputTypeError
         Non-numeric or masked samples or t, order or step not a real
-        number; neither ``step`` nor ``t`` given.
+        number; neither ``step`` nor ``t`` given; workers not an integer.
     RangeError
         A result beyond the range of double precision.
 
@@ -565,7 +596,7 @@ def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
     >>> bool(np.allclose(y, 2 * np.sqrt(times / np.pi), rtol=1e-13))
     True
     """
-    return _apply("derivative", samples, order, step, rule, axis, engine, t)
+    return _apply("derivative", samples, order, step, rule, axis, engine, t, workers)
 
 
 def get_include() -> str:
