@@ -173,9 +173,9 @@ $(BUILD)/tests/%: tests/c/%.c csrc/fracconv.h $(BUILD)/libfracconv.a
 	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) -o $@
 
 # The allocation-failure test routes the library's malloc, calloc and
-# realloc through its own counters by the linker (--wrap): no hook in the
-# library itself.
-WRAP_ALLOC = -Wl,--wrap=malloc,--wrap=calloc,--wrap=realloc
+# realloc (and pthread_create) through its own counters by the linker
+# (--wrap): no hook in the library itself.
+WRAP_ALLOC = -Wl,--wrap=malloc,--wrap=calloc,--wrap=realloc,--wrap=pthread_create
 $(BUILD)/tests/alloc_fail: tests/c/alloc_fail.c csrc/fracconv.h $(BUILD)/libfracconv.a
 	@mkdir -p $(BUILD)/tests
 	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) $(WRAP_ALLOC) -o $@

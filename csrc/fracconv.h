@@ -228,8 +228,8 @@ FC_API void fc_context_free(fc_context *ctx);
 /* Statuses: FC_OK, FC_ERR_NULL. */
 FC_API int fc_context_nbytes(const fc_context *ctx, size_t *nbytes);
 /* Threads the batch calls given ctx may use: 1 <= threads <= FC_THREADS_MAX
-   (FC_ERR_ARG otherwise, ctx unchanged). Lowering it frees the work space
-   of the helpers no longer used. */
+   (FC_ERR_ARG otherwise, ctx unchanged). Lowering it keeps the helpers'
+   plans and work space for later calls (fc_context_free releases them). */
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (threads 0 or above FC_THREADS_MAX). */
 FC_API int fc_context_set_threads(fc_context *ctx, size_t threads);
 /* Statuses: FC_OK, FC_ERR_NULL. */

@@ -87,8 +87,7 @@ int fc_context_set_threads(fc_context *ctx, size_t threads)
 {
     if (ctx == NULL) return FC_ERR_NULL;
     if (threads == 0 || threads > FC_THREADS_MAX) return FC_ERR_ARG;
-    ctx->threads = threads;
-    if (ctx->nhelp > threads - 1) drop_helpers(ctx, threads - 1);
+    ctx->threads = threads; /* helpers beyond it are kept for later calls */
     return FC_OK;
 }
 

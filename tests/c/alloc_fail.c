@@ -10,7 +10,10 @@
  * nothing (LeakSanitizer in make asan-alloc). Calls: create, reserve,
  * push, save, load of exact and compressed streams; create, advance,
  * save, load of solvers; create, update, save, load of controllers; FFT
- * plans; batch calls with and without a context. Invented signals.
+ * plans; batch calls with and without a context, and with a context of
+ * 3 threads (its helpers' memory failing, and thread creation refused
+ * through --wrap=pthread_create: the same result either way). Invented
+ * signals.
  * The library itself has no hook: the wrapping is done by the linker, in
  * this test binary only.
  */
@@ -36,6 +39,19 @@ static int hit(void)
 void *__wrap_malloc(size_t n) { return hit() ? NULL : __real_malloc(n); }
 void *__wrap_calloc(size_t n, size_t m) { return hit() ? NULL : __real_calloc(n, m); }
 void *__wrap_realloc(void *p, size_t n) { return hit() ? NULL : __real_realloc(p, n); }
+
+/* Thread creation (the batch engines' threads, csrc/parallel.c) through
+   the linker too (--wrap=pthread_create): refused while threads_fail_from
+   >= 0 for the creations numbered from it on (0-based within a call). */
+#include <pthread.h>
+#include <errno.h>
+int __real_pthread_create(pthread_t *t, const pthread_attr_t *a, void *(*f)(void *), void *arg);
+static long threads_made, threads_fail_from = -1;
+int __wrap_pthread_create(pthread_t *t, const pthread_attr_t *a, void *(*f)(void *), void *arg)
+{
+    if (threads_fail_from >= 0 && threads_made++ >= threads_fail_from) return EAGAIN;
+    return __real_pthread_create(t, a, f, arg);
+}
 
 static void arm(long k) { alloc_count = 0; injected = 0; fail_at = k; }
 static void disarm(void) { fail_at = -1; }
@@ -146,6 +162,19 @@ static void streams(void)
     free(x); free(y); free(y2);
 }
 
+/* fc_apply with a new context of the given threads (freed after). */
+static int threaded_apply(const double *x, size_t nsig, size_t n, int engine,
+                          size_t threads, double *y)
+{
+    fc_context *c;
+    int st = fc_context_create(&c);
+    if (st != FC_OK) return st;
+    if ((st = fc_context_set_threads(c, threads)) == FC_OK)
+        st = fc_apply(c, FC_RULE_TRAPEZOID, 0.6, 0.01, x, nsig, n, engine, y);
+    fc_context_free(c);
+    return st;
+}
+
 static void batch(void)
 {
     enum { N = 5000 };
@@ -160,6 +189,44 @@ static void batch(void)
         FOR_EACH_FAILURE(name, fc_apply(NULL, FC_RULE_GRUNWALD, 0.6, 0.01, x, 1, N, e, y),
                          if (memcmp(y, yr, N * sizeof *y)) { fails++; printf("%s: result differs\n", name); },
                          1);
+    }
+    /* a context with 3 threads, made afresh for each failure, so that the
+       helpers' contexts, plans and work space are made (and made to fail)
+       every time: a failure there is no error, fewer threads give the
+       same bits; a failure of the call's own memory is FC_ERR_NOMEM */
+    {
+        enum { S = 4 }; /* 4 x 5000 samples: enough for the threads */
+        double *xs = malloc(S * N * sizeof *xs), *ys = malloc(S * N * sizeof *ys),
+               *yt = malloc(S * N * sizeof *yt);
+        for (int i = 0; i < S * N; i++) xs[i] = cos(0.003 * i) + (i / N);
+        for (int e = 0; e < 4; e++) {
+            for (size_t nsig = 1; nsig <= S; nsig += 2) { /* 1 and 3 signals */
+                char name[80];
+                size_t n = nsig == 1 ? S * N : N;
+                if (e == FC_ENGINE_DIRECT && nsig == 1) n = N; /* keep it short */
+                if (fc_apply(NULL, FC_RULE_TRAPEZOID, 0.6, 0.01, xs, nsig, n, e, ys) != FC_OK) { fails++; continue; }
+                snprintf(name, sizeof name, "threaded apply engine %d, %zu signals", e, nsig);
+                FOR_EACH_FAILURE(name, threaded_apply(xs, nsig, n, e, 3, yt),
+                                 if (memcmp(yt, ys, nsig * n * sizeof *yt)) { fails++; printf("%s: result differs\n", name); },
+                                 1);
+                /* thread creation refused: from the first, from the second */
+                for (long from = 0; from < 2; from++) {
+                    int st;
+                    threads_made = 0;
+                    threads_fail_from = from;
+                    memset(yt, 0, nsig * n * sizeof *yt);
+                    st = threaded_apply(xs, nsig, n, e, 3, yt);
+                    threads_fail_from = -1;
+                    checks++;
+                    if (st != FC_OK || memcmp(yt, ys, nsig * n * sizeof *yt)) {
+                        fails++;
+                        printf("%s: thread creation refused from the %ld-th: status %d%s\n", name, from + 1, st,
+                               st == FC_OK ? ", result differs" : "");
+                    }
+                }
+            }
+        }
+        free(xs); free(ys); free(yt);
     }
     FOR_EACH_FAILURE("context_create", fc_context_create(&ctx), (void)0, ctx == NULL);
     for (int rep = 0; rep < 2; rep++)
