@@ -696,7 +696,8 @@ def c_flags(cflags: bool = True, libs: bool = True, static: bool = False) -> lis
     ``cflags``: ``-I`` of :func:`get_include`. ``libs``: the shared object
     by its path, a run-time path (``-Wl,-rpath``) to its folder so the
     program runs without ``LD_LIBRARY_PATH``, and ``-lm``; with
-    ``static=True`` the static library instead (no run-time path needed).
+    ``static=True`` the static library instead (no run-time path needed)
+    and ``-lm -pthread`` (the batch engines' threads).
     """
     out: list[str] = []
     if cflags:
@@ -704,7 +705,7 @@ def c_flags(cflags: bool = True, libs: bool = True, static: bool = False) -> lis
     if libs:
         d = get_lib_dir()
         if static:
-            out += [os.path.join(d, "libfracconv.a"), "-lm"]
+            out += [os.path.join(d, "libfracconv.a"), "-lm", "-pthread"]
         else:
             out += [os.path.join(d, "libfracconv.so." + _version_major()),
                     "-Wl,-rpath," + d, "-lm"]
