@@ -367,6 +367,17 @@ FC_API int fc_stream_push(fc_stream *s, const double *x, double *y);
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (overlap), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM. */
 FC_API int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
                          double *y);
+/* fc_stream_push_block with up to threads threads (1 .. FC_THREADS_MAX,
+   FC_ERR_ARG otherwise, nothing pushed) sharing the channels: the
+   outputs and the state are the same bit for bit for every count. A
+   compressed stream of several channels splits them over the threads
+   (blocks of about 2^12 values or more; a thread or its scratch that
+   cannot be made leaves the work to fewer threads, same result); an
+   exact stream runs on the calling thread (its time steps depend on each
+   other through a shared count and shared work space). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (overlap, threads), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM. */
+FC_API int fc_stream_push_block_threads(fc_stream *s, const double *x, size_t count,
+                                        double *y, size_t threads);
 /* What fc_stream_push(s, x, y) would write to y, bit for bit, without
    changing the stream; y == x or no overlap, as for fc_stream_push; the
    same refusals (FC_ERR_RANGE, FC_ERR_HORIZON). */

@@ -283,7 +283,10 @@ typedef struct fc__stream_ops {
     int (*load)(const fc__stream_def *d, const unsigned char *p, size_t size,
                 void **eng);
     void (*free)(void *eng);
-    int (*push_block)(void *eng, const double *x, size_t count, double *y);
+    /* threads: up to that many threads (1 .. FC_THREADS_MAX) may share the
+       work; the result is the same bit for bit for every count */
+    int (*push_block)(void *eng, const double *x, size_t count, double *y,
+                      size_t threads);
     int (*push1)(void *eng, double x, double *y);    /* one channel */
     int (*preview)(void *eng, const double *x, double *y);
     int (*history)(void *eng, double *h);

@@ -302,60 +302,76 @@ static double cs_corr_at(cs_engine *cs, uint64_t n)
     return cs->corrbuf[n - cs->corrbase];
 }
 
-static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
+/* One channel of one time step (count n, ring position pos, correction
+   corr, injection flag): shared by cs_step and the threaded block, so the
+   two give the same bits. */
+static inline void cs_step_channel(cs_engine *cs, size_t c, double xin,
+                                   double *yout, uint64_t n, size_t pos,
+                                   double corr, int inject, int mode)
 {
-    const size_t B = CS_BAND, C = cs->C;
+    const size_t B = CS_BAND;
     const int commit = mode == 0;
-    const uint64_t n = cs->n;
-    const size_t pos = (size_t)(n % B);
-    /* trapezoid: corr_n x_0 from the table for n < B; for n >= B it is
-       carried by the terms, u_0 having entered term l as inj_l u_0 at
-       n = B (corr_m + c_m = sum_l beta_l inj_l (1-q_l)^m) */
-    const double corr = (cs->x0corr && n < B) ? cs->ctab[n]
-                        : cs->tcum ? cs_corr_at(cs, n) : 0.0;
-    const int inject = cs->x0corr && !cs->tcum && n == B;
-    for (size_t c = 0; c < C; c++) {
-        double xc = mode == 2 ? 0.0 : x[c];
-        double u;
-        double Xhi = 0.0, Xlo = 0.0;
-        if (cs->diffs) u = (n == 0 || mode == 2) ? 0.0 : xc - cs->xprev[c];
-        else if (cs->cum) {
-            /* X_n = X_{n-1} + x_n in double-double (xprev = high part,
-               x0 = low part), u = X_n rounded */
-            Xhi = cs->xprev[c];
-            Xlo = cs->x0[c];
-            cs_dd_add(&Xhi, &Xlo, xc);
-            u = Xhi;
-        } else u = xc;
-        double *ring = cs->ring + c * 2 * B;
-        double d = ring[pos];             /* u_{n-B} (0 while n < B) */
-        double acc[8];
-        double terms = 0.0;
-        if (cs->L) {
-            cs_terms(cs, inject ? cs->inj : NULL, cs->S + c * cs->Lp,
-                     cs->Sc + c * cs->Lp, d, commit, acc);
-            terms = cs_reduce8(acc);
+    double xc = mode == 2 ? 0.0 : xin;
+    double u;
+    double Xhi = 0.0, Xlo = 0.0;
+    if (cs->diffs) u = (n == 0 || mode == 2) ? 0.0 : xc - cs->xprev[c];
+    else if (cs->cum) {
+        /* X_n = X_{n-1} + x_n in double-double (xprev = high part,
+           x0 = low part), u = X_n rounded */
+        Xhi = cs->xprev[c];
+        Xlo = cs->x0[c];
+        cs_dd_add(&Xhi, &Xlo, xc);
+        u = Xhi;
+    } else u = xc;
+    double *ring = cs->ring + c * 2 * B;
+    double d = ring[pos];             /* u_{n-B} (0 while n < B) */
+    double acc[8];
+    double terms = 0.0;
+    if (cs->L) {
+        cs_terms(cs, inject ? cs->inj : NULL, cs->S + c * cs->Lp,
+                 cs->Sc + c * cs->Lp, d, commit, acc);
+        terms = cs_reduce8(acc);
+    }
+    /* window u_{n-B+1} .. u_{n-1}, u_{n-B} (weight 0) */
+    double band = cs_band(cs, ring + pos + 1);
+    double x0 = n == 0 ? xc : cs->tcum ? cs->xfirst[c] : cs->x0[c];
+    double yc = ((terms + band) + cs->c0 * u) + corr * x0;
+    *yout = yc;
+    if (commit) {
+        ring[pos] = u;
+        ring[pos + B] = u;
+        if (cs->cum) {
+            cs->xprev[c] = Xhi;
+            cs->x0[c] = Xlo;
+            if (cs->tcum && n == 0) cs->xfirst[c] = xc;
         }
-        /* window u_{n-B+1} .. u_{n-1}, u_{n-B} (weight 0) */
-        double band = cs_band(cs, ring + pos + 1);
-        double x0 = n == 0 ? xc : cs->tcum ? cs->xfirst[c] : cs->x0[c];
-        double yc = ((terms + band) + cs->c0 * u) + corr * x0;
-        y[c] = yc;
-        if (commit) {
-            ring[pos] = u;
-            ring[pos + B] = u;
-            if (cs->cum) {
-                cs->xprev[c] = Xhi;
-                cs->x0[c] = Xlo;
-                if (cs->tcum && n == 0) cs->xfirst[c] = xc;
-            }
-            else {
-                cs->xprev[c] = xc;
-                if (n == 0) cs->x0[c] = xc;
-            }
+        else {
+            cs->xprev[c] = xc;
+            if (n == 0) cs->x0[c] = xc;
         }
     }
-    if (commit) cs->n = n + 1;
+}
+
+/* trapezoid: corr_n x_0 from the table for n < B; for n >= B it is
+   carried by the terms, u_0 having entered term l as inj_l u_0 at
+   n = B (corr_m + c_m = sum_l beta_l inj_l (1-q_l)^m) */
+static double cs_step_corr(cs_engine *cs, uint64_t n)
+{
+    return (cs->x0corr && n < CS_BAND) ? cs->ctab[n]
+           : cs->tcum ? cs_corr_at(cs, n) : 0.0;
+}
+
+static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
+{
+    const size_t C = cs->C;
+    const uint64_t n = cs->n;
+    const size_t pos = (size_t)(n % CS_BAND);
+    const double corr = cs_step_corr(cs, n);
+    const int inject = cs->x0corr && !cs->tcum && n == CS_BAND;
+    for (size_t c = 0; c < C; c++)
+        cs_step_channel(cs, c, mode == 2 ? 0.0 : x[c], &y[c], n, pos, corr,
+                        inject, mode);
+    if (mode == 0) cs->n = n + 1;
 }
 
 /*
@@ -388,11 +404,57 @@ static int cs_check_block(const cs_engine *cs, const double *x, size_t count)
    overlap of x and y and the horizon (internal.h); the engine's own limits
    (RANGE, the count below 2^53) are checked here before anything is
    written. */
-static int cs_push_block(void *eng, const double *x, size_t count, double *y)
+/*
+ * A block with the channels shared by threads: task k runs every time step
+ * of its range of channels (channels share nothing but the count and the
+ * correction of each step, computed first in step order). Each channel's
+ * values go through cs_step_channel as in cs_step: the same bits.
+ */
+typedef struct {
+    cs_engine *cs;
+    const double *x, *corr;
+    double *y;
+    size_t count, q;
+} cs_job;
+
+static void cs_task(void *arg, size_t k, size_t w)
+{
+    const cs_job *J = arg;
+    cs_engine *cs = J->cs;
+    const size_t C = cs->C, c0 = k * C / J->q, c1 = (k + 1) * C / J->q;
+    (void)w;
+    for (size_t t = 0; t < J->count; t++) {
+        const uint64_t n = cs->n + t;
+        const size_t pos = (size_t)(n % CS_BAND);
+        const int inject = cs->x0corr && !cs->tcum && n == CS_BAND;
+        const double *xt = J->x + t * C;
+        double *yt = J->y + t * C;
+        for (size_t c = c0; c < c1; c++)
+            cs_step_channel(cs, c, xt[c], &yt[c], n, pos, J->corr[t], inject, 0);
+    }
+}
+
+/* Blocks of fewer values than this in all run on the calling thread. */
+#define CS_PAR_MIN 4096
+
+static int cs_push_block(void *eng, const double *x, size_t count, double *y,
+                         size_t threads)
 {
     cs_engine *cs = eng;
     int st;
     if ((st = cs_check_block(cs, x, count)) != FC_OK) return st;
+    if (threads > cs->C) threads = cs->C;
+    if (threads > 1 && count * cs->C >= CS_PAR_MIN) {
+        double *corr = malloc(count * sizeof(double));
+        if (corr != NULL) { /* else: the calling thread alone, below */
+            cs_job J = {cs, x, corr, y, count, threads};
+            for (size_t t = 0; t < count; t++) corr[t] = cs_step_corr(cs, cs->n + t);
+            fc__run_tasks(threads, threads, cs_task, &J);
+            cs->n += count;
+            free(corr);
+            return FC_OK;
+        }
+    }
     for (size_t t = 0; t < count; t++)
         cs_step(cs, x + t * cs->C, y + t * cs->C, 0);
     return FC_OK;
@@ -400,7 +462,7 @@ static int cs_push_block(void *eng, const double *x, size_t count, double *y)
 
 static int cs_push1(void *eng, double x, double *y)
 {
-    return cs_push_block(eng, &x, 1, y);
+    return cs_push_block(eng, &x, 1, y, 1);
 }
 
 static int cs_preview(void *eng, const double *x, double *y)

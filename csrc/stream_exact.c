@@ -1281,8 +1281,10 @@ static int op_load(const fc__stream_def *d, const unsigned char *p,
     return st;
 }
 static void op_free(void *eng) { ex_free(eng); }
-static int op_push_block(void *eng, const double *x, size_t count, double *y)
+static int op_push_block(void *eng, const double *x, size_t count, double *y,
+                         size_t threads)
 {
+    (void)threads; /* one thread: a time step needs the one before */
     return ex_push_block(eng, x, count, y);
 }
 /* One sample of a one-channel stream: the inline fast path of

@@ -164,3 +164,56 @@ def test_the_batch_call_releases_the_gil():
         th.join()
     assert best > 1000, best
     assert same_bits(y, pf.integral(x, 0.5, 0.01, engine="blocked"))
+
+
+# ---------------------------------------------------------------- streams
+
+STREAM_CASES = [("integral", "rectangle", 0.6), ("integral", "trapezoid", 1.4),
+                ("integral", "trapezoid", 0.5), ("integral", "rectangle", 1.5),
+                ("derivative", "grunwald", 0.5), ("derivative", "l1", 0.3)]
+
+
+@pytest.mark.parametrize("mode", ["compressed", "exact"])
+@pytest.mark.parametrize("channels", [1, 2, 3, 5, 16])
+@pytest.mark.parametrize("kind,rule,order", STREAM_CASES)
+def test_push_many_workers_same_outputs_and_state(mode, channels, kind, rule, order):
+    rng = np.random.default_rng(channels * 31 + len(rule))
+    x = signal(rng, (6000, channels))
+    make = getattr(pf.Stream, kind)
+    kw = dict(mode="compressed", tol=1e-10, horizon=1e6) if mode == "compressed" else {}
+    if mode == "compressed" and rule == "grunwald":
+        order = 0.5
+    a = make(order, 0.01, rule=rule, channels=channels, **kw)
+    b = make(order, 0.01, rule=rule, channels=channels, **kw)
+    # blocks of several sizes (short ones run on one thread), both layouts
+    ya = np.concatenate([a.push_many(x[:3]), a.push_many(x[3:700]),
+                         a.push_many(x[700:].T, axis=1).T])
+    yb = np.concatenate([b.push_many(x[:3], workers=2), b.push_many(x[3:700], workers=3),
+                         b.push_many(x[700:].T, axis=1, workers=-1).T])
+    assert same_bits(ya, yb)
+    assert a.save() == b.save()
+    assert same_bits(a.push(x[0]), b.push(x[0]))
+
+
+def test_push_many_workers_refused_leaves_the_stream_unchanged():
+    s = pf.Stream.integral(0.5, 0.1, channels=3, mode="compressed", tol=1e-9, horizon=1e6)
+    s.push_many(np.ones((10, 3)))
+    before = s.save()
+    for bad, err in ((0, ArgumentError), (-CPUS - 1, ArgumentError), (1.5, InputTypeError)):
+        with pytest.raises(err, match="workers="):
+            s.push_many(np.ones((5000, 3)), workers=bad)
+        assert s.save() == before
+    assert s.count == 10
+
+
+def test_compressed_stream_channels_match_the_batch_within_tol():
+    # the threaded compressed stream against the batch integral (checked
+    # against NumPy sums in tests/test_batch.py), within the compressed
+    # mode's stated bound |y - exact| <= (tol + 64 eps) sum |c u| (README,
+    # "Streaming"; Jiang et al. 2017 for the sum of exponentials)
+    rng = np.random.default_rng(9)
+    x = rng.random((20000, 4)) + 0.5  # positive: sum |terms| = the integral
+    s = pf.Stream.integral(0.5, 0.01, channels=4, mode="compressed", tol=1e-9, horizon=1e6)
+    y = s.push_many(x, workers=2)
+    ref = pf.integral(x, 0.5, 0.01, axis=0)
+    assert np.all(np.abs(y - ref) <= 1e-8 * np.abs(ref) + 1e-300)
