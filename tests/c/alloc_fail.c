@@ -228,6 +228,43 @@ static void batch(void)
         }
         free(xs); free(ys); free(yt);
     }
+    /* a compressed stream of 3 channels pushed by 3 threads: its scratch
+       failing leaves the work to the calling thread, same outputs and
+       state; thread creation refused, the same */
+    {
+        enum { C = 3, T = 3000 };
+        double *xs = malloc(C * T * sizeof *xs), *yr = malloc(C * T * sizeof *yr),
+               *yt = malloc(C * T * sizeof *yt);
+        unsigned char *br, *bt;
+        size_t nr, nt;
+        fc_stream *sr, *s;
+        for (int i = 0; i < C * T; i++) xs[i] = sin(0.01 * i);
+        if (fc_stream_create(FC_RULE_TRAPEZOID, 1.4, 0.01, C, FC_MODE_COMPRESSED, 1e-9, 1e6, &sr) != FC_OK ||
+            fc_stream_push_block(sr, xs, T, yr) != FC_OK || !(br = stream_bytes(sr, &nr))) { fails++; }
+        else {
+            for (long from = -1; from < 1; from++) {
+                if (fc_stream_create(FC_RULE_TRAPEZOID, 1.4, 0.01, C, FC_MODE_COMPRESSED, 1e-9, 1e6, &s) != FC_OK) { fails++; break; }
+                threads_made = 0;
+                threads_fail_from = from; /* -1: threads allowed, the scratch fails */
+                if (from < 0) arm(1);
+                int st = fc_stream_push_block_threads(s, xs, T, yt, 3);
+                if (from < 0) { if (!injected) { fails++; printf("threaded compressed push: no allocation\n"); } disarm(); }
+                threads_fail_from = -1;
+                checks++;
+                bt = stream_bytes(s, &nt);
+                if (st != FC_OK || memcmp(yt, yr, C * T * sizeof *yt) || !bt || nt != nr || memcmp(bt, br, nr)) {
+                    fails++;
+                    printf("threaded compressed push (%s): status %d, outputs or state differ\n",
+                           from < 0 ? "scratch failing" : "threads refused", st);
+                }
+                free(bt);
+                fc_stream_free(s);
+            }
+            free(br);
+        }
+        fc_stream_free(sr);
+        free(xs); free(yr); free(yt);
+    }
     FOR_EACH_FAILURE("context_create", fc_context_create(&ctx), (void)0, ctx == NULL);
     for (int rep = 0; rep < 2; rep++)
         FOR_EACH_FAILURE("apply with context", fc_apply(ctx, FC_RULE_L1, 0.3, 0.01, x, 1, N, FC_ENGINE_AUTO, y),

@@ -102,8 +102,10 @@ static void *worker(void *arg)
  * with 2, 3 and 4 threads give the bytes of 1 thread, for 1 long signal
  * (the segment products split), 3 signals (split too: 3 is not a
  * multiple of the threads), 4 signals (whole signals) and short signals
- * (run serially), every engine; and contexts of 2 threads each, used by
- * NTHREADS threads at once (threads inside threads).
+ * (run serially), every engine; compressed streams of 3 and 4 channels
+ * pushed with fc_stream_push_block_threads (outputs and saved bytes); and
+ * all of it with 2 threads each, in NTHREADS threads at once (threads
+ * inside threads).
  */
 static const size_t batch_shapes[][2] = {{1, 40000}, {3, 9000}, {4, 6000}, {2, 700}, {1, 1}};
 #define NSHAPES (sizeof batch_shapes / sizeof batch_shapes[0])
@@ -134,6 +136,31 @@ static uint64_t batch_hash(size_t threads, int which)
         free(y);
     }
     fc_context_free(ctx);
+    /* compressed streams of 3 and 4 channels, their channels shared by the
+       threads (fc_stream_push_block_threads): outputs and saved state */
+    for (size_t C = 3; C <= 4; C++) {
+        enum { T = 3000 };
+        fc_stream *s;
+        double *x = malloc(T * C * sizeof *x), *y = malloc(T * C * sizeof *y);
+        unsigned char *buf;
+        size_t sz, wr;
+        if (!x || !y) return 0;
+        for (size_t i = 0; i < T * C; i++) {
+            st ^= st << 13; st ^= st >> 7; st ^= st << 17;
+            x[i] = (double)(st >> 11) / 9007199254740992.0 - 0.5;
+        }
+        if (fc_stream_create((int)C - 3 + which, 0.45, 0.01, C, FC_MODE_COMPRESSED, 1e-9, 1e6, &s) != FC_OK) return 0;
+        if (fc_stream_push_block_threads(s, x, 2000, y, threads) != FC_OK) return 0;
+        if (fc_stream_push_block_threads(s, x + 2000 * C, T - 2000, y + 2000 * C, threads) != FC_OK) return 0;
+        h = fnv(y, T * C * sizeof *y, h);
+        if (fc_stream_save_size(s, &sz) != FC_OK || !(buf = malloc(sz))) return 0;
+        if (fc_stream_save(s, buf, sz, &wr) != FC_OK) return 0;
+        h = fnv(buf, wr, h);
+        free(buf);
+        fc_stream_free(s);
+        free(x);
+        free(y);
+    }
     return h;
 }
 
@@ -163,7 +190,7 @@ static int threaded_batch(void)
     for (int t = 0; t < NTHREADS; t++) pthread_join(th[t], NULL);
     for (int t = 0; t < NTHREADS; t++)
         if (nested[t] != ref[t % 2]) { printf("threaded batch: context of 2 threads in thread %d differs\n", t); bad = 1; }
-    printf("threads: batch with 1-4 threads per context %s\n", bad ? "DIFFER" : "match 1 thread bit for bit");
+    printf("threads: batch and compressed streams with 1-4 threads %s\n", bad ? "DIFFER" : "match 1 thread bit for bit");
     return bad;
 }
 
