@@ -371,10 +371,15 @@ FC_API int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
    FC_ERR_ARG otherwise, nothing pushed) sharing the channels: the
    outputs and the state are the same bit for bit for every count. A
    compressed stream of several channels splits them over the threads
-   (blocks of about 2^12 values or more; a thread or its scratch that
-   cannot be made leaves the work to fewer threads, same result); an
-   exact stream runs on the calling thread (its time steps depend on each
-   other through a shared count and shared work space). */
+   (blocks of about 2^12 values or more); an exact stream of several
+   channels shares the channels of each large frame (FFT blocks of 512
+   samples or more, block size times channels at least 2^14) over the
+   threads, the leaf band and the small frames staying on the calling
+   thread (its time steps depend on each other). Each extra thread of an
+   exact stream keeps its own FFT plans and work buffer in the stream
+   (fc_stream_nbytes counts them; not saved). A thread or its scratch that
+   cannot be made leaves the work to fewer threads, with the same result;
+   threads are started and joined inside the call. */
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (overlap, threads), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM. */
 FC_API int fc_stream_push_block_threads(fc_stream *s, const double *x, size_t count,
                                         double *y, size_t threads);

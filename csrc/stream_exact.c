@@ -139,7 +139,26 @@ typedef struct {
     double corr[FC_S_CORR]; /* trapezoid corr_n cache, n in chunk*CORR + i */
     uint64_t corr_chunk;
     int corr_valid;
+    /* threads of the push under way (1 outside fc_stream_push_block_threads)
+       and the scratch of the extra ones: not part of the state */
+    size_t par;
+    size_t nhelp;
+    struct ex_helper *help;
 } ex_engine;
+
+/* The scratch of an extra thread: its own FFT plans (a plan holds scratch
+   space, fft.h) for the levels it serves and a work buffer like s->work. */
+typedef struct ex_helper {
+    fc_fft_plan *plan[FC_S_MAXLEV];
+    double *work;
+    size_t wcap;
+} ex_helper;
+
+/* Frames of block size s >= FC_S_PAR_BLOCK with s * channels >=
+   FC_S_PAR_WORK are shared by the threads of a push (smaller ones are
+   not worth a thread start). */
+#define FC_S_PAR_BLOCK 512
+#define FC_S_PAR_WORK 16384
 
 /* ------------------------------------------------------------ helpers */
 
@@ -328,23 +347,29 @@ static int segment_spectrum(const ex_engine *s, fc__level *L, size_t p,
     return FC_OK;
 }
 
-/* Spectra of input block f of every channel into its ring slot, each with
-   its exponent at [n2+2] and a zero-block flag at [n2+3]. */
-static void block_spectra(ex_engine *s, fc__level *L, uint64_t f)
+/* Spectrum of input block f of channel c into its ring slot, with its
+   exponent at [n2+2] and a zero-block flag at [n2+3]; plan and t (2s
+   doubles) of the thread doing it. */
+static void block_spectrum(const ex_engine *s, fc__level *L, uint64_t f,
+                           size_t c, fc_fft_plan *plan, double *t)
 {
     size_t sz = L->s, n2 = 2 * sz;
-    double *t = s->work, *X = L->xspec[f % L->nseg];
-    for (size_t c = 0; c < s->C; c++, X += FC_S_XSLOT(n2)) {
-        int zero;
-        memcpy(t, urow(s, c) + f * sz, sz * sizeof(double));
-        int e = scale_exponent(t, sz, &zero);
-        if (e != 0)
-            for (size_t i = 0; i < sz; i++) t[i] = ldexp(t[i], -e);
-        memset(t + sz, 0, sz * sizeof(double));
-        fc__fft_forward(L->plan, t, X);
-        X[n2 + 2] = (double)e;
-        X[n2 + 3] = zero ? 1.0 : 0.0;
-    }
+    double *X = L->xspec[f % L->nseg] + c * FC_S_XSLOT(n2);
+    int zero;
+    memcpy(t, urow(s, c) + f * sz, sz * sizeof(double));
+    int e = scale_exponent(t, sz, &zero);
+    if (e != 0)
+        for (size_t i = 0; i < sz; i++) t[i] = ldexp(t[i], -e);
+    memset(t + sz, 0, sz * sizeof(double));
+    fc__fft_forward(plan, t, X);
+    X[n2 + 2] = (double)e;
+    X[n2 + 3] = zero ? 1.0 : 0.0;
+}
+
+/* Spectra of input block f of every channel. */
+static void block_spectra(ex_engine *s, fc__level *L, uint64_t f)
+{
+    for (size_t c = 0; c < s->C; c++) block_spectrum(s, L, f, c, L->plan, s->work);
 }
 
 /* Y = sum_p 2^(d_p - E) X_p K_p over the nonzero blocks, E = max d_p: the
@@ -379,36 +404,116 @@ static int scaled_dot(size_t n2, const double *const *xp, const fc__level *L,
 /* Frame f of level j: new block spectrum, sum_p X_{f-p} K_p, one inverse
    FFT, added to outputs f*s + base ... f*s + base + 2s - 2 (only those >= lo:
    lo > 0 when a refused block is undone, see ex_rollback). */
+/* Frame f of level L for channel c (its block spectrum already made):
+   sum_p X_{f-p} K_p, one inverse FFT, added to the channel's outputs from
+   o + i0 on; plan and t (4s+2 doubles) of the thread doing it. */
+static void frame_channel(const ex_engine *s, const fc__level *L, uint64_t f,
+                          size_t c, size_t i0, fc_fft_plan *plan, double *t)
+{
+    size_t sz = L->s, n2 = 2 * sz, R = L->nseg;
+    size_t np = f + 1 < R ? (size_t)f + 1 : R;
+    double *Y = t + n2;
+    uint64_t o = f * sz + L->base;
+    const double *xp[FC_S_SEGS_MAX];
+    size_t off = c * FC_S_XSLOT(n2);
+    int scaled = 0;
+    for (size_t p = 0; p < np; p++) {
+        xp[p] = L->xspec[(f - p) % R] + off;
+        if ((xp[p][n2 + 2] != 0.0 || L->kexp[p] != 0) && xp[p][n2 + 3] == 0.0)
+            scaled = 1;
+    }
+    double *a = arow(s, c) + (o - s->abase);
+    if (!scaled) {
+        fc__spec_dot(plan, xp, (const double *const *)L->kspec, np, Y);
+        fc__fft_inverse(plan, Y, t);
+        for (size_t i = i0; i + 1 < n2; i++) a[i] += t[i];
+    } else {
+        int E = scaled_dot(n2, xp, L, np, Y);
+        fc__fft_inverse(plan, Y, t);
+        for (size_t i = i0; i + 1 < n2; i++) a[i] += ldexp(t[i], E);
+    }
+}
+
+/* A frame with the channels shared by the threads of the push: task k
+   makes the block spectra and the frames of its range of channels (a
+   channel's frame reads only its own spectra), each thread with its own
+   plan and work buffer: the same operations on the same values as the
+   serial loop, so the same bits. */
+typedef struct {
+    ex_engine *s;
+    size_t j, i0, q;
+    uint64_t f;
+} ex_frame_job;
+
+static void frame_task(void *arg, size_t k, size_t w)
+{
+    const ex_frame_job *J = arg;
+    ex_engine *s = J->s;
+    fc__level *L = &s->lev[J->j];
+    fc_fft_plan *plan = w == 0 ? L->plan : s->help[w - 1].plan[J->j];
+    double *t = w == 0 ? s->work : s->help[w - 1].work;
+    size_t c0 = k * s->C / J->q, c1 = (k + 1) * s->C / J->q;
+    for (size_t c = c0; c < c1; c++) {
+        block_spectrum(s, L, J->f, c, plan, t);
+        frame_channel(s, L, J->f, c, J->i0, plan, t);
+    }
+}
+
 static void level_frame(ex_engine *s, size_t j, uint64_t f, uint64_t lo)
 {
     fc__level *L = &s->lev[j];
-    size_t sz = L->s, n2 = 2 * sz, R = L->nseg;
-    size_t np = f + 1 < R ? (size_t)f + 1 : R;
-    double *t = s->work, *Y = t + n2;
+    size_t sz = L->s, n2 = 2 * sz;
     uint64_t o = f * sz + L->base;
     size_t i0 = lo > o ? (size_t)(lo - o) : 0;
-    block_spectra(s, L, f);
-    const double *xp[FC_S_SEGS_MAX];
-    for (size_t c = 0; c < s->C; c++) {
-        size_t off = c * FC_S_XSLOT(n2);
-        int scaled = 0;
-        for (size_t p = 0; p < np; p++) {
-            xp[p] = L->xspec[(f - p) % R] + off;
-            if ((xp[p][n2 + 2] != 0.0 || L->kexp[p] != 0) && xp[p][n2 + 3] == 0.0)
-                scaled = 1;
-        }
-        double *a = arow(s, c) + (o - s->abase);
-        if (!scaled) {
-            fc__spec_dot(L->plan, xp, (const double *const *)L->kspec, np, Y);
-            fc__fft_inverse(L->plan, Y, t);
-            for (size_t i = i0; i + 1 < n2; i++) a[i] += t[i];
-        } else {
-            int E = scaled_dot(n2, xp, L, np, Y);
-            fc__fft_inverse(L->plan, Y, t);
-            for (size_t i = i0; i + 1 < n2; i++) a[i] += ldexp(t[i], E);
-        }
+    if (s->par > 1 && sz >= FC_S_PAR_BLOCK && sz * s->C >= FC_S_PAR_WORK) {
+        size_t q = s->par < s->C ? s->par : s->C;
+        ex_frame_job J = {s, j, i0, q, f};
+        fc__run_tasks(q, q, frame_task, &J);
+    } else {
+        block_spectra(s, L, f);
+        for (size_t c = 0; c < s->C; c++)
+            frame_channel(s, L, f, c, i0, L->plan, s->work);
     }
     if (o + n2 - 1 > s->acc_hi) s->acc_hi = o + n2 - 1;
+}
+
+/* Workers (1 .. want) whose scratch serves every level a threaded frame
+   may use: helpers are made or grown in turn, the first that cannot be
+   (no memory) ends the count. Never an error: fewer threads, same bits. */
+static size_t ex_helpers_ready(ex_engine *s, size_t want)
+{
+    size_t w = 1;
+    if (want > 1 && s->nhelp < want - 1) {
+        ex_helper *h = realloc(s->help, (want - 1) * sizeof *h);
+        if (h == NULL) want = s->nhelp + 1;
+        else {
+            s->help = h;
+            memset(h + s->nhelp, 0, (want - 1 - s->nhelp) * sizeof *h);
+        }
+    }
+    for (; w < want; w++) {
+        ex_helper *h = &s->help[w - 1];
+        int ok = 1;
+        if (w > s->nhelp) s->nhelp = w;
+        if (h->wcap < s->wcap) {
+            double *nw = malloc((4 * s->wcap + 2) * sizeof(double));
+            if (nw == NULL) break;
+            free(h->work);
+            h->work = nw;
+            h->wcap = s->wcap;
+        }
+        for (size_t j = 0; j < s->nlev && ok; j++) {
+            size_t sz = s->lev[j].s;
+            if (sz < FC_S_PAR_BLOCK || sz * s->C < FC_S_PAR_WORK || h->plan[j]) continue;
+            if (fc__fft_create(2 * sz, &h->plan[j]) != FC_OK) ok = 0;
+        }
+        if (!ok) break;
+    }
+    if (s->nhelp == 0 && s->help != NULL) {
+        free(s->help);
+        s->help = NULL;
+    }
+    return w;
 }
 
 /* ------------------------------------------------------------ capacity */
@@ -770,7 +875,7 @@ static int ex_block_safe(const ex_engine *s, const double *x, size_t tot,
 }
 
 static int ex_push_block(ex_engine *s, const double *x, size_t count,
-                         double *y)
+                         double *y, size_t threads)
 {
     size_t C = s->C, tot = count * C; /* fits (the facade checked) */
     int st;
@@ -796,15 +901,22 @@ static int ex_push_block(ex_engine *s, const double *x, size_t count,
         memcpy(s->tmp + 3 * C, s->x0, C * sizeof(double));
     }
     uint64_t n0 = s->n, hi0 = s->acc_hi;
+    if (threads > C) threads = C;
+    /* threads only for a block reaching a frame worth sharing */
+    if (threads > 1 && s->nlev > 0 && s->lev[s->nlev - 1].s >= FC_S_PAR_BLOCK &&
+        s->lev[s->nlev - 1].s * C >= FC_S_PAR_WORK && count >= FC_S_PAR_BLOCK)
+        s->par = ex_helpers_ready(s, threads);
     for (size_t t = 0; t < count; t++) {
         st = ex_step(s, x + t * C, yb + t * C);
         if (st != FC_OK) { /* FC_ERR_RANGE: an output beyond the double range */
+            s->par = 1;
             if (t > 0) ex_rollback(s, n0, hi0);
             s->umax = umax0;
             free(stage);
             return st;
         }
     }
+    s->par = 1;
     if (stage) {
         memcpy(y, stage, tot * sizeof(double));
         free(stage);
@@ -837,6 +949,11 @@ static size_t ex_nbytes(const ex_engine *s)
         b += s->lev[j].made * ((2 * s->lev[j].s + 2) +
                                 s->C * FC_S_XSLOT(2 * s->lev[j].s)) * sizeof(double) +
              fc__fft_nbytes(s->lev[j].plan);
+    for (size_t i = 0; i < s->nhelp; i++) { /* threads' scratch */
+        b += sizeof(ex_helper) + (s->help[i].work ? (4 * s->help[i].wcap + 2) * sizeof(double) : 0);
+        for (size_t j = 0; j < FC_S_MAXLEV; j++)
+            if (s->help[i].plan[j]) b += fc__fft_nbytes(s->help[i].plan[j]);
+    }
     return b;
 }
 
@@ -856,6 +973,11 @@ static void ex_free(ex_engine *s)
     free(s->tmp);
     free(s->leafk);
     free(s->work);
+    for (size_t i = 0; i < s->nhelp; i++) {
+        for (size_t j = 0; j < FC_S_MAXLEV; j++) fc__fft_free(s->help[i].plan[j]);
+        free(s->help[i].work);
+    }
+    free(s->help);
     free(s);
 }
 
@@ -1284,8 +1406,7 @@ static void op_free(void *eng) { ex_free(eng); }
 static int op_push_block(void *eng, const double *x, size_t count, double *y,
                          size_t threads)
 {
-    (void)threads; /* one thread: a time step needs the one before */
-    return ex_push_block(eng, x, count, y);
+    return ex_push_block(eng, x, count, y, threads);
 }
 /* One sample of a one-channel stream: the inline fast path of
    ex_push_block. */

@@ -751,8 +751,11 @@ class Stream:
             the calling thread; -1 every CPU, -2 all but one; 0 refused);
             see :func:`pyfracconv.integral`. A compressed stream with
             channels splits them over the threads (blocks of about 4096
-            values or more); an exact stream runs on the calling thread
-            whatever the value (its time steps share work space). The
+            values or more); an exact stream with channels shares the
+            channels of its large FFT frames (512 samples or more, times
+            the channels at least 2**14) over the threads, the rest of a
+            step staying on the calling thread, and keeps each extra
+            thread's FFT plans (counted in ``nbytes``, not saved). The
             outputs and the state are the same, bit for bit, for every
             value. The GIL is released during the C call.
 
