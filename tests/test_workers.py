@@ -217,3 +217,26 @@ def test_compressed_stream_channels_match_the_batch_within_tol():
     y = s.push_many(x, workers=2)
     ref = pf.integral(x, 0.5, 0.01, axis=0)
     assert np.all(np.abs(y - ref) <= 1e-8 * np.abs(ref) + 1e-300)
+
+
+@pytest.mark.parametrize("T,channels", [(20000, 16), (40000, 5), (9000, 33)])
+@pytest.mark.parametrize("kind,rule,order", [("integral", "trapezoid", 0.6),
+                                             ("derivative", "grunwald", 2.7),
+                                             ("derivative", "l1", 0.3)])
+def test_exact_stream_large_frames_same_bits(T, channels, kind, rule, order):
+    # long enough for frames of 2^10-2^12 samples, the ones shared by the
+    # threads (block size times channels >= 2^14); spikes of 1e6 make the
+    # scaled frame products run too
+    rng = np.random.default_rng(T + channels)
+    x = signal(rng, (T, channels))
+    x[::501] *= 1e6
+    make = getattr(pf.Stream, kind)
+    a = make(order, 0.01, rule=rule, channels=channels)
+    b = make(order, 0.01, rule=rule, channels=channels)
+    cut = T // 3
+    ya = np.concatenate([a.push_many(x[:cut]), a.push_many(x[cut:])])
+    yb = np.concatenate([b.push_many(x[:cut], workers=2), b.push_many(x[cut:], workers=2)])
+    assert same_bits(ya, yb)
+    assert a.save() == b.save()
+    # the second thread ran a frame: its plans and buffer are counted
+    assert b.nbytes > a.nbytes

@@ -162,6 +162,26 @@ static void streams(void)
     free(x); free(y); free(y2);
 }
 
+/* A new exact stream of 8 channels fed T samples by 3 threads (its large
+   frames shared); outputs to y, saved bytes to *b (malloc'd, size *nb). */
+enum { EX_C = 8, EX_T = 17000 };
+static int threaded_exact(const double *x, double *y, unsigned char **b, size_t *nb)
+{
+    fc_stream *s;
+    int st = fc_stream_create(FC_RULE_GRUNWALD, 0.45, 0.01, EX_C, FC_MODE_EXACT, 1e-9, 1e6, &s);
+    *b = NULL;
+    if (st != FC_OK) return st;
+    st = fc_stream_push_block_threads(s, x, EX_T, y, 3);
+    if (st == FC_OK) {
+        long saved = fail_at;
+        fail_at = -1; /* the check's own copy is not under test */
+        *b = stream_bytes(s, nb);
+        fail_at = saved;
+    }
+    fc_stream_free(s);
+    return st;
+}
+
 /* fc_apply with a new context of the given threads (freed after). */
 static int threaded_apply(const double *x, size_t nsig, size_t n, int engine,
                           size_t threads, double *y)
@@ -264,6 +284,24 @@ static void batch(void)
         }
         fc_stream_free(sr);
         free(xs); free(yr); free(yt);
+    }
+    /* the exact stream's threaded frames: a helper's plans or buffer
+       failing leaves the frames to fewer threads, same outputs and state */
+    {
+        double *xs = malloc(EX_C * EX_T * sizeof *xs), *yr = malloc(EX_C * EX_T * sizeof *yr),
+               *yt = malloc(EX_C * EX_T * sizeof *yt);
+        unsigned char *br = NULL, *bt = NULL;
+        size_t nr = 0, nt = 0;
+        fc_stream *sr;
+        for (int i = 0; i < EX_C * EX_T; i++) xs[i] = sin(0.01 * i) + (i % 9 == 0);
+        if (fc_stream_create(FC_RULE_GRUNWALD, 0.45, 0.01, EX_C, FC_MODE_EXACT, 1e-9, 1e6, &sr) != FC_OK ||
+            fc_stream_push_block(sr, xs, EX_T, yr) != FC_OK || !(br = stream_bytes(sr, &nr))) fails++;
+        else
+            FOR_EACH_FAILURE("threaded exact push", threaded_exact(xs, yt, &bt, &nt),
+                             if (memcmp(yt, yr, EX_C * EX_T * sizeof *yt) || !bt || nt != nr || memcmp(bt, br, nr)) { fails++; printf("threaded exact push: outputs or state differ\n"); } free(bt); bt = NULL,
+                             1);
+        fc_stream_free(sr);
+        free(br); free(xs); free(yr); free(yt);
     }
     FOR_EACH_FAILURE("context_create", fc_context_create(&ctx), (void)0, ctx == NULL);
     for (int rep = 0; rep < 2; rep++)

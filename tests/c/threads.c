@@ -103,7 +103,8 @@ static void *worker(void *arg)
  * (the segment products split), 3 signals (split too: 3 is not a
  * multiple of the threads), 4 signals (whole signals) and short signals
  * (run serially), every engine; compressed streams of 3 and 4 channels
- * pushed with fc_stream_push_block_threads (outputs and saved bytes); and
+ * and an exact stream of 8 channels (its large frames shared) pushed with
+ * fc_stream_push_block_threads (outputs and saved bytes); and
  * all of it with 2 threads each, in NTHREADS threads at once (threads
  * inside threads).
  */
@@ -161,6 +162,31 @@ static uint64_t batch_hash(size_t threads, int which)
         free(x);
         free(y);
     }
+    /* an exact stream of 8 channels, long enough for frames of 2048
+       samples (shared by the threads: block size times channels >= 2^14) */
+    {
+        enum { C = 8, T = 17000 };
+        fc_stream *s;
+        double *x = malloc(T * C * sizeof *x), *y = malloc(T * C * sizeof *y);
+        unsigned char *buf;
+        size_t sz, wr;
+        if (!x || !y) return 0;
+        for (size_t i = 0; i < T * C; i++) {
+            st ^= st << 13; st ^= st >> 7; st ^= st << 17;
+            x[i] = (double)(st >> 11) / 9007199254740992.0 - 0.5;
+        }
+        if (fc_stream_create(which ? FC_RULE_GRUNWALD : FC_RULE_TRAPEZOID, 0.45, 0.01, C, FC_MODE_EXACT, 1e-9, 1e6, &s) != FC_OK) return 0;
+        if (fc_stream_push_block_threads(s, x, 5000, y, threads) != FC_OK) return 0;
+        if (fc_stream_push_block_threads(s, x + 5000 * C, T - 5000, y + 5000 * C, threads) != FC_OK) return 0;
+        h = fnv(y, T * C * sizeof *y, h);
+        if (fc_stream_save_size(s, &sz) != FC_OK || !(buf = malloc(sz))) return 0;
+        if (fc_stream_save(s, buf, sz, &wr) != FC_OK) return 0;
+        h = fnv(buf, wr, h);
+        free(buf);
+        fc_stream_free(s);
+        free(x);
+        free(y);
+    }
     return h;
 }
 
@@ -190,7 +216,7 @@ static int threaded_batch(void)
     for (int t = 0; t < NTHREADS; t++) pthread_join(th[t], NULL);
     for (int t = 0; t < NTHREADS; t++)
         if (nested[t] != ref[t % 2]) { printf("threaded batch: context of 2 threads in thread %d differs\n", t); bad = 1; }
-    printf("threads: batch and compressed streams with 1-4 threads %s\n", bad ? "DIFFER" : "match 1 thread bit for bit");
+    printf("threads: batch, compressed and exact streams with 1-4 threads %s\n", bad ? "DIFFER" : "match 1 thread bit for bit");
     return bad;
 }
 
