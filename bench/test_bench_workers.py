@@ -48,3 +48,33 @@ def test_integral_workers(benchmark, case, workers):
     wall = time.perf_counter() - t0
     benchmark.extra_info["cpu_per_wall"] = round(cpu[0] / wall, 2)
     assert y.tobytes() == ref.tobytes()  # bit for bit, whatever workers
+
+
+STREAMS = {"exact 16 x 2^16": ("exact", 16, 2**16),
+           "compressed 16 x 2^16": ("compressed", 16, 2**16)}
+
+
+@pytest.mark.parametrize("workers", [1, 2])
+@pytest.mark.parametrize("name", list(STREAMS))
+def test_push_many_workers(benchmark, name, workers):
+    mode, C, T = STREAMS[name]
+    benchmark.group = f"push_many {name}"
+    x = np.random.default_rng(1).standard_normal((T, C))
+    kw = dict(mode="compressed", tol=1e-10, horizon=1e7) if mode == "compressed" else {}
+    cpu = [0.0]
+    out = {}
+
+    def setup():
+        return (pyfracconv.Stream.integral(A, H, channels=C, **kw),), {}
+
+    def run(s):
+        c0 = time.process_time()
+        out["y"] = s.push_many(x, workers=workers)
+        cpu[0] += time.process_time() - c0
+
+    t0 = time.perf_counter()
+    benchmark.pedantic(run, setup=setup, rounds=5, iterations=1)
+    wall = time.perf_counter() - t0
+    benchmark.extra_info["cpu_per_wall"] = round(cpu[0] / wall, 2)
+    ref = pyfracconv.Stream.integral(A, H, channels=C, **kw).push_many(x)
+    assert out["y"].tobytes() == ref.tobytes()
