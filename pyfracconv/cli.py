@@ -44,6 +44,7 @@ from ._core import (
     check_order,
     check_rule,
     check_step,
+    check_workers,
     derivative,
     integral,
     show,
@@ -529,8 +530,22 @@ def _run_operator(args):
     step = _real_option("step", args.step, check_step)
     _output_kind(args.output)
     check_not_input(args.input, args.output)
+    workers = None
+    if args.workers is not None:
+        try:
+            count = int(args.workers)
+        except ValueError:
+            raise CliError(f"--workers {args.workers}: not an integer; expected a "
+                           "thread count such as 2, or -1 for every CPU") from None
+        try:
+            workers = check_workers(count)
+        except FracconvError as exc:
+            raise CliError(f"--workers {args.workers}: out of range ({exc})") from None
 
     if args.live:
+        if workers is not None:
+            raise CliError("--workers is not available with --live (one line "
+                           "at a time)")
         if args.input != "-" or args.output != "-":
             raise CliError("--live reads standard input and writes standard "
                            "output: use INPUT '-' and -o -")
@@ -559,7 +574,7 @@ def _run_operator(args):
     else:
         data, names = reader(args.input, args.columns)
     op = integral if kind == "integral" else derivative
-    result = op(data, order, step, rule=rule, axis=0)
+    result = op(data, order, step, rule=rule, axis=0, workers=workers)
     write_output(args.output, result, names)
     return 0
 
@@ -746,6 +761,10 @@ def _add_operator(sub, name, rules, default, what, description):
                    help=f"{' or '.join(rules)} (default {default})")
     p.add_argument("--columns", metavar="NAME,NAME...",
                    help="process only these CSV columns, by header name, in this order")
+    p.add_argument("--workers", metavar="N",
+                   help="threads (SciPy's convention: 1 the default, -1 every CPU, "
+                        "-2 all but one); the output is the same bit for bit for "
+                        "every N; not with --live")
     _add_io_options(p)
     p.set_defaults(func=_run_operator)
     return p
