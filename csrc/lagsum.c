@@ -627,9 +627,16 @@ static void part_run(fc_context *ctx, const part_plan *pp, const double *x,
         fc__run_tasks(nsig, T, part_signal_task, &J);
         return;
     }
-    J.q = T / gcd_size(nsig % T, T);
+    /* q ranges per signal: at least q0 (nsig q0 a multiple of T), up to
+       4 T where the ranges stay long, so that a thread held up (a busy
+       machine) leaves more of the ranges to the others */
+    const size_t q0 = T / gcd_size(nsig % T, T);
+    size_t qmax = 4 * T > FC_THREADS_MAX ? FC_THREADS_MAX : 4 * T;
+    if (qmax < q0) qmax = q0;
     /* the direct band: whole chunks of outputs */
     size_t nch = (n + FC_DIRECT_CHUNK - 1) / FC_DIRECT_CHUNK;
+    J.q = qmax < nch ? qmax : nch;
+    if (J.q < q0) J.q = q0;
     for (size_t r = 0; r <= J.q; r++) J.bnd[r] = r * nch / J.q * FC_DIRECT_CHUNK;
     J.phase = 0;
     fc__run_tasks(nsig * J.q, T, part_phase_task, &J);
@@ -638,6 +645,11 @@ static void part_run(fc_context *ctx, const part_plan *pp, const double *x,
            the window) + the segments summed (common practice estimate) */
         size_t nb = (n + pp->W[z] - 1) / pp->W[z], p0 = sh->p0;
         double total = 0.0, acc = 0.0;
+        /* runs of at least 2 nseg blocks: the windows a run computes
+           first (nseg - 1 FFTs) stay a small part of its work */
+        J.q = (nb > p0 ? nb - p0 : 0) / (2 * pp->nseg[z]);
+        if (J.q > qmax) J.q = qmax;
+        if (J.q < q0) J.q = q0;
         for (size_t i = p0; i < nb; i++)
             total += 4.0 + (double)(i - p0 + 1 < pp->nseg[z] ? i - p0 + 1 : pp->nseg[z]);
         size_t r = 1;

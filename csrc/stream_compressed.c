@@ -447,9 +447,11 @@ static int cs_push_block(void *eng, const double *x, size_t count, double *y,
     if (threads > 1 && count * cs->C >= CS_PAR_MIN) {
         double *corr = malloc(count * sizeof(double));
         if (corr != NULL) { /* else: the calling thread alone, below */
-            cs_job J = {cs, x, corr, y, count, threads};
+            /* up to 4 ranges of channels per thread, handed out in turn */
+            size_t q = 4 * threads < cs->C ? 4 * threads : cs->C;
+            cs_job J = {cs, x, corr, y, count, q};
             for (size_t t = 0; t < count; t++) corr[t] = cs_step_corr(cs, cs->n + t);
-            fc__run_tasks(threads, threads, cs_task, &J);
+            fc__run_tasks(q, threads, cs_task, &J);
             cs->n += count;
             free(corr);
             return FC_OK;

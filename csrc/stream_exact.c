@@ -466,9 +466,10 @@ static void level_frame(ex_engine *s, size_t j, uint64_t f, uint64_t lo)
     uint64_t o = f * sz + L->base;
     size_t i0 = lo > o ? (size_t)(lo - o) : 0;
     if (s->par > 1 && sz >= FC_S_PAR_BLOCK && sz * s->C >= FC_S_PAR_WORK) {
-        size_t q = s->par < s->C ? s->par : s->C;
-        ex_frame_job J = {s, j, i0, q, f};
-        fc__run_tasks(q, q, frame_task, &J);
+        /* one task per channel, handed out in turn: a thread held up (a
+           busy machine) leaves the remaining channels to the others */
+        ex_frame_job J = {s, j, i0, s->C, f};
+        fc__run_tasks(s->C, s->par, frame_task, &J);
     } else {
         block_spectra(s, L, f);
         for (size_t c = 0; c < s->C; c++)
