@@ -44,6 +44,9 @@ static inline int fc__add_size(size_t a, size_t b, size_t *r)
  */
 typedef void (*fc__task_fn)(void *arg, size_t task, size_t worker);
 void fc__run_tasks(size_t ntasks, size_t nworkers, fc__task_fn fn, void *arg);
+/* 1 if the build has threads (0 with FC_NO_THREADS or no POSIX threads:
+   then no helper scratch is made either). */
+int fc__have_threads(void);
 /* FC_OK if all n values are finite, FC_ERR_NONFINITE otherwise. */
 int fc__check_finite(const double *x, size_t n);
 /* Largest |v[i]| over n finite values (0 for n == 0). */

@@ -114,6 +114,7 @@ static size_t workers_ready(fc_context *ctx, size_t want, prep_fn prep,
 {
     size_t w = 1;
     if (want > ctx->threads) want = ctx->threads;
+    if (!fc__have_threads()) want = 1;
     if (want > 1 && ctx->nhelp < want - 1) {
         fc_context **h = realloc(ctx->help, (want - 1) * sizeof *h);
         if (h == NULL) want = ctx->nhelp + 1;

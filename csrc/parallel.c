@@ -53,6 +53,11 @@ static void *run_member(void *p)
 }
 #endif
 
+int fc__have_threads(void)
+{
+    return FC__HAVE_PTHREADS;
+}
+
 void fc__run_tasks(size_t ntasks, size_t nworkers, fc__task_fn fn, void *arg)
 {
     if (nworkers > ntasks) nworkers = ntasks;

@@ -484,6 +484,7 @@ static void level_frame(ex_engine *s, size_t j, uint64_t f, uint64_t lo)
 static size_t ex_helpers_ready(ex_engine *s, size_t want)
 {
     size_t w = 1;
+    if (!fc__have_threads()) return 1;
     if (want > 1 && s->nhelp < want - 1) {
         ex_helper *h = realloc(s->help, (want - 1) * sizeof *h);
         if (h == NULL) want = s->nhelp + 1;
