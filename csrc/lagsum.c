@@ -623,6 +623,9 @@ static void part_run(fc_context *ctx, const part_plan *pp, const double *x,
     J.Kd = sh->K < sh->D ? sh->K : sh->D;
     part_kernel_spectra(ctx, pp, c);
     if (T > 1 && nsig * n < FC_PAR_MIN_SAMPLES) T = 1;
+    /* at least about 2^13 samples a thread: no helper (plans, work space)
+       that could have nothing to do */
+    if (T > 1 && T > nsig * n / 8192) T = nsig * n / 8192;
     if (T > 1) T = workers_ready(ctx, T, part_prep_worker, pp);
     if (T == 1 || nsig % T == 0 || nsig >= 2 * T) {
         fc__run_tasks(nsig, T, part_signal_task, &J);
