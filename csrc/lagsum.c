@@ -472,27 +472,6 @@ static void window(const double *x, size_t n, size_t b, size_t W, double *buf)
     memset(buf + off + cnt, 0, (2 * W - off - cnt) * sizeof(double));
 }
 
-/* The spectra of the kernel segments of every size (calling thread). */
-static void part_kernel_spectra(fc_context *ctx, const part_plan *pp,
-                                const double *c)
-{
-    const size_t K = pp->sh.K, p0 = pp->sh.p0;
-    double *buf = ctx->work + pp->ktotal; /* the calling thread's area */
-    for (size_t z = 0; z < pp->nsz; z++) {
-        const size_t W = pp->W[z], n2 = 2 * W, sp = n2 + 2;
-        const double scale = 1.0 / (double)n2;
-        fc_fft_plan *plan = plan_of(ctx, n2);
-        double *kspec = ctx->work + pp->kofs[z];
-        for (size_t j = 0; j < pp->nseg[z]; j++) {
-            size_t lag0 = (p0 + j) * W;
-            for (size_t m = 0; m < W; m++)
-                buf[m] = lag0 + m < K ? c[lag0 + m] * scale : 0.0;
-            memset(buf + W, 0, W * sizeof(double));
-            fc__fft_forward(plan, buf, kspec + j * sp);
-        }
-    }
-}
-
 /*
  * Output blocks ia <= i < ib (ia >= p0) of size z of one signal: block i
  * is one inverse FFT of sum_p Z_{i-p} C_p, added to outputs [iW, iW+W).
@@ -600,6 +579,26 @@ static void part_phase_task(void *arg, size_t k, size_t w)
                 lo, hi, worker_area(J, w));
 }
 
+/* Kernel segment k (counted over every size) into its spectrum: one FFT
+   each, the same whichever thread does it; the worker's area as scratch. */
+static void kspec_task(void *arg, size_t k, size_t w)
+{
+    const part_job *J = arg;
+    const part_plan *pp = J->pp;
+    const size_t K = pp->sh.K, p0 = pp->sh.p0;
+    size_t z = 0;
+    while (k >= pp->nseg[z]) k -= pp->nseg[z++];
+    const size_t W = pp->W[z], n2 = 2 * W, sp = n2 + 2;
+    const double scale = 1.0 / (double)n2;
+    double *buf = worker_area(J, w);
+    size_t lag0 = (p0 + k) * W;
+    for (size_t m = 0; m < W; m++)
+        buf[m] = lag0 + m < K ? J->c[lag0 + m] * scale : 0.0;
+    memset(buf + W, 0, W * sizeof(double));
+    fc__fft_forward(plan_of(worker_ctx(J->ctx, w), n2), buf,
+                    J->ctx->work + pp->kofs[z] + k * sp);
+}
+
 static size_t gcd_size(size_t a, size_t b)
 {
     while (b) { size_t t = a % b; a = b; b = t; }
@@ -621,12 +620,15 @@ static void part_run(fc_context *ctx, const part_plan *pp, const double *x,
     J.y = y;
     J.n = n;
     J.Kd = sh->K < sh->D ? sh->K : sh->D;
-    part_kernel_spectra(ctx, pp, c);
     if (T > 1 && nsig * n < FC_PAR_MIN_SAMPLES) T = 1;
     /* at least about 2^13 samples a thread: no helper (plans, work space)
        that could have nothing to do */
     if (T > 1 && T > nsig * n / 8192) T = nsig * n / 8192;
     if (T > 1) T = workers_ready(ctx, T, part_prep_worker, pp);
+    /* the kernel spectra first (shared, read only afterwards) */
+    size_t nk = 0;
+    for (size_t z = 0; z < pp->nsz; z++) nk += pp->nseg[z];
+    fc__run_tasks(nk, T, kspec_task, &J);
     if (T == 1 || nsig % T == 0 || nsig >= 2 * T) {
         fc__run_tasks(nsig, T, part_signal_task, &J);
         return;
