@@ -206,7 +206,8 @@ FC_API int fc_trapezoid_start(double order, double step, uint64_t start,
  * of the partitioned engine (and the output ranges of the direct
  * engine); every output is computed by the same operations in the same
  * order whatever t, so the results are the same bit for bit for every
- * thread count. Small calls (fewer than about 2^14 samples in all) run on
+ * thread count. Small calls (fewer than about 2^15 samples in all; 2^17
+ * when signals are split) run on
  * the calling thread. A thread, a mutex or a helper's work space that
  * cannot be made is not an error: the call uses fewer threads (down to
  * the calling thread alone), with the same result. Each extra thread

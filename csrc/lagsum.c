@@ -136,7 +136,10 @@ static size_t workers_ready(fc_context *ctx, size_t want, prep_fn prep,
 }
 
 /* Calls with fewer samples than this in all run on the calling thread. */
-#define FC_PAR_MIN_SAMPLES ((size_t)1 << 14)
+#define FC_PAR_MIN_SAMPLES ((size_t)1 << 15)
+/* ... and below this when signals are split (several thread starts and
+   joins a call, one per phase) */
+#define FC_PAR_MIN_SPLIT ((size_t)1 << 17)
 
 static int log2_exact(size_t n)
 {
@@ -624,12 +627,19 @@ static void part_run(fc_context *ctx, const part_plan *pp, const double *x,
     /* at least about 2^13 samples a thread: no helper (plans, work space)
        that could have nothing to do */
     if (T > 1 && T > nsig * n / 8192) T = nsig * n / 8192;
+    /* whole signals when they keep the threads busy, or when the call is
+       too small to split */
+    int whole = T == 1 || nsig % T == 0 || nsig >= 2 * T;
+    if (!whole && nsig * n < FC_PAR_MIN_SPLIT) {
+        if (T > nsig) T = nsig;
+        whole = 1;
+    }
     if (T > 1) T = workers_ready(ctx, T, part_prep_worker, pp);
     /* the kernel spectra first (shared, read only afterwards) */
     size_t nk = 0;
     for (size_t z = 0; z < pp->nsz; z++) nk += pp->nseg[z];
     fc__run_tasks(nk, T, kspec_task, &J);
-    if (T == 1 || nsig % T == 0 || nsig >= 2 * T) {
+    if (whole || T == 1 || nsig % T == 0 || nsig >= 2 * T) {
         fc__run_tasks(nsig, T, part_signal_task, &J);
         return;
     }

@@ -251,7 +251,8 @@ def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
         the signals and, for one long signal, over the independent segment
         products of the blocked engine (the output ranges of the direct
         one): the result is the same, bit for bit, for every value. Calls
-        with fewer than about 2**14 samples in all run on the calling
+        with fewer than about 2**15 samples in all (2**17 when the signals
+        are split) run on the calling
         thread whatever the value. The C call releases the GIL, so other
         Python threads run meanwhile.
 

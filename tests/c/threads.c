@@ -108,7 +108,7 @@ static void *worker(void *arg)
  * all of it with 2 threads each, in NTHREADS threads at once (threads
  * inside threads).
  */
-static const size_t batch_shapes[][2] = {{1, 40000}, {3, 9000}, {4, 6000}, {2, 700}, {1, 1}};
+static const size_t batch_shapes[][2] = {{1, 140000}, {3, 45000}, {4, 6000}, {2, 700}, {1, 1}, {3, 9000}};
 #define NSHAPES (sizeof batch_shapes / sizeof batch_shapes[0])
 
 static uint64_t batch_hash(size_t threads, int which)
