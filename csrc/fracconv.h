@@ -25,7 +25,10 @@
  *     nothing (except fc_stream_free, fc_stream_channels, fc_stream_mode
  *     and the parameter getters, which read immutable fields and take no
  *     guard; freeing a stream in use is undefined). A context and an FFT
- *     plan have NO busy detection: concurrent use of one is undefined;
+ *     plan have NO busy detection: concurrent use of one is undefined; a
+ *     call starts threads of its own only when asked to
+ *     (fc_context_set_threads, fc_stream_push_block_threads), and joins
+ *     them before it returns;
  *   - const: a function taking a const object does not change its state;
  *     on a stream it still sets and clears the stream's busy flag (an
  *     atomic flag, the one field written through a const pointer, by
@@ -207,8 +210,7 @@ FC_API int fc_trapezoid_start(double order, double step, uint64_t start,
  * engine); every output is computed by the same operations in the same
  * order whatever t, so the results are the same bit for bit for every
  * thread count. Small calls (fewer than about 2^15 samples in all; 2^17
- * when signals are split) run on
- * the calling thread. A thread, a mutex or a helper's work space that
+ * when signals are split) run on the calling thread. A thread, a mutex or a helper's work space that
  * cannot be made is not an error: the call uses fewer threads (down to
  * the calling thread alone), with the same result. Each extra thread
  * keeps its own FFT plans and work space in the context (see
