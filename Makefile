@@ -73,8 +73,11 @@ clean:
 # C++17 wrapper (csrc/fracconv.hpp, header-only) and its example program.
 CXX ?= c++
 .PHONY: cpp-example
-cpp-example: $(BUILD)/example_cpp
+cpp-example: $(BUILD)/example_cpp $(BUILD)/solver_controller_cpp
 $(BUILD)/example_cpp: examples/example.cpp csrc/fracconv.hpp csrc/fracconv.h $(BUILD)/libfracconv.a
+	$(CXX) -O2 -std=c++17 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) -o $@
+# the solver and the controller through the wrapper (tests/test_cpp.py)
+$(BUILD)/solver_controller_cpp: examples/solver_controller.cpp csrc/fracconv.hpp csrc/fracconv.h $(BUILD)/libfracconv.a
 	$(CXX) -O2 -std=c++17 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) -o $@
 
 # Fortran 2008 module (fortran/fracconv.f90) and its example program.
@@ -82,10 +85,14 @@ FC = gfortran
 # -Wno-compare-reals: the example compares bit for bit on purpose
 FFLAGS = -O2 -std=f2008 -Wall -Wextra -Werror -Wno-compare-reals
 .PHONY: fortran-example
-fortran-example: $(BUILD)/example_f90
+fortran-example: $(BUILD)/example_f90 $(BUILD)/solver_controller_f90
 $(BUILD)/example_f90: fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a
 	@mkdir -p $(BUILD)/fmod
 	$(FC) $(FFLAGS) -J $(BUILD)/fmod fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a $(LIBS) -o $@
+# the solver and the controller through the module (tests/test_fortran.py)
+$(BUILD)/solver_controller_f90: fortran/fracconv.f90 examples/solver_controller.f90 $(BUILD)/libfracconv.a
+	@mkdir -p $(BUILD)/fmod-sc
+	$(FC) $(FFLAGS) -J $(BUILD)/fmod-sc fortran/fracconv.f90 examples/solver_controller.f90 $(BUILD)/libfracconv.a $(LIBS) -o $@
 
 # ------------------------------------------------------------- install
 # make install PREFIX=/usr/local [DESTDIR=/staging]: the headers
@@ -154,6 +161,8 @@ uninstall:
 #                   compared with the default build (tests/c/simd_compare.c)
 #   asan            AddressSanitizer + UndefinedBehaviorSanitizer (+ leaks)
 #   tsan            ThreadSanitizer on tests/c/threads.c
+#   valgrind        valgrind memcheck on the API driver and alloc_fail
+#   fuzz-run, fuzz-regress   libFuzzer (below)
 CLANG ?= clang
 TSAN_CC ?= $(CC)
 WERROR_CFLAGS = $(FC_OPT_CFLAGS) -Werror
@@ -207,3 +216,112 @@ asan:
 tsan:
 	$(MAKE) CC="$(TSAN_CC) $(TSAN_FLAGS)" CFLAGS="-O1" BUILD=$(BUILD)/tsan lib $(BUILD)/tsan/tests/threads
 	$(BUILD)/tsan/tests/threads
+
+# valgrind memcheck on the API driver and the allocation-failure test
+# (README, "Reliability"): any memory error or leak (definite, indirect or
+# possible) fails the target. A build of its own, -O1 -g, no sanitizers.
+VALGRIND ?= valgrind
+VALGRIND_FLAGS = --tool=memcheck --error-exitcode=99 --leak-check=full \
+	--errors-for-leak-kinds=definite,indirect,possible --show-leak-kinds=definite,indirect,possible \
+	--track-origins=yes -q
+.PHONY: valgrind
+valgrind:
+	$(MAKE) CFLAGS="-O1 -g" BUILD=$(BUILD)/valgrind lib $(BUILD)/valgrind/tests/api_driver $(BUILD)/valgrind/tests/alloc_fail
+	$(VALGRIND) $(VALGRIND_FLAGS) $(BUILD)/valgrind/tests/api_driver
+	$(VALGRIND) $(VALGRIND_FLAGS) $(BUILD)/valgrind/tests/alloc_fail
+
+# ---------------------------------------------------------------------------
+# Fuzzing (README, "Reliability"; tests/fuzz/). libFuzzer targets built by
+# clang with AddressSanitizer and UndefinedBehaviorSanitizer, the library
+# compiled for coverage into $(FUZZ_DIR):
+#   fuzz_<loader>          bytes straight into the loader
+#   fuzz_<loader>_fixsum   every checksum recomputed first (fixsum.h)
+# for the loaders stream_exact, stream_compressed (fc_stream_load),
+# solver (fc_solver_load) and controller (fc_controller_load), and
+# fuzz_args (the argument checking of the public functions).
+#   make fuzz                       build them
+#   make fuzz-run FUZZ_SECONDS=20   fuzz each target for FUZZ_SECONDS,
+#                                   starting from the checked-in corpus
+#                                   (new inputs go to $(FUZZ_DIR)/work)
+#   make fuzz-regress               run every checked-in corpus input once
+#   make fuzz-corpus                regenerate tests/fuzz/corpus (saved
+#                                   states from tests/fuzz/make_corpus.c)
+# A crash leaves its input in $(FUZZ_DIR)/artifacts/ and fails the target;
+# once fixed, the input goes into tests/fuzz/found/<corpus folder>/.
+FUZZ_CC ?= $(CLANG)
+FUZZ_DIR = $(BUILD)/fuzz
+FUZZ_SAN = -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer -g
+FUZZ_SECONDS ?= 20
+FUZZ_LOADERS = stream_exact stream_compressed solver controller
+FUZZ_TARGETS = $(foreach l,$(FUZZ_LOADERS),fuzz_$(l) fuzz_$(l)_fixsum) fuzz_args
+FUZZ_BINS = $(addprefix $(FUZZ_DIR)/,$(FUZZ_TARGETS))
+FUZZ_CORPUS = tests/fuzz/corpus
+# allocator_may_return_null: a refused huge allocation must come back as
+# FC_ERR_NOMEM, not end the run
+FUZZ_ENV = ASAN_OPTIONS=detect_leaks=1:allocator_may_return_null=1:abort_on_error=0 \
+	UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1
+FUZZ_FLAGS = -timeout=20 -rss_limit_mb=2048 -print_final_stats=1
+# the corpus folders of a target: the generated seeds, the inputs of
+# faults found so far (tests/fuzz/found/, kept apart so that make
+# fuzz-corpus never removes them) and, for streams and controllers,
+# tests/data (saved states of the first format version)
+fuzz_dir_of = $(patsubst fuzz_%,%,$(patsubst %_fixsum,%,$(1)))
+fuzz_corpus_of = $(FUZZ_CORPUS)/$(call fuzz_dir_of,$(1)) \
+	$(wildcard tests/fuzz/found/$(call fuzz_dir_of,$(1))) \
+	$(if $(filter fuzz_stream_exact% fuzz_controller%,$(1)),tests/data)
+fuzz_loader_of = $(if $(filter fuzz_solver%,$(1)),1,$(if $(filter fuzz_controller%,$(1)),2,0))
+
+.PHONY: fuzz fuzz-run fuzz-regress fuzz-corpus
+
+fuzz: $(FUZZ_BINS)
+
+$(FUZZ_DIR)/libfracconv.a: $(SRCS) $(HDRS) csrc/flags.mk
+	$(MAKE) CC="$(FUZZ_CC) $(FUZZ_SAN) -fsanitize=fuzzer-no-link" CFLAGS="-O1" \
+		BUILD=$(FUZZ_DIR) $(FUZZ_DIR)/libfracconv.a
+
+$(FUZZ_DIR)/fuzz_%: tests/fuzz/fuzz_load.c tests/fuzz/fixsum.h csrc/fracconv.h $(FUZZ_DIR)/libfracconv.a
+	$(FUZZ_CC) $(FUZZ_SAN) -fsanitize=fuzzer -O1 -std=c11 -Wall -Wextra -Werror -Icsrc \
+		-DFUZZ_LOADER=$(call fuzz_loader_of,fuzz_$*) -DFUZZ_FIX=$(if $(filter %_fixsum,$*),1,0) \
+		$< $(FUZZ_DIR)/libfracconv.a $(LIBS) -o $@
+
+$(FUZZ_DIR)/fuzz_args: tests/fuzz/fuzz_args.c csrc/fracconv.h $(FUZZ_DIR)/libfracconv.a
+	$(FUZZ_CC) $(FUZZ_SAN) -fsanitize=fuzzer -O1 -std=c11 -Wall -Wextra -Werror -Icsrc \
+		$< $(FUZZ_DIR)/libfracconv.a $(LIBS) -o $@
+
+# One run target and one regression target per fuzz target (fuzz-run-T,
+# fuzz-regress-T); fuzz-run and fuzz-regress run them one after another.
+define FUZZ_RULES
+.PHONY: fuzz-run-$(1) fuzz-regress-$(1)
+fuzz-run-$(1): $(FUZZ_DIR)/$(1)
+	@mkdir -p $(FUZZ_DIR)/artifacts $(FUZZ_DIR)/logs $(FUZZ_DIR)/work/$(1)
+	@echo "== $(1): $(FUZZ_SECONDS) s (log: $(FUZZ_DIR)/logs/$(1).log)"
+	@if $(FUZZ_ENV) $(FUZZ_DIR)/$(1) $(FUZZ_FLAGS) -max_total_time=$(FUZZ_SECONDS) \
+		-artifact_prefix=$(FUZZ_DIR)/artifacts/$(1)- $(FUZZ_DIR)/work/$(1) \
+		$(call fuzz_corpus_of,$(1)) > $(FUZZ_DIR)/logs/$(1).log 2>&1; then \
+		grep -E '^(stat::number_of_executed_units|stat::new_units_added|stat::peak_rss_mb)' $(FUZZ_DIR)/logs/$(1).log || true; \
+	else \
+		tail -n 60 $(FUZZ_DIR)/logs/$(1).log; echo "$(1): FAILED"; exit 1; \
+	fi
+fuzz-regress-$(1): $(FUZZ_DIR)/$(1)
+	@echo "== $(1): every corpus input once"
+	@if $(FUZZ_ENV) $(FUZZ_DIR)/$(1) $(FUZZ_FLAGS) -runs=0 $(call fuzz_corpus_of,$(1)) \
+		> $(FUZZ_DIR)/$(1).regress.log 2>&1; then \
+		grep -E 'INITED|Done' $(FUZZ_DIR)/$(1).regress.log || true; \
+	else \
+		tail -n 60 $(FUZZ_DIR)/$(1).regress.log; echo "$(1): FAILED"; exit 1; \
+	fi
+endef
+$(foreach t,$(FUZZ_TARGETS),$(eval $(call FUZZ_RULES,$(t))))
+
+fuzz-run: $(addprefix fuzz-run-,$(FUZZ_TARGETS))
+fuzz-regress: $(addprefix fuzz-regress-,$(FUZZ_TARGETS))
+
+fuzz-corpus: $(BUILD)/make_corpus
+	rm -rf $(FUZZ_CORPUS)/stream_exact $(FUZZ_CORPUS)/stream_compressed \
+		$(FUZZ_CORPUS)/solver $(FUZZ_CORPUS)/controller $(FUZZ_CORPUS)/args
+	mkdir -p $(FUZZ_CORPUS)/stream_exact $(FUZZ_CORPUS)/stream_compressed \
+		$(FUZZ_CORPUS)/solver $(FUZZ_CORPUS)/controller $(FUZZ_CORPUS)/args
+	$(BUILD)/make_corpus $(FUZZ_CORPUS)
+
+$(BUILD)/make_corpus: tests/fuzz/make_corpus.c csrc/fracconv.h $(BUILD)/libfracconv.a
+	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) -o $@

@@ -132,3 +132,25 @@ def test_vector_numpy_loop(benchmark):
     y0 = np.linspace(0.5, 1.5, M)
     y = benchmark.pedantic(numpy_pc, args=(rhs_vector, y0, n, False), rounds=3, iterations=1)
     _check(solve(rhs_vector, y0, A, H, n).y, y)
+
+
+# ------------------------------------------------------------ one step a call
+
+def _step_loop(n, memory, one):
+    st = pyfracconv.Stepper(rhs_scalar, 1.0, A, H, memory=memory, horizon=n + 1)
+    step = st.step if one == "step" else (lambda: st.advance(1))
+    for _ in range(n):
+        step()
+    return st
+
+
+@pytest.mark.parametrize("one", ["step", "advance(1)"])
+@pytest.mark.parametrize("memory", ["exact", "compressed"])
+def test_scalar_one_step_per_call(benchmark, memory, one):
+    """A plant fed back one step at a time: Stepper.step() against
+    advance(1), 1e4 steps (per-call cost on top of solve's per-step cost)."""
+    n = 10**4
+    benchmark.group = f"scalar PC, one step a call, {n} steps"
+    st = benchmark.pedantic(_step_loop, args=(n, memory, one), rounds=3, iterations=1)
+    _per_step(benchmark, n)
+    assert st.steps == n

@@ -18,13 +18,14 @@
 #include <string.h>
 
 #include "fracconv.h"
+#include "guard.h"
 #include "serial.h"
 
 struct fc_controller {
     fc_controller_params p;
     fc_stream *si;      /* integral stream, NULL when ki == 0 */
     fc_stream *sd;      /* derivative stream, NULL when kd == 0 */
-    int busy;
+    fc__guard busy;     /* guard.h: one call at a time */
     int manual;
     double u_manual;
     int have_prev;      /* == (count > 0) */
@@ -132,6 +133,7 @@ int fc_controller_create(const fc_controller_params *p, fc_controller **out)
     if (st) return st;
     fc_controller *c = calloc(1, sizeof *c);
     if (!c) return FC_ERR_NOMEM;
+    fc__guard_init(&c->busy);
     c->p = q;
     clear_state(c);
     if (q.ki != 0) {
@@ -251,8 +253,10 @@ static int update1(fc_controller *c, double r, double y, double *uout)
         return FC_ERR_RANGE;
     /* Room for this sample in both streams first (an exact stream grows;
        a failed allocation refuses the update here, with nothing changed). */
-    if ((st = room_for_one(c->sd)) != FC_OK) return st;
-    if ((st = room_for_one(c->si)) != FC_OK) return st;
+    if (p->memory == FC_MODE_EXACT) {
+        if ((st = room_for_one(c->sd)) != FC_OK) return st;
+        if ((st = room_for_one(c->si)) != FC_OK) return st;
+    }
     /* Every refusal is behind us: the pushes repeat the previews. */
     double tmp;
     if (c->sd && (st = fc_stream_push1(c->sd, ed, &tmp)) != FC_OK) return st;
@@ -275,13 +279,12 @@ static int update1(fc_controller *c, double r, double y, double *uout)
 
 int fc_controller_update(fc_controller *c, double r, double y, double *u)
 {
-    if (!c || !u) return FC_ERR_NULL;
-    if (c->busy) return FC_ERR_BUSY;
-    c->busy = 1;
+    if (!u) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(c);
     double out;
     int st = update1(c, r, y, &out);
     if (!st) *u = out;
-    c->busy = 0;
+    fc__guard_leave(&c->busy);
     return st;
 }
 
@@ -299,10 +302,12 @@ int fc_controller_update_block(fc_controller *c, const double *r,
     if (n > 0 && (!r || !y || !u)) return FC_ERR_NULL;
     if (n > SIZE_MAX / sizeof(double)) return FC_ERR_SIZE;
     if (n > 0 && (overlaps(u, n, r, n) || overlaps(u, n, y, n))) return FC_ERR_ARG;
-    if (c->busy) return FC_ERR_BUSY;
+    FC__ENTER_OR_RETURN(c);
     for (size_t i = 0; i < n; i++)
-        if (!isfinite(r[i]) || !isfinite(y[i])) return FC_ERR_NONFINITE;
-    c->busy = 1;
+        if (!isfinite(r[i]) || !isfinite(y[i])) {
+            fc__guard_leave(&c->busy);
+            return FC_ERR_NONFINITE;
+        }
     size_t i = 0;
     int st = FC_OK;
     for (; i < n; i++) {
@@ -310,7 +315,7 @@ int fc_controller_update_block(fc_controller *c, const double *r,
         if (st) break;
     }
     if (done) *done = i;
-    c->busy = 0;
+    fc__guard_leave(&c->busy);
     return st;
 }
 
@@ -318,30 +323,31 @@ int fc_controller_set_manual(fc_controller *c, double u_manual)
 {
     if (!c) return FC_ERR_NULL;
     if (!isfinite(u_manual)) return FC_ERR_NONFINITE;
-    if (c->busy) return FC_ERR_BUSY;
+    FC__ENTER_OR_RETURN(c);
     c->manual = 1;
     c->u_manual = u_manual;
+    fc__guard_leave(&c->busy);
     return FC_OK;
 }
 
 int fc_controller_set_auto(fc_controller *c)
 {
-    if (!c) return FC_ERR_NULL;
-    if (c->busy) return FC_ERR_BUSY;
+    FC__ENTER_OR_RETURN(c);
     c->manual = 0;
     c->u_manual = 0;
+    fc__guard_leave(&c->busy);
     return FC_OK;
 }
 
 int fc_controller_reset(fc_controller *c)
 {
-    if (!c) return FC_ERR_NULL;
-    if (c->busy) return FC_ERR_BUSY;
-    int st;
-    if (c->si && (st = fc_stream_reset(c->si))) return st;
-    if (c->sd && (st = fc_stream_reset(c->sd))) return st;
-    clear_state(c);
-    return FC_OK;
+    FC__ENTER_OR_RETURN(c);
+    int st = FC_OK;
+    if (c->si) st = fc_stream_reset(c->si);
+    if (!st && c->sd) st = fc_stream_reset(c->sd);
+    if (!st) clear_state(c);
+    fc__guard_leave(&c->busy);
+    return st;
 }
 
 int fc_controller_get_params(const fc_controller *c, fc_controller_params *p)
@@ -353,38 +359,47 @@ int fc_controller_get_params(const fc_controller *c, fc_controller_params *p)
 
 int fc_controller_status(const fc_controller *c, int *status)
 {
-    if (!c || !status) return FC_ERR_NULL;
+    if (!status) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(c);
     int s = 0, f;
     if (c->limited) s |= FC_CTRL_LIMITED;
     if (c->manual) s |= FC_CTRL_MANUAL;
     if (c->si && !fc_stream_past_horizon(c->si, &f) && f) s |= FC_CTRL_PAST_HORIZON;
     if (c->sd && !fc_stream_past_horizon(c->sd, &f) && f) s |= FC_CTRL_PAST_HORIZON;
     *status = s;
+    fc__guard_leave(&c->busy);
     return FC_OK;
 }
 
 int fc_controller_terms(const fc_controller *c, double *t)
 {
-    if (!c || !t) return FC_ERR_NULL;
+    if (!t) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(c);
     memcpy(t, c->terms, sizeof c->terms);
+    fc__guard_leave(&c->busy);
     return FC_OK;
 }
 
 int fc_controller_count(const fc_controller *c, uint64_t *count)
 {
-    if (!c || !count) return FC_ERR_NULL;
+    if (!count) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(c);
     *count = c->count;
+    fc__guard_leave(&c->busy);
     return FC_OK;
 }
 
 int fc_controller_nbytes(const fc_controller *c, size_t *nbytes)
 {
-    if (!c || !nbytes) return FC_ERR_NULL;
+    if (!nbytes) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(c);
     size_t n = sizeof *c, b;
-    if (c->si) { if (fc_stream_nbytes(c->si, &b)) return FC_ERR_ARG; n += b; }
-    if (c->sd) { if (fc_stream_nbytes(c->sd, &b)) return FC_ERR_ARG; n += b; }
-    *nbytes = n;
-    return FC_OK;
+    int st = FC_OK;
+    if (c->si) { if (fc_stream_nbytes(c->si, &b)) st = FC_ERR_ARG; else n += b; }
+    if (!st && c->sd) { if (fc_stream_nbytes(c->sd, &b)) st = FC_ERR_ARG; else n += b; }
+    if (!st) *nbytes = n;
+    fc__guard_leave(&c->busy);
+    return st;
 }
 
 /* ------------------------------------------------------------ save/load
@@ -419,9 +434,8 @@ static int stream_size(fc_stream *s, size_t *n)
     return s ? fc_stream_save_size(s, n) : FC_OK;
 }
 
-int fc_controller_save_size(const fc_controller *c, size_t *size)
+static int save_size(const fc_controller *c, size_t *size)
 {
-    if (!c || !size) return FC_ERR_NULL;
     size_t a, b;
     int st;
     if ((st = stream_size(c->si, &a)) || (st = stream_size(c->sd, &b))) return st;
@@ -431,13 +445,20 @@ int fc_controller_save_size(const fc_controller *c, size_t *size)
     return FC_OK;
 }
 
-int fc_controller_save(const fc_controller *c, unsigned char *buf, size_t size,
-                       size_t *written)
+int fc_controller_save_size(const fc_controller *c, size_t *size)
 {
-    if (!c || !buf || !written) return FC_ERR_NULL;
-    if (c->busy) return FC_ERR_BUSY;
+    if (!size) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(c);
+    int st = save_size(c, size);
+    fc__guard_leave(&c->busy);
+    return st;
+}
+
+static int save(const fc_controller *c, unsigned char *buf, size_t size,
+                size_t *written)
+{
     size_t need;
-    int st = fc_controller_save_size(c, &need);
+    int st = save_size(c, &need);
     if (st) return st;
     if (size < need) return FC_ERR_ARG;
     const fc_controller_params *p = &c->p;
@@ -480,6 +501,16 @@ int fc_controller_save(const fc_controller *c, unsigned char *buf, size_t size,
     free(tmp);
     *written = off;
     return FC_OK;
+}
+
+int fc_controller_save(const fc_controller *c, unsigned char *buf, size_t size,
+                       size_t *written)
+{
+    if (!buf || !written) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(c);
+    int st = save(c, buf, size, written);
+    fc__guard_leave(&c->busy);
+    return st;
 }
 
 static int same_stream(fc_stream *s, int rule, double order,
@@ -558,6 +589,7 @@ int fc_controller_load(const unsigned char *buf, size_t size,
     if ((sn[0] != 0) != (p.ki != 0) || (sn[1] != 0) != (p.kd != 0)) return FC_ERR_FORMAT;
     fc_controller *c = calloc(1, sizeof *c);
     if (!c) return FC_ERR_NOMEM;
+    fc__guard_init(&c->busy);
     c->p = p;
     int st = FC_OK;
     if (sn[0]) {

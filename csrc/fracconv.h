@@ -20,17 +20,21 @@
  *     functions accept NULL;
  *   - threads: the functions without an object argument are thread-safe;
  *     different objects may be used from different threads freely; one
- *     object must not be used by two threads at once. A stream detects it:
- *     a call that finds its stream busy returns FC_ERR_BUSY and changes
- *     nothing (except fc_stream_free, fc_stream_channels, fc_stream_mode
- *     and the parameter getters, which read immutable fields and take no
- *     guard; freeing a stream in use is undefined). A context and an FFT
- *     plan have NO busy detection: concurrent use of one is undefined; a
- *     call starts threads of its own only when asked to
- *     (fc_context_set_threads, fc_stream_push_block_threads), and joins
- *     them before it returns;
+ *     object must not be used by two threads at once. A stream, a solver
+ *     and a controller detect it: a call that finds its object busy
+ *     returns FC_ERR_BUSY and changes nothing (except the free functions,
+ *     fc_stream_channels, fc_stream_mode, the stream parameter getters,
+ *     fc_solver_dim and fc_controller_get_params, which read immutable
+ *     fields and take no guard; freeing an object in use is undefined).
+ *     A solver is busy for the whole of fc_solver_advance, its callbacks
+ *     included: a callback that calls a function of its own solver gets
+ *     FC_ERR_BUSY. A context and an FFT plan have NO busy detection:
+ *     concurrent use of one is undefined; a call starts threads of its
+ *     own only when asked to (fc_context_set_threads,
+ *     fc_stream_push_block_threads), and joins them before it returns;
  *   - const: a function taking a const object does not change its state;
- *     on a stream it still sets and clears the stream's busy flag (an
+ *     on a stream, solver or controller it still sets and clears the
+ *     object's busy flag (an
  *     atomic flag, the one field written through a const pointer, by
  *     design: streams are always allocated by the library, never const
  *     objects);
@@ -110,6 +114,7 @@ extern "C" {
 #define FC_ERR_INDEX 14      /* index range beyond what the weights support (start+count > 2^53) */
 #define FC_ERR_RANGE 15      /* a result (or a value it needs) is beyond the double range */
 #define FC_ERR_HORIZON 16    /* compressed stream: the push would pass the horizon */
+#define FC_ERR_IO 17         /* a file could not be opened, read, written, synced or renamed (errno says why) */
 
 /* Rules. */
 #define FC_RULE_RECTANGLE 0
@@ -289,6 +294,37 @@ FC_API int fc_apply(fc_context *ctx, int rule, double order, double step,
              const double *x, size_t nsig, size_t n, int engine, double *y);
 
 /*
+ * A rule on any strictly increasing grid of times, by sums of exponentials
+ * (the fast engine of integral/derivative(..., t=) in Python; the direct
+ * O(n^2) engine is pyfracconv.grid): y[s*n + i] approximates the operator
+ * at t[i], from t[0], for nsig signals of n samples (x, y as for fc_apply).
+ * Rules and orders: RECTANGLE and TRAPEZOID (I^a, 0 < order <= 1), L1
+ * (Caputo, 0 < order < 1); the weights on the grid are those of
+ * pyfracconv.grid.grid_weights (product rules of Diethelm, Ford and Freed
+ * 2002; L1 of Stynes, O'Riordan and Gracia 2017). t: n finite times,
+ * strictly increasing (else FC_ERR_NONFINITE / FC_ERR_ARG); the span
+ * t[n-1] - t[0] at most 2^100 times the smallest step (else FC_ERR_TOL;
+ * the terms grow with the logarithm of that ratio). tol in [1e-15, 1e-2]
+ * (FC_ERR_TOL). y must not overlap x or t (FC_ERR_ARG). *terms (may be
+ * NULL) gets the number L of exponential terms used.
+ * Promise, for every output (componentwise):
+ *   |y_n - y_n(exact)| <= (tol + (L + 64) eps) S_n,  eps = 2^-52,
+ * y_n(exact) the rule in exact arithmetic with the exact weights on the
+ * grid, S_n the sum of the absolute values of its terms (L1: of the weights
+ * times the increments x_{k+1} - x_k). Work O(n L) plus the construction
+ * of the sum (about 100 L kernel values per decade of span / smallest
+ * step); L is 28-64 for tol 1e-6 .. 1e-13 and a span of 1e6 smallest
+ * steps (csrc/grid_soe.c). Any
+ * finite samples: FC_ERR_RANGE (y untouched) exactly when an output is
+ * beyond the double range; outputs near the subnormal range get an
+ * absolute error (exponential states below DBL_MIN are set to zero, as in
+ * compressed streams, so that runs of zeros cost no more than data).
+ */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_TOL, FC_ERR_SIZE, FC_ERR_ARG (t not increasing, overlap), FC_ERR_NONFINITE (t or x), FC_ERR_RANGE, FC_ERR_NOMEM. */
+FC_API int fc_grid_apply(int rule, double order, const double *t, const double *x,
+                         size_t nsig, size_t n, double tol, double *y, size_t *terms);
+
+/*
  * Streams: samples arrive one at a time (per channel); the n-th output
  * equals element n of fc_apply / fc_lagged_sum on the same samples, to
  * rounding (exact mode) or to a stated tolerance (compressed mode).
@@ -317,7 +353,12 @@ typedef struct fc_stream fc_stream;
  * trapezoid rule). 64 eps is the rounding allowance (16 eps in the check
  * made at creation, the rest the arithmetic of a push; measured: below
  * 11 eps); at tol = 1e-15 it dominates. Nothing is promised past the
- * horizon (fc_stream_set_horizon_policy). Creation returns FC_ERR_TOL if
+ * horizon (fc_stream_set_horizon_policy). Outputs whose terms are in or
+ * near the subnormal range have an absolute error besides, below
+ * Lp DBL_MIN max_l |beta_l| (Lp: terms rounded up to 8): an exponential
+ * state or its compensation below DBL_MIN is set to zero, so that a
+ * stream fed zeros keeps the same work per sample (subnormal arithmetic
+ * is many times slower on common CPUs). Creation returns FC_ERR_TOL if
  * no construction passes its check: seen only for FC_RULE_GRUNWALD with
  * tol < 2e-15 and horizon > 1e14.
  * Range: finite samples never give NaN or inf. A compressed push or preview
@@ -474,6 +515,48 @@ FC_API int fc_stream_horizon(const fc_stream *s, double *horizon);
 
 
 /*
+ * A compressed stream with a time per sample: created without a fixed
+ * step, it takes (time, sample) pairs (fc_stream_push_timed). Rules:
+ * RECTANGLE, TRAPEZOID (I^a, 0 < order <= 1), L1 (Caputo, 0 < order < 1),
+ * from the first time pushed, with the weights of fc_grid_apply on the
+ * times pushed. min_step: finite, > 0, the smallest step any push may make
+ * (FC_ERR_STEP); horizon: a time span, finite, min_step <= horizon and
+ * horizon/2^floor(log2 min_step) at most 2^99 (FC_ERR_TOL; any horizon up
+ * to 2^98 min_step passes); tol in [1e-15, 1e-2]
+ * (FC_ERR_TOL). Promise, for every output n with t_n - t_0 <= horizon:
+ *   |y_n - y_n(exact)| <= (tol + (L + 64) eps) S_n
+ * as for fc_grid_apply (L = fc_stream_terms). fc_stream_push_timed: t[count]
+ * finite (FC_ERR_NONFINITE), each step t - (previous time) >= min_step
+ * (FC_ERR_ARG; a time not after the previous one included), an output past
+ * the horizon FC_ERR_HORIZON under FC_HORIZON_REFUSE (FC_HORIZON_CONTINUE:
+ * it proceeds, fc_stream_past_horizon reports 1); samples (L1: their
+ * increments) of magnitude above the stream's bound U (csrc/stream_timed.c,
+ * RANGE; about 1e290 for a horizon of 1e6 smallest steps) FC_ERR_RANGE; a
+ * count reaching 2^53 FC_ERR_SIZE. x, y: count*channels doubles, y == x or
+ * no overlap, y must not overlap t (FC_ERR_ARG). Any refusal pushes
+ * nothing of the block and changes nothing. The untimed fc_stream_push,
+ * fc_stream_push_block, fc_stream_push1, fc_stream_preview and
+ * fc_stream_history refuse such a stream with FC_ERR_ARG, and
+ * fc_stream_push_timed refuses every other stream with FC_ERR_ARG.
+ * fc_stream_step gives min_step, fc_stream_horizon the time horizon,
+ * fc_stream_mode FC_MODE_COMPRESSED, fc_stream_remaining the samples the
+ * count still allows (the horizon is a time). Save/load: fc_stream_save,
+ * fc_stream_load (kind 2 of the common header; the loader rebuilds the
+ * terms and compares them bit for bit, and checks the times, the count and
+ * the state).
+ */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_ARG (channels 0), FC_ERR_SIZE (channels too many), FC_ERR_TOL, FC_ERR_RANGE, FC_ERR_NOMEM. */
+FC_API int fc_stream_create_timed(int rule, double order, double min_step,
+                                  size_t channels, double tol, double horizon,
+                                  fc_stream **out);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (not a timed stream, step below min_step, overlap), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE. */
+FC_API int fc_stream_push_timed(fc_stream *s, const double *t, const double *x,
+                                size_t count, double *y);
+/* *timed = 1 for a stream with a time per sample, else 0. */
+/* Statuses: FC_OK, FC_ERR_NULL (immutable field: no busy check). */
+FC_API int fc_stream_is_timed(const fc_stream *s, int *timed);
+
+/*
  * Solver: Caputo initial value problems
  *     D^a_i y_i = f_i(t, y),   y_i^(k)(t0) = y0_{k,i},  k < ceil(a_i),
  * for y of m components, 0 < a_i <= 2 (one order per component; equal
@@ -543,17 +626,17 @@ FC_API int fc_solver_create(size_t m, const double *orders, double step, double 
 FC_API void fc_solver_free(fc_solver *s);
 /* The right-hand side (required before advancing; fn != NULL) and the
    Jacobian (fn == NULL: forward differences, m extra rhs calls each). */
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_set_rhs(fc_solver *s, fc_rhs_fn fn, void *user);
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_set_jacobian(fc_solver *s, fc_jac_fn fn, void *user);
 /* Newton's method of the implicit methods: stop when every residual
    component |r_i| <= tol * (|y_i| + |c_i| + |w0_i f_i|), c the known part;
    tol in [1e-15, 1e-2] (default 1e-12), 1 <= maxiter <= 1000 (default 50). */
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_TOL (tol out of range), FC_ERR_ARG (maxiter out of range). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_TOL (tol out of range), FC_ERR_ARG (maxiter out of range). */
 FC_API int fc_solver_set_newton(fc_solver *s, double tol, unsigned maxiter);
 /* Corrector passes of FC_METHOD_PC, 1 <= passes <= 100 (default 1). */
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (passes out of range; for a method other than FC_METHOD_PC the setting is accepted and has no effect). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (passes out of range; for a method other than FC_METHOD_PC the setting is accepted and has no effect). */
 FC_API int fc_solver_set_corrections(fc_solver *s, unsigned passes);
 /*
  * Advance by nsteps steps. t_out: nsteps doubles or NULL; y_out:
@@ -566,34 +649,34 @@ FC_API int fc_solver_set_corrections(fc_solver *s, unsigned passes);
  * FC_ERR_HORIZON (compressed: step count would pass the horizon),
  * FC_ERR_NOMEM (the streams' room for nsteps more samples).
  */
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_NORHS, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM (refused before any work); FC_ERR_CALLBACK, FC_ERR_NONFINITE, FC_ERR_NEWTON, FC_ERR_RANGE (stop the run, *done steps kept). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_NORHS, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM (refused before any work); FC_ERR_CALLBACK, FC_ERR_NONFINITE, FC_ERR_NEWTON, FC_ERR_RANGE (stop the run, *done steps kept). */
 FC_API int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
                              double *y_out, size_t *done);
 /* Current time t0 + n*step, state y[m], steps done, dimension m. */
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_time(const fc_solver *s, double *t);
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_state(const fc_solver *s, double *y);
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_steps(const fc_solver *s, uint64_t *n);
 /* Statuses: FC_OK, FC_ERR_NULL. */
 FC_API int fc_solver_dim(const fc_solver *s, size_t *m);
 /* Calls of rhs (including those of difference Jacobians) and of jac. */
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_counts(const fc_solver *s, uint64_t *rhs_calls,
                             uint64_t *jac_calls);
 /* The step index (n+1 for the step from t_n; 0 for f(t0, y0)) and time of
    the last failed evaluation; *step = UINT64_MAX if none. */
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_failure(const fc_solver *s, uint64_t *step, double *t);
 /* Bytes of memory held (streams included). */
-/* Statuses: FC_OK, FC_ERR_NULL. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_nbytes(const fc_solver *s, size_t *nbytes);
 /* Save / load: little-endian, versioned, FNV-1a 64 checksummed; streams
    embedded as fc_stream_save blobs. A loaded solver has no callbacks. */
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_SIZE. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_SIZE. */
 FC_API int fc_solver_save_size(const fc_solver *s, size_t *size);
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (buffer too small), FC_ERR_SIZE. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (buffer too small), FC_ERR_SIZE. */
 FC_API int fc_solver_save(const fc_solver *s, unsigned char *buf, size_t size,
                           size_t *written);
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_FORMAT, FC_ERR_NOMEM. */
@@ -725,6 +808,67 @@ FC_API int fc_controller_save(const fc_controller *c, unsigned char *buf,
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_FORMAT, FC_ERR_NOMEM. */
 FC_API int fc_controller_load(const unsigned char *buf, size_t size,
                               fc_controller **out);
+
+/*
+ * Checkpoint files (POSIX). Every object with state has a pair
+ *     fc_<object>_save_file(obj, path)
+ *     fc_<object>_load_file(path, max_size, &obj)
+ * that are its fc_<object>_save / fc_<object>_load around the two generic
+ * functions fc_file_write and fc_file_read (the same bytes as the
+ * buffer functions: a file saved here loads with fc_<object>_load and
+ * the other way round).
+ *
+ * fc_file_write(path, data, size) replaces the file at path atomically:
+ * it writes data to a new temporary file in the same directory, named
+ * path + ".tmp-XXXXXX" (mkstemp: mode 0600, so a new checkpoint file is
+ * readable by its owner only; a file that is replaced keeps its
+ * permission bits), fsyncs it, renames it over path and fsyncs the
+ * directory. At every moment path holds either the complete old file
+ * or the complete new one, also when the process is killed or the machine
+ * loses power (given a file system that honours fsync). On any failure
+ * before the rename the temporary file is removed and path is untouched;
+ * if only the final directory sync fails, path already holds the complete
+ * new file but the rename may not survive a power loss (FC_ERR_IO all the
+ * same). A process killed during the write leaves its temporary file
+ * behind (never under the name path); such path.tmp-* files may be
+ * deleted when no writer is running. One writer per path at a time.
+ *
+ * fc_file_read(path, max_size, &data, &size) reads a whole regular file
+ * of at most max_size bytes into a new buffer (*data, free it with
+ * fc_file_data_free; *size bytes); a longer file is refused with
+ * FC_ERR_SIZE (before any read when its size says so, else once the
+ * (max_size + 1)-th byte is read: the file may grow), so max_size bounds
+ * the memory an untrusted file can make the library allocate.
+ * The loaders treat the bytes as untrusted input (FC_ERR_FORMAT).
+ *
+ * Errors: FC_ERR_IO when a system call fails (missing directory or file,
+ * permission denied, disk full, not a regular file, ...): errno then
+ * holds the cause of the first failure (EISDIR for a directory, EINVAL
+ * for another non-regular file); FC_ERR_ARG for an empty path or (write)
+ * one ending in '/'. On every error *out, *data and *size are untouched
+ * and no object changes. Paths are passed to the system as they are
+ * (relative paths against the current directory).
+ */
+/* Statuses: FC_OK, FC_ERR_NULL (path, or data with size > 0), FC_ERR_ARG (path empty or ending in '/'), FC_ERR_SIZE (path too long), FC_ERR_IO, FC_ERR_NOMEM. */
+FC_API int fc_file_write(const char *path, const unsigned char *data, size_t size);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (path empty), FC_ERR_IO, FC_ERR_SIZE (file longer than max_size), FC_ERR_NOMEM. */
+FC_API int fc_file_read(const char *path, size_t max_size, unsigned char **data,
+                        size_t *size);
+/* Statuses: none (void; NULL is a no-op). */
+FC_API void fc_file_data_free(unsigned char *data);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_SIZE, FC_ERR_ARG (path empty or ending in '/'), FC_ERR_IO, FC_ERR_NOMEM. */
+FC_API int fc_stream_save_file(fc_stream *s, const char *path);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (path empty), FC_ERR_IO, FC_ERR_SIZE (file longer than max_size), FC_ERR_FORMAT, FC_ERR_NOMEM. */
+FC_API int fc_stream_load_file(const char *path, size_t max_size, fc_stream **out);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_SIZE, FC_ERR_ARG (path empty or ending in '/'), FC_ERR_IO, FC_ERR_NOMEM. */
+FC_API int fc_solver_save_file(const fc_solver *s, const char *path);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (path empty), FC_ERR_IO, FC_ERR_SIZE (file longer than max_size), FC_ERR_FORMAT, FC_ERR_NOMEM. */
+FC_API int fc_solver_load_file(const char *path, size_t max_size, fc_solver **out);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_SIZE, FC_ERR_ARG (path empty or ending in '/'), FC_ERR_IO, FC_ERR_NOMEM. */
+FC_API int fc_controller_save_file(const fc_controller *c, const char *path);
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (path empty), FC_ERR_IO, FC_ERR_SIZE (file longer than max_size), FC_ERR_FORMAT, FC_ERR_NOMEM. */
+FC_API int fc_controller_load_file(const char *path, size_t max_size,
+                                   fc_controller **out);
 
 /* ------------------------------------------------------------------
  * EXPERIMENTAL: the functions below may change or go in any version

@@ -7,8 +7,14 @@
  *     from std::runtime_error) whose what() is "<function>: <fc_strerror>"
  *     and whose status() is the FC_ERR_* code; a refused call changes
  *     nothing, as in C;
- *   - ownership: pyfracconv::stream and pyfracconv::context own their C
- *     object (RAII), are move-only, and free it in the destructor;
+ *   - ownership: pyfracconv::stream, context, solver and controller own
+ *     their C object (RAII), are move-only, and free it in the destructor;
+ *   - callbacks: pyfracconv::solver takes the right-hand side (and the
+ *     Jacobian) as any callable, f(t, y, f) returning void, or int/bool
+ *     (non-zero stops the run); it is kept in a heap cell whose address is
+ *     the C user pointer, so moving the solver keeps it valid. An
+ *     exception thrown by a callback stops the run (FC_ERR_CALLBACK in C)
+ *     and is rethrown from advance() unchanged;
  *   - buffers: views are pyfracconv::cview / pyfracconv::view (pointer and
  *     size, constructible from std::vector and std::array); every function
  *     taking one also has an overload that returns a new std::vector.
@@ -24,6 +30,10 @@
 
 #include <array>
 #include <cstddef>
+#include <exception>
+#include <functional>
+#include <memory>
+#include <type_traits>
 #include <cstdint>
 #include <stdexcept>
 #include <string>
@@ -34,11 +44,13 @@
 
 namespace pyfracconv {
 
-/* A failed call of the C library: status() is its FC_ERR_* code. */
+/* A failed call of the C library: status() is its FC_ERR_* code; what()
+   carries fc_solver_strerror's message (fc_strerror's for every code but
+   the solver's own). */
 class error : public std::runtime_error {
 public:
     error(int status, const std::string &where)
-        : std::runtime_error(where + ": " + fc_strerror(status)), status_(status) {}
+        : std::runtime_error(where + ": " + fc_solver_strerror(status)), status_(status) {}
     int status() const noexcept { return status_; }
 private:
     int status_;
@@ -211,6 +223,15 @@ public:
         detail::check(fc_stream_load(blob.data(), blob.size(), &p), "fc_stream_load");
         return stream(p);
     }
+    /* Rebuild from a file written by save_file (at most max_size bytes
+       are read; the bytes are untrusted input, as for load). */
+    static stream load_file(const std::string &path,
+                            std::size_t max_size = std::size_t(1) << 30)
+    {
+        fc_stream *p = nullptr;
+        detail::check(fc_stream_load_file(path.c_str(), max_size, &p), "fc_stream_load_file");
+        return stream(p);
+    }
     /* Take ownership of a C stream (freed by this object). */
     explicit stream(fc_stream *owned) noexcept : p_(owned) {}
 
@@ -281,6 +302,14 @@ public:
         buf.resize(written);
         return buf;
     }
+    /* save() written to the file path atomically (fc_stream_save_file:
+       temporary file, fsync, rename, directory sync); error status
+       FC_ERR_IO (errno says why) leaves the old file and the stream as
+       they were. */
+    void save_file(const std::string &path)
+    {
+        detail::check(fc_stream_save_file(live(), path.c_str()), "fc_stream_save_file");
+    }
     void set_horizon_policy(int policy)
     {
         detail::check(fc_stream_set_horizon_policy(live(), policy), "fc_stream_set_horizon_policy");
@@ -314,6 +343,350 @@ private:
         return v;
     }
     fc_stream *p_ = nullptr;
+};
+
+/* ------------------------------------------------------------- solver */
+
+/* The solver of D^a y = f(t, y) (fc_solver_* in fracconv.h). The
+   right-hand side is any callable fn(double t, const double *y, double *f)
+   returning void, or int/bool (non-zero stops the run); the Jacobian
+   jac(double t, const double *y, double *J) likewise (J row-major). */
+class solver {
+public:
+    /* orders.size() = m components; init: K*m values, K = ceil(max order)
+       (fc_solver_create); memory FC_MODE_EXACT, or FC_MODE_COMPRESSED
+       with tol and horizon (in steps). */
+    solver(cview orders, double step, double t0, cview init, int method = FC_METHOD_PC,
+           int memory = FC_MODE_EXACT, double tol = 0.0, double horizon = 0.0)
+        : cb_(new callbacks())
+    {
+        std::size_t k = 1;
+        for (std::size_t i = 0; i < orders.size; i++)
+            if (orders.data[i] > 1.0) k = 2;
+        if (init.size < detail::mul(k, orders.size, "fc_solver_create"))
+            throw error(FC_ERR_ARG, "fc_solver_create (init.size < ceil(max order) * orders.size)");
+        detail::check(fc_solver_create(orders.size, orders.data, step, t0, init.data, method,
+                                       memory, tol, horizon, &p_),
+                      "fc_solver_create");
+    }
+    /* Rebuild from bytes written by save() (no callbacks: set them again). */
+    static solver load(const std::vector<unsigned char> &blob)
+    {
+        fc_solver *p = nullptr;
+        detail::check(fc_solver_load(blob.data(), blob.size(), &p), "fc_solver_load");
+        return solver(p);
+    }
+    /* Rebuild from a file written by save_file (at most max_size bytes are
+       read, untrusted input as for load; no callbacks: set them again). */
+    static solver load_file(const std::string &path,
+                            std::size_t max_size = std::size_t(1) << 30)
+    {
+        fc_solver *p = nullptr;
+        detail::check(fc_solver_load_file(path.c_str(), max_size, &p), "fc_solver_load_file");
+        return solver(p);
+    }
+    ~solver() { fc_solver_free(p_); }
+    solver(const solver &) = delete;
+    solver &operator=(const solver &) = delete;
+    solver(solver &&o) noexcept : p_(std::exchange(o.p_, nullptr)), cb_(std::move(o.cb_)) {}
+    solver &operator=(solver &&o) noexcept
+    {
+        if (this != &o) {
+            fc_solver_free(p_);
+            p_ = std::exchange(o.p_, nullptr);
+            cb_ = std::move(o.cb_);
+        }
+        return *this;
+    }
+    fc_solver *get() const noexcept { return p_; }
+
+    template <class F>
+    void set_rhs(F fn)
+    {
+        fc_solver *s = live();
+        callbacks *c = cells();
+        std::function<int(double, const double *, double *)> f = wrap(std::move(fn));
+        detail::check(fc_solver_set_rhs(s, &rhs_tramp, c), "fc_solver_set_rhs");
+        c->rhs = std::move(f);
+    }
+    template <class F>
+    void set_jacobian(F fn)
+    {
+        fc_solver *s = live();
+        callbacks *c = cells();
+        std::function<int(double, const double *, double *)> f = wrap(std::move(fn));
+        detail::check(fc_solver_set_jacobian(s, &jac_tramp, c), "fc_solver_set_jacobian");
+        c->jac = std::move(f);
+    }
+    /* Back to the forward-difference Jacobian. */
+    void clear_jacobian()
+    {
+        detail::check(fc_solver_set_jacobian(live(), nullptr, nullptr), "fc_solver_set_jacobian");
+        if (cb_) cb_->jac = nullptr;
+    }
+    void set_newton(double tol, unsigned maxiter)
+    {
+        detail::check(fc_solver_set_newton(live(), tol, maxiter), "fc_solver_set_newton");
+    }
+    void set_corrections(unsigned passes)
+    {
+        detail::check(fc_solver_set_corrections(live(), passes), "fc_solver_set_corrections");
+    }
+
+    /* nsteps steps; t_out (nsteps values) and y_out (nsteps*dim(),
+       y_out[j*m + i] = y_i at the j-th new step) may be empty views (not written). Returns
+       the steps done (nsteps). A stopped run throws: the completed steps
+       are kept, as in C (steps() counts them); an exception of a callback
+       is rethrown as it was thrown. */
+    std::size_t advance(std::size_t nsteps, view t_out = view(), view y_out = view())
+    {
+        fc_solver *s = live();
+        if (t_out.data) detail::need(t_out.size, nsteps, "fc_solver_advance");
+        if (y_out.data) detail::need(y_out.size, detail::mul(nsteps, dim(), "fc_solver_advance"),
+                                     "fc_solver_advance");
+        std::size_t done = 0;
+        callbacks *c = cells();
+        c->thrown = nullptr;
+        int st = fc_solver_advance(s, nsteps, t_out.data, y_out.data, &done);
+        if (c->thrown) std::rethrow_exception(std::exchange(c->thrown, nullptr));
+        detail::check(st, "fc_solver_advance");
+        return done;
+    }
+    /* nsteps steps: the states, y[j*m + i] at the j-th new step. */
+    std::vector<double> advance_states(std::size_t nsteps)
+    {
+        std::vector<double> y(detail::mul(nsteps, dim(), "fc_solver_advance"));
+        advance(nsteps, view(), view(y));
+        return y;
+    }
+
+    double time() const { return get_<double>(fc_solver_time, "fc_solver_time"); }
+    std::vector<double> state() const
+    {
+        std::vector<double> y(dim());
+        detail::check(fc_solver_state(live(), y.data()), "fc_solver_state");
+        return y;
+    }
+    std::uint64_t steps() const { return get_<std::uint64_t>(fc_solver_steps, "fc_solver_steps"); }
+    std::size_t dim() const { return get_<std::size_t>(fc_solver_dim, "fc_solver_dim"); }
+    std::size_t nbytes() const { return get_<std::size_t>(fc_solver_nbytes, "fc_solver_nbytes"); }
+    /* {rhs calls, Jacobian calls} */
+    std::array<std::uint64_t, 2> counts() const
+    {
+        std::array<std::uint64_t, 2> n{};
+        detail::check(fc_solver_counts(live(), &n[0], &n[1]), "fc_solver_counts");
+        return n;
+    }
+    std::vector<unsigned char> save() const
+    {
+        std::size_t size = 0, written = 0;
+        detail::check(fc_solver_save_size(live(), &size), "fc_solver_save_size");
+        std::vector<unsigned char> buf(size);
+        detail::check(fc_solver_save(live(), buf.data(), buf.size(), &written), "fc_solver_save");
+        buf.resize(written);
+        return buf;
+    }
+    /* save() written to the file path atomically (fc_solver_save_file). */
+    void save_file(const std::string &path) const
+    {
+        detail::check(fc_solver_save_file(live(), path.c_str()), "fc_solver_save_file");
+    }
+
+private:
+    struct callbacks {
+        std::function<int(double, const double *, double *)> rhs, jac;
+        std::exception_ptr thrown;
+    };
+    explicit solver(fc_solver *owned) : p_(owned), cb_(new callbacks()) {}
+    template <class F>
+    static std::function<int(double, const double *, double *)> wrap(F fn)
+    {
+        using R = std::invoke_result_t<F &, double, const double *, double *>;
+        if constexpr (std::is_void_v<R>) {
+            return [f = std::move(fn)](double t, const double *y, double *o) mutable {
+                f(t, y, o);
+                return 0;
+            };
+        } else {
+            return [f = std::move(fn)](double t, const double *y, double *o) mutable {
+                return f(t, y, o) ? 1 : 0;
+            };
+        }
+    }
+    static int call(std::function<int(double, const double *, double *)> &f, callbacks *c,
+                    double t, const double *y, double *o) noexcept
+    {
+        if (!f) return 1;
+        try {
+            return f(t, y, o);
+        } catch (...) {
+            c->thrown = std::current_exception();
+            return 1;
+        }
+    }
+    static int rhs_tramp(double t, const double *y, double *f, void *user)
+    {
+        callbacks *c = static_cast<callbacks *>(user);
+        return call(c->rhs, c, t, y, f);
+    }
+    static int jac_tramp(double t, const double *y, double *J, void *user)
+    {
+        callbacks *c = static_cast<callbacks *>(user);
+        return call(c->jac, c, t, y, J);
+    }
+    fc_solver *live() const
+    {
+        if (!p_) throw error(FC_ERR_NULL, "pyfracconv::solver (moved from)");
+        return p_;
+    }
+    callbacks *cells()
+    {
+        if (!cb_) throw error(FC_ERR_NULL, "pyfracconv::solver (moved from)");
+        return cb_.get();
+    }
+    template <class T>
+    T get_(int (*fn)(const fc_solver *, T *), const char *where) const
+    {
+        T v{};
+        detail::check(fn(live(), &v), where);
+        return v;
+    }
+    fc_solver *p_ = nullptr;
+    std::unique_ptr<callbacks> cb_;
+};
+
+/* ------------------------------------------------------------- controller */
+
+/* The controller's parameters with the library's defaults
+   (fc_controller_default_params); set the fields, then construct. */
+inline fc_controller_params controller_defaults()
+{
+    fc_controller_params p;
+    detail::check(fc_controller_default_params(&p), "fc_controller_default_params");
+    return p;
+}
+
+/* The fractional PID controller (fc_controller_* in fracconv.h). It
+   moves machinery: validate it on the plant, keep actuator and rate limits
+   in the hardware and an independent safe stop (fracconv.h). */
+class controller {
+public:
+    explicit controller(const fc_controller_params &p)
+    {
+        detail::check(fc_controller_create(&p, &p_), "fc_controller_create");
+    }
+    static controller load(const std::vector<unsigned char> &blob)
+    {
+        fc_controller *p = nullptr;
+        detail::check(fc_controller_load(blob.data(), blob.size(), &p), "fc_controller_load");
+        return controller(p);
+    }
+    /* Rebuild from a file written by save_file (at most max_size bytes are
+       read, untrusted input as for load). */
+    static controller load_file(const std::string &path,
+                                std::size_t max_size = std::size_t(1) << 30)
+    {
+        fc_controller *p = nullptr;
+        detail::check(fc_controller_load_file(path.c_str(), max_size, &p),
+                      "fc_controller_load_file");
+        return controller(p);
+    }
+    /* Take ownership of a C controller. */
+    explicit controller(fc_controller *owned) noexcept : p_(owned) {}
+    ~controller() { fc_controller_free(p_); }
+    controller(const controller &) = delete;
+    controller &operator=(const controller &) = delete;
+    controller(controller &&o) noexcept : p_(std::exchange(o.p_, nullptr)) {}
+    controller &operator=(controller &&o) noexcept
+    {
+        if (this != &o) { fc_controller_free(p_); p_ = std::exchange(o.p_, nullptr); }
+        return *this;
+    }
+    fc_controller *get() const noexcept { return p_; }
+    fc_controller *release() noexcept { return std::exchange(p_, nullptr); }
+
+    /* One sample: the output for setpoint r and measurement y. */
+    double update(double r, double y)
+    {
+        double u = 0.0;
+        detail::check(fc_controller_update(live(), r, y, &u), "fc_controller_update");
+        return u;
+    }
+    /* A block (r.size == y.size samples); a refusal in the middle keeps
+       the samples before it, as in C. */
+    void update_block(cview r, cview y, view u)
+    {
+        if (r.size != y.size) throw error(FC_ERR_ARG, "fc_controller_update_block (r.size != y.size)");
+        detail::need(u.size, r.size, "fc_controller_update_block");
+        detail::check(fc_controller_update_block(live(), r.data, y.data, r.size, u.data, nullptr),
+                      "fc_controller_update_block");
+    }
+    std::vector<double> update_block(cview r, cview y)
+    {
+        std::vector<double> u(r.size);
+        update_block(r, y, view(u));
+        return u;
+    }
+    void set_manual(double u) { detail::check(fc_controller_set_manual(live(), u), "fc_controller_set_manual"); }
+    void set_auto() { detail::check(fc_controller_set_auto(live()), "fc_controller_set_auto"); }
+    void reset() { detail::check(fc_controller_reset(live()), "fc_controller_reset"); }
+    fc_controller_params params() const
+    {
+        fc_controller_params p;
+        detail::check(fc_controller_get_params(live(), &p), "fc_controller_get_params");
+        return p;
+    }
+    int status() const
+    {
+        int s = 0;
+        detail::check(fc_controller_status(live(), &s), "fc_controller_status");
+        return s;
+    }
+    bool limited() const { return (status() & FC_CTRL_LIMITED) != 0; }
+    bool past_horizon() const { return (status() & FC_CTRL_PAST_HORIZON) != 0; }
+    bool manual() const { return (status() & FC_CTRL_MANUAL) != 0; }
+    /* P, I, filtered D, bias, unlimited sum, output of the last update. */
+    std::array<double, 6> terms() const
+    {
+        std::array<double, 6> t{};
+        detail::check(fc_controller_terms(live(), t.data()), "fc_controller_terms");
+        return t;
+    }
+    std::uint64_t count() const
+    {
+        std::uint64_t n = 0;
+        detail::check(fc_controller_count(live(), &n), "fc_controller_count");
+        return n;
+    }
+    std::size_t nbytes() const
+    {
+        std::size_t n = 0;
+        detail::check(fc_controller_nbytes(live(), &n), "fc_controller_nbytes");
+        return n;
+    }
+    std::vector<unsigned char> save() const
+    {
+        std::size_t size = 0, written = 0;
+        detail::check(fc_controller_save_size(live(), &size), "fc_controller_save_size");
+        std::vector<unsigned char> buf(size);
+        detail::check(fc_controller_save(live(), buf.data(), buf.size(), &written),
+                      "fc_controller_save");
+        buf.resize(written);
+        return buf;
+    }
+    /* save() written to the file path atomically (fc_controller_save_file). */
+    void save_file(const std::string &path) const
+    {
+        detail::check(fc_controller_save_file(live(), path.c_str()), "fc_controller_save_file");
+    }
+
+private:
+    fc_controller *live() const
+    {
+        if (!p_) throw error(FC_ERR_NULL, "pyfracconv::controller (moved from)");
+        return p_;
+    }
+    fc_controller *p_ = nullptr;
 };
 
 }  // namespace pyfracconv

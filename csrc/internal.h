@@ -9,6 +9,12 @@
 #include <math.h>
 #include "fracconv.h"
 #include "fft.h"
+#include <float.h>
+
+/* v, or +0 when |v| < DBL_MIN: the one-pole states of the exponential
+   engines set to zero before they decay into the subnormal range, where
+   arithmetic is many times slower (the same work on every sample). */
+static inline double fc__ftz(double v) { return fabs(v) >= DBL_MIN ? v : 0.0; }
 
 /*
  * FC_NO_SIMD: the portable build (make check-portable). fft.c and lagsum.c
@@ -92,12 +98,25 @@ typedef struct {
 /* The smallest order compressed mode offers (the lower end of every
    rule's compressed range; soe_build.c explains it). */
 #define FC__CS_MIN_ORDER 1e-280
-/* A starting-correction column: y_n += corr_n x_column with
-   corr_n = S_n - c_n, S the start weights (same scale as the rule). The
-   engines implement column 0 (x_0) only; fc__rule_x0 finds it. */
+/* A starting-correction column j: y_n += corr_n x_j for every n >= j
+   (a stream cannot use x_j before it arrives), with
+   corr_n = S_n - c_{n-j}, S the column's start weights (the rule's scale;
+   for a rule on u = x, S_n is then the whole weight of x_j in y_n).
+   Every engine applies every column of the list (fc__correction); in
+   compressed mode a column the construction carries in its terms (soe:
+   the trapezoid density's x_0, soe_build.c) is handled by the
+   construction, every other one is added at run time from the library's
+   weights (stream_compressed.c). What a row must respect (the engines
+   rely on it; DEVELOPERS.md, "Adding a rule"): at most FC__CORR_MAX
+   columns, all different; soe only on column 0 of an FC__DENS_TRAP rule;
+   |S_n| within 2^4 of the rule's own weight bound (the log2_bound of its
+   weights: the range checks of rules.c and stream_exact.c assume it). */
+#define FC__CORR_MAX 4
 typedef struct {
     uint64_t column;
     const fc__wseq *start;
+    int soe;                 /* 1: the compressed construction carries it
+                                (column 0 with FC__DENS_TRAP only) */
 } fc__corr_col;
 typedef struct {
     int id;                  /* FC_RULE_* (part of the save format) */
@@ -116,12 +135,19 @@ typedef struct {
     int density;             /* FC__DENS_* */
     size_t ncorr;            /* starting-correction columns */
     const fc__corr_col *corr;
+    int zero_first;          /* y_0 = 0 exactly (the trapezoid: its start
+                                weight A_0 = 0 cancels c_0); the batch and
+                                exact engines set it so, whatever the
+                                rounding of c_0 x_0 + corr_0 x_0 */
 } fc__rule_desc;
 
 /* The descriptor of a rule, NULL for a number that is not a rule. */
 const fc__rule_desc *fc__rule(int rule);
 /* The x_0 correction column of a rule, NULL if it has none. */
 const fc__corr_col *fc__rule_x0(const fc__rule_desc *d);
+/* The column the compressed construction carries in its terms (soe), NULL
+   if none; its index in d->corr in *k when k is not NULL. */
+const fc__corr_col *fc__rule_soe_col(const fc__rule_desc *d, size_t *k);
 /* 1 if order lies in r. */
 int fc__in_range(const fc__range *r, double order);
 /* The weight sequence and scale of kind (a rule, or FC__START_WEIGHTS);
@@ -138,15 +164,17 @@ int fc__check_rule(int rule, double order, double step);
 
 /*
  * Every rule in lagged-sum form (rules.c):
- *     y_n = sum_{k<=n} c_{n-k} u_k + corr_n * x_0
+ *     y_n = sum_{k<=n} c_{n-k} u_k + sum_{columns j <= n} corr^j_n x_j
  * where u = x, except for L1, where u_0 = 0 and u_k = x_k - x_{k-1};
- * corr_n is zero except for the trapezoid rule.
+ * the columns are the rule's list (fc__corr_col): today only the
+ * trapezoid rule has one, j = 0.
  *   rectangle: c_0 = 0, c_m = weights(m-1) (m >= 1)
- *   trapezoid: c_m = weights(m); corr_0 = -c_0 (so y_0 = 0),
+ *   trapezoid: c_m = weights(m); column 0: corr_0 = -c_0 (so y_0 = 0),
  *              corr_n = start(n) - weights(n) for n >= 1
  *   grunwald:  c_m = weights(m)
  *   l1:        c_m = weights(m)
- * The functions below fill c (or corr) for the indices start..start+count-1
+ * The functions below fill c (or corr^j of the rule's column k, d->corr[k])
+ * for the indices start..start+count-1 (corr^j_n = 0 for n < j)
  * and assume fc__check_rule passed. They return FC_ERR_RANGE (the contents
  * of c or corr then unspecified) when a value is out of the normal double
  * range: one that overflows, or a non-zero one that would be subnormal or
@@ -155,8 +183,8 @@ int fc__check_rule(int rule, double order, double step);
  */
 int fc__lag_kernel(int rule, double order, double step, uint64_t start,
                    size_t count, double *c);
-int fc__x0_correction(int rule, double order, double step, uint64_t start,
-                      size_t count, double *corr);
+int fc__correction(int rule, size_t k, double order, double step,
+                   uint64_t start, size_t count, double *corr);
 /*
  * Unit forms (weights.c, rules.c): every weight sequence is a unit sequence
  * (the formulas of fracconv.h without the step factor; moderate numbers:
@@ -176,25 +204,33 @@ double fc__unit_log2_bound(int kind, double a, uint64_t M);
 double fc__scale_value(double w, long double M, long E);
 /*
  * The unit lagged-sum kernel c (as fc__lag_kernel, without the factor) and
- * the unit x_0 correction, for indices start .. start+count-1; the factor
- * of both is fc__rule_scale(rule, ...).
+ * the unit correction of column k, for indices start .. start+count-1; the
+ * factor of both is fc__rule_scale(rule, ...).
  */
 void fc__unit_lag_kernel(int rule, double order, uint64_t start,
                          size_t count, double *c);
 /* Both at once for the engines: the unit kernel c and its scale M 2^E. */
 void fc__unit_kernel(int rule, double order, double step, uint64_t start,
                      size_t count, double *c, long double *M, long *E);
-void fc__unit_x0_correction(int rule, double order, uint64_t start,
-                            size_t count, double *corr);
+void fc__unit_correction(int rule, size_t k, double order, uint64_t start,
+                         size_t count, double *corr);
 static inline int fc__rule_uses_differences(int rule)
 {
     const fc__rule_desc *d = fc__rule(rule);
     return d != NULL && d->uses_differences;
 }
-static inline int fc__rule_has_x0(int rule)
+/* The number of correction columns of a rule (0 for a number that is not
+   a rule). */
+static inline size_t fc__rule_ncorr(int rule)
 {
     const fc__rule_desc *d = fc__rule(rule);
-    return d != NULL && fc__rule_x0(d) != NULL;
+    return d != NULL ? d->ncorr : 0;
+}
+/* 1 if the compressed construction carries a column of the rule. */
+static inline int fc__rule_has_soe_col(int rule)
+{
+    const fc__rule_desc *d = fc__rule(rule);
+    return d != NULL && fc__rule_soe_col(d, NULL) != NULL;
 }
 
 /*
@@ -242,6 +278,57 @@ int fc__soe_build(int rule, double order, double step, double tol,
                   double horizon, fc__soe *out);
 
 /*
+ * The sum of exponentials of the continuous kernel tau^(g-1)/Gamma(g) on
+ * 1 <= tau <= R (soe_build.c, fc__soe_power; the grid engine, grid_soe.c,
+ * and the time-stamped stream): k(tau) ~= sum_l w[l] exp(-s[l] tau) with
+ * relative error <= 0.6 tol + 16 eps, checked. gm1 = g - 1 in (-1, 0)
+ * (0 < g < 1) or 0 (g = 1: one exact term). s and w malloc'ed (L each).
+ */
+/* The one-pole coefficients of the grid engine and the time-stamped
+   stream (grid_soe.c, stream_timed.c): over a step of z = s h,
+   e^-z - 1, phi1(z) = (1 - e^-z)/z and f2(z) = (1 - phi1(z))/z. */
+/* 1/(i+2)! with alternating sign, i = 0 .. 17: f2(z) = sum c_i z^i. */
+static const double fc__gs_c[18] = {
+    1.0 / 2, -1.0 / 6, 1.0 / 24, -1.0 / 120, 1.0 / 720, -1.0 / 5040,
+    1.0 / 40320, -1.0 / 362880, 1.0 / 3628800, -1.0 / 39916800,
+    1.0 / 479001600, -1.0 / 6227020800.0, 1.0 / 87178291200.0,
+    -1.0 / 1307674368000.0, 1.0 / 20922789888000.0,
+    -1.0 / 355687428096000.0, 1.0 / 6402373705728000.0,
+    -1.0 / 121645100408832000.0,
+};
+
+/* e^-z - 1, phi1(z) = (1 - e^-z)/z, f2(z) = (1 - phi1)/z for z >= 0,
+   each to a few units of 2^-53 (no cancellation: the series for z < 1,
+   truncated where the next term is below 2^-60 of the sum; expm1 above,
+   where 1 - phi1 >= 1/e loses at most a factor 3). */
+static inline void fc__gs_phi(double z, double *em1, double *p1, double *f2)
+{
+    double r;
+    if (z < 1.0) {
+        int J = z < 1e-4 ? 4 : z < 1.0 / 64 ? 8 : z < 0.25 ? 12 : 18;
+        r = fc__gs_c[J - 1];
+        for (int i = J - 2; i >= 0; i--) r = r * z + fc__gs_c[i];
+        double f1 = 1.0 - z * r;
+        *f2 = r;
+        *p1 = f1;
+        *em1 = -z * f1;
+    } else {
+        double e = expm1(-z);
+        double f1 = -e / z;
+        *em1 = e;
+        *p1 = f1;
+        *f2 = (1.0 - f1) / z;
+    }
+}
+
+#define FC__GRID_RATIO_MAX 1.2676506002282294e30   /* 2^100 */
+typedef struct {
+    size_t L;
+    double *s, *w;
+} fc__soe_pow;
+int fc__soe_power(long double gm1, double tol, double R, fc__soe_pow *out);
+
+/*
  * Stream engines behind one interface. stream.c (the facade) owns struct
  * fc_stream: the busy guard, every argument and sample check (done once,
  * there), the common save header, and dispatch through the engine's
@@ -254,6 +341,8 @@ int fc__soe_build(int rule, double order, double step, double tol,
    the engine's load checks what it needs). */
 #define FC__KIND_RULE 0u     /* part of the save format */
 #define FC__KIND_KERNEL 1u
+#define FC__KIND_TIMED 2u    /* a time per sample (stream_timed.c); step
+                                holds the smallest step, horizon a time */
 typedef struct {
     unsigned kind;           /* FC__KIND_* */
     int rule;                /* -1 for a kernel */
@@ -279,6 +368,12 @@ typedef struct {
  */
 typedef struct fc__stream_ops {
     int has_horizon;         /* tol and horizon are defining parameters */
+    /* with a horizon: the tolerances tol_min <= tol <= tol_max and the
+       horizons 1 <= horizon <= horizon_max a creation accepts */
+    double tol_min, tol_max, horizon_max;
+    /* the orders this engine runs for a rule: its range in the rule
+       table (fc_stream_create, fc_rule_order_range) */
+    const fc__range *(*order_range)(const fc__rule_desc *d);
     /* definition checked by the facade */
     int (*create)(const fc__stream_def *d, void **eng);
     /* payload p[0 .. size) of a blob whose common header gave d: validates
@@ -303,7 +398,23 @@ typedef struct fc__stream_ops {
        a buffer of exactly that size */
     int (*save_size)(const void *eng, size_t *size);
     int (*save)(const void *eng, unsigned char *buf, size_t size);
+    /* a time per sample (stream_timed.c; NULL for the other engines):
+       count steps of times t[count] (finite, checked by the facade) and
+       samples x[count*channels]; refuse_past: FC_HORIZON_REFUSE */
+    int (*push_timed)(void *eng, const double *t, const double *x,
+                      size_t count, double *y, int refuse_past);
+    /* 1 once an output past the horizon was produced (NULL: the facade
+       counts samples against the horizon) */
+    int (*past)(const void *eng);
 } fc__stream_ops;
-extern const fc__stream_ops fc__exact_ops, fc__compressed_ops;
+extern const fc__stream_ops fc__exact_ops, fc__compressed_ops, fc__timed_ops;
+/* The engine of a mode (FC_MODE_*: the index of the facade's engine
+   table), NULL for a number that is not a mode (stream.c). Streams with a
+   time per sample are created and loaded through their own checks. */
+const fc__stream_ops *fc__stream_engine(int64_t mode);
+/* The definition checks of a stream with a time per sample (stream_timed.c;
+   fc_stream_create_timed and the loader). */
+int fc__timed_params_check(int rule, double order, double minstep,
+                           size_t channels, double tol, double horizon);
 
 #endif

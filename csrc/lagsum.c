@@ -913,16 +913,26 @@ static int scale_check(const double *z, size_t n, double M, long T)
     return FC_OK;
 }
 
+/* The starting corrections of a rule (rules.c) for n outputs: column k
+   (d->corr[k]) has the weights w[k*n .. k*n+n) and, for signal s, the
+   (scaled) sample x_j in xj[s*ncorr + k]; zero_first: y_0 = 0 exactly. */
+typedef struct {
+    const fc__rule_desc *d;
+    const double *w, *xj;
+    int zero_first;
+} lag_corr;
+
 /*
  * The scaled lagged sum: signal s of y is (M 2^T[s]) lagsum(in_s, c), in
  * and c already scaled; straight into y when the caller found that the
  * scaling cannot overflow (safe), else through a temporary that is checked
- * first (FC_ERR_RANGE, y untouched). corr (may be NULL): z_n += corr[n] *
- * in[s*n] before scaling, and y_0 = 0 exactly (trapezoid).
+ * first (FC_ERR_RANGE, y untouched). corr (may be NULL): z_n += w_k[n] x_j
+ * for every column (j, k) and n >= j, in the table's order, before
+ * scaling, and y_0 = 0 exactly when the rule says so (trapezoid).
  */
 static int lagsum_scaled(fc_context *ctx, const double *in, size_t nsig,
                          size_t n, const double *c, size_t K, int engine,
-                         const double *corr, double M, const long *T,
+                         const lag_corr *corr, double M, const long *T,
                          int safe, double *y)
 {
     size_t total = nsig * n;
@@ -934,11 +944,17 @@ static int lagsum_scaled(fc_context *ctx, const double *in, size_t nsig,
     }
     int st = lagsum_checked(ctx, in, nsig, n, c, K, engine, z);
     if (st == FC_OK && corr != NULL) {
+        const size_t nc = corr->d->ncorr;
         for (size_t sg = 0; sg < nsig; sg++) {
-            double x0 = in[sg * n];
             double *zs = z + sg * n;
-            for (size_t i = 0; i < n; i++) zs[i] += corr[i] * x0;
-            zs[0] = 0.0; /* exactly, whatever the rounding above */
+            for (size_t k = 0; k < nc; k++) {
+                const double xj = corr->xj[sg * nc + k];
+                const double *w = corr->w + k * n;
+                for (size_t i = (size_t)corr->d->corr[k].column; i < n; i++)
+                    zs[i] += w[i] * xj;
+            }
+            if (corr->zero_first)
+                zs[0] = 0.0; /* exactly, whatever the rounding above */
         }
     }
     for (size_t sg = 0; st == FC_OK && !safe && sg < nsig; sg++)
@@ -1064,8 +1080,9 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
     if (overlaps(x, total, y, total)) return FC_ERR_ARG;
     if (fc__check_finite(x, total) != FC_OK) return FC_ERR_NONFINITE;
 
-    int diffs = fc__rule_uses_differences(rule);
-    int corr = fc__rule_has_x0(rule);
+    const fc__rule_desc *d = fc__rule(rule);
+    int diffs = d->uses_differences;
+    const size_t nc = d->ncorr;
     size_t need;
     if (fc__mul_size(nsig, sizeof(long) + sizeof(double), &need) != FC_OK)
         return FC_ERR_SIZE;
@@ -1084,17 +1101,26 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
         if (xm[sg] > 0.0 && (T[sg] < -30 || T[sg] > 400)) scaled = 1;
     if (!scaled)
         for (size_t sg = 0; sg < nsig; sg++) T[sg] = 0;
-    /* unit kernel n, unit correction n (trapezoid), scaled samples or
-       their differences nsig*n (when needed) */
-    size_t extra = n + (corr ? n : 0) + (scaled || diffs ? total : 0);
+    /* unit kernel n, unit corrections nc*n, the samples x_j of the
+       columns nsig*nc, scaled samples or their differences nsig*n (when
+       needed); nc <= FC__CORR_MAX */
+    size_t extra = 0, t1, t2;
+    if (fc__mul_size(nc + 1, n, &t1) || fc__mul_size(nsig, nc, &t2) ||
+        fc__add_size(t1, t2, &extra) ||
+        fc__add_size(extra, scaled || diffs ? total : 0, &extra) ||
+        extra > ((size_t)-1) / sizeof(double)) {
+        free(meta);
+        return FC_ERR_SIZE;
+    }
     double *mem = malloc(extra * sizeof(double));
     if (mem == NULL) {
         free(meta);
         return FC_ERR_NOMEM;
     }
     double *c = mem;
-    double *cr = corr ? c + n : NULL;
-    double *u = c + n + (corr ? n : 0);
+    double *cr = c + n;
+    double *xj = cr + nc * n;
+    double *u = xj + nsig * nc;
 
     fc_context *own = NULL;
     if (ctx == NULL) {
@@ -1105,7 +1131,16 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
     long double Ml;
     long E;
     fc__unit_kernel(rule, order, step, 0, n, c, &Ml, &E);
-    if (corr) fc__unit_x0_correction(rule, order, 0, n, cr);
+    for (size_t k = 0; k < nc; k++)
+        fc__unit_correction(rule, k, order, 0, n, cr + k * n);
+    /* x_j of each column, scaled as its signal (not differenced) */
+    for (size_t sg = 0; sg < nsig; sg++)
+        for (size_t k = 0; k < nc; k++) {
+            uint64_t j = d->corr[k].column;
+            double v = j < n ? x[sg * n + (size_t)j] : 0.0;
+            if (scaled) scale_copy(&v, 1, (int)T[sg], &v);
+            xj[sg * nc + k] = v;
+        }
     /* each signal scaled by 2^-ex; for L1 the differences, taken after
        scaling (so that they cannot overflow) */
     const double *in = x;
@@ -1125,16 +1160,20 @@ int fc_apply(fc_context *ctx, int rule, double order, double step,
         in = u;
     }
     /* |x 2^-ex| <= xs (differences: 2 xs), so
-       |z_n| <= (sum|c| + max|corr|) xs, twice that for differences */
-    double cb = (sum_abs(c, n) * (diffs ? 2.0 : 1.0)
-                 + (corr ? fc__max_abs(cr, n) : 0.0)) * (1.0 + 1e-6);
+       |z_n| <= (sum|c| + sum_k max|corr_k|) xs, the first sum twice for
+       differences */
+    double cm = 0.0;
+    for (size_t k = 0; k < nc; k++) cm += fc__max_abs(cr + k * n, n);
+    double cb = (sum_abs(c, n) * (diffs ? 2.0 : 1.0) + cm) * (1.0 + 1e-6);
     int safe = 1;
     for (size_t sg = 0; sg < nsig; sg++) {
         double xs = ldexp(xm[sg], -(int)T[sg]);
         T[sg] += E;
         if (!scale_is_safe(cb * xs, (double)Ml, T[sg])) safe = 0;
     }
-    st = lagsum_scaled(ctx, in, nsig, n, c, n, engine, cr, (double)Ml, T,
+    const lag_corr lc = {d, cr, xj, d->zero_first};
+    st = lagsum_scaled(ctx, in, nsig, n, c, n, engine,
+                       nc || d->zero_first ? &lc : NULL, (double)Ml, T,
                        safe, y);
 done:
     fc_context_free(own);

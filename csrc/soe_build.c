@@ -15,7 +15,7 @@
  * loader of stream_compressed.c).
  *
  * GUARANTEE. The sum of exponentials is checked against the library's own
- * weights (fc__lag_kernel, fc__x0_correction) at every lag
+ * weights (fc__lag_kernel, fc__correction) at every lag
  * B <= m <= min(horizon, 10^4) and on a geometric grid of 64 lags per decade
  * beyond, up to the horizon itself; the construction fails with FC_ERR_TOL
  * unless the measured relative error is at most 0.6 tol + 16 eps at every
@@ -115,7 +115,7 @@
  * rectangle rule applies. The x_0 correction corr_n = h^a/Gamma(a+2)
  * ((n+1+a) n^a - (n+1)^(a+1)) ~ -h^a a/(2 Gamma(a+1)) n^(a-1) grows and is
  * not carried by the terms (inj = 1): the runtime adds corr_n x_0 with
- * corr_n from fc__x0_correction, the library's own weights
+ * corr_n from fc__correction (its x_0 column), the library's own weights
  * (stream_compressed.c, cs_corr_at). fc__soe.corrmax is the larger |corr_n|
  * of n = B and n = 2^53 - 1 (the largest index a stream reaches, past the
  * horizon too), |corr_n| being increasing there (checked with mpmath for
@@ -507,7 +507,7 @@ static void soe_constants(soe_ctx *cx, int rule, int cum, double a, double step,
 {
     double spa = (exact ? soe_sinpi(a) : sin(SOE_PI * a)) / SOE_PI;
     if (cum) {
-        cx->kind = fc__rule_has_x0(rule) ? K_TCUM : K_RCUM;
+        cx->kind = fc__rule_has_soe_col(rule) ? K_TCUM : K_RCUM;
         cx->p = 1.0 - a; cx->K = -spa * pow(step, a);
         cx->p1 = exact ? 2.0 - a : cx->p + 1.0;
         return;
@@ -521,7 +521,7 @@ static void soe_constants(soe_ctx *cx, int rule, int cum, double a, double step,
     case K_GRUN: cx->p = a; cx->K = -spa * pow(step, -a); p1x = a + 1.0; break;
     case K_L1: cx->p = a - 1.0; cx->K = spa * pow(step, -a); p1x = a; break;
     }
-    if (fc__rule_x0(d) != NULL) cx->Kcorr = -spa * pow(step, a);
+    if (fc__rule_soe_col(d, NULL) != NULL) cx->Kcorr = -spa * pow(step, a);
     cx->p1 = cx->p + 1.0;
     if (exact) cx->p1 = p1x;
 }
@@ -541,7 +541,10 @@ int fc__soe_build(int rule, double order, double step, double tol,
     int st;
     const fc__rule_desc *d = fc__rule(rule);
     const int cum = order >= d->cumulative_from;
-    const int x0 = fc__rule_has_x0(rule);
+    /* the column the construction carries (the trapezoid's x_0); every
+       other column is added at run time (stream_compressed.c) */
+    size_t kx = 0;
+    const int x0 = fc__rule_soe_col(d, &kx) != NULL;
     const int tcum = cum && x0;     /* trapezoid, a >= 1 */
     const int x0inj = x0 && !cum;   /* x_0 enters the terms at n = B */
     const size_t B = SOE_BAND;
@@ -575,7 +578,7 @@ int fc__soe_build(int rule, double order, double step, double tol,
     } else if ((st = fc__lag_kernel(rule, a, step, 0, B, cband)) != FC_OK)
         return st;
     memset(ctab, 0, B * sizeof *ctab);
-    if (x0 && (st = fc__x0_correction(rule, a, step, 0, B, ctab)) != FC_OK)
+    if (x0 && (st = fc__correction(rule, kx, a, step, 0, B, ctab)) != FC_OK)
         return st;
     out->cum = cum;
     out->L = 0;
@@ -588,8 +591,8 @@ int fc__soe_build(int rule, double order, double step, double tol,
            both ends, n = B and the last count 2^53 - 1, must be within
            the double range */
         double ce[2];
-        if ((st = fc__x0_correction(rule, a, step, B, 1, ce)) != FC_OK ||
-            (st = fc__x0_correction(rule, a, step, FC_INDEX_LIMIT - 1, 1, ce + 1)) != FC_OK)
+        if ((st = fc__correction(rule, kx, a, step, B, 1, ce)) != FC_OK ||
+            (st = fc__correction(rule, kx, a, step, FC_INDEX_LIMIT - 1, 1, ce + 1)) != FC_OK)
             return st;
         out->corrmax = fabs(ce[0]) > fabs(ce[1]) ? fabs(ce[0]) : fabs(ce[1]);
     }
@@ -639,9 +642,9 @@ int fc__soe_build(int rule, double order, double step, double tol,
                 goto done;
     }
     if (x0inj) {
-        if ((st = fc__x0_correction(rule, a, step, B, cx.ndense, corrref)) != FC_OK) goto done;
+        if ((st = fc__correction(rule, kx, a, step, B, cx.ndense, corrref)) != FC_OK) goto done;
         for (size_t k = 0; k < g; k++)
-            if ((st = fc__x0_correction(rule, a, step, mgeo[k], 1, corrref + cx.ndense + k)) != FC_OK)
+            if ((st = fc__correction(rule, kx, a, step, mgeo[k], 1, corrref + cx.ndense + k)) != FC_OK)
                 goto done;
     }
     for (size_t k = 0; k < cx.ndense + g; k++)
@@ -708,5 +711,154 @@ int fc__soe_build(int rule, double order, double step, double tol,
     st = FC_OK;
 done:
     free(tmp); free(mgeo); free(P);
+    return st;
+}
+
+/*
+ * POWER KERNEL ON AN INTERVAL (the grid engine, grid_soe.c).
+ *
+ * fc__soe_power approximates the continuous kernel
+ *     k(tau) = tau^(g-1) / Gamma(g),    0 < g <= 1,
+ * (the Riemann-Liouville kernel of I^g; the L1 scheme's Caputo kernel
+ * tau^(-a)/Gamma(1-a) is g = 1 - a) on 1 <= tau <= R by
+ *     k(tau) ~= sum_{l<L} w_l exp(-s_l tau),   s_l >= 0, w_l > 0,
+ * with a relative error at most tol. With b = 1 - g in (0, 1) (g < 1),
+ * the Laplace representation tau^(-b) = (1/Gamma(b)) int_0^inf
+ * s^(b-1) e^(-s tau) ds (Jiang, Zhang, Zhang and Zhang, Commun. Comput.
+ * Phys. 21 (2017) 650-678, eq. (2.5)) gives
+ *     k(tau) = C int_0^inf s^(b-1) e^(-s tau) ds,  C = 1/(Gamma(b) Gamma(1-b)),
+ * and the same construction as the compressed streams above: the
+ * trapezoidal rule in log s (Beylkin and Monzon 2010), its right
+ * truncation, and the Gauss rule (Golub-Welsch on the discrete measure,
+ * soe_gauss_discrete) of the nodes s < X / R, all weights positive. The
+ * continuous kernel has phi = 1 (no discretisation factor). g = 1: one
+ * term, s = 0, w = 1 (exact).
+ *
+ * GUARANTEE. The result is checked in long double against k at 96 points
+ * per decade of a geometric grid from tau = 1 to tau = R (both ends
+ * included); the construction fails with FC_ERR_TOL unless the relative
+ * error is at most 0.6 tol + 16 eps at every point (the margin covers the
+ * ripple between points as above: its period, dtau in log tau, spans more
+ * than 12 points). Arguments are checked by the caller: 0 < g <= 1
+ * (g given as e_lo = g - 1 exactly, in long double, so that the exponent
+ * of an L1 kernel -a is exact), tol in [1e-15, 1e-2], 1 <= R <= 2^100.
+ * out->s and out->w are allocated here (free both with free()).
+ */
+int fc__soe_power(long double gm1, double tol, double R, fc__soe_pow *out)
+{
+    out->L = 0;
+    out->s = out->w = NULL;
+    if (gm1 == 0.0L) {
+        out->s = malloc(sizeof(double));
+        out->w = malloc(sizeof(double));
+        if (!out->s || !out->w) { free(out->s); free(out->w); out->s = out->w = NULL; return FC_ERR_NOMEM; }
+        out->s[0] = 0.0;
+        out->w[0] = 1.0;
+        out->L = 1;
+        return FC_OK;
+    }
+    const long double bl = -gm1;            /* b = 1 - g, exact */
+    const double b = (double)bl;
+    const long double gl = 1.0L + gm1;      /* g */
+    const long double Cl = 1.0L / (tgammal(bl) * tgammal(1.0L - bl));
+    const long double kden = tgammal(gl);
+    const double C = (double)Cl;
+    const double lR = log10(R);
+    const size_t nv = (size_t)ceil(96.0 * (lR > 0 ? lR : 0.0)) + 2;
+    long double *tv = malloc(nv * sizeof *tv), *kv = malloc(nv * sizeof *kv);
+    size_t cap = 2 * SOE_MAX_TERMS + 64;
+    double *sc = malloc(cap * sizeof *sc), *wc = malloc(cap * sizeof *wc);
+    double *sb = malloc(cap * sizeof *sb), *wb = malloc(cap * sizeof *wb);
+    int st = FC_OK;
+    if (!tv || !kv || !sc || !wc || !sb || !wb) { st = FC_ERR_NOMEM; goto done; }
+    for (size_t i = 0; i < nv; i++) {
+        long double tau = nv > 1 ? powl((long double)R, (long double)i / (long double)(nv - 1)) : 1.0L;
+        if (i == nv - 1) tau = R;
+        if (i == 0) tau = 1.0L;
+        tv[i] = tau;
+        kv[i] = powl(tau, gm1) / kden;
+    }
+    static const struct { double X; int ng; double kappa; } cand[] = {
+        {2.0, 7, 0.3}, {3.0, 8, 0.3}, {2.0, 8, 0.1}, {3.0, 9, 0.1},
+        {4.0, 10, 0.03}, {4.0, 11, 0.01},
+    };
+    const double thresh = 0.6 * tol + 16.0 * 2.220446049250313e-16;
+    const double eta = 0.1;
+    size_t Lbest = 0;
+    for (size_t ci = 0; ci < sizeof cand / sizeof cand[0]; ci++) {
+        if (Lbest && ci >= 2) break;
+        const double dtau = soe_dtau(b - 1.0, cand[ci].kappa * tol);
+        const double sL = cand[ci].X / R;
+        double jL = ceil(log(sL) / dtau);
+        size_t L = 0;
+        int ok = 1;
+        for (double j = jL;; j += 1.0) {
+            double s = exp(j * dtau);
+            double W = dtau * pow(s, b);
+            /* relative to k(1) = 1/Gamma(g): C W e^-s < eta tol / Gamma(g) */
+            if (s > 1.0 && C * W * exp(-s) < eta * tol / (double)kden) break;
+            if (L + SOE_MAXG >= cap) { ok = 0; break; }
+            sc[L] = s;
+            wc[L] = W;
+            L++;
+        }
+        if (!ok) continue;
+        size_t N = (size_t)(46.0 / dtau) + 3, i = 0;
+        double *buf = malloc((3 * N + N * SOE_MAXG + N) * sizeof(double));
+        if (!buf) { st = FC_ERR_NOMEM; goto done; }
+        double *xs = buf, *ws = buf + N, *wrk = buf + 2 * N;
+        double j = jL - 1.0, s = 0.0;
+        for (; i + 1 < N; j -= 1.0, i++) {
+            s = exp(j * dtau);
+            double xx = s / sL;
+            if (xx < 1e-20) break;
+            xs[i] = xx;
+            ws[i] = dtau * pow(s, b);
+        }
+        s = exp(j * dtau);
+        xs[i] = 0.0;
+        ws[i] = dtau * pow(s, b) / (-expm1(-b * dtau));
+        i++;
+        double gx[SOE_MAXG], gw[SOE_MAXG];
+        size_t ng = soe_gauss_discrete(i, xs, ws, (size_t)cand[ci].ng, wrk, gx, gw);
+        free(buf);
+        for (size_t k = 0; k < ng; k++) {
+            double sk = gx[k] * sL;
+            if (!(sk > 0.0) || !(gw[k] > 0.0) || !isfinite(gw[k])) { ok = 0; break; }
+            sc[L] = sk;
+            wc[L] = gw[k];
+            L++;
+        }
+        if (!ok) continue;
+        for (size_t l = 0; l < L; l++) {
+            wc[l] = (double)((long double)wc[l] * Cl);
+            if (!(wc[l] > 0.0) || !isfinite(wc[l])) ok = 0;
+        }
+        if (!ok || (Lbest && L >= Lbest)) continue;
+        double worst = 0.0;
+        for (size_t v = 0; v < nv && worst <= thresh; v++) {
+            long double sum = 0.0L;
+            for (size_t l = 0; l < L; l++) sum += (long double)wc[l] * expl(-(long double)sc[l] * tv[v]);
+            double e = (double)(fabsl(sum - kv[v]) / kv[v]);
+            if (!(e <= worst)) worst = e;
+        }
+        if (!(worst <= thresh)) continue;
+        memcpy(sb, sc, L * sizeof *sb);
+        memcpy(wb, wc, L * sizeof *wb);
+        Lbest = L;
+    }
+    if (!Lbest) { st = FC_ERR_TOL; goto done; }
+    out->s = malloc(Lbest * sizeof(double));
+    out->w = malloc(Lbest * sizeof(double));
+    if (!out->s || !out->w) {
+        free(out->s); free(out->w); out->s = out->w = NULL;
+        st = FC_ERR_NOMEM;
+        goto done;
+    }
+    memcpy(out->s, sb, Lbest * sizeof(double));
+    memcpy(out->w, wb, Lbest * sizeof(double));
+    out->L = Lbest;
+done:
+    free(tv); free(kv); free(sc); free(wc); free(sb); free(wb);
     return st;
 }

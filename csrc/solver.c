@@ -34,6 +34,7 @@
 #include <string.h>
 
 #include "fracconv.h"
+#include "guard.h"
 #include "serial.h"
 
 #define SV_MAGIC "FCSOLVE1"
@@ -76,7 +77,7 @@ struct fc_solver {
     uint64_t fail_step;
     double fail_t;
     uint64_t reserved; /* samples the streams have room for */
-    int busy;
+    fc__guard busy;   /* guard.h: one call at a time, callbacks included */
     /* work space */
     double *w0;       /* m: trapezoid lag-0 weight of each component */
     double *hr, *ht;  /* m: rectangle and trapezoid histories */
@@ -217,6 +218,7 @@ static int build(size_t m, const double *orders, double step, double t0,
         mul_size(mm, sizeof(double), &mm) || mul_size(vb, K, &kb))
         return FC_ERR_SIZE;
     fc_solver *s = calloc(1, sizeof *s);
+    if (s) fc__guard_init(&s->busy);
     if (!s) return FC_ERR_NOMEM;
     s->m = m; s->method = method; s->memory = memory; s->K = K;
     s->step = step; s->t0 = t0;
@@ -337,19 +339,20 @@ int fc_solver_create(size_t m, const double *orders, double step, double t0,
 
 int fc_solver_set_rhs(fc_solver *s, fc_rhs_fn fn, void *user)
 {
-    if (!s || !fn) return FC_ERR_NULL;
-    if (s->busy) return FC_ERR_BUSY;
+    if (!fn) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(s);
     s->rhs = fn;
     s->rhs_user = user;
+    fc__guard_leave(&s->busy);
     return FC_OK;
 }
 
 int fc_solver_set_jacobian(fc_solver *s, fc_jac_fn fn, void *user)
 {
-    if (!s) return FC_ERR_NULL;
-    if (s->busy) return FC_ERR_BUSY;
+    FC__ENTER_OR_RETURN(s);
     s->jac = fn;
     s->jac_user = fn ? user : NULL;
+    fc__guard_leave(&s->busy);
     return FC_OK;
 }
 
@@ -358,9 +361,10 @@ int fc_solver_set_newton(fc_solver *s, double tol, unsigned maxiter)
     if (!s) return FC_ERR_NULL;
     if (!(tol >= 1e-15 && tol <= 1e-2)) return FC_ERR_TOL;
     if (maxiter < 1 || maxiter > 1000) return FC_ERR_ARG;
-    if (s->busy) return FC_ERR_BUSY;
+    FC__ENTER_OR_RETURN(s);
     s->ntol = tol;
     s->nmax = maxiter;
+    fc__guard_leave(&s->busy);
     return FC_OK;
 }
 
@@ -368,8 +372,9 @@ int fc_solver_set_corrections(fc_solver *s, unsigned passes)
 {
     if (!s) return FC_ERR_NULL;
     if (passes < 1 || passes > 100) return FC_ERR_ARG;
-    if (s->busy) return FC_ERR_BUSY;
+    FC__ENTER_OR_RETURN(s);
     s->passes = passes;
+    fc__guard_leave(&s->busy);
     return FC_OK;
 }
 
@@ -618,11 +623,9 @@ static int reserve(fc_solver *s, uint64_t need)
     return FC_ERR_NOMEM; /* not reached */
 }
 
-int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
-                      double *y_out, size_t *done)
+static int advance(fc_solver *s, size_t nsteps, double *t_out,
+                   double *y_out, size_t *done)
 {
-    if (!s || !done) return FC_ERR_NULL;
-    if (s->busy) return FC_ERR_BUSY;
     *done = 0;
     if (!s->rhs) return FC_ERR_NORHS;
     if (nsteps == 0) return FC_OK;
@@ -650,7 +653,6 @@ int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
             (st = grow_history(s, n_end)) != FC_OK)
             return st;
     }
-    s->busy = 1;
     int st = FC_OK;
     if (!s->f0done && s->method == FC_METHOD_IMPLICIT_RECTANGLE)
         s->f0done = 1; /* f_0 does not enter the right-end-point rule */
@@ -672,7 +674,18 @@ int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
         if (y_out) memcpy(y_out + j * m, s->yc, m * sizeof(double));
     }
     *done = j;
-    s->busy = 0;
+    return st;
+}
+
+/* The guard is held for the whole advance: a callback that calls back
+   into its own solver gets FC_ERR_BUSY, as does another thread. */
+int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
+                      double *y_out, size_t *done)
+{
+    if (!done) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(s);
+    int st = advance(s, nsteps, t_out, y_out, done);
+    fc__guard_leave(&s->busy);
     return st;
 }
 
@@ -680,22 +693,28 @@ int fc_solver_advance(fc_solver *s, size_t nsteps, double *t_out,
 
 int fc_solver_time(const fc_solver *s, double *t)
 {
-    if (!s || !t) return FC_ERR_NULL;
+    if (!t) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(s);
     *t = s->t0 + (double)s->n * s->step;
+    fc__guard_leave(&s->busy);
     return FC_OK;
 }
 
 int fc_solver_state(const fc_solver *s, double *y)
 {
-    if (!s || !y) return FC_ERR_NULL;
+    if (!y) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(s);
     memcpy(y, s->y, s->m * sizeof(double));
+    fc__guard_leave(&s->busy);
     return FC_OK;
 }
 
 int fc_solver_steps(const fc_solver *s, uint64_t *n)
 {
-    if (!s || !n) return FC_ERR_NULL;
+    if (!n) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(s);
     *n = s->n;
+    fc__guard_leave(&s->busy);
     return FC_OK;
 }
 
@@ -709,23 +728,28 @@ int fc_solver_dim(const fc_solver *s, size_t *m)
 int fc_solver_counts(const fc_solver *s, uint64_t *rhs_calls,
                      uint64_t *jac_calls)
 {
-    if (!s || !rhs_calls || !jac_calls) return FC_ERR_NULL;
+    if (!rhs_calls || !jac_calls) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(s);
     *rhs_calls = s->nrhs;
     *jac_calls = s->njac;
+    fc__guard_leave(&s->busy);
     return FC_OK;
 }
 
 int fc_solver_failure(const fc_solver *s, uint64_t *step, double *t)
 {
-    if (!s || !step || !t) return FC_ERR_NULL;
+    if (!step || !t) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(s);
     *step = s->fail_step;
     *t = s->fail_t;
+    fc__guard_leave(&s->busy);
     return FC_OK;
 }
 
 int fc_solver_nbytes(const fc_solver *s, size_t *nbytes)
 {
-    if (!s || !nbytes) return FC_ERR_NULL;
+    if (!nbytes) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(s);
     size_t m = s->m;
     size_t b = sizeof *s + s->ng * sizeof(sv_group) + m * sizeof(size_t) * 2
              + (12 + (size_t)s->K) * m * sizeof(double);
@@ -737,6 +761,7 @@ int fc_solver_nbytes(const fc_solver *s, size_t *nbytes)
         if (s->g[j].trap && fc_stream_nbytes(s->g[j].trap, &x) == FC_OK) b += x;
     }
     *nbytes = b;
+    fc__guard_leave(&s->busy);
     return FC_OK;
 }
 
@@ -811,16 +836,16 @@ static int save_size(const fc_solver *s, size_t *size)
 
 int fc_solver_save_size(const fc_solver *s, size_t *size)
 {
-    if (!s || !size) return FC_ERR_NULL;
-    if (s->busy) return FC_ERR_BUSY;
-    return save_size(s, size);
+    if (!size) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(s);
+    int st = save_size(s, size);
+    fc__guard_leave(&s->busy);
+    return st;
 }
 
-int fc_solver_save(const fc_solver *s, unsigned char *buf, size_t size,
-                   size_t *written)
+static int save(const fc_solver *s, unsigned char *buf, size_t size,
+                size_t *written)
 {
-    if (!s || !buf || !written) return FC_ERR_NULL;
-    if (s->busy) return FC_ERR_BUSY;
     size_t need;
     int st = save_size(s, &need);
     if (st != FC_OK) return st;
@@ -869,6 +894,16 @@ int fc_solver_save(const fc_solver *s, unsigned char *buf, size_t size,
     off += 8;
     *written = off;
     return FC_OK;
+}
+
+int fc_solver_save(const fc_solver *s, unsigned char *buf, size_t size,
+                   size_t *written)
+{
+    if (!buf || !written) return FC_ERR_NULL;
+    FC__ENTER_OR_RETURN(s);
+    int st = save(s, buf, size, written);
+    fc__guard_leave(&s->busy);
+    return st;
 }
 
 /* Implicit rectangle, load: the rows fit under the horizon. */
@@ -945,9 +980,13 @@ int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out)
     uint32_t nmax = get_u32(buf + 72), passes = get_u32(buf + 76);
     uint64_t n = get_u64(buf + 80), f0 = get_u64(buf + 88);
     uint64_t nrhs = get_u64(buf + 96), njac = get_u64(buf + 104);
+    /* every step evaluates f at least once, and so does the start except
+       for the implicit rectangle rule (f_0 does not enter it: its f0done
+       is set without an evaluation, see advance) */
+    uint64_t min_rhs = (method == FC_METHOD_IMPLICIT_RECTANGLE ? 0 : f0) + n;
     if (!(ntol >= 1e-15 && ntol <= 1e-2) || nmax < 1 || nmax > 1000 ||
         passes < 1 || passes > 100 || f0 > 1 || (f0 == 0 && n != 0) ||
-        n >= (UINT64_C(1) << 53) || nrhs < f0 + n)
+        n >= (UINT64_C(1) << 53) || nrhs < min_rhs)
         return FC_ERR_FORMAT;
     if (memory == FC_MODE_EXACT && (tol != 0.0 ||
         (method != FC_METHOD_IMPLICIT_RECTANGLE && horizon != 0.0)))

@@ -3,7 +3,8 @@
  *
  * A stream is an engine behind one interface (fc__stream_ops, internal.h):
  * stream_exact.c (FC_MODE_EXACT, rules and user kernels) and
- * stream_compressed.c (FC_MODE_COMPRESSED). This file keeps what is common
+ * stream_compressed.c (FC_MODE_COMPRESSED) and stream_timed.c (compressed,
+ * a time per sample). This file keeps what is common
  * to both and nothing of either engine's arithmetic:
  *   - the busy guard (a stream used by two threads at once answers
  *     FC_ERR_BUSY and is left as it was);
@@ -20,12 +21,12 @@
 #include <stdlib.h>
 #include <string.h>
 #include <math.h>
-#include <stdatomic.h>
 #include "internal.h"
+#include "guard.h"
 #include "serial.h"
 
 struct fc_stream {
-    atomic_flag busy;
+    fc__guard busy;
     int mode;               /* FC_MODE_* */
     unsigned kind;          /* FC__KIND_* */
     int rule;               /* -1 for a kernel */
@@ -37,37 +38,26 @@ struct fc_stream {
     void *eng;              /* the engine's own state */
 };
 
-/* The engine of a mode, NULL for a number that is not a mode. */
-static const fc__stream_ops *engine_of(uint64_t mode)
+/* The engines, indexed by mode (FC_MODE_*, part of the save format). */
+static const fc__stream_ops *const engines[] = {
+    [FC_MODE_EXACT] = &fc__exact_ops,
+    [FC_MODE_COMPRESSED] = &fc__compressed_ops,
+};
+
+const fc__stream_ops *fc__stream_engine(int64_t mode)
 {
-    switch (mode) {
-    case FC_MODE_EXACT: return &fc__exact_ops;
-    case FC_MODE_COMPRESSED: return &fc__compressed_ops;
-    }
-    return NULL;
+    const int64_t n = (int64_t)(sizeof engines / sizeof engines[0]);
+    return mode >= 0 && mode < n ? engines[mode] : NULL;
 }
 
 /* ---------------------------------------------------------------- busy */
 
-static int enter(const fc_stream *cs)
+/* The busy guard of guard.h (shared with the solver and the controller). */
+static void leave(const fc_stream *s)
 {
-    fc_stream *s = (fc_stream *)cs; /* the object itself is never const */
-    if (atomic_flag_test_and_set_explicit(&s->busy, memory_order_acquire))
-        return FC_ERR_BUSY;
-    return FC_OK;
+    fc__guard_leave(&s->busy);
 }
-static void leave(const fc_stream *cs)
-{
-    fc_stream *s = (fc_stream *)cs;
-    atomic_flag_clear_explicit(&s->busy, memory_order_release);
-}
-
-#define ENTER_OR_RETURN(s)                       \
-    do {                                         \
-        if (!(s)) return FC_ERR_NULL;            \
-        int st_e_ = enter(s);                    \
-        if (st_e_ != FC_OK) return st_e_;        \
-    } while (0)
+#define ENTER_OR_RETURN(s) FC__ENTER_OR_RETURN(s)
 
 /* ------------------------------------------------------------ create */
 
@@ -85,7 +75,7 @@ static int stream_new(const fc__stream_ops *ops, int mode,
         free(s);
         return st;
     }
-    atomic_flag_clear(&s->busy);
+    fc__guard_init(&s->busy);
     s->mode = mode;
     s->kind = d->kind;
     s->rule = d->rule;
@@ -108,26 +98,25 @@ void fc_stream_free(fc_stream *s)
 }
 
 /* The checks of fc_stream_create, in the order that decides the status
-   of a call with several faults. */
+   of a call with several faults; the engine's order range (the rule
+   table's, through ops) and, for an engine with a horizon, its tolerance
+   and horizon limits. */
 static int check_create(int rule, double order, double step, size_t channels,
-                        int mode, double tol, double horizon)
+                        const fc__stream_ops *ops, double tol, double horizon)
 {
     int st;
     if ((st = fc__check_rule(rule, order, step)) != FC_OK) return st;
-    const fc__rule_desc *d = fc__rule(rule);
-    if (mode == FC_MODE_EXACT && !fc__in_range(&d->exact, order))
-        return FC_ERR_ORDER;
     if (channels == 0) return FC_ERR_ARG;
     if (channels > FC__STREAM_CHANNELS_MAX) return FC_ERR_SIZE;
-    if (mode != FC_MODE_EXACT && mode != FC_MODE_COMPRESSED) return FC_ERR_MODE;
-    if (mode == FC_MODE_COMPRESSED) {
-        if (!(tol >= FC__CS_TOL_MIN && tol <= FC__CS_TOL_MAX) ||
-            !(horizon >= 1.0) || !isfinite(horizon))
-            return FC_ERR_TOL;
-        if (!fc__in_range(&d->compressed, order)) return FC_ERR_ORDER;
-        /* the count stays below 2^53 (FC_INDEX_LIMIT) */
-        if (horizon > FC__CS_HORIZON_MAX) return FC_ERR_TOL;
-    }
+    if (ops == NULL) return FC_ERR_MODE;
+    if (ops->has_horizon &&
+        (!(tol >= ops->tol_min && tol <= ops->tol_max) ||
+         !(horizon >= 1.0) || !isfinite(horizon)))
+        return FC_ERR_TOL;
+    if (!fc__in_range(ops->order_range(fc__rule(rule)), order))
+        return FC_ERR_ORDER;
+    /* the count stays below 2^53 (FC_INDEX_LIMIT) */
+    if (ops->has_horizon && horizon > ops->horizon_max) return FC_ERR_TOL;
     return FC_OK;
 }
 
@@ -136,12 +125,25 @@ int fc_stream_create(int rule, double order, double step, size_t channels,
 {
     int st;
     if (!out) return FC_ERR_NULL;
-    st = check_create(rule, order, step, channels, mode, tol, horizon);
+    const fc__stream_ops *ops = fc__stream_engine(mode);
+    st = check_create(rule, order, step, channels, ops, tol, horizon);
     if (st != FC_OK) return st;
-    int cs = mode == FC_MODE_COMPRESSED;
     fc__stream_def d = {FC__KIND_RULE, rule, order, step, channels,
-                        cs ? tol : 0.0, cs ? horizon : 0.0, NULL, 0};
-    return stream_new(engine_of((uint64_t)mode), mode, &d, NULL, 0, out);
+                        ops->has_horizon ? tol : 0.0,
+                        ops->has_horizon ? horizon : 0.0, NULL, 0};
+    return stream_new(ops, mode, &d, NULL, 0, out);
+}
+
+int fc_stream_create_timed(int rule, double order, double min_step,
+                           size_t channels, double tol, double horizon,
+                           fc_stream **out)
+{
+    if (!out) return FC_ERR_NULL;
+    int st = fc__timed_params_check(rule, order, min_step, channels, tol, horizon);
+    if (st != FC_OK) return st;
+    fc__stream_def d = {FC__KIND_TIMED, rule, order, min_step, channels,
+                        tol, horizon, NULL, 0};
+    return stream_new(&fc__timed_ops, FC_MODE_COMPRESSED, &d, NULL, 0, out);
 }
 
 int fc_stream_create_kernel(const double *kernel, size_t klen,
@@ -167,6 +169,14 @@ static int partial_overlap(const double *x, const double *y, size_t n)
     if (a == b || n == 0) return 0;
     uintptr_t len = (uintptr_t)n * sizeof(double);
     return a < b ? b - a < len : a - b < len;
+}
+
+/* 1 if a[0 .. na) and b[0 .. nb) share an element. */
+static int any_overlap(const double *a, size_t na, const double *b, size_t nb)
+{
+    uintptr_t pa = (uintptr_t)a, pb = (uintptr_t)b;
+    if (na == 0 || nb == 0) return 0;
+    return pa < pb + nb * sizeof(double) && pb < pa + na * sizeof(double);
 }
 
 /* Outputs 0 .. floor(horizon) are under the promise of a stream with a
@@ -197,7 +207,7 @@ static int push_block(fc_stream *s, const double *x, size_t count,
     if (!s) return FC_ERR_NULL;
     if (count && (!x || !y)) return FC_ERR_NULL;
     if (threads == 0 || threads > FC_THREADS_MAX) return FC_ERR_ARG;
-    if ((st = enter(s)) != FC_OK) return st;
+    if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
     if (fc__mul_size(count, s->C, &tot) || tot > (size_t)-1 / sizeof(double))
         st = FC_ERR_SIZE;
     else if (partial_overlap(x, y, tot)) st = FC_ERR_ARG;
@@ -220,6 +230,35 @@ int fc_stream_push_block_threads(fc_stream *s, const double *x, size_t count,
     return push_block(s, x, count, y, threads);
 }
 
+int fc_stream_push_timed(fc_stream *s, const double *t, const double *x,
+                         size_t count, double *y)
+{
+    int st;
+    size_t tot;
+    if (!s) return FC_ERR_NULL;
+    if (count && (!t || !x || !y)) return FC_ERR_NULL;
+    if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
+    if (fc__mul_size(count, s->C, &tot) || tot > (size_t)-1 / sizeof(double))
+        st = FC_ERR_SIZE;
+    else if (!s->ops->push_timed) st = FC_ERR_ARG;
+    else if (partial_overlap(x, y, tot) || any_overlap(t, count, y, tot))
+        st = FC_ERR_ARG;
+    else if (count && (st = fc__check_finite(t, count)) != FC_OK) {}
+    else if (tot && (st = fc__check_finite(x, tot)) != FC_OK) {}
+    else if (count)
+        st = s->ops->push_timed(s->eng, t, x, count, y,
+                                s->horizon_policy == FC_HORIZON_REFUSE);
+    leave(s);
+    return st;
+}
+
+int fc_stream_is_timed(const fc_stream *s, int *timed)
+{
+    if (!s || !timed) return FC_ERR_NULL;
+    *timed = s->kind == FC__KIND_TIMED; /* immutable */
+    return FC_OK;
+}
+
 int fc_stream_push(fc_stream *s, const double *x, double *y)
 {
     if (!s || !x || !y) return FC_ERR_NULL;
@@ -230,7 +269,7 @@ int fc_stream_push1(fc_stream *s, double x, double *y)
 {
     int st;
     if (!s || !y) return FC_ERR_NULL;
-    if ((st = enter(s)) != FC_OK) return st;
+    if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
     if (s->C != 1) st = FC_ERR_ARG;
     else if (!isfinite(x)) st = FC_ERR_NONFINITE;
     else if ((st = horizon_check(s, 1)) == FC_OK)
@@ -252,7 +291,7 @@ int fc_stream_preview(fc_stream *s, const double *x, double *y)
 {
     int st;
     if (!s || !x || !y) return FC_ERR_NULL;
-    if ((st = enter(s)) != FC_OK) return st;
+    if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
     if ((st = fc__check_finite(x, s->C)) != FC_OK) {}
     else if (partial_overlap(x, y, s->C)) st = FC_ERR_ARG;
     else if ((st = horizon_check(s, 1)) == FC_OK)
@@ -265,7 +304,7 @@ int fc_stream_history(fc_stream *s, double *h)
 {
     int st;
     if (!s || !h) return FC_ERR_NULL;
-    if ((st = enter(s)) != FC_OK) return st;
+    if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
     if ((st = horizon_check(s, 1)) == FC_OK) /* the next output's */
         st = s->ops->history(s->eng, h);
     leave(s);
@@ -356,7 +395,8 @@ int fc_stream_past_horizon(const fc_stream *s, int *flag)
     if (!flag) return FC_ERR_NULL;
     ENTER_OR_RETURN(s);
     /* outputs 0 .. n-1 have been produced */
-    *flag = s->ops->has_horizon &&
+    if (s->ops->past) *flag = s->ops->past(s->eng);
+    else *flag = s->ops->has_horizon &&
             (double)s->ops->count(s->eng) > floor(s->horizon) + 1.0;
     leave(s);
     return FC_OK;
@@ -412,7 +452,8 @@ int fc_stream_horizon(const fc_stream *s, double *horizon)
  *   0  magic "FCSTREAM"          8 bytes
  *   8  u32 format version (1)
  *  12  u32 mode
- *  16  u32 kind (0 rule, 1 kernel)
+ *  16  u32 kind (0 rule, 1 kernel, 2 a time per sample: then mode 1,
+ *      step the smallest step and horizon a time; stream_timed.c)
  *  20  i32 rule (-1 for a kernel)
  *  24  f64 order, 32 f64 step, 40 u64 channels, 48 f64 tol, 56 f64 horizon
  *  64  u64 payload size
@@ -503,7 +544,10 @@ int fc_stream_load(const unsigned char *buf, size_t size, fc_stream **out)
     uint64_t h = fc__fnv1a(FC__FNV_OFFSET, buf, FC_S_SUM_AT);
     if (!q || fc__fnv1a(h, q, (size_t)p) != sum) return FC_ERR_FORMAT;
 
-    const fc__stream_ops *ops = engine_of(mode);
+    const fc__stream_ops *ops = fc__stream_engine(mode);
+    if (d.kind == FC__KIND_TIMED)
+        /* a time per sample: saved with the compressed mode */
+        ops = ops == &fc__compressed_ops ? &fc__timed_ops : NULL;
     if (C64 == 0 || C64 > FC__STREAM_CHANNELS_MAX || ops == NULL)
         return FC_ERR_FORMAT;
     d.channels = (size_t)C64;

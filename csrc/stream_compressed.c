@@ -68,14 +68,28 @@
  * before it). The correction is then exact with respect to the library's
  * weights (as in the band), and the guarantee holds as stated.
  *
+ * Other correction columns. A rule's columns (the rule table,
+ * fc__corr_col) other than the one the construction carries (soe: the
+ * trapezoid's x_0) are added at run time in the same way: x_j is kept per
+ * channel once it arrives (nx doubles per channel, saved after the fields
+ * above: no rule of today's table has such a column, so no payload of
+ * today's rules changes) and corr_n x_j, corr_n from the library's weights
+ * in aligned blocks, is added for every n >= j after the terms above, in
+ * the table's order. The guarantee then holds with |corr_n x_j| added to
+ * the sum of magnitudes (the weights are exact, one more rounding per
+ * column); RANGE: cs_check_block refuses a step whose
+ * sum_i |corr^i_n x_j| exceeds umax (or is not finite), and cs_umax counts
+ * that sum once.
+ *
  * Arithmetic of a push (identical in the portable and the AVX2 path, so
  * results do not depend on which one runs; the CPU is probed once per
  * stream and the choice kept in it): explicit fma() for every product,
  * fixed lane structure (two accumulators of four lanes for the terms, four
  * for the band), fixed reduction order. Work per sample and channel: L
  * recursions and a dot product of length B, whatever the data.
- * Memory: 3 L + 2 B doubles shared, 2 B + 2 L + 2 per channel, fixed at
- * creation; a push never allocates.
+ * Memory: 3 L + 2 B doubles shared, 2 B + 2 L + 2 per channel (the
+ * columns added at run time: CS_CORR_BLK more shared and one more per
+ * channel each), fixed at creation; a push never allocates.
  */
 #include <stdlib.h>
 #include <string.h>
@@ -95,14 +109,25 @@
 #define CS_BAND FC__CS_BAND         /* exact local band: lags 0 .. CS_BAND-1 */
 #define CS_MAX_TERMS FC__CS_MAX_TERMS /* more than this: FC_ERR_TOL */
 #define CS_FMT_VERSION 1u
-#define CS_CORR_BLK 256             /* trapezoid, a >= 1: corr_n cached in
-                                       aligned blocks of this many n */
+#define CS_CORR_BLK 256             /* corrections added at run time:
+                                       corr_n cached in aligned blocks of
+                                       this many n */
+
+/* corr_n of one correction column (d->corr[k]) for n in [base, base + cnt),
+   recomputed from n alone (not part of the state). */
+typedef struct {
+    double *buf;              /* CS_CORR_BLK */
+    uint64_t base;
+    size_t cnt;
+    size_t k;
+} cs_cache;
 
 
 /* The state of one compressed stream (the facade's engine pointer). */
 typedef struct cs_engine {
     int rule;
-    int x0corr;               /* the rule has an x_0 correction (trapezoid) */
+    int x0corr;               /* the construction carries the rule's x_0
+                                 column (trapezoid; fc__corr_col.soe) */
     int diffs;                /* the rule sums differences of x (L1) */
     int cum;                  /* rectangle, trapezoid, order >= 1: engine
                                  input is X */
@@ -125,13 +150,25 @@ typedef struct cs_engine {
     double *S, *Sc;           /* C * Lp, compensated states */
     double *xprev, *x0;       /* C */
     double *xfirst;           /* C (tcum only, else NULL): x_0 */
-    /* tcum: corr_n for n in [corrbase, corrbase + corrcnt), recomputed from
-       n alone (not part of the state) */
-    double *corrbuf;
-    uint64_t corrbase;
-    size_t corrcnt;
+    cs_cache tc;              /* tcum: the x_0 column's corr_n, n >= B */
     double corrmax;           /* tcum: max |corr_n|, B <= n <= horizon */
+    /* the other correction columns (not carried by the construction),
+       added at run time from the library's weights: nx of them, column
+       xj[i] of the rule's list, x_j of channel c in xs[i * C + c] (0
+       before it arrives) */
+    size_t nx;
+    uint64_t xj[FC__CORR_MAX];
+    cs_cache xc[FC__CORR_MAX];
+    double *xs;
     double umax;              /* largest accepted |u| (RANGE) */
+    /* One channel only: the states and output a preview computed, and the
+       sample and count it computed them for; a push of that very sample
+       next takes them (swapping S with pS) instead of computing the step
+       again, so a preview followed by its push costs one step. Not part
+       of the state: not saved, dropped by every push and by reset. */
+    double *pS, *pSc, py;
+    uint64_t pn, pbits;
+    int pvalid;
     void *mem;
     size_t memsize;
 } cs_engine;
@@ -140,10 +177,17 @@ typedef struct cs_engine {
 
 /* Portable kernel: the same operations and order as the AVX2 one. Term l
    receives d, or inj_l * d when inj is not NULL (the one step n = B of the
-   trapezoid rule). */
+   trapezoid rule); the new states go to So, Sco (which may be S, Sc)
+   unless So is NULL. A new state s or compensation e below DBL_MIN in
+   magnitude is set to +0 before it is used: a stream fed zeros (a
+   controller's integral held at a limit, a signal that stops) would
+   otherwise decay its states into the subnormal range, where arithmetic
+   is many times slower on common CPUs (seen: 5x per push), and the work
+   per sample would no longer be the same on every step. The error this
+   adds is absolute, below Lp * DBL_MIN * max |beta_l| per output. */
 static void cs_terms_portable(size_t Lp, const double *q, const double *beta,
-                              const double *inj, double *S, double *Sc,
-                              double d, int commit, double acc_out[8])
+                              const double *inj, const double *S, const double *Sc,
+                              double *So, double *Sco, double d, double acc_out[8])
 {
     double acc[8] = {0, 0, 0, 0, 0, 0, 0, 0};
     for (size_t l = 0; l < Lp; l += 8) {
@@ -154,8 +198,10 @@ static void cs_terms_portable(size_t Lp, const double *q, const double *beta,
             double s = s0 + t3;
             double z = s - s0;
             double e = (s0 - (s - z)) + (t3 - z);
+            s = fc__ftz(s);
+            e = fc__ftz(e);
             acc[k] = fma(beta[l + k], s, acc[k]);
-            if (commit) { S[l + k] = s; Sc[l + k] = e; }
+            if (So) { So[l + k] = s; Sco[l + k] = e; }
         }
     }
     memcpy(acc_out, acc, sizeof acc);
@@ -182,37 +228,43 @@ static double cs_reduce8(const double a[8])
 #if CS_HAVE_AVX2
 __attribute__((target("avx2,fma")))
 static void cs_terms_avx2(size_t Lp, const double *q, const double *beta,
-                          const double *inj, double *S, double *Sc, double d,
-                          int commit, double acc_out[8])
+                          const double *inj, const double *S, const double *Sc,
+                          double *So, double *Sco, double d, double acc_out[8])
 {
     __m256d accA = _mm256_setzero_pd(), accB = _mm256_setzero_pd();
     const __m256d dv = _mm256_set1_pd(d);
+    const __m256d tiny = _mm256_set1_pd(DBL_MIN);
+    const __m256d mag = _mm256_castsi256_pd(_mm256_set1_epi64x(0x7fffffffffffffffLL));
+#define CS_FLUSH(v) _mm256_and_pd((v), _mm256_cmp_pd(_mm256_and_pd((v), mag), tiny, _CMP_GE_OQ))
     for (size_t l = 0; l < Lp; l += 8) {
-        __m256d nq0 = _mm256_sub_pd(_mm256_setzero_pd(), _mm256_loadu_pd(q + l));
-        __m256d nq1 = _mm256_sub_pd(_mm256_setzero_pd(), _mm256_loadu_pd(q + l + 4));
+        __m256d q0 = _mm256_loadu_pd(q + l), q1 = _mm256_loadu_pd(q + l + 4);
         __m256d d0 = inj ? _mm256_mul_pd(_mm256_loadu_pd(inj + l), dv) : dv;
         __m256d d1 = inj ? _mm256_mul_pd(_mm256_loadu_pd(inj + l + 4), dv) : dv;
         __m256d s00 = _mm256_loadu_pd(S + l), s01 = _mm256_loadu_pd(S + l + 4);
         __m256d c00 = _mm256_loadu_pd(Sc + l), c01 = _mm256_loadu_pd(Sc + l + 4);
-        __m256d t0 = _mm256_add_pd(_mm256_fmadd_pd(nq0, s00, d0), c00);
-        __m256d t1 = _mm256_add_pd(_mm256_fmadd_pd(nq1, s01, d1), c01);
+        /* fnmadd: -(q s) + d in one rounding, fma(-q, s, d) exactly */
+        __m256d t0 = _mm256_add_pd(_mm256_fnmadd_pd(q0, s00, d0), c00);
+        __m256d t1 = _mm256_add_pd(_mm256_fnmadd_pd(q1, s01, d1), c01);
         __m256d s0 = _mm256_add_pd(s00, t0), s1 = _mm256_add_pd(s01, t1);
         __m256d z0 = _mm256_sub_pd(s0, s00), z1 = _mm256_sub_pd(s1, s01);
         __m256d e0 = _mm256_add_pd(_mm256_sub_pd(s00, _mm256_sub_pd(s0, z0)),
                                    _mm256_sub_pd(t0, z0));
         __m256d e1 = _mm256_add_pd(_mm256_sub_pd(s01, _mm256_sub_pd(s1, z1)),
                                    _mm256_sub_pd(t1, z1));
+        s0 = CS_FLUSH(s0); s1 = CS_FLUSH(s1);
+        e0 = CS_FLUSH(e0); e1 = CS_FLUSH(e1);
         accA = _mm256_fmadd_pd(_mm256_loadu_pd(beta + l), s0, accA);
         accB = _mm256_fmadd_pd(_mm256_loadu_pd(beta + l + 4), s1, accB);
-        if (commit) {
-            _mm256_storeu_pd(S + l, s0);
-            _mm256_storeu_pd(S + l + 4, s1);
-            _mm256_storeu_pd(Sc + l, e0);
-            _mm256_storeu_pd(Sc + l + 4, e1);
+        if (So) {
+            _mm256_storeu_pd(So + l, s0);
+            _mm256_storeu_pd(So + l + 4, s1);
+            _mm256_storeu_pd(Sco + l, e0);
+            _mm256_storeu_pd(Sco + l + 4, e1);
         }
     }
     _mm256_storeu_pd(acc_out, accA);
     _mm256_storeu_pd(acc_out + 4, accB);
+#undef CS_FLUSH
 }
 
 __attribute__((target("avx2,fma")))
@@ -240,16 +292,17 @@ static int cs_cpu_avx2(void)
 static int cs_cpu_avx2(void) { return 0; }
 #endif
 
-static void cs_terms(const cs_engine *cs, const double *inj, double *S,
-                     double *Sc, double d, int commit, double acc[8])
+static void cs_terms(const cs_engine *cs, const double *inj, const double *S,
+                     const double *Sc, double *So, double *Sco, double d,
+                     double acc[8])
 {
 #if CS_HAVE_AVX2
     if (cs->simd) {
-        cs_terms_avx2(cs->Lp, cs->q, cs->beta, inj, S, Sc, d, commit, acc);
+        cs_terms_avx2(cs->Lp, cs->q, cs->beta, inj, S, Sc, So, Sco, d, acc);
         return;
     }
 #endif
-    cs_terms_portable(cs->Lp, cs->q, cs->beta, inj, S, Sc, d, commit, acc);
+    cs_terms_portable(cs->Lp, cs->q, cs->beta, inj, S, Sc, So, Sco, d, acc);
 }
 
 static double cs_band(const cs_engine *cs, const double *w)
@@ -276,116 +329,172 @@ static inline void cs_dd_add(double *hi, double *lo, double x)
 
 /*
  * One time step for all channels. mode 0: push (commit), 1: preview,
- * 2: history (u_n and, at n = 0, x_0 taken as unknown = 0).
+ * 2: history (u_n and, at n = 0, x_0 taken as unknown = 0), 3: push of
+ * the sample the last preview computed (one channel, cs->pvalid): its
+ * states and output are taken as they are.
  * Every mode performs the same arithmetic on the values it uses, so a
  * preview equals the push bit for bit.
  */
-/* tcum: corr_n for B <= n < 2^53 (past the horizon too), the library's
-   correction (fc__x0_correction) computed for the aligned block of
-   CS_CORR_BLK indices holding n (cut at 2^53 - 1), so that the value
-   depends on n alone. Creation checked both ends, n = B and n = 2^53 - 1
-   (soe_build.c), and |corr_n| grows with n there, so the status is FC_OK. */
-static double cs_corr_at(cs_engine *cs, uint64_t n)
+/* corr_n of a column added at run time, n < 2^53 (past the horizon too):
+   the library's correction (fc__correction) computed for the aligned block
+   of CS_CORR_BLK indices holding n (cut at 2^53 - 1), so that the value
+   depends on n alone; NAN if the weights leave the double range. tcum:
+   creation checked both ends, n = B and n = 2^53 - 1 (soe_build.c), and
+   |corr_n| grows with n there, so the x_0 column never gives NAN. Other
+   columns: cs_check_block refuses a step whose correction is not finite
+   or too large. */
+static double cs_corr_at(const cs_engine *cs, cs_cache *k, uint64_t n)
 {
-    if (!(n >= cs->corrbase && n - cs->corrbase < cs->corrcnt)) {
+    if (!(n >= k->base && n - k->base < k->cnt)) {
         uint64_t base = n - n % CS_CORR_BLK;
         size_t cnt = CS_CORR_BLK;
         if (FC_INDEX_LIMIT - base < cnt) cnt = (size_t)(FC_INDEX_LIMIT - base);
-        if (fc__x0_correction(cs->rule, cs->order, cs->step, base, cnt,
-                              cs->corrbuf) != FC_OK) {
-            cs->corrcnt = 0;
-            return NAN;     /* not reached (see above) */
+        if (fc__correction(cs->rule, k->k, cs->order, cs->step, base, cnt,
+                           k->buf) != FC_OK) {
+            k->cnt = 0;
+            return NAN;
         }
-        cs->corrbase = base;
-        cs->corrcnt = cnt;
+        k->base = base;
+        k->cnt = cnt;
     }
-    return cs->corrbuf[n - cs->corrbase];
+    return k->buf[n - k->base];
 }
 
-/* One channel of one time step (count n, ring position pos, correction
-   corr, injection flag): shared by cs_step and the threaded block, so the
-   two give the same bits. */
-static inline void cs_step_channel(cs_engine *cs, size_t c, double xin,
-                                   double *yout, uint64_t n, size_t pos,
-                                   double corr, int inject, int mode)
+/* The corrections of the columns added at run time for output n:
+   w[i] = corr_n of column i once it has arrived (n >= j), else 0. */
+static void cs_extra_weights(cs_engine *cs, uint64_t n, double *w)
 {
-    const size_t B = CS_BAND;
-    const int commit = mode == 0;
-    double xc = mode == 2 ? 0.0 : xin;
-    double u;
-    double Xhi = 0.0, Xlo = 0.0;
-    if (cs->diffs) u = (n == 0 || mode == 2) ? 0.0 : xc - cs->xprev[c];
-    else if (cs->cum) {
-        /* X_n = X_{n-1} + x_n in double-double (xprev = high part,
-           x0 = low part), u = X_n rounded */
-        Xhi = cs->xprev[c];
-        Xlo = cs->x0[c];
-        cs_dd_add(&Xhi, &Xlo, xc);
-        u = Xhi;
-    } else u = xc;
-    double *ring = cs->ring + c * 2 * B;
-    double d = ring[pos];             /* u_{n-B} (0 while n < B) */
-    double acc[8];
-    double terms = 0.0;
-    if (cs->L) {
-        cs_terms(cs, inject ? cs->inj : NULL, cs->S + c * cs->Lp,
-                 cs->Sc + c * cs->Lp, d, commit, acc);
-        terms = cs_reduce8(acc);
-    }
-    /* window u_{n-B+1} .. u_{n-1}, u_{n-B} (weight 0) */
-    double band = cs_band(cs, ring + pos + 1);
-    double x0 = n == 0 ? xc : cs->tcum ? cs->xfirst[c] : cs->x0[c];
-    double yc = ((terms + band) + cs->c0 * u) + corr * x0;
-    *yout = yc;
-    if (commit) {
-        ring[pos] = u;
-        ring[pos + B] = u;
-        if (cs->cum) {
-            cs->xprev[c] = Xhi;
-            cs->x0[c] = Xlo;
-            if (cs->tcum && n == 0) cs->xfirst[c] = xc;
-        }
-        else {
-            cs->xprev[c] = xc;
-            if (n == 0) cs->x0[c] = xc;
-        }
-    }
-}
-
-/* trapezoid: corr_n x_0 from the table for n < B; for n >= B it is
-   carried by the terms, u_0 having entered term l as inj_l u_0 at
-   n = B (corr_m + c_m = sum_l beta_l inj_l (1-q_l)^m) */
-static double cs_step_corr(cs_engine *cs, uint64_t n)
-{
-    return (cs->x0corr && n < CS_BAND) ? cs->ctab[n]
-           : cs->tcum ? cs_corr_at(cs, n) : 0.0;
+    for (size_t i = 0; i < cs->nx; i++)
+        w[i] = n >= cs->xj[i] ? cs_corr_at(cs, &cs->xc[i], n) : 0.0;
 }
 
 static void cs_step(cs_engine *cs, const double *x, double *y, int mode)
 {
-    const size_t C = cs->C;
+    const size_t B = CS_BAND, C = cs->C;
+    const int commit = mode == 0 || mode == 3;
     const uint64_t n = cs->n;
-    const size_t pos = (size_t)(n % CS_BAND);
-    const double corr = cs_step_corr(cs, n);
-    const int inject = cs->x0corr && !cs->tcum && n == CS_BAND;
-    for (size_t c = 0; c < C; c++)
-        cs_step_channel(cs, c, mode == 2 ? 0.0 : x[c], &y[c], n, pos, corr,
-                        inject, mode);
-    if (mode == 0) cs->n = n + 1;
+    const size_t pos = (size_t)(n % B);
+    /* trapezoid: corr_n x_0 from the table for n < B; for n >= B it is
+       carried by the terms, u_0 having entered term l as inj_l u_0 at
+       n = B (corr_m + c_m = sum_l beta_l inj_l (1-q_l)^m) */
+    const double corr = (cs->x0corr && n < B) ? cs->ctab[n]
+                        : cs->tcum ? cs_corr_at(cs, &cs->tc, n) : 0.0;
+    const int inject = cs->x0corr && !cs->tcum && n == B;
+    double xw[FC__CORR_MAX];
+    cs_extra_weights(cs, n, xw);
+    for (size_t c = 0; c < C; c++) {
+        double xc = mode == 2 ? 0.0 : x[c];
+        double u;
+        double Xhi = 0.0, Xlo = 0.0;
+        if (cs->diffs) u = (n == 0 || mode == 2) ? 0.0 : xc - cs->xprev[c];
+        else if (cs->cum) {
+            /* X_n = X_{n-1} + x_n in double-double (xprev = high part,
+               x0 = low part), u = X_n rounded */
+            Xhi = cs->xprev[c];
+            Xlo = cs->x0[c];
+            cs_dd_add(&Xhi, &Xlo, xc);
+            u = Xhi;
+        } else u = xc;
+        double *ring = cs->ring + c * 2 * B;
+        double yc;
+        if (mode == 3) {
+            double *t = cs->S;
+            cs->S = cs->pS; cs->pS = t;
+            t = cs->Sc;
+            cs->Sc = cs->pSc; cs->pSc = t;
+            yc = cs->py;
+        } else {
+            double d = ring[pos];         /* u_{n-B} (0 while n < B) */
+            double acc[8];
+            double terms = 0.0;
+            double *S = cs->S + c * cs->Lp, *Sc = cs->Sc + c * cs->Lp;
+            double *So = mode == 0 ? S : mode == 1 ? cs->pS : NULL;
+            double *Sco = mode == 0 ? Sc : mode == 1 ? cs->pSc : NULL;
+            if (cs->L) {
+                cs_terms(cs, inject ? cs->inj : NULL, S, Sc, So, Sco, d, acc);
+                terms = cs_reduce8(acc);
+            }
+            /* window u_{n-B+1} .. u_{n-1}, u_{n-B} (weight 0) */
+            double band = cs_band(cs, ring + pos + 1);
+            double x0 = n == 0 ? xc : cs->tcum ? cs->xfirst[c] : cs->x0[c];
+            yc = ((terms + band) + cs->c0 * u) + corr * x0;
+            /* the other columns, in the table's order (x_j is the sample
+               pushed now when j = n) */
+            for (size_t i = 0; i < cs->nx; i++)
+                if (n >= cs->xj[i])
+                    yc += xw[i] * (n == cs->xj[i] ? xc : cs->xs[i * C + c]);
+            if (mode == 1 && cs->pS) {
+                cs->py = yc;
+                cs->pn = n;
+                memcpy(&cs->pbits, &xc, sizeof xc);
+                cs->pvalid = 1;
+            }
+        }
+        y[c] = yc;
+        if (commit) {
+            ring[pos] = u;
+            ring[pos + B] = u;
+            if (cs->cum) {
+                cs->xprev[c] = Xhi;
+                cs->x0[c] = Xlo;
+                if (cs->tcum && n == 0) cs->xfirst[c] = xc;
+            }
+            else {
+                cs->xprev[c] = xc;
+                if (n == 0) cs->x0[c] = xc;
+            }
+            for (size_t i = 0; i < cs->nx; i++)
+                if (n == cs->xj[i]) cs->xs[i * C + c] = xc;
+        }
+    }
+    if (commit) {
+        cs->n = n + 1;
+        cs->pvalid = 0;
+    }
 }
 
 /*
  * RANGE. FC_OK if pushing the count time steps x (finite) keeps every
  * engine input u (x; L1: x_n - x_{n-1}; rectangle with a >= 1: the running
- * sum X) within umax, else FC_ERR_RANGE; also FC_ERR_SIZE if the count
- * would reach 2^53 (the loader's bound). Writes nothing: the running sums
- * and the differences are recomputed with the very operations of cs_step.
+ * sum X) within umax, and the columns added at run time within umax too
+ * (sum_i |corr^i_n x_j| <= umax for every step: cs_umax counts it once),
+ * else FC_ERR_RANGE; also FC_ERR_SIZE if the count would reach 2^53 (the
+ * loader's bound). Writes no state (only the caches of corr_n): the
+ * running sums and the differences are recomputed with the very
+ * operations of cs_step.
  */
-static int cs_check_block(const cs_engine *cs, const double *x, size_t count)
+/* The columns added at run time over count steps of x (x NULL: one step
+   whose sample is taken as 0, the history): FC_ERR_RANGE if some
+   sum_i |corr^i_n x_j| is above umax or not finite. */
+static int cs_check_extra(cs_engine *cs, const double *x, size_t count)
+{
+    const size_t C = cs->C;
+    for (size_t t = 0; cs->nx && t < count; t++) {
+        double xw[FC__CORR_MAX];
+        const uint64_t n = cs->n + t;
+        cs_extra_weights(cs, n, xw);
+        for (size_t c = 0; c < C; c++) {
+            double e = 0.0;
+            for (size_t i = 0; i < cs->nx; i++) {
+                uint64_t j = cs->xj[i];
+                if (n < j) continue;
+                double xj = j < cs->n ? cs->xs[i * C + c]
+                            : x ? x[(size_t)(j - cs->n) * C + c] : 0.0;
+                e += fabs(xw[i]) * fabs(xj);
+            }
+            if (!(e <= cs->umax)) return FC_ERR_RANGE;
+        }
+    }
+    return FC_OK;
+}
+
+static int cs_check_block(cs_engine *cs, const double *x, size_t count)
 {
     const size_t C = cs->C;
     const double U = cs->umax;
     if ((uint64_t)count > FC_INDEX_LIMIT - 1 - cs->n) return FC_ERR_SIZE;
+    int st = cs_check_extra(cs, x, count);
+    if (st != FC_OK) return st;
     for (size_t c = 0; c < C; c++) {
         double hi = cs->xprev[c], lo = cs->x0[c];
         uint64_t n = cs->n;
@@ -406,31 +515,80 @@ static int cs_check_block(const cs_engine *cs, const double *x, size_t count)
    written. */
 /*
  * A block with the channels shared by threads: task k runs every time step
- * of its range of channels (channels share nothing but the count and the
- * correction of each step, computed first in step order). Each channel's
- * values go through cs_step_channel as in cs_step: the same bits.
+ * of its range of channels (channels share nothing but the count and what
+ * depends on it alone: the correction and the weights of the columns added
+ * at run time, computed first in step order). cs_step0_channel is
+ * cs_step's mode 0 for one channel, the same operations in the same order:
+ * the same bits.
  */
 typedef struct {
     cs_engine *cs;
-    const double *x, *corr;
+    const double *x, *corr, *xw;
     double *y;
     size_t count, q;
 } cs_job;
+
+static void cs_step0_channel(cs_engine *cs, size_t c, double xc, double *yout,
+                             uint64_t n, double corr, int inject,
+                             const double *xw)
+{
+    const size_t B = CS_BAND, C = cs->C;
+    const size_t pos = (size_t)(n % B);
+    double u;
+    double Xhi = 0.0, Xlo = 0.0;
+    if (cs->diffs) u = n == 0 ? 0.0 : xc - cs->xprev[c];
+    else if (cs->cum) {
+        Xhi = cs->xprev[c];
+        Xlo = cs->x0[c];
+        cs_dd_add(&Xhi, &Xlo, xc);
+        u = Xhi;
+    } else u = xc;
+    double *ring = cs->ring + c * 2 * B;
+    double d = ring[pos];
+    double acc[8];
+    double terms = 0.0;
+    double *S = cs->S + c * cs->Lp, *Sc = cs->Sc + c * cs->Lp;
+    if (cs->L) {
+        cs_terms(cs, inject ? cs->inj : NULL, S, Sc, S, Sc, d, acc);
+        terms = cs_reduce8(acc);
+    }
+    double band = cs_band(cs, ring + pos + 1);
+    double x0 = n == 0 ? xc : cs->tcum ? cs->xfirst[c] : cs->x0[c];
+    double yc = ((terms + band) + cs->c0 * u) + corr * x0;
+    for (size_t i = 0; i < cs->nx; i++)
+        if (n >= cs->xj[i])
+            yc += xw[i] * (n == cs->xj[i] ? xc : cs->xs[i * C + c]);
+    *yout = yc;
+    ring[pos] = u;
+    ring[pos + B] = u;
+    if (cs->cum) {
+        cs->xprev[c] = Xhi;
+        cs->x0[c] = Xlo;
+        if (cs->tcum && n == 0) cs->xfirst[c] = xc;
+    }
+    else {
+        cs->xprev[c] = xc;
+        if (n == 0) cs->x0[c] = xc;
+    }
+    for (size_t i = 0; i < cs->nx; i++)
+        if (n == cs->xj[i]) cs->xs[i * C + c] = xc;
+}
 
 static void cs_task(void *arg, size_t k, size_t w)
 {
     const cs_job *J = arg;
     cs_engine *cs = J->cs;
     const size_t C = cs->C, c0 = k * C / J->q, c1 = (k + 1) * C / J->q;
+    const size_t nx = cs->nx;
     (void)w;
     for (size_t t = 0; t < J->count; t++) {
         const uint64_t n = cs->n + t;
-        const size_t pos = (size_t)(n % CS_BAND);
         const int inject = cs->x0corr && !cs->tcum && n == CS_BAND;
         const double *xt = J->x + t * C;
         double *yt = J->y + t * C;
         for (size_t c = c0; c < c1; c++)
-            cs_step_channel(cs, c, xt[c], &yt[c], n, pos, J->corr[t], inject, 0);
+            cs_step0_channel(cs, c, xt[c], &yt[c], n, J->corr[t], inject,
+                             J->xw + t * nx);
     }
 }
 
@@ -442,17 +600,33 @@ static int cs_push_block(void *eng, const double *x, size_t count, double *y,
 {
     cs_engine *cs = eng;
     int st;
+    uint64_t bits;
+    if (count == 1 && cs->pvalid && cs->pn == cs->n) {
+        memcpy(&bits, x, sizeof bits);
+        if (bits == cs->pbits) {      /* the previewed sample: checked then */
+            cs_step(cs, x, y, 3);
+            return FC_OK;
+        }
+    }
     if ((st = cs_check_block(cs, x, count)) != FC_OK) return st;
     if (threads > cs->C) threads = cs->C;
-    if (threads > 1 && count * cs->C >= CS_PAR_MIN) {
-        double *corr = malloc(count * sizeof(double));
+    if (threads > 1 && count * cs->C >= CS_PAR_MIN &&
+        count <= ((size_t)-1) / sizeof(double) / (1 + cs->nx)) {
+        double *corr = malloc(count * (1 + cs->nx) * sizeof(double));
         if (corr != NULL) { /* else: the calling thread alone, below */
             /* up to 4 ranges of channels per thread, handed out in turn */
             size_t q = 4 * threads < cs->C ? 4 * threads : cs->C;
-            cs_job J = {cs, x, corr, y, count, q};
-            for (size_t t = 0; t < count; t++) corr[t] = cs_step_corr(cs, cs->n + t);
+            double *xw = corr + count;
+            cs_job J = {cs, x, corr, xw, y, count, q};
+            for (size_t t = 0; t < count; t++) {
+                const uint64_t n = cs->n + t;
+                corr[t] = (cs->x0corr && n < CS_BAND) ? cs->ctab[n]
+                          : cs->tcum ? cs_corr_at(cs, &cs->tc, n) : 0.0;
+                cs_extra_weights(cs, n, xw + t * cs->nx);
+            }
             fc__run_tasks(q, threads, cs_task, &J);
             cs->n += count;
+            cs->pvalid = 0;
             free(corr);
             return FC_OK;
         }
@@ -478,6 +652,8 @@ static int cs_preview(void *eng, const double *x, double *y)
 
 static int cs_history(void *eng, double *h)
 {
+    int st = cs_check_extra(eng, NULL, 1);
+    if (st != FC_OK) return st;
     cs_step(eng, NULL, h, 2);  /* mode 2 writes nothing */
     return FC_OK;
 }
@@ -492,7 +668,9 @@ static void cs_reset(void *eng)
     memset(cs->xprev, 0, C * sizeof(double));
     memset(cs->x0, 0, C * sizeof(double));
     if (cs->xfirst) memset(cs->xfirst, 0, C * sizeof(double));
+    if (cs->nx) memset(cs->xs, 0, cs->nx * C * sizeof(double));
     cs->n = 0;
+    cs->pvalid = 0;
 }
 
 static uint64_t cs_count(const void *eng)
@@ -519,14 +697,28 @@ static void cs_free(void *eng)
 
 /* ------------------------------------------------------------ allocation */
 
-static int cs_alloc(size_t C, size_t Lp, int tcum, cs_engine **out)
+/* The correction columns of a rule the runtime adds (those the
+   construction does not carry). */
+static size_t cs_runtime_cols(int rule)
+{
+    const fc__rule_desc *d = fc__rule(rule);
+    size_t m = 0;
+    for (size_t k = 0; k < d->ncorr; k++) m += !d->corr[k].soe;
+    return m;
+}
+
+static int cs_alloc(size_t C, size_t Lp, int tcum, size_t nx,
+                    cs_engine **out)
 {
     const size_t B = CS_BAND;
     size_t nd = 0, t;
-    /* shared: 3*Lp + 2*B (tcum: + CS_CORR_BLK); per channel: 2B + 2*Lp + 2
-       (tcum: + 1) */
+    /* shared: 3*Lp + 2*B (tcum: + CS_CORR_BLK; + nx CS_CORR_BLK; one
+       channel: + 2*Lp for the preview's states); per channel: 2B + 2*Lp + 2
+       (tcum: + 1; + nx) */
     size_t per;
-    const size_t xper = tcum ? 1 : 0, xsh = tcum ? CS_CORR_BLK : 0;
+    const size_t xper = (tcum ? 1 : 0) + nx,
+                 xsh = (tcum ? CS_CORR_BLK : 0) + nx * CS_CORR_BLK
+                       + (C == 1 ? 2 * Lp : 0);
     if (fc__mul_size(2, Lp, &per) || fc__add_size(per, 2 * B + 2 + xper, &per) ||
         fc__mul_size(per, C, &t) || fc__add_size(t, 3 * Lp + 2 * B + xsh, &nd) ||
         fc__mul_size(nd, sizeof(double), &t) || fc__add_size(t, 64, &t))
@@ -550,11 +742,18 @@ static int cs_alloc(size_t C, size_t Lp, int tcum, cs_engine **out)
     cs->x0 = p; p += C;
     if (tcum) {
         cs->xfirst = p; p += C;
-        cs->corrbuf = p; p += CS_CORR_BLK;
+        cs->tc.buf = p; p += CS_CORR_BLK;
+    }
+    for (size_t i = 0; i < nx; i++) {
+        cs->xc[i].buf = p; p += CS_CORR_BLK;
+    }
+    if (nx) { cs->xs = p; p += nx * C; }
+    if (C == 1) {
+        cs->pS = p; p += Lp;
+        cs->pSc = p; p += Lp;
     }
     cs->tcum = tcum;
-    cs->corrbase = 0;
-    cs->corrcnt = 0;
+    cs->nx = nx;
     cs->C = C;
     cs->Lp = Lp;
     for (size_t l = 0; l < Lp; l++) { cs->q[l] = 0.5; cs->inj[l] = 1.0; }
@@ -606,6 +805,7 @@ static double cs_umax(const cs_engine *cs)
     }
     if (cs->tcum && cs->corrmax > cmax) cmax = cs->corrmax;
     go += cmax;
+    if (cs->nx) go += 1.0;  /* the other columns: at most U (cs_check_block) */
     double g = go > gs ? go : gs;
     if (!(g <= 1e300)) return 0.0;      /* not reached for accepted steps */
     return 0.25 * (DBL_MAX / g);
@@ -625,8 +825,16 @@ static void cs_finish(cs_engine *cs, const double *cband, const double *ctab,
     cs->rule = rule; cs->order = order; cs->step = step;
     cs->tol = tol; cs->horizon = horizon;
     cs->cum = order >= fc__rule(rule)->cumulative_from; /* = fc__soe.cum */
-    /* cs->tcum: set by cs_alloc (= cum and x0corr) */
-    cs->x0corr = fc__rule_has_x0(rule);
+    /* cs->tcum, cs->nx: set by cs_alloc (tcum = cum and x0corr) */
+    cs->x0corr = fc__rule_has_soe_col(rule);
+    const fc__rule_desc *d = fc__rule(rule);
+    size_t kx;
+    if (fc__rule_soe_col(d, &kx)) cs->tc.k = kx;
+    for (size_t k = 0, i = 0; k < d->ncorr; k++)
+        if (!d->corr[k].soe) {
+            cs->xj[i] = d->corr[k].column;
+            cs->xc[i++].k = k;
+        }
     cs->diffs = fc__rule_uses_differences(rule);
     cs->simd = cs_cpu_avx2();
     cs->umax = cs_umax(cs);
@@ -645,8 +853,9 @@ static int cs_from_soe(const fc__soe *d, int rule, double order, double step,
     size_t Lp = (L + 7) / 8 * 8;
     if (Lp == 0) Lp = 8;
     cs_engine *cs;
-    const int tcum = d->cum && fc__rule_has_x0(rule);
-    if ((st = cs_alloc(channels, Lp, tcum, &cs)) != FC_OK) return st;
+    const int tcum = d->cum && fc__rule_has_soe_col(rule);
+    if ((st = cs_alloc(channels, Lp, tcum, cs_runtime_cols(rule), &cs)) != FC_OK)
+        return st;
     cs->corrmax = d->corrmax;
     memcpy(cs->q, d->q, L * sizeof(double));
     memcpy(cs->beta, d->beta, L * sizeof(double));
@@ -694,32 +903,35 @@ static int cs_create(const fc__stream_def *d, void **eng)
  *      (rectangle and trapezoid with order >= 1: ring holds X, xprev/x0
  *      the high/low parts of X), and for the trapezoid with order >= 1
  *      only, x_0 (these streams are new with it: every payload that
- *      earlier code wrote has the layout without it)
+ *      earlier code wrote has the layout without it), then x_j of each
+ *      correction column the runtime adds (cs_engine.nx, in the table's
+ *      order; no rule of today's table has one)
  *  end u64 FNV-1a 64 of everything before it
  */
 #define CS_HDR 72
 static const unsigned char cs_magic[4] = {'F', 'C', 'C', 'S'};
 
-/* Number of doubles after the header for (C, L, tcum); FC_ERR_SIZE on
+/* Number of doubles after the header for (C, L, tcum, nx); FC_ERR_SIZE on
    overflow. */
-static int cs_ndoubles(uint64_t C, uint64_t L, int tcum, size_t *nd)
+static int cs_ndoubles(uint64_t C, uint64_t L, int tcum, size_t nx,
+                       size_t *nd)
 {
     const size_t B = CS_BAND;
     size_t per, t, sh;
     if (C > (size_t)-1 || L > CS_MAX_TERMS) return FC_ERR_SIZE;
     sh = 3 * (size_t)L + 2 * B + 1;
     if (fc__mul_size(2, (size_t)L, &per) ||
-        fc__add_size(per, B + 2 + (tcum ? 1 : 0), &per) ||
+        fc__add_size(per, B + 2 + (tcum ? 1 : 0) + nx, &per) ||
         fc__mul_size(per, (size_t)C, &t) || fc__add_size(t, sh, &t))
         return FC_ERR_SIZE;
     *nd = t;
     return FC_OK;
 }
 
-static size_t cs_size_for(uint64_t C, uint64_t L, int tcum)
+static size_t cs_size_for(uint64_t C, uint64_t L, int tcum, size_t nx)
 {
     size_t nd, t;
-    if (cs_ndoubles(C, L, tcum, &nd) || fc__mul_size(nd, 8, &t) ||
+    if (cs_ndoubles(C, L, tcum, nx, &nd) || fc__mul_size(nd, 8, &t) ||
         fc__add_size(t, CS_HDR + 8, &t))
         return 0;
     return t;
@@ -728,14 +940,14 @@ static size_t cs_size_for(uint64_t C, uint64_t L, int tcum)
 static int cs_save_size(const void *eng, size_t *size)
 {
     const cs_engine *cs = eng;
-    *size = cs_size_for(cs->C, cs->L, cs->tcum); /* 0: too large (cs_save refuses) */
+    *size = cs_size_for(cs->C, cs->L, cs->tcum, cs->nx); /* 0: too large (cs_save refuses) */
     return FC_OK;
 }
 
 static int cs_save(const void *eng, unsigned char *buf, size_t size)
 {
     const cs_engine *cs = eng;
-    size_t need = cs_size_for(cs->C, cs->L, cs->tcum);
+    size_t need = cs_size_for(cs->C, cs->L, cs->tcum, cs->nx);
     if (need == 0) return FC_ERR_SIZE;
     if (size < need) return FC_ERR_ARG;
     const size_t B = CS_BAND, L = cs->L;
@@ -764,6 +976,9 @@ static int cs_save(const void *eng, unsigned char *buf, size_t size)
         fc__putd(p, cs->xprev[c]); p += 8;
         fc__putd(p, cs->x0[c]); p += 8;
         if (cs->tcum) { fc__putd(p, cs->xfirst[c]); p += 8; }
+        for (size_t i = 0; i < cs->nx; i++) {
+            fc__putd(p, cs->xs[i * cs->C + c]); p += 8;
+        }
     }
 #undef PUTV
     fc__put64(p, fc__fnv1a(FC__FNV_OFFSET, buf, (size_t)(p - buf)));
@@ -801,10 +1016,13 @@ static int cs_dd_ok(double hi, double lo)
  *    xprev (the last sample, or for a >= 1 the high part of X); L1: slot 0
  *    holds u_0 = +0 while n <= B, and xprev = x0 = x_0 when n = 1;
  *  - rectangle and trapezoid a >= 1 (cum): (xprev, x0) is the
- *    double-double X; trapezoid a >= 1 (tcum): xfirst = x_0 = X_0, which
- *    is ring slot 0 while n <= B, +0 at n = 0, and |x_0| <= umax;
+ *    double-double X; trapezoid a >= 1 (tcum): xfirst = x_0, where
+ *    x_0 + 0 (-0 gives +0) is ring slot 0 while n <= B, +0 at n = 0,
+ *    and |x_0| <= umax;
  *    otherwise x0 = x_0, which is ring slot 0 while n <= B, and |x_0| <=
- *    umax outside L1 (x_0 = u_0).
+ *    umax outside L1 (x_0 = u_0);
+ *  - a column added at run time: x_j = +0 while n <= j (finite once
+ *    stored; cs_check_block bounds its term at every step).
  */
 static int cs_state_ok(const cs_engine *cs)
 {
@@ -828,11 +1046,14 @@ static int cs_state_ok(const cs_engine *cs)
             if (!cs_dd_ok(S[l], Sc[l])) return 0;
             if (quiet && !(cs_zero_bits(S[l]) && cs_zero_bits(Sc[l]))) return 0;
         }
+        for (size_t i = 0; i < cs->nx; i++)
+            if (n <= cs->xj[i] && !cs_zero_bits(cs->xs[i * cs->C + c])) return 0;
         if (cs->tcum) {
             const double xf = cs->xfirst[c];
             if (n == 0 && !cs_zero_bits(xf)) return 0;
             if (!(fabs(xf) <= U)) return 0;
-            if (n >= 1 && n <= B && !cs_same(xf, ring[0])) return 0;
+            /* X_0 = +0 + x_0 (cs_dd_add): x_0 = -0 gives X_0 = +0 */
+            if (n >= 1 && n <= B && !cs_same(xf + 0.0, ring[0])) return 0;
         }
         if (n == 0) {
             if (!cs_zero_bits(xp) || !cs_zero_bits(x0)) return 0;
@@ -903,15 +1124,16 @@ static int cs_load(const fc__stream_def *d, const unsigned char *buf,
         return FC_ERR_FORMAT;
     if (C == 0 || L > CS_MAX_TERMS) return FC_ERR_FORMAT;
     /* the trapezoid at orders >= 1 keeps x_0 per channel as well */
-    const int tcum = fc__rule_has_x0((int)rule) &&
+    const int tcum = fc__rule_has_soe_col((int)rule) &&
                      order >= fc__rule((int)rule)->cumulative_from;
-    size_t need = cs_size_for(C, L, tcum);   /* 0 on overflow */
+    const size_t nx = cs_runtime_cols((int)rule);
+    size_t need = cs_size_for(C, L, tcum, nx);   /* 0 on overflow */
     if (need == 0 || need != size) return FC_ERR_FORMAT;
     if (fc__get64(buf + size - 8) != fc__fnv1a(FC__FNV_OFFSET, buf, size - 8))
         return FC_ERR_FORMAT;
     if (n >= FC_INDEX_LIMIT) return FC_ERR_FORMAT;
     size_t nd;
-    if (cs_ndoubles(C, L, tcum, &nd)) return FC_ERR_FORMAT;
+    if (cs_ndoubles(C, L, tcum, nx, &nd)) return FC_ERR_FORMAT;
     fc__rd v = r;   /* the doubles, read twice: checked, then taken */
     for (size_t i = 0; i < nd; i++)
         if (!isfinite(fc__rd_d(&v))) return FC_ERR_FORMAT;
@@ -949,6 +1171,7 @@ static int cs_load(const fc__stream_def *d, const unsigned char *buf,
         cs->xprev[c] = fc__rd_d(&r);
         cs->x0[c] = fc__rd_d(&r);
         if (tcum) cs->xfirst[c] = fc__rd_d(&r);
+        for (size_t i = 0; i < nx; i++) cs->xs[i * (size_t)C + c] = fc__rd_d(&r);
     }
 #undef GETV
     cs->n = n;
@@ -960,8 +1183,17 @@ static int cs_load(const fc__stream_def *d, const unsigned char *buf,
     return FC_OK;
 }
 
+static const fc__range *cs_order_range(const fc__rule_desc *d)
+{
+    return &d->compressed;
+}
+
 const fc__stream_ops fc__compressed_ops = {
     .has_horizon = 1,
+    .tol_min = FC__CS_TOL_MIN,
+    .tol_max = FC__CS_TOL_MAX,
+    .horizon_max = FC__CS_HORIZON_MAX,
+    .order_range = cs_order_range,
     .create = cs_create,
     .load = cs_load,
     .free = cs_free,

@@ -69,7 +69,7 @@
 #define FC_S_SEGS_MAX 16
 #define FC_S_MAXLEV 24          /* levels: s = 64 * 2^j <= 2^29 (FFT <= 2^30) */
 #define FC_S_MAXBLOCK ((size_t)1 << 29)
-#define FC_S_CORR 256           /* trapezoid correction cache chunk */
+#define FC_S_CORR 256           /* correction cache chunk (per column) */
 /* lags covered by the leaf band L and all levels: b_MAXLEV = L + 64 P
    (2^MAXLEV - 1); the default geometry's (about 8.6e9) is the smallest of
    all, and bounds the length of a user kernel */
@@ -109,7 +109,10 @@ typedef struct {
     unsigned kind;          /* FC_S_KIND_* */
     int rule;               /* -1 for a kernel */
     double order, step;
-    int x0corr;             /* rule with an x_0 correction (rule table) */
+    size_t ncorr;           /* correction columns (rule table), <=
+                               FC__CORR_MAX */
+    const fc__corr_col *cols;
+    int zero_first;         /* y_0 = 0 exactly (rule table) */
     int diffs;              /* rule summing differences of x (rule table) */
     size_t C;               /* channels */
     double *kernel;         /* user kernel copy (kind kernel) */
@@ -130,15 +133,19 @@ typedef struct {
     uint64_t acc_hi;        /* acc entries >= acc_hi are zero */
     uint64_t prep_n;        /* capacity is ready for this many samples */
     double *xprev;          /* C: previous sample (L1) */
-    double *x0;             /* C: first sample (trapezoid) */
-    double *tmp;            /* 4C: a step's outputs and u; saved xprev, x0 */
+    double *xcol;           /* XR(s) rows of C: x_j of column k in row k
+                               (0 before it arrives; one row of zeros
+                               without columns) */
+    double *tmp;            /* (3 + XR(s)) C: a step's outputs and u; saved
+                               xprev, xcol */
     double klog2;           /* log2 of a bound on every |c_m| and |corr_n| */
     double umax;            /* largest |u| stored since creation or reset */
     double *work;           /* 4*smax + 2 doubles */
     size_t wcap;            /* smax the work buffer serves */
-    double corr[FC_S_CORR]; /* trapezoid corr_n cache, n in chunk*CORR + i */
-    uint64_t corr_chunk;
-    int corr_valid;
+    double *corr;           /* ncorr rows of FC_S_CORR: column k's corr_n
+                               cache, n in corr_chunk[k]*FC_S_CORR + i */
+    uint64_t corr_chunk[FC__CORR_MAX];
+    int corr_valid[FC__CORR_MAX];
     /* threads of the push under way (1 outside fc_stream_push_block_threads)
        and the scratch of the extra ones: not part of the state */
     size_t par;
@@ -159,6 +166,11 @@ typedef struct ex_helper {
    not worth a thread start). */
 #define FC_S_PAR_BLOCK 512
 #define FC_S_PAR_WORK 16384
+
+
+/* Rows of xcol: one per column, at least one (the x_0 field of the saved
+   payload). */
+#define XR(s) ((s)->ncorr > 1 ? (s)->ncorr : 1)
 
 /* ------------------------------------------------------------ helpers */
 
@@ -195,20 +207,37 @@ static double leaf_dot(const double *k, const double *u, size_t len)
     return ((a0 + a4) + (a2 + a6)) + ((a1 + a5) + (a3 + a7));
 }
 
-static int corr_get(ex_engine *s, uint64_t n, double *v)
+/* corr_n of column k (cached per aligned chunk, so that the value depends
+   on n alone). */
+static int corr_get(ex_engine *s, size_t k, uint64_t n, double *v)
 {
     uint64_t chunk = n / FC_S_CORR;
-    if (!s->corr_valid || s->corr_chunk != chunk) {
-        int st = fc__x0_correction(s->rule, s->order, s->step,
-                                   chunk * FC_S_CORR, FC_S_CORR, s->corr);
+    double *row = s->corr + k * FC_S_CORR;
+    if (!s->corr_valid[k] || s->corr_chunk[k] != chunk) {
+        int st = fc__correction(s->rule, k, s->order, s->step,
+                                chunk * FC_S_CORR, FC_S_CORR, row);
         if (st != FC_OK) {
-            s->corr_valid = 0;
+            s->corr_valid[k] = 0;
             return st;
         }
-        s->corr_chunk = chunk;
-        s->corr_valid = 1;
+        s->corr_chunk[k] = chunk;
+        s->corr_valid[k] = 1;
     }
-    *v = s->corr[n - chunk * FC_S_CORR];
+    *v = row[n - chunk * FC_S_CORR];
+    return FC_OK;
+}
+
+/* The corrections of output n: cv[k] = corr_n of column k when the column
+   has arrived (n >= j) and the output is not the exact zero y_0, else 0. */
+static int corr_values(ex_engine *s, uint64_t n, double *cv)
+{
+    for (size_t k = 0; k < s->ncorr; k++) {
+        cv[k] = 0.0;
+        if (n >= s->cols[k].column && !(n == 0 && s->zero_first)) {
+            int st = corr_get(s, k, n, &cv[k]);
+            if (st != FC_OK) return st;
+        }
+    }
     return FC_OK;
 }
 
@@ -221,16 +250,16 @@ static double *arow(const ex_engine *s, size_t c)
     return s->acc + c * s->acap;
 }
 
-/* History term of output s->n for channel c (trapezoid: corr given). */
-static inline double ex_hist(const ex_engine *s, size_t c, double corr)
+/* History term of output s->n for channel c (cv: corr_values): the
+   columns already stored (j < n), in the table's order. */
+static inline double ex_hist(const ex_engine *s, size_t c, const double *cv)
 {
     uint64_t n = s->n;
     const double *uc = urow(s, c);
     double h = arow(s, c)[n - s->abase] + leaf_dot(s->leafk, uc + n - s->leaf, s->leaf);
-    if (s->x0corr) {
-        if (n == 0) h = 0.0;
-        else h += corr * s->x0[c];
-    }
+    if (n == 0 && s->zero_first) return 0.0;
+    for (size_t k = 0; k < s->ncorr; k++)
+        if (s->cols[k].column < n) h += cv[k] * s->xcol[k * s->C + c];
     return h;
 }
 
@@ -243,14 +272,18 @@ static inline double ex_u(const ex_engine *s, size_t c, double x)
 }
 
 /* Output of pushing x on channel c; u gets the stored value. */
-static inline double ex_y(const ex_engine *s, size_t c, double x, double corr,
-                          double *u)
+static inline double ex_y(const ex_engine *s, size_t c, double x,
+                          const double *cv, double *u)
 {
-    double h = ex_hist(s, c, corr);
+    double h = ex_hist(s, c, cv);
     *u = ex_u(s, c, x);
-    if (s->n == 0 && s->x0corr)
+    if (s->n == 0 && s->zero_first)
         return 0.0; /* y_0 = (c_0 + corr_0) x_0 = 0 */
-    return h + s->c0 * *u;
+    double y = h + s->c0 * *u;
+    /* a column arriving now (j = n) */
+    for (size_t k = 0; k < s->ncorr; k++)
+        if (s->cols[k].column == s->n) y += cv[k] * x;
+    return y;
 }
 
 /* ------------------------------------------------------------ levels */
@@ -742,21 +775,17 @@ static int ex_prepare(ex_engine *s, uint64_t n_end, int exact)
 /* One time step of every channel; capacity prepared, samples finite. */
 static int ex_step(ex_engine *s, const double *x, double *y)
 {
-    double corr = 0.0;
+    double cv[FC__CORR_MAX];
     size_t C = s->C;
     uint64_t n = s->n;
-    if (s->x0corr && n > 0) {
-        int st = corr_get(s, n, &corr);
-        if (st != FC_OK) return st;
-    }
+    int st = corr_values(s, n, cv);
+    if (st != FC_OK) return st;
     int l1 = s->diffs;
-    int first = s->x0corr &&
-                n == 0;
     /* every output first: one that is not representable refuses the step
        before anything changes */
     double *yt = s->tmp, *ut = s->tmp + C;
     for (size_t c = 0; c < C; c++) {
-        yt[c] = ex_y(s, c, x[c], corr, &ut[c]);
+        yt[c] = ex_y(s, c, x[c], cv, &ut[c]);
         if (!isfinite(yt[c]) || !isfinite(ut[c])) return FC_ERR_RANGE;
     }
     /* channel c reads x[c] before y[c] is written: y may be x (in place) */
@@ -764,7 +793,8 @@ static int ex_step(ex_engine *s, const double *x, double *y)
         urow(s, c)[n] = ut[c];
         if (fabs(ut[c]) > s->umax) s->umax = fabs(ut[c]);
         if (l1) s->xprev[c] = x[c];
-        else if (first) s->x0[c] = x[c];
+        for (size_t k = 0; k < s->ncorr; k++)
+            if (s->cols[k].column == n) s->xcol[k * C + c] = x[c];
         y[c] = yt[c];
     }
     s->n = ++n;
@@ -820,19 +850,17 @@ static void ex_rollback(ex_engine *s, uint64_t n0, uint64_t hi0)
     s->acc_hi = hi0;
     s->n = n0;
     memcpy(s->xprev, s->tmp + 2 * C, C * sizeof(double));
-    memcpy(s->x0, s->tmp + 3 * C, C * sizeof(double));
+    memcpy(s->xcol, s->tmp + 3 * C, XR(s) * C * sizeof(double));
 }
 
 static int ex_preview(ex_engine *s, const double *x, double *y)
 {
-    double corr = 0.0;
-    if (s->x0corr && s->n > 0) {
-        int st = corr_get(s, s->n, &corr);
-        if (st != FC_OK) return st;
-    }
+    double cv[FC__CORR_MAX];
+    int st = corr_values(s, s->n, cv);
+    if (st != FC_OK) return st;
     double *yt = s->tmp, *ut = s->tmp + s->C;
     for (size_t c = 0; c < s->C; c++) {
-        yt[c] = ex_y(s, c, x[c], corr, &ut[c]);
+        yt[c] = ex_y(s, c, x[c], cv, &ut[c]);
         if (!isfinite(yt[c]) || !isfinite(ut[c])) return FC_ERR_RANGE;
     }
     memcpy(y, yt, s->C * sizeof(double)); /* memmove semantics not needed: y == x or apart */
@@ -841,13 +869,11 @@ static int ex_preview(ex_engine *s, const double *x, double *y)
 
 static int ex_history(ex_engine *s, double *h)
 {
-    double corr = 0.0;
-    if (s->x0corr && s->n > 0) {
-        int st = corr_get(s, s->n, &corr);
-        if (st != FC_OK) return st;
-    }
+    double cv[FC__CORR_MAX];
+    int st = corr_values(s, s->n, cv);
+    if (st != FC_OK) return st;
     for (size_t c = 0; c < s->C; c++) {
-        s->tmp[c] = ex_hist(s, c, corr);
+        s->tmp[c] = ex_hist(s, c, cv);
         if (!isfinite(s->tmp[c])) return FC_ERR_RANGE;
     }
     memcpy(h, s->tmp, s->C * sizeof(double));
@@ -870,6 +896,9 @@ static int ex_block_safe(const ex_engine *s, const double *x, size_t tot,
         m = 2.0 * (p > m ? p : m);
     }
     if (s->umax > m) m = s->umax;
+    /* the stored samples of the columns (x_j = u_j <= umax on u = x) */
+    double q = fc__max_abs(s->xcol, XR(s) * s->C);
+    if (q > m) m = q;
     if (m == 0.0 || !isfinite(m)) return m == 0.0;
     int e;
     frexp(m, &e);
@@ -884,12 +913,16 @@ static int ex_push_block(ex_engine *s, const double *x, size_t count,
     if ((uint64_t)count > UINT64_MAX - s->n) return FC_ERR_SIZE;
     uint64_t n_end = s->n + count;
     if ((st = ex_prepare(s, n_end, 0)) != FC_OK) return st;
-    /* the trapezoid correction of the first sample, so that the only
-       failure the loop could meet is checked before anything changes */
-    if (count && s->x0corr) {
+    /* the corrections at both ends of the block (|corr_n| is monotone
+       there), so that the only failure the loop could meet is checked
+       before anything changes */
+    for (size_t k = 0; count && k < s->ncorr; k++) {
         double v;
-        if ((st = corr_get(s, n_end - 1, &v)) != FC_OK) return st;
-        if (s->n > 0 && (st = corr_get(s, s->n, &v)) != FC_OK) return st;
+        uint64_t j = s->cols[k].column, lo = s->n > j ? s->n : j;
+        if (n_end - 1 < j) continue;
+        if ((st = corr_get(s, k, n_end - 1, &v)) != FC_OK) return st;
+        if ((lo > 0 || !s->zero_first) && (st = corr_get(s, k, lo, &v)) != FC_OK)
+            return st;
     }
     /* outputs go to y only once every step has succeeded: straight into y
        when no output of the block can leave the double range (ordinary
@@ -900,7 +933,7 @@ static int ex_push_block(ex_engine *s, const double *x, size_t count,
         if (!(stage = malloc(tot * sizeof(double)))) return FC_ERR_NOMEM;
         yb = stage;
         memcpy(s->tmp + 2 * C, s->xprev, C * sizeof(double));
-        memcpy(s->tmp + 3 * C, s->x0, C * sizeof(double));
+        memcpy(s->tmp + 3 * C, s->xcol, XR(s) * C * sizeof(double));
     }
     uint64_t n0 = s->n, hi0 = s->acc_hi;
     if (threads > C) threads = C;
@@ -935,7 +968,7 @@ static void ex_reset(ex_engine *s)
     s->prep_n = 0; /* capacities are rechecked (the accumulator base moved) */
     s->umax = 0.0;
     if (s->xprev) memset(s->xprev, 0, s->C * sizeof(double));
-    if (s->x0) memset(s->x0, 0, s->C * sizeof(double));
+    if (s->xcol) memset(s->xcol, 0, XR(s) * s->C * sizeof(double));
 }
 
 static size_t ex_nbytes(const ex_engine *s)
@@ -945,8 +978,8 @@ static size_t ex_nbytes(const ex_engine *s)
     b += s->C * s->acap * sizeof(double);
     b += s->wcap ? (4 * s->wcap + 2) * sizeof(double) : 0;
     b += s->klen * sizeof(double);
-    b += 6 * s->C * sizeof(double) + s->leaf * sizeof(double) +
-         FC_S_MAXLEV * sizeof(fc__level);
+    b += (4 + 2 * XR(s)) * s->C * sizeof(double) + s->leaf * sizeof(double) +
+         FC_S_MAXLEV * sizeof(fc__level) + s->ncorr * FC_S_CORR * sizeof(double);
     for (size_t j = 0; j < s->nlev; j++)
         b += s->lev[j].made * ((2 * s->lev[j].s + 2) +
                                 s->C * FC_S_XSLOT(2 * s->lev[j].s)) * sizeof(double) +
@@ -971,7 +1004,8 @@ static void ex_free(ex_engine *s)
     free(s->u);
     free(s->acc);
     free(s->xprev);
-    free(s->x0);
+    free(s->xcol);
+    free(s->corr);
     free(s->tmp);
     free(s->leafk);
     free(s->work);
@@ -1087,10 +1121,12 @@ static int ex_init(ex_engine *s, size_t leaf, size_t segs)
     int st;
     if (fc__mul_size(C, sizeof(double), &bytes)) return FC_ERR_SIZE;
     s->xprev = calloc(C, sizeof(double));
-    s->x0 = calloc(C, sizeof(double));
-    s->tmp = calloc(C, 4 * sizeof(double));
+    s->xcol = calloc(C, XR(s) * sizeof(double));
+    s->tmp = calloc(C, (3 + XR(s)) * sizeof(double));
     s->lev = calloc(FC_S_MAXLEV, sizeof(fc__level));
-    if (!s->xprev || !s->x0 || !s->tmp || !s->lev) return FC_ERR_NOMEM;
+    if (s->ncorr && !(s->corr = calloc(s->ncorr, FC_S_CORR * sizeof(double))))
+        return FC_ERR_NOMEM;
+    if (!s->xprev || !s->xcol || !s->tmp || !s->lev) return FC_ERR_NOMEM;
     if (leaf == 0 && (st = ex_geometry(s, &leaf, &segs)) != FC_OK) return st;
     if (!(s->leafk = malloc(leaf * sizeof(double)))) return FC_ERR_NOMEM;
     s->leaf = leaf;
@@ -1110,10 +1146,11 @@ static int ex_init(ex_engine *s, size_t leaf, size_t segs)
         long double M;
         long E;
         fc__rule_scale(s->rule, s->order, s->step, &M, &E);
-        /* the trapezoid correction is a few times the weights */
+        /* each correction column is a few times the weights
+           (internal.h, fc__corr_col) */
         s->klog2 = fc__unit_log2_bound(s->rule, s->order, s->lag_limit) +
                    (double)log2l(M) + (double)E +
-                   (s->x0corr ? 5.0 : 0.0);
+                   (s->ncorr ? 5.0 + log2((double)s->ncorr) : 0.0);
     }
     /* room for the leaf band of the first samples */
     return ex_prepare(s, 1, 1);
@@ -1137,7 +1174,10 @@ static int ex_create_geom(const fc__stream_def *d, size_t leaf, size_t segs,
         s->klen = d->klen;
     } else {
         s->rule = d->rule;
-        s->x0corr = fc__rule_has_x0(d->rule);
+        const fc__rule_desc *rd = fc__rule(d->rule);
+        s->ncorr = rd->ncorr;
+        s->cols = rd->corr;
+        s->zero_first = rd->zero_first;
         s->diffs = fc__rule_uses_differences(d->rule);
         s->order = d->order;
         s->step = d->step;
@@ -1155,18 +1195,37 @@ static uint64_t ex_acc_live(const ex_engine *s)
 /* The payload after the common header (stream.c), little-endian:
      u64 leaf size, u64 segments per level, u64 n, u64 klen (0 for a
      rule), u64 A (accumulator values kept per channel), f64 kernel[klen],
-     f64 xprev[C], f64 x0[C], f64 u[C][n], f64 acc[C][A] (outputs n ..
-     n+A-1).
+     f64 xprev[C], f64 x0[C] (x_0 of a column j = 0, else 0), f64 u[C][n],
+     f64 acc[C][A] (outputs n .. n+A-1), then for each correction column
+     with j >= 1, in the table's order, f64 x_j[C] (0 before it arrives;
+     no rule of today's table has one, so its payloads end with acc).
    The kernel spectra and the ring of block spectra are recomputed on load
    (the same FFTs of the same data give the same bits). */
 #define FC_S_PAYLOAD_HDR 40
+
+/* The number of correction columns with j >= 1 (saved after acc). */
+static size_t ex_later_cols(const ex_engine *s)
+{
+    size_t m = 0;
+    for (size_t k = 0; k < s->ncorr; k++) m += s->cols[k].column != 0;
+    return m;
+}
+
+/* The row of xcol holding x_0, or -1 when no column has j = 0. */
+static long ex_x0_row(const ex_engine *s)
+{
+    for (size_t k = 0; k < s->ncorr; k++)
+        if (s->cols[k].column == 0) return (long)k;
+    return -1;
+}
 
 static int ex_save_size(const ex_engine *s, size_t *size)
 {
     size_t nd = 0, t;
     uint64_t A = ex_acc_live(s);
-    /* doubles: klen + 2C + C*n + C*A */
-    if (fc__add_size(s->klen, 2 * s->C, &nd)) return FC_ERR_SIZE;
+    /* doubles: klen + 2C + C*n + C*A + C*(columns j >= 1) */
+    if (fc__add_size(s->klen, (2 + ex_later_cols(s)) * s->C, &nd))
+        return FC_ERR_SIZE;
     if (fc__mul_size(s->C, (size_t)s->n, &t) || fc__add_size(nd, t, &nd))
         return FC_ERR_SIZE;
     if (fc__mul_size(s->C, (size_t)A, &t) || fc__add_size(nd, t, &nd))
@@ -1189,7 +1248,9 @@ static void ex_save(const ex_engine *s, unsigned char *q)
     q += FC_S_PAYLOAD_HDR;
     for (size_t i = 0; i < s->klen; i++, q += 8) fc__putd(q, s->kernel[i]);
     for (size_t c = 0; c < s->C; c++, q += 8) fc__putd(q, s->xprev[c]);
-    for (size_t c = 0; c < s->C; c++, q += 8) fc__putd(q, s->x0[c]);
+    long r0 = ex_x0_row(s);
+    for (size_t c = 0; c < s->C; c++, q += 8)
+        fc__putd(q, r0 < 0 ? 0.0 : s->xcol[(size_t)r0 * s->C + c]);
     for (size_t c = 0; c < s->C; c++) {
         const double *uc = urow(s, c);
         for (uint64_t k = 0; k < s->n; k++, q += 8) fc__putd(q, uc[k]);
@@ -1197,6 +1258,11 @@ static void ex_save(const ex_engine *s, unsigned char *q)
     for (size_t c = 0; c < s->C; c++) {
         const double *ac = arow(s, c) + (s->n - s->abase);
         for (uint64_t k = 0; k < A; k++, q += 8) fc__putd(q, ac[k]);
+    }
+    for (size_t k = 0; k < s->ncorr; k++) {
+        if (s->cols[k].column == 0) continue;
+        for (size_t c = 0; c < s->C; c++, q += 8)
+            fc__putd(q, s->xcol[k * s->C + c]);
     }
 }
 
@@ -1309,6 +1375,10 @@ static int ex_load(const fc__stream_def *d, const unsigned char *q, size_t p,
         if (leaf == FC_S_BLOCK0 * p0 && segs == (p0 > FC_S_SEGS ? p0 : FC_S_SEGS))
             known = 1;
     if (!known) return FC_ERR_FORMAT;
+    /* the rule's correction columns (an unknown rule is refused below) */
+    const fc__rule_desc *rd = kind == FC_S_KIND_RULE ? fc__rule(rule) : NULL;
+    uint64_t later = 0;
+    for (size_t k = 0; rd && k < rd->ncorr; k++) later += rd->corr[k].column != 0;
     /* sizes: every count must fit in the payload (checked piecewise so that
        nothing overflows) */
     uint64_t room = (p - FC_S_PAYLOAD_HDR) / 8; /* doubles present */
@@ -1319,6 +1389,8 @@ static int ex_load(const fc__stream_def *d, const unsigned char *q, size_t p,
     used += C64 * n;
     if (A > (room - used) / C64) return FC_ERR_FORMAT;
     used += C64 * A;
+    if (later > (room - used) / C64) return FC_ERR_FORMAT;
+    used += C64 * later;
     if (used != room) return FC_ERR_FORMAT;
     /* the sections (their sizes fit: checked above) */
     const unsigned char *kq = fc__rd_bytes(&r, 8 * (size_t)klen);
@@ -1326,11 +1398,14 @@ static int ex_load(const fc__stream_def *d, const unsigned char *q, size_t p,
     const unsigned char *x0q = fc__rd_bytes(&r, 8 * C);
     const unsigned char *uq = fc__rd_bytes(&r, 8 * (size_t)(C64 * n));
     const unsigned char *aq = fc__rd_bytes(&r, 8 * (size_t)(C64 * A));
+    const unsigned char *lq = fc__rd_bytes(&r, 8 * (size_t)(C64 * later));
     if (r.bad || r.pos != p) return FC_ERR_FORMAT;
     /* the definition and the samples must be finite; the accumulator is
        compared bit for bit with the recomputed one (it may hold infinities
        once huge samples have made later outputs overflow) */
-    if (!finite_le(kq, (size_t)(used - C64 * A))) return FC_ERR_FORMAT;
+    if (!finite_le(kq, (size_t)(used - C64 * A - C64 * later)) ||
+        !finite_le(lq, (size_t)(C64 * later)))
+        return FC_ERR_FORMAT;
 
     if (kind == FC_S_KIND_KERNEL) {
         if (rule != -1 || klen == 0 || klen > FC_S_LAG_LIMIT) return FC_ERR_FORMAT;
@@ -1343,17 +1418,30 @@ static int ex_load(const fc__stream_def *d, const unsigned char *q, size_t p,
     } else {
         return FC_ERR_FORMAT;
     }
-    /* the previous / first sample fields against the samples: trapezoid
-       keeps x_0 (= u_0; 0 before any sample), L1 the previous sample (free
-       once there is one; 0 before) and u_0 = 0; unused fields are 0 */
-    int trap = kind == FC_S_KIND_RULE && fc__rule_has_x0(rule);
-    int l1 = kind == FC_S_KIND_RULE && fc__rule_uses_differences(rule);
+    /* the previous / first sample fields against the samples: a column j
+       keeps x_j (= u_j on u = x, free but finite on differences; 0 before
+       it arrives), L1 the previous sample (free once there is one; 0
+       before) and u_0 = 0; unused fields are 0 */
+    int has0 = rd != NULL && fc__rule_x0(rd) != NULL;
+    int l1 = rd != NULL && rd->uses_differences;
     for (size_t c = 0; c < C; c++) {
         uint64_t xp = fc__get64(xq + 8 * c), x0 = fc__get64(x0q + 8 * c);
         uint64_t u0 = n > 0 ? fc__get64(uq + 8 * (size_t)(c * n)) : 0;
-        if (trap ? x0 != u0 : x0 != 0) return FC_ERR_FORMAT;
+        if (has0 && l1 ? n == 0 && x0 != 0 : x0 != (has0 ? u0 : 0))
+            return FC_ERR_FORMAT;
         if ((!l1 || n == 0) && xp != 0) return FC_ERR_FORMAT;
         if (l1 && u0 != 0) return FC_ERR_FORMAT;
+    }
+    for (size_t k = 0, i = 0; rd && k < rd->ncorr; k++) {
+        uint64_t j = rd->corr[k].column;
+        if (j == 0) continue;
+        for (size_t c = 0; c < C; c++) {
+            uint64_t v = fc__get64(lq + 8 * (i * C + c));
+            if (n <= j ? v != 0
+                       : !l1 && v != fc__get64(uq + 8 * (size_t)(c * n + j)))
+                return FC_ERR_FORMAT;
+        }
+        i++;
     }
 
     /* the engine's definition: the header's, with the kernel decoded */
@@ -1378,9 +1466,16 @@ static int ex_load(const fc__stream_def *d, const unsigned char *q, size_t p,
         ex_free(s);
         return st;
     }
+    long r0 = ex_x0_row(s);
     for (size_t c = 0; c < C; c++) {
         s->xprev[c] = fc__getd(xq + 8 * c);
-        s->x0[c] = fc__getd(x0q + 8 * c);
+        if (r0 >= 0) s->xcol[(size_t)r0 * C + c] = fc__getd(x0q + 8 * c);
+    }
+    for (size_t k = 0, i = 0; k < s->ncorr; k++) {
+        if (s->cols[k].column == 0) continue;
+        for (size_t c = 0; c < C; c++)
+            s->xcol[k * C + c] = fc__getd(lq + 8 * (i * C + c));
+        i++;
     }
     *out = s;
     return FC_OK;
@@ -1417,10 +1512,6 @@ static int op_push1(void *eng, double x, double *y)
     ex_engine *s = eng;
     int st = FC_OK;
     if (s->n + 1 > s->prep_n) st = ex_prepare(s, s->n + 1, 0);
-    if (st == FC_OK && s->x0corr && s->n > 0) {
-        double v;
-        st = corr_get(s, s->n, &v);
-    }
     if (st == FC_OK) st = ex_step(s, &x, y);
     return st;
 }
@@ -1462,8 +1553,14 @@ static int op_save(const void *eng, unsigned char *buf, size_t size)
     return FC_OK;
 }
 
+static const fc__range *op_order_range(const fc__rule_desc *d)
+{
+    return &d->exact;
+}
+
 const fc__stream_ops fc__exact_ops = {
     .has_horizon = 0,
+    .order_range = op_order_range,
     .create = op_create,
     .load = op_load,
     .free = op_free,

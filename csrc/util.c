@@ -39,6 +39,7 @@ const char *fc_strerror(int status)
     case FC_ERR_INDEX: return "index range beyond 2^53";
     case FC_ERR_RANGE: return "a result is beyond the range of double precision (samples, step or order too large for this operator)";
     case FC_ERR_HORIZON: return "the push would take the compressed stream past its horizon, beyond which its tolerance is not promised";
+    case FC_ERR_IO: return "a file could not be opened, read, written, synced or renamed";
     case FC_ERR_CALLBACK: return "a callback (right-hand side or Jacobian) returned non-zero";
     case FC_ERR_NEWTON: return "Newton's method did not converge within the iteration limit";
     case FC_ERR_NORHS: return "no right-hand side set (fc_solver_set_rhs)";

@@ -11,7 +11,20 @@
 !     fastest).
 ! A stream is a type(fc_stream) holding the C pointer: create it with
 ! fc_stream_create or fc_stream_load and release it with fc_stream_free
-! (no finalizer: copies of the handle share the one C object).
+! (no finalizer: copies of the handle share the one C object). The solver
+! (type(fc_solver)) and the controller (type(fc_controller)) are handles of
+! the same kind.
+!
+! Solver callbacks are bind(c) procedures of the interfaces fc_rhs_proc and
+! fc_jac_proc (module procedures or external ones): the module passes
+! c_funloc of the procedure to the C library, with the optional user
+! pointer (type(c_ptr), e.g. c_loc of a target variable) passed back on
+! every call. A state y(m) of order > 1 components takes init(m, 2):
+! init(:, 1) = y(t0), init(:, 2) = y'(t0).
+!
+! The controller moves machinery: validate it on the plant, keep actuator
+! and rate limits in the hardware and an independent safe stop that does
+! not depend on this software (csrc/fracconv.h).
 module fracconv
   use, intrinsic :: iso_c_binding
   implicit none
@@ -21,13 +34,18 @@ module fracconv
        FC_ERR_ORDER = 3, FC_ERR_STEP = 4, FC_ERR_SIZE = 5, FC_ERR_NONFINITE = 6, &
        FC_ERR_NOMEM = 7, FC_ERR_MODE = 8, FC_ERR_TOL = 9, FC_ERR_FORMAT = 10, &
        FC_ERR_BUSY = 11, FC_ERR_KERNEL = 12, FC_ERR_ARG = 13, FC_ERR_INDEX = 14, &
-       FC_ERR_RANGE = 15, FC_ERR_HORIZON = 16, FC_ERR_CALLBACK = 64, &
+       FC_ERR_RANGE = 15, FC_ERR_HORIZON = 16, FC_ERR_IO = 17, FC_ERR_CALLBACK = 64, &
        FC_ERR_NEWTON = 65, FC_ERR_NORHS = 66
   integer, parameter, public :: FC_RULE_RECTANGLE = 0, FC_RULE_TRAPEZOID = 1, &
        FC_RULE_GRUNWALD = 2, FC_RULE_L1 = 3
   integer, parameter, public :: FC_ENGINE_AUTO = 0, FC_ENGINE_DIRECT = 1, &
        FC_ENGINE_BLOCKED = 2, FC_ENGINE_FFT = 3
   integer, parameter, public :: FC_MODE_EXACT = 0, FC_MODE_COMPRESSED = 1
+  integer, parameter, public :: FC_METHOD_RECTANGLE = 0, FC_METHOD_PC = 1, &
+       FC_METHOD_TRAPEZOID = 2, FC_METHOD_IMPLICIT_RECTANGLE = 3
+  integer, parameter, public :: FC_AW_NONE = 0, FC_AW_CONDITIONAL = 1
+  integer, parameter, public :: FC_CTRL_LIMITED = 1, FC_CTRL_PAST_HORIZON = 2, &
+       FC_CTRL_MANUAL = 4
 
   type, public :: fc_stream
     type(c_ptr) :: p = c_null_ptr
@@ -36,6 +54,57 @@ module fracconv
   public :: fc_version, fc_error_message, fc_weights, fc_apply, fc_lagged_sum
   public :: fc_stream_create, fc_stream_free, fc_stream_push, fc_stream_push_block
   public :: fc_stream_history, fc_stream_count, fc_stream_save, fc_stream_load
+  public :: fc_stream_save_file, fc_stream_load_file
+  public :: fc_solver_save_file, fc_solver_load_file
+  public :: fc_controller_save_file, fc_controller_load_file
+
+  type, public :: fc_solver
+    type(c_ptr) :: p = c_null_ptr
+  end type fc_solver
+
+  type, public :: fc_controller
+    type(c_ptr) :: p = c_null_ptr
+  end type fc_controller
+
+  ! fc_controller_params of fracconv.h, field for field (fill it with
+  ! fc_controller_default_params first)
+  type, bind(C), public :: fc_controller_params
+    real(c_double) :: kp, ki, kd, integral_order, derivative_order, step
+    integer(c_int) :: integral_rule, derivative_rule
+    real(c_double) :: out_min, out_max, rate_limit, setpoint_weight_p, &
+         setpoint_weight_d, filter_time
+    integer(c_int) :: anti_windup, memory
+    real(c_double) :: tol, horizon
+  end type fc_controller_params
+
+  abstract interface
+    ! f(1:m) = f(t, y(1:m)); a non-zero result stops the run (FC_ERR_CALLBACK)
+    integer(c_int) function fc_rhs_proc(t, y, f, user) bind(C)
+      import :: c_int, c_double, c_ptr
+      real(c_double), value :: t
+      real(c_double), intent(in) :: y(*)
+      real(c_double), intent(out) :: f(*)
+      type(c_ptr), value :: user
+    end function
+    ! jac(i + (j-1)*m) = d f_j / d y_i (the C row-major J[j][i] seen from
+    ! Fortran: jac(m, m) holds the transpose, jac(i, j) = d f_j / d y_i)
+    integer(c_int) function fc_jac_proc(t, y, jac, user) bind(C)
+      import :: c_int, c_double, c_ptr
+      real(c_double), value :: t
+      real(c_double), intent(in) :: y(*)
+      real(c_double), intent(out) :: jac(*)
+      type(c_ptr), value :: user
+    end function
+  end interface
+  public :: fc_rhs_proc, fc_jac_proc
+
+  public :: fc_solver_create, fc_solver_free, fc_solver_set_rhs, fc_solver_set_jacobian
+  public :: fc_solver_set_newton, fc_solver_set_corrections, fc_solver_advance
+  public :: fc_solver_time, fc_solver_state, fc_solver_steps, fc_solver_save, fc_solver_load
+  public :: fc_controller_default_params, fc_controller_create, fc_controller_free
+  public :: fc_controller_update, fc_controller_update_block, fc_controller_set_manual
+  public :: fc_controller_set_auto, fc_controller_reset, fc_controller_status
+  public :: fc_controller_terms, fc_controller_count, fc_controller_save, fc_controller_load
 
   interface fc_apply
     module procedure fc_apply_1, fc_apply_2
@@ -45,7 +114,7 @@ module fracconv
     integer(c_int) function c_version() bind(C, name="fc_version")
       import :: c_int
     end function
-    type(c_ptr) function c_strerror(st) bind(C, name="fc_strerror")
+    type(c_ptr) function c_strerror(st) bind(C, name="fc_solver_strerror")
       import :: c_ptr, c_int
       integer(c_int), value :: st
     end function
@@ -136,6 +205,203 @@ module fracconv
       integer(c_size_t), value :: size
       type(c_ptr), intent(out) :: out
     end function
+    ! --- solver
+    integer(c_int) function c_solver_create(m, orders, step, t0, init, method, memory, &
+         tol, horizon, out) bind(C, name="fc_solver_create")
+      import :: c_int, c_double, c_size_t, c_ptr
+      integer(c_size_t), value :: m
+      real(c_double), intent(in) :: orders(*), init(*)
+      real(c_double), value :: step, t0, tol, horizon
+      integer(c_int), value :: method, memory
+      type(c_ptr), intent(out) :: out
+    end function
+    subroutine c_solver_free(s) bind(C, name="fc_solver_free")
+      import :: c_ptr
+      type(c_ptr), value :: s
+    end subroutine
+    integer(c_int) function c_solver_set_rhs(s, fn, user) bind(C, name="fc_solver_set_rhs")
+      import :: c_int, c_ptr, c_funptr
+      type(c_ptr), value :: s, user
+      type(c_funptr), value :: fn
+    end function
+    integer(c_int) function c_solver_set_jacobian(s, fn, user) &
+         bind(C, name="fc_solver_set_jacobian")
+      import :: c_int, c_ptr, c_funptr
+      type(c_ptr), value :: s, user
+      type(c_funptr), value :: fn
+    end function
+    integer(c_int) function c_solver_set_newton(s, tol, maxiter) &
+         bind(C, name="fc_solver_set_newton")
+      import :: c_int, c_ptr, c_double
+      type(c_ptr), value :: s
+      real(c_double), value :: tol
+      integer(c_int), value :: maxiter
+    end function
+    integer(c_int) function c_solver_set_corrections(s, passes) &
+         bind(C, name="fc_solver_set_corrections")
+      import :: c_int, c_ptr
+      type(c_ptr), value :: s
+      integer(c_int), value :: passes
+    end function
+    integer(c_int) function c_solver_advance(s, nsteps, t_out, y_out, done) &
+         bind(C, name="fc_solver_advance")
+      import :: c_int, c_ptr, c_size_t
+      type(c_ptr), value :: s, t_out, y_out
+      integer(c_size_t), value :: nsteps
+      integer(c_size_t), intent(out) :: done
+    end function
+    integer(c_int) function c_solver_time(s, t) bind(C, name="fc_solver_time")
+      import :: c_int, c_ptr, c_double
+      type(c_ptr), value :: s
+      real(c_double), intent(out) :: t
+    end function
+    integer(c_int) function c_solver_state(s, y) bind(C, name="fc_solver_state")
+      import :: c_int, c_ptr, c_double
+      type(c_ptr), value :: s
+      real(c_double), intent(out) :: y(*)
+    end function
+    integer(c_int) function c_solver_steps(s, n) bind(C, name="fc_solver_steps")
+      import :: c_int, c_ptr, c_int64_t
+      type(c_ptr), value :: s
+      integer(c_int64_t), intent(out) :: n
+    end function
+    integer(c_int) function c_solver_dim(s, m) bind(C, name="fc_solver_dim")
+      import :: c_int, c_ptr, c_size_t
+      type(c_ptr), value :: s
+      integer(c_size_t), intent(out) :: m
+    end function
+    integer(c_int) function c_solver_save_size(s, size) bind(C, name="fc_solver_save_size")
+      import :: c_int, c_ptr, c_size_t
+      type(c_ptr), value :: s
+      integer(c_size_t), intent(out) :: size
+    end function
+    integer(c_int) function c_solver_save(s, buf, size, written) bind(C, name="fc_solver_save")
+      import :: c_int, c_ptr, c_size_t, c_signed_char
+      type(c_ptr), value :: s
+      integer(c_signed_char), intent(out) :: buf(*)
+      integer(c_size_t), value :: size
+      integer(c_size_t), intent(out) :: written
+    end function
+    integer(c_int) function c_solver_load(buf, size, out) bind(C, name="fc_solver_load")
+      import :: c_int, c_ptr, c_size_t, c_signed_char
+      integer(c_signed_char), intent(in) :: buf(*)
+      integer(c_size_t), value :: size
+      type(c_ptr), intent(out) :: out
+    end function
+    ! --- controller
+    integer(c_int) function c_controller_default_params(p) &
+         bind(C, name="fc_controller_default_params")
+      import :: c_int, fc_controller_params
+      type(fc_controller_params), intent(out) :: p
+    end function
+    integer(c_int) function c_controller_create(p, out) bind(C, name="fc_controller_create")
+      import :: c_int, c_ptr, fc_controller_params
+      type(fc_controller_params), intent(in) :: p
+      type(c_ptr), intent(out) :: out
+    end function
+    subroutine c_controller_free(c) bind(C, name="fc_controller_free")
+      import :: c_ptr
+      type(c_ptr), value :: c
+    end subroutine
+    integer(c_int) function c_controller_update(c, r, y, u) bind(C, name="fc_controller_update")
+      import :: c_int, c_ptr, c_double
+      type(c_ptr), value :: c
+      real(c_double), value :: r, y
+      real(c_double), intent(out) :: u
+    end function
+    integer(c_int) function c_controller_update_block(c, r, y, n, u, done) &
+         bind(C, name="fc_controller_update_block")
+      import :: c_int, c_ptr, c_double, c_size_t
+      type(c_ptr), value :: c
+      real(c_double), intent(in) :: r(*), y(*)
+      integer(c_size_t), value :: n
+      real(c_double), intent(out) :: u(*)
+      integer(c_size_t), intent(out) :: done
+    end function
+    integer(c_int) function c_controller_set_manual(c, u) bind(C, name="fc_controller_set_manual")
+      import :: c_int, c_ptr, c_double
+      type(c_ptr), value :: c
+      real(c_double), value :: u
+    end function
+    integer(c_int) function c_controller_set_auto(c) bind(C, name="fc_controller_set_auto")
+      import :: c_int, c_ptr
+      type(c_ptr), value :: c
+    end function
+    integer(c_int) function c_controller_reset(c) bind(C, name="fc_controller_reset")
+      import :: c_int, c_ptr
+      type(c_ptr), value :: c
+    end function
+    integer(c_int) function c_controller_status(c, bits) bind(C, name="fc_controller_status")
+      import :: c_int, c_ptr
+      type(c_ptr), value :: c
+      integer(c_int), intent(out) :: bits
+    end function
+    integer(c_int) function c_controller_terms(c, t) bind(C, name="fc_controller_terms")
+      import :: c_int, c_ptr, c_double
+      type(c_ptr), value :: c
+      real(c_double), intent(out) :: t(6)
+    end function
+    integer(c_int) function c_controller_count(c, n) bind(C, name="fc_controller_count")
+      import :: c_int, c_ptr, c_int64_t
+      type(c_ptr), value :: c
+      integer(c_int64_t), intent(out) :: n
+    end function
+    integer(c_int) function c_controller_save_size(c, size) &
+         bind(C, name="fc_controller_save_size")
+      import :: c_int, c_ptr, c_size_t
+      type(c_ptr), value :: c
+      integer(c_size_t), intent(out) :: size
+    end function
+    integer(c_int) function c_controller_save(c, buf, size, written) &
+         bind(C, name="fc_controller_save")
+      import :: c_int, c_ptr, c_size_t, c_signed_char
+      type(c_ptr), value :: c
+      integer(c_signed_char), intent(out) :: buf(*)
+      integer(c_size_t), value :: size
+      integer(c_size_t), intent(out) :: written
+    end function
+    integer(c_int) function c_controller_load(buf, size, out) bind(C, name="fc_controller_load")
+      import :: c_int, c_ptr, c_size_t, c_signed_char
+      integer(c_signed_char), intent(in) :: buf(*)
+      integer(c_size_t), value :: size
+      type(c_ptr), intent(out) :: out
+    end function
+    integer(c_int) function c_stream_save_file(s, path) bind(C, name="fc_stream_save_file")
+      import :: c_int, c_ptr, c_char
+      type(c_ptr), value :: s
+      character(kind=c_char), intent(in) :: path(*)
+    end function
+    integer(c_int) function c_solver_save_file(s, path) bind(C, name="fc_solver_save_file")
+      import :: c_int, c_ptr, c_char
+      type(c_ptr), value :: s
+      character(kind=c_char), intent(in) :: path(*)
+    end function
+    integer(c_int) function c_solver_load_file(path, max_size, out) &
+        bind(C, name="fc_solver_load_file")
+      import :: c_int, c_ptr, c_size_t, c_char
+      character(kind=c_char), intent(in) :: path(*)
+      integer(c_size_t), value :: max_size
+      type(c_ptr), intent(out) :: out
+    end function
+    integer(c_int) function c_controller_save_file(s, path) bind(C, name="fc_controller_save_file")
+      import :: c_int, c_ptr, c_char
+      type(c_ptr), value :: s
+      character(kind=c_char), intent(in) :: path(*)
+    end function
+    integer(c_int) function c_controller_load_file(path, max_size, out) &
+        bind(C, name="fc_controller_load_file")
+      import :: c_int, c_ptr, c_size_t, c_char
+      character(kind=c_char), intent(in) :: path(*)
+      integer(c_size_t), value :: max_size
+      type(c_ptr), intent(out) :: out
+    end function
+    integer(c_int) function c_stream_load_file(path, max_size, out) &
+        bind(C, name="fc_stream_load_file")
+      import :: c_int, c_ptr, c_size_t, c_char
+      character(kind=c_char), intent(in) :: path(*)
+      integer(c_size_t), value :: max_size
+      type(c_ptr), intent(out) :: out
+    end function
     integer(c_size_t) function c_strlen(s) bind(C, name="strlen")
       import :: c_size_t, c_ptr
       type(c_ptr), value :: s
@@ -148,7 +414,8 @@ contains
     fc_version = int(c_version())
   end function fc_version
 
-  ! The library's static message for a status code.
+  ! The library's static message for a status code (fc_solver_strerror:
+  ! fc_strerror's message for every code but the solver's own).
   function fc_error_message(status) result(msg)
     integer, intent(in) :: status
     character(len=:), allocatable :: msg
@@ -364,5 +631,395 @@ contains
     status = int(c_stream_load(blob, size(blob, kind=c_size_t), p))
     if (status == FC_OK) s%p = p
   end subroutine fc_stream_load
+
+  ! ----------------------------------------------------------- solver
+
+  ! A solver of D^a y = f(t, y) for m = size(orders) components; init(m, K),
+  ! K = 1, or 2 when an order exceeds 1 (init(:, 2) = y'(t0)); method
+  ! FC_METHOD_* (default FC_METHOD_PC), memory FC_MODE_EXACT (default) or
+  ! FC_MODE_COMPRESSED with tol and horizon (steps). s is unchanged unless
+  ! status == FC_OK.
+  subroutine fc_solver_create(s, orders, step, t0, init, status, method, memory, tol, horizon)
+    type(fc_solver), intent(inout) :: s
+    real(c_double), intent(in), contiguous :: orders(:), init(:, :)
+    real(c_double), intent(in) :: step, t0
+    integer, intent(out) :: status
+    integer, intent(in), optional :: method, memory
+    real(c_double), intent(in), optional :: tol, horizon
+    integer(c_int) :: me, mo
+    real(c_double) :: t, hz
+    type(c_ptr) :: p
+    integer :: k
+    me = FC_METHOD_PC; mo = FC_MODE_EXACT; t = 0; hz = 0
+    if (present(method)) me = int(method, c_int)
+    if (present(memory)) mo = int(memory, c_int)
+    if (present(tol)) t = tol
+    if (present(horizon)) hz = horizon
+    if (size(orders) < 1) then
+      status = FC_ERR_SIZE
+      return
+    end if
+    k = 1
+    if (any(orders > 1)) k = 2
+    if (size(init, 1) /= size(orders) .or. size(init, 2) < k) then
+      status = FC_ERR_ARG
+      return
+    end if
+    status = int(c_solver_create(size(orders, kind=c_size_t), orders, step, t0, init, me, mo, &
+         t, hz, p))
+    if (status == FC_OK) s%p = p
+  end subroutine fc_solver_create
+
+  subroutine fc_solver_free(s)
+    type(fc_solver), intent(inout) :: s
+    call c_solver_free(s%p)
+    s%p = c_null_ptr
+  end subroutine fc_solver_free
+
+  ! The right-hand side: a bind(c) procedure of interface fc_rhs_proc;
+  ! user (optional) is passed back to it on every call.
+  subroutine fc_solver_set_rhs(s, fn, status, user)
+    type(fc_solver), intent(in) :: s
+    procedure(fc_rhs_proc) :: fn
+    integer, intent(out) :: status
+    type(c_ptr), intent(in), optional :: user
+    type(c_ptr) :: u
+    u = c_null_ptr
+    if (present(user)) u = user
+    status = int(c_solver_set_rhs(s%p, c_funloc(fn), u))
+  end subroutine fc_solver_set_rhs
+
+  ! The Jacobian of the implicit methods (fc_jac_proc).
+  subroutine fc_solver_set_jacobian(s, fn, status, user)
+    type(fc_solver), intent(in) :: s
+    procedure(fc_jac_proc) :: fn
+    integer, intent(out) :: status
+    type(c_ptr), intent(in), optional :: user
+    type(c_ptr) :: u
+    u = c_null_ptr
+    if (present(user)) u = user
+    status = int(c_solver_set_jacobian(s%p, c_funloc(fn), u))
+  end subroutine fc_solver_set_jacobian
+
+  subroutine fc_solver_set_newton(s, tol, maxiter, status)
+    type(fc_solver), intent(in) :: s
+    real(c_double), intent(in) :: tol
+    integer, intent(in) :: maxiter
+    integer, intent(out) :: status
+    if (maxiter < 1) then
+      status = FC_ERR_ARG
+      return
+    end if
+    status = int(c_solver_set_newton(s%p, tol, int(maxiter, c_int)))
+  end subroutine fc_solver_set_newton
+
+  subroutine fc_solver_set_corrections(s, passes, status)
+    type(fc_solver), intent(in) :: s
+    integer, intent(in) :: passes
+    integer, intent(out) :: status
+    if (passes < 1) then
+      status = FC_ERR_ARG
+      return
+    end if
+    status = int(c_solver_set_corrections(s%p, int(passes, c_int)))
+  end subroutine fc_solver_set_corrections
+
+  ! nsteps steps: t(nsteps) the times and y(m, nsteps) the states (both
+  ! optional); done (optional) the steps completed. A stopped run
+  ! (FC_ERR_CALLBACK, FC_ERR_NONFINITE, FC_ERR_NEWTON) keeps its completed
+  ! steps, as in C.
+  subroutine fc_solver_advance(s, nsteps, status, t, y, done)
+    type(fc_solver), intent(in) :: s
+    integer, intent(in) :: nsteps
+    integer, intent(out) :: status
+    real(c_double), intent(inout), contiguous, target, optional :: t(:), y(:, :)
+    integer, intent(out), optional :: done
+    integer(c_size_t) :: m, d
+    type(c_ptr) :: pt, py
+    d = 0
+    if (present(done)) done = 0
+    if (nsteps < 0) then
+      status = FC_ERR_ARG
+      return
+    end if
+    status = int(c_solver_dim(s%p, m))
+    if (status /= FC_OK) return
+    pt = c_null_ptr
+    py = c_null_ptr
+    if (present(t)) then
+      if (size(t) < nsteps) then
+        status = FC_ERR_ARG
+        return
+      end if
+      if (nsteps > 0) pt = c_loc(t(1))
+    end if
+    if (present(y)) then
+      if (size(y, 1) /= int(m) .or. size(y, 2) < nsteps) then
+        status = FC_ERR_ARG
+        return
+      end if
+      if (nsteps > 0) py = c_loc(y(1, 1))
+    end if
+    status = int(c_solver_advance(s%p, int(nsteps, c_size_t), pt, py, d))
+    if (present(done)) done = int(d)
+  end subroutine fc_solver_advance
+
+  subroutine fc_solver_time(s, t, status)
+    type(fc_solver), intent(in) :: s
+    real(c_double), intent(out) :: t
+    integer, intent(out) :: status
+    t = 0
+    status = int(c_solver_time(s%p, t))
+  end subroutine fc_solver_time
+
+  ! The current state y(m).
+  subroutine fc_solver_state(s, y, status)
+    type(fc_solver), intent(in) :: s
+    real(c_double), intent(inout), contiguous :: y(:)
+    integer, intent(out) :: status
+    integer(c_size_t) :: m
+    status = int(c_solver_dim(s%p, m))
+    if (status /= FC_OK) return
+    if (size(y) /= int(m)) then
+      status = FC_ERR_ARG
+      return
+    end if
+    status = int(c_solver_state(s%p, y))
+  end subroutine fc_solver_state
+
+  subroutine fc_solver_steps(s, n, status)
+    type(fc_solver), intent(in) :: s
+    integer(c_int64_t), intent(out) :: n
+    integer, intent(out) :: status
+    n = 0
+    status = int(c_solver_steps(s%p, n))
+  end subroutine fc_solver_steps
+
+  ! The saved state as bytes (allocated here); a loaded solver has no
+  ! callbacks (set them again).
+  subroutine fc_solver_save(s, blob, status)
+    type(fc_solver), intent(in) :: s
+    integer(c_signed_char), allocatable, intent(inout) :: blob(:)
+    integer, intent(out) :: status
+    integer(c_size_t) :: size, written
+    integer(c_signed_char), allocatable :: buf(:)
+    status = int(c_solver_save_size(s%p, size))
+    if (status /= FC_OK) return
+    allocate(buf(max(size, 1_c_size_t)), stat=status)
+    if (status /= 0) then
+      status = FC_ERR_NOMEM
+      return
+    end if
+    status = int(c_solver_save(s%p, buf, size, written))
+    if (status == FC_OK) then
+      if (allocated(blob)) deallocate(blob)
+      allocate(blob(written))
+      blob = buf(1:written)
+    end if
+  end subroutine fc_solver_save
+
+  subroutine fc_solver_load(s, blob, status)
+    type(fc_solver), intent(inout) :: s
+    integer(c_signed_char), intent(in), contiguous :: blob(:)
+    integer, intent(out) :: status
+    type(c_ptr) :: p
+    status = int(c_solver_load(blob, size(blob, kind=c_size_t), p))
+    if (status == FC_OK) s%p = p
+  end subroutine fc_solver_load
+
+  ! ----------------------------------------------------------- controller
+
+  ! The library's defaults (fc_controller_default_params).
+  subroutine fc_controller_default_params(p, status)
+    type(fc_controller_params), intent(out) :: p
+    integer, intent(out) :: status
+    status = int(c_controller_default_params(p))
+  end subroutine fc_controller_default_params
+
+  ! c is unchanged unless status == FC_OK.
+  subroutine fc_controller_create(c, p, status)
+    type(fc_controller), intent(inout) :: c
+    type(fc_controller_params), intent(in) :: p
+    integer, intent(out) :: status
+    type(c_ptr) :: q
+    status = int(c_controller_create(p, q))
+    if (status == FC_OK) c%p = q
+  end subroutine fc_controller_create
+
+  subroutine fc_controller_free(c)
+    type(fc_controller), intent(inout) :: c
+    call c_controller_free(c%p)
+    c%p = c_null_ptr
+  end subroutine fc_controller_free
+
+  ! One sample: setpoint r, measurement y, output u (unchanged on refusal).
+  subroutine fc_controller_update(c, r, y, u, status)
+    type(fc_controller), intent(in) :: c
+    real(c_double), intent(in) :: r, y
+    real(c_double), intent(inout) :: u
+    integer, intent(out) :: status
+    real(c_double) :: v
+    v = 0
+    status = int(c_controller_update(c%p, r, y, v))
+    if (status == FC_OK) u = v
+  end subroutine fc_controller_update
+
+  ! size(r) samples; done (optional): the samples applied.
+  subroutine fc_controller_update_block(c, r, y, u, status, done)
+    type(fc_controller), intent(in) :: c
+    real(c_double), intent(in), contiguous :: r(:), y(:)
+    real(c_double), intent(inout), contiguous :: u(:)
+    integer, intent(out) :: status
+    integer, intent(out), optional :: done
+    integer(c_size_t) :: d
+    d = 0
+    if (present(done)) done = 0
+    if (size(y) /= size(r) .or. size(u) /= size(r)) then
+      status = FC_ERR_ARG
+      return
+    end if
+    status = int(c_controller_update_block(c%p, r, y, size(r, kind=c_size_t), u, d))
+    if (present(done)) done = int(d)
+  end subroutine fc_controller_update_block
+
+  subroutine fc_controller_set_manual(c, u, status)
+    type(fc_controller), intent(in) :: c
+    real(c_double), intent(in) :: u
+    integer, intent(out) :: status
+    status = int(c_controller_set_manual(c%p, u))
+  end subroutine fc_controller_set_manual
+
+  subroutine fc_controller_set_auto(c, status)
+    type(fc_controller), intent(in) :: c
+    integer, intent(out) :: status
+    status = int(c_controller_set_auto(c%p))
+  end subroutine fc_controller_set_auto
+
+  subroutine fc_controller_reset(c, status)
+    type(fc_controller), intent(in) :: c
+    integer, intent(out) :: status
+    status = int(c_controller_reset(c%p))
+  end subroutine fc_controller_reset
+
+  ! bits: FC_CTRL_LIMITED, FC_CTRL_PAST_HORIZON, FC_CTRL_MANUAL (iand).
+  subroutine fc_controller_status(c, bits, status)
+    type(fc_controller), intent(in) :: c
+    integer, intent(out) :: bits
+    integer, intent(out) :: status
+    integer(c_int) :: b
+    b = 0
+    status = int(c_controller_status(c%p, b))
+    bits = int(b)
+  end subroutine fc_controller_status
+
+  ! The last update's P, I, filtered D, bias, unlimited sum, output.
+  subroutine fc_controller_terms(c, t, status)
+    type(fc_controller), intent(in) :: c
+    real(c_double), intent(out) :: t(6)
+    integer, intent(out) :: status
+    t = 0
+    status = int(c_controller_terms(c%p, t))
+  end subroutine fc_controller_terms
+
+  subroutine fc_controller_count(c, n, status)
+    type(fc_controller), intent(in) :: c
+    integer(c_int64_t), intent(out) :: n
+    integer, intent(out) :: status
+    n = 0
+    status = int(c_controller_count(c%p, n))
+  end subroutine fc_controller_count
+
+  subroutine fc_controller_save(c, blob, status)
+    type(fc_controller), intent(in) :: c
+    integer(c_signed_char), allocatable, intent(inout) :: blob(:)
+    integer, intent(out) :: status
+    integer(c_size_t) :: size, written
+    integer(c_signed_char), allocatable :: buf(:)
+    status = int(c_controller_save_size(c%p, size))
+    if (status /= FC_OK) return
+    allocate(buf(max(size, 1_c_size_t)), stat=status)
+    if (status /= 0) then
+      status = FC_ERR_NOMEM
+      return
+    end if
+    status = int(c_controller_save(c%p, buf, size, written))
+    if (status == FC_OK) then
+      if (allocated(blob)) deallocate(blob)
+      allocate(blob(written))
+      blob = buf(1:written)
+    end if
+  end subroutine fc_controller_save
+
+  subroutine fc_controller_load(c, blob, status)
+    type(fc_controller), intent(inout) :: c
+    integer(c_signed_char), intent(in), contiguous :: blob(:)
+    integer, intent(out) :: status
+    type(c_ptr) :: p
+    status = int(c_controller_load(blob, size(blob, kind=c_size_t), p))
+    if (status == FC_OK) c%p = p
+  end subroutine fc_controller_load
+  ! The saved state written to the file path atomically (temporary file
+  ! in the same directory, fsync, rename, directory sync; fracconv.h,
+  ! "Checkpoint files"). Trailing blanks of path are not part of the name.
+  ! FC_ERR_IO: the file could not be written; the old file is unchanged.
+  subroutine fc_stream_save_file(s, path, status)
+    type(fc_stream), intent(in) :: s
+    character(len=*), intent(in) :: path
+    integer, intent(out) :: status
+    status = int(c_stream_save_file(s%p, trim(path) // c_null_char))
+  end subroutine fc_stream_save_file
+
+  ! A new stream from a file of at most max_size bytes written by
+  ! fc_stream_save_file (in any language); s is unchanged unless
+  ! status == FC_OK.
+  subroutine fc_stream_load_file(s, path, max_size, status)
+    type(fc_stream), intent(inout) :: s
+    character(len=*), intent(in) :: path
+    integer(c_size_t), intent(in) :: max_size
+    integer, intent(out) :: status
+    type(c_ptr) :: p
+    status = int(c_stream_load_file(trim(path) // c_null_char, max_size, p))
+    if (status == FC_OK) s%p = p
+  end subroutine fc_stream_load_file
+
+  ! fc_solver_save: the state written to path atomically (fc_solver_save_file).
+  subroutine fc_solver_save_file(s, path, status)
+    type(fc_solver), intent(in) :: s
+    character(len=*), intent(in) :: path
+    integer, intent(out) :: status
+    status = int(c_solver_save_file(s%p, trim(path) // c_null_char))
+  end subroutine fc_solver_save_file
+
+  ! A new solver from a file of at most max_size bytes written by
+  ! fc_solver_save_file; s is unchanged unless status == FC_OK.
+  subroutine fc_solver_load_file(s, path, max_size, status)
+    type(fc_solver), intent(inout) :: s
+    character(len=*), intent(in) :: path
+    integer(c_size_t), intent(in) :: max_size
+    integer, intent(out) :: status
+    type(c_ptr) :: p
+    status = int(c_solver_load_file(trim(path) // c_null_char, max_size, p))
+    if (status == FC_OK) s%p = p
+  end subroutine fc_solver_load_file
+
+  ! fc_controller_save: the state written to path atomically (fc_controller_save_file).
+  subroutine fc_controller_save_file(c, path, status)
+    type(fc_controller), intent(in) :: c
+    character(len=*), intent(in) :: path
+    integer, intent(out) :: status
+    status = int(c_controller_save_file(c%p, trim(path) // c_null_char))
+  end subroutine fc_controller_save_file
+
+  ! A new controller from a file of at most max_size bytes written by
+  ! fc_controller_save_file; c is unchanged unless status == FC_OK.
+  subroutine fc_controller_load_file(c, path, max_size, status)
+    type(fc_controller), intent(inout) :: c
+    character(len=*), intent(in) :: path
+    integer(c_size_t), intent(in) :: max_size
+    integer, intent(out) :: status
+    type(c_ptr) :: p
+    status = int(c_controller_load_file(trim(path) // c_null_char, max_size, p))
+    if (status == FC_OK) c%p = p
+  end subroutine fc_controller_load_file
 
 end module fracconv

@@ -40,6 +40,7 @@ except ImportError as _exc:  # pragma: no cover - exercised by a subprocess test
 from ._errors import (
     ArgumentError,
     BusyError,
+    FileError,
     HorizonError,
     RangeError,
     FracconvError,
@@ -56,8 +57,9 @@ __version__ = "0.1.0"
 c_version = _ffi.string(_lib.fc_version_string()).decode()
 
 from .stream import Stream
+from .stream_timed import TimedStream
 from .solve import NewtonError, RhsError, SolveResult, SolverError, Stepper, solve
-from .export import export_c
+from .export import export_c, export_controller_c
 from .control import Controller, HorizonWarning
 from .frequency import FrequencyResponse, controller_response, operator_response
 
@@ -69,8 +71,10 @@ __all__ = [
     "get_include",
     "get_lib_dir",
     "Stream",
+    "TimedStream",
     "solve",
     "export_c",
+    "export_controller_c",
     "Stepper",
     "SolveResult",
     "Controller",
@@ -88,6 +92,7 @@ __all__ = [
     "InputTypeError",
     "OutOfMemory",
     "BusyError",
+    "FileError",
     "HorizonError",
     "RangeError",
     "__version__",

@@ -324,29 +324,88 @@ def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
     return _unrows(out, moved_shape, ax)
 
 
+#: Below this many samples ``engine='auto'`` with ``t=`` uses the direct
+#: engine (measured with bench/test_bench_grid.py: the direct engine's
+#: O(N^2) work and the fast engine's construction of its sum of
+#: exponentials, about 0.3-1 ms, cross near 150-200 samples on the 2-core
+#: test machine).
+GRID_FAST_FROM = 200
+
+#: Default tolerance of the fast engine with ``t=``.
+GRID_FAST_TOL = 1e-12
+
+
+def _fast_grid_ok(rule: str, a: float) -> bool:
+    return 0.0 < a < 1.0 if rule == "l1" else 0.0 < a <= 1.0
+
+
 def _apply_grid(kind: str, samples: object, order: object, t: object, rule: object,
-                axis: object, engine: object) -> FloatArray:
+                axis: object, engine: object, tol: object) -> FloatArray:
     """integral / derivative with sample times ``t``: the direct engine of
-    :mod:`pyfracconv.grid` (no switch to the uniform engines)."""
+    :mod:`pyfracconv.grid` or the fast engine (fc_grid_apply, sums of
+    exponentials), chosen by ``engine`` (no switch to the uniform engines)."""
     from . import grid
 
     allowed = INTEGRAL_RULES if kind == "integral" else DERIVATIVE_RULES
     grid._refuse_grunwald(rule)
     check_rule(rule, tuple(r for r in allowed if r in grid.GRID_RULES))
     a = check_order(order, rule)
-    check_engine(engine)
-    if engine not in ("auto", "direct"):
+    if not isinstance(engine, str) or engine not in ("auto", "direct", "fast"):
         raise ArgumentError(
-            f"engine={show(engine)}: with t= the engines are 'auto' and 'direct' "
-            "(the direct O(N^2) sum); 'blocked' and 'fft' need a uniform grid "
-            "given as step="
+            f"engine={show(engine)}: with t= the engines are 'auto', 'direct' "
+            "(the direct O(N^2) sum) and 'fast' (sums of exponentials, O(N K)); "
+            "'blocked' and 'fft' need a uniform grid given as step="
         )
+    name = str(rule)
+    if tol is None:
+        tl = GRID_FAST_TOL
+    else:
+        tl = check_real("tol", tol)
+        lo, hi = COMPRESSED_TOL_RANGE
+        if not lo <= tl <= hi:
+            raise ArgumentError(f"tol={show(tol)}: must be in [{lo:g}, {hi:g}]")
+        if engine == "direct":
+            raise ArgumentError(
+                f"tol={show(tol)} with engine='direct': the direct engine has no "
+                "tolerance (it is accurate to rounding); give engine='fast' or 'auto'")
+    if engine == "fast" and not _fast_grid_ok(name, a):
+        span = "0 < order < 1" if name == "l1" else "0 < order <= 1"
+        raise ArgumentError(
+            f"order={show(order)} with engine='fast': the fast engine on a grid "
+            f"serves {span} (the kernel must be completely monotone); use "
+            "engine='direct'")
     arr, ax, moved_shape, block = _rows("samples", samples, axis)
     tt = grid.check_times(t, block.shape[1])
     if not np.all(np.isfinite(block)):
         raise_nonfinite("samples", arr)
+    nsig, n = block.shape
+    use_fast = engine == "fast" or (
+        engine == "auto" and n >= GRID_FAST_FROM and _fast_grid_ok(name, a))
+    if use_fast:
+        out = np.empty_like(block)
+        tc = np.ascontiguousarray(tt)
+        st = lib.fc_grid_apply(check_rule(rule), a, dptr(tc), dptr(block), nsig, n, tl,
+                               ffi.from_buffer("double[]", out), ffi.NULL)
+        if st == lib.FC_ERR_TOL:
+            width = float(tt[-1] - tt[0])
+            hmin = float(np.min(np.diff(tt)))
+            if width / hmin > 2.0 ** 99:
+                raise ArgumentError(
+                    f"t: the span t[-1] - t[0] = {show(width)} is more than 2**100 "
+                    "times the smallest step: too wide for the fast engine; use "
+                    "engine='direct'")
+            raise ArgumentError(  # pragma: no cover (not seen: tests/test_grid_fast.py)
+                f"tol={show(tl)}: no sum of exponentials met this tolerance on this "
+                "grid; use a larger tol or engine='direct'")
+        if st == lib.FC_ERR_RANGE:
+            raise RangeError(
+                f"samples (or t, order={show(order)}): the result is beyond the "
+                f"double range (largest |sample| {_largest(block)})")
+        raise_for_status(st, f"{kind}(rule={show(rule)}, order={show(order)}, t=...)",
+                         samples=("samples", arr))
+        return _unrows(out, moved_shape, ax)
     with np.errstate(over="ignore", invalid="ignore"):
-        out = grid.apply_on_grid(str(rule), a, block, tt)
+        out = grid.apply_on_grid(name, a, block, tt)
     if not np.all(np.isfinite(out)):
         raise RangeError(
             f"samples (or t, order={show(order)}): the result is beyond the "
@@ -357,7 +416,7 @@ def _apply_grid(kind: str, samples: object, order: object, t: object, rule: obje
 
 def _apply(kind: str, samples: object, order: object, step: object, rule: object,
            axis: object, engine: object, t: object = None,
-           workers: object = None) -> FloatArray:
+           tol: object = None, workers: object = None) -> FloatArray:
     nthreads = check_workers(workers)
     if step is not None and t is not None:
         raise ArgumentError(
@@ -370,7 +429,16 @@ def _apply(kind: str, samples: object, order: object, step: object, rule: object
             "t_k = k*step) or t (the sample times)"
         )
     if t is not None:
-        return _apply_grid(kind, samples, order, t, rule, axis, engine)
+        return _apply_grid(kind, samples, order, t, rule, axis, engine, tol)
+    if tol is not None:
+        raise ArgumentError(
+            f"tol={show(tol)}: a tolerance is taken only with t= (the fast "
+            "engine on a grid of times); the uniform engines are accurate to "
+            "rounding")
+    if engine == "fast":
+        raise ArgumentError(
+            "engine='fast': the engine of sample times (t=); with step= the "
+            "engines are 'auto', 'direct', 'blocked' and 'fft'")
     allowed = INTEGRAL_RULES if kind == "integral" else DERIVATIVE_RULES
     code = check_rule(rule, allowed)
     a = check_order(order, rule)
@@ -393,7 +461,7 @@ def _apply(kind: str, samples: object, order: object, step: object, rule: object
 
 def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
              rule: str = "rectangle", axis: int = -1, engine: str = "auto", *,
-             t: Optional[ArrayLike] = None,
+             t: Optional[ArrayLike] = None, tol: Optional[float] = None,
              workers: Optional[int] = None) -> FloatArray:
     """Riemann-Liouville fractional integral of order ``order`` of a sampled
     signal, from t = 0.
@@ -413,20 +481,34 @@ def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
         for smooth f).
     axis : int, optional
         Axis of time.
-    engine : {'auto', 'direct', 'blocked', 'fft'}, optional
-        See :func:`lagged_sum`. With ``t``: ``'auto'`` or ``'direct'``.
+    engine : {'auto', 'direct', 'blocked', 'fft', 'fast'}, optional
+        See :func:`lagged_sum`. With ``t``: ``'auto'``, ``'direct'`` or
+        ``'fast'`` (below).
     t : array_like, 1-D, optional (keyword)
         Sample times t_0 < t_1 < ..., finite, strictly increasing, one per
         sample along ``axis``; the integral runs from t_0. The weights are
-        those of :func:`pyfracconv.grid.grid_weights`, applied by a direct
-        O(N^2) engine (blocks of rows, bounded memory; each value one
-        pairwise sum, componentwise accurate). A uniform ``t`` is not
-        detected: give a uniform grid as ``step`` for the fast engines.
+        those of :func:`pyfracconv.grid.grid_weights`. ``engine='direct'``
+        applies them by an O(N^2) sum (blocks of rows, bounded memory; each
+        value one pairwise sum, componentwise accurate to rounding).
+        ``engine='fast'`` (0 < order <= 1) replaces the kernel
+        t^(a-1)/Gamma(a) beyond the last interval by a sum of K
+        exponentials, O(N K) work (C, fc_grid_apply), with the
+        componentwise promise |y_n - y_n(direct)| <= (tol + (K + 64) 2**-52)
+        times the sum of the absolute values of the terms of y_n
+        (sum_k |w_{n,k} x_k|); K is 28-64 (tol 1e-6 .. 1e-13, spans of 1e6
+        smallest steps). ``engine='auto'`` takes the fast engine from
+        ``GRID_FAST_FROM`` (200) samples on, when the order allows it,
+        else the direct one. A uniform ``t`` is not detected: give a
+        uniform grid as ``step`` for the uniform engines.
+    tol : float, optional (keyword)
+        Tolerance of the fast engine with ``t``, in [1e-15, 1e-2]; default
+        1e-12 (``GRID_FAST_TOL``). Refused without ``t`` and with
+        ``engine='direct'``.
     workers : int, optional (keyword)
         Threads to use, SciPy's convention; see :func:`lagged_sum` (bit for
         bit the same result for every value; the GIL is released during
-        the C call). With ``t`` the count is checked but the direct engine
-        runs on the calling thread.
+        the C call). With ``t`` the count is checked but the engine runs on
+        the calling thread.
 
     Returns
     -------
@@ -440,7 +522,11 @@ def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
         scalar, axis out of range, unknown engine; both ``step`` and ``t``;
         ``t`` not 1-D, of another length than the samples, not finite or
         not strictly increasing (the message names the first offending
-        index and its values); ``engine`` other than auto/direct with ``t``;
+        index and its values); ``engine`` other than auto/direct/fast
+        with ``t``, ``'fast'`` without ``t`` or at an order it does not
+        serve (above 1; L1: 1 and above); ``tol`` out of range, without
+        ``t`` or with ``engine='direct'``; with ``engine='fast'``, a span
+        of ``t`` beyond 2**100 smallest steps;
         ``workers`` 0 or below -os.cpu_count().
     SampleError
         A sample is NaN or infinite (the message names the first one).
@@ -500,12 +586,12 @@ def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
     >>> bool(np.allclose(y, 4 * times**1.5 / (3 * np.sqrt(np.pi)), rtol=1e-13))
     True
     """
-    return _apply("integral", samples, order, step, rule, axis, engine, t, workers)
+    return _apply("integral", samples, order, step, rule, axis, engine, t, tol, workers)
 
 
 def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
                rule: str = "grunwald", axis: int = -1, engine: str = "auto", *,
-               t: Optional[ArrayLike] = None,
+               t: Optional[ArrayLike] = None, tol: Optional[float] = None,
              workers: Optional[int] = None) -> FloatArray:
     """Fractional derivative of a sampled signal, from t = 0.
 
@@ -526,20 +612,30 @@ def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
         form and is refused).
     axis : int, optional
         Axis of time (default last).
-    engine : {'auto', 'direct', 'blocked', 'fft'}, optional
-        See :func:`lagged_sum`. With ``t``: ``'auto'`` or ``'direct'``.
+    engine : {'auto', 'direct', 'blocked', 'fft', 'fast'}, optional
+        See :func:`lagged_sum`. With ``t``: ``'auto'``, ``'direct'`` or
+        ``'fast'`` (below).
     t : array_like, 1-D, optional (keyword)
         Sample times t_0 < t_1 < ..., finite, strictly increasing, one per
         sample along ``axis``; the derivative is taken from t_0. The L1
         weights are those of :func:`pyfracconv.grid.grid_weights`, applied
-        to the sample increments by a direct O(N^2) engine (componentwise
-        accurate). A uniform ``t`` is not detected: give a uniform grid as
-        ``step`` for the fast engines.
+        to the sample increments: ``engine='direct'`` by an O(N^2) sum
+        (componentwise accurate to rounding), ``engine='fast'`` with the
+        kernel t^(-a)/Gamma(1-a) beyond the last interval replaced by a
+        sum of K exponentials, O(N K) work, promising
+        |y_n - y_n(direct)| <= (tol + (K + 64) 2**-52) sum_k |c_{n,k}
+        (x_{k+1} - x_k)| for every n. ``engine='auto'``: the fast engine
+        from ``GRID_FAST_FROM`` (200) samples on, else the direct one. A
+        uniform ``t`` is not detected: give a uniform grid as ``step`` for
+        the uniform engines.
+    tol : float, optional (keyword)
+        Tolerance of the fast engine with ``t``, in [1e-15, 1e-2]; default
+        1e-12. Refused without ``t`` and with ``engine='direct'``.
     workers : int, optional (keyword)
         Threads to use, SciPy's convention; see :func:`lagged_sum` (bit for
         bit the same result for every value; the GIL is released during
-        the C call). With ``t`` the count is checked but the direct engine
-        runs on the calling thread.
+        the C call). With ``t`` the count is checked but the engine runs on
+        the calling thread.
 
     Returns
     -------
@@ -554,7 +650,11 @@ def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
         engine; both ``step`` and ``t``; ``rule='grunwald'`` with ``t``;
         ``t`` not 1-D, of another length than the samples, not finite or
         not strictly increasing (the message names the first offending
-        index and its values); ``engine`` other than auto/direct with ``t``;
+        index and its values); ``engine`` other than auto/direct/fast
+        with ``t``, ``'fast'`` without ``t`` or at an order it does not
+        serve (above 1; L1: 1 and above); ``tol`` out of range, without
+        ``t`` or with ``engine='direct'``; with ``engine='fast'``, a span
+        of ``t`` beyond 2**100 smallest steps;
         ``workers`` 0 or below -os.cpu_count().
     SampleError
         A sample is NaN or infinite (the message names the first one).
@@ -597,7 +697,7 @@ def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
     >>> bool(np.allclose(y, 2 * np.sqrt(times / np.pi), rtol=1e-13))
     True
     """
-    return _apply("derivative", samples, order, step, rule, axis, engine, t, workers)
+    return _apply("derivative", samples, order, step, rule, axis, engine, t, tol, workers)
 
 
 def get_include() -> str:

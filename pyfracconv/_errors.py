@@ -28,6 +28,7 @@ __all__ = [
     "BusyError",
     "RangeError",
     "HorizonError",
+    "FileError",
     "SolverError",
     "RhsError",
     "NewtonError",
@@ -225,6 +226,38 @@ class HorizonError(FracconvError, RuntimeError):
     """
 
 
+class FileError(FracconvError, OSError):
+    """A checkpoint file could not be written or read (missing directory,
+    permission denied, disk full, not a regular file ...). The message
+    names the path and the system's reason; ``errno`` and ``filename`` are
+    set as for :class:`OSError` when the cause is known. A failed
+    ``save_file`` leaves the file that was there (if any) and the object
+    unchanged.
+
+    Examples
+    --------
+    >>> import pyfracconv
+    >>> s = pyfracconv.Stream.integral(0.5, 0.1)
+    >>> s.save_file("/no/such/directory/state.bin")
+    Traceback (most recent call last):
+    ...
+    pyfracconv._errors.FileError: save_file(path='/no/such/directory/state.bin'): ...
+
+    See Also
+    --------
+    pyfracconv.Stream.save_file, pyfracconv.Stream.load_file
+    """
+
+    def __init__(self, message: str, errno: Optional[int] = None,
+                 filename: Optional[str] = None) -> None:
+        super().__init__(message)
+        self.errno = errno
+        self.filename = filename
+
+    def __str__(self) -> str:
+        return str(self.args[0]) if self.args else ""
+
+
 # ---------------------------------------------------------------- the table
 
 #: Exception class of every C status code, keyed by the name of its
@@ -247,6 +280,7 @@ STATUS_CLASSES: Dict[str, Type[FracconvError]] = {
     "FC_ERR_INDEX": ArgumentError,
     "FC_ERR_RANGE": RangeError,
     "FC_ERR_HORIZON": HorizonError,
+    "FC_ERR_IO": FileError,
     "FC_ERR_CALLBACK": RhsError,
     "FC_ERR_NEWTON": NewtonError,
     "FC_ERR_NORHS": SolverError,

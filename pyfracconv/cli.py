@@ -12,6 +12,8 @@ Subcommands::
     pyfracconv flags [--cflags] [--libs] [--static]
     pyfracconv export-c --rule R --order A --step H [--tol T] [--horizon N]
                         [--precision single|double] [--prefix NAME] -o DIR
+    pyfracconv export-controller --step H [--kp ..] [--tol T] [--horizon N]
+                        [--precision single|double] [--prefix NAME] -o DIR
 
 INPUT is a CSV file (comma separated, one optional header row of column
 names, every column a signal sampled at t_k = k*step) or a ``.npy`` file
@@ -49,9 +51,10 @@ from ._core import (
     integral,
     show,
 )
-from ._checks import order_range, range_text
-from ._errors import FracconvError
+from ._checks import COMPRESSED_TOL_RANGE, compressed_text, order_range, range_text
+from ._errors import ArgumentError, FracconvError, InputTypeError
 from ._fracconv import lib
+from .records import apply_npy, open_npy
 
 __all__ = ["main", "CAUTION"]
 
@@ -317,34 +320,9 @@ def read_npy(path, columns=None):
             f"select by (only CSV files with a header row have them)"
         )
     try:
-        with open(path, "rb") as fh:
-            if os.fstat(fh.fileno()).st_size == 0:
-                raise CliError(f"{label}: file is empty")
-            arr = np.load(fh, allow_pickle=False)
-    except CliError:
-        raise
-    except OSError as exc:
-        if getattr(exc, "strerror", None):
-            raise CliError(f"cannot read input {label!r}: {exc.strerror}") from None
-        raise CliError(f"{label}: not a readable .npy file ({exc})") from None
-    except (ValueError, EOFError) as exc:
-        raise CliError(f"{label}: not a readable .npy file ({exc})") from None
-    if not isinstance(arr, np.ndarray):  # e.g. an .npz archive renamed
-        raise CliError(f"{label}: not a .npy array file")
-    if arr.dtype.kind not in "iuf":
-        raise CliError(
-            f"{label}: holds values of dtype {arr.dtype}; expected real numbers "
-            f"(integer or floating point)"
-        )
-    if arr.ndim not in (1, 2):
-        raise CliError(
-            f"{label}: array of shape {arr.shape}; expected 1-D (one signal) or "
-            f"2-D (time along axis 0, one signal per column)"
-        )
-    if arr.shape[0] == 0:
-        raise CliError(f"{label}: array of shape {arr.shape} holds no samples")
-    if arr.ndim == 2 and arr.shape[1] == 0:
-        raise CliError(f"{label}: array of shape {arr.shape} holds no columns")
+        arr = open_npy(path, label, mmap_mode=None)
+    except (ArgumentError, InputTypeError) as exc:
+        raise CliError(str(exc)) from None
     data = arr.astype(np.float64)
     bad = np.argwhere(~np.isfinite(data))
     if len(bad):
@@ -601,6 +579,9 @@ def _controller_from_args(args):
     if args.integral_rule:
         kw["integral_rule"] = args.integral_rule
     kw["derivative_rule"] = args.derivative_rule
+    for name in ("tol", "horizon"):
+        if getattr(args, name, None) is not None:
+            kw[name] = num(name, getattr(args, name))
     try:
         return Controller(num("kp", args.kp), num("ki", args.ki), num("kd", args.kd),
                           **kw), step
@@ -643,8 +624,6 @@ def _run_control(args):
 
 
 def _run_chunked(args):
-    from .records import apply_npy
-
     kind = args.kind
     allowed = INTEGRAL_RULES if kind == "integral" else DERIVATIVE_RULES
     rule = args.rule if args.rule is not None else allowed[0]
@@ -730,6 +709,28 @@ def _run_export(args):
     return 0
 
 
+def _run_export_controller(args):
+    from .export import export_controller_c
+
+    if not os.path.isdir(args.output):
+        raise CliError(f"-o {args.output}: not an existing directory")
+    ctl, _ = _controller_from_args(args)
+    try:
+        ex = export_controller_c(ctl, precision=args.precision, prefix=args.prefix)
+    except FracconvError as exc:
+        raise CliError(f"export-controller: {exc}") from None
+    paths = ex.write(args.output)
+    info = ex.info
+    print(f"{PROG}: wrote {', '.join(paths)} ({args.precision} precision; error against "
+          f"the library's controller measured {info['measured']:.3g}, stated bound "
+          f"{info['stated']:.3g} of the action scale)", file=sys.stderr)
+    print(f"{PROG}: CAUTION - the exported controller moves machinery: validate it on "
+          "the plant, keep actuator and rate limits in the hardware and an independent "
+          "safe stop; local codes and licensed practice take precedence (see "
+          f"{args.prefix}.h)", file=sys.stderr)
+    return 0
+
+
 def _wrap(text):
     return textwrap.fill(" ".join(text.split()), width=76, break_on_hyphens=False)
 
@@ -738,6 +739,37 @@ def _order_text(rule):
     """The orders a rule takes (batch and exact streams), from the C core's
     rule table, written with A for the order."""
     return range_text(order_range(rule, int(lib.FC_MODE_EXACT))).replace("order", "A")
+
+
+def _add_order_step(p, order_help):
+    """--order and --step, shared by the operator commands and chunked."""
+    p.add_argument("--order", metavar="A", required=True, help=order_help)
+    p.add_argument("--step", metavar="H", required=True,
+                   help="sampling step h > 0 (t_k = k*h)")
+
+
+def _add_controller_options(c):
+    """The controller's settings (control, export-controller)."""
+    c.add_argument("--kp", default="1", help="proportional gain (default 1)")
+    c.add_argument("--ki", default="0", help="integral gain (default 0)")
+    c.add_argument("--kd", default="0", help="derivative gain (default 0)")
+    c.add_argument("--integral-order", default="1", help="lambda (default 1)")
+    c.add_argument("--derivative-order", default="0.5", help="mu (default 0.5)")
+    c.add_argument("--step", metavar="H", required=True, help="sampling period h > 0")
+    c.add_argument("--out-min", default="-inf", help="lower output limit")
+    c.add_argument("--out-max", default="inf", help="upper output limit")
+    c.add_argument("--rate-limit", default="inf",
+                   help="largest output change per unit time (default none)")
+    c.add_argument("--setpoint-weight", default="1", help="b (default 1)")
+    c.add_argument("--derivative-weight", default="1",
+                   help="c (default 1; 0: derivative on the measurement)")
+    c.add_argument("--derivative-filter", default="0",
+                   help="filter time constant Tf of the derivative action (default 0: none)")
+    c.add_argument("--no-anti-windup", action="store_true",
+                   help="turn conditional integration off")
+    c.add_argument("--integral-rule", choices=INTEGRAL_RULES)
+    c.add_argument("--derivative-rule", choices=DERIVATIVE_RULES, default="grunwald")
+    c.add_argument("--memory", choices=("compressed", "exact"), default="compressed")
 
 
 def _add_operator(sub, name, rules, default, what, description):
@@ -752,11 +784,8 @@ def _add_operator(sub, name, rules, default, what, description):
                    help="CSV or .npy file of signals ('-': CSV on standard input)")
     p.add_argument("-o", "--output", metavar="OUTPUT", required=True,
                    help="output file, .csv or .npy ('-': CSV on standard output)")
-    p.add_argument("--order", metavar="A", required=True,
-                   help="order of the operator ("
-                        + "; ".join(f"{r}: {_order_text(r)}" for r in rules) + ")")
-    p.add_argument("--step", metavar="H", required=True,
-                   help="sampling step h > 0 (t_k = k*h)")
+    _add_order_step(p, "order of the operator ("
+                    + "; ".join(f"{r}: {_order_text(r)}" for r in rules) + ")")
     p.add_argument("--rule", metavar="RULE", default=default,
                    help=f"{' or '.join(rules)} (default {default})")
     p.add_argument("--columns", metavar="NAME,NAME...",
@@ -796,12 +825,12 @@ input and output:
   (and an older OUT.npy as it was). OUT.npy must not be the input.
 
 memory:
-  compressed (default): bounded whatever the length: about 12 KB per column
-  for the stream, three buffers of 8 * ROWS * columns bytes, and up to
+  compressed (default): bounded whatever the length: 5-7 KB for one column
+  and about 2 KB for each further one for the stream, three buffers of 8 * ROWS * columns bytes, and up to
   16 MiB resident of each mapped file. Outputs are within --tol of the
   exact ones (relative to the sum of the absolute terms) over --horizon
-  samples (default: the record's length). Orders below 1, or below 2 for
-  the rectangle integral.
+  samples (default: the record's length).
+  {orders}
   exact: the exact stream keeps the whole history, about 70 bytes per
   sample and column (7 GB for 1e8 samples); refused when that exceeds the
   machine's memory.
@@ -823,7 +852,8 @@ def _add_chunked(sub):
             "time: compressed (bounded memory, within a stated tolerance) or "
             "exact (the whole history in memory)."
         ),
-        epilog=_CHUNKED_HELP + "\n" + CAUTION,
+        epilog=_CHUNKED_HELP.format(orders=textwrap.fill(
+            f"Orders: {compressed_text()}.", 74, subsequent_indent="  ")) + "\n" + CAUTION,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("kind", choices=("integral", "derivative"),
@@ -831,11 +861,8 @@ def _add_chunked(sub):
     p.add_argument("input", metavar="IN.npy", help="the record (.npy)")
     p.add_argument("-o", "--output", metavar="OUT.npy", required=True,
                    help="the result (.npy), not the input")
-    p.add_argument("--order", metavar="A", required=True,
-                   help="order of the operator, A > 0 (compressed: A < 1, or < 2 "
-                        "for the rectangle integral)")
-    p.add_argument("--step", metavar="H", required=True,
-                   help="sampling step h > 0 (t_k = k*h)")
+    _add_order_step(p, "order of the operator, A > 0 (compressed: "
+                    + compressed_text().replace("order", "A") + ")")
     p.add_argument("--rule", metavar="RULE",
                    help="integral: rectangle (default) or trapezoid; derivative: "
                         "grunwald (default) or l1")
@@ -843,8 +870,8 @@ def _add_chunked(sub):
                    help="compressed (default: bounded memory) or exact (memory "
                         "grows with the record)")
     p.add_argument("--tol", metavar="T",
-                   help="compressed: relative tolerance in [1e-15, 1e-2] "
-                        "(default 1e-12)")
+                   help="compressed: relative tolerance in [%g, %g] "
+                        "(default 1e-12)" % COMPRESSED_TOL_RANGE)
     p.add_argument("--horizon", metavar="N",
                    help="compressed: samples the tolerance is promised for "
                         "(default: the record's length)")
@@ -903,26 +930,7 @@ def build_parser():
                    help="CSV or .npy file ('-': CSV on standard input)")
     c.add_argument("-o", "--output", metavar="OUTPUT", required=True,
                    help="output file, .csv or .npy ('-': CSV on standard output)")
-    c.add_argument("--kp", default="1", help="proportional gain (default 1)")
-    c.add_argument("--ki", default="0", help="integral gain (default 0)")
-    c.add_argument("--kd", default="0", help="derivative gain (default 0)")
-    c.add_argument("--integral-order", default="1", help="lambda (default 1)")
-    c.add_argument("--derivative-order", default="0.5", help="mu (default 0.5)")
-    c.add_argument("--step", metavar="H", required=True, help="sampling period h > 0")
-    c.add_argument("--out-min", default="-inf", help="lower output limit")
-    c.add_argument("--out-max", default="inf", help="upper output limit")
-    c.add_argument("--rate-limit", default="inf",
-                   help="largest output change per unit time (default none)")
-    c.add_argument("--setpoint-weight", default="1", help="b (default 1)")
-    c.add_argument("--derivative-weight", default="1",
-                   help="c (default 1; 0: derivative on the measurement)")
-    c.add_argument("--derivative-filter", default="0",
-                   help="filter time constant Tf of the derivative action (default 0: none)")
-    c.add_argument("--no-anti-windup", action="store_true",
-                   help="turn conditional integration off")
-    c.add_argument("--integral-rule", choices=INTEGRAL_RULES)
-    c.add_argument("--derivative-rule", choices=DERIVATIVE_RULES, default="grunwald")
-    c.add_argument("--memory", choices=("compressed", "exact"), default="compressed")
+    _add_controller_options(c)
     c.add_argument("--columns", metavar="SP,PV",
                    help="the setpoint and measurement columns, by header name")
     _add_io_options(c)
@@ -1010,6 +1018,46 @@ def build_parser():
     e.add_argument("-o", "--output", metavar="DIR", required=True,
                    help="existing directory the three files are written to")
     e.set_defaults(func=_run_export)
+    x = sub.add_parser(
+        "export-controller",
+        help="write a fractional PID controller as self-contained C99 for embedded targets",
+        description=_wrap(
+            "Write the controller of the given settings (those of the control "
+            "command; compressed memory) as plain C99 for one loop: PREFIX.h, "
+            "PREFIX.c and a test vector PREFIX_testvec.h (setpoints, measurements "
+            "and the library's outputs of a closed loop) in directory DIR. The "
+            "output limits, rate limit, setpoint weights, derivative filter, "
+            "conditional integration and manual mode with bumpless return are the "
+            "library's; coefficients are constants; the state is a struct the "
+            "caller owns; the update allocates nothing, does no I/O and calls no "
+            "library function. The error against the library's controller is "
+            "measured at export (the update emulated in the generated type) and "
+            "written into the header with a stated bound (printed on stderr too). "
+            "Refused: --memory exact, --integral-rule trapezoid with "
+            "--integral-order >= 1. See docs/compiled.md."),
+        epilog=CONTROL_CAUTION + "\n" + _wrap(
+            "The exported code is a numerical building block, not a safety "
+            "function: validate the complete control system in simulation and "
+            "then on the plant under supervision; keep actuator limits and rate "
+            "limits in the hardware as well; keep an independent safe stop that "
+            "depends neither on this code nor on the processor running it; local "
+            "codes, standards and licensed engineering practice take "
+            "precedence.") + "\n\n" + CAUTION,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    _add_controller_options(x)
+    x.add_argument("--tol", metavar="T", default="1e-10",
+                   help="tolerance of the compressed memory (default 1e-10)")
+    x.add_argument("--horizon", metavar="N", default="1e9",
+                   help="samples the compressed memory covers (default 1e9); past it the "
+                        "exported controller keeps running and reports it")
+    x.add_argument("--precision", choices=("double", "single"), default="double",
+                   help="floating type of the generated code (default double)")
+    x.add_argument("--prefix", default="fcpid",
+                   help="C identifier prefix of the generated names and files (default fcpid)")
+    x.add_argument("-o", "--output", metavar="DIR", required=True,
+                   help="existing directory the three files are written to")
+    x.set_defaults(func=_run_export_controller)
     return parser
 
 

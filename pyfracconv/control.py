@@ -33,10 +33,20 @@ import warnings
 
 import numpy as np
 
-from ._errors import ArgumentError, InputTypeError, raise_for_status
+from ._errors import ArgumentError, BusyError, InputTypeError, StateError, raise_for_status
 from ._checks import DERIVATIVE_RULES, INTEGRAL_RULES, RULES, in_range, order_range, range_text
 from ._core import as_float_array, check_compressed, check_real, show
+from ._files import (
+    DEFAULT_MAX_SIZE,
+    check_max_size,
+    check_path,
+    check_write_path,
+    read_file,
+    state_error,
+    write_file,
+)
 from ._fracconv import ffi, lib
+from .stream import _Guard
 
 __all__ = ["Controller", "HorizonWarning"]
 
@@ -86,7 +96,7 @@ class Controller:
         keeps no stream for its action).
     integral_order, derivative_order : float
         lambda and mu. Compressed memory accepts 0 < order < 1 (and
-        1 <= lambda < 2 with the rectangle rule); exact memory 0 < order <= 10
+        1 <= lambda < 2 with either integral rule); exact memory 0 < order <= 10
         (L1: below 1).
     step : float
         Sampling period h > 0 (the time unit of the gains and of
@@ -126,6 +136,12 @@ class Controller:
         :class:`HorizonWarning` is issued.
     tol, horizon : float
         Compressed memory only (as for :class:`pyfracconv.Stream`).
+
+    Threads: one controller must not be used by two threads at once; a
+    call that finds it in use (an update, a block, a mode switch, a reset
+    or a save) raises :class:`BusyError` and changes nothing. The guard is
+    the one :class:`pyfracconv.Stream` uses, and the C library's own busy
+    flag is underneath (fc_controller_*: FC_ERR_BUSY).
 
     SAFETY: a controller moves real machinery. Validate in simulation and
     on the plant; keep actuator and rate limits in the hardware too; keep an
@@ -220,6 +236,11 @@ class Controller:
         self._c = ffi.gc(c, lib.fc_controller_free)
         self._u = ffi.new("double *")
         self._warned = False
+        self._lock = _Guard()
+
+    def _busy(self, what):
+        return BusyError(f"{what}: the controller is being used by another thread; "
+                         "it is unchanged")
 
     def _check(self, st, what):
         if st:
@@ -236,23 +257,36 @@ class Controller:
     # ------------------------------------------------------------ public
     def update(self, setpoint, measurement):
         """One sample: the output for this setpoint and measurement."""
+        if not self._lock.acquire():
+            raise self._busy("update")
         try:
             st = lib.fc_controller_update(self._c, setpoint, measurement, self._u)
+            u = self._u[0]
         except TypeError:
             raise InputTypeError(
                 f"update({show(setpoint)}, {show(measurement)}): expected real "
                 "numbers") from None
+        finally:
+            self._lock.release()
         if st:
             self._check(st, f"update(setpoint={show(setpoint)}, "
                             f"measurement={show(measurement)})")
         if not self._warned:
             self._horizon_check()
-        return self._u[0]
+        return u
 
     def update_block(self, setpoints, measurements):
         """Outputs for a block of samples (arrays of one length, or a scalar
         broadcast against an array); the same values as calling
         :meth:`update` for each sample in turn."""
+        if not self._lock.acquire():
+            raise self._busy("update_block")
+        try:
+            return self._update_block(setpoints, measurements)
+        finally:
+            self._lock.release()
+
+    def _update_block(self, setpoints, measurements):
         r = as_float_array("setpoints", setpoints)
         y = as_float_array("measurements", measurements)
         try:
@@ -282,20 +316,29 @@ class Controller:
         self._horizon_check()
         return u
 
+    def _guarded(self, what, fn, *args):
+        if not self._lock.acquire():
+            raise self._busy(what)
+        try:
+            return fn(self._c, *args)
+        finally:
+            self._lock.release()
+
     def manual(self, output):
         """Switch to manual mode with this output (updates then return it,
         clamped to the limits, while the controller tracks it for a bumpless
         return to automatic). Call again to change the manual output."""
         v = check_real("output", output)
-        self._check(lib.fc_controller_set_manual(self._c, v), f"manual({show(output)})")
+        self._check(self._guarded("manual", lib.fc_controller_set_manual, v),
+                    f"manual({show(output)})")
 
     def automatic(self):
         """Switch to automatic mode (bumpless: the tracking bias is held)."""
-        self._check(lib.fc_controller_set_auto(self._c), "automatic()")
+        self._check(self._guarded("automatic", lib.fc_controller_set_auto), "automatic()")
 
     def reset(self):
         """Forget every sample, bias 0, automatic mode."""
-        self._check(lib.fc_controller_reset(self._c), "reset()")
+        self._check(self._guarded("reset", lib.fc_controller_reset), "reset()")
         self._warned = False
 
     def _status(self):
@@ -362,12 +405,17 @@ class Controller:
     def save(self):
         """The whole state as bytes (versioned, checksummed); see
         :meth:`load`."""
-        n = ffi.new("size_t *")
-        raise_for_status(lib.fc_controller_save_size(self._c, n), "save")
-        buf = ffi.new("unsigned char[]", n[0])
-        w = ffi.new("size_t *")
-        raise_for_status(lib.fc_controller_save(self._c, buf, n[0], w), "save")
-        return bytes(ffi.buffer(buf, w[0]))
+        if not self._lock.acquire():
+            raise self._busy("save")
+        try:
+            n = ffi.new("size_t *")
+            raise_for_status(lib.fc_controller_save_size(self._c, n), "save")
+            buf = ffi.new("unsigned char[]", n[0])
+            w = ffi.new("size_t *")
+            raise_for_status(lib.fc_controller_save(self._c, buf, n[0], w), "save")
+            return bytes(ffi.buffer(buf, w[0]))
+        finally:
+            self._lock.release()
 
     @classmethod
     def load(cls, data):
@@ -385,6 +433,43 @@ class Controller:
         self = cls.__new__(cls)
         self._init(out[0])
         return self
+
+    def save_file(self, path):
+        """Write :meth:`save` to the file ``path`` atomically (temporary
+        file in the same directory, fsync, rename over ``path``, directory
+        sync; see :meth:`pyfracconv.Stream.save_file`). The bytes are those
+        of the C library's ``fc_controller_save_file``: either side reads
+        the other's files.
+
+        Raises
+        ------
+        FileError
+            The file could not be written; the old file (if any) and the
+            controller are unchanged.
+        """
+        p = check_write_path(path)
+        write_file("save_file", p, self.save(), "the controller")
+
+    @classmethod
+    def load_file(cls, path, *, max_size=DEFAULT_MAX_SIZE):
+        """A controller from a file written by :meth:`save_file` (or
+        ``fc_controller_save_file``). The file is untrusted input: at most
+        ``max_size`` bytes are read and they go through :meth:`load`.
+
+        Raises
+        ------
+        FileError
+            The file could not be read.
+        StateError
+            The file is truncated, corrupted, forged, of another format or
+            longer than max_size.
+        """
+        p = check_path("path", path)
+        data = read_file("load_file", p, check_max_size(max_size))
+        try:
+            return cls.load(data)
+        except StateError as exc:
+            raise state_error("load_file", p, exc) from None
 
     def __repr__(self):
         p = self.params

@@ -19,13 +19,14 @@ Gamma(1/2) = sqrt(pi); check: for constant q, I^(1/2) q = 2 q sqrt(t/pi),
 which gives the constant-flux solution back. Hence
 D^(1/2) theta = (sqrt(alpha)/k) q_net with theta = T_s - T_0 (Caputo,
 theta(0) = 0). The net flux is the heater flux minus the convective loss
-h_c theta. The plant is simulated as the Volterra form
-theta = c I^(1/2)[q - h_c theta] by a Stream with the product rectangle
-rule (explicit: theta_n needs only the net fluxes before n, which the
-stream's history() gives before the flux of step n is known), because the
-loop feeds each new heater flux back one sample at a time; this is the
-explicit rectangle method of pyfracconv.solve (theta_n = c sum_{k<n}
-b_{n-1-k} (q_k - h_c theta_k)) written out step by step.
+h_c theta. The plant is simulated by the solver, a pyfracconv.Stepper
+with the explicit product rectangle method (theta_n = c sum_{k<n}
+b_{n-1-k} (q_k - h_c theta_k): theta_n needs only the fluxes before n),
+which evaluates the right-hand side once per step, at (t_n, theta_n):
+that is the sampling instant, where the controller reads theta_n and sets
+the heater flux q_n held over [t_n, t_n+1) (zero-order hold, as a digital
+controller's output is), so the controller update sits in the right-hand
+side and the loop is one call of Stepper.advance.
 
 The controller: pyfracconv.Controller, a fractional PI^lambda D^mu with
 heater limits [0, Q_MAX], a rate limit, derivative on the measurement with
@@ -44,7 +45,7 @@ import numpy as np
 
 from .control import Controller
 from .frequency import controller_response
-from .stream import Stream
+from .solve import Stepper
 
 __all__ = ["run", "simulate", "DEFAULT_OUT_DIR"]
 
@@ -79,25 +80,33 @@ def simulate(memory, steps=STEPS):
     """The loop with the controller's memory ``memory``; returns
     (t, theta, q, controller, seconds)."""
     c = make_controller(memory)
-    plant = Stream.integral(0.5, STEP, rule="rectangle")
     gain = math.sqrt(ALPHA) / K_COND
     theta = np.empty(steps)
     q = np.empty(steps)
-    upd, push, hist = c.update, plant.push, plant.history
+    upd = c.update
+    n = 0
+
+    def rhs(t, th):
+        # the sampling instant t_n: the controller reads theta_n and sets
+        # q_n, held until t_n+1; then D^(1/2) theta = c (q_n - h_c theta)
+        nonlocal n
+        if t != n * STEP:  # pragma: no cover - one evaluation per step
+            raise RuntimeError(f"plant rhs at t={t!r}, expected step {n}")
+        if n == 1:
+            c.automatic()
+        qn = upd(SETPOINT, th)
+        theta[n] = th
+        q[n] = qn
+        n += 1
+        return gain * (qn - H_CONV * th)
+
+    plant = Stepper(rhs, 0.0, 0.5, STEP, method="rectangle")
     # a bumpless start: the first output is the heater's present value (0,
     # manual), so the rate limit holds from the first step on
     c.manual(0.0)
     t0 = time.perf_counter()
-    for n in range(steps):
-        if n == 1:
-            c.automatic()
-        # theta_n from the net fluxes before n (rectangle rule, explicit),
-        # then the controller's flux q_n, then the net flux of step n
-        th = gain * hist()
-        qn = upd(SETPOINT, th)
-        push(qn - H_CONV * th)
-        theta[n] = th
-        q[n] = qn
+    # steps - 1 steps evaluate the rhs at t_0 .. t_(steps-1)
+    plant.advance(steps - 1)
     secs = time.perf_counter() - t0
     return np.arange(steps) * STEP, theta, q, c, secs
 

@@ -21,12 +21,16 @@ from ._core import check_compressed, check_order, check_rule, check_step, show, 
 from ._errors import ArgumentError, raise_for_status
 from ._fracconv import ffi, lib
 
-__all__ = ["export_c", "ExportedOperator"]
+__all__ = ["export_c", "ExportedOperator", "export_controller_c", "ExportedController"]
 
 BAND = 64
 _S_HDR = 80       # stream header (csrc/stream.c, save format)
 _CS_HDR = 72      # compressed payload header (csrc/stream_compressed.c)
 _MEASURE_LEN = 2000
+# The rules whose compressed engine the generated code reproduces (each
+# has its own branches below); a rule added to the library's table is
+# refused here until its generated form is written and tested.
+_EXPORTABLE = ("rectangle", "trapezoid", "grunwald", "l1")
 _MEASURE_SEED = 20260
 
 
@@ -157,75 +161,105 @@ def _simulate(co, x, dtype, fused):
     products of the fma() calls rounded once (emulated through float64, a
     double rounding that may differ from a true fma in the last bit), else
     multiply then add."""
-    T = dtype
-    Lp = co["Lp"]
-    q, beta, inj = (np.asarray(co[k], T) for k in ("qp", "betap", "injp"))
-    cb, ctab = np.asarray(co["cb"], T), np.asarray(co["ctab"], T)
-    c0 = T(co["c0"])
-    rule, cum = co["rule"], co["cum"]
-    trap, l1 = rule == lib.FC_RULE_TRAPEZOID, rule == lib.FC_RULE_L1
+    op = _OpSim(co, dtype, fused)
+    y = np.empty(len(x), dtype)
+    with np.errstate(all="ignore"):
+        for n, xv in enumerate(np.asarray(x, dtype)):
+            y[n] = op.out(xv, True)
+    return y.astype(np.float64)
 
-    def fma(a, b, c):
-        if fused:
+
+class _OpSim:
+    """One exported operator's state and update, step by step, in NumPy
+    arithmetic of type dtype (see _simulate); out(x, commit=False) is the
+    output for sample x without changing the state (the library's
+    fc_stream_preview), out(x, True) pushes it."""
+
+    def __init__(self, co, dtype, fused):
+        T = self.T = dtype
+        self.co = co
+        self.fused = fused
+        self.Lp = co["Lp"]
+        self.q, self.beta, self.inj = (np.asarray(co[k], T) for k in ("qp", "betap", "injp"))
+        self.cb, self.ctab = np.asarray(co["cb"], T), np.asarray(co["ctab"], T)
+        self.c0 = T(co["c0"])
+        self.trap = co["rule"] == lib.FC_RULE_TRAPEZOID
+        self.l1 = co["rule"] == lib.FC_RULE_L1
+        self.cum = co["cum"]
+        self.ring = np.zeros(2 * BAND, T)
+        self.S = np.zeros(self.Lp, T)
+        self.Sc = np.zeros(self.Lp, T)
+        self.xprev, self.x0s = T(0), T(0)
+        self.n = 0
+
+    def _fma(self, a, b, c):
+        T = self.T
+        if self.fused:
             return (np.asarray(a, np.float64) * np.asarray(b, np.float64)
                     + np.asarray(c, np.float64)).astype(T)
         return (a * b).astype(T) + c
 
-    ring = np.zeros(2 * BAND, T)
-    S = np.zeros(Lp, T)
-    Sc = np.zeros(Lp, T)
-    xprev, x0s = T(0), T(0)
-    y = np.empty(len(x), T)
-    with np.errstate(all="ignore"):
-        for n, xv in enumerate(np.asarray(x, T)):
-            pos = n % BAND
-            Xhi = Xlo = T(0)
-            if l1:
-                u = T(0) if n == 0 else T(xv - xprev)
-            elif cum:
-                h, lo = xprev, x0s
-                s_ = T(h + xv)
-                z = T(s_ - h)
-                e = T(T(h - T(s_ - z)) + T(xv - z))
-                t = T(lo + e)
-                H = T(s_ + t)
-                z = T(H - s_)
-                Xlo = T(T(s_ - T(H - z)) + T(t - z))
-                Xhi = H
-                u = Xhi
-            else:
-                u = xv
-            d = ring[pos]
-            terms = T(0)
-            if co["L"]:
-                dd = (inj * d).astype(T) if (trap and n == BAND) else np.full(Lp, d, T)
-                t = fma(-q, S, dd)
-                t3 = (t + Sc).astype(T)
-                s = (S + t3).astype(T)
-                z = (s - S).astype(T)
-                e = ((S - (s - z)) + (t3 - z)).astype(T)
-                acc = np.zeros(8, T)
-                for blk in range(0, Lp, 8):
-                    acc = fma(beta[blk:blk + 8], s[blk:blk + 8], acc)
-                S, Sc = s, e
-                terms = _reduce8(acc, T)
-            w = ring[pos + 1:pos + 1 + BAND]
-            acc16 = np.zeros(16, T)
-            for j in range(0, BAND, 16):
-                acc16 = fma(cb[j:j + 16], w[j:j + 16], acc16)
-            band = _reduce8((acc16[:8] + acc16[8:]).astype(T), T)
-            x0 = xv if n == 0 else x0s
-            corr = ctab[n] if (trap and n < BAND) else T(0)
-            y[n] = T(T(T(terms + band) + T(c0 * u)) + T(corr * x0))
+    def out(self, xv, commit=False):
+        T, fma, n = self.T, self._fma, self.n
+        xv = T(xv)
+        pos = n % BAND
+        Xhi = Xlo = T(0)
+        if self.l1:
+            u = T(0) if n == 0 else T(xv - self.xprev)
+        elif self.cum:
+            h, lo = self.xprev, self.x0s
+            s_ = T(h + xv)
+            z = T(s_ - h)
+            e = T(T(h - T(s_ - z)) + T(xv - z))
+            t = T(lo + e)
+            H = T(s_ + t)
+            z = T(H - s_)
+            Xlo = T(T(s_ - T(H - z)) + T(t - z))
+            Xhi = H
+            u = Xhi
+        else:
+            u = xv
+        ring = self.ring
+        d = ring[pos]
+        terms = T(0)
+        S = Sc = None
+        if self.co["L"]:
+            dd = ((self.inj * d).astype(T) if (self.trap and n == BAND)
+                  else np.full(self.Lp, d, T))
+            t = fma(-self.q, self.S, dd)
+            t3 = (t + self.Sc).astype(T)
+            s = (self.S + t3).astype(T)
+            z = (s - self.S).astype(T)
+            e = ((self.S - (s - z)) + (t3 - z)).astype(T)
+            tiny = np.finfo(T).tiny  # the flush of the generated C code
+            s = np.where(np.abs(s) >= tiny, s, T(0)).astype(T)
+            e = np.where(np.abs(e) >= tiny, e, T(0)).astype(T)
+            acc = np.zeros(8, T)
+            for blk in range(0, self.Lp, 8):
+                acc = fma(self.beta[blk:blk + 8], s[blk:blk + 8], acc)
+            S, Sc = s, e
+            terms = _reduce8(acc, T)
+        w = ring[pos + 1:pos + 1 + BAND]
+        acc16 = np.zeros(16, T)
+        for j in range(0, BAND, 16):
+            acc16 = fma(self.cb[j:j + 16], w[j:j + 16], acc16)
+        band = _reduce8((acc16[:8] + acc16[8:]).astype(T), T)
+        x0 = xv if n == 0 else self.x0s
+        corr = self.ctab[n] if (self.trap and n < BAND) else T(0)
+        y = T(T(T(terms + band) + T(self.c0 * u)) + T(corr * x0))
+        if commit:
+            if S is not None:
+                self.S, self.Sc = S, Sc
             ring[pos] = u
             ring[pos + BAND] = u
-            if cum:
-                xprev, x0s = Xhi, Xlo
+            if self.cum:
+                self.xprev, self.x0s = Xhi, Xlo
             else:
-                xprev = xv
+                self.xprev = xv
                 if n == 0:
-                    x0s = xv
-    return y.astype(np.float64)
+                    self.x0s = xv
+            self.n = n + 1
+        return y
 
 
 def _reduce8(a, T):
@@ -306,7 +340,7 @@ def export_c(rule, order, step, tol=1e-9, horizon=1e6, precision="double",
     -------
     ExportedOperator
     """
-    code = check_rule(rule, tuple(RULES))
+    code = check_rule(rule, tuple(r for r in RULES if r in _EXPORTABLE))
     a = check_order(order, rule, lib.FC_MODE_COMPRESSED)
     if rule == "trapezoid" and a >= 1.0:
         # the compressed trapezoid rule at 1 <= order < 2 reads its x_0
@@ -519,6 +553,7 @@ int {P}_step({P}_state *st, {P}_real x, {P}_real *y);
     if trap:
         consts.append(_array(f"{P}_ctab", R, co["ctab"], single))
     z = "0.0f" if single else "0.0"
+    TN = "1.17549435082228751e-38f" if single else "2.2250738585072014e-308"
     if l1:
         u_code = f"u = n == 0 ? {z} : x - st->xprev;"
     elif cum:
@@ -547,6 +582,11 @@ int {P}_step({P}_state *st, {P}_real x, {P}_real *y);
                 {P}_real s = s0 + t3;
                 {P}_real zz = s - s0;
                 {P}_real e = (s0 - (s - zz)) + (t3 - zz);
+                /* below the smallest normal number: zero, as the library
+                   does, so the work per sample stays the same (subnormal
+                   arithmetic is slow or trapped on many processors) */
+                if (s < {TN} && s > -{TN}) s = {z};
+                if (e < {TN} && e > -{TN}) e = {z};
                 acc[k] = {U}_FMA({P}_beta[l + k], s, acc[k]);
                 nS[l + k] = s;
                 nSc[l + k] = e;
@@ -672,6 +712,834 @@ int {P}_step({P}_state *st, {P}_real x, {P}_real *y)
 {_array(f"{P}_tv_x", "double", xt, False)}
 {_array(f"{P}_tv_y", "double", yt, False)}
 {_array(f"{P}_tv_scale", "double", st, False)}
+#endif /* {U}_TESTVEC_H */
+"""
+    return header, source, tv
+
+
+# ===================================================== controller export
+#
+# export_controller_c: the library's controller (csrc/controller.c,
+# update1) as C99 for one loop: its integral and derivative operators are
+# the compressed engines above, written as static functions whose
+# commit = 0 call is the library's fc_stream_preview (nothing changes) and
+# commit = 1 its push; the controller's arithmetic (setpoint weights,
+# filter, limits, rate limit, conditional integration, manual mode with
+# output tracking) is the library's, operation for operation.
+
+_CTL_CAUTION = """\
+ * CAUTION. A controller moves machinery. This file is a numerical
+ * building block, not a safety function:
+ *   - validate the complete control system in simulation and then on the
+ *     plant (or a faithful model of it), under supervision, before use;
+ *   - keep the actuator limits and rate limits in the hardware (or a
+ *     separate protective layer) as well as the limits coded here;
+ *   - keep an independent safe stop (interlock, emergency stop) that does
+ *     not depend on this code, on the processor running it, or on its
+ *     inputs;
+ *   - the code starts from rest (P_init): bring it into the loop in
+ *     manual mode at the actuator's present value, then switch to
+ *     automatic, for a bumpless start.
+ * Local codes, standards and licensed engineering practice take precedence
+ * over anything said here."""
+
+_CTL_MEASURE_LEN = 2000
+_CTL_SEED = 20261
+
+
+class ExportedController(ExportedOperator):
+    """The generated files of :func:`export_controller_c`: ``header``
+    (``<prefix>.h``), ``source`` (``<prefix>.c``) and ``test_vector``
+    (``<prefix>_testvec.h``), and ``info`` (the parameters, precision,
+    exponential terms of each operator, ``measured`` and ``stated``
+    errors relative to each run's action scale)."""
+
+
+def _ctl_params(controller):
+    from .control import Controller
+    if isinstance(controller, Controller):
+        return dict(controller.params)
+    if isinstance(controller, dict):
+        return dict(Controller(**controller).params)
+    raise ArgumentError(f"controller={show(controller)}: expected a pyfracconv.Controller "
+                        "or a dict of its keyword arguments")
+
+
+def _op_coeffs(rule, order, step, tol, horizon):
+    code = RULES[rule]
+    s, blob = _compressed_blob(code, order, step, tol, horizon)
+    co = _parse(blob)
+    L = co["L"]
+    Lp = (L + 7) // 8 * 8
+    pad = Lp - L
+    co["Lp"] = Lp
+    co["qp"] = np.concatenate((co["q"], np.full(pad, 0.5)))
+    co["betap"] = np.concatenate((co["beta"], np.zeros(pad)))
+    co["injp"] = np.concatenate((co["inj"], np.ones(pad)))
+    co["cum"] = rule == "rectangle" and order >= 1.0
+    return co
+
+
+class _CtlSim:
+    """The exported controller's update in NumPy arithmetic of type T
+    (the C text of _ctl_source, line for line)."""
+
+    def __init__(self, k, ops, T, fused):
+        self.k, self.T = k, T
+        self.opi = _OpSim(ops["i"], T, fused) if "i" in ops else None
+        self.opd = _OpSim(ops["d"], T, fused) if "d" in ops else None
+        self.c = {n: T(k[n]) for n in ("kp", "ki", "kd", "b", "c", "step", "tf", "rate",
+                                        "lo", "hi")}
+        self.u_prev = self.dfilt = self.bias = self.u_manual = T(0)
+        self.have_prev = self.manual = False
+
+    def _clamp_out(self, v):
+        lo, hi = self.k["lo"], self.k["hi"]
+        if lo != -np.inf and v < self.c["lo"]:
+            return self.c["lo"]
+        if hi != np.inf and v > self.c["hi"]:
+            return self.c["hi"]
+        return v
+
+    def _limit(self, v):
+        T = self.T
+        u = self._clamp_out(v)
+        if self.have_prev and self.k["rate"] != np.inf:
+            d = T(self.c["rate"] * self.c["step"])
+            lo, hi = T(self.u_prev - d), T(self.u_prev + d)
+            u = lo if u < lo else (hi if u > hi else u)
+            u = self._clamp_out(u)
+        return u
+
+    def update(self, r, y):
+        T, c, k = self.T, self.c, self.k
+        r, y = T(r), T(y)
+        e = T(r - y)
+        ep = T(T(c["b"] * r) - y)
+        ed = T(T(c["c"] * r) - y)
+        P = T(c["kp"] * ep)
+        draw = iv = T(0)
+        xi = T(0) if self.manual else e
+        if self.opd:
+            draw = self.opd.out(ed)
+        if self.opi:
+            iv = self.opi.out(xi)
+        D = T(c["kd"] * draw)
+        if k["tf"] > 0:
+            D = T(T(T(c["tf"] * self.dfilt) + T(c["step"] * D)) / T(c["tf"] + c["step"]))
+        Ia = T(c["ki"] * iv)
+        bias = self.bias
+        if self.manual:
+            u = self._clamp_out(self.u_manual)
+            bias = T(u - T(T(P + Ia) + D))
+            v = u
+        else:
+            v = T(T(T(P + Ia) + D) + bias)
+            u = self._limit(v)
+            if u != v and self.opi and k["aw"] and xi != 0:
+                push = T(c["ki"] * xi)
+                if (v > u and push > 0) or (v < u and push < 0):
+                    ve, ue, e0 = v, u, xi
+                    xi = T(0)
+                    iv = self.opi.out(xi)
+                    Ia = T(c["ki"] * iv)
+                    v = T(T(T(P + Ia) + D) + bias)
+                    u = self._limit(v)
+                    if (ve > ue and v < ue) or (ve < ue and v > ue):
+                        f = T(T(ue - v) / T(ve - v))
+                        if f > 0 and f < 1:
+                            xi = T(e0 * f)
+                            iv = self.opi.out(xi)
+                            Ia = T(c["ki"] * iv)
+                            v = T(T(T(P + Ia) + D) + bias)
+                            u = self._limit(v)
+        if self.opd:
+            self.opd.out(ed, True)
+        if self.opi:
+            self.opi.out(xi, True)
+        self.dfilt, self.bias, self.u_prev, self.have_prev = D, bias, u, True
+        return u
+
+
+def _ctl_inputs(k, n, seed, kind):
+    """Setpoint and measurement records for the measurement and the test
+    vector. kind 'loop': the library's controller holding a first-order
+    plant y' = (u - y)/tau, tau = 20 steps, through setpoint steps to
+    random levels across the output range (the limits and the rate limit
+    are reached in the transients), plus measurement noise; kind 'noise':
+    random setpoint levels and a noisy measurement, open loop."""
+    from .control import Controller
+    rng = np.random.default_rng(seed)
+    lo, hi = k["lo"], k["hi"]
+    if np.isfinite(lo) and np.isfinite(hi):
+        mid, half = (lo + hi) / 2, (hi - lo) / 2
+    elif np.isfinite(hi):
+        mid, half = hi - 1.0, 1.0
+    elif np.isfinite(lo):
+        mid, half = lo + 1.0, 1.0
+    else:
+        mid, half = 0.0, 1.0
+    seg = 150
+    levels = mid + half * rng.uniform(-1.1, 1.1, size=n // seg + 1)
+    r = np.repeat(levels, seg)[:n]
+    noise = 0.01 * half * rng.standard_normal(n)
+    if kind == "noise":
+        return r, r + 0.3 * half * rng.standard_normal(n)
+    ctl = Controller(**k["params"])
+    y = np.empty(n)
+    yv = mid
+    a = 1.0 / 20
+    for i in range(n):
+        y[i] = yv + noise[i]
+        u = ctl.update(r[i], y[i])
+        yv = yv + a * (u - yv)
+    return r, y
+
+
+def _ctl_library(params, r, y):
+    """The library's outputs and each run's action scale max_n (|P| + |I| +
+    |D| + |bias|)."""
+    from .control import Controller
+    ctl = Controller(**params)
+    u = np.empty(len(r))
+    scale = 0.0
+    for i in range(len(r)):
+        u[i] = ctl.update(r[i], y[i])
+        t = ctl.terms
+        scale = max(scale, abs(t["proportional"]) + abs(t["integral"])
+                    + abs(t["derivative"]) + abs(t["bias"]))
+    return u, scale
+
+
+def export_controller_c(controller, precision="double", prefix="fcpid", test_length=600,
+                        seed=0):
+    """Export a controller as one self-contained C99 source and header.
+
+    The generated update is the library's controller (the law, setpoint
+    weights, derivative filter, output limits, rate limit, conditional
+    integration against windup, manual mode with bumpless return) with its
+    integral and derivative as compressed operators (the code of
+    :func:`export_c`): coefficients as constants, the state a struct the
+    caller owns, no allocation, no I/O, no library calls (+ - * / and
+    comparisons).
+
+    Parameters
+    ----------
+    controller : pyfracconv.Controller or dict
+        The controller whose parameters are exported (its ``params``; the
+        generated code starts from rest, whatever samples the object has
+        seen), or the keyword arguments of one. Served: compressed memory
+        (``memory='exact'`` is refused: the exact history grows without
+        bound), every integral and derivative rule and order the
+        compressed controller takes except the trapezoid rule at
+        integral_order >= 1 (use ``integral_rule='rectangle'``); every
+        other option.
+    precision : {'double', 'single'}
+        The floating type of the generated code. The error against the
+        library's controller is measured here (the update emulated in
+        NumPy arithmetic of that type, on a closed loop and on noisy
+        open-loop records) and written into the header with a stated
+        bound.
+    prefix : str
+        C identifier prefix of every generated name and of the file names.
+    test_length : int
+        Samples in the generated test vector (setpoints, measurements, the
+        library's outputs).
+    seed : int
+        Seed of the test vector's records.
+
+    Returns
+    -------
+    ExportedController
+
+    SAFETY: a controller moves real machinery. Validate the exported code in
+    simulation and on the plant; keep actuator and rate limits in the
+    hardware too; keep an independent safe stop that does not depend on
+    this code; follow local codes, standards and licensed engineering
+    practice.
+    """
+    p = _ctl_params(controller)
+    if p["memory"] != "compressed":
+        raise ArgumentError(
+            f"memory={show(p['memory'])}: export_controller_c exports compressed memory "
+            "only (an exact history grows without bound); use memory='compressed'")
+    if precision not in ("double", "single"):
+        raise ArgumentError(f"precision={show(precision)}: must be 'double' or 'single'")
+    if not (isinstance(prefix, str) and prefix.isidentifier() and prefix.isascii()):
+        raise ArgumentError(f"prefix={show(prefix)}: must be a C identifier")
+    if not (isinstance(test_length, int) and not isinstance(test_length, bool)
+            and 1 <= test_length <= 100000):
+        raise ArgumentError(f"test_length={show(test_length)}: must be an int in [1, 100000]")
+    if p["ki"] != 0 and p["integral_rule"] == "trapezoid" and p["integral_order"] >= 1.0:
+        raise ArgumentError(
+            f"integral_rule='trapezoid', integral_order={show(p['integral_order'])}: "
+            "export_controller_c serves the trapezoid rule for integral_order < 1 only "
+            "(its compressed stream reads starting weights at run time); use "
+            "integral_rule='rectangle'")
+    single = precision == "single"
+    lo, hi = p["output_limits"]
+    k = dict(kp=p["kp"], ki=p["ki"], kd=p["kd"], b=p["setpoint_weight"],
+             c=p["derivative_weight"], step=p["step"], tf=p["derivative_filter"],
+             rate=p["rate_limit"], lo=lo, hi=hi, aw=p["anti_windup"], params=p)
+    if single:
+        for name, v in (("kp", p["kp"]), ("ki", p["ki"]), ("kd", p["kd"]),
+                        ("setpoint_weight", p["setpoint_weight"]),
+                        ("derivative_weight", p["derivative_weight"]), ("step", p["step"]),
+                        ("derivative_filter", p["derivative_filter"]),
+                        ("rate_limit", p["rate_limit"]), ("output_limits[0]", lo),
+                        ("output_limits[1]", hi)):
+            if np.isfinite(v) and (abs(v) > 1e37 or (v != 0 and abs(v) < 1e-37)):
+                raise ArgumentError(f"{name}={show(v)}: outside the single-precision "
+                                    "range; use precision='double'")
+    ops = {}
+    if p["ki"] != 0:
+        ops["i"] = _op_coeffs(p["integral_rule"], p["integral_order"], p["step"], p["tol"],
+                              p["horizon"])
+    if p["kd"] != 0:
+        ops["d"] = _op_coeffs(p["derivative_rule"], p["derivative_order"], p["step"], p["tol"],
+                              p["horizon"])
+    if single:
+        for co in ops.values():
+            for key in ("qp", "betap", "injp", "cb", "ctab"):
+                v = co[key]
+                f = v.astype(np.float32)
+                if np.any(~np.isfinite(f)) or np.any((f == 0) & (v != 0)):
+                    raise ArgumentError(
+                        f"step={show(p['step'])}: a coefficient of the controller's "
+                        "operators leaves the single-precision range; use "
+                        "precision='double' or a step nearer 1")
+    last = int(np.floor(p["horizon"]))
+    T = np.float32 if single else np.float64
+
+    def rnd(x):
+        return x.astype(np.float32).astype(np.float64) if single else x
+
+    # measurement: the update emulated in T against the library
+    nm = min(_CTL_MEASURE_LEN, last + 1)
+    worst = 0.0
+    runs = 0
+    for kind in ("loop", "noise"):
+        r, y = _ctl_inputs(k, nm, _CTL_SEED, kind)
+        r, y = rnd(r), rnd(y)
+        ref, scale = _ctl_library(p, r, y)
+        for fused in ((False, True) if single else (False,)):
+            sim = _CtlSim(k, ops, T, fused)
+            with np.errstate(all="ignore"):
+                got = np.array([float(sim.update(a, b)) for a, b in zip(r, y)])
+            err = float(np.max(np.abs(got - ref)))
+            worst = max(worst, err / scale if scale > 0 else (np.inf if err else 0.0))
+            runs += 1
+    measured = worst
+    floor_ = 16 * 2.0 ** -24 if single else 64 * 2.0 ** -52
+    stated = max(2.0 * measured, floor_)
+    # the test vector: a closed loop of another seed
+    nt = min(test_length, last + 1)
+    rt, yt = _ctl_inputs(k, nt, seed, "loop")
+    rt, yt = rnd(rt), rnd(yt)
+    ut, st = _ctl_library(p, rt, yt)
+    texts = _ctl_generate(prefix, p, k, ops, single, last, nm, measured, stated, rt, yt, ut, st)
+    info = dict(params=p, precision=precision,
+                terms={n: ops[n]["L"] for n in ops}, measured=measured, stated=stated)
+    return ExportedController(prefix, *texts, info)
+
+
+def _op_static(P, N, co, single):
+    """The C text of one operator for the controller: its state type
+    (header) and, in the source, its constants and
+    static R N_out(N_state *st, R x, int commit)."""
+    R = P + "_real"
+    L, Lp = co["L"], co["Lp"]
+    rule = co["rule"]
+    trap, l1, cum = rule == lib.FC_RULE_TRAPEZOID, rule == lib.FC_RULE_L1, co["cum"]
+    z = "0.0f" if single else "0.0"
+    TN = "1.17549435082228751e-38f" if single else "2.2250738585072014e-308"
+    F = P.upper() + "_FMA"
+    stype = f"""\
+typedef struct {{
+    {R} ring[2 * {BAND}];
+    {R} S[{max(Lp, 1)}], Sc[{max(Lp, 1)}];
+    {R} xprev, x0;
+    unsigned long long n;
+}} {N}_state;
+"""
+    consts = []
+    if L:
+        consts.append(_array(f"{N}_q", R, co["qp"], single))
+        consts.append(_array(f"{N}_beta", R, co["betap"], single))
+        if trap:
+            consts.append(_array(f"{N}_inj", R, co["injp"], single))
+    consts.append(_array(f"{N}_cb", R, co["cb"], single))
+    consts.append(f"static const {R} {N}_c0 = {_lit(co['c0'], single)};\n")
+    if trap:
+        consts.append(_array(f"{N}_ctab", R, co["ctab"], single))
+    if l1:
+        u_code = f"u = n == 0 ? {z} : x - st->xprev;"
+    elif cum:
+        u_code = (
+            "{\n"
+            f"        {R} hs = st->xprev, ls = st->x0, s = hs + x, z = s - hs;\n"
+            f"        {R} e = (hs - (s - z)) + (x - z), t = ls + e, H = s + t;\n"
+            "        z = H - s;\n"
+            "        Xlo = (s - (H - z)) + (t - z);\n"
+            "        Xhi = H;\n"
+            "        u = Xhi;\n"
+            "    }")
+    else:
+        u_code = "u = x;"
+    if L:
+        dsrc = f"(inject ? {N}_inj[l + k] * d : d)" if trap else "d"
+        terms_code = f"""\
+    {{
+        {R} acc[8] = {{{", ".join([z] * 8)}}};
+        for (l = 0; l < {Lp}; l += 8) {{
+            for (k = 0; k < 8; k++) {{
+                {R} qq = {N}_q[l + k], s0 = st->S[l + k], c0 = st->Sc[l + k];
+                {R} t = {F}(-qq, s0, {dsrc});
+                {R} t3 = t + c0;
+                {R} s = s0 + t3;
+                {R} zz = s - s0;
+                {R} e = (s0 - (s - zz)) + (t3 - zz);
+                /* below the smallest normal number: zero, as the library
+                   does, so the work per sample stays the same (subnormal
+                   arithmetic is slow or trapped on many processors) */
+                if (s < {TN} && s > -{TN}) s = {z};
+                if (e < {TN} && e > -{TN}) e = {z};
+                acc[k] = {F}({N}_beta[l + k], s, acc[k]);
+                nS[l + k] = s;
+                nSc[l + k] = e;
+            }}
+        }}
+        terms = {P}_reduce8(acc);
+    }}
+"""
+        commit_terms = f"""\
+        for (l = 0; l < {Lp}; l++) {{
+            st->S[l] = nS[l];
+            st->Sc[l] = nSc[l];
+        }}
+"""
+        decl_terms = f"    {R} nS[{Lp}], nSc[{Lp}];\n    unsigned l, k;\n"
+    else:
+        terms_code = commit_terms = ""
+        decl_terms = "    unsigned k;\n"
+    corr_code = f"corr = n < {BAND} ? {N}_ctab[n] : {z};" if trap else f"corr = {z};"
+    inject_decl = f"    const int inject = n == {BAND};\n" if trap else ""
+    if cum:
+        commit_x = "        st->xprev = Xhi;\n        st->x0 = Xlo;\n"
+    else:
+        commit_x = "        st->xprev = x;\n        if (n == 0) st->x0 = x;\n"
+    func = f"""\
+{"".join(consts)}
+/* The operator's next output for sample x; commit = 0 changes nothing
+   (the library's preview), commit = 1 pushes x. */
+static {R} {N}_out({N}_state *st, {R} x, int commit)
+{{
+    const unsigned long long n = st->n;
+    const unsigned pos = (unsigned)(n % {BAND}u);
+{inject_decl}{decl_terms}    {R} u, d, terms = {z}, band, x0, corr, yc;
+    {R} Xhi = {z}, Xlo = {z};
+    {R} acc16[16], v[8];
+    const {R} *w;
+    (void)Xhi;
+    (void)Xlo;
+    {u_code}
+    d = st->ring[pos];
+{terms_code}    w = st->ring + pos + 1;
+    for (k = 0; k < 16; k++) acc16[k] = {z};
+    for (k = 0; k < {BAND}; k += 16) {{
+        unsigned j;
+        for (j = 0; j < 16; j++) acc16[j] = {F}({N}_cb[k + j], w[k + j], acc16[j]);
+    }}
+    for (k = 0; k < 8; k++) v[k] = acc16[k] + acc16[k + 8];
+    band = {P}_reduce8(v);
+    x0 = n == 0 ? x : st->x0;
+    {corr_code}
+    yc = ((terms + band) + {N}_c0 * u) + corr * x0;
+    if (commit) {{
+{commit_terms}        st->ring[pos] = u;
+        st->ring[pos + {BAND}] = u;
+{commit_x}        st->n = n + 1;
+    }}
+    return yc;
+}}
+
+static void {N}_init({N}_state *st)
+{{
+    unsigned i;
+    for (i = 0; i < 2 * {BAND}; i++) st->ring[i] = {z};
+    for (i = 0; i < {max(Lp, 1)}; i++) {{
+        st->S[i] = {z};
+        st->Sc[i] = {z};
+    }}
+    st->xprev = {z};
+    st->x0 = {z};
+    st->n = 0;
+}}
+"""
+    return stype, func
+
+
+_OP_DESC = {"rectangle": "Riemann-Liouville integral, product rectangle rule",
+            "trapezoid": "Riemann-Liouville integral, product trapezoidal rule",
+            "grunwald": "Riemann-Liouville derivative, Grunwald-Letnikov",
+            "l1": "Caputo derivative, L1 scheme"}
+
+
+def _ctl_generate(P, p, k, ops, single, last, nm, measured, stated, rt, yt, ut, st):
+    U = P.upper()
+    R = "float" if single else "double"
+    Rr = P + "_real"
+    z = "0.0f" if single else "0.0"
+
+    def lit(v):
+        return _lit(v, single)
+
+    lo, hi = k["lo"], k["hi"]
+    has_lo, has_hi = bool(np.isfinite(lo)), bool(np.isfinite(hi))
+    has_rate = bool(np.isfinite(k["rate"]))
+    lines = [f" *   kp {p['kp']!r}, ki {p['ki']!r}, kd {p['kd']!r}, step {p['step']!r}",
+             f" *   setpoint weights b {p['setpoint_weight']!r} (proportional), "
+             f"c {p['derivative_weight']!r} (derivative)",
+             f" *   output limits [{lo!r}, {hi!r}], rate limit {p['rate_limit']!r} per unit time",
+             f" *   derivative filter time {p['derivative_filter']!r}, conditional integration "
+             f"{'on' if k['aw'] else 'off'}",
+             f" *   compressed memory: tol {p['tol']!r}, horizon {p['horizon']!r} samples"]
+    if "i" in ops:
+        lines.append(f" *   integral: {_OP_DESC[p['integral_rule']]}, order "
+                     f"{p['integral_order']!r} ({ops['i']['L']} exponential terms)")
+    else:
+        lines.append(" *   integral: none (ki = 0)")
+    if "d" in ops:
+        lines.append(f" *   derivative: {_OP_DESC[p['derivative_rule']]}, order "
+                     f"{p['derivative_order']!r} ({ops['d']['L']} exponential terms)")
+    else:
+        lines.append(" *   derivative: none (kd = 0)")
+    settings = "\n".join(lines)
+    if single:
+        prec = (" * PRECISION: single (float): every constant and operation.\n")
+        fl = "16 * 2^-24"
+    else:
+        prec = (" * PRECISION: double. Where the compiler defines __FP_FAST_FMA (a\n"
+                " * hardware fused multiply-add: -mfma on x86-64, AArch64 by default)\n"
+                " * the operators' products use __builtin_fma, as the library's fma()\n"
+                " * calls, and the outputs equal the library's controller bit for bit;\n"
+                " * elsewhere each fused product is a multiply and an add. Compile in an\n"
+                " * ISO mode (-std=c99) so that the compiler does not contract on its own.\n")
+        fl = "64 * 2^-52"
+    kinds = ("unfused and fused (fma) products" if single else "multiply-add products")
+    err = (f" * ERROR. Measured at export: this update emulated in NumPy {R}\n"
+           f" * arithmetic (same operations in the same order; {kinds}) against the\n"
+           f" * library's double-precision controller on {nm} samples each of two\n"
+           f" * records (seed {_CTL_SEED}): the library's controller holding a first-order\n"
+           f" * plant (time constant 20 steps) through setpoint steps to random levels\n"
+           f" * across the output range, and noisy open-loop records. Error measure:\n"
+           f" * max_n |u_n - u_lib,n| divided by the run's action scale\n"
+           f" * max_n (|P_n| + |I_n| + |D_n| + |bias_n|) of the library's terms.\n"
+           f" * Largest measured: {measured:.3e}. Stated bound (twice that, at least\n"
+           f" * {fl}): {stated:.3e} of the action scale. The inputs were numbers of\n"
+           f" * the generated type (what {P}_update receives). Records much longer\n"
+           f" * than {nm} samples or of a very different shape were not measured:\n"
+           f" * check them on the target (the test vector is one such check).\n")
+    types = []
+    fields = []
+    funcs = []
+    for key, field in (("i", "integral"), ("d", "derivative")):
+        if key in ops:
+            stype, func = _op_static(P, f"{P}_{key}op", ops[key], single)
+            types.append(stype)
+            fields.append(f"    {P}_{key}op_state {field};")
+            funcs.append(func)
+    fma_macro = "__builtin_fmaf" if single else "__builtin_fma"
+    fast = "__FP_FAST_FMAF" if single else "__FP_FAST_FMA"
+    in_max = "1e30f" if single else "1e280"
+    header = f"""\
+/*
+ * {P}.h -- generated by pyfracconv.export_controller_c: a fractional PID
+ * controller (Podlubny, IEEE Trans. Automatic Control 44, 1999) for one
+ * loop, with the library's setpoint weighting, derivative filter, output
+ * and rate limits, conditional integration against windup and bumpless
+ * manual/automatic transfer (Astrom and Hagglund, Advanced PID Control,
+ * ISA 2006); no allocation, no I/O, no library calls.
+ *
+ *   u = Kp (b r - y) + Ki I^lambda (r - y) + D_f + bias,
+ *   D_f[n] = (Tf D_f[n-1] + h Kd D^mu (c r - y)[n]) / (Tf + h)  (Tf = 0: none)
+ *
+ * Settings:
+{settings}
+ *
+ * {P}_update(&st, r, y, &u): setpoint r, measurement y, output u. Returns
+ * 0; 2 (nothing changed) for a NaN or infinite r or y or one beyond
+ * +-{U}_INPUT_MAX; 3 (nothing changed) when a term of the law would not be
+ * finite. Past the horizon ({last} samples) the controller keeps running,
+ * as the library's does (stopping a controller mid-run is the greater
+ * hazard), and {P}_status reports {U}_PAST_HORIZON: the compressed
+ * memory's tolerance is no longer promised.
+ * {P}_set_manual(&st, u): manual mode with output u (clamped to the
+ * limits); the operators keep receiving the signals (the integral 0) and
+ * the bias tracks the output, so {P}_set_auto returns without a jump.
+ * {P}_init(&st): rest, automatic mode. The state is a plain struct: copy it
+ * to save and restore. One state per loop.
+ *
+{prec} *
+{err} *
+{_CTL_CAUTION.replace("P_init", P + "_init")}
+ */
+#ifndef {U}_H
+#define {U}_H
+
+#define {U}_LAST_INDEX {last}ULL
+#define {U}_INPUT_MAX {in_max}
+/* bits of {P}_status (the library's FC_CTRL_* values) */
+#define {U}_LIMITED 1
+#define {U}_PAST_HORIZON 2
+#define {U}_MANUAL 4
+
+typedef {R} {Rr};
+
+{"".join(types)}
+typedef struct {{
+{chr(10).join(fields) if fields else "    int no_operators;"}
+    {Rr} u_prev, dfilt, bias, u_manual;
+    {Rr} terms[6];        /* P, I, filtered D, bias, unlimited sum, output */
+    unsigned long long count;
+    int have_prev, manual, limited;
+}} {P}_state;
+
+void {P}_init({P}_state *st);
+int {P}_update({P}_state *st, {Rr} r, {Rr} y, {Rr} *u);
+/* 0, or 2 (u not finite; nothing changed) */
+int {P}_set_manual({P}_state *st, {Rr} u);
+void {P}_set_auto({P}_state *st);
+/* {U}_LIMITED | {U}_PAST_HORIZON | {U}_MANUAL */
+int {P}_status(const {P}_state *st);
+
+#endif /* {U}_H */
+"""
+
+    def clamp_out(v):
+        code = v
+        if has_hi:
+            code = f"({v} > {U}_OUT_MAX ? {U}_OUT_MAX : {v})"
+        if has_lo:
+            code = f"({v} < {U}_OUT_MIN ? {U}_OUT_MIN : {code})"
+        return code
+
+    consts = [f"#define {U}_KP {lit(p['kp'])}", f"#define {U}_KI {lit(p['ki'])}",
+              f"#define {U}_KD {lit(p['kd'])}", f"#define {U}_B {lit(p['setpoint_weight'])}",
+              f"#define {U}_C {lit(p['derivative_weight'])}",
+              f"#define {U}_STEP {lit(p['step'])}"]
+    if has_lo:
+        consts.append(f"#define {U}_OUT_MIN {lit(lo)}")
+    if has_hi:
+        consts.append(f"#define {U}_OUT_MAX {lit(hi)}")
+    if has_rate:
+        consts.append(f"#define {U}_RATE {lit(p['rate_limit'])}")
+    if p["derivative_filter"] > 0:
+        consts.append(f"#define {U}_TF {lit(p['derivative_filter'])}")
+    rate_code = ""
+    if has_rate:
+        rate_code = f"""\
+    if (st->have_prev) {{
+        const {Rr} d = {U}_RATE * {U}_STEP, lo = st->u_prev - d, hi = st->u_prev + d;
+        u = u < lo ? lo : (u > hi ? hi : u);
+        u = {clamp_out("u")};
+    }}
+"""
+    hi_ = "i" in ops
+    hd_ = "d" in ops
+    filt = (f"    D = ({U}_TF * st->dfilt + {U}_STEP * D) / ({U}_TF + {U}_STEP);\n"
+            if p["derivative_filter"] > 0 else "")
+    aw = ""
+    if hi_ and k["aw"]:
+        aw = f"""\
+        if (u != v && xi != {z}) {{
+            const {Rr} push = {U}_KI * xi;
+            if ((v > u && push > {z}) || (v < u && push < {z})) {{
+                /* conditional integration: only the part of e that takes
+                   the unlimited output to the limit (0 if it is there
+                   without e); the integral is affine in the new sample */
+                const {Rr} ve = v, ue = u, e0 = xi;
+                xi = {z};
+                iv = {P}_iop_out(&st->integral, xi, 0);
+                I = {U}_KI * iv;
+                v = P + I + D + bias;
+                u = {P}_limit(st, v);
+                if ((ve > ue && v < ue) || (ve < ue && v > ue)) {{
+                    const {Rr} f = (ue - v) / (ve - v);
+                    if (f > {z} && f < 1) {{
+                        xi = e0 * f;
+                        iv = {P}_iop_out(&st->integral, xi, 0);
+                        I = {U}_KI * iv;
+                        v = P + I + D + bias;
+                        u = {P}_limit(st, v);
+                    }}
+                }}
+            }}
+        }}
+"""
+    ph = []
+    if hi_:
+        ph.append(f"st->integral.n > {U}_LAST_INDEX + 1")
+    if hd_:
+        ph.append(f"st->derivative.n > {U}_LAST_INDEX + 1")
+    past = " || ".join(ph) if ph else "0"
+    init_ops = "".join(
+        f"    {P}_{key}op_init(&st->{field});\n"
+        for key, field in (("i", "integral"), ("d", "derivative")) if key in ops)
+    fin = "(X) - (X) == " + z
+    reduce8 = f"""\
+static {Rr} {P}_reduce8(const {Rr} a[8])
+{{
+    {Rr} v0 = a[0] + a[4], v1 = a[1] + a[5];
+    {Rr} v2 = a[2] + a[6], v3 = a[3] + a[7];
+    return (v0 + v1) + (v2 + v3);
+}}
+
+""" if ops else ""
+    source = f"""\
+/*
+ * {P}.c -- generated by pyfracconv.export_controller_c; see {P}.h
+ * (settings, accuracy, cautions). The arithmetic is the library's
+ * controller (csrc/controller.c) and compressed engine
+ * (csrc/stream_compressed.c) for one loop: the products of {U}_FMA are
+ * the library's fma() calls, every other operation is the library's in
+ * the library's order.
+ */
+#include "{P}.h"
+
+#ifndef {U}_USE_FMA
+#if defined({fast}) && (defined(__GNUC__) || defined(__clang__))
+#define {U}_USE_FMA 1
+#else
+#define {U}_USE_FMA 0
+#endif
+#endif
+#if {U}_USE_FMA
+#define {U}_FMA(a, b, c) {fma_macro}((a), (b), (c))
+#else
+#define {U}_FMA(a, b, c) ((a) * (b) + (c))
+#endif
+#define {U}_FINITE(X) ({fin})
+
+{chr(10).join(consts)}
+
+{reduce8}{"".join(funcs)}
+/* The output limits and the rate limit applied to v. */
+static {Rr} {P}_limit(const {P}_state *st, {Rr} v)
+{{
+    {Rr} u = {clamp_out("v")};
+{rate_code}    (void)st;
+    return u;
+}}
+
+void {P}_init({P}_state *st)
+{{
+    unsigned i;
+{init_ops}    st->u_prev = {z};
+    st->dfilt = {z};
+    st->bias = {z};
+    st->u_manual = {z};
+    for (i = 0; i < 6; i++) st->terms[i] = {z};
+    st->count = 0;
+    st->have_prev = 0;
+    st->manual = 0;
+    st->limited = 0;
+}}
+
+int {P}_update({P}_state *st, {Rr} r, {Rr} y, {Rr} *uout)
+{{
+    {Rr} e, ep, ed, P, D, I, v, u, bias, xi;
+    {Rr} draw = {z}, iv = {z};
+    int limited = 0;
+    if (!{U}_FINITE(r) || !{U}_FINITE(y)) return 2;
+    if (r > {U}_INPUT_MAX || r < -{U}_INPUT_MAX || y > {U}_INPUT_MAX || y < -{U}_INPUT_MAX)
+        return 2;
+    e = r - y;
+    ep = {U}_B * r - y;
+    ed = {U}_C * r - y;
+    if (!{U}_FINITE(e) || !{U}_FINITE(ep) || !{U}_FINITE(ed)) return 3;
+    P = {U}_KP * ep;
+    xi = st->manual ? {z} : e;
+    (void)xi;
+{f"    draw = {P}_dop_out(&st->derivative, ed, 0);" + chr(10) if hd_ else ""}\
+{f"    iv = {P}_iop_out(&st->integral, xi, 0);" + chr(10) if hi_ else ""}\
+    D = {U}_KD * draw;
+{filt}    I = {U}_KI * iv;
+    bias = st->bias;
+    if (st->manual) {{
+        u = {clamp_out("st->u_manual")};
+        bias = u - (P + I + D);
+        v = u;
+    }} else {{
+        v = P + I + D + bias;
+        u = {P}_limit(st, v);
+{aw}        limited = u != v;
+    }}
+    if (!{U}_FINITE(P) || !{U}_FINITE(I) || !{U}_FINITE(D) || !{U}_FINITE(v)
+        || !{U}_FINITE(bias) || !{U}_FINITE(u))
+        return 3;
+{f"    (void){P}_dop_out(&st->derivative, ed, 1);" + chr(10) if hd_ else ""}\
+{f"    (void){P}_iop_out(&st->integral, xi, 1);" + chr(10) if hi_ else ""}\
+    st->dfilt = D;
+    st->bias = bias;
+    st->u_prev = u;
+    st->have_prev = 1;
+    st->count++;
+    st->limited = limited;
+    st->terms[0] = P;
+    st->terms[1] = I;
+    st->terms[2] = D;
+    st->terms[3] = bias;
+    st->terms[4] = v;
+    st->terms[5] = u;
+    *uout = u;
+    return 0;
+}}
+
+int {P}_set_manual({P}_state *st, {Rr} u)
+{{
+    if (!{U}_FINITE(u)) return 2;
+    st->manual = 1;
+    st->u_manual = u;
+    return 0;
+}}
+
+void {P}_set_auto({P}_state *st)
+{{
+    st->manual = 0;
+}}
+
+int {P}_status(const {P}_state *st)
+{{
+    int s = 0;
+    if (st->limited) s |= {U}_LIMITED;
+    if ({past}) s |= {U}_PAST_HORIZON;
+    if (st->manual) s |= {U}_MANUAL;
+    return s;
+}}
+"""
+    n = len(rt)
+    tv = f"""\
+/*
+ * {P}_testvec.h -- generated by pyfracconv.export_controller_c: a test
+ * vector for {P}.c. {n} samples of a closed loop (the library's controller
+ * holding a first-order plant through setpoint steps; seed of the
+ * records in the export call): setpoints {U}_TV_R, measurements
+ * {U}_TV_Y and the library's double-precision outputs {U}_TV_U, all in
+ * automatic mode from rest. Accept when |u - {U}_TV_U[n]| <= {U}_TV_REL *
+ * {U}_TV_SCALE for every n ({U}_TV_SCALE: the run's action scale
+ * max_n (|P| + |I| + |D| + |bias|); {U}_TV_REL: the stated bound of {P}.h).
+ */
+#ifndef {U}_TESTVEC_H
+#define {U}_TESTVEC_H
+
+#define {U}_TV_N {n}
+#define {U}_TV_REL {float(stated)!r}
+#define {U}_TV_SCALE {float(st)!r}
+
+{_array(f"{P}_tv_r", "double", rt, False)}
+{_array(f"{P}_tv_y", "double", yt, False)}
+{_array(f"{P}_tv_u", "double", ut, False)}
 #endif /* {U}_TESTVEC_H */
 """
     return header, source, tv

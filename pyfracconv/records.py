@@ -10,8 +10,8 @@ Memory (``README.md``, "Records larger than memory", has the measured
 figures):
 
 - ``mode="compressed"`` (the default): bounded, whatever the record's
-  length. The stream holds about 12 KB per column (its sums of
-  exponentials, fixed at creation); three chunk buffers of
+  length. The stream holds 5-7 KB for one column and about 2 KB for each
+  further one (its sums of exponentials, fixed at creation); three chunk buffers of
   ``8 * chunk * columns`` bytes (the input copy, the outputs, the engine's
   block); and at most :data:`MAP_BUDGET` bytes of each mapped file are kept
   resident, since the files are mapped again after every
@@ -113,13 +113,15 @@ def _same_file(a: str, b: str) -> bool:
         return False
 
 
-def _open_input(path: str) -> np.ndarray[Any, Any]:
-    """The input record, memory-mapped read-only, after its checks."""
-    label = f"in_path={show(path)}"
+def open_npy(path: str, label: str,
+             mmap_mode: Optional[Literal["r"]] = "r") -> np.ndarray[Any, Any]:
+    """A ``.npy`` record of signals (1-D, or 2-D with time along axis 0)
+    after its checks, memory-mapped read-only by default; every error
+    names ``label``. The command line reads its ``.npy`` inputs here too."""
     try:
         if os.path.getsize(path) == 0:
             raise ArgumentError(f"{label}: the file is empty")
-        arr = np.load(path, mmap_mode="r", allow_pickle=False)
+        arr = np.load(path, mmap_mode=mmap_mode, allow_pickle=False)
     except ArgumentError:
         raise
     except OSError as exc:
@@ -234,7 +236,7 @@ def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
         ``'compressed'`` (default): bounded memory, outputs within ``tol``
         of the exact ones in the stream's componentwise sense (see
         :class:`pyfracconv.Stream`); orders below 1, or below 2 for the
-        rectangle integral. ``'exact'``: the exact stream, equal to the
+        integral rules (rectangle and trapezoid). ``'exact'``: the exact stream, equal to the
         batch functions to rounding, memory about 70 bytes per sample and
         column (refused before any work when that exceeds this machine's
         memory).
@@ -326,7 +328,7 @@ def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
         raise ArgumentError(f"out_path={show(out)}: is a folder; expected a file name")
     bar_cls = _tqdm() if progress else None
 
-    src = _open_input(inp)
+    src = open_npy(inp, f"in_path={show(inp)}")
     shape = tuple(int(n) for n in src.shape)
     T = shape[0]
     C = shape[1] if len(shape) == 2 else 1

@@ -41,6 +41,15 @@ from ._errors import (
     StateError,
     raise_for_status,
 )
+from ._files import (
+    DEFAULT_MAX_SIZE,
+    check_max_size,
+    check_path,
+    check_write_path,
+    read_file,
+    state_error,
+    write_file,
+)
 from ._fracconv import ffi, lib
 
 __all__ = ["solve", "Stepper", "SolveResult", "SolverError", "RhsError", "NewtonError"]
@@ -377,6 +386,12 @@ class Stepper:
 
     The ``y`` passed to a vector right-hand side is a read-only view of the
     solver's buffer, reused on every call: copy it to keep it.
+
+    Threads: one stepper must not be used by two threads at once; a call
+    that finds it in use raises :class:`BusyError` and changes nothing. It
+    is in use for the whole of :meth:`advance`, its callbacks included (the
+    C library's busy guard, fc_solver_*: FC_ERR_BUSY), so a right-hand side
+    that reads its own stepper's :attr:`t` or :attr:`y` is refused too.
     """
 
     def __init__(self, rhs, y0, order, step, *, dy0=None, t0=0.0,
@@ -408,6 +423,11 @@ class Stepper:
         self._memory = memory
         self._lock = threading.Lock()
         self._set_callbacks(rhs, jacobian)
+        # step()'s buffers and their C views, made once
+        self._t1 = np.empty(1)
+        self._y1 = np.empty((1, m))
+        self._c1 = (ffi.from_buffer("double[]", self._t1),
+                    ffi.from_buffer("double[]", self._y1))
 
     def _set_callbacks(self, rhs, jacobian):
         self._run = _Run(rhs, jacobian, self._m, self._scalar)
@@ -474,13 +494,15 @@ class Stepper:
 
     # -------------------------------------------------------- stepping
 
-    def _advance_into(self, n, tbuf, ybuf, make_partial):
-        """Advance n steps writing into tbuf (n,) and ybuf (n, m); on a
-        failure raise with make_partial(done) as the partial result."""
+    def _advance_into(self, n, tbuf, ybuf, make_partial, cbufs=None):
+        """Advance n steps writing into tbuf (n,) and ybuf (n, m) (cbufs:
+        their C views when the caller holds them already); on a failure
+        raise with make_partial(done) as the partial result."""
         done = ffi.new("size_t *")
         self._run.fail = None
-        st = lib._fc_py_advance(self._s, n, ffi.from_buffer("double[]", tbuf),
-                                   ffi.from_buffer("double[]", ybuf), done)
+        tc, yc = cbufs if cbufs is not None else (
+            ffi.from_buffer("double[]", tbuf), ffi.from_buffer("double[]", ybuf))
+        st = lib._fc_py_advance(self._s, n, tc, yc, done)
         if st == 0:
             return
         k = int(done[0])
@@ -562,6 +584,41 @@ class Stepper:
             self._lock.release()
         return tb, self._shape(yb)
 
+    def step(self):
+        """Advance by one step and return the new state: a float for a
+        scalar problem, else a new array of shape (m,). The same step as
+        ``advance(1)`` (bit for bit), without its per-call allocations:
+        for loops that feed each new state back, such as a simulated
+        plant in a control loop.
+
+        Raises
+        ------
+        RhsError, NewtonError
+            The step failed (``.partial`` is empty; nothing was advanced).
+        HorizonError
+            memory='compressed' and the step would pass the horizon.
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.Stepper(lambda t, y: -y, 1.0, 1.0, 0.01,
+        ...                        method="rectangle")
+        >>> y1 = s.step()      # explicit Euler for order 1: 1 - 0.01
+        >>> round(y1, 12), s.steps
+        (0.99, 1)
+        """
+        if not self._lock.acquire(False):
+            raise BusyError("step: the stepper is being used by another call")
+        try:
+            self._advance_into(1, self._t1, self._y1, self._no_steps, self._c1)
+        finally:
+            self._lock.release()
+        return float(self._y1[0, 0]) if self._scalar else self._y1[0].copy()
+
+    def _no_steps(self, k):
+        return SolveResult(np.empty(0), self._shape(np.empty((0, self._m))),
+                           *self._counts(), self._method, self._memory)
+
     def _shape(self, yb):
         return yb[:, 0] if self._scalar else yb
 
@@ -630,6 +687,46 @@ class Stepper:
         self = cls.__new__(cls)
         self._init(s, m, scalar, method, memory, rhs, jacobian, horizon)
         return self
+
+    def save_file(self, path):
+        """Write :meth:`save` to the file ``path`` atomically (temporary
+        file in the same directory, fsync, rename over ``path``, directory
+        sync; see :meth:`pyfracconv.Stream.save_file`). The callbacks are
+        not saved.
+
+        Raises
+        ------
+        FileError
+            The file could not be written; the old file (if any) and the
+            stepper are unchanged.
+        """
+        p = check_write_path(path)
+        write_file("save_file", p, self.save(), "the stepper")
+
+    @classmethod
+    def load_file(cls, path, rhs, jacobian=None, *, max_size=DEFAULT_MAX_SIZE):
+        """A stepper from a file written by :meth:`save_file` (or by the C
+        library's ``fc_solver_save_file``: it comes back with an explicit
+        component axis), with its callbacks set again. The file is
+        untrusted input: at most ``max_size`` bytes are read and they go
+        through :meth:`load`.
+
+        Raises
+        ------
+        FileError
+            The file could not be read.
+        StateError
+            The file is truncated, corrupted, forged, of another format or
+            longer than max_size.
+        """
+        p = check_path("path", path)
+        data = read_file("load_file", p, check_max_size(max_size))
+        if data[:8] == b"FCSOLVE1":  # written by fc_solver_save_file
+            data = _ENV_MAGIC + bytes([_ENV_ARRAY, 0]) + data
+        try:
+            return cls.load(data, rhs, jacobian)
+        except StateError as exc:
+            raise state_error("load_file", p, exc) from None
 
 
 # ------------------------------------------------------------ solve

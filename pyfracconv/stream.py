@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import math
 import numbers
+import os
 from typing import Any, Callable, Optional, Union
 
 import numpy as np
@@ -50,6 +51,15 @@ from ._errors import (
     raise_for_status,
     status_error,
 )
+from ._files import (
+    DEFAULT_MAX_SIZE,
+    check_max_size,
+    check_path,
+    check_write_path,
+    read_file,
+    state_error,
+    write_file,
+)
 from ._fracconv import ffi, lib
 
 __all__ = ["Stream"]
@@ -79,6 +89,7 @@ _C_MIN_LEN = 8
 
 
 # ------------------------------------------------------------- helpers
+
 
 def _get(fn: Any, s: Any, ctype: str) -> Any:
     p = ffi.new(ctype)
@@ -336,6 +347,9 @@ class Stream:
             )
         mode = int(_get(lib.fc_stream_mode, s, "int *"))
         rule = int(_get(lib.fc_stream_rule, s, "int *"))
+        if int(_get(lib.fc_stream_is_timed, s, "int *")):
+            raise StateError("a stream with a time per sample: load it with "
+                             "TimedStream.load")
         if mode not in _MODE_NAMES or (rule != -1 and rule not in _RULE_NAMES):
             raise StateError(f"unknown mode {mode} or rule {rule}")
         self._C = C
@@ -427,7 +441,7 @@ class Stream:
         ----------
         order : float
             Order a > 0 (at most 10; ``mode="compressed"`` needs a < 1, or
-            a < 2 with ``rule="rectangle"``).
+            a < 2 for the integral rules).
         step : float
             Grid step h > 0.
         rule : {'rectangle', 'trapezoid'}
@@ -1163,6 +1177,91 @@ class Stream:
             return cls._wrap(pp[0], b[6] == _ENV_SCALAR)
         except StateError as exc:
             raise StateError(f"data ({len(b)} bytes): {exc}") from None
+
+    def save_file(self, path: Union[str, bytes, os.PathLike]) -> None:  # type: ignore[type-arg]
+        """Write :meth:`save` to the file ``path``, atomically: a temporary
+        file in the same directory, written in full, flushed to disk
+        (fsync), renamed over ``path``, then the directory synced
+        (``fc_file_write``, csrc/fracconv.h). ``path`` holds the complete
+        old file or the complete new one at every moment, also when the
+        process is killed. A new file has mode 0600 (a replaced one keeps
+        its permission bits). A process killed during
+        the write may leave a ``path.tmp-XXXXXX`` file behind (never under
+        ``path`` itself).
+
+        Parameters
+        ----------
+        path : str, bytes or os.PathLike
+            The checkpoint file (relative paths against the current
+            directory); its directory must exist.
+
+        Raises
+        ------
+        FileError
+            The file could not be written (missing directory, permission,
+            disk full ...): the message names the path and the reason; the
+            old file (if any) and the stream are unchanged.
+        ArgumentError, InputTypeError
+            path is empty, ends in '/', contains NUL or is not a path.
+        BusyError
+            Another thread is using the stream.
+
+        See Also
+        --------
+        load_file, save
+
+        Examples
+        --------
+        >>> import os, tempfile
+        >>> import numpy as np
+        >>> import pyfracconv
+        >>> x = np.cos(0.2 * np.arange(30))        # an invented test signal
+        >>> s = pyfracconv.Stream.integral(0.5, 0.1, mode="compressed", horizon=100)
+        >>> _ = s.push_many(x[:20])
+        >>> path = os.path.join(tempfile.mkdtemp(), "stream.ckpt")
+        >>> s.save_file(path)
+        >>> r = pyfracconv.Stream.load_file(path)
+        >>> bool(np.array_equal(r.push_many(x[20:]), s.push_many(x[20:])))
+        True
+        """
+        p = check_write_path(path)
+        write_file("save_file", p, self.save(), "the stream")
+
+    @classmethod
+    def load_file(cls, path: Union[str, bytes, os.PathLike],  # type: ignore[type-arg]
+                  *, max_size: int = DEFAULT_MAX_SIZE) -> Stream:
+        """A stream from a file written by :meth:`save_file` (or by the C
+        library's ``fc_stream_save_file``: such a stream comes back with an
+        explicit channel count). The file is untrusted input: at most
+        ``max_size`` bytes are read and they go through :meth:`load`.
+
+        Parameters
+        ----------
+        path : str, bytes or os.PathLike
+        max_size : int, optional
+            Longest file accepted, in bytes (default 2**30).
+
+        Raises
+        ------
+        FileError
+            The file could not be read (missing, permission, a directory
+            ...); the message names the path and the reason.
+        StateError
+            The file is truncated, corrupted, of another format or longer
+            than max_size; the message names the path.
+
+        See Also
+        --------
+        save_file, load
+        """
+        p = check_path("path", path)
+        data = read_file("load_file", p, check_max_size(max_size))
+        if data[:8] == b"FCSTREAM":  # written by fc_stream_save_file
+            data = _ENV_MAGIC + bytes([_ENV_ARRAY, 0]) + data
+        try:
+            return cls.load(data)
+        except StateError as exc:
+            raise state_error("load_file", p, exc) from None
 
     @classmethod
     def _unpickle(cls, data: bytes, horizon_policy: str) -> Stream:

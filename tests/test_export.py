@@ -291,3 +291,51 @@ def test_cli_export_help_carries_the_controller_cautions(capsys):
     for phrase in ("validate the complete controller on the plant", "actuator limits and rate limits",
                    "independent safe stop", "local codes", "licensed engineering practice"):
         assert phrase in text, phrase
+
+
+SILENCE = r"""
+#include <stdio.h>
+#include "@.h"
+/* a spike, then zeros: count states that are subnormal after each step */
+int main(void)
+{
+    @_state st;
+    int i, l, bad = 0;
+    @_init(&st);
+    for (i = 0; i < 6000; i++) {
+        @_real y;
+        if (@_step(&st, (@_real)(i == 0 ? 1.0 : 0.0), &y) != 0) return 2;
+        for (l = 0; l < (int)(sizeof st.S / sizeof st.S[0]); l++) {
+            @_real s = st.S[l], e = st.Sc[l];
+            if (s != 0 && s < LIM && s > -LIM) bad++;
+            if (e != 0 && e < LIM && e > -LIM) bad++;
+        }
+        printf("%a\n", (double)y);
+    }
+    printf("%d\n", bad);
+    return 0;
+}
+"""
+
+
+@pytest.mark.parametrize("precision", ["double", "single"])
+def test_exported_states_never_subnormal(precision, tmp_path):
+    """A spike then silence: the one-pole states decay geometrically, and
+    the exported code sets them to zero below the smallest normal number
+    (as the library does, csrc/stream_compressed.c), so no state is ever
+    subnormal; in double precision with FMA the outputs stay the library's
+    bit for bit."""
+    exp = export_c("rectangle", 0.5, STEP, tol=TOL, horizon=HORIZON, precision=precision)
+    extra = ["-mfma"] if precision == "double" and _cpu_has_fma(tmp_path) else []
+    # the smallest normal numbers (IEEE 754 binary64 and binary32)
+    lim = "2.2250738585072014e-308" if precision == "double" else "1.17549435082228751e-38f"
+    lines = _run(_build(exp, tmp_path, f"#define LIM {lim}\n" + SILENCE, extra), [])
+    assert int(lines[-1]) == 0
+    got = np.array([float.fromhex(v) for v in lines[:-1]])
+    x = np.zeros(6000)
+    x[0] = 1.0
+    ref = _library("rectangle", 0.5, x)
+    if extra:
+        assert np.array_equal(got.view(np.int64), ref.view(np.int64))
+    else:
+        assert np.all(np.abs(got - ref) <= 1e-5 * np.abs(ref) + 1e-30)

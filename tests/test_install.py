@@ -8,8 +8,10 @@ the library with `pyfracconv flags`.
 The C program checks the trapezoid rule on f(t) = t against the closed
 form I^0.5 t = t^1.5 / Gamma(2.5) (Podlubny 1999, docs/references.md; the
 rule is exact on linear f, common practice); the C++ and Fortran programs
-(docs/compiled.md) check the rectangle rule on constants against
-h^a n^a / Gamma(a+1) and a refused order. Here the printed values are
+(README) check the rectangle rule on constants against h^a n^a /
+Gamma(a+1), the solver against the closed forms exp(-t) (C++) and
+3/2 exp(-t) + (sin t - cos t)/2 (Fortran: D y = -y + sin t), and a
+refused order. Here the printed values are
 compared with the closed form again, independently of the programs' own
 exit status."""
 
@@ -48,6 +50,7 @@ def work(tmp_path):
     (tmp_path / "prog.c").write_text(readme_c.c_program())
     (tmp_path / "quick.cpp").write_text(readme_c.doc_program("cpp"))
     (tmp_path / "quick.f90").write_text(readme_c.doc_program("fortran"))
+    (tmp_path / "ctl_check.c").write_text(readme_c.export_program())
     return tmp_path
 
 
@@ -110,6 +113,16 @@ def test_readme_cpp_and_fortran_against_the_prefix(prefix, work):
     assert all(abs(v - exact) < 1e-13 for v in cpp)
     assert r.stdout.count("refused (status 3)") == 2
     assert "refused: status 3: order must be" in r.stdout
+    # the solver through each wrapper against the closed forms (the
+    # predictor-corrector's error at h = 0.01: 6e-6 and 8e-6, measured)
+    dec = [float(v) for v in re.findall(r"D y = -y at t=1: (\S+)", r.stdout)]
+    assert len(dec) == 2 and all(abs(v - math.exp(-1.0)) < 2e-5 for v in dec)
+    forced = re.search(r"D y = -y \+ sin t at t=1:\s+(\S+)", r.stdout)
+    exact_f = 1.5 * math.exp(-1.0) + (math.sin(1.0) - math.cos(1.0)) / 2
+    assert forced and abs(float(forced.group(1)) - exact_f) < 2e-5
+    # the controller's first output: Kp e = 2 limited to the upper limit 1
+    assert r.stdout.count("controller output 1.000 (limited: yes)") == 2
+    assert "controller output  1.000" in r.stdout
     assert (work / "cmake-build" / "quick").is_file()
 
 
@@ -201,3 +214,21 @@ def test_readme_static_link_on_the_prefix(prefix, work):
     assert abs(_printed_value(r.stdout) - EXACT) < 1e-12 * EXACT
     ldd = subprocess.run(["ldd", str(work / "prog")], capture_output=True, text=True).stdout
     assert "libfracconv" not in ldd
+
+
+def test_readme_exported_single_controller_compiles_pedantic_and_matches(work):
+    # the README's export commands, verbatim: pyfracconv export-controller
+    # writes pid.h, pid.c, pid_testvec.h; the README's ctl_check.c is built
+    # with -std=c99 -Wall -Wextra -Werror -pedantic and checks every output
+    # of the test vector (the library's controller on a closed loop)
+    # against the stated single-precision bound
+    r = readme_c.run(readme_c.sh_blocks()["export"], work,
+                     _user_env(work) | {"PATH": readme_c.wheel_env()["PATH"]})
+    assert r.returncode == 0, r.stdout + r.stderr
+    m = re.search(r"(\d+) of (\d+) outputs outside the stated bound (\S+); worst (\S+) of",
+                  r.stdout)
+    assert m and m.group(1) == "0" and int(m.group(2)) > 100, r.stdout
+    stated, worst = float(m.group(3)), float(m.group(4))
+    assert worst <= stated
+    assert "#define PID_TV_REL" in (work / "pid_testvec.h").read_text()
+    assert "independent safe stop" in (work / "pid.h").read_text()

@@ -230,7 +230,8 @@ def _readme_exception_clauses():
 def test_readme_states_the_real_base_classes():
     # the README's list, checked against the classes themselves
     builtin = {"ValueError": ValueError, "TypeError": TypeError,
-               "MemoryError": MemoryError, "RuntimeError": RuntimeError}
+               "MemoryError": MemoryError, "RuntimeError": RuntimeError,
+               "OSError": OSError}
     listed = set()
     for names, base in _readme_exception_clauses():
         assert base in builtin, base

@@ -57,6 +57,7 @@ EXPECTED_BASE = {
     "FC_ERR_BUSY": RuntimeError,        # used by another call
     "FC_ERR_HORIZON": RuntimeError,     # a push past the horizon
     "FC_ERR_FORMAT": ValueError,        # saved state corrupted
+    "FC_ERR_IO": OSError,               # a file could not be read or written
     "FC_ERR_NONFINITE": ValueError,     # a sample is NaN or infinite
     "FC_ERR_RANGE": ValueError,         # beyond the double range
     "FC_ERR_ORDER": ValueError,

@@ -23,6 +23,10 @@
   and csrc/stream_compressed.c each define their operations table and
   their own state struct and leave the NULL and finiteness checks to the
   facade; csrc/soe_build.c alone constructs the sums of exponentials.
+  The facade does not branch on the mode (engines in a table indexed by
+  mode, each mode's order range and limits in its operations), and the
+  engines read the rule table's list of correction columns (no x_0-only
+  path; tests/test_rule_columns.py runs a list of two).
 Checks of the project against its own header: no outside source.
 """
 
@@ -284,7 +288,8 @@ def test_python_checks_accept_exactly_the_table_ranges(mode):
 # ------------------------------------------------------------ stream engines
 
 CSRC = os.path.join(ROOT, "csrc")
-ENGINE_FILES = ("stream.c", "stream_exact.c", "stream_compressed.c", "soe_build.c")
+ENGINE_FILES = ("stream.c", "stream_exact.c", "stream_compressed.c", "stream_timed.c",
+                "soe_build.c")
 
 
 def c_source(name):
@@ -309,7 +314,7 @@ def test_stream_facade_holds_no_engine():
     code = c_code("stream.c")
     # no FFTs, kernels, recursions or sums of exponentials
     for name in ("fc__fft_", "fc__spec_dot", "fc__lag_kernel", "fc__x0_correction",
-                 "fc__soe_build", "fc__segment_start", "fma(", "immintrin", "level_frame",
+                 "fc__correction", "fc__soe_build", "fc__segment_start", "fma(", "immintrin", "level_frame",
                  "cs_step", "leaf_dot"):
         assert name not in code, name
     # the stream object keeps the common fields, the operations and an
@@ -329,9 +334,38 @@ def test_stream_facade_holds_no_engine():
         assert f"ops->{op}(" in code, op
 
 
+def test_stream_facade_does_not_branch_on_mode():
+    # a mode is the index of the engine table; its order range and limits
+    # come from the engine's operations (fc__stream_ops), the correction
+    # columns from the rule table: no switch, no comparison with a mode
+    code = c_code("stream.c")
+    assert not re.search(r"\bswitch\b", code)
+    assert not re.search(r"mode\s*[=!]=|[=!]=\s*FC_MODE_", code)
+    assert re.search(r"\[FC_MODE_EXACT\]\s*=\s*&fc__exact_ops", code)
+    assert re.search(r"\[FC_MODE_COMPRESSED\]\s*=\s*&fc__compressed_ops", code)
+    assert "ops->order_range(" in code
+    for name in ("FC__CS_TOL_MIN", "FC__CS_TOL_MAX", "FC__CS_HORIZON_MAX", "->exact",
+                 "->compressed"):
+        assert name not in code, name
+    rules = c_code("rules.c")
+    assert "ops->order_range(" in rules and "FC_MODE_" not in rules
+
+
+def test_engines_read_the_correction_columns_from_the_table():
+    # every engine loops over the rule's list (fc__correction of column k),
+    # none is limited to an x_0 term
+    for name in ("lagsum.c", "stream_exact.c", "stream_compressed.c"):
+        code = c_code(name)
+        assert "fc__correction(" in code or "fc__unit_correction(" in code, name
+        assert "ncorr" in code or "cs_runtime_cols" in code, name
+        for old in ("fc__x0_correction", "fc__unit_x0_correction", "fc__rule_has_x0"):
+            assert old not in code, (name, old)
+
+
 def test_each_engine_has_its_table_state_and_no_repeated_checks():
     for name, table, state in (("stream_exact.c", "fc__exact_ops", "ex_engine"),
-                               ("stream_compressed.c", "fc__compressed_ops", "cs_engine")):
+                               ("stream_compressed.c", "fc__compressed_ops", "cs_engine"),
+                               ("stream_timed.c", "fc__timed_ops", "ts_engine")):
         code = c_code(name)
         assert re.search(rf"^const fc__stream_ops {table} = \{{", code, re.M), name
         # its own state struct, the one the engine pointer stands for
@@ -343,7 +377,9 @@ def test_each_engine_has_its_table_state_and_no_repeated_checks():
         assert "fc__check_finite" not in code, name
         assert "partial_overlap" not in code, name
     facade = c_code("stream.c")
-    assert facade.count("fc__check_finite(x") == 2  # push_block and preview
+    # push_block, preview and push_timed (whose times are checked there too)
+    assert facade.count("fc__check_finite(x") == 3
+    assert facade.count("fc__check_finite(t") == 1
     # the construction lives in soe_build.c only
     soe = c_code("soe_build.c")
     assert re.search(r"^int fc__soe_build\(", soe, re.M)

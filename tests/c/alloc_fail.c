@@ -10,13 +10,19 @@
  * nothing (LeakSanitizer in make asan-alloc). Calls: create, reserve,
  * push, save, load of exact and compressed streams; create, advance,
  * save, load of solvers; create, update, save, load of controllers; FFT
- * plans; batch calls with and without a context, and with a context of
- * 3 threads (its helpers' memory failing, and thread creation refused
- * through --wrap=pthread_create: the same result either way). Invented
- * signals.
+ * plans; batch calls with and without a context; save_file and
+ * load_file of each object (the old file must stay as it was and no
+ * temporary may be left); fc_grid_apply; create, push, save, load of
+ * streams with a time per sample; batch calls with a context of 3
+ * threads (its helpers' memory failing, and thread creation refused
+ * through --wrap=pthread_create: the same result either way), threaded
+ * compressed and exact stream pushes. Invented signals.
  * The library itself has no hook: the wrapping is done by the linker, in
  * this test binary only.
  */
+#define _POSIX_C_SOURCE 200809L   /* mkdtemp, rmdir, unlink, opendir */
+#include <dirent.h>
+#include <unistd.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -460,12 +466,160 @@ static void controllers(void)
     }
 }
 
+/* ------------------------------------------------------------ files */
+
+static int dir_entries(const char *dir)
+{
+    int n = 0;
+    DIR *d = opendir(dir);
+    struct dirent *e;
+    if (d == NULL) return -1;
+    while ((e = readdir(d)) != NULL)
+        if (strcmp(e->d_name, ".") && strcmp(e->d_name, "..")) n++;
+    closedir(d);
+    return n;
+}
+
+/* the file holds exactly b[0 .. n) and is alone in dir (allocation off) */
+static int file_is(const char *dir, const char *path, const unsigned char *b, size_t n)
+{
+    unsigned char *d = NULL;
+    size_t m = 0;
+    int same;
+    if (fc_file_read(path, n + 10, &d, &m) != FC_OK) return 0;
+    same = m == n && memcmp(d, b, n) == 0 && dir_entries(dir) == 1;
+    fc_file_data_free(d);
+    return same;
+}
+
+static void files(void)
+{
+    char dir[] = "/tmp/fc_alloc_fail_XXXXXX";
+    char path[96];
+    static const unsigned char old[] = "an old checkpoint";
+    double x[200], y[200];
+    if (mkdtemp(dir) == NULL) { fails++; printf("mkdtemp failed\n"); return; }
+    snprintf(path, sizeof path, "%s/state.bin", dir);
+    for (int i = 0; i < 200; i++) x[i] = sin(0.05 * i) + 0.2;
+    for (int mode = 0; mode < 2; mode++) {
+        fc_stream *s = NULL, *l = NULL;
+        unsigned char *ref;
+        size_t n;
+        char name[64];
+        if (fc_stream_create(FC_RULE_TRAPEZOID, 0.6, 0.1, 1, mode, 1e-9, 1e4, &s) != FC_OK) { fails++; continue; }
+        fc_stream_push_block(s, x, 200, y);
+        ref = stream_bytes(s, &n);
+        fc_file_write(path, old, sizeof old);
+        snprintf(name, sizeof name, "stream_save_file mode %d", mode);
+        /* the last (successful) pass replaces the file */
+        FOR_EACH_FAILURE(name, fc_stream_save_file(s, path), (void)0,
+                         stream_same(s, ref, n) && file_is(dir, path, old, sizeof old));
+        if (!file_is(dir, path, ref, n)) { fails++; printf("%s: file is not the saved stream\n", name); }
+        snprintf(name, sizeof name, "stream_load_file mode %d", mode);
+        FOR_EACH_FAILURE(name, fc_stream_load_file(path, 1 << 20, &l), (void)0, l == NULL);
+        if (l == NULL || !stream_same(l, ref, n)) { fails++; printf("%s: loaded stream differs\n", name); }
+        free(ref);
+        fc_stream_free(l);
+        fc_stream_free(s);
+    }
+    {
+        double o = 0.7, y0 = 1.0;
+        fc_solver *s = NULL, *l = NULL;
+        if (fc_solver_create(1, &o, 0.01, 0, &y0, FC_METHOD_PC, FC_MODE_COMPRESSED, 1e-9, 5000, &s) == FC_OK) {
+            size_t done;
+            fc_solver_set_rhs(s, rhs, NULL);
+            fc_solver_advance(s, 100, NULL, NULL, &done);
+            fc_file_write(path, old, sizeof old);
+            FOR_EACH_FAILURE("solver_save_file", fc_solver_save_file(s, path), (void)0,
+                             file_is(dir, path, old, sizeof old));
+            FOR_EACH_FAILURE("solver_load_file", fc_solver_load_file(path, 1 << 20, &l), (void)0, l == NULL);
+            if (l == NULL) fails++;
+        } else {
+            fails++;
+        }
+        fc_solver_free(l);
+        fc_solver_free(s);
+    }
+    {
+        fc_controller_params p;
+        fc_controller *c = NULL, *l = NULL;
+        fc_controller_default_params(&p);
+        p.ki = 0.4; p.kd = 0.1;
+        if (fc_controller_create(&p, &c) == FC_OK) {
+            fc_controller_update_block(c, x, x + 1, 100, y, NULL);
+            fc_file_write(path, old, sizeof old);
+            FOR_EACH_FAILURE("controller_save_file", fc_controller_save_file(c, path), (void)0,
+                             file_is(dir, path, old, sizeof old));
+            FOR_EACH_FAILURE("controller_load_file", fc_controller_load_file(path, 1 << 20, &l), (void)0,
+                             l == NULL);
+            if (l == NULL) fails++;
+        } else {
+            fails++;
+        }
+        fc_controller_free(l);
+        fc_controller_free(c);
+    }
+    unlink(path);
+    if (rmdir(dir) != 0) { fails++; printf("files: a temporary was left in %s\n", dir); }
+}
+
+/* The rules on a grid of times (fc_grid_apply) and the stream with a time
+   per sample: NOMEM leaves y (resp. the stream) as it was. */
+static void grids(void)
+{
+    enum { N = 2000, C = 2 };
+    double *t = malloc(N * sizeof *t), *x = malloc(N * C * sizeof *x);
+    double *y = malloc(N * C * sizeof *y), *yr = malloc(N * C * sizeof *yr);
+    t[0] = 0.0;
+    for (int i = 1; i < N; i++) t[i] = t[i - 1] + 0.001 * (1.0 + 0.4 * sin(3.0 * i));
+    for (int i = 0; i < N * C; i++) x[i] = cos(0.002 * i) + (i % 97 == 0 ? 1e6 : 0.0);
+    static const int rules[3] = {FC_RULE_RECTANGLE, FC_RULE_TRAPEZOID, FC_RULE_L1};
+    for (int r = 0; r < 3; r++) {
+        char name[64];
+        if (fc_grid_apply(rules[r], 0.4, t, x, C, N, 1e-11, yr, NULL) != FC_OK) { fails++; continue; }
+        snprintf(name, sizeof name, "grid_apply rule %d", rules[r]);
+        for (int i = 0; i < N * C; i++) y[i] = -7.0;
+        FOR_EACH_FAILURE(name, fc_grid_apply(rules[r], 0.4, t, x, C, N, 1e-11, y, NULL),
+                         if (memcmp(y, yr, N * C * sizeof *y)) { fails++; printf("%s: result differs\n", name); },
+                         y[0] == -7.0 && y[N * C - 1] == -7.0);
+        /* the stream with a time per sample */
+        fc_stream *s = NULL, *l = NULL;
+        snprintf(name, sizeof name, "stream_create_timed rule %d", rules[r]);
+        FOR_EACH_FAILURE(name, fc_stream_create_timed(rules[r], 0.4, 0.0005, C, 1e-10, 10.0, &s),
+                         (void)0, s == NULL);
+        if (s == NULL) { fails++; continue; }
+        {
+            unsigned char *ref;
+            size_t n, sz, wr;
+            ref = stream_bytes(s, &n);
+            snprintf(name, sizeof name, "stream_push_timed rule %d", rules[r]);
+            FOR_EACH_FAILURE(name, fc_stream_push_timed(s, t, x, N / 2, y), (void)0, stream_same(s, ref, n));
+            free(ref);
+            ref = stream_bytes(s, &n);
+            fc_stream_save_size(s, &sz);
+            unsigned char *buf = malloc(sz);
+            snprintf(name, sizeof name, "stream_save timed rule %d", rules[r]);
+            FOR_EACH_FAILURE(name, fc_stream_save(s, buf, sz, &wr), (void)0, stream_same(s, ref, n));
+            snprintf(name, sizeof name, "stream_load timed rule %d", rules[r]);
+            FOR_EACH_FAILURE(name, fc_stream_load(buf, wr, &l), (void)0, l == NULL);
+            if (l == NULL || !stream_same(l, ref, n)) { fails++; printf("%s: loaded stream differs\n", name); }
+            free(buf);
+            free(ref);
+        }
+        fc_stream_free(l);
+        fc_stream_free(s);
+    }
+    free(t); free(x); free(y); free(yr);
+}
+
 int main(void)
 {
+    grids();
     streams();
     batch();
     solvers();
     controllers();
+    files();
     printf("alloc_fail: %d calls, %d injected failures, %d problems\n", checks, injections, fails);
     if (injections == 0) { printf("alloc_fail: no allocation was intercepted (not linked with --wrap?)\n"); return 1; }
     return fails ? 1 : 0;

@@ -8,7 +8,15 @@
  * lines); exit 1 on any other. Built and run under AddressSanitizer and
  * UndefinedBehaviorSanitizer by `make asan` (no report, no leak), and plain
  * by `make check-c-tests`. Test signals are invented (fixed values).
+ * Checkpoint files (fc_file_*, fc_*_save_file, fc_*_load_file) in a
+ * temporary directory (mkdtemp): round trips, missing directory and file,
+ * a directory as target, truncated and too long files, no temporary left.
  */
+#define _POSIX_C_SOURCE 200809L   /* mkdtemp, rmdir, unlink, opendir */
+#include <dirent.h>
+#include <sys/stat.h>
+#include <errno.h>
+#include <unistd.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -288,6 +296,44 @@ static void stream_life(fc_stream *s, size_t ch, int compressed)
     EXPECT(fc_stream_reset(NULL), FC_ERR_NULL);
 }
 
+/* The rules on a grid of times and the stream with a time per sample. */
+static void test_grid(void)
+{
+    enum { N = 500 };
+    double t[N], x[N], y[N], yb[N];
+    for (int i = 0; i < N; i++) { t[i] = 0.01 * i + 0.003 * sin(i); x[i] = sin(0.05 * i); }
+    size_t K = 0;
+    EXPECT(fc_grid_apply(FC_RULE_TRAPEZOID, 0.5, t, x, 1, N, 1e-10, y, &K), FC_OK);
+    TRUE_(K > 0 && y[0] == 0.0);
+    EXPECT(fc_grid_apply(FC_RULE_GRUNWALD, 0.5, t, x, 1, N, 1e-10, y, NULL), FC_ERR_RULE);
+    EXPECT(fc_grid_apply(FC_RULE_L1, 1.0, t, x, 1, N, 1e-10, y, NULL), FC_ERR_ORDER);
+    EXPECT(fc_grid_apply(FC_RULE_RECTANGLE, 0.5, t, x, 1, N, 0.5, y, NULL), FC_ERR_TOL);
+    EXPECT(fc_grid_apply(FC_RULE_RECTANGLE, 0.5, NULL, x, 1, N, 1e-10, y, NULL), FC_ERR_NULL);
+    EXPECT(fc_grid_apply(FC_RULE_RECTANGLE, 0.5, t, x, 1, N, 1e-10, x, NULL), FC_ERR_ARG);
+    EXPECT(fc_grid_apply(FC_RULE_RECTANGLE, 0.5, t, x, HUGE_SZ, 2, 1e-10, y, NULL), FC_ERR_SIZE);
+    fc_stream *s = NULL, *l = NULL;
+    EXPECT(fc_stream_create_timed(FC_RULE_TRAPEZOID, 0.5, 0.005, 1, 1e-10, 10.0, NULL), FC_ERR_NULL);
+    EXPECT(fc_stream_create_timed(FC_RULE_TRAPEZOID, 0.5, NaN_, 1, 1e-10, 10.0, &s), FC_ERR_STEP);
+    EXPECT(fc_stream_create_timed(FC_RULE_TRAPEZOID, 0.5, 0.005, 1, 1e-10, 10.0, &s), FC_OK);
+    EXPECT(fc_stream_push_timed(s, t, x, N / 2, yb), FC_OK);
+    EXPECT(fc_stream_push_timed(s, t + N / 2, x + N / 2, N - N / 2, yb + N / 2), FC_OK);
+    int timed = 0;
+    EXPECT(fc_stream_is_timed(s, &timed), FC_OK);
+    TRUE_(timed == 1);
+    EXPECT(fc_stream_push_timed(s, t, x, 1, yb), FC_ERR_ARG);          /* time not after */
+    EXPECT(fc_stream_push_timed(NULL, t, x, 1, yb), FC_ERR_NULL);
+    EXPECT(fc_stream_push(s, x, yb), FC_ERR_ARG);
+    size_t sz, wr;
+    EXPECT(fc_stream_save_size(s, &sz), FC_OK);
+    unsigned char *buf = malloc(sz);
+    EXPECT(fc_stream_save(s, buf, sz, &wr), FC_OK);
+    EXPECT(fc_stream_load(buf, wr, &l), FC_OK);
+    blob_faults("timed stream", buf, wr, ld_stream, fr_stream);
+    free(buf);
+    fc_stream_free(l);
+    fc_stream_free(s);
+}
+
 static void test_streams(void)
 {
     fc_stream *s;
@@ -509,8 +555,165 @@ static void test_fft(void)
     fc_rfft_free(NULL);
 }
 
+/* ------------------------------------------------------------ files */
+
+static int dir_entries(const char *dir)
+{
+    int n = 0;
+    DIR *d = opendir(dir);
+    struct dirent *e;
+    if (d == NULL) return -1;
+    while ((e = readdir(d)) != NULL)
+        if (strcmp(e->d_name, ".") && strcmp(e->d_name, "..")) n++;
+    closedir(d);
+    return n;
+}
+
+static int file_equals(const char *path, const unsigned char *b, size_t n)
+{
+    unsigned char *d = NULL;
+    size_t m = 0;
+    int same;
+    if (fc_file_read(path, n + 10, &d, &m) != FC_OK) return 0;
+    same = m == n && memcmp(d, b, n) == 0;
+    fc_file_data_free(d);
+    return same;
+}
+
+static void test_files(void)
+{
+    char dir[] = "/tmp/fc_api_driver_XXXXXX";
+    char path[96], missing[128], sub[96];
+    unsigned char *d = NULL, *buf;
+    size_t n = 0, sz, wr;
+    const unsigned char old[] = "an old checkpoint";
+    double x[40], y[40], y2[40];
+    fc_stream *s, *l = NULL;
+    fc_solver *sv, *lv = NULL;
+    fc_controller_params p;
+    fc_controller *c, *lc = NULL;
+    uint64_t cnt;
+    if (mkdtemp(dir) == NULL) { fails++; printf("mkdtemp failed\n"); return; }
+    snprintf(path, sizeof path, "%s/state.bin", dir);
+    snprintf(missing, sizeof missing, "%s/no-such-dir/state.bin", dir);
+    snprintf(sub, sizeof sub, "%s/sub", dir);
+
+    /* the generic pair */
+    EXPECT(fc_file_write(NULL, old, sizeof old), FC_ERR_NULL);
+    EXPECT(fc_file_write(path, NULL, 4), FC_ERR_NULL);
+    EXPECT(fc_file_write("", old, sizeof old), FC_ERR_ARG);
+    EXPECT(fc_file_write("x/", old, sizeof old), FC_ERR_ARG);
+    EXPECT(fc_file_write(missing, old, sizeof old), FC_ERR_IO);
+    TRUE_(errno == ENOENT);
+    EXPECT(fc_file_write(path, NULL, 0), FC_OK);          /* an empty file */
+    EXPECT(fc_file_read(path, 0, &d, &n), FC_OK);
+    TRUE_(n == 0);
+    fc_file_data_free(d);
+    EXPECT(fc_file_write(path, old, sizeof old), FC_OK);  /* replaced */
+    TRUE_(file_equals(path, old, sizeof old));
+    EXPECT(fc_file_read(NULL, 10, &d, &n), FC_ERR_NULL);
+    EXPECT(fc_file_read(path, 10, NULL, &n), FC_ERR_NULL);
+    EXPECT(fc_file_read(path, 10, &d, NULL), FC_ERR_NULL);
+    EXPECT(fc_file_read("", 10, &d, &n), FC_ERR_ARG);
+    d = NULL; n = 7;
+    EXPECT(fc_file_read(path, sizeof old - 1, &d, &n), FC_ERR_SIZE);
+    TRUE_(d == NULL && n == 7);                            /* untouched */
+    EXPECT(fc_file_read(path, sizeof old, &d, &n), FC_OK);
+    TRUE_(n == sizeof old);
+    fc_file_data_free(d);
+    EXPECT(fc_file_read(path, HUGE_SZ, &d, &n), FC_OK);
+    fc_file_data_free(d);
+    EXPECT(fc_file_read(missing, 10, &d, &n), FC_ERR_IO);
+    TRUE_(errno == ENOENT);
+    EXPECT(fc_file_read(dir, 10, &d, &n), FC_ERR_IO);
+    TRUE_(errno == EISDIR);
+    EXPECT(fc_file_read("/dev/null", 10, &d, &n), FC_ERR_IO);
+    TRUE_(errno == EINVAL);
+    fc_file_data_free(NULL);
+    TRUE_(mkdir(sub, 0700) == 0);
+    EXPECT(fc_file_write(sub, old, sizeof old), FC_ERR_IO); /* rename onto a directory */
+    TRUE_(dir_entries(dir) == 2);                            /* state.bin, sub: no temporary */
+    TRUE_(rmdir(sub) == 0);
+
+    /* streams */
+    for (int i = 0; i < 40; i++) x[i] = cos(0.3 * i);
+    for (int mode = 0; mode < 2; mode++) {
+        EXPECT(fc_stream_create(FC_RULE_L1, 0.4, 0.1, 1, mode, 1e-9, 1000, &s), FC_OK);
+        EXPECT(fc_stream_push_block(s, x, 20, y), FC_OK);
+        EXPECT(fc_stream_save_file(NULL, path), FC_ERR_NULL);
+        EXPECT(fc_stream_save_file(s, NULL), FC_ERR_NULL);
+        EXPECT(fc_stream_save_file(s, ""), FC_ERR_ARG);
+        EXPECT(fc_stream_save_file(s, missing), FC_ERR_IO);
+        EXPECT(fc_stream_save_file(s, path), FC_OK);
+        EXPECT(fc_stream_load_file(NULL, 1 << 20, &l), FC_ERR_NULL);
+        EXPECT(fc_stream_load_file(path, 1 << 20, NULL), FC_ERR_NULL);
+        EXPECT(fc_stream_load_file(missing, 1 << 20, &l), FC_ERR_IO);
+        EXPECT(fc_stream_load_file(path, 10, &l), FC_ERR_SIZE);
+        EXPECT(fc_stream_load_file(path, 1 << 20, &l), FC_OK);
+        EXPECT(fc_stream_push_block(s, x + 20, 20, y), FC_OK);
+        EXPECT(fc_stream_push_block(l, x + 20, 20, y2), FC_OK);
+        TRUE_(memcmp(y, y2, sizeof(double) * 20) == 0);
+        fc_stream_free(l);
+        l = NULL;
+        /* a truncated file is refused, nothing made */
+        EXPECT(fc_stream_save_size(s, &sz), FC_OK);
+        buf = malloc(sz);
+        EXPECT(fc_stream_save(s, buf, sz, &wr), FC_OK);
+        EXPECT(fc_file_write(path, buf, wr / 2), FC_OK);
+        EXPECT(fc_stream_load_file(path, 1 << 20, &l), FC_ERR_FORMAT);
+        TRUE_(l == NULL);
+        free(buf);
+        fc_stream_free(s);
+    }
+    /* solver */
+    {
+        double o[2] = {0.6, 0.9}, init[2] = {1, 0.5};
+        EXPECT(fc_solver_create(2, o, 0.01, 0.0, init, FC_METHOD_PC, FC_MODE_EXACT, 0, 0, &sv), FC_OK);
+        EXPECT(fc_solver_set_rhs(sv, rhs, NULL), FC_OK);
+        EXPECT(fc_solver_advance(sv, 10, NULL, y, &wr), FC_OK);
+        EXPECT(fc_solver_save_file(NULL, path), FC_ERR_NULL);
+        EXPECT(fc_solver_save_file(sv, missing), FC_ERR_IO);
+        EXPECT(fc_solver_save_file(sv, path), FC_OK);
+        EXPECT(fc_solver_load_file(path, 1 << 20, NULL), FC_ERR_NULL);
+        EXPECT(fc_solver_load_file(path, 10, &lv), FC_ERR_SIZE);
+        EXPECT(fc_solver_load_file(missing, 1 << 20, &lv), FC_ERR_IO);
+        EXPECT(fc_solver_load_file(path, 1 << 20, &lv), FC_OK);
+        EXPECT(fc_solver_set_rhs(lv, rhs, NULL), FC_OK);
+        EXPECT(fc_solver_advance(sv, 10, NULL, y, &wr), FC_OK);
+        EXPECT(fc_solver_advance(lv, 10, NULL, y2, &wr), FC_OK);
+        TRUE_(memcmp(y, y2, sizeof(double) * 20) == 0);
+        EXPECT(fc_stream_load_file(path, 1 << 20, &l), FC_ERR_FORMAT);  /* a solver file */
+        fc_solver_free(lv);
+        fc_solver_free(sv);
+    }
+    /* controller */
+    EXPECT(fc_controller_default_params(&p), FC_OK);
+    p.ki = 0.4; p.kd = 0.1;
+    EXPECT(fc_controller_create(&p, &c), FC_OK);
+    EXPECT(fc_controller_update_block(c, x, x + 1, 20, y, NULL), FC_OK);
+    EXPECT(fc_controller_save_file(NULL, path), FC_ERR_NULL);
+    EXPECT(fc_controller_save_file(c, missing), FC_ERR_IO);
+    EXPECT(fc_controller_save_file(c, path), FC_OK);
+    EXPECT(fc_controller_load_file(NULL, 1 << 20, &lc), FC_ERR_NULL);
+    EXPECT(fc_controller_load_file(path, 10, &lc), FC_ERR_SIZE);
+    EXPECT(fc_controller_load_file(missing, 1 << 20, &lc), FC_ERR_IO);
+    EXPECT(fc_controller_load_file(path, 1 << 20, &lc), FC_OK);
+    EXPECT(fc_controller_count(lc, &cnt), FC_OK);
+    TRUE_(cnt == 20);
+    EXPECT(fc_controller_update_block(c, x + 10, x + 11, 20, y, NULL), FC_OK);
+    EXPECT(fc_controller_update_block(lc, x + 10, x + 11, 20, y2, NULL), FC_OK);
+    TRUE_(memcmp(y, y2, sizeof(double) * 20) == 0);
+    fc_controller_free(lc);
+    fc_controller_free(c);
+
+    TRUE_(dir_entries(dir) == 1);        /* state.bin only: no temporary left */
+    unlink(path);
+    TRUE_(rmdir(dir) == 0);
+}
+
 int main(void)
 {
+    test_grid();
     test_info();
     test_weights();
     test_batch();
@@ -518,6 +721,7 @@ int main(void)
     test_solver();
     test_controller();
     test_fft();
+    test_files();
     printf("api_driver: %d checks, %d failed\n", checks, fails);
     return fails ? 1 : 0;
 }
