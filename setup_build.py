@@ -75,6 +75,8 @@ extern "Python" double _fc_py_rhs1(double, double, void *);
 extern "Python" int _fc_py_jac(double, const double *, double *, void *);
 int _fc_py_rhs1_bridge(double, const double *, double *, void *);
 int _fc_py_advance(fc_solver *, size_t, double *, double *, size_t *);
+typedef struct { void *fn; void *slow; } _fc_py_call1;
+int _fc_py_rhs1_direct(double, const double *, double *, void *);
 """
 # A scalar rhs is called as double f(double t, double y, void *user): fewer
 # objects to build per call than pointers. A Python failure returns NaN
@@ -85,6 +87,54 @@ static double _fc_py_rhs1(double, double, void *);
 int _fc_py_rhs1_bridge(double t, const double *y, double *f, void *user)
 {
     f[0] = _fc_py_rhs1(t, y[0], user);
+    return 0;
+}
+/* A scalar rhs called straight from C with the Python C API (CPython: fn
+   and slow are the addresses of Python objects that the caller keeps
+   alive). The fast path, a float back, costs the call itself and two
+   floats; anything else (an exception, another type) goes to
+   slow(t, value, raised), which records a failure as _fc_py_rhs1 does and
+   returns the float to use (NaN after a failure). No exception is left
+   set. The GIL is taken (a counter when the caller holds it). */
+typedef struct { void *fn; void *slow; } _fc_py_call1;
+int _fc_py_rhs1_direct(double t, const double *y, double *f, void *user)
+{
+    const _fc_py_call1 *c = (const _fc_py_call1 *)user;
+    PyGILState_STATE g = PyGILState_Ensure();
+    double out = NAN;
+    PyObject *pt = PyFloat_FromDouble(t);
+    PyObject *py = pt ? PyFloat_FromDouble(y[0]) : NULL;
+    PyObject *v = py ? PyObject_CallFunctionObjArgs((PyObject *)c->fn, pt, py, NULL)
+                     : NULL;
+    if (v && PyFloat_CheckExact(v)) {
+        out = PyFloat_AsDouble(v);
+    }
+    else if (pt) {
+        PyObject *obj = v, *raised = Py_False, *r;
+        if (!v) {
+            PyObject *et, *ev, *tb;
+            PyErr_Fetch(&et, &ev, &tb);
+            PyErr_NormalizeException(&et, &ev, &tb);
+            if (ev && tb) PyException_SetTraceback(ev, tb);
+            Py_XDECREF(et);
+            Py_XDECREF(tb);
+            obj = ev ? ev : Py_None;
+            if (!ev) Py_INCREF(Py_None);
+            raised = Py_True;
+        }
+        r = PyObject_CallFunctionObjArgs((PyObject *)c->slow, pt, obj, raised, NULL);
+        if (r) {
+            out = PyFloat_AsDouble(r);
+            Py_DECREF(r);
+        }
+        if (!v) Py_DECREF(obj);
+    }
+    Py_XDECREF(v);
+    Py_XDECREF(py);
+    Py_XDECREF(pt);
+    if (PyErr_Occurred()) { PyErr_Clear(); out = NAN; }
+    PyGILState_Release(g);
+    f[0] = out;
     return 0;
 }
 /* fc_solver_advance with the GIL held for the whole run (cffi releases it
@@ -103,7 +153,7 @@ ffibuilder = FFI()
 ffibuilder.cdef(read_cdef() + PYTHON_CALLBACKS)
 ffibuilder.set_source(
     "pyfracconv._fracconv",
-    '#include "fracconv.h"\n' + BRIDGE_SOURCE,
+    '#include <math.h>\n#include "fracconv.h"\n' + BRIDGE_SOURCE,
     sources=c_sources(),
     include_dirs=["csrc"],
     extra_compile_args=compile_args(),

@@ -378,7 +378,7 @@ typedef struct fc_stream fc_stream;
  * the running state is one that pushes could have produced; a loaded
  * stream then behaves exactly like the one that saved it.
  */
-/* Statuses: FC_OK, FC_ERR_NULL (out), FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_ARG (channels 0), FC_ERR_SIZE (channels too many), FC_ERR_MODE, FC_ERR_TOL, FC_ERR_RANGE (compressed: the step factor or a weight beyond the double range), FC_ERR_NOMEM. */
+/* Statuses: FC_OK, FC_ERR_NULL (out), FC_ERR_RULE, FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_ARG (channels 0), FC_ERR_SIZE (channels too many), FC_ERR_MODE, FC_ERR_TOL, FC_ERR_RANGE (compressed: the step factor or a weight beyond the double range; exact, rules other than L1: also orders below about 1e-297, measured, whose kernel the stream cannot hold in its scaled form, although fc_apply takes them), FC_ERR_NOMEM. */
 FC_API int fc_stream_create(int rule, double order, double step, size_t channels,
                      int mode, double tol, double horizon, fc_stream **out);
 /* An exact stream for a user kernel: y_n = sum_{k<=n} kernel[n-k] x_k,
@@ -582,15 +582,27 @@ FC_API int fc_stream_is_timed(const fc_stream *s, int *timed);
  *                        end points, order 1): y = T + history + u f(t, y),
  *                        u = h^a/Gamma(a+1), solved like FC_METHOD_TRAPEZOID;
  *                        strongly damped, for stiff problems with
- *                        non-smooth solutions; FC_MODE_EXACT only, and
+ *                        non-smooth solutions; with FC_MODE_EXACT
  *                        `horizon` is required, 1 <= horizon <= 2^28: the
  *                        steps it can take (its kernel of floor(horizon)+1
  *                        weights is allocated at creation and at load)
  * Memory: FC_MODE_EXACT (streams keep every f value) or FC_MODE_COMPRESSED
  * (bounded memory, tol and horizon as for fc_stream_create, horizon counted
- * in steps; every method but FC_METHOD_IMPLICIT_RECTANGLE, orders < 2,
- * as the rule table's compressed ranges for the rectangle and trapezoid
- * rules give them (fc_rule_order_range; else FC_ERR_ORDER)).
+ * in steps; every method, orders < 2, as the rule table's compressed
+ * ranges for the rules a method uses give them (fc_rule_order_range; else
+ * FC_ERR_ORDER): rectangle and trapezoid; for FC_METHOD_IMPLICIT_RECTANGLE
+ * rectangle and, for its weight differences, L1 of order 1 - a (a < 1:
+ * refused when 1 - a rounds to 1, a <= 2^-54) or trapezoid of order a - 1
+ * (a > 1), see csrc/solver.c). Compressed deviation of the history sums:
+ * every stream is within its fc_stream_create bound; for the implicit
+ * rectangle rule the history H_n = u sum_{1<=k<=n} b_{n+1-k} f_k
+ * (u = h^a/Gamma(a+1), b_j = (j+1)^a - j^a) is then within
+ * (tol + 67 eps) u S_n of its value in exact arithmetic with the library's
+ * weights (3 eps: the sum of the two streams), S_n =
+ * sum_k b_{n+1-k} |f_k| for 1 <= a < 2 and S_n = sum_k (b_{n-k} |f_k| +
+ * b_{n+1-k} |f_k - f_{k-1}|) + |f_n| (f_0 = 0) for a < 1; for a < 1/2 the
+ * L1 stream's order 1 - a is a rounded double, which changes the weight
+ * differences by a relative amount of about 2^-54 (1/a + ln n) besides.
  *
  * Callbacks: rhs(t, y[m], f[m], user) writes f(t, y); jac(t, y[m],
  * J[m*m], user) writes J[i*m + j] = df_i/dy_j (row-major). A callback

@@ -25,6 +25,32 @@
  * cannot be checked against the kernel it should hold, so a loaded solver
  * rebuilds the stream from the saved f values).
  *
+ * Compressed memory for the implicit rectangle rule. With b_j = (j+1)^a -
+ * j^a, the history after step n is H_n = u sum_{1<=k<=n} b_{n+1-k} f_k:
+ * its newest sample f_n weighs b_1. A rectangle stream fed with f_1, f_2,
+ * ... has the history R_n = u sum_{1<=k<=n} b_{n-k} f_k instead (newest
+ * weight b_0): no rule's history and no shift of the samples gives the
+ * weights b_1, b_2, ... (every rule's history weighs its newest sample with
+ * its lag-1 weight, and the rectangle rule's lag-1 weight is b_0). So the
+ * solver writes H_n = R_n + u sum_{1<=k<=n} d_{n-k} f_k with the
+ * differences d_j = b_{j+1} - b_j = (j+2)^a - 2 (j+1)^a + j^a, and keeps
+ * the second sum with a rule whose weights are these differences, on a
+ * second compressed stream fed with 0, f_1, f_2, ... (count n+1):
+ *   1 < a < 2: the trapezoid rule of order a - 1 (exact in double), whose
+ *     lag weights are h^(a-1)/Gamma(a+1) d_{j-1} (j >= 1); with x_0 = 0 its
+ *     starting column drops out, and its history is the second sum over h;
+ *   0 < a < 1: the L1 rule of order 1 - a, weights C b'_j on the
+ *     differences x_k - x_{k-1}, C = h^(a-1)/Gamma(1+a') ; its output for a
+ *     next sample 0 (fc_stream_preview, nothing changed) is, by summation
+ *     by parts, C sum_{1<=k<=n} d'_{n-k} f_k (b', d': the same sequences
+ *     for a' = 1 - (1 - a) as rounded; a' = a for a >= 1/2, else
+ *     |a' - a| <= 2^-54);
+ *   a = 1: b_j = 1, d_j = 0, H_n = R_n (no second stream).
+ * The second sum is the stream's value times u / w, w the stream rule's
+ * lag-0 weight (fc_weights), so that in exact arithmetic H_n is the
+ * right-end-point history with the stream's own weights. Exact memory
+ * keeps the kernel stream (its results do not change).
+ *
  * Methods: Diethelm, Ford and Freed, Nonlinear Dynamics 29 (2002) 3-22
  * (predictor-corrector); Garrappa, Math. Comput. Simul. 110 (2015) 96-112
  * (implicit trapezoidal rule with Newton's method).
@@ -48,7 +74,11 @@ typedef struct {
     int ident;        /* the group is every component, in order */
     fc_stream *rect;  /* NULL when the method does not need it */
     fc_stream *trap;  /* the trapezoid stream, or the kernel stream of
-                         FC_METHOD_IMPLICIT_RECTANGLE */
+                         FC_METHOD_IMPLICIT_RECTANGLE with exact memory, or
+                         (implicit rectangle, compressed) the stream of the
+                         differences d: NULL at order 1 */
+    double fac;       /* implicit rectangle, compressed: u / the lag-0
+                         weight of that stream's rule */
 } sv_group;
 
 struct fc_solver {
@@ -115,12 +145,33 @@ static int all_finite(const double *x, size_t n)
     return 1;
 }
 
-static int needs_rect(int method)
+static int needs_rect(int method, int memory)
 {
-    return method == FC_METHOD_RECTANGLE || method == FC_METHOD_PC;
+    return method == FC_METHOD_RECTANGLE || method == FC_METHOD_PC ||
+           (method == FC_METHOD_IMPLICIT_RECTANGLE && memory == FC_MODE_COMPRESSED);
 }
-/* the second stream slot: trapezoid or (implicit rectangle) kernel */
-static int needs_trap(int method) { return method != FC_METHOD_RECTANGLE; }
+/* the second stream slot: trapezoid, (implicit rectangle, exact) kernel,
+   or (implicit rectangle, compressed) the differences' stream, none at
+   order 1 */
+static int needs_trap(int method, int memory, double order)
+{
+    if (method == FC_METHOD_IMPLICIT_RECTANGLE && memory == FC_MODE_COMPRESSED)
+        return order != 1.0;
+    return method != FC_METHOD_RECTANGLE;
+}
+/* the streams are saved as blobs (not the exact implicit rectangle's
+   kernel streams, rebuilt from the saved f values) */
+static int saves_streams(int method, int memory)
+{
+    return !(method == FC_METHOD_IMPLICIT_RECTANGLE && memory == FC_MODE_EXACT);
+}
+/* Implicit rectangle, compressed: the rule and order of the stream of the
+   differences d for order a != 1 (see the top of the file). */
+static void diff_rule(double a, int *rule, double *order)
+{
+    if (a < 1.0) { *rule = FC_RULE_L1; *order = 1.0 - a; }
+    else { *rule = FC_RULE_TRAPEZOID; *order = a - 1.0; }
+}
 static int is_implicit(int method)
 {
     return method == FC_METHOD_TRAPEZOID || method == FC_METHOD_IMPLICIT_RECTANGLE;
@@ -152,22 +203,30 @@ static int check_params(size_t m, const double *orders, double step,
         return FC_ERR_RULE;
     if (memory != FC_MODE_EXACT && memory != FC_MODE_COMPRESSED)
         return FC_ERR_MODE;
-    if (method == FC_METHOD_IMPLICIT_RECTANGLE) {
-        if (memory != FC_MODE_EXACT) return FC_ERR_MODE;
-        if (!(horizon >= 1.0 && horizon <= 268435456.0)) return FC_ERR_TOL;
-    }
+    if (method == FC_METHOD_IMPLICIT_RECTANGLE && memory == FC_MODE_EXACT &&
+        !(horizon >= 1.0 && horizon <= 268435456.0))
+        return FC_ERR_TOL;
     double amax = 0.0;
     for (size_t i = 0; i < m; i++) {
         double a = orders[i];
         if (!(a > 0.0 && a <= 2.0)) return FC_ERR_ORDER;
         if (memory == FC_MODE_COMPRESSED) {
             /* the rule table's compressed ranges (rules.c): the rectangle
-               method runs the rectangle rule, the others the rectangle
-               and the trapezoid rule */
+               method runs the rectangle rule, the implicit rectangle
+               method the rectangle rule and (a != 1) the rule of its
+               differences, the others the rectangle and the trapezoid
+               rule */
             if (!compressed_order_ok(FC_RULE_RECTANGLE, a))
                 return FC_ERR_ORDER;
-            if (method != FC_METHOD_RECTANGLE &&
-                !compressed_order_ok(FC_RULE_TRAPEZOID, a))
+            if (method == FC_METHOD_IMPLICIT_RECTANGLE) {
+                int dr;
+                double da;
+                diff_rule(a, &dr, &da);
+                if (a != 1.0 && !compressed_order_ok(dr, da))
+                    return FC_ERR_ORDER;
+            }
+            else if (method != FC_METHOD_RECTANGLE &&
+                     !compressed_order_ok(FC_RULE_TRAPEZOID, a))
                 return FC_ERR_ORDER;
         }
         if (a > amax) amax = a;
@@ -276,6 +335,20 @@ static int build(size_t m, const double *orders, double step, double t0,
                : fc_weights(FC_RULE_TRAPEZOID, g->order, step, 0, 1, &w);
         if (st != FC_OK) { free_solver(s); return st; }
         for (size_t k = 0; k < g->nc; k++) s->w0[g->idx[k]] = w;
+        g->fac = 0.0;
+        if (method == FC_METHOD_IMPLICIT_RECTANGLE &&
+            memory == FC_MODE_COMPRESSED && g->order != 1.0) {
+            int dr;
+            double da, wd;
+            diff_rule(g->order, &dr, &da);
+            st = fc_weights(dr, da, step, 0, 1, &wd);
+            if (st != FC_OK) { free_solver(s); return st; }
+            g->fac = w / wd;
+            if (!isfinite(g->fac) || !(g->fac > 0.0)) {
+                free_solver(s);
+                return FC_ERR_RANGE;
+            }
+        }
     }
     *out = s;
     return FC_OK;
@@ -301,12 +374,22 @@ static int make_streams(fc_solver *s)
     int st = FC_OK;
     for (size_t j = 0; j < s->ng && st == FC_OK; j++) {
         sv_group *g = &s->g[j];
-        if (needs_rect(s->method))
+        if (needs_rect(s->method, s->memory))
             st = fc_stream_create(FC_RULE_RECTANGLE, g->order, s->step, g->nc,
                                   s->memory, s->tol, s->horizon, &g->rect);
-        if (st == FC_OK && s->method == FC_METHOD_IMPLICIT_RECTANGLE)
+        if (st != FC_OK || !needs_trap(s->method, s->memory, g->order))
+            continue;
+        if (s->method == FC_METHOD_IMPLICIT_RECTANGLE &&
+            s->memory == FC_MODE_EXACT)
             st = make_kernel_stream(s, g, &g->trap);
-        else if (st == FC_OK && needs_trap(s->method))
+        else if (s->method == FC_METHOD_IMPLICIT_RECTANGLE) {
+            int dr;
+            double da;
+            diff_rule(g->order, &dr, &da);
+            st = fc_stream_create(dr, da, s->step, g->nc, s->memory, s->tol,
+                                  s->horizon, &g->trap);
+        }
+        else
             st = fc_stream_create(FC_RULE_TRAPEZOID, g->order, s->step, g->nc,
                                   s->memory, s->tol, s->horizon, &g->trap);
     }
@@ -422,8 +505,24 @@ static int push_all(fc_solver *s, const double *f)
     return FC_OK;
 }
 
+/* Push 0 into the implicit rectangle's streams of the differences
+   (compressed memory; their x_0, see the top of the file). */
+static int push_zero_diffs(fc_solver *s)
+{
+    for (size_t j = 0; j < s->ng; j++) {
+        sv_group *g = &s->g[j];
+        if (!g->trap) continue;
+        for (size_t k = 0; k < g->nc; k++) s->gb[k] = 0.0;
+        int st = fc_stream_push(g->trap, s->gb, s->gb);
+        if (st != FC_OK) return st;
+    }
+    return FC_OK;
+}
+
 static int histories(fc_solver *s)
 {
+    int irc = s->method == FC_METHOD_IMPLICIT_RECTANGLE &&
+              s->memory == FC_MODE_COMPRESSED;
     for (size_t j = 0; j < s->ng; j++) {
         sv_group *g = &s->g[j];
         int st;
@@ -433,7 +532,23 @@ static int histories(fc_solver *s)
             if (!g->ident)
                 for (size_t k = 0; k < g->nc; k++) s->hr[g->idx[k]] = h[k];
         }
-        if (g->trap) {
+        if (irc) {
+            /* H = R + fac * (the differences' sum), see the top */
+            double *h = s->gb;
+            if (g->trap && g->order < 1.0) {
+                /* L1: the output for a next sample 0 */
+                for (size_t k = 0; k < g->nc; k++) h[k] = 0.0;
+                if ((st = fc_stream_preview(g->trap, h, h)) != FC_OK) return st;
+            }
+            else if (g->trap) {
+                if ((st = fc_stream_history(g->trap, h)) != FC_OK) return st;
+            }
+            for (size_t k = 0; k < g->nc; k++) {
+                size_t i = g->idx[k];
+                s->ht[i] = g->trap ? s->hr[i] + g->fac * h[k] : s->hr[i];
+            }
+        }
+        else if (g->trap) {
             double *h = g->ident ? s->ht : s->gb;
             if ((st = fc_stream_history(g->trap, h)) != FC_OK) return st;
             if (!g->ident)
@@ -654,8 +769,12 @@ static int advance(fc_solver *s, size_t nsteps, double *t_out,
             return st;
     }
     int st = FC_OK;
-    if (!s->f0done && s->method == FC_METHOD_IMPLICIT_RECTANGLE)
-        s->f0done = 1; /* f_0 does not enter the right-end-point rule */
+    if (!s->f0done && s->method == FC_METHOD_IMPLICIT_RECTANGLE) {
+        /* f_0 does not enter the right-end-point rule; compressed memory
+           starts the streams of the differences with x_0 = 0 */
+        if (s->memory == FC_MODE_COMPRESSED) st = push_zero_diffs(s);
+        if (st == FC_OK) s->f0done = 1;
+    }
     if (!s->f0done) {
         memcpy(s->yc, s->y, m * sizeof(double));
         st = eval(s, s->t0, 0);
@@ -799,9 +918,11 @@ static uint64_t fnv1a(const unsigned char *p, size_t n)
  *   80  u64 steps, f0 done (0/1), rhs calls, jac calls
  *  112  f64 orders[m], init[K*m], y[m]
  *       u64 number of groups; per group, for the rectangle then the
- *       trapezoid stream: u64 size (0: none) and the fc_stream_save bytes
- *       (implicit rectangle: both 0)
- *       u64 rows r (implicit rectangle: steps; else 0), f_1 .. f_r (r*m f64)
+ *       trapezoid stream (implicit rectangle, compressed: the stream of
+ *       the differences, none at order 1): u64 size (0: none) and the
+ *       fc_stream_save bytes (implicit rectangle, exact: both 0)
+ *       u64 rows r (implicit rectangle, exact: steps; else 0), f_1 .. f_r
+ *       (r*m f64)
  *  end  u64 FNV-1a 64 of everything before
  */
 static int save_size(const fc_solver *s, size_t *size)
@@ -814,7 +935,7 @@ static int save_size(const fc_solver *s, size_t *size)
         fc_stream *st2[2] = { s->g[j].rect, s->g[j].trap };
         for (int k = 0; k < 2; k++) {
             size_t b = 0;
-            if (st2[k] && s->method != FC_METHOD_IMPLICIT_RECTANGLE) {
+            if (st2[k] && saves_streams(s->method, s->memory)) {
                 int st = fc_stream_save_size(st2[k], &b);
                 if (st != FC_OK) return st;
             }
@@ -823,7 +944,7 @@ static int save_size(const fc_solver *s, size_t *size)
         }
     }
     size_t rows = 0;
-    if (s->method == FC_METHOD_IMPLICIT_RECTANGLE) {
+    if (!saves_streams(s->method, s->memory)) {
         if (s->n > (uint64_t)((size_t)-1)) return FC_ERR_SIZE;
         rows = (size_t)s->n;
     }
@@ -878,7 +999,7 @@ static int save(const fc_solver *s, unsigned char *buf, size_t size,
         fc_stream *st2[2] = { s->g[j].rect, s->g[j].trap };
         for (int k = 0; k < 2; k++) {
             size_t w = 0;
-            if (st2[k] && s->method != FC_METHOD_IMPLICIT_RECTANGLE) {
+            if (st2[k] && saves_streams(s->method, s->memory)) {
                 st = fc_stream_save(st2[k], p + off + 8, size - (off + 8), &w);
                 if (st != FC_OK) return st; /* buf contents unspecified */
             }
@@ -886,7 +1007,7 @@ static int save(const fc_solver *s, unsigned char *buf, size_t size,
             off += 8 + w;
         }
     }
-    uint64_t rows = s->method == FC_METHOD_IMPLICIT_RECTANGLE ? s->n : 0;
+    uint64_t rows = saves_streams(s->method, s->memory) ? 0 : s->n;
     put_u64(p + off, rows);
     off += 8;
     for (size_t i = 0; i < (size_t)rows * m; i++, off += 8) put_f64(p + off, s->fh[i]);
@@ -939,8 +1060,8 @@ static int refeed(fc_solver *s, size_t rows)
 }
 
 /* A loaded stream must be what the solver would have made. */
-static int check_stream(fc_stream *x, int rule, const sv_group *g,
-                        const fc_solver *s, uint64_t count)
+static int check_stream(fc_stream *x, int rule, double order,
+                        const sv_group *g, const fc_solver *s, uint64_t count)
 {
     int r, mode;
     double a, h, tol, hz;
@@ -951,7 +1072,7 @@ static int check_stream(fc_stream *x, int rule, const sv_group *g,
         fc_stream_mode(x, &mode) || fc_stream_tol(x, &tol) ||
         fc_stream_horizon(x, &hz) || fc_stream_count(x, &cnt))
         return FC_ERR_FORMAT;
-    if (r != rule || a != g->order || h != s->step || ch != g->nc ||
+    if (r != rule || a != order || h != s->step || ch != g->nc ||
         mode != s->memory || cnt != count)
         return FC_ERR_FORMAT;
     if (s->memory == FC_MODE_COMPRESSED && (tol != s->tol || hz != s->horizon))
@@ -1030,12 +1151,15 @@ int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out)
     }
     off += 8;
     uint64_t count = f0 ? n + 1 : 0;
-    int impl = (int)method == FC_METHOD_IMPLICIT_RECTANGLE;
+    /* implicit rectangle, exact: kernel streams rebuilt from the f rows */
+    int impl = !saves_streams((int)method, (int)memory);
+    int irc = (int)method == FC_METHOD_IMPLICIT_RECTANGLE && !impl;
     for (size_t j = 0; j < s->ng; j++) {
         sv_group *g = &s->g[j];
         for (int k = 0; k < 2; k++) {
-            int want = !impl && (k == 0 ? needs_rect((int)method)
-                                        : needs_trap((int)method));
+            int want = !impl && (k == 0 ? needs_rect((int)method, (int)memory)
+                                        : needs_trap((int)method, (int)memory,
+                                                     g->order));
             if (end - off < 8) { free_solver(s); return FC_ERR_FORMAT; }
             uint64_t b = get_u64(buf + off);
             off += 8;
@@ -1046,9 +1170,12 @@ int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out)
             if (!want) continue;
             fc_stream *x = NULL;
             st = fc_stream_load(buf + off, (size_t)b, &x);
-            if (st == FC_OK)
-                st = check_stream(x, k == 0 ? FC_RULE_RECTANGLE : FC_RULE_TRAPEZOID,
-                                  g, s, count);
+            int rule = k == 0 ? FC_RULE_RECTANGLE : FC_RULE_TRAPEZOID;
+            double order = g->order;
+            uint64_t cnt = count;
+            if (irc && k == 0) cnt = n; /* f_1 .. f_n */
+            if (irc && k == 1) diff_rule(g->order, &rule, &order);
+            if (st == FC_OK) st = check_stream(x, rule, order, g, s, cnt);
             if (st != FC_OK) {
                 fc_stream_free(x);
                 free_solver(s);

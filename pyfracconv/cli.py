@@ -2,8 +2,10 @@
 
 Subcommands::
 
-    pyfracconv integral   INPUT -o OUTPUT --order A --step H [--rule R] [--columns N,...]
-    pyfracconv derivative INPUT -o OUTPUT --order A --step H [--rule R] [--columns N,...]
+    pyfracconv integral   INPUT -o OUTPUT --order A (--step H | --time-column N)
+                          [--rule R] [--columns N,...]
+    pyfracconv derivative INPUT -o OUTPUT --order A (--step H | --time-column N)
+                          [--rule R] [--columns N,...]
     pyfracconv control    INPUT -o OUTPUT --step H [--kp ..] [--live] ...
     pyfracconv chunked {integral,derivative} IN.npy -o OUT.npy --order A --step H
                           [--rule R] [--mode compressed|exact] [--tol T] [--horizon N]
@@ -16,7 +18,8 @@ Subcommands::
                         [--precision single|double] [--prefix NAME] -o DIR
 
 INPUT is a CSV file (comma separated, one optional header row of column
-names, every column a signal sampled at t_k = k*step) or a ``.npy`` file
+names, every column a signal sampled at t_k = k*step, or at the times of
+the column ``--time-column N``) or a ``.npy`` file
 (1-D, or 2-D with time along axis 0). OUTPUT is chosen by its extension:
 ``.csv``, ``.npy``, or ``-`` for CSV on standard output.
 
@@ -83,7 +86,11 @@ _INPUT_HELP = """\
 input:
   INPUT is a CSV file (comma separated) or a .npy file (by extension;
   '-' reads CSV from standard input). Every column is one signal sampled
-  at t_k = k*step, k = 0, 1, ...; the first data row is t = 0. A CSV file
+  at t_k = k*step, k = 0, 1, ...; the first data row is t = 0. With
+  --time-column N (without --live) column N holds the sample times
+  instead: the operator runs from the first time on those times (the
+  uniform engines when they are uniform within --time-tol), and the
+  times are copied to the output's first column. A CSV file
   may start with one header row of column names, which is kept in the
   output; if the first row is all numbers it is read as data and the
   output has no header. A .npy file holds a 1-D array (one signal) or a
@@ -97,6 +104,13 @@ output:
 exit status:
   0 success, 2 bad arguments or bad input (message on standard error).
 """
+
+
+#: Relative tolerance of the uniformity test of --time-column (batch): the
+#: times are taken as uniform when every step is within TIME_TOL of the
+#: mean step (decimal times written at full precision pass at any length
+#: a CSV file holds; float32 times do not).
+TIME_TOL = 1e-9
 
 
 class CliError(Exception):
@@ -180,7 +194,7 @@ def _uncommented(fh):
         yield "\n" if line.lstrip().startswith("#") else line
 
 
-def read_csv(path, columns=None, delimiter=","):
+def read_csv(path, columns=None, delimiter=",", time_index=None):
     """Read a CSV file of signals.
 
     Returns ``(data, names)``: ``data`` a float64 array of shape
@@ -192,7 +206,7 @@ def read_csv(path, columns=None, delimiter=","):
     try:
         reader = csv.reader(_uncommented(fh), delimiter=delimiter)
         try:
-            return _parse_csv(reader, label, columns, delimiter)
+            return _parse_csv(reader, label, columns, delimiter, time_index)
         except csv.Error as exc:
             raise CliError(f"{label} line {reader.line_num}: {exc}") from None
         except UnicodeDecodeError as exc:
@@ -216,7 +230,7 @@ def _delimiter_hint(text, delimiter):
     return ""
 
 
-def _parse_csv(reader, label, columns, delimiter=","):
+def _parse_csv(reader, label, columns, delimiter=",", time_index=None):
     first = None
     for row in reader:
         if not _is_blank(row):
@@ -277,6 +291,10 @@ def _parse_csv(reader, label, columns, delimiter=","):
                     f"a number{_delimiter_hint(text, delimiter)}"
                 ) from None
             if not math.isfinite(v):
+                if j == time_index:
+                    raise CliError(
+                        f"--time-column {j + 1}: {label} line {line}: time {text!r} "
+                        "is not finite (the times must be finite)")
                 raise CliError(
                     f"{label} line {line}, column {colname[j]}: {text!r} is not "
                     f"finite (NaN and infinite samples cannot be processed)"
@@ -311,7 +329,7 @@ def _parse_csv(reader, label, columns, delimiter=","):
     return data, names
 
 
-def read_npy(path, columns=None):
+def read_npy(path, columns=None, time_index=None):
     """Read a .npy file of signals: ``(data, None)`` with data 1-D or 2-D."""
     label = path
     if columns is not None:
@@ -328,6 +346,9 @@ def read_npy(path, columns=None):
     if len(bad):
         where = tuple(int(i) for i in bad[0])
         text = ", ".join(str(i) for i in where)
+        if data.ndim == 2 and where[1] == time_index:
+            raise CliError(f"--time-column {time_index + 1}: {label}: time [{text}] is "
+                           f"{show(data[where])}, not finite (the times must be finite)")
         raise CliError(
             f"{label}: element [{text}] is {show(data[where])}, not finite (NaN and "
             f"infinite samples cannot be processed)"
@@ -505,7 +526,24 @@ def _run_operator(args):
     rule = args.rule
     check_rule(rule, allowed)
     order = _real_option("order", args.order, check_order, rule)
-    step = _real_option("step", args.step, check_step)
+    grid = args.time_column is not None and not args.live
+    if grid:
+        if args.step is not None:
+            raise CliError(f"--step {args.step} with --time-column {args.time_column}: "
+                           "the column's times are the grid; give one of the two "
+                           "(--step with --time-column only with --live)")
+        step = None
+        if args.time_column < 1:
+            raise CliError(f"--time-column {args.time_column}: must be >= 1 (columns "
+                           "are counted from 1)")
+        ttol = TIME_TOL if args.time_tol is None else args.time_tol
+        if not (math.isfinite(ttol) and 0.0 <= ttol < 0.5):
+            raise CliError(f"--time-tol {args.time_tol!r}: must be in [0, 0.5)")
+    else:
+        if args.step is None:
+            raise CliError("--step: required (the sampling step), or --time-column N "
+                           "without --live to take the times from column N")
+        step = _real_option("step", args.step, check_step)
     _output_kind(args.output)
     check_not_input(args.input, args.output)
     workers = None
@@ -519,6 +557,8 @@ def _run_operator(args):
             workers = check_workers(count)
         except FracconvError as exc:
             raise CliError(f"--workers {args.workers}: out of range ({exc})") from None
+    if grid:
+        return _run_operator_on_times(args, kind, rule, order, ttol, workers)
 
     if args.live:
         if workers is not None:
@@ -554,6 +594,80 @@ def _run_operator(args):
     op = integral if kind == "integral" else derivative
     result = op(data, order, step, rule=rule, axis=0, workers=workers)
     write_output(args.output, result, names)
+    return 0
+
+
+def _uniform_step(times, tol):
+    """The step of times that are uniform within tol (relative to the mean
+    step), else None."""
+    n = times.size - 1
+    if n < 1:
+        return None
+    h = (float(times[-1]) - float(times[0])) / n
+    if not (math.isfinite(h) and h > 0.0):
+        return None
+    dev = float(np.max(np.abs(np.diff(times) - h)))
+    return h if dev <= tol * h else None
+
+
+def _run_operator_on_times(args, kind, rule, order, ttol, workers=None):
+    """integral/derivative with --time-column (batch): the column's times
+    are the grid; uniform times go to the uniform engines."""
+    col = args.time_column
+    opt = f"--time-column {col}"
+    npy = _is_npy(args.input)
+    if npy:
+        data, _ = read_npy(args.input, args.columns, time_index=col - 1)
+        if data.ndim != 2 or not 1 <= col <= data.shape[1]:
+            cols = 1 if data.ndim == 1 else data.shape[1]
+            raise CliError(f"{opt}: {args.input} has {cols} column(s)")
+        names = None
+        tname = None
+        keep = [j for j in range(data.shape[1]) if j != col - 1]
+    else:
+        data, header = read_csv(args.input, None, args.delimiter, time_index=col - 1)
+        if not 1 <= col <= data.shape[1]:
+            raise CliError(f"{opt}: the input has {data.shape[1]} column(s)")
+        label = "<stdin>" if args.input == "-" else args.input
+        if args.columns is not None:
+            if header is None:
+                raise CliError(
+                    f"--columns: {label} has no header row (its first row is all "
+                    f"numbers), so its columns have no names to select by")
+            keep = _select(label, header, args.columns)
+            if col - 1 in keep:
+                raise CliError(f"--columns {args.columns}: names the time column "
+                               f"({opt}, {header[col - 1].strip()!r}), which is the "
+                               "grid, not a signal")
+        else:
+            keep = [j for j in range(data.shape[1]) if j != col - 1]
+        names = None if header is None else [header[j] for j in keep]
+        tname = None if header is None else header[col - 1]
+    times = np.ascontiguousarray(data[:, col - 1])
+    dt = np.diff(times)
+    bad = np.flatnonzero(~(dt > 0.0))
+    if bad.size:
+        i = int(bad[0])
+        raise CliError(f"{opt}: the times must be strictly increasing: data row {i + 2} "
+                       f"has time {float(times[i + 1])!r} after {float(times[i])!r} in "
+                       f"data row {i + 1} (rows counted from 1, header excluded)")
+    x = np.ascontiguousarray(data[:, keep])
+    if x.shape[1] == 0:
+        raise CliError(f"{opt}: the input has no column besides the times")
+    op = integral if kind == "integral" else derivative
+    h = _uniform_step(times, ttol)
+    if h is not None:
+        result = op(x, order, h, rule=rule, axis=0, workers=workers)
+    else:
+        if rule == "grunwald":
+            raise CliError(
+                f"--rule grunwald with {opt}: the times are not uniform (within "
+                f"--time-tol {ttol:g}) and the Grunwald-Letnikov rule has no "
+                "standard form on a non-uniform grid; use --rule l1 (Caputo, "
+                "0 < A < 1)")
+        result = op(x, order, rule=rule, axis=0, t=times, workers=workers)
+    out = np.column_stack([times, result])
+    write_output(args.output, out, None if names is None else [tname] + names)
     return 0
 
 
@@ -741,11 +855,13 @@ def _order_text(rule):
     return range_text(order_range(rule, int(lib.FC_MODE_EXACT))).replace("order", "A")
 
 
-def _add_order_step(p, order_help):
+def _add_order_step(p, order_help, step_required=True):
     """--order and --step, shared by the operator commands and chunked."""
     p.add_argument("--order", metavar="A", required=True, help=order_help)
-    p.add_argument("--step", metavar="H", required=True,
-                   help="sampling step h > 0 (t_k = k*h)")
+    p.add_argument("--step", metavar="H", required=step_required,
+                   help="sampling step h > 0 (t_k = k*h)" + (
+                       "" if step_required else
+                       "; required unless --time-column gives the times (without --live)"))
 
 
 def _add_controller_options(c):
@@ -785,7 +901,8 @@ def _add_operator(sub, name, rules, default, what, description):
     p.add_argument("-o", "--output", metavar="OUTPUT", required=True,
                    help="output file, .csv or .npy ('-': CSV on standard output)")
     _add_order_step(p, "order of the operator ("
-                    + "; ".join(f"{r}: {_order_text(r)}" for r in rules) + ")")
+                    + "; ".join(f"{r}: {_order_text(r)}" for r in rules) + ")",
+                    step_required=False)
     p.add_argument("--rule", metavar="RULE", default=default,
                    help=f"{' or '.join(rules)} (default {default})")
     p.add_argument("--columns", metavar="NAME,NAME...",
@@ -794,12 +911,12 @@ def _add_operator(sub, name, rules, default, what, description):
                    help="threads (SciPy's convention: 1 the default, -1 every CPU, "
                         "-2 all but one); the output is the same bit for bit for "
                         "every N; not with --live")
-    _add_io_options(p)
+    _add_io_options(p, grid_times=True)
     p.set_defaults(func=_run_operator)
     return p
 
 
-def _add_io_options(p):
+def _add_io_options(p, grid_times=False):
     p.add_argument("--delimiter", metavar="CHAR", default=",",
                    help="field separator of the CSV input and output (default ','); "
                         "lines starting with '#' are comments and are skipped")
@@ -807,12 +924,29 @@ def _add_io_options(p):
                    help="read standard input line by line and write each output "
                         "line as soon as its input line has arrived, flushed "
                         "(INPUT and OUTPUT must be '-'); for piping a data logger")
+    if not grid_times:
+        p.add_argument("--time-column", metavar="N", type=int,
+                       help="--live: column N (1-based) holds the time; it is not "
+                            "processed but copied to the output's first column")
+        p.add_argument("--time-tol", metavar="REL", type=float,
+                       help="--live with --time-column: check that each time step "
+                            "equals --step within REL*step; report on stderr when not")
+        return
     p.add_argument("--time-column", metavar="N", type=int,
-                   help="--live: column N (1-based) holds the time; it is not "
-                        "processed but copied to the output's first column")
+                   help="column N (1-based) holds the sample times; it is not "
+                        "processed but copied to the output's first column. "
+                        "Without --live the times are the grid (no --step): "
+                        "finite, strictly increasing; when every step equals "
+                        "(t_last - t_first)/(rows - 1) within --time-tol "
+                        f"(default {TIME_TOL:g}) of it the uniform engines run "
+                        "with that step, else the rules on the given times "
+                        "(rectangle, trapezoid, l1; grunwald needs uniform times). "
+                        "With --live: the times are copied and the step is --step")
     p.add_argument("--time-tol", metavar="REL", type=float,
-                   help="--live with --time-column: check that each time step "
-                        "equals --step within REL*step; report on stderr when not")
+                   help="with --time-column: without --live, the relative "
+                        f"tolerance of the uniformity test (default {TIME_TOL:g}); "
+                        "with --live, check that each time step equals --step "
+                        "within REL*step and report on stderr when not")
 
 
 _CHUNKED_HELP = """\

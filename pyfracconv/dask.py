@@ -82,10 +82,13 @@ def _as_dask(name: str, x: object) -> Any:
     return x
 
 
-def _block_op(block: Any, op: str, order: float, step: float, rule: str, axis: int,
-              engine: str, block_info: Any = None) -> FloatArray:
+def _block_op(block: Any, op: str, order: float, step: Optional[float], rule: str,
+              axis: int, engine: str, block_info: Any = None, t: Any = None,
+              tol: Optional[float] = None) -> FloatArray:
     fn = _np_integral if op == "integral" else _np_derivative
     try:
+        if t is not None:
+            return fn(block, order, rule=rule, axis=axis, engine=engine, t=t, tol=tol)
         return fn(block, order, step, rule=rule, axis=axis, engine=engine)
     except SampleError:
         starts = [0] * block.ndim
@@ -102,8 +105,43 @@ def _block_op(block: Any, op: str, order: float, step: float, rule: str, axis: i
         ) from None
 
 
+def _apply_times(op: str, x: object, order: object, t: object, rule: object,
+                 axis: object, engine: object, tol: object) -> Any:
+    """The operators with sample times: every argument checked now (by the
+    NumPy function on the first two times, whose messages are the ones of
+    a whole call), then each block through the NumPy function."""
+    from .grid import check_times
+
+    arr = _as_dask("x", x)
+    ax = check_axis(axis, arr.ndim)
+    tt = check_times(t, int(arr.shape[ax]))
+    fn = _np_integral if op == "integral" else _np_derivative
+    fn(np.zeros(min(2, tt.size)), order, rule=rule, engine=engine, t=tt[:2],  # type: ignore[arg-type]
+       tol=tol)  # type: ignore[arg-type]
+    if len(arr.chunks[ax]) > 1:
+        arr = arr.rechunk({ax: -1})
+    return arr.map_blocks(_block_op, op, check_real("order", order), None, str(rule), ax,
+                          str(engine), t=tt, tol=None if tol is None else check_real("tol", tol),
+                          dtype=np.float64, meta=np.empty((0,) * arr.ndim))
+
+
 def _apply(op: str, x: object, order: object, step: object, rule: object, axis: object,
-           engine: object) -> Any:
+           engine: object, t: object = None, tol: object = None) -> Any:
+    if step is not None and t is not None:
+        raise ArgumentError(
+            f"step={show(step)} and t: give exactly one of step (a uniform grid "
+            "t_k = k*step) or t (the sample times), not both")
+    if step is None and t is None:
+        raise InputTypeError(
+            "step=None and t=None: give exactly one of step (a uniform grid "
+            "t_k = k*step) or t (the sample times)")
+    if t is not None:
+        return _apply_times(op, x, order, t, rule, axis, engine, tol)
+    if tol is not None:
+        raise ArgumentError(
+            f"tol={show(tol)}: a tolerance is taken only with t= (the fast "
+            "engine on a grid of times); the uniform engines are accurate to "
+            "rounding")
     allowed = INTEGRAL_RULES if op == "integral" else DERIVATIVE_RULES
     check_rule(rule, allowed)
     a = check_order(order, rule)
@@ -117,8 +155,9 @@ def _apply(op: str, x: object, order: object, step: object, rule: object, axis: 
                           dtype=np.float64, meta=np.empty((0,) * arr.ndim))
 
 
-def integral(x: Any, order: float, step: float, rule: str = "rectangle",
-             axis: int = -1, engine: str = "auto") -> Any:
+def integral(x: Any, order: float, step: Optional[float] = None,
+             rule: str = "rectangle", axis: int = -1, engine: str = "auto", *,
+             t: Any = None, tol: Optional[float] = None) -> Any:
     """:func:`pyfracconv.integral` of a Dask array, lazily.
 
     Parameters
@@ -131,6 +170,13 @@ def integral(x: Any, order: float, step: float, rule: str = "rectangle",
         Dask array is wrapped as one block.
     order, step, rule, axis, engine
         As for :func:`pyfracconv.integral`.
+    t, tol : optional
+        Sample times instead of ``step`` (one per sample along ``axis``,
+        finite, strictly increasing) and the fast engine's tolerance, as
+        for :func:`pyfracconv.integral`; checked at the call. Each block
+        goes through ``pyfracconv.integral(block, ..., t=t)``; the engine
+        chosen by ``'auto'`` depends on the number of times only, the same
+        for every block.
 
     Returns
     -------
@@ -165,11 +211,12 @@ def integral(x: Any, order: float, step: float, rule: str = "rectangle",
            [0. , 0.5, 1. ],
            [0. , 0.5, 1. ]])
     """
-    return _apply("integral", x, order, step, rule, axis, engine)
+    return _apply("integral", x, order, step, rule, axis, engine, t, tol)
 
 
-def derivative(x: Any, order: float, step: float, rule: str = "grunwald",
-               axis: int = -1, engine: str = "auto") -> Any:
+def derivative(x: Any, order: float, step: Optional[float] = None,
+               rule: str = "grunwald", axis: int = -1, engine: str = "auto", *,
+               t: Any = None, tol: Optional[float] = None) -> Any:
     """:func:`pyfracconv.derivative` of a Dask array, lazily.
 
     Parameters
@@ -178,6 +225,8 @@ def derivative(x: Any, order: float, step: float, rule: str = "grunwald",
         As for :func:`integral`.
     order, step, rule, axis, engine
         As for :func:`pyfracconv.derivative`.
+    t, tol : optional
+        As for :func:`integral` (rule ``'l1'`` with ``t``).
 
     Returns
     -------
@@ -206,7 +255,7 @@ def derivative(x: Any, order: float, step: float, rule: str = "grunwald",
     array([[0., 2., 6.],
            [2., 0., 0.]])
     """
-    return _apply("derivative", x, order, step, rule, axis, engine)
+    return _apply("derivative", x, order, step, rule, axis, engine, t, tol)
 
 
 # ------------------------------------------------------------ solver
@@ -227,7 +276,7 @@ def _row(params: Any, i: int) -> Any:
 
 
 def _solve_block(block: Any, first: int, rhs: Callable[..., Any], y0: Any, order: Any,
-                 dy0: Any, jacobian: Any, step: float, n_steps: int, m: int,
+                 dy0: Any, jacobian: Any, step: Optional[float], n_steps: int, m: int,
                  scalar: bool, options: dict[str, Any]) -> FloatArray:
     from .solve import solve
 
@@ -245,7 +294,9 @@ def _solve_block(block: Any, first: int, rhs: Callable[..., Any], y0: Any, order
             raise ArgumentError(f"params[{i}]={show(p)}: y0, order or dy0 raised "
                                 f"{type(exc).__name__}: {exc}") from exc
         try:
-            res = solve((lambda t, y, p=p: rhs(t, y, p)), y0k, ok, step, n_steps,
+            # options holds t= on a grid (step is then None)
+            where: tuple[Any, ...] = () if step is None else (step, n_steps)
+            res = solve((lambda t, y, p=p: rhs(t, y, p)), y0k, ok, *where,
                         dy0=dk, jacobian=(None if jacobian is None else
                                           (lambda t, y, p=p: jacobian(t, y, p))),
                         **options)
@@ -265,7 +316,8 @@ def _solve_block(block: Any, first: int, rhs: Callable[..., Any], y0: Any, order
 
 
 def solve_many(rhs: Callable[..., Any], params: Any, y0: Value, order: Value,
-               step: float, n_steps: int, *, dy0: Optional[Value] = None,
+               step: Optional[float] = None, n_steps: Optional[int] = None, *,
+               t: Any = None, dy0: Optional[Value] = None,
                chunk: Optional[int] = None, jacobian: Optional[Callable[..., Any]] = None,
                **options: Any) -> Tuple[FloatArray, Any]:
     """:func:`pyfracconv.solve` for many independent parameter sets, lazily.
@@ -286,6 +338,10 @@ def solve_many(rhs: Callable[..., Any], params: Any, y0: Value, order: Value,
         returning it (``order=lambda p: p[0]`` sweeps the order). Every set
         must give the same number of components.
     step, n_steps : as for :func:`pyfracconv.solve`
+    t : array_like, optional
+        The grid instead of ``step`` and ``n_steps``, as for
+        :func:`pyfracconv.solve` (methods ``'rectangle'`` and
+        ``'predictor-corrector'``; ``t0`` is ``t[0]``).
     chunk : int, optional
         Sets per task (default: P / 256 rounded up, at most 256 tasks, for
         NumPy ``params``; a Dask ``params`` keeps its chunks unless
@@ -300,7 +356,8 @@ def solve_many(rhs: Callable[..., Any], params: Any, y0: Value, order: Value,
     Returns
     -------
     t : ndarray of shape (n_steps + 1,)
-        The grid, ``solve(...).t`` of every set (``t0 + n * step``).
+        The grid, ``solve(...).t`` of every set (``t0 + n * step``, or a
+        copy of ``t``).
     y : dask.array.Array of shape (P, n_steps + 1) or (P, n_steps + 1, m)
         Row i is ``solve(...).y`` of set i, bit for bit, when computed.
 
@@ -341,8 +398,43 @@ def solve_many(rhs: Callable[..., Any], params: Any, y0: Value, order: Value,
     if "progress" in options:
         raise ArgumentError("progress: not available in solve_many (use Dask's own "
                             "progress reporting, e.g. dask.diagnostics.ProgressBar)")
-    n = check_count("n_steps", n_steps, 0)
-    h = check_step(step)
+    times = None
+    if t is not None:
+        from .grid import check_times
+        from .solve_grid import GRID_METHODS, grid_method_error
+
+        if step is not None or n_steps is not None:
+            given = ", ".join(f"{k}={show(v)}" for k, v in (("step", step),
+                                                           ("n_steps", n_steps))
+                              if v is not None)
+            raise ArgumentError(f"t and {given}: give either the grid t or step and "
+                                "n_steps, not both")
+        times = check_times(t)
+        if times.size == 0:
+            raise ArgumentError("t: empty; expected at least the start time t[0]")
+        for key, why in (("t0", "the problem starts at t[0]"),
+                         ("horizon", "only compressed memory and 'implicit-rectangle' "
+                                     "on a uniform grid use it")):
+            if key in options:
+                raise ArgumentError(f"{key}={show(options[key])}: not used with t= ({why})")
+        meth = options.get("method", "predictor-corrector")
+        if isinstance(meth, str) and meth not in GRID_METHODS and meth in (
+                "trapezoid", "implicit-rectangle"):
+            raise grid_method_error(meth)
+        if options.get("memory", "exact") != "exact":
+            raise ArgumentError(f"memory={show(options['memory'])}: not available with "
+                                "t= (the grid solver keeps every f value); use "
+                                "memory='exact'")
+        n = int(times.size) - 1
+        h = 1.0
+    else:
+        if step is None or n_steps is None:
+            missing = " and ".join(k for k, v in (("step", step), ("n_steps", n_steps))
+                                   if v is None)
+            raise ArgumentError(f"{missing}=None: give step and n_steps (a uniform "
+                                "grid) or t= (the grid's times)")
+        n = check_count("n_steps", n_steps, 0)
+        h = check_step(step)
     refuse_masked("params", params)
     P_arr: Any
     if isinstance(params, da.Array):
@@ -381,7 +473,7 @@ def solve_many(rhs: Callable[..., Any], params: Any, y0: Value, order: Value,
                               chunks=(chunk,) + ((-1,) if P_arr.ndim == 2 else ()))
     p0 = _row(first, 0)
     opts = dict(options)
-    t0 = check_real("t0", opts.get("t0", 0.0))
+    t0 = float(times[0]) if times is not None else check_real("t0", opts.get("t0", 0.0))
     known = {"t0", "method", "memory", "tol", "horizon", "corrections", "newton_tol",
              "newton_maxiter"}
     for key in opts:
@@ -407,14 +499,18 @@ def solve_many(rhs: Callable[..., Any], params: Any, y0: Value, order: Value,
                  opts.get("newton_maxiter", 50))
     m, scalar = int(chk["m"]), bool(chk["scalar"])
     tail = () if scalar else (m,)
+    if times is not None:
+        opts["t"] = times
     blocks = P_arr.to_delayed().ravel()
     starts = np.concatenate(([0], np.cumsum(P_arr.chunks[0])[:-1])).astype(int)
     parts = []
     task = dask.delayed(_solve_block, pure=False)
     for blk, s0, size in zip(blocks, starts, P_arr.chunks[0]):
-        d = task(blk, int(s0), rhs, y0, order, dy0, jacobian, h, n, m, scalar, opts)
+        d = task(blk, int(s0), rhs, y0, order, dy0, jacobian,
+                 None if times is not None else h, n, m, scalar, opts)
         parts.append(da.from_delayed(d, shape=(int(size), n + 1) + tail,
                                      dtype=np.float64, meta=np.empty((0,) * (2 + len(tail)))))
     y = da.concatenate(parts, axis=0)
-    t = t0 + np.arange(n + 1, dtype=np.float64) * h
-    return t, y
+    if times is not None:
+        return times.copy(), y
+    return t0 + np.arange(n + 1, dtype=np.float64) * h, y

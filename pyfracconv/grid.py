@@ -34,12 +34,13 @@ from ._checks import (
     as_float_array,
     check_count,
     check_order,
+    check_real,
     check_rule,
     show,
 )
 from ._errors import ArgumentError, RangeError
 
-__all__ = ["grid_weights", "check_times", "GRID_RULES"]
+__all__ = ["grid_weights", "check_times", "graded_mesh", "GRID_RULES"]
 
 FloatArray = NDArray[np.float64]
 
@@ -307,6 +308,9 @@ def grid_weights(rule: str, order: float, t: ArrayLike, n: int | None = None) ->
 # Elements of one block of weights (rows of n times columns of k): bounds
 # the engine's work space to a few tens of MiB whatever the record length.
 _BLOCK = 1 << 18
+# Elements of one block of products of weights and samples (signals are
+# taken in groups that fit).
+_PRODUCTS = 1 << 20
 
 
 def apply_on_grid(rule: str, a: float, block: FloatArray, t: FloatArray) -> FloatArray:
@@ -326,9 +330,11 @@ def apply_on_grid(rule: str, a: float, block: FloatArray, t: FloatArray) -> Floa
     src = np.diff(block, axis=1) if rule == "l1" else block
     n0 = 1
     while n0 < N:
-        # rows * (n0 + rows) weights (and nsig times that many products)
-        # at most _BLOCK, at least one row
-        budget = _BLOCK / max(1, nsig)
+        # rows * (n0 + rows) weights at most _BLOCK, at least one row; the
+        # rows do not depend on the number of signals, so that each output
+        # is the same sum of the same length whatever signals come with it
+        # (a signal gives the same bits alone or in a batch)
+        budget = _BLOCK
         rows = int((math.sqrt(n0 * n0 + 4.0 * budget) - n0) / 2.0)
         rows = max(1, min(N - n0, rows))
         n1 = n0 + rows                                # rows n0 .. n1-1
@@ -354,7 +360,84 @@ def apply_on_grid(rule: str, a: float, block: FloatArray, t: FloatArray) -> Floa
             raise RangeError(
                 f"t (or order={show(a)}): a weight is beyond the double range "
                 f"(times up to {show(float(t[-1]))})")
-        prod = w[None, :, :] * x[:, None, :]
-        out[:, n0:n1] = np.sum(prod, axis=-1)
+        # the products of at most _PRODUCTS elements at a time
+        group = max(1, _PRODUCTS // w.size)
+        for s0 in range(0, nsig, group):
+            prod = w[None, :, :] * x[s0:s0 + group, None, :]
+            out[s0:s0 + group, n0:n1] = np.sum(prod, axis=-1)
         n0 = n1
     return out
+
+
+# ---------------------------------------------------------------- meshes
+
+def graded_mesh(T: float, n: int, r: float, t0: float = 0.0) -> FloatArray:
+    """The graded mesh t_k = t0 + T (k/n)^r, k = 0 .. n.
+
+    With r > 1 the steps are small near t0 and grow away from it, which
+    restores the order of convergence of the product rules and the L1
+    scheme for functions that behave like (t - t0)^a near t0 (Stynes,
+    O'Riordan and Gracia, SIAM J. Numer. Anal. 55 (2017); Liu, Roberts and
+    Yan, Int. J. Comput. Math. 95 (2018)); r = 1 is the uniform grid.
+
+    Parameters
+    ----------
+    T : float
+        Length of the interval, finite and > 0.
+    n : int
+        Number of steps, >= 1.
+    r : float
+        Grading exponent, 1 <= r <= 100.
+    t0 : float, optional
+        First time (default 0), finite.
+
+    Returns
+    -------
+    numpy.ndarray
+        The n+1 times; the first is t0 and the last t0 + T.
+
+    Raises
+    ------
+    ArgumentError
+        T, r or t0 out of range, or the times not strictly increasing in
+        double precision (n and r too large for T and t0: the first steps
+        vanish).
+    InputTypeError
+        A non-numeric argument, n not an integer.
+
+    See Also
+    --------
+    pyfracconv.solve : with ``t=``, the solver on such a mesh.
+    pyfracconv.integral, pyfracconv.derivative : with ``t=``.
+
+    Examples
+    --------
+    The steps grow like k^(r-1) (here r = 2, T = 1, n = 4: (k/4)^2):
+
+    >>> from pyfracconv.grid import graded_mesh
+    >>> graded_mesh(1.0, 4, 2.0).tolist()
+    [0.0, 0.0625, 0.25, 0.5625, 1.0]
+    """
+    Tf = check_real("T", T)
+    if not (math.isfinite(Tf) and Tf > 0.0):
+        raise ArgumentError(f"T={show(T)}: must be finite and > 0")
+    N = check_count("n", n, 1)
+    rf = check_real("r", r)
+    if not (1.0 <= rf <= 100.0):
+        raise ArgumentError(f"r={show(r)}: must be in [1, 100]")
+    t0f = check_real("t0", t0)
+    if not math.isfinite(t0f):
+        raise ArgumentError(f"t0={show(t0)}: must be finite")
+    with np.errstate(over="ignore", under="ignore"):
+        t = t0f + Tf * np.power(np.arange(N + 1) / N, rf)
+    if not np.all(np.isfinite(t)):
+        raise ArgumentError(f"T={show(T)}, t0={show(t0)}: the last time is beyond "
+                            "the double range")
+    bad = np.flatnonzero(~(np.diff(t) > 0.0))
+    if bad.size:
+        i = int(bad[0])
+        raise ArgumentError(
+            f"n={N}, r={show(r)}: t[{i + 1}] = t[{i}] = {show(float(t[i]))} in "
+            f"double precision (T={show(T)}, t0={show(t0)}); use fewer steps or a "
+            "smaller r")
+    return t

@@ -6,13 +6,16 @@ Taylor polynomial of the initial values (Diethelm, The Analysis of
 Fractional Differential Equations, Springer 2010), by the library's product
 rules applied to f along the solution (the C solver in ``csrc/solver.c``).
 The history sums of the f values are kept by the library's streams, exact
-or compressed.
+or compressed. On a given grid (``solve(..., t=grid)``) the explicit
+rectangle rule and the predictor-corrector run in Python over the weights
+of :mod:`pyfracconv.grid` (:mod:`pyfracconv.solve_grid`).
 """
 
 from __future__ import annotations
 
 import math
 import struct
+import sys
 import threading
 
 import numpy as np
@@ -162,6 +165,26 @@ def _fc_py_rhs1(t, y, user):
 def _bad(run, v, t):
     run.fail = ("shape", v, t)
     return _NAN
+
+
+def _rhs1_slow(run):
+    """The rest of _fc_py_rhs1 for the direct C path (_fc_py_rhs1_direct,
+    setup_build.py), which handles a float result itself: a recorded
+    exception, or another type converted or refused, as _fc_py_rhs1."""
+    def slow(t, v, raised):
+        if raised:
+            run.fail = ("raised", v, t)
+            return _NAN
+        try:
+            return float(v) if np.ndim(v) == 0 else _bad(run, v, t)
+        except Exception:
+            return _bad(run, v, t)
+    return slow
+
+
+# The scalar rhs called straight from C with the Python C API: CPython
+# only (object addresses are id()); elsewhere the cffi callback.
+_DIRECT = sys.implementation.name == "cpython"
 
 
 @ffi.def_extern()
@@ -324,12 +347,7 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
         raise ArgumentError(f"newton_tol={show(newton_tol)}: must be in [1e-15, 1e-2]")
     nmax = check_count("newton_maxiter", newton_maxiter, 1, 1000)
     tolf, hz = 0.0, 0.0
-    if meth == "implicit-rectangle":
-        if mem == "compressed":
-            raise ArgumentError(
-                "memory='compressed', method='implicit-rectangle': not available "
-                "(the right-end-point rule has no compressed stream); use "
-                "memory='exact'")
+    if meth == "implicit-rectangle" and mem == "exact":
         if horizon is None:
             raise ArgumentError(
                 "horizon=None: required for method='implicit-rectangle' (the "
@@ -338,7 +356,7 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
         if not (1.0 <= hz <= 2.0 ** 28):
             raise ArgumentError(
                 f"horizon={show(horizon)}: must be in [1, 2**28] for "
-                "method='implicit-rectangle'")
+                "method='implicit-rectangle' with memory='exact'")
     if mem == "compressed":
         if horizon is None:
             raise ArgumentError(
@@ -346,18 +364,34 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
                 "steps the tolerance is promised for)"
             )
         tolf, hz = check_compressed(tol, horizon)
-        # the history sums of the rectangle method use the product rectangle
-        # rule, every other method the product trapezoidal rule
-        rule = "rectangle" if meth == "rectangle" else "trapezoid"
-        rng = order_range(rule, int(lib.FC_MODE_COMPRESSED))
+        cmode = int(lib.FC_MODE_COMPRESSED)
         for i, a in enumerate(orders):
             where = "" if oa.ndim == 0 else f"[{i}]"
-            if not in_range(rng, float(a)):
-                raise ArgumentError(
-                    f"order{where}={show(float(a))}, method={meth!r}: memory='compressed' "
-                    f"serves this method ({rule} rule) for {range_text(rng)}; use "
-                    "memory='exact'" + ("" if meth == "rectangle" else " or method='rectangle'")
-                )
+            a = float(a)
+            # the streams each method keeps (csrc/solver.c): the rectangle
+            # method the product rectangle rule; the implicit rectangle
+            # method the rectangle rule and, for its weight differences,
+            # the L1 rule of order 1 - a (a < 1) or the trapezoid rule of
+            # order a - 1 (a > 1); the others the rectangle and trapezoid rules
+            if meth == "rectangle":
+                needs = [("rectangle", a, "rectangle rule")]
+            elif meth == "implicit-rectangle":
+                needs = [("rectangle", a, "rectangle rule")]
+                if a < 1.0:
+                    needs.append(("l1", 1.0 - a, "L1 rule of order 1 - a"))
+                elif a > 1.0:
+                    needs.append(("trapezoid", a - 1.0, "trapezoid rule of order a - 1"))
+            else:
+                needs = [("rectangle", a, "rectangle rule"), ("trapezoid", a, "trapezoid rule")]
+            for rule, b, what in needs:
+                rng = order_range(rule, cmode)
+                if not in_range(rng, b):
+                    raise ArgumentError(
+                        f"order{where}={show(a)}, method={meth!r}: memory='compressed' "
+                        f"serves this method ({what}) for {range_text(rng)}"
+                        + ("" if b == a else f" (here {show(b)})")
+                        + "; use memory='exact'"
+                    )
     return dict(m=m, scalar=scalar, orders=np.ascontiguousarray(orders), h=h, t0=t0f,
                 init=init, method=meth, memory=mem, tol=tolf, horizon=hz, corr=corr,
                 ntol=ntol, nmax=nmax, rhs=rhs, jacobian=jacobian)
@@ -378,7 +412,8 @@ def _status_error(st, what):
 class Stepper:
     """A Caputo initial value problem advanced step by step (co-simulation,
     checkpoints). Arguments as for :func:`solve`; ``horizon`` (in steps) is
-    required for ``memory='compressed'`` and ``method='implicit-rectangle'``.
+    required for ``memory='compressed'`` and for ``method='implicit-rectangle'``
+    with exact memory.
 
     ``advance(n)`` returns the n new times and states; :attr:`t`, :attr:`y`,
     :attr:`steps`, :attr:`rhs_evals`, :attr:`jac_evals` tell where it is;
@@ -432,8 +467,20 @@ class Stepper:
     def _set_callbacks(self, rhs, jacobian):
         self._run = _Run(rhs, jacobian, self._m, self._scalar)
         self._handle = ffi.new_handle(self._run)
-        fn = lib._fc_py_rhs1_bridge if self._scalar else lib._fc_py_rhs
-        raise_for_status(lib.fc_solver_set_rhs(self._s, fn, self._handle), "rhs")
+        user = self._handle
+        if self._scalar and _DIRECT:
+            # the C bridge calls rhs itself (one C-to-Python crossing less
+            # per call); the objects whose addresses it holds are kept here
+            slow = _rhs1_slow(self._run)
+            call = ffi.new("_fc_py_call1 *")
+            call.fn = ffi.cast("void *", id(rhs))
+            call.slow = ffi.cast("void *", id(slow))
+            self._direct = (rhs, slow, call)
+            fn, user = lib._fc_py_rhs1_direct, call
+        else:
+            self._direct = None
+            fn = lib._fc_py_rhs1_bridge if self._scalar else lib._fc_py_rhs
+        raise_for_status(lib.fc_solver_set_rhs(self._s, fn, user), "rhs")
         raise_for_status(lib.fc_solver_set_jacobian(
             self._s, lib._fc_py_jac if jacobian is not None else ffi.NULL,
             self._handle), "jacobian")
@@ -742,12 +789,12 @@ def _tqdm():
     return tqdm
 
 
-def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
+def solve(rhs, y0, order, step=None, n_steps=None, *, t=None, dy0=None, t0=None,
           method="predictor-corrector", memory="exact", tol=1e-12, horizon=None,
           jacobian=None, corrections=1, progress=False, newton_tol=1e-12,
           newton_maxiter=50):
     """Solve the Caputo initial value problem D^a y = f(t, y) on
-    t_n = t0 + n*step, n = 0 .. n_steps.
+    t_n = t0 + n*step, n = 0 .. n_steps, or on a given grid ``t``.
 
     Parameters
     ----------
@@ -761,30 +808,41 @@ def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
         The order a, 0 < a <= 2, one for all components or one per
         component.
     step : float
-        Grid step h > 0.
+        Grid step h > 0 (with ``n_steps``; not with ``t``).
     n_steps : int
         Number of steps, >= 0.
+    t : array_like, optional
+        The grid instead of ``step`` and ``n_steps``: times t_0 < t_1 <
+        ... (finite, strictly increasing; graded meshes from
+        :func:`pyfracconv.grid.graded_mesh`); the problem starts at t[0].
+        Methods ``'rectangle'`` and ``'predictor-corrector'`` (their
+        non-uniform forms: Liu, Roberts and Yan, Int. J. Comput. Math. 95
+        (2018) and Numer. Algorithms 78 (2018)), exact memory, a direct
+        O(N^2) engine in Python over the weights of
+        :func:`pyfracconv.grid.grid_weights` (fine up to about 2e4 steps).
     dy0 : float or array_like, optional
         y'(t0); required when some order exceeds 1, refused otherwise.
     t0 : float, optional
+        Start time (default 0) of the uniform grid; not with ``t``.
     method : {'predictor-corrector', 'rectangle', 'trapezoid', 'implicit-rectangle'}, optional
         Explicit product rectangle rule (order 1); the predictor-corrector
         of Diethelm, Ford and Freed 2002 (order min(2, 1+a) for smooth
         solutions); the implicit product trapezoidal rule with Newton's
         method (Garrappa 2015), order 2, for stiff problems with smooth
         solutions; the implicit product rectangle rule (right end points,
-        order 1, exact memory only), strongly damped, for stiff problems
-        whose solution is not smooth at t0.
+        order 1), strongly damped, for stiff problems whose solution is not
+        smooth at t0.
     memory : {'exact', 'compressed'}, optional
         Exact history sums (O(N log^2 N) work in all, memory grows with N)
         or compressed ones (bounded memory, relative tolerance ``tol`` over
-        ``horizon`` steps; orders < 2 for ``'rectangle'``,
-        ``'predictor-corrector'`` and ``'trapezoid'``).
+        ``horizon`` steps; orders < 2 for every method; for
+        ``'implicit-rectangle'`` orders above 2**-54).
     tol : float, optional
         Tolerance of the compressed history sums, in [1e-15, 1e-2].
     horizon : float, optional
         Steps the compressed tolerance is promised for, and the steps
-        ``'implicit-rectangle'`` can take (default n_steps).
+        ``'implicit-rectangle'`` with exact memory can take (at most 2**28;
+        default n_steps).
     jacobian : callable, optional
         ``jacobian(t, y)`` -> df/dy, shape (m, m) (a number for a scalar
         problem); implicit methods only; default forward differences.
@@ -813,6 +871,21 @@ def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
     NewtonError
         Newton's method did not converge (with ``.partial``).
     """
+    if t is not None:
+        if step is not None or n_steps is not None:
+            given = ", ".join(f"{k}={show(v)}" for k, v in (("step", step), ("n_steps", n_steps))
+                              if v is not None)
+            raise ArgumentError(f"t and {given}: give either the grid t or step and "
+                                "n_steps, not both")
+        return _solve_grid(rhs, y0, order, t, dy0, t0, method, memory, tol, horizon,
+                           jacobian, corrections, progress, newton_tol, newton_maxiter)
+    if step is None or n_steps is None:
+        missing = " and ".join(k for k, v in (("step", step), ("n_steps", n_steps))
+                               if v is None)
+        raise ArgumentError(f"{missing}=None: give step and n_steps (a uniform grid) "
+                            "or t= (the grid's times)")
+    if t0 is None:
+        t0 = 0.0
     n = check_count("n_steps", n_steps, 0, SIZE_MAX - 1)
     if not isinstance(progress, (bool, np.bool_)):
         raise InputTypeError(f"progress={show(progress)}: expected True or False")
@@ -856,3 +929,38 @@ def solve(rhs, y0, order, step, n_steps, *, dy0=None, t0=0.0,
                     bar.update(c)
     rc, jc = st._counts()
     return SolveResult(t, shape(y), rc, jc, st._method, st._memory)
+
+
+def _solve_grid(rhs, y0, order, t, dy0, t0, method, memory, tol, horizon, jacobian,
+                corrections, progress, newton_tol, newton_maxiter):
+    """solve() with t=: the arguments checked, then the grid engine."""
+    from .grid import check_times
+    from .solve_grid import GRID_METHODS, grid_method_error, solve_on_grid
+
+    times = check_times(t)
+    if times.size == 0:
+        raise ArgumentError("t: empty; expected at least the start time t[0]")
+    if t0 is not None:
+        raise ArgumentError(f"t0={show(t0)}: not used with t= (the problem starts at "
+                            f"t[0]={show(float(times[0]))})")
+    meth = _check_method(method)
+    if meth not in GRID_METHODS:
+        raise grid_method_error(meth)
+    mem = _check_memory(memory)
+    if mem != "exact":
+        raise ArgumentError(f"memory={mem!r}: not available with t= (the grid solver "
+                            "keeps every f value); use memory='exact'")
+    if horizon is not None:
+        raise ArgumentError(f"horizon={show(horizon)}: not used with t= (only by "
+                            "compressed memory and 'implicit-rectangle' on a uniform grid)")
+    if not isinstance(progress, (bool, np.bool_)):
+        raise InputTypeError(f"progress={show(progress)}: expected True or False")
+    bar_cls = _tqdm() if progress else None
+    p = _setup(rhs, y0, order, 1.0, dy0, float(times[0]), meth, mem, tol, None,
+               jacobian, corrections, newton_tol, newton_maxiter)
+    n = times.size - 1
+    check_bytes(f"t ({n + 1} times)", 8 * (n + 1) * (2 * p["m"] + 1))
+    if bar_cls is None:
+        return solve_on_grid(p, times, None, SolveResult)
+    with bar_cls(total=n, unit="step") as bar:
+        return solve_on_grid(p, times, bar, SolveResult)

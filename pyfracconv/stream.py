@@ -478,7 +478,9 @@ class Stream:
             order, step, tol or horizon not a real number, channels not an
             integer.
         RangeError
-            The kernel is beyond the double range (step or order too large).
+            The kernel is beyond the double range (step or order too large;
+            exact mode, rules other than L1: also orders below about
+            1e-297, which the batch functions take).
         OutOfMemory
             The stream cannot be allocated.
 

@@ -674,3 +674,168 @@ def test_workers_option_same_output_and_refusals(tmp_path, capsys):
                            "--order", "0.5", "--step", "0.01", "--workers", bad)
         assert_clean_error(code, err, "--workers", frag)
         assert not (tmp_path / "bad.npy").exists()
+
+
+# ---------------------------------------------------------------- --time-column (batch)
+
+def _timed_csv(path, t, x, names=("time", "f", "g")):
+    write_csv(path, list(names), [[ti, *xi] for ti, xi in zip(t, x)])
+
+
+def test_time_column_is_the_grid_closed_form(tmp_path, capsys):
+    # I^a 1 = t^a / Gamma(a+1) (Podlubny 1999): the rectangle rule is exact
+    # for constants on any grid (its weights telescope), so the output
+    # equals the closed form at the given times, measured from the first
+    rng = np.random.default_rng(3)
+    t = 2.0 + np.cumsum(rng.uniform(0.001, 0.05, 40))
+    x = np.column_stack([np.ones(40), np.sin(t)])
+    src, out = tmp_path / "in.csv", tmp_path / "out.csv"
+    _timed_csv(src, t, x)
+    code, _, err = run(capsys, "integral", src, "-o", out, "--order", "0.6",
+                       "--time-column", "1")
+    assert code == 0, err
+    lines = read_csv_back(out)
+    assert lines[0] == "time,f,g"
+    got = numbers(lines[1:])
+    np.testing.assert_array_equal(got[:, 0], t)                    # copied, every digit
+    want = (t - t[0]) ** 0.6 / math.gamma(1.6)
+    np.testing.assert_allclose(got[:, 1], want, rtol=1e-13, atol=1e-15)
+    # the signals are the library's rules on those times (not integrated as a signal)
+    np.testing.assert_array_equal(got[:, 1:], pyfracconv.integral(x, 0.6, t=t, axis=0))
+
+
+def test_time_column_uniform_times_use_the_uniform_engines(tmp_path, capsys):
+    # times k*h written in full precision: uniform within the stated
+    # tolerance, so the output is the step= result bit for bit, and
+    # Grunwald-Letnikov (uniform grids only) is accepted
+    h = 0.001
+    t = h * np.arange(300)
+    x = signals(300, h)
+    src, out = tmp_path / "in.csv", tmp_path / "out.npy"
+    _timed_csv(src, t, x)
+    code, _, err = run(capsys, "derivative", src, "-o", out, "--order", "0.4",
+                       "--time-column", "1", "--rule", "grunwald")
+    assert code == 0, err
+    got = np.load(out)
+    step = (t[-1] - t[0]) / 299
+    np.testing.assert_array_equal(got[:, 1:], pyfracconv.derivative(x, 0.4, step, axis=0))
+    np.testing.assert_array_equal(got[:, 0], t)
+
+
+def test_time_column_tolerance_decides_uniform_or_grid(tmp_path, capsys):
+    # steps differing from their mean by about 5e-8 relative: uniform at
+    # --time-tol 1e-6, not at the default (1e-9), where the rules on the
+    # given times run
+    h = 0.01
+    n = 50
+    t = h * (np.arange(n) + 5e-8 * (np.arange(n) % 2))
+    x = signals(n, h)
+    src = tmp_path / "in.csv"
+    _timed_csv(src, t, x)
+    for tol, uniform in (("1e-6", True), (None, False)):
+        out = tmp_path / f"out{tol}.npy"
+        extra = () if tol is None else ("--time-tol", tol)
+        code, _, err = run(capsys, "integral", src, "-o", out, "--order", "0.5",
+                           "--time-column", "1", "--rule", "trapezoid", *extra)
+        assert code == 0, err
+        got = np.load(out)[:, 1:]
+        if uniform:
+            want = pyfracconv.integral(x, 0.5, (t[-1] - t[0]) / (n - 1),
+                                       rule="trapezoid", axis=0)
+        else:
+            want = pyfracconv.integral(x, 0.5, t=t, rule="trapezoid", axis=0)
+        np.testing.assert_array_equal(got, want)
+    # both agree to about the jitter (the results are continuous in the times)
+    a = np.load(tmp_path / "out1e-6.npy")
+    b = np.load(tmp_path / "outNone.npy")
+    assert np.max(np.abs(a - b)) < 1e-6
+
+
+def test_time_column_in_the_middle_with_columns_and_npy(tmp_path, capsys):
+    t = np.array([0.0, 0.1, 0.3, 0.35, 0.9])
+    f = np.cos(t)
+    src = tmp_path / "in.csv"
+    write_csv(src, ["f", "time", "g"], [[a, b, c] for a, b, c in zip(f, t, 2 * f)])
+    code, out, err = run(capsys, "derivative", src, "-o", "-", "--order", "0.5",
+                         "--rule", "l1", "--time-column", "2", "--columns", "g")
+    assert code == 0, err
+    lines = out.splitlines()
+    assert lines[0] == "time,g"
+    got = numbers(lines[1:])
+    np.testing.assert_array_equal(got[:, 1], pyfracconv.derivative(2 * f, 0.5, t=t, rule="l1"))
+    npy = tmp_path / "in.npy"
+    np.save(npy, np.column_stack([f, t, 2 * f]))
+    res = tmp_path / "out.npy"
+    code, _, err = run(capsys, "derivative", npy, "-o", res, "--order", "0.5",
+                       "--rule", "l1", "--time-column", "2")
+    assert code == 0, err
+    arr = np.load(res)
+    assert arr.shape == (5, 3)
+    np.testing.assert_array_equal(arr[:, 0], t)
+    np.testing.assert_array_equal(arr[:, 1:], pyfracconv.derivative(
+        np.column_stack([f, 2 * f]), 0.5, t=t, rule="l1", axis=0))
+
+
+@pytest.mark.parametrize("rows, argv, fragments", [
+    ([[0.0, 1.0], [0.1, 2.0], [0.1, 3.0]], ("--time-column", "1"),
+     ["--time-column 1: the times must be strictly increasing", "data row 3",
+      "time 0.1 after 0.1"]),
+    ([[0.0, 1.0], [0.2, 2.0], [0.1, 3.0]], ("--time-column", "1"),
+     ["--time-column 1", "time 0.1 after 0.2"]),
+    ([[0.0, 1.0], ["nan", 2.0]], ("--time-column", "1"),
+     ["--time-column 1", "time 'nan' is not finite"]),
+    ([[0.0, 1.0], ["inf", 2.0]], ("--time-column", "1"), ["time 'inf' is not finite"]),
+    ([[0.0, 1.0], [0.1, 2.0]], ("--time-column", "1", "--step", "0.1"),
+     ["--step 0.1 with --time-column 1", "give one of the two"]),
+    ([[0.0, 1.0], [0.1, 2.0]], (), ["--step: required", "--time-column N"]),
+    ([[0.0, 1.0], [0.1, 2.0]], ("--time-column", "3"),
+     ["--time-column 3: the input has 2 column(s)"]),
+    ([[0.0, 1.0], [0.1, 2.0]], ("--time-column", "0"), ["--time-column 0: must be >= 1"]),
+    ([[0.0, 1.0], [0.1, 2.0]], ("--time-column", "1", "--columns", "t"),
+     ["--columns t: names the time column"]),
+    ([[0.0, 1.0], [0.1, 2.0]], ("--time-column", "1", "--time-tol", "-1"),
+     ["--time-tol -1.0: must be in [0, 0.5)"]),
+    ([[0.0], [0.1]], ("--time-column", "1"),
+     ["--time-column 1: the input has no column besides the times"]),
+])
+def test_time_column_refusals_name_the_option(tmp_path, capsys, rows, argv, fragments):
+    src, out = tmp_path / "in.csv", tmp_path / "out.csv"
+    write_csv(src, ["t", "f"][:len(rows[0])], rows)
+    code, _, err = run(capsys, "integral", src, "-o", out, "--order", "0.5", *argv)
+    assert_clean_error(code, err, *fragments)
+    assert not out.exists()
+
+
+def test_time_column_grunwald_on_non_uniform_times_is_refused(tmp_path, capsys):
+    src, out = tmp_path / "in.csv", tmp_path / "out.csv"
+    write_csv(src, ["t", "f"], [[0.0, 1.0], [0.1, 2.0], [0.3, 1.0]])
+    code, _, err = run(capsys, "derivative", src, "-o", out, "--order", "0.5",
+                       "--time-column", "1")
+    assert_clean_error(code, err, "--rule grunwald with --time-column 1",
+                       "not uniform", "--rule l1")
+    assert not out.exists()
+
+
+def test_time_column_npy_non_finite_time(tmp_path, capsys):
+    src = tmp_path / "in.npy"
+    np.save(src, np.array([[0.0, 1.0], [np.nan, 2.0]]))
+    code, _, err = run(capsys, "integral", src, "-o", tmp_path / "o.npy", "--order",
+                       "0.5", "--time-column", "1")
+    assert_clean_error(code, err, "--time-column 1", "time [1, 0] is nan")
+
+
+def test_time_column_help_states_the_tolerance(capsys):
+    code, out, _ = run(capsys, "integral", "--help")
+    assert code == 0
+    text = flat(out)
+    assert "--time-tol (default 1e-09)" in text
+    assert "the uniform engines" in text
+
+
+def test_control_help_keeps_the_live_time_column(capsys):
+    # the controller's --time-column is still the --live one (copied times)
+    code, out, _ = run(capsys, "control", "--help")
+    assert code == 0
+    text = flat(out)
+    assert "--live: column N (1-based) holds the time" in text
+    assert "the uniform engines" not in text

@@ -236,3 +236,119 @@ def test_bad_arguments_at_the_call(call, exc, text):
     with pytest.raises(exc) as info:
         call()
     assert text in str(info.value), str(info.value)
+
+
+# ------------------------------------------------------------ sample times (t=)
+
+def jittered_times(n, seed=2):
+    """An invented logger's times: steps uniform in [0.5, 1.5] ms."""
+    rng = np.random.default_rng(seed)
+    return np.concatenate([[0.0], np.cumsum(rng.uniform(0.5e-3, 1.5e-3, n - 1))])
+
+
+def test_sample_times_on_the_cluster_equal_numpy(client):
+    t = jittered_times(3000)
+    x = signals((6, 3000), seed=3)
+    X = da.from_array(x, chunks=(2, 1000))          # time axis in 3 chunks
+    cases = [(pfd.integral, pyfracconv.integral, dict(rule="rectangle"), 0.5),
+             (pfd.integral, pyfracconv.integral, dict(rule="trapezoid", tol=1e-9), 0.8),
+             (pfd.derivative, pyfracconv.derivative, dict(rule="l1"), 0.3)]
+    lazy = [f(X, a, t=t, **kw) for f, _, kw, a in cases]
+    got = client.compute(lazy, sync=True)
+    for (_, g, kw, a), y in zip(cases, got):
+        assert np.array_equal(y, g(x, a, t=t, **kw)), kw
+
+
+@pytest.mark.parametrize("engine", ["direct", "fast", "auto"])
+def test_sample_times_threads_each_engine_bit_for_bit(engine):
+    # the direct engine's sums do not depend on how many signals a block
+    # holds, nor do the fast engine's: any channel chunks give the bits of
+    # the whole array, and of each signal alone
+    t = jittered_times(700)
+    x = signals((9, 700), seed=4)
+    y = pfd.integral(da.from_array(x, chunks=(2, 700)), 0.5, t=t, engine=engine,
+                     rule="trapezoid").compute(scheduler="threads")
+    whole = pyfracconv.integral(x, 0.5, t=t, engine=engine, rule="trapezoid")
+    assert np.array_equal(y, whole)
+    for i in range(9):
+        assert np.array_equal(whole[i], pyfracconv.integral(x[i], 0.5, t=t, engine=engine,
+                                                            rule="trapezoid"))
+    d = pfd.derivative(da.from_array(x.T, chunks=(350, 4)), 0.4, t=t, rule="l1", axis=0,
+                       engine=engine).compute(scheduler="threads")
+    assert np.array_equal(d, pyfracconv.derivative(x.T, 0.4, t=t, rule="l1", axis=0,
+                                                   engine=engine))
+
+
+def test_sample_times_closed_form_threads():
+    # I^a 1 = t^a / Gamma(a+1) (Podlubny 1999): the rectangle rule is exact
+    # for constants on any grid
+    import math
+    t = 1.0 + jittered_times(50) * 100
+    y = pfd.integral(da.ones((3, 50), chunks=(1, 50)), 0.7, t=t).compute(scheduler="threads")
+    want = (t - t[0]) ** 0.7 / math.gamma(1.7)
+    assert np.allclose(y, want[None, :], rtol=1e-13, atol=1e-15)
+
+
+@pytest.mark.parametrize("call,exc,text", [
+    (lambda: pfd.integral(X0, 0.5, 0.1, t=np.arange(50.0)), ArgumentError,
+     "give exactly one of step"),
+    (lambda: pfd.integral(X0, 0.5), InputTypeError, "step=None and t=None"),
+    (lambda: pfd.integral(X0, 0.5, t=np.arange(49.0)), ArgumentError, "t: has 49 times"),
+    (lambda: pfd.integral(X0, 0.5, t=np.r_[0.0, 0.0, np.arange(2.0, 50.0)]), ArgumentError,
+     "t[1]=0.0 after t[0]=0.0"),
+    (lambda: pfd.integral(X0, 0.5, t=np.r_[np.nan, np.arange(1.0, 50.0)]), ArgumentError,
+     "t[0]=nan"),
+    (lambda: pfd.derivative(X0, 0.5, t=np.arange(50.0)), ArgumentError, "rule='grunwald'"),
+    (lambda: pfd.integral(X0, 0.5, t=np.arange(50.0), engine="fft"), ArgumentError,
+     "engine='fft'"),
+    (lambda: pfd.integral(X0, 0.5, t=np.arange(50.0), tol=1.0), ArgumentError, "tol=1.0"),
+    (lambda: pfd.integral(X0, 0.5, 0.1, tol=1e-9), ArgumentError, "tol=1e-09"),
+    (lambda: pfd.integral(X0, 1.5, t=np.arange(50.0), engine="fast"), ArgumentError,
+     "engine='fast'"),
+])
+def test_sample_times_bad_arguments_at_the_call(call, exc, text):
+    with pytest.raises(exc) as info:
+        call()
+    assert text in str(info.value), str(info.value)
+
+
+def test_solve_many_on_a_grid_on_the_cluster_equals_solve(client):
+    from pyfracconv.grid import graded_mesh
+    t = graded_mesh(1.0, 60, 2.0)
+    P = np.array([[0.5, 1.0], [1.5, 0.2], [2.0, 0.7]])
+    tt, Y = pfd.solve_many(pair, P, [1.0, 0.0], [0.6, 0.9], t=t, chunk=2)
+    y = client.compute(Y, sync=True)
+    assert np.array_equal(tt, t) and y.shape == (3, 61, 2)
+    for i, p in enumerate(P):
+        want = pyfracconv.solve(lambda s, v, p=p: pair(s, v, p), [1.0, 0.0], [0.6, 0.9], t=t)
+        assert np.array_equal(y[i], want.y)
+
+
+def test_solve_many_on_a_grid_threads_rectangle():
+    # D^1 y = -p y by the rectangle rule on a grid is explicit Euler with
+    # the grid's steps: y_n = prod_k (1 - p h_k) (common practice)
+    t = np.array([0.0, 0.1, 0.3, 0.35, 0.6])
+    tt, Y = pfd.solve_many(decay, np.array([1.0, 2.0]), 1.0, 1.0, t=t, method="rectangle")
+    y = Y.compute(scheduler="threads")
+    for i, p in enumerate([1.0, 2.0]):
+        want = np.concatenate([[1.0], np.cumprod(1.0 - p * np.diff(t))])
+        assert np.allclose(y[i], want, rtol=1e-14, atol=1e-15)
+
+
+@pytest.mark.parametrize("call,text", [
+    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, 5, t=[0.0, 1.0]),
+     "t and step=0.1, n_steps=5: give either"),
+    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5), "step and n_steps=None"),
+    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], t0=1.0),
+     "t0=1.0: not used with t="),
+    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], method="trapezoid"),
+     "method='trapezoid': not available with t="),
+    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], memory="compressed"),
+     "memory='compressed': not available with t="),
+    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0, 1.0]),
+     "t[2]=1.0 after t[1]=1.0"),
+])
+def test_solve_many_grid_refusals(call, text):
+    with pytest.raises(ArgumentError) as info:
+        call()
+    assert text in str(info.value), str(info.value)

@@ -29,7 +29,7 @@ BUDGET = {"rectangle": 1e-3, "implicit-rectangle": 1e-3,
 
 def memories(method, order):
     out = ["exact"]
-    if method == "rectangle" or (method != "implicit-rectangle" and order < 1):
+    if method in ("rectangle", "implicit-rectangle") or order < 1:
         out.append("compressed")
     return out
 
@@ -115,7 +115,8 @@ def test_oscillator_with_initial_slope(method, a):
     r1 = np.array([mittag_leffler(a, 1, -t ** a) for t in tr])
     r2 = np.array([t * mittag_leffler(a, 2, -t ** a) for t in tr])
     budget = 3e-3 if "rectangle" in method else 2e-6
-    mems = ["exact", "compressed"] if method == "rectangle" and a < 2 else ["exact"]
+    mems = (["exact", "compressed"] if method in ("rectangle", "implicit-rectangle")
+            and a < 2 else ["exact"])
     for memory in mems:
         _, y = solve(lambda t, y: -y, 1.0, a, T / N, N, dy0=0.0, method=method, memory=memory)
         _, z = solve(lambda t, y: -y, 0.0, a, T / N, N, dy0=1.0, method=method, memory=memory)
@@ -190,6 +191,12 @@ def test_stiff_relaxation_explicit_blow_up_implicit_accurate():
     t, y = solve(lambda t, y: -lam * y, 1.0, a, h, N, method="implicit-rectangle")
     ref = np.array([ml_asymptotic(a, lam * tt ** a) for tt in t[50:]])
     assert np.max(np.abs(y[50:] / ref - 1)) < 0.02
+    # the same with compressed memory: within the stated deviation of the
+    # exact-memory run, and so as accurate against the reference
+    _, yc = solve(lambda t, y: -lam * y, 1.0, a, h, N, method="implicit-rectangle",
+                  memory="compressed", tol=1e-10)
+    assert np.max(np.abs(yc - y)) <= 1e-10 * (1 + np.max(np.abs(y)))
+    assert np.max(np.abs(yc[50:] / ref - 1)) < 0.02
     t, y = solve(lambda t, y: -lam * y, 1.0, a, h, N, method="trapezoid")
     assert np.max(np.abs(y)) <= 1.0
 
@@ -321,7 +328,7 @@ def test_corrector_passes_equal_plain_loop():
 
 # ------------------------------------------------------------ compressed
 
-@pytest.mark.parametrize("method", ["rectangle", "predictor-corrector", "trapezoid"])
+@pytest.mark.parametrize("method", METHODS)
 @pytest.mark.parametrize("tol", [1e-6, 1e-10])
 def test_compressed_within_stated_deviation_of_exact(method, tol):
     # the stated deviation (README, Solving): |y_compressed - y_exact| <=
@@ -367,3 +374,58 @@ def test_result_unpacks_and_t0():
     # autonomous problem: shifting t0 changes nothing (common practice)
     _, y2 = solve(lambda t, y: -y, [1.0, 2.0], 0.5, 0.1, 10)
     assert np.array_equal(y, y2)
+
+
+# ------------------------------------------------------------ implicit rectangle, compressed
+
+@pytest.mark.parametrize("a", [0.05, 0.3, 0.5, 0.8, 1.0, 1.3, 1.5, 1.8])
+def test_implicit_rectangle_compressed_relaxation_and_deviation(a):
+    # D^a y = -y, y(0) = 1 (and y'(0) = 0 for a > 1): y = E_a(-t^a)
+    # (Gorenflo, Kilbas, Mainardi and Rogosin 2014), the series summed with
+    # mpmath (a = 1/2: scipy.special.erfcx(sqrt t)). Compressed memory keeps
+    # the right-end-point history as a rectangle stream plus a stream of the
+    # weight differences (L1 rule of order 1 - a below 1, trapezoid rule of
+    # order a - 1 above 1; csrc/solver.c): against the exact-memory run
+    # within tol (1 + max|y|) (README, Solving), and the same distance from
+    # the Mittag-Leffler reference as the exact run has (first order).
+    N, T = 2000, 2.0
+    idx = np.arange(0, N + 1, 100)
+    tr = idx * (T / N)
+    ref = (scipy.special.erfcx(np.sqrt(tr)) if a == 0.5 else
+           np.array([mittag_leffler(a, 1, -t ** a) for t in tr]))
+    kw = {"dy0": 0.0} if a > 1 else {}
+    _, ye = solve(lambda t, y: -y, 1.0, a, T / N, N, method="implicit-rectangle", **kw)
+    err_e = np.max(np.abs(ye[idx] - ref))
+    assert err_e < 3e-3, err_e
+    for tol in (1e-6, 1e-12):
+        res = solve(lambda t, y: -y, 1.0, a, T / N, N, method="implicit-rectangle",
+                    memory="compressed", tol=tol, **kw)
+        dev = np.max(np.abs(res.y - ye))
+        assert dev <= tol * (1 + np.max(np.abs(ye))), (tol, dev)
+        assert abs(np.max(np.abs(res.y[idx] - ref)) - err_e) <= 2 * tol
+        if tol == 1e-6 and a != 1.0:
+            assert dev > 0  # the compressed streams were used
+
+
+def test_implicit_rectangle_compressed_order_of_convergence():
+    # first order (the product rectangle rule), measured on the example of
+    # Diethelm, Ford and Freed 2002 with its exact solution, the same with
+    # compressed memory as with exact memory
+    p = _orders("implicit-rectangle", 0.5, [320, 640, 1280], memory="compressed")
+    q = _orders("implicit-rectangle", 0.5, [320, 640, 1280])
+    assert np.allclose(p, q, atol=1e-3) and np.all((p > 0.9) & (p < 1.1)), (p, q)
+
+
+def test_implicit_rectangle_compressed_multi_order_system():
+    # a diagonal system with orders on both sides of 1 and one at 1 equals
+    # the scalar problems (common practice); memory stays bounded
+    orders = [0.4, 1.0, 1.6]
+    lam = np.array([1.0, 2.0, 0.5])
+    y0, dy0 = np.array([1.0, -1.0, 2.0]), np.array([0.0, 0.0, 0.3])
+    N, h = 500, 2e-3
+    kw = dict(method="implicit-rectangle", memory="compressed", tol=1e-11)
+    res = solve(lambda t, y: -lam * y, y0, orders, h, N, dy0=dy0, **kw)
+    for i, a in enumerate(orders):
+        d = {"dy0": dy0[i]} if a > 1 else {}
+        _, yi = solve(lambda t, y, c=lam[i]: -c * y, y0[i], a, h, N, **d, **kw)
+        assert np.allclose(res.y[:, i], yi, rtol=0, atol=1e-13)

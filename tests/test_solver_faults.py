@@ -63,8 +63,10 @@ class Counting:
      ["order=2.0", "method='trapezoid'"]),
     (dict(memory="compressed", order=2.0, dy0=0.0, method="rectangle"), ArgumentError,
      ["order=2.0", "< 2"]),
-    (dict(memory="compressed", method="implicit-rectangle"), ArgumentError,
-     ["implicit-rectangle", "exact"]),
+    (dict(memory="compressed", method="implicit-rectangle", order=1e-17), ArgumentError,
+     ["order=1e-17", "implicit-rectangle", "L1 rule of order 1 - a", "exact"]),
+    (dict(memory="compressed", method="implicit-rectangle", order=2.0, dy0=0.0),
+     ArgumentError, ["order=2.0", "implicit-rectangle", "< 2"]),
     (dict(memory="compressed", tol=1e-20), ArgumentError, ["tol=1e-20"]),
     (dict(memory="compressed", horizon=0.5), ArgumentError, ["horizon=0.5"]),
     (dict(progress="yes"), InputTypeError, ["progress='yes'"]),
@@ -265,7 +267,8 @@ CASES = [
     ("rectangle", "exact", 0.5), ("rectangle", "compressed", 1.4),
     ("predictor-corrector", "exact", 1.6), ("predictor-corrector", "compressed", 0.5),
     ("trapezoid", "exact", 0.7), ("trapezoid", "compressed", 0.3),
-    ("implicit-rectangle", "exact", 0.6),
+    ("implicit-rectangle", "exact", 0.6), ("implicit-rectangle", "compressed", 0.6),
+    ("implicit-rectangle", "compressed", 1.0), ("implicit-rectangle", "compressed", 1.5),
 ]
 
 
@@ -484,3 +487,82 @@ def test_nbytes_bounded_in_compressed_memory():
     c.advance(20000)
     e.advance(20000)
     assert c.nbytes == c0 and e.nbytes > e0 + 20000 * 8
+
+
+@pytest.mark.parametrize("a", [0.5, 1.0, 1.5])
+def test_nbytes_bounded_implicit_rectangle_compressed(a):
+    # the implicit rectangle rule with compressed memory keeps two
+    # compressed streams (one at a = 1) and no f history: its memory does
+    # not grow with the steps, and its horizon is not bounded by 2**28
+    kw = {"dy0": 0.0} if a > 1 else {}
+    c = Stepper(lambda t, y: -y, 1.0, a, 1e-3, method="implicit-rectangle",
+                memory="compressed", horizon=1e12, **kw)
+    c.advance(100)
+    c0 = c.nbytes
+    c.advance(20000)
+    assert c.nbytes == c0 < 200_000
+
+
+# ------------------------------------------------------------ scalar rhs paths
+
+class _CallableRhs:
+    def __call__(self, t, y):
+        return -y
+
+
+def _outcome(rhs, **kw):
+    try:
+        r = solve(rhs, 1.0, 0.5, 0.01, 30, **kw)
+        return ("ok", r.y.tobytes(), r.rhs_evals, r.jac_evals)
+    except BaseException as exc:  # noqa: BLE001 - compared between the paths
+        part = getattr(exc, "partial", None)
+        cause = exc.__cause__
+        return (type(exc).__name__, str(exc),
+                None if part is None else (part.t.tobytes(), part.y.tobytes()),
+                type(cause).__name__ if cause is not None else None,
+                cause is not None and cause.__traceback__ is not None)
+
+
+@pytest.mark.parametrize("rhs", [
+    lambda t, y: -y,
+    lambda t, y: np.float64(-y),             # a float subclass: converted
+    lambda t, y: int(-3 * y > -1),            # an int: converted
+    lambda t, y: np.array(-y),                # a 0-d array: converted
+    lambda t, y: [-y] if t > 0.1 else -y,     # a list: refused at step 11
+    lambda t, y: "x" if t > 0.1 else -y,      # a string: refused
+    lambda t, y: 1 / 0 if t > 0.1 else -y,    # raises: traceback kept
+    lambda t, y: float("nan") if t > 0.1 else -y,
+    _CallableRhs(),
+])
+@pytest.mark.parametrize("method", ["predictor-corrector", "implicit-rectangle"])
+def test_scalar_rhs_direct_path_equals_cffi_callback(rhs, method, monkeypatch):
+    # a scalar rhs is called from C through the Python C API (CPython;
+    # setup_build.py, _fc_py_rhs1_direct) instead of the cffi callback:
+    # the same results bit for bit, the same counts, the same errors with
+    # the same partial solutions
+    mod = sys.modules["pyfracconv.solve"]
+    if not mod._DIRECT:
+        pytest.skip("the direct path is CPython only")
+    kw = dict(method=method)
+    direct = _outcome(rhs, **kw)
+    monkeypatch.setattr(mod, "_DIRECT", False)
+    assert _outcome(rhs, **kw) == direct
+
+
+def test_scalar_rhs_direct_path_keyboard_interrupt_and_stepper_load():
+    def rhs(t, y):
+        if t > 0.05:
+            raise KeyboardInterrupt
+        return -y
+
+    st = Stepper(rhs, 1.0, 0.5, 0.01)
+    assert st._direct is not None or not sys.modules["pyfracconv.solve"]._DIRECT
+    with pytest.raises(KeyboardInterrupt):
+        st.advance(20)
+    assert st.steps == 5
+    # a loaded stepper calls its new rhs on the same path
+    again = Stepper.load(st.save(), lambda t, y: -y)
+    t, y = again.advance(3)
+    ref = Stepper(lambda t, y: -y, 1.0, 0.5, 0.01)
+    ref.advance(5)
+    assert np.array_equal(ref.advance(3)[1], y)

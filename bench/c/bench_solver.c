@@ -70,7 +70,6 @@ int main(int argc, char **argv)
     printf("steps %zu, median of 3, microseconds per step\n", n);
     for (int meth = 0; meth < 4; meth++)
         for (int mem = 0; mem < 2; mem++) {
-            if (meth == FC_METHOD_IMPLICIT_RECTANGLE && mem == FC_MODE_COMPRESSED) continue;
             double us1 = run(1, meth, mem, n);
             double us100 = run(100, meth, mem, n / 10);
             printf("%-20s %-10s scalar %7.3f us/step   m=100 %8.3f us/step (%.4f per component)\n",

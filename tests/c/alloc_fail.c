@@ -334,7 +334,6 @@ static void solvers(void)
             unsigned char *buf;
             uint64_t n0, n1;
             char name[64];
-            if (meth == FC_METHOD_IMPLICIT_RECTANGLE && mem) continue;
             snprintf(name, sizeof name, "solver_create %d %d", meth, mem);
             FOR_EACH_FAILURE(name, fc_solver_create(1, &o, 0.01, 0, &y0, meth, mem, 1e-9, 5000, &s),
                              (void)0, s == NULL);

@@ -393,10 +393,6 @@ static void test_solver(void)
     for (int meth = 0; meth < 4; meth++)
         for (int mem = 0; mem < 2; mem++) {
             int st = fc_solver_create(2, o, 0.01, 0.0, init, meth, mem, 1e-8, 1000, &s);
-            if (meth == FC_METHOD_IMPLICIT_RECTANGLE && mem == FC_MODE_COMPRESSED) {
-                TRUE_(st == FC_ERR_MODE);
-                continue;
-            }
             EXPECT(st, FC_OK);
             if (st) continue;
             EXPECT(fc_solver_advance(s, 5, NULL, NULL, &done), FC_ERR_NORHS);
@@ -460,6 +456,16 @@ static void test_solver(void)
     }
     EXPECT(fc_solver_create(2, o, 0.01, 0, init, 17, 0, 0, 0, &s), FC_ERR_RULE);
     EXPECT(fc_solver_create(2, o, 0.01, 0, init, FC_METHOD_IMPLICIT_RECTANGLE, 0, 0, 0, &s), FC_ERR_TOL);
+    {
+        /* implicit rectangle, compressed: 1 - a rounds to 1 (no L1 stream
+           of order 1), and order 2 */
+        double so[2] = {1e-17, 0.5}, o2[2] = {2.0, 0.5}, in2[4] = {1, 1, 0, 0};
+        EXPECT(fc_solver_create(2, so, 0.01, 0, init, FC_METHOD_IMPLICIT_RECTANGLE, 1, 1e-8, 100, &s), FC_ERR_ORDER);
+        EXPECT(fc_solver_create(2, o2, 0.01, 0, in2, FC_METHOD_IMPLICIT_RECTANGLE, 1, 1e-8, 100, &s), FC_ERR_ORDER);
+        /* with compressed memory the horizon may pass 2^28 */
+        EXPECT(fc_solver_create(2, o, 0.01, 0, init, FC_METHOD_IMPLICIT_RECTANGLE, 1, 1e-8, 1e12, &s), FC_OK);
+        fc_solver_free(s);
+    }
     EXPECT(fc_solver_create(2, o, 0.01, 0, init, 0, 9, 0, 0, &s), FC_ERR_MODE);
     EXPECT(fc_solver_create(2, o, 0.01, 0, init, 0, 1, NaN_, 100, &s), FC_ERR_TOL);
     EXPECT(fc_solver_set_rhs(NULL, rhs, NULL), FC_ERR_NULL);

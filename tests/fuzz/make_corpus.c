@@ -129,7 +129,6 @@ static void solvers(void)
     for (int method = 0; method < 4; method++)
         for (int mem = 0; mem < 2; mem++)
             for (size_t m = 1; m <= 2; m++) {
-                if (method == FC_METHOD_IMPLICIT_RECTANGLE && mem) continue;
                 double o[2] = {0.6, m == 2 ? 1.4 : 0.6}, init[4] = {1, -0.5, 0, 0.2};
                 double hz = method == FC_METHOD_IMPLICIT_RECTANGLE ? 200 : 500;
                 fc_solver *s;
