@@ -10,7 +10,9 @@ include csrc/flags.mk
 CFLAGS ?= $(FC_OPT_CFLAGS)
 # -fvisibility=hidden: only the functions fracconv.h marks FC_API are
 # exported from the shared object (nm -D lists fc_ names only).
-ALL_CFLAGS = $(CFLAGS) $(FC_STD_CFLAGS) -fPIC -fvisibility=hidden -Icsrc
+ALL_CFLAGS = $(CFLAGS) $(FC_STD_CFLAGS) $(FC_THREAD_FLAGS) -fPIC -fvisibility=hidden -Icsrc
+# the libraries a program linking libfracconv.a adds
+LIBS = -lm $(FC_THREAD_FLAGS)
 BUILD = cbuild
 # The shared object's version: the SONAME carries the major number (the
 # ABI), the file name the full version, both read from fracconv.h.
@@ -37,7 +39,7 @@ $(BUILD)/obj/%.o: csrc/%.c $(HDRS) csrc/flags.mk
 
 # libfracconv.so -> libfracconv.so.MAJOR -> libfracconv.so.MAJOR.MINOR.PATCH
 $(BUILD)/$(SOFILE): $(OBJS)
-	$(CC) -shared -Wl,-soname,$(SONAME) -o $@ $(OBJS) -lm
+	$(CC) -shared -Wl,-soname,$(SONAME) -o $@ $(OBJS) $(LIBS)
 
 $(BUILD)/libfracconv.so: $(BUILD)/$(SOFILE)
 	ln -sf $(SOFILE) $(BUILD)/$(SONAME)
@@ -50,16 +52,16 @@ $(BUILD)/libfracconv.a: $(OBJS)
 # The example links the static library, so it runs without LD_LIBRARY_PATH.
 example: $(BUILD)/example
 $(BUILD)/example: examples/example.c csrc/fracconv.h $(BUILD)/libfracconv.a
-	$(CC) -O2 -std=c11 -Wall -Wextra -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
+	$(CC) -O2 -std=c11 -Wall -Wextra -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) -o $@
 
 # The solver example (tests/test_solver_c.py builds and runs it).
 solver-example: $(BUILD)/solver_example
 $(BUILD)/solver_example: examples/solver_example.c csrc/fracconv.h $(BUILD)/libfracconv.a
-	$(CC) -O2 -std=c11 -Wall -Wextra -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
+	$(CC) -O2 -std=c11 -Wall -Wextra -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) -o $@
 
 bench-c: $(BENCH_BINS)
 $(BUILD)/%: bench/c/%.c csrc/fracconv.h $(BUILD)/libfracconv.a
-	$(CC) -O2 -std=c11 -Wall -Wextra -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
+	$(CC) -O2 -std=c11 -Wall -Wextra -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) -o $@
 
 check-c: example solver-example
 	$(BUILD)/example
@@ -73,10 +75,10 @@ CXX ?= c++
 .PHONY: cpp-example
 cpp-example: $(BUILD)/example_cpp $(BUILD)/solver_controller_cpp
 $(BUILD)/example_cpp: examples/example.cpp csrc/fracconv.hpp csrc/fracconv.h $(BUILD)/libfracconv.a
-	$(CXX) -O2 -std=c++17 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
+	$(CXX) -O2 -std=c++17 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) -o $@
 # the solver and the controller through the wrapper (tests/test_cpp.py)
 $(BUILD)/solver_controller_cpp: examples/solver_controller.cpp csrc/fracconv.hpp csrc/fracconv.h $(BUILD)/libfracconv.a
-	$(CXX) -O2 -std=c++17 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
+	$(CXX) -O2 -std=c++17 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) -o $@
 
 # Fortran 2008 module (fortran/fracconv.f90) and its example program.
 FC = gfortran
@@ -86,11 +88,11 @@ FFLAGS = -O2 -std=f2008 -Wall -Wextra -Werror -Wno-compare-reals
 fortran-example: $(BUILD)/example_f90 $(BUILD)/solver_controller_f90
 $(BUILD)/example_f90: fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a
 	@mkdir -p $(BUILD)/fmod
-	$(FC) $(FFLAGS) -J $(BUILD)/fmod fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a -lm -o $@
+	$(FC) $(FFLAGS) -J $(BUILD)/fmod fortran/fracconv.f90 examples/example.f90 $(BUILD)/libfracconv.a $(LIBS) -o $@
 # the solver and the controller through the module (tests/test_fortran.py)
 $(BUILD)/solver_controller_f90: fortran/fracconv.f90 examples/solver_controller.f90 $(BUILD)/libfracconv.a
 	@mkdir -p $(BUILD)/fmod-sc
-	$(FC) $(FFLAGS) -J $(BUILD)/fmod-sc fortran/fracconv.f90 examples/solver_controller.f90 $(BUILD)/libfracconv.a -lm -o $@
+	$(FC) $(FFLAGS) -J $(BUILD)/fmod-sc fortran/fracconv.f90 examples/solver_controller.f90 $(BUILD)/libfracconv.a $(LIBS) -o $@
 
 # ------------------------------------------------------------- install
 # make install PREFIX=/usr/local [DESTDIR=/staging]: the headers
@@ -177,15 +179,15 @@ C_TEST_BINS = $(patsubst tests/c/%.c,$(BUILD)/tests/%,$(C_TEST_SRCS))
 c-tests: $(C_TEST_BINS)
 $(BUILD)/tests/%: tests/c/%.c csrc/fracconv.h $(BUILD)/libfracconv.a
 	@mkdir -p $(BUILD)/tests
-	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm -pthread -o $@
+	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) -o $@
 
 # The allocation-failure test routes the library's malloc, calloc and
-# realloc through its own counters by the linker (--wrap): no hook in the
-# library itself.
-WRAP_ALLOC = -Wl,--wrap=malloc,--wrap=calloc,--wrap=realloc
+# realloc (and pthread_create) through its own counters by the linker
+# (--wrap): no hook in the library itself.
+WRAP_ALLOC = -Wl,--wrap=malloc,--wrap=calloc,--wrap=realloc,--wrap=pthread_create
 $(BUILD)/tests/alloc_fail: tests/c/alloc_fail.c csrc/fracconv.h $(BUILD)/libfracconv.a
 	@mkdir -p $(BUILD)/tests
-	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm $(WRAP_ALLOC) -o $@
+	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) $(WRAP_ALLOC) -o $@
 
 check-c-tests: c-tests
 	$(BUILD)/tests/api_driver
@@ -280,11 +282,11 @@ $(FUZZ_DIR)/libfracconv.a: $(SRCS) $(HDRS) csrc/flags.mk
 $(FUZZ_DIR)/fuzz_%: tests/fuzz/fuzz_load.c tests/fuzz/fixsum.h csrc/fracconv.h $(FUZZ_DIR)/libfracconv.a
 	$(FUZZ_CC) $(FUZZ_SAN) -fsanitize=fuzzer -O1 -std=c11 -Wall -Wextra -Werror -Icsrc \
 		-DFUZZ_LOADER=$(call fuzz_loader_of,fuzz_$*) -DFUZZ_FIX=$(if $(filter %_fixsum,$*),1,0) \
-		$< $(FUZZ_DIR)/libfracconv.a -lm -o $@
+		$< $(FUZZ_DIR)/libfracconv.a $(LIBS) -o $@
 
 $(FUZZ_DIR)/fuzz_args: tests/fuzz/fuzz_args.c csrc/fracconv.h $(FUZZ_DIR)/libfracconv.a
 	$(FUZZ_CC) $(FUZZ_SAN) -fsanitize=fuzzer -O1 -std=c11 -Wall -Wextra -Werror -Icsrc \
-		$< $(FUZZ_DIR)/libfracconv.a -lm -o $@
+		$< $(FUZZ_DIR)/libfracconv.a $(LIBS) -o $@
 
 # One run target and one regression target per fuzz target (fuzz-run-T,
 # fuzz-regress-T); fuzz-run and fuzz-regress run them one after another.
@@ -322,4 +324,4 @@ fuzz-corpus: $(BUILD)/make_corpus
 	$(BUILD)/make_corpus $(FUZZ_CORPUS)
 
 $(BUILD)/make_corpus: tests/fuzz/make_corpus.c csrc/fracconv.h $(BUILD)/libfracconv.a
-	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a -lm -o $@
+	$(CC) -O2 -std=c11 -Wall -Wextra -Werror -Icsrc $< $(BUILD)/libfracconv.a $(LIBS) -o $@

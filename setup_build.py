@@ -57,7 +57,13 @@ def compile_args():
     if sys.platform == "win32":
         return ["/O2"]
     flags = read_flags()
-    return flags["FC_OPT_CFLAGS"] + flags["FC_STD_CFLAGS"]
+    return flags["FC_OPT_CFLAGS"] + flags["FC_STD_CFLAGS"] + flags["FC_THREAD_FLAGS"]
+
+
+def link_args():
+    if sys.platform == "win32":
+        return []
+    return read_flags()["FC_THREAD_FLAGS"]
 
 
 # Python functions the C solver calls back (pyfracconv/solve.py defines
@@ -151,6 +157,7 @@ ffibuilder.set_source(
     sources=c_sources(),
     include_dirs=["csrc"],
     extra_compile_args=compile_args(),
+    extra_link_args=link_args(),
     libraries=[] if sys.platform == "win32" else ["m"],
     depends=sorted(
         os.path.join("csrc", f) for f in os.listdir(CSRC) if f.endswith(".h")

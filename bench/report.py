@@ -26,12 +26,14 @@ SUITES = {
     "compressed": "test_bench_compressed.py",
     "records": "test_bench_records.py",
     "dask": "test_bench_dask.py",
+    "workers": "test_bench_workers.py",
 }
 SCRIPTS = {
     "batch": ["first_call.py"],
     "stream": ["stream_memory.py"],
     "compressed": ["soe_terms.py"],
     "records": ["records_1e8.py"],
+    "workers": ["workers_scaling.py"],
 }
 
 

@@ -29,7 +29,9 @@
  *     A solver is busy for the whole of fc_solver_advance, its callbacks
  *     included: a callback that calls a function of its own solver gets
  *     FC_ERR_BUSY. A context and an FFT plan have NO busy detection:
- *     concurrent use of one is undefined;
+ *     concurrent use of one is undefined; a call starts threads of its
+ *     own only when asked to (fc_context_set_threads,
+ *     fc_stream_push_block_threads), and joins them before it returns;
  *   - const: a function taking a const object does not change its state;
  *     on a stream, solver or controller it still sets and clears the
  *     object's busy flag (an
@@ -203,15 +205,43 @@ FC_API int fc_trapezoid_start(double order, double step, uint64_t start,
  * Reusable batch context: caches FFT plans and work space between calls so
  * that repeated calls of the same size do no planning. Not thread-safe: one
  * context per thread.
+ *
+ * Threads: fc_context_set_threads(ctx, t) lets the batch calls given this
+ * context (fc_lagged_sum, fc_apply) use up to t threads (POSIX threads,
+ * started by the call and joined before it returns; the library keeps no
+ * thread alive between calls). The work is split over the signals and,
+ * for fewer signals than threads, over the independent segment products
+ * of the partitioned engine (and the output ranges of the direct
+ * engine); every output is computed by the same operations in the same
+ * order whatever t, so the results are the same bit for bit for every
+ * thread count. Small calls (fewer than about 2^15 samples in all; 2^17
+ * when signals are split) run on the calling thread. A thread, a mutex or a helper's work space that
+ * cannot be made is not an error: the call uses fewer threads (down to
+ * the calling thread alone), with the same result. Each extra thread
+ * keeps its own FFT plans and work space in the context (see
+ * fc_context_nbytes), reused by later calls. A new context, and the
+ * temporary one of a call given ctx == NULL, use 1 thread. Built with
+ * -DFC_NO_THREADS, or where POSIX threads are missing, every call runs on
+ * the calling thread. Programs linking the static library add -pthread.
  */
 typedef struct fc_context fc_context;
+/* Most threads a context may be given. */
+#define FC_THREADS_MAX 256
 /* Statuses: FC_OK, FC_ERR_NULL (out NULL), FC_ERR_NOMEM. */
 FC_API int fc_context_create(fc_context **out);
 /* Statuses: none (void; NULL is a no-op). */
 FC_API void fc_context_free(fc_context *ctx);
-/* Bytes currently held by the context. */
+/* Bytes currently held by the context (its helpers' plans and work space
+   included). */
 /* Statuses: FC_OK, FC_ERR_NULL. */
 FC_API int fc_context_nbytes(const fc_context *ctx, size_t *nbytes);
+/* Threads the batch calls given ctx may use: 1 <= threads <= FC_THREADS_MAX
+   (FC_ERR_ARG otherwise, ctx unchanged). Lowering it keeps the helpers'
+   plans and work space for later calls (fc_context_free releases them). */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_ARG (threads 0 or above FC_THREADS_MAX). */
+FC_API int fc_context_set_threads(fc_context *ctx, size_t threads);
+/* Statuses: FC_OK, FC_ERR_NULL. */
+FC_API int fc_context_threads(const fc_context *ctx, size_t *threads);
 
 /*
  * Lagged sums of nsig signals sharing one kernel:
@@ -381,6 +411,22 @@ FC_API int fc_stream_push(fc_stream *s, const double *x, double *y);
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (overlap), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM. */
 FC_API int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
                          double *y);
+/* fc_stream_push_block with up to threads threads (1 .. FC_THREADS_MAX,
+   FC_ERR_ARG otherwise, nothing pushed) sharing the channels: the
+   outputs and the state are the same bit for bit for every count. A
+   compressed stream of several channels splits them over the threads
+   (blocks of about 2^12 values or more); an exact stream of several
+   channels shares the channels of each large frame (FFT blocks of 512
+   samples or more, block size times channels at least 2^14) over the
+   threads, the leaf band and the small frames staying on the calling
+   thread (its time steps depend on each other). Each extra thread of an
+   exact stream keeps its own FFT plans and work buffer in the stream
+   (fc_stream_nbytes counts them; not saved). A thread or its scratch that
+   cannot be made leaves the work to fewer threads, with the same result;
+   threads are started and joined inside the call. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (overlap, threads), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE, FC_ERR_NOMEM. */
+FC_API int fc_stream_push_block_threads(fc_stream *s, const double *x, size_t count,
+                                        double *y, size_t threads);
 /* What fc_stream_push(s, x, y) would write to y, bit for bit, without
    changing the stream; y == x or no overlap, as for fc_stream_push; the
    same refusals (FC_ERR_RANGE, FC_ERR_HORIZON). */

@@ -138,6 +138,18 @@ public:
         detail::check(fc_context_nbytes(p_, &n), "fc_context_nbytes");
         return n;
     }
+    /* Threads of the batch calls given this context (fc_context_set_threads:
+       the same bits for every count). */
+    void set_threads(std::size_t threads)
+    {
+        detail::check(fc_context_set_threads(p_, threads), "fc_context_set_threads");
+    }
+    std::size_t threads() const
+    {
+        std::size_t n = 0;
+        detail::check(fc_context_threads(p_, &n), "fc_context_threads");
+        return n;
+    }
 private:
     fc_context *p_ = nullptr;
 };

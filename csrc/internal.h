@@ -42,6 +42,17 @@ static inline int fc__add_size(size_t a, size_t b, size_t *r)
     *r = a + b;
     return FC_OK;
 }
+/*
+ * Tasks 0 .. ntasks-1 of a call run by up to nworkers threads, the calling
+ * thread being worker 0 (parallel.c). fn(arg, task, worker): worker <
+ * nworkers identifies the thread's own resources. Never fails: fewer
+ * threads run them when threads cannot be made.
+ */
+typedef void (*fc__task_fn)(void *arg, size_t task, size_t worker);
+void fc__run_tasks(size_t ntasks, size_t nworkers, fc__task_fn fn, void *arg);
+/* 1 if the build has threads (0 with FC_NO_THREADS or no POSIX threads:
+   then no helper scratch is made either). */
+int fc__have_threads(void);
 /* FC_OK if all n values are finite, FC_ERR_NONFINITE otherwise. */
 int fc__check_finite(const double *x, size_t n);
 /* Largest |v[i]| over n finite values (0 for n == 0). */
@@ -370,7 +381,10 @@ typedef struct fc__stream_ops {
     int (*load)(const fc__stream_def *d, const unsigned char *p, size_t size,
                 void **eng);
     void (*free)(void *eng);
-    int (*push_block)(void *eng, const double *x, size_t count, double *y);
+    /* threads: up to that many threads (1 .. FC_THREADS_MAX) may share the
+       work; the result is the same bit for bit for every count */
+    int (*push_block)(void *eng, const double *x, size_t count, double *y,
+                      size_t threads);
     int (*push1)(void *eng, double x, double *y);    /* one channel */
     int (*preview)(void *eng, const double *x, double *y);
     int (*history)(void *eng, double *h);

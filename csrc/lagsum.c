@@ -32,6 +32,9 @@ struct fc_context {
     fc_fft_plan *plans[FC_MAX_LOG2 + 1];
     double *work;
     size_t work_cap; /* doubles */
+    size_t threads;  /* threads a call may use, 1 .. FC_THREADS_MAX */
+    size_t nhelp;    /* helper contexts in help[] (workers 1 .. nhelp) */
+    fc_context **help; /* each with its own plans and work space */
 };
 
 int fc_context_create(fc_context **out)
@@ -39,13 +42,26 @@ int fc_context_create(fc_context **out)
     if (out == NULL) return FC_ERR_NULL;
     fc_context *ctx = calloc(1, sizeof *ctx);
     if (ctx == NULL) return FC_ERR_NOMEM;
+    ctx->threads = 1;
     *out = ctx;
     return FC_OK;
+}
+
+/* Free the helpers beyond the first keep. */
+static void drop_helpers(fc_context *ctx, size_t keep)
+{
+    for (size_t i = keep; i < ctx->nhelp; i++) fc_context_free(ctx->help[i]);
+    if (keep < ctx->nhelp) ctx->nhelp = keep;
+    if (ctx->nhelp == 0) {
+        free(ctx->help);
+        ctx->help = NULL;
+    }
 }
 
 void fc_context_free(fc_context *ctx)
 {
     if (ctx == NULL) return;
+    drop_helpers(ctx, 0);
     for (int i = 0; i <= FC_MAX_LOG2; i++) fc__fft_free(ctx->plans[i]);
     free(ctx->work);
     free(ctx);
@@ -57,9 +73,73 @@ int fc_context_nbytes(const fc_context *ctx, size_t *nbytes)
     size_t total = sizeof *ctx + ctx->work_cap * sizeof(double);
     for (int i = 0; i <= FC_MAX_LOG2; i++)
         if (ctx->plans[i] != NULL) total += fc__fft_nbytes(ctx->plans[i]);
+    total += ctx->nhelp * sizeof(fc_context *);
+    for (size_t i = 0; i < ctx->nhelp; i++) {
+        size_t b = 0;
+        (void)fc_context_nbytes(ctx->help[i], &b);
+        total += b;
+    }
     *nbytes = total;
     return FC_OK;
 }
+
+int fc_context_set_threads(fc_context *ctx, size_t threads)
+{
+    if (ctx == NULL) return FC_ERR_NULL;
+    if (threads == 0 || threads > FC_THREADS_MAX) return FC_ERR_ARG;
+    ctx->threads = threads; /* helpers beyond it are kept for later calls */
+    return FC_OK;
+}
+
+int fc_context_threads(const fc_context *ctx, size_t *threads)
+{
+    if (ctx == NULL || threads == NULL) return FC_ERR_NULL;
+    *threads = ctx->threads;
+    return FC_OK;
+}
+
+/* The context of worker w (0: ctx itself). */
+static fc_context *worker_ctx(fc_context *ctx, size_t w)
+{
+    return w == 0 ? ctx : ctx->help[w - 1];
+}
+
+/* How many workers (1 .. want) have a context prepared by prep: worker 0
+   is ctx (prepared by the caller); helpers are made or reused and
+   prepared in turn, and the first that cannot be (no memory) ends the
+   count. Never an error: fewer workers give the same result. */
+typedef int (*prep_fn)(fc_context *wctx, const void *arg);
+static size_t workers_ready(fc_context *ctx, size_t want, prep_fn prep,
+                            const void *arg)
+{
+    size_t w = 1;
+    if (want > ctx->threads) want = ctx->threads;
+    if (!fc__have_threads()) want = 1;
+    if (want > 1 && ctx->nhelp < want - 1) {
+        fc_context **h = realloc(ctx->help, (want - 1) * sizeof *h);
+        if (h == NULL) want = ctx->nhelp + 1;
+        else ctx->help = h;
+    }
+    for (; w < want; w++) {
+        if (w > ctx->nhelp) {
+            fc_context *hc;
+            if (fc_context_create(&hc) != FC_OK) break;
+            ctx->help[ctx->nhelp++] = hc;
+        }
+        if (prep(ctx->help[w - 1], arg) != FC_OK) break;
+    }
+    if (ctx->nhelp == 0 && ctx->help != NULL) { /* nothing made: no array */
+        free(ctx->help);
+        ctx->help = NULL;
+    }
+    return w;
+}
+
+/* Calls with fewer samples than this in all run on the calling thread. */
+#define FC_PAR_MIN_SAMPLES ((size_t)1 << 15)
+/* ... and below this when signals are split (several thread starts and
+   joins a call, one per phase) */
+#define FC_PAR_MIN_SPLIT ((size_t)1 << 17)
 
 static int log2_exact(size_t n)
 {
@@ -132,10 +212,10 @@ static int ensure_work(fc_context *ctx, size_t doubles)
 static FC__DIRECT_INLINE void
 direct_accumulate_body(const double *restrict x, size_t len,
                        const double *restrict c, size_t K,
-                       double *restrict y)
+                       double *restrict y, size_t lo, size_t hi)
 {
     double grp[FC_DIRECT_CHUNK], cor[FC_DIRECT_CHUNK];
-    for (size_t i0 = 0; i0 < len; i0 += FC_DIRECT_CHUNK) {
+    for (size_t i0 = lo; i0 < hi; i0 += FC_DIRECT_CHUNK) {
         size_t i1 = i0 + FC_DIRECT_CHUNK < len ? i0 + FC_DIRECT_CHUNK : len;
         size_t mmax = K < i1 ? K : i1; /* lags 0 .. mmax-1 */
         size_t m1 = mmax < FC_DIRECT_GROUP ? mmax : FC_DIRECT_GROUP;
@@ -179,32 +259,42 @@ direct_accumulate_body(const double *restrict x, size_t len,
 
 static void direct_accumulate_generic(const double *restrict x, size_t len,
                                       const double *restrict c, size_t K,
-                                      double *restrict y)
+                                      double *restrict y, size_t lo, size_t hi)
 {
-    direct_accumulate_body(x, len, c, K, y);
+    direct_accumulate_body(x, len, c, K, y, lo, hi);
 }
 
 #if FC__DIRECT_AVX2
 __attribute__((target("avx2")))
 static void direct_accumulate_avx2(const double *restrict x, size_t len,
                                    const double *restrict c, size_t K,
-                                   double *restrict y)
+                                   double *restrict y, size_t lo, size_t hi)
 {
-    direct_accumulate_body(x, len, c, K, y);
+    direct_accumulate_body(x, len, c, K, y, lo, hi);
 }
 #endif
+
+/* Outputs lo <= i < hi only (lo a multiple of FC_DIRECT_CHUNK, hi one or
+   len): the chunks, hence the bits, are those of the whole range, so
+   ranges may be done by different threads. */
+static void direct_range(const double *restrict x, size_t len,
+                         const double *restrict c, size_t K,
+                         double *restrict y, size_t lo, size_t hi)
+{
+#if FC__DIRECT_AVX2
+    if (__builtin_cpu_supports("avx2")) {
+        direct_accumulate_avx2(x, len, c, K, y, lo, hi);
+        return;
+    }
+#endif
+    direct_accumulate_generic(x, len, c, K, y, lo, hi);
+}
 
 static void direct_accumulate(const double *restrict x, size_t len,
                               const double *restrict c, size_t K,
                               double *restrict y)
 {
-#if FC__DIRECT_AVX2
-    if (__builtin_cpu_supports("avx2")) {
-        direct_accumulate_avx2(x, len, c, K, y);
-        return;
-    }
-#endif
-    direct_accumulate_generic(x, len, c, K, y);
+    direct_range(x, len, c, K, y, 0, len);
 }
 
 /*
@@ -311,21 +401,66 @@ static part_shape part_shape_of(size_t n, const double *c, size_t K)
     return sh;
 }
 
-/* Doubles of work space: kernel spectra + window spectra ring (maxseg each)
-   + window + sum + output. */
-static int part_prepare(fc_context *ctx, size_t n, const double *c, size_t K,
-                        part_shape *sh)
+/*
+ * The sizes of the partitioned engine, where their kernel spectra lie in
+ * the context's work space, and one worker's area (window spectra ring of
+ * maxseg slots + window + sum + output). The kernel spectra (shared, read
+ * only while the threads run) come first in the calling thread's work
+ * space, its area after them; a helper's area is its whole work space.
+ */
+#define FC_MAX_SIZES 32
+typedef struct {
+    part_shape sh;
+    size_t nsz;                 /* sizes W[0] = W0, R W0, ..., maxW */
+    size_t W[FC_MAX_SIZES];
+    size_t nseg[FC_MAX_SIZES];  /* segments of each size */
+    size_t kofs[FC_MAX_SIZES];  /* kernel spectra of size z at work + kofs[z] */
+    size_t ktotal;              /* doubles of all kernel spectra */
+    size_t area;                /* doubles of one worker's area */
+} part_plan;
+
+static int part_prep_worker(fc_context *wctx, const void *arg)
 {
-    *sh = part_shape_of(n, c, K);
-    if (sh->maxW == 0) return FC_OK;
-    for (size_t W = sh->W0; W <= sh->maxW; W *= sh->R) {
-        int st = ensure_plan(ctx, 2 * W);
+    const part_plan *pp = arg;
+    for (size_t z = 0; z < pp->nsz; z++) {
+        int st = ensure_plan(wctx, 2 * pp->W[z]);
         if (st != FC_OK) return st;
     }
-    size_t spec = 2 * sh->maxW + 2, total, t2;
-    if (fc__mul_size(spec, 2 * sh->maxseg + 3, &total) != FC_OK) return FC_ERR_SIZE;
-    if (fc__add_size(total, 16, &t2) != FC_OK) return FC_ERR_SIZE;
-    return ensure_work(ctx, t2);
+    return ensure_work(wctx, pp->area);
+}
+
+static int part_prepare(fc_context *ctx, size_t n, const double *c, size_t K,
+                        part_plan *pp)
+{
+    const part_shape *sh = &pp->sh;
+    pp->sh = part_shape_of(n, c, K);
+    pp->nsz = 0;
+    pp->ktotal = 0;
+    pp->area = 0;
+    if (sh->maxW == 0) return FC_OK;
+    for (size_t W = sh->W0; W <= sh->maxW; W *= sh->R) {
+        size_t z = pp->nsz, phi = (sh->K + W - 1) / W, t;
+        if (W > ((size_t)1 << (FC_MAX_LOG2 - 1)) || z >= FC_MAX_SIZES)
+            return FC_ERR_SIZE;
+        if (phi > sh->R * sh->p0) phi = sh->R * sh->p0;
+        pp->W[z] = W;
+        pp->nseg[z] = phi - sh->p0;
+        pp->kofs[z] = pp->ktotal;
+        if (fc__mul_size(pp->nseg[z], 2 * W + 2, &t) != FC_OK ||
+            fc__add_size(pp->ktotal, t, &pp->ktotal) != FC_OK)
+            return FC_ERR_SIZE;
+        pp->nsz++;
+    }
+    size_t total;
+    if (fc__mul_size(2 * sh->maxW + 2, sh->maxseg + 3, &pp->area) != FC_OK ||
+        fc__add_size(pp->area, 16, &pp->area) != FC_OK ||
+        fc__add_size(pp->ktotal, pp->area, &total) != FC_OK)
+        return FC_ERR_SIZE;
+    for (size_t z = 0; z < pp->nsz; z++) {
+        int st = ensure_plan(ctx, 2 * pp->W[z]);
+        if (st != FC_OK) return st;
+    }
+    return ensure_work(ctx, total);
 }
 
 /* buf[j] = x[(b-1)W + j] for j < 2W, zero outside [0, n). */
@@ -340,69 +475,220 @@ static void window(const double *x, size_t n, size_t b, size_t W, double *buf)
     memset(buf + off + cnt, 0, (2 * W - off - cnt) * sizeof(double));
 }
 
-/* One size W of the partitioned engine for every signal. */
-static void part_size(fc_context *ctx, const part_shape *sh, size_t W,
-                      const double *x, size_t nsig, size_t n, const double *c,
-                      double *y)
+/*
+ * Output blocks ia <= i < ib (ia >= p0) of size z of one signal: block i
+ * is one inverse FFT of sum_p Z_{i-p} C_p, added to outputs [iW, iW+W).
+ * The window spectra Z_b are computed once each and kept in a ring; a
+ * range that starts past the first block first computes the windows its
+ * first block needs. Each Z_b and each block's sum is computed the same
+ * way whatever the range, so ranges may be done by different threads
+ * with the bits of one pass.
+ */
+static void part_blocks(const part_plan *pp, size_t z, const double *kspec,
+                        fc_fft_plan *plan, const double *xs, size_t n,
+                        double *ys, size_t ia, size_t ib, double *area)
 {
-    const size_t n2 = 2 * W, sp = n2 + 2, K = sh->K, p0 = sh->p0;
-    size_t phi = (K + W - 1) / W;
-    if (phi > sh->R * p0) phi = sh->R * p0;
-    const size_t nseg = phi - p0;
-    fc_fft_plan *plan = plan_of(ctx, n2);
-    double *kspec = ctx->work;              /* nseg spectra */
-    double *ring = kspec + nseg * sp;       /* nseg window spectra */
+    const size_t W = pp->W[z], n2 = 2 * W, sp = n2 + 2, p0 = pp->sh.p0;
+    const size_t nseg = pp->nseg[z];
+    double *ring = area;                    /* nseg window spectra */
     double *buf = ring + nseg * sp;         /* 2W */
     double *acc = buf + sp;                 /* 2W+2 */
     double *out = acc + sp;                 /* 2W */
-    const double scale = 1.0 / (double)n2;
     const double *zp[FC_MAX_SEGS], *cp[FC_MAX_SEGS];
-
-    for (size_t j = 0; j < nseg; j++) {
-        size_t lag0 = (p0 + j) * W;
-        for (size_t m = 0; m < W; m++)
-            buf[m] = lag0 + m < K ? c[lag0 + m] * scale : 0.0;
-        memset(buf + W, 0, W * sizeof(double));
-        fc__fft_forward(plan, buf, kspec + j * sp);
+    if (ia >= ib) return;
+    for (size_t b = ia - p0 > nseg - 1 ? ia - p0 - (nseg - 1) : 0;
+         b < ia - p0; b++) {
+        window(xs, n, b, W, buf);
+        fc__fft_forward(plan, buf, ring + (b % nseg) * sp);
     }
-    const size_t nb = (n + W - 1) / W; /* output blocks */
-    for (size_t sg = 0; sg < nsig; sg++) {
-        const double *xs = x + sg * n;
-        double *ys = y + sg * n;
-        for (size_t i = p0; i < nb; i++) {
-            /* the newest window needed: b = i - p0, samples [(b-1)W, (b+1)W) */
-            size_t b = i - p0;
-            window(xs, n, b, W, buf);
-            fc__fft_forward(plan, buf, ring + (b % nseg) * sp);
-            /* Y_i = sum_p Z_{i-p} C_p over the windows that exist */
-            size_t jmax = i - p0 + 1 < nseg ? i - p0 + 1 : nseg;
-            for (size_t j = 0; j < jmax; j++) {
-                zp[j] = ring + ((i - p0 - j) % nseg) * sp;
-                cp[j] = kspec + j * sp;
-            }
-            fc__spec_dot(plan, zp, cp, jmax, acc);
-            fc__fft_inverse(plan, acc, out);
-            size_t r0 = i * W;
-            size_t cnt = n - r0 < W ? n - r0 : W;
-            for (size_t t = 0; t < cnt; t++) ys[r0 + t] += out[W + t];
+    for (size_t i = ia; i < ib; i++) {
+        /* the newest window needed: b = i - p0, samples [(b-1)W, (b+1)W) */
+        size_t b = i - p0;
+        window(xs, n, b, W, buf);
+        fc__fft_forward(plan, buf, ring + (b % nseg) * sp);
+        /* Y_i = sum_p Z_{i-p} C_p over the windows that exist */
+        size_t jmax = i - p0 + 1 < nseg ? i - p0 + 1 : nseg;
+        for (size_t j = 0; j < jmax; j++) {
+            zp[j] = ring + ((i - p0 - j) % nseg) * sp;
+            cp[j] = kspec + j * sp;
         }
+        fc__spec_dot(plan, zp, cp, jmax, acc);
+        fc__fft_inverse(plan, acc, out);
+        size_t r0 = i * W;
+        size_t cnt = n - r0 < W ? n - r0 : W;
+        for (size_t t = 0; t < cnt; t++) ys[r0 + t] += out[W + t];
     }
 }
 
-/* Partitioned engine; every allocation already made by part_prepare. */
-static void part_run(fc_context *ctx, const part_shape *sh, const double *x,
+/*
+ * A threaded call of the partitioned engine. Every output is the direct
+ * band's sum, then size W0's block added, then size R W0's, ... in that
+ * order whatever the split, so the bits never depend on the threads:
+ *   whole signals: task s does signal s completely (enough signals);
+ *   phases: with fewer signals than threads (or a count that would leave
+ *     threads idle) the direct band, then each size in turn, is split into
+ *     q ranges per signal (output ranges of whole direct chunks; runs of
+ *     blocks of about equal cost), the phases one after the other.
+ */
+typedef struct {
+    fc_context *ctx;
+    const part_plan *pp;
+    const double *x, *c;
+    double *y;
+    size_t n, Kd, q;
+    size_t phase;                      /* 0: direct band; z + 1: size z */
+    size_t bnd[FC_THREADS_MAX + 1];    /* range starts of the phase */
+} part_job;
+
+static double *worker_area(const part_job *J, size_t w)
+{
+    return w == 0 ? J->ctx->work + J->pp->ktotal : J->ctx->help[w - 1]->work;
+}
+
+static void part_signal_task(void *arg, size_t sg, size_t w)
+{
+    const part_job *J = arg;
+    const part_plan *pp = J->pp;
+    fc_context *wc = worker_ctx(J->ctx, w);
+    const double *xs = J->x + sg * J->n;
+    double *ys = J->y + sg * J->n;
+    memset(ys, 0, J->n * sizeof(double));
+    direct_accumulate(xs, J->n, J->c, J->Kd, ys);
+    for (size_t z = 0; z < pp->nsz; z++) {
+        size_t nb = (J->n + pp->W[z] - 1) / pp->W[z];
+        part_blocks(pp, z, J->ctx->work + pp->kofs[z], plan_of(wc, 2 * pp->W[z]),
+                    xs, J->n, ys, pp->sh.p0, nb, worker_area(J, w));
+    }
+}
+
+static void part_phase_task(void *arg, size_t k, size_t w)
+{
+    const part_job *J = arg;
+    const part_plan *pp = J->pp;
+    size_t sg = k / J->q, r = k % J->q;
+    const double *xs = J->x + sg * J->n;
+    double *ys = J->y + sg * J->n;
+    size_t lo = J->bnd[r], hi = J->bnd[r + 1];
+    if (J->phase == 0) {
+        if (hi > J->n) hi = J->n;
+        if (lo >= hi) return;
+        memset(ys + lo, 0, (hi - lo) * sizeof(double));
+        direct_range(xs, J->n, J->c, J->Kd, ys, lo, hi);
+        return;
+    }
+    size_t z = J->phase - 1;
+    part_blocks(pp, z, J->ctx->work + pp->kofs[z],
+                plan_of(worker_ctx(J->ctx, w), 2 * pp->W[z]), xs, J->n, ys,
+                lo, hi, worker_area(J, w));
+}
+
+/* Kernel segment k (counted over every size) into its spectrum: one FFT
+   each, the same whichever thread does it; the worker's area as scratch. */
+static void kspec_task(void *arg, size_t k, size_t w)
+{
+    const part_job *J = arg;
+    const part_plan *pp = J->pp;
+    const size_t K = pp->sh.K, p0 = pp->sh.p0;
+    size_t z = 0;
+    while (k >= pp->nseg[z]) k -= pp->nseg[z++];
+    const size_t W = pp->W[z], n2 = 2 * W, sp = n2 + 2;
+    const double scale = 1.0 / (double)n2;
+    double *buf = worker_area(J, w);
+    size_t lag0 = (p0 + k) * W;
+    for (size_t m = 0; m < W; m++)
+        buf[m] = lag0 + m < K ? J->c[lag0 + m] * scale : 0.0;
+    memset(buf + W, 0, W * sizeof(double));
+    fc__fft_forward(plan_of(worker_ctx(J->ctx, w), n2), buf,
+                    J->ctx->work + pp->kofs[z] + k * sp);
+}
+
+static size_t gcd_size(size_t a, size_t b)
+{
+    while (b) { size_t t = a % b; a = b; b = t; }
+    return a;
+}
+
+/* Partitioned engine; every allocation of the calling thread already made
+   by part_prepare. */
+static void part_run(fc_context *ctx, const part_plan *pp, const double *x,
                      size_t nsig, size_t n, const double *c, double *y)
 {
-    memset(y, 0, nsig * n * sizeof(double));
-    size_t Kd = sh->K < sh->D ? sh->K : sh->D;
-    for (size_t sg = 0; sg < nsig; sg++)
-        direct_accumulate(x + sg * n, n, c, Kd, y + sg * n);
-    if (sh->maxW == 0) return;
-    for (size_t W = sh->W0; W <= sh->maxW; W *= sh->R)
-        part_size(ctx, sh, W, x, nsig, n, c, y);
+    const part_shape *sh = &pp->sh;
+    part_job J;
+    size_t T = ctx->threads;
+    J.ctx = ctx;
+    J.pp = pp;
+    J.x = x;
+    J.c = c;
+    J.y = y;
+    J.n = n;
+    J.Kd = sh->K < sh->D ? sh->K : sh->D;
+    if (T > 1 && nsig * n < FC_PAR_MIN_SAMPLES) T = 1;
+    /* at least about 2^13 samples a thread: no helper (plans, work space)
+       that could have nothing to do */
+    if (T > 1 && T > nsig * n / 8192) T = nsig * n / 8192;
+    /* whole signals when they keep the threads busy, or when the call is
+       too small to split */
+    int whole = T == 1 || nsig % T == 0 || nsig >= 2 * T;
+    if (!whole && nsig * n < FC_PAR_MIN_SPLIT) {
+        if (T > nsig) T = nsig;
+        whole = 1;
+    }
+    if (T > 1) T = workers_ready(ctx, T, part_prep_worker, pp);
+    /* the kernel spectra first (shared, read only afterwards) */
+    size_t nk = 0;
+    for (size_t z = 0; z < pp->nsz; z++) nk += pp->nseg[z];
+    fc__run_tasks(nk, T, kspec_task, &J);
+    if (whole || T == 1 || nsig % T == 0 || nsig >= 2 * T) {
+        fc__run_tasks(nsig, T, part_signal_task, &J);
+        return;
+    }
+    /* q ranges per signal: at least q0 (nsig q0 a multiple of T), up to
+       4 T where the ranges stay long, so that a thread held up (a busy
+       machine) leaves more of the ranges to the others */
+    const size_t q0 = T / gcd_size(nsig % T, T);
+    size_t qmax = 4 * T > FC_THREADS_MAX ? FC_THREADS_MAX : 4 * T;
+    if (qmax < q0) qmax = q0;
+    /* the direct band: whole chunks of outputs */
+    size_t nch = (n + FC_DIRECT_CHUNK - 1) / FC_DIRECT_CHUNK;
+    J.q = qmax < nch ? qmax : nch;
+    if (J.q < q0) J.q = q0;
+    for (size_t r = 0; r <= J.q; r++) J.bnd[r] = r * nch / J.q * FC_DIRECT_CHUNK;
+    J.phase = 0;
+    fc__run_tasks(nsig * J.q, T, part_phase_task, &J);
+    for (size_t z = 0; z < pp->nsz; z++) {
+        /* runs of blocks p0 .. nb-1 of about equal cost: 4 (two FFTs and
+           the window) + the segments summed (common practice estimate) */
+        size_t nb = (n + pp->W[z] - 1) / pp->W[z], p0 = sh->p0;
+        double total = 0.0, acc = 0.0;
+        /* runs of at least 2 nseg blocks: the windows a run computes
+           first (nseg - 1 FFTs) stay a small part of its work */
+        J.q = (nb > p0 ? nb - p0 : 0) / (2 * pp->nseg[z]);
+        if (J.q > qmax) J.q = qmax;
+        if (J.q < q0) J.q = q0;
+        for (size_t i = p0; i < nb; i++)
+            total += 4.0 + (double)(i - p0 + 1 < pp->nseg[z] ? i - p0 + 1 : pp->nseg[z]);
+        size_t r = 1;
+        J.bnd[0] = p0 < nb ? p0 : nb;
+        for (size_t i = p0; i < nb && r < J.q; i++) {
+            acc += 4.0 + (double)(i - p0 + 1 < pp->nseg[z] ? i - p0 + 1 : pp->nseg[z]);
+            while (r < J.q && acc >= total * (double)r / (double)J.q) J.bnd[r++] = i + 1;
+        }
+        while (r <= J.q) J.bnd[r++] = nb > p0 ? nb : J.bnd[0];
+        J.phase = z + 1;
+        fc__run_tasks(nsig * J.q, T, part_phase_task, &J);
+    }
 }
 
 /* One FFT convolution of the whole record. */
+static int fft_prep_worker(fc_context *wctx, const void *arg)
+{
+    size_t P = *(const size_t *)arg;
+    int st = ensure_plan(wctx, P);
+    if (st != FC_OK) return st;
+    return ensure_work(wctx, 2 * P + 8);
+}
+
 static int fft_prepare(fc_context *ctx, size_t n, size_t K, size_t *P)
 {
     size_t need = n + (K < n ? K : n) - 1;
@@ -417,25 +703,83 @@ static int fft_prepare(fc_context *ctx, size_t n, size_t K, size_t *P)
     return ensure_work(ctx, 3 * p + 8);
 }
 
+typedef struct {
+    fc_context *ctx;
+    size_t P, n;
+    const double *x, *spec;
+    double *y;
+} fft_job;
+
+/* Signal sg: the calling thread's buffers follow the kernel spectrum in
+   its work space, a helper's are its work space. */
+static void fft_task(void *arg, size_t sg, size_t w)
+{
+    const fft_job *J = arg;
+    const size_t P = J->P, n = J->n;
+    fc_context *wc = worker_ctx(J->ctx, w);
+    fc_fft_plan *p = plan_of(wc, P);
+    double *buf = w == 0 ? J->ctx->work + P + 2 : wc->work; /* P */
+    double *xs = buf + P;                                    /* P + 2 */
+    memcpy(buf, J->x + sg * n, n * sizeof(double));
+    memset(buf + n, 0, (P - n) * sizeof(double));
+    fc__fft_forward(p, buf, xs);
+    fc__spec_mul(p, xs, J->spec, xs);
+    fc__fft_inverse(p, xs, buf);
+    memcpy(J->y + sg * n, buf, n * sizeof(double));
+}
+
 static void fft_run(fc_context *ctx, size_t P, const double *x, size_t nsig,
                     size_t n, const double *c, size_t K, double *y)
 {
     fc_fft_plan *p = plan_of(ctx, P);
-    double *buf = ctx->work;        /* P */
-    double *spec = buf + P;         /* P + 2 */
-    double *xs = spec + P + 2;      /* P + 2 */
+    double *spec = ctx->work;           /* P + 2 */
+    double *buf = spec + P + 2;         /* P */
     size_t Ku = K < n ? K : n;
     double scale = 1.0 / (double)P;
     for (size_t m = 0; m < P; m++) buf[m] = m < Ku ? c[m] * scale : 0.0;
     fc__fft_forward(p, buf, spec);
-    for (size_t sg = 0; sg < nsig; sg++) {
-        memcpy(buf, x + sg * n, n * sizeof(double));
-        memset(buf + n, 0, (P - n) * sizeof(double));
-        fc__fft_forward(p, buf, xs);
-        fc__spec_mul(p, xs, spec, xs);
-        fc__fft_inverse(p, xs, buf);
-        memcpy(y + sg * n, buf, n * sizeof(double));
+    fft_job J = {ctx, P, n, x, spec, y};
+    size_t T = ctx->threads < nsig ? ctx->threads : nsig;
+    if (T > 1 && nsig * n < FC_PAR_MIN_SAMPLES) T = 1;
+    if (T > 1) T = workers_ready(ctx, T, fft_prep_worker, &P);
+    fc__run_tasks(nsig, T, fft_task, &J);
+}
+
+/* The direct engine by ranges of whole chunks of outputs. */
+typedef struct {
+    const double *x, *c;
+    double *y;
+    size_t n, K, q, nch;
+} direct_job;
+
+static void direct_task(void *arg, size_t k, size_t w)
+{
+    const direct_job *J = arg;
+    size_t sg = k / J->q, r = k % J->q;
+    size_t lo = r * J->nch / J->q * FC_DIRECT_CHUNK;
+    size_t hi = (r + 1) * J->nch / J->q * FC_DIRECT_CHUNK;
+    (void)w;
+    if (hi > J->n) hi = J->n;
+    if (lo >= hi) return;
+    memset(J->y + sg * J->n + lo, 0, (hi - lo) * sizeof(double));
+    direct_range(J->x + sg * J->n, J->n, J->c, J->K, J->y + sg * J->n, lo, hi);
+}
+
+static void direct_run(fc_context *ctx, const double *x, size_t nsig,
+                       size_t n, const double *c, size_t K, double *y)
+{
+    direct_job J = {x, c, y, n, K, 1, (n + FC_DIRECT_CHUNK - 1) / FC_DIRECT_CHUNK};
+    size_t T = ctx != NULL ? ctx->threads : 1;
+    /* about 2^22 multiply-adds or more: worth the threads */
+    if (T > 1 && (double)nsig * (double)n * (double)(K < 64 ? 64 : K) < 4194304.0)
+        T = 1;
+    if (T > 1 && nsig < 4 * T) {
+        /* outputs late in a signal have more lags: ranges of 4 per thread */
+        J.q = (4 * T + nsig - 1) / nsig;
+        if (J.q > J.nch) J.q = J.nch;
+        if (J.q > FC_THREADS_MAX) J.q = FC_THREADS_MAX;
     }
+    fc__run_tasks(nsig * J.q, T, direct_task, &J);
 }
 
 /* Choice of engine by size: direct while it costs less than the FFT work. */
@@ -454,16 +798,14 @@ static int lagsum_checked(fc_context *ctx, const double *x, size_t nsig,
     if (engine == FC_ENGINE_AUTO) engine = choose_engine(n, K);
     if (K > n) K = n;
     if (engine == FC_ENGINE_DIRECT) {
-        memset(y, 0, nsig * n * sizeof(double));
-        for (size_t sg = 0; sg < nsig; sg++)
-            direct_accumulate(x + sg * n, n, c, K, y + sg * n);
+        direct_run(ctx, x, nsig, n, c, K, y);
         return FC_OK;
     }
     if (engine == FC_ENGINE_BLOCKED) {
-        part_shape shape;
-        int st = part_prepare(ctx, n, c, K, &shape);
+        part_plan plan;
+        int st = part_prepare(ctx, n, c, K, &plan);
         if (st != FC_OK) return st;
-        part_run(ctx, &shape, x, nsig, n, c, y);
+        part_run(ctx, &plan, x, nsig, n, c, y);
         return FC_OK;
     }
     size_t P;

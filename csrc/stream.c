@@ -199,22 +199,35 @@ static int horizon_check(const fc_stream *s, size_t count)
 
 /* ------------------------------------------------------------ push */
 
-int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
-                         double *y)
+static int push_block(fc_stream *s, const double *x, size_t count,
+                      double *y, size_t threads)
 {
     int st;
     size_t tot;
     if (!s) return FC_ERR_NULL;
     if (count && (!x || !y)) return FC_ERR_NULL;
+    if (threads == 0 || threads > FC_THREADS_MAX) return FC_ERR_ARG;
     if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
     if (fc__mul_size(count, s->C, &tot) || tot > (size_t)-1 / sizeof(double))
         st = FC_ERR_SIZE;
     else if (partial_overlap(x, y, tot)) st = FC_ERR_ARG;
     else if (tot && (st = fc__check_finite(x, tot)) != FC_OK) {}
     else if ((st = horizon_check(s, count)) != FC_OK) {}
-    else if (count) st = s->ops->push_block(s->eng, x, count, y);
+    else if (count) st = s->ops->push_block(s->eng, x, count, y, threads);
     leave(s);
     return st;
+}
+
+int fc_stream_push_block(fc_stream *s, const double *x, size_t count,
+                         double *y)
+{
+    return push_block(s, x, count, y, 1);
+}
+
+int fc_stream_push_block_threads(fc_stream *s, const double *x, size_t count,
+                                 double *y, size_t threads)
+{
+    return push_block(s, x, count, y, threads);
 }
 
 int fc_stream_push_timed(fc_stream *s, const double *t, const double *x,

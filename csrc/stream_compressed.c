@@ -513,7 +513,90 @@ static int cs_check_block(cs_engine *cs, const double *x, size_t count)
    overlap of x and y and the horizon (internal.h); the engine's own limits
    (RANGE, the count below 2^53) are checked here before anything is
    written. */
-static int cs_push_block(void *eng, const double *x, size_t count, double *y)
+/*
+ * A block with the channels shared by threads: task k runs every time step
+ * of its range of channels (channels share nothing but the count and what
+ * depends on it alone: the correction and the weights of the columns added
+ * at run time, computed first in step order). cs_step0_channel is
+ * cs_step's mode 0 for one channel, the same operations in the same order:
+ * the same bits.
+ */
+typedef struct {
+    cs_engine *cs;
+    const double *x, *corr, *xw;
+    double *y;
+    size_t count, q;
+} cs_job;
+
+static void cs_step0_channel(cs_engine *cs, size_t c, double xc, double *yout,
+                             uint64_t n, double corr, int inject,
+                             const double *xw)
+{
+    const size_t B = CS_BAND, C = cs->C;
+    const size_t pos = (size_t)(n % B);
+    double u;
+    double Xhi = 0.0, Xlo = 0.0;
+    if (cs->diffs) u = n == 0 ? 0.0 : xc - cs->xprev[c];
+    else if (cs->cum) {
+        Xhi = cs->xprev[c];
+        Xlo = cs->x0[c];
+        cs_dd_add(&Xhi, &Xlo, xc);
+        u = Xhi;
+    } else u = xc;
+    double *ring = cs->ring + c * 2 * B;
+    double d = ring[pos];
+    double acc[8];
+    double terms = 0.0;
+    double *S = cs->S + c * cs->Lp, *Sc = cs->Sc + c * cs->Lp;
+    if (cs->L) {
+        cs_terms(cs, inject ? cs->inj : NULL, S, Sc, S, Sc, d, acc);
+        terms = cs_reduce8(acc);
+    }
+    double band = cs_band(cs, ring + pos + 1);
+    double x0 = n == 0 ? xc : cs->tcum ? cs->xfirst[c] : cs->x0[c];
+    double yc = ((terms + band) + cs->c0 * u) + corr * x0;
+    for (size_t i = 0; i < cs->nx; i++)
+        if (n >= cs->xj[i])
+            yc += xw[i] * (n == cs->xj[i] ? xc : cs->xs[i * C + c]);
+    *yout = yc;
+    ring[pos] = u;
+    ring[pos + B] = u;
+    if (cs->cum) {
+        cs->xprev[c] = Xhi;
+        cs->x0[c] = Xlo;
+        if (cs->tcum && n == 0) cs->xfirst[c] = xc;
+    }
+    else {
+        cs->xprev[c] = xc;
+        if (n == 0) cs->x0[c] = xc;
+    }
+    for (size_t i = 0; i < cs->nx; i++)
+        if (n == cs->xj[i]) cs->xs[i * C + c] = xc;
+}
+
+static void cs_task(void *arg, size_t k, size_t w)
+{
+    const cs_job *J = arg;
+    cs_engine *cs = J->cs;
+    const size_t C = cs->C, c0 = k * C / J->q, c1 = (k + 1) * C / J->q;
+    const size_t nx = cs->nx;
+    (void)w;
+    for (size_t t = 0; t < J->count; t++) {
+        const uint64_t n = cs->n + t;
+        const int inject = cs->x0corr && !cs->tcum && n == CS_BAND;
+        const double *xt = J->x + t * C;
+        double *yt = J->y + t * C;
+        for (size_t c = c0; c < c1; c++)
+            cs_step0_channel(cs, c, xt[c], &yt[c], n, J->corr[t], inject,
+                             J->xw + t * nx);
+    }
+}
+
+/* Blocks of fewer values than this in all run on the calling thread. */
+#define CS_PAR_MIN 4096
+
+static int cs_push_block(void *eng, const double *x, size_t count, double *y,
+                         size_t threads)
 {
     cs_engine *cs = eng;
     int st;
@@ -526,6 +609,28 @@ static int cs_push_block(void *eng, const double *x, size_t count, double *y)
         }
     }
     if ((st = cs_check_block(cs, x, count)) != FC_OK) return st;
+    if (threads > cs->C) threads = cs->C;
+    if (threads > 1 && count * cs->C >= CS_PAR_MIN &&
+        count <= ((size_t)-1) / sizeof(double) / (1 + cs->nx)) {
+        double *corr = malloc(count * (1 + cs->nx) * sizeof(double));
+        if (corr != NULL) { /* else: the calling thread alone, below */
+            /* up to 4 ranges of channels per thread, handed out in turn */
+            size_t q = 4 * threads < cs->C ? 4 * threads : cs->C;
+            double *xw = corr + count;
+            cs_job J = {cs, x, corr, xw, y, count, q};
+            for (size_t t = 0; t < count; t++) {
+                const uint64_t n = cs->n + t;
+                corr[t] = (cs->x0corr && n < CS_BAND) ? cs->ctab[n]
+                          : cs->tcum ? cs_corr_at(cs, &cs->tc, n) : 0.0;
+                cs_extra_weights(cs, n, xw + t * cs->nx);
+            }
+            fc__run_tasks(q, threads, cs_task, &J);
+            cs->n += count;
+            cs->pvalid = 0;
+            free(corr);
+            return FC_OK;
+        }
+    }
     for (size_t t = 0; t < count; t++)
         cs_step(cs, x + t * cs->C, y + t * cs->C, 0);
     return FC_OK;
@@ -533,7 +638,7 @@ static int cs_push_block(void *eng, const double *x, size_t count, double *y)
 
 static int cs_push1(void *eng, double x, double *y)
 {
-    return cs_push_block(eng, &x, 1, y);
+    return cs_push_block(eng, &x, 1, y, 1);
 }
 
 static int cs_preview(void *eng, const double *x, double *y)

@@ -170,7 +170,27 @@ typedef struct {
                                cache, n in corr_chunk[k]*FC_S_CORR + i */
     uint64_t corr_chunk[FC__CORR_MAX];
     int corr_valid[FC__CORR_MAX];
+    /* threads of the push under way (1 outside fc_stream_push_block_threads)
+       and the scratch of the extra ones: not part of the state */
+    size_t par;
+    size_t nhelp;
+    struct ex_helper *help;
 } ex_engine;
+
+/* The scratch of an extra thread: its own FFT plans (a plan holds scratch
+   space, fft.h) for the levels it serves and a work buffer like s->work. */
+typedef struct ex_helper {
+    fc_fft_plan *plan[FC_S_MAXLEV];
+    double *work;
+    size_t wcap;
+} ex_helper;
+
+/* Frames of block size s >= FC_S_PAR_BLOCK with s * channels >=
+   FC_S_PAR_WORK are shared by the threads of a push (smaller ones are
+   not worth a thread start). */
+#define FC_S_PAR_BLOCK 512
+#define FC_S_PAR_WORK 16384
+
 
 /* Rows of xcol: one per column, at least one (the x_0 field of the saved
    payload). */
@@ -402,24 +422,38 @@ static int segment_spectrum(const ex_engine *s, fc__level *L, size_t p,
     return FC_OK;
 }
 
-/* Spectra of input block f of every channel into the slot X, each with
-   its exponent at [n2+2] and a zero-block flag at [n2+3]. */
+/* Spectrum of input block f of channel c into X, with its exponent at
+   [n2+2] and a zero-block flag at [n2+3]; plan and t (2s doubles) of the
+   thread doing it. */
+static void block_spectrum_to(const ex_engine *s, fc__level *L, uint64_t f,
+                              size_t c, fc_fft_plan *plan, double *t, double *X)
+{
+    size_t sz = L->s, n2 = 2 * sz;
+    int zero;
+    memcpy(t, urow(s, c) + f * sz, sz * sizeof(double));
+    int e = scale_exponent(t, sz, &zero);
+    if (e != 0)
+        for (size_t i = 0; i < sz; i++) t[i] = ldexp(t[i], -e);
+    memset(t + sz, 0, sz * sizeof(double));
+    fc__fft_forward(plan, t, X);
+    X[n2 + 2] = (double)e;
+    X[n2 + 3] = zero ? 1.0 : 0.0;
+}
+
+/* The same into its ring slot. */
+static void block_spectrum(const ex_engine *s, fc__level *L, uint64_t f,
+                           size_t c, fc_fft_plan *plan, double *t)
+{
+    block_spectrum_to(s, L, f, c, plan, t,
+                      L->xspec[f % L->nseg] + c * FC_S_XSLOT(2 * L->s));
+}
+
+/* Spectra of input block f of every channel into the slot X. */
 static void block_spectra_to(ex_engine *s, fc__level *L, uint64_t f,
                              double *X)
 {
-    size_t sz = L->s, n2 = 2 * sz;
-    double *t = s->work;
-    for (size_t c = 0; c < s->C; c++, X += FC_S_XSLOT(n2)) {
-        int zero;
-        memcpy(t, urow(s, c) + f * sz, sz * sizeof(double));
-        int e = scale_exponent(t, sz, &zero);
-        if (e != 0)
-            for (size_t i = 0; i < sz; i++) t[i] = ldexp(t[i], -e);
-        memset(t + sz, 0, sz * sizeof(double));
-        fc__fft_forward(L->plan, t, X);
-        X[n2 + 2] = (double)e;
-        X[n2 + 3] = zero ? 1.0 : 0.0;
-    }
+    for (size_t c = 0; c < s->C; c++)
+        block_spectrum_to(s, L, f, c, L->plan, s->work, X + c * FC_S_XSLOT(2 * L->s));
 }
 
 /* The same into block f's ring slot. */
@@ -489,24 +523,87 @@ static void frame_add(ex_engine *s, fc__level *L, uint64_t f, size_t c,
 /* Frame f of level j: new block spectrum, sum_p X_{f-p} K_p, one inverse
    FFT, added to outputs f*s + base ... f*s + base + 2s - 2 (only those >= lo:
    lo > 0 when a refused block is undone, see ex_rollback). */
+/* Frame f of level L for channel c (its block spectrum already made):
+   sum_p X_{f-p} K_p, one inverse FFT, added to the channel's outputs from
+   o + i0 on; plan and t (4s+2 doubles) of the thread doing it. */
+static void frame_channel(const ex_engine *s, const fc__level *L, uint64_t f,
+                          size_t c, size_t i0, fc_fft_plan *plan, double *t)
+{
+    size_t sz = L->s, n2 = 2 * sz, R = L->nseg;
+    size_t np = f + 1 < R ? (size_t)f + 1 : R;
+    double *Y = t + n2;
+    uint64_t o = f * sz + L->base;
+    const double *xp[FC_S_SEGS_MAX];
+    size_t off = c * FC_S_XSLOT(n2);
+    int scaled = 0;
+    for (size_t p = 0; p < np; p++) {
+        xp[p] = L->xspec[(f - p) % R] + off;
+        if ((xp[p][n2 + 2] != 0.0 || L->kexp[p] != 0) && xp[p][n2 + 3] == 0.0)
+            scaled = 1;
+    }
+    double *a = arow(s, c) + (o - s->abase);
+    if (!scaled) {
+        fc__spec_dot(plan, xp, (const double *const *)L->kspec, np, Y);
+        fc__fft_inverse(plan, Y, t);
+        for (size_t i = i0; i + 1 < n2; i++) a[i] += t[i];
+    } else {
+        int E = scaled_dot(n2, xp, L, np, Y);
+        fc__fft_inverse(plan, Y, t);
+        for (size_t i = i0; i + 1 < n2; i++) a[i] += ldexp(t[i], E);
+    }
+}
+
+/* A frame with the channels shared by the threads of the push: task k
+   makes the block spectra and the frames of its range of channels (a
+   channel's frame reads only its own spectra), each thread with its own
+   plan and work buffer: the same operations on the same values as the
+   serial loop, so the same bits. */
+typedef struct {
+    ex_engine *s;
+    size_t j, i0, q;
+    uint64_t f;
+} ex_frame_job;
+
+static void frame_task(void *arg, size_t k, size_t w)
+{
+    const ex_frame_job *J = arg;
+    ex_engine *s = J->s;
+    fc__level *L = &s->lev[J->j];
+    fc_fft_plan *plan = w == 0 ? L->plan : s->help[w - 1].plan[J->j];
+    double *t = w == 0 ? s->work : s->help[w - 1].work;
+    size_t c0 = k * s->C / J->q, c1 = (k + 1) * s->C / J->q;
+    for (size_t c = c0; c < c1; c++) {
+        block_spectrum(s, L, J->f, c, plan, t);
+        frame_channel(s, L, J->f, c, J->i0, plan, t);
+    }
+}
+
 static void level_frame(ex_engine *s, size_t j, uint64_t f, uint64_t lo)
 {
     fc__level *L = &s->lev[j];
     size_t sz = L->s, n2 = 2 * sz, R = L->nseg;
-    size_t np = f + 1 < R ? (size_t)f + 1 : R;
-    double *Y = s->work + n2;
     uint64_t o = f * sz + L->base;
-    block_spectra(s, L, f);
-    const double *xp[FC_S_SEGS_MAX];
-    for (size_t c = 0; c < s->C; c++) {
-        size_t off = c * FC_S_XSLOT(n2);
-        for (size_t p = 0; p < np; p++) xp[p] = L->xspec[(f - p) % R] + off;
-        if (!frame_scaled(L, xp, np, n2)) {
-            fc__spec_dot(L->plan, xp, (const double *const *)L->kspec, np, Y);
-            frame_add(s, L, f, c, Y, 0, 0, lo);
-        } else {
-            int E = scaled_dot(n2, xp, L, np, Y);
-            frame_add(s, L, f, c, Y, 1, E, lo);
+    if (s->par > 1 && sz >= FC_S_PAR_BLOCK && sz * s->C >= FC_S_PAR_WORK) {
+        /* one task per channel, handed out in turn: a thread held up (a
+           busy machine) leaves the remaining channels to the others */
+        size_t i0 = lo > o ? (size_t)(lo - o) : 0;
+        ex_frame_job J = {s, j, i0, s->C, f};
+        fc__run_tasks(s->C, s->par, frame_task, &J);
+    } else {
+        size_t np = f + 1 < R ? (size_t)f + 1 : R;
+        double *Y = s->work + n2;
+        block_spectra(s, L, f);
+        const double *xp[FC_S_SEGS_MAX];
+        for (size_t c = 0; c < s->C; c++) {
+            size_t off = c * FC_S_XSLOT(n2);
+            for (size_t p = 0; p < np; p++) xp[p] = L->xspec[(f - p) % R] + off;
+            if (!frame_scaled(L, xp, np, n2)) {
+                fc__spec_dot(L->plan, xp, (const double *const *)L->kspec, np, Y);
+                frame_add(s, L, f, c, Y, 0, 0, lo);
+            } else {
+                int E = scaled_dot(n2, xp, L, np, Y);
+                frame_add(s, L, f, c, Y, 1, E, lo);
+            }
         }
     }
     if (o + n2 - 1 > s->acc_hi) s->acc_hi = o + n2 - 1;
@@ -636,6 +733,46 @@ static void frame_due(ex_engine *s, size_t j, uint64_t f)
         }
     }
     level_frame(s, j, f, 0);
+}
+
+/* Workers (1 .. want) whose scratch serves every level a threaded frame
+   may use: helpers are made or grown in turn, the first that cannot be
+   (no memory) ends the count. Never an error: fewer threads, same bits. */
+static size_t ex_helpers_ready(ex_engine *s, size_t want)
+{
+    size_t w = 1;
+    if (!fc__have_threads()) return 1;
+    if (want > 1 && s->nhelp < want - 1) {
+        ex_helper *h = realloc(s->help, (want - 1) * sizeof *h);
+        if (h == NULL) want = s->nhelp + 1;
+        else {
+            s->help = h;
+            memset(h + s->nhelp, 0, (want - 1 - s->nhelp) * sizeof *h);
+        }
+    }
+    for (; w < want; w++) {
+        ex_helper *h = &s->help[w - 1];
+        int ok = 1;
+        if (w > s->nhelp) s->nhelp = w;
+        if (h->wcap < s->wcap) {
+            double *nw = malloc((4 * s->wcap + 2) * sizeof(double));
+            if (nw == NULL) break;
+            free(h->work);
+            h->work = nw;
+            h->wcap = s->wcap;
+        }
+        for (size_t j = 0; j < s->nlev && ok; j++) {
+            size_t sz = s->lev[j].s;
+            if (sz < FC_S_PAR_BLOCK || sz * s->C < FC_S_PAR_WORK || h->plan[j]) continue;
+            if (fc__fft_create(2 * sz, &h->plan[j]) != FC_OK) ok = 0;
+        }
+        if (!ok) break;
+    }
+    if (s->nhelp == 0 && s->help != NULL) {
+        free(s->help);
+        s->help = NULL;
+    }
+    return w;
 }
 
 /* ------------------------------------------------------------ capacity */
@@ -1013,7 +1150,7 @@ static int ex_block_safe(const ex_engine *s, const double *x, size_t tot,
 }
 
 static int ex_push_block(ex_engine *s, const double *x, size_t count,
-                         double *y)
+                         double *y, size_t threads)
 {
     size_t C = s->C, tot = count * C; /* fits (the facade checked) */
     int st;
@@ -1043,7 +1180,12 @@ static int ex_push_block(ex_engine *s, const double *x, size_t count,
         memcpy(s->tmp + 3 * C, s->xcol, XR(s) * C * sizeof(double));
     }
     uint64_t n0 = s->n, hi0 = s->acc_hi;
-    if (!stage && count > 1) {
+    if (threads > C) threads = C;
+    /* threads only for a block reaching a frame worth sharing */
+    if (threads > 1 && s->nlev > 0 && s->lev[s->nlev - 1].s >= FC_S_PAR_BLOCK &&
+        s->lev[s->nlev - 1].s * C >= FC_S_PAR_WORK && count >= FC_S_PAR_BLOCK)
+        s->par = ex_helpers_ready(s, threads);
+    if (!stage && count > 1 && s->par == 1) {
         /* no step can fail: u of the whole block first (what ex_step
            stores), so that frames due within the block can be computed
            together (frame_due) */
@@ -1076,6 +1218,7 @@ static int ex_push_block(ex_engine *s, const double *x, size_t count,
         if (st != FC_OK) { /* FC_ERR_RANGE: an output beyond the double range */
             s->gend = 0;
             for (size_t j = 0; j < s->nlev; j++) s->lev[j].gn = 0;
+            s->par = 1;
             if (t > 0) ex_rollback(s, n0, hi0);
             s->umax = umax0;
             free(stage);
@@ -1083,6 +1226,7 @@ static int ex_push_block(ex_engine *s, const double *x, size_t count,
         }
     }
     s->gend = 0;
+    s->par = 1;
     if (stage) {
         memcpy(y, stage, tot * sizeof(double));
         free(stage);
@@ -1119,6 +1263,11 @@ static size_t ex_nbytes(const ex_engine *s)
                                 s->C * FC_S_XSLOT(2 * s->lev[j].s)) * sizeof(double) +
              s->lev[j].gslots * s->C * FC_S_XSLOT(2 * s->lev[j].s) * sizeof(double) +
              fc__fft_nbytes(s->lev[j].plan);
+    for (size_t i = 0; i < s->nhelp; i++) { /* threads' scratch */
+        b += sizeof(ex_helper) + (s->help[i].work ? (4 * s->help[i].wcap + 2) * sizeof(double) : 0);
+        for (size_t j = 0; j < FC_S_MAXLEV; j++)
+            if (s->help[i].plan[j]) b += fc__fft_nbytes(s->help[i].plan[j]);
+    }
     return b;
 }
 
@@ -1140,6 +1289,11 @@ static void ex_free(ex_engine *s)
     free(s->leafk);
     free(s->lbuf);
     free(s->work);
+    for (size_t i = 0; i < s->nhelp; i++) {
+        for (size_t j = 0; j < FC_S_MAXLEV; j++) fc__fft_free(s->help[i].plan[j]);
+        free(s->help[i].work);
+    }
+    free(s->help);
     free(s);
 }
 
@@ -1631,9 +1785,10 @@ static int op_load(const fc__stream_def *d, const unsigned char *p,
     return st;
 }
 static void op_free(void *eng) { ex_free(eng); }
-static int op_push_block(void *eng, const double *x, size_t count, double *y)
+static int op_push_block(void *eng, const double *x, size_t count, double *y,
+                         size_t threads)
 {
-    return ex_push_block(eng, x, count, y);
+    return ex_push_block(eng, x, count, y, threads);
 }
 /* One sample of a one-channel stream: the inline fast path of
    ex_push_block. */

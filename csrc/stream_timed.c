@@ -294,9 +294,10 @@ static int ts_push_timed(void *eng, const double *t, const double *x,
 }
 
 /* The untimed pushes, previews and histories need a time: refused. */
-static int ts_push_block(void *eng, const double *x, size_t count, double *y)
+static int ts_push_block(void *eng, const double *x, size_t count, double *y,
+                         size_t threads)
 {
-    (void)eng; (void)x; (void)count; (void)y;
+    (void)eng; (void)x; (void)count; (void)y; (void)threads;
     return FC_ERR_ARG;
 }
 static int ts_push1(void *eng, double x, double *y)

@@ -308,6 +308,39 @@ def check_count(name: str, value: object, minimum: int = 0,
     return v
 
 
+THREADS_MAX = int(lib.FC_THREADS_MAX)  # 256
+
+
+def check_workers(workers: object) -> int:
+    """The thread count of a ``workers`` argument, SciPy's convention
+    (scipy.fft): None is 1; a positive count is used as given (above
+    THREADS_MAX as THREADS_MAX); a negative one counts back from the CPUs,
+    -1 every CPU (``os.cpu_count()``), -2 all but one, down to
+    -os.cpu_count(); 0 and counts below that are refused."""
+    if workers is None:
+        return 1
+    if isinstance(workers, (bool, np.bool_)) or not isinstance(workers, numbers.Integral):
+        raise InputTypeError(
+            f"workers={show(workers)}: expected an integer or None, got "
+            f"{type(workers).__name__}"
+        )
+    w = int(workers)
+    if w == 0:
+        raise ArgumentError(
+            "workers=0: must not be 0 (None or 1: one thread; a positive count; "
+            "-1: every CPU, -2: all but one, ...)"
+        )
+    if w < 0:
+        cpus = os.cpu_count() or 1
+        if w < -cpus:
+            raise ArgumentError(
+                f"workers={w}: a negative count must be >= -{cpus} "
+                f"(-os.cpu_count() on this machine; -1 is every CPU)"
+            )
+        w += cpus + 1
+    return min(w, THREADS_MAX)
+
+
 def check_compressed(tol: object, horizon: object) -> Tuple[float, float]:
     """tol and horizon of a compressed stream, as floats, within
     COMPRESSED_TOL_RANGE and COMPRESSED_HORIZON_RANGE."""

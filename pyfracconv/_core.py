@@ -36,6 +36,7 @@ from ._checks import (
     check_real as check_real,
     check_rule as check_rule,
     check_step as check_step,
+    check_workers as check_workers,
     contiguous_copy as contiguous_copy,
     new_result as new_result,
     raise_nonfinite as raise_nonfinite,
@@ -70,14 +71,16 @@ def dptr(arr: FloatArray) -> Any:
 _local = threading.local()
 
 
-def context() -> Any:
-    """The calling thread's batch context (FFT plans and work space)."""
+def context(threads: int = 1) -> Any:
+    """The calling thread's batch context (FFT plans and work space), set
+    to use ``threads`` threads (a count check_workers gave)."""
     ctx = getattr(_local, "ctx", None)
     if ctx is None:
         p = ffi.new("fc_context **")
         raise_for_status(lib.fc_context_create(p), "context")
         ctx = ffi.gc(p[0], lib.fc_context_free)
         _local.ctx = ctx
+    raise_for_status(lib.fc_context_set_threads(ctx, threads), "context threads")
     return ctx
 
 
@@ -221,7 +224,7 @@ def _largest(arr: FloatArray) -> str:
 
 
 def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
-               engine: str = "auto") -> FloatArray:
+               engine: str = "auto", *, workers: Optional[int] = None) -> FloatArray:
     """Causal lagged sum y_n = sum_{k<=n} kernel[n-k] * samples[k].
 
     Parameters
@@ -240,6 +243,18 @@ def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
         ``auto`` picks direct summation for short kernels and the blockwise
         FFT otherwise; both are accurate componentwise. ``fft`` (one
         full-length FFT) is accurate only normwise.
+    workers : int, optional (keyword)
+        Threads to use, SciPy's convention (as ``scipy.fft``): None (the
+        default) or 1 is the calling thread alone; a negative count counts
+        back from ``os.cpu_count()`` (-1: every CPU, -2: all but one);
+        0 is refused; more than 256 are used as 256. The work is split over
+        the signals and, for one long signal, over the independent segment
+        products of the blocked engine (the output ranges of the direct
+        one): the result is the same, bit for bit, for every value. Calls
+        with fewer than about 2**15 samples in all (2**17 when the signals
+        are split) run on the calling
+        thread whatever the value. The C call releases the GIL, so other
+        Python threads run meanwhile.
 
     Returns
     -------
@@ -253,9 +268,9 @@ def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
         first one).
     ArgumentError
         samples is a scalar, kernel is empty or not 1-D, axis out of range,
-        unknown engine.
+        unknown engine, workers 0 or below -os.cpu_count().
     InputTypeError
-        Non-numeric or masked samples or kernel.
+        Non-numeric or masked samples or kernel, or workers not an integer.
     RangeError
         A result beyond the range of double precision.
 
@@ -285,6 +300,7 @@ def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
     array([[3., 2., 1.],
            [0., 3., 2.]])
     """
+    nthreads = check_workers(workers)
     arr, ax, moved_shape, block = _rows("samples", samples, axis)
     k = np.ascontiguousarray(as_float_array("kernel", kernel))
     if k.ndim != 1 or k.size == 0:
@@ -296,7 +312,7 @@ def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
     eng = check_engine(engine)
     nsig, n = block.shape
     out = np.empty_like(block)
-    st = lib.fc_lagged_sum(context(), dptr(block), nsig, n, dptr(k), k.size, eng,
+    st = lib.fc_lagged_sum(context(nthreads), dptr(block), nsig, n, dptr(k), k.size, eng,
                            ffi.from_buffer("double[]", out))
     if st == lib.FC_ERR_RANGE:
         raise RangeError(
@@ -400,7 +416,8 @@ def _apply_grid(kind: str, samples: object, order: object, t: object, rule: obje
 
 def _apply(kind: str, samples: object, order: object, step: object, rule: object,
            axis: object, engine: object, t: object = None,
-           tol: object = None) -> FloatArray:
+           tol: object = None, workers: object = None) -> FloatArray:
+    nthreads = check_workers(workers)
     if step is not None and t is not None:
         raise ArgumentError(
             f"step={show(step)} and t: give exactly one of step (a uniform grid "
@@ -430,7 +447,7 @@ def _apply(kind: str, samples: object, order: object, step: object, rule: object
     arr, ax, moved_shape, block = _rows("samples", samples, axis)
     nsig, n = block.shape
     out = np.empty_like(block)
-    st = lib.fc_apply(context(), code, a, h, dptr(block), nsig, n, eng,
+    st = lib.fc_apply(context(nthreads), code, a, h, dptr(block), nsig, n, eng,
                       ffi.from_buffer("double[]", out))
     if st == lib.FC_ERR_RANGE:
         raise RangeError(
@@ -444,7 +461,8 @@ def _apply(kind: str, samples: object, order: object, step: object, rule: object
 
 def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
              rule: str = "rectangle", axis: int = -1, engine: str = "auto", *,
-             t: Optional[ArrayLike] = None, tol: Optional[float] = None) -> FloatArray:
+             t: Optional[ArrayLike] = None, tol: Optional[float] = None,
+             workers: Optional[int] = None) -> FloatArray:
     """Riemann-Liouville fractional integral of order ``order`` of a sampled
     signal, from t = 0.
 
@@ -486,6 +504,11 @@ def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
         Tolerance of the fast engine with ``t``, in [1e-15, 1e-2]; default
         1e-12 (``GRID_FAST_TOL``). Refused without ``t`` and with
         ``engine='direct'``.
+    workers : int, optional (keyword)
+        Threads to use, SciPy's convention; see :func:`lagged_sum` (bit for
+        bit the same result for every value; the GIL is released during
+        the C call). With ``t`` the count is checked but the engine runs on
+        the calling thread.
 
     Returns
     -------
@@ -503,12 +526,13 @@ def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
         with ``t``, ``'fast'`` without ``t`` or at an order it does not
         serve (above 1; L1: 1 and above); ``tol`` out of range, without
         ``t`` or with ``engine='direct'``; with ``engine='fast'``, a span
-        of ``t`` beyond 2**100 smallest steps.
+        of ``t`` beyond 2**100 smallest steps;
+        ``workers`` 0 or below -os.cpu_count().
     SampleError
         A sample is NaN or infinite (the message names the first one).
     InputTypeError
         Non-numeric or masked samples or t, order or step not a real
-        number; neither ``step`` nor ``t`` given.
+        number; neither ``step`` nor ``t`` given; workers not an integer.
     RangeError
         A result beyond the range of double precision.
 
@@ -562,12 +586,13 @@ def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
     >>> bool(np.allclose(y, 4 * times**1.5 / (3 * np.sqrt(np.pi)), rtol=1e-13))
     True
     """
-    return _apply("integral", samples, order, step, rule, axis, engine, t, tol)
+    return _apply("integral", samples, order, step, rule, axis, engine, t, tol, workers)
 
 
 def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
                rule: str = "grunwald", axis: int = -1, engine: str = "auto", *,
-               t: Optional[ArrayLike] = None, tol: Optional[float] = None) -> FloatArray:
+               t: Optional[ArrayLike] = None, tol: Optional[float] = None,
+             workers: Optional[int] = None) -> FloatArray:
     """Fractional derivative of a sampled signal, from t = 0.
 
     Parameters
@@ -606,6 +631,11 @@ def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
     tol : float, optional (keyword)
         Tolerance of the fast engine with ``t``, in [1e-15, 1e-2]; default
         1e-12. Refused without ``t`` and with ``engine='direct'``.
+    workers : int, optional (keyword)
+        Threads to use, SciPy's convention; see :func:`lagged_sum` (bit for
+        bit the same result for every value; the GIL is released during
+        the C call). With ``t`` the count is checked but the engine runs on
+        the calling thread.
 
     Returns
     -------
@@ -624,12 +654,13 @@ def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
         with ``t``, ``'fast'`` without ``t`` or at an order it does not
         serve (above 1; L1: 1 and above); ``tol`` out of range, without
         ``t`` or with ``engine='direct'``; with ``engine='fast'``, a span
-        of ``t`` beyond 2**100 smallest steps.
+        of ``t`` beyond 2**100 smallest steps;
+        ``workers`` 0 or below -os.cpu_count().
     SampleError
         A sample is NaN or infinite (the message names the first one).
     InputTypeError
         Non-numeric or masked samples or t, order or step not a real
-        number; neither ``step`` nor ``t`` given.
+        number; neither ``step`` nor ``t`` given; workers not an integer.
     RangeError
         A result beyond the range of double precision.
 
@@ -666,7 +697,7 @@ def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
     >>> bool(np.allclose(y, 2 * np.sqrt(times / np.pi), rtol=1e-13))
     True
     """
-    return _apply("derivative", samples, order, step, rule, axis, engine, t, tol)
+    return _apply("derivative", samples, order, step, rule, axis, engine, t, tol, workers)
 
 
 def get_include() -> str:
@@ -766,7 +797,8 @@ def c_flags(cflags: bool = True, libs: bool = True, static: bool = False) -> lis
     ``cflags``: ``-I`` of :func:`get_include`. ``libs``: the shared object
     by its path, a run-time path (``-Wl,-rpath``) to its folder so the
     program runs without ``LD_LIBRARY_PATH``, and ``-lm``; with
-    ``static=True`` the static library instead (no run-time path needed).
+    ``static=True`` the static library instead (no run-time path needed)
+    and ``-lm -pthread`` (the batch engines' threads).
     """
     out: list[str] = []
     if cflags:
@@ -774,7 +806,7 @@ def c_flags(cflags: bool = True, libs: bool = True, static: bool = False) -> lis
     if libs:
         d = get_lib_dir()
         if static:
-            out += [os.path.join(d, "libfracconv.a"), "-lm"]
+            out += [os.path.join(d, "libfracconv.a"), "-lm", "-pthread"]
         else:
             out += [os.path.join(d, "libfracconv.so." + _version_major()),
                     "-Wl,-rpath," + d, "-lm"]

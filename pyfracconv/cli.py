@@ -49,6 +49,7 @@ from ._core import (
     check_order,
     check_rule,
     check_step,
+    check_workers,
     derivative,
     integral,
     show,
@@ -545,10 +546,24 @@ def _run_operator(args):
         step = _real_option("step", args.step, check_step)
     _output_kind(args.output)
     check_not_input(args.input, args.output)
+    workers = None
+    if args.workers is not None:
+        try:
+            count = int(args.workers)
+        except ValueError:
+            raise CliError(f"--workers {args.workers}: not an integer; expected a "
+                           "thread count such as 2, or -1 for every CPU") from None
+        try:
+            workers = check_workers(count)
+        except FracconvError as exc:
+            raise CliError(f"--workers {args.workers}: out of range ({exc})") from None
     if grid:
-        return _run_operator_on_times(args, kind, rule, order, ttol)
+        return _run_operator_on_times(args, kind, rule, order, ttol, workers)
 
     if args.live:
+        if workers is not None:
+            raise CliError("--workers is not available with --live (one line "
+                           "at a time)")
         if args.input != "-" or args.output != "-":
             raise CliError("--live reads standard input and writes standard "
                            "output: use INPUT '-' and -o -")
@@ -577,7 +592,7 @@ def _run_operator(args):
     else:
         data, names = reader(args.input, args.columns)
     op = integral if kind == "integral" else derivative
-    result = op(data, order, step, rule=rule, axis=0)
+    result = op(data, order, step, rule=rule, axis=0, workers=workers)
     write_output(args.output, result, names)
     return 0
 
@@ -595,7 +610,7 @@ def _uniform_step(times, tol):
     return h if dev <= tol * h else None
 
 
-def _run_operator_on_times(args, kind, rule, order, ttol):
+def _run_operator_on_times(args, kind, rule, order, ttol, workers=None):
     """integral/derivative with --time-column (batch): the column's times
     are the grid; uniform times go to the uniform engines."""
     col = args.time_column
@@ -642,7 +657,7 @@ def _run_operator_on_times(args, kind, rule, order, ttol):
     op = integral if kind == "integral" else derivative
     h = _uniform_step(times, ttol)
     if h is not None:
-        result = op(x, order, h, rule=rule, axis=0)
+        result = op(x, order, h, rule=rule, axis=0, workers=workers)
     else:
         if rule == "grunwald":
             raise CliError(
@@ -650,7 +665,7 @@ def _run_operator_on_times(args, kind, rule, order, ttol):
                 f"--time-tol {ttol:g}) and the Grunwald-Letnikov rule has no "
                 "standard form on a non-uniform grid; use --rule l1 (Caputo, "
                 "0 < A < 1)")
-        result = op(x, order, rule=rule, axis=0, t=times)
+        result = op(x, order, rule=rule, axis=0, t=times, workers=workers)
     out = np.column_stack([times, result])
     write_output(args.output, out, None if names is None else [tname] + names)
     return 0
@@ -892,6 +907,10 @@ def _add_operator(sub, name, rules, default, what, description):
                    help=f"{' or '.join(rules)} (default {default})")
     p.add_argument("--columns", metavar="NAME,NAME...",
                    help="process only these CSV columns, by header name, in this order")
+    p.add_argument("--workers", metavar="N",
+                   help="threads (SciPy's convention: 1 the default, -1 every CPU, "
+                        "-2 all but one); the output is the same bit for bit for "
+                        "every N; not with --live")
     _add_io_options(p, grid_times=True)
     p.set_defaults(func=_run_operator)
     return p

@@ -28,6 +28,7 @@ from ._checks import (
     RULES,
     as_float_array,
     check_axis,
+    check_workers,
     check_channels,
     check_compressed,
     check_mode,
@@ -746,7 +747,8 @@ class Stream:
             raise ArgumentError(f"xs: expected shape {want}, got {a.shape}")
         return ax, a.shape[ax]
 
-    def push_many(self, xs: ArrayLike, axis: int = 0) -> FloatArray:
+    def push_many(self, xs: ArrayLike, axis: int = 0, *,
+                  workers: Optional[int] = None) -> FloatArray:
         """Push a block of time steps; return the outputs.
 
         Parameters
@@ -760,6 +762,18 @@ class Stream:
             negative values count from the end. The batch functions'
             default is the last axis; pass ``axis=-1`` to use the same
             layout here.
+        workers : int, optional (keyword)
+            Threads to share the channels, SciPy's convention (None or 1:
+            the calling thread; -1 every CPU, -2 all but one; 0 refused);
+            see :func:`pyfracconv.integral`. A compressed stream with
+            channels splits them over the threads (blocks of about 4096
+            values or more); an exact stream with channels shares the
+            channels of its large FFT frames (512 samples or more, times
+            the channels at least 2**14) over the threads, the rest of a
+            step staying on the calling thread, and keeps each extra
+            thread's FFT plans (counted in ``nbytes``, not saved). The
+            outputs and the state are the same, bit for bit, for every
+            value. The GIL is released during the C call.
 
         Returns
         -------
@@ -774,9 +788,10 @@ class Stream:
             A sample is NaN or infinite: nothing is pushed (the message
             names the first one, indexed as in ``xs``).
         ArgumentError
-            Wrong shape, or axis out of range: nothing is pushed.
+            Wrong shape, axis out of range, or workers 0 or below
+            -os.cpu_count(): nothing is pushed.
         InputTypeError
-            Not numeric, or masked; axis not an integer.
+            Not numeric, or masked; axis or workers not an integer.
         RangeError
             An output would be beyond the double range: nothing is pushed.
         HorizonError
@@ -819,6 +834,7 @@ class Stream:
         array([[ 0. ,  0.5,  1.5],
                [ 0. ,  5. , 15. ]])
         """
+        nthreads = check_workers(workers)
         if not self._lock.acquire(False):
             raise self._busy()
         try:
@@ -829,8 +845,9 @@ class Stream:
             y = np.empty(block.shape)
             if a.size == 0:
                 return y if ax == 0 else y.T
-            st = lib.fc_stream_push_block(self._s, ffi.from_buffer("double[]", block),
-                                          T, ffi.from_buffer("double[]", y))
+            st = lib.fc_stream_push_block_threads(
+                self._s, ffi.from_buffer("double[]", block), T,
+                ffi.from_buffer("double[]", y), nthreads)
             if st:
                 if st == lib.FC_ERR_HORIZON:
                     raise _horizon_error(self._s, f"xs (shape {a.shape})", T)

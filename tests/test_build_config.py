@@ -42,7 +42,7 @@ def test_make_and_extension_use_the_same_flags(tmp_path):
     flags = words[: words.index("-fPIC")]
     assert flags == _setup_build().compile_args()
     # and they are the flags DEVELOPERS.md states
-    assert flags == ["-O3", "-std=c11", "-fno-math-errno", "-Wall", "-Wextra"]
+    assert flags == ["-O3", "-std=c11", "-fno-math-errno", "-Wall", "-Wextra", "-pthread"]
 
 
 def test_installed_header_is_the_source_header():

@@ -654,6 +654,28 @@ def test_live_controller_and_closed_pipe():
         p.kill()
 
 
+def test_workers_option_same_output_and_refusals(tmp_path, capsys):
+    # --workers gives the bytes of the default run (the library's
+    # bit-for-bit promise, tests/test_workers.py); bad values are refused
+    # with the library's message before any output is written
+    src = tmp_path / "x.npy"
+    np.save(src, np.random.default_rng(4).standard_normal((40000, 3)))
+    outs = []
+    for extra in ([], ["--workers", "2"], ["--workers", "-1"]):
+        out = tmp_path / f"y{len(outs)}.npy"
+        code, _, err = run(capsys, "integral", src, "-o", out, "--order", "0.5",
+                           "--step", "0.01", *extra)
+        assert code == 0, err
+        outs.append(np.load(out))
+    assert outs[0].tobytes() == outs[1].tobytes() == outs[2].tobytes()
+    for bad, frag in (("0", "workers=0: must not be 0"), ("two", "not an integer"),
+                      ("-999", "workers=-999")):
+        code, _, err = run(capsys, "derivative", src, "-o", tmp_path / "bad.npy",
+                           "--order", "0.5", "--step", "0.01", "--workers", bad)
+        assert_clean_error(code, err, "--workers", frag)
+        assert not (tmp_path / "bad.npy").exists()
+
+
 # ---------------------------------------------------------------- --time-column (batch)
 
 def _timed_csv(path, t, x, names=("time", "f", "g")):

@@ -13,7 +13,10 @@
  * plans; batch calls with and without a context; save_file and
  * load_file of each object (the old file must stay as it was and no
  * temporary may be left); fc_grid_apply; create, push, save, load of
- * streams with a time per sample. Invented signals.
+ * streams with a time per sample; batch calls with a context of 3
+ * threads (its helpers' memory failing, and thread creation refused
+ * through --wrap=pthread_create: the same result either way), threaded
+ * compressed and exact stream pushes. Invented signals.
  * The library itself has no hook: the wrapping is done by the linker, in
  * this test binary only.
  */
@@ -42,6 +45,19 @@ static int hit(void)
 void *__wrap_malloc(size_t n) { return hit() ? NULL : __real_malloc(n); }
 void *__wrap_calloc(size_t n, size_t m) { return hit() ? NULL : __real_calloc(n, m); }
 void *__wrap_realloc(void *p, size_t n) { return hit() ? NULL : __real_realloc(p, n); }
+
+/* Thread creation (the batch engines' threads, csrc/parallel.c) through
+   the linker too (--wrap=pthread_create): refused while threads_fail_from
+   >= 0 for the creations numbered from it on (0-based within a call). */
+#include <pthread.h>
+#include <errno.h>
+int __real_pthread_create(pthread_t *t, const pthread_attr_t *a, void *(*f)(void *), void *arg);
+static long threads_made, threads_fail_from = -1;
+int __wrap_pthread_create(pthread_t *t, const pthread_attr_t *a, void *(*f)(void *), void *arg)
+{
+    if (threads_fail_from >= 0 && threads_made++ >= threads_fail_from) return EAGAIN;
+    return __real_pthread_create(t, a, f, arg);
+}
 
 static void arm(long k) { alloc_count = 0; injected = 0; fail_at = k; }
 static void disarm(void) { fail_at = -1; }
@@ -152,6 +168,39 @@ static void streams(void)
     free(x); free(y); free(y2);
 }
 
+/* A new exact stream of 8 channels fed T samples by 3 threads (its large
+   frames shared); outputs to y, saved bytes to *b (malloc'd, size *nb). */
+enum { EX_C = 8, EX_T = 17000 };
+static int threaded_exact(const double *x, double *y, unsigned char **b, size_t *nb)
+{
+    fc_stream *s;
+    int st = fc_stream_create(FC_RULE_GRUNWALD, 0.45, 0.01, EX_C, FC_MODE_EXACT, 1e-9, 1e6, &s);
+    *b = NULL;
+    if (st != FC_OK) return st;
+    st = fc_stream_push_block_threads(s, x, EX_T, y, 3);
+    if (st == FC_OK) {
+        long saved = fail_at;
+        fail_at = -1; /* the check's own copy is not under test */
+        *b = stream_bytes(s, nb);
+        fail_at = saved;
+    }
+    fc_stream_free(s);
+    return st;
+}
+
+/* fc_apply with a new context of the given threads (freed after). */
+static int threaded_apply(const double *x, size_t nsig, size_t n, int engine,
+                          size_t threads, double *y)
+{
+    fc_context *c;
+    int st = fc_context_create(&c);
+    if (st != FC_OK) return st;
+    if ((st = fc_context_set_threads(c, threads)) == FC_OK)
+        st = fc_apply(c, FC_RULE_TRAPEZOID, 0.6, 0.01, x, nsig, n, engine, y);
+    fc_context_free(c);
+    return st;
+}
+
 static void batch(void)
 {
     enum { N = 5000 };
@@ -166,6 +215,99 @@ static void batch(void)
         FOR_EACH_FAILURE(name, fc_apply(NULL, FC_RULE_GRUNWALD, 0.6, 0.01, x, 1, N, e, y),
                          if (memcmp(y, yr, N * sizeof *y)) { fails++; printf("%s: result differs\n", name); },
                          1);
+    }
+    /* a context with 3 threads, made afresh for each failure, so that the
+       helpers' contexts, plans and work space are made (and made to fail)
+       every time: a failure there is no error, fewer threads give the
+       same bits; a failure of the call's own memory is FC_ERR_NOMEM */
+    {
+        enum { S = 28 }; /* 1 x 140000 or 3 x 45000 samples: split signals */
+        double *xs = malloc(S * N * sizeof *xs), *ys = malloc(S * N * sizeof *ys),
+               *yt = malloc(S * N * sizeof *yt);
+        for (int i = 0; i < S * N; i++) xs[i] = cos(0.003 * i) + (i / N);
+        for (int e = 0; e < 4; e++) {
+            for (size_t nsig = 1; nsig <= 3; nsig += 2) { /* 1 and 3 signals */
+                char name[80];
+                size_t n = nsig == 1 ? S * N : 9 * N;
+                if (e == FC_ENGINE_DIRECT) n = N; /* keep it short */
+                if (fc_apply(NULL, FC_RULE_TRAPEZOID, 0.6, 0.01, xs, nsig, n, e, ys) != FC_OK) { fails++; continue; }
+                snprintf(name, sizeof name, "threaded apply engine %d, %zu signals", e, nsig);
+                FOR_EACH_FAILURE(name, threaded_apply(xs, nsig, n, e, 3, yt),
+                                 if (memcmp(yt, ys, nsig * n * sizeof *yt)) { fails++; printf("%s: result differs\n", name); },
+                                 1);
+                /* thread creation refused: from the first, from the second */
+                for (long from = 0; from < 2; from++) {
+                    int st;
+                    threads_made = 0;
+                    threads_fail_from = from;
+                    memset(yt, 0, nsig * n * sizeof *yt);
+                    st = threaded_apply(xs, nsig, n, e, 3, yt);
+                    threads_fail_from = -1;
+                    checks++;
+                    if (st != FC_OK || memcmp(yt, ys, nsig * n * sizeof *yt)) {
+                        fails++;
+                        printf("%s: thread creation refused from the %ld-th: status %d%s\n", name, from + 1, st,
+                               st == FC_OK ? ", result differs" : "");
+                    }
+                }
+            }
+        }
+        free(xs); free(ys); free(yt);
+    }
+    /* a compressed stream of 3 channels pushed by 3 threads: its scratch
+       failing leaves the work to the calling thread, same outputs and
+       state; thread creation refused, the same */
+    {
+        enum { C = 3, T = 3000 };
+        double *xs = malloc(C * T * sizeof *xs), *yr = malloc(C * T * sizeof *yr),
+               *yt = malloc(C * T * sizeof *yt);
+        unsigned char *br, *bt;
+        size_t nr, nt;
+        fc_stream *sr, *s;
+        for (int i = 0; i < C * T; i++) xs[i] = sin(0.01 * i);
+        if (fc_stream_create(FC_RULE_TRAPEZOID, 1.4, 0.01, C, FC_MODE_COMPRESSED, 1e-9, 1e6, &sr) != FC_OK ||
+            fc_stream_push_block(sr, xs, T, yr) != FC_OK || !(br = stream_bytes(sr, &nr))) { fails++; }
+        else {
+            for (long from = -1; from < 1; from++) {
+                if (fc_stream_create(FC_RULE_TRAPEZOID, 1.4, 0.01, C, FC_MODE_COMPRESSED, 1e-9, 1e6, &s) != FC_OK) { fails++; break; }
+                threads_made = 0;
+                threads_fail_from = from; /* -1: threads allowed, the scratch fails */
+                if (from < 0) arm(1);
+                int st = fc_stream_push_block_threads(s, xs, T, yt, 3);
+                if (from < 0) { if (!injected) { fails++; printf("threaded compressed push: no allocation\n"); } disarm(); }
+                threads_fail_from = -1;
+                checks++;
+                bt = stream_bytes(s, &nt);
+                if (st != FC_OK || memcmp(yt, yr, C * T * sizeof *yt) || !bt || nt != nr || memcmp(bt, br, nr)) {
+                    fails++;
+                    printf("threaded compressed push (%s): status %d, outputs or state differ\n",
+                           from < 0 ? "scratch failing" : "threads refused", st);
+                }
+                free(bt);
+                fc_stream_free(s);
+            }
+            free(br);
+        }
+        fc_stream_free(sr);
+        free(xs); free(yr); free(yt);
+    }
+    /* the exact stream's threaded frames: a helper's plans or buffer
+       failing leaves the frames to fewer threads, same outputs and state */
+    {
+        double *xs = malloc(EX_C * EX_T * sizeof *xs), *yr = malloc(EX_C * EX_T * sizeof *yr),
+               *yt = malloc(EX_C * EX_T * sizeof *yt);
+        unsigned char *br = NULL, *bt = NULL;
+        size_t nr = 0, nt = 0;
+        fc_stream *sr;
+        for (int i = 0; i < EX_C * EX_T; i++) xs[i] = sin(0.01 * i) + (i % 9 == 0);
+        if (fc_stream_create(FC_RULE_GRUNWALD, 0.45, 0.01, EX_C, FC_MODE_EXACT, 1e-9, 1e6, &sr) != FC_OK ||
+            fc_stream_push_block(sr, xs, EX_T, yr) != FC_OK || !(br = stream_bytes(sr, &nr))) fails++;
+        else
+            FOR_EACH_FAILURE("threaded exact push", threaded_exact(xs, yt, &bt, &nt),
+                             if (memcmp(yt, yr, EX_C * EX_T * sizeof *yt) || !bt || nt != nr || memcmp(bt, br, nr)) { fails++; printf("threaded exact push: outputs or state differ\n"); } free(bt); bt = NULL,
+                             1);
+        fc_stream_free(sr);
+        free(br); free(xs); free(yr); free(yt);
     }
     FOR_EACH_FAILURE("context_create", fc_context_create(&ctx), (void)0, ctx == NULL);
     for (int rep = 0; rep < 2; rep++)

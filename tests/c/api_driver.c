@@ -155,6 +155,23 @@ static void test_batch(void)
     EXPECT(fc_context_nbytes(NULL, &nb), FC_ERR_NULL);
     EXPECT(fc_context_nbytes(ctx, NULL), FC_ERR_NULL);
     EXPECT(fc_context_nbytes(ctx, &nb), FC_OK);
+    {
+        size_t th = 0;
+        EXPECT(fc_context_threads(ctx, &th), FC_OK);
+        TRUE_(th == 1);
+        EXPECT(fc_context_set_threads(NULL, 2), FC_ERR_NULL);
+        EXPECT(fc_context_set_threads(ctx, 0), FC_ERR_ARG);
+        EXPECT(fc_context_set_threads(ctx, FC_THREADS_MAX + 1), FC_ERR_ARG);
+        EXPECT(fc_context_set_threads(ctx, HUGE_SZ), FC_ERR_ARG);
+        EXPECT(fc_context_threads(ctx, &th), FC_OK);
+        TRUE_(th == 1); /* refusals leave it */
+        EXPECT(fc_context_threads(NULL, &th), FC_ERR_NULL);
+        EXPECT(fc_context_threads(ctx, NULL), FC_ERR_NULL);
+        EXPECT(fc_context_set_threads(ctx, FC_THREADS_MAX), FC_OK);
+        EXPECT(fc_context_threads(ctx, &th), FC_OK);
+        TRUE_(th == FC_THREADS_MAX);
+        EXPECT(fc_context_set_threads(ctx, 3), FC_OK);
+    }
     for (int e = 0; e < 4; e++) {
         EXPECT(fc_lagged_sum(ctx, x, 2, 300, k, 40, e, y), FC_OK);
         EXPECT(fc_lagged_sum(NULL, x, 2, 300, k, 40, e, y), FC_OK);
@@ -244,6 +261,10 @@ static void stream_life(fc_stream *s, size_t ch, int compressed)
     EXPECT(fc_stream_push(s, x, NULL), FC_ERR_NULL);
     EXPECT(fc_stream_push_block(s, x, 64, x + 1), FC_ERR_ARG);
     EXPECT(fc_stream_push_block(s, x, HUGE_SZ, y), FC_ERR_SIZE);
+    EXPECT(fc_stream_push_block_threads(s, x, 64, y, 0), FC_ERR_ARG);
+    EXPECT(fc_stream_push_block_threads(s, x, 64, y, FC_THREADS_MAX + 1), FC_ERR_ARG);
+    EXPECT(fc_stream_push_block_threads(NULL, x, 64, y, 2), FC_ERR_NULL);
+    EXPECT(fc_stream_push_block_threads(s, x, 64, x + 1, 2), FC_ERR_ARG);
     EXPECT(fc_stream_preview(s, NULL, y), FC_ERR_NULL);
     EXPECT(fc_stream_history(s, NULL), FC_ERR_NULL);
     /* a compressed stream never allocates after creation: any n is fine */
