@@ -77,20 +77,28 @@ class build_ext_with_clib(build_ext):
             return
         import importlib.util  # setup_build.py: the flags of csrc/flags.mk, as make uses
 
-        spec = importlib.util.spec_from_file_location(
-            "setup_build", os.path.join(HERE, "setup_build.py"))
+        spec = importlib.util.spec_from_file_location("setup_build", os.path.join(HERE, "setup_build.py"))
         setup_build = importlib.util.module_from_spec(spec)
         spec.loader.exec_module(setup_build)
         flags = setup_build.read_flags()
-        cflags = (flags["FC_OPT_CFLAGS"] + flags["FC_STD_CFLAGS"] + flags["FC_THREAD_FLAGS"]
-                  + ["-fPIC", "-fvisibility=hidden"])
+        cflags = (
+            flags["FC_OPT_CFLAGS"]
+            + flags["FC_STD_CFLAGS"]
+            + flags["FC_THREAD_FLAGS"]
+            + ["-fPIC", "-fvisibility=hidden"]
+        )
         tmp = os.path.join(self.build_temp, "clib")
-        objects = self.compiler.compile(setup_build.c_sources(), output_dir=tmp,
-                                        include_dirs=["csrc"], extra_postargs=cflags)
+        objects = self.compiler.compile(
+            setup_build.c_sources(), output_dir=tmp, include_dirs=["csrc"], extra_postargs=cflags
+        )
         soname, static = self._lib_names()
-        self.compiler.link_shared_object(objects, soname, output_dir=tmp, libraries=["m"],
-                                         extra_postargs=["-Wl,-soname," + soname]
-                                         + flags["FC_THREAD_FLAGS"])
+        self.compiler.link_shared_object(
+            objects,
+            soname,
+            output_dir=tmp,
+            libraries=["m"],
+            extra_postargs=["-Wl,-soname," + soname] + flags["FC_THREAD_FLAGS"],
+        )
         self.compiler.create_static_lib(objects, "fracconv", output_dir=tmp)
         dest = self._lib_dest()
         self.mkpath(dest)

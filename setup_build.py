@@ -33,9 +33,7 @@ def read_cdef(header=HEADER):
 
 
 def c_sources():
-    return sorted(
-        os.path.join("csrc", f) for f in os.listdir(CSRC) if f.endswith(".c")
-    )
+    return sorted(os.path.join("csrc", f) for f in os.listdir(CSRC) if f.endswith(".c"))
 
 
 def read_flags(path=FLAGS_FILE):
@@ -159,9 +157,8 @@ ffibuilder.set_source(
     extra_compile_args=compile_args(),
     extra_link_args=link_args(),
     libraries=[] if sys.platform == "win32" else ["m"],
-    depends=sorted(
-        os.path.join("csrc", f) for f in os.listdir(CSRC) if f.endswith(".h")
-    ) + [os.path.join("csrc", "flags.mk")],
+    depends=sorted(os.path.join("csrc", f) for f in os.listdir(CSRC) if f.endswith(".h"))
+    + [os.path.join("csrc", "flags.mk")],
 )
 
 if __name__ == "__main__":

@@ -100,8 +100,8 @@ CACHE_ENTRIES = 8
 _lock = threading.RLock()
 _local = threading.local()
 _state = {
-    "generation": 0,    # bumped when wisdom changes: thread caches drop plans
-    "loaded": None,     # the wisdom file path imported last (or tried)
+    "generation": 0,  # bumped when wisdom changes: thread caches drop plans
+    "loaded": None,  # the wisdom file path imported last (or tried)
 }
 
 
@@ -115,6 +115,7 @@ def available():
 
 
 # ---------------------------------------------------------------- cache file
+
 
 def cache_dir():
     """The user cache folder of pyfracconv (not created here)."""
@@ -151,7 +152,7 @@ def decode_wisdom(data):
     head = len(MAGIC) + 8
     if len(data) < head + 4:
         raise WisdomFileError(f"too short ({len(data)} bytes)")
-    if data[:len(MAGIC)] != MAGIC:
+    if data[: len(MAGIC)] != MAGIC:
         raise WisdomFileError("not a pyfracconv FFTW wisdom file (bad magic)")
     version, count = struct.unpack_from("<II", data, len(MAGIC))
     if version != VERSION:
@@ -169,7 +170,7 @@ def decode_wisdom(data):
         pos += 8
         if length > MAX_BLOCK or pos + length > len(body):
             raise WisdomFileError(f"block {i}: length {length} past the end")
-        block = body[pos:pos + length]
+        block = body[pos : pos + length]
         pos += length
         if block and not block.startswith(b"(fftw"):
             raise WisdomFileError(f"block {i}: not FFTW wisdom text")
@@ -222,8 +223,9 @@ def load_wisdom(path=None):
         try:
             blocks = read_wisdom_file(path)
         except (OSError, WisdomFileError) as exc:
-            warnings.warn(f"pyfracconv: ignoring FFTW wisdom file {path!r}: {exc}",
-                          RuntimeWarning, stacklevel=2)
+            warnings.warn(
+                f"pyfracconv: ignoring FFTW wisdom file {path!r}: {exc}", RuntimeWarning, stacklevel=2
+            )
             return False
         if not blocks[0]:
             return False
@@ -231,14 +233,18 @@ def load_wisdom(path=None):
             ok = pyfftw.import_wisdom(blocks)
         except Exception as exc:  # pragma: no cover - pyFFTW refused the tuple
             ok = (False,)
-            warnings.warn(f"pyfracconv: ignoring FFTW wisdom file {path!r}: {exc}",
-                          RuntimeWarning, stacklevel=2)
+            warnings.warn(
+                f"pyfracconv: ignoring FFTW wisdom file {path!r}: {exc}", RuntimeWarning, stacklevel=2
+            )
         else:
             if not ok[0]:
                 warnings.warn(
                     f"pyfracconv: ignoring FFTW wisdom file {path!r}: FFTW did not "
                     f"accept it (made by another FFTW version?); rerun "
-                    f"'pyfracconv fftw-plan'", RuntimeWarning, stacklevel=2)
+                    f"'pyfracconv fftw-plan'",
+                    RuntimeWarning,
+                    stacklevel=2,
+                )
         return bool(ok[0])
 
 
@@ -264,6 +270,7 @@ def _ensure_wisdom():
 
 # ---------------------------------------------------------------- plans
 
+
 def transform_size(n, klen):
     """The C engine's transform size for n samples and klen kernel values."""
     need = n + min(klen, n) - 1
@@ -278,10 +285,10 @@ def _make(P, direction, flags):
     real = pyfftw.empty_aligned(P, dtype="float64")
     spec = pyfftw.empty_aligned(P // 2 + 1, dtype="complex128")
     if direction == "forward":
-        return pyfftw.FFTW(real, spec, direction="FFTW_FORWARD",
-                           flags=flags, threads=1)
-    return pyfftw.FFTW(spec, real, direction="FFTW_BACKWARD",
-                       flags=flags + ("FFTW_DESTROY_INPUT",), threads=1)
+        return pyfftw.FFTW(real, spec, direction="FFTW_FORWARD", flags=flags, threads=1)
+    return pyfftw.FFTW(
+        spec, real, direction="FFTW_BACKWARD", flags=flags + ("FFTW_DESTROY_INPUT",), threads=1
+    )
 
 
 def _thread_cache():
@@ -328,8 +335,10 @@ def get_plan(P, direction, estimate=True):
 def _is_tuned(P):
     """True if the wisdom has both plans of size P (plans cached per thread;
     no FFTW_ESTIMATE plan is made here)."""
-    return (get_plan(P, "forward", estimate=False) is not None
-            and get_plan(P, "backward", estimate=False) is not None)
+    return (
+        get_plan(P, "forward", estimate=False) is not None
+        and get_plan(P, "backward", estimate=False) is not None
+    )
 
 
 def use_fftw(n, klen):
@@ -381,8 +390,7 @@ def lagged_sum_fft(block, kernel):
 EFFORTS = {"measure": "FFTW_MEASURE", "patient": "FFTW_PATIENT"}
 
 
-def build_plans(max_log2, effort="measure", min_log2=None, path=None,
-                progress=None):
+def build_plans(max_log2, effort="measure", min_log2=None, path=None, progress=None):
     """Plan the real transforms of sizes 2^min_log2 .. 2^max_log2 (both
     directions) with FFTW_MEASURE or FFTW_PATIENT and store all wisdom
     (what the file already held included) in ``path``.

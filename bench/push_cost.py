@@ -67,8 +67,7 @@ def _streams() -> dict[str, bytes]:
     c.push_many(rng.random(2**16))
     e = Stream.integral(0.5, 1e-3)
     e.push_many(rng.random(2**16))
-    return {"one-tap kernel": k.save(), "compressed, 2^16 pushed": c.save(),
-            "exact, 2^16 pushed": e.save()}
+    return {"one-tap kernel": k.save(), "compressed, 2^16 pushed": c.save(), "exact, 2^16 pushed": e.save()}
 
 
 #: contender: the statement timed (timeit, names bound in _names)
@@ -86,11 +85,19 @@ STATEMENTS = {
 def _names(s: Stream) -> dict[str, Any]:
     lock = threading.Lock()
     y = ffi.new("double[1]")
-    return {"cs": s._s, "y": y, "cell": ffi.new("int[1]"),
-            "push1": lib.fc_stream_push1, "push1v": lib.fc_stream_push1_value,
-            "old": _lock_wrapper(s._s, y), "push": s.push,
-            "take": s._lock.take, "give": s._lock.give,
-            "acq": lock.acquire, "rel": lock.release}
+    return {
+        "cs": s._s,
+        "y": y,
+        "cell": ffi.new("int[1]"),
+        "push1": lib.fc_stream_push1,
+        "push1v": lib.fc_stream_push1_value,
+        "old": _lock_wrapper(s._s, y),
+        "push": s.push,
+        "take": s._lock.take,
+        "give": s._lock.give,
+        "acq": lock.acquire,
+        "rel": lock.release,
+    }
 
 
 def main() -> None:
@@ -98,10 +105,12 @@ def main() -> None:
     ap.add_argument("--rounds", type=int, default=15)
     ap.add_argument("--calls", type=int, default=20000)
     args = ap.parse_args()
-    print(f"# {time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())}, "
-          f"{platform.python_implementation()} {platform.python_version()}, "
-          f"{platform.machine()}; {args.rounds} rounds x {args.calls} calls; "
-          "ns per call (timeit's loop included)")
+    print(
+        f"# {time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())}, "
+        f"{platform.python_implementation()} {platform.python_version()}, "
+        f"{platform.machine()}; {args.rounds} rounds x {args.calls} calls; "
+        "ns per call (timeit's loop included)"
+    )
     for name, blob in _streams().items():
         res: dict[str, list[float]] = {}
         for _ in range(args.rounds):
@@ -111,8 +120,7 @@ def main() -> None:
                 res.setdefault(key, []).append(timer.timeit(args.calls) / args.calls * 1e9)
         print(f"\n{name}")
         for key, v in res.items():
-            print(f"  {key:14s} median {statistics.median(v):7.1f}   "
-                  f"range {min(v):7.1f} .. {max(v):7.1f}")
+            print(f"  {key:14s} median {statistics.median(v):7.1f}   range {min(v):7.1f} .. {max(v):7.1f}")
 
 
 if __name__ == "__main__":

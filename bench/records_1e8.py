@@ -100,27 +100,40 @@ def main():
     try:
         t0 = time.perf_counter()
         write_record(inp, n)
-        print(f"record: {n:.3g} samples, {os.path.getsize(inp) / 2**20:.0f} MiB, "
-              f"written in {time.perf_counter() - t0:.1f} s", flush=True)
-        base = json.loads(subprocess.run(
-            [sys.executable, "-c", CHILD, "--import-only"],
-            capture_output=True, text=True, check=True).stdout)["rss_self"]
-        proc = subprocess.run([sys.executable, "-c", CHILD, inp, out, args.mode,
-                               repr(ORDER), repr(STEP), repr(TOL)],
-                              capture_output=True, text=True)
+        print(
+            f"record: {n:.3g} samples, {os.path.getsize(inp) / 2**20:.0f} MiB, "
+            f"written in {time.perf_counter() - t0:.1f} s",
+            flush=True,
+        )
+        base = json.loads(
+            subprocess.run(
+                [sys.executable, "-c", CHILD, "--import-only"], capture_output=True, text=True, check=True
+            ).stdout
+        )["rss_self"]
+        proc = subprocess.run(
+            [sys.executable, "-c", CHILD, inp, out, args.mode, repr(ORDER), repr(STEP), repr(TOL)],
+            capture_output=True,
+            text=True,
+        )
         if proc.returncode:
             print(proc.stderr, file=sys.stderr)
             return 1
         r = json.loads(proc.stdout.strip().splitlines()[-1])
         mb = r["rss_self"] / 2**20
-        print(f"apply_npy(mode={args.mode!r}, order={ORDER}, step={STEP}, tol={TOL}): "
-              f"{r['wall']:.1f} s ({r['wall'] / n * 1e9:.0f} ns/sample), chunk "
-              f"{r['chunk']} rows")
-        print(f"peak resident memory of the process: {mb:.1f} MiB "
-              f"(limit {args.limit_mb:g} MiB; the record is "
-              f"{os.path.getsize(inp) / 2**20:.0f} MiB, the result as much)")
-        print(f"the stream held {r['stream_nbytes']} bytes; a bare `import "
-              f"pyfracconv` process peaks at {base / 2**20:.1f} MiB")
+        print(
+            f"apply_npy(mode={args.mode!r}, order={ORDER}, step={STEP}, tol={TOL}): "
+            f"{r['wall']:.1f} s ({r['wall'] / n * 1e9:.0f} ns/sample), chunk "
+            f"{r['chunk']} rows"
+        )
+        print(
+            f"peak resident memory of the process: {mb:.1f} MiB "
+            f"(limit {args.limit_mb:g} MiB; the record is "
+            f"{os.path.getsize(inp) / 2**20:.0f} MiB, the result as much)"
+        )
+        print(
+            f"the stream held {r['stream_nbytes']} bytes; a bare `import "
+            f"pyfracconv` process peaks at {base / 2**20:.1f} MiB"
+        )
         # the head: causal, so the batch integral of the first HEAD samples
         import pyfracconv
 
@@ -132,11 +145,12 @@ def main():
         scale = pyfracconv.integral(np.abs(xh), ORDER, STEP)
         bound = (TOL + 128 * 2.0**-52) * scale
         ok = bool(np.all(np.abs(np.asarray(y[:m]) - ref) <= bound))
-        print(f"first {m} outputs within (tol + 128 eps) * sum|terms| of the batch "
-              f"integral: {ok}")
-        print(f"machine: {cpu_name()}, {os.cpu_count()} cores, {platform.system()}, "
-              f"Python {platform.python_version()}, NumPy {np.__version__}; "
-              f"{time.strftime('%Y-%m-%d', time.gmtime())}")
+        print(f"first {m} outputs within (tol + 128 eps) * sum|terms| of the batch integral: {ok}")
+        print(
+            f"machine: {cpu_name()}, {os.cpu_count()} cores, {platform.system()}, "
+            f"Python {platform.python_version()}, NumPy {np.__version__}; "
+            f"{time.strftime('%Y-%m-%d', time.gmtime())}"
+        )
         return 0 if ok and mb < args.limit_mb else 1
     finally:
         if not args.keep:

@@ -49,9 +49,11 @@ def machine():
         pass
     import numpy
 
-    return (f"{model}, {os.cpu_count()} cores, {platform.system()} "
-            f"{platform.machine()}, Python {platform.python_version()}, "
-            f"NumPy {numpy.__version__}")
+    return (
+        f"{model}, {os.cpu_count()} cores, {platform.system()} "
+        f"{platform.machine()}, Python {platform.python_version()}, "
+        f"NumPy {numpy.__version__}"
+    )
 
 
 def fmt_time(s):
@@ -64,8 +66,17 @@ def fmt_time(s):
 def run_suite(path):
     with tempfile.TemporaryDirectory() as tmp:
         out = os.path.join(tmp, "bench.json")
-        cmd = [sys.executable, "-m", "pytest", path, "-q", "-p", "no:cacheprovider",
-               f"--benchmark-json={out}", "--benchmark-min-rounds=5"]
+        cmd = [
+            sys.executable,
+            "-m",
+            "pytest",
+            path,
+            "-q",
+            "-p",
+            "no:cacheprovider",
+            f"--benchmark-json={out}",
+            "--benchmark-min-rounds=5",
+        ]
         proc = subprocess.run(cmd, capture_output=True, text=True)
         if proc.returncode != 0 or not os.path.exists(out):
             sys.stderr.write(proc.stdout[-4000:] + proc.stderr[-4000:])

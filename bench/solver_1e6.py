@@ -46,8 +46,9 @@ def main():
     for direct in (True, False):
         for memory in ("exact", "compressed"):
             how = "C API" if direct else "cffi callback"
-            rows.append((f"solve PC {memory}, {how}",
-                         lambda memory=memory, direct=direct: run(n, memory, direct)))
+            rows.append(
+                (f"solve PC {memory}, {how}", lambda memory=memory, direct=direct: run(n, memory, direct))
+            )
     ts = {label: [] for label, _ in rows}
     for _ in range(repeat):  # interleaved rounds: load changes touch every row
         for label, fn in rows:
@@ -59,8 +60,7 @@ def main():
     for label, _ in rows:
         v = ts[label]
         med = float(np.median(v))
-        print(f"{label:32s} {med:7.3f} s ({min(v):.3f} .. {max(v):.3f})  "
-              f"{med / base:5.2f} x bare calls")
+        print(f"{label:32s} {med:7.3f} s ({min(v):.3f} .. {max(v):.3f})  {med / base:5.2f} x bare calls")
 
 
 if __name__ == "__main__":

@@ -80,15 +80,20 @@ def c_rhs_lib():
     with open(src, "w") as fh:
         fh.write(C_RHS)
     try:
-        subprocess.run([os.environ.get("CC", "cc"), "-O2", "-shared", "-fPIC", src,
-                        "-o", so, "-lm"], check=True, capture_output=True)
+        subprocess.run(
+            [os.environ.get("CC", "cc"), "-O2", "-shared", "-fPIC", src, "-o", so, "-lm"],
+            check=True,
+            capture_output=True,
+        )
     except (OSError, subprocess.CalledProcessError):
         return None
     import cffi
 
     f2 = cffi.FFI()
-    f2.cdef("int c_rhs(double, const double *, double *, void *);"
-            "int c_trivial(double, const double *, double *, void *);")
+    f2.cdef(
+        "int c_rhs(double, const double *, double *, void *);"
+        "int c_trivial(double, const double *, double *, void *);"
+    )
     lib2 = f2.dlopen(so)
     out = {}
     for name in ("c_rhs", "c_trivial"):
@@ -103,15 +108,17 @@ def solve_c(fnptr, n, memory):
     s = ffi.new("fc_solver **")
     o, init = ffi.new("double[1]", [0.6]), ffi.new("double[1]", [1.0])
     mem = lib.FC_MODE_EXACT if memory == "exact" else lib.FC_MODE_COMPRESSED
-    st = lib.fc_solver_create(1, o, 1e-4, 0.0, init, lib.FC_METHOD_PC, mem,
-                              1e-12 if memory != "exact" else 0.0, float(n), s)
+    st = lib.fc_solver_create(
+        1, o, 1e-4, 0.0, init, lib.FC_METHOD_PC, mem, 1e-12 if memory != "exact" else 0.0, float(n), s
+    )
     assert st == 0, st
     lib.fc_solver_set_rhs(s[0], fnptr, ffi.NULL)
     y = np.empty(n)
     t = np.empty(n)
     done = ffi.new("size_t *")
-    st = lib.fc_solver_advance(s[0], n, ffi.cast("double *", t.ctypes.data),
-                               ffi.cast("double *", y.ctypes.data), done)
+    st = lib.fc_solver_advance(
+        s[0], n, ffi.cast("double *", t.ctypes.data), ffi.cast("double *", y.ctypes.data), done
+    )
     lib.fc_solver_free(s[0])
     assert st == 0, st
 
@@ -141,22 +148,30 @@ def main():
         for name, fn in (("rhs", rhs), ("trivial", trivial)):
             for direct in (True, False):
                 how = "direct" if direct else "cffi cb"
-                rows.append((f"solve PC {memory} {name} {how}",
-                             lambda memory=memory, fn=fn, direct=direct:
-                             run_solve(fn, n, memory, direct)))
+                rows.append(
+                    (
+                        f"solve PC {memory} {name} {how}",
+                        lambda memory=memory, fn=fn, direct=direct: run_solve(fn, n, memory, direct),
+                    )
+                )
     clib = c_rhs_lib()
     if clib is not None:
         for memory in ("exact", "compressed"):
-            rows.append((f"C solver, C rhs, {memory}",
-                         lambda memory=memory: solve_c(clib['c_rhs'], n, memory)))
-            rows.append((f"C solver, C trivial, {memory}",
-                         lambda memory=memory: solve_c(clib['c_trivial'], n, memory)))
-    print(f"{n} steps ({calls} rhs calls), median (min .. max) of {repeat} "
-          "interleaved rounds")
+            rows.append(
+                (f"C solver, C rhs, {memory}", lambda memory=memory: solve_c(clib["c_rhs"], n, memory))
+            )
+            rows.append(
+                (
+                    f"C solver, C trivial, {memory}",
+                    lambda memory=memory: solve_c(clib["c_trivial"], n, memory),
+                )
+            )
+    print(f"{n} steps ({calls} rhs calls), median (min .. max) of {repeat} interleaved rounds")
     res = timed_rows(rows, repeat)
     for label, _ in rows:
         med, lo, hi = res[label]
         print(f"{label:34s} {med:7.3f} s ({lo:.3f} .. {hi:.3f})  {1e9 * med / calls:6.0f} ns/call")
+
 
 if __name__ == "__main__":
     main()

@@ -22,12 +22,14 @@ def main():
     args = ap.parse_args()
     C = args.channels
     marks = [int(m) for m in (1e3, 1e4, 1e5, 1e6, 1e7) if m <= args.max]
-    streams = {"exact rectangle": Stream.integral(0.5, 1e-3, channels=C),
-               "exact kernel(1000)": Stream.from_kernel(np.ones(1000), channels=C)}
+    streams = {
+        "exact rectangle": Stream.integral(0.5, 1e-3, channels=C),
+        "exact kernel(1000)": Stream.from_kernel(np.ones(1000), channels=C),
+    }
     try:
-        streams["compressed"] = Stream.integral(0.5, 1e-3, channels=C,
-                                                mode="compressed", tol=1e-12,
-                                                horizon=1e8)
+        streams["compressed"] = Stream.integral(
+            0.5, 1e-3, channels=C, mode="compressed", tol=1e-12, horizon=1e8
+        )
     except Exception as exc:  # engine not linked in
         print(f"(compressed mode unavailable: {exc})")
     print(f"channels={C}")

@@ -21,11 +21,30 @@ N = 100_000
 
 
 def _controller(memory):
-    return pf.Controller(1.0, 0.5, 0.1, integral_order=0.7, derivative_order=0.5,
-                         step=1e-3, output_limits=(-10, 10), memory=memory,
-                         horizon=1e7) if memory == "compressed" else \
-        pf.Controller(1.0, 0.5, 0.1, integral_order=0.7, derivative_order=0.5,
-                      step=1e-3, output_limits=(-10, 10), memory=memory)
+    return (
+        pf.Controller(
+            1.0,
+            0.5,
+            0.1,
+            integral_order=0.7,
+            derivative_order=0.5,
+            step=1e-3,
+            output_limits=(-10, 10),
+            memory=memory,
+            horizon=1e7,
+        )
+        if memory == "compressed"
+        else pf.Controller(
+            1.0,
+            0.5,
+            0.1,
+            integral_order=0.7,
+            derivative_order=0.5,
+            step=1e-3,
+            output_limits=(-10, 10),
+            memory=memory,
+        )
+    )
 
 
 @pytest.mark.parametrize("memory", ["compressed", "exact"])
@@ -43,6 +62,7 @@ def test_update_block(benchmark, memory):
 
     def run():
         _controller(memory).update_block(1.0, y)
+
     benchmark.pedantic(run, rounds=3, iterations=1)
     if benchmark.stats is not None:  # None with --benchmark-disable
         benchmark.extra_info["ns_per_update"] = benchmark.stats.stats.min / N * 1e9
@@ -64,6 +84,8 @@ def test_worst_update_python(benchmark, memory):
         best = np.minimum(best, t)
     med, worst = float(np.median(best)), float(best.max())
     benchmark.extra_info.update(median_ns=med, worst_ns=worst)
-    print(f"\n{memory}: median {med:.0f} ns, worst {worst:.0f} ns "
-          f"({worst / med:.1f}x), p99.9 {np.quantile(best, 0.999):.0f} ns")
+    print(
+        f"\n{memory}: median {med:.0f} ns, worst {worst:.0f} ns "
+        f"({worst / med:.1f}x), p99.9 {np.quantile(best, 0.999):.0f} ns"
+    )
     benchmark.pedantic(lambda: None, rounds=1)

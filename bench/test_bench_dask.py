@@ -30,8 +30,13 @@ SETS, STEPS = 32, 2000
 @pytest.fixture(scope="module")
 def client():
     cluster = distributed.LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-        dashboard_address=None, silence_logs=40)
+        n_workers=2,
+        threads_per_worker=1,
+        processes=True,
+        host="127.0.0.1",
+        dashboard_address=None,
+        silence_logs=40,
+    )
     c = distributed.Client(cluster, set_as_default=False)
     try:
         yield c
@@ -59,8 +64,7 @@ def test_integral_numpy(benchmark, signals, reference):
 def test_integral_dask_threads(benchmark, signals, reference):
     benchmark.group = f"integral, {C} x 2^18 samples"
     X = da.from_array(signals, chunks=(C // 4, N))
-    y = benchmark.pedantic(lambda: pfd.integral(X, 0.5, 1e-3).compute(scheduler="threads"),
-                           rounds=5)
+    y = benchmark.pedantic(lambda: pfd.integral(X, 0.5, 1e-3).compute(scheduler="threads"), rounds=5)
     assert np.array_equal(y, reference)
 
 
@@ -69,8 +73,7 @@ def test_integral_dask_threads(benchmark, signals, reference):
 def test_integral_dask_cluster(benchmark, client, signals, reference):
     benchmark.group = f"integral, {C} x 2^18 samples"
     X = da.from_array(signals, chunks=(C // 4, N))
-    y = benchmark.pedantic(lambda: client.compute(pfd.integral(X, 0.5, 1e-3), sync=True),
-                           rounds=5)
+    y = benchmark.pedantic(lambda: client.compute(pfd.integral(X, 0.5, 1e-3), sync=True), rounds=5)
     assert np.array_equal(y, reference)
 
 
@@ -81,8 +84,7 @@ def test_integral_dask_cluster_data_on_workers(benchmark, client, reference):
     X = da.random.default_rng(0).standard_normal((C, N), chunks=(C // 4, N))
     X = client.persist(X)
     x = client.compute(X, sync=True)
-    y = benchmark.pedantic(lambda: client.compute(pfd.integral(X, 0.5, 1e-3), sync=True),
-                           rounds=5)
+    y = benchmark.pedantic(lambda: client.compute(pfd.integral(X, 0.5, 1e-3), sync=True), rounds=5)
     assert np.array_equal(y, pyfracconv.integral(x, 0.5, 1e-3))
 
 
@@ -95,8 +97,9 @@ GAINS = np.linspace(0.5, 3.0, SETS)
 
 
 def loop():
-    return np.array([pyfracconv.solve(lambda t, y, g=g: rhs(t, y, g), 1.0, 0.6, 0.005,
-                                      STEPS).y for g in GAINS])
+    return np.array(
+        [pyfracconv.solve(lambda t, y, g=g: rhs(t, y, g), 1.0, 0.6, 0.005, STEPS).y for g in GAINS]
+    )
 
 
 @pytest.fixture(scope="module")

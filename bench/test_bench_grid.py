@@ -39,9 +39,13 @@ def check_head(y, t, x, m=2000):
 def test_fast(benchmark, N):
     benchmark.group = f"grid N={N}"
     t, x = jittered(N)
-    y = benchmark.pedantic(pyfracconv.integral, args=(x, A),
-                           kwargs=dict(t=t, engine="fast", tol=TOL),
-                           rounds=3 if N <= 10**5 else 2, iterations=1)
+    y = benchmark.pedantic(
+        pyfracconv.integral,
+        args=(x, A),
+        kwargs=dict(t=t, engine="fast", tol=TOL),
+        rounds=3 if N <= 10**5 else 2,
+        iterations=1,
+    )
     check_head(y, t, x)
 
 
@@ -49,5 +53,6 @@ def test_fast(benchmark, N):
 def test_direct(benchmark, N):
     benchmark.group = f"grid N={N}"
     t, x = jittered(N)
-    benchmark.pedantic(pyfracconv.integral, args=(x, A),
-                       kwargs=dict(t=t, engine="direct"), rounds=1, iterations=1)
+    benchmark.pedantic(
+        pyfracconv.integral, args=(x, A), kwargs=dict(t=t, engine="direct"), rounds=1, iterations=1
+    )

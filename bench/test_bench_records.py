@@ -48,8 +48,7 @@ def in_memory_compressed(inp, out):
 
 CONTENDERS = {
     "apply_npy compressed": lambda i, o: records.apply_npy(i, o, "integral", ORDER, STEP),
-    "apply_npy exact": lambda i, o: records.apply_npy(i, o, "integral", ORDER, STEP,
-                                                       mode="exact"),
+    "apply_npy exact": lambda i, o: records.apply_npy(i, o, "integral", ORDER, STEP, mode="exact"),
     "in memory: np.load + integral + np.save": in_memory_batch,
     "in memory: np.load + compressed push_many + np.save": in_memory_compressed,
 }
@@ -67,8 +66,12 @@ def test_record_2_22(benchmark, record, tmp_path, name):
 
 
 def _peak(inp, out, mode):
-    proc = subprocess.run([sys.executable, "-c", CHILD, inp, out, mode, repr(ORDER),
-                           repr(STEP), "1e-12"], capture_output=True, text=True, check=True)
+    proc = subprocess.run(
+        [sys.executable, "-c", CHILD, inp, out, mode, repr(ORDER), repr(STEP), "1e-12"],
+        capture_output=True,
+        text=True,
+        check=True,
+    )
     return json.loads(proc.stdout.strip().splitlines()[-1])
 
 

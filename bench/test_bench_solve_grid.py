@@ -36,8 +36,9 @@ def rhs(t, y):
 def test_grid_solver(benchmark, method, N):
     benchmark.group = f"solve on a grid N={N}"
     t = graded_mesh(1.0, N, 2.0)
-    res = benchmark.pedantic(pyfracconv.solve, args=(rhs, 1.0, A),
-                             kwargs=dict(t=t, method=method), rounds=1, iterations=1)
+    res = benchmark.pedantic(
+        pyfracconv.solve, args=(rhs, 1.0, A), kwargs=dict(t=t, method=method), rounds=1, iterations=1
+    )
     assert abs(res.y[-1] - E1) < (1e-3 if method == "rectangle" else 1e-5)
 
 

@@ -38,9 +38,9 @@ def rhs_vector(t, y):
 def numpy_pc(rhs, y0, n, scalar):
     """The predictor-corrector of Diethelm, Ford and Freed 2002 as a plain
     NumPy loop: both history sums recomputed by a dot product every step."""
-    b = pyfracconv.weights("rectangle", A, n + 1, step=H)      # u b_m
-    a = pyfracconv.weights("trapezoid", A, n + 2, step=H)      # v a_m
-    As = pyfracconv._core.trapezoid_start(A, n + 2, step=H)    # v A_n
+    b = pyfracconv.weights("rectangle", A, n + 1, step=H)  # u b_m
+    a = pyfracconv.weights("trapezoid", A, n + 2, step=H)  # v a_m
+    As = pyfracconv._core.trapezoid_start(A, n + 2, step=H)  # v A_n
     w0 = a[0]
     m = 1 if scalar else len(y0)
     F = np.empty((n + 1, m))
@@ -50,8 +50,8 @@ def numpy_pc(rhs, y0, n, scalar):
     y0 = np.asarray(y0, dtype=float)
     for k in range(n):
         t = (k + 1) * H
-        hr = b[k::-1] @ F[:k + 1]
-        ht = As[k + 1] * F[0] + a[k:0:-1] @ F[1:k + 1]
+        hr = b[k::-1] @ F[: k + 1]
+        ht = As[k + 1] * F[0] + a[k:0:-1] @ F[1 : k + 1]
         yp = y0 + hr
         if scalar:
             yc = y0 + ht + w0 * rhs(t, float(yp[0]))
@@ -82,12 +82,18 @@ def _per_step(benchmark, n):
 
 # ------------------------------------------------------------ scalar
 
+
 @pytest.mark.parametrize("n", [10**4, 10**5])
 @pytest.mark.parametrize("memory", ["exact", "compressed"])
 def test_scalar_solve(benchmark, n, memory):
     benchmark.group = f"scalar PC, {n} steps"
-    res = benchmark.pedantic(solve, args=(rhs_scalar, 1.0, A, H, n),
-                             kwargs={"memory": memory, "tol": 1e-12}, rounds=3, iterations=1)
+    res = benchmark.pedantic(
+        solve,
+        args=(rhs_scalar, 1.0, A, H, n),
+        kwargs={"memory": memory, "tol": 1e-12},
+        rounds=3,
+        iterations=1,
+    )
     _per_step(benchmark, n)
     assert res.rhs_evals == 2 * n + 1
 
@@ -101,29 +107,36 @@ def test_scalar_bare_rhs_calls(benchmark, n):
 @pytest.mark.parametrize("n", [10**4, 10**5])
 def test_scalar_numpy_loop(benchmark, n):
     benchmark.group = f"scalar PC, {n} steps"
-    y = benchmark.pedantic(numpy_pc, args=(rhs_scalar, 1.0, n, True), rounds=1 if n > 10**4 else 3,
-                           iterations=1)
+    y = benchmark.pedantic(
+        numpy_pc, args=(rhs_scalar, 1.0, n, True), rounds=1 if n > 10**4 else 3, iterations=1
+    )
     _check(solve(rhs_scalar, 1.0, A, H, n).y, y)
 
 
 # ------------------------------------------------------------ 100 components
+
 
 @pytest.mark.parametrize("n", [10**4, 10**5])
 @pytest.mark.parametrize("memory", ["exact", "compressed"])
 def test_vector_solve(benchmark, n, memory):
     benchmark.group = f"{M} components PC, {n} steps"
     y0 = np.linspace(0.5, 1.5, M)
-    benchmark.pedantic(solve, args=(rhs_vector, y0, A, H, n),
-                       kwargs={"memory": memory, "tol": 1e-12}, rounds=3 if n <= 10**4 else 1,
-                       iterations=1)
+    benchmark.pedantic(
+        solve,
+        args=(rhs_vector, y0, A, H, n),
+        kwargs={"memory": memory, "tol": 1e-12},
+        rounds=3 if n <= 10**4 else 1,
+        iterations=1,
+    )
     _per_step(benchmark, n)
 
 
 @pytest.mark.parametrize("n", [10**4, 10**5])
 def test_vector_bare_rhs_calls(benchmark, n):
     benchmark.group = f"{M} components PC, {n} steps"
-    benchmark.pedantic(bare_calls, args=(rhs_vector, None, 2 * n + 1, False),
-                       rounds=3 if n <= 10**4 else 1, iterations=1)
+    benchmark.pedantic(
+        bare_calls, args=(rhs_vector, None, 2 * n + 1, False), rounds=3 if n <= 10**4 else 1, iterations=1
+    )
 
 
 def test_vector_numpy_loop(benchmark):
@@ -135,6 +148,7 @@ def test_vector_numpy_loop(benchmark):
 
 
 # ------------------------------------------------------------ one step a call
+
 
 def _step_loop(n, memory, one):
     st = pyfracconv.Stepper(rhs_scalar, 1.0, A, H, memory=memory, horizon=n + 1)

@@ -1,19 +1,19 @@
 """Benchmarks of the exact stream (pyfracconv.Stream, mode="exact").
 
-    python -m pytest bench/test_bench_stream.py -s --benchmark-group-by=group
+  python -m pytest bench/test_bench_stream.py -s --benchmark-group-by=group
 
-  - push_many of 2^20 samples against the batch integral of the same samples
-    (the ratio is printed and stored in extra_info);
-  - push() from Python, per call, in one group: the bare cffi calls
-    (lib.fc_stream_push1 with an output buffer, lib.fc_stream_push1_value
-    returning the output), Stream.push on an exact and on a compressed rule
-    stream at about 2^16 samples of history, and on a one-tap kernel
-    stream (the pure call overhead); bench/push_cost.py breaks the cost
-    down further;
-  - what a user would otherwise write: a per-sample NumPy loop, one dot
-    product over the whole history, at 2^14 and 2^16 samples, against the
-    stream on the same samples;
-  - the worst single push over 2^20 pushes (max and 99.9th percentile).
+- push_many of 2^20 samples against the batch integral of the same samples
+  (the ratio is printed and stored in extra_info);
+- push() from Python, per call, in one group: the bare cffi calls
+  (lib.fc_stream_push1 with an output buffer, lib.fc_stream_push1_value
+  returning the output), Stream.push on an exact and on a compressed rule
+  stream at about 2^16 samples of history, and on a one-tap kernel
+  stream (the pure call overhead); bench/push_cost.py breaks the cost
+  down further;
+- what a user would otherwise write: a per-sample NumPy loop, one dot
+  product over the whole history, at 2^14 and 2^16 samples, against the
+  stream on the same samples;
+- the worst single push over 2^20 pushes (max and 99.9th percentile).
 """
 
 import time
@@ -50,6 +50,7 @@ def _best(fn, repeat=3):
 
 # ------------------------------------------------- push_many versus batch
 
+
 @pytest.mark.parametrize("rule", ["rectangle", "trapezoid"])
 def test_push_many_2_20(benchmark, x_big, rule):
     benchmark.group = f"2^20 samples, {rule}"
@@ -66,8 +67,7 @@ def test_push_many_2_20(benchmark, x_big, rule):
 @pytest.mark.parametrize("rule", ["rectangle", "trapezoid"])
 def test_batch_integral_2_20(benchmark, x_big, rule):
     benchmark.group = f"2^20 samples, {rule}"
-    benchmark.pedantic(pyfracconv.integral, args=(x_big, A, H),
-                       kwargs={"rule": rule}, rounds=3, iterations=1)
+    benchmark.pedantic(pyfracconv.integral, args=(x_big, A, H), kwargs={"rule": rule}, rounds=3, iterations=1)
 
 
 @pytest.mark.parametrize("rule", ["rectangle", "trapezoid"])
@@ -91,14 +91,18 @@ def test_ratio_push_many_over_batch(benchmark, x_big, rule):
     s.push_many(x_big)
     t_reserved = time.perf_counter() - t0
     ratio = t_stream / t_batch
-    benchmark.extra_info.update(batch_s=t_batch, push_many_s=t_stream,
-                                push_many_reserved_s=t_reserved, ratio=ratio)
-    print(f"\n[{rule}] 2^20: batch {t_batch:.3f} s, push_many {t_stream:.3f} s "
-          f"({t_stream / N_BIG * 1e9:.0f} ns/sample), after reserve "
-          f"{t_reserved:.3f} s; ratio push_many/batch = {ratio:.2f}")
+    benchmark.extra_info.update(
+        batch_s=t_batch, push_many_s=t_stream, push_many_reserved_s=t_reserved, ratio=ratio
+    )
+    print(
+        f"\n[{rule}] 2^20: batch {t_batch:.3f} s, push_many {t_stream:.3f} s "
+        f"({t_stream / N_BIG * 1e9:.0f} ns/sample), after reserve "
+        f"{t_reserved:.3f} s; ratio push_many/batch = {ratio:.2f}"
+    )
 
 
 # ---------------------------------------------------- push() per call
+
 
 def _rule_stream(mode="exact"):
     if mode == "compressed":
@@ -114,8 +118,7 @@ def test_push_bare_cffi(benchmark):
     benchmark.group = "push() per call"
     s = _rule_stream()
     y = ffi.new("double[1]")
-    benchmark.pedantic(lib.fc_stream_push1, args=(s._s, 0.5, y), rounds=200,
-                       iterations=100, warmup_rounds=5)
+    benchmark.pedantic(lib.fc_stream_push1, args=(s._s, 0.5, y), rounds=200, iterations=100, warmup_rounds=5)
     assert y[0] == y[0]
 
 
@@ -124,38 +127,35 @@ def test_push_bare_cffi_value(benchmark):
     benchmark.group = "push() per call"
     s = _rule_stream()
     cell = ffi.new("int[1]")
-    y = benchmark.pedantic(lib.fc_stream_push1_value, args=(s._s, 0.5, cell),
-                           rounds=200, iterations=100, warmup_rounds=5)
+    y = benchmark.pedantic(
+        lib.fc_stream_push1_value, args=(s._s, 0.5, cell), rounds=200, iterations=100, warmup_rounds=5
+    )
     assert y == y and cell[0] == 0
 
 
 def test_push_python_rule_stream(benchmark):
     benchmark.group = "push() per call"
     s = _rule_stream()
-    benchmark.pedantic(s.push, args=(0.5,), rounds=200, iterations=100,
-                       warmup_rounds=5)
+    benchmark.pedantic(s.push, args=(0.5,), rounds=200, iterations=100, warmup_rounds=5)
 
 
 def test_push_python_compressed(benchmark):
     benchmark.group = "push() per call"
     s = _rule_stream("compressed")
-    benchmark.pedantic(s.push, args=(0.5,), rounds=200, iterations=100,
-                       warmup_rounds=5)
+    benchmark.pedantic(s.push, args=(0.5,), rounds=200, iterations=100, warmup_rounds=5)
 
 
 def test_push_bare_cffi_compressed(benchmark):
     benchmark.group = "push() per call"
     s = _rule_stream("compressed")
     y = ffi.new("double[1]")
-    benchmark.pedantic(lib.fc_stream_push1, args=(s._s, 0.5, y), rounds=200,
-                       iterations=100, warmup_rounds=5)
+    benchmark.pedantic(lib.fc_stream_push1, args=(s._s, 0.5, y), rounds=200, iterations=100, warmup_rounds=5)
 
 
 def test_push_python_overhead_one_tap(benchmark):
     benchmark.group = "push() per call"
     s = Stream.from_kernel([1.0])
-    benchmark.pedantic(s.push, args=(0.5,), rounds=200, iterations=100,
-                       warmup_rounds=5)
+    benchmark.pedantic(s.push, args=(0.5,), rounds=200, iterations=100, warmup_rounds=5)
 
 
 def test_push_python_amortised_2_18(benchmark):
@@ -179,6 +179,7 @@ def test_push_python_amortised_2_18(benchmark):
 
 # ------------------------------------------- the naive per-sample loop
 
+
 def _naive_loop(x, a=A, h=H):
     """What one might write: keep the history, one dot product per sample."""
     N = len(x)
@@ -188,7 +189,7 @@ def _naive_loop(x, a=A, h=H):
     for n in range(N):
         hist[n] = x[n]
         # y_n = sum_{k<n} w_{n-1-k} x_k
-        out[n] = w[N - n:] @ hist[:n] if n else 0.0
+        out[n] = w[N - n :] @ hist[:n] if n else 0.0
     return out
 
 
@@ -216,6 +217,7 @@ def test_stream_push_loop(benchmark, N):
 
 # ------------------------------------------------------ worst push
 
+
 @pytest.mark.parametrize("reserved", [False, True], ids=["grow", "reserved"])
 def test_worst_single_push_2_20(benchmark, x_big, reserved):
     """Latency of every one of 2^20 push() calls from Python (including the
@@ -223,7 +225,7 @@ def test_worst_single_push_2_20(benchmark, x_big, reserved):
     and, without reserve(), creates a new level (FFT plan and kernel
     spectra)."""
     benchmark.group = "worst push"
-    xs = (x_big[:2**12] if _quick(benchmark) else x_big).tolist()
+    xs = (x_big[: 2**12] if _quick(benchmark) else x_big).tolist()
 
     def run():
         s = Stream.integral(A, H)
@@ -243,8 +245,9 @@ def test_worst_single_push_2_20(benchmark, x_big, reserved):
     at = int(lat.argmax())
     p999 = float(np.percentile(lat, 99.9))
     p50 = float(np.median(lat))
-    benchmark.extra_info.update(worst_us=worst / 1e3, worst_at=at,
-                                p99_9_us=p999 / 1e3, median_us=p50 / 1e3)
-    print(f"\nworst push over 2^20 ({'reserved' if reserved else 'growing'}): "
-          f"{worst / 1e3:.0f} us at sample {at}; "
-          f"99.9th percentile {p999 / 1e3:.1f} us; median {p50 / 1e3:.2f} us")
+    benchmark.extra_info.update(worst_us=worst / 1e3, worst_at=at, p99_9_us=p999 / 1e3, median_us=p50 / 1e3)
+    print(
+        f"\nworst push over 2^20 ({'reserved' if reserved else 'growing'}): "
+        f"{worst / 1e3:.0f} us at sample {at}; "
+        f"99.9th percentile {p999 / 1e3:.1f} us; median {p50 / 1e3:.2f} us"
+    )

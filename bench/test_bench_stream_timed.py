@@ -37,7 +37,8 @@ def test_timed_push_many(benchmark):
     def run():
         s = timed()
         for i in range(0, N_BLOCK, 1000):
-            s.push_many(t[i:i + 1000], x[i:i + 1000])
+            s.push_many(t[i : i + 1000], x[i : i + 1000])
+
     benchmark.pedantic(run, rounds=3, iterations=1)
 
 
@@ -48,7 +49,8 @@ def test_uniform_push_many(benchmark):
     def run():
         s = uniform()
         for i in range(0, N_BLOCK, 1000):
-            s.push_many(x[i:i + 1000])
+            s.push_many(x[i : i + 1000])
+
     benchmark.pedantic(run, rounds=3, iterations=1)
 
 
@@ -61,6 +63,7 @@ def test_timed_push(benchmark):
         s = timed()
         for ti, xi in zip(tl, xl):
             s.push(ti, xi)
+
     benchmark.pedantic(run, rounds=3, iterations=1)
 
 
@@ -73,4 +76,5 @@ def test_uniform_push(benchmark):
         s = uniform()
         for xi in xl:
             s.push(xi)
+
     benchmark.pedantic(run, rounds=3, iterations=1)

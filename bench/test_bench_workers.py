@@ -50,8 +50,7 @@ def test_integral_workers(benchmark, case, workers):
     assert y.tobytes() == ref.tobytes()  # bit for bit, whatever workers
 
 
-STREAMS = {"exact 16 x 2^16": ("exact", 16, 2**16),
-           "compressed 16 x 2^16": ("compressed", 16, 2**16)}
+STREAMS = {"exact 16 x 2^16": ("exact", 16, 2**16), "compressed 16 x 2^16": ("compressed", 16, 2**16)}
 
 
 @pytest.mark.parametrize("workers", [1, 2])

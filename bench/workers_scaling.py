@@ -45,26 +45,22 @@ def row(name, f, pairs):
     m2 = statistics.median(t for t, _ in w2)
     r1 = sum(c for _, c in w1) / sum(t for t, _ in w1)
     r2 = sum(c for _, c in w2) / sum(t for t, _ in w2)
-    print(f"| {name} | {m1 * 1e3:.1f} ms | {m2 * 1e3:.1f} ms | {m1 / m2:.2f}x | "
-          f"{r1:.2f} | {r2:.2f} |")
+    print(f"| {name} | {m1 * 1e3:.1f} ms | {m2 * 1e3:.1f} ms | {m1 / m2:.2f}x | {r1:.2f} | {r2:.2f} |")
 
 
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--pairs", type=int, default=9)
     args = ap.parse_args()
-    print(f"os.cpu_count() = {os.cpu_count()}, load average "
-          f"{' '.join(f'{v:.2f}' for v in os.getloadavg())}")
+    print(f"os.cpu_count() = {os.cpu_count()}, load average {' '.join(f'{v:.2f}' for v in os.getloadavg())}")
     print("| call | workers=1 | workers=2 | ratio | CPU/wall w=1 | CPU/wall w=2 |")
     print("|---|---|---|---|---|---|")
     for shape in SHAPES:
         x = np.random.default_rng(0).standard_normal(shape)
-        row(f"integral {shape[0]} x 2^{int(np.log2(shape[1]))}",
-            lambda w, x=x: one(x, w), args.pairs)
+        row(f"integral {shape[0]} x 2^{int(np.log2(shape[1]))}", lambda w, x=x: one(x, w), args.pairs)
     x = np.random.default_rng(1).standard_normal((2**16, 16))
     for mode in ("exact", "compressed"):
-        row(f"push_many {mode} 16 x 2^16", lambda w, m=mode: one_stream(x, m, w),
-            max(3, args.pairs // 3))
+        row(f"push_many {mode} 16 x 2^16", lambda w, m=mode: one_stream(x, m, w), max(3, args.pairs // 3))
 
 
 if __name__ == "__main__":

@@ -30,11 +30,13 @@ except ImportError as _exc:  # pragma: no cover - exercised by a subprocess test
     raise ImportError(
         "pyfracconv: the compiled core (pyfracconv._fracconv) is missing from "
         f"{_here}. "
-        + ("This is the source checkout, which shadows an installed copy when "
-           "Python runs from its top folder: run from another directory, or "
-           "build in place with `pip install -e .`."
-           if _checkout else
-           "Reinstall the package (`pip install --force-reinstall pyfracconv`).")
+        + (
+            "This is the source checkout, which shadows an installed copy when "
+            "Python runs from its top folder: run from another directory, or "
+            "build in place with `pip install -e .`."
+            if _checkout
+            else "Reinstall the package (`pip install --force-reinstall pyfracconv`)."
+        )
     ) from _exc
 
 from ._errors import (

@@ -67,7 +67,6 @@ __all__ = [
 FloatArray = NDArray[np.float64]
 
 
-
 def _rule_table() -> Tuple[Dict[str, int], Tuple[str, ...], Tuple[str, ...]]:
     """The rule names and kinds, read from the C core's rule table
     (fc_rule_count, fc_rule_info): Python keeps no copy of its own."""
@@ -148,8 +147,7 @@ def compressed_text() -> str:
     parts = [f"0 < order < {common:g} with every rule"]
     for name, (_lo, _loi, hi, hii) in ranges.items():
         if hi > common:
-            parts.append(f"{common:g} <= order {'<=' if hii else '<'} {hi:g} "
-                         f"with rule={name!r}")
+            parts.append(f"{common:g} <= order {'<=' if hii else '<'} {hi:g} with rule={name!r}")
     return ", and ".join(parts)
 
 
@@ -169,10 +167,11 @@ INDEX_LIMIT = 2**53
 COMPRESSED_TOL_RANGE = (1e-15, 1e-2)
 COMPRESSED_HORIZON_RANGE = (1.0, float(INDEX_LIMIT - 2))
 # Largest value of size_t (channel counts and other sizes passed to C).
-SIZE_MAX = 2**(8 * np.dtype(np.uintp).itemsize) - 1
+SIZE_MAX = 2 ** (8 * np.dtype(np.uintp).itemsize) - 1
 
 
 # ---------------------------------------------------------------- memory
+
 
 def _nbytes_text(n: int) -> str:
     for unit, size in (("TiB", 2**40), ("GiB", 2**30), ("MiB", 2**20), ("KiB", 2**10)):
@@ -213,9 +212,7 @@ def new_result(n: int, what: str) -> FloatArray:
     try:
         return np.empty(n, dtype=np.float64)
     except MemoryError:
-        raise OutOfMemory(
-            f"{what}: could not allocate the result ({_nbytes_text(need)})"
-        ) from None
+        raise OutOfMemory(f"{what}: could not allocate the result ({_nbytes_text(need)})") from None
 
 
 def contiguous_copy(name: str, arr: NDArray[np.generic]) -> FloatArray:
@@ -235,6 +232,7 @@ def contiguous_copy(name: str, arr: NDArray[np.generic]) -> FloatArray:
 
 # ---------------------------------------------------------------- scalars
 
+
 def check_rule(rule: object, allowed: Tuple[str, ...] = tuple(RULES)) -> int:
     """Return the C code of ``rule`` if it is one of ``allowed``."""
     if not isinstance(rule, str) or rule not in allowed:
@@ -247,15 +245,12 @@ def check_real(name: str, value: object) -> float:
     """A real scalar as a Python float (InputTypeError if not numeric,
     ArgumentError if beyond the range of a double, e.g. 10**400)."""
     if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
-        raise InputTypeError(
-            f"{name}={show(value)}: expected a real number, got {type(value).__name__}"
-        )
+        raise InputTypeError(f"{name}={show(value)}: expected a real number, got {type(value).__name__}")
     try:
         return float(value)
     except OverflowError:
         raise ArgumentError(
-            f"{name}={show(value)}: beyond the range of a double "
-            "(magnitude above 1.8e308)"
+            f"{name}={show(value)}: beyond the range of a double (magnitude above 1.8e308)"
         ) from None
 
 
@@ -279,9 +274,7 @@ def check_order(order: object, rule: object, mode: Optional[int] = None) -> floa
                 f"order={show(order)}: mode='compressed' {need} "
                 f"(use mode='exact', which takes {exact} with this rule)"
             )
-        raise ArgumentError(
-            f"order={show(order)}: rule={show(rule)} needs {range_text(r)}"
-        )
+        raise ArgumentError(f"order={show(order)}: rule={show(rule)} needs {range_text(r)}")
     return a
 
 
@@ -293,13 +286,10 @@ def check_step(step: object) -> float:
     return h
 
 
-def check_count(name: str, value: object, minimum: int = 0,
-                maximum: Optional[int] = None) -> int:
+def check_count(name: str, value: object, minimum: int = 0, maximum: Optional[int] = None) -> int:
     """An integer in [minimum, maximum] as a Python int."""
     if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Integral):
-        raise InputTypeError(
-            f"{name}={show(value)}: expected an integer, got {type(value).__name__}"
-        )
+        raise InputTypeError(f"{name}={show(value)}: expected an integer, got {type(value).__name__}")
     v = int(value)
     if v < minimum:
         raise ArgumentError(f"{name}={show(value)}: must be >= {minimum}")
@@ -321,8 +311,7 @@ def check_workers(workers: object) -> int:
         return 1
     if isinstance(workers, (bool, np.bool_)) or not isinstance(workers, numbers.Integral):
         raise InputTypeError(
-            f"workers={show(workers)}: expected an integer or None, got "
-            f"{type(workers).__name__}"
+            f"workers={show(workers)}: expected an integer or None, got {type(workers).__name__}"
         )
     w = int(workers)
     if w == 0:
@@ -348,9 +337,7 @@ def check_compressed(tol: object, horizon: object) -> Tuple[float, float]:
     hz = check_real("horizon", horizon)
     lo, hi = COMPRESSED_TOL_RANGE
     if not (lo <= t <= hi):
-        raise ArgumentError(
-            f"tol={show(tol)}: must be in [{lo:g}, {hi:g}] for mode='compressed'"
-        )
+        raise ArgumentError(f"tol={show(tol)}: must be in [{lo:g}, {hi:g}] for mode='compressed'")
     lo, hi = COMPRESSED_HORIZON_RANGE
     if not (lo <= hz <= hi):
         raise ArgumentError(
@@ -383,43 +370,34 @@ def check_channels(channels: object) -> int:
     """The channel count of a stream: None means one (a scalar stream)."""
     if channels is None:
         return 1
-    if isinstance(channels, (bool, np.bool_)) or not isinstance(
-        channels, numbers.Integral
-    ):
+    if isinstance(channels, (bool, np.bool_)) or not isinstance(channels, numbers.Integral):
         raise InputTypeError(
-            f"channels={show(channels)}: expected None or an integer, "
-            f"got {type(channels).__name__}"
+            f"channels={show(channels)}: expected None or an integer, got {type(channels).__name__}"
         )
     c = int(channels)
     if c < 1:
         raise ArgumentError(f"channels={show(channels)}: must be >= 1")
     if c > SIZE_MAX:
-        raise ArgumentError(
-            f"channels={show(channels)}: must be <= {SIZE_MAX} (the largest size)"
-        )
+        raise ArgumentError(f"channels={show(channels)}: must be <= {SIZE_MAX} (the largest size)")
     return c
 
 
 def check_mode(mode: object) -> int:
     """The C code of a stream mode name."""
     if not isinstance(mode, str) or mode not in MODES:
-        raise ArgumentError(
-            f"mode={show(mode)}: unknown; expected one of 'exact', 'compressed'"
-        )
+        raise ArgumentError(f"mode={show(mode)}: unknown; expected one of 'exact', 'compressed'")
     return MODES[str(mode)]
 
 
 def check_policy(policy: object) -> int:
     """The C code of a horizon policy name."""
     if not isinstance(policy, str) or policy not in POLICIES:
-        raise ArgumentError(
-            f"horizon_policy={show(policy)}: unknown; expected one of "
-            "'refuse', 'continue'"
-        )
+        raise ArgumentError(f"horizon_policy={show(policy)}: unknown; expected one of 'refuse', 'continue'")
     return POLICIES[str(policy)]
 
 
 # ---------------------------------------------------------------- arrays
+
 
 def is_masked(values: object) -> bool:
     """True if ``values`` is a masked array (numpy.ma)."""
@@ -449,16 +427,14 @@ def _object_to_float(name: str, arr: NDArray[np.object_]) -> FloatArray:
     for idx, v in np.ndenumerate(arr):
         if isinstance(v, (bool, np.bool_)) or not isinstance(v, numbers.Real):
             raise InputTypeError(
-                f"{name}: expected real numbers, got an array of dtype object "
-                f"holding {type(v).__name__}"
+                f"{name}: expected real numbers, got an array of dtype object holding {type(v).__name__}"
             )
         try:
             out[idx] = float(v)
         except OverflowError:
             where = idx[0] if len(idx) == 1 else idx
             raise SampleError(
-                f"{name}[{where}]={show(v)}: beyond the range of a double "
-                "(samples must be finite)"
+                f"{name}[{where}]={show(v)}: beyond the range of a double (samples must be finite)"
             ) from None
     return out
 
@@ -476,9 +452,7 @@ def as_float_array(name: str, values: object) -> FloatArray:
     if arr.dtype.kind == "O":  # Python integers too large for int64, ...
         return _object_to_float(name, arr)
     if arr.dtype.kind not in "biuf":
-        raise InputTypeError(
-            f"{name}: expected real numbers, got an array of dtype {arr.dtype}"
-        )
+        raise InputTypeError(f"{name}: expected real numbers, got an array of dtype {arr.dtype}")
     if arr.dtype == np.float64 and arr.flags.c_contiguous:
         return arr
     return contiguous_copy(name, arr)

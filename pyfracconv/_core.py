@@ -86,18 +86,16 @@ def context(threads: int = 1) -> Any:
 
 # ---------------------------------------------------------------- weights
 
+
 def _index_range(count: object, start: object) -> tuple[int, int]:
     n = check_count("count", count)
     m0 = check_count("start", start)
     if m0 + n > INDEX_LIMIT:
-        raise ArgumentError(
-            f"start={show(start)}, count={show(count)}: start + count must be <= 2**53"
-        )
+        raise ArgumentError(f"start={show(start)}, count={show(count)}: start + count must be <= 2**53")
     return n, m0
 
 
-def weights(rule: str, order: float, count: int, step: float = 1.0,
-            start: int = 0) -> FloatArray:
+def weights(rule: str, order: float, count: int, step: float = 1.0, start: int = 0) -> FloatArray:
     """Quadrature weights of a rule, scaled by the step.
 
     Parameters
@@ -175,15 +173,13 @@ def weights(rule: str, order: float, count: int, step: float = 1.0,
     st = lib.fc_weights(code, a, h, m0, n, ffi.from_buffer("double[]", out))
     if st == lib.FC_ERR_RANGE:
         raise RangeError(
-            f"step={show(step)} (or order={show(order)}): the weights are "
-            "beyond the double range"
+            f"step={show(step)} (or order={show(order)}): the weights are beyond the double range"
         )
     raise_for_status(st, f"weights(rule={show(rule)}, order={show(order)})")
     return out
 
 
-def trapezoid_start(order: float, count: int, step: float = 1.0,
-                    start: int = 0) -> FloatArray:
+def trapezoid_start(order: float, count: int, step: float = 1.0, start: int = 0) -> FloatArray:
     """Starting weights h^a/Gamma(a+2) A_n of the trapezoid rule,
     n = start .. start+count-1 (A_0 = 0)."""
     a = check_order(order, "trapezoid")
@@ -193,8 +189,7 @@ def trapezoid_start(order: float, count: int, step: float = 1.0,
     st = lib.fc_trapezoid_start(a, h, m0, n, ffi.from_buffer("double[]", out))
     if st == lib.FC_ERR_RANGE:
         raise RangeError(
-            f"step={show(step)} (or order={show(order)}): the weights are "
-            "beyond the double range"
+            f"step={show(step)} (or order={show(order)}): the weights are beyond the double range"
         )
     raise_for_status(st, f"trapezoid_start(order={show(order)})")
     return out
@@ -202,8 +197,8 @@ def trapezoid_start(order: float, count: int, step: float = 1.0,
 
 # ---------------------------------------------------------------- lagged sums
 
-def _rows(name: str, samples: object,
-          axis: object) -> tuple[FloatArray, int, tuple[int, ...], FloatArray]:
+
+def _rows(name: str, samples: object, axis: object) -> tuple[FloatArray, int, tuple[int, ...], FloatArray]:
     """Samples moved to a C-contiguous (nsig, n) float64 block."""
     arr = as_float_array(name, samples)
     if arr.ndim == 0:
@@ -223,8 +218,14 @@ def _largest(arr: FloatArray) -> str:
     return show(float(np.max(np.abs(arr)))) if arr.size else "0.0"
 
 
-def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
-               engine: str = "auto", *, workers: Optional[int] = None) -> FloatArray:
+def lagged_sum(
+    samples: ArrayLike,
+    kernel: ArrayLike,
+    axis: int = -1,
+    engine: str = "auto",
+    *,
+    workers: Optional[int] = None,
+) -> FloatArray:
     """Causal lagged sum y_n = sum_{k<=n} kernel[n-k] * samples[k].
 
     Parameters
@@ -304,16 +305,15 @@ def lagged_sum(samples: ArrayLike, kernel: ArrayLike, axis: int = -1,
     arr, ax, moved_shape, block = _rows("samples", samples, axis)
     k = np.ascontiguousarray(as_float_array("kernel", kernel))
     if k.ndim != 1 or k.size == 0:
-        raise ArgumentError(
-            f"kernel: expected a non-empty 1-D array, got shape {k.shape}"
-        )
+        raise ArgumentError(f"kernel: expected a non-empty 1-D array, got shape {k.shape}")
     if not np.all(np.isfinite(k)):
         raise_nonfinite("kernel", k)
     eng = check_engine(engine)
     nsig, n = block.shape
     out = np.empty_like(block)
-    st = lib.fc_lagged_sum(context(nthreads), dptr(block), nsig, n, dptr(k), k.size, eng,
-                           ffi.from_buffer("double[]", out))
+    st = lib.fc_lagged_sum(
+        context(nthreads), dptr(block), nsig, n, dptr(k), k.size, eng, ffi.from_buffer("double[]", out)
+    )
     if st == lib.FC_ERR_RANGE:
         raise RangeError(
             "samples (or kernel): the result is beyond the double range "
@@ -339,8 +339,16 @@ def _fast_grid_ok(rule: str, a: float) -> bool:
     return 0.0 < a < 1.0 if rule == "l1" else 0.0 < a <= 1.0
 
 
-def _apply_grid(kind: str, samples: object, order: object, t: object, rule: object,
-                axis: object, engine: object, tol: object) -> FloatArray:
+def _apply_grid(
+    kind: str,
+    samples: object,
+    order: object,
+    t: object,
+    rule: object,
+    axis: object,
+    engine: object,
+    tol: object,
+) -> FloatArray:
     """integral / derivative with sample times ``t``: the direct engine of
     :mod:`pyfracconv.grid` or the fast engine (fc_grid_apply, sums of
     exponentials), chosen by ``engine`` (no switch to the uniform engines)."""
@@ -367,42 +375,56 @@ def _apply_grid(kind: str, samples: object, order: object, t: object, rule: obje
         if engine == "direct":
             raise ArgumentError(
                 f"tol={show(tol)} with engine='direct': the direct engine has no "
-                "tolerance (it is accurate to rounding); give engine='fast' or 'auto'")
+                "tolerance (it is accurate to rounding); give engine='fast' or 'auto'"
+            )
     if engine == "fast" and not _fast_grid_ok(name, a):
         span = "0 < order < 1" if name == "l1" else "0 < order <= 1"
         raise ArgumentError(
             f"order={show(order)} with engine='fast': the fast engine on a grid "
             f"serves {span} (the kernel must be completely monotone); use "
-            "engine='direct'")
+            "engine='direct'"
+        )
     arr, ax, moved_shape, block = _rows("samples", samples, axis)
     tt = grid.check_times(t, block.shape[1])
     if not np.all(np.isfinite(block)):
         raise_nonfinite("samples", arr)
     nsig, n = block.shape
-    use_fast = engine == "fast" or (
-        engine == "auto" and n >= GRID_FAST_FROM and _fast_grid_ok(name, a))
+    use_fast = engine == "fast" or (engine == "auto" and n >= GRID_FAST_FROM and _fast_grid_ok(name, a))
     if use_fast:
         out = np.empty_like(block)
         tc = np.ascontiguousarray(tt)
-        st = lib.fc_grid_apply(check_rule(rule), a, dptr(tc), dptr(block), nsig, n, tl,
-                               ffi.from_buffer("double[]", out), ffi.NULL)
+        st = lib.fc_grid_apply(
+            check_rule(rule),
+            a,
+            dptr(tc),
+            dptr(block),
+            nsig,
+            n,
+            tl,
+            ffi.from_buffer("double[]", out),
+            ffi.NULL,
+        )
         if st == lib.FC_ERR_TOL:
             width = float(tt[-1] - tt[0])
             hmin = float(np.min(np.diff(tt)))
-            if width / hmin > 2.0 ** 99:
+            if width / hmin > 2.0**99:
                 raise ArgumentError(
                     f"t: the span t[-1] - t[0] = {show(width)} is more than 2**100 "
                     "times the smallest step: too wide for the fast engine; use "
-                    "engine='direct'")
+                    "engine='direct'"
+                )
             raise ArgumentError(  # pragma: no cover (not seen: tests/test_grid_fast.py)
                 f"tol={show(tl)}: no sum of exponentials met this tolerance on this "
-                "grid; use a larger tol or engine='direct'")
+                "grid; use a larger tol or engine='direct'"
+            )
         if st == lib.FC_ERR_RANGE:
             raise RangeError(
                 f"samples (or t, order={show(order)}): the result is beyond the "
-                f"double range (largest |sample| {_largest(block)})")
-        raise_for_status(st, f"{kind}(rule={show(rule)}, order={show(order)}, t=...)",
-                         samples=("samples", arr))
+                f"double range (largest |sample| {_largest(block)})"
+            )
+        raise_for_status(
+            st, f"{kind}(rule={show(rule)}, order={show(order)}, t=...)", samples=("samples", arr)
+        )
         return _unrows(out, moved_shape, ax)
     with np.errstate(over="ignore", invalid="ignore"):
         out = grid.apply_on_grid(name, a, block, tt)
@@ -414,9 +436,18 @@ def _apply_grid(kind: str, samples: object, order: object, t: object, rule: obje
     return _unrows(out, moved_shape, ax)
 
 
-def _apply(kind: str, samples: object, order: object, step: object, rule: object,
-           axis: object, engine: object, t: object = None,
-           tol: object = None, workers: object = None) -> FloatArray:
+def _apply(
+    kind: str,
+    samples: object,
+    order: object,
+    step: object,
+    rule: object,
+    axis: object,
+    engine: object,
+    t: object = None,
+    tol: object = None,
+    workers: object = None,
+) -> FloatArray:
     nthreads = check_workers(workers)
     if step is not None and t is not None:
         raise ArgumentError(
@@ -434,11 +465,13 @@ def _apply(kind: str, samples: object, order: object, step: object, rule: object
         raise ArgumentError(
             f"tol={show(tol)}: a tolerance is taken only with t= (the fast "
             "engine on a grid of times); the uniform engines are accurate to "
-            "rounding")
+            "rounding"
+        )
     if engine == "fast":
         raise ArgumentError(
             "engine='fast': the engine of sample times (t=); with step= the "
-            "engines are 'auto', 'direct', 'blocked' and 'fft'")
+            "engines are 'auto', 'direct', 'blocked' and 'fft'"
+        )
     allowed = INTEGRAL_RULES if kind == "integral" else DERIVATIVE_RULES
     code = check_rule(rule, allowed)
     a = check_order(order, rule)
@@ -447,22 +480,32 @@ def _apply(kind: str, samples: object, order: object, step: object, rule: object
     arr, ax, moved_shape, block = _rows("samples", samples, axis)
     nsig, n = block.shape
     out = np.empty_like(block)
-    st = lib.fc_apply(context(nthreads), code, a, h, dptr(block), nsig, n, eng,
-                      ffi.from_buffer("double[]", out))
+    st = lib.fc_apply(
+        context(nthreads), code, a, h, dptr(block), nsig, n, eng, ffi.from_buffer("double[]", out)
+    )
     if st == lib.FC_ERR_RANGE:
         raise RangeError(
             f"samples (or step={show(step)}, order={show(order)}): the result "
             f"is beyond the double range (largest |sample| {_largest(block)})"
         )
-    raise_for_status(st, f"{kind}(rule={show(rule)}, order={show(order)}, "
-                         f"step={show(step)})", samples=("samples", arr))
+    raise_for_status(
+        st, f"{kind}(rule={show(rule)}, order={show(order)}, step={show(step)})", samples=("samples", arr)
+    )
     return _unrows(out, moved_shape, ax)
 
 
-def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
-             rule: str = "rectangle", axis: int = -1, engine: str = "auto", *,
-             t: Optional[ArrayLike] = None, tol: Optional[float] = None,
-             workers: Optional[int] = None) -> FloatArray:
+def integral(
+    samples: ArrayLike,
+    order: float,
+    step: Optional[float] = None,
+    rule: str = "rectangle",
+    axis: int = -1,
+    engine: str = "auto",
+    *,
+    t: Optional[ArrayLike] = None,
+    tol: Optional[float] = None,
+    workers: Optional[int] = None,
+) -> FloatArray:
     """Riemann-Liouville fractional integral of order ``order`` of a sampled
     signal, from t = 0.
 
@@ -589,10 +632,18 @@ def integral(samples: ArrayLike, order: float, step: Optional[float] = None,
     return _apply("integral", samples, order, step, rule, axis, engine, t, tol, workers)
 
 
-def derivative(samples: ArrayLike, order: float, step: Optional[float] = None,
-               rule: str = "grunwald", axis: int = -1, engine: str = "auto", *,
-               t: Optional[ArrayLike] = None, tol: Optional[float] = None,
-             workers: Optional[int] = None) -> FloatArray:
+def derivative(
+    samples: ArrayLike,
+    order: float,
+    step: Optional[float] = None,
+    rule: str = "grunwald",
+    axis: int = -1,
+    engine: str = "auto",
+    *,
+    t: Optional[ArrayLike] = None,
+    tol: Optional[float] = None,
+    workers: Optional[int] = None,
+) -> FloatArray:
     """Fractional derivative of a sampled signal, from t = 0.
 
     Parameters
@@ -779,15 +830,15 @@ def get_lib_dir() -> str:
     installed = os.path.join(here, "lib")
     checkout = os.path.join(os.path.dirname(here), "build", "pyfracconv-lib")
     for d in (installed, checkout):
-        if os.path.isfile(os.path.join(d, name)) and os.path.isfile(
-                os.path.join(d, "libfracconv.a")):
+        if os.path.isfile(os.path.join(d, name)) and os.path.isfile(os.path.join(d, "libfracconv.a")):
             return d
     raise FileNotFoundError(
         f"pyfracconv: no C library ({name}, libfracconv.a) in {installed}"
         + (f" or {checkout}" if os.path.isdir(os.path.dirname(checkout)) else "")
         + ": the package ships it on Linux; reinstall (pip install --force-reinstall "
         "pyfracconv, or pip install -e . in a checkout), or build it with make "
-        "from the source checkout")
+        "from the source checkout"
+    )
 
 
 def c_flags(cflags: bool = True, libs: bool = True, static: bool = False) -> list[str]:
@@ -808,6 +859,5 @@ def c_flags(cflags: bool = True, libs: bool = True, static: bool = False) -> lis
         if static:
             out += [os.path.join(d, "libfracconv.a"), "-lm", "-pthread"]
         else:
-            out += [os.path.join(d, "libfracconv.so." + _version_major()),
-                    "-Wl,-rpath," + d, "-lm"]
+            out += [os.path.join(d, "libfracconv.so." + _version_major()), "-Wl,-rpath," + d, "-lm"]
     return out

@@ -167,8 +167,9 @@ class SolverError(FracconvError, RuntimeError):
     ``time`` and ``partial`` (a :class:`pyfracconv.SolveResult` with the
     solution up to the last good step)."""
 
-    def __init__(self, message: str, step: Optional[int] = None,
-                 time: Optional[float] = None, partial: object = None) -> None:
+    def __init__(
+        self, message: str, step: Optional[int] = None, time: Optional[float] = None, partial: object = None
+    ) -> None:
         super().__init__(message)
         self.step = step
         self.time = time
@@ -248,8 +249,7 @@ class FileError(FracconvError, OSError):
     pyfracconv.Stream.save_file, pyfracconv.Stream.load_file
     """
 
-    def __init__(self, message: str, errno: Optional[int] = None,
-                 filename: Optional[str] = None) -> None:
+    def __init__(self, message: str, errno: Optional[int] = None, filename: Optional[str] = None) -> None:
         super().__init__(message)
         self.errno = errno
         self.filename = filename
@@ -289,14 +289,13 @@ STATUS_CLASSES: Dict[str, Type[FracconvError]] = {
 # The same table keyed by the numbers of the compiled library. A name the
 # library does not define is left out here (the test names it).
 _CLASSES: Dict[int, Type[FracconvError]] = {
-    int(getattr(lib, name)): cls
-    for name, cls in STATUS_CLASSES.items()
-    if hasattr(lib, name)
+    int(getattr(lib, name)): cls for name, cls in STATUS_CLASSES.items() if hasattr(lib, name)
 }
 _NONFINITE = int(lib.FC_ERR_NONFINITE)
 
 
 # ---------------------------------------------------------------- messages
+
 
 def show(value: object) -> str:
     """``value`` as messages show it: plain numbers (``nan``, ``-0.5``,
@@ -340,14 +339,13 @@ def nonfinite_error(name: str, values: object, after: str = "") -> SampleError:
     where = ", ".join(str(j) for j in idx)
     first = str(idx[0]) if len(idx) == 1 else str(idx)
     return SampleError(
-        f"{name}[{where}]={show(arr.ravel()[i])}: sample is NaN or infinite "
-        f"(first bad index {first}){tail}"
+        f"{name}[{where}]={show(arr.ravel()[i])}: sample is NaN or infinite (first bad index {first}){tail}"
     )
 
 
-def status_error(status: int, context: str = "", *,
-                 samples: Optional[Tuple[str, object]] = None,
-                 after: str = "") -> FracconvError:
+def status_error(
+    status: int, context: str = "", *, samples: Optional[Tuple[str, object]] = None, after: str = ""
+) -> FracconvError:
     """The exception for the nonzero C status code ``status``.
 
     ``context`` is prepended to the C library's message; callers put the
@@ -365,9 +363,9 @@ def status_error(status: int, context: str = "", *,
     return cls(msg)
 
 
-def raise_for_status(status: int, context: str = "", *,
-                     samples: Optional[Tuple[str, object]] = None,
-                     after: str = "") -> None:
+def raise_for_status(
+    status: int, context: str = "", *, samples: Optional[Tuple[str, object]] = None, after: str = ""
+) -> None:
     """Raise :func:`status_error` for a nonzero C status code; return for
     ``FC_OK`` (0)."""
     if status != 0:

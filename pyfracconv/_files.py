@@ -19,13 +19,19 @@ import numpy as np
 from ._errors import ArgumentError, FileError, InputTypeError, StateError, raise_for_status, show
 from ._fracconv import ffi, lib
 
-__all__ = ["DEFAULT_MAX_SIZE", "check_path", "check_write_path", "check_max_size", "write_file",
-           "read_file", "state_error"]
+__all__ = [
+    "DEFAULT_MAX_SIZE",
+    "check_path",
+    "check_write_path",
+    "check_max_size",
+    "write_file",
+    "read_file",
+    "state_error",
+]
 
 #: Default bound of the bytes a ``load_file`` reads (1 GiB): a longer file
 #: is refused before it is all read. Pass ``max_size`` for larger states.
 DEFAULT_MAX_SIZE = 2**30
-
 
 
 def check_path(name: str, path: object) -> bytes:
@@ -34,8 +40,7 @@ def check_path(name: str, path: object) -> bytes:
         p = os.fspath(path)  # type: ignore[call-overload]
     except TypeError:
         raise InputTypeError(
-            f"{name}={show(path)}: expected a path (str, bytes or os.PathLike), "
-            f"got {type(path).__name__}"
+            f"{name}={show(path)}: expected a path (str, bytes or os.PathLike), got {type(path).__name__}"
         ) from None
     b = os.fsencode(p)
     if not b:
@@ -56,9 +61,7 @@ def check_write_path(path: object) -> bytes:
 def check_max_size(max_size: object) -> int:
     """The bound of a load_file: an integer in [0, 2**63 - 1]."""
     if isinstance(max_size, (bool, np.bool_)) or not isinstance(max_size, numbers.Integral):
-        raise InputTypeError(
-            f"max_size={show(max_size)}: expected an integer, got {type(max_size).__name__}"
-        )
+        raise InputTypeError(f"max_size={show(max_size)}: expected an integer, got {type(max_size).__name__}")
     n = int(max_size)
     if not 0 <= n < 2**63:
         raise ArgumentError(f"max_size={show(max_size)}: must be in [0, 2**63 - 1]")
@@ -68,8 +71,7 @@ def check_max_size(max_size: object) -> int:
 def _io_error(what: str, path: bytes, err: int, doing: str, after: str) -> FileError:
     name = os.fsdecode(path)
     reason = os.strerror(err) if err else "unknown system error"
-    return FileError(f"{what}(path={name!r}): {doing}: [Errno {err}] {reason}; {after}",
-                     err or None, name)
+    return FileError(f"{what}(path={name!r}): {doing}: [Errno {err}] {reason}; {after}", err or None, name)
 
 
 def write_file(what: str, path: bytes, data: bytes, obj: str) -> None:
@@ -79,8 +81,13 @@ def write_file(what: str, path: bytes, data: bytes, obj: str) -> None:
     if st == 0:
         return
     if st == lib.FC_ERR_IO:
-        raise _io_error(what, path, ffi.errno, "could not write the checkpoint file",
-                        f"the file at that path, if any, is unchanged and so is {obj}")
+        raise _io_error(
+            what,
+            path,
+            ffi.errno,
+            "could not write the checkpoint file",
+            f"the file at that path, if any, is unchanged and so is {obj}",
+        )
     raise_for_status(st, f"{what}(path={os.fsdecode(path)!r})")
 
 
@@ -92,8 +99,7 @@ def read_file(what: str, path: bytes, max_size: int) -> bytes:
     st = lib.fc_file_read(path, max_size, pp, np_)
     if st == lib.FC_ERR_IO:
         err = ffi.errno
-        doing = ("not a regular file" if err == errno_mod.EINVAL
-                 else "could not read the checkpoint file")
+        doing = "not a regular file" if err == errno_mod.EINVAL else "could not read the checkpoint file"
         raise _io_error(what, path, err, doing, "nothing was loaded")
     if st == lib.FC_ERR_SIZE:
         raise StateError(

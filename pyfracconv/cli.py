@@ -119,6 +119,7 @@ class CliError(Exception):
 
 # ---------------------------------------------------------------- numbers
 
+
 def _to_float(text):
     """float(text) for CSV fields and option values.
 
@@ -140,9 +141,10 @@ def _real_option(name, text, checker, *extra):
     try:
         return checker(value, *extra)
     except FracconvError as exc:
-        hint = {"order": "a positive number such as 0.5",
-                "step": "the sampling period in seconds, a positive number "
-                        "such as 0.001"}.get(name, "a number")
+        hint = {
+            "order": "a positive number such as 0.5",
+            "step": "the sampling period in seconds, a positive number such as 0.001",
+        }.get(name, "a number")
         what = "not a number" if isinstance(value, str) else "out of range"
         raise CliError(f"--{name} {text}: {what}; expected {hint} ({exc})") from None
 
@@ -153,11 +155,11 @@ def _is_blank(row):
 
 # ---------------------------------------------------------------- reading
 
+
 def _open_text(path, label):
     if path == "-":
         # Re-wrap stdin so that a BOM is dropped and newlines are left to csv.
-        return open(sys.stdin.fileno(), "r", encoding="utf-8-sig", newline="",
-                    closefd=False)
+        return open(sys.stdin.fileno(), "r", encoding="utf-8-sig", newline="", closefd=False)
     try:
         return open(path, "r", encoding="utf-8-sig", newline="")
     except OSError as exc:
@@ -175,9 +177,7 @@ def _select(label, header, columns):
     for name in names:
         hits = [j for j, h in enumerate(stripped) if h == name]
         if not hits:
-            raise CliError(
-                f"{label}: no column {name!r}; available columns: {available}"
-            )
+            raise CliError(f"{label}: no column {name!r}; available columns: {available}")
         if len(hits) > 1:
             raise CliError(
                 f"{label}: column name {name!r} appears {len(hits)} times in the "
@@ -210,10 +210,7 @@ def read_csv(path, columns=None, delimiter=",", time_index=None):
         except csv.Error as exc:
             raise CliError(f"{label} line {reader.line_num}: {exc}") from None
         except UnicodeDecodeError as exc:
-            raise CliError(
-                f"{label}: not readable as UTF-8 text ({exc.reason}); is it a "
-                f"CSV file?"
-            ) from None
+            raise CliError(f"{label}: not readable as UTF-8 text ({exc.reason}); is it a CSV file?") from None
         except OSError as exc:
             raise CliError(f"cannot read input {label!r}: {exc.strerror or exc}") from None
     finally:
@@ -225,8 +222,7 @@ def _delimiter_hint(text, delimiter):
     for d, name in ((";", "';'"), ("\t", "tab"), (",", "','"), (" ", "space")):
         if d != delimiter and d in text.strip():
             arg = "$'\\t'" if d == "\t" else repr(d)
-            return (f" (it contains a {name}: if fields are separated by {name}, "
-                    f"pass --delimiter {arg})")
+            return f" (it contains a {name}: if fields are separated by {name}, pass --delimiter {arg})"
     return ""
 
 
@@ -277,10 +273,7 @@ def _parse_csv(reader, label, columns, delimiter=",", time_index=None):
         if _is_blank(row):
             return False
         if len(row) != ncol:
-            raise CliError(
-                f"{label} line {line}: {len(row)} field(s), but {shape_from} "
-                f"has {ncol}"
-            )
+            raise CliError(f"{label} line {line}: {len(row)} field(s), but {shape_from} has {ncol}")
         for j in idx:
             text = row[j]
             try:
@@ -294,7 +287,8 @@ def _parse_csv(reader, label, columns, delimiter=",", time_index=None):
                 if j == time_index:
                     raise CliError(
                         f"--time-column {j + 1}: {label} line {line}: time {text!r} "
-                        "is not finite (the times must be finite)")
+                        "is not finite (the times must be finite)"
+                    )
                 raise CliError(
                     f"{label} line {line}, column {colname[j]}: {text!r} is not "
                     f"finite (NaN and infinite samples cannot be processed)"
@@ -308,8 +302,7 @@ def _parse_csv(reader, label, columns, delimiter=",", time_index=None):
                 vals = [float(row[j]) for j in idx]
             except ValueError:
                 vals = None
-            if (vals is not None and math.isfinite(sum(vals))
-                    and "_" not in "".join([row[j] for j in idx])):
+            if vals is not None and math.isfinite(sum(vals)) and "_" not in "".join([row[j] for j in idx]):
                 values.extend(vals)
                 return True
         if not diagnose(line, row):
@@ -347,8 +340,10 @@ def read_npy(path, columns=None, time_index=None):
         where = tuple(int(i) for i in bad[0])
         text = ", ".join(str(i) for i in where)
         if data.ndim == 2 and where[1] == time_index:
-            raise CliError(f"--time-column {time_index + 1}: {label}: time [{text}] is "
-                           f"{show(data[where])}, not finite (the times must be finite)")
+            raise CliError(
+                f"--time-column {time_index + 1}: {label}: time [{text}] is "
+                f"{show(data[where])}, not finite (the times must be finite)"
+            )
         raise CliError(
             f"{label}: element [{text}] is {show(data[where])}, not finite (NaN and "
             f"infinite samples cannot be processed)"
@@ -376,13 +371,14 @@ def _output_kind(path):
 
 # ---------------------------------------------------------------- writing
 
+
 def _write_csv(fh, result, names):
     if names is not None:
         csv.writer(fh, lineterminator="\n").writerow(names)
     flat = result.reshape(result.shape[0], -1)
     chunk = 8192
     for start in range(0, flat.shape[0], chunk):
-        rows = flat[start:start + chunk].tolist()  # Python floats: repr is exact
+        rows = flat[start : start + chunk].tolist()  # Python floats: repr is exact
         fh.write("\n".join([",".join(map(repr, row)) for row in rows]))
         fh.write("\n")
 
@@ -398,8 +394,9 @@ def check_not_input(inp, out):
         except OSError:
             same = False
     if same:
-        raise CliError(f"output {out!r} is the input file; refusing to overwrite "
-                       "the input (choose another output name)")
+        raise CliError(
+            f"output {out!r} is the input file; refusing to overwrite the input (choose another output name)"
+        )
 
 
 def write_output(path, result, names):
@@ -435,6 +432,7 @@ def write_output(path, result, names):
 
 # ---------------------------------------------------------------- commands
 
+
 def _live_loop(args, ncols_wanted, process, header_out):
     """Read standard input line by line; for each data line write one output
     line at once, flushed. ``process(values) -> list of floats``.
@@ -466,8 +464,7 @@ def _live_loop(args, ncols_wanted, process, header_out):
                 names = [f.strip() for f in fields]
                 if tcol is not None:
                     if not 1 <= tcol <= len(names):
-                        raise CliError(f"--time-column {tcol}: the input has "
-                                       f"{len(names)} columns")
+                        raise CliError(f"--time-column {tcol}: the input has {len(names)} columns")
                     tname = names.pop(tcol - 1)
                     out.write(delim.join([tname] + header_out(names)) + "\n")
                 else:
@@ -476,37 +473,39 @@ def _live_loop(args, ncols_wanted, process, header_out):
                 first = False
                 continue
             bad = next(f for f in fields if not _is_number(f))
-            raise CliError(f"<stdin> line {nline}: {bad!r} is not a number"
-                           f"{_delimiter_hint(bad, delim)}")
+            raise CliError(f"<stdin> line {nline}: {bad!r} is not a number{_delimiter_hint(bad, delim)}")
         first = False
         if not all(math.isfinite(v) for v in vals):
             raise CliError(f"<stdin> line {nline}: NaN or infinite value")
         t = None
         if tcol is not None:
             if not 1 <= tcol <= len(vals):
-                raise CliError(f"--time-column {tcol}: line {nline} has "
-                               f"{len(vals)} columns")
+                raise CliError(f"--time-column {tcol}: line {nline} has {len(vals)} columns")
             t = vals.pop(tcol - 1)
             if args.time_tol is not None and prev_t is not None:
                 dt = t - prev_t
                 if abs(dt - step) > args.time_tol * step:
                     bad_dt += 1
                     if bad_dt <= 5:
-                        print(f"{PROG}: warning: line {nline}: time step {dt!r} "
-                              f"differs from --step {step!r} by more than "
-                              f"--time-tol {args.time_tol!r} of it; outputs assume "
-                              "uniform sampling", file=sys.stderr, flush=True)
+                        print(
+                            f"{PROG}: warning: line {nline}: time step {dt!r} "
+                            f"differs from --step {step!r} by more than "
+                            f"--time-tol {args.time_tol!r} of it; outputs assume "
+                            "uniform sampling",
+                            file=sys.stderr,
+                            flush=True,
+                        )
             prev_t = t
         if ncols_wanted is not None and len(vals) != ncols_wanted:
-            raise CliError(f"<stdin> line {nline}: {len(vals)} data columns, "
-                           f"expected {ncols_wanted}")
+            raise CliError(f"<stdin> line {nline}: {len(vals)} data columns, expected {ncols_wanted}")
         res = process(vals)
         row = ([repr(t)] if t is not None else []) + [repr(float(v)) for v in res]
         out.write(delim.join(row) + "\n")
         out.flush()
     if bad_dt:
-        print(f"{PROG}: warning: {bad_dt} time step(s) outside --time-tol in all",
-              file=sys.stderr, flush=True)
+        print(
+            f"{PROG}: warning: {bad_dt} time step(s) outside --time-tol in all", file=sys.stderr, flush=True
+        )
     return 0
 
 
@@ -529,20 +528,23 @@ def _run_operator(args):
     grid = args.time_column is not None and not args.live
     if grid:
         if args.step is not None:
-            raise CliError(f"--step {args.step} with --time-column {args.time_column}: "
-                           "the column's times are the grid; give one of the two "
-                           "(--step with --time-column only with --live)")
+            raise CliError(
+                f"--step {args.step} with --time-column {args.time_column}: "
+                "the column's times are the grid; give one of the two "
+                "(--step with --time-column only with --live)"
+            )
         step = None
         if args.time_column < 1:
-            raise CliError(f"--time-column {args.time_column}: must be >= 1 (columns "
-                           "are counted from 1)")
+            raise CliError(f"--time-column {args.time_column}: must be >= 1 (columns are counted from 1)")
         ttol = TIME_TOL if args.time_tol is None else args.time_tol
         if not (math.isfinite(ttol) and 0.0 <= ttol < 0.5):
             raise CliError(f"--time-tol {args.time_tol!r}: must be in [0, 0.5)")
     else:
         if args.step is None:
-            raise CliError("--step: required (the sampling step), or --time-column N "
-                           "without --live to take the times from column N")
+            raise CliError(
+                "--step: required (the sampling step), or --time-column N "
+                "without --live to take the times from column N"
+            )
         step = _real_option("step", args.step, check_step)
     _output_kind(args.output)
     check_not_input(args.input, args.output)
@@ -551,8 +553,10 @@ def _run_operator(args):
         try:
             count = int(args.workers)
         except ValueError:
-            raise CliError(f"--workers {args.workers}: not an integer; expected a "
-                           "thread count such as 2, or -1 for every CPU") from None
+            raise CliError(
+                f"--workers {args.workers}: not an integer; expected a "
+                "thread count such as 2, or -1 for every CPU"
+            ) from None
         try:
             workers = check_workers(count)
         except FracconvError as exc:
@@ -562,15 +566,16 @@ def _run_operator(args):
 
     if args.live:
         if workers is not None:
-            raise CliError("--workers is not available with --live (one line "
-                           "at a time)")
+            raise CliError("--workers is not available with --live (one line at a time)")
         if args.input != "-" or args.output != "-":
-            raise CliError("--live reads standard input and writes standard "
-                           "output: use INPUT '-' and -o -")
+            raise CliError("--live reads standard input and writes standard output: use INPUT '-' and -o -")
         if args.columns is not None:
-            raise CliError("--columns is not available with --live (every data "
-                           "column is processed; --time-column excepted)")
+            raise CliError(
+                "--columns is not available with --live (every data "
+                "column is processed; --time-column excepted)"
+            )
         from .stream import Stream
+
         make = Stream.integral if kind == "integral" else Stream.derivative
         state = {}
         args.step_value = step
@@ -581,9 +586,9 @@ def _run_operator(args):
                 s = state["s"] = make(order, step, rule=rule, channels=len(vals))
                 state["n"] = len(vals)
             elif len(vals) != state["n"]:
-                raise CliError(f"a line has {len(vals)} data columns, the first "
-                               f"had {state['n']}")
+                raise CliError(f"a line has {len(vals)} data columns, the first had {state['n']}")
             return s.push(np.array(vals))
+
         return _live_loop(args, None, process, lambda names: names)
 
     reader = read_npy if _is_npy(args.input) else read_csv
@@ -633,12 +638,15 @@ def _run_operator_on_times(args, kind, rule, order, ttol, workers=None):
             if header is None:
                 raise CliError(
                     f"--columns: {label} has no header row (its first row is all "
-                    f"numbers), so its columns have no names to select by")
+                    f"numbers), so its columns have no names to select by"
+                )
             keep = _select(label, header, args.columns)
             if col - 1 in keep:
-                raise CliError(f"--columns {args.columns}: names the time column "
-                               f"({opt}, {header[col - 1].strip()!r}), which is the "
-                               "grid, not a signal")
+                raise CliError(
+                    f"--columns {args.columns}: names the time column "
+                    f"({opt}, {header[col - 1].strip()!r}), which is the "
+                    "grid, not a signal"
+                )
         else:
             keep = [j for j in range(data.shape[1]) if j != col - 1]
         names = None if header is None else [header[j] for j in keep]
@@ -648,9 +656,11 @@ def _run_operator_on_times(args, kind, rule, order, ttol, workers=None):
     bad = np.flatnonzero(~(dt > 0.0))
     if bad.size:
         i = int(bad[0])
-        raise CliError(f"{opt}: the times must be strictly increasing: data row {i + 2} "
-                       f"has time {float(times[i + 1])!r} after {float(times[i])!r} in "
-                       f"data row {i + 1} (rows counted from 1, header excluded)")
+        raise CliError(
+            f"{opt}: the times must be strictly increasing: data row {i + 2} "
+            f"has time {float(times[i + 1])!r} after {float(times[i])!r} in "
+            f"data row {i + 1} (rows counted from 1, header excluded)"
+        )
     x = np.ascontiguousarray(data[:, keep])
     if x.shape[1] == 0:
         raise CliError(f"{opt}: the input has no column besides the times")
@@ -664,7 +674,8 @@ def _run_operator_on_times(args, kind, rule, order, ttol, workers=None):
                 f"--rule grunwald with {opt}: the times are not uniform (within "
                 f"--time-tol {ttol:g}) and the Grunwald-Letnikov rule has no "
                 "standard form on a non-uniform grid; use --rule l1 (Caputo, "
-                "0 < A < 1)")
+                "0 < A < 1)"
+            )
         result = op(x, order, rule=rule, axis=0, t=times, workers=workers)
     out = np.column_stack([times, result])
     write_output(args.output, out, None if names is None else [tname] + names)
@@ -681,15 +692,19 @@ def _controller_from_args(args):
             return _to_float(text)
         except ValueError:
             raise CliError(f"--{name} {text}: not a number") from None
-    kw = dict(integral_order=num("integral-order", args.integral_order),
-              derivative_order=num("derivative-order", args.derivative_order),
-              step=step,
-              output_limits=(num("out-min", args.out_min), num("out-max", args.out_max)),
-              rate_limit=num("rate-limit", args.rate_limit),
-              setpoint_weight=num("setpoint-weight", args.setpoint_weight),
-              derivative_weight=num("derivative-weight", args.derivative_weight),
-              derivative_filter=num("derivative-filter", args.derivative_filter),
-              anti_windup=not args.no_anti_windup, memory=args.memory)
+
+    kw = dict(
+        integral_order=num("integral-order", args.integral_order),
+        derivative_order=num("derivative-order", args.derivative_order),
+        step=step,
+        output_limits=(num("out-min", args.out_min), num("out-max", args.out_max)),
+        rate_limit=num("rate-limit", args.rate_limit),
+        setpoint_weight=num("setpoint-weight", args.setpoint_weight),
+        derivative_weight=num("derivative-weight", args.derivative_weight),
+        derivative_filter=num("derivative-filter", args.derivative_filter),
+        anti_windup=not args.no_anti_windup,
+        memory=args.memory,
+    )
     if args.integral_rule:
         kw["integral_rule"] = args.integral_rule
     kw["derivative_rule"] = args.derivative_rule
@@ -697,8 +712,7 @@ def _controller_from_args(args):
         if getattr(args, name, None) is not None:
             kw[name] = num(name, getattr(args, name))
     try:
-        return Controller(num("kp", args.kp), num("ki", args.ki), num("kd", args.kd),
-                          **kw), step
+        return Controller(num("kp", args.kp), num("ki", args.ki), num("kd", args.kd), **kw), step
     except FracconvError as exc:
         raise CliError(f"controller settings: {exc}") from None
 
@@ -709,31 +723,37 @@ def _run_control(args):
     check_not_input(args.input, args.output)
     if args.live:
         if args.input != "-" or args.output != "-":
-            raise CliError("--live reads standard input and writes standard "
-                           "output: use INPUT '-' and -o -")
+            raise CliError("--live reads standard input and writes standard output: use INPUT '-' and -o -")
         if args.columns is not None:
-            raise CliError("--columns is not available with --live (the data "
-                           "columns are setpoint, measurement; --time-column "
-                           "excepted)")
+            raise CliError(
+                "--columns is not available with --live (the data "
+                "columns are setpoint, measurement; --time-column "
+                "excepted)"
+            )
         args.step_value = step
         upd = ctl.update
 
         def process(vals):
             return [upd(vals[0], vals[1])]
+
         return _live_loop(args, 2, process, lambda names: ["output"])
     if _is_npy(args.input):
         data, names = read_npy(args.input)
     else:
         data, names = read_csv(args.input, args.columns, args.delimiter)
     if data.ndim != 2 or data.shape[1] != 2:
-        raise CliError(f"{args.input}: expected two columns, setpoint and "
-                       "measurement (or pick them with --columns SP,PV)")
+        raise CliError(
+            f"{args.input}: expected two columns, setpoint and "
+            "measurement (or pick them with --columns SP,PV)"
+        )
     u = ctl.update_block(data[:, 0], data[:, 1])
     write_output(args.output, u.reshape(-1, 1), ["output"] if names else None)
     if ctl.past_horizon:
-        print(f"{PROG}: warning: the controller ran past the horizon of its "
-              "compressed memory (it kept running; tolerance no longer promised)",
-              file=sys.stderr)
+        print(
+            f"{PROG}: warning: the controller ran past the horizon of its "
+            "compressed memory (it kept running; tolerance no longer promised)",
+            file=sys.stderr,
+        )
     return 0
 
 
@@ -746,8 +766,9 @@ def _run_chunked(args):
     step = _real_option("step", args.step, check_step)
     for name, path in (("INPUT", args.input), ("-o", args.output)):
         if not _is_npy(path):
-            raise CliError(f"{name} {path!r}: chunked reads and writes .npy files "
-                           "only (a name ending in .npy)")
+            raise CliError(
+                f"{name} {path!r}: chunked reads and writes .npy files only (a name ending in .npy)"
+            )
     check_not_input(args.input, args.output)
 
     def num(name, text):
@@ -757,20 +778,30 @@ def _run_chunked(args):
             return _to_float(text)
         except ValueError:
             raise CliError(f"--{name} {text}: not a number") from None
+
     tol = num("tol", args.tol)
     horizon = num("horizon", args.horizon)
     kw = {} if tol is None else {"tol": tol}
     try:
-        apply_npy(args.input, args.output, kind, order, step, rule=rule,
-                  mode=args.mode, horizon=horizon, chunk=args.chunk,
-                  progress=args.progress, **kw)
+        apply_npy(
+            args.input,
+            args.output,
+            kind,
+            order,
+            step,
+            rule=rule,
+            mode=args.mode,
+            horizon=horizon,
+            chunk=args.chunk,
+            progress=args.progress,
+            **kw,
+        )
     except ImportError as exc:  # --progress without tqdm
         raise CliError(str(exc)) from None
     except OSError as exc:
         text = str(exc.strerror or exc)
         if "out_path=" not in text:
-            text = (f"cannot write output {args.output!r}: {text}; no output was "
-                    "written")
+            text = f"cannot write output {args.output!r}: {text}; no output was written"
         raise CliError(text) from None
     return 0
 
@@ -788,8 +819,7 @@ def _run_demo(args):
 def _run_flags(args):
     both = not (args.cflags or args.libs)
     try:
-        words = c_flags(cflags=args.cflags or both, libs=args.libs or both,
-                        static=args.static)
+        words = c_flags(cflags=args.cflags or both, libs=args.libs or both, static=args.static)
     except FileNotFoundError as exc:
         raise CliError(str(exc)) from None
     print(" ".join(words))
@@ -811,15 +841,18 @@ def _run_export(args):
     tol, horizon = number(args.tol), number(args.horizon)
     if not os.path.isdir(args.output):
         raise CliError(f"-o {args.output}: not an existing directory")
-    op = export_c(args.rule, order, step, tol=tol, horizon=horizon,
-                  precision=args.precision, prefix=args.prefix)
+    op = export_c(
+        args.rule, order, step, tol=tol, horizon=horizon, precision=args.precision, prefix=args.prefix
+    )
     paths = op.write(args.output)
     info = op.info
-    err = (f"single-precision error measured {info['measured']:.3g}, stated bound "
-           f"{info['stated']:.3g} of each output's error scale"
-           if info["stated"] is not None else "double precision")
-    print(f"{PROG}: wrote {', '.join(paths)} ({info['terms']} exponential terms; {err})",
-          file=sys.stderr)
+    err = (
+        f"single-precision error measured {info['measured']:.3g}, stated bound "
+        f"{info['stated']:.3g} of each output's error scale"
+        if info["stated"] is not None
+        else "double precision"
+    )
+    print(f"{PROG}: wrote {', '.join(paths)} ({info['terms']} exponential terms; {err})", file=sys.stderr)
     return 0
 
 
@@ -835,13 +868,19 @@ def _run_export_controller(args):
         raise CliError(f"export-controller: {exc}") from None
     paths = ex.write(args.output)
     info = ex.info
-    print(f"{PROG}: wrote {', '.join(paths)} ({args.precision} precision; error against "
-          f"the library's controller measured {info['measured']:.3g}, stated bound "
-          f"{info['stated']:.3g} of the action scale)", file=sys.stderr)
-    print(f"{PROG}: CAUTION - the exported controller moves machinery: validate it on "
-          "the plant, keep actuator and rate limits in the hardware and an independent "
-          "safe stop; local codes and licensed practice take precedence (see "
-          f"{args.prefix}.h)", file=sys.stderr)
+    print(
+        f"{PROG}: wrote {', '.join(paths)} ({args.precision} precision; error against "
+        f"the library's controller measured {info['measured']:.3g}, stated bound "
+        f"{info['stated']:.3g} of the action scale)",
+        file=sys.stderr,
+    )
+    print(
+        f"{PROG}: CAUTION - the exported controller moves machinery: validate it on "
+        "the plant, keep actuator and rate limits in the hardware and an independent "
+        "safe stop; local codes and licensed practice take precedence (see "
+        f"{args.prefix}.h)",
+        file=sys.stderr,
+    )
     return 0
 
 
@@ -858,10 +897,13 @@ def _order_text(rule):
 def _add_order_step(p, order_help, step_required=True):
     """--order and --step, shared by the operator commands and chunked."""
     p.add_argument("--order", metavar="A", required=True, help=order_help)
-    p.add_argument("--step", metavar="H", required=step_required,
-                   help="sampling step h > 0 (t_k = k*h)" + (
-                       "" if step_required else
-                       "; required unless --time-column gives the times (without --live)"))
+    p.add_argument(
+        "--step",
+        metavar="H",
+        required=step_required,
+        help="sampling step h > 0 (t_k = k*h)"
+        + ("" if step_required else "; required unless --time-column gives the times (without --live)"),
+    )
 
 
 def _add_controller_options(c):
@@ -874,15 +916,15 @@ def _add_controller_options(c):
     c.add_argument("--step", metavar="H", required=True, help="sampling period h > 0")
     c.add_argument("--out-min", default="-inf", help="lower output limit")
     c.add_argument("--out-max", default="inf", help="upper output limit")
-    c.add_argument("--rate-limit", default="inf",
-                   help="largest output change per unit time (default none)")
+    c.add_argument("--rate-limit", default="inf", help="largest output change per unit time (default none)")
     c.add_argument("--setpoint-weight", default="1", help="b (default 1)")
-    c.add_argument("--derivative-weight", default="1",
-                   help="c (default 1; 0: derivative on the measurement)")
-    c.add_argument("--derivative-filter", default="0",
-                   help="filter time constant Tf of the derivative action (default 0: none)")
-    c.add_argument("--no-anti-windup", action="store_true",
-                   help="turn conditional integration off")
+    c.add_argument("--derivative-weight", default="1", help="c (default 1; 0: derivative on the measurement)")
+    c.add_argument(
+        "--derivative-filter",
+        default="0",
+        help="filter time constant Tf of the derivative action (default 0: none)",
+    )
+    c.add_argument("--no-anti-windup", action="store_true", help="turn conditional integration off")
     c.add_argument("--integral-rule", choices=INTEGRAL_RULES)
     c.add_argument("--derivative-rule", choices=DERIVATIVE_RULES, default="grunwald")
     c.add_argument("--memory", choices=("compressed", "exact"), default="compressed")
@@ -896,57 +938,93 @@ def _add_operator(sub, name, rules, default, what, description):
         epilog=_INPUT_HELP + "\n" + CAUTION,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    p.add_argument("input", metavar="INPUT",
-                   help="CSV or .npy file of signals ('-': CSV on standard input)")
-    p.add_argument("-o", "--output", metavar="OUTPUT", required=True,
-                   help="output file, .csv or .npy ('-': CSV on standard output)")
-    _add_order_step(p, "order of the operator ("
-                    + "; ".join(f"{r}: {_order_text(r)}" for r in rules) + ")",
-                    step_required=False)
-    p.add_argument("--rule", metavar="RULE", default=default,
-                   help=f"{' or '.join(rules)} (default {default})")
-    p.add_argument("--columns", metavar="NAME,NAME...",
-                   help="process only these CSV columns, by header name, in this order")
-    p.add_argument("--workers", metavar="N",
-                   help="threads (SciPy's convention: 1 the default, -1 every CPU, "
-                        "-2 all but one); the output is the same bit for bit for "
-                        "every N; not with --live")
+    p.add_argument("input", metavar="INPUT", help="CSV or .npy file of signals ('-': CSV on standard input)")
+    p.add_argument(
+        "-o",
+        "--output",
+        metavar="OUTPUT",
+        required=True,
+        help="output file, .csv or .npy ('-': CSV on standard output)",
+    )
+    _add_order_step(
+        p,
+        "order of the operator (" + "; ".join(f"{r}: {_order_text(r)}" for r in rules) + ")",
+        step_required=False,
+    )
+    p.add_argument(
+        "--rule", metavar="RULE", default=default, help=f"{' or '.join(rules)} (default {default})"
+    )
+    p.add_argument(
+        "--columns",
+        metavar="NAME,NAME...",
+        help="process only these CSV columns, by header name, in this order",
+    )
+    p.add_argument(
+        "--workers",
+        metavar="N",
+        help="threads (SciPy's convention: 1 the default, -1 every CPU, "
+        "-2 all but one); the output is the same bit for bit for "
+        "every N; not with --live",
+    )
     _add_io_options(p, grid_times=True)
     p.set_defaults(func=_run_operator)
     return p
 
 
 def _add_io_options(p, grid_times=False):
-    p.add_argument("--delimiter", metavar="CHAR", default=",",
-                   help="field separator of the CSV input and output (default ','); "
-                        "lines starting with '#' are comments and are skipped")
-    p.add_argument("--live", action="store_true",
-                   help="read standard input line by line and write each output "
-                        "line as soon as its input line has arrived, flushed "
-                        "(INPUT and OUTPUT must be '-'); for piping a data logger")
+    p.add_argument(
+        "--delimiter",
+        metavar="CHAR",
+        default=",",
+        help="field separator of the CSV input and output (default ','); "
+        "lines starting with '#' are comments and are skipped",
+    )
+    p.add_argument(
+        "--live",
+        action="store_true",
+        help="read standard input line by line and write each output "
+        "line as soon as its input line has arrived, flushed "
+        "(INPUT and OUTPUT must be '-'); for piping a data logger",
+    )
     if not grid_times:
-        p.add_argument("--time-column", metavar="N", type=int,
-                       help="--live: column N (1-based) holds the time; it is not "
-                            "processed but copied to the output's first column")
-        p.add_argument("--time-tol", metavar="REL", type=float,
-                       help="--live with --time-column: check that each time step "
-                            "equals --step within REL*step; report on stderr when not")
+        p.add_argument(
+            "--time-column",
+            metavar="N",
+            type=int,
+            help="--live: column N (1-based) holds the time; it is not "
+            "processed but copied to the output's first column",
+        )
+        p.add_argument(
+            "--time-tol",
+            metavar="REL",
+            type=float,
+            help="--live with --time-column: check that each time step "
+            "equals --step within REL*step; report on stderr when not",
+        )
         return
-    p.add_argument("--time-column", metavar="N", type=int,
-                   help="column N (1-based) holds the sample times; it is not "
-                        "processed but copied to the output's first column. "
-                        "Without --live the times are the grid (no --step): "
-                        "finite, strictly increasing; when every step equals "
-                        "(t_last - t_first)/(rows - 1) within --time-tol "
-                        f"(default {TIME_TOL:g}) of it the uniform engines run "
-                        "with that step, else the rules on the given times "
-                        "(rectangle, trapezoid, l1; grunwald needs uniform times). "
-                        "With --live: the times are copied and the step is --step")
-    p.add_argument("--time-tol", metavar="REL", type=float,
-                   help="with --time-column: without --live, the relative "
-                        f"tolerance of the uniformity test (default {TIME_TOL:g}); "
-                        "with --live, check that each time step equals --step "
-                        "within REL*step and report on stderr when not")
+    p.add_argument(
+        "--time-column",
+        metavar="N",
+        type=int,
+        help="column N (1-based) holds the sample times; it is not "
+        "processed but copied to the output's first column. "
+        "Without --live the times are the grid (no --step): "
+        "finite, strictly increasing; when every step equals "
+        "(t_last - t_first)/(rows - 1) within --time-tol "
+        f"(default {TIME_TOL:g}) of it the uniform engines run "
+        "with that step, else the rules on the given times "
+        "(rectangle, trapezoid, l1; grunwald needs uniform times). "
+        "With --live: the times are copied and the step is --step",
+    )
+    p.add_argument(
+        "--time-tol",
+        metavar="REL",
+        type=float,
+        help="with --time-column: without --live, the relative "
+        f"tolerance of the uniformity test (default {TIME_TOL:g}); "
+        "with --live, check that each time step equals --step "
+        "within REL*step and report on stderr when not",
+    )
 
 
 _CHUNKED_HELP = """\
@@ -986,34 +1064,50 @@ def _add_chunked(sub):
             "time: compressed (bounded memory, within a stated tolerance) or "
             "exact (the whole history in memory)."
         ),
-        epilog=_CHUNKED_HELP.format(orders=textwrap.fill(
-            f"Orders: {compressed_text()}.", 74, subsequent_indent="  ")) + "\n" + CAUTION,
+        epilog=_CHUNKED_HELP.format(
+            orders=textwrap.fill(f"Orders: {compressed_text()}.", 74, subsequent_indent="  ")
+        )
+        + "\n"
+        + CAUTION,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    p.add_argument("kind", choices=("integral", "derivative"),
-                   help="the operator")
+    p.add_argument("kind", choices=("integral", "derivative"), help="the operator")
     p.add_argument("input", metavar="IN.npy", help="the record (.npy)")
-    p.add_argument("-o", "--output", metavar="OUT.npy", required=True,
-                   help="the result (.npy), not the input")
-    _add_order_step(p, "order of the operator, A > 0 (compressed: "
-                    + compressed_text().replace("order", "A") + ")")
-    p.add_argument("--rule", metavar="RULE",
-                   help="integral: rectangle (default) or trapezoid; derivative: "
-                        "grunwald (default) or l1")
-    p.add_argument("--mode", choices=("compressed", "exact"), default="compressed",
-                   help="compressed (default: bounded memory) or exact (memory "
-                        "grows with the record)")
-    p.add_argument("--tol", metavar="T",
-                   help="compressed: relative tolerance in [%g, %g] "
-                        "(default 1e-12)" % COMPRESSED_TOL_RANGE)
-    p.add_argument("--horizon", metavar="N",
-                   help="compressed: samples the tolerance is promised for "
-                        "(default: the record's length)")
-    p.add_argument("--chunk", metavar="ROWS", type=int,
-                   help="time steps per chunk (default 2**18 values per chunk)")
-    p.add_argument("--progress", action="store_true",
-                   help="a progress bar on standard error (needs tqdm: pip "
-                        "install 'pyfracconv[progress]')")
+    p.add_argument(
+        "-o", "--output", metavar="OUT.npy", required=True, help="the result (.npy), not the input"
+    )
+    _add_order_step(
+        p, "order of the operator, A > 0 (compressed: " + compressed_text().replace("order", "A") + ")"
+    )
+    p.add_argument(
+        "--rule",
+        metavar="RULE",
+        help="integral: rectangle (default) or trapezoid; derivative: grunwald (default) or l1",
+    )
+    p.add_argument(
+        "--mode",
+        choices=("compressed", "exact"),
+        default="compressed",
+        help="compressed (default: bounded memory) or exact (memory grows with the record)",
+    )
+    p.add_argument(
+        "--tol",
+        metavar="T",
+        help="compressed: relative tolerance in [%g, %g] (default 1e-12)" % COMPRESSED_TOL_RANGE,
+    )
+    p.add_argument(
+        "--horizon",
+        metavar="N",
+        help="compressed: samples the tolerance is promised for (default: the record's length)",
+    )
+    p.add_argument(
+        "--chunk", metavar="ROWS", type=int, help="time steps per chunk (default 2**18 values per chunk)"
+    )
+    p.add_argument(
+        "--progress",
+        action="store_true",
+        help="a progress bar on standard error (needs tqdm: pip install 'pyfracconv[progress]')",
+    )
     p.set_defaults(func=_run_chunked)
     return p
 
@@ -1033,19 +1127,27 @@ def build_parser():
     parser.add_argument("--version", action="version", version=f"{PROG} {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     _add_operator(
-        sub, "integral", INTEGRAL_RULES, "rectangle",
+        sub,
+        "integral",
+        INTEGRAL_RULES,
+        "rectangle",
         "Riemann-Liouville fractional integral",
         "Riemann-Liouville fractional integral of order A, from t = 0, of every "
         "column of INPUT, written to OUTPUT. Rules: rectangle (product "
         "rectangle rule, left end points, first order) or trapezoid (product "
-        "trapezoidal rule, second order for smooth signals).")
+        "trapezoidal rule, second order for smooth signals).",
+    )
     _add_operator(
-        sub, "derivative", DERIVATIVE_RULES, "grunwald",
+        sub,
+        "derivative",
+        DERIVATIVE_RULES,
+        "grunwald",
         "fractional derivative (grunwald: Riemann-Liouville; l1: Caputo)",
         "Fractional derivative of order A, from t = 0, of every column of INPUT, "
         "written to OUTPUT. Rules: grunwald (Grunwald-Letnikov approximation of "
         f"the Riemann-Liouville derivative, {_order_text('grunwald')}, first order) "
-        f"or l1 (L1 scheme for the Caputo derivative, {_order_text('l1')}, order 2 - A).")
+        f"or l1 (L1 scheme for the Caputo derivative, {_order_text('l1')}, order 2 - A).",
+    )
     c = sub.add_parser(
         "control",
         help="fractional PID controller over a setpoint,measurement record or live",
@@ -1060,13 +1162,16 @@ def build_parser():
         epilog=CONTROL_CAUTION + "\n" + CAUTION,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    c.add_argument("input", metavar="INPUT",
-                   help="CSV or .npy file ('-': CSV on standard input)")
-    c.add_argument("-o", "--output", metavar="OUTPUT", required=True,
-                   help="output file, .csv or .npy ('-': CSV on standard output)")
+    c.add_argument("input", metavar="INPUT", help="CSV or .npy file ('-': CSV on standard input)")
+    c.add_argument(
+        "-o",
+        "--output",
+        metavar="OUTPUT",
+        required=True,
+        help="output file, .csv or .npy ('-': CSV on standard output)",
+    )
     _add_controller_options(c)
-    c.add_argument("--columns", metavar="SP,PV",
-                   help="the setpoint and measurement columns, by header name")
+    c.add_argument("--columns", metavar="SP,PV", help="the setpoint and measurement columns, by header name")
     _add_io_options(c)
     c.set_defaults(func=_run_control)
     _add_chunked(sub)
@@ -1088,10 +1193,13 @@ def build_parser():
         epilog=CONTROL_CAUTION + "\n" + CAUTION,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    d.add_argument("--verify", action="store_true",
-                   help="print the verification table against closed forms")
-    d.add_argument("--out-dir", default="pyfracconv-demo", metavar="DIR",
-                   help="where the demo writes its files (default ./pyfracconv-demo)")
+    d.add_argument("--verify", action="store_true", help="print the verification table against closed forms")
+    d.add_argument(
+        "--out-dir",
+        default="pyfracconv-demo",
+        metavar="DIR",
+        help="where the demo writes its files (default ./pyfracconv-demo)",
+    )
     d.set_defaults(func=_run_demo)
     f = sub.add_parser(
         "flags",
@@ -1104,13 +1212,15 @@ def build_parser():
             "by its path with a run-time path (-Wl,-rpath) to its folder, so the "
             "program runs without LD_LIBRARY_PATH; --static links the static "
             "library instead. Example: cc prog.c $(pyfracconv flags) -o prog. "
-            "For an installed prefix (make install) use pkg-config fracconv."),
+            "For an installed prefix (make install) use pkg-config fracconv."
+        ),
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     f.add_argument("--cflags", action="store_true", help="the -I flag of the headers")
     f.add_argument("--libs", action="store_true", help="the library, its run-time path and -lm")
-    f.add_argument("--static", action="store_true",
-                   help="with the libraries: the static library (libfracconv.a) instead")
+    f.add_argument(
+        "--static", action="store_true", help="with the libraries: the static library (libfracconv.a) instead"
+    )
     f.set_defaults(func=_run_flags)
     e = sub.add_parser(
         "export-c",
@@ -1125,7 +1235,8 @@ def build_parser():
             "function. Single precision: the error against the library's double "
             "precision stream is measured at export and written into the header "
             "with a stated bound (printed on stderr too). Orders: 0 < A < 1 for "
-            "every rule, 1 <= A < 2 with rule rectangle. See docs/compiled.md."),
+            "every rule, 1 <= A < 2 with rule rectangle. See docs/compiled.md."
+        ),
         epilog=_wrap(
             "CAUTION for controllers - exported code may end up moving machinery. "
             "It is a numerical building block, not a safety function: validate the "
@@ -1133,24 +1244,46 @@ def build_parser():
             "use; enforce actuator limits and rate limits outside this code; keep "
             "an independent safe stop that depends neither on this code nor on "
             "the processor running it; local codes, standards and licensed "
-            "engineering practice take precedence.") + "\n\n" + CAUTION,
+            "engineering practice take precedence."
+        )
+        + "\n\n"
+        + CAUTION,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    e.add_argument("--rule", required=True, choices=tuple(RULES),
-                   help="rectangle or trapezoid (integrals), grunwald or l1 (derivatives)")
+    e.add_argument(
+        "--rule",
+        required=True,
+        choices=tuple(RULES),
+        help="rectangle or trapezoid (integrals), grunwald or l1 (derivatives)",
+    )
     e.add_argument("--order", metavar="A", required=True, help="order of the operator")
     e.add_argument("--step", metavar="H", required=True, help="sampling period h > 0")
-    e.add_argument("--tol", metavar="T", default="1e-9",
-                   help="tolerance of the compressed memory (default 1e-9)")
-    e.add_argument("--horizon", metavar="N", default="1e6",
-                   help="samples the compressed memory covers; the exported update "
-                        "refuses outputs past it (default 1e6)")
-    e.add_argument("--precision", choices=("double", "single"), default="double",
-                   help="floating type of the generated code (default double)")
-    e.add_argument("--prefix", default="fcop",
-                   help="C identifier prefix of the generated names and files (default fcop)")
-    e.add_argument("-o", "--output", metavar="DIR", required=True,
-                   help="existing directory the three files are written to")
+    e.add_argument(
+        "--tol", metavar="T", default="1e-9", help="tolerance of the compressed memory (default 1e-9)"
+    )
+    e.add_argument(
+        "--horizon",
+        metavar="N",
+        default="1e6",
+        help="samples the compressed memory covers; the exported update "
+        "refuses outputs past it (default 1e6)",
+    )
+    e.add_argument(
+        "--precision",
+        choices=("double", "single"),
+        default="double",
+        help="floating type of the generated code (default double)",
+    )
+    e.add_argument(
+        "--prefix", default="fcop", help="C identifier prefix of the generated names and files (default fcop)"
+    )
+    e.add_argument(
+        "-o",
+        "--output",
+        metavar="DIR",
+        required=True,
+        help="existing directory the three files are written to",
+    )
     e.set_defaults(func=_run_export)
     x = sub.add_parser(
         "export-controller",
@@ -1168,29 +1301,52 @@ def build_parser():
             "measured at export (the update emulated in the generated type) and "
             "written into the header with a stated bound (printed on stderr too). "
             "Refused: --memory exact, --integral-rule trapezoid with "
-            "--integral-order >= 1. See docs/compiled.md."),
-        epilog=CONTROL_CAUTION + "\n" + _wrap(
+            "--integral-order >= 1. See docs/compiled.md."
+        ),
+        epilog=CONTROL_CAUTION
+        + "\n"
+        + _wrap(
             "The exported code is a numerical building block, not a safety "
             "function: validate the complete control system in simulation and "
             "then on the plant under supervision; keep actuator limits and rate "
             "limits in the hardware as well; keep an independent safe stop that "
             "depends neither on this code nor on the processor running it; local "
             "codes, standards and licensed engineering practice take "
-            "precedence.") + "\n\n" + CAUTION,
+            "precedence."
+        )
+        + "\n\n"
+        + CAUTION,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     _add_controller_options(x)
-    x.add_argument("--tol", metavar="T", default="1e-10",
-                   help="tolerance of the compressed memory (default 1e-10)")
-    x.add_argument("--horizon", metavar="N", default="1e9",
-                   help="samples the compressed memory covers (default 1e9); past it the "
-                        "exported controller keeps running and reports it")
-    x.add_argument("--precision", choices=("double", "single"), default="double",
-                   help="floating type of the generated code (default double)")
-    x.add_argument("--prefix", default="fcpid",
-                   help="C identifier prefix of the generated names and files (default fcpid)")
-    x.add_argument("-o", "--output", metavar="DIR", required=True,
-                   help="existing directory the three files are written to")
+    x.add_argument(
+        "--tol", metavar="T", default="1e-10", help="tolerance of the compressed memory (default 1e-10)"
+    )
+    x.add_argument(
+        "--horizon",
+        metavar="N",
+        default="1e9",
+        help="samples the compressed memory covers (default 1e9); past it the "
+        "exported controller keeps running and reports it",
+    )
+    x.add_argument(
+        "--precision",
+        choices=("double", "single"),
+        default="double",
+        help="floating type of the generated code (default double)",
+    )
+    x.add_argument(
+        "--prefix",
+        default="fcpid",
+        help="C identifier prefix of the generated names and files (default fcpid)",
+    )
+    x.add_argument(
+        "-o",
+        "--output",
+        metavar="DIR",
+        required=True,
+        help="existing directory the three files are written to",
+    )
     x.set_defaults(func=_run_export_controller)
     return parser
 

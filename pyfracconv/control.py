@@ -66,8 +66,7 @@ class HorizonWarning(RuntimeWarning):
 def _choice(name, value, table):
     if not isinstance(value, str) or value not in table:
         raise ArgumentError(
-            f"{name}={show(value)}: unknown; expected one of "
-            + ", ".join(repr(k) for k in table)
+            f"{name}={show(value)}: unknown; expected one of " + ", ".join(repr(k) for k in table)
         )
     return table[value]
 
@@ -80,8 +79,9 @@ def default_integral_rule(order, memory):
     1 <= order < 2; the rectangle rule stays the default there because
     it was the only one offered when controllers were first saved, so a
     controller made without a rule keeps its outputs.)"""
-    if memory == "compressed" and (order >= 1.0 or not in_range(
-            order_range("trapezoid", int(lib.FC_MODE_COMPRESSED)), order)):
+    if memory == "compressed" and (
+        order >= 1.0 or not in_range(order_range("trapezoid", int(lib.FC_MODE_COMPRESSED)), order)
+    ):
         return "rectangle"
     return "trapezoid"
 
@@ -149,12 +149,27 @@ class Controller:
     local codes, standards and licensed engineering practice.
     """
 
-    def __init__(self, kp, ki=0.0, kd=0.0, *, integral_order, derivative_order,
-                 step, output_limits=(-math.inf, math.inf), rate_limit=math.inf,
-                 setpoint_weight=1.0, derivative_weight=1.0,
-                 derivative_filter=0.0, anti_windup=True, integral_rule=None,
-                 derivative_rule="grunwald", memory="compressed", tol=1e-10,
-                 horizon=1e9):
+    def __init__(
+        self,
+        kp,
+        ki=0.0,
+        kd=0.0,
+        *,
+        integral_order,
+        derivative_order,
+        step,
+        output_limits=(-math.inf, math.inf),
+        rate_limit=math.inf,
+        setpoint_weight=1.0,
+        derivative_weight=1.0,
+        derivative_filter=0.0,
+        anti_windup=True,
+        integral_rule=None,
+        derivative_rule="grunwald",
+        memory="compressed",
+        tol=1e-10,
+        horizon=1e9,
+    ):
         p = ffi.new("fc_controller_params *")
         lib.fc_controller_default_params(p)
         for name, val in (("kp", kp), ("ki", ki), ("kd", kd)):
@@ -180,31 +195,31 @@ class Controller:
         try:
             lo, hi = output_limits
         except (TypeError, ValueError):
-            raise InputTypeError(
-                f"output_limits={show(output_limits)}: expected (low, high)"
-            ) from None
+            raise InputTypeError(f"output_limits={show(output_limits)}: expected (low, high)") from None
         lo = check_real("output_limits[0]", lo)
         hi = check_real("output_limits[1]", hi)
         if math.isnan(lo) or math.isnan(hi) or not lo < hi:
             raise ArgumentError(
-                f"output_limits={show(output_limits)}: need low < high (infinite "
-                "for no limit)")
+                f"output_limits={show(output_limits)}: need low < high (infinite for no limit)"
+            )
         p.out_min, p.out_max = lo, hi
         r = check_real("rate_limit", rate_limit)
         if not r > 0:
-            raise ArgumentError(f"rate_limit={show(rate_limit)}: must be > 0 "
-                                "(inf for none)")
+            raise ArgumentError(f"rate_limit={show(rate_limit)}: must be > 0 (inf for none)")
         p.rate_limit = r
-        for name, val, attr in (("setpoint_weight", setpoint_weight, "setpoint_weight_p"),
-                                ("derivative_weight", derivative_weight, "setpoint_weight_d")):
+        for name, val, attr in (
+            ("setpoint_weight", setpoint_weight, "setpoint_weight_p"),
+            ("derivative_weight", derivative_weight, "setpoint_weight_d"),
+        ):
             v = check_real(name, val)
             if not math.isfinite(v):
                 raise ArgumentError(f"{name}={show(val)}: must be finite")
             setattr(p, attr, v)
         tf = check_real("derivative_filter", derivative_filter)
         if not (math.isfinite(tf) and tf >= 0):
-            raise ArgumentError(f"derivative_filter={show(derivative_filter)}: "
-                                "must be finite and >= 0 (0: no filter)")
+            raise ArgumentError(
+                f"derivative_filter={show(derivative_filter)}: must be finite and >= 0 (0: no filter)"
+            )
         p.filter_time = tf
         if not isinstance(anti_windup, (bool, np.bool_)):
             raise InputTypeError(f"anti_windup={show(anti_windup)}: expected True or False")
@@ -225,11 +240,15 @@ class Controller:
             dr = _DRULE_NAMES.get(p.derivative_rule)
             ranges = "; ".join(
                 f"{name}: {range_text(order_range(name, int(p.memory)))}"
-                for name in (ir, dr) if name is not None)
-            return (f"integral_order={p.integral_order!r} ({ir}) or derivative_order="
-                    f"{p.derivative_order!r} ({dr}) "
-                    f"with memory={_MEMORY_NAMES.get(p.memory)!r}: outside the "
-                    f"rule's range ({ranges})")
+                for name in (ir, dr)
+                if name is not None
+            )
+            return (
+                f"integral_order={p.integral_order!r} ({ir}) or derivative_order="
+                f"{p.derivative_order!r} ({dr}) "
+                f"with memory={_MEMORY_NAMES.get(p.memory)!r}: outside the "
+                f"rule's range ({ranges})"
+            )
         return "Controller"
 
     def _init(self, c):
@@ -239,8 +258,7 @@ class Controller:
         self._lock = _Guard()
 
     def _busy(self, what):
-        return BusyError(f"{what}: the controller is being used by another thread; "
-                         "it is unchanged")
+        return BusyError(f"{what}: the controller is being used by another thread; it is unchanged")
 
     def _check(self, st, what):
         if st:
@@ -252,7 +270,10 @@ class Controller:
             warnings.warn(
                 "Controller: past the horizon of its compressed memory; it keeps "
                 "running, but the tolerance is no longer promised (use a longer "
-                "horizon or memory='exact')", HorizonWarning, stacklevel=3)
+                "horizon or memory='exact')",
+                HorizonWarning,
+                stacklevel=3,
+            )
 
     # ------------------------------------------------------------ public
     def update(self, setpoint, measurement):
@@ -323,13 +344,12 @@ class Controller:
             u = self._u[0]
         except TypeError:
             raise InputTypeError(
-                f"update({show(setpoint)}, {show(measurement)}): expected real "
-                "numbers") from None
+                f"update({show(setpoint)}, {show(measurement)}): expected real numbers"
+            ) from None
         finally:
             self._lock.release()
         if st:
-            self._check(st, f"update(setpoint={show(setpoint)}, "
-                            f"measurement={show(measurement)})")
+            self._check(st, f"update(setpoint={show(setpoint)}, measurement={show(measurement)})")
         if not self._warned:
             self._horizon_check()
         return u
@@ -404,9 +424,7 @@ class Controller:
         try:
             r, y = np.broadcast_arrays(r, y)
         except ValueError:
-            raise ArgumentError(
-                f"setpoints {r.shape} and measurements {y.shape}: shapes differ"
-            ) from None
+            raise ArgumentError(f"setpoints {r.shape} and measurements {y.shape}: shapes differ") from None
         if r.ndim != 1:
             r, y = r.reshape(-1), y.reshape(-1)
         r = np.ascontiguousarray(r, dtype=np.float64)
@@ -415,16 +433,23 @@ class Controller:
         u = np.empty(n)
         done = ffi.new("size_t *")
         st = lib.fc_controller_update_block(
-            self._c, ffi.from_buffer("double[]", r), ffi.from_buffer("double[]", y),
-            n, ffi.from_buffer("double[]", u), done)
+            self._c,
+            ffi.from_buffer("double[]", r),
+            ffi.from_buffer("double[]", y),
+            n,
+            ffi.from_buffer("double[]", u),
+            done,
+        )
         if st:
             if st == lib.FC_ERR_NONFINITE:
                 bad = int(np.flatnonzero(~(np.isfinite(r) & np.isfinite(y)))[0])
-                raise_for_status(st, f"sample {bad} (setpoint {r[bad]!r}, "
-                                     f"measurement {y[bad]!r}); the controller is "
-                                     "unchanged")
-            raise_for_status(st, f"update_block: stopped after {done[0]} samples "
-                                 "(those are applied)")
+                raise_for_status(
+                    st,
+                    f"sample {bad} (setpoint {r[bad]!r}, "
+                    f"measurement {y[bad]!r}); the controller is "
+                    "unchanged",
+                )
+            raise_for_status(st, f"update_block: stopped after {done[0]} samples (those are applied)")
         self._horizon_check()
         return u
 
@@ -479,8 +504,7 @@ class Controller:
         ('manual', 1.0)
         """
         v = check_real("output", output)
-        self._check(self._guarded("manual", lib.fc_controller_set_manual, v),
-                    f"manual({show(output)})")
+        self._check(self._guarded("manual", lib.fc_controller_set_manual, v), f"manual({show(output)})")
 
     def automatic(self):
         """Switch to automatic mode (bumpless: the tracking bias is held).
@@ -703,8 +727,7 @@ class Controller:
         """
         t = ffi.new("double[6]")
         raise_for_status(lib.fc_controller_terms(self._c, t), "terms")
-        return dict(zip(("proportional", "integral", "derivative", "bias",
-                         "unlimited", "output"), list(t)))
+        return dict(zip(("proportional", "integral", "derivative", "bias", "unlimited", "output"), list(t)))
 
     @property
     def params(self):
@@ -728,15 +751,23 @@ class Controller:
         p = ffi.new("fc_controller_params *")
         raise_for_status(lib.fc_controller_get_params(self._c, p), "params")
         mem = _MEMORY_NAMES[p.memory]
-        d = dict(kp=p.kp, ki=p.ki, kd=p.kd, integral_order=p.integral_order,
-                 derivative_order=p.derivative_order, step=p.step,
-                 output_limits=(p.out_min, p.out_max), rate_limit=p.rate_limit,
-                 setpoint_weight=p.setpoint_weight_p,
-                 derivative_weight=p.setpoint_weight_d,
-                 derivative_filter=p.filter_time,
-                 anti_windup=p.anti_windup == lib.FC_AW_CONDITIONAL,
-                 integral_rule=_IRULE_NAMES[p.integral_rule],
-                 derivative_rule=_DRULE_NAMES[p.derivative_rule], memory=mem)
+        d = dict(
+            kp=p.kp,
+            ki=p.ki,
+            kd=p.kd,
+            integral_order=p.integral_order,
+            derivative_order=p.derivative_order,
+            step=p.step,
+            output_limits=(p.out_min, p.out_max),
+            rate_limit=p.rate_limit,
+            setpoint_weight=p.setpoint_weight_p,
+            derivative_weight=p.setpoint_weight_d,
+            derivative_filter=p.filter_time,
+            anti_windup=p.anti_windup == lib.FC_AW_CONDITIONAL,
+            integral_rule=_IRULE_NAMES[p.integral_rule],
+            derivative_rule=_DRULE_NAMES[p.derivative_rule],
+            memory=mem,
+        )
         if mem == "compressed":
             d.update(tol=p.tol, horizon=p.horizon)
         return d
@@ -958,7 +989,9 @@ class Controller:
 
     def __repr__(self):
         p = self.params
-        return (f"Controller(kp={p['kp']!r}, ki={p['ki']!r}, kd={p['kd']!r}, "
-                f"integral_order={p['integral_order']!r}, derivative_order="
-                f"{p['derivative_order']!r}, step={p['step']!r}, memory="
-                f"{p['memory']!r}, mode={self.mode!r}, count={self.count})")
+        return (
+            f"Controller(kp={p['kp']!r}, ki={p['ki']!r}, kd={p['kd']!r}, "
+            f"integral_order={p['integral_order']!r}, derivative_order="
+            f"{p['derivative_order']!r}, step={p['step']!r}, memory="
+            f"{p['memory']!r}, mode={self.mode!r}, count={self.count})"
+        )

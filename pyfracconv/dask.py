@@ -67,6 +67,7 @@ FloatArray = np.ndarray[Any, np.dtype[np.float64]]
 
 # ------------------------------------------------------------ operators
 
+
 def _as_dask(name: str, x: object) -> Any:
     refuse_masked(name, x)
     if not isinstance(x, da.Array):
@@ -82,9 +83,18 @@ def _as_dask(name: str, x: object) -> Any:
     return x
 
 
-def _block_op(block: Any, op: str, order: float, step: Optional[float], rule: str,
-              axis: int, engine: str, block_info: Any = None, t: Any = None,
-              tol: Optional[float] = None) -> FloatArray:
+def _block_op(
+    block: Any,
+    op: str,
+    order: float,
+    step: Optional[float],
+    rule: str,
+    axis: int,
+    engine: str,
+    block_info: Any = None,
+    t: Any = None,
+    tol: Optional[float] = None,
+) -> FloatArray:
     fn = _np_integral if op == "integral" else _np_derivative
     try:
         if t is not None:
@@ -100,13 +110,12 @@ def _block_op(block: Any, op: str, order: float, step: Optional[float], rule: st
         where = tuple(int(i) + s for i, s in zip(bad[0], starts))
         text = ", ".join(str(i) for i in where)
         value = np.asarray(block)[tuple(bad[0])]
-        raise SampleError(
-            f"x[{text}]={show(value)}: sample is NaN or infinite"
-        ) from None
+        raise SampleError(f"x[{text}]={show(value)}: sample is NaN or infinite") from None
 
 
-def _apply_times(op: str, x: object, order: object, t: object, rule: object,
-                 axis: object, engine: object, tol: object) -> Any:
+def _apply_times(
+    op: str, x: object, order: object, t: object, rule: object, axis: object, engine: object, tol: object
+) -> Any:
     """The operators with sample times: every argument checked now (by the
     NumPy function on the first two times, whose messages are the ones of
     a whole call), then each block through the NumPy function."""
@@ -116,32 +125,56 @@ def _apply_times(op: str, x: object, order: object, t: object, rule: object,
     ax = check_axis(axis, arr.ndim)
     tt = check_times(t, int(arr.shape[ax]))
     fn = _np_integral if op == "integral" else _np_derivative
+    # fmt: off
     fn(np.zeros(min(2, tt.size)), order, rule=rule, engine=engine, t=tt[:2],  # type: ignore[arg-type]
        tol=tol)  # type: ignore[arg-type]
+    # fmt: on
     if len(arr.chunks[ax]) > 1:
         arr = arr.rechunk({ax: -1})
-    return arr.map_blocks(_block_op, op, check_real("order", order), None, str(rule), ax,
-                          str(engine), t=tt, tol=None if tol is None else check_real("tol", tol),
-                          dtype=np.float64, meta=np.empty((0,) * arr.ndim))
+    return arr.map_blocks(
+        _block_op,
+        op,
+        check_real("order", order),
+        None,
+        str(rule),
+        ax,
+        str(engine),
+        t=tt,
+        tol=None if tol is None else check_real("tol", tol),
+        dtype=np.float64,
+        meta=np.empty((0,) * arr.ndim),
+    )
 
 
-def _apply(op: str, x: object, order: object, step: object, rule: object, axis: object,
-           engine: object, t: object = None, tol: object = None) -> Any:
+def _apply(
+    op: str,
+    x: object,
+    order: object,
+    step: object,
+    rule: object,
+    axis: object,
+    engine: object,
+    t: object = None,
+    tol: object = None,
+) -> Any:
     if step is not None and t is not None:
         raise ArgumentError(
             f"step={show(step)} and t: give exactly one of step (a uniform grid "
-            "t_k = k*step) or t (the sample times), not both")
+            "t_k = k*step) or t (the sample times), not both"
+        )
     if step is None and t is None:
         raise InputTypeError(
             "step=None and t=None: give exactly one of step (a uniform grid "
-            "t_k = k*step) or t (the sample times)")
+            "t_k = k*step) or t (the sample times)"
+        )
     if t is not None:
         return _apply_times(op, x, order, t, rule, axis, engine, tol)
     if tol is not None:
         raise ArgumentError(
             f"tol={show(tol)}: a tolerance is taken only with t= (the fast "
             "engine on a grid of times); the uniform engines are accurate to "
-            "rounding")
+            "rounding"
+        )
     allowed = INTEGRAL_RULES if op == "integral" else DERIVATIVE_RULES
     check_rule(rule, allowed)
     a = check_order(order, rule)
@@ -151,13 +184,22 @@ def _apply(op: str, x: object, order: object, step: object, rule: object, axis: 
     ax = check_axis(axis, arr.ndim)
     if len(arr.chunks[ax]) > 1:
         arr = arr.rechunk({ax: -1})  # the time axis whole in every block
-    return arr.map_blocks(_block_op, op, a, h, str(rule), ax, str(engine),
-                          dtype=np.float64, meta=np.empty((0,) * arr.ndim))
+    return arr.map_blocks(
+        _block_op, op, a, h, str(rule), ax, str(engine), dtype=np.float64, meta=np.empty((0,) * arr.ndim)
+    )
 
 
-def integral(x: Any, order: float, step: Optional[float] = None,
-             rule: str = "rectangle", axis: int = -1, engine: str = "auto", *,
-             t: Any = None, tol: Optional[float] = None) -> Any:
+def integral(
+    x: Any,
+    order: float,
+    step: Optional[float] = None,
+    rule: str = "rectangle",
+    axis: int = -1,
+    engine: str = "auto",
+    *,
+    t: Any = None,
+    tol: Optional[float] = None,
+) -> Any:
     """:func:`pyfracconv.integral` of a Dask array, lazily.
 
     Parameters
@@ -214,9 +256,17 @@ def integral(x: Any, order: float, step: Optional[float] = None,
     return _apply("integral", x, order, step, rule, axis, engine, t, tol)
 
 
-def derivative(x: Any, order: float, step: Optional[float] = None,
-               rule: str = "grunwald", axis: int = -1, engine: str = "auto", *,
-               t: Any = None, tol: Optional[float] = None) -> Any:
+def derivative(
+    x: Any,
+    order: float,
+    step: Optional[float] = None,
+    rule: str = "grunwald",
+    axis: int = -1,
+    engine: str = "auto",
+    *,
+    t: Any = None,
+    tol: Optional[float] = None,
+) -> Any:
     """:func:`pyfracconv.derivative` of a Dask array, lazily.
 
     Parameters
@@ -275,9 +325,20 @@ def _row(params: Any, i: int) -> Any:
     return r
 
 
-def _solve_block(block: Any, first: int, rhs: Callable[..., Any], y0: Any, order: Any,
-                 dy0: Any, jacobian: Any, step: Optional[float], n_steps: int, m: int,
-                 scalar: bool, options: dict[str, Any]) -> FloatArray:
+def _solve_block(
+    block: Any,
+    first: int,
+    rhs: Callable[..., Any],
+    y0: Any,
+    order: Any,
+    dy0: Any,
+    jacobian: Any,
+    step: Optional[float],
+    n_steps: int,
+    m: int,
+    scalar: bool,
+    options: dict[str, Any],
+) -> FloatArray:
     from .solve import solve
 
     block = np.asarray(block, dtype=np.float64)
@@ -291,18 +352,23 @@ def _solve_block(block: Any, first: int, rhs: Callable[..., Any], y0: Any, order
             ok = _per_set(order, p)
             dk = _per_set(dy0, p)
         except Exception as exc:
-            raise ArgumentError(f"params[{i}]={show(p)}: y0, order or dy0 raised "
-                                f"{type(exc).__name__}: {exc}") from exc
+            raise ArgumentError(
+                f"params[{i}]={show(p)}: y0, order or dy0 raised {type(exc).__name__}: {exc}"
+            ) from exc
         try:
             # options holds t= on a grid (step is then None)
             where: tuple[Any, ...] = () if step is None else (step, n_steps)
-            res = solve((lambda t, y, p=p: rhs(t, y, p)), y0k, ok, *where,
-                        dy0=dk, jacobian=(None if jacobian is None else
-                                          (lambda t, y, p=p: jacobian(t, y, p))),
-                        **options)
+            res = solve(
+                (lambda t, y, p=p: rhs(t, y, p)),
+                y0k,
+                ok,
+                *where,
+                dy0=dk,
+                jacobian=(None if jacobian is None else (lambda t, y, p=p: jacobian(t, y, p))),
+                **options,
+            )
         except FracconvError as exc:
-            exc.args = (f"params[{i}]={show(p)}: {exc.args[0] if exc.args else exc}",) \
-                + exc.args[1:]
+            exc.args = (f"params[{i}]={show(p)}: {exc.args[0] if exc.args else exc}",) + exc.args[1:]
             raise
         y = res.y
         if y.shape != shape[1:]:
@@ -315,11 +381,20 @@ def _solve_block(block: Any, first: int, rhs: Callable[..., Any], y0: Any, order
     return out
 
 
-def solve_many(rhs: Callable[..., Any], params: Any, y0: Value, order: Value,
-               step: Optional[float] = None, n_steps: Optional[int] = None, *,
-               t: Any = None, dy0: Optional[Value] = None,
-               chunk: Optional[int] = None, jacobian: Optional[Callable[..., Any]] = None,
-               **options: Any) -> Tuple[FloatArray, Any]:
+def solve_many(
+    rhs: Callable[..., Any],
+    params: Any,
+    y0: Value,
+    order: Value,
+    step: Optional[float] = None,
+    n_steps: Optional[int] = None,
+    *,
+    t: Any = None,
+    dy0: Optional[Value] = None,
+    chunk: Optional[int] = None,
+    jacobian: Optional[Callable[..., Any]] = None,
+    **options: Any,
+) -> Tuple[FloatArray, Any]:
     """:func:`pyfracconv.solve` for many independent parameter sets, lazily.
 
     Parameters
@@ -392,47 +467,48 @@ def solve_many(rhs: Callable[..., Any], params: Any, y0: Value, order: Value,
     if not callable(rhs):
         raise InputTypeError(f"rhs={show(rhs)}: expected a callable f(t, y, p)")
     if jacobian is not None and not callable(jacobian):
-        raise InputTypeError(
-            f"jacobian={show(jacobian)}: expected None or a callable J(t, y, p)"
-        )
+        raise InputTypeError(f"jacobian={show(jacobian)}: expected None or a callable J(t, y, p)")
     if "progress" in options:
-        raise ArgumentError("progress: not available in solve_many (use Dask's own "
-                            "progress reporting, e.g. dask.diagnostics.ProgressBar)")
+        raise ArgumentError(
+            "progress: not available in solve_many (use Dask's own "
+            "progress reporting, e.g. dask.diagnostics.ProgressBar)"
+        )
     times = None
     if t is not None:
         from .grid import check_times
         from .solve_grid import GRID_METHODS, grid_method_error
 
         if step is not None or n_steps is not None:
-            given = ", ".join(f"{k}={show(v)}" for k, v in (("step", step),
-                                                           ("n_steps", n_steps))
-                              if v is not None)
-            raise ArgumentError(f"t and {given}: give either the grid t or step and "
-                                "n_steps, not both")
+            given = ", ".join(
+                f"{k}={show(v)}" for k, v in (("step", step), ("n_steps", n_steps)) if v is not None
+            )
+            raise ArgumentError(f"t and {given}: give either the grid t or step and n_steps, not both")
         times = check_times(t)
         if times.size == 0:
             raise ArgumentError("t: empty; expected at least the start time t[0]")
-        for key, why in (("t0", "the problem starts at t[0]"),
-                         ("horizon", "only compressed memory and 'implicit-rectangle' "
-                                     "on a uniform grid use it")):
+        for key, why in (
+            ("t0", "the problem starts at t[0]"),
+            ("horizon", "only compressed memory and 'implicit-rectangle' on a uniform grid use it"),
+        ):
             if key in options:
                 raise ArgumentError(f"{key}={show(options[key])}: not used with t= ({why})")
         meth = options.get("method", "predictor-corrector")
-        if isinstance(meth, str) and meth not in GRID_METHODS and meth in (
-                "trapezoid", "implicit-rectangle"):
+        if isinstance(meth, str) and meth not in GRID_METHODS and meth in ("trapezoid", "implicit-rectangle"):
             raise grid_method_error(meth)
         if options.get("memory", "exact") != "exact":
-            raise ArgumentError(f"memory={show(options['memory'])}: not available with "
-                                "t= (the grid solver keeps every f value); use "
-                                "memory='exact'")
+            raise ArgumentError(
+                f"memory={show(options['memory'])}: not available with "
+                "t= (the grid solver keeps every f value); use "
+                "memory='exact'"
+            )
         n = int(times.size) - 1
         h = 1.0
     else:
         if step is None or n_steps is None:
-            missing = " and ".join(k for k, v in (("step", step), ("n_steps", n_steps))
-                                   if v is None)
-            raise ArgumentError(f"{missing}=None: give step and n_steps (a uniform "
-                                "grid) or t= (the grid's times)")
+            missing = " and ".join(k for k, v in (("step", step), ("n_steps", n_steps)) if v is None)
+            raise ArgumentError(
+                f"{missing}=None: give step and n_steps (a uniform grid) or t= (the grid's times)"
+            )
         n = check_count("n_steps", n_steps, 0)
         h = check_step(step)
     refuse_masked("params", params)
@@ -445,18 +521,14 @@ def solve_many(rhs: Callable[..., Any], params: Any, y0: Value, order: Value,
         except Exception as exc:
             raise InputTypeError(f"params: cannot be read as an array ({exc})") from None
         if host.dtype.kind not in "biuf":
-            raise InputTypeError(
-                f"params: expected real numbers, got an array of dtype {host.dtype}"
-            )
+            raise InputTypeError(f"params: expected real numbers, got an array of dtype {host.dtype}")
         P_arr = host
     if P_arr.ndim not in (1, 2) or P_arr.shape[0] == 0:
         raise ArgumentError(
-            f"params: expected shape (P,) or (P, k) with P >= 1 parameter sets, got "
-            f"shape {P_arr.shape}"
+            f"params: expected shape (P,) or (P, k) with P >= 1 parameter sets, got shape {P_arr.shape}"
         )
     if P_arr.dtype.kind not in "biuf":
-        raise InputTypeError(f"params: expected real numbers, got an array of dtype "
-                             f"{P_arr.dtype}")
+        raise InputTypeError(f"params: expected real numbers, got an array of dtype {P_arr.dtype}")
     P = int(P_arr.shape[0])
     if isinstance(P_arr, da.Array):
         if P_arr.ndim == 2 and len(P_arr.chunks[1]) > 1:
@@ -469,34 +541,49 @@ def solve_many(rhs: Callable[..., Any], params: Any, y0: Value, order: Value,
             chunk = max(1, math.ceil(P / 256))
         chunk = check_count("chunk", chunk, 1)
         first = np.asarray(P_arr[:1], dtype=np.float64)
-        P_arr = da.from_array(np.asarray(P_arr, dtype=np.float64),
-                              chunks=(chunk,) + ((-1,) if P_arr.ndim == 2 else ()))
+        P_arr = da.from_array(
+            np.asarray(P_arr, dtype=np.float64), chunks=(chunk,) + ((-1,) if P_arr.ndim == 2 else ())
+        )
     p0 = _row(first, 0)
     opts = dict(options)
     t0 = float(times[0]) if times is not None else check_real("t0", opts.get("t0", 0.0))
-    known = {"t0", "method", "memory", "tol", "horizon", "corrections", "newton_tol",
-             "newton_maxiter"}
+    known = {"t0", "method", "memory", "tol", "horizon", "corrections", "newton_tol", "newton_maxiter"}
     for key in opts:
         if key not in known:
-            raise ArgumentError(f"{key}={show(opts[key])}: not a keyword of solve_many "
-                                f"(expected one of {', '.join(sorted(known))})")
+            raise ArgumentError(
+                f"{key}={show(opts[key])}: not a keyword of solve_many "
+                f"(expected one of {', '.join(sorted(known))})"
+            )
     # every argument checked on the first set (the messages of solve)
     try:
         y00 = _per_set(y0, p0)
         o0 = _per_set(order, p0)
         d0 = _per_set(dy0, p0)
     except Exception as exc:
-        raise ArgumentError(f"params[0]={show(p0)}: y0, order or dy0 raised "
-                            f"{type(exc).__name__}: {exc}") from exc
+        raise ArgumentError(
+            f"params[0]={show(p0)}: y0, order or dy0 raised {type(exc).__name__}: {exc}"
+        ) from exc
     method = opts.get("method", "predictor-corrector")
     memory = opts.get("memory", "exact")
     horizon = opts.get("horizon")
     if horizon is None and (memory == "compressed" or method == "implicit-rectangle"):
         horizon = max(n, 1)
-    chk = _setup(rhs, y00, o0, h, d0, t0, method, memory, opts.get("tol", 1e-12),
-                 horizon, None if jacobian is None else jacobian,
-                 opts.get("corrections", 1), opts.get("newton_tol", 1e-12),
-                 opts.get("newton_maxiter", 50))
+    chk = _setup(
+        rhs,
+        y00,
+        o0,
+        h,
+        d0,
+        t0,
+        method,
+        memory,
+        opts.get("tol", 1e-12),
+        horizon,
+        None if jacobian is None else jacobian,
+        opts.get("corrections", 1),
+        opts.get("newton_tol", 1e-12),
+        opts.get("newton_maxiter", 50),
+    )
     m, scalar = int(chk["m"]), bool(chk["scalar"])
     tail = () if scalar else (m,)
     if times is not None:
@@ -506,10 +593,14 @@ def solve_many(rhs: Callable[..., Any], params: Any, y0: Value, order: Value,
     parts = []
     task = dask.delayed(_solve_block, pure=False)
     for blk, s0, size in zip(blocks, starts, P_arr.chunks[0]):
-        d = task(blk, int(s0), rhs, y0, order, dy0, jacobian,
-                 None if times is not None else h, n, m, scalar, opts)
-        parts.append(da.from_delayed(d, shape=(int(size), n + 1) + tail,
-                                     dtype=np.float64, meta=np.empty((0,) * (2 + len(tail)))))
+        d = task(
+            blk, int(s0), rhs, y0, order, dy0, jacobian, None if times is not None else h, n, m, scalar, opts
+        )
+        parts.append(
+            da.from_delayed(
+                d, shape=(int(size), n + 1) + tail, dtype=np.float64, meta=np.empty((0,) * (2 + len(tail)))
+            )
+        )
     y = da.concatenate(parts, axis=0)
     if times is not None:
         return times.copy(), y

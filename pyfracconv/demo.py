@@ -48,15 +48,15 @@ __all__ = ["run"]
 
 # ------------------------------------------------------------- the scenario
 # All invented.
-ORDER = 0.5            # half-order operators (springpot of order 1/2)
-RATE = 1000.0          # sampling rate, Hz
-DURATION = 3.0         # record length, s
-RAMP_TIME = 0.5        # end of the ramp, s (on the sampling grid)
-PEAK_STRAIN = 2.0e-3   # strain held after the ramp (0.2 %)
-MODULUS = 40.0e6       # springpot coefficient E, Pa (invented)
-TAU = 0.2              # springpot time constant, s (invented)
+ORDER = 0.5  # half-order operators (springpot of order 1/2)
+RATE = 1000.0  # sampling rate, Hz
+DURATION = 3.0  # record length, s
+RAMP_TIME = 0.5  # end of the ramp, s (on the sampling grid)
+PEAK_STRAIN = 2.0e-3  # strain held after the ramp (0.2 %)
+MODULUS = 40.0e6  # springpot coefficient E, Pa (invented)
+TAU = 0.2  # springpot time constant, s (invented)
 TABLE_TIMES = (0.1, 0.25, 0.5, 0.501, 0.75, 1.0, 2.0, 3.0)
-T_MIN = 0.1            # relative errors are taken over t >= T_MIN
+T_MIN = 0.1  # relative errors are taken over t >= T_MIN
 
 # Pass thresholds on the scenario (h = 1 ms).
 # First-order rules (rectangle, Grunwald-Letnikov): on a ramp the leading
@@ -70,8 +70,8 @@ SCENARIO_TOL = {"rectangle": 2e-2, "trapezoid": 1e-10, "grunwald": 2e-2, "l1": 1
 
 # Convergence study: grids on [0, 1] with N, 2N, 4N steps.
 CONV_STEPS = (200, 400, 800)
-CONV_T_MIN = 0.5       # max relative error over t in [0.5, 1]
-ORDER_TOL = 0.15       # |observed - expected| allowed for the last halving
+CONV_T_MIN = 0.5  # max relative error over t in [0.5, 1]
+ORDER_TOL = 0.15  # |observed - expected| allowed for the last halving
 
 
 def _pos(x):
@@ -100,29 +100,52 @@ def ramp_hold_derivative(t, a):
 # ----------------------------------------------------- convergence test cases
 # (rule, label, f, exact, expected order); a = ORDER.
 
+
 def _cases(a):
     return [
-        ("rectangle", "t^2", lambda t: t**2,
-         # Podlubny 1999 / Kilbas et al. 2006, b = 2
-         lambda t: gamma(3.0) / gamma(3.0 + a) * t ** (2.0 + a), 1.0),
-        ("rectangle", "e^t", np.exp,
-         # I^a e^t = e^t P(a, t), A&S 6.5 (scipy gammainc)
-         lambda t: np.exp(t) * gammainc(a, t), 1.0),
-        ("trapezoid", "t^2", lambda t: t**2,
-         lambda t: gamma(3.0) / gamma(3.0 + a) * t ** (2.0 + a), 2.0),
-        ("trapezoid", "e^t", np.exp,
-         lambda t: np.exp(t) * gammainc(a, t), 2.0),
-        ("grunwald", "t^2", lambda t: t**2,
-         # Diethelm 2010, b = 2 (Riemann-Liouville = Caputo here)
-         lambda t: gamma(3.0) / gamma(3.0 - a) * t ** (2.0 - a), 1.0),
-        ("grunwald", "e^t", np.exp,
-         # Riemann-Liouville: Caputo e^t P(1-a, t) + f(0) t^-a / Gamma(1-a)
-         lambda t: np.exp(t) * gammainc(1.0 - a, t) + t ** (-a) / gamma(1.0 - a), 1.0),
-        ("l1", "t^2", lambda t: t**2,
-         lambda t: gamma(3.0) / gamma(3.0 - a) * t ** (2.0 - a), 2.0 - a),
-        ("l1", "e^t", np.exp,
-         # Caputo D^a e^t = e^t P(1-a, t), A&S 6.5 (scipy gammainc)
-         lambda t: np.exp(t) * gammainc(1.0 - a, t), 2.0 - a),
+        (
+            "rectangle",
+            "t^2",
+            lambda t: t**2,
+            # Podlubny 1999 / Kilbas et al. 2006, b = 2
+            lambda t: gamma(3.0) / gamma(3.0 + a) * t ** (2.0 + a),
+            1.0,
+        ),
+        (
+            "rectangle",
+            "e^t",
+            np.exp,
+            # I^a e^t = e^t P(a, t), A&S 6.5 (scipy gammainc)
+            lambda t: np.exp(t) * gammainc(a, t),
+            1.0,
+        ),
+        ("trapezoid", "t^2", lambda t: t**2, lambda t: gamma(3.0) / gamma(3.0 + a) * t ** (2.0 + a), 2.0),
+        ("trapezoid", "e^t", np.exp, lambda t: np.exp(t) * gammainc(a, t), 2.0),
+        (
+            "grunwald",
+            "t^2",
+            lambda t: t**2,
+            # Diethelm 2010, b = 2 (Riemann-Liouville = Caputo here)
+            lambda t: gamma(3.0) / gamma(3.0 - a) * t ** (2.0 - a),
+            1.0,
+        ),
+        (
+            "grunwald",
+            "e^t",
+            np.exp,
+            # Riemann-Liouville: Caputo e^t P(1-a, t) + f(0) t^-a / Gamma(1-a)
+            lambda t: np.exp(t) * gammainc(1.0 - a, t) + t ** (-a) / gamma(1.0 - a),
+            1.0,
+        ),
+        ("l1", "t^2", lambda t: t**2, lambda t: gamma(3.0) / gamma(3.0 - a) * t ** (2.0 - a), 2.0 - a),
+        (
+            "l1",
+            "e^t",
+            np.exp,
+            # Caputo D^a e^t = e^t P(1-a, t), A&S 6.5 (scipy gammainc)
+            lambda t: np.exp(t) * gammainc(1.0 - a, t),
+            2.0 - a,
+        ),
     ]
 
 
@@ -166,10 +189,8 @@ def run(out=None, integral=None, derivative=None):
     say("=" * 62)
     say("A viscoelastic damper test rig (invented data): every number below")
     say("is made up for this demonstration and describes no real rig.")
-    say(f"Strain: ramp from 0 to {PEAK_STRAIN:g} over {RAMP_TIME:g} s, then hold to "
-        f"{DURATION:g} s;")
-    say(f"sampled at {RATE:g} Hz ({n} samples, step h = {h:g} s). Operators of order "
-        f"a = {a:g}.")
+    say(f"Strain: ramp from 0 to {PEAK_STRAIN:g} over {RAMP_TIME:g} s, then hold to {DURATION:g} s;")
+    say(f"sampled at {RATE:g} Hz ({n} samples, step h = {h:g} s). Operators of order a = {a:g}.")
     say("Invented springpot model of the damper: stress = E tau^a D^a strain,")
     say(f"E = {MODULUS / 1e6:g} MPa, tau = {TAU:g} s.")
     say()
@@ -180,13 +201,17 @@ def run(out=None, integral=None, derivative=None):
     stress_scale = MODULUS * TAU**a
 
     say("Computed values at a few times (closed forms: Podlubny 1999, Diethelm 2010):")
-    say(f"{'t [s]':>7} {'strain':>10} {'I^a trapez.':>13} {'I^a exact':>13} "
-        f"{'D^a L1':>13} {'D^a exact':>13} {'stress [kPa]':>13}")
+    say(
+        f"{'t [s]':>7} {'strain':>10} {'I^a trapez.':>13} {'I^a exact':>13} "
+        f"{'D^a L1':>13} {'D^a exact':>13} {'stress [kPa]':>13}"
+    )
     for tt in TABLE_TIMES:
         k = int(round(tt / h))
-        say(f"{t[k]:7.3f} {strain[k]:10.6f} {results['trapezoid'][k]:13.6e} "
+        say(
+            f"{t[k]:7.3f} {strain[k]:10.6f} {results['trapezoid'][k]:13.6e} "
             f"{ex_int[k]:13.6e} {results['l1'][k]:13.6e} {ex_der[k]:13.6e} "
-            f"{stress_scale * results['l1'][k] / 1e3:13.4f}")
+            f"{stress_scale * results['l1'][k] / 1e3:13.4f}"
+        )
     say("(I^a strain in s^a, D^a strain in s^-a; stress from the L1 values.)")
     say()
 
@@ -201,11 +226,16 @@ def run(out=None, integral=None, derivative=None):
         checks.append((f"scenario {rule}", ok, f"max rel. error {err:.3e} <= {tol:.0e}"))
     say()
 
-    say(f"Convergence when the step is halved (t in [0, 1], N = "
-        f"{', '.join(str(m) for m in CONV_STEPS)} steps;")
+    say(
+        f"Convergence when the step is halved (t in [0, 1], N = "
+        f"{', '.join(str(m) for m in CONV_STEPS)} steps;"
+    )
     say(f"max relative error over t in [{CONV_T_MIN:g}, 1]; a = {a:g}):")
-    say(f"  {'rule':<10} {'f':<4} " + " ".join(f"{'err N=' + str(m):>12}" for m in CONV_STEPS)
-        + f" {'orders':>13} {'expected':>8}")
+    say(
+        f"  {'rule':<10} {'f':<4} "
+        + " ".join(f"{'err N=' + str(m):>12}" for m in CONV_STEPS)
+        + f" {'orders':>13} {'expected':>8}"
+    )
     for rule, label, f, exact_fn, expected in _cases(a):
         errs = []
         for m in CONV_STEPS:
@@ -214,14 +244,19 @@ def run(out=None, integral=None, derivative=None):
             y = np.asarray(ops[rule](f(tg), hh), dtype=float)
             sel = tg >= CONV_T_MIN - 0.5 * hh
             errs.append(_max_rel(y[sel], exact_fn(tg[sel])))
-        orders = [math.log2(e0 / e1) if e0 > 0 and e1 > 0 else float("nan")
-                  for e0, e1 in zip(errs, errs[1:])]
+        orders = [math.log2(e0 / e1) if e0 > 0 and e1 > 0 else float("nan") for e0, e1 in zip(errs, errs[1:])]
         last = orders[-1]
         ok = bool(np.isfinite(last) and abs(last - expected) <= ORDER_TOL)
-        say(f"  {rule:<10} {label:<4} " + " ".join(f"{e:12.3e}" for e in errs)
-            + " " + " ".join(f"{p:6.3f}" for p in orders) + f" {expected:8.3f}")
-        checks.append((f"order {rule} on {label}", ok,
-                       f"observed {last:.3f}, expected {expected:.3f} +- {ORDER_TOL:g}"))
+        say(
+            f"  {rule:<10} {label:<4} "
+            + " ".join(f"{e:12.3e}" for e in errs)
+            + " "
+            + " ".join(f"{p:6.3f}" for p in orders)
+            + f" {expected:8.3f}"
+        )
+        checks.append(
+            (f"order {rule} on {label}", ok, f"observed {last:.3f}, expected {expected:.3f} +- {ORDER_TOL:g}")
+        )
     say()
 
     failed = 0
@@ -230,8 +265,7 @@ def run(out=None, integral=None, derivative=None):
         failed += not ok
     elapsed = time.perf_counter() - start
     say()
-    say(f"{len(checks) - failed} of {len(checks)} checks passed "
-        f"({elapsed:.2f} s). Data: invented.")
+    say(f"{len(checks) - failed} of {len(checks)} checks passed ({elapsed:.2f} s). Data: invented.")
     say("Reminder: validate any controller using these operators on the actual")
     say("plant, with actuator limits, rate limits and an emergency stop that do")
     say("not depend on this software.")

@@ -51,29 +51,39 @@ __all__ = ["run", "simulate", "DEFAULT_OUT_DIR"]
 
 # ---------------------------------------------------------- the scenario
 # All invented.
-K_COND = 40.0          # thermal conductivity, W/(m K)
-ALPHA = 1.0e-5         # thermal diffusivity, m^2/s
-H_CONV = 500.0         # convective loss coefficient, W/(m^2 K)
-SETPOINT = 50.0        # surface temperature rise to hold, K
-Q_MAX = 60.0e3         # heater flux limit, W/m^2
-Q_RATE = 2.0e3         # heater rate limit, W/m^2 per s
-STEP = 0.02            # sampling period, s
-STEPS = 100_000        # 2000 s
+K_COND = 40.0  # thermal conductivity, W/(m K)
+ALPHA = 1.0e-5  # thermal diffusivity, m^2/s
+H_CONV = 500.0  # convective loss coefficient, W/(m^2 K)
+SETPOINT = 50.0  # surface temperature rise to hold, K
+Q_MAX = 60.0e3  # heater flux limit, W/m^2
+Q_RATE = 2.0e3  # heater rate limit, W/m^2 per s
+STEP = 0.02  # sampling period, s
+STEPS = 100_000  # 2000 s
 # Controller (tuned on this invented plant by simulation only).
 KP, KI, KD = 1000.0, 500.0, 20.0
 LAMBDA, MU = 1.2, 0.3
-TF = 0.5               # derivative filter time constant, s
-BAND = 0.02            # settling band, fraction of the setpoint
+TF = 0.5  # derivative filter time constant, s
+BAND = 0.02  # settling band, fraction of the setpoint
 
 DEFAULT_OUT_DIR = "pyfracconv-demo"
 
 
 def make_controller(memory):
-    return Controller(KP, KI, KD, integral_order=LAMBDA, derivative_order=MU,
-                      step=STEP, integral_rule="rectangle",
-                      output_limits=(0.0, Q_MAX), rate_limit=Q_RATE,
-                      derivative_weight=0.0, derivative_filter=TF,
-                      memory=memory, horizon=2 * STEPS)
+    return Controller(
+        KP,
+        KI,
+        KD,
+        integral_order=LAMBDA,
+        derivative_order=MU,
+        step=STEP,
+        integral_rule="rectangle",
+        output_limits=(0.0, Q_MAX),
+        rate_limit=Q_RATE,
+        derivative_weight=0.0,
+        derivative_filter=TF,
+        memory=memory,
+        horizon=2 * STEPS,
+    )
 
 
 def simulate(memory, steps=STEPS):
@@ -114,8 +124,11 @@ def simulate(memory, steps=STEPS):
 def metrics(t, theta, q):
     err = np.abs(theta - SETPOINT)
     outside = np.flatnonzero(err > BAND * SETPOINT)
-    settle = t[outside[-1] + 1] if outside.size and outside[-1] + 1 < t.size else (
-        0.0 if not outside.size else math.inf)
+    settle = (
+        t[outside[-1] + 1]
+        if outside.size and outside[-1] + 1 < t.size
+        else (0.0 if not outside.size else math.inf)
+    )
     overshoot = max(0.0, (theta.max() - SETPOINT) / SETPOINT)
     energy = float(np.sum(q) * STEP)  # J/m^2
     return settle, overshoot, energy
@@ -124,11 +137,14 @@ def metrics(t, theta, q):
 def _plots(out_dir, t, runs, files):
     try:
         import matplotlib
+
         matplotlib.use("Agg")
         import matplotlib.pyplot as plt
     except ImportError:
-        return ("plots: matplotlib is not installed; for the PNG plots run "
-                "pip install 'pyfracconv[plot]' (or pip install matplotlib)")
+        return (
+            "plots: matplotlib is not installed; for the PNG plots run "
+            "pip install 'pyfracconv[plot]' (or pip install matplotlib)"
+        )
     fig, ax = plt.subplots(2, 1, sharex=True, figsize=(8, 6))
     for name, (theta, q) in runs.items():
         ax[0].plot(t, theta, label=f"{name} memory")
@@ -167,11 +183,13 @@ def run(out=sys.stdout, out_dir=DEFAULT_OUT_DIR, steps=STEPS):
     """Run the scenario, print the summary, write the files; returns 0 if
     the loop settled with both memories, 1 otherwise."""
     w = out.write
-    w("pyfracconv demo: closed loop on an INVENTED scenario (demonstration data,\n"
-      "no real installation): a heated slab, surface temperature rise\n"
-      "theta = (sqrt(alpha)/k) I^(1/2) [q - h_c theta] (semi-infinite conduction,\n"
-      "Carslaw and Jaeger 1959), held at 50 K by a fractional PI^lambda D^mu\n"
-      "controller with heater limits and a rate limit.\n\n")
+    w(
+        "pyfracconv demo: closed loop on an INVENTED scenario (demonstration data,\n"
+        "no real installation): a heated slab, surface temperature rise\n"
+        "theta = (sqrt(alpha)/k) I^(1/2) [q - h_c theta] (semi-infinite conduction,\n"
+        "Carslaw and Jaeger 1959), held at 50 K by a fractional PI^lambda D^mu\n"
+        "controller with heater limits and a rate limit.\n\n"
+    )
     runs, res = {}, {}
     for memory in ("compressed", "exact"):
         t, theta, q, c, secs = simulate(memory, steps)
@@ -179,17 +197,19 @@ def run(out=sys.stdout, out_dir=DEFAULT_OUT_DIR, steps=STEPS):
         res[memory] = (metrics(t, theta, q), secs, c.nbytes, c.past_horizon)
     dev_theta = float(np.max(np.abs(runs["compressed"][0] - runs["exact"][0])))
     dev_q = float(np.max(np.abs(runs["compressed"][1] - runs["exact"][1])))
-    w(f"{steps} steps of {STEP} s ({steps * STEP:g} s); controller "
-      f"Kp={KP:g} Ki={KI:g} Kd={KD:g} lambda={LAMBDA} mu={MU}\n")
-    w(f"{'memory':<11}{'settling s':>11}{'overshoot %':>13}{'energy MJ/m2':>14}"
-      f"{'loop s':>9}{'ctrl bytes':>12}\n")
+    w(
+        f"{steps} steps of {STEP} s ({steps * STEP:g} s); controller "
+        f"Kp={KP:g} Ki={KI:g} Kd={KD:g} lambda={LAMBDA} mu={MU}\n"
+    )
+    w(
+        f"{'memory':<11}{'settling s':>11}{'overshoot %':>13}{'energy MJ/m2':>14}"
+        f"{'loop s':>9}{'ctrl bytes':>12}\n"
+    )
     ok = True
     for memory, ((settle, over, energy), secs, nbytes, past) in res.items():
-        w(f"{memory:<11}{settle:>11.1f}{100 * over:>13.2f}{energy / 1e6:>14.3f}"
-          f"{secs:>9.2f}{nbytes:>12d}\n")
+        w(f"{memory:<11}{settle:>11.1f}{100 * over:>13.2f}{energy / 1e6:>14.3f}{secs:>9.2f}{nbytes:>12d}\n")
         ok &= math.isfinite(settle) and not past
-    w(f"largest deviation between memories: {dev_theta:.3g} K in theta, "
-      f"{dev_q:.3g} W/m^2 in heater flux\n")
+    w(f"largest deviation between memories: {dev_theta:.3g} K in theta, {dev_q:.3g} W/m^2 in heater flux\n")
     os.makedirs(out_dir, exist_ok=True)
     files = []
     path = os.path.join(out_dir, "trajectory.csv")
@@ -197,9 +217,16 @@ def run(out=sys.stdout, out_dir=DEFAULT_OUT_DIR, steps=STEPS):
     with open(tmp, "w", encoding="utf-8", newline="") as fh:
         fh.write("# invented demonstration data (pyfracconv demo)\n")
         fh.write("t,setpoint,theta_compressed,q_compressed,theta_exact,q_exact\n")
-        data = np.column_stack([t, np.full(t.size, SETPOINT), runs["compressed"][0],
-                                runs["compressed"][1], runs["exact"][0],
-                                runs["exact"][1]])
+        data = np.column_stack(
+            [
+                t,
+                np.full(t.size, SETPOINT),
+                runs["compressed"][0],
+                runs["compressed"][1],
+                runs["exact"][0],
+                runs["exact"][1],
+            ]
+        )
         np.savetxt(fh, data, delimiter=",", fmt="%.17g")
     os.replace(tmp, path)
     files.append(path)
@@ -207,9 +234,11 @@ def run(out=sys.stdout, out_dir=DEFAULT_OUT_DIR, steps=STEPS):
     w("files: " + ", ".join(files) + "\n")
     if note:
         w(note + "\n")
-    w("\nCAUTION: a controller moves real machinery. Validate in simulation and\n"
-      "on the plant, keep actuator and rate limits, keep an independent safe\n"
-      "stop that does not depend on this software, and follow local codes,\n"
-      "standards and licensed engineering practice.\n")
+    w(
+        "\nCAUTION: a controller moves real machinery. Validate in simulation and\n"
+        "on the plant, keep actuator and rate limits, keep an independent safe\n"
+        "stop that does not depend on this software, and follow local codes,\n"
+        "standards and licensed engineering practice.\n"
+    )
     w("loop settled with both memories\n" if ok else "FAIL: the loop did not settle\n")
     return 0 if ok else 1

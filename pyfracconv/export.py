@@ -24,8 +24,8 @@ from ._fracconv import ffi, lib
 __all__ = ["export_c", "ExportedOperator", "export_controller_c", "ExportedController"]
 
 BAND = 64
-_S_HDR = 80       # stream header (csrc/stream.c, save format)
-_CS_HDR = 72      # compressed payload header (csrc/stream_compressed.c)
+_S_HDR = 80  # stream header (csrc/stream.c, save format)
+_CS_HDR = 72  # compressed payload header (csrc/stream_compressed.c)
 _MEASURE_LEN = 2000
 # The rules whose compressed engine the generated code reproduces (each
 # has its own branches below); a rule added to the library's table is
@@ -56,12 +56,12 @@ class ExportedOperator:
     def files(self):
         """{file name: text} of the three files."""
         p = self.prefix
-        return {f"{p}.h": self.header, f"{p}.c": self.source,
-                f"{p}_testvec.h": self.test_vector}
+        return {f"{p}.h": self.header, f"{p}.c": self.source, f"{p}_testvec.h": self.test_vector}
 
     def write(self, directory):
         """Write the three files into ``directory``; returns their paths."""
         import os
+
         paths = []
         for name, text in self.files.items():
             path = os.path.join(directory, name)
@@ -73,12 +73,15 @@ class ExportedOperator:
 
 # ----------------------------------------------------------------- blob
 
+
 def _compressed_blob(code, order, step, tol, horizon):
     pp = ffi.new("fc_stream **")
-    st = lib.fc_stream_create(code, order, step, 1, lib.FC_MODE_COMPRESSED, tol,
-                              horizon, pp)
-    raise_for_status(st, f"compressed stream (order={show(order)}, step={show(step)}, "
-                         f"tol={show(tol)}, horizon={show(horizon)})")
+    st = lib.fc_stream_create(code, order, step, 1, lib.FC_MODE_COMPRESSED, tol, horizon, pp)
+    raise_for_status(
+        st,
+        f"compressed stream (order={show(order)}, step={show(step)}, "
+        f"tol={show(tol)}, horizon={show(horizon)})",
+    )
     s = ffi.gc(pp[0], lib.fc_stream_free)
     size = ffi.new("size_t *")
     raise_for_status(lib.fc_stream_save_size(s, size), "save size")
@@ -112,18 +115,30 @@ def _parse(blob):
     cb = take(BAND)
     c0 = float(take(1)[0])
     ctab = take(BAND)
-    return dict(rule=rule, L=L, order=order, step=step, tol=tol, horizon=horizon,
-                q=q, beta=beta, inj=inj, cb=cb, c0=c0, ctab=ctab)
+    return dict(
+        rule=rule,
+        L=L,
+        order=order,
+        step=step,
+        tol=tol,
+        horizon=horizon,
+        q=q,
+        beta=beta,
+        inj=inj,
+        cb=cb,
+        c0=c0,
+        ctab=ctab,
+    )
 
 
 # ------------------------------------------------------ reference runs
+
 
 def _library_outputs(s, x):
     raise_for_status(lib.fc_stream_reset(s), "reset")
     x = np.ascontiguousarray(x, dtype=np.float64)
     y = np.empty_like(x)
-    st = lib.fc_stream_push_block(s, ffi.from_buffer("double[]", x), len(x),
-                                  ffi.from_buffer("double[]", y))
+    st = lib.fc_stream_push_block(s, ffi.from_buffer("double[]", x), len(x), ffi.from_buffer("double[]", y))
     raise_for_status(st, "push_block")
     return y
 
@@ -134,6 +149,7 @@ def _scale(rule_name, order, step, x):
     (fc_stream_create in fracconv.h). For the rectangle rule at order >= 1
     the rule's own terms bound the engine's (soe_build.c)."""
     from ._core import weights
+
     n = len(x)
     ax = np.abs(x)
     if rule_name == "rectangle":
@@ -150,8 +166,9 @@ def _scale(rule_name, order, step, x):
     ax1 = ax.copy()
     ax1[0] = 0.0
     st = np.empty(n)
-    raise_for_status(lib.fc_trapezoid_start(order, step, 0, n, ffi.from_buffer("double[]", st)),
-                     "trapezoid start")
+    raise_for_status(
+        lib.fc_trapezoid_start(order, step, 0, n, ffi.from_buffer("double[]", st)), "trapezoid start"
+    )
     return np.convolve(ax1, w)[:n] + np.abs(st) * ax[0]
 
 
@@ -195,8 +212,9 @@ class _OpSim:
     def _fma(self, a, b, c):
         T = self.T
         if self.fused:
-            return (np.asarray(a, np.float64) * np.asarray(b, np.float64)
-                    + np.asarray(c, np.float64)).astype(T)
+            return (np.asarray(a, np.float64) * np.asarray(b, np.float64) + np.asarray(c, np.float64)).astype(
+                T
+            )
         return (a * b).astype(T) + c
 
     def out(self, xv, commit=False):
@@ -224,8 +242,7 @@ class _OpSim:
         terms = T(0)
         S = Sc = None
         if self.co["L"]:
-            dd = ((self.inj * d).astype(T) if (self.trap and n == BAND)
-                  else np.full(self.Lp, d, T))
+            dd = (self.inj * d).astype(T) if (self.trap and n == BAND) else np.full(self.Lp, d, T)
             t = fma(-self.q, self.S, dd)
             t3 = (t + self.Sc).astype(T)
             s = (self.S + t3).astype(T)
@@ -236,13 +253,13 @@ class _OpSim:
             e = np.where(np.abs(e) >= tiny, e, T(0)).astype(T)
             acc = np.zeros(8, T)
             for blk in range(0, self.Lp, 8):
-                acc = fma(self.beta[blk:blk + 8], s[blk:blk + 8], acc)
+                acc = fma(self.beta[blk : blk + 8], s[blk : blk + 8], acc)
             S, Sc = s, e
             terms = _reduce8(acc, T)
-        w = ring[pos + 1:pos + 1 + BAND]
+        w = ring[pos + 1 : pos + 1 + BAND]
         acc16 = np.zeros(16, T)
         for j in range(0, BAND, 16):
-            acc16 = fma(self.cb[j:j + 16], w[j:j + 16], acc16)
+            acc16 = fma(self.cb[j : j + 16], w[j : j + 16], acc16)
         band = _reduce8((acc16[:8] + acc16[8:]).astype(T), T)
         x0 = xv if n == 0 else self.x0s
         corr = self.ctab[n] if (self.trap and n < BAND) else T(0)
@@ -272,12 +289,14 @@ def _measure_inputs(n, seed):
     rng = np.random.default_rng(seed)
     spikes = np.zeros(n)
     spikes[0] = 1.0
-    spikes[rng.choice(np.arange(1, n), size=max(1, n // 100), replace=False)] = \
-        rng.choice([-1.0, 1.0], size=max(1, n // 100))
+    spikes[rng.choice(np.arange(1, n), size=max(1, n // 100), replace=False)] = rng.choice(
+        [-1.0, 1.0], size=max(1, n // 100)
+    )
     return {"random": rng.standard_normal(n), "step": np.ones(n), "spike": spikes}
 
 
 # ----------------------------------------------------------- C text
+
 
 def _lit(v, single):
     v = float(v)
@@ -292,7 +311,7 @@ def _array(name, ctype, vals, single):
     items = [_lit(v, single) for v in vals]
     lines = []
     for i in range(0, len(items), 3):
-        lines.append("    " + ", ".join(items[i:i + 3]) + ",")
+        lines.append("    " + ", ".join(items[i : i + 3]) + ",")
     return f"static const {ctype} {name}[{len(items)}] = {{\n" + "\n".join(lines) + "\n};\n"
 
 
@@ -308,8 +327,9 @@ _CAUTION = """\
  * over anything said here."""
 
 
-def export_c(rule, order, step, tol=1e-9, horizon=1e6, precision="double",
-             prefix="fcop", test_length=300, seed=0):
+def export_c(
+    rule, order, step, tol=1e-9, horizon=1e6, precision="double", prefix="fcop", test_length=300, seed=0
+):
     """Export a compressed-mode operator as one C99 source and header.
 
     Parameters
@@ -387,7 +407,8 @@ def export_c(rule, order, step, tol=1e-9, horizon=1e6, precision="double",
         raise ArgumentError(
             f"order={show(order)}, rule='trapezoid': export_c serves the trapezoid "
             "rule for 0 < order < 1 only; use rule='rectangle' (also 1 <= order < 2) "
-            "or a compressed Stream")
+            "or a compressed Stream"
+        )
     h = check_step(step)
     t, hz = check_compressed(tol, horizon)
     if precision not in ("double", "single"):
@@ -417,7 +438,8 @@ def export_c(rule, order, step, tol=1e-9, horizon=1e6, precision="double",
                 raise ArgumentError(
                     f"step={show(step)}, order={show(order)}: a coefficient leaves "
                     "the single-precision range; use precision='double' or a step "
-                    "nearer 1")
+                    "nearer 1"
+                )
 
     # the test vector: the library's stream on random inputs
     rng = np.random.default_rng(seed)
@@ -449,7 +471,7 @@ def export_c(rule, order, step, tol=1e-9, horizon=1e6, precision="double",
         measured = worst
         # the statement: twice the measured figure, and never below 16
         # single-precision units
-        stated = max(2.0 * measured, 16 * 2.0 ** -24)
+        stated = max(2.0 * measured, 16 * 2.0**-24)
         method = (
             f" * Measured at export: the single-precision update emulated in NumPy\n"
             f" * float32 arithmetic (same lanes and order; once with multiply-add,\n"
@@ -466,7 +488,8 @@ def export_c(rule, order, step, tol=1e-9, horizon=1e6, precision="double",
             f" * rounding a double input to float is not included (for the L1 rule\n"
             f" * it can be large relative to small differences x_n - x_(n-1)).\n"
             f" * Inputs much longer than {nm} samples or of a very different shape were\n"
-            f" * not measured: check them on the target.\n")
+            f" * not measured: check them on the target.\n"
+        )
     if not single:
         # the multiply-add build (no hardware fma): its arithmetic is exactly
         # NumPy's float64, so its deviation from the library is measured here
@@ -486,31 +509,40 @@ def export_c(rule, order, step, tol=1e-9, horizon=1e6, precision="double",
             f" * Measured at export for the multiply-add build (its arithmetic run in\n"
             f" * NumPy float64) against the library's stream on {nm} samples each of\n"
             f" * normal noise, a unit step and unit spikes: largest deviation\n"
-            f" * {measured:.3e} of the error scale, i.e. {measured / 2.0 ** -52:.2f} * 2^-52.\n")
-    texts = _generate(prefix, rule, a, h, t, hz, last, co, single, measured, stated,
-                      method, xt, yt, st)
-    info = dict(rule=rule, order=a, step=h, tol=t, horizon=hz, precision=precision,
-                terms=L, measured=measured, stated=stated)
+            f" * {measured:.3e} of the error scale, i.e. {measured / 2.0**-52:.2f} * 2^-52.\n"
+        )
+    texts = _generate(prefix, rule, a, h, t, hz, last, co, single, measured, stated, method, xt, yt, st)
+    info = dict(
+        rule=rule,
+        order=a,
+        step=h,
+        tol=t,
+        horizon=hz,
+        precision=precision,
+        terms=L,
+        measured=measured,
+        stated=stated,
+    )
     return ExportedOperator(prefix, *texts, info)
 
 
-def _generate(P, rule, a, h, tol, hz, last, co, single, measured, stated, method,
-              xt, yt, st):
+def _generate(P, rule, a, h, tol, hz, last, co, single, measured, stated, method, xt, yt, st):
     U = P.upper()
     R = "float" if single else "double"
     L, Lp = co["L"], co["Lp"]
     trap = rule == "trapezoid"
     l1 = rule == "l1"
     cum = co["cum"]
-    desc = {"rectangle": "Riemann-Liouville integral, product rectangle rule",
-            "trapezoid": "Riemann-Liouville integral, product trapezoidal rule",
-            "grunwald": "Riemann-Liouville derivative, Grunwald-Letnikov",
-            "l1": "Caputo derivative, L1 scheme"}[rule]
+    desc = {
+        "rectangle": "Riemann-Liouville integral, product rectangle rule",
+        "trapezoid": "Riemann-Liouville integral, product trapezoidal rule",
+        "grunwald": "Riemann-Liouville derivative, Grunwald-Letnikov",
+        "l1": "Caputo derivative, L1 scheme",
+    }[rule]
     if cum:
         desc += "\n *   (order >= 1: the engine runs on the running sum of the input)"
     if single:
-        acc_note = (
-            " * PRECISION: single (float). See ERROR below.\n")
+        acc_note = " * PRECISION: single (float). See ERROR below.\n"
     else:
         acc_note = (
             " * PRECISION: double. Built where the compiler defines __FP_FAST_FMA\n"
@@ -521,8 +553,8 @@ def _generate(P, rule, a, h, tol, hz, last, co, single, measured, stated, method
             " * outputs then differ from the library's by a few units in the last\n"
             " * place of the error scale (the tests measure and bound the deviation\n"
             " * by 64 * 2^-52 of the error scale sum_k |c_(n-k) u_k|). Compile in an\n"
-            " * ISO mode (-std=c99) so that the compiler does not contract on its own.\n"
-            + method)
+            " * ISO mode (-std=c99) so that the compiler does not contract on its own.\n" + method
+        )
     err = ""
     if single:
         err = " *\n * ERROR (single precision).\n" + method
@@ -604,7 +636,8 @@ int {P}_step({P}_state *st, {P}_real x, {P}_real *y);
             "        Xlo = (s - (H - z)) + (t - z);\n"
             "        Xhi = H;\n"
             "        u = Xhi;\n"
-            "    }")
+            "    }"
+        )
     else:
         u_code = "u = x;"
     if L:
@@ -730,8 +763,11 @@ int {P}_step({P}_state *st, {P}_real x, {P}_real *y)
 }}
 """
     n = len(xt)
-    relnote = ("the stated single-precision bound" if single else
-               "64 * 2^-52, the rounding allowance; with hardware fma the outputs are equal")
+    relnote = (
+        "the stated single-precision bound"
+        if single
+        else "64 * 2^-52, the rounding allowance; with hardware fma the outputs are equal"
+    )
     tv = f"""\
 /*
  * {P}_testvec.h -- generated by pyfracconv.export_c: a test vector for
@@ -795,12 +831,14 @@ class ExportedController(ExportedOperator):
 
 def _ctl_params(controller):
     from .control import Controller
+
     if isinstance(controller, Controller):
         return dict(controller.params)
     if isinstance(controller, dict):
         return dict(Controller(**controller).params)
-    raise ArgumentError(f"controller={show(controller)}: expected a pyfracconv.Controller "
-                        "or a dict of its keyword arguments")
+    raise ArgumentError(
+        f"controller={show(controller)}: expected a pyfracconv.Controller or a dict of its keyword arguments"
+    )
 
 
 def _op_coeffs(rule, order, step, tol, horizon):
@@ -826,8 +864,7 @@ class _CtlSim:
         self.k, self.T = k, T
         self.opi = _OpSim(ops["i"], T, fused) if "i" in ops else None
         self.opd = _OpSim(ops["d"], T, fused) if "d" in ops else None
-        self.c = {n: T(k[n]) for n in ("kp", "ki", "kd", "b", "c", "step", "tf", "rate",
-                                        "lo", "hi")}
+        self.c = {n: T(k[n]) for n in ("kp", "ki", "kd", "b", "c", "step", "tf", "rate", "lo", "hi")}
         self.u_prev = self.dfilt = self.bias = self.u_manual = T(0)
         self.have_prev = self.manual = False
 
@@ -907,6 +944,7 @@ def _ctl_inputs(k, n, seed, kind):
     are reached in the transients), plus measurement noise; kind 'noise':
     random setpoint levels and a noisy measurement, open loop."""
     from .control import Controller
+
     rng = np.random.default_rng(seed)
     lo, hi = k["lo"], k["hi"]
     if np.isfinite(lo) and np.isfinite(hi):
@@ -938,19 +976,20 @@ def _ctl_library(params, r, y):
     """The library's outputs and each run's action scale max_n (|P| + |I| +
     |D| + |bias|)."""
     from .control import Controller
+
     ctl = Controller(**params)
     u = np.empty(len(r))
     scale = 0.0
     for i in range(len(r)):
         u[i] = ctl.update(r[i], y[i])
         t = ctl.terms
-        scale = max(scale, abs(t["proportional"]) + abs(t["integral"])
-                    + abs(t["derivative"]) + abs(t["bias"]))
+        scale = max(
+            scale, abs(t["proportional"]) + abs(t["integral"]) + abs(t["derivative"]) + abs(t["bias"])
+        )
     return u, scale
 
 
-def export_controller_c(controller, precision="double", prefix="fcpid", test_length=600,
-                        seed=0):
+def export_controller_c(controller, precision="double", prefix="fcpid", test_length=600, seed=0):
     """Export a controller as one self-contained C99 source and header.
 
     The generated update is the library's controller (the law, setpoint
@@ -1039,42 +1078,61 @@ def export_controller_c(controller, precision="double", prefix="fcpid", test_len
     if p["memory"] != "compressed":
         raise ArgumentError(
             f"memory={show(p['memory'])}: export_controller_c exports compressed memory "
-            "only (an exact history grows without bound); use memory='compressed'")
+            "only (an exact history grows without bound); use memory='compressed'"
+        )
     if precision not in ("double", "single"):
         raise ArgumentError(f"precision={show(precision)}: must be 'double' or 'single'")
     if not (isinstance(prefix, str) and prefix.isidentifier() and prefix.isascii()):
         raise ArgumentError(f"prefix={show(prefix)}: must be a C identifier")
-    if not (isinstance(test_length, int) and not isinstance(test_length, bool)
-            and 1 <= test_length <= 100000):
+    if not (
+        isinstance(test_length, int) and not isinstance(test_length, bool) and 1 <= test_length <= 100000
+    ):
         raise ArgumentError(f"test_length={show(test_length)}: must be an int in [1, 100000]")
     if p["ki"] != 0 and p["integral_rule"] == "trapezoid" and p["integral_order"] >= 1.0:
         raise ArgumentError(
             f"integral_rule='trapezoid', integral_order={show(p['integral_order'])}: "
             "export_controller_c serves the trapezoid rule for integral_order < 1 only "
             "(its compressed stream reads starting weights at run time); use "
-            "integral_rule='rectangle'")
+            "integral_rule='rectangle'"
+        )
     single = precision == "single"
     lo, hi = p["output_limits"]
-    k = dict(kp=p["kp"], ki=p["ki"], kd=p["kd"], b=p["setpoint_weight"],
-             c=p["derivative_weight"], step=p["step"], tf=p["derivative_filter"],
-             rate=p["rate_limit"], lo=lo, hi=hi, aw=p["anti_windup"], params=p)
+    k = dict(
+        kp=p["kp"],
+        ki=p["ki"],
+        kd=p["kd"],
+        b=p["setpoint_weight"],
+        c=p["derivative_weight"],
+        step=p["step"],
+        tf=p["derivative_filter"],
+        rate=p["rate_limit"],
+        lo=lo,
+        hi=hi,
+        aw=p["anti_windup"],
+        params=p,
+    )
     if single:
-        for name, v in (("kp", p["kp"]), ("ki", p["ki"]), ("kd", p["kd"]),
-                        ("setpoint_weight", p["setpoint_weight"]),
-                        ("derivative_weight", p["derivative_weight"]), ("step", p["step"]),
-                        ("derivative_filter", p["derivative_filter"]),
-                        ("rate_limit", p["rate_limit"]), ("output_limits[0]", lo),
-                        ("output_limits[1]", hi)):
+        for name, v in (
+            ("kp", p["kp"]),
+            ("ki", p["ki"]),
+            ("kd", p["kd"]),
+            ("setpoint_weight", p["setpoint_weight"]),
+            ("derivative_weight", p["derivative_weight"]),
+            ("step", p["step"]),
+            ("derivative_filter", p["derivative_filter"]),
+            ("rate_limit", p["rate_limit"]),
+            ("output_limits[0]", lo),
+            ("output_limits[1]", hi),
+        ):
             if np.isfinite(v) and (abs(v) > 1e37 or (v != 0 and abs(v) < 1e-37)):
-                raise ArgumentError(f"{name}={show(v)}: outside the single-precision "
-                                    "range; use precision='double'")
+                raise ArgumentError(
+                    f"{name}={show(v)}: outside the single-precision range; use precision='double'"
+                )
     ops = {}
     if p["ki"] != 0:
-        ops["i"] = _op_coeffs(p["integral_rule"], p["integral_order"], p["step"], p["tol"],
-                              p["horizon"])
+        ops["i"] = _op_coeffs(p["integral_rule"], p["integral_order"], p["step"], p["tol"], p["horizon"])
     if p["kd"] != 0:
-        ops["d"] = _op_coeffs(p["derivative_rule"], p["derivative_order"], p["step"], p["tol"],
-                              p["horizon"])
+        ops["d"] = _op_coeffs(p["derivative_rule"], p["derivative_order"], p["step"], p["tol"], p["horizon"])
     if single:
         for co in ops.values():
             for key in ("qp", "betap", "injp", "cb", "ctab"):
@@ -1084,7 +1142,8 @@ def export_controller_c(controller, precision="double", prefix="fcpid", test_len
                     raise ArgumentError(
                         f"step={show(p['step'])}: a coefficient of the controller's "
                         "operators leaves the single-precision range; use "
-                        "precision='double' or a step nearer 1")
+                        "precision='double' or a step nearer 1"
+                    )
     last = int(np.floor(p["horizon"]))
     T = np.float32 if single else np.float64
 
@@ -1099,7 +1158,7 @@ def export_controller_c(controller, precision="double", prefix="fcpid", test_len
         r, y = _ctl_inputs(k, nm, _CTL_SEED, kind)
         r, y = rnd(r), rnd(y)
         ref, scale = _ctl_library(p, r, y)
-        for fused in ((False, True) if single else (False,)):
+        for fused in (False, True) if single else (False,):
             sim = _CtlSim(k, ops, T, fused)
             with np.errstate(all="ignore"):
                 got = np.array([float(sim.update(a, b)) for a, b in zip(r, y)])
@@ -1107,7 +1166,7 @@ def export_controller_c(controller, precision="double", prefix="fcpid", test_len
             worst = max(worst, err / scale if scale > 0 else (np.inf if err else 0.0))
             runs += 1
     measured = worst
-    floor_ = 16 * 2.0 ** -24 if single else 64 * 2.0 ** -52
+    floor_ = 16 * 2.0**-24 if single else 64 * 2.0**-52
     stated = max(2.0 * measured, floor_)
     # the test vector: a closed loop of another seed
     nt = min(test_length, last + 1)
@@ -1115,8 +1174,9 @@ def export_controller_c(controller, precision="double", prefix="fcpid", test_len
     rt, yt = rnd(rt), rnd(yt)
     ut, st = _ctl_library(p, rt, yt)
     texts = _ctl_generate(prefix, p, k, ops, single, last, nm, measured, stated, rt, yt, ut, st)
-    info = dict(params=p, precision=precision,
-                terms={n: ops[n]["L"] for n in ops}, measured=measured, stated=stated)
+    info = dict(
+        params=p, precision=precision, terms={n: ops[n]["L"] for n in ops}, measured=measured, stated=stated
+    )
     return ExportedController(prefix, *texts, info)
 
 
@@ -1160,7 +1220,8 @@ typedef struct {{
             "        Xlo = (s - (H - z)) + (t - z);\n"
             "        Xhi = H;\n"
             "        u = Xhi;\n"
-            "    }")
+            "    }"
+        )
     else:
         u_code = "u = x;"
     if L:
@@ -1256,10 +1317,12 @@ static void {N}_init({N}_state *st)
     return stype, func
 
 
-_OP_DESC = {"rectangle": "Riemann-Liouville integral, product rectangle rule",
-            "trapezoid": "Riemann-Liouville integral, product trapezoidal rule",
-            "grunwald": "Riemann-Liouville derivative, Grunwald-Letnikov",
-            "l1": "Caputo derivative, L1 scheme"}
+_OP_DESC = {
+    "rectangle": "Riemann-Liouville integral, product rectangle rule",
+    "trapezoid": "Riemann-Liouville integral, product trapezoidal rule",
+    "grunwald": "Riemann-Liouville derivative, Grunwald-Letnikov",
+    "l1": "Caputo derivative, L1 scheme",
+}
 
 
 def _ctl_generate(P, p, k, ops, single, last, nm, measured, stated, rt, yt, ut, st):
@@ -1274,49 +1337,59 @@ def _ctl_generate(P, p, k, ops, single, last, nm, measured, stated, rt, yt, ut, 
     lo, hi = k["lo"], k["hi"]
     has_lo, has_hi = bool(np.isfinite(lo)), bool(np.isfinite(hi))
     has_rate = bool(np.isfinite(k["rate"]))
-    lines = [f" *   kp {p['kp']!r}, ki {p['ki']!r}, kd {p['kd']!r}, step {p['step']!r}",
-             f" *   setpoint weights b {p['setpoint_weight']!r} (proportional), "
-             f"c {p['derivative_weight']!r} (derivative)",
-             f" *   output limits [{lo!r}, {hi!r}], rate limit {p['rate_limit']!r} per unit time",
-             f" *   derivative filter time {p['derivative_filter']!r}, conditional integration "
-             f"{'on' if k['aw'] else 'off'}",
-             f" *   compressed memory: tol {p['tol']!r}, horizon {p['horizon']!r} samples"]
+    lines = [
+        f" *   kp {p['kp']!r}, ki {p['ki']!r}, kd {p['kd']!r}, step {p['step']!r}",
+        f" *   setpoint weights b {p['setpoint_weight']!r} (proportional), "
+        f"c {p['derivative_weight']!r} (derivative)",
+        f" *   output limits [{lo!r}, {hi!r}], rate limit {p['rate_limit']!r} per unit time",
+        f" *   derivative filter time {p['derivative_filter']!r}, conditional integration "
+        f"{'on' if k['aw'] else 'off'}",
+        f" *   compressed memory: tol {p['tol']!r}, horizon {p['horizon']!r} samples",
+    ]
     if "i" in ops:
-        lines.append(f" *   integral: {_OP_DESC[p['integral_rule']]}, order "
-                     f"{p['integral_order']!r} ({ops['i']['L']} exponential terms)")
+        lines.append(
+            f" *   integral: {_OP_DESC[p['integral_rule']]}, order "
+            f"{p['integral_order']!r} ({ops['i']['L']} exponential terms)"
+        )
     else:
         lines.append(" *   integral: none (ki = 0)")
     if "d" in ops:
-        lines.append(f" *   derivative: {_OP_DESC[p['derivative_rule']]}, order "
-                     f"{p['derivative_order']!r} ({ops['d']['L']} exponential terms)")
+        lines.append(
+            f" *   derivative: {_OP_DESC[p['derivative_rule']]}, order "
+            f"{p['derivative_order']!r} ({ops['d']['L']} exponential terms)"
+        )
     else:
         lines.append(" *   derivative: none (kd = 0)")
     settings = "\n".join(lines)
     if single:
-        prec = (" * PRECISION: single (float): every constant and operation.\n")
+        prec = " * PRECISION: single (float): every constant and operation.\n"
         fl = "16 * 2^-24"
     else:
-        prec = (" * PRECISION: double. Where the compiler defines __FP_FAST_FMA (a\n"
-                " * hardware fused multiply-add: -mfma on x86-64, AArch64 by default)\n"
-                " * the operators' products use __builtin_fma, as the library's fma()\n"
-                " * calls, and the outputs equal the library's controller bit for bit;\n"
-                " * elsewhere each fused product is a multiply and an add. Compile in an\n"
-                " * ISO mode (-std=c99) so that the compiler does not contract on its own.\n")
+        prec = (
+            " * PRECISION: double. Where the compiler defines __FP_FAST_FMA (a\n"
+            " * hardware fused multiply-add: -mfma on x86-64, AArch64 by default)\n"
+            " * the operators' products use __builtin_fma, as the library's fma()\n"
+            " * calls, and the outputs equal the library's controller bit for bit;\n"
+            " * elsewhere each fused product is a multiply and an add. Compile in an\n"
+            " * ISO mode (-std=c99) so that the compiler does not contract on its own.\n"
+        )
         fl = "64 * 2^-52"
-    kinds = ("unfused and fused (fma) products" if single else "multiply-add products")
-    err = (f" * ERROR. Measured at export: this update emulated in NumPy {R}\n"
-           f" * arithmetic (same operations in the same order; {kinds}) against the\n"
-           f" * library's double-precision controller on {nm} samples each of two\n"
-           f" * records (seed {_CTL_SEED}): the library's controller holding a first-order\n"
-           f" * plant (time constant 20 steps) through setpoint steps to random levels\n"
-           f" * across the output range, and noisy open-loop records. Error measure:\n"
-           f" * max_n |u_n - u_lib,n| divided by the run's action scale\n"
-           f" * max_n (|P_n| + |I_n| + |D_n| + |bias_n|) of the library's terms.\n"
-           f" * Largest measured: {measured:.3e}. Stated bound (twice that, at least\n"
-           f" * {fl}): {stated:.3e} of the action scale. The inputs were numbers of\n"
-           f" * the generated type (what {P}_update receives). Records much longer\n"
-           f" * than {nm} samples or of a very different shape were not measured:\n"
-           f" * check them on the target (the test vector is one such check).\n")
+    kinds = "unfused and fused (fma) products" if single else "multiply-add products"
+    err = (
+        f" * ERROR. Measured at export: this update emulated in NumPy {R}\n"
+        f" * arithmetic (same operations in the same order; {kinds}) against the\n"
+        f" * library's double-precision controller on {nm} samples each of two\n"
+        f" * records (seed {_CTL_SEED}): the library's controller holding a first-order\n"
+        f" * plant (time constant 20 steps) through setpoint steps to random levels\n"
+        f" * across the output range, and noisy open-loop records. Error measure:\n"
+        f" * max_n |u_n - u_lib,n| divided by the run's action scale\n"
+        f" * max_n (|P_n| + |I_n| + |D_n| + |bias_n|) of the library's terms.\n"
+        f" * Largest measured: {measured:.3e}. Stated bound (twice that, at least\n"
+        f" * {fl}): {stated:.3e} of the action scale. The inputs were numbers of\n"
+        f" * the generated type (what {P}_update receives). Records much longer\n"
+        f" * than {nm} samples or of a very different shape were not measured:\n"
+        f" * check them on the target (the test vector is one such check).\n"
+    )
     types = []
     fields = []
     funcs = []
@@ -1401,10 +1474,14 @@ int {P}_status(const {P}_state *st);
             code = f"({v} < {U}_OUT_MIN ? {U}_OUT_MIN : {code})"
         return code
 
-    consts = [f"#define {U}_KP {lit(p['kp'])}", f"#define {U}_KI {lit(p['ki'])}",
-              f"#define {U}_KD {lit(p['kd'])}", f"#define {U}_B {lit(p['setpoint_weight'])}",
-              f"#define {U}_C {lit(p['derivative_weight'])}",
-              f"#define {U}_STEP {lit(p['step'])}"]
+    consts = [
+        f"#define {U}_KP {lit(p['kp'])}",
+        f"#define {U}_KI {lit(p['ki'])}",
+        f"#define {U}_KD {lit(p['kd'])}",
+        f"#define {U}_B {lit(p['setpoint_weight'])}",
+        f"#define {U}_C {lit(p['derivative_weight'])}",
+        f"#define {U}_STEP {lit(p['step'])}",
+    ]
     if has_lo:
         consts.append(f"#define {U}_OUT_MIN {lit(lo)}")
     if has_hi:
@@ -1424,8 +1501,11 @@ int {P}_status(const {P}_state *st);
 """
     hi_ = "i" in ops
     hd_ = "d" in ops
-    filt = (f"    D = ({U}_TF * st->dfilt + {U}_STEP * D) / ({U}_TF + {U}_STEP);\n"
-            if p["derivative_filter"] > 0 else "")
+    filt = (
+        f"    D = ({U}_TF * st->dfilt + {U}_STEP * D) / ({U}_TF + {U}_STEP);\n"
+        if p["derivative_filter"] > 0
+        else ""
+    )
     aw = ""
     if hi_ and k["aw"]:
         aw = f"""\
@@ -1462,9 +1542,12 @@ int {P}_status(const {P}_state *st);
     past = " || ".join(ph) if ph else "0"
     init_ops = "".join(
         f"    {P}_{key}op_init(&st->{field});\n"
-        for key, field in (("i", "integral"), ("d", "derivative")) if key in ops)
+        for key, field in (("i", "integral"), ("d", "derivative"))
+        if key in ops
+    )
     fin = "(X) - (X) == " + z
-    reduce8 = f"""\
+    reduce8 = (
+        f"""\
 static {Rr} {P}_reduce8(const {Rr} a[8])
 {{
     {Rr} v0 = a[0] + a[4], v1 = a[1] + a[5];
@@ -1472,7 +1555,10 @@ static {Rr} {P}_reduce8(const {Rr} a[8])
     return (v0 + v1) + (v2 + v3);
 }}
 
-""" if ops else ""
+"""
+        if ops
+        else ""
+    )
     source = f"""\
 /*
  * {P}.c -- generated by pyfracconv.export_controller_c; see {P}.h

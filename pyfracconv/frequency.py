@@ -184,8 +184,8 @@ def _omega(omega, step):
     nyq = math.pi / step
     if not np.all(np.isfinite(w)) or np.any(w <= 0) or np.any(w > nyq * (1 + 1e-12)):
         raise ArgumentError(
-            f"omega: every frequency must satisfy 0 < omega <= pi/step = {nyq:g} "
-            "(the Nyquist frequency)")
+            f"omega: every frequency must satisfy 0 < omega <= pi/step = {nyq:g} (the Nyquist frequency)"
+        )
     return w
 
 
@@ -198,7 +198,8 @@ def _impulse(rule, order, step, m, memory, tol, horizon):
     from .stream import Stream
 
     s = (Stream.integral if rule in _INTEGRALS else Stream.derivative)(
-        order, step, rule=rule, mode="compressed", tol=tol, horizon=horizon)
+        order, step, rule=rule, mode="compressed", tol=tol, horizon=horizon
+    )
     x = np.zeros(m + 1)
     if rule == "l1":
         x[1:] = 1.0
@@ -215,22 +216,22 @@ def _series(h, z, k):
     for _ in range(k):
         d = np.diff(np.r_[0.0, d])
     m = d.size
-    tail = np.abs(d[-max(8, m // 10):])
+    tail = np.abs(d[-max(8, m // 10) :])
     # monotone up to the rounding of the differences: each difference of
     # k-fold differences is off by at most 2^k * 2 eps * max |h|
     noise = 2.0 ** (k + 1) * np.finfo(float).eps * float(np.max(np.abs(h)))
     if not np.all(np.diff(tail) <= 2 * noise):
-        raise ArgumentError("the weights' tail is not monotone: no stated bound "
-                            "for the truncated series (use more terms)")
+        raise ArgumentError(
+            "the weights' tail is not monotone: no stated bound for the truncated series (use more terms)"
+        )
     j = np.arange(m)
-    s = np.array([np.dot(d, zz ** j) for zz in z])
+    s = np.array([np.dot(d, zz**j) for zz in z])
     one = np.abs(1 - z)
-    bound = (2 * (abs(d[-1]) + noise)) / one ** (k + 1) + m * noise / one ** k
+    bound = (2 * (abs(d[-1]) + noise)) / one ** (k + 1) + m * noise / one**k
     return s / (1 - z) ** k, bound
 
 
-def operator_response(rule, order, step, omega, *, memory="exact", terms=65536,
-                      tol=1e-10, horizon=1e9):
+def operator_response(rule, order, step, omega, *, memory="exact", terms=65536, tol=1e-10, horizon=1e9):
     """The complex frequency response of a rule at angular frequencies
     ``omega`` (0 < omega <= pi/step), beside the ideal (i omega)^(+-order).
 
@@ -328,7 +329,7 @@ def operator_response(rule, order, step, omega, *, memory="exact", terms=65536,
     if memory == "compressed":
         hc = _impulse(rule, order, h, m, "compressed", tol, horizon)
         j = np.arange(m)
-        s = s + np.array([np.dot(hc - he, zz ** j) for zz in z])
+        s = s + np.array([np.dot(hc - he, zz**j) for zz in z])
         # deviation of lags beyond M: tol * sum |h_j|, estimated from the
         # power law fitted to the last exact terms
         p = math.log(abs(he[-1]) / abs(he[m // 2])) / math.log((m - 1) / (m // 2))
@@ -413,6 +414,7 @@ def controller_response(controller, omega, *, terms=65536):
     pyfracconv._errors.InputTypeError: controller=None: expected a pyfracconv.Controller
     """
     from .control import Controller
+
     if not isinstance(controller, Controller):
         raise InputTypeError(f"controller={show(controller)}: expected a pyfracconv.Controller")
     p = controller.params

@@ -62,8 +62,11 @@ def _gauss(n: int) -> Tuple[FloatArray, FloatArray]:
     return 0.5 * (x + 1.0), 0.5 * w
 
 
-_BUCKETS = ((-1.0, 1.0 / 256.0, _gauss(4)), (1.0 / 256.0, 1.0 / 16.0, _gauss(8)),
-            (1.0 / 16.0, 0.5, _gauss(20)))
+_BUCKETS = (
+    (-1.0, 1.0 / 256.0, _gauss(4)),
+    (1.0 / 256.0, 1.0 / 16.0, _gauss(8)),
+    (1.0 / 16.0, 0.5, _gauss(20)),
+)
 
 
 def _refuse_grunwald(rule: object) -> None:
@@ -151,6 +154,7 @@ def _check_rule(rule: object, kinds: Tuple[str, ...] = GRID_RULES) -> str:
 
 # ---------------------------------------------------------------- kernels
 
+
 def _one_minus_pow(a: float, d: FloatArray, e: FloatArray, h: FloatArray) -> FloatArray:
     """1 - (e/d)^a for e = d - h >= 0, without cancellation:
     -expm1(a log1p(-h/d)) when h/d < 1/2, -expm1(a log(e/d)) otherwise
@@ -167,8 +171,7 @@ def _pow_diff(a: float, d: FloatArray, e: FloatArray, h: FloatArray) -> FloatArr
     return np.power(d, a) * _one_minus_pow(a, d, e, h)
 
 
-def _trap_parts(a: float, d: FloatArray, e: FloatArray,
-                h: FloatArray) -> Tuple[FloatArray, FloatArray]:
+def _trap_parts(a: float, d: FloatArray, e: FloatArray, h: FloatArray) -> Tuple[FloatArray, FloatArray]:
     """Gamma(a) times the weights of x_k (left hat) and x_{k+1} (right hat)
     that interval [t_k, t_{k+1}] contributes at t_n; see grid_weights."""
     s = h / d
@@ -180,10 +183,10 @@ def _trap_parts(a: float, d: FloatArray, e: FloatArray,
         r = eb / db
         with np.errstate(divide="ignore"):
             ell = np.log(r)
-        em = np.expm1(a * ell)           # r^a - 1, in [-1, 0]
-        ra = np.exp(a * ell)             # r^a
-        lt = a * sb + r * em             # a(a+1) int_r^1 v^(a-1) (v - r) dv
-        rt = -em - a * sb * ra           # a(a+1) int_r^1 v^(a-1) (1 - v) dv
+        em = np.expm1(a * ell)  # r^a - 1, in [-1, 0]
+        ra = np.exp(a * ell)  # r^a
+        lt = a * sb + r * em  # a(a+1) int_r^1 v^(a-1) (v - r) dv
+        rt = -em - a * sb * ra  # a(a+1) int_r^1 v^(a-1) (1 - v) dv
         scale = np.power(db, a) / (sb * a * (a + 1.0))
         left[big] = scale * lt
         right[big] = scale * rt
@@ -192,7 +195,7 @@ def _trap_parts(a: float, d: FloatArray, e: FloatArray,
         if not np.any(sel):
             continue
         ss = s[sel]
-        f = np.power(1.0 - ss[:, None] * x[None, :], a - 1.0)   # positive
+        f = np.power(1.0 - ss[:, None] * x[None, :], a - 1.0)  # positive
         jl = f @ (w * (1.0 - x))
         jr = f @ (w * x)
         scale = np.power(d[sel], a) * ss
@@ -201,8 +204,9 @@ def _trap_parts(a: float, d: FloatArray, e: FloatArray,
     return left, right
 
 
-def _row_parts(rule: str, a: float, d: FloatArray, e: FloatArray,
-               h: FloatArray) -> Tuple[FloatArray, FloatArray | None]:
+def _row_parts(
+    rule: str, a: float, d: FloatArray, e: FloatArray, h: FloatArray
+) -> Tuple[FloatArray, FloatArray | None]:
     """Per interval k: (coefficient, None) for rectangle (of x_k) and l1 (of
     x_{k+1} - x_k); (left, right) for the trapezoid."""
     if rule == "rectangle":
@@ -217,8 +221,7 @@ def _row_parts(rule: str, a: float, d: FloatArray, e: FloatArray,
 
 def _finite_or_raise(w: FloatArray, what: str) -> None:
     if not np.all(np.isfinite(w)):
-        raise RangeError(f"{what}: a weight is beyond the double range "
-                         "(times or order too large)")
+        raise RangeError(f"{what}: a weight is beyond the double range (times or order too large)")
 
 
 def grid_weights(rule: str, order: float, t: ArrayLike, n: int | None = None) -> FloatArray:
@@ -326,8 +329,8 @@ def grid_weights(rule: str, order: float, t: ArrayLike, n: int | None = None) ->
     idx = tt.size - 1 if n is None else check_count("n", n, 0, tt.size - 1)
     tn = tt[idx]
     d = tn - tt[:idx]
-    e = tn - tt[1:idx + 1]
-    h = np.diff(tt[:idx + 1])
+    e = tn - tt[1 : idx + 1]
+    h = np.diff(tt[: idx + 1])
     with np.errstate(over="ignore", invalid="ignore"):
         first, second = _row_parts(name, a, d, e, h)
     if name == "l1":
@@ -377,12 +380,12 @@ def apply_on_grid(rule: str, a: float, block: FloatArray, t: FloatArray) -> Floa
         budget = _BLOCK
         rows = int((math.sqrt(n0 * n0 + 4.0 * budget) - n0) / 2.0)
         rows = max(1, min(N - n0, rows))
-        n1 = n0 + rows                                # rows n0 .. n1-1
-        K = n1 - 1                                    # intervals 0 .. K-1
+        n1 = n0 + rows  # rows n0 .. n1-1
+        K = n1 - 1  # intervals 0 .. K-1
         tn = t[n0:n1, None]
         valid = np.arange(K)[None, :] < np.arange(n0, n1)[:, None]
         d = np.where(valid, tn - t[None, :K], 2.0)
-        e = np.where(valid, tn - t[None, 1:K + 1], 1.0)
+        e = np.where(valid, tn - t[None, 1 : K + 1], 1.0)
         h = np.where(valid, np.broadcast_to(dt[None, :K], d.shape), 1.0)
         first, second = _row_parts(rule, a, d.ravel(), e.ravel(), h.ravel())
         first = np.where(valid, first.reshape(d.shape), 0.0)
@@ -392,24 +395,26 @@ def apply_on_grid(rule: str, a: float, block: FloatArray, t: FloatArray) -> Floa
             w = np.zeros((rows, K + 1))
             w[:, :K] += first
             w[:, 1:] += second
-            x = src[:, :K + 1]
+            x = src[:, : K + 1]
         else:
             w = first
             x = src[:, :K]
         if not np.all(np.isfinite(w)):
             raise RangeError(
                 f"t (or order={show(a)}): a weight is beyond the double range "
-                f"(times up to {show(float(t[-1]))})")
+                f"(times up to {show(float(t[-1]))})"
+            )
         # the products of at most _PRODUCTS elements at a time
         group = max(1, _PRODUCTS // w.size)
         for s0 in range(0, nsig, group):
-            prod = w[None, :, :] * x[s0:s0 + group, None, :]
-            out[s0:s0 + group, n0:n1] = np.sum(prod, axis=-1)
+            prod = w[None, :, :] * x[s0 : s0 + group, None, :]
+            out[s0 : s0 + group, n0:n1] = np.sum(prod, axis=-1)
         n0 = n1
     return out
 
 
 # ---------------------------------------------------------------- meshes
+
 
 def graded_mesh(T: float, n: int, r: float, t0: float = 0.0) -> FloatArray:
     """The graded mesh t_k = t0 + T (k/n)^r, k = 0 .. n.
@@ -471,13 +476,13 @@ def graded_mesh(T: float, n: int, r: float, t0: float = 0.0) -> FloatArray:
     with np.errstate(over="ignore", under="ignore"):
         t = t0f + Tf * np.power(np.arange(N + 1) / N, rf)
     if not np.all(np.isfinite(t)):
-        raise ArgumentError(f"T={show(T)}, t0={show(t0)}: the last time is beyond "
-                            "the double range")
+        raise ArgumentError(f"T={show(T)}, t0={show(t0)}: the last time is beyond the double range")
     bad = np.flatnonzero(~(np.diff(t) > 0.0))
     if bad.size:
         i = int(bad[0])
         raise ArgumentError(
             f"n={N}, r={show(r)}: t[{i + 1}] = t[{i}] = {show(float(t[i]))} in "
             f"double precision (T={show(T)}, t0={show(t0)}); use fewer steps or a "
-            "smaller r")
+            "smaller r"
+        )
     return t

@@ -93,11 +93,11 @@ class RecordSummary(NamedTuple):
 
 # ------------------------------------------------------------------ checks
 
+
 def _check_path(name: str, path: object) -> str:
     if isinstance(path, (bytes, bytearray)) or not isinstance(path, (str, os.PathLike)):
         raise InputTypeError(
-            f"{name}={show(path)}: expected a file name (str or path), got "
-            f"{type(path).__name__}"
+            f"{name}={show(path)}: expected a file name (str or path), got {type(path).__name__}"
         )
     p = os.fspath(path)
     if not isinstance(p, str) or not p:
@@ -114,8 +114,7 @@ def _same_file(a: str, b: str) -> bool:
         return False
 
 
-def open_npy(path: str, label: str,
-             mmap_mode: Optional[Literal["r"]] = "r") -> np.ndarray[Any, Any]:
+def open_npy(path: str, label: str, mmap_mode: Optional[Literal["r"]] = "r") -> np.ndarray[Any, Any]:
     """A ``.npy`` record of signals (1-D, or 2-D with time along axis 0)
     after its checks, memory-mapped read-only by default; every error
     names ``label``. The command line reads its ``.npy`` inputs here too.
@@ -182,8 +181,7 @@ def open_npy(path: str, label: str,
         raise ArgumentError(f"{label}: not a .npy array file (an .npz archive?)")
     if arr.dtype.kind not in "iuf":
         raise InputTypeError(
-            f"{label}: holds values of dtype {arr.dtype}; expected real numbers "
-            "(integer or floating point)"
+            f"{label}: holds values of dtype {arr.dtype}; expected real numbers (integer or floating point)"
         )
     if arr.ndim not in (1, 2):
         raise ArgumentError(
@@ -256,10 +254,21 @@ def _tqdm() -> Any:
 
 # ------------------------------------------------------------------ apply
 
-def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
-              step: float, *, rule: Optional[str] = None, mode: str = "compressed",
-              tol: float = 1e-12, horizon: Optional[float] = None,
-              chunk: Optional[int] = None, progress: bool = False) -> RecordSummary:
+
+def apply_npy(
+    in_path: PathLike,
+    out_path: PathLike,
+    op: str,
+    order: float,
+    step: float,
+    *,
+    rule: Optional[str] = None,
+    mode: str = "compressed",
+    tol: float = 1e-12,
+    horizon: Optional[float] = None,
+    chunk: Optional[int] = None,
+    progress: bool = False,
+) -> RecordSummary:
     """Apply a fractional integral or derivative to a ``.npy`` record of
     any length, chunk by chunk, into a ``.npy`` file.
 
@@ -391,8 +400,7 @@ def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
                 f"outputs 0 .. {T - 1} need horizon >= {T - 1})"
             )
         check_compressed(tol, hz)
-        s = make(order, step, rule=rule, channels=channels, mode="compressed",
-                 tol=tol, horizon=hz)
+        s = make(order, step, rule=rule, channels=channels, mode="compressed", tol=tol, horizon=hz)
     else:
         need = EXACT_BYTES_PER_SAMPLE * T * C + 3 * 8 * rows * C
         ram = _checks._RAM
@@ -413,12 +421,10 @@ def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
     bar = None
     try:
         try:
-            fd, tmp = tempfile.mkstemp(prefix=".pyfracconv-", suffix=".npy.tmp",
-                                       dir=out_dir)
+            fd, tmp = tempfile.mkstemp(prefix=".pyfracconv-", suffix=".npy.tmp", dir=out_dir)
             os.close(fd)
             # the header is written now; the mapping is dropped at once
-            del_me = np.lib.format.open_memmap(tmp, mode="w+", dtype=np.float64,
-                                               shape=shape)
+            del_me = np.lib.format.open_memmap(tmp, mode="w+", dtype=np.float64, shape=shape)
             del del_me
             _allocate(tmp)
             os.chmod(tmp, 0o666 & ~_umask())  # as np.save would create it
@@ -426,7 +432,7 @@ def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
             raise OSError(
                 exc.errno,
                 f"out_path={show(out)}: cannot create the output in {out_dir!r} "
-                f"({exc.strerror or exc}); nothing was written"
+                f"({exc.strerror or exc}); nothing was written",
             ) from None
         row_bytes = 8 * C
         src_map = _Mapped(inp, "r", MAP_BUDGET)
@@ -470,6 +476,4 @@ def apply_npy(in_path: PathLike, out_path: PathLike, op: str, order: float,
                 os.unlink(tmp)
             except OSError:
                 pass
-    return RecordSummary(shape, "compressed" if compressed else "exact",
-                         s.tol, s.horizon, rows, s.nbytes)
-
+    return RecordSummary(shape, "compressed" if compressed else "exact", s.tol, s.horizon, rows, s.nbytes)

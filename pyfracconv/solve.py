@@ -84,6 +84,7 @@ _ENV_LEN = 8
 
 # ------------------------------------------------------------ result
 
+
 class SolveResult:
     """The solution on the grid: ``t`` of shape (n+1,), ``y`` of shape
     (n+1,) for a scalar problem or (n+1, m); ``rhs_evals`` and
@@ -105,19 +106,34 @@ class SolveResult:
         return 2
 
     def __repr__(self):
-        return (f"SolveResult(steps={len(self.t) - 1}, shape={self.y.shape}, "
-                f"method={self.method!r}, memory={self.memory!r}, "
-                f"rhs_evals={self.rhs_evals}, jac_evals={self.jac_evals})")
+        return (
+            f"SolveResult(steps={len(self.t) - 1}, shape={self.y.shape}, "
+            f"method={self.method!r}, memory={self.memory!r}, "
+            f"rhs_evals={self.rhs_evals}, jac_evals={self.jac_evals})"
+        )
 
 
 # ------------------------------------------------------------ callbacks
+
 
 class _Run:
     """What the C callbacks need: the user functions, the problem shape and
     one NumPy view of each C buffer (bound on the first call)."""
 
-    __slots__ = ("fn", "jac", "m", "shape", "jshape", "scalar", "yptr", "yview",
-                 "fview", "jptr", "jview", "fail")
+    __slots__ = (
+        "fn",
+        "jac",
+        "m",
+        "shape",
+        "jshape",
+        "scalar",
+        "yptr",
+        "yview",
+        "fview",
+        "jptr",
+        "jview",
+        "fail",
+    )
 
     def __init__(self, fn, jac, m, scalar):
         self.fn = fn
@@ -171,6 +187,7 @@ def _rhs1_slow(run):
     """The rest of _fc_py_rhs1 for the direct C path (_fc_py_rhs1_direct,
     setup_build.py), which handles a float result itself: a recorded
     exception, or another type converted or refused, as _fc_py_rhs1."""
+
     def slow(t, v, raised):
         if raised:
             run.fail = ("raised", v, t)
@@ -179,6 +196,7 @@ def _rhs1_slow(run):
             return float(v) if np.ndim(v) == 0 else _bad(run, v, t)
         except Exception:
             return _bad(run, v, t)
+
     return slow
 
 
@@ -215,8 +233,7 @@ def _fc_py_jac(t, y, jac, user):
     run = ffi.from_handle(user)
     m = run.m
     if jac != run.jptr:
-        run.jview = np.frombuffer(ffi.buffer(jac, 8 * m * m),
-                                  dtype=np.float64).reshape(m, m)
+        run.jview = np.frombuffer(ffi.buffer(jac, 8 * m * m), dtype=np.float64).reshape(m, m)
         run.jptr = jac
     if y != run.yptr:
         yv = np.frombuffer(ffi.buffer(y, 8 * m), dtype=np.float64)
@@ -245,6 +262,7 @@ def _fc_py_jac(t, y, jac, user):
 
 # ------------------------------------------------------------ checks
 
+
 def _check_method(method):
     if not isinstance(method, str) or method not in METHODS:
         expected = ", ".join(repr(k) for k in METHODS)
@@ -254,9 +272,7 @@ def _check_method(method):
 
 def _check_memory(memory):
     if not isinstance(memory, str) or memory not in MEMORIES:
-        raise ArgumentError(
-            f"memory={show(memory)}: unknown; expected one of 'exact', 'compressed'"
-        )
+        raise ArgumentError(f"memory={show(memory)}: unknown; expected one of 'exact', 'compressed'")
     return str(memory)
 
 
@@ -282,8 +298,22 @@ def _values(name, value, m=None):
     return arr, arr.ndim == 0
 
 
-def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
-           jacobian, corrections, newton_tol, newton_maxiter):
+def _setup(
+    rhs,
+    y0,
+    order,
+    step,
+    dy0,
+    t0,
+    method,
+    memory,
+    tol,
+    horizon,
+    jacobian,
+    corrections,
+    newton_tol,
+    newton_maxiter,
+):
     """Every argument checked; returns the keyword set for _make."""
     if not callable(rhs):
         raise InputTypeError(f"rhs={show(rhs)}: expected a callable f(t, y)")
@@ -316,8 +346,7 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
     else:
         if not need_d:
             raise ArgumentError(
-                f"dy0={show(dy0)}: given, but every order is <= 1, where only "
-                "y(t0) is an initial condition"
+                f"dy0={show(dy0)}: given, but every order is <= 1, where only y(t0) is an initial condition"
             )
         da, dscalar = _values("dy0", dy0, m)
         if scalar and not dscalar:
@@ -329,19 +358,20 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
                 raise ArgumentError(
                     f"{name}={show(float(dfull[i]))}: component {i} has order "
                     f"{show(float(orders[i]))} <= 1, where y'(t0) is not an initial "
-                    "condition; pass 0 there")
+                    "condition; pass 0 there"
+                )
         init = np.concatenate([np.broadcast_to(y0a, (m,)), np.broadcast_to(da, (m,))])
         init = np.ascontiguousarray(init, dtype=np.float64)
     corr = check_count("corrections", corrections, 1, 100)
     if corr != 1 and meth != "predictor-corrector":
         raise ArgumentError(
-            f"corrections={corr}: only used by method='predictor-corrector' "
-            f"(method={meth!r})"
+            f"corrections={corr}: only used by method='predictor-corrector' (method={meth!r})"
         )
     if jacobian is not None and meth not in IMPLICIT:
         raise ArgumentError(
             f"jacobian: only used by the implicit methods 'trapezoid' and "
-            f"'implicit-rectangle' (method={meth!r})")
+            f"'implicit-rectangle' (method={meth!r})"
+        )
     ntol = check_real("newton_tol", newton_tol)
     if not (1e-15 <= ntol <= 1e-2):
         raise ArgumentError(f"newton_tol={show(newton_tol)}: must be in [1e-15, 1e-2]")
@@ -351,12 +381,14 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
         if horizon is None:
             raise ArgumentError(
                 "horizon=None: required for method='implicit-rectangle' (the "
-                "number of steps it can take; its kernel is allocated at creation)")
+                "number of steps it can take; its kernel is allocated at creation)"
+            )
         hz = check_real("horizon", horizon)
-        if not (1.0 <= hz <= 2.0 ** 28):
+        if not (1.0 <= hz <= 2.0**28):
             raise ArgumentError(
                 f"horizon={show(horizon)}: must be in [1, 2**28] for "
-                "method='implicit-rectangle' with memory='exact'")
+                "method='implicit-rectangle' with memory='exact'"
+            )
     if mem == "compressed":
         if horizon is None:
             raise ArgumentError(
@@ -392,9 +424,23 @@ def _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
                         + ("" if b == a else f" (here {show(b)})")
                         + "; use memory='exact'"
                     )
-    return dict(m=m, scalar=scalar, orders=np.ascontiguousarray(orders), h=h, t0=t0f,
-                init=init, method=meth, memory=mem, tol=tolf, horizon=hz, corr=corr,
-                ntol=ntol, nmax=nmax, rhs=rhs, jacobian=jacobian)
+    return dict(
+        m=m,
+        scalar=scalar,
+        orders=np.ascontiguousarray(orders),
+        h=h,
+        t0=t0f,
+        init=init,
+        method=meth,
+        memory=mem,
+        tol=tolf,
+        horizon=hz,
+        corr=corr,
+        ntol=ntol,
+        nmax=nmax,
+        rhs=rhs,
+        jacobian=jacobian,
+    )
 
 
 def _status_error(st, what):
@@ -408,6 +454,7 @@ def _status_error(st, what):
 
 
 # ------------------------------------------------------------ stepper
+
 
 class Stepper:
     """A Caputo initial value problem advanced step by step (co-simulation,
@@ -429,25 +476,63 @@ class Stepper:
     that reads its own stepper's :attr:`t` or :attr:`y` is refused too.
     """
 
-    def __init__(self, rhs, y0, order, step, *, dy0=None, t0=0.0,
-                 method="predictor-corrector", memory="exact", tol=1e-12,
-                 horizon=None, jacobian=None, corrections=1, newton_tol=1e-12,
-                 newton_maxiter=50):
-        p = _setup(rhs, y0, order, step, dy0, t0, method, memory, tol, horizon,
-                   jacobian, corrections, newton_tol, newton_maxiter)
+    def __init__(
+        self,
+        rhs,
+        y0,
+        order,
+        step,
+        *,
+        dy0=None,
+        t0=0.0,
+        method="predictor-corrector",
+        memory="exact",
+        tol=1e-12,
+        horizon=None,
+        jacobian=None,
+        corrections=1,
+        newton_tol=1e-12,
+        newton_maxiter=50,
+    ):
+        p = _setup(
+            rhs,
+            y0,
+            order,
+            step,
+            dy0,
+            t0,
+            method,
+            memory,
+            tol,
+            horizon,
+            jacobian,
+            corrections,
+            newton_tol,
+            newton_maxiter,
+        )
         pp = ffi.new("fc_solver **")
         st = lib.fc_solver_create(
-            p["m"], ffi.from_buffer("double[]", p["orders"]), p["h"], p["t0"],
-            ffi.from_buffer("double[]", p["init"]), METHODS[p["method"]],
-            MEMORIES[p["memory"]], p["tol"], p["horizon"], pp)
+            p["m"],
+            ffi.from_buffer("double[]", p["orders"]),
+            p["h"],
+            p["t0"],
+            ffi.from_buffer("double[]", p["init"]),
+            METHODS[p["method"]],
+            MEMORIES[p["memory"]],
+            p["tol"],
+            p["horizon"],
+            pp,
+        )
         if st:
-            raise _status_error(st, f"Stepper(order={show(order)}, step={show(step)}, "
-                                    f"method={p['method']!r}, memory={p['memory']!r})")
+            raise _status_error(
+                st,
+                f"Stepper(order={show(order)}, step={show(step)}, "
+                f"method={p['method']!r}, memory={p['memory']!r})",
+            )
         s = ffi.gc(pp[0], lib.fc_solver_free)
         raise_for_status(lib.fc_solver_set_newton(s, p["ntol"], p["nmax"]), "newton_tol")
         raise_for_status(lib.fc_solver_set_corrections(s, p["corr"]), "corrections")
-        self._init(s, p["m"], p["scalar"], p["method"], p["memory"], rhs, jacobian,
-                   p["horizon"])
+        self._init(s, p["m"], p["scalar"], p["method"], p["memory"], rhs, jacobian, p["horizon"])
 
     def _init(self, s, m, scalar, method, memory, rhs, jacobian, horizon):
         self._s = s
@@ -461,8 +546,7 @@ class Stepper:
         # step()'s buffers and their C views, made once
         self._t1 = np.empty(1)
         self._y1 = np.empty((1, m))
-        self._c1 = (ffi.from_buffer("double[]", self._t1),
-                    ffi.from_buffer("double[]", self._y1))
+        self._c1 = (ffi.from_buffer("double[]", self._t1), ffi.from_buffer("double[]", self._y1))
 
     def _set_callbacks(self, rhs, jacobian):
         self._run = _Run(rhs, jacobian, self._m, self._scalar)
@@ -481,9 +565,12 @@ class Stepper:
             self._direct = None
             fn = lib._fc_py_rhs1_bridge if self._scalar else lib._fc_py_rhs
         raise_for_status(lib.fc_solver_set_rhs(self._s, fn, user), "rhs")
-        raise_for_status(lib.fc_solver_set_jacobian(
-            self._s, lib._fc_py_jac if jacobian is not None else ffi.NULL,
-            self._handle), "jacobian")
+        raise_for_status(
+            lib.fc_solver_set_jacobian(
+                self._s, lib._fc_py_jac if jacobian is not None else ffi.NULL, self._handle
+            ),
+            "jacobian",
+        )
 
     # -------------------------------------------------------- queries
 
@@ -658,8 +745,10 @@ class Stepper:
         return self._memory
 
     def __repr__(self):
-        return (f"Stepper(m={self._m}, method={self._method!r}, memory={self._memory!r}, "
-                f"steps={self.steps}, t={self.t!r})")
+        return (
+            f"Stepper(m={self._m}, method={self._method!r}, memory={self._memory!r}, "
+            f"steps={self.steps}, t={self.t!r})"
+        )
 
     # -------------------------------------------------------- stepping
 
@@ -669,8 +758,11 @@ class Stepper:
         raise with make_partial(done) as the partial result."""
         done = ffi.new("size_t *")
         self._run.fail = None
-        tc, yc = cbufs if cbufs is not None else (
-            ffi.from_buffer("double[]", tbuf), ffi.from_buffer("double[]", ybuf))
+        tc, yc = (
+            cbufs
+            if cbufs is not None
+            else (ffi.from_buffer("double[]", tbuf), ffi.from_buffer("double[]", ybuf))
+        )
         st = lib._fc_py_advance(self._s, n, tc, yc, done)
         if st == 0:
             return
@@ -682,7 +774,8 @@ class Stepper:
             raise HorizonError(
                 f"n={n}: past the horizon (horizon={hz:g} steps: {self.steps} done, "
                 f"{max(int(hz) - self.steps, 0)} left); nothing was done. Create the "
-                "stepper with a larger horizon")
+                "stepper with a larger horizon"
+            )
         raise _status_error(st, f"advance(n={n})")
 
     def _horizon(self):
@@ -695,31 +788,36 @@ class Stepper:
         step, t = int(sp[0]), float(tp[0])
         at = f"at step {step}, t={t!r}"
         fail, self._run.fail = self._run.fail, None
-        keep = f"; the solution up to step {step - 1 if step else 0} is in .partial" \
-            if step else "; nothing was computed"
+        keep = (
+            f"; the solution up to step {step - 1 if step else 0} is in .partial"
+            if step
+            else "; nothing was computed"
+        )
         if st == lib.FC_ERR_NEWTON:
             return NewtonError(
                 f"Newton's method did not converge {at} (newton_maxiter reached or a "
                 "singular iteration matrix); try a smaller step, a larger "
-                f"newton_maxiter or newton_tol{keep}", step, t, partial)
+                f"newton_maxiter or newton_tol{keep}",
+                step,
+                t,
+                partial,
+            )
         if st == lib.FC_ERR_NONFINITE and fail is None:
-            which = "rhs or jacobian" if self._method in IMPLICIT and \
-                self._run.jac is not None else "rhs"
-            return RhsError(f"{which} returned a NaN or infinite value {at}{keep}",
-                            step, t, partial)
+            which = "rhs or jacobian" if self._method in IMPLICIT and self._run.jac is not None else "rhs"
+            return RhsError(f"{which} returned a NaN or infinite value {at}{keep}", step, t, partial)
         kind, obj, _ = fail if fail is not None else ("raised", None, t)
         if kind in ("raised", "jac raised") and isinstance(obj, (KeyboardInterrupt, SystemExit)):
             return obj
         name = "jacobian" if kind.startswith("jac") else "rhs"
         if kind.endswith("raised"):
-            err = RhsError(f"{name} raised {type(obj).__name__}: {obj} {at}{keep}",
-                           step, t, partial)
+            err = RhsError(f"{name} raised {type(obj).__name__}: {obj} {at}{keep}", step, t, partial)
             err.__cause__ = obj
             return err
         want = "(m, m)" if name == "jacobian" else ("a number" if self._scalar else f"shape ({self._m},)")
         got = np.asarray(obj).shape if not isinstance(obj, (str, bytes)) else type(obj).__name__
-        return RhsError(f"{name} returned a value of shape {got}, expected {want}, {at}{keep}",
-                        step, t, partial)
+        return RhsError(
+            f"{name} returned a value of shape {got}, expected {want}, {at}{keep}", step, t, partial
+        )
 
     def advance(self, n):
         """Advance by n >= 0 steps; returns (t, y) of the new steps: t of
@@ -783,9 +881,12 @@ class Stepper:
         if not self._lock.acquire(False):
             raise BusyError("advance: the stepper is being used by another call")
         try:
+
             def partial(k):
-                return SolveResult(tb[:k].copy(), self._shape(yb[:k].copy()),
-                                   *self._counts(), self._method, self._memory)
+                return SolveResult(
+                    tb[:k].copy(), self._shape(yb[:k].copy()), *self._counts(), self._method, self._memory
+                )
+
             self._advance_into(n, tb, yb, partial)
         finally:
             self._lock.release()
@@ -834,8 +935,9 @@ class Stepper:
         return float(self._y1[0, 0]) if self._scalar else self._y1[0].copy()
 
     def _no_steps(self, k):
-        return SolveResult(np.empty(0), self._shape(np.empty((0, self._m))),
-                           *self._counts(), self._method, self._memory)
+        return SolveResult(
+            np.empty(0), self._shape(np.empty((0, self._m))), *self._counts(), self._method, self._memory
+        )
 
     def _shape(self, yb):
         return yb[:, 0] if self._scalar else yb
@@ -890,10 +992,13 @@ class Stepper:
             out = bytearray(_ENV_LEN + size)
             out[:_ENV_LEN] = _ENV_MAGIC + bytes([_ENV_SCALAR if self._scalar else _ENV_ARRAY, 0])
             view = memoryview(out)[_ENV_LEN:]
-            raise_for_status(lib.fc_solver_save(
-                self._s, ffi.from_buffer("unsigned char[]", view, require_writable=True),
-                size, sp), "save()")
-            return bytes(out[:_ENV_LEN + int(sp[0])])
+            raise_for_status(
+                lib.fc_solver_save(
+                    self._s, ffi.from_buffer("unsigned char[]", view, require_writable=True), size, sp
+                ),
+                "save()",
+            )
+            return bytes(out[: _ENV_LEN + int(sp[0])])
         finally:
             self._lock.release()
 
@@ -952,16 +1057,18 @@ class Stepper:
         if jacobian is not None and not callable(jacobian):
             raise InputTypeError(f"jacobian={show(jacobian)}: expected None or a callable")
         b = bytes(data)
-        if (len(b) < _ENV_LEN + 8 or b[:6] != _ENV_MAGIC
-                or b[6] not in (_ENV_SCALAR, _ENV_ARRAY) or b[7] != 0):
-            raise StateError(f"data ({len(b)} bytes): not a saved pyfracconv stepper "
-                             "(wrong magic or truncated)")
+        if len(b) < _ENV_LEN + 8 or b[:6] != _ENV_MAGIC or b[6] not in (_ENV_SCALAR, _ENV_ARRAY) or b[7] != 0:
+            raise StateError(
+                f"data ({len(b)} bytes): not a saved pyfracconv stepper (wrong magic or truncated)"
+            )
         blob = memoryview(b)[_ENV_LEN:]
         pp = ffi.new("fc_solver **")
         st = lib.fc_solver_load(ffi.from_buffer("unsigned char[]", blob), len(blob), pp)
         if st == lib.FC_ERR_FORMAT:
-            raise StateError(f"data ({len(b)} bytes): truncated, corrupted or not a "
-                             "saved stepper of this version; nothing was loaded")
+            raise StateError(
+                f"data ({len(b)} bytes): truncated, corrupted or not a "
+                "saved stepper of this version; nothing was loaded"
+            )
         raise_for_status(st, "load")
         s = ffi.gc(pp[0], lib.fc_solver_free)
         mp = ffi.new("size_t *")
@@ -971,8 +1078,8 @@ class Stepper:
         if scalar and m != 1:
             raise StateError(f"data: marked scalar but holds {m} components")
         # method and memory from the C bytes the loader accepted
-        method = _METHOD_NAMES[int.from_bytes(b[_ENV_LEN + 12:_ENV_LEN + 16], "little")]
-        memory = _MEMORY_NAMES[int.from_bytes(b[_ENV_LEN + 16:_ENV_LEN + 20], "little")]
+        method = _METHOD_NAMES[int.from_bytes(b[_ENV_LEN + 12 : _ENV_LEN + 16], "little")]
+        memory = _MEMORY_NAMES[int.from_bytes(b[_ENV_LEN + 16 : _ENV_LEN + 20], "little")]
         if jacobian is not None and method not in IMPLICIT:
             raise ArgumentError(f"jacobian: only used by the implicit methods (method={method!r})")
         # the horizon, bytes 56..64 of the C format (csrc/solver.c)
@@ -1101,6 +1208,7 @@ class Stepper:
 
 # ------------------------------------------------------------ solve
 
+
 def _tqdm():
     try:
         from tqdm import tqdm
@@ -1112,10 +1220,26 @@ def _tqdm():
     return tqdm
 
 
-def solve(rhs, y0, order, step=None, n_steps=None, *, t=None, dy0=None, t0=None,
-          method="predictor-corrector", memory="exact", tol=1e-12, horizon=None,
-          jacobian=None, corrections=1, progress=False, newton_tol=1e-12,
-          newton_maxiter=50):
+def solve(
+    rhs,
+    y0,
+    order,
+    step=None,
+    n_steps=None,
+    *,
+    t=None,
+    dy0=None,
+    t0=None,
+    method="predictor-corrector",
+    memory="exact",
+    tol=1e-12,
+    horizon=None,
+    jacobian=None,
+    corrections=1,
+    progress=False,
+    newton_tol=1e-12,
+    newton_maxiter=50,
+):
     """Solve the Caputo initial value problem D^a y = f(t, y) on
     t_n = t0 + n*step, n = 0 .. n_steps, or on a given grid ``t``.
 
@@ -1228,17 +1352,32 @@ def solve(rhs, y0, order, step=None, n_steps=None, *, t=None, dy0=None, t0=None,
     """
     if t is not None:
         if step is not None or n_steps is not None:
-            given = ", ".join(f"{k}={show(v)}" for k, v in (("step", step), ("n_steps", n_steps))
-                              if v is not None)
-            raise ArgumentError(f"t and {given}: give either the grid t or step and "
-                                "n_steps, not both")
-        return _solve_grid(rhs, y0, order, t, dy0, t0, method, memory, tol, horizon,
-                           jacobian, corrections, progress, newton_tol, newton_maxiter)
+            given = ", ".join(
+                f"{k}={show(v)}" for k, v in (("step", step), ("n_steps", n_steps)) if v is not None
+            )
+            raise ArgumentError(f"t and {given}: give either the grid t or step and n_steps, not both")
+        return _solve_grid(
+            rhs,
+            y0,
+            order,
+            t,
+            dy0,
+            t0,
+            method,
+            memory,
+            tol,
+            horizon,
+            jacobian,
+            corrections,
+            progress,
+            newton_tol,
+            newton_maxiter,
+        )
     if step is None or n_steps is None:
-        missing = " and ".join(k for k, v in (("step", step), ("n_steps", n_steps))
-                               if v is None)
-        raise ArgumentError(f"{missing}=None: give step and n_steps (a uniform grid) "
-                            "or t= (the grid's times)")
+        missing = " and ".join(k for k, v in (("step", step), ("n_steps", n_steps)) if v is None)
+        raise ArgumentError(
+            f"{missing}=None: give step and n_steps (a uniform grid) or t= (the grid's times)"
+        )
     if t0 is None:
         t0 = 0.0
     n = check_count("n_steps", n_steps, 0, SIZE_MAX - 1)
@@ -1247,14 +1386,28 @@ def solve(rhs, y0, order, step=None, n_steps=None, *, t=None, dy0=None, t0=None,
     bar_cls = _tqdm() if progress else None
     if horizon is None and (memory == "compressed" or method == "implicit-rectangle"):
         horizon = max(n, 1)
-    st = Stepper(rhs, y0, order, step, dy0=dy0, t0=t0, method=method, memory=memory,
-                 tol=tol, horizon=horizon, jacobian=jacobian, corrections=corrections,
-                 newton_tol=newton_tol, newton_maxiter=newton_maxiter)
+    st = Stepper(
+        rhs,
+        y0,
+        order,
+        step,
+        dy0=dy0,
+        t0=t0,
+        method=method,
+        memory=memory,
+        tol=tol,
+        horizon=horizon,
+        jacobian=jacobian,
+        corrections=corrections,
+        newton_tol=newton_tol,
+        newton_maxiter=newton_maxiter,
+    )
     m = st._m
     last = st.t + n * check_step(step)
     if not math.isfinite(last):
-        raise ArgumentError(f"t0={show(t0)}, step={show(step)}, n_steps={n}: the last "
-                            "time is beyond the double range")
+        raise ArgumentError(
+            f"t0={show(t0)}, step={show(step)}, n_steps={n}: the last time is beyond the double range"
+        )
     check_bytes(f"n_steps={n}", 8 * (n + 1) * (m + 1))
     try:
         t = np.empty(n + 1)
@@ -1266,8 +1419,7 @@ def solve(rhs, y0, order, step=None, n_steps=None, *, t=None, dy0=None, t0=None,
     shape = (lambda a: a[:, 0]) if st._scalar else (lambda a: a)
 
     def partial(k):
-        return SolveResult(t[:k + 1].copy(), shape(y[:k + 1].copy()), *st._counts(),
-                           st._method, st._memory)
+        return SolveResult(t[: k + 1].copy(), shape(y[: k + 1].copy()), *st._counts(), st._method, st._memory)
 
     with st._lock:
         if bar_cls is None:
@@ -1278,16 +1430,32 @@ def solve(rhs, y0, order, step=None, n_steps=None, *, t=None, dy0=None, t0=None,
                 j = 0
                 while j < n:
                     c = min(chunk, n - j)
-                    st._advance_into(c, t[1 + j:1 + j + c], y[1 + j:1 + j + c],
-                                     lambda k, j=j: partial(j + k))
+                    st._advance_into(
+                        c, t[1 + j : 1 + j + c], y[1 + j : 1 + j + c], lambda k, j=j: partial(j + k)
+                    )
                     j += c
                     bar.update(c)
     rc, jc = st._counts()
     return SolveResult(t, shape(y), rc, jc, st._method, st._memory)
 
 
-def _solve_grid(rhs, y0, order, t, dy0, t0, method, memory, tol, horizon, jacobian,
-                corrections, progress, newton_tol, newton_maxiter):
+def _solve_grid(
+    rhs,
+    y0,
+    order,
+    t,
+    dy0,
+    t0,
+    method,
+    memory,
+    tol,
+    horizon,
+    jacobian,
+    corrections,
+    progress,
+    newton_tol,
+    newton_maxiter,
+):
     """solve() with t=: the arguments checked, then the grid engine."""
     from .grid import check_times
     from .solve_grid import GRID_METHODS, grid_method_error, solve_on_grid
@@ -1296,23 +1464,41 @@ def _solve_grid(rhs, y0, order, t, dy0, t0, method, memory, tol, horizon, jacobi
     if times.size == 0:
         raise ArgumentError("t: empty; expected at least the start time t[0]")
     if t0 is not None:
-        raise ArgumentError(f"t0={show(t0)}: not used with t= (the problem starts at "
-                            f"t[0]={show(float(times[0]))})")
+        raise ArgumentError(
+            f"t0={show(t0)}: not used with t= (the problem starts at t[0]={show(float(times[0]))})"
+        )
     meth = _check_method(method)
     if meth not in GRID_METHODS:
         raise grid_method_error(meth)
     mem = _check_memory(memory)
     if mem != "exact":
-        raise ArgumentError(f"memory={mem!r}: not available with t= (the grid solver "
-                            "keeps every f value); use memory='exact'")
+        raise ArgumentError(
+            f"memory={mem!r}: not available with t= (the grid solver keeps every f value); use memory='exact'"
+        )
     if horizon is not None:
-        raise ArgumentError(f"horizon={show(horizon)}: not used with t= (only by "
-                            "compressed memory and 'implicit-rectangle' on a uniform grid)")
+        raise ArgumentError(
+            f"horizon={show(horizon)}: not used with t= (only by "
+            "compressed memory and 'implicit-rectangle' on a uniform grid)"
+        )
     if not isinstance(progress, (bool, np.bool_)):
         raise InputTypeError(f"progress={show(progress)}: expected True or False")
     bar_cls = _tqdm() if progress else None
-    p = _setup(rhs, y0, order, 1.0, dy0, float(times[0]), meth, mem, tol, None,
-               jacobian, corrections, newton_tol, newton_maxiter)
+    p = _setup(
+        rhs,
+        y0,
+        order,
+        1.0,
+        dy0,
+        float(times[0]),
+        meth,
+        mem,
+        tol,
+        None,
+        jacobian,
+        corrections,
+        newton_tol,
+        newton_maxiter,
+    )
     n = times.size - 1
     check_bytes(f"t ({n + 1} times)", 8 * (n + 1) * (2 * p["m"] + 1))
     if bar_cls is None:

@@ -96,6 +96,7 @@ def _row_weights(a, coef, d, e, h, trap):
         right[rest] = rr / g
     return rect, left, right
 
+
 #: The solver methods defined on any grid.
 GRID_METHODS = ("rectangle", "predictor-corrector")
 
@@ -149,7 +150,7 @@ def solve_on_grid(p, times, progress_bar, result_cls):
     t = times
     N = t.size - 1
     y = np.empty((N + 1, m))
-    F = np.empty((m, N + 1))   # f values, one contiguous row per component
+    F = np.empty((m, N + 1))  # f values, one contiguous row per component
     y[0] = y0
     groups = {}
     for i, a in enumerate(orders.tolist()):
@@ -163,28 +164,27 @@ def solve_on_grid(p, times, progress_bar, result_cls):
 
     def fail(exc, step):
         k = max(step - 1, 0)
-        partial = result_cls(t[:k + 1].copy(), shape(y[:k + 1].copy()), evals, 0,
-                             method, "exact")
+        partial = result_cls(t[: k + 1].copy(), shape(y[: k + 1].copy()), evals, 0, method, "exact")
         at = f"at step {step}, t={float(t[step])!r}"
-        keep = (f"; the solution up to step {step - 1} is in .partial" if step
-                else "; nothing was computed")
+        keep = f"; the solution up to step {step - 1} is in .partial" if step else "; nothing was computed"
         if exc.kind == "raised":
-            err = RhsError(f"rhs raised {type(exc.obj).__name__}: {exc.obj} {at}{keep}",
-                           step, float(t[step]), partial)
+            err = RhsError(
+                f"rhs raised {type(exc.obj).__name__}: {exc.obj} {at}{keep}", step, float(t[step]), partial
+            )
             err.__cause__ = exc.obj
             return err
         if exc.kind == "overflow":
-            return SolverError(f"the solution is beyond the double range {at}{keep}",
-                               step, float(t[step]), partial)
+            return SolverError(
+                f"the solution is beyond the double range {at}{keep}", step, float(t[step]), partial
+            )
         if exc.kind == "nonfinite":
-            return RhsError(f"rhs returned a NaN or infinite value {at}{keep}",
-                            step, float(t[step]), partial)
+            return RhsError(f"rhs returned a NaN or infinite value {at}{keep}", step, float(t[step]), partial)
         want = "a number" if scalar else f"shape ({m},)"
         obj = exc.obj
-        got = np.asarray(obj).shape if not isinstance(obj, (str, bytes)) \
-            else type(obj).__name__
-        return RhsError(f"rhs returned a value of shape {got}, expected {want}, {at}{keep}",
-                        step, float(t[step]), partial)
+        got = np.asarray(obj).shape if not isinstance(obj, (str, bytes)) else type(obj).__name__
+        return RhsError(
+            f"rhs returned a value of shape {got}, expected {want}, {at}{keep}", step, float(t[step]), partial
+        )
 
     def f(step, yv):
         nonlocal evals
@@ -200,9 +200,9 @@ def solve_on_grid(p, times, progress_bar, result_cls):
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         for n in range(N):
             tn = t[n + 1]
-            d = tn - t[:n + 1]
-            e = tn - t[1:n + 2]
-            h = dt[:n + 1]
+            d = tn - t[: n + 1]
+            e = tn - t[1 : n + 2]
+            h = dt[: n + 1]
             base = y0 + np.where(slope, dy0 * (tn - t[0]), 0.0)
             pred = base.copy()
             hist = np.empty(m)
@@ -211,12 +211,12 @@ def solve_on_grid(p, times, progress_bar, result_cls):
                 b, left, right = _row_weights(a, coef, d, e, h, pc)
                 # pairwise sums of the products (NumPy's sum, no BLAS: the
                 # same bits whatever the threads, and componentwise accurate)
-                pred[ix] += np.sum(b * F[ix, :n + 1], axis=1)
+                pred[ix] += np.sum(b * F[ix, : n + 1], axis=1)
                 if pc:
                     assert left is not None and right is not None
                     w = np.concatenate([left, [0.0]])
                     w[1:] += right
-                    hist[ix] = np.sum(w[:n + 1] * F[ix, :n + 1], axis=1)
+                    hist[ix] = np.sum(w[: n + 1] * F[ix, : n + 1], axis=1)
                     last[ix] = w[n + 1]
             if not np.all(np.isfinite(pred)):
                 raise fail(_Fail("overflow", pred), n + 1)
@@ -239,7 +239,8 @@ def grid_method_error(method):
     return ArgumentError(
         f"method={method!r}: not available with t= (no published form on a "
         f"non-uniform grid is implemented); on a grid use method={works}, or give "
-        "a uniform grid as step= and n_steps=")
+        "a uniform grid as step= and n_steps="
+    )
 
 
 __all__ = ["GRID_METHODS", "solve_on_grid", "grid_method_error"]

@@ -104,8 +104,11 @@ def _horizon_error(s: Any, what: str, pushing: int = 1) -> HorizonError:
     count = int(_get(lib.fc_stream_count, s, "uint64_t *"))
     left = int(_get(lib.fc_stream_remaining, s, "uint64_t *"))
     last = int(math.floor(horizon))
-    asked = (f"{pushing} time steps asked for, {left} left"
-             if pushing != 1 else f"{count} samples pushed, none left")
+    asked = (
+        f"{pushing} time steps asked for, {left} left"
+        if pushing != 1
+        else f"{count} samples pushed, none left"
+    )
     return HorizonError(
         f"{what}: past the horizon (horizon={horizon:g}: outputs 0 .. {last} "
         f"are within tol; {asked}); the stream is unchanged. Create the "
@@ -125,18 +128,12 @@ def _scalar_error(name: str, x: Any) -> FracconvError:
                 "be finite); the stream is unchanged"
             )
     if is_masked(x):
-        return InputTypeError(
-            f"{name}: masked arrays are not accepted (the mask would be ignored)"
-        )
+        return InputTypeError(f"{name}: masked arrays are not accepted (the mask would be ignored)")
     if isinstance(x, (np.ndarray, list, tuple)):
         a = np.asarray(x)
         if a.dtype.kind in "biuf":
-            return ArgumentError(
-                f"{name}: expected a scalar (channels=None), got shape {a.shape}"
-            )
-    return InputTypeError(
-        f"{name}={show(x)}: expected a real number, got {type(x).__name__}"
-    )
+            return ArgumentError(f"{name}: expected a scalar (channels=None), got shape {a.shape}")
+    return InputTypeError(f"{name}={show(x)}: expected a real number, got {type(x).__name__}")
 
 
 def _scalar_push_error(s: Any, st: Optional[int], name: str, x: Any) -> FracconvError:
@@ -153,8 +150,7 @@ def _scalar_push_error(s: Any, st: Optional[int], name: str, x: Any) -> Fracconv
         return _horizon_error(s, f"{name}={show(x)}")
     if st == lib.FC_ERR_RANGE:
         return RangeError(
-            f"{name}={show(x)}: the output would be beyond the double range; "
-            "the stream is unchanged"
+            f"{name}={show(x)}: the output would be beyond the double range; the stream is unchanged"
         )
     return status_error(st, name, samples=(name, x), after="the stream is unchanged")
 
@@ -173,8 +169,8 @@ class _Guard:
 
     def __init__(self) -> None:
         token: list[bool] = [True]
-        self.take = token.pop       # raises IndexError when the stream is busy
-        self.give = token.append    # give(True) after every successful take()
+        self.take = token.pop  # raises IndexError when the stream is busy
+        self.give = token.append  # give(True) after every successful take()
 
     def acquire(self, blocking: bool = False) -> bool:
         """Take the guard if it is free (never waits): True if taken."""
@@ -342,14 +338,11 @@ class Stream:
         self._s = s = ffi.gc(ptr, lib.fc_stream_free)
         C = int(_get(lib.fc_stream_channels, s, "size_t *"))
         if scalar and C != 1:
-            raise StateError(
-                f"the envelope says channels=None but the state holds {C} channels"
-            )
+            raise StateError(f"the envelope says channels=None but the state holds {C} channels")
         mode = int(_get(lib.fc_stream_mode, s, "int *"))
         rule = int(_get(lib.fc_stream_rule, s, "int *"))
         if int(_get(lib.fc_stream_is_timed, s, "int *")):
-            raise StateError("a stream with a time per sample: load it with "
-                             "TimedStream.load")
+            raise StateError("a stream with a time per sample: load it with TimedStream.load")
         if mode not in _MODE_NAMES or (rule != -1 and rule not in _RULE_NAMES):
             raise StateError(f"unknown mode {mode} or rule {rule}")
         self._C = C
@@ -381,9 +374,18 @@ class Stream:
         return self
 
     @classmethod
-    def _create_rule(cls, rule: object, allowed: tuple[str, ...], order: object,
-                     step: object, channels: object, mode: object, tol: object,
-                     horizon: object, horizon_policy: object) -> Stream:
+    def _create_rule(
+        cls,
+        rule: object,
+        allowed: tuple[str, ...],
+        order: object,
+        step: object,
+        channels: object,
+        mode: object,
+        tol: object,
+        horizon: object,
+        horizon_policy: object,
+    ) -> Stream:
         code = check_rule(rule, allowed)
         m = check_mode(mode)
         a = check_order(order, rule, m)
@@ -416,8 +418,7 @@ class Stream:
                 )
             if st == lib.FC_ERR_RANGE:
                 raise RangeError(
-                    f"step={show(step)} (or order={show(order)}): the kernel "
-                    "is beyond the double range"
+                    f"step={show(step)} (or order={show(order)}): the kernel is beyond the double range"
                 )
             raise_for_status(
                 st,
@@ -426,15 +427,23 @@ class Stream:
                 + (f", tol={show(tol)}, horizon={show(horizon)})" if comp else ")"),
             )
         self = cls._wrap(pp[0], channels is None)
-        raise_for_status(lib.fc_stream_set_horizon_policy(self._s, pol),
-                         f"horizon_policy={show(horizon_policy)}")
+        raise_for_status(
+            lib.fc_stream_set_horizon_policy(self._s, pol), f"horizon_policy={show(horizon_policy)}"
+        )
         return self
 
     @classmethod
-    def integral(cls, order: float, step: float, rule: str = "rectangle",
-                 channels: Optional[int] = None, mode: str = "exact",
-                 tol: float = 1e-12, horizon: float = 1e9,
-                 horizon_policy: str = "refuse") -> Stream:
+    def integral(
+        cls,
+        order: float,
+        step: float,
+        rule: str = "rectangle",
+        channels: Optional[int] = None,
+        mode: str = "exact",
+        tol: float = 1e-12,
+        horizon: float = 1e9,
+        horizon_policy: str = "refuse",
+    ) -> Stream:
         """A stream of the Riemann-Liouville integral of order ``order``.
 
         Parameters
@@ -511,14 +520,22 @@ class Stream:
         >>> bool(np.all(np.abs(y - exact) <= 1e-9 * exact))
         True
         """
-        return cls._create_rule(rule, INTEGRAL_RULES, order, step, channels,
-                                mode, tol, horizon, horizon_policy)
+        return cls._create_rule(
+            rule, INTEGRAL_RULES, order, step, channels, mode, tol, horizon, horizon_policy
+        )
 
     @classmethod
-    def derivative(cls, order: float, step: float, rule: str = "grunwald",
-                   channels: Optional[int] = None, mode: str = "exact",
-                   tol: float = 1e-12, horizon: float = 1e9,
-                   horizon_policy: str = "refuse") -> Stream:
+    def derivative(
+        cls,
+        order: float,
+        step: float,
+        rule: str = "grunwald",
+        channels: Optional[int] = None,
+        mode: str = "exact",
+        tol: float = 1e-12,
+        horizon: float = 1e9,
+        horizon_policy: str = "refuse",
+    ) -> Stream:
         """A stream of a fractional derivative of order ``order``.
 
         Parameters
@@ -567,8 +584,9 @@ class Stream:
         >>> bool(np.allclose(y, 2 * np.sqrt(t / np.pi), rtol=1e-13))
         True
         """
-        return cls._create_rule(rule, DERIVATIVE_RULES, order, step, channels,
-                                mode, tol, horizon, horizon_policy)
+        return cls._create_rule(
+            rule, DERIVATIVE_RULES, order, step, channels, mode, tol, horizon, horizon_policy
+        )
 
     @classmethod
     def from_kernel(cls, kernel: ArrayLike, channels: Optional[int] = None) -> Stream:
@@ -612,19 +630,15 @@ class Stream:
         """
         k = as_float_array("kernel", kernel)
         if k.ndim != 1 or k.size == 0:
-            raise ArgumentError(
-                f"kernel: expected a non-empty 1-D array, got shape {k.shape}"
-            )
+            raise ArgumentError(f"kernel: expected a non-empty 1-D array, got shape {k.shape}")
         if not np.all(np.isfinite(k)):
             i = int(np.flatnonzero(~np.isfinite(k))[0])
             raise ArgumentError(f"kernel[{i}]={show(k[i])}: must be finite")
         C = check_channels(channels)
         pp = ffi.new("fc_stream **")
-        st = lib.fc_stream_create_kernel(ffi.from_buffer("double[]", k), k.size,
-                                         C, pp)
+        st = lib.fc_stream_create_kernel(ffi.from_buffer("double[]", k), k.size, C, pp)
         if st:
-            raise_for_status(st, f"Stream.from_kernel(len(kernel)={k.size}, "
-                                 f"channels={show(channels)})")
+            raise_for_status(st, f"Stream.from_kernel(len(kernel)={k.size}, channels={show(channels)})")
         return cls._wrap(pp[0], channels is None)
 
     # ------------------------------------------------------------ helpers
@@ -635,28 +649,27 @@ class Stream:
     def _sample_vector(self, name: str, x: object) -> FloatArray:
         a = as_float_array(name, x)
         if a.shape != (self._C,):
-            raise ArgumentError(
-                f"{name}: expected shape ({self._C},), got {a.shape}"
-            )
+            raise ArgumentError(f"{name}: expected shape ({self._C},), got {a.shape}")
         return a
 
-    def _vector_error(self, st: int, name: str, a: FloatArray,
-                      what: str = "the stream is unchanged") -> FracconvError:
+    def _vector_error(
+        self, st: int, name: str, a: FloatArray, what: str = "the stream is unchanged"
+    ) -> FracconvError:
         """The exception for a push or preview of the vector ``a``."""
         if st == lib.FC_ERR_HORIZON:
             return _horizon_error(self._s, name)
         if st == lib.FC_ERR_RANGE:
-            return RangeError(f"{name}: an output would be beyond the double "
-                              f"range; {what}")
+            return RangeError(f"{name}: an output would be beyond the double range; {what}")
         return status_error(st, name, samples=(name, a), after=what)
 
     def _refuse_past_horizon(self, name: str) -> None:
         """HorizonError if the next output would pass the horizon of a
         compressed stream that refuses it (preview and history)."""
-        if (self._compressed
-                and _get(lib.fc_stream_horizon_policy, self._s, "int *")
-                == lib.FC_HORIZON_REFUSE
-                and _get(lib.fc_stream_remaining, self._s, "uint64_t *") == 0):
+        if (
+            self._compressed
+            and _get(lib.fc_stream_horizon_policy, self._s, "int *") == lib.FC_HORIZON_REFUSE
+            and _get(lib.fc_stream_remaining, self._s, "uint64_t *") == 0
+        ):
             raise _horizon_error(self._s, name)
 
     def _output(self) -> Output:
@@ -721,8 +734,7 @@ class Stream:
                     raise _scalar_push_error(self._s, st, "x", x)
                 return float(self._y1[0])
             a = self._sample_vector("x", x)
-            st = lib.fc_stream_push(self._s, ffi.from_buffer("double[]", a),
-                                    self._yptr)
+            st = lib.fc_stream_push(self._s, ffi.from_buffer("double[]", a), self._yptr)
             if st:
                 raise self._vector_error(st, "x", a)
             return self._yarr.copy()
@@ -737,18 +749,14 @@ class Stream:
             ax = check_axis(axis, 1)
             return ax, a.shape[0]
         if a.ndim != 2:
-            raise ArgumentError(
-                f"xs: expected shape (T, {self._C}), got {a.shape}"
-            )
+            raise ArgumentError(f"xs: expected shape (T, {self._C}), got {a.shape}")
         ax = check_axis(axis, 2)
         if a.shape[1 - ax] != self._C:
-            want = (f"(T, {self._C})" if ax == 0
-                    else f"({self._C}, T) (time along axis={show(axis)})")
+            want = f"(T, {self._C})" if ax == 0 else f"({self._C}, T) (time along axis={show(axis)})"
             raise ArgumentError(f"xs: expected shape {want}, got {a.shape}")
         return ax, a.shape[ax]
 
-    def push_many(self, xs: ArrayLike, axis: int = 0, *,
-                  workers: Optional[int] = None) -> FloatArray:
+    def push_many(self, xs: ArrayLike, axis: int = 0, *, workers: Optional[int] = None) -> FloatArray:
         """Push a block of time steps; return the outputs.
 
         Parameters
@@ -846,8 +854,8 @@ class Stream:
             if a.size == 0:
                 return y if ax == 0 else y.T
             st = lib.fc_stream_push_block_threads(
-                self._s, ffi.from_buffer("double[]", block), T,
-                ffi.from_buffer("double[]", y), nthreads)
+                self._s, ffi.from_buffer("double[]", block), T, ffi.from_buffer("double[]", y), nthreads
+            )
             if st:
                 if st == lib.FC_ERR_HORIZON:
                     raise _horizon_error(self._s, f"xs (shape {a.shape})", T)
@@ -856,8 +864,7 @@ class Stream:
                         f"xs (shape {a.shape}): an output would be beyond the "
                         "double range; nothing was pushed"
                     )
-                raise_for_status(st, f"xs (shape {a.shape})", samples=("xs", a),
-                                 after="nothing was pushed")
+                raise_for_status(st, f"xs (shape {a.shape})", samples=("xs", a), after="nothing was pushed")
             return y if ax == 0 else y.T
         finally:
             self._lock.release()
@@ -914,8 +921,7 @@ class Stream:
             a = self._sample_vector("x", x)
             if np.all(np.isfinite(a)):
                 self._refuse_past_horizon("x")
-            st = lib.fc_stream_preview(self._s, ffi.from_buffer("double[]", a),
-                                       self._yptr)
+            st = lib.fc_stream_preview(self._s, ffi.from_buffer("double[]", a), self._yptr)
             if st:
                 raise self._vector_error(st, "x", a)
             return self._yarr.copy()
@@ -1048,9 +1054,7 @@ class Stream:
         """
         value: Any = n  # any object may come in: checked here
         if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Integral):
-            raise InputTypeError(
-                f"n={show(n)}: expected an integer, got {type(n).__name__}"
-            )
+            raise InputTypeError(f"n={show(n)}: expected an integer, got {type(n).__name__}")
         if not 0 <= int(value) < 2**64:
             raise ArgumentError(f"n={show(n)}: must be in [0, 2**64 - 1]")
         if not self._lock.acquire(False):
@@ -1101,14 +1105,12 @@ class Stream:
             raise_for_status(lib.fc_stream_save_size(self._s, sp), "save()")
             size = int(sp[0])
             out = bytearray(_ENV_LEN + size)
-            out[:_ENV_LEN] = _ENV_MAGIC + bytes(
-                [_ENV_SCALAR if self._scalar else _ENV_ARRAY, 0]
-            )
+            out[:_ENV_LEN] = _ENV_MAGIC + bytes([_ENV_SCALAR if self._scalar else _ENV_ARRAY, 0])
             view = memoryview(out)[_ENV_LEN:]
             raise_for_status(
-                lib.fc_stream_save(self._s, ffi.from_buffer("unsigned char[]", view,
-                                                            require_writable=True),
-                                   size, sp),
+                lib.fc_stream_save(
+                    self._s, ffi.from_buffer("unsigned char[]", view, require_writable=True), size, sp
+                ),
                 "save()",
             )
             return bytes(out)
@@ -1160,15 +1162,16 @@ class Stream:
         pyfracconv._errors.StateError: data (... bytes): ...
         """
         if not isinstance(data, (bytes, bytearray, memoryview)):
-            raise InputTypeError(
-                f"data: expected bytes, got {type(data).__name__}"
-            )
+            raise InputTypeError(f"data: expected bytes, got {type(data).__name__}")
         b = bytes(data)
-        if (len(b) < _ENV_LEN + _C_MIN_LEN or b[:6] != _ENV_MAGIC
-                or b[6] not in (_ENV_SCALAR, _ENV_ARRAY) or b[7] != 0):
+        if (
+            len(b) < _ENV_LEN + _C_MIN_LEN
+            or b[:6] != _ENV_MAGIC
+            or b[6] not in (_ENV_SCALAR, _ENV_ARRAY)
+            or b[7] != 0
+        ):
             raise StateError(
-                f"data ({len(b)} bytes): not a saved pyfracconv stream "
-                "(wrong magic or truncated)"
+                f"data ({len(b)} bytes): not a saved pyfracconv stream (wrong magic or truncated)"
             )
         blob = memoryview(b)[_ENV_LEN:]
         pp = ffi.new("fc_stream **")
@@ -1236,8 +1239,12 @@ class Stream:
         write_file("save_file", p, self.save(), "the stream")
 
     @classmethod
-    def load_file(cls, path: Union[str, bytes, os.PathLike],  # type: ignore[type-arg]
-                  *, max_size: int = DEFAULT_MAX_SIZE) -> Stream:
+    def load_file(
+        cls,
+        path: Union[str, bytes, os.PathLike],  # type: ignore[type-arg]
+        *,
+        max_size: int = DEFAULT_MAX_SIZE,
+    ) -> Stream:
         """A stream from a file written by :meth:`save_file` (or by the C
         library's ``fc_stream_save_file``: such a stream comes back with an
         explicit channel count). The file is untrusted input: at most
@@ -1486,8 +1493,9 @@ class Stream:
         if not self._lock.acquire(False):
             raise self._busy()
         try:
-            raise_for_status(lib.fc_stream_set_horizon_policy(self._s, code),
-                             f"horizon_policy={show(policy)}")
+            raise_for_status(
+                lib.fc_stream_set_horizon_policy(self._s, code), f"horizon_policy={show(policy)}"
+            )
         finally:
             self._lock.release()
 
@@ -1613,7 +1621,5 @@ class Stream:
         if self._kind == "kernel":
             what = "kernel"
         else:
-            what = (f"rule={self._rule!r}, order={show(self._order)}, "
-                    f"step={show(self._step)}")
-        return (f"<pyfracconv.Stream {what}, channels={self.channels!r}, "
-                f"mode={self._mode!r}>")
+            what = f"rule={self._rule!r}, order={show(self._order)}, step={show(self._step)}"
+        return f"<pyfracconv.Stream {what}, channels={self.channels!r}, mode={self._mode!r}>"

@@ -24,7 +24,7 @@ import numpy as np
 import pyfracconv as pf
 
 BLOCK = 16
-KINDS = ("stream-exact", "stream-compressed", "stepper", "controller")
+KINDS = ("stream-exact", "stream-compressed", "stream-timed", "stepper", "controller")
 
 
 def _signal(n0, n=BLOCK):
@@ -41,19 +41,31 @@ def make(kind):
     if kind == "stream-exact":
         return pf.Stream.integral(0.6, 0.01)
     if kind == "stream-compressed":
-        return pf.Stream.derivative(0.4, 0.01, rule="l1", mode="compressed", tol=1e-9,
-                                    horizon=1e5)
+        return pf.Stream.derivative(0.4, 0.01, rule="l1", mode="compressed", tol=1e-9, horizon=1e5)
+    if kind == "stream-timed":
+        return pf.TimedStream(0.6, min_step=0.005, horizon=1e4)
     if kind == "stepper":
         return pf.Stepper(_rhs, 1.0, 0.7, 0.01)
     if kind == "controller":
-        return pf.Controller(kp=2.0, ki=1.5, kd=0.2, integral_order=0.6,
-                             derivative_order=0.5, step=0.01, output_limits=(-1.5, 1.5),
-                             rate_limit=40.0, derivative_filter=0.02, memory="compressed",
-                             horizon=1e5)
+        return pf.Controller(
+            kp=2.0,
+            ki=1.5,
+            kd=0.2,
+            integral_order=0.6,
+            derivative_order=0.5,
+            step=0.01,
+            output_limits=(-1.5, 1.5),
+            rate_limit=40.0,
+            derivative_filter=0.02,
+            memory="compressed",
+            horizon=1e5,
+        )
     raise ValueError(kind)
 
 
 def load(kind, path):
+    if kind == "stream-timed":
+        return pf.TimedStream.load_file(path)
     if kind.startswith("stream"):
         return pf.Stream.load_file(path)
     if kind == "stepper":
@@ -65,7 +77,15 @@ def position(obj):
     return obj.steps if isinstance(obj, pf.Stepper) else obj.count
 
 
+def _times(n0, n=BLOCK):
+    # invented jittered sample times, steps 0.006 .. 0.014
+    k = np.arange(n0, n0 + n, dtype=np.float64)
+    return 0.01 * k + 0.002 * np.sin(k)
+
+
 def step_block(obj, kind, n0):
+    if kind == "stream-timed":
+        return np.asarray(obj.push_many(_times(n0), _signal(n0)), dtype=np.float64)
     if kind.startswith("stream"):
         return np.asarray(obj.push_many(_signal(n0)), dtype=np.float64)
     if kind == "stepper":
@@ -86,7 +106,7 @@ NAIVE = bool(os.environ.get("NAIVE_WRITER"))
 def naive_write(path, data):
     with open(path, "wb") as fh:
         for i in range(0, len(data), 512):
-            fh.write(data[i:i + 512])
+            fh.write(data[i : i + 512])
             fh.flush()
             os.fsync(fh.fileno())
 
@@ -108,8 +128,11 @@ def serve():
         words = line.split()
         if words[0] == "reap":
             _, status = os.waitpid(int(words[1]), 0)
-            how = (f"signal {os.WTERMSIG(status)}" if os.WIFSIGNALED(status)
-                   else f"exit {os.WEXITSTATUS(status)}")
+            how = (
+                f"signal {os.WTERMSIG(status)}"
+                if os.WIFSIGNALED(status)
+                else f"exit {os.WEXITSTATUS(status)}"
+            )
             print(how, flush=True)
             continue
         kind, path = words

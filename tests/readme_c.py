@@ -36,8 +36,7 @@ def sh_blocks():
     """The section's sh blocks by role: install, c, others, wheel, export."""
     blocks = re.findall(r"```sh\n(.*?)\n```", c_section(), re.S)
     if len(blocks) != len(ROLES):
-        raise AssertionError(f"README compiled callers: expected {len(ROLES)} sh blocks, "
-                             f"found {len(blocks)}")
+        raise AssertionError(f"README compiled callers: expected {len(ROLES)} sh blocks, found {len(blocks)}")
     roles = dict(zip(ROLES, blocks))
     if not roles["install"].startswith("make install"):
         raise AssertionError("README compiled callers: the first sh block is not make install")
@@ -49,8 +48,7 @@ def sh_blocks():
 def _c_blocks():
     blocks = re.findall(r"```c\n(.*?)```", c_section(), re.S)
     if len(blocks) != 2:
-        raise AssertionError("README compiled callers: expected two c blocks (prog.c, "
-                             "ctl_check.c)")
+        raise AssertionError("README compiled callers: expected two c blocks (prog.c, ctl_check.c)")
     return blocks
 
 
@@ -74,8 +72,7 @@ def doc_program(lang):
 
 def run(block, cwd, env):
     """Run one README block with bash -e (every line must succeed)."""
-    return subprocess.run(["bash", "-e", "-c", block], cwd=cwd, env=env,
-                          capture_output=True, text=True)
+    return subprocess.run(["bash", "-e", "-c", block], cwd=cwd, env=env, capture_output=True, text=True)
 
 
 def wheel_env():

@@ -43,8 +43,11 @@ def rule_reference(rule, a, h, x, idx):
         if rule == "rectangle":  # u sum_{k<n} b_{n-1-k} x_k
             terms = w[:n][::-1] * xl[:n]
         elif rule == "trapezoid":  # A_n x_0 + sum_{1<=k<=n} a_{n-k} x_k
-            terms = (np.concatenate(([A[n] * xl[0]], w[:n][::-1] * xl[1 : n + 1]))
-                     if n > 0 else np.zeros(1, dtype=LD))
+            terms = (
+                np.concatenate(([A[n] * xl[0]], w[:n][::-1] * xl[1 : n + 1]))
+                if n > 0
+                else np.zeros(1, dtype=LD)
+            )
         elif rule == "grunwald":  # sum_{k<=n} g_{n-k} x_k
             terms = w[: n + 1][::-1] * xl[: n + 1]
         elif rule == "l1":  # sum_{k<n} d_k (x_{n-k} - x_{n-k-1})

@@ -25,16 +25,18 @@ def _weights(a, N):
     (Diethelm, Ford and Freed 2002, eqs. for b_{j,n+1} and a_{j,n+1})."""
     with mpmath.workdps(40):
         A = mpmath.mpf(a)
-        b = np.array([float((m + 1) ** A - m ** A) for m in range(N + 2)])
-        am = np.array([1.0] + [float((m + 1) ** (A + 1) - 2 * m ** (A + 1) + (m - 1) ** (A + 1))
-                               for m in range(1, N + 2)])
-        An = np.array([0.0] + [float((n - 1) ** (A + 1) - (n - 1 - A) * n ** A)
-                               for n in range(1, N + 2)])
+        b = np.array([float((m + 1) ** A - m**A) for m in range(N + 2)])
+        am = np.array(
+            [1.0]
+            + [float((m + 1) ** (A + 1) - 2 * m ** (A + 1) + (m - 1) ** (A + 1)) for m in range(1, N + 2)]
+        )
+        An = np.array([0.0] + [float((n - 1) ** (A + 1) - (n - 1 - A) * n**A) for n in range(1, N + 2)])
     return b, am, An
 
 
-def reference_solve(f, y0, orders, h, N, dy0=None, method="predictor-corrector",
-                    corrections=1, jac=None, t0=0.0):
+def reference_solve(
+    f, y0, orders, h, N, dy0=None, method="predictor-corrector", corrections=1, jac=None, t0=0.0
+):
     """y_n of the method for D^a y = f(t, y) (vector y0 of m components,
     orders of shape (m,)), n = 0..N, by direct O(N^2) sums; f(t, y) ->
     array (m,), jac(t, y) -> (m, m) for 'trapezoid'."""
@@ -43,8 +45,8 @@ def reference_solve(f, y0, orders, h, N, dy0=None, method="predictor-corrector",
     orders = np.broadcast_to(np.asarray(orders, dtype=float), (m,))
     d0 = np.zeros(m) if dy0 is None else np.broadcast_to(np.asarray(dy0, float), (m,))
     W = {a: _weights(a, N) for a in set(orders.tolist())}
-    u = np.array([h ** a / math.gamma(a + 1) for a in orders])
-    v = np.array([h ** a / math.gamma(a + 2) for a in orders])
+    u = np.array([h**a / math.gamma(a + 1) for a in orders])
+    v = np.array([h**a / math.gamma(a + 2) for a in orders])
 
     def T(n):
         t = n * h
@@ -88,6 +90,7 @@ def reference_solve(f, y0, orders, h, N, dy0=None, method="predictor-corrector",
 
 # ------------------------------------------------------------ closed forms
 
+
 def mittag_leffler(a, b, z, dps=60):
     """E_{a,b}(z) = sum_k z^k / Gamma(a k + b), summed with mpmath at dps
     digits until the terms fall below 10^-(dps-5) of the sum (the defining
@@ -100,7 +103,7 @@ def mittag_leffler(a, b, z, dps=60):
         s = mpmath.mpf(0)
         k = 0
         while True:
-            term = z ** k / mpmath.gamma(A * k + B)
+            term = z**k / mpmath.gamma(A * k + B)
             s += term
             if k > 10 and abs(term) < mpmath.mpf(10) ** (-(dps - 5)) * max(abs(s), 1e-300):
                 break
@@ -135,11 +138,16 @@ def dff_example(a):
     c3 = 2.25 * math.gamma(a + 1)
 
     def rhs(t, y):
-        return (c1 * t ** (8 - a) - c2 * t ** (4 - a / 2) + c3
-                + (1.5 * t ** (a / 2) - t ** 4) ** 3 - max(y, 0.0) ** 1.5)
+        return (
+            c1 * t ** (8 - a)
+            - c2 * t ** (4 - a / 2)
+            + c3
+            + (1.5 * t ** (a / 2) - t**4) ** 3
+            - max(y, 0.0) ** 1.5
+        )
 
     def exact(t):
         t = np.asarray(t, dtype=float)
-        return t ** 8 - 3 * t ** (4 + a / 2) + 2.25 * t ** a
+        return t**8 - 3 * t ** (4 + a / 2) + 2.25 * t**a
 
     return rhs, exact

@@ -104,7 +104,7 @@ def test_single_fft_engine_is_only_normwise():
     N = 2**15
     x = np.zeros(N)
     x[0] = 1.0
-    x[N // 2:] = 1e6
+    x[N // 2 :] = 1e6
     c = pyfracconv.weights("grunwald", 0.5, N)
     ref, scale = lag_reference(x, c, np.arange(0, N // 2, 97))
     y_fft = pyfracconv.lagged_sum(x, c, engine="fft")[np.arange(0, N // 2, 97)]

@@ -17,8 +17,7 @@ HAVE_SOURCES = os.path.exists(os.path.join(ROOT, "Makefile"))
 
 
 def _setup_build():
-    spec = importlib.util.spec_from_file_location(
-        "setup_build", os.path.join(ROOT, "setup_build.py"))
+    spec = importlib.util.spec_from_file_location("setup_build", os.path.join(ROOT, "setup_build.py"))
     mod = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(mod)
     return mod
@@ -35,8 +34,13 @@ def test_make_and_extension_use_the_same_flags(tmp_path):
     # setup_build.compile_args(), in the same order.
     env = {k: v for k, v in os.environ.items() if k != "CFLAGS"}
     obj = tmp_path / "obj" / "util.o"
-    out = subprocess.run(["make", "-n", "-B", "-C", ROOT, f"BUILD={tmp_path}", str(obj)],
-                         check=True, capture_output=True, text=True, env=env).stdout
+    out = subprocess.run(
+        ["make", "-n", "-B", "-C", ROOT, f"BUILD={tmp_path}", str(obj)],
+        check=True,
+        capture_output=True,
+        text=True,
+        env=env,
+    ).stdout
     line = next(ln for ln in out.splitlines() if " -c csrc/util.c" in ln)
     words = shlex.split(line)[1:]  # without the compiler
     flags = words[: words.index("-fPIC")]

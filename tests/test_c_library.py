@@ -18,8 +18,9 @@ def built(tmp_path_factory):
     if not HAVE_SOURCES:  # an installed package without the source tree
         pytest.fail("the C library tests need the source checkout (Makefile)")
     build = tmp_path_factory.mktemp("cbuild")
-    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib", "example"],
-                   check=True, capture_output=True, text=True)
+    subprocess.run(
+        ["make", "-C", ROOT, f"BUILD={build}", "lib", "example"], check=True, capture_output=True, text=True
+    )
     return build
 
 
@@ -42,9 +43,24 @@ def test_example_against_installed_header_and_shared_lib(built, tmp_path):
     assert os.path.exists(os.path.join(inc, "fracconv.h"))
     cc = shutil.which("cc") or shutil.which("gcc")
     exe = tmp_path / "example_shared"
-    subprocess.run([cc, "-std=c11", "-I", inc, os.path.join(ROOT, "examples", "example.c"),
-                    "-L", str(built), "-lfracconv", "-lm", "-o", str(exe)],
-                   check=True, capture_output=True, text=True)
+    subprocess.run(
+        [
+            cc,
+            "-std=c11",
+            "-I",
+            inc,
+            os.path.join(ROOT, "examples", "example.c"),
+            "-L",
+            str(built),
+            "-lfracconv",
+            "-lm",
+            "-o",
+            str(exe),
+        ],
+        check=True,
+        capture_output=True,
+        text=True,
+    )
     env = dict(os.environ, LD_LIBRARY_PATH=str(built))
     out = subprocess.run([str(exe)], capture_output=True, text=True, env=env)
     assert out.returncode == 0, out.stdout + out.stderr
@@ -58,8 +74,7 @@ def test_header_cdef_block_is_what_python_sees():
 
     from pyfracconv._fracconv import lib
 
-    spec = importlib.util.spec_from_file_location(
-        "setup_build", os.path.join(ROOT, "setup_build.py"))
+    spec = importlib.util.spec_from_file_location("setup_build", os.path.join(ROOT, "setup_build.py"))
     setup_build = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(setup_build)
 
@@ -71,7 +86,8 @@ def test_header_cdef_block_is_what_python_sees():
 
 def test_make_clean_leaves_setuptools_tree_alone():
     # make's folder is cbuild/; build/ belongs to setuptools (pip install)
-    out = subprocess.run(["make", "-n", "-C", ROOT, "clean"], check=True,
-                         capture_output=True, text=True).stdout
+    out = subprocess.run(
+        ["make", "-n", "-C", ROOT, "clean"], check=True, capture_output=True, text=True
+    ).stdout
     assert "rm -rf cbuild" in out
     assert not any(w in ("build", "build/") for ln in out.splitlines() for w in ln.split())

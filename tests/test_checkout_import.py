@@ -23,8 +23,13 @@ def test_checkout_without_core_explains(tmp_path):
         if f.endswith(".py"):
             shutil.copy(os.path.join(ROOT, "pyfracconv", f), copy / "pyfracconv" / f)
     shutil.copy(os.path.join(ROOT, "setup_build.py"), copy / "setup_build.py")
-    r = subprocess.run([sys.executable, "-S", "-c", "import pyfracconv"], cwd=copy,
-                       capture_output=True, text=True, env={**os.environ, "PYTHONPATH": ""})
+    r = subprocess.run(
+        [sys.executable, "-S", "-c", "import pyfracconv"],
+        cwd=copy,
+        capture_output=True,
+        text=True,
+        env={**os.environ, "PYTHONPATH": ""},
+    )
     assert r.returncode != 0
     assert "compiled core" in r.stderr and "pip install -e ." in r.stderr, r.stderr
     assert "run from another directory" in r.stderr

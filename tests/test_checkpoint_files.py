@@ -65,7 +65,7 @@ class Uninterrupted:
     def __init__(self, kind):
         self.kind = kind
         self.ahead = cw.make(kind)
-        self.outputs = []          # outputs[j]: bytes of block j
+        self.outputs = []  # outputs[j]: bytes of block j
         self.at = cw.make(kind)
 
     def block_outputs(self, j):
@@ -86,9 +86,13 @@ class Uninterrupted:
 @pytest.fixture(scope="module")
 def server():
     env = dict(os.environ, PYTHONPATH=HERE + os.pathsep + os.environ.get("PYTHONPATH", ""))
-    proc = subprocess.Popen([sys.executable, os.path.join(HERE, "checkpoint_worker.py")],
-                            stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True,
-                            env=env)
+    proc = subprocess.Popen(
+        [sys.executable, os.path.join(HERE, "checkpoint_worker.py")],
+        stdin=subprocess.PIPE,
+        stdout=subprocess.PIPE,
+        text=True,
+        env=env,
+    )
     yield proc
     proc.stdin.close()
     proc.wait(timeout=30)
@@ -101,12 +105,11 @@ def _ask(proc, line):
 
 
 @pytest.mark.parametrize("kind", cw.KINDS)
-def test_sigkill_during_checkpoints_leaves_a_file_that_resumes_bit_for_bit(
-        kind, server, tmp_path):
-    rng = random.Random(f"checkpoint-{kind}")   # seeded: the same delays every run
+def test_sigkill_during_checkpoints_leaves_a_file_that_resumes_bit_for_bit(kind, server, tmp_path):
+    rng = random.Random(f"checkpoint-{kind}")  # seeded: the same delays every run
     ref = Uninterrupted(kind)
     path = str(tmp_path / "state.ckpt")
-    cw.make(kind).save_file(path)               # the checkpoint at sample 0
+    cw.make(kind).save_file(path)  # the checkpoint at sample 0
     last = 0
     killed = 0
     temps = set()
@@ -118,7 +121,7 @@ def test_sigkill_during_checkpoints_leaves_a_file_that_resumes_bit_for_bit(
         assert how == f"signal {int(signal.SIGKILL)}", f"round {rnd}: worker ended with {how}"
         killed += 1
 
-        obj = cw.load(kind, path)               # the file always loads
+        obj = cw.load(kind, path)  # the file always loads
         n = cw.position(obj)
         assert n % cw.BLOCK == 0 and n >= last, (rnd, n, last)
         last = n
@@ -156,8 +159,7 @@ def _unchanged(kind, obj, before):
     """obj's state is ``before`` and its next block is that of a twin
     loaded from ``before``."""
     assert obj.save() == before
-    twin = {"stepper": lambda b: pf.Stepper.load(b, cw._rhs)}.get(
-        kind, type(obj).load)(before)
+    twin = {"stepper": lambda b: pf.Stepper.load(b, cw._rhs)}.get(kind, type(obj).load)(before)
     n = cw.position(obj)
     assert _bits(cw.step_block(obj, kind, n)) == _bits(cw.step_block(twin, kind, n))
 
@@ -166,9 +168,9 @@ def _unchanged(kind, obj, before):
 def test_file_is_the_save_bytes_and_new_files_are_private(kind, tmp_path):
     obj = _made(kind)
     path = tmp_path / "a.ckpt"
-    obj.save_file(path)                      # os.PathLike accepted
+    obj.save_file(path)  # os.PathLike accepted
     assert path.read_bytes() == obj.save()
-    assert os.stat(path).st_mode & 0o777 == 0o600   # mkstemp's mode (fracconv.h)
+    assert os.stat(path).st_mode & 0o777 == 0o600  # mkstemp's mode (fracconv.h)
     assert os.listdir(tmp_path) == ["a.ckpt"]
     again = cw.load(kind, str(path))
     assert again.save() == obj.save()
@@ -201,8 +203,9 @@ def test_missing_directory(kind, tmp_path):
 def _in_child(code, cwd):
     """Run ``code`` in a fresh interpreter in ``cwd``; its stdout."""
     env = dict(os.environ, PYTHONPATH=HERE + os.pathsep + os.environ.get("PYTHONPATH", ""))
-    res = subprocess.run([sys.executable, "-c", code], cwd=cwd, env=env,
-                         capture_output=True, text=True, timeout=120)
+    res = subprocess.run(
+        [sys.executable, "-c", code], cwd=cwd, env=env, capture_output=True, text=True, timeout=120
+    )
     assert res.returncode == 0, res.stderr
     return res.stdout
 
@@ -297,8 +300,9 @@ def test_truncated_garbage_foreign_and_long_files(kind, tmp_path):
     good = obj.save()
     path = tmp_path / "f.ckpt"
     rng = np.random.default_rng(14)
-    cuts = sorted(set([0, 1, 7, 8, 9, 15, 16, len(good) // 2, len(good) - 1]
-                      + rng.integers(0, len(good), 20).tolist()))
+    cuts = sorted(
+        set([0, 1, 7, 8, 9, 15, 16, len(good) // 2, len(good) - 1] + rng.integers(0, len(good), 20).tolist())
+    )
     for cut in cuts:
         path.write_bytes(good[:cut])
         with pytest.raises(pf.StateError) as info:
@@ -322,7 +326,8 @@ def test_truncated_garbage_foreign_and_long_files(kind, tmp_path):
     # the bound on the bytes read
     path.write_bytes(good)
     loader = {"stepper": lambda p, **kw: pf.Stepper.load_file(p, cw._rhs, **kw)}.get(
-        kind, type(obj).load_file)
+        kind, type(obj).load_file
+    )
     assert loader(str(path), max_size=len(good)).save() == good
     with pytest.raises(pf.StateError, match=f"longer than max_size={len(good) - 1}"):
         loader(str(path), max_size=len(good) - 1)
@@ -356,8 +361,9 @@ def test_c_and_python_read_each_others_files(tmp_path):
         path = str(tmp_path / f"{kind}.c.ckpt").encode()
         if kind.startswith("stream"):
             assert lib.fc_stream_save_file(obj._s, path) == 0
-            back = pf.Stream.load_file(path)
-            assert back.channels == 1        # explicit channels from a C file
+            loader = pf.TimedStream if kind == "stream-timed" else pf.Stream
+            back = loader.load_file(path)
+            assert back.channels == 1  # explicit channels from a C file
             assert back.save()[8:] == obj.save()[8:]
             pp = ffi.new("fc_stream **")
             assert lib.fc_stream_load_file(path, 1 << 20, pp) == 0

@@ -46,8 +46,7 @@ def write_csv(path, header, rows):
         if header is not None:
             fh.write(",".join(header) + "\n")
         for row in rows:
-            fh.write(",".join(repr(float(v)) if not isinstance(v, str) else v
-                              for v in row) + "\n")
+            fh.write(",".join(repr(float(v)) if not isinstance(v, str) else v for v in row) + "\n")
 
 
 def read_csv_back(path):
@@ -76,12 +75,14 @@ def assert_clean_error(code, err, *fragments):
 
 # ---------------------------------------------------------------- CSV
 
+
 def test_csv_round_trip_keeps_header_and_every_digit(tmp_path, capsys):
     x = signals()
     src, dst = tmp_path / "in.csv", tmp_path / "out.csv"
     write_csv(src, ["force", "disp"], x)
-    code, out, err = run(capsys, "integral", src, "-o", dst, "--order", "0.5",
-                         "--step", "0.01", "--rule", "trapezoid")
+    code, out, err = run(
+        capsys, "integral", src, "-o", dst, "--order", "0.5", "--step", "0.01", "--rule", "trapezoid"
+    )
     assert code == 0, err
     lines = read_csv_back(dst)
     assert lines[0] == "force,disp"
@@ -128,8 +129,21 @@ def test_column_selection_by_name_in_given_order(tmp_path, capsys):
         fh.write("stamp, force ,label,disp\n")
         for r in rows:
             fh.write(f"{r[0]},{float(r[1])!r},{r[2]},{float(r[3])!r}\n")
-    code, _, err = run(capsys, "derivative", src, "-o", dst, "--order", "0.4",
-                       "--step", "0.01", "--rule", "l1", "--columns", "disp,force")
+    code, _, err = run(
+        capsys,
+        "derivative",
+        src,
+        "-o",
+        dst,
+        "--order",
+        "0.4",
+        "--step",
+        "0.01",
+        "--rule",
+        "l1",
+        "--columns",
+        "disp,force",
+    )
     assert code == 0, err
     lines = read_csv_back(dst)
     assert lines[0] == "disp, force "  # the header fields as written
@@ -142,8 +156,7 @@ def test_headerless_csv_keeps_first_row_as_data(tmp_path, capsys):
     x = signals(30)
     src, dst = tmp_path / "nohead.csv", tmp_path / "nohead_out.csv"
     write_csv(src, None, x)
-    code, _, err = run(capsys, "derivative", src, "-o", dst, "--order", "1.5",
-                       "--step", "0.01")
+    code, _, err = run(capsys, "derivative", src, "-o", dst, "--order", "1.5", "--step", "0.01")
     assert code == 0, err
     lines = read_csv_back(dst)
     assert len(lines) == len(x)  # no header line added, first row kept
@@ -155,8 +168,7 @@ def test_blank_lines_and_bom_tolerated(tmp_path, capsys):
     src = tmp_path / "bom.csv"
     with open(src, "w", encoding="utf-8-sig") as fh:
         fh.write("force\n\n1.0\n2.0\n\n4.0\n\n")
-    code, out, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5",
-                         "--step", "1")
+    code, out, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1")
     assert code == 0, err
     lines = out.splitlines()
     assert lines[0] == "force"
@@ -168,24 +180,24 @@ def test_csv_to_stdout(tmp_path, capsys):
     x = signals(20)
     src = tmp_path / "s.csv"
     write_csv(src, ["a", "b"], x)
-    code, out, err = run(capsys, "integral", src, "-o", "-", "--order", "2.5",
-                         "--step", "0.01")
+    code, out, err = run(capsys, "integral", src, "-o", "-", "--order", "2.5", "--step", "0.01")
     assert code == 0, err
     assert err == ""
     lines = out.splitlines()
     assert lines[0] == "a,b"
-    np.testing.assert_array_equal(numbers(lines[1:]),
-                                  pyfracconv.integral(x, 2.5, 0.01, axis=0))
+    np.testing.assert_array_equal(numbers(lines[1:]), pyfracconv.integral(x, 2.5, 0.01, axis=0))
 
 
 # ---------------------------------------------------------------- npy
+
 
 def test_npy_1d_in_npy_out(tmp_path, capsys):
     x = signals(100)[:, 0]
     src, dst = tmp_path / "x.npy", tmp_path / "y.NPY"
     np.save(src, x)
-    code, _, err = run(capsys, "integral", src, "-o", dst, "--order", "0.7",
-                       "--step", "0.01", "--rule", "trapezoid")
+    code, _, err = run(
+        capsys, "integral", src, "-o", dst, "--order", "0.7", "--step", "0.01", "--rule", "trapezoid"
+    )
     assert code == 0, err
     got = np.load(dst)
     assert got.shape == x.shape and got.dtype == np.float64
@@ -196,21 +208,20 @@ def test_npy_2d_in_csv_out_has_no_header(tmp_path, capsys):
     x = (signals(50) * 1000).astype(np.int32)  # integer input is accepted
     src, dst = tmp_path / "x2.npy", tmp_path / "x2.csv"
     np.save(src, x)
-    code, _, err = run(capsys, "derivative", src, "-o", dst, "--order", "0.5",
-                       "--step", "0.001")
+    code, _, err = run(capsys, "derivative", src, "-o", dst, "--order", "0.5", "--step", "0.001")
     assert code == 0, err
     lines = read_csv_back(dst)
     assert len(lines) == len(x)
-    np.testing.assert_array_equal(
-        numbers(lines), pyfracconv.derivative(x.astype(float), 0.5, 0.001, axis=0))
+    np.testing.assert_array_equal(numbers(lines), pyfracconv.derivative(x.astype(float), 0.5, 0.001, axis=0))
 
 
 def test_csv_in_npy_out(tmp_path, capsys):
     x = signals(33)
     src, dst = tmp_path / "z.csv", tmp_path / "z.npy"
     write_csv(src, ["p", "q"], x)
-    code, _, err = run(capsys, "integral", src, "-o", dst, "--order", "0.5",
-                       "--step", "0.01", "--columns", "q")
+    code, _, err = run(
+        capsys, "integral", src, "-o", dst, "--order", "0.5", "--step", "0.01", "--columns", "q"
+    )
     assert code == 0, err
     got = np.load(dst)
     assert got.shape == (33, 1)
@@ -219,14 +230,15 @@ def test_csv_in_npy_out(tmp_path, capsys):
 
 # ---------------------------------------------------------------- errors
 
+
 def test_missing_file_is_named(tmp_path, capsys):
     missing = tmp_path / "nowhere.csv"
-    code, _, err = run(capsys, "integral", missing, "-o", tmp_path / "o.csv",
-                       "--order", "0.5", "--step", "1")
+    code, _, err = run(capsys, "integral", missing, "-o", tmp_path / "o.csv", "--order", "0.5", "--step", "1")
     assert_clean_error(code, err, str(missing), "cannot read")
     missing_npy = tmp_path / "nowhere.npy"
-    code, _, err = run(capsys, "integral", missing_npy, "-o", tmp_path / "o.csv",
-                       "--order", "0.5", "--step", "1")
+    code, _, err = run(
+        capsys, "integral", missing_npy, "-o", tmp_path / "o.csv", "--order", "0.5", "--step", "1"
+    )
     assert_clean_error(code, err, str(missing_npy), "cannot read")
 
 
@@ -263,8 +275,9 @@ def test_empty_npy_file_and_header_only_csv(tmp_path, capsys):
 def test_missing_column_lists_available(tmp_path, capsys):
     src = tmp_path / "cols.csv"
     write_csv(src, ["force", "disp"], signals(5))
-    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5",
-                       "--step", "1", "--columns", "force,torque")
+    code, _, err = run(
+        capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1", "--columns", "force,torque"
+    )
     assert_clean_error(code, err, "'torque'", "available columns: 'force', 'disp'")
 
 
@@ -273,11 +286,9 @@ def test_bad_number_names_line_column_and_text(tmp_path, capsys, monkeypatch):
     with open("data.csv", "w") as fh:
         fh.write("time,force\n")
         fh.write("0,1\n0.1,2\n\n0.2,3\n0.3,4\n")  # lines 2-6 (line 4 blank)
-        fh.write("0.4,abc\n")                    # line 7
-    code, _, err = run(capsys, "integral", "data.csv", "-o", "out.csv",
-                       "--order", "0.5", "--step", "0.1")
-    assert_clean_error(code, err,
-                       "data.csv line 7, column 'force': 'abc' is not a number")
+        fh.write("0.4,abc\n")  # line 7
+    code, _, err = run(capsys, "integral", "data.csv", "-o", "out.csv", "--order", "0.5", "--step", "0.1")
+    assert_clean_error(code, err, "data.csv line 7, column 'force': 'abc' is not a number")
     assert not os.path.exists("out.csv")
 
 
@@ -291,8 +302,7 @@ def test_bad_number_without_header_gives_column_number(tmp_path, capsys):
 def test_bad_number_in_unselected_column_is_ignored(tmp_path, capsys):
     src = tmp_path / "u.csv"
     src.write_text("a,b\n1,n/a\n2,n/a\n")
-    code, out, err = run(capsys, "integral", src, "-o", "-", "--order", "1",
-                         "--step", "1", "--columns", "a")
+    code, out, err = run(capsys, "integral", src, "-o", "-", "--order", "1", "--step", "1", "--columns", "a")
     assert code == 0, err
     assert numbers(out.splitlines()[1:])[:, 0].tolist() == [0.0, 1.0]
     code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "1", "--step", "1")
@@ -326,12 +336,15 @@ def test_non_finite_npy(tmp_path, capsys):
     assert_clean_error(code, err, str(src), "[4, 2]", "nan", "not finite")
 
 
-@pytest.mark.parametrize("arr, fragment", [
-    (np.zeros((2, 2, 2)), "shape (2, 2, 2)"),
-    (np.zeros(3, dtype=complex), "complex128"),
-    (np.zeros(0), "no samples"),
-    (np.array(["a", "b"]), "<U1"),
-])
+@pytest.mark.parametrize(
+    "arr, fragment",
+    [
+        (np.zeros((2, 2, 2)), "shape (2, 2, 2)"),
+        (np.zeros(3, dtype=complex), "complex128"),
+        (np.zeros(0), "no samples"),
+        (np.array(["a", "b"]), "<U1"),
+    ],
+)
 def test_unusable_npy(tmp_path, capsys, arr, fragment):
     src = tmp_path / "bad.npy"
     np.save(src, arr)
@@ -349,13 +362,11 @@ def test_corrupt_npy(tmp_path, capsys):
 def test_columns_need_names(tmp_path, capsys):
     src = tmp_path / "nh.csv"
     src.write_text("1,2\n3,4\n")
-    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5",
-                       "--step", "1", "--columns", "a")
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step", "1", "--columns", "a")
     assert_clean_error(code, err, "--columns", "no header row")
     npy = tmp_path / "a.npy"
     np.save(npy, np.ones(3))
-    code, _, err = run(capsys, "integral", npy, "-o", "-", "--order", "0.5",
-                       "--step", "1", "--columns", "a")
+    code, _, err = run(capsys, "integral", npy, "-o", "-", "--order", "0.5", "--step", "1", "--columns", "a")
     assert_clean_error(code, err, "--columns", ".npy")
 
 
@@ -365,22 +376,30 @@ def _library_message(fn, *args):
     return str(info.value)
 
 
-@pytest.mark.parametrize("cmd, opts, expected", [
-    ("integral", ["--order", "-1"], lambda: _library_message(check_order, -1.0, "rectangle")),
-    ("integral", ["--order", "0"], lambda: _library_message(check_order, 0.0, "rectangle")),
-    ("integral", ["--order", "abc"], lambda: _library_message(check_order, "abc", "rectangle")),
-    ("integral", ["--order", "nan"], lambda: _library_message(check_order, float("nan"), "rectangle")),
-    ("integral", ["--order", "11"], lambda: _library_message(check_order, 11.0, "rectangle")),
-    ("derivative", ["--order", "1.5", "--rule", "l1"],
-     lambda: _library_message(check_order, 1.5, "l1")),
-    ("integral", ["--step", "0"], lambda: _library_message(check_step, 0.0)),
-    ("integral", ["--step", "-0.5"], lambda: _library_message(check_step, -0.5)),
-    ("integral", ["--step", "fast"], lambda: _library_message(check_step, "fast")),
-    ("integral", ["--rule", "simpson"],
-     lambda: _library_message(check_rule, "simpson", ("rectangle", "trapezoid"))),
-    ("derivative", ["--rule", "trapezoid"],
-     lambda: _library_message(check_rule, "trapezoid", DERIVATIVE_RULES)),
-])
+@pytest.mark.parametrize(
+    "cmd, opts, expected",
+    [
+        ("integral", ["--order", "-1"], lambda: _library_message(check_order, -1.0, "rectangle")),
+        ("integral", ["--order", "0"], lambda: _library_message(check_order, 0.0, "rectangle")),
+        ("integral", ["--order", "abc"], lambda: _library_message(check_order, "abc", "rectangle")),
+        ("integral", ["--order", "nan"], lambda: _library_message(check_order, float("nan"), "rectangle")),
+        ("integral", ["--order", "11"], lambda: _library_message(check_order, 11.0, "rectangle")),
+        ("derivative", ["--order", "1.5", "--rule", "l1"], lambda: _library_message(check_order, 1.5, "l1")),
+        ("integral", ["--step", "0"], lambda: _library_message(check_step, 0.0)),
+        ("integral", ["--step", "-0.5"], lambda: _library_message(check_step, -0.5)),
+        ("integral", ["--step", "fast"], lambda: _library_message(check_step, "fast")),
+        (
+            "integral",
+            ["--rule", "simpson"],
+            lambda: _library_message(check_rule, "simpson", ("rectangle", "trapezoid")),
+        ),
+        (
+            "derivative",
+            ["--rule", "trapezoid"],
+            lambda: _library_message(check_rule, "trapezoid", DERIVATIVE_RULES),
+        ),
+    ],
+)
 def test_bad_order_step_rule_use_library_messages(tmp_path, capsys, cmd, opts, expected):
     src = tmp_path / "ok.csv"
     write_csv(src, ["f"], np.ones((4, 1)))
@@ -402,8 +421,7 @@ def test_bad_order_step_rule_use_library_messages(tmp_path, capsys, cmd, opts, e
 def test_unknown_output_extension(tmp_path, capsys):
     src = tmp_path / "ok.csv"
     write_csv(src, ["f"], np.ones((4, 1)))
-    code, _, err = run(capsys, "integral", src, "-o", tmp_path / "out.txt",
-                       "--order", "0.5", "--step", "1")
+    code, _, err = run(capsys, "integral", src, "-o", tmp_path / "out.txt", "--order", "0.5", "--step", "1")
     assert_clean_error(code, err, "out.txt", ".csv", ".npy")
 
 
@@ -424,9 +442,11 @@ def test_usage_errors_exit_2(tmp_path, capsys):
 
 # ---------------------------------------------------------------- help, version, demo
 
-@pytest.mark.parametrize("argv", [["--help"], ["integral", "--help"],
-                                  ["derivative", "--help"], ["demo", "--help"],
-                                  ["control", "--help"]])
+
+@pytest.mark.parametrize(
+    "argv",
+    [["--help"], ["integral", "--help"], ["derivative", "--help"], ["demo", "--help"], ["control", "--help"]],
+)
 def test_help_carries_cautions(capsys, argv):
     code, out, _ = run(capsys, *argv)
     assert code == 0
@@ -462,6 +482,7 @@ def test_demo_checks_can_fail(capsys):
         return pyfracconv.derivative(x, order * 1.02, step, rule=rule, **kw)
 
     import io
+
     buf = io.StringIO()
     assert demo.run(buf, integral=bad_integral) == 1
     assert "FAIL  scenario trapezoid" in buf.getvalue()
@@ -472,27 +493,56 @@ def test_demo_checks_can_fail(capsys):
 
 # ---------------------------------------------------------------- python -m
 
+
 def test_python_dash_m(tmp_path):
     x = signals(25)
     src, dst = tmp_path / "m.csv", tmp_path / "m_out.csv"
     write_csv(src, ["u", "v"], x)
     env = dict(os.environ)
     proc = subprocess.run(
-        [sys.executable, "-m", "pyfracconv", "integral", str(src), "-o", str(dst),
-         "--order", "0.5", "--step", "0.01"],
-        capture_output=True, text=True, timeout=120, env=env,
+        [
+            sys.executable,
+            "-m",
+            "pyfracconv",
+            "integral",
+            str(src),
+            "-o",
+            str(dst),
+            "--order",
+            "0.5",
+            "--step",
+            "0.01",
+        ],
+        capture_output=True,
+        text=True,
+        timeout=120,
+        env=env,
     )
     assert proc.returncode == 0, proc.stderr
     lines = read_csv_back(dst)
     assert lines[0] == "u,v"
     # another process: allow for rounding-level differences in engine choice
-    np.testing.assert_allclose(numbers(lines[1:]),
-                               pyfracconv.integral(x, 0.5, 0.01, axis=0),
-                               rtol=1e-13, atol=1e-15)
+    np.testing.assert_allclose(
+        numbers(lines[1:]), pyfracconv.integral(x, 0.5, 0.01, axis=0), rtol=1e-13, atol=1e-15
+    )
     proc = subprocess.run(
-        [sys.executable, "-m", "pyfracconv", "integral", str(tmp_path / "gone.csv"),
-         "-o", "-", "--order", "0.5", "--step", "0.01"],
-        capture_output=True, text=True, timeout=120, env=env,
+        [
+            sys.executable,
+            "-m",
+            "pyfracconv",
+            "integral",
+            str(tmp_path / "gone.csv"),
+            "-o",
+            "-",
+            "--order",
+            "0.5",
+            "--step",
+            "0.01",
+        ],
+        capture_output=True,
+        text=True,
+        timeout=120,
+        env=env,
     )
     assert proc.returncode == 2
     assert "gone.csv" in proc.stderr and "Traceback" not in proc.stderr
@@ -500,14 +550,14 @@ def test_python_dash_m(tmp_path):
 
 # ---------------------------------------------------------------- the closed-loop demo
 
+
 def test_demo_closed_loop_writes_files_and_summary(tmp_path, capsys, monkeypatch):
     monkeypatch.chdir(tmp_path)
     code, out, err = run(capsys, "demo", "--out-dir", tmp_path / "d")
     assert code == 0, out + err
     assert "INVENTED" in out and "CAUTION" in out
     assert "loop settled with both memories" in out
-    for word in ("settling s", "overshoot %", "energy", "ctrl bytes",
-                 "largest deviation between memories"):
+    for word in ("settling s", "overshoot %", "energy", "ctrl bytes", "largest deviation between memories"):
         assert word in out
     traj = tmp_path / "d" / "trajectory.csv"
     lines = traj.read_text().splitlines()
@@ -521,6 +571,7 @@ def test_demo_closed_loop_writes_files_and_summary(tmp_path, capsys, monkeypatch
     assert np.max(np.abs(data[:, 2] - data[:, 4])) < 1e-6
     try:
         import matplotlib  # noqa: F401
+
         assert (tmp_path / "d" / "bode.png").exists()
     except ImportError:
         assert "pip install 'pyfracconv[plot]'" in out
@@ -529,14 +580,13 @@ def test_demo_closed_loop_writes_files_and_summary(tmp_path, capsys, monkeypatch
 
 # ---------------------------------------------------------------- options, files
 
+
 def test_option_messages_for_command_line_users(tmp_path, capsys):
     src = tmp_path / "ok.csv"
     write_csv(src, ["f"], np.ones((4, 1)))
-    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "abc",
-                       "--step", "1")
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "abc", "--step", "1")
     assert_clean_error(code, err, "--order abc: not a number")
-    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5",
-                       "--step=-1e-3")
+    code, _, err = run(capsys, "integral", src, "-o", "-", "--order", "0.5", "--step=-1e-3")
     assert_clean_error(code, err, "--step -1e-3: out of range", "positive")
 
 
@@ -544,8 +594,7 @@ def test_output_may_not_be_the_input(tmp_path, capsys):
     src = tmp_path / "ok.csv"
     write_csv(src, ["f"], np.ones((4, 1)))
     before = src.read_bytes()
-    code, _, err = run(capsys, "integral", src, "-o", src, "--order", "0.5",
-                       "--step", "1")
+    code, _, err = run(capsys, "integral", src, "-o", src, "--order", "0.5", "--step", "1")
     assert_clean_error(code, err, "is the input file")
     assert src.read_bytes() == before
 
@@ -557,9 +606,9 @@ def test_failed_write_keeps_previous_output(tmp_path, capsys, monkeypatch):
 
     def boom(*a, **k):
         raise OSError(28, "No space left on device")
+
     monkeypatch.setattr(cli, "_write_csv", boom)
-    code, _, err = run(capsys, "integral", src, "-o", dst, "--order", "0.5",
-                       "--step", "1")
+    code, _, err = run(capsys, "integral", src, "-o", dst, "--order", "0.5", "--step", "1")
     assert_clean_error(code, err, "cannot write", "No space left")
     assert dst.read_text() == "previous\n"
     # the temporary file is removed
@@ -569,17 +618,16 @@ def test_failed_write_keeps_previous_output(tmp_path, capsys, monkeypatch):
 def test_comment_lines_and_delimiters(tmp_path, capsys):
     src = tmp_path / "c.csv"
     src.write_text("# logger export\nf\n1\n# note\n2\n3\n")
-    code, out, err = run(capsys, "integral", src, "-o", "-", "--order", "1",
-                         "--step", "1")
+    code, out, err = run(capsys, "integral", src, "-o", "-", "--order", "1", "--step", "1")
     assert code == 0, err
     assert out.splitlines() == ["f", "0.0", "1.0", "3.0"]  # rectangle: running sum
     semi = tmp_path / "s.csv"
     semi.write_text("1;2\n3;4\n")
-    code, _, err = run(capsys, "integral", semi, "-o", "-", "--order", "1",
-                       "--step", "1")
+    code, _, err = run(capsys, "integral", semi, "-o", "-", "--order", "1", "--step", "1")
     assert_clean_error(code, err, "--delimiter ';'")
-    code, out, err = run(capsys, "integral", semi, "-o", "-", "--order", "1",
-                         "--step", "1", "--delimiter", ";")
+    code, out, err = run(
+        capsys, "integral", semi, "-o", "-", "--order", "1", "--step", "1", "--delimiter", ";"
+    )
     assert code == 0, err
 
 
@@ -588,38 +636,71 @@ def test_control_command_equals_controller(tmp_path, capsys):
     rng = np.random.default_rng(5)
     x = np.c_[np.ones(50), rng.normal(size=50)]
     write_csv(src, ["sp", "pv"], x)
-    code, out, err = run(capsys, "control", src, "-o", "-", "--kp", "2", "--ki",
-                         "0.5", "--integral-order", "0.7", "--step", "0.1",
-                         "--out-max", "3")
+    code, out, err = run(
+        capsys,
+        "control",
+        src,
+        "-o",
+        "-",
+        "--kp",
+        "2",
+        "--ki",
+        "0.5",
+        "--integral-order",
+        "0.7",
+        "--step",
+        "0.1",
+        "--out-max",
+        "3",
+    )
     assert code == 0, err
     got = numbers(out.splitlines()[1:])
-    want = pyfracconv.Controller(2.0, 0.5, 0.0, integral_order=0.7,
-                                 derivative_order=0.5, step=0.1,
-                                 output_limits=(-np.inf, 3)).update_block(x[:, 0], x[:, 1])
+    want = pyfracconv.Controller(
+        2.0, 0.5, 0.0, integral_order=0.7, derivative_order=0.5, step=0.1, output_limits=(-np.inf, 3)
+    ).update_block(x[:, 0], x[:, 1])
     np.testing.assert_array_equal(got.ravel(), want)
 
 
 # ---------------------------------------------------------------- live
 
+
 def _live_proc(*args):
-    return subprocess.Popen([sys.executable, "-m", "pyfracconv", *args],
-                            stdin=subprocess.PIPE, stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, text=True, bufsize=1)
+    return subprocess.Popen(
+        [sys.executable, "-m", "pyfracconv", *args],
+        stdin=subprocess.PIPE,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        bufsize=1,
+    )
 
 
 def test_live_first_line_arrives_before_stdin_closes():
-    p = _live_proc("integral", "-", "-o", "-", "--live", "--order", "1",
-                   "--step", "0.5", "--time-column", "1", "--time-tol", "1e-6")
+    p = _live_proc(
+        "integral",
+        "-",
+        "-o",
+        "-",
+        "--live",
+        "--order",
+        "1",
+        "--step",
+        "0.5",
+        "--time-column",
+        "1",
+        "--time-tol",
+        "1e-6",
+    )
     try:
         p.stdin.write("t,f\n")
         p.stdin.write("0,2\n")
         p.stdin.flush()
-        assert p.stdout.readline() == "t,f\n"     # header echoed at once
+        assert p.stdout.readline() == "t,f\n"  # header echoed at once
         assert p.stdout.readline() == "0.0,0.0\n"  # rectangle: y_0 = 0
-        p.stdin.write("0.5,4\n")                # the slow producer's next line
+        p.stdin.write("0.5,4\n")  # the slow producer's next line
         p.stdin.flush()
         assert p.stdout.readline() == "0.5,1.0\n"  # h * 2
-        p.stdin.write("1.2,4\n")                # time step 0.7, not 0.5
+        p.stdin.write("1.2,4\n")  # time step 0.7, not 0.5
         p.stdin.flush()
         assert p.stdout.readline() == "1.2,3.0\n"
         p.stdin.close()
@@ -636,7 +717,7 @@ def test_live_controller_and_closed_pipe():
         p.stdin.write("1,0.25\n")
         p.stdin.flush()
         assert float(p.stdout.readline()) == 1.5
-        p.stdout.close()                          # the reader goes away
+        p.stdout.close()  # the reader goes away
         for _ in range(200):
             try:
                 p.stdin.write("1,0\n")
@@ -663,20 +744,30 @@ def test_workers_option_same_output_and_refusals(tmp_path, capsys):
     outs = []
     for extra in ([], ["--workers", "2"], ["--workers", "-1"]):
         out = tmp_path / f"y{len(outs)}.npy"
-        code, _, err = run(capsys, "integral", src, "-o", out, "--order", "0.5",
-                           "--step", "0.01", *extra)
+        code, _, err = run(capsys, "integral", src, "-o", out, "--order", "0.5", "--step", "0.01", *extra)
         assert code == 0, err
         outs.append(np.load(out))
     assert outs[0].tobytes() == outs[1].tobytes() == outs[2].tobytes()
-    for bad, frag in (("0", "workers=0: must not be 0"), ("two", "not an integer"),
-                      ("-999", "workers=-999")):
-        code, _, err = run(capsys, "derivative", src, "-o", tmp_path / "bad.npy",
-                           "--order", "0.5", "--step", "0.01", "--workers", bad)
+    for bad, frag in (("0", "workers=0: must not be 0"), ("two", "not an integer"), ("-999", "workers=-999")):
+        code, _, err = run(
+            capsys,
+            "derivative",
+            src,
+            "-o",
+            tmp_path / "bad.npy",
+            "--order",
+            "0.5",
+            "--step",
+            "0.01",
+            "--workers",
+            bad,
+        )
         assert_clean_error(code, err, "--workers", frag)
         assert not (tmp_path / "bad.npy").exists()
 
 
 # ---------------------------------------------------------------- --time-column (batch)
+
 
 def _timed_csv(path, t, x, names=("time", "f", "g")):
     write_csv(path, list(names), [[ti, *xi] for ti, xi in zip(t, x)])
@@ -691,13 +782,12 @@ def test_time_column_is_the_grid_closed_form(tmp_path, capsys):
     x = np.column_stack([np.ones(40), np.sin(t)])
     src, out = tmp_path / "in.csv", tmp_path / "out.csv"
     _timed_csv(src, t, x)
-    code, _, err = run(capsys, "integral", src, "-o", out, "--order", "0.6",
-                       "--time-column", "1")
+    code, _, err = run(capsys, "integral", src, "-o", out, "--order", "0.6", "--time-column", "1")
     assert code == 0, err
     lines = read_csv_back(out)
     assert lines[0] == "time,f,g"
     got = numbers(lines[1:])
-    np.testing.assert_array_equal(got[:, 0], t)                    # copied, every digit
+    np.testing.assert_array_equal(got[:, 0], t)  # copied, every digit
     want = (t - t[0]) ** 0.6 / math.gamma(1.6)
     np.testing.assert_allclose(got[:, 1], want, rtol=1e-13, atol=1e-15)
     # the signals are the library's rules on those times (not integrated as a signal)
@@ -713,8 +803,9 @@ def test_time_column_uniform_times_use_the_uniform_engines(tmp_path, capsys):
     x = signals(300, h)
     src, out = tmp_path / "in.csv", tmp_path / "out.npy"
     _timed_csv(src, t, x)
-    code, _, err = run(capsys, "derivative", src, "-o", out, "--order", "0.4",
-                       "--time-column", "1", "--rule", "grunwald")
+    code, _, err = run(
+        capsys, "derivative", src, "-o", out, "--order", "0.4", "--time-column", "1", "--rule", "grunwald"
+    )
     assert code == 0, err
     got = np.load(out)
     step = (t[-1] - t[0]) / 299
@@ -735,13 +826,24 @@ def test_time_column_tolerance_decides_uniform_or_grid(tmp_path, capsys):
     for tol, uniform in (("1e-6", True), (None, False)):
         out = tmp_path / f"out{tol}.npy"
         extra = () if tol is None else ("--time-tol", tol)
-        code, _, err = run(capsys, "integral", src, "-o", out, "--order", "0.5",
-                           "--time-column", "1", "--rule", "trapezoid", *extra)
+        code, _, err = run(
+            capsys,
+            "integral",
+            src,
+            "-o",
+            out,
+            "--order",
+            "0.5",
+            "--time-column",
+            "1",
+            "--rule",
+            "trapezoid",
+            *extra,
+        )
         assert code == 0, err
         got = np.load(out)[:, 1:]
         if uniform:
-            want = pyfracconv.integral(x, 0.5, (t[-1] - t[0]) / (n - 1),
-                                       rule="trapezoid", axis=0)
+            want = pyfracconv.integral(x, 0.5, (t[-1] - t[0]) / (n - 1), rule="trapezoid", axis=0)
         else:
             want = pyfracconv.integral(x, 0.5, t=t, rule="trapezoid", axis=0)
         np.testing.assert_array_equal(got, want)
@@ -756,8 +858,21 @@ def test_time_column_in_the_middle_with_columns_and_npy(tmp_path, capsys):
     f = np.cos(t)
     src = tmp_path / "in.csv"
     write_csv(src, ["f", "time", "g"], [[a, b, c] for a, b, c in zip(f, t, 2 * f)])
-    code, out, err = run(capsys, "derivative", src, "-o", "-", "--order", "0.5",
-                         "--rule", "l1", "--time-column", "2", "--columns", "g")
+    code, out, err = run(
+        capsys,
+        "derivative",
+        src,
+        "-o",
+        "-",
+        "--order",
+        "0.5",
+        "--rule",
+        "l1",
+        "--time-column",
+        "2",
+        "--columns",
+        "g",
+    )
     assert code == 0, err
     lines = out.splitlines()
     assert lines[0] == "time,g"
@@ -766,41 +881,61 @@ def test_time_column_in_the_middle_with_columns_and_npy(tmp_path, capsys):
     npy = tmp_path / "in.npy"
     np.save(npy, np.column_stack([f, t, 2 * f]))
     res = tmp_path / "out.npy"
-    code, _, err = run(capsys, "derivative", npy, "-o", res, "--order", "0.5",
-                       "--rule", "l1", "--time-column", "2")
+    code, _, err = run(
+        capsys, "derivative", npy, "-o", res, "--order", "0.5", "--rule", "l1", "--time-column", "2"
+    )
     assert code == 0, err
     arr = np.load(res)
     assert arr.shape == (5, 3)
     np.testing.assert_array_equal(arr[:, 0], t)
-    np.testing.assert_array_equal(arr[:, 1:], pyfracconv.derivative(
-        np.column_stack([f, 2 * f]), 0.5, t=t, rule="l1", axis=0))
+    np.testing.assert_array_equal(
+        arr[:, 1:], pyfracconv.derivative(np.column_stack([f, 2 * f]), 0.5, t=t, rule="l1", axis=0)
+    )
 
 
-@pytest.mark.parametrize("rows, argv, fragments", [
-    ([[0.0, 1.0], [0.1, 2.0], [0.1, 3.0]], ("--time-column", "1"),
-     ["--time-column 1: the times must be strictly increasing", "data row 3",
-      "time 0.1 after 0.1"]),
-    ([[0.0, 1.0], [0.2, 2.0], [0.1, 3.0]], ("--time-column", "1"),
-     ["--time-column 1", "time 0.1 after 0.2"]),
-    ([[0.0, 1.0], ["nan", 2.0]], ("--time-column", "1"),
-     ["--time-column 1", "time 'nan' is not finite"]),
-    ([[0.0, 1.0], ["inf", 2.0]], ("--time-column", "1"), ["time 'inf' is not finite"]),
-    ([[0.0, 1.0], [0.1, 2.0]], ("--time-column", "1", "--step", "0.1"),
-     ["--step 0.1 with --time-column 1", "give one of the two"]),
-    ([[0.0, 1.0], [0.1, 2.0]], (), ["--step: required", "--time-column N"]),
-    ([[0.0, 1.0], [0.1, 2.0]], ("--time-column", "3"),
-     ["--time-column 3: the input has 2 column(s)"]),
-    ([[0.0, 1.0], [0.1, 2.0]], ("--time-column", "0"), ["--time-column 0: must be >= 1"]),
-    ([[0.0, 1.0], [0.1, 2.0]], ("--time-column", "1", "--columns", "t"),
-     ["--columns t: names the time column"]),
-    ([[0.0, 1.0], [0.1, 2.0]], ("--time-column", "1", "--time-tol", "-1"),
-     ["--time-tol -1.0: must be in [0, 0.5)"]),
-    ([[0.0], [0.1]], ("--time-column", "1"),
-     ["--time-column 1: the input has no column besides the times"]),
-])
+@pytest.mark.parametrize(
+    "rows, argv, fragments",
+    [
+        (
+            [[0.0, 1.0], [0.1, 2.0], [0.1, 3.0]],
+            ("--time-column", "1"),
+            ["--time-column 1: the times must be strictly increasing", "data row 3", "time 0.1 after 0.1"],
+        ),
+        (
+            [[0.0, 1.0], [0.2, 2.0], [0.1, 3.0]],
+            ("--time-column", "1"),
+            ["--time-column 1", "time 0.1 after 0.2"],
+        ),
+        ([[0.0, 1.0], ["nan", 2.0]], ("--time-column", "1"), ["--time-column 1", "time 'nan' is not finite"]),
+        ([[0.0, 1.0], ["inf", 2.0]], ("--time-column", "1"), ["time 'inf' is not finite"]),
+        (
+            [[0.0, 1.0], [0.1, 2.0]],
+            ("--time-column", "1", "--step", "0.1"),
+            ["--step 0.1 with --time-column 1", "give one of the two"],
+        ),
+        ([[0.0, 1.0], [0.1, 2.0]], (), ["--step: required", "--time-column N"]),
+        ([[0.0, 1.0], [0.1, 2.0]], ("--time-column", "3"), ["--time-column 3: the input has 2 column(s)"]),
+        ([[0.0, 1.0], [0.1, 2.0]], ("--time-column", "0"), ["--time-column 0: must be >= 1"]),
+        (
+            [[0.0, 1.0], [0.1, 2.0]],
+            ("--time-column", "1", "--columns", "t"),
+            ["--columns t: names the time column"],
+        ),
+        (
+            [[0.0, 1.0], [0.1, 2.0]],
+            ("--time-column", "1", "--time-tol", "-1"),
+            ["--time-tol -1.0: must be in [0, 0.5)"],
+        ),
+        (
+            [[0.0], [0.1]],
+            ("--time-column", "1"),
+            ["--time-column 1: the input has no column besides the times"],
+        ),
+    ],
+)
 def test_time_column_refusals_name_the_option(tmp_path, capsys, rows, argv, fragments):
     src, out = tmp_path / "in.csv", tmp_path / "out.csv"
-    write_csv(src, ["t", "f"][:len(rows[0])], rows)
+    write_csv(src, ["t", "f"][: len(rows[0])], rows)
     code, _, err = run(capsys, "integral", src, "-o", out, "--order", "0.5", *argv)
     assert_clean_error(code, err, *fragments)
     assert not out.exists()
@@ -809,18 +944,17 @@ def test_time_column_refusals_name_the_option(tmp_path, capsys, rows, argv, frag
 def test_time_column_grunwald_on_non_uniform_times_is_refused(tmp_path, capsys):
     src, out = tmp_path / "in.csv", tmp_path / "out.csv"
     write_csv(src, ["t", "f"], [[0.0, 1.0], [0.1, 2.0], [0.3, 1.0]])
-    code, _, err = run(capsys, "derivative", src, "-o", out, "--order", "0.5",
-                       "--time-column", "1")
-    assert_clean_error(code, err, "--rule grunwald with --time-column 1",
-                       "not uniform", "--rule l1")
+    code, _, err = run(capsys, "derivative", src, "-o", out, "--order", "0.5", "--time-column", "1")
+    assert_clean_error(code, err, "--rule grunwald with --time-column 1", "not uniform", "--rule l1")
     assert not out.exists()
 
 
 def test_time_column_npy_non_finite_time(tmp_path, capsys):
     src = tmp_path / "in.npy"
     np.save(src, np.array([[0.0, 1.0], [np.nan, 2.0]]))
-    code, _, err = run(capsys, "integral", src, "-o", tmp_path / "o.npy", "--order",
-                       "0.5", "--time-column", "1")
+    code, _, err = run(
+        capsys, "integral", src, "-o", tmp_path / "o.npy", "--order", "0.5", "--time-column", "1"
+    )
     assert_clean_error(code, err, "--time-column 1", "time [1, 0] is nan")
 
 

@@ -15,6 +15,7 @@ def grid(T, N):
 
 # ---------------------------------------------------------------- identities
 
+
 @pytest.mark.parametrize("a", [0.1, 0.5, 1.0, 2.5])
 def test_rectangle_exact_on_constants(a):
     # sum_{j<n} ((j+1)^a - j^a) = n^a, so the rule gives h^a n^a / Gamma(a+1)
@@ -88,6 +89,7 @@ def test_grunwald_integer_orders_are_differences(a):
 
 # ---------------------------------------------------------------- closed forms
 
+
 @pytest.mark.parametrize("a", [0.3, 0.5, 1.4])
 @pytest.mark.parametrize("b", [2.0, 3.0])
 def test_integral_of_power(a, b):
@@ -143,6 +145,7 @@ def test_riemann_liouville_of_power_and_constant(a):
 
 # ---------------------------------------------------------------- orders
 
+
 def observed_order(errors):
     e = np.asarray(errors)
     return np.log2(e[:-1] / e[1:])
@@ -160,8 +163,9 @@ def test_order_rectangle():
     # order 1 for f in C^1 (Diethelm, Ford, Freed, Numer. Algorithms 36 (2004))
     a = 0.5
     exact = special.gamma(3) / special.gamma(3 + a)  # I^a t^2 at t = 1
-    e = errors_at_one(lambda t, h: pyfracconv.integral(t**2, a, h, rule="rectangle"),
-                      exact, [200, 400, 800, 1600, 3200])
+    e = errors_at_one(
+        lambda t, h: pyfracconv.integral(t**2, a, h, rule="rectangle"), exact, [200, 400, 800, 1600, 3200]
+    )
     p = observed_order(e)
     assert np.all(np.abs(p - 1.0) < 0.05), p
 
@@ -171,8 +175,9 @@ def test_order_trapezoid():
     # Comput. Simul. 110 (2015)); f = e^t, exact via gammainc.
     a = 0.5
     exact = np.e * special.gammainc(a, 1.0)
-    e = errors_at_one(lambda t, h: pyfracconv.integral(np.exp(t), a, h, rule="trapezoid"),
-                      exact, [100, 200, 400, 800, 1600])
+    e = errors_at_one(
+        lambda t, h: pyfracconv.integral(np.exp(t), a, h, rule="trapezoid"), exact, [100, 200, 400, 800, 1600]
+    )
     p = observed_order(e)
     assert np.all(np.abs(p - 2.0) < 0.05), p
 
@@ -181,8 +186,9 @@ def test_order_grunwald():
     # order 1 (Lubich, SIAM J. Math. Anal. 17 (1986)); f = t^3, RL closed form
     a = 0.5
     exact = 6.0 / special.gamma(4 - a)
-    e = errors_at_one(lambda t, h: pyfracconv.derivative(t**3, a, h, rule="grunwald"),
-                      exact, [200, 400, 800, 1600, 3200])
+    e = errors_at_one(
+        lambda t, h: pyfracconv.derivative(t**3, a, h, rule="grunwald"), exact, [200, 400, 800, 1600, 3200]
+    )
     p = observed_order(e)
     assert np.all(np.abs(p - 1.0) < 0.05), p
 
@@ -192,7 +198,8 @@ def test_order_l1(a):
     # order 2 - a for smooth u (Lin and Xu, J. Comput. Phys. 225 (2007));
     # f = t^2, Caputo closed form (Diethelm 2010).
     exact = 2.0 / special.gamma(3 - a)
-    e = errors_at_one(lambda t, h: pyfracconv.derivative(t**2, a, h, rule="l1"),
-                      exact, [200, 400, 800, 1600, 3200])
+    e = errors_at_one(
+        lambda t, h: pyfracconv.derivative(t**2, a, h, rule="l1"), exact, [200, 400, 800, 1600, 3200]
+    )
     p = observed_order(e)
     assert np.all(np.abs(p - (2 - a)) < 0.05), p

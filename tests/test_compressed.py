@@ -21,7 +21,6 @@ trapezoid rule). References:
     docs/references.md, same section), both evaluated with mpmath.
 """
 
-
 import mpmath
 import numpy as np
 import pytest
@@ -37,10 +36,12 @@ INTEGRALS = {"rectangle", "trapezoid"}
 
 def make(rule, order, step, tol, horizon, channels=None):
     if rule in INTEGRALS:
-        return Stream.integral(order, step, rule=rule, channels=channels,
-                               mode="compressed", tol=tol, horizon=horizon)
-    return Stream.derivative(order, step, rule=rule, channels=channels,
-                             mode="compressed", tol=tol, horizon=horizon)
+        return Stream.integral(
+            order, step, rule=rule, channels=channels, mode="compressed", tol=tol, horizon=horizon
+        )
+    return Stream.derivative(
+        order, step, rule=rule, channels=channels, mode="compressed", tol=tol, horizon=horizon
+    )
 
 
 def lag_form(rule, order, step, x):
@@ -108,8 +109,9 @@ def long_cases():
             for tol in (1e-10, 1e-13):
                 s = make(rule, order, step, tol, 1e8)
                 ys[tol] = s.push_many(x)
-            out[rule, kind] = dict(x=x, c=c, u=u, corr=corr, idx=idx, ref=ref,
-                                   bnd=bnd, ys=ys, order=order, step=step)
+            out[rule, kind] = dict(
+                x=x, c=c, u=u, corr=corr, idx=idx, ref=ref, bnd=bnd, ys=ys, order=order, step=step
+            )
     return out
 
 
@@ -158,11 +160,11 @@ def closed_form_lag(rule, a, h, m):
     a = mpmath.mpf(a)
     h = mpmath.mpf(h)
     m = mpmath.mpf(m)
-    if rule == "rectangle":      # c_m = b_{m-1}, b_j = (j+1)^a - j^a
+    if rule == "rectangle":  # c_m = b_{m-1}, b_j = (j+1)^a - j^a
         return h**a / mpmath.gamma(a + 1) * (m**a - (m - 1) ** a)
-    if rule == "trapezoid":      # impulse response: h^a/Gamma(a+2) A_m
+    if rule == "trapezoid":  # impulse response: h^a/Gamma(a+2) A_m
         return h**a / mpmath.gamma(a + 2) * ((m - 1) ** (a + 1) - (m - 1 - a) * m**a)
-    if rule == "grunwald":       # g_m = Gamma(m-a) / (Gamma(-a) Gamma(m+1))
+    if rule == "grunwald":  # g_m = Gamma(m-a) / (Gamma(-a) Gamma(m+1))
         return h ** (-a) * mpmath.gamma(m - a) / (mpmath.gamma(-a) * mpmath.gamma(m + 1))
     # l1 response to a unit step at k = 1: c_{m-1} = d_{m-1}
     return h ** (-a) / mpmath.gamma(2 - a) * (m ** (1 - a) - (m - 1) ** (1 - a))
@@ -274,7 +276,7 @@ def test_preview_push_history_reset(rule):
         h = s.history()
         prev = x[n - 1] if n else 0.0
         y = s.push(v)
-        assert y == p                       # bit for bit
+        assert y == p  # bit for bit
         if rule == "l1":
             du = (v - prev) if n else 0.0
             c0 = pyfracconv.weights("l1", 0.7, 1, step=0.2)[0]
@@ -345,9 +347,9 @@ def test_channels_match_single_streams(rule):
 
 def test_parameter_checks():
     with pytest.raises(pyfracconv.ArgumentError):
-        make("trapezoid", 2.0, 1.0, 1e-12, 1e6)      # order >= 2 (trapezoid)
+        make("trapezoid", 2.0, 1.0, 1e-12, 1e6)  # order >= 2 (trapezoid)
     with pytest.raises(pyfracconv.ArgumentError):
-        make("rectangle", 2.0, 1.0, 1e-12, 1e6)      # order >= 2
+        make("rectangle", 2.0, 1.0, 1e-12, 1e6)  # order >= 2
     with pytest.raises(pyfracconv.ArgumentError):
         make("grunwald", 1.5, 1.0, 1e-12, 1e6)
     for tol in [1e-16, 0.1, float("nan"), float("inf"), 0.0, -1e-10]:
@@ -359,7 +361,7 @@ def test_parameter_checks():
     # edges of the allowed ranges are accepted
     assert make("rectangle", 0.5, 1.0, 1e-15, 1e6).terms > 0
     assert make("rectangle", 0.5, 1.0, 1e-2, 1e6).terms > 0
-    assert make("l1", 0.5, 1.0, 1e-12, 1.0).terms == 0     # band alone
+    assert make("l1", 0.5, 1.0, 1e-12, 1.0).terms == 0  # band alone
 
 
 def test_short_horizon_band_only_is_exact():
@@ -401,8 +403,7 @@ def high_cases():
             x = inputs(kind, N_LONG)
             c, u, corr = lag_form("rectangle", order, step, x)
             ref, bnd = reference_at(c, u, corr, x[0], idx)
-            ys = {tol: make("rectangle", order, step, tol, 1e8).push_many(x)
-                  for tol in (1e-10, 1e-13)}
+            ys = {tol: make("rectangle", order, step, tol, 1e8).push_many(x) for tol in (1e-10, 1e-13)}
             out[order, kind] = dict(x=x, c=c, u=u, idx=idx, ref=ref, bnd=bnd, ys=ys)
     return out
 
@@ -439,8 +440,7 @@ def test_high_order_impulse_response_closed_form(order):
     assert y[0] == 0.0
     a = mpmath.mpf(order)
     for m in [1, 2, 3, 63, 64, 65, 1000, 12345, 654321, n - 1]:
-        ref = float(mpmath.mpf(h) ** a / mpmath.gamma(a + 1)
-                    * (mpmath.mpf(m) ** a - mpmath.mpf(m - 1) ** a))
+        ref = float(mpmath.mpf(h) ** a / mpmath.gamma(a + 1) * (mpmath.mpf(m) ** a - mpmath.mpf(m - 1) ** a))
         rel = abs(y[m] - ref) / ref
         assert rel <= tol + 16 * EPS, f"a={order} m={m}: rel. error {rel:.3g}"
 
@@ -503,13 +503,12 @@ def check_state_behaviour(rule, order, x, history_is_output):
 @pytest.mark.parametrize("order", [1.0, 1.6])
 def test_high_order_state_behaviour(order):
     # the rectangle rule: c_0 = 0, so history() is the output
-    check_state_behaviour("rectangle", order, inputs("random", 3000, seed=21),
-                          history_is_output=True)
+    check_state_behaviour("rectangle", order, inputs("random", 3000, seed=21), history_is_output=True)
 
 
 @pytest.mark.parametrize("order", [1.0, 1.45])
 def test_high_order_save_load_bit_for_bit(order):
-    x = inputs("random", 5000, seed=9) + 3.0     # running sum grows
+    x = inputs("random", 5000, seed=9) + 3.0  # running sum grows
     s = make("rectangle", order, 0.05, 1e-13, 1e7, channels=2)
     X = np.stack([x, x[::-1]], axis=1)
     s.push_many(X[:3000])
@@ -526,15 +525,21 @@ def test_high_order_save_load_bit_for_bit(order):
 
 def test_high_order_ranges_refused_with_message():
     # derivatives stay 0 < a < 1, integrals (rectangle, trapezoid) a < 2
-    cases = [("grunwald", 1.0), ("grunwald", 1.5), ("l1", 0.5 + 0.5),
-             ("trapezoid", 2.0), ("trapezoid", 2.5),
-             ("rectangle", 2.0), ("rectangle", 3.5)]
+    cases = [
+        ("grunwald", 1.0),
+        ("grunwald", 1.5),
+        ("l1", 0.5 + 0.5),
+        ("trapezoid", 2.0),
+        ("trapezoid", 2.5),
+        ("rectangle", 2.0),
+        ("rectangle", 3.5),
+    ]
     for rule, order in cases:
         with pytest.raises(pyfracconv.ArgumentError) as ei:
             make(rule, order, 1.0, 1e-12, 1e6)
         msg = str(ei.value)
         assert f"order={order!r}" in msg
-        if not (rule == "l1"):      # l1 is refused for a >= 1 in every mode
+        if not (rule == "l1"):  # l1 is refused for a >= 1 in every mode
             assert "0 < order < 1" in msg and "1 <= order < 2" in msg, msg
     # the edges of the new range are accepted
     assert make("rectangle", 1.0, 1.0, 1e-12, 1e6).terms == 0

@@ -15,8 +15,14 @@ import pytest
 
 from pyfracconv import Stream
 
-CASES = [("rectangle", 0.6), ("trapezoid", 0.4), ("grunwald", 0.5), ("l1", 0.7),
-         ("rectangle", 1.4), ("trapezoid", 1.3)]
+CASES = [
+    ("rectangle", 0.6),
+    ("trapezoid", 0.4),
+    ("grunwald", 0.5),
+    ("l1", 0.7),
+    ("rectangle", 1.4),
+    ("trapezoid", 1.3),
+]
 
 
 def _make(rule, order):
@@ -32,17 +38,17 @@ def _bits(v):
 def test_previews_never_change_what_pushes_give(rule, order):
     rng = np.random.default_rng(7)
     a, ref = _make(rule, order), _make(rule, order)
-    for step in range(400):                 # past the band of 64 lags
+    for step in range(400):  # past the band of 64 lags
         x = float(rng.choice([rng.standard_normal(), 0.0, -0.0, 1e-300, 3.0]))
         kind = rng.integers(0, 6)
-        if kind == 0:                       # preview the sample, push it
+        if kind == 0:  # preview the sample, push it
             p = a.preview(x)
             assert _bits(p) == _bits(a.push(x))
             assert _bits(ref.push(x)) == _bits(p)
             continue
-        if kind == 1:                       # preview another sample first
+        if kind == 1:  # preview another sample first
             a.preview(x + 1.0)
-        elif kind == 2:                     # preview -0.0, push +0.0 (other bits)
+        elif kind == 2:  # preview -0.0, push +0.0 (other bits)
             a.preview(-x if x == 0.0 else x * 0.5)
         elif kind == 3:
             a.history()
@@ -63,11 +69,10 @@ def test_preview_then_push_many_of_one_and_of_more():
     x = np.random.default_rng(3).standard_normal(300)
     for i in range(0, 300, 3):
         a.preview(x[i])
-        got = a.push_many(x[i:i + 1])        # a block of one: the previewed sample
+        got = a.push_many(x[i : i + 1])  # a block of one: the previewed sample
         a.preview(x[i + 1])
-        got2 = a.push_many(x[i + 1:i + 3])   # a block of two: computed as pushes
-        assert np.array_equal(_bits(np.concatenate([got, got2])),
-                              _bits(ref.push_many(x[i:i + 3])))
+        got2 = a.push_many(x[i + 1 : i + 3])  # a block of two: computed as pushes
+        assert np.array_equal(_bits(np.concatenate([got, got2])), _bits(ref.push_many(x[i : i + 3])))
     assert a.save() == ref.save()
 
 

@@ -26,8 +26,8 @@ TINY = sys.float_info.min  # DBL_MIN = 2^-1022
 def _payload_arrays(blob):
     """(q, beta, S, Sc) of channel 0 from a saved compressed stream."""
     at = blob.index(b"FCCS")
-    band, = struct.unpack_from("<I", blob, at + 12)
-    n_terms, = struct.unpack_from("<Q", blob, at + 24)
+    (band,) = struct.unpack_from("<I", blob, at + 12)
+    (n_terms,) = struct.unpack_from("<Q", blob, at + 24)
     head = at + 72
     q = np.frombuffer(blob, "<f8", n_terms, head)
     beta = np.frombuffer(blob, "<f8", n_terms, head + 8 * n_terms)
@@ -41,12 +41,13 @@ def _subnormal(v):
     return int(np.count_nonzero((v != 0) & (np.abs(v) < TINY)))
 
 
-@pytest.mark.parametrize("rule, order", [("rectangle", 0.7), ("trapezoid", 0.3),
-                                         ("grunwald", 0.5), ("l1", 0.6)])
+@pytest.mark.parametrize(
+    "rule, order", [("rectangle", 0.7), ("trapezoid", 0.3), ("grunwald", 0.5), ("l1", 0.6)]
+)
 def test_states_never_subnormal_while_fed_zeros(rule, order):
     make = Stream.integral if rule in ("rectangle", "trapezoid") else Stream.derivative
     s = make(order, 1e-3, rule=rule, mode="compressed", tol=1e-12, horizon=1e7)
-    s.push_many(np.ones(100))           # a history, then silence
+    s.push_many(np.ones(100))  # a history, then silence
     decayed = 0
     for _ in range(40):
         s.push_many(np.zeros(500))
@@ -63,7 +64,7 @@ def test_tiny_samples_within_the_absolute_allowance():
     stream's, plus Lp * DBL_MIN * max |beta_l| (Lp: terms padded to 8)."""
     rng = np.random.default_rng(20261203)
     x = rng.standard_normal(3000) * 1e-300
-    x[rng.random(3000) < 0.7] = 0.0     # long runs of zeros between samples
+    x[rng.random(3000) < 0.7] = 0.0  # long runs of zeros between samples
     tol = 1e-10
     c = Stream.integral(0.6, 1.0, mode="compressed", tol=tol, horizon=1e4)
     e = Stream.integral(0.6, 1.0)

@@ -54,7 +54,7 @@ def data(kind, n, seed=5):
     x = 1e-3 * rng.standard_normal(n)
     at = rng.choice(n, n // 100, replace=False)
     x[at] = 1e6 * rng.choice([-1.0, 1.0], len(at))
-    x[0] = 1e6     # a spike on x_0: the correction column is exercised
+    x[0] = 1e6  # a spike on x_0: the correction column is exercised
     return x
 
 
@@ -104,8 +104,7 @@ def test_every_index_against_batch(cases, order, kind):
     tol = 1e-10
     x = d["x"]
     exact = pyfracconv.integral(x, order, step=STEP, rule="trapezoid")
-    bound = (pyfracconv.lagged_sum(np.abs(x), np.abs(d["c"]))
-             + np.abs(d["corr"] * x[0]))
+    bound = pyfracconv.lagged_sum(np.abs(x), np.abs(d["c"])) + np.abs(d["corr"] * x[0])
     worst = np.max(np.abs(d["ys"][tol] - exact) / ((tol + 1e-13) * bound + 1e-300))
     assert worst <= 1.0, f"a={order} {kind}: error/bound = {worst:.3g}"
 
@@ -116,9 +115,16 @@ def test_long_horizon(order):
     n, tol = 2_000_000, 1e-12
     x = data("random", n, seed=23)
     rng = np.random.default_rng(29)
-    idx = np.unique(np.concatenate([np.arange(0, 300),
-                                    np.geomspace(300, n - 1, 12).astype(np.int64),
-                                    rng.integers(300, n, 3), [n - 1]]))
+    idx = np.unique(
+        np.concatenate(
+            [
+                np.arange(0, 300),
+                np.geomspace(300, n - 1, 12).astype(np.int64),
+                rng.integers(300, n, 3),
+                [n - 1],
+            ]
+        )
+    )
     c, u, corr = lag_form("trapezoid", order, 0.001, x)
     ref, bnd = reference_at(c, u, corr, x[0], idx)
     y = make("trapezoid", order, 0.001, tol, 1e12).push_many(x)
@@ -177,7 +183,7 @@ def test_linear_data_exact_integrals(order):
     yt = make("trapezoid", order, h, tol, 1e6).push_many(np.arange(n) * h)
     for m in [1, 2, 63, 64, 65, 256, 1000, 54321, n - 1]:
         t = mpmath.mpf(m) * h
-        r1 = float(t ** a / mpmath.gamma(a + 1))
+        r1 = float(t**a / mpmath.gamma(a + 1))
         rt = float(t ** (a + 1) / mpmath.gamma(a + 2))
         # positive data and weights of one sign per column: the bound is
         # about the result itself; 1e-12 for the rounding of m h and of the
@@ -190,13 +196,12 @@ def test_linear_data_exact_integrals(order):
 def test_state_behaviour(order):
     # as for the rectangle rule (test_compressed.check_state_behaviour),
     # except that history() is not the output: c_0 != 0 for the trapezoid
-    check_state_behaviour("trapezoid", order, data("random", 3000, seed=21),
-                          history_is_output=False)
+    check_state_behaviour("trapezoid", order, data("random", 3000, seed=21), history_is_output=False)
 
 
 @pytest.mark.parametrize("order", [1.0, 1.45, 1.9999999])
 def test_save_load_bit_for_bit(order):
-    x = data("random", 5000, seed=9) + 3.0     # running sum grows
+    x = data("random", 5000, seed=9) + 3.0  # running sum grows
     s = make("trapezoid", order, 0.05, 1e-13, 1e7, channels=2)
     X = np.stack([x, x[::-1]], axis=1)
     s.push_many(X[:3000])
@@ -236,7 +241,7 @@ def test_payload_of_the_older_orders_unchanged():
     lo = make("trapezoid", 0.9, 0.1, 1e-12, 1e6, channels=3)
     hi = make("trapezoid", 1.1, 0.1, 1e-12, 1e6, channels=3)
     rect = make("rectangle", 1.1, 0.1, 1e-12, 1e6, channels=3)
-    per_term = 8 * (3 + 2 * 3)      # q, beta, inj; S, Sc per channel
+    per_term = 8 * (3 + 2 * 3)  # q, beta, inj; S, Sc per channel
     assert len(hi.save()) - len(rect.save()) == per_term * (hi.terms - rect.terms) + 8 * 3
     assert len(lo.save()) - len(rect.save()) == per_term * (lo.terms - rect.terms)
 
@@ -251,7 +256,7 @@ T_END, NSTEPS = 3.0, 1500
 def ml_reference():
     idx = np.arange(0, NSTEPS + 1, 150)
     tr = idx * (T_END / NSTEPS)
-    return idx, np.array([mittag_leffler(A, 1, -t ** A) for t in tr])
+    return idx, np.array([mittag_leffler(A, 1, -(t**A)) for t in tr])
 
 
 @pytest.mark.parametrize("method", ["predictor-corrector", "trapezoid"])
@@ -262,10 +267,10 @@ def test_solver_compressed_memory(ml_reference, method, tol):
     # and within 10 tol of exact memory (measured: below 0.07 tol)
     idx, ref = ml_reference
     h = T_END / NSTEPS
-    _, ye = solve(lambda t, y: -y, 1.0, A, h, NSTEPS, dy0=0.0, method=method,
-                  memory="exact")
-    res = solve(lambda t, y: -y, 1.0, A, h, NSTEPS, dy0=0.0, method=method,
-                memory="compressed", tol=tol, horizon=1e4)
+    _, ye = solve(lambda t, y: -y, 1.0, A, h, NSTEPS, dy0=0.0, method=method, memory="exact")
+    res = solve(
+        lambda t, y: -y, 1.0, A, h, NSTEPS, dy0=0.0, method=method, memory="compressed", tol=tol, horizon=1e4
+    )
     t, yc = res
     assert yc.shape == (NSTEPS + 1,)
     assert np.max(np.abs(yc[idx] - ref)) < 2e-6
@@ -278,15 +283,28 @@ def test_solver_compressed_long_run_and_multi_order(method):
     # orders 0.6 and 1.5 equals the decoupled compressed scalar runs
     tol, n, h = 1e-12, 100_000, 1e-3
     _, ye = solve(lambda t, y: -y, 1.0, A, h, n, dy0=0.0, method=method, memory="exact")
-    _, yc = solve(lambda t, y: -y, 1.0, A, h, n, dy0=0.0, method=method,
-                  memory="compressed", tol=tol, horizon=1e6)
+    _, yc = solve(
+        lambda t, y: -y, 1.0, A, h, n, dy0=0.0, method=method, memory="compressed", tol=tol, horizon=1e6
+    )
     assert np.max(np.abs(yc - ye)) <= 10 * tol
-    _, Y = solve(lambda t, y: -y, [1.0, 1.0], [0.6, A], 1e-2, 2000, dy0=[0.0, 0.0],
-                 method=method, memory="compressed", tol=tol, horizon=1e4)
-    _, y06 = solve(lambda t, y: -y, 1.0, 0.6, 1e-2, 2000, method=method,
-                   memory="compressed", tol=tol, horizon=1e4)
-    _, y15 = solve(lambda t, y: -y, 1.0, A, 1e-2, 2000, dy0=0.0, method=method,
-                   memory="compressed", tol=tol, horizon=1e4)
+    _, Y = solve(
+        lambda t, y: -y,
+        [1.0, 1.0],
+        [0.6, A],
+        1e-2,
+        2000,
+        dy0=[0.0, 0.0],
+        method=method,
+        memory="compressed",
+        tol=tol,
+        horizon=1e4,
+    )
+    _, y06 = solve(
+        lambda t, y: -y, 1.0, 0.6, 1e-2, 2000, method=method, memory="compressed", tol=tol, horizon=1e4
+    )
+    _, y15 = solve(
+        lambda t, y: -y, 1.0, A, 1e-2, 2000, dy0=0.0, method=method, memory="compressed", tol=tol, horizon=1e4
+    )
     assert np.allclose(Y[:, 0], y06, rtol=0, atol=1e-14)
     assert np.allclose(Y[:, 1], y15, rtol=0, atol=1e-14)
 
@@ -298,8 +316,9 @@ def test_past_the_horizon_continues(order):
     # index a stream reaches); up to the horizon, the bound against the
     # batch engine as in test_every_index_against_batch
     h, hz, n = 0.5, 100.5, 5000
-    s = Stream.integral(order, h, rule="trapezoid", mode="compressed", tol=1e-12,
-                        horizon=hz, horizon_policy="continue")
+    s = Stream.integral(
+        order, h, rule="trapezoid", mode="compressed", tol=1e-12, horizon=hz, horizon_policy="continue"
+    )
     x = data("random", n, seed=31)
     y = s.push_many(x)
     assert np.all(np.isfinite(y))
@@ -320,10 +339,8 @@ def test_stepper_checkpoint_compressed(method):
         return -y
 
     h, n = 2e-3, 1200
-    _, ref = solve(rhs, 1.0, A, h, n, dy0=0.0, method=method, memory="compressed",
-                   tol=1e-12, horizon=1e4)
-    s = Stepper(rhs, 1.0, A, h, dy0=0.0, method=method, memory="compressed",
-                tol=1e-12, horizon=1e4)
+    _, ref = solve(rhs, 1.0, A, h, n, dy0=0.0, method=method, memory="compressed", tol=1e-12, horizon=1e4)
+    s = Stepper(rhs, 1.0, A, h, dy0=0.0, method=method, memory="compressed", tol=1e-12, horizon=1e4)
     _, y1 = s.advance(500)
     blob = s.save()
     _, y2 = s.advance(n - 500)

@@ -17,14 +17,30 @@ def test_controller_example_program_passes(tmp_path):
         pytest.fail("the C controller test needs the source checkout (Makefile)")
     cc = os.environ.get("CC") or shutil.which("cc") or shutil.which("gcc")
     assert cc, "no C compiler found"
-    subprocess.run(["make", "-C", ROOT, f"BUILD={tmp_path}", "lib"],
-                   check=True, capture_output=True, text=True)
+    subprocess.run(
+        ["make", "-C", ROOT, f"BUILD={tmp_path}", "lib"], check=True, capture_output=True, text=True
+    )
     exe = tmp_path / "controller_example"
-    subprocess.run([cc, "-O2", "-std=c11", "-Wall", "-Wextra", "-Werror",
-                    "-I", os.path.join(ROOT, "csrc"),
-                    os.path.join(ROOT, "examples", "controller_example.c"),
-                    str(tmp_path / "libfracconv.a"), "-lm", "-o", str(exe)],
-                   check=True, capture_output=True, text=True)
+    subprocess.run(
+        [
+            cc,
+            "-O2",
+            "-std=c11",
+            "-Wall",
+            "-Wextra",
+            "-Werror",
+            "-I",
+            os.path.join(ROOT, "csrc"),
+            os.path.join(ROOT, "examples", "controller_example.c"),
+            str(tmp_path / "libfracconv.a"),
+            "-lm",
+            "-o",
+            str(exe),
+        ],
+        check=True,
+        capture_output=True,
+        text=True,
+    )
     out = subprocess.run([str(exe)], capture_output=True, text=True)
     assert out.returncode == 0, out.stdout + out.stderr
     assert "all controller checks passed" in out.stdout

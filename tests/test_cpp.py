@@ -32,8 +32,11 @@ def example(tmp_path_factory):
     if CXX is None:
         pytest.fail("g++ is needed for the C++ wrapper tests")
     build = tmp_path_factory.mktemp("cppbuild")
-    r = subprocess.run(["make", "-C", ROOT, f"BUILD={build}", f"CXX={CXX}", "lib",
-                        "cpp-example"], capture_output=True, text=True)
+    r = subprocess.run(
+        ["make", "-C", ROOT, f"BUILD={build}", f"CXX={CXX}", "lib", "cpp-example"],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stdout + r.stderr
     out = subprocess.run([str(build / "example_cpp")], capture_output=True, text=True)
     return out
@@ -53,6 +56,7 @@ def test_example_cpp_reports_the_closed_form_error(example):
 def test_example_cpp_error_message_is_the_c_message(example):
     # fc_strerror(FC_ERR_ORDER), read through the Python bindings
     from pyfracconv._fracconv import ffi, lib
+
     msg = ffi.string(lib.fc_strerror(lib.FC_ERR_ORDER)).decode()
     assert f"fc_stream_create: {msg}" in example.stdout
 
@@ -62,16 +66,29 @@ def test_header_compiles_alone_pedantic(tmp_path):
         pytest.fail("g++ is needed for the C++ wrapper tests")
     src = tmp_path / "only.cpp"
     src.write_text('#include "fracconv.hpp"\nint main() { return 0; }\n')
-    r = subprocess.run([CXX, "-std=c++17", "-Wall", "-Wextra", "-Wpedantic", "-Werror",
-                        "-fsyntax-only", "-I", os.path.join(ROOT, "csrc"), str(src)],
-                       capture_output=True, text=True)
+    r = subprocess.run(
+        [
+            CXX,
+            "-std=c++17",
+            "-Wall",
+            "-Wextra",
+            "-Wpedantic",
+            "-Werror",
+            "-fsyntax-only",
+            "-I",
+            os.path.join(ROOT, "csrc"),
+            str(src),
+        ],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stderr
-
 
 
 def _doc_block(lang):
     # the README's quick.cpp (section "Compiled callers")
     import readme_c
+
     return readme_c.doc_program(lang)
 
 
@@ -79,14 +96,28 @@ def test_docs_cpp_example_builds_and_runs(example, tmp_path):
     # the README's example, built from the checkout (with -Werror too);
     # tests/test_install.py builds it against an installed prefix
     build = tmp_path / "build"
-    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
-                   capture_output=True, text=True)
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True, capture_output=True, text=True)
     src = tmp_path / "quick.cpp"
     src.write_text(_doc_block("cpp"))
     exe = tmp_path / "quick"
-    r = subprocess.run([CXX, "-std=c++17", "-Wall", "-Wextra", "-Werror", "-I",
-                        os.path.join(ROOT, "csrc"), str(src), str(build / "libfracconv.a"),
-                        "-lm", "-o", str(exe)], capture_output=True, text=True)
+    r = subprocess.run(
+        [
+            CXX,
+            "-std=c++17",
+            "-Wall",
+            "-Wextra",
+            "-Werror",
+            "-I",
+            os.path.join(ROOT, "csrc"),
+            str(src),
+            str(build / "libfracconv.a"),
+            "-lm",
+            "-o",
+            str(exe),
+        ],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stderr
     out = subprocess.run([str(exe)], capture_output=True, text=True)
     assert out.returncode == 0, out.stdout
@@ -99,14 +130,18 @@ def test_docs_cpp_example_builds_and_runs(example, tmp_path):
 
 # ------------------------------------------------ solver and controller
 
+
 @pytest.fixture(scope="module")
 def solver_controller(tmp_path_factory):
     """examples/solver_controller.cpp (make cpp-example), built and run."""
     if CXX is None:
         pytest.fail("g++ is needed for the C++ wrapper tests")
     build = tmp_path_factory.mktemp("cppsc")
-    r = subprocess.run(["make", "-C", ROOT, f"BUILD={build}", f"CXX={CXX}", "lib",
-                        "cpp-example"], capture_output=True, text=True)
+    r = subprocess.run(
+        ["make", "-C", ROOT, f"BUILD={build}", f"CXX={CXX}", "lib", "cpp-example"],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stdout + r.stderr
     return subprocess.run([str(build / "solver_controller_cpp")], capture_output=True, text=True)
 
@@ -129,11 +164,12 @@ def test_cpp_solver_matches_mittag_leffler(solver_controller):
     # 9.4e-7; a = 0.6: 5.0e-6 predictor-corrector, 9.7e-6 trapezoid) with
     # a margin of 2 to 3: a method that lost an order would fail them.
     from solver_reference import mittag_leffler
+
     rows = re.findall(r"relax (\S+) a=(\S+) t=(\S+) y=(\S+)", solver_controller.stdout)
     assert len(rows) == 16
     for tag, a, t, y in rows:
         a, t, y = float(a), float(t), float.fromhex(y)
-        ref = mittag_leffler(a, 1, -t ** a)
+        ref = mittag_leffler(a, 1, -(t**a))
         if a == 1.0:
             assert abs(ref - math.exp(-t)) < 1e-15
             assert abs(y - ref) < 2e-6, (tag, t)
@@ -145,14 +181,27 @@ def test_cpp_controller_equals_python_controller(solver_controller):
     # the same parameters and inputs to pyfracconv.Controller (the same C
     # code behind both interfaces: equal to the last bit)
     import pyfracconv
+
     rows = re.findall(r"ctl (\d+) (\S+) (\S+) (\S+)", solver_controller.stdout)
     assert len(rows) == 600
-    c = pyfracconv.Controller(2.0, 1.5, 0.3, integral_order=0.7, derivative_order=0.4,
-                              step=0.01, output_limits=(-1.0, 1.2), rate_limit=40.0,
-                              setpoint_weight=0.8, derivative_weight=0.0,
-                              derivative_filter=0.05, integral_rule="trapezoid",
-                              derivative_rule="grunwald", memory="compressed",
-                              tol=1e-10, horizon=1e9)
+    c = pyfracconv.Controller(
+        2.0,
+        1.5,
+        0.3,
+        integral_order=0.7,
+        derivative_order=0.4,
+        step=0.01,
+        output_limits=(-1.0, 1.2),
+        rate_limit=40.0,
+        setpoint_weight=0.8,
+        derivative_weight=0.0,
+        derivative_filter=0.05,
+        integral_rule="trapezoid",
+        derivative_rule="grunwald",
+        memory="compressed",
+        tol=1e-10,
+        horizon=1e9,
+    )
     limited = 0
     for n, r, y, u in rows:
         n = int(n)
@@ -206,14 +255,28 @@ def test_stream_checkpoint_files(tmp_path):
     if CXX is None:
         pytest.fail("g++ is needed for the C++ wrapper tests")
     build = tmp_path / "build"
-    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
-                   capture_output=True, text=True)
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True, capture_output=True, text=True)
     src = tmp_path / "ckpt.cpp"
     src.write_text(CHECKPOINT_CPP)
     exe = tmp_path / "ckpt"
-    r = subprocess.run([CXX, "-std=c++17", "-Wall", "-Wextra", "-Werror", "-I",
-                        os.path.join(ROOT, "csrc"), str(src), str(build / "libfracconv.a"),
-                        "-lm", "-o", str(exe)], capture_output=True, text=True)
+    r = subprocess.run(
+        [
+            CXX,
+            "-std=c++17",
+            "-Wall",
+            "-Wextra",
+            "-Werror",
+            "-I",
+            os.path.join(ROOT, "csrc"),
+            str(src),
+            str(build / "libfracconv.a"),
+            "-lm",
+            "-o",
+            str(exe),
+        ],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stderr
     out = subprocess.run([str(exe), str(tmp_path)], capture_output=True, text=True)
     assert out.returncode == 0, out.stdout
@@ -273,14 +336,28 @@ def test_solver_controller_checkpoint_files(tmp_path):
     if CXX is None:
         pytest.fail("g++ is needed for the C++ wrapper tests")
     build = tmp_path / "build"
-    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
-                   capture_output=True, text=True)
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True, capture_output=True, text=True)
     src = tmp_path / "ckpt_sc.cpp"
     src.write_text(CHECKPOINT_SC_CPP)
     exe = tmp_path / "ckpt_sc"
-    r = subprocess.run([CXX, "-std=c++17", "-Wall", "-Wextra", "-Werror", "-I",
-                        os.path.join(ROOT, "csrc"), str(src), str(build / "libfracconv.a"),
-                        "-lm", "-o", str(exe)], capture_output=True, text=True)
+    r = subprocess.run(
+        [
+            CXX,
+            "-std=c++17",
+            "-Wall",
+            "-Wextra",
+            "-Werror",
+            "-I",
+            os.path.join(ROOT, "csrc"),
+            str(src),
+            str(build / "libfracconv.a"),
+            "-lm",
+            "-o",
+            str(exe),
+        ],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stderr
     out = subprocess.run([str(exe), str(tmp_path)], capture_output=True, text=True)
     assert out.returncode == 0, out.stdout

@@ -26,8 +26,13 @@ pfd = pytest.importorskip("pyfracconv.dask")
 @pytest.fixture(scope="module")
 def client():
     cluster = distributed.LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-        dashboard_address=None, silence_logs=40)
+        n_workers=2,
+        threads_per_worker=1,
+        processes=True,
+        host="127.0.0.1",
+        dashboard_address=None,
+        silence_logs=40,
+    )
     c = distributed.Client(cluster)
     try:
         yield c
@@ -55,6 +60,7 @@ def pair(t, y, p):
 
 # ------------------------------------------------------------ the cluster
 
+
 def test_cluster_runs_separate_worker_processes(client):
     pids = client.run(os.getpid)
     assert len(pids) == 2 and os.getpid() not in pids.values()
@@ -63,10 +69,10 @@ def test_cluster_runs_separate_worker_processes(client):
 
 def test_operators_on_the_cluster_equal_numpy(client):
     x = signals((12, 6000))
-    X = da.from_array(x, chunks=(3, 1500))          # time axis in 4 chunks
+    X = da.from_array(x, chunks=(3, 1500))  # time axis in 4 chunks
     Y = pfd.integral(X, 0.5, 0.01)
     assert isinstance(Y, da.Array) and Y.chunks == ((3, 3, 3, 3), (6000,))
-    D = pfd.derivative(X.T, 0.7, 0.01, rule="l1", axis=0)   # time along axis 0
+    D = pfd.derivative(X.T, 0.7, 0.01, rule="l1", axis=0)  # time along axis 0
     y, d = client.compute([Y, D], sync=True)
     assert np.array_equal(y, pyfracconv.integral(x, 0.5, 0.01))
     assert np.array_equal(d, pyfracconv.derivative(x.T, 0.7, 0.01, rule="l1", axis=0))
@@ -75,8 +81,12 @@ def test_operators_on_the_cluster_equal_numpy(client):
 def test_three_dimensional_and_every_rule_on_the_cluster(client):
     x = signals((2, 5, 3000), seed=1)
     X = da.from_array(x, chunks=(1, 2, 1000))
-    cases = [("integral", "rectangle", 1.4), ("integral", "trapezoid", 0.3),
-             ("derivative", "grunwald", 1.5), ("derivative", "l1", 0.4)]
+    cases = [
+        ("integral", "rectangle", 1.4),
+        ("integral", "trapezoid", 0.3),
+        ("derivative", "grunwald", 1.5),
+        ("derivative", "l1", 0.4),
+    ]
     lazy = [getattr(pfd, op)(X, a, 0.02, rule=rule) for op, rule, a in cases]
     got = client.compute(lazy, sync=True)
     for (op, rule, a), g in zip(cases, got):
@@ -112,18 +122,28 @@ def test_solve_many_on_the_cluster_equals_solve(client):
 
 def test_solve_many_systems_order_sweep_compressed_on_the_cluster(client):
     rows = np.array([[1.0, 2.0, 0.5], [0.5, 1.0, 0.8], [2.0, 0.3, 0.3]])
-    P = da.from_array(rows, chunks=(2, 1))      # the parameter axis split too
-    t, Y = pfd.solve_many(pair, P, [1.0, 0.0], lambda p: p[2], 0.005, 200,
-                          memory="compressed", tol=1e-10, method="rectangle")
+    P = da.from_array(rows, chunks=(2, 1))  # the parameter axis split too
+    t, Y = pfd.solve_many(
+        pair, P, [1.0, 0.0], lambda p: p[2], 0.005, 200, memory="compressed", tol=1e-10, method="rectangle"
+    )
     assert Y.shape == (3, 201, 2)
     y = client.compute(Y, sync=True)
     for i, p in enumerate(rows):
-        ref = pyfracconv.solve(lambda t, y: pair(t, y, p), [1.0, 0.0], p[2], 0.005, 200,
-                               memory="compressed", tol=1e-10, method="rectangle")
+        ref = pyfracconv.solve(
+            lambda t, y: pair(t, y, p),
+            [1.0, 0.0],
+            p[2],
+            0.005,
+            200,
+            memory="compressed",
+            tol=1e-10,
+            method="rectangle",
+        )
         assert np.array_equal(y[i], ref.y), i
 
 
 # ------------------------------------------------------------ threads
+
 
 def test_threaded_scheduler_equals_numpy():
     x = signals((7, 4000), seed=2)
@@ -147,8 +167,7 @@ def test_results_are_lazy():
     Y = pfd.integral(X, 0.5, 0.1)
     t, S = pfd.solve_many(decay, np.ones(3), 1.0, 0.5, 0.1, 10)
     assert calls == []
-    assert np.array_equal(Y.compute(scheduler="threads"),
-                          pyfracconv.integral(np.ones((2, 100)), 0.5, 0.1))
+    assert np.array_equal(Y.compute(scheduler="threads"), pyfracconv.integral(np.ones((2, 100)), 0.5, 0.1))
     assert calls == [1]
 
 
@@ -163,15 +182,18 @@ def test_explicit_euler_closed_form_threads():
     assert np.array_equal(t, 0.125 * np.arange(9))
     t, Y = pfd.solve_many(decay, p, 1.0, 1.0, 0.125, 8, method="rectangle", t0=0.3)
     assert np.array_equal(Y.compute(scheduler="threads"), y)
-    assert np.array_equal(t, pyfracconv.solve(lambda t, y: -y, 1.0, 1.0, 0.125, 8,
-                                              method="rectangle", t0=0.3).t)
+    assert np.array_equal(
+        t, pyfracconv.solve(lambda t, y: -y, 1.0, 1.0, 0.125, 8, method="rectangle", t0=0.3).t
+    )
 
 
 def test_per_set_value_that_raises_is_named():
-    t, Y = pfd.solve_many(decay, np.array([1.0, 0.0]), lambda p: {1.0: 1.0}[float(p)],
-                          0.5, 0.1, 5, chunk=1)
-    with pytest.raises(ArgumentError, match=r"params\[1\]=0\.0: y0, order or dy0 raised "
-                                            r"KeyError"):
+    t, Y = pfd.solve_many(decay, np.array([1.0, 0.0]), lambda p: {1.0: 1.0}[float(p)], 0.5, 0.1, 5, chunk=1)
+    with pytest.raises(
+        ArgumentError,
+        match=r"params\[1\]=0\.0: y0, order or dy0 raised "
+        r"KeyError",
+    ):
         Y.compute(scheduler="threads")
 
 
@@ -188,8 +210,9 @@ def test_failing_set_is_named():
 
 
 def test_inconsistent_component_counts_are_named():
-    t, Y = pfd.solve_many(lambda t, y, p: -y, np.array([1.0, 2.0]),
-                          lambda p: np.ones(int(p)), 0.5, 0.1, 5, chunk=1)
+    t, Y = pfd.solve_many(
+        lambda t, y, p: -y, np.array([1.0, 2.0]), lambda p: np.ones(int(p)), 0.5, 0.1, 5, chunk=1
+    )
     with pytest.raises(ArgumentError, match=r"params\[1\]=2\.0: the solution has shape"):
         Y.compute(scheduler="threads")
 
@@ -199,39 +222,53 @@ def test_inconsistent_component_counts_are_named():
 X0 = da.ones((3, 50), chunks=(1, 50))
 
 
-@pytest.mark.parametrize("call,exc,text", [
-    (lambda: pfd.integral(X0, -0.5, 0.1), ArgumentError, "order=-0.5"),
-    (lambda: pfd.integral(X0, 0.5, 0.0), ArgumentError, "step=0.0"),
-    (lambda: pfd.integral(X0, 0.5, 0.1, rule="l1"), ArgumentError, "rule='l1'"),
-    (lambda: pfd.derivative(X0, 1.5, 0.1, rule="l1"), ArgumentError, "order=1.5"),
-    (lambda: pfd.integral(X0, 0.5, 0.1, axis=2), ArgumentError, "axis=2"),
-    (lambda: pfd.integral(X0, 0.5, 0.1, engine="gpu"), ArgumentError, "engine='gpu'"),
-    (lambda: pfd.integral(da.from_array(np.array(["a", "b"])), 0.5, 0.1),
-     InputTypeError, "dtype <U1"),
-    (lambda: pfd.integral(da.from_array(np.float64(1.0)), 0.5, 0.1), ArgumentError, "scalar"),
-    (lambda: pfd.integral(np.ma.masked_array([1.0, 2.0]), 0.5, 0.1), InputTypeError, "masked"),
-    (lambda: pfd.solve_many("f", np.ones(2), 1.0, 0.5, 0.1, 5), InputTypeError, "rhs='f'"),
-    (lambda: pfd.solve_many(decay, np.ones(0), 1.0, 0.5, 0.1, 5), ArgumentError, "shape (0,)"),
-    (lambda: pfd.solve_many(decay, np.ones((2, 2, 2)), 1.0, 0.5, 0.1, 5), ArgumentError,
-     "shape (2, 2, 2)"),
-    (lambda: pfd.solve_many(decay, ["a"], 1.0, 0.5, 0.1, 5), InputTypeError, "dtype <U1"),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 2.5, 0.1, 5), ArgumentError, "order=2.5"),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, lambda p: -p, 0.1, 5), ArgumentError,
-     "order=-1.0"),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, -0.1, 5), ArgumentError, "step=-0.1"),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, -5), ArgumentError,
-     "n_steps=-5"),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, 5, chunk=0), ArgumentError,
-     "chunk=0"),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, 5, progress=True),
-     ArgumentError, "progress"),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, 5, metod="rectangle"),
-     ArgumentError, "metod='rectangle'"),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, 5, method="euler"),
-     ArgumentError, "method='euler'"),
-    (lambda: pfd.solve_many(decay, np.ones(2), lambda p: 1 / 0, 0.5, 0.1, 5),
-     ArgumentError, "ZeroDivisionError"),
-])
+@pytest.mark.parametrize(
+    "call,exc,text",
+    [
+        (lambda: pfd.integral(X0, -0.5, 0.1), ArgumentError, "order=-0.5"),
+        (lambda: pfd.integral(X0, 0.5, 0.0), ArgumentError, "step=0.0"),
+        (lambda: pfd.integral(X0, 0.5, 0.1, rule="l1"), ArgumentError, "rule='l1'"),
+        (lambda: pfd.derivative(X0, 1.5, 0.1, rule="l1"), ArgumentError, "order=1.5"),
+        (lambda: pfd.integral(X0, 0.5, 0.1, axis=2), ArgumentError, "axis=2"),
+        (lambda: pfd.integral(X0, 0.5, 0.1, engine="gpu"), ArgumentError, "engine='gpu'"),
+        (lambda: pfd.integral(da.from_array(np.array(["a", "b"])), 0.5, 0.1), InputTypeError, "dtype <U1"),
+        (lambda: pfd.integral(da.from_array(np.float64(1.0)), 0.5, 0.1), ArgumentError, "scalar"),
+        (lambda: pfd.integral(np.ma.masked_array([1.0, 2.0]), 0.5, 0.1), InputTypeError, "masked"),
+        (lambda: pfd.solve_many("f", np.ones(2), 1.0, 0.5, 0.1, 5), InputTypeError, "rhs='f'"),
+        (lambda: pfd.solve_many(decay, np.ones(0), 1.0, 0.5, 0.1, 5), ArgumentError, "shape (0,)"),
+        (
+            lambda: pfd.solve_many(decay, np.ones((2, 2, 2)), 1.0, 0.5, 0.1, 5),
+            ArgumentError,
+            "shape (2, 2, 2)",
+        ),
+        (lambda: pfd.solve_many(decay, ["a"], 1.0, 0.5, 0.1, 5), InputTypeError, "dtype <U1"),
+        (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 2.5, 0.1, 5), ArgumentError, "order=2.5"),
+        (lambda: pfd.solve_many(decay, np.ones(2), 1.0, lambda p: -p, 0.1, 5), ArgumentError, "order=-1.0"),
+        (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, -0.1, 5), ArgumentError, "step=-0.1"),
+        (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, -5), ArgumentError, "n_steps=-5"),
+        (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, 5, chunk=0), ArgumentError, "chunk=0"),
+        (
+            lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, 5, progress=True),
+            ArgumentError,
+            "progress",
+        ),
+        (
+            lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, 5, metod="rectangle"),
+            ArgumentError,
+            "metod='rectangle'",
+        ),
+        (
+            lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, 5, method="euler"),
+            ArgumentError,
+            "method='euler'",
+        ),
+        (
+            lambda: pfd.solve_many(decay, np.ones(2), lambda p: 1 / 0, 0.5, 0.1, 5),
+            ArgumentError,
+            "ZeroDivisionError",
+        ),
+    ],
+)
 def test_bad_arguments_at_the_call(call, exc, text):
     with pytest.raises(exc) as info:
         call()
@@ -239,6 +276,7 @@ def test_bad_arguments_at_the_call(call, exc, text):
 
 
 # ------------------------------------------------------------ sample times (t=)
+
 
 def jittered_times(n, seed=2):
     """An invented logger's times: steps uniform in [0.5, 1.5] ms."""
@@ -249,10 +287,12 @@ def jittered_times(n, seed=2):
 def test_sample_times_on_the_cluster_equal_numpy(client):
     t = jittered_times(3000)
     x = signals((6, 3000), seed=3)
-    X = da.from_array(x, chunks=(2, 1000))          # time axis in 3 chunks
-    cases = [(pfd.integral, pyfracconv.integral, dict(rule="rectangle"), 0.5),
-             (pfd.integral, pyfracconv.integral, dict(rule="trapezoid", tol=1e-9), 0.8),
-             (pfd.derivative, pyfracconv.derivative, dict(rule="l1"), 0.3)]
+    X = da.from_array(x, chunks=(2, 1000))  # time axis in 3 chunks
+    cases = [
+        (pfd.integral, pyfracconv.integral, dict(rule="rectangle"), 0.5),
+        (pfd.integral, pyfracconv.integral, dict(rule="trapezoid", tol=1e-9), 0.8),
+        (pfd.derivative, pyfracconv.derivative, dict(rule="l1"), 0.3),
+    ]
     lazy = [f(X, a, t=t, **kw) for f, _, kw, a in cases]
     got = client.compute(lazy, sync=True)
     for (_, g, kw, a), y in zip(cases, got):
@@ -266,46 +306,49 @@ def test_sample_times_threads_each_engine_bit_for_bit(engine):
     # the whole array, and of each signal alone
     t = jittered_times(700)
     x = signals((9, 700), seed=4)
-    y = pfd.integral(da.from_array(x, chunks=(2, 700)), 0.5, t=t, engine=engine,
-                     rule="trapezoid").compute(scheduler="threads")
+    y = pfd.integral(da.from_array(x, chunks=(2, 700)), 0.5, t=t, engine=engine, rule="trapezoid").compute(
+        scheduler="threads"
+    )
     whole = pyfracconv.integral(x, 0.5, t=t, engine=engine, rule="trapezoid")
     assert np.array_equal(y, whole)
     for i in range(9):
-        assert np.array_equal(whole[i], pyfracconv.integral(x[i], 0.5, t=t, engine=engine,
-                                                            rule="trapezoid"))
-    d = pfd.derivative(da.from_array(x.T, chunks=(350, 4)), 0.4, t=t, rule="l1", axis=0,
-                       engine=engine).compute(scheduler="threads")
-    assert np.array_equal(d, pyfracconv.derivative(x.T, 0.4, t=t, rule="l1", axis=0,
-                                                   engine=engine))
+        assert np.array_equal(whole[i], pyfracconv.integral(x[i], 0.5, t=t, engine=engine, rule="trapezoid"))
+    d = pfd.derivative(
+        da.from_array(x.T, chunks=(350, 4)), 0.4, t=t, rule="l1", axis=0, engine=engine
+    ).compute(scheduler="threads")
+    assert np.array_equal(d, pyfracconv.derivative(x.T, 0.4, t=t, rule="l1", axis=0, engine=engine))
 
 
 def test_sample_times_closed_form_threads():
     # I^a 1 = t^a / Gamma(a+1) (Podlubny 1999): the rectangle rule is exact
     # for constants on any grid
     import math
+
     t = 1.0 + jittered_times(50) * 100
     y = pfd.integral(da.ones((3, 50), chunks=(1, 50)), 0.7, t=t).compute(scheduler="threads")
     want = (t - t[0]) ** 0.7 / math.gamma(1.7)
     assert np.allclose(y, want[None, :], rtol=1e-13, atol=1e-15)
 
 
-@pytest.mark.parametrize("call,exc,text", [
-    (lambda: pfd.integral(X0, 0.5, 0.1, t=np.arange(50.0)), ArgumentError,
-     "give exactly one of step"),
-    (lambda: pfd.integral(X0, 0.5), InputTypeError, "step=None and t=None"),
-    (lambda: pfd.integral(X0, 0.5, t=np.arange(49.0)), ArgumentError, "t: has 49 times"),
-    (lambda: pfd.integral(X0, 0.5, t=np.r_[0.0, 0.0, np.arange(2.0, 50.0)]), ArgumentError,
-     "t[1]=0.0 after t[0]=0.0"),
-    (lambda: pfd.integral(X0, 0.5, t=np.r_[np.nan, np.arange(1.0, 50.0)]), ArgumentError,
-     "t[0]=nan"),
-    (lambda: pfd.derivative(X0, 0.5, t=np.arange(50.0)), ArgumentError, "rule='grunwald'"),
-    (lambda: pfd.integral(X0, 0.5, t=np.arange(50.0), engine="fft"), ArgumentError,
-     "engine='fft'"),
-    (lambda: pfd.integral(X0, 0.5, t=np.arange(50.0), tol=1.0), ArgumentError, "tol=1.0"),
-    (lambda: pfd.integral(X0, 0.5, 0.1, tol=1e-9), ArgumentError, "tol=1e-09"),
-    (lambda: pfd.integral(X0, 1.5, t=np.arange(50.0), engine="fast"), ArgumentError,
-     "engine='fast'"),
-])
+@pytest.mark.parametrize(
+    "call,exc,text",
+    [
+        (lambda: pfd.integral(X0, 0.5, 0.1, t=np.arange(50.0)), ArgumentError, "give exactly one of step"),
+        (lambda: pfd.integral(X0, 0.5), InputTypeError, "step=None and t=None"),
+        (lambda: pfd.integral(X0, 0.5, t=np.arange(49.0)), ArgumentError, "t: has 49 times"),
+        (
+            lambda: pfd.integral(X0, 0.5, t=np.r_[0.0, 0.0, np.arange(2.0, 50.0)]),
+            ArgumentError,
+            "t[1]=0.0 after t[0]=0.0",
+        ),
+        (lambda: pfd.integral(X0, 0.5, t=np.r_[np.nan, np.arange(1.0, 50.0)]), ArgumentError, "t[0]=nan"),
+        (lambda: pfd.derivative(X0, 0.5, t=np.arange(50.0)), ArgumentError, "rule='grunwald'"),
+        (lambda: pfd.integral(X0, 0.5, t=np.arange(50.0), engine="fft"), ArgumentError, "engine='fft'"),
+        (lambda: pfd.integral(X0, 0.5, t=np.arange(50.0), tol=1.0), ArgumentError, "tol=1.0"),
+        (lambda: pfd.integral(X0, 0.5, 0.1, tol=1e-9), ArgumentError, "tol=1e-09"),
+        (lambda: pfd.integral(X0, 1.5, t=np.arange(50.0), engine="fast"), ArgumentError, "engine='fast'"),
+    ],
+)
 def test_sample_times_bad_arguments_at_the_call(call, exc, text):
     with pytest.raises(exc) as info:
         call()
@@ -314,6 +357,7 @@ def test_sample_times_bad_arguments_at_the_call(call, exc, text):
 
 def test_solve_many_on_a_grid_on_the_cluster_equals_solve(client):
     from pyfracconv.grid import graded_mesh
+
     t = graded_mesh(1.0, 60, 2.0)
     P = np.array([[0.5, 1.0], [1.5, 0.2], [2.0, 0.7]])
     tt, Y = pfd.solve_many(pair, P, [1.0, 0.0], [0.6, 0.9], t=t, chunk=2)
@@ -335,19 +379,29 @@ def test_solve_many_on_a_grid_threads_rectangle():
         assert np.allclose(y[i], want, rtol=1e-14, atol=1e-15)
 
 
-@pytest.mark.parametrize("call,text", [
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, 5, t=[0.0, 1.0]),
-     "t and step=0.1, n_steps=5: give either"),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5), "step and n_steps=None"),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], t0=1.0),
-     "t0=1.0: not used with t="),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], method="trapezoid"),
-     "method='trapezoid': not available with t="),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], memory="compressed"),
-     "memory='compressed': not available with t="),
-    (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0, 1.0]),
-     "t[2]=1.0 after t[1]=1.0"),
-])
+@pytest.mark.parametrize(
+    "call,text",
+    [
+        (
+            lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, 0.1, 5, t=[0.0, 1.0]),
+            "t and step=0.1, n_steps=5: give either",
+        ),
+        (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5), "step and n_steps=None"),
+        (
+            lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], t0=1.0),
+            "t0=1.0: not used with t=",
+        ),
+        (
+            lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], method="trapezoid"),
+            "method='trapezoid': not available with t=",
+        ),
+        (
+            lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], memory="compressed"),
+            "memory='compressed': not available with t=",
+        ),
+        (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0, 1.0]), "t[2]=1.0 after t[1]=1.0"),
+    ],
+)
 def test_solve_many_grid_refusals(call, text):
     with pytest.raises(ArgumentError) as info:
         call()

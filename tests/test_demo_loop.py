@@ -28,10 +28,9 @@ def test_demo_plant_is_the_explicit_rectangle_method():
     j = np.arange(n, dtype=float)
     b = h**a * ((j + 1) ** a - j**a) / gamma(a + 1)
     net = q - demo_loop.H_CONV * theta
-    ref = np.array([c * np.dot(b[k - 1::-1], net[:k]) if k else 0.0 for k in range(n)])
-    scale = np.array([c * np.dot(b[k - 1::-1], np.abs(net[:k])) if k else 0.0
-                      for k in range(n)])
+    ref = np.array([c * np.dot(b[k - 1 :: -1], net[:k]) if k else 0.0 for k in range(n)])
+    scale = np.array([c * np.dot(b[k - 1 :: -1], np.abs(net[:k])) if k else 0.0 for k in range(n)])
     assert theta[0] == 0.0
-    assert np.max(q) > 0.0           # the heater did act
+    assert np.max(q) > 0.0  # the heater did act
     assert np.all(np.abs(theta - ref) <= 1e-13 * scale + 1e-300)
     assert np.allclose(t, np.arange(n) * h)

@@ -68,8 +68,7 @@ def test_module_examples_run(name):
 def test_total_examples():
     total = 0
     for name in MINIMUM:
-        total += doctest.testmod(importlib.import_module(name), optionflags=FLAGS,
-                                 report=False).attempted
+        total += doctest.testmod(importlib.import_module(name), optionflags=FLAGS, report=False).attempted
     assert total >= 500, total
 
 
@@ -127,22 +126,50 @@ def _public_properties():
 CALLABLES = _public_callables()
 PROPERTIES = _public_properties()
 # The Stream properties, named so that the enumeration cannot lose them.
-STREAM_PROPERTIES = ["count", "nbytes", "terms", "remaining", "past_horizon",
-                     "horizon_policy", "channels", "mode", "order", "step", "rule", "tol",
-                     "horizon"]
+STREAM_PROPERTIES = [
+    "count",
+    "nbytes",
+    "terms",
+    "remaining",
+    "past_horizon",
+    "horizon_policy",
+    "channels",
+    "mode",
+    "order",
+    "step",
+    "rule",
+    "tol",
+    "horizon",
+]
 
 
 def test_enumeration_finds_the_known_api():
     """The enumeration sees the core functions, the classes' methods and the
     submodules (a broken enumeration would pass every test below)."""
     ids = {i for i, _ in CALLABLES}
-    for known in ("weights", "lagged_sum", "integral", "derivative", "get_include",
-                  "get_lib_dir", "solve", "export_c", "export_controller_c",
-                  "operator_response", "controller_response",
-                  "Stream.integral", "Stream.from_kernel", "Stream.push", "Stream.load",
-                  "TimedStream.push", "Stepper.advance", "Controller.update",
-                  "pyfracconv.grid.graded_mesh", "pyfracconv.records.apply_npy",
-                  "pyfracconv.dask.solve_many"):
+    for known in (
+        "weights",
+        "lagged_sum",
+        "integral",
+        "derivative",
+        "get_include",
+        "get_lib_dir",
+        "solve",
+        "export_c",
+        "export_controller_c",
+        "operator_response",
+        "controller_response",
+        "Stream.integral",
+        "Stream.from_kernel",
+        "Stream.push",
+        "Stream.load",
+        "TimedStream.push",
+        "Stepper.advance",
+        "Controller.update",
+        "pyfracconv.grid.graded_mesh",
+        "pyfracconv.records.apply_npy",
+        "pyfracconv.dask.solve_many",
+    ):
         assert known in ids, known
     assert len(ids) >= 50, len(ids)
     props = {i for i, _ in PROPERTIES}
@@ -190,9 +217,20 @@ def test_properties_have_examples_and_see_also(prop):
     assert ">>>" in doc
 
 
-@pytest.mark.parametrize("name", ["FracconvError", "ArgumentError", "SampleError",
-                                  "StateError", "InputTypeError", "OutOfMemory",
-                                  "BusyError", "RangeError", "HorizonError"])
+@pytest.mark.parametrize(
+    "name",
+    [
+        "FracconvError",
+        "ArgumentError",
+        "SampleError",
+        "StateError",
+        "InputTypeError",
+        "OutOfMemory",
+        "BusyError",
+        "RangeError",
+        "HorizonError",
+    ],
+)
 def test_exceptions_have_examples(name):
     sections, doc = _documented(getattr(pyfracconv, name))
     assert {"Examples", "See Also"} <= sections and ">>>" in doc, name

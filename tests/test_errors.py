@@ -140,8 +140,14 @@ def test_exception_hierarchy():
     assert issubclass(SampleError, ValueError)
     assert issubclass(InputTypeError, TypeError)
     assert issubclass(pyfracconv.OutOfMemory, MemoryError)
-    for cls in (ArgumentError, SampleError, InputTypeError, pyfracconv.StateError,
-                pyfracconv.OutOfMemory, pyfracconv.BusyError):
+    for cls in (
+        ArgumentError,
+        SampleError,
+        InputTypeError,
+        pyfracconv.StateError,
+        pyfracconv.OutOfMemory,
+        pyfracconv.BusyError,
+    ):
         assert issubclass(cls, FracconvError)
 
 

@@ -23,8 +23,7 @@ from pyfracconv.export import _scale, export_c
 
 CC = shutil.which("gcc")
 CFLAGS = ["-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic", "-O2"]
-CASES = [("rectangle", 0.5), ("trapezoid", 0.3), ("grunwald", 0.7), ("l1", 0.4),
-         ("rectangle", 1.5)]
+CASES = [("rectangle", 0.5), ("trapezoid", 0.3), ("grunwald", 0.7), ("l1", 0.4), ("rectangle", 1.5)]
 STEP, TOL, HORIZON = 0.01, 1e-9, 1e5
 
 RUNNER = r"""
@@ -70,7 +69,7 @@ int main(void)
 
 def _cpu_has_fma(tmp):
     probe = tmp / "probe.c"
-    probe.write_text("int main(void){return __builtin_cpu_supports(\"fma\") ? 0 : 1;}\n")
+    probe.write_text('int main(void){return __builtin_cpu_supports("fma") ? 0 : 1;}\n')
     subprocess.run([CC, str(probe), "-o", str(tmp / "probe")], check=True)
     return subprocess.run([str(tmp / "probe")]).returncode == 0
 
@@ -83,15 +82,19 @@ def _build(exp, tmp, main, extra=()):
     (tmp / "main.c").write_text(main.replace("@U", p.upper()).replace("@", p))
     exe = tmp / "run"
     # no -lm: the generated code must not need libm
-    r = subprocess.run([CC, *CFLAGS, *extra, "-I", str(tmp), str(tmp / "main.c"),
-                        str(tmp / f"{p}.c"), "-o", str(exe)], capture_output=True, text=True)
+    r = subprocess.run(
+        [CC, *CFLAGS, *extra, "-I", str(tmp), str(tmp / "main.c"), str(tmp / f"{p}.c"), "-o", str(exe)],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stderr
     return exe
 
 
 def _run(exe, x):
-    out = subprocess.run([str(exe)], input="\n".join(repr(float(v)) for v in x),
-                         capture_output=True, text=True, check=True).stdout.split("\n")
+    out = subprocess.run(
+        [str(exe)], input="\n".join(repr(float(v)) for v in x), capture_output=True, text=True, check=True
+    ).stdout.split("\n")
     return out[:-1]
 
 
@@ -105,8 +108,12 @@ def _inputs(n, seed):
     rng = np.random.default_rng(seed)
     spikes = np.zeros(n)
     spikes[::97] = 1.0
-    return {"random": rng.standard_normal(n), "step": np.ones(n), "spike": spikes,
-            "ramp+noise": np.arange(n) * 1e-3 + 0.1 * rng.uniform(-1, 1, n)}
+    return {
+        "random": rng.standard_normal(n),
+        "step": np.ones(n),
+        "spike": spikes,
+        "ramp+noise": np.arange(n) * 1e-3 + 0.1 * rng.uniform(-1, 1, n),
+    }
 
 
 @pytest.mark.parametrize("rule,order", CASES)
@@ -115,9 +122,8 @@ def test_double_matches_library_stream(rule, order, tmp_path):
     (tmp_path / "plain").mkdir()
     (tmp_path / "fused").mkdir()
     plain = _build(exp, tmp_path / "plain", RUNNER)
-    fused = _build(exp, tmp_path / "fused", RUNNER, ["-mfma"]) \
-        if _cpu_has_fma(tmp_path) else None
-    eps = 2.0 ** -52
+    fused = _build(exp, tmp_path / "fused", RUNNER, ["-mfma"]) if _cpu_has_fma(tmp_path) else None
+    eps = 2.0**-52
     for name, x in _inputs(700, 11).items():
         ref = _library(rule, order, x)
         scale = _scale(rule, order, STEP, x)
@@ -132,8 +138,17 @@ def test_double_matches_library_stream(rule, order, tmp_path):
 @pytest.mark.parametrize("rule,order", CASES)
 @pytest.mark.parametrize("precision", ["double", "single"])
 def test_generated_test_vector_passes(rule, order, precision, tmp_path):
-    exp = export_c(rule, order, STEP, tol=TOL, horizon=HORIZON, precision=precision,
-                   prefix="ctl_op", test_length=400, seed=3)
+    exp = export_c(
+        rule,
+        order,
+        STEP,
+        tol=TOL,
+        horizon=HORIZON,
+        precision=precision,
+        prefix="ctl_op",
+        test_length=400,
+        seed=3,
+    )
     exe = _build(exp, tmp_path, TESTVEC)
     r = subprocess.run([str(exe)], capture_output=True, text=True)
     assert r.returncode == 0 and r.stdout.strip() == "0 outside", r.stdout
@@ -167,8 +182,9 @@ def test_exported_object_has_no_undefined_symbols(tmp_path):
     nm = shutil.which("nm")
     if nm is None:
         pytest.fail("nm (binutils) is needed")
-    undefined = subprocess.run([nm, "-u", str(obj)], capture_output=True, text=True,
-                               check=True).stdout.split()
+    undefined = subprocess.run(
+        [nm, "-u", str(obj)], capture_output=True, text=True, check=True
+    ).stdout.split()
     assert undefined == []
     src = exp.source + exp.header
     assert "#include <" not in src
@@ -190,13 +206,18 @@ def test_horizon_and_nonfinite_refused(tmp_path):
     assert float.fromhex(out[2]) == pytest.approx(ref[1], rel=1e-14)
 
 
-@pytest.mark.parametrize("kwargs", [
-    dict(rule="trapezoid", order=1.5), dict(rule="grunwald", order=1.2),
-    dict(rule="l1", order=1.0), dict(rule="rectangle", order=2.5),
-    dict(rule="rectangle", order=0.5, precision="half"),
-    dict(rule="rectangle", order=0.5, prefix="9bad"),
-    dict(rule="simpson", order=0.5),
-])
+@pytest.mark.parametrize(
+    "kwargs",
+    [
+        dict(rule="trapezoid", order=1.5),
+        dict(rule="grunwald", order=1.2),
+        dict(rule="l1", order=1.0),
+        dict(rule="rectangle", order=2.5),
+        dict(rule="rectangle", order=0.5, precision="half"),
+        dict(rule="rectangle", order=0.5, prefix="9bad"),
+        dict(rule="simpson", order=0.5),
+    ],
+)
 def test_refusals(kwargs):
     kw = dict(step=STEP, tol=1e-6, horizon=1e4)
     kw.update(kwargs)
@@ -206,6 +227,7 @@ def test_refusals(kwargs):
 
 def test_docs_export_example_runs(tmp_path, monkeypatch):
     import os
+
     root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
     with open(os.path.join(root, "docs", "compiled.md")) as f:
         text = f.read()
@@ -215,8 +237,9 @@ def test_docs_export_example_runs(tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)
     exec(compile(py[0], "docs/compiled.md", "exec"), {})
     (tmp_path / "main.c").write_text(c[0])
-    r = subprocess.run([CC, *CFLAGS, "main.c", "dhalf.c", "-o", "main"],
-                       capture_output=True, text=True, cwd=tmp_path)
+    r = subprocess.run(
+        [CC, *CFLAGS, "main.c", "dhalf.c", "-o", "main"], capture_output=True, text=True, cwd=tmp_path
+    )
     assert r.returncode == 0, r.stderr
     out = subprocess.run(["./main"], capture_output=True, text=True, cwd=tmp_path)
     assert out.returncode == 0 and out.stdout.startswith("0 of 300"), out.stdout
@@ -224,8 +247,10 @@ def test_docs_export_example_runs(tmp_path, monkeypatch):
 
 # ----------------------------------------------------- command line
 
+
 def _cli(argv, capsys):
     from pyfracconv.cli import main
+
     rc = main(argv)
     out = capsys.readouterr()
     return rc, out.out, out.err
@@ -237,12 +262,30 @@ def test_cli_export_single_compiles_pedantic_and_matches(tmp_path, capsys):
     # on inputs the export did not measure
     if CC is None:
         pytest.fail("gcc is needed for the export tests")
-    rc, _, err = _cli(["export-c", "--rule", "grunwald", "--order", "0.5", "--step", str(STEP),
-                       "--tol", str(TOL), "--horizon", str(HORIZON), "--precision", "single",
-                       "--prefix", "dhalf", "-o", str(tmp_path)], capsys)
+    rc, _, err = _cli(
+        [
+            "export-c",
+            "--rule",
+            "grunwald",
+            "--order",
+            "0.5",
+            "--step",
+            str(STEP),
+            "--tol",
+            str(TOL),
+            "--horizon",
+            str(HORIZON),
+            "--precision",
+            "single",
+            "--prefix",
+            "dhalf",
+            "-o",
+            str(tmp_path),
+        ],
+        capsys,
+    )
     assert rc == 0, err
-    api = export_c("grunwald", 0.5, STEP, tol=TOL, horizon=HORIZON, precision="single",
-                   prefix="dhalf")
+    api = export_c("grunwald", 0.5, STEP, tol=TOL, horizon=HORIZON, precision="single", prefix="dhalf")
     for name, text in api.files.items():
         assert (tmp_path / name).read_text() == text, name
     stated = api.info["stated"]
@@ -253,9 +296,20 @@ def test_cli_export_single_compiles_pedantic_and_matches(tmp_path, capsys):
     exes = {}
     for name in ("run", "tv"):
         exe = tmp_path / name
-        r = subprocess.run([CC, *CFLAGS, "-I", str(tmp_path), str(tmp_path / f"{name}.c"),
-                            str(tmp_path / "dhalf.c"), "-o", str(exe)],
-                           capture_output=True, text=True)
+        r = subprocess.run(
+            [
+                CC,
+                *CFLAGS,
+                "-I",
+                str(tmp_path),
+                str(tmp_path / f"{name}.c"),
+                str(tmp_path / "dhalf.c"),
+                "-o",
+                str(exe),
+            ],
+            capture_output=True,
+            text=True,
+        )
         assert r.returncode == 0 and r.stderr == "", r.stderr
         exes[name] = exe
     assert subprocess.run([str(exes["tv"])], capture_output=True).returncode == 0
@@ -266,12 +320,15 @@ def test_cli_export_single_compiles_pedantic_and_matches(tmp_path, capsys):
     assert np.all(np.abs(got - ref) <= stated * scale + 1e-30)
 
 
-@pytest.mark.parametrize("argv,what", [
-    (["--rule", "l1", "--order", "1.5"], "--order 1.5"),
-    (["--rule", "grunwald", "--order", "0.5", "--tol", "abc"], "tol='abc'"),
-    (["--rule", "grunwald", "--order", "0.5", "--prefix", "9x"], "prefix='9x'"),
-    (["--rule", "grunwald", "--order", "zero"], "--order zero"),
-])
+@pytest.mark.parametrize(
+    "argv,what",
+    [
+        (["--rule", "l1", "--order", "1.5"], "--order 1.5"),
+        (["--rule", "grunwald", "--order", "0.5", "--tol", "abc"], "tol='abc'"),
+        (["--rule", "grunwald", "--order", "0.5", "--prefix", "9x"], "prefix='9x'"),
+        (["--rule", "grunwald", "--order", "zero"], "--order zero"),
+    ],
+)
 def test_cli_export_refusals_write_nothing(argv, what, tmp_path, capsys):
     rc, _, err = _cli(["export-c", *argv, "--step", "0.01", "-o", str(tmp_path)], capsys)
     assert rc == 2 and what in err, err
@@ -279,8 +336,20 @@ def test_cli_export_refusals_write_nothing(argv, what, tmp_path, capsys):
 
 
 def test_cli_export_needs_an_existing_directory(tmp_path, capsys):
-    rc, _, err = _cli(["export-c", "--rule", "rectangle", "--order", "0.5", "--step", "0.01",
-                       "-o", str(tmp_path / "missing")], capsys)
+    rc, _, err = _cli(
+        [
+            "export-c",
+            "--rule",
+            "rectangle",
+            "--order",
+            "0.5",
+            "--step",
+            "0.01",
+            "-o",
+            str(tmp_path / "missing"),
+        ],
+        capsys,
+    )
     assert rc == 2 and "not an existing directory" in err
 
 
@@ -288,8 +357,13 @@ def test_cli_export_help_carries_the_controller_cautions(capsys):
     rc, out, _ = _cli(["export-c", "--help"], capsys)
     text = " ".join(out.split())
     assert rc == 0
-    for phrase in ("validate the complete controller on the plant", "actuator limits and rate limits",
-                   "independent safe stop", "local codes", "licensed engineering practice"):
+    for phrase in (
+        "validate the complete controller on the plant",
+        "actuator limits and rate limits",
+        "independent safe stop",
+        "local codes",
+        "licensed engineering practice",
+    ):
         assert phrase in text, phrase
 
 

@@ -31,17 +31,45 @@ CFLAGS = ["-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic", "-O2"]
 
 # the settings exercised: every option of the controller
 CASES = {
-    "full": dict(kp=2.0, ki=1.5, kd=0.3, integral_order=0.7, derivative_order=0.4, step=0.01,
-                 output_limits=(-1.0, 1.2), rate_limit=40.0, setpoint_weight=0.8,
-                 derivative_weight=0.0, derivative_filter=0.05),
-    "high-order-integral": dict(kp=1.0, ki=0.8, kd=0.05, integral_order=1.3,
-                                derivative_order=0.6, derivative_rule="l1", step=0.02,
-                                output_limits=(-math.inf, 0.9), integral_rule="rectangle"),
-    "no-anti-windup": dict(kp=0.5, ki=2.0, kd=0.0, integral_order=0.5, derivative_order=0.5,
-                           step=0.005, output_limits=(-0.5, 0.5), rate_limit=10.0,
-                           anti_windup=False, integral_rule="rectangle"),
-    "proportional-only": dict(kp=3.0, integral_order=0.5, derivative_order=0.5, step=0.1,
-                              output_limits=(-2.0, 2.0)),
+    "full": dict(
+        kp=2.0,
+        ki=1.5,
+        kd=0.3,
+        integral_order=0.7,
+        derivative_order=0.4,
+        step=0.01,
+        output_limits=(-1.0, 1.2),
+        rate_limit=40.0,
+        setpoint_weight=0.8,
+        derivative_weight=0.0,
+        derivative_filter=0.05,
+    ),
+    "high-order-integral": dict(
+        kp=1.0,
+        ki=0.8,
+        kd=0.05,
+        integral_order=1.3,
+        derivative_order=0.6,
+        derivative_rule="l1",
+        step=0.02,
+        output_limits=(-math.inf, 0.9),
+        integral_rule="rectangle",
+    ),
+    "no-anti-windup": dict(
+        kp=0.5,
+        ki=2.0,
+        kd=0.0,
+        integral_order=0.5,
+        derivative_order=0.5,
+        step=0.005,
+        output_limits=(-0.5, 0.5),
+        rate_limit=10.0,
+        anti_windup=False,
+        integral_rule="rectangle",
+    ),
+    "proportional-only": dict(
+        kp=3.0, integral_order=0.5, derivative_order=0.5, step=0.1, output_limits=(-2.0, 2.0)
+    ),
 }
 
 RUNNER = r"""
@@ -104,15 +132,18 @@ def _build(exp, tmp, main_src, extra=(), cc=None):
     (tmp / "main.c").write_text(main_src.replace("@U", p.upper()).replace("@", p))
     exe = tmp / "run"
     # no -lm: the generated code must not need libm
-    r = subprocess.run([cc, *CFLAGS, *extra, "-I", str(tmp), str(tmp / "main.c"),
-                        str(tmp / f"{p}.c"), "-o", str(exe)], capture_output=True, text=True)
+    r = subprocess.run(
+        [cc, *CFLAGS, *extra, "-I", str(tmp), str(tmp / "main.c"), str(tmp / f"{p}.c"), "-o", str(exe)],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stderr
     return exe
 
 
 def _cpu_has_fma(tmp):
     probe = tmp / "probe.c"
-    probe.write_text("int main(void){return __builtin_cpu_supports(\"fma\") ? 0 : 1;}\n")
+    probe.write_text('int main(void){return __builtin_cpu_supports("fma") ? 0 : 1;}\n')
     subprocess.run([CC, str(probe), "-o", str(tmp / "probe")], check=True)
     return subprocess.run([str(tmp / "probe")]).returncode == 0
 
@@ -123,8 +154,7 @@ def _scenario(kw, n, seed, single):
     stretch, and the library's outputs, status bits and action scale."""
     rng = np.random.default_rng(seed)
     lo, hi = kw.get("output_limits", (-math.inf, math.inf))
-    mid = (lo + hi) / 2 if math.isfinite(lo) and math.isfinite(hi) else \
-        (hi - 1 if math.isfinite(hi) else 0.0)
+    mid = (lo + hi) / 2 if math.isfinite(lo) and math.isfinite(hi) else (hi - 1 if math.isfinite(hi) else 0.0)
     half = (hi - lo) / 2 if math.isfinite(lo) and math.isfinite(hi) else 1.0
     levels = mid + half * rng.uniform(-1.2, 1.2, size=n // 200 + 1)
     ctl = pyfracconv.Controller(**kw)
@@ -146,18 +176,19 @@ def _scenario(kw, n, seed, single):
         u_ref.append(u)
         bits.append(int(ctl.limited) | 2 * int(ctl.past_horizon) | 4 * (ctl.mode == "manual"))
         t = ctl.terms
-        scale = max(scale, abs(t["proportional"]) + abs(t["integral"]) + abs(t["derivative"])
-                    + abs(t["bias"]))
+        scale = max(
+            scale, abs(t["proportional"]) + abs(t["integral"]) + abs(t["derivative"]) + abs(t["bias"])
+        )
         yv += (u - yv) / 20
     return cmds, np.array(u_ref), bits, scale
 
 
 def _run(exe, cmds):
     text = "\n".join(" ".join(repr(v) if isinstance(v, float) else v for v in c) for c in cmds)
-    out = subprocess.run([str(exe)], input=text, capture_output=True, text=True,
-                         check=True).stdout.split("\n")[:-1]
-    rows = [line.split() for line in out if line not in ("auto",) and
-            not line.startswith("manual")]
+    out = subprocess.run([str(exe)], input=text, capture_output=True, text=True, check=True).stdout.split(
+        "\n"
+    )[:-1]
+    rows = [line.split() for line in out if line not in ("auto",) and not line.startswith("manual")]
     assert all(len(r) == 2 and r[0] != "refused" for r in rows), out[:5]
     return np.array([float.fromhex(r[0]) for r in rows]), [int(r[1]) for r in rows]
 
@@ -184,16 +215,17 @@ def test_single_within_stated_bound_on_unmeasured_records(name, tmp_path):
     kw = CASES[name]
     exp = export_controller_c(kw, precision="single", prefix="pids")
     stated = exp.info["stated"]
-    m = re.search(r"Stated bound \(twice that, at least\n \* 16 \* 2\^-24\): (\S+) of the",
-                  exp.header)
+    m = re.search(r"Stated bound \(twice that, at least\n \* 16 \* 2\^-24\): (\S+) of the", exp.header)
     assert m and float(m.group(1)) == pytest.approx(stated, rel=1e-3)
     assert stated < 1e-5  # what docs/compiled.md states for single precision
     exe = _build(exp, tmp_path, RUNNER)
     cmds, ref, bits, scale = _scenario(kw, 6000, 99, True)
     got, gbits = _run(exe, cmds)
     err = float(np.max(np.abs(got - ref))) / scale
-    print(f"{name}: single-precision error {err:.3e} of the action scale "
-          f"(measured at export {exp.info['measured']:.3e}, stated {stated:.3e})")
+    print(
+        f"{name}: single-precision error {err:.3e} of the action scale "
+        f"(measured at export {exp.info['measured']:.3e}, stated {stated:.3e})"
+    )
     assert err <= stated
     # the limited bit may differ only where the output sits at a limit
     # within the rounding of single precision
@@ -207,8 +239,7 @@ def test_generated_test_vector_passes(precision, cc, tmp_path):
     comp = shutil.which(cc)
     if comp is None:
         pytest.skip(f"{cc} is not installed")
-    exp = export_controller_c(CASES["full"], precision=precision, prefix="pid_tv",
-                              test_length=800, seed=5)
+    exp = export_controller_c(CASES["full"], precision=precision, prefix="pid_tv", test_length=800, seed=5)
     exe = _build(exp, tmp_path, TESTVEC, cc=comp)
     r = subprocess.run([str(exe)], capture_output=True, text=True)
     assert r.returncode == 0 and r.stdout.startswith("0 outside"), r.stdout
@@ -218,10 +249,8 @@ def test_exported_object_has_no_undefined_symbols(tmp_path):
     # no library calls (not even libm) and no data beyond the file's own
     exp = export_controller_c(CASES["full"], precision="single", prefix="pidsym")
     exp.write(str(tmp_path))
-    subprocess.run([CC, *CFLAGS, "-c", str(tmp_path / "pidsym.c"), "-o",
-                    str(tmp_path / "p.o")], check=True)
-    nm = subprocess.run(["nm", str(tmp_path / "p.o")], capture_output=True, text=True,
-                        check=True).stdout
+    subprocess.run([CC, *CFLAGS, "-c", str(tmp_path / "pidsym.c"), "-o", str(tmp_path / "p.o")], check=True)
+    nm = subprocess.run(["nm", str(tmp_path / "p.o")], capture_output=True, text=True, check=True).stdout
     undefined = [line for line in nm.splitlines() if " U " in line]
     assert undefined == []
     src = exp.source
@@ -238,11 +267,11 @@ def test_refused_inputs_change_nothing_and_past_horizon_is_reported(tmp_path):
     # (2) with nothing changed, so every later output is still the
     # library's; past sample 120 the status carries PAST_HORIZON (2) as the
     # library's controller reports it
-    bad = cmds[:50] + [("u", 1.0, float("nan")), ("u", float("inf"), 0.0),
-                       ("u", 1.0, 1e300)] + cmds[50:]
+    bad = cmds[:50] + [("u", 1.0, float("nan")), ("u", float("inf"), 0.0), ("u", 1.0, 1e300)] + cmds[50:]
     text = "\n".join(" ".join(repr(v) if isinstance(v, float) else v for v in c) for c in bad)
-    out = subprocess.run([str(exe)], input=text, capture_output=True, text=True,
-                         check=True).stdout.split("\n")
+    out = subprocess.run([str(exe)], input=text, capture_output=True, text=True, check=True).stdout.split(
+        "\n"
+    )
     assert out.count("refused 2") == 3
     rows = [line.split() for line in out if line and line[0] not in "rma"]
     got = np.array([float.fromhex(r[0]) for r in rows])
@@ -251,21 +280,27 @@ def test_refused_inputs_change_nothing_and_past_horizon_is_reported(tmp_path):
     assert any(b & 2 for b in bits) and not bits[100] & 2
 
 
-@pytest.mark.parametrize("kwargs,what", [
-    (dict(memory="exact"), "memory='exact'"),
-    (dict(integral_rule="trapezoid", integral_order=1.2), "integral_rule='trapezoid'"),
-])
+@pytest.mark.parametrize(
+    "kwargs,what",
+    [
+        (dict(memory="exact"), "memory='exact'"),
+        (dict(integral_rule="trapezoid", integral_order=1.2), "integral_rule='trapezoid'"),
+    ],
+)
 def test_unsupported_options_are_refused_by_name(kwargs, what):
     kw = dict(CASES["full"], **kwargs)
     with pytest.raises(pyfracconv.ArgumentError, match=re.escape(what)):
         export_controller_c(kw)
 
 
-@pytest.mark.parametrize("kwargs,what", [
-    (dict(precision="half"), "precision='half'"),
-    (dict(prefix="2pid"), "prefix='2pid'"),
-    (dict(test_length=0), "test_length=0"),
-])
+@pytest.mark.parametrize(
+    "kwargs,what",
+    [
+        (dict(precision="half"), "precision='half'"),
+        (dict(prefix="2pid"), "prefix='2pid'"),
+        (dict(test_length=0), "test_length=0"),
+    ],
+)
 def test_bad_arguments_are_refused_by_name(kwargs, what):
     with pytest.raises(pyfracconv.ArgumentError, match=re.escape(what)):
         export_controller_c(CASES["full"], **kwargs)
@@ -286,17 +321,49 @@ def test_accepts_a_controller_object():
 
 def test_header_carries_the_cautions():
     h = export_controller_c(CASES["full"]).header
-    for phrase in ("validate the complete control system", "rate limits in the hardware",
-                   "independent safe stop", "licensed engineering practice"):
+    for phrase in (
+        "validate the complete control system",
+        "rate limits in the hardware",
+        "independent safe stop",
+        "licensed engineering practice",
+    ):
         assert phrase in h, phrase
 
 
 def test_cli_export_controller_single_compiles_and_passes(tmp_path, capsys):
-    argv = ["export-controller", "--step", "0.01", "--kp", "2", "--ki", "1.5", "--kd", "0.3",
-            "--integral-order", "0.7", "--derivative-order", "0.4", "--out-min", "-1",
-            "--out-max", "1.2", "--rate-limit", "40", "--setpoint-weight", "0.8",
-            "--derivative-weight", "0", "--derivative-filter", "0.05",
-            "--precision", "single", "--prefix", "clipid", "-o", str(tmp_path)]
+    argv = [
+        "export-controller",
+        "--step",
+        "0.01",
+        "--kp",
+        "2",
+        "--ki",
+        "1.5",
+        "--kd",
+        "0.3",
+        "--integral-order",
+        "0.7",
+        "--derivative-order",
+        "0.4",
+        "--out-min",
+        "-1",
+        "--out-max",
+        "1.2",
+        "--rate-limit",
+        "40",
+        "--setpoint-weight",
+        "0.8",
+        "--derivative-weight",
+        "0",
+        "--derivative-filter",
+        "0.05",
+        "--precision",
+        "single",
+        "--prefix",
+        "clipid",
+        "-o",
+        str(tmp_path),
+    ]
     assert main(argv) == 0
     err = capsys.readouterr().err
     assert "stated bound" in err and "independent safe stop" in err
@@ -304,19 +371,32 @@ def test_cli_export_controller_single_compiles_and_passes(tmp_path, capsys):
     exp = export_controller_c(CASES["full"], precision="single", prefix="clipid")
     assert (tmp_path / "clipid.c").read_text() == exp.source
     (tmp_path / "main.c").write_text(TESTVEC.replace("@U", "CLIPID").replace("@", "clipid"))
-    subprocess.run([CC, *CFLAGS, "-I", str(tmp_path), str(tmp_path / "main.c"),
-                    str(tmp_path / "clipid.c"), "-o", str(tmp_path / "run")], check=True)
+    subprocess.run(
+        [
+            CC,
+            *CFLAGS,
+            "-I",
+            str(tmp_path),
+            str(tmp_path / "main.c"),
+            str(tmp_path / "clipid.c"),
+            "-o",
+            str(tmp_path / "run"),
+        ],
+        check=True,
+    )
     r = subprocess.run([str(tmp_path / "run")], capture_output=True, text=True)
     assert r.returncode == 0 and r.stdout.startswith("0 outside"), r.stdout
 
 
-@pytest.mark.parametrize("argv,what", [
-    (["--memory", "exact"], "memory='exact'"),
-    (["--integral-rule", "trapezoid", "--integral-order", "1.5"], "integral_rule='trapezoid'"),
-])
+@pytest.mark.parametrize(
+    "argv,what",
+    [
+        (["--memory", "exact"], "memory='exact'"),
+        (["--integral-rule", "trapezoid", "--integral-order", "1.5"], "integral_rule='trapezoid'"),
+    ],
+)
 def test_cli_export_controller_refusals_write_nothing(argv, what, tmp_path, capsys):
-    assert main(["export-controller", "--step", "0.01", "--ki", "1", *argv,
-                 "-o", str(tmp_path)]) == 2
+    assert main(["export-controller", "--step", "0.01", "--ki", "1", *argv, "-o", str(tmp_path)]) == 2
     assert what in capsys.readouterr().err
     assert list(tmp_path.iterdir()) == []
 
@@ -324,6 +404,5 @@ def test_cli_export_controller_refusals_write_nothing(argv, what, tmp_path, caps
 def test_cli_export_controller_help_carries_the_cautions(capsys):
     assert main(["export-controller", "--help"]) == 0
     out = " ".join(capsys.readouterr().out.split())
-    for phrase in ("validate", "rate limits", "independent safe stop",
-                   "licensed engineering practice"):
+    for phrase in ("validate", "rate limits", "independent safe stop", "licensed engineering practice"):
         assert phrase in out, phrase

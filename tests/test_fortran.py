@@ -26,15 +26,17 @@ import pyfracconv
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 FC = shutil.which("gfortran")
-pytestmark = pytest.mark.skipif(FC is None, reason="gfortran is not installed "
-                                "(apt-get install -y gfortran)")
+pytestmark = pytest.mark.skipif(FC is None, reason="gfortran is not installed (apt-get install -y gfortran)")
 
 
 @pytest.fixture(scope="module")
 def example(tmp_path_factory):
     build = tmp_path_factory.mktemp("f90build")
-    r = subprocess.run(["make", "-C", ROOT, f"BUILD={build}", f"FC={FC}", "lib",
-                        "fortran-example"], capture_output=True, text=True)
+    r = subprocess.run(
+        ["make", "-C", ROOT, f"BUILD={build}", f"FC={FC}", "lib", "fortran-example"],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stdout + r.stderr
     return subprocess.run([str(build / "example_f90")], capture_output=True, text=True)
 
@@ -58,6 +60,7 @@ def test_fortran_weights_equal_python_weights(example):
 
 def test_fortran_message_is_the_c_message(example):
     from pyfracconv._fracconv import ffi, lib
+
     msg = ffi.string(lib.fc_strerror(lib.FC_ERR_ORDER)).decode()
     assert f"status {lib.FC_ERR_ORDER}: {msg}" in example.stdout
 
@@ -67,11 +70,9 @@ CONST = r"FC_(?:OK|ERR_\w+|RULE_\w+|ENGINE_\w+|MODE_\w+|METHOD_\w+|AW_\w+|CTRL_\
 
 def test_module_constants_equal_the_c_header():
     with open(os.path.join(ROOT, "csrc", "fracconv.h")) as f:
-        header = dict(re.findall(r"#define (" + CONST + r") (\d+)",
-                                 f.read()))
+        header = dict(re.findall(r"#define (" + CONST + r") (\d+)", f.read()))
     with open(os.path.join(ROOT, "fortran", "fracconv.f90")) as f:
-        module = dict(re.findall(r"(" + CONST + r") = (\d+)",
-                                 f.read()))
+        module = dict(re.findall(r"(" + CONST + r") = (\d+)", f.read()))
     assert module, "no constants found in the module"
     for name, value in module.items():
         assert header.get(name) == value, name
@@ -82,17 +83,31 @@ def test_module_constants_equal_the_c_header():
 def test_docs_fortran_example_builds_and_runs(tmp_path):
     # the README's quick.f90 (section "Compiled callers"), from the checkout
     import readme_c
+
     blocks = [readme_c.doc_program("fortran")]
     build = tmp_path / "build"
-    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
-                   capture_output=True, text=True)
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True, capture_output=True, text=True)
     src = tmp_path / "quick.f90"
     src.write_text(blocks[0])
     exe = tmp_path / "quick"
-    r = subprocess.run([FC, "-std=f2008", "-Wall", "-Werror", "-J", str(tmp_path),
-                        os.path.join(ROOT, "fortran", "fracconv.f90"), str(src),
-                        str(build / "libfracconv.a"), "-lm", "-o", str(exe)],
-                       capture_output=True, text=True)
+    r = subprocess.run(
+        [
+            FC,
+            "-std=f2008",
+            "-Wall",
+            "-Werror",
+            "-J",
+            str(tmp_path),
+            os.path.join(ROOT, "fortran", "fracconv.f90"),
+            str(src),
+            str(build / "libfracconv.a"),
+            "-lm",
+            "-o",
+            str(exe),
+        ],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stderr
     out = subprocess.run([str(exe)], capture_output=True, text=True)
     assert out.returncode == 0, out.stdout + out.stderr
@@ -110,49 +125,64 @@ def test_blob_saved_from_fortran_loads_in_python(tmp_path):
     # stream-access file; the library's own loader must accept them and the
     # stream must continue exactly like one fed the same samples in Python
     import numpy as np
+
     build = tmp_path / "build"
-    r = subprocess.run(["make", "-C", ROOT, f"BUILD={build}", f"FC={FC}", "lib",
-                        "fortran-example"], capture_output=True, text=True)
+    r = subprocess.run(
+        ["make", "-C", ROOT, f"BUILD={build}", f"FC={FC}", "lib", "fortran-example"],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stderr
     blob_path = tmp_path / "cs.bin"
-    out = subprocess.run([str(build / "example_f90"), str(blob_path)], capture_output=True,
-                         text=True)
+    out = subprocess.run([str(build / "example_f90"), str(blob_path)], capture_output=True, text=True)
     assert out.returncode == 0, out.stdout
     # the C-level bytes (Stream.save adds a Python envelope; this is the
     # C format the Fortran and C++ interfaces exchange)
     from pyfracconv._fracconv import ffi, lib
+
     data = blob_path.read_bytes()
     pp = ffi.new("fc_stream **")
     assert lib.fc_stream_load(data, len(data), pp) == lib.FC_OK
     loaded = ffi.gc(pp[0], lib.fc_stream_free)
     count = ffi.new("uint64_t *")
     assert lib.fc_stream_count(loaded, count) == lib.FC_OK and count[0] == 150
-    assert lib.fc_stream_create(lib.FC_RULE_RECTANGLE, 0.6, 0.01, 2, lib.FC_MODE_COMPRESSED,
-                                1e-10, 1e6, pp) == lib.FC_OK
+    assert (
+        lib.fc_stream_create(lib.FC_RULE_RECTANGLE, 0.6, 0.01, 2, lib.FC_MODE_COMPRESSED, 1e-10, 1e6, pp)
+        == lib.FC_OK
+    )
     fresh = ffi.gc(pp[0], lib.fc_stream_free)
     x = np.sin(0.05 * np.arange(400)) + 0.3
     xb = np.ascontiguousarray(np.stack([x, -2 * x], axis=1))  # channel fastest
     y0 = np.empty_like(xb)
-    assert lib.fc_stream_push_block(fresh, ffi.from_buffer("double[]", xb), 400,
-                                    ffi.from_buffer("double[]", y0)) == lib.FC_OK
+    assert (
+        lib.fc_stream_push_block(fresh, ffi.from_buffer("double[]", xb), 400, ffi.from_buffer("double[]", y0))
+        == lib.FC_OK
+    )
     rest = np.ascontiguousarray(xb[150:])
     y1 = np.empty_like(rest)
-    assert lib.fc_stream_push_block(loaded, ffi.from_buffer("double[]", rest), 250,
-                                    ffi.from_buffer("double[]", y1)) == lib.FC_OK
+    assert (
+        lib.fc_stream_push_block(
+            loaded, ffi.from_buffer("double[]", rest), 250, ffi.from_buffer("double[]", y1)
+        )
+        == lib.FC_OK
+    )
     np.testing.assert_array_equal(y1, y0[150:])
 
 
 # ------------------------------------------------ solver and controller
 
+
 @pytest.fixture(scope="module")
 def solver_controller(tmp_path_factory):
     """examples/solver_controller.f90 (make fortran-example), built and run."""
     build = tmp_path_factory.mktemp("f90sc")
-    r = subprocess.run(["make", "-C", ROOT, f"BUILD={build}", f"FC={FC}", "lib",
-                        "fortran-example"], capture_output=True, text=True)
+    r = subprocess.run(
+        ["make", "-C", ROOT, f"BUILD={build}", f"FC={FC}", "lib", "fortran-example"],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stdout + r.stderr
-    return subprocess.run([str(build / "solver_controller_f90")], capture_output=True,
-                          text=True)
+    return subprocess.run([str(build / "solver_controller_f90")], capture_output=True, text=True)
 
 
 def test_f90_solver_controller_program_passes(solver_controller):
@@ -163,6 +193,7 @@ def test_f90_solver_controller_program_passes(solver_controller):
     assert "all solver and controller checks passed" in out.stdout
     assert "FAIL" not in out.stdout
     from pyfracconv._fracconv import ffi, lib
+
     msg = ffi.string(lib.fc_solver_strerror(lib.FC_ERR_CALLBACK)).decode()
     assert f"stopped: status {lib.FC_ERR_CALLBACK}: {msg}" in out.stdout
 
@@ -174,12 +205,12 @@ def test_f90_solver_matches_mittag_leffler(solver_controller):
     # the methods' errors at h = 1/256 measured once (a = 1: 9.4e-7; a =
     # 0.6: 5.0e-6 predictor-corrector, 9.7e-6 trapezoid), margin 2 to 3.
     from solver_reference import mittag_leffler
-    rows = re.findall(r"relax (\S+) a=\s*(\S+) t=\s*(\S+) y=\s*(\S+)",
-                      solver_controller.stdout)
+
+    rows = re.findall(r"relax (\S+) a=\s*(\S+) t=\s*(\S+) y=\s*(\S+)", solver_controller.stdout)
     assert len(rows) == 16
     for tag, a, t, y in rows:
         a, t, y = float(a), float(t), float(y)
-        ref = mittag_leffler(a, 1, -t ** a)
+        ref = mittag_leffler(a, 1, -(t**a))
         if a == 1.0:
             assert abs(ref - math.exp(-t)) < 1e-15
             assert abs(y - ref) < 2e-6, (tag, t)
@@ -193,12 +224,24 @@ def test_f90_controller_equals_python_controller(solver_controller):
     # behind both interfaces, equal to the last bit
     rows = re.findall(r"ctl (\d+)\s+(\S+)\s+(\S+)\s+(\S+)", solver_controller.stdout)
     assert len(rows) == 600
-    c = pyfracconv.Controller(2.0, 1.5, 0.3, integral_order=0.7, derivative_order=0.4,
-                              step=0.01, output_limits=(-1.0, 1.2), rate_limit=40.0,
-                              setpoint_weight=0.8, derivative_weight=0.0,
-                              derivative_filter=0.05, integral_rule="trapezoid",
-                              derivative_rule="grunwald", memory="compressed",
-                              tol=1e-10, horizon=1e9)
+    c = pyfracconv.Controller(
+        2.0,
+        1.5,
+        0.3,
+        integral_order=0.7,
+        derivative_order=0.4,
+        step=0.01,
+        output_limits=(-1.0, 1.2),
+        rate_limit=40.0,
+        setpoint_weight=0.8,
+        derivative_weight=0.0,
+        derivative_filter=0.05,
+        integral_rule="trapezoid",
+        derivative_rule="grunwald",
+        memory="compressed",
+        tol=1e-10,
+        horizon=1e9,
+    )
     limited = 0
     for n, r, y, u in rows:
         n = int(n)
@@ -223,8 +266,9 @@ def test_f90_params_type_matches_the_c_struct():
         if m:
             c_fields += [(m.group(1), n.strip()) for n in m.group(2).split(",")]
     with open(os.path.join(ROOT, "fortran", "fracconv.f90")) as f:
-        body = re.search(r"type, bind\(C\), public :: fc_controller_params\n(.*?)end type",
-                         f.read(), re.S).group(1)
+        body = re.search(
+            r"type, bind\(C\), public :: fc_controller_params\n(.*?)end type", f.read(), re.S
+        ).group(1)
     f_fields = []
     for line in re.sub(r"&\s*\n\s*", " ", body).splitlines():
         m = re.match(r"\s*(real\(c_double\)|integer\(c_int\)) :: (.+)", line)
@@ -275,21 +319,36 @@ def test_stream_checkpoint_files(tmp_path):
     # stream continues bit for bit; FC_ERR_IO for a missing directory,
     # FC_ERR_SIZE past max_size; the file loads in Python too
     build = tmp_path / "build"
-    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
-                   capture_output=True, text=True)
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True, capture_output=True, text=True)
     src = tmp_path / "ckpt.f90"
     src.write_text(CHECKPOINT_F90)
     exe = tmp_path / "ckpt"
-    r = subprocess.run([FC, "-std=f2008", "-Wall", "-Wextra", "-Werror", "-J", str(tmp_path),
-                        os.path.join(ROOT, "fortran", "fracconv.f90"), str(src),
-                        str(build / "libfracconv.a"), "-lm", "-o", str(exe)],
-                       capture_output=True, text=True)
+    r = subprocess.run(
+        [
+            FC,
+            "-std=f2008",
+            "-Wall",
+            "-Wextra",
+            "-Werror",
+            "-J",
+            str(tmp_path),
+            os.path.join(ROOT, "fortran", "fracconv.f90"),
+            str(src),
+            str(build / "libfracconv.a"),
+            "-lm",
+            "-o",
+            str(exe),
+        ],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stderr
     out = subprocess.run([str(exe), str(tmp_path)], capture_output=True, text=True)
     assert out.returncode == 0, out.stdout + out.stderr
     assert out.stdout.split("\n")[:2] == [
         f"save refused: status {int(pyfracconv._fracconv.lib.FC_ERR_IO)}",
-        f"load refused: status {int(pyfracconv._fracconv.lib.FC_ERR_SIZE)}"]
+        f"load refused: status {int(pyfracconv._fracconv.lib.FC_ERR_SIZE)}",
+    ]
     s = pyfracconv.Stream.load_file(str(tmp_path / "s.ckpt"))
     assert s.count == 20 and s.channels == 1
 
@@ -340,20 +399,33 @@ def test_controller_solver_checkpoint_files(tmp_path):
     # module: a resumed controller continues bit for bit; FC_ERR_IO for a
     # missing directory and a missing file; the file loads in Python too
     build = tmp_path / "build"
-    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True,
-                   capture_output=True, text=True)
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True, capture_output=True, text=True)
     src = tmp_path / "ckpt_ctrl.f90"
     src.write_text(CHECKPOINT_CTRL_F90)
     exe = tmp_path / "ckpt_ctrl"
-    r = subprocess.run([FC, "-std=f2008", "-Wall", "-Wextra", "-Werror", "-J", str(tmp_path),
-                        os.path.join(ROOT, "fortran", "fracconv.f90"), str(src),
-                        str(build / "libfracconv.a"), "-lm", "-o", str(exe)],
-                       capture_output=True, text=True)
+    r = subprocess.run(
+        [
+            FC,
+            "-std=f2008",
+            "-Wall",
+            "-Wextra",
+            "-Werror",
+            "-J",
+            str(tmp_path),
+            os.path.join(ROOT, "fortran", "fracconv.f90"),
+            str(src),
+            str(build / "libfracconv.a"),
+            "-lm",
+            "-o",
+            str(exe),
+        ],
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode == 0, r.stderr
     out = subprocess.run([str(exe), str(tmp_path)], capture_output=True, text=True)
     assert out.returncode == 0, out.stdout + out.stderr
     io = int(pyfracconv._fracconv.lib.FC_ERR_IO)
-    assert out.stdout.split("\n")[:2] == [f"save refused: status {io}",
-                                          f"load refused: status {io}"]
+    assert out.stdout.split("\n")[:2] == [f"save refused: status {io}", f"load refused: status {io}"]
     c = pyfracconv.Controller.load_file(str(tmp_path / "c.ckpt"))
     assert c.count == 40

@@ -39,8 +39,9 @@ def test_trapezoid_order_one_is_tustin():
     assert np.all(np.abs(r.response - want) <= r.bound + 1e-13 * np.abs(want))
 
 
-@pytest.mark.parametrize("rule,order", [("rectangle", 0.5), ("trapezoid", 0.7),
-                                        ("l1", 0.4), ("grunwald", 0.3)])
+@pytest.mark.parametrize(
+    "rule,order", [("rectangle", 0.5), ("trapezoid", 0.7), ("l1", 0.4), ("grunwald", 0.3)]
+)
 def test_low_frequency_approaches_ideal(rule, order):
     # well inside the band (w h = 5e-4) every rule is within 1% of (i w)^+-a
     r = F.operator_response(rule, order, H, [0.05])
@@ -48,8 +49,9 @@ def test_low_frequency_approaches_ideal(rule, order):
     assert r.magnitude.shape == r.phase.shape == (1,)
 
 
-@pytest.mark.parametrize("rule,order", [("rectangle", 0.5), ("trapezoid", 0.7),
-                                        ("grunwald", 0.6), ("l1", 0.5)])
+@pytest.mark.parametrize(
+    "rule,order", [("rectangle", 0.5), ("trapezoid", 0.7), ("grunwald", 0.6), ("l1", 0.5)]
+)
 def test_compressed_within_tolerance_of_exact(rule, order):
     tol = 1e-8
     e = F.operator_response(rule, order, H, W)
@@ -64,8 +66,16 @@ def test_compressed_within_tolerance_of_exact(rule, order):
 
 
 def test_controller_response_is_the_sum_of_its_actions():
-    ctl = pf.Controller(2.0, 0.5, 0.1, integral_order=0.6, derivative_order=0.4,
-                        step=H, derivative_filter=0.05, memory="exact")
+    ctl = pf.Controller(
+        2.0,
+        0.5,
+        0.1,
+        integral_order=0.6,
+        derivative_order=0.4,
+        step=H,
+        derivative_filter=0.05,
+        memory="exact",
+    )
     r = F.controller_response(ctl, W)
     i = F.operator_response("trapezoid", 0.6, H, W)
     d = F.operator_response("grunwald", 0.4, H, W)
@@ -82,8 +92,16 @@ def test_controller_response_matches_a_simulated_sinusoid():
     # transient of the starting samples decays; measured relative mismatch
     # 1.6e-6 at 20000 samples, asserted below 1e-4)
     w = 5.0
-    ctl = pf.Controller(1.0, 0.8, 0.0, integral_order=0.5, derivative_order=0.5,
-                        step=H, memory="exact", integral_rule="rectangle")
+    ctl = pf.Controller(
+        1.0,
+        0.8,
+        0.0,
+        integral_order=0.5,
+        derivative_order=0.5,
+        step=H,
+        memory="exact",
+        integral_rule="rectangle",
+    )
     n = 20000
     t = np.arange(n) * H
     u = ctl.update_block(np.cos(w * t), np.zeros(n))

@@ -33,10 +33,9 @@ from pyfracconv import ArgumentError, grid
 from pyfracconv._fracconv import ffi, lib
 from pyfracconv.grid import grid_weights
 
-EPS = 2.0 ** -52
-DIRECT = 2e-14          # the direct engine's weights: relative error <= 1e-14
-CODES = {"rectangle": lib.FC_RULE_RECTANGLE, "trapezoid": lib.FC_RULE_TRAPEZOID,
-         "l1": lib.FC_RULE_L1}
+EPS = 2.0**-52
+DIRECT = 2e-14  # the direct engine's weights: relative error <= 1e-14
+CODES = {"rectangle": lib.FC_RULE_RECTANGLE, "trapezoid": lib.FC_RULE_TRAPEZOID, "l1": lib.FC_RULE_L1}
 
 
 def run_c(rule, a, t, x, tol):
@@ -45,9 +44,17 @@ def run_c(rule, a, t, x, tol):
     t = np.ascontiguousarray(t, dtype=float)
     y = np.full_like(x, -7.0)
     K = ffi.new("size_t *")
-    st = lib.fc_grid_apply(CODES[rule], a, ffi.from_buffer("double[]", t),
-                           ffi.from_buffer("double[]", x), x.shape[0], t.size, tol,
-                           ffi.from_buffer("double[]", y), K)
+    st = lib.fc_grid_apply(
+        CODES[rule],
+        a,
+        ffi.from_buffer("double[]", t),
+        ffi.from_buffer("double[]", x),
+        x.shape[0],
+        t.size,
+        tol,
+        ffi.from_buffer("double[]", y),
+        K,
+    )
     return y, K[0], st
 
 
@@ -85,6 +92,7 @@ def check_against_direct(rule, a, t, x, tols):
 
 
 # ------------------------------------------------------------ grids, inputs
+
 
 def jittered(rng, n, T=1.0, amp=0.45):
     t = (T / n) * (np.arange(n) + rng.uniform(-amp, amp, n))
@@ -137,8 +145,7 @@ def inputs(t, rule):
     return np.vstack([spike, positive, alternating, huge])
 
 
-ORDERS = {"rectangle": [0.01, 0.5, 0.999, 1.0], "trapezoid": [0.3, 0.9, 1.0],
-          "l1": [0.01, 0.5, 0.999]}
+ORDERS = {"rectangle": [0.01, 0.5, 0.999, 1.0], "trapezoid": [0.3, 0.9, 1.0], "l1": [0.01, 0.5, 0.999]}
 
 
 @pytest.mark.parametrize("grid_name", list(GRIDS))
@@ -176,17 +183,18 @@ def test_long_record_against_grid_weights(rule, a):
     y, K, st = run_c(rule, a, t, x, tol)
     assert st == lib.FC_OK
     for m in [1, 2, 999, 1005, 1011, 5000, 5001, 5002, 77777, n - 2, n - 1]:
-        w = grid_weights(rule, a, t[:m + 1])
+        w = grid_weights(rule, a, t[: m + 1])
         if rule == "l1":
-            terms = w * np.diff(x[:m + 1])
+            terms = w * np.diff(x[: m + 1])
         else:
-            terms = w * x[:m + 1]
+            terms = w * x[: m + 1]
         want = math.fsum(terms)
         S = math.fsum(np.abs(terms))
         assert abs(y[0, m] - want) <= (tol + (K + 64) * EPS + DIRECT) * S, (m, K)
 
 
 # ------------------------------------------------------------ closed forms
+
 
 def I_power(t, a, b):
     # Podlubny 1999, chapter 2; Oldham and Spanier 1974
@@ -199,26 +207,28 @@ def D_power(t, a, b):
 
 
 def slopes(ns, errs):
-    return [math.log(errs[i] / errs[i + 1]) / math.log(ns[i + 1] / ns[i])
-            for i in range(len(ns) - 1)]
+    return [math.log(errs[i] / errs[i + 1]) / math.log(ns[i + 1] / ns[i]) for i in range(len(ns) - 1)]
 
 
 BIG = [5_000, 20_000, 80_000]
 
 
-@pytest.mark.parametrize("rule,b,lo,hi", [
-    # product rectangle rule: order 1; product trapezoidal rule: order 2
-    # for smooth f (Diethelm, Ford and Freed 2004), here on jittered grids
-    ("rectangle", 2.0, 0.9, 1.1),
-    ("trapezoid", 2.0, 1.85, 2.15),
-])
+@pytest.mark.parametrize(
+    "rule,b,lo,hi",
+    [
+        # product rectangle rule: order 1; product trapezoidal rule: order 2
+        # for smooth f (Diethelm, Ford and Freed 2004), here on jittered grids
+        ("rectangle", 2.0, 0.9, 1.1),
+        ("trapezoid", 2.0, 1.85, 2.15),
+    ],
+)
 def test_integral_orders_at_large_sizes(rule, b, lo, hi):
     rng = np.random.default_rng(55)
     a = 0.5
     errs = []
     for n in BIG:
         t = jittered(rng, n)
-        y = pf.integral(t ** b, a, t=t, rule=rule, engine="fast", tol=1e-14)
+        y = pf.integral(t**b, a, t=t, rule=rule, engine="fast", tol=1e-14)
         errs.append(np.max(np.abs(y - I_power(t, a, b))))
     p = slopes(BIG, errs)
     assert lo <= np.mean(p) <= hi and min(p) >= lo - 0.1, (errs, p)
@@ -232,7 +242,7 @@ def test_l1_order_two_minus_a_at_large_sizes(a):
     errs = []
     for n in BIG:
         t = jittered(rng, n)
-        y = pf.derivative(t ** 2, a, t=t, rule="l1", engine="fast", tol=1e-14)
+        y = pf.derivative(t**2, a, t=t, rule="l1", engine="fast", tol=1e-14)
         errs.append(np.max(np.abs(y - D_power(t, a, 2.0))))
     p = slopes(BIG, errs)
     assert abs(np.mean(p) - (2 - a)) <= 0.1, (errs, p)
@@ -252,10 +262,10 @@ def test_l1_truncation_error_on_graded_meshes_at_large_sizes(a):
     weighted, faster = [], []
     for n in ns:
         t = graded(n, r)
-        y = pf.derivative(t ** a, a, t=t, rule="l1", engine="fast", tol=1e-14)
+        y = pf.derivative(t**a, a, t=t, rule="l1", engine="fast", tol=1e-14)
         tau = np.abs(y - D_power(t, a, a))[1:]
         idx = np.arange(1, n + 1)
-        weighted.append(np.max(tau * idx ** p))
+        weighted.append(np.max(tau * idx**p))
         faster.append(np.max(tau * idx ** (p + 0.3)))
     assert max(weighted) <= 1.25 * weighted[0], weighted
     assert faster[-1] >= 1.5 * faster[0], faster
@@ -267,23 +277,25 @@ def test_closed_form_no_worse_than_direct_plus_promise():
     t = GRIDS["graded"]
     a, b = 0.5, 0.5
     for rule in ("rectangle", "trapezoid"):
-        x = t ** b
+        x = t**b
         yd = grid.apply_on_grid(rule, a, x[None], t)[0]
         y, K, st = run_c(rule, a, t, x, 1e-12)
         exact = I_power(t, a, b)
         S = abs_terms(rule, a, t, x)[0]
-        assert np.all(np.abs(y[0] - exact) <= np.abs(yd - exact)
-                      + (1e-12 + (K + 64) * EPS + DIRECT) * S + 1e-300)
+        assert np.all(
+            np.abs(y[0] - exact) <= np.abs(yd - exact) + (1e-12 + (K + 64) * EPS + DIRECT) * S + 1e-300
+        )
 
 
 # ------------------------------------------------------------ uniform grid
+
 
 @pytest.mark.parametrize("rule,a", [("rectangle", 0.3), ("trapezoid", 0.8), ("l1", 0.4)])
 def test_uniform_times_match_step_within_tolerance(rule, a):
     # h = 2**-7: every k*h exact, the grid exactly uniform; the uniform
     # engines are accurate to rounding (tests/test_batch.py)
     rng = np.random.default_rng(57)
-    h = 2.0 ** -7
+    h = 2.0**-7
     n = 4000
     t = h * np.arange(n)
     x = rng.standard_normal(n)
@@ -297,6 +309,7 @@ def test_uniform_times_match_step_within_tolerance(rule, a):
 
 
 # ------------------------------------------------------------ engine choice, shapes
+
 
 def test_auto_takes_the_fast_engine_from_the_crossover():
     rng = np.random.default_rng(58)
@@ -312,8 +325,7 @@ def test_auto_takes_the_fast_engine_from_the_crossover():
     # orders the fast engine does not serve: auto stays direct
     t = jittered(rng, 300)
     x = rng.standard_normal(300)
-    np.testing.assert_array_equal(pf.integral(x, 1.5, t=t),
-                                  pf.integral(x, 1.5, t=t, engine="direct"))
+    np.testing.assert_array_equal(pf.integral(x, 1.5, t=t), pf.integral(x, 1.5, t=t, engine="direct"))
 
 
 def test_many_signals_and_axis():
@@ -322,10 +334,8 @@ def test_many_signals_and_axis():
     x = rng.standard_normal((3, 500))
     both = pf.integral(x, 0.5, t=t, engine="fast", rule="trapezoid")
     for i in range(3):
-        np.testing.assert_array_equal(
-            both[i], pf.integral(x[i], 0.5, t=t, engine="fast", rule="trapezoid"))
-    np.testing.assert_array_equal(
-        pf.integral(x.T, 0.5, t=t, engine="fast", rule="trapezoid", axis=0), both.T)
+        np.testing.assert_array_equal(both[i], pf.integral(x[i], 0.5, t=t, engine="fast", rule="trapezoid"))
+    np.testing.assert_array_equal(pf.integral(x.T, 0.5, t=t, engine="fast", rule="trapezoid", axis=0), both.T)
 
 
 def test_short_records():
@@ -334,10 +344,11 @@ def test_short_records():
         assert st == lib.FC_OK and K == 0 and np.all(y == 0.0)
     y, K, st = run_c("rectangle", 0.5, np.array([1.0, 1.25]), np.array([2.0, 5.0]), 1e-10)
     assert st == lib.FC_OK
-    assert math.isclose(y[0, 1], 2.0 * 0.25 ** 0.5 / math.gamma(1.5), rel_tol=1e-15)
+    assert math.isclose(y[0, 1], 2.0 * 0.25**0.5 / math.gamma(1.5), rel_tol=1e-15)
 
 
 # ------------------------------------------------------------ bad input
+
 
 def _raises(exc, match, func, *args, **kw):
     with pytest.raises(exc, match=match):
@@ -350,11 +361,20 @@ def test_c_statuses_and_nothing_written():
 
     def st_of(rule_code, a, tt, xx, tol):
         y = np.full(xx.size, -7.0)
-        st = lib.fc_grid_apply(rule_code, a, ffi.from_buffer("double[]", tt),
-                               ffi.from_buffer("double[]", xx), 1, tt.size, tol,
-                               ffi.from_buffer("double[]", y), ffi.NULL)
+        st = lib.fc_grid_apply(
+            rule_code,
+            a,
+            ffi.from_buffer("double[]", tt),
+            ffi.from_buffer("double[]", xx),
+            1,
+            tt.size,
+            tol,
+            ffi.from_buffer("double[]", y),
+            ffi.NULL,
+        )
         assert np.all(y == -7.0), st
         return st
+
     R, L1 = lib.FC_RULE_RECTANGLE, lib.FC_RULE_L1
     assert st_of(lib.FC_RULE_GRUNWALD, 0.5, t, x, 1e-10) == lib.FC_ERR_RULE
     assert st_of(R, 1.5, t, x, 1e-10) == lib.FC_ERR_ORDER
@@ -376,29 +396,63 @@ def test_c_statuses_and_nothing_written():
     # overlap of y with x
     y = np.ones(4)
     buf = ffi.from_buffer("double[]", y)
-    assert lib.fc_grid_apply(R, 0.5, ffi.from_buffer("double[]", t), buf, 1, 4, 1e-10,
-                             buf, ffi.NULL) == lib.FC_ERR_ARG
+    assert (
+        lib.fc_grid_apply(R, 0.5, ffi.from_buffer("double[]", t), buf, 1, 4, 1e-10, buf, ffi.NULL)
+        == lib.FC_ERR_ARG
+    )
     assert np.all(y == 1.0)
-    assert lib.fc_grid_apply(R, 0.5, ffi.NULL, buf, 1, 4, 1e-10, buf,
-                             ffi.NULL) == lib.FC_ERR_NULL
+    assert lib.fc_grid_apply(R, 0.5, ffi.NULL, buf, 1, 4, 1e-10, buf, ffi.NULL) == lib.FC_ERR_NULL
 
 
 def test_python_messages():
     t = np.array([0.0, 0.5, 1.0, 2.0])
     x = np.ones(4)
-    _raises(ArgumentError, r"order=1\.5 with engine='fast': .*0 < order <= 1",
-            pf.integral, x, 1.5, t=t, engine="fast")
-    _raises(ArgumentError, r"order=1(\.0)?: rule='l1' needs",
-            pf.derivative, x, 1.0, t=t, rule="l1", engine="fast")
-    _raises(ArgumentError, r"tol=1e-16: must be in \[1e-15, 0\.01\]",
-            pf.integral, x, 0.5, t=t, engine="fast", tol=1e-16)
-    _raises(ArgumentError, r"tol=1e-10 with engine='direct'",
-            pf.integral, x, 0.5, t=t, engine="direct", tol=1e-10)
-    _raises(ArgumentError, r"tol=1e-10: a tolerance is taken only with t=",
-            pf.integral, x, 0.5, 1.0, tol=1e-10)
-    _raises(ArgumentError, r"engine='fast': the engine of sample times",
-            pf.integral, x, 0.5, 1.0, engine="fast")
-    _raises(ArgumentError, r"t: the span .* more than 2\*\*100 times the smallest step",
-            pf.integral, x, 0.5, t=np.array([0.0, 1e-20, 1e20, 2e20]), engine="fast")
-    _raises(pf.RangeError, "beyond the double range", pf.integral,
-            np.full(4, 1e308), 0.5, t=t * 1e6, engine="fast")
+    _raises(
+        ArgumentError,
+        r"order=1\.5 with engine='fast': .*0 < order <= 1",
+        pf.integral,
+        x,
+        1.5,
+        t=t,
+        engine="fast",
+    )
+    _raises(
+        ArgumentError, r"order=1(\.0)?: rule='l1' needs", pf.derivative, x, 1.0, t=t, rule="l1", engine="fast"
+    )
+    _raises(
+        ArgumentError,
+        r"tol=1e-16: must be in \[1e-15, 0\.01\]",
+        pf.integral,
+        x,
+        0.5,
+        t=t,
+        engine="fast",
+        tol=1e-16,
+    )
+    _raises(
+        ArgumentError, r"tol=1e-10 with engine='direct'", pf.integral, x, 0.5, t=t, engine="direct", tol=1e-10
+    )
+    _raises(
+        ArgumentError, r"tol=1e-10: a tolerance is taken only with t=", pf.integral, x, 0.5, 1.0, tol=1e-10
+    )
+    _raises(
+        ArgumentError, r"engine='fast': the engine of sample times", pf.integral, x, 0.5, 1.0, engine="fast"
+    )
+    _raises(
+        ArgumentError,
+        r"t: the span .* more than 2\*\*100 times the smallest step",
+        pf.integral,
+        x,
+        0.5,
+        t=np.array([0.0, 1e-20, 1e20, 2e20]),
+        engine="fast",
+    )
+    _raises(
+        pf.RangeError,
+        "beyond the double range",
+        pf.integral,
+        np.full(4, 1e308),
+        0.5,
+        t=t * 1e6,
+        engine="fast",
+    )

@@ -56,9 +56,19 @@ def work(tmp_path):
 
 def _user_env(home):
     # a fresh shell: nothing of make's or of the test's own set-up
-    env = {k: v for k, v in os.environ.items()
-           if k not in ("MAKEFLAGS", "PKG_CONFIG_PATH", "LD_LIBRARY_PATH", "CPATH",
-                        "LIBRARY_PATH", "CMAKE_PREFIX_PATH")}
+    env = {
+        k: v
+        for k, v in os.environ.items()
+        if k
+        not in (
+            "MAKEFLAGS",
+            "PKG_CONFIG_PATH",
+            "LD_LIBRARY_PATH",
+            "CPATH",
+            "LIBRARY_PATH",
+            "CMAKE_PREFIX_PATH",
+        )
+    }
     env["HOME"] = str(home)
     return env
 
@@ -73,10 +83,15 @@ def test_install_layout(prefix):
     home, _ = prefix
     p = home / ".local"
     lib = p / "lib"
-    for f in ("include/fracconv.h", "include/fracconv.hpp", "include/fracconv.f90",
-              "lib/libfracconv.a", "lib/pkgconfig/fracconv.pc",
-              "lib/cmake/fracconv/fracconvConfig.cmake",
-              "lib/cmake/fracconv/fracconvConfigVersion.cmake"):
+    for f in (
+        "include/fracconv.h",
+        "include/fracconv.hpp",
+        "include/fracconv.f90",
+        "lib/libfracconv.a",
+        "lib/pkgconfig/fracconv.pc",
+        "lib/cmake/fracconv/fracconvConfig.cmake",
+        "lib/cmake/fracconv/fracconvConfigVersion.cmake",
+    ):
         assert (p / f).is_file(), f
     # libfracconv.so -> libfracconv.so.0 -> libfracconv.so.0.1.0
     assert os.readlink(lib / "libfracconv.so") == "libfracconv.so.0"
@@ -101,8 +116,10 @@ def test_readme_c_program_with_pkg_config(prefix, work):
 def test_readme_cpp_and_fortran_against_the_prefix(prefix, work):
     missing = [t for t in ("pkg-config", "c++", "cmake", "gfortran") if shutil.which(t) is None]
     if missing:
-        pytest.skip(f"not installed: {', '.join(missing)} (the README's C++/Fortran "
-                    "commands need them; .ci/run installs them)")
+        pytest.skip(
+            f"not installed: {', '.join(missing)} (the README's C++/Fortran "
+            "commands need them; .ci/run installs them)"
+        )
     home, _ = prefix
     r = readme_c.run(readme_c.sh_blocks()["others"], work, _user_env(home))
     assert r.returncode == 0, r.stdout + r.stderr
@@ -131,17 +148,22 @@ def test_cmake_refuses_another_major_version(prefix, tmp_path):
         pytest.skip("cmake is not installed")
     home, _ = prefix
     (tmp_path / "CMakeLists.txt").write_text(
-        "cmake_minimum_required(VERSION 3.14)\nproject(v C)\n"
-        "find_package(fracconv 1.0 REQUIRED)\n")
-    r = subprocess.run(["cmake", "-S", ".", "-B", "b", f"-DCMAKE_PREFIX_PATH={home}/.local"],
-                       cwd=tmp_path, capture_output=True, text=True)
+        "cmake_minimum_required(VERSION 3.14)\nproject(v C)\nfind_package(fracconv 1.0 REQUIRED)\n"
+    )
+    r = subprocess.run(
+        ["cmake", "-S", ".", "-B", "b", f"-DCMAKE_PREFIX_PATH={home}/.local"],
+        cwd=tmp_path,
+        capture_output=True,
+        text=True,
+    )
     assert r.returncode != 0
     assert pyfracconv.__version__ in r.stderr, r.stderr
 
 
 def test_readme_c_program_with_the_wheel_copy(work):
-    r = readme_c.run(readme_c.sh_blocks()["wheel"], work,
-                     _user_env(work) | {"PATH": readme_c.wheel_env()["PATH"]})
+    r = readme_c.run(
+        readme_c.sh_blocks()["wheel"], work, _user_env(work) | {"PATH": readme_c.wheel_env()["PATH"]}
+    )
     assert r.returncode == 0, r.stdout + r.stderr
     assert abs(_printed_value(r.stdout) - EXACT) < 1e-12 * EXACT
     ldd = subprocess.run(["ldd", str(work / "prog")], capture_output=True, text=True).stdout
@@ -149,18 +171,22 @@ def test_readme_c_program_with_the_wheel_copy(work):
 
 
 def test_flags_command_static(work):
-    flags = subprocess.run([os.path.join(os.path.dirname(readme_c.sys.executable), "pyfracconv"),
-                            "flags", "--static"], capture_output=True, text=True, check=True)
+    flags = subprocess.run(
+        [os.path.join(os.path.dirname(readme_c.sys.executable), "pyfracconv"), "flags", "--static"],
+        capture_output=True,
+        text=True,
+        check=True,
+    )
     words = flags.stdout.split()
     assert words[0] == "-I" + pyfracconv.get_include()
     assert words[1] == os.path.join(pyfracconv.get_lib_dir(), "libfracconv.a")
     assert not any("rpath" in w for w in words)
     cc = shutil.which("cc") or shutil.which("gcc")
-    r = subprocess.run([cc, "-std=c11", "prog.c", *words, "-o", "prog_static"], cwd=work,
-                       capture_output=True, text=True)
+    r = subprocess.run(
+        [cc, "-std=c11", "prog.c", *words, "-o", "prog_static"], cwd=work, capture_output=True, text=True
+    )
     assert r.returncode == 0, r.stderr
-    out = subprocess.run([str(work / "prog_static")], capture_output=True, text=True,
-                         env=_user_env(work))
+    out = subprocess.run([str(work / "prog_static")], capture_output=True, text=True, env=_user_env(work))
     assert out.returncode == 0 and abs(_printed_value(out.stdout) - EXACT) < 1e-12 * EXACT
     ldd = subprocess.run(["ldd", str(work / "prog_static")], capture_output=True, text=True)
     assert "libfracconv" not in ldd.stdout
@@ -168,8 +194,9 @@ def test_flags_command_static(work):
 
 def test_uninstall_removes_what_install_wrote(prefix):
     home, env = prefix
-    r = subprocess.run(["make", "-C", ROOT, "uninstall", f"PREFIX={home}/.local"], env=env,
-                       capture_output=True, text=True)
+    r = subprocess.run(
+        ["make", "-C", ROOT, "uninstall", f"PREFIX={home}/.local"], env=env, capture_output=True, text=True
+    )
     assert r.returncode == 0, r.stderr
     left = [os.path.join(d, f) for d, _, fs in os.walk(home / ".local") for f in fs]
     assert left == []
@@ -180,14 +207,15 @@ def test_uninstall_removes_what_install_wrote(prefix):
 
 def test_flags_command_parts(capsys):
     from pyfracconv.cli import main
+
     assert main(["flags", "--cflags"]) == 0
     assert capsys.readouterr().out.split() == ["-I" + pyfracconv.get_include()]
     assert main(["flags", "--libs"]) == 0
     d = pyfracconv.get_lib_dir()
-    assert capsys.readouterr().out.split() == [os.path.join(d, "libfracconv.so.0"),
-                                               "-Wl,-rpath," + d, "-lm"]
+    assert capsys.readouterr().out.split() == [os.path.join(d, "libfracconv.so.0"), "-Wl,-rpath," + d, "-lm"]
     # the shared object is the library's: its SONAME and its version
     import ctypes
+
     so = ctypes.CDLL(os.path.join(d, "libfracconv.so.0"))
     so.fc_version_string.restype = ctypes.c_char_p
     assert so.fc_version_string().decode() == pyfracconv.c_version
@@ -197,6 +225,7 @@ def test_missing_library_copy_is_explained(monkeypatch, capsys):
     # a package built without the library (not Linux) or a removed copy
     from pyfracconv import _core
     from pyfracconv.cli import main
+
     monkeypatch.setattr(_core.os.path, "isfile", lambda path: False)
     with pytest.raises(FileNotFoundError, match="libfracconv.so.0, libfracconv.a.*reinstall"):
         pyfracconv.get_lib_dir()
@@ -208,8 +237,9 @@ def test_readme_static_link_on_the_prefix(prefix, work):
     # the README's inline command for the static library, run verbatim
     home, _ = prefix
     cmd = re.search(r"The static library instead: `([^`]+)`", readme_c.c_section()).group(1)
-    r = readme_c.run(cmd + " && ./prog", work, {**_user_env(home),
-                     "PKG_CONFIG_PATH": f"{home}/.local/lib/pkgconfig"})
+    r = readme_c.run(
+        cmd + " && ./prog", work, {**_user_env(home), "PKG_CONFIG_PATH": f"{home}/.local/lib/pkgconfig"}
+    )
     assert r.returncode == 0, r.stdout + r.stderr
     assert abs(_printed_value(r.stdout) - EXACT) < 1e-12 * EXACT
     ldd = subprocess.run(["ldd", str(work / "prog")], capture_output=True, text=True).stdout
@@ -222,11 +252,11 @@ def test_readme_exported_single_controller_compiles_pedantic_and_matches(work):
     # with -std=c99 -Wall -Wextra -Werror -pedantic and checks every output
     # of the test vector (the library's controller on a closed loop)
     # against the stated single-precision bound
-    r = readme_c.run(readme_c.sh_blocks()["export"], work,
-                     _user_env(work) | {"PATH": readme_c.wheel_env()["PATH"]})
+    r = readme_c.run(
+        readme_c.sh_blocks()["export"], work, _user_env(work) | {"PATH": readme_c.wheel_env()["PATH"]}
+    )
     assert r.returncode == 0, r.stdout + r.stderr
-    m = re.search(r"(\d+) of (\d+) outputs outside the stated bound (\S+); worst (\S+) of",
-                  r.stdout)
+    m = re.search(r"(\d+) of (\d+) outputs outside the stated bound (\S+); worst (\S+) of", r.stdout)
     assert m and m.group(1) == "0" and int(m.group(2)) > 100, r.stdout
     stated, worst = float(m.group(3)), float(m.group(4))
     assert worst <= stated

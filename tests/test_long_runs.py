@@ -53,7 +53,7 @@ import pyfracconv as pf
 
 pytestmark = [pytest.mark.long_run, pytest.mark.slow]
 
-EPS = 2.0 ** -52
+EPS = 2.0**-52
 N_STREAM = 10**7
 BLOCK = 2**16
 ORDER = 0.5
@@ -71,8 +71,14 @@ def test_closed_form_in_float64_matches_mpmath():
     n = np.array([1, 2, 3, 10, 12345, 999999, 5 * 10**6 + 7, N_STREAM - 1])
     got = closed_form(n)
     with mpmath.workdps(40):
-        want = [float(mpmath.mpf(C) * (mpmath.mpf(STEP) * int(k)) ** mpmath.mpf(ORDER)
-                      / mpmath.gamma(mpmath.mpf(ORDER) + 1)) for k in n]
+        want = [
+            float(
+                mpmath.mpf(C)
+                * (mpmath.mpf(STEP) * int(k)) ** mpmath.mpf(ORDER)
+                / mpmath.gamma(mpmath.mpf(ORDER) + 1)
+            )
+            for k in n
+        ]
     np.testing.assert_allclose(got, want, rtol=8 * EPS, atol=0)
 
 
@@ -89,7 +95,7 @@ def _run_constant(stream, bound):
         ref = closed_form(np.arange(n0, n0 + b))
         err = np.abs(y - ref)
         if n0 == 0:
-            assert y[0] == 0.0           # y_0: the empty sum
+            assert y[0] == 0.0  # y_0: the empty sum
             err, ref = err[1:], ref[1:]
         rel = err / ref
         k = int(np.argmax(rel))
@@ -112,8 +118,7 @@ def test_exact_stream_ten_million_constant_samples():
 
 @pytest.mark.parametrize("tol", [1e-12, 1e-8])
 def test_compressed_stream_ten_million_constant_samples(tol):
-    s = pf.Stream.integral(ORDER, STEP, rule="rectangle", mode="compressed", tol=tol,
-                           horizon=N_STREAM)
+    s = pf.Stream.integral(ORDER, STEP, rule="rectangle", mode="compressed", tol=tol, horizon=N_STREAM)
     assert s.remaining == N_STREAM + 1
     bound = (tol + 64 * EPS) * (1 + 1e-14) + 1e-14 + 8 * EPS
     worst = _run_constant(s, bound)
@@ -138,10 +143,13 @@ def ml_series(a, z, dps):
         s = mpmath.mpf(0)
         k = 0
         while True:
-            term = z ** k * mpmath.rgamma(A_ * k + 1)
+            term = z**k * mpmath.rgamma(A_ * k + 1)
             s += term
-            if k > 10 and abs(term) < mpmath.mpf(10) ** (-(dps - 5)) * abs(s) \
-                    and abs(term) < mpmath.mpf(10) ** -30:
+            if (
+                k > 10
+                and abs(term) < mpmath.mpf(10) ** (-(dps - 5)) * abs(s)
+                and abs(term) < mpmath.mpf(10) ** -30
+            ):
                 break
             k += 1
         return float(s)
@@ -160,10 +168,10 @@ def ml_asymptotic(a, x, terms=12):
 
 @pytest.fixture(scope="module")
 def exact_solution():
-    ref = {t: ml_series(A, -t ** A, 60 if t < 100 else 120) for t in TIMES[:3]}
-    ref[1000.0] = ml_asymptotic(A, 1000.0 ** A)
+    ref = {t: ml_series(A, -(t**A), 60 if t < 100 else 120) for t in TIMES[:3]}
+    ref[1000.0] = ml_asymptotic(A, 1000.0**A)
     # the two evaluations agree where both converge (t = 100: x = 15.8)
-    assert abs(ml_asymptotic(A, 100.0 ** A) - ref[100.0]) <= 1e-10 * ref[100.0]
+    assert abs(ml_asymptotic(A, 100.0**A) - ref[100.0]) <= 1e-10 * ref[100.0]
     # positive and decreasing: E_a(-t^a) is completely monotone for
     # 0 < a <= 1 (Gorenflo, Kilbas, Mainardi and Rogosin 2014)
     vals = [ref[t] for t in TIMES]
@@ -174,8 +182,7 @@ def exact_solution():
 def _errors(memory, h, ref):
     n = round(TIMES[-1] / h)
     kw = dict(tol=1e-12, horizon=n) if memory == "compressed" else {}
-    res = pf.solve(lambda t, y: -y, 1.0, A, h, n, method="predictor-corrector",
-                   memory=memory, **kw)
+    res = pf.solve(lambda t, y: -y, 1.0, A, h, n, method="predictor-corrector", memory=memory, **kw)
     assert res.t[-1] == pytest.approx(TIMES[-1], rel=1e-12)
     return {t: abs(res.y[round(t / h)] - ref[t]) for t in TIMES}, res
 
@@ -185,7 +192,7 @@ def test_a_million_solver_steps_on_the_relaxation_problem(memory, exact_solution
     fine, res = _errors(memory, H, exact_solution)
     assert len(res.t) == N_STEPS + 1
     coarse, _ = _errors(memory, 2 * H, exact_solution)
-    expected = 2.0 ** (1 + A)            # order 1 + a (Diethelm, Ford and Freed 2004)
+    expected = 2.0 ** (1 + A)  # order 1 + a (Diethelm, Ford and Freed 2004)
     for t in TIMES:
         ratio = coarse[t] / fine[t]
         # measured: 3.05 at every t (2^1.6 = 3.03); errors 5.5e-7 at t = 1,

@@ -30,10 +30,18 @@ from reference import componentwise_error, lag_reference
 TOL = 1e-13  # the componentwise promise of fracconv.h
 DBL_MAX = float(np.finfo(float).max)
 MP_DBL_MAX = mpmath.mpf(DBL_MAX)
-RULE_CODE = {"rectangle": lib.FC_RULE_RECTANGLE, "trapezoid": lib.FC_RULE_TRAPEZOID,
-             "grunwald": lib.FC_RULE_GRUNWALD, "l1": lib.FC_RULE_L1}
-ENGINE_CODE = {"auto": lib.FC_ENGINE_AUTO, "direct": lib.FC_ENGINE_DIRECT,
-               "blocked": lib.FC_ENGINE_BLOCKED, "fft": lib.FC_ENGINE_FFT}
+RULE_CODE = {
+    "rectangle": lib.FC_RULE_RECTANGLE,
+    "trapezoid": lib.FC_RULE_TRAPEZOID,
+    "grunwald": lib.FC_RULE_GRUNWALD,
+    "l1": lib.FC_RULE_L1,
+}
+ENGINE_CODE = {
+    "auto": lib.FC_ENGINE_AUTO,
+    "direct": lib.FC_ENGINE_DIRECT,
+    "blocked": lib.FC_ENGINE_BLOCKED,
+    "fft": lib.FC_ENGINE_FFT,
+}
 
 
 def dbuf(a):
@@ -72,6 +80,7 @@ def worst_exact(y, sums, scales):
 
 
 # ------------------------------------------------- 1. direct engine, long
+
 
 def test_direct_tiny_constant_tail_2_16():
     # The review's case: a tail of 1e-17 after c_0 = 1 is below half an ulp
@@ -157,14 +166,14 @@ def test_direct_every_output_long_double(kind):
     assert componentwise_error(y, ref, scale) <= TOL
 
 
-@pytest.mark.parametrize("rule,a", [("rectangle", 1e-6), ("trapezoid", 0.5),
-                                    ("l1", 1e-6), ("grunwald", 2.5)])
+@pytest.mark.parametrize("rule,a", [("rectangle", 1e-6), ("trapezoid", 0.5), ("l1", 1e-6), ("grunwald", 2.5)])
 def test_direct_rules_long(rule, a):
     # The rules through fc_apply with the direct engine on 2^14 samples:
     # sampled outputs against the rule's formula summed in long double with
     # the library's weights (tests/reference.py; the weights themselves are
     # checked against mpmath in test_weights.py).
     from reference import rule_reference
+
     N = 2**14
     rng = np.random.default_rng(3)
     x = rng.random(N) + 1.0
@@ -210,10 +219,10 @@ def mp_rule(rule, a, h, x):
             w = [(M[m] + 1) ** A - M[m] ** A for m in range(N)]
         elif rule == "trapezoid":
             u = H**A / mpmath.gamma(A + 2)
-            w = [mpmath.mpf(1)] + [(M[m] + 1) ** (A + 1) - 2 * M[m] ** (A + 1)
-                                   + (M[m] - 1) ** (A + 1) for m in range(1, N)]
-            st = [mpmath.mpf(0)] + [(M[n] - 1) ** (A + 1) - (M[n] - 1 - A) * M[n] ** A
-                                    for n in range(1, N)]
+            w = [mpmath.mpf(1)] + [
+                (M[m] + 1) ** (A + 1) - 2 * M[m] ** (A + 1) + (M[m] - 1) ** (A + 1) for m in range(1, N)
+            ]
+            st = [mpmath.mpf(0)] + [(M[n] - 1) ** (A + 1) - (M[n] - 1 - A) * M[n] ** A for n in range(1, N)]
         elif rule == "grunwald":
             u = H ** (-A)
             w = [mpmath.mpf(1)]
@@ -227,8 +236,7 @@ def mp_rule(rule, a, h, x):
             if rule == "rectangle":
                 t = [w[n - 1 - k] * X[k] for k in range(n)]
             elif rule == "trapezoid":
-                t = ([st[n] * X[0]] + [w[n - k] * X[k] for k in range(1, n + 1)]
-                     if n > 0 else [])
+                t = [st[n] * X[0]] + [w[n - k] * X[k] for k in range(1, n + 1)] if n > 0 else []
             elif rule == "grunwald":
                 t = [w[n - k] * X[k] for k in range(n + 1)]
             else:
@@ -243,8 +251,7 @@ def call_apply(rule, a, h, x, engine="auto"):
     and the buffer afterwards."""
     x = np.ascontiguousarray(x, dtype=float)
     y = np.full(len(x), 1234.5)
-    st = lib.fc_apply(ffi.NULL, RULE_CODE[rule], a, h, dbuf(x), 1, len(x),
-                      ENGINE_CODE[engine], dbuf(y))
+    st = lib.fc_apply(ffi.NULL, RULE_CODE[rule], a, h, dbuf(x), 1, len(x), ENGINE_CODE[engine], dbuf(y))
     return st, y
 
 
@@ -302,7 +309,7 @@ STEPS = [1e-300, 1e-150, 1e-8, 1.0, 1e8, 1e150, 1e300]
 def test_every_rule_extreme_samples_and_steps(rule):
     rng = np.random.default_rng(RULE_CODE[rule])
     seen = set()
-    for a in (L1_ORDERS if rule == "l1" else ORDERS):
+    for a in L1_ORDERS if rule == "l1" else ORDERS:
         for h in STEPS:
             for name, x in big_signals(rng, 10).items():
                 seen.add(check_against_mpmath(rule, a, h, x))
@@ -311,8 +318,10 @@ def test_every_rule_extreme_samples_and_steps(rule):
 
 
 @pytest.mark.parametrize("engine", ["blocked", "fft"])
-@pytest.mark.parametrize("rule,a,h", [("rectangle", 0.5, 1e-8), ("trapezoid", 2.5, 1e-100),
-                                      ("grunwald", 0.5, 1e6), ("l1", 0.5, 1e6)])
+@pytest.mark.parametrize(
+    "rule,a,h",
+    [("rectangle", 0.5, 1e-8), ("trapezoid", 2.5, 1e-100), ("grunwald", 0.5, 1e6), ("l1", 0.5, 1e6)],
+)
 def test_fft_engines_extreme_samples(engine, rule, a, h):
     # Records long enough for the FFT paths; samples up to 1.7e308.
     rng = np.random.default_rng(11)
@@ -362,14 +371,20 @@ def test_lagged_sum_extreme_values():
         c = 10.0 ** rng.uniform(ex[1] - 20, min(ex[1], 308.2), K) * rng.choice([-1.0, 1.0], K)
         ref, scale = [], []
         for n in range(N):
-            t = [Fraction(float(c[n - k])) * Fraction(float(x[k]))
-                 for k in range(max(0, n - K + 1), n + 1)]
+            t = [Fraction(float(c[n - k])) * Fraction(float(x[k])) for k in range(max(0, n - K + 1), n + 1)]
             ref.append(sum(t))
             scale.append(sum(abs(v) for v in t))
         y = np.full(N, 1234.5)
-        st = lib.fc_lagged_sum(ffi.NULL, dbuf(x), 1, N, dbuf(c), K,
-                               lib.FC_ENGINE_DIRECT if trial % 2 else lib.FC_ENGINE_BLOCKED,
-                               dbuf(y))
+        st = lib.fc_lagged_sum(
+            ffi.NULL,
+            dbuf(x),
+            1,
+            N,
+            dbuf(c),
+            K,
+            lib.FC_ENGINE_DIRECT if trial % 2 else lib.FC_ENGINE_BLOCKED,
+            dbuf(y),
+        )
         big = max(abs(r) for r in ref)
         fmax = Fraction(DBL_MAX)
         if big > fmax * (1 + Fraction(1, 10**12)):
@@ -379,14 +394,26 @@ def test_lagged_sum_extreme_values():
             assert st == lib.FC_OK
         if st != lib.FC_OK:
             continue
-        tiny = Fraction(N + K + 2) * Fraction(2) ** -1074 * (
-            Fraction(float(np.max(np.abs(x)))) * Fraction(float(np.max(np.abs(c)))) * 4 + 1)
+        tiny = (
+            Fraction(N + K + 2)
+            * Fraction(2) ** -1074
+            * (Fraction(float(np.max(np.abs(x)))) * Fraction(float(np.max(np.abs(c)))) * 4 + 1)
+        )
         for n in range(N):
             assert abs(Fraction(float(y[n])) - ref[n]) <= Fraction(TOL) * scale[n] + tiny
 
 
-@pytest.mark.parametrize("rule,a", [("rectangle", 10.0), ("trapezoid", 10.0), ("grunwald", 10.0),
-                                    ("l1", 0.999999), ("rectangle", 1e-6), ("grunwald", 0.5)])
+@pytest.mark.parametrize(
+    "rule,a",
+    [
+        ("rectangle", 10.0),
+        ("trapezoid", 10.0),
+        ("grunwald", 10.0),
+        ("l1", 0.999999),
+        ("rectangle", 1e-6),
+        ("grunwald", 0.5),
+    ],
+)
 @pytest.mark.parametrize("h", [5e-324, 1e-300, 1e-30, 1e30, 1e300, 1.7e308])
 def test_weights_extreme_steps(rule, a, h):
     # fc_weights and fc_trapezoid_start: the mpmath values of the formulas
@@ -403,8 +430,11 @@ def test_weights_extreme_steps(rule, a, h):
             if rule == "rectangle":
                 r = H**A / mpmath.gamma(A + 1) * ((M + 1) ** A - M**A)
             elif rule == "trapezoid":
-                r = H**A / mpmath.gamma(A + 2) * (1 if m == 0 else
-                                                   (M + 1) ** (A + 1) - 2 * M ** (A + 1) + (M - 1) ** (A + 1))
+                r = (
+                    H**A
+                    / mpmath.gamma(A + 2)
+                    * (1 if m == 0 else (M + 1) ** (A + 1) - 2 * M ** (A + 1) + (M - 1) ** (A + 1))
+                )
             elif rule == "grunwald":
                 r = H ** (-A) * (-1) ** m * mpmath.binomial(A, M)
             else:
@@ -454,10 +484,15 @@ def test_weights_range_leaves_output():
     assert abs(mpmath.mpf(float(w0)) - first) <= 1e-14 * first
 
 
-@pytest.mark.parametrize("kind,rule,a,h", [("derivative", "grunwald", 10.0, 1e300),
-                                           ("integral", "rectangle", 10.0, 1e40),
-                                           ("integral", "trapezoid", 10.0, 1e-300),
-                                           ("derivative", "l1", 0.99, 1e-320)])
+@pytest.mark.parametrize(
+    "kind,rule,a,h",
+    [
+        ("derivative", "grunwald", 10.0, 1e300),
+        ("integral", "rectangle", 10.0, 1e40),
+        ("integral", "trapezoid", 10.0, 1e-300),
+        ("derivative", "l1", 0.99, 1e-320),
+    ],
+)
 def test_stream_refuses_out_of_range_kernels(kind, rule, a, h):
     # h^-10 = 1e-3000 would flush the stream's kernel to 0, h^10 = 1e400 or
     # (1e-320)^-0.99 = 1e316.8 would make it infinite (the step factors are
@@ -470,6 +505,7 @@ def test_stream_refuses_out_of_range_kernels(kind, rule, a, h):
 
 # ------------------------------------------------------------- 3. overlap
 
+
 @pytest.mark.parametrize("shift", [0, 1, -1, 49, -49])
 def test_overlapping_output_refused(shift):
     # y overlapping x would be cleared before x is read: refused with
@@ -478,8 +514,8 @@ def test_overlapping_output_refused(shift):
     rng = np.random.default_rng(1)
     buf = rng.standard_normal(2 * n + 2)
     before = buf.copy()
-    x = buf[n // 2 + 1:]
-    y = buf[n // 2 + 1 + shift:]
+    x = buf[n // 2 + 1 :]
+    y = buf[n // 2 + 1 + shift :]
     px, py = dbuf(x), dbuf(y)
     for rule in RULE_CODE:
         a = 0.5
@@ -498,6 +534,7 @@ def test_adjacent_buffers_accepted():
     # x and y side by side in one array do not overlap: accepted, and within
     # the bound of the long double reference (tests/reference.py).
     from reference import rule_reference
+
     n = 64
     rng = np.random.default_rng(2)
     buf = np.empty(2 * n)
@@ -508,22 +545,36 @@ def test_adjacent_buffers_accepted():
     assert componentwise_error(y, ref, scale) <= TOL
     buf2 = np.empty(2 * n)
     buf2[n:] = x
-    assert lib.fc_lagged_sum(ffi.NULL, dbuf(buf2[n:]), 1, n, dbuf(np.ones(3)), 3, 0,
-                             dbuf(buf2[:n])) == lib.FC_OK
+    assert (
+        lib.fc_lagged_sum(ffi.NULL, dbuf(buf2[n:]), 1, n, dbuf(np.ones(3)), 3, 0, dbuf(buf2[:n])) == lib.FC_OK
+    )
     ref, scale = lag_reference(x.copy(), np.ones(3), np.arange(n))
     assert componentwise_error(buf2[:n], ref, scale) <= TOL
 
 
-@pytest.mark.parametrize("kind,rule,a", [("integral", "rectangle", 0.5), ("integral", "trapezoid", 2.5),
-                                         ("derivative", "grunwald", 0.5), ("derivative", "l1", 0.5)])
+@pytest.mark.parametrize(
+    "kind,rule,a",
+    [
+        ("integral", "rectangle", 0.5),
+        ("integral", "trapezoid", 2.5),
+        ("derivative", "grunwald", 0.5),
+        ("derivative", "l1", 0.5),
+    ],
+)
 def test_signals_of_very_different_sizes(kind, rule, a):
     # Each signal of a call is scaled on its own: a signal near 1e300 beside
     # one near 1e-300 keeps every output of both within the bound (mpmath
     # reference of the rule's formula, as above).
     rng = np.random.default_rng(17)
     N = 40
-    x = np.stack([rng.uniform(0.5, 1.5, N) * 1e300, rng.standard_normal(N) * 1e-300,
-                  np.zeros(N), rng.standard_normal(N)])
+    x = np.stack(
+        [
+            rng.uniform(0.5, 1.5, N) * 1e300,
+            rng.standard_normal(N) * 1e-300,
+            np.zeros(N),
+            rng.standard_normal(N),
+        ]
+    )
     f = pyfracconv.derivative if kind == "derivative" else pyfracconv.integral
     y = f(x, a, 1e-3, rule=rule)
     for s in range(len(x)):

@@ -30,14 +30,17 @@ from pyfracconv._fracconv import ffi, lib
 
 from reference import check_indices, componentwise_error, lag_reference, rule_reference
 
-BOUND = 1e-13          # the README's componentwise promise
-ENV = 8                # Python envelope in front of the C state
-N = 3000               # at least two FFT levels for every geometry
+BOUND = 1e-13  # the README's componentwise promise
+ENV = 8  # Python envelope in front of the C state
+N = 3000  # at least two FFT levels for every geometry
 
 ORDERS = (1e-6, 0.3, 0.999, 1.5, 2.5, 5.0, 9.5, 9.99, 10.0)
-RULE_CASES = ([("rectangle", a) for a in ORDERS] + [("trapezoid", a) for a in ORDERS]
-              + [("grunwald", a) for a in ORDERS]
-              + [("l1", a) for a in (1e-6, 0.3, 0.7, 0.999)])
+RULE_CASES = (
+    [("rectangle", a) for a in ORDERS]
+    + [("trapezoid", a) for a in ORDERS]
+    + [("grunwald", a) for a in ORDERS]
+    + [("l1", a) for a in (1e-6, 0.3, 0.7, 0.999)]
+)
 
 
 def make_rule_stream(rule, a, h, channels):
@@ -80,7 +83,7 @@ def test_rule_streams_are_componentwise_accurate(rule, a):
         ch = None if len(sigs) == 1 else len(sigs)
         ys = run(make_rule_stream(rule, a, h, ch), sigs)
         for x, y in zip(sigs, ys):
-            ref, scale = rule_reference(rule, a, h, x, idx)   # direct sum, extended precision
+            ref, scale = rule_reference(rule, a, h, x, idx)  # direct sum, extended precision
             err = componentwise_error(y, ref, scale)
             assert err <= BOUND, (rule, a, err)
 
@@ -104,7 +107,7 @@ def test_power_law_kernels_are_componentwise_accurate(name):
         ch = None if len(sigs) == 1 else len(sigs)
         ys = run(Stream.from_kernel(c, channels=ch), sigs)
         for x, y in zip(sigs, ys):
-            ref, scale = lag_reference(x, c, idx)            # direct sum, extended precision
+            ref, scale = lag_reference(x, c, idx)  # direct sum, extended precision
             assert componentwise_error(y, ref, scale) <= BOUND, name
 
 
@@ -119,7 +122,7 @@ def test_sign_changing_kernel_is_normwise_accurate():
         ch = None if len(sigs) == 1 else len(sigs)
         ys = run(Stream.from_kernel(c, channels=ch), sigs)
         for x, y in zip(sigs, ys):
-            ref, scale = lag_reference(x, c, idx)            # direct sum, extended precision
+            ref, scale = lag_reference(x, c, idx)  # direct sum, extended precision
             assert np.max(np.abs(y - ref)) <= BOUND * np.max(scale)
 
 
@@ -136,13 +139,13 @@ def test_closed_values_after_a_spike():
     xi = [int(v) for v in rng_ints(128)]
     xi[63] += 1
     y = Stream.from_kernel(c).push_many(np.array(xi, dtype=float))
-    ci = [int(v) for v in c]                                  # the doubles, exactly
+    ci = [int(v) for v in c]  # the doubles, exactly
     for n in range(128):
         exact = sum(ci[n - k] * xi[k] for k in range(n + 1))
         scale = sum(abs(ci[n - k] * xi[k]) for k in range(n + 1))
         assert abs(Fraction(float(y[n])) - exact) <= BOUND * scale, n
     y = Stream.from_kernel(c).push_many(x)
-    assert y[65] == 6561.0 and 3 ** 8 == 6561                 # from memory: 3^8
+    assert y[65] == 6561.0 and 3**8 == 6561  # from memory: 3^8
 
 
 def rng_ints(n):
@@ -159,8 +162,13 @@ def test_high_orders_at_2_to_16():
     rng = np.random.default_rng(11)
     idx = check_indices(n, rng)
     sigs = [spike(n, 63), spike(n, 4095), spike(n, 40000)]
-    for rule, a in (("rectangle", 9.5), ("trapezoid", 9.99), ("grunwald", 9.99),
-                    ("l1", 0.999), ("rectangle", 2.5)):
+    for rule, a in (
+        ("rectangle", 9.5),
+        ("trapezoid", 9.99),
+        ("grunwald", 9.99),
+        ("l1", 0.999),
+        ("rectangle", 2.5),
+    ):
         ys = run(make_rule_stream(rule, a, 1.0, 3), sigs)
         for x, y in zip(sigs, ys):
             ref, scale = rule_reference(rule, a, 1.0, x, idx)  # direct sum, extended precision
@@ -178,6 +186,7 @@ def test_high_orders_at_2_to_16():
 # u64, FNV-1a 64 at 72 over bytes [0, 72) then the payload); exact payload:
 # leaf u64, segments u64, n u64, klen u64, A u64, kernel[klen], xprev[C],
 # x0[C], u[C][n], acc[C][A].
+
 
 def fnv(data):
     # FNV-1a 64 (common practice: offset basis 0xcbf29ce484222325, prime 2^40+2^8+0xb3)
@@ -216,17 +225,19 @@ def c_push(ptr, x):
     y = np.empty_like(x)
     cp = ffi.new("size_t *")
     lib.fc_stream_channels(ptr, cp)
-    st = lib.fc_stream_push_block(ptr, ffi.from_buffer("double[]", x),
-                                  x.size // cp[0],
-                                  ffi.from_buffer("double[]", y, require_writable=True))
+    st = lib.fc_stream_push_block(
+        ptr,
+        ffi.from_buffer("double[]", x),
+        x.size // cp[0],
+        ffi.from_buffer("double[]", y, require_writable=True),
+    )
     return st, y
 
 
 class Layout:
     def __init__(self, blob):
         self.C = struct.unpack_from("<Q", blob, 40)[0]
-        (self.leaf, self.segs, self.n, self.klen,
-         self.A) = struct.unpack_from("<5Q", blob, 80)
+        (self.leaf, self.segs, self.n, self.klen, self.A) = struct.unpack_from("<5Q", blob, 80)
         self.kernel = 120
         self.xprev = self.kernel + 8 * self.klen
         self.x0 = self.xprev + 8 * self.C
@@ -248,8 +259,13 @@ def saved(rule, a, n, channels=2, h=0.5, seed=0):
 
 
 def test_genuine_blobs_load_and_resave_identically():
-    for rule, a in (("rectangle", 0.5), ("rectangle", 9.5), ("trapezoid", 2.5),
-                    ("grunwald", 9.99), ("l1", 0.3)):
+    for rule, a in (
+        ("rectangle", 0.5),
+        ("rectangle", 9.5),
+        ("trapezoid", 2.5),
+        ("grunwald", 9.99),
+        ("l1", 0.3),
+    ):
         for n in (0, 1, 63, 64, 700, 1500):
             b = saved(rule, a, n)
             st, p = c_load(b)
@@ -274,8 +290,8 @@ def test_named_forgeries_are_refused():
     assert refused(put(b, L.acc, "<d", np.nextafter(v, np.inf)))
     bb = bytearray(b)
     struct.pack_into("<Q", bb, 80 + 32, L.A - 1)
-    del bb[L.acc + 8 * L.A - 8:L.acc + 8 * L.A]           # channel 0 one shorter
-    del bb[len(bb) - 8:]                                   # channel 1 one shorter
+    del bb[L.acc + 8 * L.A - 8 : L.acc + 8 * L.A]  # channel 0 one shorter
+    del bb[len(bb) - 8 :]  # channel 1 one shorter
     bb[64:72] = struct.pack("<Q", len(bb) - 80)
     assert refused(fix(bytes(bb)))
     # a sample of a block the engine has summed already
@@ -337,9 +353,14 @@ def fresh_like(blob):
 
 def test_random_mutations_are_refused_or_consistent():
     rng = np.random.default_rng(2024)
-    bases = [saved("rectangle", 0.5, 300), saved("trapezoid", 2.5, 200, channels=1),
-             saved("grunwald", 9.99, 600, channels=1), saved("l1", 0.6, 130),
-             saved("rectangle", 9.5, 530, channels=1), saved("rectangle", 2.5, 150)]
+    bases = [
+        saved("rectangle", 0.5, 300),
+        saved("trapezoid", 2.5, 200, channels=1),
+        saved("grunwald", 9.99, 600, channels=1),
+        saved("l1", 0.6, 130),
+        saved("rectangle", 9.5, 530, channels=1),
+        saved("rectangle", 2.5, 150),
+    ]
     s = Stream.from_kernel((1.0 + np.arange(150.0)) ** -1.5, channels=2)
     s.push_many(rng.standard_normal((260, 2)))
     bases.append(c_blob(s))
@@ -349,20 +370,20 @@ def test_random_mutations_are_refused_or_consistent():
         b = bytearray(bases[trial % len(bases)])
         L = Layout(bytes(b))
         how = rng.integers(0, 4)
-        if how == 0:      # one random byte anywhere but the checksum
+        if how == 0:  # one random byte anywhere but the checksum
             i = int(rng.integers(0, len(b) - 8))
             i = i if i < 72 else i + 8
             b[i] = int(rng.integers(0, 256))
-        elif how == 1:    # one field of the header or payload head
+        elif how == 1:  # one field of the header or payload head
             off = int(rng.choice([12, 16, 20, 24, 32, 40, 48, 56, 80, 88, 96, 104, 112]))
             w = 4 if off in (12, 16, 20) else 8
-            old = int.from_bytes(b[off:off + w], "little")
+            old = int.from_bytes(b[off : off + w], "little")
             new = (old + int(rng.choice([-1, 1, 2, 64, 1 << 20]))) % (1 << (8 * w))
-            b[off:off + w] = new.to_bytes(w, "little")
-        elif how == 2:    # one double of the state replaced
+            b[off : off + w] = new.to_bytes(w, "little")
+        elif how == 2:  # one double of the state replaced
             i = int(rng.integers(120, len(b) - 7)) // 8 * 8
             struct.pack_into("<d", b, i, float(rng.choice([0.0, -0.0, 1.0, rng.standard_normal()])))
-        else:             # one double nudged by an ulp
+        else:  # one double nudged by an ulp
             i = int(rng.integers(120, len(b) - 7)) // 8 * 8
             v = struct.unpack_from("<d", b, i)[0]
             if math.isfinite(v):
@@ -377,7 +398,7 @@ def test_random_mutations_are_refused_or_consistent():
         assert c_save(p) == blob
         fresh, rule, kind, C = fresh_like(blob)
         if kind == 0 and rule == lib.FC_RULE_L1:
-            continue                      # u is not x: no history to replay
+            continue  # u is not x: no history to replay
         L = Layout(blob)
         u = np.frombuffer(blob, dtype="<f8", count=C * L.n, offset=L.u).reshape(C, L.n)
         if L.n:
@@ -392,8 +413,8 @@ def test_random_mutations_are_refused_or_consistent():
 
 # ---------------------------------------------------------------- in place
 
-@pytest.mark.parametrize("rule,a", [("trapezoid", 0.5), ("l1", 0.5), ("rectangle", 2.5),
-                                    ("grunwald", 1.3)])
+
+@pytest.mark.parametrize("rule,a", [("trapezoid", 0.5), ("l1", 0.5), ("rectangle", 2.5), ("grunwald", 1.3)])
 def test_push_in_place_equals_separate_buffers(rule, a):
     rng = np.random.default_rng(3)
     C, T = 3, 700
@@ -404,10 +425,10 @@ def test_push_in_place_equals_separate_buffers(rule, a):
     ptr = ffi.from_buffer("double[]", buf, require_writable=True)
     assert lib.fc_stream_push_block(s._s, ptr, 300, ptr) == lib.FC_OK
     one = ffi.cast("double *", ptr) + 300 * C
-    for t in range(300, T):                        # one step at a time, in place
+    for t in range(300, T):  # one step at a time, in place
         assert lib.fc_stream_push(s._s, one, one) == lib.FC_OK
         one += C
-    assert np.array_equal(buf, ref)                # bit for bit
+    assert np.array_equal(buf, ref)  # bit for bit
     # preview in place: what push would give, stream unchanged
     q = np.ascontiguousarray(rng.standard_normal(C))
     qq = q.copy()
@@ -439,32 +460,40 @@ def test_partial_overlap_is_refused_and_changes_nothing():
 
 # ---------------------------------------------------------------- huge samples
 
-@pytest.mark.parametrize("rule,a,h", [("rectangle", 0.5, 1e-4), ("trapezoid", 0.3, 1e-4),
-                                      ("grunwald", 0.5, 100.0), ("grunwald", 2.5, 100.0),
-                                      ("l1", 0.5, 1e4), ("rectangle", 9.5, 1e-4)])
+
+@pytest.mark.parametrize(
+    "rule,a,h",
+    [
+        ("rectangle", 0.5, 1e-4),
+        ("trapezoid", 0.3, 1e-4),
+        ("grunwald", 0.5, 100.0),
+        ("grunwald", 2.5, 100.0),
+        ("l1", 0.5, 1e4),
+        ("rectangle", 9.5, 1e-4),
+    ],
+)
 def test_huge_samples_keep_the_bound(rule, a, h):
     # samples near 1e307 (a block of 64 of them sums beyond the double range)
     # whose outputs are representable (the steps keep the kernels' sums below
     # about 1): every output keeps the componentwise bound
     rng = np.random.default_rng(12)
     sign = (-1.0) ** np.arange(N) if rule == "grunwald" else 1.0
-    sigs = [1e307 * (0.5 + rng.random(N)) * sign, spike(N, 127, 1.5e308),
-            spike(N, 575, -1e307)]
+    sigs = [1e307 * (0.5 + rng.random(N)) * sign, spike(N, 127, 1.5e308), spike(N, 575, -1e307)]
     ys = run(make_rule_stream(rule, a, h, 3), sigs)
     idx = np.arange(N)
     for x, y in zip(sigs, ys):
-        ref, scale = rule_reference(rule, a, h, x, idx)   # direct sum, extended precision
+        ref, scale = rule_reference(rule, a, h, x, idx)  # direct sum, extended precision
         assert np.all(np.isfinite(scale)) and np.max(scale) < 1.7e308
         assert componentwise_error(y, ref, scale) <= BOUND
 
 
 def test_huge_kernel_values_keep_the_bound():
     rng = np.random.default_rng(13)
-    c = 1e305 * (1.0 + np.arange(N)) ** -1.0       # sum ~ 9e305
+    c = 1e305 * (1.0 + np.arange(N)) ** -1.0  # sum ~ 9e305
     sigs = [0.5 + rng.random(N), spike(N, 63, 3.0)]
     ys = run(Stream.from_kernel(c, channels=2), sigs)
     for x, y in zip(sigs, ys):
-        ref, scale = lag_reference(x, c, np.arange(N))   # direct sum, extended precision
+        ref, scale = lag_reference(x, c, np.arange(N))  # direct sum, extended precision
         assert componentwise_error(y, ref, scale) <= BOUND
 
 
@@ -485,13 +514,14 @@ def test_output_beyond_the_double_range_refuses_the_whole_block(rule, a):
     A.push_many(pre)
     B.push_many(pre)
     blk = rng.standard_normal((600, 2))
-    blk[500, 1] = 1.7e308     # y at the next step: b_0 * 1.7e308 > DBL_MAX
+    blk[500, 1] = 1.7e308  # y at the next step: b_0 * 1.7e308 > DBL_MAX
     x = np.ascontiguousarray(blk)
     y = np.full_like(x, 7.25)
-    st = lib.fc_stream_push_block(A._s, ffi.from_buffer("double[]", x), 600,
-                                  ffi.from_buffer("double[]", y, require_writable=True))
+    st = lib.fc_stream_push_block(
+        A._s, ffi.from_buffer("double[]", x), 600, ffi.from_buffer("double[]", y, require_writable=True)
+    )
     assert st == lib.FC_ERR_RANGE
-    assert np.all(y == 7.25)                       # outputs untouched
+    assert np.all(y == 7.25)  # outputs untouched
     assert A.count == 700 and c_state(A._s) == c_state(B._s)
     with pytest.raises(ValueError):
         A.push_many(blk)
@@ -502,8 +532,8 @@ def test_output_beyond_the_double_range_refuses_the_whole_block(rule, a):
 
 
 def test_history_and_preview_beyond_the_range_are_refused():
-    s = Stream.integral(0.5, 4.0)   # b_0 = 4^0.5 / Gamma(1.5) ~ 2.26 (common practice)
-    assert s.push(1e308) == 0.0     # y_0 of the rectangle rule is 0
+    s = Stream.integral(0.5, 4.0)  # b_0 = 4^0.5 / Gamma(1.5) ~ 2.26 (common practice)
+    assert s.push(1e308) == 0.0  # y_0 of the rectangle rule is 0
     before = c_save(s._s)
     h = ffi.new("double[1]", [5.0])
     assert lib.fc_stream_history(s._s, h) == lib.FC_ERR_RANGE and h[0] == 5.0
@@ -521,7 +551,7 @@ def test_state_with_overflowed_future_outputs_saves_and_loads():
     # accumulator is checked bit for bit), and the next push is refused
     c = np.zeros(3000)
     c[0] = 1.0
-    c[1024:] = 10.0             # 10 * 1e308 is beyond the double range
+    c[1024:] = 10.0  # 10 * 1e308 is beyond the double range
     s = Stream.from_kernel(c)
     y = s.push_many(np.r_[1e308, np.zeros(1023)])
     assert y[0] == 1e308 and np.all(y[1:] == 0.0)
@@ -561,7 +591,7 @@ def test_blobs_of_the_fixed_geometry_still_load():
         assert st == lib.FC_OK
         again = c_save(p)
         L = Layout(again)
-        assert (L.leaf, L.segs) == geometry          # the geometry the kernel implies
+        assert (L.leaf, L.segs) == geometry  # the geometry the kernel implies
         if geometry == (64, 8):
             assert again == b
         st, y = c_push(p, nxt)
@@ -581,8 +611,11 @@ def test_blobs_of_the_fixed_geometry_still_load():
 
 # ------------------------------------------- the other promises, every geometry
 
-@pytest.mark.parametrize("rule,a", [("rectangle", 0.5), ("rectangle", 2.5), ("trapezoid", 5.0),
-                                    ("grunwald", 3.5), ("grunwald", 9.99)])
+
+@pytest.mark.parametrize(
+    "rule,a",
+    [("rectangle", 0.5), ("rectangle", 2.5), ("trapezoid", 5.0), ("grunwald", 3.5), ("grunwald", 9.99)],
+)
 def test_every_geometry_is_path_independent(rule, a):
     # one block, many blocks, single pushes, and a save/load in the middle all
     # give the same outputs bit for bit (the engine depends on the samples only)
@@ -592,7 +625,7 @@ def test_every_geometry_is_path_independent(rule, a):
     s = make_rule_stream(rule, a, 0.5, 2)
     parts, i = [], 0
     for n in (1, 62, 1, 700, 3, 1000):
-        parts.append(np.asarray(s.push_many(x[i:i + n])))
+        parts.append(np.asarray(s.push_many(x[i : i + n])))
         i += n
     t = Stream.load(s.save())
     for k in range(i, i + 40):
@@ -600,9 +633,9 @@ def test_every_geometry_is_path_independent(rule, a):
         h = t.history()
         y = np.asarray(t.push(x[k]))
         assert np.array_equal(p, y)
-        if rule == "grunwald":          # y = history + w0 x (fracconv.h)
+        if rule == "grunwald":  # y = history + w0 x (fracconv.h)
             w0 = float(Stream.derivative(a, 0.5).push(1.0))
             assert np.array_equal(y, h + w0 * x[k])
         parts.append(y[None, :])
-    parts.append(np.asarray(t.push_many(x[i + 40:])))
+    parts.append(np.asarray(t.push_many(x[i + 40 :])))
     assert np.array_equal(np.concatenate(parts), whole)

@@ -35,8 +35,9 @@ def save(s):
 
 
 def push_block(s, x, y):
-    return lib.fc_stream_push_block(s, ffi.from_buffer("double[]", x), x.shape[0],
-                                    ffi.from_buffer("double[]", y))
+    return lib.fc_stream_push_block(
+        s, ffi.from_buffer("double[]", x), x.shape[0], ffi.from_buffer("double[]", y)
+    )
 
 
 @pytest.mark.parametrize("mode", [lib.FC_MODE_EXACT, lib.FC_MODE_COMPRESSED])
@@ -47,7 +48,7 @@ def test_in_place_block_equals_separate_buffers(rule, mode):
     y = np.empty_like(x)
     assert push_block(a, x, y) == lib.FC_OK
     z = x.copy()
-    assert push_block(b, z, z) == lib.FC_OK          # y is x
+    assert push_block(b, z, z) == lib.FC_OK  # y is x
     assert np.array_equal(y, z)
     assert save(a) == save(b)
 
@@ -58,10 +59,9 @@ def test_partial_overlap_is_refused_and_changes_nothing(mode):
     push_block(s, np.ones((10, 2)), np.empty((10, 2)))
     before = save(s)
     buf = np.arange(42, dtype=float)
-    x = np.frombuffer(buf, count=40)               # buf[0:40]
-    y = np.frombuffer(buf, count=40, offset=8)     # buf[1:41]
-    st = lib.fc_stream_push_block(s, ffi.from_buffer("double[]", x), 20,
-                                  ffi.from_buffer("double[]", y))
+    x = np.frombuffer(buf, count=40)  # buf[0:40]
+    y = np.frombuffer(buf, count=40, offset=8)  # buf[1:41]
+    st = lib.fc_stream_push_block(s, ffi.from_buffer("double[]", x), 20, ffi.from_buffer("double[]", y))
     assert st == lib.FC_ERR_ARG
     assert save(s) == before
     assert np.array_equal(buf, np.arange(42, dtype=float))

@@ -36,8 +36,13 @@ from reference import rule_reference
 
 EPS = np.finfo(float).eps
 RULES = ["rectangle", "trapezoid", "grunwald", "l1"]
-SETTINGS = settings(max_examples=60, deadline=None, derandomize=True, database=None,
-                    suppress_health_check=[HealthCheck.too_slow])
+SETTINGS = settings(
+    max_examples=60,
+    deadline=None,
+    derandomize=True,
+    database=None,
+    suppress_health_check=[HealthCheck.too_slow],
+)
 
 
 @st.composite
@@ -47,18 +52,23 @@ def cases(draw, mode):
     if mode == "compressed":
         # the orders near 0 and near the upper bounds are the edges; the
         # middle of each accepted interval is the common case
-        order = draw(st.one_of(
-            st.floats(lo, hi, exclude_min=not loi, exclude_max=not hii),
-            st.sampled_from([lo, 0.5, 0.999999, 1.0, 1.5, 1.999]).filter(
-                lambda a: (a > lo or (loi and a == lo)) and (a < hi or (hii and a == hi)))))
+        order = draw(
+            st.one_of(
+                st.floats(lo, hi, exclude_min=not loi, exclude_max=not hii),
+                st.sampled_from([lo, 0.5, 0.999999, 1.0, 1.5, 1.999]).filter(
+                    lambda a: (a > lo or (loi and a == lo)) and (a < hi or (hii and a == hi))
+                ),
+            )
+        )
     else:
         order = draw(st.floats(lo, hi, exclude_min=not loi, exclude_max=not hii))
     step = draw(st.floats(1e-2, 10.0))
     channels = draw(st.one_of(st.none(), st.integers(1, 3)))
     n = draw(st.integers(1, 80))
     shape = (n,) if channels is None else (n, channels)
-    x = np.array(draw(st.lists(st.floats(-100.0, 100.0), min_size=int(np.prod(shape)),
-                               max_size=int(np.prod(shape))))).reshape(shape)
+    x = np.array(
+        draw(st.lists(st.floats(-100.0, 100.0), min_size=int(np.prod(shape)), max_size=int(np.prod(shape))))
+    ).reshape(shape)
     cuts = sorted(set(draw(st.lists(st.integers(0, n), max_size=6))))
     tol = draw(st.sampled_from([1e-12, 1e-9, 1e-6])) if mode == "compressed" else None
     return rule, order, step, channels, x, cuts, tol
@@ -94,8 +104,7 @@ def _scale(rule, order, step, x):
     """S_n per output (and channel), from tests/reference.py."""
     xs = x if x.ndim == 2 else x[:, None]
     idx = np.arange(len(x))
-    s = np.column_stack([rule_reference(rule, order, step, xs[:, c], idx)[1]
-                         for c in range(xs.shape[1])])
+    s = np.column_stack([rule_reference(rule, order, step, xs[:, c], idx)[1] for c in range(xs.shape[1])])
     return s if x.ndim == 2 else s[:, 0]
 
 

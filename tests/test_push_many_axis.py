@@ -22,8 +22,7 @@ MAKERS = {
     "integral": lambda c: Stream.integral(0.5, 0.1, channels=c),
     "trapezoid": lambda c: Stream.integral(0.7, 0.05, rule="trapezoid", channels=c),
     "l1": lambda c: Stream.derivative(0.3, 0.1, rule="l1", channels=c),
-    "compressed": lambda c: Stream.integral(0.5, 0.1, channels=c, mode="compressed",
-                                            horizon=1e4),
+    "compressed": lambda c: Stream.integral(0.5, 0.1, channels=c, mode="compressed", horizon=1e4),
     "kernel": lambda c: Stream.from_kernel([1.0, -0.5, 0.25], channels=c),
 }
 
@@ -32,7 +31,7 @@ MAKERS = {
 @pytest.mark.parametrize("channels", [1, 2, 3])
 def test_time_along_axis_1_is_the_transpose(kind, channels):
     rng = np.random.default_rng(20 + channels)
-    x = rng.standard_normal((300, channels))          # (T, C)
+    x = rng.standard_normal((300, channels))  # (T, C)
     a, b = MAKERS[kind](channels), MAKERS[kind](channels)
     # in blocks of different sizes, so that blocks continue across calls
     for lo, hi in ((0, 1), (1, 70), (70, 300)):
@@ -40,8 +39,7 @@ def test_time_along_axis_1_is_the_transpose(kind, channels):
         yb = b.push_many(x[lo:hi].T, axis=1)
         assert yb.shape == (channels, hi - lo)
         assert np.array_equal(yb, ya.T)
-        assert np.array_equal(b.push_many(np.ones((channels, 0)), axis=1),
-                              np.ones((channels, 0)))
+        assert np.array_equal(b.push_many(np.ones((channels, 0)), axis=1), np.ones((channels, 0)))
     assert a.count == b.count == 300
     assert a.save() == b.save()
 
@@ -51,16 +49,12 @@ def test_negative_axes_and_the_default(channels):
     rng = np.random.default_rng(7)
     x = rng.standard_normal((50, channels))
     ref = Stream.integral(0.5, 0.1, channels=channels).push_many(x)
-    assert np.array_equal(
-        Stream.integral(0.5, 0.1, channels=channels).push_many(x, axis=-2), ref)
-    assert np.array_equal(
-        Stream.integral(0.5, 0.1, channels=channels).push_many(x.T, axis=-1), ref.T)
-    assert np.array_equal(
-        Stream.integral(0.5, 0.1, channels=channels).push_many(x, axis=0), ref)
+    assert np.array_equal(Stream.integral(0.5, 0.1, channels=channels).push_many(x, axis=-2), ref)
+    assert np.array_equal(Stream.integral(0.5, 0.1, channels=channels).push_many(x.T, axis=-1), ref.T)
+    assert np.array_equal(Stream.integral(0.5, 0.1, channels=channels).push_many(x, axis=0), ref)
     # a non-contiguous view with time along axis 1
     wide = np.asfortranarray(x.T)
-    assert np.array_equal(
-        Stream.integral(0.5, 0.1, channels=channels).push_many(wide, axis=1), ref.T)
+    assert np.array_equal(Stream.integral(0.5, 0.1, channels=channels).push_many(wide, axis=1), ref.T)
 
 
 def test_scalar_stream_axis():
@@ -81,7 +75,7 @@ def test_outside_references_with_time_along_axis_1():
     # so the lagged sum equals np.convolve exactly (common practice)
     rng = np.random.default_rng(3)
     k = rng.integers(-4, 5, size=9).astype(float)
-    x = rng.integers(-9, 10, size=(3, 200)).astype(float)   # (C, T)
+    x = rng.integers(-9, 10, size=(3, 200)).astype(float)  # (C, T)
     y = Stream.from_kernel(k, channels=3).push_many(x, axis=1)
     for c in range(3):
         assert np.array_equal(y[c], np.convolve(x[c], k)[:200])

@@ -37,7 +37,7 @@ def test_value_equals_push1_bit_for_bit(mode):
         assert lib.fc_stream_push1(a._s, v, y) == lib.FC_OK
         got = lib.fc_stream_push1_value(b._s, v, cell)
         assert struct_bits(got) == struct_bits(y[0])
-    assert cell[0] == 0          # never written on success
+    assert cell[0] == 0  # never written on success
     assert a.save() == b.save()
 
 
@@ -52,12 +52,12 @@ def test_value_refusals_return_nan_and_change_nothing():
     cell = ffi.new("int[1]")
     assert math.isnan(lib.fc_stream_push1_value(s._s, math.inf, cell))
     assert cell[0] == lib.FC_ERR_NONFINITE
-    assert math.isnan(lib.fc_stream_push1_value(s._s, 1.0, ffi.NULL))   # no cell
+    assert math.isnan(lib.fc_stream_push1_value(s._s, 1.0, ffi.NULL))  # no cell
     assert math.isnan(lib.fc_stream_push1_value(ffi.NULL, 1.0, cell))
     assert cell[0] == lib.FC_ERR_NULL
     v = Stream.integral(0.5, 1e-2, channels=2)
     assert math.isnan(lib.fc_stream_push1_value(v._s, 1.0, cell))
-    assert cell[0] == lib.FC_ERR_ARG                                     # 2 channels
+    assert cell[0] == lib.FC_ERR_ARG  # 2 channels
     assert s.save() == before
     # RANGE: w0 = 1/h = 1e300 times 1e300 is beyond the double range
     d = Stream.derivative(1.0, 1e-300)
@@ -76,14 +76,14 @@ def test_python_push_messages_and_unchanged():
     with pytest.raises(pf.SampleError, match=r"^x=1e\+400: beyond the range"):
         s.push(10**400)
     assert s.save() == before
-    assert s.push(2) == Stream.load(before).push(2.0)     # ints are accepted
+    assert s.push(2) == Stream.load(before).push(2.0)  # ints are accepted
 
 
 def test_python_push_refused_while_the_guard_is_held():
     s = Stream.integral(0.5, 1e-2)
     s.push(1.0)
     before = s.save()
-    assert s._lock.acquire(False)           # as another method in another thread
+    assert s._lock.acquire(False)  # as another method in another thread
     try:
         assert not s._lock.acquire(False)
         with pytest.raises(pf.BusyError, match="being used by another thread"):

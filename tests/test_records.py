@@ -49,11 +49,13 @@ def save(tmp_path, name, arr):
 def stream_chunks(make, x, chunk, **kw):
     """An exact Stream fed x[i:i+chunk] in turn (what apply_npy should do)."""
     s = make(channels=None if x.ndim == 1 else x.shape[1], **kw)
-    return np.concatenate([s.push_many(np.ascontiguousarray(x[i:i + chunk]))
-                           for i in range(0, x.shape[0], chunk)])
+    return np.concatenate(
+        [s.push_many(np.ascontiguousarray(x[i : i + chunk])) for i in range(0, x.shape[0], chunk)]
+    )
 
 
 # ------------------------------------------------------------ exact mode
+
 
 @pytest.mark.parametrize("shape", [(5000,), (4000, 3)])
 @pytest.mark.parametrize("chunk", [1, 777, 4096, 10**6])
@@ -77,10 +79,14 @@ def test_exact_equals_stream_fed_same_chunks(tmp_path, shape, chunk):
     assert np.all(np.abs(y - batch) <= 256 * EPS * scale)
 
 
-@pytest.mark.parametrize("op,rule,order", [
-    ("integral", "trapezoid", 1.3), ("derivative", "grunwald", 1.5),
-    ("derivative", "l1", 0.4),
-])
+@pytest.mark.parametrize(
+    "op,rule,order",
+    [
+        ("integral", "trapezoid", 1.3),
+        ("derivative", "grunwald", 1.5),
+        ("derivative", "l1", 0.4),
+    ],
+)
 def test_exact_every_rule_unaligned_chunks(tmp_path, op, rule, order):
     x = signal((3001, 2), seed=3)
     inp = save(tmp_path, "in.npy", x)
@@ -103,8 +109,8 @@ def test_default_rule_is_the_first_of_each_kind(tmp_path):
 
 # ------------------------------------------------------------ compressed mode
 
-@pytest.mark.parametrize("rule,order", [("rectangle", 0.5), ("trapezoid", 0.3),
-                                        ("rectangle", 1.4)])
+
+@pytest.mark.parametrize("rule,order", [("rectangle", 0.5), ("trapezoid", 0.3), ("rectangle", 1.4)])
 @pytest.mark.parametrize("shape", [(20000,), (6000, 4)])
 def test_compressed_integral_within_stated_bound_of_batch(tmp_path, rule, order, shape):
     tol = 1e-9
@@ -172,6 +178,7 @@ def test_remapping_the_files_changes_nothing(tmp_path, monkeypatch):
 
 # ------------------------------------------------------------ layouts
 
+
 def test_fortran_order_integer_and_big_endian_inputs(tmp_path):
     x = np.asfortranarray((signal((2500, 3)) * 1000).astype(np.int32))
     inp = save(tmp_path, "f.npy", x)
@@ -191,9 +198,9 @@ def test_one_column_2d_and_one_sample(tmp_path):
     out = str(tmp_path / "o.npy")
     records.apply_npy(inp, out, "derivative", 0.5, 0.1, mode="exact", chunk=64)
     assert np.load(out).shape == (500, 1)
-    assert np.array_equal(np.load(out)[:, 0],
-                          stream_chunks(lambda **k: Stream.derivative(0.5, 0.1, **k),
-                                        x[:, 0], 64))
+    assert np.array_equal(
+        np.load(out)[:, 0], stream_chunks(lambda **k: Stream.derivative(0.5, 0.1, **k), x[:, 0], 64)
+    )
     one = save(tmp_path, "one.npy", np.array([3.0]))
     # Grunwald-Letnikov at order 1: (x_0 - 0) / h (common practice)
     records.apply_npy(one, out, "derivative", 1.0, 0.5, mode="exact")
@@ -203,13 +210,12 @@ def test_one_column_2d_and_one_sample(tmp_path):
 def test_pathlike_arguments(tmp_path):
     x = signal((100,))
     np.save(tmp_path / "in.npy", x)
-    records.apply_npy(tmp_path / "in.npy", tmp_path / "o.npy", "integral", 0.5, 0.1,
-                      mode="exact")
-    assert np.array_equal(np.load(tmp_path / "o.npy"),
-                          Stream.integral(0.5, 0.1).push_many(x))
+    records.apply_npy(tmp_path / "in.npy", tmp_path / "o.npy", "integral", 0.5, 0.1, mode="exact")
+    assert np.array_equal(np.load(tmp_path / "o.npy"), Stream.integral(0.5, 0.1).push_many(x))
 
 
 # ------------------------------------------------------------ errors
+
 
 def _files(d):
     return sorted(os.listdir(d))
@@ -261,8 +267,9 @@ def test_bad_inputs(tmp_path):
     cases.append((str(tmp_path / "arch.npy"), ArgumentError, "not a .npy array file"))
     cases.append((save(tmp_path, "c.npy", np.ones(4, complex)), InputTypeError, "complex128"))
     cases.append((save(tmp_path, "b.npy", np.ones(4, bool)), InputTypeError, "dtype bool"))
-    cases.append((save(tmp_path, "o.npy", np.array([1, "a"], dtype=object)),
-                  ArgumentError, "not a readable .npy file"))
+    cases.append(
+        (save(tmp_path, "o.npy", np.array([1, "a"], dtype=object)), ArgumentError, "not a readable .npy file")
+    )
     cases.append((save(tmp_path, "3d.npy", np.ones((2, 2, 2))), ArgumentError, "(2, 2, 2)"))
     cases.append((save(tmp_path, "z.npy", np.ones(0)), ArgumentError, "holds no samples"))
     cases.append((save(tmp_path, "z2.npy", np.ones((5, 0))), ArgumentError, "holds no samples"))
@@ -303,6 +310,7 @@ def test_output_folder_missing_or_a_folder(tmp_path):
 
 def test_exact_mode_refused_when_the_history_exceeds_memory(tmp_path, monkeypatch):
     import pyfracconv._checks as checks
+
     inp = save(tmp_path, "in.npy", signal((10000,)))
     monkeypatch.setattr(checks, "_RAM", 100_000)  # a machine of 100 kB
     with pytest.raises(pyfracconv.OutOfMemory, match=r"mode='exact'.*compressed"):
@@ -313,6 +321,7 @@ def test_exact_mode_refused_when_the_history_exceeds_memory(tmp_path, monkeypatc
 
 
 # ------------------------------------------------------------ atomicity
+
 
 def test_nan_half_way_leaves_no_output_and_keeps_an_old_one(tmp_path):
     x = signal((5000, 2))
@@ -327,8 +336,7 @@ def test_nan_half_way_leaves_no_output_and_keeps_an_old_one(tmp_path):
     assert _files(tmp_path) == ["in.npy", "out.npy"]
 
 
-@pytest.mark.parametrize("fault", [OSError(28, "No space left on device"),
-                                   KeyboardInterrupt()])
+@pytest.mark.parametrize("fault", [OSError(28, "No space left on device"), KeyboardInterrupt()])
 @pytest.mark.parametrize("mode", ["exact", "compressed"])
 def test_fault_mid_run_leaves_no_output_file(tmp_path, monkeypatch, fault, mode):
     x = signal((4000,))
@@ -398,6 +406,7 @@ def test_output_file_mode_follows_the_umask(tmp_path):
 
 # ------------------------------------------------------------ progress
 
+
 def test_progress_bar_is_fed_and_changes_nothing(tmp_path, monkeypatch):
     seen = []
 
@@ -418,8 +427,7 @@ def test_progress_bar_is_fed_and_changes_nothing(tmp_path, monkeypatch):
     records.apply_npy(inp, a, "integral", 0.5, 0.01, chunk=1000, progress=True)
     records.apply_npy(inp, b, "integral", 0.5, 0.01, chunk=1000)
     assert np.array_equal(np.load(a), np.load(b))
-    assert seen == [("total", 2500), ("update", 1000), ("update", 1000),
-                    ("update", 500), ("close", 0)]
+    assert seen == [("total", 2500), ("update", 1000), ("update", 1000), ("update", 500), ("close", 0)]
 
 
 def test_progress_without_tqdm_says_how_to_install(tmp_path, monkeypatch):
@@ -432,6 +440,7 @@ def test_progress_without_tqdm_says_how_to_install(tmp_path, monkeypatch):
 
 # ------------------------------------------------------------ command line
 
+
 def run(capsys, *argv):
     code = cli.main([str(a) for a in argv])
     cap = capsys.readouterr()
@@ -442,29 +451,62 @@ def test_cli_chunked_equals_apply_npy(tmp_path, capsys):
     x = signal((3000, 2))
     inp = save(tmp_path, "in.npy", x)
     out = str(tmp_path / "cli.npy")
-    code, _, err = run(capsys, "chunked", "derivative", inp, "-o", out, "--order", "0.4",
-                       "--step", "0.01", "--rule", "l1", "--tol", "1e-10", "--chunk", "500")
+    code, _, err = run(
+        capsys,
+        "chunked",
+        "derivative",
+        inp,
+        "-o",
+        out,
+        "--order",
+        "0.4",
+        "--step",
+        "0.01",
+        "--rule",
+        "l1",
+        "--tol",
+        "1e-10",
+        "--chunk",
+        "500",
+    )
     assert code == 0, err
     ref = str(tmp_path / "ref.npy")
     records.apply_npy(inp, ref, "derivative", 0.4, 0.01, rule="l1", tol=1e-10, chunk=500)
     assert np.array_equal(np.load(out), np.load(ref))
-    code, _, err = run(capsys, "chunked", "integral", inp, "-o", out, "--order", "0.5",
-                       "--step", "0.01", "--mode", "exact", "--chunk", "700")
+    code, _, err = run(
+        capsys,
+        "chunked",
+        "integral",
+        inp,
+        "-o",
+        out,
+        "--order",
+        "0.5",
+        "--step",
+        "0.01",
+        "--mode",
+        "exact",
+        "--chunk",
+        "700",
+    )
     assert code == 0, err
     want = stream_chunks(lambda **k: Stream.integral(0.5, 0.01, **k), x, 700)
     assert np.array_equal(np.load(out), want)
 
 
-@pytest.mark.parametrize("argv,text", [
-    (["--order", "-1"], "--order -1"),
-    (["--order", "x"], "--order x: not a number"),
-    (["--step", "0"], "--step 0"),
-    (["--rule", "l1"], "rule='l1'"),
-    (["--tol", "abc"], "--tol abc: not a number"),
-    (["--tol", "1"], "tol=1.0"),
-    (["--horizon", "5"], "horizon=5.0: shorter than the record"),
-    (["--chunk", "0"], "chunk=0"),
-])
+@pytest.mark.parametrize(
+    "argv,text",
+    [
+        (["--order", "-1"], "--order -1"),
+        (["--order", "x"], "--order x: not a number"),
+        (["--step", "0"], "--step 0"),
+        (["--rule", "l1"], "rule='l1'"),
+        (["--tol", "abc"], "--tol abc: not a number"),
+        (["--tol", "1"], "tol=1.0"),
+        (["--horizon", "5"], "horizon=5.0: shorter than the record"),
+        (["--chunk", "0"], "chunk=0"),
+    ],
+)
 def test_cli_chunked_bad_arguments(tmp_path, capsys, argv, text):
     inp = save(tmp_path, "in.npy", signal((100,)))
     base = {"--order": "0.5", "--step": "0.01"}
@@ -483,19 +525,39 @@ def test_cli_chunked_bad_arguments(tmp_path, capsys, argv, text):
 def test_cli_chunked_refuses_input_as_output_and_other_formats(tmp_path, capsys):
     inp = save(tmp_path, "in.npy", signal((100,)))
     raw = open(inp, "rb").read()
-    code, _, err = run(capsys, "chunked", "integral", inp, "-o", inp, "--order", "0.5",
-                       "--step", "0.1")
+    code, _, err = run(capsys, "chunked", "integral", inp, "-o", inp, "--order", "0.5", "--step", "0.1")
     assert code == 2 and "is the input file" in err
     assert open(inp, "rb").read() == raw
-    code, _, err = run(capsys, "chunked", "integral", inp, "-o", str(tmp_path / "o.csv"),
-                       "--order", "0.5", "--step", "0.1")
+    code, _, err = run(
+        capsys, "chunked", "integral", inp, "-o", str(tmp_path / "o.csv"), "--order", "0.5", "--step", "0.1"
+    )
     assert code == 2 and "o.csv" in err and ".npy files only" in err
     (tmp_path / "d.csv").write_text("1\n2\n")
-    code, _, err = run(capsys, "chunked", "integral", str(tmp_path / "d.csv"), "-o",
-                       str(tmp_path / "o.npy"), "--order", "0.5", "--step", "0.1")
+    code, _, err = run(
+        capsys,
+        "chunked",
+        "integral",
+        str(tmp_path / "d.csv"),
+        "-o",
+        str(tmp_path / "o.npy"),
+        "--order",
+        "0.5",
+        "--step",
+        "0.1",
+    )
     assert code == 2 and "d.csv" in err
-    code, _, err = run(capsys, "chunked", "integral", str(tmp_path / "nope.npy"), "-o",
-                       str(tmp_path / "o.npy"), "--order", "0.5", "--step", "0.1")
+    code, _, err = run(
+        capsys,
+        "chunked",
+        "integral",
+        str(tmp_path / "nope.npy"),
+        "-o",
+        str(tmp_path / "o.npy"),
+        "--order",
+        "0.5",
+        "--step",
+        "0.1",
+    )
     assert code == 2 and "nope.npy" in err and "cannot read it" in err
 
 
@@ -503,8 +565,20 @@ def test_cli_chunked_nan_leaves_no_output(tmp_path, capsys):
     x = signal((2000,))
     x[1500] = np.inf
     inp = save(tmp_path, "in.npy", x)
-    code, _, err = run(capsys, "chunked", "integral", inp, "-o", str(tmp_path / "o.npy"),
-                       "--order", "0.5", "--step", "0.1", "--chunk", "256")
+    code, _, err = run(
+        capsys,
+        "chunked",
+        "integral",
+        inp,
+        "-o",
+        str(tmp_path / "o.npy"),
+        "--order",
+        "0.5",
+        "--step",
+        "0.1",
+        "--chunk",
+        "256",
+    )
     assert code == 2 and "element [1500] is inf" in err
     assert _files(tmp_path) == ["in.npy"]
 
@@ -516,8 +590,9 @@ def test_cli_chunked_write_failures_exit_2(tmp_path, capsys, monkeypatch):
         raise OSError(28, "No space left on device")
 
     monkeypatch.setattr(os, "posix_fallocate", full)
-    code, _, err = run(capsys, "chunked", "integral", inp, "-o", str(tmp_path / "o.npy"),
-                       "--order", "0.5", "--step", "0.1")
+    code, _, err = run(
+        capsys, "chunked", "integral", inp, "-o", str(tmp_path / "o.npy"), "--order", "0.5", "--step", "0.1"
+    )
     assert code == 2 and "No space left on device" in err and "o.npy" in err
     monkeypatch.undo()
 
@@ -525,8 +600,9 @@ def test_cli_chunked_write_failures_exit_2(tmp_path, capsys, monkeypatch):
         raise OSError(5, "Input/output error")
 
     monkeypatch.setattr(os, "replace", broken)
-    code, _, err = run(capsys, "chunked", "integral", inp, "-o", str(tmp_path / "o.npy"),
-                       "--order", "0.5", "--step", "0.1")
+    code, _, err = run(
+        capsys, "chunked", "integral", inp, "-o", str(tmp_path / "o.npy"), "--order", "0.5", "--step", "0.1"
+    )
     monkeypatch.undo()
     assert code == 2 and "cannot write output" in err and "Input/output error" in err
     assert _files(tmp_path) == ["in.npy"]
@@ -536,9 +612,14 @@ def test_cli_chunked_help_says_memory_and_cautions(capsys):
     code, out, _ = run(capsys, "chunked", "--help")
     assert code == 0
     text = " ".join(out.split())
-    for phrase in ["bounded whatever the length", "70 bytes per sample and column",
-                   "no partial output", "must not be the input",
-                   "validated on the actual plant before use", "safe stop (emergency stop)"]:
+    for phrase in [
+        "bounded whatever the length",
+        "70 bytes per sample and column",
+        "no partial output",
+        "must not be the input",
+        "validated on the actual plant before use",
+        "safe stop (emergency stop)",
+    ]:
         assert phrase in text, phrase
     code, out, _ = run(capsys, "--help")
     assert "chunked" in out

@@ -44,12 +44,17 @@ def tl(tmp_path_factory):
     if shutil.which("make") is None or (shutil.which("cc") or shutil.which("gcc")) is None:
         pytest.fail("this check builds the C library: it needs make and a C compiler")
     build = tmp_path_factory.mktemp("cbuild_test_rules")
-    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "CFLAGS=-O2 -DFC_TEST_RULES", "lib"],
-                   check=True, capture_output=True, text=True)
+    subprocess.run(
+        ["make", "-C", ROOT, f"BUILD={build}", "CFLAGS=-O2 -DFC_TEST_RULES", "lib"],
+        check=True,
+        capture_output=True,
+        text=True,
+    )
     spec = importlib.util.spec_from_file_location("setup_build", os.path.join(ROOT, "setup_build.py"))
     sb = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(sb)
     from cffi import FFI
+
     ffi = FFI()
     ffi.cdef(sb.read_cdef())
     lib = ffi.dlopen(str(build / "libfracconv.so"))
@@ -64,6 +69,7 @@ def tl(tmp_path_factory):
 
 def test_the_shipped_library_has_no_test_rule():
     from pyfracconv._fracconv import ffi, lib
+
     n = ffi.new("int *")
     assert lib.fc_rule_count(n) == lib.FC_OK and n[0] == 4
     name, der = ffi.new("const char **"), ffi.new("int *")
@@ -84,9 +90,9 @@ def weights_matrix(tl, a, h, N):
     assert lib.fc_trapezoid_start(a, h, 0, N, ffi.from_buffer("double[]", An)) == lib.FC_OK
     W = np.zeros((N, N))
     for n in range(1, N):
-        W[n, : n + 1] = am[n::-1]   # a_{n-k}
+        W[n, : n + 1] = am[n::-1]  # a_{n-k}
         W[n, 0] = An[n]
-        W[n, 1] = am[n]             # column j = 1: S_n = a_n replaces a_{n-1}
+        W[n, 1] = am[n]  # column j = 1: S_n = a_n replaces a_{n-1}
     return W
 
 
@@ -112,8 +118,9 @@ def test_batch_engines_sum_both_columns(tl, a):
     # only (fracconv.h, fc_lagged_sum)
     for engine in (lib.FC_ENGINE_DIRECT, lib.FC_ENGINE_BLOCKED, lib.FC_ENGINE_FFT):
         Y = np.zeros_like(X)
-        st = lib.fc_apply(ffi.NULL, rule, a, h, ffi.from_buffer("double[]", X), 2, N, engine,
-                          ffi.from_buffer("double[]", Y))
+        st = lib.fc_apply(
+            ffi.NULL, rule, a, h, ffi.from_buffer("double[]", X), 2, N, engine, ffi.from_buffer("double[]", Y)
+        )
         assert st == lib.FC_OK
         for s in range(2):
             assert Y[s, 0] == 0.0
@@ -125,8 +132,20 @@ def test_batch_engines_sum_both_columns(tl, a):
     # the second column is really applied: the trapezoid rule differs by
     # (a_n - a_{n-1}) x_1, far above rounding
     T = np.zeros(N)
-    assert lib.fc_apply(ffi.NULL, lib.FC_RULE_TRAPEZOID, a, h, ffi.from_buffer("double[]", X[0]), 1, N,
-                        lib.FC_ENGINE_DIRECT, ffi.from_buffer("double[]", T)) == lib.FC_OK
+    assert (
+        lib.fc_apply(
+            ffi.NULL,
+            lib.FC_RULE_TRAPEZOID,
+            a,
+            h,
+            ffi.from_buffer("double[]", X[0]),
+            1,
+            N,
+            lib.FC_ENGINE_DIRECT,
+            ffi.from_buffer("double[]", T),
+        )
+        == lib.FC_OK
+    )
     assert np.max(np.abs(Y[0] - T)) > 1e-6 * np.max(np.abs(T))
 
 
@@ -144,8 +163,7 @@ def push(tl, s, x):
     y = np.zeros_like(x)
     if len(x) == 0:
         return y
-    st = lib.fc_stream_push_block(s, ffi.from_buffer("double[]", x), len(x),
-                                  ffi.from_buffer("double[]", y))
+    st = lib.fc_stream_push_block(s, ffi.from_buffer("double[]", x), len(x), ffi.from_buffer("double[]", y))
     assert st == lib.FC_OK, st
     return y
 
@@ -175,8 +193,7 @@ def test_exact_stream_sums_both_columns(tl, a):
     x = signal(N, 3)
     s = make_stream(tl, a, h, lib.FC_MODE_EXACT)
     # y_0, then x_1 arriving alone (its column's first output), then blocks
-    y = np.concatenate([push(tl, s, x[:1]), push(tl, s, x[1:2]), push(tl, s, x[2:300]),
-                        push(tl, s, x[300:])])
+    y = np.concatenate([push(tl, s, x[:1]), push(tl, s, x[1:2]), push(tl, s, x[2:300]), push(tl, s, x[300:])])
     assert y[0] == 0.0
     close(y, W, x, 1e-13)
     # one block from the start gives the same bits
@@ -213,17 +230,17 @@ def test_saved_streams_keep_the_second_column(tl, mode_name):
     push(tl, s, x[:150])
     blob = bytearray(save(tl, s))
     at = len(blob) - 8 - (8 if mode_name == "compressed" else 0)
-    blob[at:at + 8] = np.float64(x[1] + 1.0).tobytes()
+    blob[at : at + 8] = np.float64(x[1] + 1.0).tobytes()
     if mode_name == "compressed":
         blob[-8:] = fnv1a(bytes(blob[80:-8])).to_bytes(8, "little")
     blob[72:80] = fnv1a(bytes(blob[:72]) + bytes(blob[80:])).to_bytes(8, "little")
     st, _ = load(tl, bytes(blob))
     if mode_name == "exact":
-        assert st == lib.FC_ERR_FORMAT   # x_1 must be the stored u_1
+        assert st == lib.FC_ERR_FORMAT  # x_1 must be the stored u_1
     else:
-        assert st == lib.FC_OK           # free once it has arrived (finite)
+        assert st == lib.FC_OK  # free once it has arrived (finite)
         bad = bytearray(blob)
-        bad[at:at + 8] = np.float64(np.inf).tobytes()
+        bad[at : at + 8] = np.float64(np.inf).tobytes()
         bad[-8:] = fnv1a(bytes(bad[80:-8])).to_bytes(8, "little")
         bad[72:80] = fnv1a(bytes(bad[:72]) + bytes(bad[80:])).to_bytes(8, "little")
         assert load(tl, bytes(bad))[0] == lib.FC_ERR_FORMAT
@@ -248,8 +265,10 @@ def test_compressed_stream_sums_both_columns(tl, a):
     close(y, W, x, tol + 64 * EPS)
     # x_1's column is in the output (the trapezoid rule's stream differs)
     out = ffi.new("fc_stream **")
-    assert lib.fc_stream_create(lib.FC_RULE_TRAPEZOID, a, h, 1, lib.FC_MODE_COMPRESSED, tol, 1e4,
-                                out) == lib.FC_OK
+    assert (
+        lib.fc_stream_create(lib.FC_RULE_TRAPEZOID, a, h, 1, lib.FC_MODE_COMPRESSED, tol, 1e4, out)
+        == lib.FC_OK
+    )
     t = ffi.gc(out[0], lib.fc_stream_free)
     yt = push(tl, t, x)
     assert np.max(np.abs(y - yt)) > 1e-6 * np.max(np.abs(yt))

@@ -29,10 +29,11 @@ def relaxation_exact(a, t):
     t = np.asarray(t, dtype=float)
     if a == 0.5:
         return scipy.special.erfcx(np.sqrt(t))
-    return np.array([mittag_leffler(a, 1, -x ** a, dps=25) for x in t])
+    return np.array([mittag_leffler(a, 1, -(x**a), dps=25) for x in t])
 
 
 # ------------------------------------------------------------ graded mesh
+
 
 def test_graded_mesh_is_the_formula():
     # t_k = t0 + T (k/N)^r (Stynes, O'Riordan and Gracia 2017, eq. (1.4)
@@ -43,18 +44,21 @@ def test_graded_mesh_is_the_formula():
     assert t.shape == (8,)
     assert t[0] == -1.0 and t[-1] == 1.5
     assert np.allclose(t, ref, rtol=1e-15, atol=1e-15)
-    assert np.array_equal(graded_mesh(1.0, 4, 1.0), np.arange(5) / 4)   # r = 1: uniform
+    assert np.array_equal(graded_mesh(1.0, 4, 1.0), np.arange(5) / 4)  # r = 1: uniform
 
 
-@pytest.mark.parametrize("kw, match", [
-    (dict(T=0.0, n=4, r=2.0), r"T=0\.0: must be finite and > 0"),
-    (dict(T=float("inf"), n=4, r=2.0), r"T=inf"),
-    (dict(T=1.0, n=0, r=2.0), r"n=0: must be >= 1"),
-    (dict(T=1.0, n=4, r=0.5), r"r=0\.5: must be in \[1, 100\]"),
-    (dict(T=1.0, n=4, r=2.0, t0=float("nan")), r"t0=nan: must be finite"),
-    (dict(T=1.0, n=10 ** 6, r=100.0), r"n=1000000, r=100\.0: t\[1\] = t\[0\]"),
-    (dict(T=1e-300, n=10, r=100.0, t0=1.0), r"t\[1\] = t\[0\] = 1\.0"),
-])
+@pytest.mark.parametrize(
+    "kw, match",
+    [
+        (dict(T=0.0, n=4, r=2.0), r"T=0\.0: must be finite and > 0"),
+        (dict(T=float("inf"), n=4, r=2.0), r"T=inf"),
+        (dict(T=1.0, n=0, r=2.0), r"n=0: must be >= 1"),
+        (dict(T=1.0, n=4, r=0.5), r"r=0\.5: must be in \[1, 100\]"),
+        (dict(T=1.0, n=4, r=2.0, t0=float("nan")), r"t0=nan: must be finite"),
+        (dict(T=1.0, n=10**6, r=100.0), r"n=1000000, r=100\.0: t\[1\] = t\[0\]"),
+        (dict(T=1e-300, n=10, r=100.0, t0=1.0), r"t\[1\] = t\[0\] = 1\.0"),
+    ],
+)
 def test_graded_mesh_refusals(kw, match):
     with pytest.raises(ArgumentError, match=match):
         graded_mesh(**kw)
@@ -103,6 +107,7 @@ def test_relaxation_on_a_jittered_grid_and_a_vector_problem():
 
 # ------------------------------------------------------------ orders
 
+
 def observed_orders(a, method, r, Ns):
     """log2 of the ratios of the max errors over the grid points of
     D^a y = -y on graded meshes with N and 2N steps (nested meshes: the
@@ -112,8 +117,8 @@ def observed_orders(a, method, r, Ns):
     errs = []
     for N in Ns:
         t = graded_mesh(1.0, N, r)
-        sub = ex[::Ns[-1] // N]
-        assert np.allclose(fine[::Ns[-1] // N], t, rtol=1e-15, atol=0)
+        sub = ex[:: Ns[-1] // N]
+        assert np.allclose(fine[:: Ns[-1] // N], t, rtol=1e-15, atol=0)
         res = solve(lambda t, y: -y, 1.0, a, t=t, method=method)
         errs.append(np.max(np.abs(res.y - sub)))
     return [math.log2(errs[i] / errs[i + 1]) for i in range(len(errs) - 1)], errs
@@ -148,8 +153,7 @@ def test_published_orders_on_uniform_and_graded_meshes(a, method, r, expected, N
     assert abs(orders[-1] - expected) < 0.1, (orders, expected)
 
 
-@pytest.mark.parametrize("a, method, r_graded", [(0.3, "rectangle", 5.0),
-                                                 (0.5, "predictor-corrector", 2.5)])
+@pytest.mark.parametrize("a, method, r_graded", [(0.3, "rectangle", 5.0), (0.5, "predictor-corrector", 2.5)])
 def test_graded_mesh_restores_the_order(a, method, r_graded):
     # the same steps, uniform against graded: the graded mesh converges
     # faster by at least 0.3 and is more accurate at every N
@@ -161,6 +165,7 @@ def test_graded_mesh_restores_the_order(a, method, r_graded):
 
 
 # ------------------------------------------------------------ plain loop
+
 
 def _mp_weights(a, t, n):
     """Rectangle weights of f_0..f_{n-1} and trapezoid weights of f_0..f_n at
@@ -176,10 +181,10 @@ def _mp_weights(a, t, n):
         for k in range(n):
             d, e = T[n] - T[k], T[n] - T[k + 1]
             h = T[k + 1] - T[k]
-            i0 = (d ** A - e ** A) / A             # int_e^d u^(a-1) du
-            i1 = (d ** (A + 1) - e ** (A + 1)) / (A + 1)   # int_e^d u^a du
+            i0 = (d**A - e**A) / A  # int_e^d u^(a-1) du
+            i1 = (d ** (A + 1) - e ** (A + 1)) / (A + 1)  # int_e^d u^a du
             rect.append(i0 / g)
-            trap[k] += (i1 - e * i0) / (h * g)     # hat of t_k: (u - e)/h
+            trap[k] += (i1 - e * i0) / (h * g)  # hat of t_k: (u - e)/h
             trap[k + 1] += (d * i0 - i1) / (h * g)  # hat of t_{k+1}: (d - u)/h
         return np.array([float(x) for x in rect]), np.array([float(x) for x in trap])
 
@@ -193,7 +198,7 @@ def test_equals_plain_loop_with_mpmath_weights(method, a, dy0):
     t = np.concatenate([[0.2], 0.2 + np.cumsum(10.0 ** rng.uniform(-4, -1, 30))])
     # both ways of the solver's trapezoid weights are used: intervals with
     # h_k / (t_n - t_k) below 1/256 (binomial series) and above (grid.py)
-    ratios = np.concatenate([np.diff(t[:n + 1]) / (t[n] - t[:n]) for n in range(1, t.size)])
+    ratios = np.concatenate([np.diff(t[: n + 1]) / (t[n] - t[:n]) for n in range(1, t.size)])
     assert np.sum(ratios < 1 / 256) > 50 and np.sum(ratios >= 1 / 256) > 50
 
     def f(s, y):
@@ -219,14 +224,15 @@ def test_equals_plain_loop_with_mpmath_weights(method, a, dy0):
 def test_corrections_are_repeated_corrector_passes():
     # P(EC)^2 E: the corrector applied twice (Diethelm, Ford and Freed 2002)
     t = graded_mesh(1.0, 50, 2.0)
-    one = solve(lambda t, y: -y ** 3, 1.0, 0.6, t=t)
-    two = solve(lambda t, y: -y ** 3, 1.0, 0.6, t=t, corrections=2)
+    one = solve(lambda t, y: -(y**3), 1.0, 0.6, t=t)
+    two = solve(lambda t, y: -(y**3), 1.0, 0.6, t=t, corrections=2)
     assert two.rhs_evals == 3 * 50 + 1
     assert not np.array_equal(one.y, two.y)
     assert np.max(np.abs(one.y - two.y)) < 1e-3
 
 
 # ------------------------------------------------------------ uniform times
+
 
 @pytest.mark.parametrize("method", GRID_METHODS)
 @pytest.mark.parametrize("a, dy0", [(0.5, None), (0.85, None), (1.5, 0.3), (2.0, 1.0)])
@@ -263,6 +269,7 @@ def test_single_time_is_the_initial_value():
 
 # ------------------------------------------------------------ refusals
 
+
 class Counting:
     def __init__(self):
         self.calls = 0
@@ -272,27 +279,38 @@ class Counting:
         return -y
 
 
-@pytest.mark.parametrize("args, kw, match", [
-    ((0.01, 10), dict(t=[0.0, 1.0]), r"t and step=0\.01, n_steps=10: give either"),
-    ((0.01,), dict(t=[0.0, 1.0]), r"t and step=0\.01: give either"),
-    ((), dict(), r"step and n_steps=None: give step and n_steps"),
-    ((0.01,), dict(), r"n_steps=None: give step and n_steps"),
-    ((), dict(t=[0.0, 1.0], t0=0.0), r"t0=0\.0: not used with t="),
-    ((), dict(t=[0.0, 1.0], method="trapezoid"),
-     r"method='trapezoid': not available with t= .*'rectangle' or 'predictor-corrector'"),
-    ((), dict(t=[0.0, 1.0], method="implicit-rectangle"),
-     r"method='implicit-rectangle': not available with t="),
-    ((), dict(t=[0.0, 1.0], method="euler"), r"method='euler': unknown"),
-    ((), dict(t=[0.0, 1.0], memory="compressed"),
-     r"memory='compressed': not available with t="),
-    ((), dict(t=[0.0, 1.0], horizon=10), r"horizon=10: not used with t="),
-    ((), dict(t=[0.0, 0.5, 0.5]), r"t\[2\]=0\.5 after t\[1\]=0\.5: .*strictly increasing"),
-    ((), dict(t=[0.0, float("nan")]), r"t\[1\]=nan: sample times must be finite"),
-    ((), dict(t=[[0.0, 1.0]]), r"t: expected a 1-D array"),
-    ((), dict(t=[]), r"t: empty"),
-    ((), dict(t=[0.0, 1.0], corrections=2, method="rectangle"),
-     r"corrections=2: only used by method='predictor-corrector'"),
-])
+@pytest.mark.parametrize(
+    "args, kw, match",
+    [
+        ((0.01, 10), dict(t=[0.0, 1.0]), r"t and step=0\.01, n_steps=10: give either"),
+        ((0.01,), dict(t=[0.0, 1.0]), r"t and step=0\.01: give either"),
+        ((), dict(), r"step and n_steps=None: give step and n_steps"),
+        ((0.01,), dict(), r"n_steps=None: give step and n_steps"),
+        ((), dict(t=[0.0, 1.0], t0=0.0), r"t0=0\.0: not used with t="),
+        (
+            (),
+            dict(t=[0.0, 1.0], method="trapezoid"),
+            r"method='trapezoid': not available with t= .*'rectangle' or 'predictor-corrector'",
+        ),
+        (
+            (),
+            dict(t=[0.0, 1.0], method="implicit-rectangle"),
+            r"method='implicit-rectangle': not available with t=",
+        ),
+        ((), dict(t=[0.0, 1.0], method="euler"), r"method='euler': unknown"),
+        ((), dict(t=[0.0, 1.0], memory="compressed"), r"memory='compressed': not available with t="),
+        ((), dict(t=[0.0, 1.0], horizon=10), r"horizon=10: not used with t="),
+        ((), dict(t=[0.0, 0.5, 0.5]), r"t\[2\]=0\.5 after t\[1\]=0\.5: .*strictly increasing"),
+        ((), dict(t=[0.0, float("nan")]), r"t\[1\]=nan: sample times must be finite"),
+        ((), dict(t=[[0.0, 1.0]]), r"t: expected a 1-D array"),
+        ((), dict(t=[]), r"t: empty"),
+        (
+            (),
+            dict(t=[0.0, 1.0], corrections=2, method="rectangle"),
+            r"corrections=2: only used by method='predictor-corrector'",
+        ),
+    ],
+)
 def test_refusals_name_the_argument_and_call_nothing(args, kw, match):
     rhs = Counting()
     with pytest.raises(ArgumentError, match=match):
@@ -305,12 +323,18 @@ def test_order_above_one_needs_dy0_on_a_grid_too():
         solve(lambda t, y: -y, 1.0, 1.5, t=[0.0, 0.1])
 
 
-@pytest.mark.parametrize("bad, kind", [
-    (lambda t, y: 1 / 0 if t > 0.25 else -y, "raised ZeroDivisionError"),
-    (lambda t, y: float("nan") if t > 0.25 else -y, "returned a NaN or infinite value"),
-    (lambda t, y: [1.0, 2.0] if t > 0.25 else -y, r"returned a value of shape \(2,\), "
-                                                  "expected a number"),
-])
+@pytest.mark.parametrize(
+    "bad, kind",
+    [
+        (lambda t, y: 1 / 0 if t > 0.25 else -y, "raised ZeroDivisionError"),
+        (lambda t, y: float("nan") if t > 0.25 else -y, "returned a NaN or infinite value"),
+        (
+            lambda t, y: [1.0, 2.0] if t > 0.25 else -y,
+            r"returned a value of shape \(2,\), "
+            "expected a number",
+        ),
+    ],
+)
 def test_rhs_faults_keep_the_partial_solution(bad, kind):
     t = np.linspace(0.0, 1.0, 11)
     with pytest.raises(RhsError, match=kind + r".* at step 3, t=0\.3") as info:
@@ -330,6 +354,7 @@ def test_rhs_fault_at_the_start():
 def test_keyboard_interrupt_passes_through():
     def rhs(t, y):
         raise KeyboardInterrupt
+
     with pytest.raises(KeyboardInterrupt):
         solve(rhs, 1.0, 0.5, t=[0.0, 1.0])
 
@@ -371,4 +396,4 @@ def test_progress_bar_on_a_grid(monkeypatch):
 
 def test_positional_uniform_calls_still_work():
     t, y = pyfracconv.solve(lambda t, y: -y, 1.0, 1.0, 0.01, 2, method="rectangle")
-    assert y.tolist() == pytest.approx([1.0, 0.99, 0.9801], rel=1e-15)   # explicit Euler
+    assert y.tolist() == pytest.approx([1.0, 0.99, 0.9801], rel=1e-15)  # explicit Euler

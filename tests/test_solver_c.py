@@ -15,8 +15,12 @@ ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 def test_solver_example_program_passes(tmp_path):
     if not os.path.exists(os.path.join(ROOT, "Makefile")):
         pytest.fail("the C solver test needs the source checkout (Makefile)")
-    subprocess.run(["make", "-C", ROOT, f"BUILD={tmp_path}", "solver-example"],
-                   check=True, capture_output=True, text=True)
+    subprocess.run(
+        ["make", "-C", ROOT, f"BUILD={tmp_path}", "solver-example"],
+        check=True,
+        capture_output=True,
+        text=True,
+    )
     out = subprocess.run([str(tmp_path / "solver_example")], capture_output=True, text=True)
     assert out.returncode == 0, out.stdout + out.stderr
     assert "all solver checks passed" in out.stdout

@@ -35,45 +35,64 @@ class Counting:
 
 # ------------------------------------------------------------ arguments
 
-@pytest.mark.parametrize("kwargs,cls,words", [
-    (dict(order=0.0), ArgumentError, ["order=0.0", "(0, 2]"]),
-    (dict(order=-1), ArgumentError, ["order=-1.0"]),
-    (dict(order=2.5), ArgumentError, ["order=2.5"]),
-    (dict(order=float("nan")), ArgumentError, ["order=nan"]),
-    (dict(order="half"), InputTypeError, ["order"]),
-    (dict(order=[0.5, 0.5]), ArgumentError, ["order", "2 values for 1 components"]),
-    (dict(step=0.0), ArgumentError, ["step=0.0"]),
-    (dict(step=float("inf")), ArgumentError, ["step=inf"]),
-    (dict(n_steps=-1), ArgumentError, ["n_steps=-1"]),
-    (dict(n_steps=2.5), InputTypeError, ["n_steps=2.5"]),
-    (dict(method="euler"), ArgumentError, ["method='euler'", "predictor-corrector"]),
-    (dict(memory="small"), ArgumentError, ["memory='small'"]),
-    (dict(y0=[[1.0]]), ArgumentError, ["y0", "shape (1, 1)"]),
-    (dict(y0=[]), ArgumentError, ["y0", "empty"]),
-    (dict(y0=float("nan")), ArgumentError, ["y0=nan"]),
-    (dict(order=1.5), ArgumentError, ["dy0=None", "order=1.5"]),
-    (dict(dy0=1.0), ArgumentError, ["dy0=1.0", "<= 1"]),
-    (dict(corrections=0), ArgumentError, ["corrections=0"]),
-    (dict(corrections=3, method="rectangle"), ArgumentError, ["corrections=3", "predictor-corrector"]),
-    (dict(jacobian=lambda t, y: -1.0), ArgumentError, ["jacobian", "implicit"]),
-    (dict(jacobian=3, method="trapezoid"), InputTypeError, ["jacobian=3"]),
-    (dict(memory="compressed", order=2.0, dy0=0.0), ArgumentError,
-     ["order=2.0", "method='predictor-corrector'", "compressed"]),
-    (dict(memory="compressed", order=2.0, dy0=0.0, method="trapezoid"), ArgumentError,
-     ["order=2.0", "method='trapezoid'"]),
-    (dict(memory="compressed", order=2.0, dy0=0.0, method="rectangle"), ArgumentError,
-     ["order=2.0", "< 2"]),
-    (dict(memory="compressed", method="implicit-rectangle", order=1e-17), ArgumentError,
-     ["order=1e-17", "implicit-rectangle", "L1 rule of order 1 - a", "exact"]),
-    (dict(memory="compressed", method="implicit-rectangle", order=2.0, dy0=0.0),
-     ArgumentError, ["order=2.0", "implicit-rectangle", "< 2"]),
-    (dict(memory="compressed", tol=1e-20), ArgumentError, ["tol=1e-20"]),
-    (dict(memory="compressed", horizon=0.5), ArgumentError, ["horizon=0.5"]),
-    (dict(progress="yes"), InputTypeError, ["progress='yes'"]),
-    (dict(newton_tol=1.0, method="trapezoid"), ArgumentError, ["newton_tol=1.0"]),
-    (dict(newton_maxiter=0, method="trapezoid"), ArgumentError, ["newton_maxiter=0"]),
-    (dict(t0=float("inf")), ArgumentError, ["t0=inf"]),
-])
+
+@pytest.mark.parametrize(
+    "kwargs,cls,words",
+    [
+        (dict(order=0.0), ArgumentError, ["order=0.0", "(0, 2]"]),
+        (dict(order=-1), ArgumentError, ["order=-1.0"]),
+        (dict(order=2.5), ArgumentError, ["order=2.5"]),
+        (dict(order=float("nan")), ArgumentError, ["order=nan"]),
+        (dict(order="half"), InputTypeError, ["order"]),
+        (dict(order=[0.5, 0.5]), ArgumentError, ["order", "2 values for 1 components"]),
+        (dict(step=0.0), ArgumentError, ["step=0.0"]),
+        (dict(step=float("inf")), ArgumentError, ["step=inf"]),
+        (dict(n_steps=-1), ArgumentError, ["n_steps=-1"]),
+        (dict(n_steps=2.5), InputTypeError, ["n_steps=2.5"]),
+        (dict(method="euler"), ArgumentError, ["method='euler'", "predictor-corrector"]),
+        (dict(memory="small"), ArgumentError, ["memory='small'"]),
+        (dict(y0=[[1.0]]), ArgumentError, ["y0", "shape (1, 1)"]),
+        (dict(y0=[]), ArgumentError, ["y0", "empty"]),
+        (dict(y0=float("nan")), ArgumentError, ["y0=nan"]),
+        (dict(order=1.5), ArgumentError, ["dy0=None", "order=1.5"]),
+        (dict(dy0=1.0), ArgumentError, ["dy0=1.0", "<= 1"]),
+        (dict(corrections=0), ArgumentError, ["corrections=0"]),
+        (dict(corrections=3, method="rectangle"), ArgumentError, ["corrections=3", "predictor-corrector"]),
+        (dict(jacobian=lambda t, y: -1.0), ArgumentError, ["jacobian", "implicit"]),
+        (dict(jacobian=3, method="trapezoid"), InputTypeError, ["jacobian=3"]),
+        (
+            dict(memory="compressed", order=2.0, dy0=0.0),
+            ArgumentError,
+            ["order=2.0", "method='predictor-corrector'", "compressed"],
+        ),
+        (
+            dict(memory="compressed", order=2.0, dy0=0.0, method="trapezoid"),
+            ArgumentError,
+            ["order=2.0", "method='trapezoid'"],
+        ),
+        (
+            dict(memory="compressed", order=2.0, dy0=0.0, method="rectangle"),
+            ArgumentError,
+            ["order=2.0", "< 2"],
+        ),
+        (
+            dict(memory="compressed", method="implicit-rectangle", order=1e-17),
+            ArgumentError,
+            ["order=1e-17", "implicit-rectangle", "L1 rule of order 1 - a", "exact"],
+        ),
+        (
+            dict(memory="compressed", method="implicit-rectangle", order=2.0, dy0=0.0),
+            ArgumentError,
+            ["order=2.0", "implicit-rectangle", "< 2"],
+        ),
+        (dict(memory="compressed", tol=1e-20), ArgumentError, ["tol=1e-20"]),
+        (dict(memory="compressed", horizon=0.5), ArgumentError, ["horizon=0.5"]),
+        (dict(progress="yes"), InputTypeError, ["progress='yes'"]),
+        (dict(newton_tol=1.0, method="trapezoid"), ArgumentError, ["newton_tol=1.0"]),
+        (dict(newton_maxiter=0, method="trapezoid"), ArgumentError, ["newton_maxiter=0"]),
+        (dict(t0=float("inf")), ArgumentError, ["t0=inf"]),
+    ],
+)
 def test_bad_arguments_named_before_any_work(kwargs, cls, words):
     rhs = Counting()
     args = dict(y0=1.0, order=0.5, step=0.1, n_steps=10)
@@ -109,6 +128,7 @@ def test_stepper_needs_horizon_for_compressed_and_implicit_rectangle():
 
 # ------------------------------------------------------------ rhs faults
 
+
 def _good_run(n):
     return solve(lambda t, y: -y, 1.0, 0.5, 0.01, n)
 
@@ -140,11 +160,14 @@ def test_rhs_raising_at_t0():
     assert info.value.partial.t.shape == (1,) and info.value.partial.y[0] == 1.0
 
 
-@pytest.mark.parametrize("bad,words", [
-    (lambda t, y: np.array([-y[0], 0.0, 1.0]), ["shape (3,)", "expected shape (2,)"]),
-    (lambda t, y: -y[0], ["shape ()", "expected shape (2,)"]),
-    (lambda t, y: "x", ["expected shape (2,)"]),
-])
+@pytest.mark.parametrize(
+    "bad,words",
+    [
+        (lambda t, y: np.array([-y[0], 0.0, 1.0]), ["shape (3,)", "expected shape (2,)"]),
+        (lambda t, y: -y[0], ["shape ()", "expected shape (2,)"]),
+        (lambda t, y: "x", ["expected shape (2,)"]),
+    ],
+)
 def test_vector_rhs_wrong_shape(bad, words):
     with pytest.raises(RhsError) as info:
         solve(bad, [1.0, 2.0], 0.5, 0.01, 10)
@@ -183,7 +206,7 @@ def test_keyboard_interrupt_propagates():
 def test_newton_failure_reported_with_partial():
     # an invented nonlinear rhs, with one Newton update allowed per step
     def rhs(t, y):
-        return -y ** 3 + np.sin(5 * y)
+        return -(y**3) + np.sin(5 * y)
 
     with pytest.raises(NewtonError) as info:
         solve(rhs, 2.0, 0.8, 0.1, 50, method="trapezoid", newton_maxiter=1)
@@ -196,14 +219,13 @@ def test_newton_failure_reported_with_partial():
 
 def test_jacobian_wrong_shape_or_raising():
     with pytest.raises(RhsError, match="jacobian returned"):
-        solve(lambda t, y: -y, [1.0, 1.0], 0.5, 0.01, 5, method="trapezoid",
-              jacobian=lambda t, y: np.eye(3))
+        solve(lambda t, y: -y, [1.0, 1.0], 0.5, 0.01, 5, method="trapezoid", jacobian=lambda t, y: np.eye(3))
     with pytest.raises(RhsError, match="jacobian raised"):
-        solve(lambda t, y: -y, 1.0, 0.5, 0.01, 5, method="trapezoid",
-              jacobian=lambda t, y: 1 / 0)
+        solve(lambda t, y: -y, 1.0, 0.5, 0.01, 5, method="trapezoid", jacobian=lambda t, y: 1 / 0)
 
 
 # ------------------------------------------------------------ horizon
+
 
 def test_stepper_horizon_refused_and_nothing_changes():
     st = Stepper(lambda t, y: -y, 1.0, 0.5, 0.01, memory="compressed", horizon=10)
@@ -228,6 +250,7 @@ def test_stepper_advance_matches_solve():
 
 
 # ------------------------------------------------------------ progress
+
 
 def test_progress_without_tqdm_says_how_to_install(monkeypatch):
     monkeypatch.setitem(sys.modules, "tqdm", None)  # import tqdm fails
@@ -264,11 +287,16 @@ def test_progress_bar_is_fed_and_changes_nothing(monkeypatch):
 # ------------------------------------------------------------ save / load
 
 CASES = [
-    ("rectangle", "exact", 0.5), ("rectangle", "compressed", 1.4),
-    ("predictor-corrector", "exact", 1.6), ("predictor-corrector", "compressed", 0.5),
-    ("trapezoid", "exact", 0.7), ("trapezoid", "compressed", 0.3),
-    ("implicit-rectangle", "exact", 0.6), ("implicit-rectangle", "compressed", 0.6),
-    ("implicit-rectangle", "compressed", 1.0), ("implicit-rectangle", "compressed", 1.5),
+    ("rectangle", "exact", 0.5),
+    ("rectangle", "compressed", 1.4),
+    ("predictor-corrector", "exact", 1.6),
+    ("predictor-corrector", "compressed", 0.5),
+    ("trapezoid", "exact", 0.7),
+    ("trapezoid", "compressed", 0.3),
+    ("implicit-rectangle", "exact", 0.6),
+    ("implicit-rectangle", "compressed", 0.6),
+    ("implicit-rectangle", "compressed", 1.0),
+    ("implicit-rectangle", "compressed", 1.5),
 ]
 
 
@@ -316,9 +344,9 @@ def test_save_before_any_step_and_load_needs_rhs():
 
 def _fnv1a(data):
     # FNV-1a 64 (Fowler, Noll and Vo; common practice)
-    h = 0xcbf29ce484222325
+    h = 0xCBF29CE484222325
     for b in data:
-        h = ((h ^ b) * 0x100000001b3) & 0xFFFFFFFFFFFFFFFF
+        h = ((h ^ b) * 0x100000001B3) & 0xFFFFFFFFFFFFFFFF
     return h
 
 
@@ -330,8 +358,15 @@ def _reseal(blob):
 
 
 def _saved(method="predictor-corrector", memory="exact", n=20, vector=True):
-    st = Stepper(_vec if vector else (lambda t, y: -y), [1.0, 0.5] if vector else 1.0, 0.6, 0.01,
-                 method=method, memory=memory, horizon=100)
+    st = Stepper(
+        _vec if vector else (lambda t, y: -y),
+        [1.0, 0.5] if vector else 1.0,
+        0.6,
+        0.01,
+        method=method,
+        memory=memory,
+        horizon=100,
+    )
     st.advance(n)
     return st.save()
 
@@ -364,30 +399,33 @@ def _field(blob, off, fmt, value):
 
 
 @pytest.mark.parametrize("memory", ["exact", "compressed"])
-@pytest.mark.parametrize("off,fmt,value", [
-    (8, "<I", 2),                 # version
-    (12, "<I", 7),                # method
-    (16, "<I", 5),                # memory
-    (20, "<I", 2),                # K (rows of initial values) inconsistent with orders < 1
-    (24, "<Q", 2 ** 60),          # components: more than the blob holds
-    (24, "<Q", 1),                # components: fewer than saved
-    (24, "<Q", 0),
-    (32, "<d", -0.01),            # step
-    (32, "<d", 0.02),             # step differs from the streams'
-    (40, "<d", float("nan")),     # t0
-    (64, "<d", 0.5),              # newton tol
-    (72, "<I", 0),                # newton maxiter
-    (76, "<I", 1000),             # corrections
-    (80, "<Q", 10 ** 6),          # steps beyond the streams' count
-    (80, "<Q", 19),               # steps one fewer than the streams' count
-    (88, "<Q", 0),                # f0 not done but steps > 0
-    (96, "<Q", 3),                # fewer rhs calls than steps
-    (112, "<d", 2.5),             # order out of range
-    (112, "<d", 0.7),             # order differs from the streams'
-    (120, "<d", 1.5),             # order > 1 while K = 1
-    (128, "<d", float("inf")),    # initial value
-    (144, "<d", float("nan")),    # current y
-])
+@pytest.mark.parametrize(
+    "off,fmt,value",
+    [
+        (8, "<I", 2),  # version
+        (12, "<I", 7),  # method
+        (16, "<I", 5),  # memory
+        (20, "<I", 2),  # K (rows of initial values) inconsistent with orders < 1
+        (24, "<Q", 2**60),  # components: more than the blob holds
+        (24, "<Q", 1),  # components: fewer than saved
+        (24, "<Q", 0),
+        (32, "<d", -0.01),  # step
+        (32, "<d", 0.02),  # step differs from the streams'
+        (40, "<d", float("nan")),  # t0
+        (64, "<d", 0.5),  # newton tol
+        (72, "<I", 0),  # newton maxiter
+        (76, "<I", 1000),  # corrections
+        (80, "<Q", 10**6),  # steps beyond the streams' count
+        (80, "<Q", 19),  # steps one fewer than the streams' count
+        (88, "<Q", 0),  # f0 not done but steps > 0
+        (96, "<Q", 3),  # fewer rhs calls than steps
+        (112, "<d", 2.5),  # order out of range
+        (112, "<d", 0.7),  # order differs from the streams'
+        (120, "<d", 1.5),  # order > 1 while K = 1
+        (128, "<d", float("inf")),  # initial value
+        (144, "<d", float("nan")),  # current y
+    ],
+)
 def test_forged_fields_with_valid_checksum_refused(memory, off, fmt, value):
     blob = _saved(memory=memory)
     forged = _field(blob, off, fmt, value)
@@ -412,11 +450,10 @@ def test_forged_streams_swapped_refused():
     assert struct.unpack_from("<Q", c, off)[0] == 1  # one group
     off += 8
     n1 = struct.unpack_from("<Q", c, off)[0]
-    s1 = c[off + 8:off + 8 + n1]
+    s1 = c[off + 8 : off + 8 + n1]
     n2 = struct.unpack_from("<Q", c, off + 8 + n1)[0]
-    s2 = c[off + 16 + n1:off + 16 + n1 + n2]
-    swapped = (c[:off] + struct.pack("<Q", n2) + s2 + struct.pack("<Q", n1) + s1
-               + c[off + 16 + n1 + n2:])
+    s2 = c[off + 16 + n1 : off + 16 + n1 + n2]
+    swapped = c[:off] + struct.pack("<Q", n2) + s2 + struct.pack("<Q", n1) + s1 + c[off + 16 + n1 + n2 :]
     forged = _reseal(blob[:8] + swapped)
     with pytest.raises(StateError):
         Stepper.load(forged, lambda t, y: -y)
@@ -428,7 +465,7 @@ def test_forged_implicit_rectangle_history_refused():
     # the f history rows: u64 row count before the last 20 doubles + checksum
     rows_at = len(c) - 8 - 20 * 8 - 8
     assert struct.unpack_from("<Q", c, rows_at)[0] == 20
-    for value in (19, 21, 2 ** 62):
+    for value in (19, 21, 2**62):
         b = bytearray(c)
         struct.pack_into("<Q", b, rows_at, value)
         with pytest.raises(StateError):
@@ -495,8 +532,9 @@ def test_nbytes_bounded_implicit_rectangle_compressed(a):
     # compressed streams (one at a = 1) and no f history: its memory does
     # not grow with the steps, and its horizon is not bounded by 2**28
     kw = {"dy0": 0.0} if a > 1 else {}
-    c = Stepper(lambda t, y: -y, 1.0, a, 1e-3, method="implicit-rectangle",
-                memory="compressed", horizon=1e12, **kw)
+    c = Stepper(
+        lambda t, y: -y, 1.0, a, 1e-3, method="implicit-rectangle", memory="compressed", horizon=1e12, **kw
+    )
     c.advance(100)
     c0 = c.nbytes
     c.advance(20000)
@@ -504,6 +542,7 @@ def test_nbytes_bounded_implicit_rectangle_compressed(a):
 
 
 # ------------------------------------------------------------ scalar rhs paths
+
 
 class _CallableRhs:
     def __call__(self, t, y):
@@ -517,23 +556,29 @@ def _outcome(rhs, **kw):
     except BaseException as exc:  # noqa: BLE001 - compared between the paths
         part = getattr(exc, "partial", None)
         cause = exc.__cause__
-        return (type(exc).__name__, str(exc),
-                None if part is None else (part.t.tobytes(), part.y.tobytes()),
-                type(cause).__name__ if cause is not None else None,
-                cause is not None and cause.__traceback__ is not None)
+        return (
+            type(exc).__name__,
+            str(exc),
+            None if part is None else (part.t.tobytes(), part.y.tobytes()),
+            type(cause).__name__ if cause is not None else None,
+            cause is not None and cause.__traceback__ is not None,
+        )
 
 
-@pytest.mark.parametrize("rhs", [
-    lambda t, y: -y,
-    lambda t, y: np.float64(-y),             # a float subclass: converted
-    lambda t, y: int(-3 * y > -1),            # an int: converted
-    lambda t, y: np.array(-y),                # a 0-d array: converted
-    lambda t, y: [-y] if t > 0.1 else -y,     # a list: refused at step 11
-    lambda t, y: "x" if t > 0.1 else -y,      # a string: refused
-    lambda t, y: 1 / 0 if t > 0.1 else -y,    # raises: traceback kept
-    lambda t, y: float("nan") if t > 0.1 else -y,
-    _CallableRhs(),
-])
+@pytest.mark.parametrize(
+    "rhs",
+    [
+        lambda t, y: -y,
+        lambda t, y: np.float64(-y),  # a float subclass: converted
+        lambda t, y: int(-3 * y > -1),  # an int: converted
+        lambda t, y: np.array(-y),  # a 0-d array: converted
+        lambda t, y: [-y] if t > 0.1 else -y,  # a list: refused at step 11
+        lambda t, y: "x" if t > 0.1 else -y,  # a string: refused
+        lambda t, y: 1 / 0 if t > 0.1 else -y,  # raises: traceback kept
+        lambda t, y: float("nan") if t > 0.1 else -y,
+        _CallableRhs(),
+    ],
+)
 @pytest.mark.parametrize("method", ["predictor-corrector", "implicit-rectangle"])
 def test_scalar_rhs_direct_path_equals_cffi_callback(rhs, method, monkeypatch):
     # a scalar rhs is called from C through the Python C API (CPython;

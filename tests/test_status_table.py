@@ -31,8 +31,8 @@ def test_the_library_defines_status_codes():
 @pytest.mark.parametrize("name", ERR_NAMES)
 def test_every_status_constant_has_an_entry(name):
     assert name in errors_mod.STATUS_CLASSES, (
-        f"{name} of the compiled library has no entry in "
-        "pyfracconv._errors.STATUS_CLASSES")
+        f"{name} of the compiled library has no entry in pyfracconv._errors.STATUS_CLASSES"
+    )
     cls = errors_mod.STATUS_CLASSES[name]
     assert issubclass(cls, pf.FracconvError)
     code = int(getattr(lib, name))
@@ -53,13 +53,13 @@ def test_every_entry_is_a_constant_of_the_library():
 # csrc/fracconv.h: what each code means; DEVELOPERS.md: which built-in
 # exception fits that meaning.
 EXPECTED_BASE = {
-    "FC_ERR_NOMEM": MemoryError,        # an allocation failed
-    "FC_ERR_BUSY": RuntimeError,        # used by another call
-    "FC_ERR_HORIZON": RuntimeError,     # a push past the horizon
-    "FC_ERR_FORMAT": ValueError,        # saved state corrupted
-    "FC_ERR_IO": OSError,               # a file could not be read or written
-    "FC_ERR_NONFINITE": ValueError,     # a sample is NaN or infinite
-    "FC_ERR_RANGE": ValueError,         # beyond the double range
+    "FC_ERR_NOMEM": MemoryError,  # an allocation failed
+    "FC_ERR_BUSY": RuntimeError,  # used by another call
+    "FC_ERR_HORIZON": RuntimeError,  # a push past the horizon
+    "FC_ERR_FORMAT": ValueError,  # saved state corrupted
+    "FC_ERR_IO": OSError,  # a file could not be read or written
+    "FC_ERR_NONFINITE": ValueError,  # a sample is NaN or infinite
+    "FC_ERR_RANGE": ValueError,  # beyond the double range
     "FC_ERR_ORDER": ValueError,
     "FC_ERR_STEP": ValueError,
 }
@@ -84,6 +84,7 @@ def test_raise_for_status_ok_and_unknown():
 
 # ------------------------------------------------ the non-finite helper
 
+
 def test_nonfinite_error_names_the_first_bad_element():
     e = errors_mod.nonfinite_error("xs", np.array([1.0, 2.0, math.inf, math.nan]))
     assert isinstance(e, pf.SampleError)
@@ -92,8 +93,9 @@ def test_nonfinite_error_names_the_first_bad_element():
     a[2, 1] = -math.inf
     a[2, 3] = math.nan
     e = errors_mod.nonfinite_error("samples", a, "nothing was pushed")
-    assert str(e) == ("samples[2, 1]=-inf: sample is NaN or infinite "
-                      "(first bad index (2, 1)); nothing was pushed")
+    assert str(e) == (
+        "samples[2, 1]=-inf: sample is NaN or infinite (first bad index (2, 1)); nothing was pushed"
+    )
     e = errors_mod.nonfinite_error("x", np.float64(math.nan), "the stream is unchanged")
     assert str(e) == "x=nan: sample is NaN or infinite; the stream is unchanged"
 

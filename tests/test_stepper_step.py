@@ -20,14 +20,18 @@ from pyfracconv import HorizonError, RhsError, Stepper
 def _ml(a, z):
     """E_a(z) = sum_k z^k / Gamma(a k + 1), 40 digits (mpmath)."""
     with mpmath.workdps(40):
-        return float(mpmath.nsum(lambda k: mpmath.mpf(z) ** k / mpmath.gamma(a * k + 1),
-                                 [0, mpmath.inf]))
+        return float(mpmath.nsum(lambda k: mpmath.mpf(z) ** k / mpmath.gamma(a * k + 1), [0, mpmath.inf]))
 
 
 # every method with every memory
-@pytest.mark.parametrize("method, memory", [
-    (m, mem) for m in ("rectangle", "predictor-corrector", "trapezoid", "implicit-rectangle")
-    for mem in ("exact", "compressed")])
+@pytest.mark.parametrize(
+    "method, memory",
+    [
+        (m, mem)
+        for m in ("rectangle", "predictor-corrector", "trapezoid", "implicit-rectangle")
+        for mem in ("exact", "compressed")
+    ],
+)
 def test_step_equals_advance_one(method, memory):
     kw = dict(method=method, memory=memory, horizon=400)
     a = Stepper(lambda t, y: -y, 1.0, 0.7, 0.01, **kw)
@@ -39,7 +43,7 @@ def test_step_equals_advance_one(method, memory):
     assert a.steps == b.steps == 300 and a.t == b.t and a.rhs_evals == b.rhs_evals
     # and within the method's error of E_a(-t^a) at t = 3 (first order or
     # better at this step: 1e-2 is a loose bound, common practice)
-    assert abs(ys[-1] - _ml(0.7, -(3.0 ** 0.7))) < 1e-2
+    assert abs(ys[-1] - _ml(0.7, -(3.0**0.7))) < 1e-2
 
 
 def test_step_vector_returns_a_new_array():

@@ -32,8 +32,8 @@ from pyfracconv import Stream
 from pyfracconv._fracconv import ffi, lib
 
 RTOL = 1e-12
-N_RULE = 2500          # crosses the leaf band (64) and levels 64 .. 2048
-ENV = 8                # Python envelope in front of the C state
+N_RULE = 2500  # crosses the leaf band (64) and levels 64 .. 2048
+ENV = 8  # Python envelope in front of the C state
 
 
 # ------------------------------------------------------------ references
@@ -94,14 +94,13 @@ def rule_reference(rule, a, h, x):
     for c in range(C):
         xc = x2[:, c]
         for n in range(N):
-            if rule == "rectangle":      # u sum_{k<n} b_{n-1-k} x_k
+            if rule == "rectangle":  # u sum_{k<n} b_{n-1-k} x_k
                 t = w[:n][::-1] * xc[:n]
-            elif rule == "trapezoid":    # A_n x_0 + sum_{1<=k<=n} a_{n-k} x_k
-                t = (np.concatenate(([start[n] * xc[0]], w[:n][::-1] * xc[1:n + 1]))
-                     if n else np.zeros(1))
-            elif rule == "grunwald":     # sum_{k<=n} g_{n-k} x_k
-                t = w[:n + 1][::-1] * xc[:n + 1]
-            else:                        # sum_{k<n} d_k (x_{n-k} - x_{n-k-1})
+            elif rule == "trapezoid":  # A_n x_0 + sum_{1<=k<=n} a_{n-k} x_k
+                t = np.concatenate(([start[n] * xc[0]], w[:n][::-1] * xc[1 : n + 1])) if n else np.zeros(1)
+            elif rule == "grunwald":  # sum_{k<=n} g_{n-k} x_k
+                t = w[: n + 1][::-1] * xc[: n + 1]
+            else:  # sum_{k<n} d_k (x_{n-k} - x_{n-k-1})
                 k = np.arange(n)
                 t = w[:n] * (xc[n - k] - xc[n - k - 1])
             y[n, c] = t.sum()
@@ -146,7 +145,7 @@ def feed(stream, x, rng, max_block=300):
         else:
             b = int(rng.integers(0, max_block))
             b = min(b, N - t)
-            out[t:t + b] = stream.push_many(x[t:t + b])
+            out[t : t + b] = stream.push_many(x[t : t + b])
             t += b
     return out
 
@@ -166,13 +165,13 @@ RULE_CASES = [
 
 # ---------------------------------------------------------- correctness
 
+
 @pytest.mark.parametrize("rule,a,h", RULE_CASES)
 def test_rule_stream_matches_reference_and_batch(rule, a, h):
     rng = np.random.default_rng(RULE_CASES.index((rule, a, h)))  # fixed seed per case
     channels = [None, 1, 3][int(rng.integers(0, 3))]
     shape = (N_RULE,) if channels is None else (N_RULE, channels)
-    x = rng.standard_normal(shape) + np.sin(np.arange(N_RULE) * 0.01).reshape(
-        (-1,) + (1,) * (len(shape) - 1))
+    x = rng.standard_normal(shape) + np.sin(np.arange(N_RULE) * 0.01).reshape((-1,) + (1,) * (len(shape) - 1))
     s = make(rule, a, h, channels)
     y = feed(s, x, rng)
     assert y.shape == x.shape
@@ -231,8 +230,7 @@ def test_identity_rectangle_constant():
     s = Stream.integral(a, h)
     y = s.push_many(np.ones(N))
     n = np.arange(N)
-    exact = np.array([float(mpmath.mpf(h) ** a * mpmath.mpf(int(k)) ** a
-                            / mpmath.gamma(a + 1)) for k in n])
+    exact = np.array([float(mpmath.mpf(h) ** a * mpmath.mpf(int(k)) ** a / mpmath.gamma(a + 1)) for k in n])
     assert y[0] == 0.0
     assert np.max(np.abs(y[1:] - exact[1:]) / exact[1:]) < 1e-12
 
@@ -250,6 +248,7 @@ def test_block_split_is_invisible():
 
 # ------------------------------------------------- preview and history
 
+
 @pytest.mark.parametrize("rule,a,h", RULE_CASES[::2] + [("l1", 0.4, 0.01)])
 def test_preview_equals_push_bit_for_bit(rule, a, h):
     rng = np.random.default_rng(11)
@@ -258,14 +257,16 @@ def test_preview_equals_push_bit_for_bit(rule, a, h):
         for n in range(700):
             x = rng.standard_normal() if channels is None else rng.standard_normal(3)
             p = s.preview(x)
-            p2 = s.preview(x + 1.0)     # previews change nothing
+            p2 = s.preview(x + 1.0)  # previews change nothing
             del p2
             y = s.push(x)
             assert np.array_equal(np.asarray(p), np.asarray(y)), n
             if rng.random() < 0.02:
-                s.push_many(rng.standard_normal((int(rng.integers(1, 200)),)
-                                                if channels is None else
-                                                (int(rng.integers(1, 200)), 3)))
+                s.push_many(
+                    rng.standard_normal(
+                        (int(rng.integers(1, 200)),) if channels is None else (int(rng.integers(1, 200)), 3)
+                    )
+                )
 
 
 @pytest.mark.parametrize("rule", ["rectangle", "trapezoid", "grunwald", "l1"])
@@ -296,6 +297,7 @@ def test_history_term(rule):
 
 
 # ---------------------------------------------------------- bad input
+
 
 def _bad_calls(s, channels):
     """Every kind of rejected call, with the exception it must raise."""
@@ -331,8 +333,8 @@ def test_rejected_calls_change_nothing(rule, channels):
     i = 0
     while t < len(x):
         b = int(rng.integers(1, 130))
-        ya.append(clean.push_many(x[t:t + b]))
-        yb.append(dirty.push_many(x[t:t + b]))
+        ya.append(clean.push_many(x[t : t + b]))
+        yb.append(dirty.push_many(x[t : t + b]))
         t += b
         fn, exc = bad[i % len(bad)]
         i += 1
@@ -369,8 +371,11 @@ def test_error_messages_name_argument_and_value():
         s2.push_many(blk2)
     with pytest.raises(pf.ArgumentError, match=r"order=-0\.5: must be finite and > 0"):
         Stream.integral(-0.5, 0.1)
-    with pytest.raises(pf.ArgumentError, match=r"rule='foo': unknown; expected one of "
-                                               r"'rectangle', 'trapezoid'"):
+    with pytest.raises(
+        pf.ArgumentError,
+        match=r"rule='foo': unknown; expected one of "
+        r"'rectangle', 'trapezoid'",
+    ):
         Stream.integral(0.5, 0.1, rule="foo")
     with pytest.raises(pf.ArgumentError, match=r"rule='rectangle'"):
         Stream.derivative(0.5, 0.1, rule="rectangle")
@@ -402,8 +407,10 @@ def test_error_messages_name_argument_and_value():
 
 # ------------------------------------------------------------ save / load
 
-@pytest.mark.parametrize("rule,a,h", [("rectangle", 0.5, 0.01), ("trapezoid", 1.3, 0.1),
-                                      ("grunwald", 0.7, 0.1), ("l1", 0.3, 0.1)])
+
+@pytest.mark.parametrize(
+    "rule,a,h", [("rectangle", 0.5, 0.01), ("trapezoid", 1.3, 0.1), ("grunwald", 0.7, 0.1), ("l1", 0.3, 0.1)]
+)
 def test_save_load_resumes_bit_for_bit(rule, a, h):
     rng = np.random.default_rng(23)
     for channels in (None, 2):
@@ -417,9 +424,15 @@ def test_save_load_resumes_bit_for_bit(rule, a, h):
             assert isinstance(data, bytes)
             t = Stream.load(data)
             assert (t.count, t.channels, t.rule, t.order, t.step, t.mode) == (
-                cut, channels, rule, a, h, "exact")
+                cut,
+                channels,
+                rule,
+                a,
+                h,
+                "exact",
+            )
             assert t.save() == data
-            tail = x[cut:cut + 600]
+            tail = x[cut : cut + 600]
             assert np.array_equal(s.push_many(tail), t.push_many(tail))
             assert np.array_equal(np.asarray(s.history()), np.asarray(t.history()))
 
@@ -433,15 +446,15 @@ def test_save_load_kernel_and_pickle():
     t = Stream.load(bytearray(s.save()))
     assert t.rule is None and t.channels == 3 and t.count == 777
     assert np.array_equal(s.push_many(x[777:]), t.push_many(x[777:]))
-    u = pickle.loads(pickle.dumps(s))       # pickle goes through save/load
+    u = pickle.loads(pickle.dumps(s))  # pickle goes through save/load
     assert np.array_equal(u.push(np.ones(3)), s.push(np.ones(3)))
     assert not s.save().startswith(pickle.dumps(0)[:2])  # not a pickle stream
 
 
 def _fnv(data):
-    h = 0xcbf29ce484222325
+    h = 0xCBF29CE484222325
     for b in data:
-        h = ((h ^ b) * 0x100000001b3) & 0xFFFFFFFFFFFFFFFF
+        h = ((h ^ b) * 0x100000001B3) & 0xFFFFFFFFFFFFFFFF
     return h
 
 
@@ -460,28 +473,43 @@ def test_load_rejects_bad_bytes():
         Stream.load(good + b"\0")
     # every single bit flipped in the first 120 bytes, then random bits
     positions = [(i, b) for i in range(120) for b in range(8)]
-    positions += [(int(rng.integers(0, len(good))), int(rng.integers(0, 8)))
-                  for _ in range(400)]
+    positions += [(int(rng.integers(0, len(good))), int(rng.integers(0, 8))) for _ in range(400)]
     for i, b in positions:
         bad = bytearray(good)
         bad[i] ^= 1 << b
         with pytest.raises(pf.StateError):
             Stream.load(bytes(bad))
     # foreign data
-    for foreign in (b"", b"hello world", pickle.dumps(s.count), bytes(5000),
-                    rng.bytes(4096), b"pyfcS1\x5a\x00" + rng.bytes(200)):
+    for foreign in (
+        b"",
+        b"hello world",
+        pickle.dumps(s.count),
+        bytes(5000),
+        rng.bytes(4096),
+        b"pyfcS1\x5a\x00" + rng.bytes(200),
+    ):
         with pytest.raises(pf.StateError):
             Stream.load(foreign)
     # consistent checksum, inconsistent contents: the C reader validates
     # every field (format: csrc/stream.c, header of 80 bytes, FNV-1a 64)
     blob = bytearray(good[ENV:])
     # payload: leaf, segments, n, klen, A, then doubles
-    for off, val in ((80 + 16, 10**9), (80 + 32, 10**6), (80 + 16, 299), (80, 32),
-                     (80 + 8, 3), (80 + 24, 5), (40, 3), (16, 7), (8, 2), (20, 9),
-                     (12, 1)):
+    for off, val in (
+        (80 + 16, 10**9),
+        (80 + 32, 10**6),
+        (80 + 16, 299),
+        (80, 32),
+        (80 + 8, 3),
+        (80 + 24, 5),
+        (40, 3),
+        (16, 7),
+        (8, 2),
+        (20, 9),
+        (12, 1),
+    ):
         bad = bytearray(blob)
         width = 4 if off in (8, 12, 16, 20) else 8
-        bad[off:off + width] = val.to_bytes(width, "little")
+        bad[off : off + width] = val.to_bytes(width, "little")
         chk = _fnv(bytes(bad[:72]) + bytes(bad[80:]))
         bad[72:80] = struct.pack("<Q", chk)
         with pytest.raises(pf.StateError):
@@ -514,10 +542,11 @@ def test_saved_format_is_little_endian_and_versioned():
     (n,) = struct.unpack_from("<Q", d, 80 + 16)
     assert n == 10
     (x9,) = struct.unpack_from("<d", d, len(d) - 8 * 1 - 8 * s_acc_len(d))
-    assert x9 == 9.0          # the last stored sample, little-endian IEEE-754
+    assert x9 == 9.0  # the last stored sample, little-endian IEEE-754
 
 
 # --------------------------------------------------------------- threads
+
 
 def test_two_threads_get_busy_error_and_stream_survives():
     s = Stream.integral(0.5, 0.1)
@@ -575,7 +604,8 @@ def test_c_busy_flag():
         # and tried again
         while True:
             st = lib.fc_stream_push_block(
-                s._s, ffi.from_buffer("double[]", x), len(x), ffi.from_buffer("double[]", y))
+                s._s, ffi.from_buffer("double[]", x), len(x), ffi.from_buffer("double[]", y)
+            )
             if st != lib.FC_ERR_BUSY:
                 break
         statuses.append(st)
@@ -595,6 +625,7 @@ def test_c_busy_flag():
 
 # --------------------------------------------------- reserve, reset, misc
 
+
 def test_reserve_then_push_does_not_allocate():
     rng = np.random.default_rng(37)
     for channels in (None, 2):
@@ -609,11 +640,11 @@ def test_reserve_then_push_does_not_allocate():
             if b == 1:
                 s.push(x[t])
             else:
-                s.push_many(x[t:t + b])
+                s.push_many(x[t : t + b])
             t += b
             assert s.nbytes == nb
         assert s.count == 5000
-        s.push(x[0])                   # beyond the reservation it may grow
+        s.push(x[0])  # beyond the reservation it may grow
         assert s.nbytes >= nb
     k = Stream.from_kernel(rng.standard_normal(700))
     k.reserve(3000)
@@ -632,14 +663,12 @@ def test_reset_equals_fresh_stream():
         assert s.count == 0
         fresh = make(rule, 0.5, 0.1, channels=2)
         x = rng.standard_normal((3000, 2))
-        assert np.array_equal(feed(s, x, np.random.default_rng(1)),
-                              feed(fresh, x, np.random.default_rng(2)))
+        assert np.array_equal(feed(s, x, np.random.default_rng(1)), feed(fresh, x, np.random.default_rng(2)))
 
 
 def test_properties_and_memory_growth():
     s = Stream.derivative(0.5, 0.1, rule="l1", channels=4)
-    assert (s.channels, s.mode, s.terms, s.order, s.step, s.rule) == (
-        4, "exact", 0, 0.5, 0.1, "l1")
+    assert (s.channels, s.mode, s.terms, s.order, s.step, s.rule) == (4, "exact", 0, 0.5, 0.1, "l1")
     n0 = s.nbytes
     s.push_many(np.zeros((20000, 4)))
     assert s.count == 20000 and s.nbytes > n0

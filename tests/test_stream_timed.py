@@ -30,10 +30,9 @@ import pyfracconv as pf
 from pyfracconv import ArgumentError, HorizonError, RangeError, SampleError, StateError, grid
 from pyfracconv._fracconv import ffi, lib
 
-EPS = 2.0 ** -52
+EPS = 2.0**-52
 DIRECT = 2e-14
-CODES = {"rectangle": lib.FC_RULE_RECTANGLE, "trapezoid": lib.FC_RULE_TRAPEZOID,
-         "l1": lib.FC_RULE_L1}
+CODES = {"rectangle": lib.FC_RULE_RECTANGLE, "trapezoid": lib.FC_RULE_TRAPEZOID, "l1": lib.FC_RULE_L1}
 
 
 def jittered(rng, n, h=1e-3, amp=0.45):
@@ -59,13 +58,19 @@ def push_in_pieces(s, t, x, rng):
     i = 0
     while i < t.size:
         k = min(t.size - i, int(rng.integers(1, 40)))
-        out[i:i + k] = s.push_many(t[i:i + k], x[i:i + k])
+        out[i : i + k] = s.push_many(t[i : i + k], x[i : i + k])
         i += k
     return out
 
 
-CASES = [("rectangle", 0.3), ("rectangle", 1.0), ("trapezoid", 0.6), ("trapezoid", 0.99),
-         ("l1", 0.2), ("l1", 0.9)]
+CASES = [
+    ("rectangle", 0.3),
+    ("rectangle", 1.0),
+    ("trapezoid", 0.6),
+    ("trapezoid", 0.99),
+    ("l1", 0.2),
+    ("l1", 0.9),
+]
 
 
 @pytest.mark.parametrize("rule,a", CASES)
@@ -79,8 +84,8 @@ def test_within_tolerance_of_direct(rule, a, kind):
         assert h.max() / h.min() > 1e6
     inputs = [
         np.where(np.arange(n) == n // 3, 1e6, 1e-6 * rng.standard_normal(n)),  # spike
-        1.0 + rng.uniform(size=n),                                             # positive
-        1e280 * rng.standard_normal(n),                                        # large
+        1.0 + rng.uniform(size=n),  # positive
+        1e280 * rng.standard_normal(n),  # large
     ]
     for x in inputs:
         yd = grid.apply_on_grid(rule, a, x[None], t)[0]
@@ -135,15 +140,16 @@ def test_closed_form_on_a_graded_mesh():
     # direct engine's plus at most the promise
     t = graded(3000, 3.0)
     a, b = 0.5, 0.5
-    x = t ** b
+    x = t**b
     exact = math.gamma(b + 1) / math.gamma(a + b + 1) * t ** (a + b)
     for rule in ("rectangle", "trapezoid"):
         s = pf.TimedStream(a, min_step=np.diff(t).min(), horizon=1.0, rule=rule, tol=1e-12)
         y = s.push_many(t, x)
         yd = grid.apply_on_grid(rule, a, x[None], t)[0]
         S = abs_terms(rule, a, t, x)
-        assert np.all(np.abs(y - exact) <= np.abs(yd - exact)
-                      + (1e-12 + (s.terms + 64) * EPS + DIRECT) * S + 1e-300)
+        assert np.all(
+            np.abs(y - exact) <= np.abs(yd - exact) + (1e-12 + (s.terms + 64) * EPS + DIRECT) * S + 1e-300
+        )
     # and the trapezoid rule is within its published order 2 in the
     # largest step of the closed form at the end (Diethelm, Ford and Freed
     # 2004; here a loose constant 1)
@@ -153,7 +159,7 @@ def test_closed_form_on_a_graded_mesh():
 @pytest.mark.parametrize("rule,a", [("rectangle", 0.5), ("trapezoid", 0.7), ("l1", 0.3)])
 def test_uniform_times_match_the_uniform_compressed_stream(rule, a):
     rng = np.random.default_rng(64)
-    h = 2.0 ** -8
+    h = 2.0**-8
     n = 3000
     t = h * np.arange(n)
     x = rng.standard_normal(n)
@@ -168,6 +174,7 @@ def test_uniform_times_match_the_uniform_compressed_stream(rule, a):
 
 
 # ------------------------------------------------------------ refusals
+
 
 def _twins(**kw):
     return pf.TimedStream(**kw), pf.TimedStream(**kw)
@@ -185,21 +192,25 @@ def test_refused_pushes_change_nothing(rule):
     before = s.save()
     last = t[-1]
     bad = [
-        (ArgumentError, r"time=0\.18: the step from the previous time 0\.18 is 0",
-         lambda: s.push(last, [1.0, 1.0])),
+        (
+            ArgumentError,
+            r"time=0\.18: the step from the previous time 0\.18 is 0",
+            lambda: s.push(last, [1.0, 1.0]),
+        ),
         (ArgumentError, r"time=0\.1: the step .* below min_step", lambda: s.push(0.1, [1.0, 1.0])),
         (ArgumentError, r"time=0\.185: the step", lambda: s.push(last + 0.005, [1.0, 1.0])),
-        (ArgumentError, r"time=nan: sample times must be finite",
-         lambda: s.push(float("nan"), [1.0, 1.0])),
+        (ArgumentError, r"time=nan: sample times must be finite", lambda: s.push(float("nan"), [1.0, 1.0])),
         (ArgumentError, r"time=inf", lambda: s.push(float("inf"), [1.0, 1.0])),
         (SampleError, r"x", lambda: s.push(last + 0.02, [1.0, float("nan")])),
         (ArgumentError, r"x: expected shape \(2,\)", lambda: s.push(last + 0.02, [1.0])),
         # a block with one bad step in the middle pushes nothing of it
-        (ArgumentError, r"time=0\.225: the step",
-         lambda: s.push_many([0.2, 0.22, 0.225, 0.3], np.ones((4, 2)))),
+        (
+            ArgumentError,
+            r"time=0\.225: the step",
+            lambda: s.push_many([0.2, 0.22, 0.225, 0.3], np.ones((4, 2))),
+        ),
         (HorizonError, r"past the horizon", lambda: s.push(1.5, [1.0, 1.0])),
-        (HorizonError, r"past the horizon",
-         lambda: s.push_many([0.2, 0.5, 1.01], np.ones((3, 2)))),
+        (HorizonError, r"past the horizon", lambda: s.push_many([0.2, 0.5, 1.01], np.ones((3, 2)))),
         (RangeError, r"beyond the range bound", lambda: s.push(0.2, [1e307, 0.0])),
     ]
     for exc, msg, call in bad:
@@ -221,15 +232,24 @@ def test_c_refusals_leave_the_stream_and_outputs_untouched():
         t = np.ascontiguousarray(ts, dtype=float)
         x = np.ascontiguousarray(xs, dtype=float)
         y = np.full(x.size, -7.0)
-        st = lib.fc_stream_push_timed(s, ffi.from_buffer("double[]", t),
-                                      ffi.from_buffer("double[]", x), t.size,
-                                      ffi.from_buffer("double[]", y))
+        st = lib.fc_stream_push_timed(
+            s,
+            ffi.from_buffer("double[]", t),
+            ffi.from_buffer("double[]", x),
+            t.size,
+            ffi.from_buffer("double[]", y),
+        )
         return st, y
 
     assert push([0.0, 0.5], [1.0, 2.0])[0] == lib.FC_OK
-    for ts, st_want in (([0.5], lib.FC_ERR_ARG), ([0.505], lib.FC_ERR_ARG),
-                        ([0.4], lib.FC_ERR_ARG), ([np.nan], lib.FC_ERR_NONFINITE),
-                        ([0.6, 0.6], lib.FC_ERR_ARG), ([0.6, 1.2], lib.FC_ERR_HORIZON)):
+    for ts, st_want in (
+        ([0.5], lib.FC_ERR_ARG),
+        ([0.505], lib.FC_ERR_ARG),
+        ([0.4], lib.FC_ERR_ARG),
+        ([np.nan], lib.FC_ERR_NONFINITE),
+        ([0.6, 0.6], lib.FC_ERR_ARG),
+        ([0.6, 1.2], lib.FC_ERR_HORIZON),
+    ):
         st, y = push(ts, np.ones(len(ts)))
         assert st == st_want and np.all(y == -7.0), (ts, st)
     c = ffi.new("uint64_t *")
@@ -242,8 +262,10 @@ def test_c_refusals_leave_the_stream_and_outputs_untouched():
     assert lib.fc_stream_push1(s, 1.0, y1) == lib.FC_ERR_ARG
     assert lib.fc_stream_preview(s, x1, y1) == lib.FC_ERR_ARG
     assert lib.fc_stream_history(s, y1) == lib.FC_ERR_ARG
-    assert lib.fc_stream_create(lib.FC_RULE_RECTANGLE, 0.5, 1.0, 1, lib.FC_MODE_COMPRESSED,
-                                1e-10, 100.0, pp) == 0
+    assert (
+        lib.fc_stream_create(lib.FC_RULE_RECTANGLE, 0.5, 1.0, 1, lib.FC_MODE_COMPRESSED, 1e-10, 100.0, pp)
+        == 0
+    )
     u = ffi.gc(pp[0], lib.fc_stream_free)
     t1 = ffi.new("double[1]", [0.0])
     assert lib.fc_stream_push_timed(u, t1, x1, 1, y1) == lib.FC_ERR_ARG
@@ -252,19 +274,29 @@ def test_c_refusals_leave_the_stream_and_outputs_untouched():
     assert lib.fc_stream_is_timed(s, flag) == 0 and flag[0] == 1
     # y overlapping t is refused
     tt = np.array([0.6, 0.7])
-    assert lib.fc_stream_push_timed(s, ffi.from_buffer("double[]", tt), ffi.from_buffer(
-        "double[]", np.ones(2)), 2, ffi.from_buffer("double[]", tt)) == lib.FC_ERR_ARG
+    assert (
+        lib.fc_stream_push_timed(
+            s,
+            ffi.from_buffer("double[]", tt),
+            ffi.from_buffer("double[]", np.ones(2)),
+            2,
+            ffi.from_buffer("double[]", tt),
+        )
+        == lib.FC_ERR_ARG
+    )
     # creation
-    for args, st_want in (((lib.FC_RULE_GRUNWALD, 0.5, 0.01, 1, 1e-10, 1.0), lib.FC_ERR_RULE),
-                          ((lib.FC_RULE_RECTANGLE, 1.5, 0.01, 1, 1e-10, 1.0), lib.FC_ERR_ORDER),
-                          ((lib.FC_RULE_L1, 1.0, 0.01, 1, 1e-10, 1.0), lib.FC_ERR_ORDER),
-                          ((lib.FC_RULE_RECTANGLE, 0.5, 0.0, 1, 1e-10, 1.0), lib.FC_ERR_STEP),
-                          ((lib.FC_RULE_RECTANGLE, 0.5, np.inf, 1, 1e-10, 1.0), lib.FC_ERR_STEP),
-                          ((lib.FC_RULE_RECTANGLE, 0.5, 0.01, 0, 1e-10, 1.0), lib.FC_ERR_ARG),
-                          ((lib.FC_RULE_RECTANGLE, 0.5, 0.01, 1, 1e-16, 1.0), lib.FC_ERR_TOL),
-                          ((lib.FC_RULE_RECTANGLE, 0.5, 0.01, 1, 1e-10, 0.005), lib.FC_ERR_TOL),
-                          ((lib.FC_RULE_RECTANGLE, 0.5, 1e-30, 1, 1e-10, 1.0), lib.FC_ERR_TOL),
-                          ((lib.FC_RULE_RECTANGLE, 0.5, 0.01, 1, 1e-10, np.inf), lib.FC_ERR_TOL)):
+    for args, st_want in (
+        ((lib.FC_RULE_GRUNWALD, 0.5, 0.01, 1, 1e-10, 1.0), lib.FC_ERR_RULE),
+        ((lib.FC_RULE_RECTANGLE, 1.5, 0.01, 1, 1e-10, 1.0), lib.FC_ERR_ORDER),
+        ((lib.FC_RULE_L1, 1.0, 0.01, 1, 1e-10, 1.0), lib.FC_ERR_ORDER),
+        ((lib.FC_RULE_RECTANGLE, 0.5, 0.0, 1, 1e-10, 1.0), lib.FC_ERR_STEP),
+        ((lib.FC_RULE_RECTANGLE, 0.5, np.inf, 1, 1e-10, 1.0), lib.FC_ERR_STEP),
+        ((lib.FC_RULE_RECTANGLE, 0.5, 0.01, 0, 1e-10, 1.0), lib.FC_ERR_ARG),
+        ((lib.FC_RULE_RECTANGLE, 0.5, 0.01, 1, 1e-16, 1.0), lib.FC_ERR_TOL),
+        ((lib.FC_RULE_RECTANGLE, 0.5, 0.01, 1, 1e-10, 0.005), lib.FC_ERR_TOL),
+        ((lib.FC_RULE_RECTANGLE, 0.5, 1e-30, 1, 1e-10, 1.0), lib.FC_ERR_TOL),
+        ((lib.FC_RULE_RECTANGLE, 0.5, 0.01, 1, 1e-10, np.inf), lib.FC_ERR_TOL),
+    ):
         assert lib.fc_stream_create_timed(*args, pp) == st_want, args
 
 
@@ -277,7 +309,7 @@ def test_horizon_policy_continue():
     # a constant: the rectangle rule gives (t - t0)^a / Gamma(a+1) on any
     # grid (the weights telescope; Podlubny 1999), here within tol at 3.0
     # although past the horizon the promise no longer holds formally
-    assert math.isclose(y, 3.0 ** 0.5 / math.gamma(1.5), rel_tol=1e-6)
+    assert math.isclose(y, 3.0**0.5 / math.gamma(1.5), rel_tol=1e-6)
     r = pf.TimedStream.load(s.save())
     assert r.past_horizon and r.horizon_policy == "refuse"
 
@@ -298,6 +330,7 @@ def test_python_parameter_checks():
 
 
 # ------------------------------------------------------------ save/load
+
 
 def fnv(data):
     h = 14695981039346656037
@@ -325,10 +358,16 @@ def test_save_load_resumes_bit_for_bit():
             s = pf.TimedStream(a, 0.5e-3, 1.0, rule=rule)
             s.push_many(t[:cut], x[:cut])
             r = pf.TimedStream.load(s.save())
-            assert (r.rule, r.order, r.min_step, r.tol, r.horizon, r.channels, r.count) == \
-                (rule, a, 0.5e-3, 1e-10, 1.0, None, cut)
-            np.testing.assert_array_equal(r.push_many(t[cut:], x[cut:]),
-                                          s.push_many(t[cut:], x[cut:]))
+            assert (r.rule, r.order, r.min_step, r.tol, r.horizon, r.channels, r.count) == (
+                rule,
+                a,
+                0.5e-3,
+                1e-10,
+                1.0,
+                None,
+                cut,
+            )
+            np.testing.assert_array_equal(r.push_many(t[cut:], x[cut:]), s.push_many(t[cut:], x[cut:]))
             assert r.save() == s.save()
 
 
@@ -338,7 +377,7 @@ def test_bad_bytes_are_refused():
     t = jittered(rng, 50)
     s.push_many(t, rng.standard_normal((50, 2)))
     blob = s.save()
-    assert pf.TimedStream.load(reseal(blob)).save() == blob   # reseal is faithful
+    assert pf.TimedStream.load(reseal(blob)).save() == blob  # reseal is faithful
     for cut in (0, 7, 8, 40, 88, len(blob) - 1):
         with pytest.raises(StateError):
             pf.TimedStream.load(blob[:cut])
@@ -348,20 +387,22 @@ def test_bad_bytes_are_refused():
         with pytest.raises(StateError):
             pf.TimedStream.load(bytes(b))
     # tampered fields, checksums recomputed: still refused
-    P = 8 + 80                                   # payload start in the envelope
+    P = 8 + 80  # payload start in the envelope
 
     def tamper(off, fmt, value):
         b = bytearray(blob)
         struct.pack_into(fmt, b, P + off, value)
         return reseal(bytes(b))
 
-    for off, fmt, value in ((32, "<Q", 0),          # count 0 with a state
-                            (32, "<Q", 10 ** 6),    # more samples than the span allows
-                            (80, "<d", float(t[0])),  # tprev = t0
-                            (72, "<d", float(t[-1]) + 1.0),  # t0 after tprev
-                            (88, "<I", 1),          # past flag without being past
-                            (96, "<d", 1.0),        # a term's exponent
-                            (96 + 8 * s.terms, "<d", 2.0)):  # a term's weight
+    for off, fmt, value in (
+        (32, "<Q", 0),  # count 0 with a state
+        (32, "<Q", 10**6),  # more samples than the span allows
+        (80, "<d", float(t[0])),  # tprev = t0
+        (72, "<d", float(t[-1]) + 1.0),  # t0 after tprev
+        (88, "<I", 1),  # past flag without being past
+        (96, "<d", 1.0),  # a term's exponent
+        (96 + 8 * s.terms, "<d", 2.0),
+    ):  # a term's weight
         with pytest.raises(StateError):
             pf.TimedStream.load(tamper(off, fmt, value))
     # a non-timed stream's bytes and a timed stream's bytes in the other
@@ -381,12 +422,14 @@ def test_scalar_refusals_change_nothing():
     for ti, xi in ((0.0, 1.0), (0.02, 2.0), (0.05, -1.0)):
         assert s.push(ti, xi) == twin.push(ti, xi)
     before = s.save()
-    for exc, call in ((ArgumentError, lambda: s.push(0.05, 1.0)),
-                      (ArgumentError, lambda: s.push(0.055, 1.0)),
-                      (ArgumentError, lambda: s.push(float("nan"), 1.0)),
-                      (SampleError, lambda: s.push(0.1, float("inf"))),
-                      (HorizonError, lambda: s.push(2.0, 1.0)),
-                      (RangeError, lambda: s.push(0.1, 1e308))):
+    for exc, call in (
+        (ArgumentError, lambda: s.push(0.05, 1.0)),
+        (ArgumentError, lambda: s.push(0.055, 1.0)),
+        (ArgumentError, lambda: s.push(float("nan"), 1.0)),
+        (SampleError, lambda: s.push(0.1, float("inf"))),
+        (HorizonError, lambda: s.push(2.0, 1.0)),
+        (RangeError, lambda: s.push(0.1, 1e308)),
+    ):
         with pytest.raises(exc):
             call()
         assert s.save() == before
@@ -395,8 +438,9 @@ def test_scalar_refusals_change_nothing():
 
 
 @pytest.mark.parametrize("min_step", [1e-9, 1.0, 1e3])
-@pytest.mark.parametrize("rule,a", [("rectangle", 0.5), ("rectangle", 1.0),
-                                    ("trapezoid", 0.9), ("l1", 0.01), ("l1", 0.99)])
+@pytest.mark.parametrize(
+    "rule,a", [("rectangle", 0.5), ("rectangle", 1.0), ("trapezoid", 0.9), ("l1", 0.01), ("l1", 0.99)]
+)
 def test_range_bound_accepts_1e290(rule, a, min_step):
     # the header's statement: samples (L1: increments) up to about 1e290
     # are accepted with a horizon of 1e6 smallest steps, and the outputs
@@ -420,8 +464,15 @@ def test_in_place_push_gives_the_same_outputs():
             s = ffi.gc(pp[0], lib.fc_stream_free)
             x = X.copy()
             y = x if in_place else np.empty_like(x)
-            assert lib.fc_stream_push_timed(s, ffi.from_buffer("double[]", t),
-                                            ffi.from_buffer("double[]", x), 300,
-                                            ffi.from_buffer("double[]", y)) == 0
+            assert (
+                lib.fc_stream_push_timed(
+                    s,
+                    ffi.from_buffer("double[]", t),
+                    ffi.from_buffer("double[]", x),
+                    300,
+                    ffi.from_buffer("double[]", y),
+                )
+                == 0
+            )
             outs.append(y.copy())
         np.testing.assert_array_equal(outs[0], outs[1])

@@ -67,11 +67,14 @@ def cdef_block():
 
 def prototypes(block):
     """(name, return type, start offset) of every FC_API declaration."""
-    return [(m.group(2), m.group(1).strip(), m.start())
-            for m in re.finditer(r"^FC_API\s+([A-Za-z_ ]+?\**)\s*(fc_\w+)\(", block, re.M)]
+    return [
+        (m.group(2), m.group(1).strip(), m.start())
+        for m in re.finditer(r"^FC_API\s+([A-Za-z_ ]+?\**)\s*(fc_\w+)\(", block, re.M)
+    ]
 
 
 # ------------------------------------------------------------ exported names
+
 
 @pytest.fixture(scope="module")
 def shared_object(tmp_path_factory):
@@ -79,14 +82,19 @@ def shared_object(tmp_path_factory):
         pytest.skip("nm (binutils) is not installed: the exported names cannot be listed")
     build = tmp_path_factory.mktemp("cbuild")
     env = {k: v for k, v in os.environ.items() if k != "CFLAGS"}
-    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"],
-                   check=True, capture_output=True, text=True, env=env)
+    subprocess.run(
+        ["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True, capture_output=True, text=True, env=env
+    )
     return build
 
 
 def test_shared_object_exports_only_the_public_functions(shared_object):
-    out = subprocess.run(["nm", "-D", "--defined-only", str(shared_object / "libfracconv.so")],
-                         check=True, capture_output=True, text=True).stdout
+    out = subprocess.run(
+        ["nm", "-D", "--defined-only", str(shared_object / "libfracconv.so")],
+        check=True,
+        capture_output=True,
+        text=True,
+    ).stdout
     names = set()
     for line in out.splitlines():
         parts = line.split()
@@ -101,19 +109,20 @@ def test_shared_object_exports_only_the_public_functions(shared_object):
 
 def test_shared_object_has_soname_and_symlinks(shared_object):
     text = header_text()
-    v = [re.search(rf"^#define FC_VERSION_{k} (\d+)", text, re.M).group(1)
-         for k in ("MAJOR", "MINOR", "PATCH")]
+    v = [
+        re.search(rf"^#define FC_VERSION_{k} (\d+)", text, re.M).group(1) for k in ("MAJOR", "MINOR", "PATCH")
+    ]
     so = shared_object / "libfracconv.so"
     assert os.readlink(so) == f"libfracconv.so.{v[0]}"
     assert os.readlink(shared_object / f"libfracconv.so.{v[0]}") == f"libfracconv.so.{'.'.join(v)}"
     if shutil.which("readelf") is None:
         pytest.skip("readelf is not installed: the SONAME cannot be read")
-    dyn = subprocess.run(["readelf", "-d", str(so)], check=True, capture_output=True,
-                         text=True).stdout
+    dyn = subprocess.run(["readelf", "-d", str(so)], check=True, capture_output=True, text=True).stdout
     assert f"Library soname: [libfracconv.so.{v[0]}]" in dyn
 
 
 # ------------------------------------------------------- statuses in the header
+
 
 def test_every_prototype_names_its_statuses():
     block = cdef_block()
@@ -135,6 +144,7 @@ def test_every_prototype_names_its_statuses():
 
 def test_the_cffi_declarations_carry_no_visibility_macro():
     import importlib.util
+
     spec = importlib.util.spec_from_file_location("setup_build", os.path.join(ROOT, "setup_build.py"))
     mod = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(mod)
@@ -149,10 +159,18 @@ def test_the_cffi_declarations_carry_no_visibility_macro():
 # 0 < order < 1; fc_stream_create, compressed: 1e-280 <= order < 1, and
 # 1 <= order < 2 too for the rectangle rule), as
 # (lo, lo_inclusive, hi, hi_inclusive).
-DOC_EXACT = {"rectangle": (0.0, 0, 10.0, 1), "trapezoid": (0.0, 0, 10.0, 1),
-             "grunwald": (0.0, 0, 10.0, 1), "l1": (0.0, 0, 1.0, 0)}
-DOC_COMPRESSED = {"rectangle": (1e-280, 1, 2.0, 0), "trapezoid": (1e-280, 1, 2.0, 0),
-                  "grunwald": (1e-280, 1, 1.0, 0), "l1": (1e-280, 1, 1.0, 0)}
+DOC_EXACT = {
+    "rectangle": (0.0, 0, 10.0, 1),
+    "trapezoid": (0.0, 0, 10.0, 1),
+    "grunwald": (0.0, 0, 10.0, 1),
+    "l1": (0.0, 0, 1.0, 0),
+}
+DOC_COMPRESSED = {
+    "rectangle": (1e-280, 1, 2.0, 0),
+    "trapezoid": (1e-280, 1, 2.0, 0),
+    "grunwald": (1e-280, 1, 1.0, 0),
+    "l1": (1e-280, 1, 1.0, 0),
+}
 
 
 def rule_info(rule):
@@ -183,8 +201,11 @@ def test_rule_table_names_kinds_and_numbers():
         seen[name] = (r, der)
     # the numbers are part of the save format: the header's constants
     assert {k: v[0] for k, v in seen.items()} == {
-        "rectangle": lib.FC_RULE_RECTANGLE, "trapezoid": lib.FC_RULE_TRAPEZOID,
-        "grunwald": lib.FC_RULE_GRUNWALD, "l1": lib.FC_RULE_L1}
+        "rectangle": lib.FC_RULE_RECTANGLE,
+        "trapezoid": lib.FC_RULE_TRAPEZOID,
+        "grunwald": lib.FC_RULE_GRUNWALD,
+        "l1": lib.FC_RULE_L1,
+    }
     assert {k: v[0] for k, v in seen.items()} == _core.RULES
     assert sorted(k for k, v in seen.items() if not v[1]) == sorted(_core.INTEGRAL_RULES)
     assert sorted(k for k, v in seen.items() if v[1]) == sorted(_core.DERIVATIVE_RULES)
@@ -199,8 +220,20 @@ def test_unknown_rules_and_modes_are_refused():
         assert lib.fc_stream_create(r, 0.5, 1.0, 1, lib.FC_MODE_EXACT, 0, 0, out) == lib.FC_ERR_RULE
         x = np.zeros(4)
         y = np.zeros(4)
-        assert lib.fc_apply(ffi.NULL, r, 0.5, 1.0, ffi.from_buffer("double[]", x), 1, 4,
-                            lib.FC_ENGINE_DIRECT, ffi.from_buffer("double[]", y)) == lib.FC_ERR_RULE
+        assert (
+            lib.fc_apply(
+                ffi.NULL,
+                r,
+                0.5,
+                1.0,
+                ffi.from_buffer("double[]", x),
+                1,
+                4,
+                lib.FC_ENGINE_DIRECT,
+                ffi.from_buffer("double[]", y),
+            )
+            == lib.FC_ERR_RULE
+        )
     assert order_range(0, 2)[0] == lib.FC_ERR_MODE
     assert order_range(0, -1)[0] == lib.FC_ERR_MODE
 
@@ -215,8 +248,17 @@ def test_rule_table_ranges_are_the_documented_ones():
 def _apply(rule, order):
     x = np.linspace(0.0, 1.0, 8)
     y = np.zeros(8)
-    return lib.fc_apply(ffi.NULL, rule, order, 0.5, ffi.from_buffer("double[]", x), 1, 8,
-                        lib.FC_ENGINE_DIRECT, ffi.from_buffer("double[]", y))
+    return lib.fc_apply(
+        ffi.NULL,
+        rule,
+        order,
+        0.5,
+        ffi.from_buffer("double[]", x),
+        1,
+        8,
+        lib.FC_ENGINE_DIRECT,
+        ffi.from_buffer("double[]", y),
+    )
 
 
 def _create(rule, order, mode):
@@ -266,6 +308,7 @@ def test_python_checks_accept_exactly_the_table_ranges(mode):
     # the Python layer asks the C table (fc_rule_order_range) instead of
     # keeping its own copy: its order check must move with the table's ends
     from pyfracconv import _checks
+
     m = lib.FC_MODE_EXACT if mode == "exact" else lib.FC_MODE_COMPRESSED
     names = {rule_info(r)[1]: r for r in rules()}
     assert _checks.RULES == names
@@ -285,11 +328,11 @@ def test_python_checks_accept_exactly_the_table_ranges(mode):
                 assert str(e).startswith(f"order={order!r}"), str(e)
             assert got == accepted, (name, mode, order)
 
+
 # ------------------------------------------------------------ stream engines
 
 CSRC = os.path.join(ROOT, "csrc")
-ENGINE_FILES = ("stream.c", "stream_exact.c", "stream_compressed.c", "stream_timed.c",
-                "soe_build.c")
+ENGINE_FILES = ("stream.c", "stream_exact.c", "stream_compressed.c", "stream_timed.c", "soe_build.c")
 
 
 def c_source(name):
@@ -313,9 +356,20 @@ def test_stream_engines_are_separate_files():
 def test_stream_facade_holds_no_engine():
     code = c_code("stream.c")
     # no FFTs, kernels, recursions or sums of exponentials
-    for name in ("fc__fft_", "fc__spec_dot", "fc__lag_kernel", "fc__x0_correction",
-                 "fc__correction", "fc__soe_build", "fc__segment_start", "fma(", "immintrin", "level_frame",
-                 "cs_step", "leaf_dot"):
+    for name in (
+        "fc__fft_",
+        "fc__spec_dot",
+        "fc__lag_kernel",
+        "fc__x0_correction",
+        "fc__correction",
+        "fc__soe_build",
+        "fc__segment_start",
+        "fma(",
+        "immintrin",
+        "level_frame",
+        "cs_step",
+        "leaf_dot",
+    ):
         assert name not in code, name
     # the stream object keeps the common fields, the operations and an
     # opaque engine pointer
@@ -325,12 +379,37 @@ def test_stream_facade_holds_no_engine():
     assert re.search(r"const fc__stream_ops \*ops;", body)
     assert re.search(r"void \*eng;", body)
     fields = set(re.findall(r"(\w+)(?:\[\w+\])?\s*[;,]", body))
-    for exact_only in ("leaf", "segs", "lev", "u", "acc", "xprev", "x0", "kernel", "corr",
-                       "work", "umax", "cs"):
+    for exact_only in (
+        "leaf",
+        "segs",
+        "lev",
+        "u",
+        "acc",
+        "xprev",
+        "x0",
+        "kernel",
+        "corr",
+        "work",
+        "umax",
+        "cs",
+    ):
         assert exact_only not in fields, exact_only
     # every call goes through the table
-    for op in ("create", "load", "free", "push_block", "push1", "preview", "history",
-               "reset", "count", "nbytes", "terms", "save_size", "save"):
+    for op in (
+        "create",
+        "load",
+        "free",
+        "push_block",
+        "push1",
+        "preview",
+        "history",
+        "reset",
+        "count",
+        "nbytes",
+        "terms",
+        "save_size",
+        "save",
+    ):
         assert f"ops->{op}(" in code, op
 
 
@@ -344,8 +423,7 @@ def test_stream_facade_does_not_branch_on_mode():
     assert re.search(r"\[FC_MODE_EXACT\]\s*=\s*&fc__exact_ops", code)
     assert re.search(r"\[FC_MODE_COMPRESSED\]\s*=\s*&fc__compressed_ops", code)
     assert "ops->order_range(" in code
-    for name in ("FC__CS_TOL_MIN", "FC__CS_TOL_MAX", "FC__CS_HORIZON_MAX", "->exact",
-                 "->compressed"):
+    for name in ("FC__CS_TOL_MIN", "FC__CS_TOL_MAX", "FC__CS_HORIZON_MAX", "->exact", "->compressed"):
         assert name not in code, name
     rules = c_code("rules.c")
     assert "ops->order_range(" in rules and "FC_MODE_" not in rules
@@ -363,9 +441,11 @@ def test_engines_read_the_correction_columns_from_the_table():
 
 
 def test_each_engine_has_its_table_state_and_no_repeated_checks():
-    for name, table, state in (("stream_exact.c", "fc__exact_ops", "ex_engine"),
-                               ("stream_compressed.c", "fc__compressed_ops", "cs_engine"),
-                               ("stream_timed.c", "fc__timed_ops", "ts_engine")):
+    for name, table, state in (
+        ("stream_exact.c", "fc__exact_ops", "ex_engine"),
+        ("stream_compressed.c", "fc__compressed_ops", "cs_engine"),
+        ("stream_timed.c", "fc__timed_ops", "ts_engine"),
+    ):
         code = c_code(name)
         assert re.search(rf"^const fc__stream_ops {table} = \{{", code, re.M), name
         # its own state struct, the one the engine pointer stands for

@@ -17,8 +17,12 @@ import pytest
 
 import pyfracconv as pf
 
-RULES = [("integral", "rectangle", 0.6), ("integral", "trapezoid", 1.4),
-         ("derivative", "grunwald", 0.5), ("derivative", "l1", 0.3)]
+RULES = [
+    ("integral", "rectangle", 0.6),
+    ("integral", "trapezoid", 1.4),
+    ("derivative", "grunwald", 0.5),
+    ("derivative", "l1", 0.3),
+]
 
 
 def _job(i):
@@ -29,8 +33,7 @@ def _job(i):
     make = getattr(pf.Stream, kind)
     exact = make(order, 0.01, rule=rule)
     ye = np.array([exact.push(v) for v in x[:500]] + list(exact.push_many(x[500:])))
-    comp = make(min(order, 0.9), 0.01, rule=rule, mode="compressed", tol=1e-10,
-                horizon=1e5)
+    comp = make(min(order, 0.9), 0.01, rule=rule, mode="compressed", tol=1e-10, horizon=1e5)
     yc = comp.push_many(x)
     return batch, ye, yc, exact.save(), comp.save()
 
@@ -97,6 +100,7 @@ def test_a_stream_held_by_one_thread_is_refused_to_another():
 
 # ------------------------------------------------ solvers and controllers
 
+
 def _solver_job(i):
     methods = ["rectangle", "predictor-corrector", "trapezoid", "implicit-rectangle"]
     method = methods[i % 4]
@@ -123,13 +127,21 @@ def _controller_job(i):
     rng = np.random.default_rng(2000 + i)
     r = np.where((np.arange(2000) // 400) % 2 == 1, 1.0, -0.5)
     y = 0.3 * np.sin(0.01 * np.arange(2000)) + 0.05 * rng.standard_normal(2000)
-    c = pf.Controller(1.2, 0.4 + 0.01 * i, 0.15, integral_order=0.7,
-                      derivative_order=0.4, step=0.01, output_limits=(-1.0, 1.0),
-                      rate_limit=50.0, derivative_filter=0.02,
-                      integral_rule="rectangle" if (i // 2) % 2 else "trapezoid",
-                      derivative_rule="l1" if (i // 4) % 2 else "grunwald",
-                      memory="compressed" if i % 2 else "exact",
-                      **({"tol": 1e-10, "horizon": 1e5} if i % 2 else {}))
+    c = pf.Controller(
+        1.2,
+        0.4 + 0.01 * i,
+        0.15,
+        integral_order=0.7,
+        derivative_order=0.4,
+        step=0.01,
+        output_limits=(-1.0, 1.0),
+        rate_limit=50.0,
+        derivative_filter=0.02,
+        integral_rule="rectangle" if (i // 2) % 2 else "trapezoid",
+        derivative_rule="l1" if (i // 4) % 2 else "grunwald",
+        memory="compressed" if i % 2 else "exact",
+        **({"tol": 1e-10, "horizon": 1e5} if i % 2 else {}),
+    )
     u1 = c.update_block(r[:500], y[:500])
     c.manual(0.25)
     u2 = c.update_block(r[500:1000], y[500:1000])
@@ -191,11 +203,15 @@ def test_a_stepper_held_by_one_thread_is_refused_to_another():
     assert entered.wait(10)
     refused = []
     try:
-        for name, call in [("advance", lambda: st.advance(1)), ("save", st.save),
-                           ("t", lambda: st.t), ("y", lambda: st.y),
-                           ("steps", lambda: st.steps),
-                           ("rhs_evals", lambda: st.rhs_evals),
-                           ("nbytes", lambda: st.nbytes)]:
+        for name, call in [
+            ("advance", lambda: st.advance(1)),
+            ("save", st.save),
+            ("t", lambda: st.t),
+            ("y", lambda: st.y),
+            ("steps", lambda: st.steps),
+            ("rhs_evals", lambda: st.rhs_evals),
+            ("nbytes", lambda: st.nbytes),
+        ]:
             try:
                 call()
             except pf.BusyError:
@@ -216,8 +232,9 @@ def test_a_controller_held_by_one_thread_is_refused_to_another():
     # object whose NumPy conversion (done while the block holds the
     # controller) waits on an event
     def make():
-        return pf.Controller(1.0, 0.5, 0.1, integral_order=0.6, derivative_order=0.4,
-                             step=0.1, output_limits=(-2.0, 2.0))
+        return pf.Controller(
+            1.0, 0.5, 0.1, integral_order=0.6, derivative_order=0.4, step=0.1, output_limits=(-2.0, 2.0)
+        )
 
     c = make()
     c.update_block(np.ones(10), np.zeros(10))
@@ -243,11 +260,14 @@ def test_a_controller_held_by_one_thread_is_refused_to_another():
     assert entered.wait(10)
     refused = []
     try:
-        for name, call in [("update", lambda: c.update(1.0, 0.0)),
-                           ("update_block", lambda: c.update_block([1.0], [0.0])),
-                           ("manual", lambda: c.manual(0.5)),
-                           ("automatic", c.automatic), ("reset", c.reset),
-                           ("save", c.save)]:
+        for name, call in [
+            ("update", lambda: c.update(1.0, 0.0)),
+            ("update_block", lambda: c.update_block([1.0], [0.0])),
+            ("manual", lambda: c.manual(0.5)),
+            ("automatic", c.automatic),
+            ("reset", c.reset),
+            ("save", c.save),
+        ]:
             try:
                 call()
             except pf.BusyError:

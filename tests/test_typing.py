@@ -31,14 +31,24 @@ def _check_annotated(func, name):
 
 
 def test_public_functions_are_annotated():
-    for name in ("weights", "lagged_sum", "integral", "derivative", "get_include",
-                 "get_lib_dir"):
+    for name in ("weights", "lagged_sum", "integral", "derivative", "get_include", "get_lib_dir"):
         _check_annotated(getattr(pyfracconv, name), name)
 
 
 def test_stream_methods_and_properties_are_annotated():
-    for name in ("integral", "derivative", "from_kernel", "push", "push_many",
-                 "preview", "history", "reset", "reserve", "save", "load"):
+    for name in (
+        "integral",
+        "derivative",
+        "from_kernel",
+        "push",
+        "push_many",
+        "preview",
+        "history",
+        "reset",
+        "reserve",
+        "save",
+        "load",
+    ):
         _check_annotated(getattr(Stream, name), f"Stream.{name}")
     for name, value in vars(Stream).items():
         if isinstance(value, property):

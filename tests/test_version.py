@@ -62,9 +62,15 @@ def test_makefile_names_the_shared_object_from_the_header(tmp_path):
     # make -n prints the link line: the SONAME carries the major number,
     # the file the full version (both read from the header).
     import subprocess
+
     major, minor, patch = header_version()
     env = {k: v for k, v in os.environ.items() if k != "CFLAGS"}
-    out = subprocess.run(["make", "-n", "-C", ROOT, f"BUILD={tmp_path}", "lib"],
-                         check=True, capture_output=True, text=True, env=env).stdout
+    out = subprocess.run(
+        ["make", "-n", "-C", ROOT, f"BUILD={tmp_path}", "lib"],
+        check=True,
+        capture_output=True,
+        text=True,
+        env=env,
+    ).stdout
     assert f"-Wl,-soname,libfracconv.so.{major} " in out
     assert f"libfracconv.so.{major}.{minor}.{patch}" in out

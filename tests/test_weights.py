@@ -43,14 +43,41 @@ STEPS = [1.0, 1e-3, 0.37, 7.5]
 
 _rng = random.Random(20240611)
 INDICES = sorted(
-    {0, 1, 2, 3, 4, 5, 7, 10, 11, 16, 17, 31, 100, 255, 256, 257, 1000,
-     10**4, 10**5, 10**6, 10**7, 10**8, 10**9, 10**10, 10**11, 10**12,
-     2**53 - 1}
+    {
+        0,
+        1,
+        2,
+        3,
+        4,
+        5,
+        7,
+        10,
+        11,
+        16,
+        17,
+        31,
+        100,
+        255,
+        256,
+        257,
+        1000,
+        10**4,
+        10**5,
+        10**6,
+        10**7,
+        10**8,
+        10**9,
+        10**10,
+        10**11,
+        10**12,
+        2**53 - 1,
+    }
     | {int(10 ** _rng.uniform(0.5, 12)) for _ in range(10)}
 )
 
 
 # ------------------------------------------------------------- references
+
 
 def _mp_weight(rule, a, m, h):
     """Scaled weight of `rule` at index m, from the defining formula
@@ -109,11 +136,11 @@ def _check_points(rule, a):
     for k in [_rng.randrange(20000) for _ in range(6)] + [19999]:
         pairs.append((s0 + k, run[k]))
     worst, where = _worst(rule, a, h, pairs)
-    assert worst <= RTOL, (
-        f"{rule} order={a!r} step={h!r}: relative error {worst:.3g} at index {where}")
+    assert worst <= RTOL, f"{rule} order={a!r} step={h!r}: relative error {worst:.3g} at index {where}"
 
 
 # ------------------------------------------------- weights against mpmath
+
 
 @pytest.mark.parametrize("a", ORDERS + NEAR_INTEGER)
 def test_rectangle_weights_against_mpmath(a):
@@ -162,8 +189,12 @@ def test_random_orders_steps_and_indices(rule):
 def test_steps_whose_scale_factor_leaves_the_double_range():
     # h^a / Gamma(a+1) below the smallest double while the weights
     # themselves are normal numbers (reference: mpmath, as above).
-    cases = [("rectangle", 10.0, 1e-40), ("trapezoid", 9.5, 1e-35),
-             ("grunwald", 10.0, 1e40), ("l1", 0.7, 1e-300)]
+    cases = [
+        ("rectangle", 10.0, 1e-40),
+        ("trapezoid", 9.5, 1e-35),
+        ("grunwald", 10.0, 1e40),
+        ("l1", 0.7, 1e-300),
+    ]
     for rule, a, h in cases:
         start = 10**12
         vals = _library(rule, a, 3, h, start)
@@ -172,6 +203,7 @@ def test_steps_whose_scale_factor_leaves_the_double_range():
 
 
 # ------------------------------------------------------------ identities
+
 
 @pytest.mark.parametrize("a", [1e-3, 0.3, 0.999, 1.7, 4.2, 10.0])
 def test_rectangle_weights_telescope(a):
@@ -241,6 +273,7 @@ def test_order_one_gives_the_classical_rules():
 
 
 # -------------------------------------------------- shapes and the C call
+
 
 def test_result_layout():
     for rule in ("rectangle", "trapezoid", "grunwald", "l1"):

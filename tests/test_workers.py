@@ -26,13 +26,28 @@ import pyfracconv as pf
 from pyfracconv import ArgumentError, InputTypeError
 
 CPUS = os.cpu_count() or 1
-RULES = [("integral", "rectangle", 0.6), ("integral", "trapezoid", 1.4),
-         ("derivative", "grunwald", 0.5), ("derivative", "l1", 0.3)]
+RULES = [
+    ("integral", "rectangle", 0.6),
+    ("integral", "trapezoid", 1.4),
+    ("derivative", "grunwald", 0.5),
+    ("derivative", "l1", 0.3),
+]
 # (signals, samples): one long signal, odd counts, one channel, short
 # (2**17 samples or more are split over the threads when there are fewer
 # signals than threads or a count that is not a multiple of them)
-SHAPES = [(1, 140000), (3, 50000), (5, 30000), (7, 2500), (2, 40000), (1, 1),
-          (1, 2), (3, 130), (1, 300), (4, 4100), (1, 70000)]
+SHAPES = [
+    (1, 140000),
+    (3, 50000),
+    (5, 30000),
+    (7, 2500),
+    (2, 40000),
+    (1, 1),
+    (1, 2),
+    (3, 130),
+    (1, 300),
+    (4, 4100),
+    (1, 70000),
+]
 
 
 def same_bits(a, b):
@@ -136,8 +151,7 @@ def test_the_batch_call_releases_the_gil():
     xp, yp = ffi.from_buffer("double[]", x), ffi.from_buffer("double[]", y)
 
     def call():
-        return lib.fc_apply(ctx, lib.FC_RULE_RECTANGLE, 0.5, 0.01, xp, 4, 2**19,
-                            lib.FC_ENGINE_BLOCKED, yp)
+        return lib.fc_apply(ctx, lib.FC_RULE_RECTANGLE, 0.5, 0.01, xp, 4, 2**19, lib.FC_ENGINE_BLOCKED, yp)
 
     assert call() == lib.FC_OK  # plans and work space made
     count = [0]
@@ -170,9 +184,14 @@ def test_the_batch_call_releases_the_gil():
 
 # ---------------------------------------------------------------- streams
 
-STREAM_CASES = [("integral", "rectangle", 0.6), ("integral", "trapezoid", 1.4),
-                ("integral", "trapezoid", 0.5), ("integral", "rectangle", 1.5),
-                ("derivative", "grunwald", 0.5), ("derivative", "l1", 0.3)]
+STREAM_CASES = [
+    ("integral", "rectangle", 0.6),
+    ("integral", "trapezoid", 1.4),
+    ("integral", "trapezoid", 0.5),
+    ("integral", "rectangle", 1.5),
+    ("derivative", "grunwald", 0.5),
+    ("derivative", "l1", 0.3),
+]
 
 
 @pytest.mark.parametrize("mode", ["compressed", "exact"])
@@ -188,10 +207,14 @@ def test_push_many_workers_same_outputs_and_state(mode, channels, kind, rule, or
     a = make(order, 0.01, rule=rule, channels=channels, **kw)
     b = make(order, 0.01, rule=rule, channels=channels, **kw)
     # blocks of several sizes (short ones run on one thread), both layouts
-    ya = np.concatenate([a.push_many(x[:3]), a.push_many(x[3:700]),
-                         a.push_many(x[700:].T, axis=1).T])
-    yb = np.concatenate([b.push_many(x[:3], workers=2), b.push_many(x[3:700], workers=3),
-                         b.push_many(x[700:].T, axis=1, workers=-1).T])
+    ya = np.concatenate([a.push_many(x[:3]), a.push_many(x[3:700]), a.push_many(x[700:].T, axis=1).T])
+    yb = np.concatenate(
+        [
+            b.push_many(x[:3], workers=2),
+            b.push_many(x[3:700], workers=3),
+            b.push_many(x[700:].T, axis=1, workers=-1).T,
+        ]
+    )
     assert same_bits(ya, yb)
     assert a.save() == b.save()
     assert same_bits(a.push(x[0]), b.push(x[0]))
@@ -222,9 +245,10 @@ def test_compressed_stream_channels_match_the_batch_within_tol():
 
 
 @pytest.mark.parametrize("T,channels", [(20000, 16), (40000, 5), (9000, 33)])
-@pytest.mark.parametrize("kind,rule,order", [("integral", "trapezoid", 0.6),
-                                             ("derivative", "grunwald", 2.7),
-                                             ("derivative", "l1", 0.3)])
+@pytest.mark.parametrize(
+    "kind,rule,order",
+    [("integral", "trapezoid", 0.6), ("derivative", "grunwald", 2.7), ("derivative", "l1", 0.3)],
+)
 def test_exact_stream_large_frames_same_bits(T, channels, kind, rule, order):
     # long enough for frames of 2^10-2^12 samples, the ones shared by the
     # threads (block size times channels >= 2^14); spikes of 1e6 make the
