@@ -534,7 +534,7 @@ def test_status_range_worded_per_call(monkeypatch):
     assert message(pf.RangeError, lambda: s.push(1e300)).startswith(
         "x=1e+300: the output would be beyond the double range"
     )
-    monkeypatch.setattr(stream_mod, "lib", _Injected(lib, "fc_stream_push_block", R))
+    monkeypatch.setattr(stream_mod, "lib", _Injected(lib, "fc_stream_push_block_threads", R))
     v = Stream.derivative(1.0, 1e-300, channels=2)
     assert message(pf.RangeError, lambda: v.push_many(np.ones((3, 2)))).startswith(
         "xs (shape (3, 2)): an output would be beyond the double range"
