@@ -15,7 +15,7 @@ from __future__ import annotations
 import math
 import numbers
 import os
-from typing import Any, Callable, Optional, Union
+from typing import Any, Callable, Optional, Union, cast
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -82,6 +82,22 @@ _POLICY_NAMES = {v: k for k, v in POLICIES.items()}
 _ENV_MAGIC = b"pyfcS1"
 _ENV_SCALAR = 0x5A
 _ENV_ARRAY = 0xA5
+
+
+def _load_stream_file(cls: Any, path: Any, max_size: int, magic: bytes) -> Any:
+    """cls.load of a checkpoint file (Stream, TimedStream): at most max_size
+    bytes read; a file the C library wrote (fc_stream_save_file, no
+    Python envelope) gets the envelope ``magic`` of an array stream."""
+    p = check_path("path", path)
+    data = read_file("load_file", p, check_max_size(max_size))
+    if data[:8] == b"FCSTREAM":  # written by fc_stream_save_file
+        data = magic + bytes([_ENV_ARRAY, 0]) + data
+    try:
+        return cls.load(data)
+    except StateError as exc:
+        raise state_error("load_file", p, exc) from None
+
+
 _ENV_LEN = 8
 # The C state starts with its own 8-byte magic: shorter data is refused
 # before it reaches the C loader.
@@ -1301,14 +1317,7 @@ class Stream:
         >>> [r.push(x) for x in (3.0, 4.0)]
         [3.0, 6.0]
         """
-        p = check_path("path", path)
-        data = read_file("load_file", p, check_max_size(max_size))
-        if data[:8] == b"FCSTREAM":  # written by fc_stream_save_file
-            data = _ENV_MAGIC + bytes([_ENV_ARRAY, 0]) + data
-        try:
-            return cls.load(data)
-        except StateError as exc:
-            raise state_error("load_file", p, exc) from None
+        return cast("Stream", _load_stream_file(cls, path, max_size, _ENV_MAGIC))
 
     @classmethod
     def _unpickle(cls, data: bytes, horizon_policy: str) -> Stream:

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 import os
-from typing import Any, Optional, Union
+from typing import Any, Optional, Union, cast
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -38,15 +38,11 @@ from ._errors import (
 )
 from ._files import (
     DEFAULT_MAX_SIZE,
-    check_max_size,
-    check_path,
     check_write_path,
-    read_file,
-    state_error,
     write_file,
 )
 from ._fracconv import ffi, lib
-from .stream import _Guard
+from .stream import _Guard, _load_stream_file
 
 __all__ = ["TimedStream"]
 
@@ -739,14 +735,7 @@ class TimedStream:
         ...         print("refused: longer than max_size")
         refused: longer than max_size
         """
-        p = check_path("path", path)
-        data = read_file("load_file", p, check_max_size(max_size))
-        if data[:8] == b"FCSTREAM":  # written by fc_stream_save_file
-            data = _ENV_MAGIC + bytes([_ENV_ARRAY, 0]) + data
-        try:
-            return cls.load(data)
-        except StateError as exc:
-            raise state_error("load_file", p, exc) from None
+        return cast("TimedStream", _load_stream_file(cls, path, max_size, _ENV_MAGIC))
 
     # ------------------------------------------------------------ properties
 
