@@ -467,3 +467,16 @@ def test_each_engine_has_its_table_state_and_no_repeated_checks():
     for name in ("soe_gauss_discrete", "soe_jacobi_eig", "soe_verify", "gauss", "jacobi"):
         assert name not in runtime, name
     assert "cs_step" not in soe and "cs_engine" not in soe
+
+
+def test_api_driver_calls_every_public_function():
+    # issue 14 item 2: the C API driver (run plain, under ASan + UBSan and
+    # valgrind) calls every public function with valid and invalid
+    # arguments; a function added to the header without a case there fails
+    with open(HEADER) as fh:
+        names = set(re.findall(r"FC_API[^;(]*?\b(fc_[a-z0-9_]+)\s*\(", fh.read()))
+    with open(os.path.join(ROOT, "tests", "c", "api_driver.c")) as fh:
+        driver = fh.read()
+    assert len(names) > 60
+    missing = sorted(n for n in names if not re.search(r"\b%s\s*\(" % n, driver))
+    assert not missing, missing

@@ -274,6 +274,16 @@ static void stream_life(fc_stream *s, size_t ch, int compressed)
     EXPECT(fc_stream_order(NULL, &v), FC_ERR_NULL);
     EXPECT(fc_stream_push1(s, 1.0, y), ch == 1 ? FC_OK : FC_ERR_ARG);
     EXPECT(fc_stream_push1(s, NAN, y), ch == 1 ? FC_ERR_NONFINITE : FC_ERR_ARG);
+    {   /* the value form: the output, or NaN with the status in the cell */
+        int cell = -1;
+        double v = fc_stream_push1_value(s, 1.0, &cell);
+        TRUE_(ch == 1 ? (isfinite(v) && cell == -1) : (isnan(v) && cell == FC_ERR_ARG));
+        cell = -1;
+        v = fc_stream_push1_value(s, NAN, &cell);
+        TRUE_(isnan(v) && cell == (ch == 1 ? FC_ERR_NONFINITE : FC_ERR_ARG));
+        TRUE_(isnan(fc_stream_push1_value(NULL, 1.0, &cell)) && cell == FC_ERR_NULL);
+        TRUE_(isnan(fc_stream_push1_value(s, 1.0, NULL)));
+    }
     /* save, load, resume bit for bit */
     EXPECT(fc_stream_save_size(s, &sz), FC_OK);
     buf = malloc(sz);
