@@ -1450,6 +1450,7 @@ static int ex_create_geom(const fc__stream_def *d, size_t leaf, size_t segs,
     s->C = d->channels;
     s->kind = d->kind;
     s->rule = -1;
+    s->par = 1; /* one thread outside fc_stream_push_block_threads */
     if (d->kind == FC_S_KIND_KERNEL) {
         s->kernel = malloc(d->klen * sizeof(double));
         if (!s->kernel) { ex_free(s); return FC_ERR_NOMEM; }
