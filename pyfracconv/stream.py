@@ -84,6 +84,22 @@ _ENV_SCALAR = 0x5A
 _ENV_ARRAY = 0xA5
 
 
+def _save_stream(s: Any, scalar: bool, magic: bytes) -> bytes:
+    """fc_stream_save's bytes behind the Python envelope (magic, the
+    scalar/array flag, 0); the caller holds the stream's busy guard."""
+    sp = ffi.new("size_t *")
+    raise_for_status(lib.fc_stream_save_size(s, sp), "save()")
+    size = int(sp[0])
+    out = bytearray(_ENV_LEN + size)
+    out[:_ENV_LEN] = magic + bytes([_ENV_SCALAR if scalar else _ENV_ARRAY, 0])
+    view = memoryview(out)[_ENV_LEN:]
+    raise_for_status(
+        lib.fc_stream_save(s, ffi.from_buffer("unsigned char[]", view, require_writable=True), size, sp),
+        "save()",
+    )
+    return bytes(out)
+
+
 def _load_stream_file(cls: Any, path: Any, max_size: int, magic: bytes) -> Any:
     """cls.load of a checkpoint file (Stream, TimedStream): at most max_size
     bytes read; a file the C library wrote (fc_stream_save_file, no
@@ -1117,19 +1133,7 @@ class Stream:
         if not self._lock.acquire(False):
             raise self._busy()
         try:
-            sp = ffi.new("size_t *")
-            raise_for_status(lib.fc_stream_save_size(self._s, sp), "save()")
-            size = int(sp[0])
-            out = bytearray(_ENV_LEN + size)
-            out[:_ENV_LEN] = _ENV_MAGIC + bytes([_ENV_SCALAR if self._scalar else _ENV_ARRAY, 0])
-            view = memoryview(out)[_ENV_LEN:]
-            raise_for_status(
-                lib.fc_stream_save(
-                    self._s, ffi.from_buffer("unsigned char[]", view, require_writable=True), size, sp
-                ),
-                "save()",
-            )
-            return bytes(out)
+            return _save_stream(self._s, self._scalar, _ENV_MAGIC)
         finally:
             self._lock.release()
 

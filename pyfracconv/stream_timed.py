@@ -42,7 +42,7 @@ from ._files import (
     write_file,
 )
 from ._fracconv import ffi, lib
-from .stream import _Guard, _load_stream_file
+from .stream import _Guard, _load_stream_file, _save_stream
 
 __all__ = ["TimedStream"]
 
@@ -554,19 +554,7 @@ class TimedStream:
         if not self._lock.acquire(False):
             raise self._busy()
         try:
-            sp = ffi.new("size_t *")
-            raise_for_status(lib.fc_stream_save_size(self._s, sp), "save()")
-            size = int(sp[0])
-            out = bytearray(_ENV_LEN + size)
-            out[:_ENV_LEN] = _ENV_MAGIC + bytes([_ENV_SCALAR if self._scalar else _ENV_ARRAY, 0])
-            view = memoryview(out)[_ENV_LEN:]
-            raise_for_status(
-                lib.fc_stream_save(
-                    self._s, ffi.from_buffer("unsigned char[]", view, require_writable=True), size, sp
-                ),
-                "save()",
-            )
-            return bytes(out)
+            return _save_stream(self._s, self._scalar, _ENV_MAGIC)
         finally:
             self._lock.release()
 
