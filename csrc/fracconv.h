@@ -298,7 +298,9 @@ FC_API int fc_apply(fc_context *ctx, int rule, double order, double step,
  * (the fast engine of integral/derivative(..., t=) in Python; the direct
  * O(n^2) engine is pyfracconv.grid): y[s*n + i] approximates the operator
  * at t[i], from t[0], for nsig signals of n samples (x, y as for fc_apply).
- * Rules and orders: RECTANGLE and TRAPEZOID (I^a, 0 < order <= 1), L1
+ * Rules and orders: RECTANGLE and TRAPEZOID (I^a, 0 < order < 2; at
+ * 1 < order < 2 through the running integral X = I^1 x~ carried in
+ * double-double and the kernel of order a - 1, same promise), L1
  * (Caputo, 0 < order < 1); the weights on the grid are those of
  * pyfracconv.grid.grid_weights (product rules of Diethelm, Ford and Freed
  * 2002; L1 of Stynes, O'Riordan and Gracia 2017). t: n finite times,

@@ -1,7 +1,7 @@
 /*
  * grid_soe.c -- the fast engine of the rules on any strictly increasing
  * grid t_0 < t_1 < ... < t_{n-1} (fc_grid_apply): the product rectangle
- * and trapezoid rules for I^a (0 < a <= 1) and the L1 scheme for the
+ * and trapezoid rules for I^a (0 < a < 2) and the L1 scheme for the
  * Caputo derivative (0 < a < 1), in O(n L) work for L exponential terms.
  *
  * The rules (pyfracconv/grid.py gives the weights and the direct engine):
@@ -53,6 +53,47 @@
  * an absolute error instead; states below DBL_MIN are set to zero
  * (fc__ftz), so a signal that falls silent does not slow the engine down
  * (subnormal arithmetic is many times slower).
+ *
+ * ORDERS 1 < a < 2 (rectangle, trapezoid; gs_cum). The rule at order a
+ * is I^a applied to the interpolant x~ of the samples (piecewise constant
+ * x_j on interval j, or piecewise linear), so y_n = (I^(a-1) X)(t_n) with
+ * X = I^1 x~ (X(t_0) = 0), and the kernel k_b(tau) = tau^(b-1)/Gamma(b),
+ * b = a - 1 in (0, 1), is completely monotone: fc__soe_power builds its
+ * sum of exponentials (gm1 = a - 2). On interval j, with v = (t_{j+1} -
+ * s)/h_j and X_j the nodal values,
+ *     X(s) = X_j + h_j x_j (1 - v)                              (rectangle),
+ *     X(s) = X_j + h_j x_j (1 - v) + h_j (x_{j+1} - x_j) (1 - v)^2 / 2  (trapezoid),
+ * X_{j+1} = X_j + h_j x_j or X_j + h_j (x_j + x_{j+1}) / 2, carried as a
+ * double-double (exact product by fma, TwoSum), so that its rounding does
+ * not grow with n. The injection of interval j into term l is the exact
+ * integral of e^(-s_l (t_{j+1} - s)) X(s):
+ *     h phi1 X_j + h^2 phi2 x_j                                 (rectangle),
+ *     h phi1 X_j + h^2 (phi2 - phi3) x_j + h^2 phi3 x_{j+1}     (trapezoid),
+ * phi3(z) = int_0^1 e^(-z v) (1 - v)^2/2 dv (fc__gs_phi3: series below
+ * z = 2, (1/2 - phi2)/z above; phi2 - phi3 = int e^(-z v) (1 - v^2)/2 dv
+ * >= phi2/2, no cancellation). The last interval is exact:
+ *     h^(a-1) X_{n-1} / Gamma(a) + h^a x_{n-1} / Gamma(a+1)     (rectangle),
+ *     h^(a-1) X_{n-1} / Gamma(a) + h^a (a x_{n-1} + x_n) / Gamma(a+2),
+ * (the rule at order a on that interval plus the history X_{n-1} held
+ * constant). a = 1 exactly stays on the path above (g = 1, one term).
+ * PROMISE at 1 < a < 2: the same bound
+ *     |y_n - y_n(direct)| <= (tol + (L + 64) eps) S_n,  S_n = sum_k |w_{n,k} x_k|,
+ * with the constant c = 1 in S'_n <= c S_n. Derivation: with xi the
+ * interpolant of |x_k| (of the same kind) and Xi = I^1 xi, |X(s)| <= Xi(s)
+ * (|x~| <= xi, convexity of |.|); every coefficient of the injections and
+ * of the last interval is positive, so the sum of the absolute values of
+ * the terms of the X form, S'_n, is at most int k_b(t_n - s) Xi(s) ds =
+ * (I^a xi)(t_n) = sum_k w_{n,k} |x_k| = S_n (the weights w_{n,k} > 0 are
+ * the integrals of the interpolation basis against k_a). The kernel error
+ * (relative <= tol on t_n - s >= 1) then adds at most tol S'_n <= tol S_n,
+ * and the rounding of the states as above at most (L + 64) eps S'_n; X_j
+ * enters rounded to double once (eps/2 |X_j|, within S'_n) and its
+ * double-double sum errs by at most about 2 n eps^2 sum h_k |x_k|.
+ * RANGE at 1 < a < 2: for max |x| <= 1 in scaled units, |X| <= R, every
+ * state and injection <= R^2 and every output <= R^a / Gamma(a+1); the
+ * signals are scaled by powers of two below 2^(1000 - 2 - 2 log2 R) (R <=
+ * 2^100), so nothing overflows on the way and FC_ERR_RANGE comes exactly
+ * when an output is beyond the double range (computed into a copy first).
  *
  * Work: per interval and term one coefficient evaluation (shared by the
  * signals) and per signal about 12 flops; memory O(L (256 + nsig)).
