@@ -177,6 +177,7 @@ static int gs_cum(int kind, double a, const double *t, const double *x,
         int e = target;
         if (m > 0.0) (void)frexp(m, &e);
         ex[sg] = e - target;
+        if (ex[sg] < -1000) ex[sg] = -1000;  /* 2^-ex finite (subnormal signals) */
         if (m > 0.0 && lout + (double)target + (double)Fe + (double)ex[sg] > 1020.0) safe = 0;
     }
     double *dst = y;
@@ -387,6 +388,7 @@ int fc_grid_apply(int rule, double order, const double *t, const double *x,
         int e = target;
         if (m > 0.0) (void)frexp(m, &e);
         ex[sg] = e - target;                 /* x 2^-ex[sg]: max below 2^target */
+        if (ex[sg] < -1000) ex[sg] = -1000;  /* 2^-ex finite (subnormal signals) */
         if (m > 0.0 && lout + (double)target + (double)Fe + (double)ex[sg] > 1020.0) safe = 0;
     }
     double *dst = y;
