@@ -70,7 +70,7 @@ class TimedStream:
     """A compressed stream whose samples come with their times.
 
     ``TimedStream(order, min_step, horizon)`` integrates (rule
-    ``'rectangle'`` or ``'trapezoid'``, 0 < order <= 1) or differentiates
+    ``'rectangle'`` or ``'trapezoid'``, 0 < order < 2) or differentiates
     (``'l1'``, Caputo, 0 < order < 1) from the first time pushed. Each
     :meth:`push` takes a time and a sample; the output is the rule on the
     times pushed so far (the weights of
@@ -85,7 +85,10 @@ class TimedStream:
     Parameters
     ----------
     order : float
-        0 < order <= 1 (``'l1'``: 0 < order < 1).
+        0 < order < 2 (``'l1'``: 0 < order < 1). At 1 < order < 2 the
+        stream runs the rule of order ``order - 1`` on the running
+        integral of the interpolated samples, kept per channel in
+        double-double (csrc/stream_timed.c); same promise.
     min_step : float
         The smallest step t_n - t_{n-1} a push may make, finite, > 0.
     horizon : float
@@ -167,9 +170,9 @@ class TimedStream:
             )
         check_rule(rule, tuple(_RULES))
         a = check_order(order, rule)
-        if not (a < 1.0 if rule == "l1" else a <= 1.0):
+        if not (a < 1.0 if rule == "l1" else a < 2.0):
             raise ArgumentError(
-                f"order={show(order)}: a TimedStream serves 0 < order <= 1 (rule='l1': 0 < order < 1)"
+                f"order={show(order)}: a TimedStream serves 0 < order < 2 (rule='l1': 0 < order < 1)"
             )
         h = check_real("min_step", min_step)
         if not (math.isfinite(h) and h > 0.0):
