@@ -69,7 +69,9 @@
  * integral of e^(-s_l (t_{j+1} - s)) X(s):
  *     h phi1 X_j + h^2 phi2 x_j                                 (rectangle),
  *     h phi1 X_j + h^2 (phi2 - phi3) x_j + h^2 phi3 x_{j+1}     (trapezoid),
- * phi3(z) = int_0^1 e^(-z v) (1 - v)^2/2 dv (fc__gs_phi3: series below
+ * phi3(z) = int_0^1 e^(-z v) (1 - v)^2/2 dv (fc__gs_phi4: below z = 1
+ * one series for phi3 and from it phi2 = 1/2 - z phi3, phi1 = 1 - z phi2,
+ * e^-z - 1 = -z phi1; above, fc__gs_phi and phi3 by its series below
  * z = 2, (1/2 - phi2)/z above; phi2 - phi3 = int e^(-z v) (1 - v^2)/2 dv
  * >= phi2/2, no cancellation). The last interval is exact:
  *     h^(a-1) X_{n-1} / Gamma(a) + h^a x_{n-1} / Gamma(a+1)     (rectangle),
@@ -201,17 +203,23 @@ static int gs_cum(int kind, double a, const double *t, const double *x,
             ha[i] = hb[i] * h;
             const double h2 = h * h;
             double *E = cE + i * L, *P = cP + i * L, *Q = cQ + i * L;
-            for (size_t l = 0; l < L; l++) {
-                double z = sv[l] * h, em1, p1, f2;
-                fc__gs_phi(z, &em1, &p1, &f2);
-                E[l] = em1;
-                P[l] = h * p1;
-                if (kind == GS_RECT) {
+            if (kind == GS_RECT) {
+                for (size_t l = 0; l < L; l++) {
+                    double em1, p1, f2;
+                    fc__gs_phi(sv[l] * h, &em1, &p1, &f2);
+                    E[l] = em1;
+                    P[l] = h * p1;
                     Q[l] = h2 * f2;
-                } else {
-                    double f3 = fc__gs_phi3(z, f2);
+                }
+            } else {
+                double *W = cW + i * L;
+                for (size_t l = 0; l < L; l++) {
+                    double em1, p1, f2, f3;
+                    fc__gs_phi4(sv[l] * h, &em1, &p1, &f2, &f3);
+                    E[l] = em1;
+                    P[l] = h * p1;
                     Q[l] = h2 * (f2 - f3);
-                    cW[i * L + l] = h2 * f3;
+                    W[l] = h2 * f3;
                 }
             }
         }

@@ -321,15 +321,20 @@ static int ts_run_cum(ts_engine *ts, double *S, double *Sc, double *xp, double *
         }
         const double h = ldexp(t[j] - tprev, -ts->k2);
         const double hb = pow(h, ts->b), ha = hb * h, h2 = h * h;
-        for (size_t l = 0; l < L; l++) {
-            double z = sv[l] * h, em1, p1, f2;
-            fc__gs_phi(z, &em1, &p1, &f2);
-            E[l] = em1;
-            P[l] = h * p1;
-            if (!trap) {
+        if (!trap) {
+            for (size_t l = 0; l < L; l++) {
+                double em1, p1, f2;
+                fc__gs_phi(sv[l] * h, &em1, &p1, &f2);
+                E[l] = em1;
+                P[l] = h * p1;
                 Q[l] = h2 * f2;
-            } else {
-                double f3 = fc__gs_phi3(z, f2);
+            }
+        } else {
+            for (size_t l = 0; l < L; l++) {
+                double em1, p1, f2, f3;
+                fc__gs_phi4(sv[l] * h, &em1, &p1, &f2, &f3);
+                E[l] = em1;
+                P[l] = h * p1;
                 Q[l] = h2 * (f2 - f3);
                 W[l] = h2 * f3;
             }
