@@ -519,7 +519,10 @@ FC_API int fc_stream_horizon(const fc_stream *s, double *horizon);
 /*
  * A compressed stream with a time per sample: created without a fixed
  * step, it takes (time, sample) pairs (fc_stream_push_timed). Rules:
- * RECTANGLE, TRAPEZOID (I^a, 0 < order <= 1), L1 (Caputo, 0 < order < 1),
+ * RECTANGLE, TRAPEZOID (I^a, 0 < order < 2; at 1 < order < 2 the
+ * recursion of fc_grid_apply on the running integral, whose outputs it
+ * gives bit for bit on the same times with min_step in the binade of the
+ * smallest step and horizon = t[n-1] - t[0]), L1 (Caputo, 0 < order < 1),
  * from the first time pushed, with the weights of fc_grid_apply on the
  * times pushed. min_step: finite, > 0, the smallest step any push may make
  * (FC_ERR_STEP); horizon: a time span, finite, min_step <= horizon and

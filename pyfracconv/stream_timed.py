@@ -126,7 +126,8 @@ class TimedStream:
     A refused push (time not finite, a step below ``min_step``, a time not
     after the previous one, past the horizon under 'refuse', a sample
     beyond the range bound, of about 1e290 for a horizon of 1e6
-    smallest steps) changes nothing. Saved state (:meth:`save`) is checked
+    smallest steps; at 1 < order < 2 about 1e289 to 1e295) changes
+    nothing. Saved state (:meth:`save`) is checked
     on :meth:`load` as untrusted input.
 
     Examples
