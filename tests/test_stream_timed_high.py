@@ -134,6 +134,25 @@ def test_closed_form_on_a_graded_mesh(rule):
     assert err <= np.max(np.abs(yd - exact)) + 1e-12
 
 
+@pytest.mark.parametrize("rule,a", [("rectangle", 1.5), ("trapezoid", 1.3), ("trapezoid", 1.9)])
+def test_uniform_times_match_the_uniform_compressed_stream(rule, a):
+    # the uniform compressed stream (csrc/stream_compressed.c, its own
+    # construction at 1 <= a < 2) on h = 2**-8 (every k h exact): both within
+    # their promises of the exact rule (tests/test_compressed*.py), so of
+    # each other within twice the larger one
+    rng = np.random.default_rng(86)
+    h = 2.0**-8
+    n = 3000
+    t = h * np.arange(n)
+    x = rng.standard_normal(n)
+    tol = 1e-12
+    s = pf.TimedStream(a, min_step=h, horizon=t[-1], rule=rule, tol=tol)
+    y = s.push_many(t, x)
+    yu = pf.Stream.integral(a, h, rule=rule, mode="compressed", tol=tol, horizon=n).push_many(x)
+    S = grid.apply_on_grid(rule, a, np.abs(x)[None], t)[0]
+    assert np.all(np.abs(y - yu) <= 2 * (tol + (max(s.terms, 80) + 64) * EPS) * S + DIRECT * S)
+
+
 def _twins(**kw):
     return pf.TimedStream(**kw), pf.TimedStream(**kw)
 
@@ -225,6 +244,12 @@ def test_save_load_resumes_bit_for_bit():
             assert (r.rule, r.order, r.count) == (rule, a, cut)
             np.testing.assert_array_equal(r.push_many(t[cut:], x[cut:]), s.push_many(t[cut:], x[cut:]))
             assert r.save() == s.save()
+    # several channels: each channel's X saved and restored
+    X = rng.standard_normal((400, 3))
+    s = pf.TimedStream(1.7, 0.5e-3, 1.0, rule="trapezoid", channels=3)
+    s.push_many(t[:123], X[:123])
+    r = pf.TimedStream.load(s.save())
+    np.testing.assert_array_equal(r.push_many(t[123:], X[123:]), s.push_many(t[123:], X[123:]))
     # streams at orders up to 1 keep format version 1
     s = pf.TimedStream(1.0, 0.5e-3, 1.0)
     assert struct.unpack_from("<I", s.save(), P + 4)[0] == 1
