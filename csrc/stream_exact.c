@@ -578,12 +578,18 @@ static void frame_task(void *arg, size_t k, size_t w)
     }
 }
 
+/* Whether a frame of block size sz is shared by the threads of the push. */
+static int frame_shared(const ex_engine *s, size_t sz)
+{
+    return s->par > 1 && sz >= FC_S_PAR_BLOCK && sz * s->C >= FC_S_PAR_WORK;
+}
+
 static void level_frame(ex_engine *s, size_t j, uint64_t f, uint64_t lo)
 {
     fc__level *L = &s->lev[j];
     size_t sz = L->s, n2 = 2 * sz, R = L->nseg;
     uint64_t o = f * sz + L->base;
-    if (s->par > 1 && sz >= FC_S_PAR_BLOCK && sz * s->C >= FC_S_PAR_WORK) {
+    if (frame_shared(s, sz)) {
         /* one task per channel, handed out in turn: a thread held up (a
            busy machine) leaves the remaining channels to the others */
         size_t i0 = lo > o ? (size_t)(lo - o) : 0;
@@ -723,7 +729,10 @@ static void frame_due(ex_engine *s, size_t j, uint64_t f)
         pending_frame(s, j, f);
         return;
     }
-    if (s->gend && L->gslots && L->made == L->nseg && s->gend >= L->delay) {
+    /* a frame the threads share (level_frame) is not grouped: grouping
+       saves most on the small frames, which stay on one thread */
+    if (s->gend && L->gslots && L->made == L->nseg && s->gend >= L->delay &&
+        !frame_shared(s, L->s)) {
         uint64_t last = (s->gend - L->delay) / L->s; /* the last frame due */
         uint64_t gn = last >= f ? last - f + 1 : 0;
         if (gn > L->gslots + 1) gn = L->gslots + 1;
@@ -1185,7 +1194,7 @@ static int ex_push_block(ex_engine *s, const double *x, size_t count,
     if (threads > 1 && s->nlev > 0 && s->lev[s->nlev - 1].s >= FC_S_PAR_BLOCK &&
         s->lev[s->nlev - 1].s * C >= FC_S_PAR_WORK && count >= FC_S_PAR_BLOCK)
         s->par = ex_helpers_ready(s, threads);
-    if (!stage && count > 1 && s->par == 1) {
+    if (!stage && count > 1) {
         /* no step can fail: u of the whole block first (what ex_step
            stores), so that frames due within the block can be computed
            together (frame_due) */
