@@ -415,8 +415,8 @@ def solve_many(
     step, n_steps : as for :func:`pyfracconv.solve`
     t : array_like, optional
         The grid instead of ``step`` and ``n_steps``, as for
-        :func:`pyfracconv.solve` (methods ``'rectangle'`` and
-        ``'predictor-corrector'``; ``t0`` is ``t[0]``).
+        :func:`pyfracconv.solve` (every method, exact memory; ``t0`` is
+        ``t[0]``).
     chunk : int, optional
         Sets per task (default: P / 256 rounded up, at most 256 tasks, for
         NumPy ``params``; a Dask ``params`` keeps its chunks unless
@@ -476,7 +476,6 @@ def solve_many(
     times = None
     if t is not None:
         from .grid import check_times
-        from .solve_grid import GRID_METHODS, grid_method_error
 
         if step is not None or n_steps is not None:
             given = ", ".join(
@@ -492,9 +491,6 @@ def solve_many(
         ):
             if key in options:
                 raise ArgumentError(f"{key}={show(options[key])}: not used with t= ({why})")
-        meth = options.get("method", "predictor-corrector")
-        if isinstance(meth, str) and meth not in GRID_METHODS and meth in ("trapezoid", "implicit-rectangle"):
-            raise grid_method_error(meth)
         if options.get("memory", "exact") != "exact":
             raise ArgumentError(
                 f"memory={show(options['memory'])}: not available with "

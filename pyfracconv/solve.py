@@ -1262,10 +1262,12 @@ def solve(
         The grid instead of ``step`` and ``n_steps``: times t_0 < t_1 <
         ... (finite, strictly increasing; graded meshes from
         :func:`pyfracconv.grid.graded_mesh`); the problem starts at t[0].
-        Methods ``'rectangle'`` and ``'predictor-corrector'`` (their
-        non-uniform forms: Liu, Roberts and Yan, Int. J. Comput. Math. 95
-        (2018) and Numer. Algorithms 78 (2018)), exact memory, a direct
-        O(N^2) engine in Python over the weights of
+        Every method: ``'rectangle'`` and ``'predictor-corrector'`` in
+        their non-uniform forms (Liu, Roberts and Yan, Int. J. Comput.
+        Math. 95 (2018) and Numer. Algorithms 78 (2018)), ``'trapezoid'``
+        and ``'implicit-rectangle'`` with the same weights and the newest
+        value implicit (Newton's method as on a uniform grid); exact
+        memory, a direct O(N^2) engine in Python over the weights of
         :func:`pyfracconv.grid.grid_weights` (fine up to about 2e4 steps).
     dy0 : float or array_like, optional
         y'(t0); required when some order exceeds 1, refused otherwise.
@@ -1458,7 +1460,7 @@ def _solve_grid(
 ):
     """solve() with t=: the arguments checked, then the grid engine."""
     from .grid import check_times
-    from .solve_grid import GRID_METHODS, grid_method_error, solve_on_grid
+    from .solve_grid import solve_on_grid
 
     times = check_times(t)
     if times.size == 0:
@@ -1468,8 +1470,6 @@ def _solve_grid(
             f"t0={show(t0)}: not used with t= (the problem starts at t[0]={show(float(times[0]))})"
         )
     meth = _check_method(method)
-    if meth not in GRID_METHODS:
-        raise grid_method_error(meth)
     mem = _check_memory(memory)
     if mem != "exact":
         raise ArgumentError(
@@ -1493,7 +1493,8 @@ def _solve_grid(
         meth,
         mem,
         tol,
-        None,
+        # the uniform implicit rectangle's kernel length (not used on a grid)
+        1.0 if meth == "implicit-rectangle" else None,
         jacobian,
         corrections,
         newton_tol,

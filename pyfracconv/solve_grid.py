@@ -20,8 +20,23 @@ equations with non-uniform meshes") and Liu, Roberts and Yan, Numer.
 Algorithms 78 (2018) ("Detailed error analysis for a fractional Adams
 method with graded meshes"); on a uniform grid they are the methods of
 Diethelm, Ford and Freed, Nonlinear Dynamics 29 (2002), which the uniform
-solver (csrc/solver.c) runs. The weights are those of
-:func:`pyfracconv.grid.grid_weights` (computed without cancellation).
+solver (csrc/solver.c) runs. The implicit methods use the same quadrature
+weights with the newest f value at the unknown y_{n+1}:
+
+- the implicit product trapezoidal rule: the corrector equation above with
+  f(t_{n+1}, y_{n+1}) in place of f(t_{n+1}, y^P), solved by Newton's
+  method (on a uniform grid, Garrappa, Math. Comput. Simul. 110 (2015));
+- the implicit product rectangle rule (right end points):
+  y_{n+1} = T(t_{n+1}) + sum_{k<=n} b_{n+1,k} f_{k+1}, the rectangle
+  weights applied to the value at the right end of each interval (the
+  fractional backward Euler method on a non-uniform mesh, first order).
+
+Newton's method is the uniform solver's (csrc/solver.c, newton): start at
+y_n, converged when |r_i| <= newton_tol (|y_i| + |c_i| + |w_i f_i|) for
+the residual r = y - c - w f(t, y) of every component, the Jacobian from
+``jacobian`` or forward differences with increments 2^-26 max(1, |y_j|).
+The weights are those of :func:`pyfracconv.grid.grid_weights` (computed
+without cancellation).
 
 Engine: Python over NumPy, every history sum recomputed at each step from
 the weights of that row, O(N^2) work and O(N) memory per row (fine up to
@@ -34,7 +49,7 @@ import math
 
 import numpy as np
 
-from ._errors import ArgumentError, RhsError, SolverError
+from ._errors import NewtonError, RhsError, SolverError
 from .grid import _trap_parts
 
 # Terms of the series of J_L(s) = int_0^1 (1 - s u)^(a-1) (1 - u) du and
@@ -98,7 +113,7 @@ def _row_weights(a, coef, d, e, h, trap):
 
 
 #: The solver methods defined on any grid.
-GRID_METHODS = ("rectangle", "predictor-corrector")
+GRID_METHODS = ("rectangle", "predictor-corrector", "trapezoid", "implicit-rectangle")
 
 
 class _Fail(Exception):
@@ -132,6 +147,28 @@ def _eval(rhs, t, y, scalar, m):
     return a
 
 
+def _eval_jac(jac, t, y, scalar, m):
+    """df/dy at (t, y) as an (m, m) float array; _Fail (kinds prefixed
+    "jac ") on a raise, a wrong shape or a non-finite value."""
+    try:
+        v = jac(float(t), float(y[0]) if scalar else _readonly(y))
+    except (KeyboardInterrupt, SystemExit):
+        raise
+    except BaseException as exc:
+        raise _Fail("jac raised", exc) from None
+    try:
+        a = np.asarray(v, dtype=np.float64)
+    except Exception:
+        raise _Fail("jac shape", v) from None
+    if scalar and a.shape in ((), (1,), (1, 1)):
+        a = a.reshape(1, 1)
+    elif a.shape != (m, m):
+        raise _Fail("jac shape", v)
+    if not np.all(np.isfinite(a)):
+        raise _Fail("jac nonfinite", v)
+    return a
+
+
 def _readonly(y):
     v = y.copy()
     v.flags.writeable = False
@@ -141,8 +178,9 @@ def _readonly(y):
 def solve_on_grid(p, times, progress_bar, result_cls):
     """Run the method of the checked arguments ``p`` (solve.py's _setup)
     on the checked grid ``times`` (N+1,); returns a SolveResult."""
-    rhs = p["rhs"]
+    rhs, jac = p["rhs"], p["jacobian"]
     m, scalar, method, corr = p["m"], p["scalar"], p["method"], p["corr"]
+    ntol, nmax = p["ntol"], p["nmax"]
     orders = p["orders"]
     init = p["init"]
     y0 = init[:m]
@@ -157,33 +195,51 @@ def solve_on_grid(p, times, progress_bar, result_cls):
         groups.setdefault(a, []).append(i)
     groups_idx = [(a, np.array(ix), _series_coefficients(a)) for a, ix in groups.items()]
     pc = method == "predictor-corrector"
+    trap = method in ("predictor-corrector", "trapezoid")  # trapezoid weights
+    right = method == "implicit-rectangle"  # rectangle weights on f_{k+1}
     evals = 0
+    jevals = 0
 
     def shape(arr):
         return arr[:, 0] if scalar else arr
 
     def fail(exc, step):
         k = max(step - 1, 0)
-        partial = result_cls(t[: k + 1].copy(), shape(y[: k + 1].copy()), evals, 0, method, "exact")
-        at = f"at step {step}, t={float(t[step])!r}"
+        partial = result_cls(t[: k + 1].copy(), shape(y[: k + 1].copy()), evals, jevals, method, "exact")
+        ts = float(t[step])
+        at = f"at step {step}, t={ts!r}"
         keep = f"; the solution up to step {step - 1} is in .partial" if step else "; nothing was computed"
-        if exc.kind == "raised":
+        name = "jacobian" if exc.kind.startswith("jac") else "rhs"
+        kind = exc.kind[4:] if name == "jacobian" else exc.kind
+        if kind == "newton":
+            return NewtonError(
+                f"Newton's method did not converge {at} (newton_maxiter reached or a "
+                "singular iteration matrix); try a finer grid, a larger "
+                f"newton_maxiter or newton_tol{keep}",
+                step,
+                float(t[step]),
+                partial,
+            )
+        if kind == "raised":
             err = RhsError(
-                f"rhs raised {type(exc.obj).__name__}: {exc.obj} {at}{keep}", step, float(t[step]), partial
+                f"{name} raised {type(exc.obj).__name__}: {exc.obj} {at}{keep}", step, float(t[step]), partial
             )
             err.__cause__ = exc.obj
             return err
-        if exc.kind == "overflow":
+        if kind == "overflow":
             return SolverError(
                 f"the solution is beyond the double range {at}{keep}", step, float(t[step]), partial
             )
-        if exc.kind == "nonfinite":
-            return RhsError(f"rhs returned a NaN or infinite value {at}{keep}", step, float(t[step]), partial)
-        want = "a number" if scalar else f"shape ({m},)"
+        if kind == "nonfinite":
+            return RhsError(f"{name} returned a NaN or infinite value {at}{keep}", step, ts, partial)
+        if name == "jacobian":
+            want = "(m, m)" if not scalar else "a number"
+        else:
+            want = "a number" if scalar else f"shape ({m},)"
         obj = exc.obj
         got = np.asarray(obj).shape if not isinstance(obj, (str, bytes)) else type(obj).__name__
         return RhsError(
-            f"rhs returned a value of shape {got}, expected {want}, {at}{keep}", step, float(t[step]), partial
+            f"{name} returned a value of shape {got}, expected {want}, {at}{keep}", step, ts, partial
         )
 
     def f(step, yv):
@@ -193,6 +249,49 @@ def solve_on_grid(p, times, progress_bar, result_cls):
             return _eval(rhs, t[step], yv, scalar, m)
         except _Fail as exc:
             raise fail(exc, step) from None
+
+    def jacobian(step, yv, fv):
+        """df/dy at (t_step, yv), fv = f there: the user's or forward differences."""
+        nonlocal jevals
+        if jac is not None:
+            jevals += 1
+            try:
+                return _eval_jac(jac, t[step], yv, scalar, m)
+            except _Fail as exc:
+                raise fail(exc, step) from None
+        J = np.empty((m, m))
+        for j in range(m):
+            yp = yv.copy()
+            d = 1.4901161193847656e-08 * max(1.0, abs(yv[j]))
+            yp[j] = yv[j] + d
+            d = yp[j] - yv[j]  # the increment as represented
+            J[:, j] = (f(step, yp) - fv) / d
+        return J
+
+    def newton(step, c, w, start):
+        """y = c + w f(t_step, y) by Newton's method from ``start``;
+        returns (y, f(t_step, y))."""
+        yc = start.copy()
+        eye = np.eye(m)
+        for it in range(nmax + 1):
+            fc = f(step, yc)
+            wf = w * fc
+            r = yc - c - wf
+            if np.all(np.abs(r) <= ntol * (np.abs(yc) + np.abs(c) + np.abs(wf))):
+                return yc, fc
+            if it >= nmax:
+                break
+            A = eye - w[:, None] * jacobian(step, yc, fc)
+            try:
+                d = np.linalg.solve(A, r)
+            except np.linalg.LinAlgError:
+                break
+            if not np.all(np.isfinite(d)):
+                break
+            yc = yc - d
+            if not np.all(np.isfinite(yc)):
+                break
+        raise fail(_Fail("newton", None), step)
 
     slope = orders > 1.0
     F[:, 0] = f(0, y0)
@@ -208,39 +307,43 @@ def solve_on_grid(p, times, progress_bar, result_cls):
             hist = np.empty(m)
             last = np.empty(m)
             for a, ix, coef in groups_idx:
-                b, left, right = _row_weights(a, coef, d, e, h, pc)
+                b, left, rt = _row_weights(a, coef, d, e, h, trap)
                 # pairwise sums of the products (NumPy's sum, no BLAS: the
                 # same bits whatever the threads, and componentwise accurate)
-                pred[ix] += np.sum(b * F[ix, : n + 1], axis=1)
-                if pc:
-                    assert left is not None and right is not None
+                if right:
+                    # f_1 .. f_n on intervals 0 .. n-1; f_{n+1} (interval n) is the unknown
+                    hist[ix] = np.sum(b[:n] * F[ix, 1 : n + 1], axis=1)
+                    last[ix] = b[n]
+                    continue
+                if method != "trapezoid":
+                    pred[ix] += np.sum(b * F[ix, : n + 1], axis=1)
+                if trap:
+                    assert left is not None and rt is not None
                     w = np.concatenate([left, [0.0]])
-                    w[1:] += right
+                    w[1:] += rt
                     hist[ix] = np.sum(w[: n + 1] * F[ix, : n + 1], axis=1)
                     last[ix] = w[n + 1]
-            if not np.all(np.isfinite(pred)):
-                raise fail(_Fail("overflow", pred), n + 1)
-            yn = pred
-            if method == "predictor-corrector":
-                for _ in range(corr):
-                    yn = base + hist + last * f(n + 1, yn)
-                if not np.all(np.isfinite(yn)):
-                    raise fail(_Fail("overflow", yn), n + 1)
-            y[n + 1] = yn
-            F[:, n + 1] = f(n + 1, yn)
+            if method in ("trapezoid", "implicit-rectangle"):
+                c = base + hist
+                if not np.all(np.isfinite(c)):
+                    raise fail(_Fail("overflow", c), n + 1)
+                yn, fn = newton(n + 1, c, last, y[n])
+                y[n + 1] = yn
+                F[:, n + 1] = fn
+            else:
+                if not np.all(np.isfinite(pred)):
+                    raise fail(_Fail("overflow", pred), n + 1)
+                yn = pred
+                if pc:
+                    for _ in range(corr):
+                        yn = base + hist + last * f(n + 1, yn)
+                    if not np.all(np.isfinite(yn)):
+                        raise fail(_Fail("overflow", yn), n + 1)
+                y[n + 1] = yn
+                F[:, n + 1] = f(n + 1, yn)
             if progress_bar is not None:
                 progress_bar.update(1)
-    return result_cls(t.copy(), shape(y), evals, 0, method, "exact")
+    return result_cls(t.copy(), shape(y), evals, jevals, method, "exact")
 
 
-def grid_method_error(method):
-    """The message refusing a method without a published non-uniform form."""
-    works = " or ".join(repr(x) for x in GRID_METHODS)
-    return ArgumentError(
-        f"method={method!r}: not available with t= (no published form on a "
-        f"non-uniform grid is implemented); on a grid use method={works}, or give "
-        "a uniform grid as step= and n_steps="
-    )
-
-
-__all__ = ["GRID_METHODS", "solve_on_grid", "grid_method_error"]
+__all__ = ["GRID_METHODS", "solve_on_grid"]

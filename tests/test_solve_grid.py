@@ -287,16 +287,6 @@ class Counting:
         ((), dict(), r"step and n_steps=None: give step and n_steps"),
         ((0.01,), dict(), r"n_steps=None: give step and n_steps"),
         ((), dict(t=[0.0, 1.0], t0=0.0), r"t0=0\.0: not used with t="),
-        (
-            (),
-            dict(t=[0.0, 1.0], method="trapezoid"),
-            r"method='trapezoid': not available with t= .*'rectangle' or 'predictor-corrector'",
-        ),
-        (
-            (),
-            dict(t=[0.0, 1.0], method="implicit-rectangle"),
-            r"method='implicit-rectangle': not available with t=",
-        ),
         ((), dict(t=[0.0, 1.0], method="euler"), r"method='euler': unknown"),
         ((), dict(t=[0.0, 1.0], memory="compressed"), r"memory='compressed': not available with t="),
         ((), dict(t=[0.0, 1.0], horizon=10), r"horizon=10: not used with t="),
