@@ -537,7 +537,8 @@ FC_API int fc_stream_horizon(const fc_stream *s, double *horizon);
  * nothing of the block and changes nothing. The untimed fc_stream_push,
  * fc_stream_push_block, fc_stream_push1, fc_stream_preview and
  * fc_stream_history refuse such a stream with FC_ERR_ARG, and
- * fc_stream_push_timed refuses every other stream with FC_ERR_ARG.
+ * fc_stream_push_timed and fc_stream_preview_timed refuse every other
+ * stream with FC_ERR_ARG.
  * fc_stream_step gives min_step, fc_stream_horizon the time horizon,
  * fc_stream_mode FC_MODE_COMPRESSED, fc_stream_remaining the samples the
  * count still allows (the horizon is a time). Save/load: fc_stream_save,
@@ -552,6 +553,16 @@ FC_API int fc_stream_create_timed(int rule, double order, double min_step,
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (not a timed stream, step below min_step, overlap), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE. */
 FC_API int fc_stream_push_timed(fc_stream *s, const double *t, const double *x,
                                 size_t count, double *y);
+/* What fc_stream_push_timed of the one step (t, x[channels]) would
+   return, into y[channels], bit for bit; nothing changes. The same checks
+   and statuses as that push (y == x allowed). With a sample of 0 it gives
+   the part of the output at t that the samples already pushed make: for
+   RECTANGLE the whole output (the rule does not use the sample at t), for
+   TRAPEZOID all but (t - t_prev)^a / Gamma(a+2) x (the newest sample's
+   weight) -- what a time stepper needs before the sample exists. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (not a timed stream, step below min_step, overlap), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE. */
+FC_API int fc_stream_preview_timed(fc_stream *s, double t, const double *x,
+                                   double *y);
 /* *timed = 1 for a stream with a time per sample, else 0. */
 /* Statuses: FC_OK, FC_ERR_NULL (immutable field: no busy check). */
 FC_API int fc_stream_is_timed(const fc_stream *s, int *timed);

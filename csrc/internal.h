@@ -403,6 +403,10 @@ typedef struct fc__stream_ops {
        samples x[count*channels]; refuse_past: FC_HORIZON_REFUSE */
     int (*push_timed)(void *eng, const double *t, const double *x,
                       size_t count, double *y, int refuse_past);
+    /* what push_timed of one step (t, x) would return, into y; nothing
+       changed (NULL for the other engines) */
+    int (*preview_timed)(void *eng, double t, const double *x, double *y,
+                         int refuse_past);
     /* 1 once an output past the horizon was produced (NULL: the facade
        counts samples against the horizon) */
     int (*past)(const void *eng);

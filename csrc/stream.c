@@ -252,6 +252,23 @@ int fc_stream_push_timed(fc_stream *s, const double *t, const double *x,
     return st;
 }
 
+int fc_stream_preview_timed(fc_stream *s, double t, const double *x, double *y)
+{
+    int st;
+    if (!s) return FC_ERR_NULL;
+    if (!x || !y) return FC_ERR_NULL;
+    if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
+    if (!s->ops->preview_timed) st = FC_ERR_ARG;
+    else if (partial_overlap(x, y, s->C)) st = FC_ERR_ARG;
+    else if (!isfinite(t)) st = FC_ERR_NONFINITE;
+    else if ((st = fc__check_finite(x, s->C)) != FC_OK) {}
+    else
+        st = s->ops->preview_timed(s->eng, t, x, y,
+                                   s->horizon_policy == FC_HORIZON_REFUSE);
+    leave(s);
+    return st;
+}
+
 int fc_stream_is_timed(const fc_stream *s, int *timed)
 {
     if (!s || !timed) return FC_ERR_NULL;

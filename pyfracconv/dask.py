@@ -415,8 +415,7 @@ def solve_many(
     step, n_steps : as for :func:`pyfracconv.solve`
     t : array_like, optional
         The grid instead of ``step`` and ``n_steps``, as for
-        :func:`pyfracconv.solve` (every method, exact memory; ``t0`` is
-        ``t[0]``).
+        :func:`pyfracconv.solve` (``t0`` is ``t[0]``).
     chunk : int, optional
         Sets per task (default: P / 256 rounded up, at most 256 tasks, for
         NumPy ``params``; a Dask ``params`` keeps its chunks unless
@@ -487,16 +486,10 @@ def solve_many(
             raise ArgumentError("t: empty; expected at least the start time t[0]")
         for key, why in (
             ("t0", "the problem starts at t[0]"),
-            ("horizon", "only compressed memory and 'implicit-rectangle' on a uniform grid use it"),
+            ("horizon", "the grid's span t[-1] - t[0] is the horizon of compressed memory there"),
         ):
             if key in options:
                 raise ArgumentError(f"{key}={show(options[key])}: not used with t= ({why})")
-        if options.get("memory", "exact") != "exact":
-            raise ArgumentError(
-                f"memory={show(options['memory'])}: not available with "
-                "t= (the grid solver keeps every f value); use "
-                "memory='exact'"
-            )
         n = int(times.size) - 1
         h = 1.0
     else:
@@ -561,6 +554,10 @@ def solve_many(
         ) from exc
     method = opts.get("method", "predictor-corrector")
     memory = opts.get("memory", "exact")
+    if times is not None:
+        from .solve_grid import check_grid_memory
+
+        check_grid_memory(method, memory)
     horizon = opts.get("horizon")
     if horizon is None and (memory == "compressed" or method == "implicit-rectangle"):
         horizon = max(n, 1)

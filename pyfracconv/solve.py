@@ -1460,7 +1460,7 @@ def _solve_grid(
 ):
     """solve() with t=: the arguments checked, then the grid engine."""
     from .grid import check_times
-    from .solve_grid import solve_on_grid
+    from .solve_grid import check_grid_memory, solve_on_grid
 
     times = check_times(t)
     if times.size == 0:
@@ -1471,15 +1471,15 @@ def _solve_grid(
         )
     meth = _check_method(method)
     mem = _check_memory(memory)
-    if mem != "exact":
-        raise ArgumentError(
-            f"memory={mem!r}: not available with t= (the grid solver keeps every f value); use memory='exact'"
-        )
+    check_grid_memory(meth, mem)
     if horizon is not None:
         raise ArgumentError(
-            f"horizon={show(horizon)}: not used with t= (only by "
-            "compressed memory and 'implicit-rectangle' on a uniform grid)"
+            f"horizon={show(horizon)}: not used with t= (the grid's span "
+            "t[-1] - t[0] is the horizon of compressed memory there)"
         )
+    tolf = 0.0
+    if mem == "compressed":
+        tolf, _ = check_compressed(tol, 1.0)
     if not isinstance(progress, (bool, np.bool_)):
         raise InputTypeError(f"progress={show(progress)}: expected True or False")
     bar_cls = _tqdm() if progress else None
@@ -1491,7 +1491,7 @@ def _solve_grid(
         dy0,
         float(times[0]),
         meth,
-        mem,
+        "exact",  # compressed memory on a grid: checked here and by the streams
         tol,
         # the uniform implicit rectangle's kernel length (not used on a grid)
         1.0 if meth == "implicit-rectangle" else None,
@@ -1500,6 +1500,7 @@ def _solve_grid(
         newton_tol,
         newton_maxiter,
     )
+    p["memory"], p["tol"] = mem, tolf
     n = times.size - 1
     check_bytes(f"t ({n + 1} times)", 8 * (n + 1) * (2 * p["m"] + 1))
     if bar_cls is None:

@@ -38,9 +38,12 @@ the residual r = y - c - w f(t, y) of every component, the Jacobian from
 The weights are those of :func:`pyfracconv.grid.grid_weights` (computed
 without cancellation).
 
-Engine: Python over NumPy, every history sum recomputed at each step from
-the weights of that row, O(N^2) work and O(N) memory per row (fine up to
-about 2e4 steps); no compressed memory on a grid yet.
+Memory: ``memory='exact'`` recomputes every history sum at each step from
+the weights of that row in NumPy, O(N^2) work and O(N) memory per row
+(fine up to about 2e4 steps); ``memory='compressed'`` keeps the sums in
+streams with a time per sample (:class:`pyfracconv.TimedStream`, sums of
+exponentials: O(L) work per step, memory fixed apart from the returned
+trajectory), for the rectangle, predictor-corrector and trapezoid methods.
 """
 
 from __future__ import annotations
@@ -49,7 +52,7 @@ import math
 
 import numpy as np
 
-from ._errors import NewtonError, RhsError, SolverError
+from ._errors import ArgumentError, NewtonError, RhsError, SolverError
 from .grid import _trap_parts
 
 # Terms of the series of J_L(s) = int_0^1 (1 - s u)^(a-1) (1 - u) du and
@@ -132,6 +135,10 @@ def _eval(rhs, t, y, scalar, m):
         raise
     except BaseException as exc:
         raise _Fail("raised", exc) from None
+    if scalar and type(v) is float:  # the common case, without NumPy's checks
+        if not math.isfinite(v):
+            raise _Fail("nonfinite", v)
+        return np.array((v,))
     try:
         a = np.asarray(v, dtype=np.float64)
     except Exception:
@@ -175,12 +182,140 @@ def _readonly(y):
     return v
 
 
+def check_grid_memory(method, memory):
+    """Refuse the one pair a grid does not serve (names checked)."""
+    if memory == "compressed" and method == "implicit-rectangle":
+        raise ArgumentError(
+            "memory='compressed', method='implicit-rectangle': not available with t= "
+            "(its history weighs each f value by the interval to its left, which a "
+            "stream with a time per sample does not keep); use memory='exact' or "
+            "method='trapezoid'"
+        )
+
+
+class _ExactSums:
+    """The history sums of step n -> n+1 from the weights of row n+1,
+    every sum recomputed over all f values (O(n) per step)."""
+
+    def __init__(self, t, groups, method, f0, m):
+        self.F = np.empty((m, t.size))  # f values, one contiguous row per component
+        self.F[:, 0] = f0
+        self.t, self.groups, self.m = t, groups, m
+        self.dt = np.diff(t)
+        self.rect = method in ("rectangle", "predictor-corrector")
+        self.trap = method in ("predictor-corrector", "trapezoid")  # trapezoid weights
+        self.right = method == "implicit-rectangle"  # rectangle weights on f_{k+1}
+
+    def row(self, n):
+        """(sum_k b f_k, the trapezoid or right-end history, the weight of
+        the unknown value), each of shape (m,), for y_{n+1}."""
+        t, F, m = self.t, self.F, self.m
+        tn = t[n + 1]
+        d = tn - t[: n + 1]
+        e = tn - t[1 : n + 2]
+        h = self.dt[: n + 1]
+        rsum = np.zeros(m)
+        hist = np.zeros(m)
+        last = np.zeros(m)
+        for a, ix, coef in self.groups:
+            b, left, rt = _row_weights(a, coef, d, e, h, self.trap)
+            # pairwise sums of the products (NumPy's sum, no BLAS: the
+            # same bits whatever the threads, and componentwise accurate)
+            if self.right:
+                # f_1 .. f_n on intervals 0 .. n-1; f_{n+1} (interval n) is the unknown
+                hist[ix] = np.sum(b[:n] * F[ix, 1 : n + 1], axis=1)
+                last[ix] = b[n]
+                continue
+            if self.rect:
+                rsum[ix] = np.sum(b * F[ix, : n + 1], axis=1)
+            if self.trap:
+                assert left is not None and rt is not None
+                w = np.concatenate([left, [0.0]])
+                w[1:] += rt
+                hist[ix] = np.sum(w[: n + 1] * F[ix, : n + 1], axis=1)
+                last[ix] = w[n + 1]
+        return rsum, hist, last
+
+    def push(self, n, fn):
+        self.F[:, n] = fn
+
+
+class _CompressedSums:
+    """The history sums from TimedStream objects (sums of exponentials,
+    O(L) per step, memory fixed): one per order group and rule, fed
+    (t_k, f_k); before step n+1 the rectangle stream's preview at t_{n+1}
+    is sum_k b_{n+1,k} f_k (the rule does not use the sample there) and
+    the trapezoid stream's preview with a sample of 0 is the history
+    without the newest value, whose weight is h^a / Gamma(a+2),
+    h = t_{n+1} - t_n (the exact last interval of the stream,
+    csrc/stream_timed.c). Each sum is within tol of the exact rule's,
+    relative to the sum of the magnitudes of its terms (the stream's
+    promise), over the grid's span (the streams' horizon)."""
+
+    def __init__(self, t, groups, method, tol, f0, m):
+        from .stream_timed import TimedStream
+
+        self.t, self.m = t, m
+        span = float(t[-1] - t[0])
+        hmin = float(np.min(np.diff(t)))
+        rules = []
+        if method in ("rectangle", "predictor-corrector"):
+            rules.append("rectangle")
+        if method in ("predictor-corrector", "trapezoid"):
+            rules.append("trapezoid")
+        self.rect = []
+        self.trap = []
+        self.wfac = []
+        for a, ix, _ in groups:
+            for rule in rules:
+                # a group of one component: the scalar stream (floats, the
+                # fast path of push and preview)
+                ch = None if len(ix) == 1 else len(ix)
+                try:
+                    st = TimedStream(a, min_step=hmin, horizon=span, rule=rule, tol=tol, channels=ch)
+                except ArgumentError as exc:
+                    raise ArgumentError(
+                        f"order={a!r}, memory='compressed' with t=: the {rule} rule's "
+                        f"stream with a time per sample refuses it ({exc}); use memory='exact'"
+                    ) from None
+                key = int(ix[0]) if ch is None else ix
+                st.push(float(t[0]), f0[key])
+                (self.rect if rule == "rectangle" else self.trap).append((key, st))
+            self.wfac.append((ix, a, 1.0 / math.gamma(a + 2.0)))
+        self.zero = {len(ix): (0.0 if len(ix) == 1 else np.zeros(len(ix))) for _, ix, _ in groups}
+        self.tl = t.tolist()
+
+    def row(self, n):
+        tn = self.tl[n + 1]
+        h = tn - self.tl[n]
+        m = self.m
+        rsum = np.zeros(m)
+        hist = np.zeros(m)
+        last = np.zeros(m)
+        for key, st in self.rect:
+            rsum[key] = st.preview(tn, self.zero[1 if isinstance(key, int) else len(key)])
+        for key, st in self.trap:
+            hist[key] = st.preview(tn, self.zero[1 if isinstance(key, int) else len(key)])
+        if self.trap:
+            for ix, a, g in self.wfac:
+                last[ix] = h**a * g
+        return rsum, hist, last
+
+    def push(self, n, fn):
+        tn = self.tl[n]
+        for key, st in self.rect:
+            st.push(tn, fn[key])
+        for key, st in self.trap:
+            st.push(tn, fn[key])
+
+
 def solve_on_grid(p, times, progress_bar, result_cls):
     """Run the method of the checked arguments ``p`` (solve.py's _setup)
     on the checked grid ``times`` (N+1,); returns a SolveResult."""
     rhs, jac = p["rhs"], p["jacobian"]
     m, scalar, method, corr = p["m"], p["scalar"], p["method"], p["corr"]
     ntol, nmax = p["ntol"], p["nmax"]
+    memory = p["memory"]
     orders = p["orders"]
     init = p["init"]
     y0 = init[:m]
@@ -188,15 +323,12 @@ def solve_on_grid(p, times, progress_bar, result_cls):
     t = times
     N = t.size - 1
     y = np.empty((N + 1, m))
-    F = np.empty((m, N + 1))  # f values, one contiguous row per component
     y[0] = y0
     groups = {}
     for i, a in enumerate(orders.tolist()):
         groups.setdefault(a, []).append(i)
     groups_idx = [(a, np.array(ix), _series_coefficients(a)) for a, ix in groups.items()]
     pc = method == "predictor-corrector"
-    trap = method in ("predictor-corrector", "trapezoid")  # trapezoid weights
-    right = method == "implicit-rectangle"  # rectangle weights on f_{k+1}
     evals = 0
     jevals = 0
 
@@ -205,7 +337,7 @@ def solve_on_grid(p, times, progress_bar, result_cls):
 
     def fail(exc, step):
         k = max(step - 1, 0)
-        partial = result_cls(t[: k + 1].copy(), shape(y[: k + 1].copy()), evals, jevals, method, "exact")
+        partial = result_cls(t[: k + 1].copy(), shape(y[: k + 1].copy()), evals, jevals, method, memory)
         ts = float(t[step])
         at = f"at step {step}, t={ts!r}"
         keep = f"; the solution up to step {step - 1} is in .partial" if step else "; nothing was computed"
@@ -293,57 +425,38 @@ def solve_on_grid(p, times, progress_bar, result_cls):
                 break
         raise fail(_Fail("newton", None), step)
 
-    slope = orders > 1.0
-    F[:, 0] = f(0, y0)
-    dt = np.diff(t)
+    # y'(t0) enters where an order exceeds 1 (dy0 is 0 elsewhere: solve.py)
+    any_slope = bool(np.any(orders > 1.0))
+    f0 = f(0, y0)
+    if memory == "compressed":
+        sums = _CompressedSums(t, groups_idx, method, p["tol"], f0, m)
+    else:
+        sums = _ExactSums(t, groups_idx, method, f0, m)
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         for n in range(N):
             tn = t[n + 1]
-            d = tn - t[: n + 1]
-            e = tn - t[1 : n + 2]
-            h = dt[: n + 1]
-            base = y0 + np.where(slope, dy0 * (tn - t[0]), 0.0)
-            pred = base.copy()
-            hist = np.empty(m)
-            last = np.empty(m)
-            for a, ix, coef in groups_idx:
-                b, left, rt = _row_weights(a, coef, d, e, h, trap)
-                # pairwise sums of the products (NumPy's sum, no BLAS: the
-                # same bits whatever the threads, and componentwise accurate)
-                if right:
-                    # f_1 .. f_n on intervals 0 .. n-1; f_{n+1} (interval n) is the unknown
-                    hist[ix] = np.sum(b[:n] * F[ix, 1 : n + 1], axis=1)
-                    last[ix] = b[n]
-                    continue
-                if method != "trapezoid":
-                    pred[ix] += np.sum(b * F[ix, : n + 1], axis=1)
-                if trap:
-                    assert left is not None and rt is not None
-                    w = np.concatenate([left, [0.0]])
-                    w[1:] += rt
-                    hist[ix] = np.sum(w[: n + 1] * F[ix, : n + 1], axis=1)
-                    last[ix] = w[n + 1]
+            base = y0 + dy0 * (tn - t[0]) if any_slope else y0
+            rsum, hist, last = sums.row(n)
             if method in ("trapezoid", "implicit-rectangle"):
                 c = base + hist
-                if not np.all(np.isfinite(c)):
+                if not np.isfinite(c).all():
                     raise fail(_Fail("overflow", c), n + 1)
                 yn, fn = newton(n + 1, c, last, y[n])
-                y[n + 1] = yn
-                F[:, n + 1] = fn
             else:
-                if not np.all(np.isfinite(pred)):
-                    raise fail(_Fail("overflow", pred), n + 1)
-                yn = pred
+                yn = base + rsum
+                if not np.isfinite(yn).all():
+                    raise fail(_Fail("overflow", yn), n + 1)
                 if pc:
                     for _ in range(corr):
                         yn = base + hist + last * f(n + 1, yn)
-                    if not np.all(np.isfinite(yn)):
+                    if not np.isfinite(yn).all():
                         raise fail(_Fail("overflow", yn), n + 1)
-                y[n + 1] = yn
-                F[:, n + 1] = f(n + 1, yn)
+                fn = f(n + 1, yn)
+            y[n + 1] = yn
+            sums.push(n + 1, fn)
             if progress_bar is not None:
                 progress_bar.update(1)
-    return result_cls(t.copy(), shape(y), evals, jevals, method, "exact")
+    return result_cls(t.copy(), shape(y), evals, jevals, method, memory)
 
 
-__all__ = ["GRID_METHODS", "solve_on_grid"]
+__all__ = ["GRID_METHODS", "check_grid_memory", "solve_on_grid"]

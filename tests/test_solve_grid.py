@@ -288,7 +288,6 @@ class Counting:
         ((0.01,), dict(), r"n_steps=None: give step and n_steps"),
         ((), dict(t=[0.0, 1.0], t0=0.0), r"t0=0\.0: not used with t="),
         ((), dict(t=[0.0, 1.0], method="euler"), r"method='euler': unknown"),
-        ((), dict(t=[0.0, 1.0], memory="compressed"), r"memory='compressed': not available with t="),
         ((), dict(t=[0.0, 1.0], horizon=10), r"horizon=10: not used with t="),
         ((), dict(t=[0.0, 0.5, 0.5]), r"t\[2\]=0\.5 after t\[1\]=0\.5: .*strictly increasing"),
         ((), dict(t=[0.0, float("nan")]), r"t\[1\]=nan: sample times must be finite"),

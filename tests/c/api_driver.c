@@ -326,7 +326,16 @@ static void test_grid(void)
     EXPECT(fc_stream_create_timed(FC_RULE_TRAPEZOID, 0.5, NaN_, 1, 1e-10, 10.0, &s), FC_ERR_STEP);
     EXPECT(fc_stream_create_timed(FC_RULE_TRAPEZOID, 0.5, 0.005, 1, 1e-10, 10.0, &s), FC_OK);
     EXPECT(fc_stream_push_timed(s, t, x, N / 2, yb), FC_OK);
+    double pv = -1.0, pv2 = -2.0;
+    EXPECT(fc_stream_preview_timed(s, t[N / 2], x + N / 2, &pv), FC_OK);
+    EXPECT(fc_stream_preview_timed(s, t[N / 2], x + N / 2, &pv2), FC_OK);
+    TRUE_(pv == pv2);                                                  /* nothing changed */
+    EXPECT(fc_stream_preview_timed(s, t[N / 2 - 1], x, &pv), FC_ERR_ARG); /* time not after */
+    EXPECT(fc_stream_preview_timed(s, NaN_, x, &pv), FC_ERR_NONFINITE);
+    EXPECT(fc_stream_preview_timed(s, t[N / 2], x, NULL), FC_ERR_NULL);
+    EXPECT(fc_stream_preview_timed(NULL, t[N / 2], x, &pv), FC_ERR_NULL);
     EXPECT(fc_stream_push_timed(s, t + N / 2, x + N / 2, N - N / 2, yb + N / 2), FC_OK);
+    TRUE_(yb[N / 2] == pv);                                            /* the push's bits */
     int timed = 0;
     EXPECT(fc_stream_is_timed(s, &timed), FC_OK);
     TRUE_(timed == 1);
