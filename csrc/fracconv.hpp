@@ -366,8 +366,10 @@ inline std::size_t grid_apply(int rule, double order, cview t, cview x, std::siz
                   "fc_grid_apply");
     return terms;
 }
+/* The same into a new vector; tol 1e-12 by default (the default of
+   integral/derivative(..., t=) in Python). */
 inline std::vector<double> grid_apply(int rule, double order, cview t, cview x,
-                                      double tol = 1e-10, std::size_t nsig = 1)
+                                      double tol = 1e-12, std::size_t nsig = 1)
 {
     std::vector<double> y(x.size);
     grid_apply(rule, order, t, x, nsig, view(y), tol);
