@@ -678,8 +678,8 @@ contains
 
   ! One signal on the times t (strictly increasing, finite): y(i)
   ! approximates the operator at t(i), from t(1), by sums of exponentials
-  ! (fc_grid_apply: its promise and rules, RECTANGLE and TRAPEZOID
-  ! 0 < order <= 1, L1 0 < order < 1). tol in [1e-15, 1e-2], default 1e-12
+  ! (fc_grid_apply: its rules, orders and promise as fracconv.h states
+  ! them). tol in [1e-15, 1e-2], default 1e-12
   ! (as integral/derivative(..., t=) in Python); terms (optional) gets the
   ! number of exponential terms. A refusal writes nothing to y.
   subroutine fc_grid_apply_1(rule, order, t, x, y, status, tol, terms)
