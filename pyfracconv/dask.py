@@ -488,7 +488,7 @@ def solve_many(
             raise ArgumentError("t: empty; expected at least the start time t[0]")
         for key, why in (
             ("t0", "the problem starts at t[0]"),
-            ("horizon", "only compressed memory and 'implicit-rectangle' on a uniform grid use it"),
+            ("horizon", "only compressed memory on a uniform grid uses it"),
         ):
             if key in options:
                 raise ArgumentError(f"{key}={show(options[key])}: not used with t= ({why})")
@@ -566,7 +566,7 @@ def solve_many(
     method = opts.get("method", "predictor-corrector")
     memory = opts.get("memory", "exact")
     horizon = opts.get("horizon")
-    if horizon is None and (memory == "compressed" or method == "implicit-rectangle"):
+    if horizon is None and memory == "compressed":
         horizon = max(n, 1)
     chk = _setup(
         rhs,
