@@ -559,7 +559,7 @@ def solve_many(
 
         check_grid_memory(method, memory)
     horizon = opts.get("horizon")
-    if horizon is None and (memory == "compressed" or method == "implicit-rectangle"):
+    if horizon is None and memory == "compressed":
         horizon = max(n, 1)
     chk = _setup(
         rhs,

@@ -376,19 +376,9 @@ def _setup(
     if not (1e-15 <= ntol <= 1e-2):
         raise ArgumentError(f"newton_tol={show(newton_tol)}: must be in [1e-15, 1e-2]")
     nmax = check_count("newton_maxiter", newton_maxiter, 1, 1000)
+    # exact memory has no horizon (every method's history grows with the
+    # steps): a horizon given with it is not used
     tolf, hz = 0.0, 0.0
-    if meth == "implicit-rectangle" and mem == "exact":
-        if horizon is None:
-            raise ArgumentError(
-                "horizon=None: required for method='implicit-rectangle' (the "
-                "number of steps it can take; its kernel is allocated at creation)"
-            )
-        hz = check_real("horizon", horizon)
-        if not (1.0 <= hz <= 2.0**28):
-            raise ArgumentError(
-                f"horizon={show(horizon)}: must be in [1, 2**28] for "
-                "method='implicit-rectangle' with memory='exact'"
-            )
     if mem == "compressed":
         if horizon is None:
             raise ArgumentError(
@@ -459,8 +449,7 @@ def _status_error(st, what):
 class Stepper:
     """A Caputo initial value problem advanced step by step (co-simulation,
     checkpoints). Arguments as for :func:`solve`; ``horizon`` (in steps) is
-    required for ``memory='compressed'`` and for ``method='implicit-rectangle'``
-    with exact memory.
+    required for ``memory='compressed'`` (with exact memory it is not used).
 
     ``advance(n)`` returns the n new times and states; :attr:`t`, :attr:`y`,
     :attr:`steps`, :attr:`rhs_evals`, :attr:`jac_evals` tell where it is;
@@ -1082,8 +1071,10 @@ class Stepper:
         memory = _MEMORY_NAMES[int.from_bytes(b[_ENV_LEN + 16 : _ENV_LEN + 20], "little")]
         if jacobian is not None and method not in IMPLICIT:
             raise ArgumentError(f"jacobian: only used by the implicit methods (method={method!r})")
-        # the horizon, bytes 56..64 of the C format (csrc/solver.c)
-        horizon = struct.unpack_from("<d", b, _ENV_LEN + 56)[0]
+        # the horizon, bytes 56..64 of the C format (csrc/solver.c; exact
+        # memory has none, though an older exact 'implicit-rectangle' blob
+        # holds the horizon its creation required)
+        horizon = struct.unpack_from("<d", b, _ENV_LEN + 56)[0] if memory == "compressed" else 0.0
         self = cls.__new__(cls)
         self._init(s, m, scalar, method, memory, rhs, jacobian, horizon)
         return self
@@ -1289,9 +1280,8 @@ def solve(
     tol : float, optional
         Tolerance of the compressed history sums, in [1e-15, 1e-2].
     horizon : float, optional
-        Steps the compressed tolerance is promised for, and the steps
-        ``'implicit-rectangle'`` with exact memory can take (at most 2**28;
-        default n_steps).
+        Steps the compressed tolerance is promised for (default n_steps);
+        not used with exact memory.
     jacobian : callable, optional
         ``jacobian(t, y)`` -> df/dy, shape (m, m) (a number for a scalar
         problem); implicit methods only; default forward differences.
@@ -1386,7 +1376,7 @@ def solve(
     if not isinstance(progress, (bool, np.bool_)):
         raise InputTypeError(f"progress={show(progress)}: expected True or False")
     bar_cls = _tqdm() if progress else None
-    if horizon is None and (memory == "compressed" or method == "implicit-rectangle"):
+    if horizon is None and memory == "compressed":
         horizon = max(n, 1)
     st = Stepper(
         rhs,
@@ -1493,8 +1483,7 @@ def _solve_grid(
         meth,
         "exact",  # compressed memory on a grid: checked here and by the streams
         tol,
-        # the uniform implicit rectangle's kernel length (not used on a grid)
-        1.0 if meth == "implicit-rectangle" else None,
+        None,
         jacobian,
         corrections,
         newton_tol,
