@@ -1,7 +1,8 @@
 """The solver on a given grid (solve(..., t=)): O(N^2) in Python over the
 weights of pyfracconv.grid, on the graded mesh t_k = (k/N)^2 of [0, 1],
-D^0.6 y = -y (a scalar Python rhs), both methods of the grid solver, and
-the uniform C solver at the same step count for comparison.
+D^0.6 y = -y (a scalar Python rhs), the explicit methods with exact
+memory, the predictor-corrector with compressed memory (up to 10^5 steps),
+and the uniform C solver at the same step count for comparison.
 
     python -m pytest bench/test_bench_solve_grid.py --benchmark-group-by=param:N
 
@@ -40,6 +41,22 @@ def test_grid_solver(benchmark, method, N):
         pyfracconv.solve, args=(rhs, 1.0, A), kwargs=dict(t=t, method=method), rounds=1, iterations=1
     )
     assert abs(res.y[-1] - E1) < (1e-3 if method == "rectangle" else 1e-5)
+
+
+@pytest.mark.parametrize("N", [2000, 10000, 20000, 100000], ids=lambda n: f"N={n}")
+def test_grid_solver_compressed(benchmark, N):
+    # memory='compressed': the sums in streams with a time per sample, O(L)
+    # per step (the exact-memory rows above are O(N^2))
+    benchmark.group = f"solve on a grid N={N}"
+    t = graded_mesh(1.0, N, 2.0)
+    res = benchmark.pedantic(
+        pyfracconv.solve,
+        args=(rhs, 1.0, A),
+        kwargs=dict(t=t, method="predictor-corrector", memory="compressed"),
+        rounds=1,
+        iterations=1,
+    )
+    assert abs(res.y[-1] - E1) < 1e-5
 
 
 @pytest.mark.parametrize("N", [2000, 10000, 20000], ids=lambda n: f"N={n}")

@@ -4,7 +4,8 @@
 
 Invented test problems: D^a y = -y + 0.1 sin(t), a = 0.6, step 1e-4,
 scalar and a vectorised system of 100 components, solved by the
-predictor-corrector with exact and compressed memory, against
+predictor-corrector with exact and compressed memory (and, scalar, by the
+implicit product rectangle rule with exact memory), against
 
   - a plain NumPy O(N^2) loop of the same method (every history sum a dot
     product over the whole history), at 1e4 steps and at 1e5 (scalar);
@@ -145,6 +146,26 @@ def test_vector_numpy_loop(benchmark):
     y0 = np.linspace(0.5, 1.5, M)
     y = benchmark.pedantic(numpy_pc, args=(rhs_vector, y0, n, False), rounds=3, iterations=1)
     _check(solve(rhs_vector, y0, A, H, n).y, y)
+
+
+def jac_scalar(t, y):
+    return -1.0
+
+
+@pytest.mark.parametrize("n", [10**4, 10**5])
+def test_scalar_implicit_rectangle_exact(benchmark, n):
+    """The implicit product rectangle rule with exact memory (creation
+    included: the whole solve call)."""
+    benchmark.group = f"scalar implicit rectangle, exact, {n} steps"
+    res = benchmark.pedantic(
+        solve,
+        args=(rhs_scalar, 1.0, A, H, n),
+        kwargs={"method": "implicit-rectangle", "jacobian": jac_scalar},
+        rounds=3,
+        iterations=1,
+    )
+    _per_step(benchmark, n)
+    assert res.y.shape == (n + 1,)
 
 
 # ------------------------------------------------------------ one step a call

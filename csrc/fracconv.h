@@ -542,7 +542,8 @@ FC_API int fc_stream_horizon(const fc_stream *s, double *horizon);
  * nothing of the block and changes nothing. The untimed fc_stream_push,
  * fc_stream_push_block, fc_stream_push1, fc_stream_preview and
  * fc_stream_history refuse such a stream with FC_ERR_ARG, and
- * fc_stream_push_timed refuses every other stream with FC_ERR_ARG.
+ * fc_stream_push_timed and fc_stream_preview_timed refuse every other
+ * stream with FC_ERR_ARG.
  * fc_stream_step gives min_step, fc_stream_horizon the time horizon,
  * fc_stream_mode FC_MODE_COMPRESSED, fc_stream_remaining the samples the
  * count still allows (the horizon is a time). Save/load: fc_stream_save,
@@ -557,6 +558,16 @@ FC_API int fc_stream_create_timed(int rule, double order, double min_step,
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (not a timed stream, step below min_step, overlap), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE. */
 FC_API int fc_stream_push_timed(fc_stream *s, const double *t, const double *x,
                                 size_t count, double *y);
+/* What fc_stream_push_timed of the one step (t, x[channels]) would
+   return, into y[channels], bit for bit; nothing changes. The same checks
+   and statuses as that push (y == x allowed). With a sample of 0 it gives
+   the part of the output at t that the samples already pushed make: for
+   RECTANGLE the whole output (the rule does not use the sample at t), for
+   TRAPEZOID all but (t - t_prev)^a / Gamma(a+2) x (the newest sample's
+   weight) -- what a time stepper needs before the sample exists. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (not a timed stream, step below min_step, overlap), FC_ERR_NONFINITE, FC_ERR_RANGE, FC_ERR_HORIZON, FC_ERR_SIZE. */
+FC_API int fc_stream_preview_timed(fc_stream *s, double t, const double *x,
+                                   double *y);
 /* *timed = 1 for a stream with a time per sample, else 0. */
 /* Statuses: FC_OK, FC_ERR_NULL (immutable field: no busy check). */
 FC_API int fc_stream_is_timed(const fc_stream *s, int *timed);
@@ -587,10 +598,9 @@ FC_API int fc_stream_is_timed(const fc_stream *s, int *timed);
  *                        end points, order 1): y = T + history + u f(t, y),
  *                        u = h^a/Gamma(a+1), solved like FC_METHOD_TRAPEZOID;
  *                        strongly damped, for stiff problems with
- *                        non-smooth solutions; with FC_MODE_EXACT
- *                        `horizon` is required, 1 <= horizon <= 2^28: the
- *                        steps it can take (its kernel of floor(horizon)+1
- *                        weights is allocated at creation and at load)
+ *                        non-smooth solutions; with FC_MODE_EXACT its
+ *                        history, like every method's, grows with the
+ *                        steps (no horizon)
  * Memory: FC_MODE_EXACT (streams keep every f value) or FC_MODE_COMPRESSED
  * (bounded memory, tol and horizon as for fc_stream_create, horizon counted
  * in steps; every method, orders < 2, as the rule table's compressed
@@ -635,7 +645,7 @@ typedef int (*fc_jac_fn)(double t, const double *y, double *jac, void *user);
  * order <= 1 but must be finite); method FC_METHOD_*; memory FC_MODE_*;
  * tol, horizon: as for fc_stream_create (ignored for FC_MODE_EXACT).
  */
-/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_SIZE (m == 0 or too large), FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_NONFINITE (init), FC_ERR_ARG (t0 not finite), FC_ERR_RULE (method unknown), FC_ERR_MODE, FC_ERR_TOL (tol, horizon; also the horizon of the implicit rectangle rule), FC_ERR_RANGE, FC_ERR_NOMEM. */
+/* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_SIZE (m == 0 or too large), FC_ERR_ORDER, FC_ERR_STEP, FC_ERR_NONFINITE (init), FC_ERR_ARG (t0 not finite), FC_ERR_RULE (method unknown), FC_ERR_MODE, FC_ERR_TOL (tol, horizon: FC_MODE_COMPRESSED), FC_ERR_RANGE, FC_ERR_NOMEM. */
 FC_API int fc_solver_create(size_t m, const double *orders, double step, double t0,
                             const double *init, int method, int memory, double tol,
                             double horizon, fc_solver **out);
@@ -690,7 +700,10 @@ FC_API int fc_solver_failure(const fc_solver *s, uint64_t *step, double *t);
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY. */
 FC_API int fc_solver_nbytes(const fc_solver *s, size_t *nbytes);
 /* Save / load: little-endian, versioned, FNV-1a 64 checksummed; streams
-   embedded as fc_stream_save blobs. A loaded solver has no callbacks. */
+   embedded as fc_stream_save blobs (FC_METHOD_IMPLICIT_RECTANGLE with
+   FC_MODE_EXACT: the f values of the steps instead, from which the loader
+   rebuilds its stream; the loader's memory and work are in proportion to
+   the blob). A loaded solver has no callbacks. */
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_SIZE. */
 FC_API int fc_solver_save_size(const fc_solver *s, size_t *size);
 /* Statuses: FC_OK, FC_ERR_NULL, FC_ERR_BUSY, FC_ERR_ARG (buffer too small), FC_ERR_SIZE. */

@@ -7,8 +7,9 @@
  *     from std::runtime_error) whose what() is "<function>: <fc_strerror>"
  *     and whose status() is the FC_ERR_* code; a refused call changes
  *     nothing, as in C;
- *   - ownership: pyfracconv::stream, context, solver and controller own
- *     their C object (RAII), are move-only, and free it in the destructor;
+ *   - ownership: pyfracconv::stream, timed_stream (a time per sample),
+ *     context, solver and controller own their C object (RAII), are
+ *     move-only, and free it in the destructor;
  *   - callbacks: pyfracconv::solver takes the right-hand side (and the
  *     Jacobian) as any callable, f(t, y, f) returning void, or int/bool
  *     (non-zero stops the run); it is kept in a heap cell whose address is
@@ -333,6 +334,185 @@ private:
     fc_stream *live() const
     {
         if (!p_) throw error(FC_ERR_NULL, "pyfracconv::stream (moved from)");
+        return p_;
+    }
+    template <class T>
+    T get_(int (*fn)(const fc_stream *, T *), const char *where) const
+    {
+        T v{};
+        detail::check(fn(live(), &v), where);
+        return v;
+    }
+    fc_stream *p_ = nullptr;
+};
+
+/* ------------------------------------------------------------- grid */
+
+/* A rule on a strictly increasing grid of times t (fc_grid_apply, sums of
+   exponentials): nsig signals of t.size samples each, row-major
+   (x.size == nsig * t.size), y at least x.size; tol in [1e-15, 1e-2].
+   Returns the number of exponential terms used. A refusal writes nothing
+   to y. */
+inline std::size_t grid_apply(int rule, double order, cview t, cview x, std::size_t nsig,
+                              view y, double tol)
+{
+    if (nsig == 0 || x.size != detail::mul(nsig, t.size, "fc_grid_apply"))
+        throw error(FC_ERR_ARG, "fc_grid_apply (x.size = " + std::to_string(x.size) +
+                                    ", nsig = " + std::to_string(nsig) + ", t.size = " +
+                                    std::to_string(t.size) + ": x.size must be nsig * t.size, nsig >= 1)");
+    detail::need(y.size, x.size, "fc_grid_apply");
+    std::size_t terms = 0;
+    detail::check(fc_grid_apply(rule, order, t.data, x.data, nsig, t.size, tol, y.data, &terms),
+                  "fc_grid_apply");
+    return terms;
+}
+/* The same into a new vector; tol 1e-12 by default (the default of
+   integral/derivative(..., t=) in Python). */
+inline std::vector<double> grid_apply(int rule, double order, cview t, cview x,
+                                      double tol = 1e-12, std::size_t nsig = 1)
+{
+    std::vector<double> y(x.size);
+    grid_apply(rule, order, t, x, nsig, view(y), tol);
+    return y;
+}
+
+/* ------------------------------------------------------------- timed stream */
+
+/* A compressed stream with a time per sample (fc_stream_create_timed,
+   fc_stream_push_timed): pushes take (time, sample) pairs; min_step is the
+   smallest step a push may make and horizon the time span the promise of
+   fracconv.h covers. Owns its C stream (RAII, move-only). A refused push
+   (time not after the previous one by min_step, not finite, past the
+   horizon under FC_HORIZON_REFUSE) throws and changes nothing. */
+class timed_stream {
+public:
+    timed_stream(int rule, double order, double min_step, double tol, double horizon,
+                 std::size_t channels = 1)
+    {
+        detail::check(fc_stream_create_timed(rule, order, min_step, channels, tol, horizon, &p_),
+                      "fc_stream_create_timed");
+    }
+    /* Rebuild from bytes written by save(); bytes of a stream without
+       times are refused (FC_ERR_ARG). */
+    static timed_stream load(const std::vector<unsigned char> &blob)
+    {
+        fc_stream *p = nullptr;
+        detail::check(fc_stream_load(blob.data(), blob.size(), &p), "fc_stream_load");
+        return adopt(p, "fc_stream_load");
+    }
+    /* Rebuild from a file written by save_file (at most max_size bytes are
+       read; untrusted input, as for load). */
+    static timed_stream load_file(const std::string &path,
+                                  std::size_t max_size = std::size_t(1) << 30)
+    {
+        fc_stream *p = nullptr;
+        detail::check(fc_stream_load_file(path.c_str(), max_size, &p), "fc_stream_load_file");
+        return adopt(p, "fc_stream_load_file");
+    }
+    ~timed_stream() { fc_stream_free(p_); }
+    timed_stream(const timed_stream &) = delete;
+    timed_stream &operator=(const timed_stream &) = delete;
+    timed_stream(timed_stream &&o) noexcept : p_(std::exchange(o.p_, nullptr)) {}
+    timed_stream &operator=(timed_stream &&o) noexcept
+    {
+        if (this != &o) { fc_stream_free(p_); p_ = std::exchange(o.p_, nullptr); }
+        return *this;
+    }
+    fc_stream *get() const noexcept { return p_; }
+    /* Give up ownership; the caller frees with fc_stream_free. */
+    fc_stream *release() noexcept { return std::exchange(p_, nullptr); }
+
+    /* One channel: the output at time t for sample x. */
+    double push(double t, double x)
+    {
+        fc_stream *s = live();
+        std::size_t C = channels();
+        if (C != 1)
+            throw error(FC_ERR_ARG, "fc_stream_push_timed (channels = " + std::to_string(C) +
+                                        ": the scalar push needs 1; give views)");
+        double y = 0.0;
+        detail::check(fc_stream_push_timed(s, &t, &x, 1, &y), "fc_stream_push_timed");
+        return y;
+    }
+    /* One time: x and y hold channels() values. */
+    void push(double t, cview x, view y)
+    {
+        fc_stream *s = live();
+        std::size_t C = channels();
+        detail::need(x.size, C, "fc_stream_push_timed");
+        detail::need(y.size, C, "fc_stream_push_timed");
+        detail::check(fc_stream_push_timed(s, &t, x.data, 1, y.data), "fc_stream_push_timed");
+    }
+    /* t.size times, x channel-fastest (x.size == t.size * channels()). */
+    void push_block(cview t, cview x, view y)
+    {
+        fc_stream *s = live();
+        std::size_t C = channels();
+        if (x.size != detail::mul(t.size, C, "fc_stream_push_timed"))
+            throw error(FC_ERR_ARG, "fc_stream_push_timed (x.size = " + std::to_string(x.size) +
+                                        ", t.size = " + std::to_string(t.size) + ", channels = " +
+                                        std::to_string(C) + ": x.size must be t.size * channels)");
+        detail::need(y.size, x.size, "fc_stream_push_timed");
+        detail::check(fc_stream_push_timed(s, t.data, x.data, t.size, y.data),
+                      "fc_stream_push_timed");
+    }
+    std::vector<double> push_block(cview t, cview x)
+    {
+        std::vector<double> y(x.size);
+        push_block(t, x, view(y));
+        return y;
+    }
+    void reset() { detail::check(fc_stream_reset(live()), "fc_stream_reset"); }
+    std::vector<unsigned char> save()
+    {
+        std::size_t size = 0, written = 0;
+        detail::check(fc_stream_save_size(live(), &size), "fc_stream_save_size");
+        std::vector<unsigned char> buf(size);
+        detail::check(fc_stream_save(live(), buf.data(), buf.size(), &written), "fc_stream_save");
+        buf.resize(written);
+        return buf;
+    }
+    /* save() written to the file path atomically (fc_stream_save_file). */
+    void save_file(const std::string &path)
+    {
+        detail::check(fc_stream_save_file(live(), path.c_str()), "fc_stream_save_file");
+    }
+    void set_horizon_policy(int policy)
+    {
+        detail::check(fc_stream_set_horizon_policy(live(), policy), "fc_stream_set_horizon_policy");
+    }
+
+    std::uint64_t count() const { return get_<std::uint64_t>(fc_stream_count, "fc_stream_count"); }
+    std::size_t channels() const { return get_<std::size_t>(fc_stream_channels, "fc_stream_channels"); }
+    std::size_t nbytes() const { return get_<std::size_t>(fc_stream_nbytes, "fc_stream_nbytes"); }
+    std::size_t terms() const { return get_<std::size_t>(fc_stream_terms, "fc_stream_terms"); }
+    int horizon_policy() const { return get_<int>(fc_stream_horizon_policy, "fc_stream_horizon_policy"); }
+    bool past_horizon() const { return get_<int>(fc_stream_past_horizon, "fc_stream_past_horizon") != 0; }
+    std::uint64_t remaining() const { return get_<std::uint64_t>(fc_stream_remaining, "fc_stream_remaining"); }
+    int rule() const { return get_<int>(fc_stream_rule, "fc_stream_rule"); }
+    double order() const { return get_<double>(fc_stream_order, "fc_stream_order"); }
+    /* The smallest step a push may make (fc_stream_step of a timed stream). */
+    double min_step() const { return get_<double>(fc_stream_step, "fc_stream_step"); }
+    double tol() const { return get_<double>(fc_stream_tol, "fc_stream_tol"); }
+    /* The time span the promise covers (fc_stream_horizon). */
+    double horizon() const { return get_<double>(fc_stream_horizon, "fc_stream_horizon"); }
+
+private:
+    explicit timed_stream(fc_stream *owned) noexcept : p_(owned) {}
+    static timed_stream adopt(fc_stream *p, const char *where)
+    {
+        int timed = 0;
+        int st = fc_stream_is_timed(p, &timed);
+        if (st != FC_OK || !timed) {
+            fc_stream_free(p);
+            throw error(st != FC_OK ? st : FC_ERR_ARG,
+                        std::string(where) + " (not a stream with a time per sample)");
+        }
+        return timed_stream(p);
+    }
+    fc_stream *live() const
+    {
+        if (!p_) throw error(FC_ERR_NULL, "pyfracconv::timed_stream (moved from)");
         return p_;
     }
     template <class T>

@@ -398,6 +398,9 @@ int fc__soe_power(long double gm1, double tol, double R, fc__soe_pow *out);
 #define FC__KIND_KERNEL 1u
 #define FC__KIND_TIMED 2u    /* a time per sample (stream_timed.c); step
                                 holds the smallest step, horizon a time */
+#define FC__KIND_SHIFTED 3u  /* exact mode, internal (the solver's): the
+                                rule's lag kernel shifted by one lag,
+                                c_m = c^rule_{m+1}; never saved */
 typedef struct {
     unsigned kind;           /* FC__KIND_* */
     int rule;                /* -1 for a kernel */
@@ -458,6 +461,10 @@ typedef struct fc__stream_ops {
        samples x[count*channels]; refuse_past: FC_HORIZON_REFUSE */
     int (*push_timed)(void *eng, const double *t, const double *x,
                       size_t count, double *y, int refuse_past);
+    /* what push_timed of one step (t, x) would return, into y; nothing
+       changed (NULL for the other engines) */
+    int (*preview_timed)(void *eng, double t, const double *x, double *y,
+                         int refuse_past);
     /* 1 once an output past the horizon was produced (NULL: the facade
        counts samples against the horizon) */
     int (*past)(const void *eng);
@@ -467,6 +474,17 @@ extern const fc__stream_ops fc__exact_ops, fc__compressed_ops, fc__timed_ops;
    table), NULL for a number that is not a mode (stream.c). Streams with a
    time per sample are created and loaded through their own checks. */
 const fc__stream_ops *fc__stream_engine(int64_t mode);
+/*
+ * An exact stream (fc__exact_ops) of kind FC__KIND_SHIFTED: kernel c_m =
+ * the rule's lag kernel at lag m + 1 (m >= 0), computed on demand like a
+ * rule stream's, so that memory and work grow with the samples only. For
+ * a rule without correction columns that sums x itself (u = x); else
+ * FC_ERR_RULE. Other checks as fc_stream_create in exact mode. Such a
+ * stream cannot be saved (fc_stream_save_size and fc_stream_save answer
+ * FC_ERR_MODE): its owner (solver.c) keeps the samples and rebuilds it.
+ */
+int fc__stream_create_shifted(int rule, double order, double step,
+                              size_t channels, fc_stream **out);
 /* The definition checks of a stream with a time per sample (stream_timed.c;
    fc_stream_create_timed and the loader). */
 int fc__timed_params_check(int rule, double order, double minstep,

@@ -2,8 +2,9 @@
  * solver.c -- Caputo initial value problems D^a y = f(t, y) solved as the
  * Volterra equation y = T + I^a f(., y) with the library's product rules.
  *
- * Built only on the public interface (fracconv.h): the history sums of the
- * f values are kept by fc_stream objects, one rectangle and/or one
+ * Built on the public stream interface (fracconv.h) and one internal
+ * stream kind (internal.h, fc__stream_create_shifted): the history sums of
+ * the f values are kept by fc_stream objects, one rectangle and/or one
  * trapezoid stream per group of components sharing an order.
  *
  * Index conventions (csrc/fracconv.h, rules table). After step n the
@@ -17,13 +18,16 @@
  *
  * The implicit product rectangle rule (right end points),
  *   y_{n+1} = T_{n+1} + u sum_{k<=n} b_{n-k} f_{k+1},
- * has no rule stream of that form (its lag-0 weight is u b_0 = u): it uses
- * a kernel stream (fc_stream_create_kernel) with kernel u b_m, m <= horizon,
- * fed with f_1, f_2, ...; after step n its history is
+ * has no rule stream of that form (its lag-0 weight is u b_0 = u): with
+ * exact memory it uses an exact stream of the rectangle rule's lag kernel
+ * shifted by one lag (fc__stream_create_shifted: kernel c_m = u b_m, m >= 0,
+ * the rectangle rule's lag kernel at m + 1, computed when the history first
+ * reaches it, so that memory and work grow with the steps and no horizon
+ * is needed), fed with f_1, f_2, ...; after step n its history is
  * u sum_{1<=k<=n} b_{n+1-k} f_k and y_{n+1} = T_{n+1} + history + u f.
- * The solver keeps f_1 .. f_n itself for save/load (a kernel stream's blob
- * cannot be checked against the kernel it should hold, so a loaded solver
- * rebuilds the stream from the saved f values).
+ * Such a stream has no save format: the solver keeps f_1 .. f_n itself for
+ * save/load, and a loaded solver rebuilds the stream from the saved f
+ * values (work and memory in proportion to the blob).
  *
  * Compressed memory for the implicit rectangle rule. With b_j = (j+1)^a -
  * j^a, the history after step n is H_n = u sum_{1<=k<=n} b_{n+1-k} f_k:
@@ -49,7 +53,7 @@
  * The second sum is the stream's value times u / w, w the stream rule's
  * lag-0 weight (fc_weights), so that in exact arithmetic H_n is the
  * right-end-point history with the stream's own weights. Exact memory
- * keeps the kernel stream (its results do not change).
+ * keeps the shifted stream (its results do not change).
  *
  * Methods: Diethelm, Ford and Freed, Nonlinear Dynamics 29 (2002) 3-22
  * (predictor-corrector); Garrappa, Math. Comput. Simul. 110 (2015) 96-112
@@ -60,6 +64,7 @@
 #include <string.h>
 
 #include "fracconv.h"
+#include "internal.h"
 #include "guard.h"
 #include "serial.h"
 
@@ -73,7 +78,7 @@ typedef struct {
     size_t *idx;      /* their indices, increasing */
     int ident;        /* the group is every component, in order */
     fc_stream *rect;  /* NULL when the method does not need it */
-    fc_stream *trap;  /* the trapezoid stream, or the kernel stream of
+    fc_stream *trap;  /* the trapezoid stream, or the shifted stream of
                          FC_METHOD_IMPLICIT_RECTANGLE with exact memory, or
                          (implicit rectangle, compressed) the stream of the
                          differences d: NULL at order 1 */
@@ -85,7 +90,8 @@ struct fc_solver {
     size_t m;
     int method, memory;
     unsigned K;       /* rows of initial values: ceil(max order) */
-    double step, t0, tol, horizon;
+    double step, t0, tol, horizon; /* tol, horizon: compressed memory
+                                      (0 with exact memory) */
     double *orders;   /* m */
     double *init;     /* K*m */
     size_t ng;
@@ -150,7 +156,7 @@ static int needs_rect(int method, int memory)
     return method == FC_METHOD_RECTANGLE || method == FC_METHOD_PC ||
            (method == FC_METHOD_IMPLICIT_RECTANGLE && memory == FC_MODE_COMPRESSED);
 }
-/* the second stream slot: trapezoid, (implicit rectangle, exact) kernel,
+/* the second stream slot: trapezoid, (implicit rectangle, exact) shifted,
    or (implicit rectangle, compressed) the differences' stream, none at
    order 1 */
 static int needs_trap(int method, int memory, double order)
@@ -160,7 +166,7 @@ static int needs_trap(int method, int memory, double order)
     return method != FC_METHOD_RECTANGLE;
 }
 /* the streams are saved as blobs (not the exact implicit rectangle's
-   kernel streams, rebuilt from the saved f values) */
+   shifted streams, rebuilt from the saved f values) */
 static int saves_streams(int method, int memory)
 {
     return !(method == FC_METHOD_IMPLICIT_RECTANGLE && memory == FC_MODE_EXACT);
@@ -203,9 +209,6 @@ static int check_params(size_t m, const double *orders, double step,
         return FC_ERR_RULE;
     if (memory != FC_MODE_EXACT && memory != FC_MODE_COMPRESSED)
         return FC_ERR_MODE;
-    if (method == FC_METHOD_IMPLICIT_RECTANGLE && memory == FC_MODE_EXACT &&
-        !(horizon >= 1.0 && horizon <= 268435456.0))
-        return FC_ERR_TOL;
     double amax = 0.0;
     for (size_t i = 0; i < m; i++) {
         double a = orders[i];
@@ -282,8 +285,7 @@ static int build(size_t m, const double *orders, double step, double t0,
     s->m = m; s->method = method; s->memory = memory; s->K = K;
     s->step = step; s->t0 = t0;
     s->tol = memory == FC_MODE_COMPRESSED ? tol : 0.0;
-    s->horizon = memory == FC_MODE_COMPRESSED ||
-                 method == FC_METHOD_IMPLICIT_RECTANGLE ? horizon : 0.0;
+    s->horizon = memory == FC_MODE_COMPRESSED ? horizon : 0.0;
     s->ntol = 1e-12; s->nmax = 50; s->passes = 1;
     s->fail_step = UINT64_MAX; s->fail_t = 0.0;
     s->orders = malloc(vb); s->init = malloc(kb); s->y = malloc(vb);
@@ -354,21 +356,6 @@ static int build(size_t m, const double *orders, double step, double t0,
     return FC_OK;
 }
 
-/* The kernel stream of the implicit rectangle rule for group g. */
-static int make_kernel_stream(const fc_solver *s, const sv_group *g,
-                              fc_stream **out)
-{
-    double fl = floor(s->horizon);
-    if (fl + 1.0 > (double)((size_t)-1 / sizeof(double))) return FC_ERR_SIZE;
-    size_t K = (size_t)fl + 1;
-    double *k = malloc(K * sizeof(double));
-    if (!k) return FC_ERR_NOMEM;
-    int st = fc_weights(FC_RULE_RECTANGLE, g->order, s->step, 0, K, k);
-    if (st == FC_OK) st = fc_stream_create_kernel(k, K, g->nc, out);
-    free(k);
-    return st;
-}
-
 static int make_streams(fc_solver *s)
 {
     int st = FC_OK;
@@ -381,7 +368,8 @@ static int make_streams(fc_solver *s)
             continue;
         if (s->method == FC_METHOD_IMPLICIT_RECTANGLE &&
             s->memory == FC_MODE_EXACT)
-            st = make_kernel_stream(s, g, &g->trap);
+            st = fc__stream_create_shifted(FC_RULE_RECTANGLE, g->order,
+                                           s->step, g->nc, &g->trap);
         else if (s->method == FC_METHOD_IMPLICIT_RECTANGLE) {
             int dr;
             double da;
@@ -749,8 +737,7 @@ static int advance(fc_solver *s, size_t nsteps, double *t_out,
     /* samples each stream holds at the end */
     if ((uint64_t)nsteps > UINT64_MAX - 1 - s->n) return FC_ERR_SIZE;
     uint64_t n_end = s->n + (uint64_t)nsteps;
-    if (s->memory == FC_MODE_COMPRESSED ||
-        s->method == FC_METHOD_IMPLICIT_RECTANGLE) {
+    if (s->memory == FC_MODE_COMPRESSED) {
         if ((double)n_end > floor(s->horizon)) return FC_ERR_HORIZON;
     }
     else if (n_end >= (UINT64_C(1) << 53)) return FC_ERR_SIZE;
@@ -913,7 +900,8 @@ static uint64_t fnv1a(const unsigned char *p, size_t n)
  *    0  8 bytes "FCSOLVE1"         8  u32 version (1)
  *   12  u32 method                16  u32 memory
  *   20  u32 K                     24  u64 m
- *   32  f64 step, t0, tol, horizon, newton tol (5 x 8)
+ *   32  f64 step, t0, tol, horizon, newton tol (5 x 8) (tol and horizon
+ *       0 with exact memory; see fc_solver_load for older blobs)
  *   72  u32 newton maxiter        76  u32 corrector passes
  *   80  u64 steps, f0 done (0/1), rhs calls, jac calls
  *  112  f64 orders[m], init[K*m], y[m]
@@ -1027,14 +1015,8 @@ int fc_solver_save(const fc_solver *s, unsigned char *buf, size_t size,
     return st;
 }
 
-/* Implicit rectangle, load: the rows fit under the horizon. */
-static int check_kernel_room(const fc_solver *s, uint64_t rows)
-{
-    return (double)rows <= floor(s->horizon) ? FC_OK : FC_ERR_FORMAT;
-}
-
 /* Implicit rectangle, load: push the saved f_1 .. f_rows into the fresh
-   kernel streams (the result depends only on the samples, not on how they
+   shifted streams (the result depends only on the samples, not on how they
    were split into blocks, so later steps agree bit for bit). */
 static int refeed(fc_solver *s, size_t rows)
 {
@@ -1109,11 +1091,19 @@ int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out)
         passes < 1 || passes > 100 || f0 > 1 || (f0 == 0 && n != 0) ||
         n >= (UINT64_C(1) << 53) || nrhs < min_rhs)
         return FC_ERR_FORMAT;
-    if (memory == FC_MODE_EXACT && (tol != 0.0 ||
-        (method != FC_METHOD_IMPLICIT_RECTANGLE && horizon != 0.0)))
-        return FC_ERR_FORMAT;
-    if ((memory == FC_MODE_COMPRESSED || method == FC_METHOD_IMPLICIT_RECTANGLE)
-        && (double)n > floor(horizon))
+    /* exact memory has no tolerance and no horizon (0); a blob of the
+       exact implicit rectangle rule written before its stream grew on
+       demand holds the horizon its creation required, 1 <= horizon <=
+       2^28, at least the steps done: accepted, and not used */
+    if (memory == FC_MODE_EXACT) {
+        if (tol != 0.0) return FC_ERR_FORMAT;
+        if (horizon != 0.0 && (method != FC_METHOD_IMPLICIT_RECTANGLE ||
+                               !(horizon >= 1.0 && horizon <= 268435456.0) ||
+                               (double)n > floor(horizon)))
+            return FC_ERR_FORMAT;
+        horizon = 0.0;
+    }
+    else if ((double)n > floor(horizon))
         return FC_ERR_FORMAT;
     size_t off = SV_HDR;
     double *orders = malloc(m * sizeof(double));
@@ -1151,7 +1141,7 @@ int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out)
     }
     off += 8;
     uint64_t count = f0 ? n + 1 : 0;
-    /* implicit rectangle, exact: kernel streams rebuilt from the f rows */
+    /* implicit rectangle, exact: shifted streams rebuilt from the f rows */
     int impl = !saves_streams((int)method, (int)memory);
     int irc = (int)method == FC_METHOD_IMPLICIT_RECTANGLE && !impl;
     for (size_t j = 0; j < s->ng; j++) {
@@ -1194,9 +1184,9 @@ int fc_solver_load(const unsigned char *buf, size_t size, fc_solver **out)
         return FC_ERR_FORMAT;
     }
     if (impl) {
-        /* the f history bounded by the blob: rebuild the kernel streams */
+        /* the f history bounded by the blob: rebuild the shifted streams
+           (their memory and work in proportion to the rows) */
         if ((st = grow_history(s, rows)) != FC_OK ||
-            (rows && (st = check_kernel_room(s, rows)) != FC_OK) ||
             (st = make_streams(s)) != FC_OK) {
             free_solver(s);
             return st == FC_ERR_NOMEM ? st : FC_ERR_FORMAT;

@@ -160,6 +160,21 @@ int fc_stream_create_kernel(const double *kernel, size_t klen,
     return stream_new(&fc__exact_ops, FC_MODE_EXACT, &d, NULL, 0, out);
 }
 
+int fc__stream_create_shifted(int rule, double order, double step,
+                              size_t channels, fc_stream **out)
+{
+    int st;
+    if (!out) return FC_ERR_NULL;
+    const fc__stream_ops *ops = &fc__exact_ops;
+    st = check_create(rule, order, step, channels, ops, 0.0, 0.0);
+    if (st != FC_OK) return st;
+    const fc__rule_desc *rd = fc__rule(rule);
+    if (rd->ncorr != 0 || rd->uses_differences) return FC_ERR_RULE;
+    fc__stream_def d = {FC__KIND_SHIFTED, rule, order, step, channels,
+                        0.0, 0.0, NULL, 0};
+    return stream_new(ops, FC_MODE_EXACT, &d, NULL, 0, out);
+}
+
 /* ------------------------------------------------------------ checks */
 
 /* 1 if x[0 .. n) and y[0 .. n) overlap without being the same array. */
@@ -248,6 +263,23 @@ int fc_stream_push_timed(fc_stream *s, const double *t, const double *x,
     else if (count)
         st = s->ops->push_timed(s->eng, t, x, count, y,
                                 s->horizon_policy == FC_HORIZON_REFUSE);
+    leave(s);
+    return st;
+}
+
+int fc_stream_preview_timed(fc_stream *s, double t, const double *x, double *y)
+{
+    int st;
+    if (!s) return FC_ERR_NULL;
+    if (!x || !y) return FC_ERR_NULL;
+    if ((st = fc__guard_enter(&s->busy)) != FC_OK) return st;
+    if (!s->ops->preview_timed) st = FC_ERR_ARG;
+    else if (partial_overlap(x, y, s->C)) st = FC_ERR_ARG;
+    else if (!isfinite(t)) st = FC_ERR_NONFINITE;
+    else if ((st = fc__check_finite(x, s->C)) != FC_OK) {}
+    else
+        st = s->ops->preview_timed(s->eng, t, x, y,
+                                   s->horizon_policy == FC_HORIZON_REFUSE);
     leave(s);
     return st;
 }
@@ -469,6 +501,8 @@ static const unsigned char fc_s_magic[8] = {'F', 'C', 'S', 'T', 'R', 'E', 'A', '
 
 static int save_total(const fc_stream *s, size_t *payload, size_t *total)
 {
+    /* a shifted kernel (internal, fc__stream_create_shifted) has no format */
+    if (s->kind == FC__KIND_SHIFTED) return FC_ERR_MODE;
     int st = s->ops->save_size(s->eng, payload);
     if (st == FC_OK && fc__add_size(*payload, FC_S_HDR, total)) st = FC_ERR_SIZE;
     return st;

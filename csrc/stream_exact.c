@@ -124,8 +124,11 @@ typedef struct {
 
 /* The state of one exact stream (the facade's engine pointer). */
 typedef struct {
-    unsigned kind;          /* FC_S_KIND_* */
+    unsigned kind;          /* FC_S_KIND_*, or FC__KIND_SHIFTED (a rule
+                               stream in all but its kernel) */
     int rule;               /* -1 for a kernel */
+    unsigned shift;         /* 1 for FC__KIND_SHIFTED: c_m is the rule's
+                               lag kernel at m + 1; else 0 */
     double order, step;
     size_t ncorr;           /* correction columns (rule table), <=
                                FC__CORR_MAX */
@@ -200,7 +203,8 @@ typedef struct ex_helper {
 
 static size_t lev_size(size_t j) { return (size_t)FC_S_BLOCK0 << j; }
 
-/* Kernel values c[start .. start+count), zero beyond klen for kernels. */
+/* Kernel values c[start .. start+count), zero beyond klen for kernels
+   (a shifted rule kernel: the rule's from start + 1). */
 static int kernel_values(const ex_engine *s, uint64_t start, size_t count,
                          double *out)
 {
@@ -211,7 +215,8 @@ static int kernel_values(const ex_engine *s, uint64_t start, size_t count,
         }
         return FC_OK;
     }
-    return fc__lag_kernel(s->rule, s->order, s->step, start, count, out);
+    return fc__lag_kernel(s->rule, s->order, s->step, start + s->shift,
+                          count, out);
 }
 
 static double leaf_dot(const double *k, const double *u, size_t len)
@@ -578,12 +583,18 @@ static void frame_task(void *arg, size_t k, size_t w)
     }
 }
 
+/* Whether a frame of block size sz is shared by the threads of the push. */
+static int frame_shared(const ex_engine *s, size_t sz)
+{
+    return s->par > 1 && sz >= FC_S_PAR_BLOCK && sz * s->C >= FC_S_PAR_WORK;
+}
+
 static void level_frame(ex_engine *s, size_t j, uint64_t f, uint64_t lo)
 {
     fc__level *L = &s->lev[j];
     size_t sz = L->s, n2 = 2 * sz, R = L->nseg;
     uint64_t o = f * sz + L->base;
-    if (s->par > 1 && sz >= FC_S_PAR_BLOCK && sz * s->C >= FC_S_PAR_WORK) {
+    if (frame_shared(s, sz)) {
         /* one task per channel, handed out in turn: a thread held up (a
            busy machine) leaves the remaining channels to the others */
         size_t i0 = lo > o ? (size_t)(lo - o) : 0;
@@ -723,7 +734,10 @@ static void frame_due(ex_engine *s, size_t j, uint64_t f)
         pending_frame(s, j, f);
         return;
     }
-    if (s->gend && L->gslots && L->made == L->nseg && s->gend >= L->delay) {
+    /* a frame the threads share (level_frame) is not grouped: grouping
+       saves most on the small frames, which stay on one thread */
+    if (s->gend && L->gslots && L->made == L->nseg && s->gend >= L->delay &&
+        !frame_shared(s, L->s)) {
         uint64_t last = (s->gend - L->delay) / L->s; /* the last frame due */
         uint64_t gn = last >= f ? last - f + 1 : 0;
         if (gn > L->gslots + 1) gn = L->gslots + 1;
@@ -1185,7 +1199,7 @@ static int ex_push_block(ex_engine *s, const double *x, size_t count,
     if (threads > 1 && s->nlev > 0 && s->lev[s->nlev - 1].s >= FC_S_PAR_BLOCK &&
         s->lev[s->nlev - 1].s * C >= FC_S_PAR_WORK && count >= FC_S_PAR_BLOCK)
         s->par = ex_helpers_ready(s, threads);
-    if (!stage && count > 1 && s->par == 1) {
+    if (!stage && count > 1) {
         /* no step can fail: u of the whole block first (what ex_step
            stores), so that frames due within the block can be computed
            together (frame_due) */
@@ -1302,7 +1316,7 @@ static void ex_free(ex_engine *s)
 static int rule_at(const void *ctx, uint64_t m, double *v)
 {
     const ex_engine *s = ctx;
-    return fc__lag_kernel(s->rule, s->order, s->step, m, 1, v);
+    return fc__lag_kernel(s->rule, s->order, s->step, m + s->shift, 1, v);
 }
 static int kern_at(const void *ctx, uint64_t m, double *v)
 {
@@ -1431,7 +1445,8 @@ static int ex_init(ex_engine *s, size_t leaf, size_t segs)
         fc__rule_scale(s->rule, s->order, s->step, &M, &E);
         /* each correction column is a few times the weights
            (internal.h, fc__corr_col) */
-        s->klog2 = fc__unit_log2_bound(s->rule, s->order, s->lag_limit) +
+        s->klog2 = fc__unit_log2_bound(s->rule, s->order,
+                                       s->lag_limit + s->shift) +
                    (double)log2l(M) + (double)E +
                    (s->ncorr ? 5.0 + log2((double)s->ncorr) : 0.0);
     }
@@ -1458,6 +1473,7 @@ static int ex_create_geom(const fc__stream_def *d, size_t leaf, size_t segs,
         s->klen = d->klen;
     } else {
         s->rule = d->rule;
+        s->shift = d->kind == FC__KIND_SHIFTED;
         const fc__rule_desc *rd = fc__rule(d->rule);
         s->ncorr = rd->ncorr;
         s->cols = rd->corr;

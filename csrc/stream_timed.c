@@ -392,13 +392,13 @@ static int ts_run_cum(ts_engine *ts, double *S, double *Sc, double *xp, double *
     return bad;
 }
 
-static int ts_push_timed(void *eng, const double *t, const double *x,
-                         size_t count, double *y, int refuse_past)
+/* The checks of a block of pushes (every time and sample, before anything
+   changes); *past = 1 if an output would be past the horizon (allowed). */
+static int ts_check(const ts_engine *ts, const double *t, const double *x,
+                    size_t count, int refuse_past, int *past_out)
 {
-    ts_engine *ts = eng;
     const size_t C = ts->C;
     if ((uint64_t)count >= FC_INDEX_LIMIT - ts->n) return FC_ERR_SIZE;
-    /* every time and sample checked before anything changes */
     double t0 = ts->n ? ts->t0 : t[0], tp = ts->tprev;
     uint64_t n = ts->n;
     int past = 0;
@@ -419,6 +419,18 @@ static int ts_push_timed(void *eng, const double *t, const double *x,
         tp = t[j];
         n++;
     }
+    *past_out = past;
+    return FC_OK;
+}
+
+static int ts_push_timed(void *eng, const double *t, const double *x,
+                         size_t count, double *y, int refuse_past)
+{
+    ts_engine *ts = eng;
+    const size_t C = ts->C;
+    double t0 = ts->n ? ts->t0 : t[0];
+    int past, st = ts_check(ts, t, x, count, refuse_past, &past);
+    if (st != FC_OK) return st;
     if (past) {
         const size_t CL = C * ts->L;
         memcpy(ts->bS, ts->S, CL * sizeof(double));
@@ -433,6 +445,26 @@ static int ts_push_timed(void *eng, const double *t, const double *x,
     ts->tprev = t[count - 1];
     ts->n += count;
     if (past) ts->past = 1;
+    return FC_OK;
+}
+
+/* What pushing (t, x) would return, into y, the state unchanged: the
+   push's checks, then the same recursion (ts_run) on a copy of the state,
+   so that the outputs are those of the push bit for bit. */
+static int ts_preview_timed(void *eng, double t, const double *x, double *y,
+                            int refuse_past)
+{
+    ts_engine *ts = eng;
+    const size_t C = ts->C, CL = C * ts->L;
+    int past, st = ts_check(ts, &t, x, 1, refuse_past, &past);
+    if (st != FC_OK) return st;
+    memcpy(ts->bS, ts->S, CL * sizeof(double));
+    memcpy(ts->bSc, ts->Sc, CL * sizeof(double));
+    memcpy(ts->bx, ts->xprev, C * sizeof(double));
+    memcpy(ts->bX, ts->X, 2 * C * sizeof(double));
+    double t0 = ts->n ? ts->t0 : t;
+    if (ts_run(ts, ts->bS, ts->bSc, ts->bx, ts->bX, ts->n, t0, ts->tprev, &t, x, 1, y))
+        return FC_ERR_RANGE; /* past the horizon only (RANGE) */
     return FC_OK;
 }
 
@@ -685,5 +717,6 @@ const fc__stream_ops fc__timed_ops = {
     .save_size = ts_save_size,
     .save = ts_save,
     .push_timed = ts_push_timed,
+    .preview_timed = ts_preview_timed,
     .past = ts_past,
 };

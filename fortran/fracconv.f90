@@ -10,7 +10,8 @@
 !   - a stream block of count time steps: x(channels, count) (channel
 !     fastest).
 ! A stream is a type(fc_stream) holding the C pointer: create it with
-! fc_stream_create or fc_stream_load and release it with fc_stream_free
+! fc_stream_create, fc_stream_create_timed (a time per sample, pushed with
+! fc_stream_push_timed) or fc_stream_load and release it with fc_stream_free
 ! (no finalizer: copies of the handle share the one C object). The solver
 ! (type(fc_solver)) and the controller (type(fc_controller)) are handles of
 ! the same kind.
@@ -55,6 +56,7 @@ module fracconv
   public :: fc_stream_create, fc_stream_free, fc_stream_push, fc_stream_push_block
   public :: fc_stream_history, fc_stream_count, fc_stream_save, fc_stream_load
   public :: fc_stream_save_file, fc_stream_load_file
+  public :: fc_grid_apply, fc_stream_create_timed, fc_stream_push_timed, fc_stream_is_timed
   public :: fc_solver_save_file, fc_solver_load_file
   public :: fc_controller_save_file, fc_controller_load_file
 
@@ -109,6 +111,14 @@ module fracconv
   interface fc_apply
     module procedure fc_apply_1, fc_apply_2
   end interface fc_apply
+
+  interface fc_grid_apply
+    module procedure fc_grid_apply_1, fc_grid_apply_2
+  end interface fc_grid_apply
+
+  interface fc_stream_push_timed
+    module procedure fc_stream_push_timed_0, fc_stream_push_timed_1, fc_stream_push_timed_2
+  end interface fc_stream_push_timed
 
   interface
     integer(c_int) function c_version() bind(C, name="fc_version")
@@ -402,6 +412,38 @@ module fracconv
       integer(c_size_t), value :: max_size
       type(c_ptr), intent(out) :: out
     end function
+    ! --- grid of times and the timed stream
+    integer(c_int) function c_grid_apply(rule, order, t, x, nsig, n, tol, y, terms) &
+         bind(C, name="fc_grid_apply")
+      import :: c_int, c_double, c_size_t
+      integer(c_int), value :: rule
+      real(c_double), value :: order, tol
+      real(c_double), intent(in) :: t(*), x(*)
+      integer(c_size_t), value :: nsig, n
+      real(c_double), intent(inout) :: y(*)
+      integer(c_size_t), intent(out) :: terms
+    end function
+    integer(c_int) function c_stream_create_timed(rule, order, min_step, channels, tol, &
+         horizon, out) bind(C, name="fc_stream_create_timed")
+      import :: c_int, c_double, c_size_t, c_ptr
+      integer(c_int), value :: rule
+      real(c_double), value :: order, min_step, tol, horizon
+      integer(c_size_t), value :: channels
+      type(c_ptr), intent(out) :: out
+    end function
+    integer(c_int) function c_stream_push_timed(s, t, x, count, y) &
+         bind(C, name="fc_stream_push_timed")
+      import :: c_int, c_double, c_ptr, c_size_t
+      type(c_ptr), value :: s
+      real(c_double), intent(in) :: t(*), x(*)
+      integer(c_size_t), value :: count
+      real(c_double), intent(inout) :: y(*)
+    end function
+    integer(c_int) function c_stream_is_timed(s, timed) bind(C, name="fc_stream_is_timed")
+      import :: c_int, c_ptr
+      type(c_ptr), value :: s
+      integer(c_int), intent(out) :: timed
+    end function
     integer(c_size_t) function c_strlen(s) bind(C, name="strlen")
       import :: c_size_t, c_ptr
       type(c_ptr), value :: s
@@ -631,6 +673,150 @@ contains
     status = int(c_stream_load(blob, size(blob, kind=c_size_t), p))
     if (status == FC_OK) s%p = p
   end subroutine fc_stream_load
+
+  ! ----------------------------------------------------------- grid of times
+
+  ! One signal on the times t (strictly increasing, finite): y(i)
+  ! approximates the operator at t(i), from t(1), by sums of exponentials
+  ! (fc_grid_apply: its rules, orders and promise as fracconv.h states
+  ! them). tol in [1e-15, 1e-2], default 1e-12
+  ! (as integral/derivative(..., t=) in Python); terms (optional) gets the
+  ! number of exponential terms. A refusal writes nothing to y.
+  subroutine fc_grid_apply_1(rule, order, t, x, y, status, tol, terms)
+    integer, intent(in) :: rule
+    real(c_double), intent(in) :: order
+    real(c_double), intent(in), contiguous :: t(:), x(:)
+    real(c_double), intent(inout), contiguous :: y(:)
+    integer, intent(out) :: status
+    real(c_double), intent(in), optional :: tol
+    integer, intent(out), optional :: terms
+    real(c_double) :: tl
+    integer(c_size_t) :: k
+    tl = 1e-12_c_double
+    if (present(tol)) tl = tol
+    if (size(x) /= size(t) .or. size(y) /= size(x)) then
+      status = FC_ERR_ARG
+      return
+    end if
+    k = 0
+    status = int(c_grid_apply(int(rule, c_int), order, t, x, 1_c_size_t, &
+         size(x, kind=c_size_t), tl, y, k))
+    if (present(terms) .and. status == FC_OK) terms = int(k)
+  end subroutine fc_grid_apply_1
+
+  ! nsig signals as the columns of x(n, nsig), n = size(t).
+  subroutine fc_grid_apply_2(rule, order, t, x, y, status, tol, terms)
+    integer, intent(in) :: rule
+    real(c_double), intent(in) :: order
+    real(c_double), intent(in), contiguous :: t(:), x(:, :)
+    real(c_double), intent(inout), contiguous :: y(:, :)
+    integer, intent(out) :: status
+    real(c_double), intent(in), optional :: tol
+    integer, intent(out), optional :: terms
+    real(c_double) :: tl
+    integer(c_size_t) :: k
+    tl = 1e-12_c_double
+    if (present(tol)) tl = tol
+    if (size(x, 1) /= size(t) .or. size(x, 2) < 1 .or. any(shape(y) /= shape(x))) then
+      status = FC_ERR_ARG
+      return
+    end if
+    k = 0
+    status = int(c_grid_apply(int(rule, c_int), order, t, x, size(x, 2, kind=c_size_t), &
+         size(x, 1, kind=c_size_t), tl, y, k))
+    if (present(terms) .and. status == FC_OK) terms = int(k)
+  end subroutine fc_grid_apply_2
+
+  ! A compressed stream with a time per sample (fc_stream_create_timed):
+  ! min_step the smallest step a push may make, horizon the time span the
+  ! promise covers, tol default 1e-10 (as pyfracconv.TimedStream). Pushes
+  ! with fc_stream_push_timed; fc_stream_save / fc_stream_load /
+  ! fc_stream_count / fc_stream_free work on it as on every stream. s is
+  ! unchanged unless status == FC_OK.
+  subroutine fc_stream_create_timed(s, rule, order, min_step, horizon, status, channels, tol)
+    type(fc_stream), intent(inout) :: s
+    integer, intent(in) :: rule
+    real(c_double), intent(in) :: order, min_step, horizon
+    integer, intent(out) :: status
+    integer, intent(in), optional :: channels
+    real(c_double), intent(in), optional :: tol
+    integer(c_size_t) :: c
+    real(c_double) :: tl
+    type(c_ptr) :: p
+    c = 1; tl = 1e-10_c_double
+    if (present(channels)) then
+      if (channels < 1) then
+        status = FC_ERR_SIZE
+        return
+      end if
+      c = int(channels, c_size_t)
+    end if
+    if (present(tol)) tl = tol
+    status = int(c_stream_create_timed(int(rule, c_int), order, min_step, c, tl, horizon, p))
+    if (status == FC_OK) s%p = p
+  end subroutine fc_stream_create_timed
+
+  ! One channel: the output y at time t for the sample x.
+  subroutine fc_stream_push_timed_0(s, t, x, y, status)
+    type(fc_stream), intent(in) :: s
+    real(c_double), intent(in) :: t, x
+    real(c_double), intent(inout) :: y
+    integer, intent(out) :: status
+    real(c_double) :: tt(1), xx(1), yy(1)
+    if (channels_of(s, status) /= 1) then
+      if (status == FC_OK) status = FC_ERR_ARG
+      return
+    end if
+    tt(1) = t; xx(1) = x; yy(1) = 0
+    status = int(c_stream_push_timed(s%p, tt, xx, 1_c_size_t, yy))
+    if (status == FC_OK) y = yy(1)
+  end subroutine fc_stream_push_timed_0
+
+  ! One time t: x(channels) in, y(channels) out.
+  subroutine fc_stream_push_timed_1(s, t, x, y, status)
+    type(fc_stream), intent(in) :: s
+    real(c_double), intent(in) :: t
+    real(c_double), intent(in), contiguous :: x(:)
+    real(c_double), intent(inout), contiguous :: y(:)
+    integer, intent(out) :: status
+    real(c_double) :: tt(1)
+    integer :: c
+    c = channels_of(s, status)
+    if (status /= FC_OK) return
+    if (size(x) /= c .or. size(y) /= c) then
+      status = FC_ERR_ARG
+      return
+    end if
+    tt(1) = t
+    status = int(c_stream_push_timed(s%p, tt, x, 1_c_size_t, y))
+  end subroutine fc_stream_push_timed_1
+
+  ! size(t) times: x(channels, size(t)) in, y of the same shape out.
+  subroutine fc_stream_push_timed_2(s, t, x, y, status)
+    type(fc_stream), intent(in) :: s
+    real(c_double), intent(in), contiguous :: t(:), x(:, :)
+    real(c_double), intent(inout), contiguous :: y(:, :)
+    integer, intent(out) :: status
+    integer :: c
+    c = channels_of(s, status)
+    if (status /= FC_OK) return
+    if (size(x, 1) /= c .or. size(x, 2) /= size(t) .or. any(shape(y) /= shape(x))) then
+      status = FC_ERR_ARG
+      return
+    end if
+    status = int(c_stream_push_timed(s%p, t, x, size(t, kind=c_size_t), y))
+  end subroutine fc_stream_push_timed_2
+
+  ! timed = .true. for a stream with a time per sample.
+  subroutine fc_stream_is_timed(s, timed, status)
+    type(fc_stream), intent(in) :: s
+    logical, intent(out) :: timed
+    integer, intent(out) :: status
+    integer(c_int) :: v
+    v = 0
+    status = int(c_stream_is_timed(s%p, v))
+    timed = v /= 0
+  end subroutine fc_stream_is_timed
 
   ! ----------------------------------------------------------- solver
 

@@ -244,6 +244,8 @@ def check_rule(rule: object, allowed: Tuple[str, ...] = tuple(RULES)) -> int:
 def check_real(name: str, value: object) -> float:
     """A real scalar as a Python float (InputTypeError if not numeric,
     ArgumentError if beyond the range of a double, e.g. 10**400)."""
+    if type(value) is float:  # the common case, without the ABC checks below
+        return value
     if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
         raise InputTypeError(f"{name}={show(value)}: expected a real number, got {type(value).__name__}")
     try:

@@ -415,8 +415,7 @@ def solve_many(
     step, n_steps : as for :func:`pyfracconv.solve`
     t : array_like, optional
         The grid instead of ``step`` and ``n_steps``, as for
-        :func:`pyfracconv.solve` (methods ``'rectangle'`` and
-        ``'predictor-corrector'``; ``t0`` is ``t[0]``).
+        :func:`pyfracconv.solve` (``t0`` is ``t[0]``).
     chunk : int, optional
         Sets per task (default: P / 256 rounded up, at most 256 tasks, for
         NumPy ``params``; a Dask ``params`` keeps its chunks unless
@@ -476,7 +475,6 @@ def solve_many(
     times = None
     if t is not None:
         from .grid import check_times
-        from .solve_grid import GRID_METHODS, grid_method_error
 
         if step is not None or n_steps is not None:
             given = ", ".join(
@@ -488,19 +486,10 @@ def solve_many(
             raise ArgumentError("t: empty; expected at least the start time t[0]")
         for key, why in (
             ("t0", "the problem starts at t[0]"),
-            ("horizon", "only compressed memory and 'implicit-rectangle' on a uniform grid use it"),
+            ("horizon", "the grid's span t[-1] - t[0] is the horizon of compressed memory there"),
         ):
             if key in options:
                 raise ArgumentError(f"{key}={show(options[key])}: not used with t= ({why})")
-        meth = options.get("method", "predictor-corrector")
-        if isinstance(meth, str) and meth not in GRID_METHODS and meth in ("trapezoid", "implicit-rectangle"):
-            raise grid_method_error(meth)
-        if options.get("memory", "exact") != "exact":
-            raise ArgumentError(
-                f"memory={show(options['memory'])}: not available with "
-                "t= (the grid solver keeps every f value); use "
-                "memory='exact'"
-            )
         n = int(times.size) - 1
         h = 1.0
     else:
@@ -565,8 +554,12 @@ def solve_many(
         ) from exc
     method = opts.get("method", "predictor-corrector")
     memory = opts.get("memory", "exact")
+    if times is not None:
+        from .solve_grid import check_grid_memory
+
+        check_grid_memory(method, memory)
     horizon = opts.get("horizon")
-    if horizon is None and (memory == "compressed" or method == "implicit-rectangle"):
+    if horizon is None and memory == "compressed":
         horizon = max(n, 1)
     chk = _setup(
         rhs,

@@ -376,19 +376,9 @@ def _setup(
     if not (1e-15 <= ntol <= 1e-2):
         raise ArgumentError(f"newton_tol={show(newton_tol)}: must be in [1e-15, 1e-2]")
     nmax = check_count("newton_maxiter", newton_maxiter, 1, 1000)
+    # exact memory has no horizon (every method's history grows with the
+    # steps): a horizon given with it is not used
     tolf, hz = 0.0, 0.0
-    if meth == "implicit-rectangle" and mem == "exact":
-        if horizon is None:
-            raise ArgumentError(
-                "horizon=None: required for method='implicit-rectangle' (the "
-                "number of steps it can take; its kernel is allocated at creation)"
-            )
-        hz = check_real("horizon", horizon)
-        if not (1.0 <= hz <= 2.0**28):
-            raise ArgumentError(
-                f"horizon={show(horizon)}: must be in [1, 2**28] for "
-                "method='implicit-rectangle' with memory='exact'"
-            )
     if mem == "compressed":
         if horizon is None:
             raise ArgumentError(
@@ -459,8 +449,7 @@ def _status_error(st, what):
 class Stepper:
     """A Caputo initial value problem advanced step by step (co-simulation,
     checkpoints). Arguments as for :func:`solve`; ``horizon`` (in steps) is
-    required for ``memory='compressed'`` and for ``method='implicit-rectangle'``
-    with exact memory.
+    required for ``memory='compressed'`` (with exact memory it is not used).
 
     ``advance(n)`` returns the n new times and states; :attr:`t`, :attr:`y`,
     :attr:`steps`, :attr:`rhs_evals`, :attr:`jac_evals` tell where it is;
@@ -1082,8 +1071,10 @@ class Stepper:
         memory = _MEMORY_NAMES[int.from_bytes(b[_ENV_LEN + 16 : _ENV_LEN + 20], "little")]
         if jacobian is not None and method not in IMPLICIT:
             raise ArgumentError(f"jacobian: only used by the implicit methods (method={method!r})")
-        # the horizon, bytes 56..64 of the C format (csrc/solver.c)
-        horizon = struct.unpack_from("<d", b, _ENV_LEN + 56)[0]
+        # the horizon, bytes 56..64 of the C format (csrc/solver.c; exact
+        # memory has none, though an older exact 'implicit-rectangle' blob
+        # holds the horizon its creation required)
+        horizon = struct.unpack_from("<d", b, _ENV_LEN + 56)[0] if memory == "compressed" else 0.0
         self = cls.__new__(cls)
         self._init(s, m, scalar, method, memory, rhs, jacobian, horizon)
         return self
@@ -1262,10 +1253,12 @@ def solve(
         The grid instead of ``step`` and ``n_steps``: times t_0 < t_1 <
         ... (finite, strictly increasing; graded meshes from
         :func:`pyfracconv.grid.graded_mesh`); the problem starts at t[0].
-        Methods ``'rectangle'`` and ``'predictor-corrector'`` (their
-        non-uniform forms: Liu, Roberts and Yan, Int. J. Comput. Math. 95
-        (2018) and Numer. Algorithms 78 (2018)), exact memory, a direct
-        O(N^2) engine in Python over the weights of
+        Every method: ``'rectangle'`` and ``'predictor-corrector'`` in
+        their non-uniform forms (Liu, Roberts and Yan, Int. J. Comput.
+        Math. 95 (2018) and Numer. Algorithms 78 (2018)), ``'trapezoid'``
+        and ``'implicit-rectangle'`` with the same weights and the newest
+        value implicit (Newton's method as on a uniform grid); exact
+        memory, a direct O(N^2) engine in Python over the weights of
         :func:`pyfracconv.grid.grid_weights` (fine up to about 2e4 steps).
     dy0 : float or array_like, optional
         y'(t0); required when some order exceeds 1, refused otherwise.
@@ -1287,9 +1280,8 @@ def solve(
     tol : float, optional
         Tolerance of the compressed history sums, in [1e-15, 1e-2].
     horizon : float, optional
-        Steps the compressed tolerance is promised for, and the steps
-        ``'implicit-rectangle'`` with exact memory can take (at most 2**28;
-        default n_steps).
+        Steps the compressed tolerance is promised for (default n_steps);
+        not used with exact memory.
     jacobian : callable, optional
         ``jacobian(t, y)`` -> df/dy, shape (m, m) (a number for a scalar
         problem); implicit methods only; default forward differences.
@@ -1384,7 +1376,7 @@ def solve(
     if not isinstance(progress, (bool, np.bool_)):
         raise InputTypeError(f"progress={show(progress)}: expected True or False")
     bar_cls = _tqdm() if progress else None
-    if horizon is None and (memory == "compressed" or method == "implicit-rectangle"):
+    if horizon is None and memory == "compressed":
         horizon = max(n, 1)
     st = Stepper(
         rhs,
@@ -1458,7 +1450,7 @@ def _solve_grid(
 ):
     """solve() with t=: the arguments checked, then the grid engine."""
     from .grid import check_times
-    from .solve_grid import GRID_METHODS, grid_method_error, solve_on_grid
+    from .solve_grid import check_grid_memory, solve_on_grid
 
     times = check_times(t)
     if times.size == 0:
@@ -1468,18 +1460,16 @@ def _solve_grid(
             f"t0={show(t0)}: not used with t= (the problem starts at t[0]={show(float(times[0]))})"
         )
     meth = _check_method(method)
-    if meth not in GRID_METHODS:
-        raise grid_method_error(meth)
     mem = _check_memory(memory)
-    if mem != "exact":
-        raise ArgumentError(
-            f"memory={mem!r}: not available with t= (the grid solver keeps every f value); use memory='exact'"
-        )
+    check_grid_memory(meth, mem)
     if horizon is not None:
         raise ArgumentError(
-            f"horizon={show(horizon)}: not used with t= (only by "
-            "compressed memory and 'implicit-rectangle' on a uniform grid)"
+            f"horizon={show(horizon)}: not used with t= (the grid's span "
+            "t[-1] - t[0] is the horizon of compressed memory there)"
         )
+    tolf = 0.0
+    if mem == "compressed":
+        tolf, _ = check_compressed(tol, 1.0)
     if not isinstance(progress, (bool, np.bool_)):
         raise InputTypeError(f"progress={show(progress)}: expected True or False")
     bar_cls = _tqdm() if progress else None
@@ -1491,7 +1481,7 @@ def _solve_grid(
         dy0,
         float(times[0]),
         meth,
-        mem,
+        "exact",  # compressed memory on a grid: checked here and by the streams
         tol,
         None,
         jacobian,
@@ -1499,6 +1489,7 @@ def _solve_grid(
         newton_tol,
         newton_maxiter,
     )
+    p["memory"], p["tol"] = mem, tolf
     n = times.size - 1
     check_bytes(f"t ({n + 1} times)", 8 * (n + 1) * (2 * p["m"] + 1))
     if bar_cls is None:

@@ -295,7 +295,7 @@ class TimedStream:
             return exc
         return AssertionError(f"status {st}")  # pragma: no cover
 
-    def _push_scalar(self, time: object, x: object) -> float:
+    def _push_scalar(self, time: object, x: object, preview: bool = False) -> float:
         t = check_real("time", time)
         if not math.isfinite(t):
             raise ArgumentError(f"time={show(t)}: sample times must be finite")
@@ -312,17 +312,21 @@ class TimedStream:
         if not self._lock.acquire(False):
             raise self._busy()
         try:
-            self._t1[0] = t
             self._x1[0] = v
-            st = lib.fc_stream_push_timed(self._s, self._t1, self._x1, 1, self._y1)
+            if preview:
+                st = lib.fc_stream_preview_timed(self._s, t, self._x1, self._y1)
+            else:
+                self._t1[0] = t
+                st = lib.fc_stream_push_timed(self._s, self._t1, self._x1, 1, self._y1)
             y = float(self._y1[0])
         finally:
             self._lock.release()
         if st != lib.FC_OK:
             raise self._refusal(st, t, t, abs(v))
-        if self._first is None:
-            self._first = t
-        self._last = t
+        if not preview:
+            if self._first is None:
+                self._first = t
+            self._last = t
         return y
 
     def _samples(self, name: str, xs: object, shape: tuple[int, ...]) -> FloatArray:
@@ -402,6 +406,66 @@ class TimedStream:
         t = self._times([time], 1)
         a = self._samples("x", x, (self._C,))
         return self._call(t, a, 1)
+
+    def preview(self, time: float, x: Union[float, ArrayLike]) -> Union[float, FloatArray]:
+        """What :meth:`push` of ``(time, x)`` would return, bit for bit;
+        the stream is unchanged.
+
+        With ``x = 0`` it is the part of the output at ``time`` that the
+        samples already pushed make: the whole output for the rectangle
+        rule (it does not use the sample at ``time``), and for the
+        trapezoid rule all but ``h^a / Gamma(a+2) x`` (h = time - the
+        previous time), the newest sample's weight. A time stepper needs
+        this before the sample exists (``solve(..., t=grid,
+        memory='compressed')`` uses it).
+
+        Parameters
+        ----------
+        time : float
+            As for :meth:`push`.
+        x : float or array_like
+            As for :meth:`push`.
+
+        Returns
+        -------
+        float or numpy.ndarray
+            The output push would give.
+
+        Raises
+        ------
+        ArgumentError, SampleError, HorizonError, RangeError, BusyError
+            As :meth:`push` would (nothing changes either way).
+
+        See Also
+        --------
+        push : the same, and the sample is kept.
+        Stream.preview : the same on a uniform grid.
+
+        Examples
+        --------
+        >>> import pyfracconv
+        >>> s = pyfracconv.TimedStream(0.5, min_step=0.01, horizon=10.0)
+        >>> _ = s.push_many([0.0, 0.3], [1.0, 1.0])
+        >>> p = s.preview(0.5, 7.0)
+        >>> p == s.push(0.5, 7.0), s.count
+        (True, 3)
+        """
+        if self._scalar:
+            return self._push_scalar(time, x, preview=True)
+        t = self._times([time], 1)
+        a = self._samples("x", x, (self._C,))
+        y = np.empty_like(a)
+        if not self._lock.acquire(False):
+            raise self._busy()
+        try:
+            st = lib.fc_stream_preview_timed(
+                self._s, float(t[0]), ffi.from_buffer("double[]", a), ffi.from_buffer("double[]", y)
+            )
+        finally:
+            self._lock.release()
+        if st != lib.FC_OK:
+            raise self._refusal(st, float(t[0]), float(t[0]), float(np.max(np.abs(a))))
+        return y
 
     def push_many(self, times: ArrayLike, xs: ArrayLike) -> FloatArray:
         """Push T samples at T times: ``xs`` of shape (T,) for a scalar

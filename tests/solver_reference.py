@@ -6,7 +6,9 @@ recomputed from scratch at each step: the product rectangle rule and the
 predictor-corrector of Diethelm, Ford and Freed, Nonlinear Dynamics 29
 (2002) 3-22 (their weights b_{j,n+1} and a_{j,n+1}), and the implicit
 product trapezoidal rule of Garrappa, Math. Comput. Simul. 110 (2015)
-96-112 (solved here by Newton's method iterated to a fixed point). The
+96-112 (solved here by Newton's method iterated to a fixed point), and the
+implicit product rectangle rule (right end points, the weights b_{j,n+1}
+of Diethelm, Ford and Freed taken at the newest point). The
 weights are computed with mpmath at 40 digits from their closed forms, not
 by the library.
 """
@@ -86,6 +88,42 @@ def reference_solve(
         y[n + 1] = yn
         F[n + 1] = f(t[n + 1], yn)
     return t, y
+
+
+def implicit_rectangle_loop(f, jac, y0, orders, h, N, dy0):
+    """The implicit product rectangle rule (right end points), direct sums:
+    y_{n+1} = T_{n+1} + h^a/Gamma(a+1) sum_{k<=n} b_{n-k} f_{k+1},
+    b_m = (m+1)^a - m^a (Diethelm, Ford and Freed 2002, weights b_{j,n+1}
+    at the right end points); weights with mpmath; Newton's method with
+    the Jacobian jac iterated to a fixed point. Returns y, shape (N+1, m)."""
+    m = len(y0)
+    orders = np.asarray(orders, float)
+    d0 = np.zeros(m) if dy0 is None else np.asarray(dy0, float)
+    with mpmath.workdps(40):
+        B = {
+            a: np.array([float((k + 1) ** mpmath.mpf(a) - k ** mpmath.mpf(a)) for k in range(N + 1)])
+            for a in set(orders.tolist())
+        }
+    u = np.array([h**a / math.gamma(a + 1) for a in orders])
+    y = np.empty((N + 1, m))
+    F = np.empty((N + 1, m))
+    y[0] = y0
+    for n in range(N):
+        tn = (n + 1) * h
+        c = np.asarray(y0, float) + np.where(orders > 1, d0 * tn, 0.0)
+        for i in range(m):
+            k = np.arange(1, n + 1)
+            c[i] += u[i] * np.sum(B[orders[i]][n + 1 - k] * F[k, i])
+        yn = y[n].copy()
+        for _ in range(100):
+            g = yn - c - u * f(tn, yn)
+            d = np.linalg.solve(np.eye(m) - u[:, None] * jac(tn, yn), g)
+            yn = yn - d
+            if np.all(np.abs(d) <= 1e-16 * (1 + np.abs(yn))):
+                break
+        y[n + 1] = yn
+        F[n + 1] = f(tn, yn)
+    return y
 
 
 # ------------------------------------------------------------ closed forms

@@ -379,6 +379,27 @@ def test_solve_many_on_a_grid_threads_rectangle():
         assert np.allclose(y[i], want, rtol=1e-14, atol=1e-15)
 
 
+def test_solve_many_on_a_grid_compressed_equals_solve():
+    t = np.array([0.0, 0.1, 0.3, 0.35, 0.6, 1.0])
+    tt, Y = pfd.solve_many(decay, np.array([1.0, 2.0]), 1.0, 0.5, t=t, memory="compressed")
+    y = Y.compute(scheduler="threads")
+    for i, p in enumerate([1.0, 2.0]):
+        want = pyfracconv.solve(lambda s, v, p=p: decay(s, v, p), 1.0, 0.5, t=t, memory="compressed")
+        assert np.array_equal(y[i], want.y)
+
+
+def test_solve_many_on_a_grid_threads_implicit_rectangle():
+    # D^1 y = -p y by the implicit rectangle rule on a grid is implicit
+    # (backward) Euler with the grid's steps: y_n = prod_k 1 / (1 + p h_k)
+    # (common practice)
+    t = np.array([0.0, 0.1, 0.3, 0.35, 0.6])
+    tt, Y = pfd.solve_many(decay, np.array([1.0, 2.0]), 1.0, 1.0, t=t, method="implicit-rectangle")
+    y = Y.compute(scheduler="threads")
+    for i, p in enumerate([1.0, 2.0]):
+        want = np.concatenate([[1.0], np.cumprod(1.0 / (1.0 + p * np.diff(t)))])
+        assert np.allclose(y[i], want, rtol=1e-11, atol=1e-15)
+
+
 @pytest.mark.parametrize(
     "call,text",
     [
@@ -392,12 +413,10 @@ def test_solve_many_on_a_grid_threads_rectangle():
             "t0=1.0: not used with t=",
         ),
         (
-            lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], method="trapezoid"),
-            "method='trapezoid': not available with t=",
-        ),
-        (
-            lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], memory="compressed"),
-            "memory='compressed': not available with t=",
+            lambda: pfd.solve_many(
+                decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0], memory="compressed", method="implicit-rectangle"
+            ),
+            "memory='compressed', method='implicit-rectangle': not available with t=",
         ),
         (lambda: pfd.solve_many(decay, np.ones(2), 1.0, 0.5, t=[0.0, 1.0, 1.0]), "t[2]=1.0 after t[1]=1.0"),
     ],

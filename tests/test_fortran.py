@@ -20,6 +20,7 @@ import re
 import shutil
 import subprocess
 
+import numpy as np
 import pytest
 
 import pyfracconv
@@ -429,3 +430,282 @@ def test_controller_solver_checkpoint_files(tmp_path):
     assert out.stdout.split("\n")[:2] == [f"save refused: status {io}", f"load refused: status {io}"]
     c = pyfracconv.Controller.load_file(str(tmp_path / "c.ckpt"))
     assert c.count == 40
+
+
+# ------------------------------------------------ grid and timed stream
+
+GRID_TIMED_F90 = """
+program grid_timed
+  use, intrinsic :: iso_c_binding, only: c_double, c_int64_t, c_signed_char, c_size_t
+  use, intrinsic :: ieee_arithmetic, only: ieee_value, ieee_quiet_nan
+  use fracconv
+  implicit none
+  integer, parameter :: n = 401
+  real(c_double) :: t(n), x1(n), x2(n), yr(n), yt(n), yl(n), ys(n), keep(n), ybad(n)
+  real(c_double) :: two(n, 2), y2(n, 2), xb(2, n), yb(2, n), bad(n), y, z, nan
+  real(c_double), parameter :: tol = 1e-12_c_double
+  type(fc_stream) :: s, r, b, u
+  integer(c_signed_char), allocatable :: blob(:), blob2(:), ublob(:)
+  integer(c_int64_t) :: cnt
+  integer :: st, k, kr, kt, kl, fails
+  logical :: timed
+  character(len=512) :: dir
+  character(len=*), parameter :: row3 = "(a, 1x, i0, 3(1x, es25.17e3))"
+  fails = 0
+  call get_command_argument(1, dir)
+  ! a jittered grid on [0, 1]: steps in [0.4, 1.6] / 400
+  do k = 1, n
+    t(k) = real(k - 1, c_double) / 400
+    if (k > 1 .and. k < n) t(k) = (real(k - 1, c_double) + 0.3_c_double * sin(real(k - 1, c_double)**2)) / 400
+    x1(k) = sqrt(t(k))
+    x2(k) = t(k) * sqrt(t(k))
+    print row3, "t", k - 1, t(k), x1(k), x2(k)
+  end do
+
+  ! ---- fc_grid_apply: the three rules, and two signals at once
+  call fc_grid_apply(FC_RULE_RECTANGLE, 0.5_c_double, t, x1, yr, st, tol, kr)
+  call check(st == FC_OK, "rectangle")
+  call fc_grid_apply(FC_RULE_TRAPEZOID, 0.5_c_double, t, x1, yt, st, tol, kt)
+  call check(st == FC_OK, "trapezoid")
+  call fc_grid_apply(FC_RULE_L1, 0.4_c_double, t, x2, yl, st, tol, kl)
+  call check(st == FC_OK, "l1")
+  do k = 1, n
+    print row3, "grid", k - 1, yr(k), yt(k), yl(k)
+  end do
+  print "(a, 3(1x, i0))", "terms", kr, kt, kl
+  two(:, 1) = x1; two(:, 2) = x1
+  call fc_grid_apply(FC_RULE_TRAPEZOID, 0.5_c_double, t, two, y2, st, tol)
+  call check(st == FC_OK .and. same(y2(:, 1), yt) .and. same(y2(:, 2), yt), "two signals")
+
+  ! refusals write nothing
+  keep = 7; ybad = keep; bad = t; bad(201) = bad(200)
+  call fc_grid_apply(FC_RULE_RECTANGLE, 0.5_c_double, bad, x1, ybad, st, tol)
+  print "(a, i0)", "refused grid t status ", st
+  call fc_grid_apply(FC_RULE_RECTANGLE, 0.5_c_double, t, x1, ybad, st, 1.0_c_double)
+  print "(a, i0)", "refused grid tol status ", st
+  call fc_grid_apply(FC_RULE_L1, 1.5_c_double, t, x1, ybad, st, tol)
+  print "(a, i0)", "refused grid order status ", st
+  call fc_grid_apply(FC_RULE_RECTANGLE, 0.5_c_double, t(1:n-1), x1, ybad, st, tol)
+  print "(a, i0)", "refused grid size status ", st
+  call check(same(ybad, keep), "refused grid calls write nothing")
+
+  ! ---- a timed stream, one sample at a time
+  call fc_stream_create_timed(s, FC_RULE_TRAPEZOID, 0.7_c_double, 5e-4_c_double, 2.0_c_double, &
+       st, tol=tol)
+  call check(st == FC_OK, "create timed")
+  call fc_stream_is_timed(s, timed, st)
+  call check(st == FC_OK .and. timed, "is timed")
+  nan = ieee_value(nan, ieee_quiet_nan)
+  do k = 1, n
+    if (k == 251) then
+      call fc_stream_save(s, blob, st)
+      call fc_stream_push_timed(s, t(250), 1.0_c_double, y, st)
+      print "(a, i0)", "refused push back status ", st
+      call fc_stream_push_timed(s, t(250) + 1e-4_c_double, 1.0_c_double, y, st)
+      print "(a, i0)", "refused push small status ", st
+      call fc_stream_push_timed(s, nan, 1.0_c_double, y, st)
+      print "(a, i0)", "refused push nan status ", st
+      call fc_stream_count(s, cnt, st)
+      call fc_stream_save(s, blob2, st)
+      call check(cnt == 250 .and. size(blob2) == size(blob), "refused pushes leave the count")
+      call check(all(blob2 == blob), "refused pushes leave the state bit for bit")
+    end if
+    call fc_stream_push_timed(s, t(k), x1(k), ys(k), st)
+    call check(st == FC_OK, "timed push")
+  end do
+  do k = 1, n
+    print "(a, 1x, i0, 1x, es25.17e3)", "timed", k - 1, ys(k)
+  end do
+  ! resumed from the bytes saved at 250: the same bits
+  call fc_stream_load(r, blob, st)
+  call check(st == FC_OK, "load timed")
+  do k = 251, n
+    call fc_stream_push_timed(r, t(k), x1(k), z, st)
+    call check(st == FC_OK .and. same1(z, ys(k)), "loaded timed stream continues bit for bit")
+  end do
+
+  ! ---- two channels, one block
+  call fc_stream_create_timed(b, FC_RULE_RECTANGLE, 0.5_c_double, 5e-4_c_double, 2.0_c_double, &
+       st, channels=2, tol=tol)
+  xb(1, :) = x1; xb(2, :) = x2
+  call fc_stream_push_timed(b, t, xb, yb, st)
+  call check(st == FC_OK, "block push")
+  do k = 1, n
+    print "(a, 1x, i0, 2(1x, es25.17e3))", "block", k - 1, yb(1, k), yb(2, k)
+  end do
+  call fc_stream_push_timed(b, t(1:3), xb(:, 1:2), yb(:, 1:2), st)
+  print "(a, i0)", "refused block size status ", st
+  call fc_stream_push_timed(b, 2.0_c_double, 1.0_c_double, y, st)
+  print "(a, i0)", "refused scalar push status ", st
+  call fc_stream_count(b, cnt, st)
+  call check(cnt == n, "refused block pushes leave the count")
+
+  ! ---- creation refused; an untimed stream is not timed and refuses timed pushes
+  call fc_stream_create_timed(u, FC_RULE_RECTANGLE, 0.5_c_double, 0.0_c_double, 2.0_c_double, st)
+  print "(a, i0)", "refused create step status ", st
+  call fc_stream_create_timed(u, FC_RULE_RECTANGLE, 0.5_c_double, 5e-4_c_double, 2.0_c_double, &
+       st, tol=1.0_c_double)
+  print "(a, i0)", "refused create tol status ", st
+  call fc_stream_create_timed(u, FC_RULE_GRUNWALD, 0.5_c_double, 5e-4_c_double, 2.0_c_double, st)
+  print "(a, i0)", "refused create rule status ", st
+  call fc_stream_create(u, FC_RULE_RECTANGLE, 0.5_c_double, 0.01_c_double, st)
+  call fc_stream_is_timed(u, timed, st)
+  call check(st == FC_OK .and. .not. timed, "an untimed stream")
+  call fc_stream_push_timed(u, 1.0_c_double, 1.0_c_double, y, st)
+  print "(a, i0)", "refused untimed push status ", st
+  call fc_stream_save(u, ublob, st)
+  call check(st == FC_OK, "untimed save")
+
+  call fc_stream_free(s)
+  call fc_stream_free(r)
+  call fc_stream_free(b)
+  call fc_stream_free(u)
+  if (fails == 0) print "(a)", "all grid and timed checks passed"
+  if (fails /= 0) error stop 1
+
+contains
+
+  subroutine check(ok, what)
+    logical, intent(in) :: ok
+    character(len=*), intent(in) :: what
+    if (.not. ok) then
+      print "(2a)", "FAIL ", what
+      fails = fails + 1
+    end if
+  end subroutine check
+
+  ! bit for bit: compared as 64-bit integers
+  logical function same(a, c)
+    real(c_double), intent(in) :: a(:), c(:)
+    same = size(a) == size(c)
+    if (same) same = all(transfer(a, 0_c_int64_t, size(a)) == transfer(c, 0_c_int64_t, size(c)))
+  end function same
+
+  logical function same1(a, c)
+    real(c_double), intent(in) :: a, c
+    same1 = transfer(a, 0_c_int64_t) == transfer(c, 0_c_int64_t)
+  end function same1
+end program grid_timed
+"""
+
+
+@pytest.fixture(scope="module")
+def grid_timed(tmp_path_factory):
+    """GRID_TIMED_F90 (fc_grid_apply, fc_stream_create_timed,
+    fc_stream_push_timed and fc_stream_is_timed of the module) built with
+    -std=f2008 -Werror against the static library and run; the printed
+    values (17 significant digits: exact doubles) parsed."""
+    tmp = tmp_path_factory.mktemp("f90grid")
+    build = tmp / "build"
+    subprocess.run(["make", "-C", ROOT, f"BUILD={build}", "lib"], check=True, capture_output=True, text=True)
+    src = tmp / "grid_timed.f90"
+    src.write_text(GRID_TIMED_F90)
+    exe = tmp / "grid_timed"
+    r = subprocess.run(
+        [
+            FC,
+            "-std=f2008",
+            "-Wall",
+            "-Wextra",
+            "-Werror",
+            "-J",
+            str(tmp),
+            os.path.join(ROOT, "fortran", "fracconv.f90"),
+            str(src),
+            str(build / "libfracconv.a"),
+            "-lm",
+            "-o",
+            str(exe),
+        ],
+        capture_output=True,
+        text=True,
+    )
+    assert r.returncode == 0, r.stderr
+    out = subprocess.run([str(exe), str(tmp)], capture_output=True, text=True)
+
+    def table(tag, width):
+        rows = re.findall(rf"^ *{tag} (\d+)((?: +\S+){{{width}}}) *$", out.stdout, re.M)
+        return np.array([[float(v) for v in vals.split()] for _, vals in rows])
+
+    return {
+        "out": out,
+        "t": table("t", 3),
+        "grid": table("grid", 3),
+        "timed": table("timed", 1)[:, 0],
+        "block": table("block", 2),
+        "terms": [int(v) for v in re.search(r"^ *terms (\d+) (\d+) (\d+)", out.stdout, re.M).groups()],
+        "refused": {k: int(v) for k, v in re.findall(r"^ *refused (.+) status (-?\d+)", out.stdout, re.M)},
+    }
+
+
+def test_f90_grid_timed_program_passes(grid_timed):
+    # its own checks: two signals at once, refusals that write nothing and
+    # change nothing (the saved bytes compared), a loaded stream continuing
+    # bit for bit, an untimed stream told apart
+    out = grid_timed["out"]
+    assert out.returncode == 0, out.stdout + out.stderr
+    assert "all grid and timed checks passed" in out.stdout and "FAIL" not in out.stdout
+
+
+def test_f90_grid_apply_equals_python_fast_engine(grid_timed):
+    # the same C function behind integral/derivative(..., t=, engine='fast'):
+    # equal to the last bit on the same times, samples and tol
+    t, x1, x2 = grid_timed["t"].T
+    g = grid_timed["grid"]
+    assert t.size == 401 and np.all(np.diff(t) > 0)
+    kw = dict(t=t, engine="fast", tol=1e-12)
+    assert np.array_equal(g[:, 0], pyfracconv.integral(x1, 0.5, rule="rectangle", **kw))
+    assert np.array_equal(g[:, 1], pyfracconv.integral(x1, 0.5, rule="trapezoid", **kw))
+    assert np.array_equal(g[:, 2], pyfracconv.derivative(x2, 0.4, rule="l1", **kw))
+
+
+def test_f90_grid_apply_against_the_closed_forms(grid_timed):
+    # I^a t^b = Gamma(b+1)/Gamma(b+1+a) t^(b+a) (Podlubny 1999, chapter 2)
+    # and D^a t^b = Gamma(b+1)/Gamma(b+1-a) t^(b-a) (Diethelm 2010) with
+    # SciPy's gamma; the bounds are the rules' errors at these 400 steps
+    # measured when the test was written (tests/test_cpp.py, the same grid:
+    # rectangle 2.8e-3, trapezoid 4.2e-4, L1 2.7e-4) with a margin of 3
+    from scipy.special import gamma
+
+    t, x1, x2 = grid_timed["t"].T
+    g = grid_timed["grid"]
+    for col, (a, b, l1, bound) in enumerate(
+        [(0.5, 0.5, 0, 8.4e-3), (0.5, 0.5, 0, 1.3e-3), (0.4, 1.5, 1, 8.1e-4)]
+    ):
+        if l1:
+            exact = gamma(b + 1) / gamma(b + 1 - a) * t ** (b - a)
+        else:
+            exact = gamma(b + 1) / gamma(b + 1 + a) * t ** (b + a)
+        assert np.max(np.abs(g[:, col] - exact)) < bound, col
+    assert all(k > 0 for k in grid_timed["terms"])
+
+
+def test_f90_timed_stream_equals_python_timed_stream(grid_timed):
+    # pyfracconv.TimedStream over the same C stream, pushed one at a time
+    # (the Fortran run refused three pushes at sample 250, which changed
+    # nothing) and two channels in one block: equal to the last bit
+    t, x1, x2 = grid_timed["t"].T
+    s = pyfracconv.TimedStream(0.7, 5e-4, 2.0, rule="trapezoid", tol=1e-12)
+    assert np.array_equal(grid_timed["timed"], [s.push(tk, xk) for tk, xk in zip(t, x1)])
+    b = pyfracconv.TimedStream(0.5, 5e-4, 2.0, rule="rectangle", tol=1e-12, channels=2)
+    assert np.array_equal(grid_timed["block"], b.push_many(t, np.stack([x1, x2], axis=1)))
+
+
+def test_f90_grid_timed_refusals_carry_the_c_statuses(grid_timed):
+    lib = pyfracconv._fracconv.lib
+    want = {
+        "grid t": lib.FC_ERR_ARG,
+        "grid tol": lib.FC_ERR_TOL,
+        "grid order": lib.FC_ERR_ORDER,
+        "grid size": lib.FC_ERR_ARG,
+        "push back": lib.FC_ERR_ARG,
+        "push small": lib.FC_ERR_ARG,
+        "push nan": lib.FC_ERR_NONFINITE,
+        "block size": lib.FC_ERR_ARG,
+        "scalar push": lib.FC_ERR_ARG,
+        "create step": lib.FC_ERR_STEP,
+        "create tol": lib.FC_ERR_TOL,
+        "create rule": lib.FC_ERR_RULE,
+        "untimed push": lib.FC_ERR_ARG,
+    }
+    assert grid_timed["refused"] == {k: int(v) for k, v in want.items()}

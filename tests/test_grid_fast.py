@@ -250,9 +250,12 @@ def test_l1_order_two_minus_a_at_large_sizes(a):
 
 @pytest.mark.parametrize("a", [0.4, 0.6])
 def test_l1_truncation_error_on_graded_meshes_at_large_sizes(a):
-    # Stynes, O'Riordan and Gracia 2017 (truncation error of the L1 scheme on
-    # the graded mesh t_k = T (k/N)^r for u with |u^(k)(t)| <= C(1 + t^(a-k)),
-    # here u = t^a): |tau_n| <= C n^(-min(2-a, r a)) with C independent of N,
+    # The truncation error of the L1 scheme on the graded mesh
+    # t_k = T (k/N)^r for u with |u^(k)(t)| <= C(1 + t^(a-k)), here u = t^a:
+    # |tau_n| <= C n^(-min(2-a, r a)) with C independent of N (Stynes,
+    # O'Riordan and Gracia 2017; this pointwise form stated from memory, the
+    # published nodal-error rate min(r a, 2 - a) is checked in
+    # tests/test_grid.py after Zhou and Stynes 2022),
     # so max_n n^p |tau_n| stays bounded as N grows, p = min(2-a, r a);
     # r = (2-a)/a restores p = 2 - a. A rate 0.3 beyond it is not met (the
     # check can fail).

@@ -125,32 +125,49 @@ def observed_orders(a, method, r, Ns):
 
 
 # The max-norm orders for a right-hand side f(t, y(t)) that behaves like
-# t^s near 0 on the graded mesh t_k = T (k/N)^r, 0 < a < 1: the product
-# rectangle rule min(r (a + s), 1) (Liu, Roberts and Yan, Int. J. Comput.
-# Math. 95 (2018)) and the predictor-corrector min(r (a + s), 1 + a) (Liu,
-# Roberts and Yan, Numer. Algorithms 78 (2018)); stated from memory of
-# their theorems, and the measured values agree. Here f = -E_a(-t^a) =
-# -1 + t^a / Gamma(1 + a) - ... (Gorenflo, Kilbas, Mainardi and Rogosin
-# 2014), so s = a. Measured when the test was written (last ratio):
-# rectangle a = 0.3: 0.57 (uniform), 1.03 (r = 5); predictor-corrector
-# a = 0.5: 0.94 (uniform, 3200 steps), 1.52 (r = 2.5); a = 0.7: 1.37
-# (uniform), 1.69 (r = 2).
+# t^s near 0 (s in (0, 1)) on the graded mesh t_k = T (k/N)^r, 0 < a < 1:
+# the product rectangle rule min(r (a + s), 1) (Liu, Roberts and Yan, Int.
+# J. Comput. Math. 95 (2018)) and the predictor-corrector min(r (a + s),
+# 1 + a) (Liu, Roberts and Yan, Numer. Algorithms 78 (2018)). Stated from
+# memory of their theorems: the published statements were looked for
+# (abstracts, arXiv pages) and not found, so the rates, not the papers'
+# theorem numbers, are what is checked; docs/references.md says so. The
+# caps 1 and 1 + a are the uniform-mesh orders for smooth data (Diethelm,
+# Ford and Freed 2004, also from memory). Here f = -E_a(-t^a) = -1 +
+# t^a / Gamma(1 + a) - ... (Gorenflo, Kilbas, Mainardi and Rogosin 2014),
+# so s = a. Measured when the test was written (last ratio): rectangle
+# a = 0.3: 0.57 (uniform), 1.03 (r = 5); predictor-corrector a = 0.5: 0.94
+# (uniform, 3200 steps), 1.21 (r = 1.25, the branch r (a + s) on a graded
+# mesh), 1.52 (r = 2.5); a = 0.7: 1.37 (uniform), 1.69 (r = 2).
+ORDER_MARGIN = 0.1
+
+
+def stated_order(a, method, r, s):
+    cap = 1.0 if method == "rectangle" else 1.0 + a
+    return min(r * (a + s), cap)
+
+
 ORDER_CASES = [
-    # a, method, r, expected order, steps
-    (0.3, "rectangle", 1.0, 0.6, [200, 400, 800, 1600]),
-    (0.3, "rectangle", 5.0, 1.0, [200, 400, 800, 1600]),
-    (0.5, "predictor-corrector", 1.0, 1.0, [400, 800, 1600, 3200]),
-    (0.5, "predictor-corrector", 2.5, 1.5, [200, 400, 800, 1600]),
-    (0.7, "predictor-corrector", 1.0, 1.4, [200, 400, 800, 1600]),
-    (0.7, "predictor-corrector", 2.0, 1.7, [200, 400, 800, 1600]),
+    # a, method, r, steps
+    (0.3, "rectangle", 1.0, [200, 400, 800, 1600]),
+    (0.3, "rectangle", 5.0, [200, 400, 800, 1600]),
+    (0.5, "predictor-corrector", 1.0, [400, 800, 1600, 3200]),
+    (0.5, "predictor-corrector", 1.25, [200, 400, 800, 1600]),
+    (0.5, "predictor-corrector", 2.5, [200, 400, 800, 1600]),
+    (0.7, "predictor-corrector", 1.0, [200, 400, 800, 1600]),
+    (0.7, "predictor-corrector", 2.0, [200, 400, 800, 1600]),
 ]
 
 
-@pytest.mark.parametrize("a, method, r, expected, Ns", ORDER_CASES)
-def test_published_orders_on_uniform_and_graded_meshes(a, method, r, expected, Ns):
+@pytest.mark.parametrize("a, method, r, Ns", ORDER_CASES)
+def test_published_orders_on_uniform_and_graded_meshes(a, method, r, Ns):
+    expected = stated_order(a, method, r, s=a)
     orders, errs = observed_orders(a, method, r, Ns)
     assert all(e2 < e1 for e1, e2 in zip(errs, errs[1:])), errs
-    assert abs(orders[-1] - expected) < 0.1, (orders, expected)
+    # the last ratio within the margin of the stated order, none beyond it
+    # by more than the margin (a method of higher order fails too)
+    assert abs(orders[-1] - expected) < ORDER_MARGIN, (orders, expected)
+    assert max(orders) < expected + ORDER_MARGIN, (orders, expected)
 
 
 @pytest.mark.parametrize("a, method, r_graded", [(0.3, "rectangle", 5.0), (0.5, "predictor-corrector", 2.5)])
@@ -287,18 +304,7 @@ class Counting:
         ((), dict(), r"step and n_steps=None: give step and n_steps"),
         ((0.01,), dict(), r"n_steps=None: give step and n_steps"),
         ((), dict(t=[0.0, 1.0], t0=0.0), r"t0=0\.0: not used with t="),
-        (
-            (),
-            dict(t=[0.0, 1.0], method="trapezoid"),
-            r"method='trapezoid': not available with t= .*'rectangle' or 'predictor-corrector'",
-        ),
-        (
-            (),
-            dict(t=[0.0, 1.0], method="implicit-rectangle"),
-            r"method='implicit-rectangle': not available with t=",
-        ),
         ((), dict(t=[0.0, 1.0], method="euler"), r"method='euler': unknown"),
-        ((), dict(t=[0.0, 1.0], memory="compressed"), r"memory='compressed': not available with t="),
         ((), dict(t=[0.0, 1.0], horizon=10), r"horizon=10: not used with t="),
         ((), dict(t=[0.0, 0.5, 0.5]), r"t\[2\]=0\.5 after t\[1\]=0\.5: .*strictly increasing"),
         ((), dict(t=[0.0, float("nan")]), r"t\[1\]=nan: sample times must be finite"),

@@ -14,6 +14,7 @@ import pyfracconv
 from pyfracconv import solve
 from solver_reference import (
     dff_example,
+    implicit_rectangle_loop,
     mittag_leffler,
     ml_asymptotic,
     reference_solve,
@@ -284,45 +285,10 @@ def test_exact_memory_equals_plain_loop(method, orders, dy0):
     )
     _, y = solve(_coupled, y0, orders, h, N, dy0=dy0, method=method, **kw)
     if method == "implicit-rectangle":
-        ref = _implicit_rectangle_loop(_coupled, _coupled_jac, y0, orders, h, N, dy0)
+        ref = implicit_rectangle_loop(_coupled, _coupled_jac, y0, orders, h, N, dy0)
     else:
         _, ref = reference_solve(_coupled, y0, orders, h, N, dy0=dy0, method=method, jac=_coupled_jac)
     assert np.max(np.abs(y - ref) / np.maximum(np.abs(ref), 1e-3)) < 1e-13
-
-
-def _implicit_rectangle_loop(f, jac, y0, orders, h, N, dy0):
-    # implicit product rectangle rule (right end points), direct sums:
-    # y_{n+1} = T_{n+1} + h^a/Gamma(a+1) sum_{k<=n} b_{n-k} f_{k+1},
-    # b_m = (m+1)^a - m^a (Diethelm, Ford and Freed 2002, weights b_{j,n+1}
-    # at the right end points); weights with mpmath
-    m = len(y0)
-    orders = np.asarray(orders, float)
-    d0 = np.zeros(m) if dy0 is None else np.asarray(dy0, float)
-    with mpmath.workdps(40):
-        B = {
-            a: np.array([float((k + 1) ** mpmath.mpf(a) - k ** mpmath.mpf(a)) for k in range(N + 1)])
-            for a in set(orders.tolist())
-        }
-    u = np.array([h**a / math.gamma(a + 1) for a in orders])
-    y = np.empty((N + 1, m))
-    F = np.empty((N + 1, m))
-    y[0] = y0
-    for n in range(N):
-        tn = (n + 1) * h
-        c = np.asarray(y0, float) + np.where(orders > 1, d0 * tn, 0.0)
-        for i in range(m):
-            k = np.arange(1, n + 1)
-            c[i] += u[i] * np.sum(B[orders[i]][n + 1 - k] * F[k, i])
-        yn = y[n].copy()
-        for _ in range(100):
-            g = yn - c - u * f(tn, yn)
-            d = np.linalg.solve(np.eye(m) - u[:, None] * jac(tn, yn), g)
-            yn = yn - d
-            if np.all(np.abs(d) <= 1e-16 * (1 + np.abs(yn))):
-                break
-        y[n + 1] = yn
-        F[n + 1] = f(tn, yn)
-    return y
 
 
 def test_corrector_passes_equal_plain_loop():

@@ -3,7 +3,9 @@ a right-hand side that raises or misbehaves, Newton's method failing,
 the horizon, progress bars, and checkpoints (save/load bit for bit, forged
 data refused)."""
 
+import pathlib
 import struct
+import subprocess
 import sys
 import types
 
@@ -21,6 +23,9 @@ from pyfracconv import (
     Stepper,
     solve,
 )
+from solver_reference import implicit_rectangle_loop
+
+DATA = pathlib.Path(__file__).with_name("data")
 
 
 class Counting:
@@ -119,11 +124,13 @@ def test_vector_shape_mismatches_named():
         solve(lambda t, y: -y, [1.0, 1.0], [0.5, 1.5], 0.1, 10, dy0=[1.0, 0.0])
 
 
-def test_stepper_needs_horizon_for_compressed_and_implicit_rectangle():
+def test_stepper_needs_horizon_for_compressed_memory_only():
     with pytest.raises(ArgumentError, match="horizon=None"):
         Stepper(lambda t, y: -y, 1.0, 0.5, 0.1, memory="compressed")
-    with pytest.raises(ArgumentError, match="horizon=None"):
-        Stepper(lambda t, y: -y, 1.0, 0.5, 0.1, method="implicit-rectangle")
+    # exact memory has no horizon, the implicit rectangle rule's included
+    st = Stepper(lambda t, y: -y, 1.0, 0.5, 0.1, method="implicit-rectangle")
+    st.advance(300)
+    assert st.steps == 300
 
 
 # ------------------------------------------------------------ rhs faults
@@ -489,15 +496,111 @@ def test_public_names():
     assert issubclass(RhsError, pyfracconv.SolverError) and issubclass(NewtonError, RuntimeError)
 
 
-def test_implicit_rectangle_horizon_and_loaded_horizon():
-    st = Stepper(lambda t, y: -y, 1.0, 0.5, 0.1, method="implicit-rectangle", horizon=5)
-    st.advance(5)
-    with pytest.raises(HorizonError, match=r"horizon=5 steps: 5 done, 0 left"):
-        st.advance(1)
-    again = Stepper.load(st.save(), lambda t, y: -y)
-    with pytest.raises(HorizonError, match=r"horizon=5 steps"):
-        again.advance(1)
-    assert again.steps == 5
+def test_implicit_rectangle_exact_horizon_accepted_and_not_used():
+    # a horizon given with exact memory (once required by the implicit
+    # rectangle rule, at most 2**28) is still accepted and no longer limits
+    # the steps: the results are those of a stepper made without one
+    def rhs(t, y):
+        return -y
+
+    a = Stepper(rhs, 1.0, 0.5, 0.1, method="implicit-rectangle", horizon=5)
+    b = Stepper(rhs, 1.0, 0.5, 0.1, method="implicit-rectangle")
+    ya, yb = a.advance(200)[1], b.advance(200)[1]
+    assert np.array_equal(ya, yb)
+    again = Stepper.load(a.save(), rhs)
+    assert np.array_equal(again.advance(100)[1], b.advance(100)[1])
+    res = solve(rhs, 1.0, 0.5, 0.1, 200, method="implicit-rectangle", horizon=5)
+    assert np.array_equal(res.y[1:], ya)
+
+
+# tests/data/solver_v1_implicit_rectangle_exact.bin: a Stepper saved by the
+# library before the exact implicit rectangle rule's stream grew on demand
+# (it then required a horizon and rebuilt a kernel of floor(horizon) + 1
+# weights at load), made by Stepper(_legacy_rhs, [1.0, 0.5], [0.6, 1.5],
+# 0.01, dy0=[0.0, 0.2], method="implicit-rectangle", horizon=300,
+# jacobian=_legacy_jac, newton_tol=1e-15) after advance(100).
+def _legacy_rhs(t, y):
+    return -y + 0.1 * np.sin(t)
+
+
+def _legacy_jac(t, y):
+    return -np.eye(2)
+
+
+def test_implicit_rectangle_saved_with_a_horizon_still_loads():
+    blob = (DATA / "solver_v1_implicit_rectangle_exact.bin").read_bytes()
+    a = Stepper.load(blob, _legacy_rhs, jacobian=_legacy_jac)
+    assert a.steps == 100
+    # the same continuation as after the new code's own save/load round
+    # trip, past the old horizon
+    b = Stepper.load(a.save(), _legacy_rhs, jacobian=_legacy_jac)
+    ya, yb = a.advance(250)[1], b.advance(250)[1]
+    assert np.array_equal(ya, yb)
+    # and the rule itself: the direct O(N^2) loop (tests/solver_reference.py)
+    ref = implicit_rectangle_loop(_legacy_rhs, _legacy_jac, [1.0, 0.5], [0.6, 1.5], 0.01, 350, [0.0, 0.2])
+    assert np.max(np.abs(ya - ref[101:]) / np.maximum(np.abs(ref[101:]), 1e-3)) < 1e-13
+
+
+def _with_horizon(blob, horizon):
+    # the horizon: bytes 56..64 of the C format (csrc/solver.c), after the
+    # 8-byte Python envelope
+    b = bytearray(blob)
+    struct.pack_into("<d", b, 8 + 56, horizon)
+    return _reseal(bytes(b))
+
+
+_PEAK_RSS = """
+import resource, sys
+import pyfracconv
+blob = open(sys.argv[1], "rb").read()
+rhs = lambda t, y: -y
+before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+st = pyfracconv.Stepper.load(blob, rhs)
+after = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+print(after - before, st.nbytes, st.steps)
+"""
+
+
+@pytest.mark.parametrize("steps", [0, 20])
+def test_forged_implicit_rectangle_horizon_loads_with_small_memory(tmp_path, steps):
+    # a blob of about 200 bytes claiming the largest horizon the old format
+    # had, 2**28, once made the loader compute a kernel of 2**28 + 1
+    # weights (2 GiB, twice); the stream now grows with the f rows the blob
+    # holds. Peak RSS of a fresh process (resource.getrusage, kilobytes on
+    # Linux) before and after the load.
+    st = Stepper(lambda t, y: -y, 1.0, 0.6, 0.01, method="implicit-rectangle")
+    st.advance(steps)
+    blob = _with_horizon(st.save(), 2.0**28)
+    assert len(blob) < 200 + 8 * steps
+    path = tmp_path / "forged.bin"
+    path.write_bytes(blob)
+    out = subprocess.run(
+        [sys.executable, "-c", _PEAK_RSS, str(path)], capture_output=True, text=True, check=True
+    ).stdout.split()
+    grew_kb, nbytes, loaded_steps = (int(v) for v in out)
+    assert grew_kb < 64 * 1024 and nbytes < 1 << 20 and loaded_steps == steps
+    # it loads here too and continues as the stepper that saved it
+    again = Stepper.load(blob, lambda t, y: -y)
+    assert np.array_equal(again.advance(30)[1], st.advance(30)[1])
+
+
+def test_forged_exact_horizons_refused():
+    # exact memory has no horizon: only an implicit rectangle blob of the
+    # old format may hold one, 1 <= horizon <= 2**28 and at least its steps
+    ir = _saved(method="implicit-rectangle", vector=False)
+    pc = _saved(vector=False)
+    for blob, horizon in (
+        (ir, 2.0**28 + 1),
+        (ir, 19.0),
+        (ir, 0.5),
+        (ir, float("nan")),
+        (ir, -1.0),
+        (pc, 100.0),
+    ):
+        with pytest.raises(StateError):
+            Stepper.load(_with_horizon(blob, horizon), lambda t, y: -y)
+    for horizon in (20.0, 2.0**28):
+        Stepper.load(_with_horizon(ir, horizon), lambda t, y: -y)
 
 
 def test_vector_rhs_gets_a_read_only_view():
@@ -530,7 +633,7 @@ def test_nbytes_bounded_in_compressed_memory():
 def test_nbytes_bounded_implicit_rectangle_compressed(a):
     # the implicit rectangle rule with compressed memory keeps two
     # compressed streams (one at a = 1) and no f history: its memory does
-    # not grow with the steps, and its horizon is not bounded by 2**28
+    # not grow with the steps, and its horizon may be as large as a stream's
     kw = {"dy0": 0.0} if a > 1 else {}
     c = Stepper(
         lambda t, y: -y, 1.0, a, 1e-3, method="implicit-rectangle", memory="compressed", horizon=1e12, **kw

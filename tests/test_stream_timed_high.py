@@ -312,3 +312,23 @@ def test_python_checks_at_the_new_orders():
     s = pf.TimedStream(1.5, 0.01, 10.0, rule="trapezoid", tol=1e-13)
     ys = [s.push(ti, ti) for ti in (0.0, 0.1, 0.15, 0.4, 0.9, 1.0)]
     assert math.isclose(ys[-1], 1.0 / math.gamma(3.5), rel_tol=1e-11)
+
+
+@pytest.mark.parametrize("rule", ["rectangle", "trapezoid"])
+def test_preview_is_the_push_bit_for_bit_and_changes_nothing(rule):
+    # preview (fc_stream_preview_timed) runs the push's recursion, the
+    # running integral included, on a copy: its output is the push's
+    rng = np.random.default_rng(87)
+    t = jittered(rng, 300)
+    X = rng.standard_normal((300, 2))
+    s = pf.TimedStream(1.5, 0.5e-3, 1.0, rule=rule, channels=2)
+    for k in range(40):
+        before = s.save()
+        p = s.preview(t[k], X[k])
+        assert s.save() == before
+        np.testing.assert_array_equal(p, s.push(t[k], X[k]))
+    # with x = 0: the history alone (the push of a zero sample)
+    before = s.save()
+    p0 = s.preview(t[40], np.zeros(2))
+    assert s.save() == before
+    np.testing.assert_array_equal(p0, s.push(t[40], np.zeros(2)))

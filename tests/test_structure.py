@@ -457,8 +457,9 @@ def test_each_engine_has_its_table_state_and_no_repeated_checks():
         assert "fc__check_finite" not in code, name
         assert "partial_overlap" not in code, name
     facade = c_code("stream.c")
-    # push_block, preview and push_timed (whose times are checked there too)
-    assert facade.count("fc__check_finite(x") == 3
+    # push_block, preview, push_timed (whose times are checked there too) and
+    # preview_timed (one time, a scalar: isfinite)
+    assert facade.count("fc__check_finite(x") == 4
     assert facade.count("fc__check_finite(t") == 1
     # the construction lives in soe_build.c only
     soe = c_code("soe_build.c")

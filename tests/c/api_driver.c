@@ -328,7 +328,16 @@ static void test_grid(void)
     EXPECT(fc_stream_create_timed(FC_RULE_TRAPEZOID, 0.5, NaN_, 1, 1e-10, 10.0, &s), FC_ERR_STEP);
     EXPECT(fc_stream_create_timed(FC_RULE_TRAPEZOID, 0.5, 0.005, 1, 1e-10, 10.0, &s), FC_OK);
     EXPECT(fc_stream_push_timed(s, t, x, N / 2, yb), FC_OK);
+    double pv = -1.0, pv2 = -2.0;
+    EXPECT(fc_stream_preview_timed(s, t[N / 2], x + N / 2, &pv), FC_OK);
+    EXPECT(fc_stream_preview_timed(s, t[N / 2], x + N / 2, &pv2), FC_OK);
+    TRUE_(pv == pv2);                                                  /* nothing changed */
+    EXPECT(fc_stream_preview_timed(s, t[N / 2 - 1], x, &pv), FC_ERR_ARG); /* time not after */
+    EXPECT(fc_stream_preview_timed(s, NaN_, x, &pv), FC_ERR_NONFINITE);
+    EXPECT(fc_stream_preview_timed(s, t[N / 2], x, NULL), FC_ERR_NULL);
+    EXPECT(fc_stream_preview_timed(NULL, t[N / 2], x, &pv), FC_ERR_NULL);
     EXPECT(fc_stream_push_timed(s, t + N / 2, x + N / 2, N - N / 2, yb + N / 2), FC_OK);
+    TRUE_(yb[N / 2] == pv);                                            /* the push's bits */
     int timed = 0;
     EXPECT(fc_stream_is_timed(s, &timed), FC_OK);
     TRUE_(timed == 1);
@@ -456,10 +465,15 @@ static void test_solver(void)
             fc_solver_free(l);
             blob_faults("solver", buf, wr, ld_solver, fr_solver);
             free(buf);
-            if (mem || meth == FC_METHOD_IMPLICIT_RECTANGLE) {
+            if (mem) {
                 /* horizon 1000 steps: refused before any work */
                 EXPECT(fc_solver_advance(s, 2000, NULL, NULL, &done), FC_ERR_HORIZON);
                 TRUE_(done == 0);
+            }
+            else {
+                /* exact memory has no horizon (the 1000 given is not used) */
+                EXPECT(fc_solver_advance(s, 2000, NULL, NULL, &done), FC_OK);
+                TRUE_(done == 2000);
             }
             EXPECT(fc_solver_set_rhs(s, rhs_fail, NULL), FC_OK);
             EXPECT(fc_solver_advance(s, 20, NULL, NULL, &done), FC_ERR_CALLBACK);
@@ -480,7 +494,9 @@ static void test_solver(void)
         EXPECT(fc_solver_create(2, o, 0.01, 0, bi, 0, 0, 0, 0, &s), FC_ERR_NONFINITE);
     }
     EXPECT(fc_solver_create(2, o, 0.01, 0, init, 17, 0, 0, 0, &s), FC_ERR_RULE);
-    EXPECT(fc_solver_create(2, o, 0.01, 0, init, FC_METHOD_IMPLICIT_RECTANGLE, 0, 0, 0, &s), FC_ERR_TOL);
+    /* the implicit rectangle rule with exact memory needs no horizon */
+    EXPECT(fc_solver_create(2, o, 0.01, 0, init, FC_METHOD_IMPLICIT_RECTANGLE, 0, 0, 0, &s), FC_OK);
+    fc_solver_free(s);
     {
         /* implicit rectangle, compressed: 1 - a rounds to 1 (no L1 stream
            of order 1), and order 2 */

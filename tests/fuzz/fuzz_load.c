@@ -180,18 +180,6 @@ static void use(const unsigned char *b, size_t n)
 }
 static void fix(unsigned char *b, size_t n) { fix_solver(b, n); }
 
-/* An implicit-rectangle solver allocates and computes its kernel of
-   floor(horizon) + 1 weights at load (fracconv.h: horizon <= 2^28, so up
-   to 2 GiB and seconds of work from a blob of 200 bytes). That is the
-   documented cost, not a fault, but beyond the fuzzer's memory and time
-   limits: such blobs are skipped above 2^20 weights (8 MiB). */
-static int skip(const unsigned char *b, size_t n)
-{
-    return n >= 64 && fc__get32(b + 12) == FC_METHOD_IMPLICIT_RECTANGLE &&
-           fc__getd(b + 56) > 1048576.0;
-}
-#define HAVE_SKIP 1
-
 #elif FUZZ_LOADER == LOAD_CONTROLLER
 static int c_size(const void *o, size_t *n) { return fc_controller_save_size(o, n); }
 static int c_save(const void *o, unsigned char *b, size_t n, size_t *w) { return fc_controller_save(o, b, n, w); }
@@ -230,9 +218,6 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     if (!b) return 0;
     if (size) memcpy(b, data, size);
     if (FUZZ_FIX) fix(b, size);
-#ifdef HAVE_SKIP
-    if (skip(b, size)) { free(b); return 0; }
-#endif
     use(b, size);
     free(b);
     return 0;

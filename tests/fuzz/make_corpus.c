@@ -133,12 +133,11 @@ static void solvers(void)
         for (int mem = 0; mem < 2; mem++)
             for (size_t m = 1; m <= 2; m++) {
                 double o[2] = {0.6, m == 2 ? 1.4 : 0.6}, init[4] = {1, -0.5, 0, 0.2};
-                double hz = method == FC_METHOD_IMPLICIT_RECTANGLE ? 200 : 500;
                 fc_solver *s;
                 size_t done, n, w;
                 unsigned char *b;
                 int st = fc_solver_create(m, o, 0.05, 0.0, init, method, mem,
-                                          mem ? 1e-8 : 0.0, mem || method == 3 ? hz : 0.0, &s);
+                                          mem ? 1e-8 : 0.0, mem ? 500.0 : 0.0, &s);
                 if (st) { fprintf(stderr, "solver %d %d %zu: %d\n", method, mem, m, st); failures++; continue; }
                 for (int steps = 0; steps <= 12; steps += 12) {
                     if (steps) {
