@@ -305,6 +305,9 @@ int fc_grid_apply(int rule, double order, const double *t, const double *x,
     if (!(tol >= FC__CS_TOL_MIN && tol <= FC__CS_TOL_MAX)) return FC_ERR_TOL;
     size_t total;
     if (fc__mul_size(nsig, n, &total) != FC_OK) return FC_ERR_SIZE;
+    /* byte sizes of t and x must be representable (refused before any
+       buffer is read, nsig = 0 included) */
+    if (n > SIZE_MAX / sizeof(double) || total > SIZE_MAX / sizeof(double)) return FC_ERR_SIZE;
     if (n > 0 && !t) return FC_ERR_NULL;
     if (total > 0 && (!x || !y)) return FC_ERR_NULL;
     if (total > 0 && (gs_overlaps(x, total, y, total) || gs_overlaps(t, n, y, total)))

@@ -409,6 +409,13 @@ def test_c_statuses_and_nothing_written():
     )
     assert np.all(y == 1.0)
     assert lib.fc_grid_apply(R, 0.5, ffi.NULL, buf, 1, 4, 1e-10, buf, ffi.NULL) == lib.FC_ERR_NULL
+    # a length whose byte size overflows is refused before t is read, also
+    # with no signals (nsig = 0: it read n times past the buffer before)
+    tb = ffi.from_buffer("double[]", t)
+    yb = np.full(4, -7.0)
+    for nsig, n in ((0, 2**63), (0, 2**64 - 1), (1, 2**61), (2**62, 4)):
+        st = lib.fc_grid_apply(R, 0.5, tb, tb, nsig, n, 1e-10, ffi.from_buffer("double[]", yb), ffi.NULL)
+        assert st == lib.FC_ERR_SIZE and np.all(yb == -7.0), (nsig, n, st)
 
 
 def test_python_messages():
