@@ -193,6 +193,13 @@ class TimedStream:
             raise ArgumentError(
                 f"horizon={show(horizon)}: more than about 2**98 times min_step={show(min_step)}"
             )
+        if st == lib.FC_ERR_RANGE:
+            raise RangeError(
+                f"min_step={show(min_step)}, horizon={show(horizon)}: with order={show(order)} "
+                "the outputs of a unit sample would be beyond the double range "
+                "(the range bound on samples is below 1; csrc/stream_timed.c, RANGE); "
+                "measure time in larger units"
+            )
         raise_for_status(st, f"TimedStream(order={show(order)}, rule={show(rule)})")
         self._setup(pp[0], channels is None)
         raise_for_status(lib.fc_stream_set_horizon_policy(self._s, pol), "horizon_policy")

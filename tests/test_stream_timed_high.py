@@ -307,6 +307,10 @@ def test_python_checks_at_the_new_orders():
         pf.TimedStream(2.0, 0.1, 1.0)
     with pytest.raises(ArgumentError, match=r"order=1\.5"):
         pf.TimedStream(1.5, 0.1, 1.0, rule="l1")
+    # a time scale whose d2^a is beyond the double range: refused at
+    # creation naming min_step and horizon
+    with pytest.raises(RangeError, match=r"min_step=1e\+300, horizon=1e\+301: with order=1\.5"):
+        pf.TimedStream(1.5, 1e300, 1e301)
     # exact on linear f at 1.5 (the trapezoid rule interpolates it exactly):
     # I^1.5 t = t^2.5 / Gamma(3.5) (Podlubny 1999)
     s = pf.TimedStream(1.5, 0.01, 10.0, rule="trapezoid", tol=1e-13)
