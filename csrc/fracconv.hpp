@@ -443,6 +443,27 @@ public:
         detail::need(y.size, C, "fc_stream_push_timed");
         detail::check(fc_stream_push_timed(s, &t, x.data, 1, y.data), "fc_stream_push_timed");
     }
+    /* What push(t, x) would return, bit for bit; nothing changes (with
+       x = 0: the part of the output the samples pushed already make). */
+    double preview(double t, double x)
+    {
+        fc_stream *s = live();
+        std::size_t C = channels();
+        if (C != 1)
+            throw error(FC_ERR_ARG, "fc_stream_preview_timed (channels = " + std::to_string(C) +
+                                        ": the scalar preview needs 1; give views)");
+        double y = 0.0;
+        detail::check(fc_stream_preview_timed(s, t, &x, &y), "fc_stream_preview_timed");
+        return y;
+    }
+    void preview(double t, cview x, view y)
+    {
+        fc_stream *s = live();
+        std::size_t C = channels();
+        detail::need(x.size, C, "fc_stream_preview_timed");
+        detail::need(y.size, C, "fc_stream_preview_timed");
+        detail::check(fc_stream_preview_timed(s, t, x.data, y.data), "fc_stream_preview_timed");
+    }
     /* t.size times, x channel-fastest (x.size == t.size * channels()). */
     void push_block(cview t, cview x, view y)
     {

@@ -57,6 +57,7 @@ module fracconv
   public :: fc_stream_history, fc_stream_count, fc_stream_save, fc_stream_load
   public :: fc_stream_save_file, fc_stream_load_file
   public :: fc_grid_apply, fc_stream_create_timed, fc_stream_push_timed, fc_stream_is_timed
+  public :: fc_stream_preview_timed
   public :: fc_solver_save_file, fc_solver_load_file
   public :: fc_controller_save_file, fc_controller_load_file
 
@@ -119,6 +120,10 @@ module fracconv
   interface fc_stream_push_timed
     module procedure fc_stream_push_timed_0, fc_stream_push_timed_1, fc_stream_push_timed_2
   end interface fc_stream_push_timed
+  ! What fc_stream_push_timed of one time would return; nothing changes.
+  interface fc_stream_preview_timed
+    module procedure fc_stream_preview_timed_0, fc_stream_preview_timed_1
+  end interface fc_stream_preview_timed
 
   interface
     integer(c_int) function c_version() bind(C, name="fc_version")
@@ -437,6 +442,14 @@ module fracconv
       type(c_ptr), value :: s
       real(c_double), intent(in) :: t(*), x(*)
       integer(c_size_t), value :: count
+      real(c_double), intent(inout) :: y(*)
+    end function
+    integer(c_int) function c_stream_preview_timed(s, t, x, y) &
+         bind(C, name="fc_stream_preview_timed")
+      import :: c_int, c_double, c_ptr
+      type(c_ptr), value :: s
+      real(c_double), value :: t
+      real(c_double), intent(in) :: x(*)
       real(c_double), intent(inout) :: y(*)
     end function
     integer(c_int) function c_stream_is_timed(s, timed) bind(C, name="fc_stream_is_timed")
@@ -771,6 +784,39 @@ contains
     status = int(c_stream_push_timed(s%p, tt, xx, 1_c_size_t, yy))
     if (status == FC_OK) y = yy(1)
   end subroutine fc_stream_push_timed_0
+
+  ! One channel: what fc_stream_push_timed_0 would give; nothing changes.
+  subroutine fc_stream_preview_timed_0(s, t, x, y, status)
+    type(fc_stream), intent(in) :: s
+    real(c_double), intent(in) :: t, x
+    real(c_double), intent(inout) :: y
+    integer, intent(out) :: status
+    real(c_double) :: xx(1), yy(1)
+    if (channels_of(s, status) /= 1) then
+      if (status == FC_OK) status = FC_ERR_ARG
+      return
+    end if
+    xx(1) = x; yy(1) = 0
+    status = int(c_stream_preview_timed(s%p, t, xx, yy))
+    if (status == FC_OK) y = yy(1)
+  end subroutine fc_stream_preview_timed_0
+
+  ! One time t: what fc_stream_push_timed_1 would give; nothing changes.
+  subroutine fc_stream_preview_timed_1(s, t, x, y, status)
+    type(fc_stream), intent(in) :: s
+    real(c_double), intent(in) :: t
+    real(c_double), intent(in), contiguous :: x(:)
+    real(c_double), intent(inout), contiguous :: y(:)
+    integer, intent(out) :: status
+    integer :: c
+    c = channels_of(s, status)
+    if (status /= FC_OK) return
+    if (size(x) /= c .or. size(y) /= c) then
+      status = FC_ERR_ARG
+      return
+    end if
+    status = int(c_stream_preview_timed(s%p, t, x, y))
+  end subroutine fc_stream_preview_timed_1
 
   ! One time t: x(channels) in, y(channels) out.
   subroutine fc_stream_push_timed_1(s, t, x, y, status)

@@ -455,8 +455,13 @@ int main(int argc, char **argv)
             std::printf("refused push nan status %d\n", status_of([&] { s.push(std::nan(""), 1.0); }));
             expect(s.count() == 250, "refused pushes leave the count");
             expect(s.save() == blob, "refused pushes leave the state bit for bit");
+            std::printf("refused preview back status %d\n", status_of([&] { s.preview(t[k - 1], 1.0); }));
         }
+        double pv = s.preview(t[k], x1[k]);
+        double v2[1], x2v[1] = {x1[k]};
+        s.preview(t[k], fc::cview(x2v, 1), fc::view(v2, 1));
         ys[k] = s.push(t[k], x1[k]);
+        if (pv != ys[k] || v2[0] != ys[k]) expect(false, "preview is the push bit for bit");
     }
     for (std::size_t k = 0; k < n; k++) std::printf("timed %zu %a\n", k, ys[k]);
     /* resumed from the bytes saved at 250 (and from a file): the same bits */
@@ -648,6 +653,7 @@ def test_cpp_grid_timed_refusals_carry_the_c_statuses(grid_timed):
         "push back": lib.FC_ERR_ARG,
         "push small": lib.FC_ERR_ARG,
         "push nan": lib.FC_ERR_NONFINITE,
+        "preview back": lib.FC_ERR_ARG,
         "block size": lib.FC_ERR_ARG,
         "scalar push": lib.FC_ERR_ARG,
         "create step": lib.FC_ERR_STEP,

@@ -505,13 +505,17 @@ program grid_timed
       print "(a, i0)", "refused push small status ", st
       call fc_stream_push_timed(s, nan, 1.0_c_double, y, st)
       print "(a, i0)", "refused push nan status ", st
+      call fc_stream_preview_timed(s, t(250), 1.0_c_double, y, st)
+      print "(a, i0)", "refused preview back status ", st
       call fc_stream_count(s, cnt, st)
       call fc_stream_save(s, blob2, st)
       call check(cnt == 250 .and. size(blob2) == size(blob), "refused pushes leave the count")
       call check(all(blob2 == blob), "refused pushes leave the state bit for bit")
     end if
+    call fc_stream_preview_timed(s, t(k), x1(k), z, st)
+    call check(st == FC_OK, "timed preview")
     call fc_stream_push_timed(s, t(k), x1(k), ys(k), st)
-    call check(st == FC_OK, "timed push")
+    call check(st == FC_OK .and. same1(z, ys(k)), "timed preview is the push bit for bit")
   end do
   do k = 1, n
     print "(a, 1x, i0, 1x, es25.17e3)", "timed", k - 1, ys(k)
@@ -701,6 +705,7 @@ def test_f90_grid_timed_refusals_carry_the_c_statuses(grid_timed):
         "push back": lib.FC_ERR_ARG,
         "push small": lib.FC_ERR_ARG,
         "push nan": lib.FC_ERR_NONFINITE,
+        "preview back": lib.FC_ERR_ARG,
         "block size": lib.FC_ERR_ARG,
         "scalar push": lib.FC_ERR_ARG,
         "create step": lib.FC_ERR_STEP,
