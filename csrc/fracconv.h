@@ -298,7 +298,9 @@ FC_API int fc_apply(fc_context *ctx, int rule, double order, double step,
  * (the fast engine of integral/derivative(..., t=) in Python; the direct
  * O(n^2) engine is pyfracconv.grid): y[s*n + i] approximates the operator
  * at t[i], from t[0], for nsig signals of n samples (x, y as for fc_apply).
- * Rules and orders: RECTANGLE and TRAPEZOID (I^a, 0 < order <= 1), L1
+ * Rules and orders: RECTANGLE and TRAPEZOID (I^a, 0 < order < 2; at
+ * 1 < order < 2 through the running integral X = I^1 x~ carried in
+ * double-double and the kernel of order a - 1, same promise), L1
  * (Caputo, 0 < order < 1); the weights on the grid are those of
  * pyfracconv.grid.grid_weights (product rules of Diethelm, Ford and Freed
  * 2002; L1 of Stynes, O'Riordan and Gracia 2017). t: n finite times,
@@ -517,7 +519,10 @@ FC_API int fc_stream_horizon(const fc_stream *s, double *horizon);
 /*
  * A compressed stream with a time per sample: created without a fixed
  * step, it takes (time, sample) pairs (fc_stream_push_timed). Rules:
- * RECTANGLE, TRAPEZOID (I^a, 0 < order <= 1), L1 (Caputo, 0 < order < 1),
+ * RECTANGLE, TRAPEZOID (I^a, 0 < order < 2; at 1 < order < 2 the
+ * recursion of fc_grid_apply on the running integral, whose outputs it
+ * gives bit for bit on the same times with min_step in the binade of the
+ * smallest step and horizon = t[n-1] - t[0]), L1 (Caputo, 0 < order < 1),
  * from the first time pushed, with the weights of fc_grid_apply on the
  * times pushed. min_step: finite, > 0, the smallest step any push may make
  * (FC_ERR_STEP); horizon: a time span, finite, min_step <= horizon and

@@ -2,7 +2,7 @@
  * stream_timed.c -- the compressed stream with a time per sample
  * (fc_stream_create_timed, fc_stream_push_timed): the rules of the grid
  * engine (grid_soe.c) one sample at a time, on times that arrive with the
- * samples. Rules: RECTANGLE and TRAPEZOID (I^a, 0 < a <= 1), L1 (Caputo,
+ * samples. Rules: RECTANGLE and TRAPEZOID (I^a, 0 < a < 2), L1 (Caputo,
  * 0 < a < 1). The stream is defined by a smallest step h_min and a horizon
  * stated in time: it promises, for every output whose time t_n satisfies
  * t_n - t_0 <= horizon,
@@ -33,6 +33,21 @@
  * FC_ERR_RANGE. Past the horizon a block is first run on a copy of the
  * state and refused with FC_ERR_RANGE if an output or a state would not be
  * finite.
+ *
+ * ORDERS 1 < a < 2 (RECTANGLE, TRAPEZOID; ts_run_cum): the recursion of
+ * grid_soe.c's gs_cum (the rule of order a - 1 on the running integral
+ * X = I^1 x~, kept per channel as a double-double, the kernel of order
+ * a - 1, phi3 for the trapezoid), step by step in the same order of
+ * operations, so that the pushes give the bits of fc_grid_apply on the
+ * same times when both use the same d2 and R (smallest step in the same
+ * binade as min_step, horizon = t_{n-1} - t_0) and no sample is scaled
+ * into or out of the subnormal range there. Same promise (S'_n <= S_n,
+ * grid_soe.c). RANGE: |X| <= R U, a state <= m_l R U and an injection
+ * <= R^2 U, so G = (R sum_l w_l m_l + R^2 + 2 (c0 + c) R^a) max(1, d2^a)
+ * + 1, c0 = 1/Gamma(a). A save carries X (format version 2; version 1
+ * blobs, every order up to 1 and L1, are unchanged); the loader checks X
+ * as a double-double, 0 before the first interval and within the horizon
+ * |X| <= U (t_prev - t_0)/d2 and |S_l| <= 2 U m_l R.
  */
 #include <stdlib.h>
 #include <string.h>
@@ -45,6 +60,7 @@ enum { TS_RECT = 0, TS_TRAP = 1, TS_L1 = 2 };
 
 typedef struct {
     int rule, kind;
+    int cum;                /* integral rule at 1 < a < 2: on X = I^1 x~ */
     double a, minstep, tol, horizon;
     size_t C, L;
     int k2;                 /* d2 = 2^k2 <= minstep */
@@ -52,12 +68,14 @@ typedef struct {
     double Fm;              /* output factor d2^(+-a) = Fm 2^Fe */
     int Fe;
     double cloc, pexp;      /* local weight cloc h'^pexp */
+    double c0, b;           /* cum: 1/Gamma(a), b = a - 1 */
     double U;               /* largest accepted |u| (RANGE) */
     double *s, *w;          /* L terms */
-    double *E, *P, *Q;      /* L: coefficients of the current step */
+    double *E, *P, *Q, *W;  /* L: coefficients of the current step */
     double *S, *Sc;         /* C*L: the states */
     double *xprev;          /* C */
-    double *bS, *bSc, *bx;  /* a copy for the dry run past the horizon */
+    double *X;              /* cum: 2C, X_n as a double-double (hi, lo) */
+    double *bS, *bSc, *bx, *bX;  /* a copy for the dry run past the horizon */
     uint64_t n;
     double t0, tprev;
     int past;
@@ -78,7 +96,7 @@ int fc__timed_params_check(int rule, double order, double minstep,
 {
     if (rule != FC_RULE_RECTANGLE && rule != FC_RULE_TRAPEZOID && rule != FC_RULE_L1)
         return FC_ERR_RULE;
-    if (!(order > 0.0) || !(rule == FC_RULE_L1 ? order < 1.0 : order <= 1.0))
+    if (!(order > 0.0) || !(rule == FC_RULE_L1 ? order < 1.0 : order < 2.0))
         return FC_ERR_ORDER;
     if (!(minstep > 0.0) || !isfinite(minstep)) return FC_ERR_STEP;
     if (channels == 0) return FC_ERR_ARG;
@@ -104,11 +122,12 @@ static int ts_build(const fc__stream_def *d, ts_engine **out)
     ts->tol = d->tol;
     ts->horizon = d->horizon;
     ts->C = d->channels;
+    ts->cum = ts->kind != TS_L1 && ts->a > 1.0;
     (void)frexp(ts->minstep, &ts->k2);
     ts->k2 -= 1;
     ts->R = ldexp(ts->horizon, -ts->k2) * (1.0 + 1e-12);
     const long double al = ts->a;
-    const long double gm1 = ts->kind == TS_L1 ? -al : al - 1.0L;
+    const long double gm1 = ts->kind == TS_L1 ? -al : ts->cum ? al - 2.0L : al - 1.0L;
     fc__soe_pow soe;
     int st = fc__soe_power(gm1, ts->tol, ts->R, &soe);
     if (st != FC_OK) { free(ts); return st; }
@@ -123,16 +142,19 @@ static int ts_build(const fc__stream_def *d, ts_engine **out)
         ts_free(ts);
         return FC_ERR_SIZE;
     }
-    ts->E = malloc(3 * L * sizeof(double));
+    ts->E = malloc(4 * L * sizeof(double));
     ts->S = calloc(1, n1);          /* S, Sc, bS, bSc */
-    ts->xprev = calloc(2 * C, sizeof(double));
+    ts->xprev = calloc(6 * C, sizeof(double));   /* xprev, bx, X, bX */
     if (!ts->E || !ts->S || !ts->xprev) { ts_free(ts); return FC_ERR_NOMEM; }
     ts->P = ts->E + L;
     ts->Q = ts->P + L;
+    ts->W = ts->Q + L;
     ts->Sc = ts->S + CL;
     ts->bS = ts->Sc + CL;
     ts->bSc = ts->bS + CL;
     ts->bx = ts->xprev + C;
+    ts->X = ts->bx + C;
+    ts->bX = ts->X + 2 * C;
     int Fe;
     const long double Fl = exp2l((long double)ts->k2 * (ts->kind == TS_L1 ? -al : al));
     ts->Fm = (double)frexpl(Fl, &Fe);
@@ -141,6 +163,8 @@ static int ts_build(const fc__stream_def *d, ts_engine **out)
              : ts->kind == TS_TRAP ? (double)(1.0L / tgammal(al + 2.0L))
              : (double)(1.0L / tgammal(2.0L - al));
     ts->pexp = ts->kind == TS_L1 ? -ts->a : ts->a;
+    ts->c0 = (double)(1.0L / tgammal(al));
+    ts->b = ts->a - 1.0;
     /* RANGE */
     double G = 0.0;
     for (size_t l = 0; l < L; l++) {
@@ -149,6 +173,11 @@ static int ts_build(const fc__stream_def *d, ts_engine **out)
         else m = ts->s[l] > 0 ? 1.0 / ts->s[l] : ts->R;
         if (ts->kind == TS_L1 ? m > ts->R + 1.0 : m > ts->R) m = ts->kind == TS_L1 ? ts->R + 1.0 : ts->R;
         G += ts->w[l] * m;
+    }
+    if (ts->cum) {
+        /* |X| <= R U, a state <= m_l R U, an injection <= R^2 U, the last
+           interval <= (c0 + 2 cloc) R^a U */
+        G = G * ts->R + ts->R * ts->R + 2.0 * ts->c0 * pow(ts->R, ts->a);
     }
     G += 2.0 * ts->cloc * (ts->kind == TS_L1 ? 1.0 : pow(ts->R, ts->a));
     G = G * fmax(1.0, ldexp(ts->Fm, ts->Fe)) + 1.0;
@@ -169,7 +198,11 @@ static int ts_create(const fc__stream_def *d, void **eng)
 /* Run count steps (t, x) on the states S, Sc, xp (a copy or the stream's
    own); y may be NULL (dry run). Returns 1 if an output or a state is not
    finite. n, t0 and tprev are the stream's before the block. */
-static int ts_run(ts_engine *ts, double *S, double *Sc, double *xp,
+static int ts_run_cum(ts_engine *ts, double *S, double *Sc, double *xp, double *X,
+                      uint64_t n, double tprev, const double *t, const double *x,
+                      size_t count, double *y);
+
+static int ts_run(ts_engine *ts, double *S, double *Sc, double *xp, double *X,
                   uint64_t n, double t0, double tprev,
                   const double *t, const double *x, size_t count, double *y)
 {
@@ -180,6 +213,7 @@ static int ts_run(ts_engine *ts, double *S, double *Sc, double *xp,
     const double a = ts->a;
     int bad = 0;
     (void)t0;
+    if (ts->cum) return ts_run_cum(ts, S, Sc, xp, X, n, tprev, t, x, count, y);
     for (size_t j = 0; j < count; j++) {
         const double *xj = x + j * C;
         double *yj = y ? y + j * C : NULL;
@@ -250,6 +284,114 @@ static int ts_run(ts_engine *ts, double *S, double *Sc, double *xp,
     return bad;
 }
 
+/* Double-double X += p + pe (as grid_soe.c). */
+static inline void ts_dd_add(double *Xh, double *Xl, double p, double pe)
+{
+    double s = *Xh + p, bb = s - *Xh;
+    double err = ((*Xh - (s - bb)) + (p - bb)) + (*Xl + pe);
+    double hi = s + err;
+    *Xl = err - (hi - s);
+    *Xh = hi;
+}
+
+/* ts_run for the integral rules at 1 < a < 2: the recursion of gs_cum
+   (grid_soe.c) one step at a time, in the same order of operations. */
+static int ts_run_cum(ts_engine *ts, double *S, double *Sc, double *xp, double *X,
+                      uint64_t n, double tprev, const double *t, const double *x,
+                      size_t count, double *y)
+{
+    const size_t C = ts->C, L = ts->L;
+    const double *sv = ts->s, *wv = ts->w;
+    double *E = ts->E, *P = ts->P, *Q = ts->Q, *W = ts->W;
+    const int trap = ts->kind == TS_TRAP;
+    const double a = ts->a, c0 = ts->c0, c1 = ts->cloc;
+    int bad = 0;
+    for (size_t j = 0; j < count; j++) {
+        const double *xj = x + j * C;
+        double *yj = y ? y + j * C : NULL;
+        if (n == 0) {
+            for (size_t c = 0; c < C; c++) {
+                xp[c] = xj[c];
+                X[2 * c] = X[2 * c + 1] = 0.0;
+                if (yj) yj[c] = 0.0;
+            }
+            tprev = t[j];
+            n = 1;
+            continue;
+        }
+        const double h = ldexp(t[j] - tprev, -ts->k2);
+        const double hb = pow(h, ts->b), ha = hb * h, h2 = h * h;
+        if (!trap) {
+            for (size_t l = 0; l < L; l++) {
+                double em1, p1, f2;
+                fc__gs_phi(sv[l] * h, &em1, &p1, &f2);
+                E[l] = em1;
+                P[l] = h * p1;
+                Q[l] = h2 * f2;
+            }
+        } else {
+            for (size_t l = 0; l < L; l++) {
+                double em1, p1, f2, f3;
+                fc__gs_phi4(sv[l] * h, &em1, &p1, &f2, &f3);
+                E[l] = em1;
+                P[l] = h * p1;
+                Q[l] = h2 * (f2 - f3);
+                W[l] = h2 * f3;
+            }
+        }
+        for (size_t c = 0; c < C; c++) {
+            double *Ss = S + c * L, *Scs = Sc + c * L;
+            const double x0 = xp[c], x1 = xj[c];
+            double Xh = X[2 * c], Xl = X[2 * c + 1];
+            double d0 = 0.0, d1 = 0.0, lv, p, pe;
+            if (!trap) {
+                lv = c0 * hb * Xh + c1 * ha * x0;
+                for (size_t l = 0; l < L; l++) {
+                    double s0 = Ss[l], tt = Scs[l] + s0 * E[l];
+                    if (l & 1) d1 += wv[l] * (s0 + tt); else d0 += wv[l] * (s0 + tt);
+                    double uu = tt + (P[l] * Xh + Q[l] * x0);
+                    double s1 = s0 + uu, bb = s1 - s0;
+                    Scs[l] = fc__ftz((s0 - (s1 - bb)) + (uu - bb));
+                    Ss[l] = fc__ftz(s1);
+                }
+                p = h * x0;
+                pe = fma(h, x0, -p);
+            } else {
+                lv = c0 * hb * Xh + c1 * ha * (a * x0 + x1);
+                for (size_t l = 0; l < L; l++) {
+                    double s0 = Ss[l], tt = Scs[l] + s0 * E[l];
+                    if (l & 1) d1 += wv[l] * (s0 + tt); else d0 += wv[l] * (s0 + tt);
+                    double uu = tt + ((P[l] * Xh + Q[l] * x0) + W[l] * x1);
+                    double s1 = s0 + uu, bb = s1 - s0;
+                    Scs[l] = fc__ftz((s0 - (s1 - bb)) + (uu - bb));
+                    Ss[l] = fc__ftz(s1);
+                }
+                double sm = x0 + x1, bv = sm - x0;
+                double se = (x0 - (sm - bv)) + (x1 - bv);
+                p = h * sm;
+                pe = fma(h, sm, -p) + h * se;
+                p *= 0.5;
+                pe *= 0.5;
+            }
+            double out = ldexp(((d0 + d1) + lv) * ts->Fm, ts->Fe);
+            if (!isfinite(out)) bad = 1;
+            if (yj) yj[c] = out;
+            ts_dd_add(&Xh, &Xl, p, pe);
+            if (!isfinite(Xh) || !isfinite(Xl)) bad = 1;
+            X[2 * c] = Xh;
+            X[2 * c + 1] = Xl;
+            xp[c] = x1;
+        }
+        if (!y) {
+            for (size_t i = 0; i < C * L; i++)
+                if (!isfinite(S[i]) || !isfinite(Sc[i])) bad = 1;
+        }
+        tprev = t[j];
+        n++;
+    }
+    return bad;
+}
+
 /* The checks of a block of pushes (every time and sample, before anything
    changes); *past = 1 if an output would be past the horizon (allowed). */
 static int ts_check(const ts_engine *ts, const double *t, const double *x,
@@ -294,10 +436,11 @@ static int ts_push_timed(void *eng, const double *t, const double *x,
         memcpy(ts->bS, ts->S, CL * sizeof(double));
         memcpy(ts->bSc, ts->Sc, CL * sizeof(double));
         memcpy(ts->bx, ts->xprev, C * sizeof(double));
-        if (ts_run(ts, ts->bS, ts->bSc, ts->bx, ts->n, t0, ts->tprev, t, x, count, NULL))
+        memcpy(ts->bX, ts->X, 2 * C * sizeof(double));
+        if (ts_run(ts, ts->bS, ts->bSc, ts->bx, ts->bX, ts->n, t0, ts->tprev, t, x, count, NULL))
             return FC_ERR_RANGE;
     }
-    (void)ts_run(ts, ts->S, ts->Sc, ts->xprev, ts->n, t0, ts->tprev, t, x, count, y);
+    (void)ts_run(ts, ts->S, ts->Sc, ts->xprev, ts->X, ts->n, t0, ts->tprev, t, x, count, y);
     if (ts->n == 0) ts->t0 = t[0];
     ts->tprev = t[count - 1];
     ts->n += count;
@@ -318,8 +461,9 @@ static int ts_preview_timed(void *eng, double t, const double *x, double *y,
     memcpy(ts->bS, ts->S, CL * sizeof(double));
     memcpy(ts->bSc, ts->Sc, CL * sizeof(double));
     memcpy(ts->bx, ts->xprev, C * sizeof(double));
+    memcpy(ts->bX, ts->X, 2 * C * sizeof(double));
     double t0 = ts->n ? ts->t0 : t;
-    if (ts_run(ts, ts->bS, ts->bSc, ts->bx, ts->n, t0, ts->tprev, &t, x, 1, y))
+    if (ts_run(ts, ts->bS, ts->bSc, ts->bx, ts->bX, ts->n, t0, ts->tprev, &t, x, 1, y))
         return FC_ERR_RANGE; /* past the horizon only (RANGE) */
     return FC_OK;
 }
@@ -352,6 +496,7 @@ static void ts_reset(void *eng)
     ts_engine *ts = eng;
     memset(ts->S, 0, 2 * ts->C * ts->L * sizeof(double));
     memset(ts->xprev, 0, ts->C * sizeof(double));
+    memset(ts->X, 0, 2 * ts->C * sizeof(double));
     ts->n = 0;
     ts->t0 = ts->tprev = 0.0;
     ts->past = 0;
@@ -365,7 +510,7 @@ static uint64_t ts_remaining(const void *eng)
 static size_t ts_nbytes(const void *eng)
 {
     const ts_engine *ts = eng;
-    return sizeof *ts + (5 * ts->L + 4 * ts->C * ts->L + 2 * ts->C) * sizeof(double);
+    return sizeof *ts + (6 * ts->L + 4 * ts->C * ts->L + 6 * ts->C) * sizeof(double);
 }
 static size_t ts_terms(const void *eng) { return ((const ts_engine *)eng)->L; }
 static int ts_past(const void *eng) { return ((const ts_engine *)eng)->past; }
@@ -375,23 +520,27 @@ static int ts_past(const void *eng) { return ((const ts_engine *)eng)->past; }
 /*
  * Payload (after the common header of stream.c, whose kind is
  * FC__KIND_TIMED and whose step is the smallest step):
- *   0  magic "FCTS", u32 version (1), u32 rule, u32 0
+ *   0  magic "FCTS", u32 version (1; 2 for the integral rules at
+ *      1 < a < 2), u32 rule, u32 0
  *  16  u64 channels C, u64 terms L, u64 count n
  *  40  f64 order, minstep, tol, horizon, t0, tprev
  *  88  u32 past, u32 0
  *  96  L f64 s, L f64 w
  *      per channel: f64 xprev, L f64 S, L f64 Sc
+ *                   (version 2 only: f64 X hi, X lo, the running integral)
  *      u64 FNV-1a 64 of everything before it
+ * Version 1 blobs (0 < a <= 1, L1) are unchanged.
  */
 #define TS_HDR 96
 #define TS_FMT_VERSION 1u
+#define TS_FMT_VERSION_CUM 2u
 static const unsigned char ts_magic[4] = {'F', 'C', 'T', 'S'};
 
-static size_t ts_size_for(uint64_t C, uint64_t L)
+static size_t ts_size_for(uint64_t C, uint64_t L, int cum)
 {
     size_t per, tot, v;
     if (C > SIZE_MAX || L > SIZE_MAX) return 0;
-    if (fc__mul_size((size_t)L, 2, &per) || fc__add_size(per, 1, &per) ||
+    if (fc__mul_size((size_t)L, 2, &per) || fc__add_size(per, cum ? 3 : 1, &per) ||
         fc__mul_size(per, (size_t)C, &tot) || fc__mul_size((size_t)L, 2, &v) ||
         fc__add_size(tot, v, &tot) || fc__mul_size(tot, 8, &tot) ||
         fc__add_size(tot, TS_HDR + 8, &tot))
@@ -402,7 +551,7 @@ static size_t ts_size_for(uint64_t C, uint64_t L)
 static int ts_save_size(const void *eng, size_t *size)
 {
     const ts_engine *ts = eng;
-    size_t s = ts_size_for(ts->C, ts->L);
+    size_t s = ts_size_for(ts->C, ts->L, ts->cum);
     if (!s) return FC_ERR_SIZE;
     *size = s;
     return FC_OK;
@@ -414,7 +563,7 @@ static int ts_save(const void *eng, unsigned char *buf, size_t size)
     const size_t L = ts->L;
     unsigned char *p = buf;
     memcpy(p, ts_magic, 4);
-    fc__put32(p + 4, TS_FMT_VERSION);
+    fc__put32(p + 4, ts->cum ? TS_FMT_VERSION_CUM : TS_FMT_VERSION);
     fc__put32(p + 8, (uint32_t)ts->rule);
     fc__put32(p + 12, 0);
     fc__put64(p + 16, ts->C);
@@ -436,6 +585,11 @@ static int ts_save(const void *eng, unsigned char *buf, size_t size)
         p += 8;
         for (size_t l = 0; l < L; l++, p += 8) fc__putd(p, ts->S[c * L + l]);
         for (size_t l = 0; l < L; l++, p += 8) fc__putd(p, ts->Sc[c * L + l]);
+        if (ts->cum) {
+            fc__putd(p, ts->X[2 * c]);
+            fc__putd(p + 8, ts->X[2 * c + 1]);
+            p += 16;
+        }
     }
     fc__put64(p, fc__fnv1a(FC__FNV_OFFSET, buf, size - 8));
     return FC_OK;
@@ -461,11 +615,15 @@ static int ts_load(const fc__stream_def *d, const unsigned char *buf,
     double order = fc__rd_d(&r), minstep = fc__rd_d(&r), tol = fc__rd_d(&r);
     double horizon = fc__rd_d(&r), t0 = fc__rd_d(&r), tprev = fc__rd_d(&r);
     uint32_t past = fc__rd_u32(&r), z1 = fc__rd_u32(&r);
-    if (r.bad || memcmp(magic, ts_magic, 4) != 0 || version != TS_FMT_VERSION ||
+    if (r.bad || memcmp(magic, ts_magic, 4) != 0 ||
+        (version != TS_FMT_VERSION && version != TS_FMT_VERSION_CUM) ||
         z0 != 0 || z1 != 0 || past > 1)
         return FC_ERR_FORMAT;
+    /* version 2 exactly for the integral rules at 1 < a < 2 */
+    const int cum = rule != (uint32_t)FC_RULE_L1 && order > 1.0;
+    if ((version == TS_FMT_VERSION_CUM) != cum) return FC_ERR_FORMAT;
     if (C == 0 || L == 0 || L > 4096) return FC_ERR_FORMAT;
-    size_t need = ts_size_for(C, L);
+    size_t need = ts_size_for(C, L, cum);
     if (need == 0 || need != size) return FC_ERR_FORMAT;
     if (fc__get64(buf + size - 8) != fc__fnv1a(FC__FNV_OFFSET, buf, size - 8))
         return FC_ERR_FORMAT;
@@ -486,6 +644,10 @@ static int ts_load(const fc__stream_def *d, const unsigned char *buf,
         ts->xprev[c] = fc__rd_d(&r);
         for (size_t l = 0; l < L; l++) ts->S[c * L + l] = fc__rd_d(&r);
         for (size_t l = 0; l < L; l++) ts->Sc[c * L + l] = fc__rd_d(&r);
+        if (cum) {
+            ts->X[2 * c] = fc__rd_d(&r);
+            ts->X[2 * c + 1] = fc__rd_d(&r);
+        }
     }
     /* a state that pushes could have produced */
     if (!bad && !r.bad) {
@@ -509,6 +671,20 @@ static int ts_load(const fc__stream_def *d, const unsigned char *buf,
             if (!isfinite(xv) || (n == 0 && !ts_same(xv, 0.0)) ||
                 (!past && ts->kind != TS_L1 && !(fabs(xv) <= ts->U)))
                 bad = 1;
+        }
+        /* the running integral: a double-double, 0 before the first
+           interval, within the horizon |X| <= U (tprev - t0) / d2 and
+           every state |S_l| <= U m_l R (the RANGE bounds of ts_build) */
+        for (size_t c = 0; !bad && cum && c < C; c++) {
+            double hi = ts->X[2 * c], lo = ts->X[2 * c + 1];
+            if (!isfinite(hi) || !isfinite(lo) || !ts_dd_ok(hi, lo)) bad = 1;
+            else if (n <= 1 && (!ts_same(hi, 0.0) || !ts_same(lo, 0.0))) bad = 1;
+            else if (!past && !(fabs(hi) <= ts->U * ldexp(span, -ts->k2) * (1.0 + 1e-9))) bad = 1;
+            for (size_t l = 0; !bad && !past && l < L; l++) {
+                double m = ts->s[l] > 0 ? 1.0 / ts->s[l] : ts->R;
+                if (m > ts->R) m = ts->R;
+                if (!(fabs(ts->S[c * L + l]) <= 2.0 * ts->U * m * ts->R)) bad = 1;
+            }
         }
     }
     if (bad || r.bad) {

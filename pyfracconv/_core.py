@@ -336,7 +336,9 @@ GRID_FAST_TOL = 1e-12
 
 
 def _fast_grid_ok(rule: str, a: float) -> bool:
-    return 0.0 < a < 1.0 if rule == "l1" else 0.0 < a <= 1.0
+    # integrals at 1 < a < 2: the engine runs on X = I^1 x~ with the
+    # completely monotone kernel of order a - 1 (csrc/grid_soe.c)
+    return 0.0 < a < 1.0 if rule == "l1" else 0.0 < a < 2.0
 
 
 def _apply_grid(
@@ -378,7 +380,7 @@ def _apply_grid(
                 "tolerance (it is accurate to rounding); give engine='fast' or 'auto'"
             )
     if engine == "fast" and not _fast_grid_ok(name, a):
-        span = "0 < order < 1" if name == "l1" else "0 < order <= 1"
+        span = "0 < order < 1" if name == "l1" else "0 < order < 2"
         raise ArgumentError(
             f"order={show(order)} with engine='fast': the fast engine on a grid "
             f"serves {span} (the kernel must be completely monotone); use "
@@ -533,9 +535,11 @@ def integral(
         those of :func:`pyfracconv.grid.grid_weights`. ``engine='direct'``
         applies them by an O(N^2) sum (blocks of rows, bounded memory; each
         value one pairwise sum, componentwise accurate to rounding).
-        ``engine='fast'`` (0 < order <= 1) replaces the kernel
+        ``engine='fast'`` (0 < order < 2) replaces the kernel
         t^(a-1)/Gamma(a) beyond the last interval by a sum of K
-        exponentials, O(N K) work (C, fc_grid_apply), with the
+        exponentials (at 1 < order < 2 the kernel t^(a-2)/Gamma(a-1)
+        applied to the running integral of the interpolated samples,
+        carried in double-double), O(N K) work (C, fc_grid_apply), with the
         componentwise promise |y_n - y_n(direct)| <= (tol + (K + 64) 2**-52)
         times the sum of the absolute values of the terms of y_n
         (sum_k |w_{n,k} x_k|); K is 28-64 (tol 1e-6 .. 1e-13, spans of 1e6

@@ -70,7 +70,7 @@ class TimedStream:
     """A compressed stream whose samples come with their times.
 
     ``TimedStream(order, min_step, horizon)`` integrates (rule
-    ``'rectangle'`` or ``'trapezoid'``, 0 < order <= 1) or differentiates
+    ``'rectangle'`` or ``'trapezoid'``, 0 < order < 2) or differentiates
     (``'l1'``, Caputo, 0 < order < 1) from the first time pushed. Each
     :meth:`push` takes a time and a sample; the output is the rule on the
     times pushed so far (the weights of
@@ -85,7 +85,10 @@ class TimedStream:
     Parameters
     ----------
     order : float
-        0 < order <= 1 (``'l1'``: 0 < order < 1).
+        0 < order < 2 (``'l1'``: 0 < order < 1). At 1 < order < 2 the
+        stream runs the rule of order ``order - 1`` on the running
+        integral of the interpolated samples, kept per channel in
+        double-double (csrc/stream_timed.c); same promise.
     min_step : float
         The smallest step t_n - t_{n-1} a push may make, finite, > 0.
     horizon : float
@@ -123,7 +126,8 @@ class TimedStream:
     A refused push (time not finite, a step below ``min_step``, a time not
     after the previous one, past the horizon under 'refuse', a sample
     beyond the range bound, of about 1e290 for a horizon of 1e6
-    smallest steps) changes nothing. Saved state (:meth:`save`) is checked
+    smallest steps; at 1 < order < 2 about 1e289 to 1e295) changes
+    nothing. Saved state (:meth:`save`) is checked
     on :meth:`load` as untrusted input.
 
     Examples
@@ -167,9 +171,9 @@ class TimedStream:
             )
         check_rule(rule, tuple(_RULES))
         a = check_order(order, rule)
-        if not (a < 1.0 if rule == "l1" else a <= 1.0):
+        if not (a < 1.0 if rule == "l1" else a < 2.0):
             raise ArgumentError(
-                f"order={show(order)}: a TimedStream serves 0 < order <= 1 (rule='l1': 0 < order < 1)"
+                f"order={show(order)}: a TimedStream serves 0 < order < 2 (rule='l1': 0 < order < 1)"
             )
         h = check_real("min_step", min_step)
         if not (math.isfinite(h) and h > 0.0):
@@ -188,6 +192,13 @@ class TimedStream:
         if st == lib.FC_ERR_TOL:
             raise ArgumentError(
                 f"horizon={show(horizon)}: more than about 2**98 times min_step={show(min_step)}"
+            )
+        if st == lib.FC_ERR_RANGE:
+            raise RangeError(
+                f"min_step={show(min_step)}, horizon={show(horizon)}: with order={show(order)} "
+                "the outputs of a unit sample would be beyond the double range "
+                "(the range bound on samples is below 1; csrc/stream_timed.c, RANGE); "
+                "measure time in larger units"
             )
         raise_for_status(st, f"TimedStream(order={show(order)}, rule={show(rule)})")
         self._setup(pp[0], channels is None)

@@ -325,10 +325,12 @@ def test_auto_takes_the_fast_engine_from_the_crossover():
         same = fast if n >= pf._core.GRID_FAST_FROM else direct
         np.testing.assert_array_equal(auto, same)
         assert not np.array_equal(fast, direct)  # the two engines do differ
-    # orders the fast engine does not serve: auto stays direct
+    # orders the fast engine does not serve: auto stays direct; at 1.5 it
+    # serves them (tests/test_grid_fast_high.py)
     t = jittered(rng, 300)
     x = rng.standard_normal(300)
-    np.testing.assert_array_equal(pf.integral(x, 1.5, t=t), pf.integral(x, 1.5, t=t, engine="direct"))
+    np.testing.assert_array_equal(pf.integral(x, 2.5, t=t), pf.integral(x, 2.5, t=t, engine="direct"))
+    np.testing.assert_array_equal(pf.integral(x, 1.5, t=t), pf.integral(x, 1.5, t=t, engine="fast"))
 
 
 def test_many_signals_and_axis():
@@ -380,7 +382,9 @@ def test_c_statuses_and_nothing_written():
 
     R, L1 = lib.FC_RULE_RECTANGLE, lib.FC_RULE_L1
     assert st_of(lib.FC_RULE_GRUNWALD, 0.5, t, x, 1e-10) == lib.FC_ERR_RULE
-    assert st_of(R, 1.5, t, x, 1e-10) == lib.FC_ERR_ORDER
+    assert st_of(R, 2.0, t, x, 1e-10) == lib.FC_ERR_ORDER
+    assert st_of(lib.FC_RULE_TRAPEZOID, 2.0, t, x, 1e-10) == lib.FC_ERR_ORDER
+    assert st_of(R, math.inf, t, x, 1e-10) == lib.FC_ERR_ORDER
     assert st_of(L1, 1.0, t, x, 1e-10) == lib.FC_ERR_ORDER
     assert st_of(R, 0.0, t, x, 1e-10) == lib.FC_ERR_ORDER
     assert st_of(R, math.nan, t, x, 1e-10) == lib.FC_ERR_ORDER
@@ -405,6 +409,13 @@ def test_c_statuses_and_nothing_written():
     )
     assert np.all(y == 1.0)
     assert lib.fc_grid_apply(R, 0.5, ffi.NULL, buf, 1, 4, 1e-10, buf, ffi.NULL) == lib.FC_ERR_NULL
+    # a length whose byte size overflows is refused before t is read, also
+    # with no signals (nsig = 0: it read n times past the buffer before)
+    tb = ffi.from_buffer("double[]", t)
+    yb = np.full(4, -7.0)
+    for nsig, n in ((0, 2**63), (0, 2**64 - 1), (1, 2**61), (2**62, 4)):
+        st = lib.fc_grid_apply(R, 0.5, tb, tb, nsig, n, 1e-10, ffi.from_buffer("double[]", yb), ffi.NULL)
+        assert st == lib.FC_ERR_SIZE and np.all(yb == -7.0), (nsig, n, st)
 
 
 def test_python_messages():
@@ -412,10 +423,10 @@ def test_python_messages():
     x = np.ones(4)
     _raises(
         ArgumentError,
-        r"order=1\.5 with engine='fast': .*0 < order <= 1",
+        r"order=2\.5 with engine='fast': .*0 < order < 2",
         pf.integral,
         x,
-        1.5,
+        2.5,
         t=t,
         engine="fast",
     )
@@ -459,3 +470,18 @@ def test_python_messages():
         t=t * 1e6,
         engine="fast",
     )
+
+
+@pytest.mark.parametrize("rule", ["rectangle", "trapezoid", "l1"])
+def test_subnormal_signals_give_finite_outputs(rule):
+    # a signal of subnormal samples was scaled by 2^-ex beyond the double
+    # range (inf, then NaN); the scale is now bounded by 2^1000. Reference:
+    # the direct engine, to an absolute 1e-300 (outputs in or near the
+    # subnormal range get an absolute error, csrc/grid_soe.c)
+    t = GRIDS["jittered"]
+    x = np.full(t.size, 5e-324)
+    x[::3] = -1e-310
+    y, _, st = run_c(rule, 0.5, t, x, 1e-10)
+    assert st == lib.FC_OK and np.all(np.isfinite(y))
+    src = x[None]
+    assert np.all(np.abs(y - grid.apply_on_grid(rule, 0.5, src, t)) <= 1e-300)

@@ -287,7 +287,9 @@ def test_c_refusals_leave_the_stream_and_outputs_untouched():
     # creation
     for args, st_want in (
         ((lib.FC_RULE_GRUNWALD, 0.5, 0.01, 1, 1e-10, 1.0), lib.FC_ERR_RULE),
-        ((lib.FC_RULE_RECTANGLE, 1.5, 0.01, 1, 1e-10, 1.0), lib.FC_ERR_ORDER),
+        ((lib.FC_RULE_RECTANGLE, 2.0, 0.01, 1, 1e-10, 1.0), lib.FC_ERR_ORDER),
+        ((lib.FC_RULE_TRAPEZOID, 2.0, 0.01, 1, 1e-10, 1.0), lib.FC_ERR_ORDER),
+        ((lib.FC_RULE_L1, 1.5, 0.01, 1, 1e-10, 1.0), lib.FC_ERR_ORDER),
         ((lib.FC_RULE_L1, 1.0, 0.01, 1, 1e-10, 1.0), lib.FC_ERR_ORDER),
         ((lib.FC_RULE_RECTANGLE, 0.5, 0.0, 1, 1e-10, 1.0), lib.FC_ERR_STEP),
         ((lib.FC_RULE_RECTANGLE, 0.5, np.inf, 1, 1e-10, 1.0), lib.FC_ERR_STEP),
@@ -317,8 +319,8 @@ def test_horizon_policy_continue():
 def test_python_parameter_checks():
     with pytest.raises(ArgumentError, match="Grunwald-Letnikov rule has no standard form"):
         pf.TimedStream(0.5, 0.1, 1.0, rule="grunwald")
-    with pytest.raises(ArgumentError, match=r"order=1\.5: a TimedStream serves"):
-        pf.TimedStream(1.5, 0.1, 1.0)
+    with pytest.raises(ArgumentError, match=r"order=2\.5: a TimedStream serves 0 < order < 2"):
+        pf.TimedStream(2.5, 0.1, 1.0)
     with pytest.raises(ArgumentError, match=r"min_step=0(\.0)?: must be finite and > 0"):
         pf.TimedStream(0.5, 0.0, 1.0)
     with pytest.raises(ArgumentError, match=r"horizon=0\.01: must be finite and >= min_step"):

@@ -572,19 +572,24 @@ static void grids(void)
     t[0] = 0.0;
     for (int i = 1; i < N; i++) t[i] = t[i - 1] + 0.001 * (1.0 + 0.4 * sin(3.0 * i));
     for (int i = 0; i < N * C; i++) x[i] = cos(0.002 * i) + (i % 97 == 0 ? 1e6 : 0.0);
-    static const int rules[3] = {FC_RULE_RECTANGLE, FC_RULE_TRAPEZOID, FC_RULE_L1};
-    for (int r = 0; r < 3; r++) {
+    /* the rules at 0.4, and the integral rules at 1.5 (the running
+       integral path, csrc/grid_soe.c gs_cum, and its stream) */
+    static const int rules[5] = {FC_RULE_RECTANGLE, FC_RULE_TRAPEZOID, FC_RULE_L1,
+                                 FC_RULE_RECTANGLE, FC_RULE_TRAPEZOID};
+    static const double orders[5] = {0.4, 0.4, 0.4, 1.5, 1.5};
+    for (int r = 0; r < 5; r++) {
         char name[64];
-        if (fc_grid_apply(rules[r], 0.4, t, x, C, N, 1e-11, yr, NULL) != FC_OK) { fails++; continue; }
-        snprintf(name, sizeof name, "grid_apply rule %d", rules[r]);
+        const double a = orders[r];
+        if (fc_grid_apply(rules[r], a, t, x, C, N, 1e-11, yr, NULL) != FC_OK) { fails++; continue; }
+        snprintf(name, sizeof name, "grid_apply rule %d order %g", rules[r], a);
         for (int i = 0; i < N * C; i++) y[i] = -7.0;
-        FOR_EACH_FAILURE(name, fc_grid_apply(rules[r], 0.4, t, x, C, N, 1e-11, y, NULL),
+        FOR_EACH_FAILURE(name, fc_grid_apply(rules[r], a, t, x, C, N, 1e-11, y, NULL),
                          if (memcmp(y, yr, N * C * sizeof *y)) { fails++; printf("%s: result differs\n", name); },
                          y[0] == -7.0 && y[N * C - 1] == -7.0);
         /* the stream with a time per sample */
         fc_stream *s = NULL, *l = NULL;
         snprintf(name, sizeof name, "stream_create_timed rule %d", rules[r]);
-        FOR_EACH_FAILURE(name, fc_stream_create_timed(rules[r], 0.4, 0.0005, C, 1e-10, 10.0, &s),
+        FOR_EACH_FAILURE(name, fc_stream_create_timed(rules[r], a, 0.0005, C, 1e-10, 10.0, &s),
                          (void)0, s == NULL);
         if (s == NULL) { fails++; continue; }
         {

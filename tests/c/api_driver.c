@@ -317,6 +317,8 @@ static void test_grid(void)
     TRUE_(K > 0 && y[0] == 0.0);
     EXPECT(fc_grid_apply(FC_RULE_GRUNWALD, 0.5, t, x, 1, N, 1e-10, y, NULL), FC_ERR_RULE);
     EXPECT(fc_grid_apply(FC_RULE_L1, 1.0, t, x, 1, N, 1e-10, y, NULL), FC_ERR_ORDER);
+    EXPECT(fc_grid_apply(FC_RULE_TRAPEZOID, 1.5, t, x, 1, N, 1e-10, y, NULL), FC_OK);
+    EXPECT(fc_grid_apply(FC_RULE_RECTANGLE, 2.0, t, x, 1, N, 1e-10, y, NULL), FC_ERR_ORDER);
     EXPECT(fc_grid_apply(FC_RULE_RECTANGLE, 0.5, t, x, 1, N, 0.5, y, NULL), FC_ERR_TOL);
     EXPECT(fc_grid_apply(FC_RULE_RECTANGLE, 0.5, NULL, x, 1, N, 1e-10, y, NULL), FC_ERR_NULL);
     EXPECT(fc_grid_apply(FC_RULE_RECTANGLE, 0.5, t, x, 1, N, 1e-10, x, NULL), FC_ERR_ARG);
@@ -348,6 +350,19 @@ static void test_grid(void)
     EXPECT(fc_stream_save(s, buf, sz, &wr), FC_OK);
     EXPECT(fc_stream_load(buf, wr, &l), FC_OK);
     blob_faults("timed stream", buf, wr, ld_stream, fr_stream);
+    free(buf);
+    fc_stream_free(l);
+    fc_stream_free(s);
+    /* at order 1.5 (the running integral, saved as format version 2) */
+    s = l = NULL;
+    EXPECT(fc_stream_create_timed(FC_RULE_TRAPEZOID, 1.5, 0.005, 1, 1e-10, 10.0, &s), FC_OK);
+    EXPECT(fc_stream_create_timed(FC_RULE_RECTANGLE, 2.0, 0.005, 1, 1e-10, 10.0, &l), FC_ERR_ORDER);
+    EXPECT(fc_stream_push_timed(s, t, x, N, yb), FC_OK);
+    EXPECT(fc_stream_save_size(s, &sz), FC_OK);
+    buf = malloc(sz);
+    EXPECT(fc_stream_save(s, buf, sz, &wr), FC_OK);
+    EXPECT(fc_stream_load(buf, wr, &l), FC_OK);
+    blob_faults("timed stream 1.5", buf, wr, ld_stream, fr_stream);
     free(buf);
     fc_stream_free(l);
     fc_stream_free(s);

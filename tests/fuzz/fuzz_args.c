@@ -84,7 +84,18 @@ static int known_status(int st)
 
 /* buffers for every call: SMALL*SMALL doubles each, filled from the input */
 #define BUF (SMALL * SMALL + 2 * SMALL + 8)
-static double X[BUF], Y[BUF], K2[BUF];
+static double X[BUF], Y[BUF], K2[BUF], T[BUF];
+
+/* n times: decoded values, or (one time in two) a start and decoded
+   steps, so that increasing grids are common */
+static void fill_times(rd *r, size_t n)
+{
+    int steps = u8(r) & 1;
+    for (size_t i = 0; i < n && i < BUF; i++) {
+        double v = dbl(r);
+        T[i] = steps && i ? T[i - 1] + fabs(v) : v;
+    }
+}
 
 static void fill(rd *r, double *b, size_t n)
 {
@@ -161,7 +172,7 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
 {
     rd r = {data, size, 0};
     int st = FC_OK;
-    switch (u8(&r) % 12) {
+    switch (u8(&r) % 14) {
     case 0: {   /* weights */
         int rule = enm(&r);
         double a = dbl(&r), h = dbl(&r);
@@ -306,6 +317,68 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
             free(b0);
         }
         fc_controller_free(c);
+        break;
+    }
+    case 12: {  /* the rules on a grid of times */
+        int rule = enm(&r);
+        double a = dbl(&r), tol = dbl(&r);
+        size_t nsig = len(&r) % 5, n = len(&r);
+        if (u8(&r) == 0xFF) nsig = HUGE_LEN[u8(&r) % 3];
+        int small = !is_huge(n) && !is_huge(nsig) && nsig * n <= SMALL * SMALL;
+        if (!is_huge(n) && !small) break;
+        if (small) { fill_times(&r, n); fill(&r, X, nsig * n); }
+        for (size_t i = 0; i < BUF; i++) Y[i] = -7.0;
+        st = fc_grid_apply(rule, a, (u8(&r) & 15) ? T : NULL, X, nsig, n, tol, Y, NULL);
+        check(st != FC_OK || small || n == 0);
+        if (st == FC_OK)
+            for (size_t i = 0; i < nsig * n; i++) check(isfinite(Y[i]));
+        else
+            for (size_t i = 0; i < BUF; i++) check(Y[i] == -7.0);  /* nothing written */
+        break;
+    }
+    case 13: {  /* a stream with a time per sample and its life */
+        int rule = enm(&r);
+        double a = dbl(&r), h = dbl(&r), tol = dbl(&r), hz = dbl(&r);
+        size_t C = len(&r) % 4;
+        if (u8(&r) == 0xFF) C = HUGE_LEN[u8(&r) % 3];
+        fc_stream *s = NULL;
+        st = fc_stream_create_timed(rule, a, h, C, tol, hz, &s);
+        if (st != FC_OK) break;
+        if (u8(&r) & 1) check(fc_stream_set_horizon_policy(s, FC_HORIZON_CONTINUE) == FC_OK);
+        for (int k = 0; k < 6 && r.i < r.n; k++) {
+            size_t nb;
+            unsigned char *before = stream_bytes(s, &nb);
+            int op = u8(&r) % 3, s2;
+            if (op == 0) {
+                size_t count = len(&r);
+                if (is_huge(count)) {
+                    s2 = fc_stream_push_timed(s, T, X, count, Y);
+                    check(s2 != FC_OK);
+                } else {
+                    fill_times(&r, count);
+                    fill(&r, X, C * count);
+                    s2 = fc_stream_push_timed(s, T, X, count, Y);
+                    if (s2 == FC_OK)
+                        for (size_t i = 0; i < C * count; i++) check(isfinite(Y[i]));
+                }
+            } else if (op == 1) {
+                fill(&r, X, C);
+                s2 = fc_stream_preview_timed(s, dbl(&r), X, Y);
+                if (s2 == FC_OK)
+                    for (size_t i = 0; i < C; i++) check(isfinite(Y[i]));
+            } else {
+                /* save and load: the same bytes */
+                fc_stream *l = NULL;
+                s2 = before ? fc_stream_load(before, nb, &l) : FC_OK;
+                if (before) check(s2 == FC_OK);
+                if (l) stream_unchanged(l, before, nb);
+                fc_stream_free(l);
+            }
+            check(known_status(s2));
+            if (s2 != FC_OK || op != 0) stream_unchanged(s, before, nb);
+            free(before);
+        }
+        fc_stream_free(s);
         break;
     }
     default: {  /* FFT plans and the tables */

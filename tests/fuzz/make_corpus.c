@@ -84,6 +84,9 @@ static void streams(void)
        their seeds go with the compressed streams'), jittered times */
     static const struct { int rule; double order; } tk[] = {
         {FC_RULE_RECTANGLE, 0.5}, {FC_RULE_TRAPEZOID, 0.7}, {FC_RULE_L1, 0.4},
+        /* the integral rules at 1 < a < 2: the running integral saved
+           (format version 2) */
+        {FC_RULE_RECTANGLE, 1.5}, {FC_RULE_TRAPEZOID, 1.5},
     };
     for (size_t r = 0; r < sizeof tk / sizeof tk[0]; r++)
         for (size_t k = 0; k < 4; k++) {
