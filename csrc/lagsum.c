@@ -403,18 +403,22 @@ static part_shape part_shape_of(size_t n, const double *c, size_t K)
 
 /*
  * The sizes of the partitioned engine, where their kernel spectra lie in
- * the context's work space, and one worker's area (window spectra ring of
- * maxseg slots + window + sum + output). The kernel spectra (shared, read
+ * the context's work space, and one worker's area (the largest over the
+ * sizes of: window spectra ring of nseg + G - 1 slots, window, G sums,
+ * output; see part_blocks). The kernel spectra (shared, read
  * only while the threads run) come first in the calling thread's work
  * space, its area after them; a helper's area is its whole work space.
  */
 #define FC_MAX_SIZES 32
+#define FC_GROUP_MAX 8   /* frames of fc__spec_dot_frames at most */
+#define FC_GROUP_SEGS 16 /* segments it takes at most (FC__SDF_B) */
 typedef struct {
     part_shape sh;
     size_t nsz;                 /* sizes W[0] = W0, R W0, ..., maxW */
     size_t W[FC_MAX_SIZES];
     size_t nseg[FC_MAX_SIZES];  /* segments of each size */
     size_t kofs[FC_MAX_SIZES];  /* kernel spectra of size z at work + kofs[z] */
+    size_t G[FC_MAX_SIZES];     /* output blocks of size z summed at once */
     size_t ktotal;              /* doubles of all kernel spectra */
     size_t area;                /* doubles of one worker's area */
 } part_plan;
@@ -446,14 +450,22 @@ static int part_prepare(fc_context *ctx, size_t n, const double *c, size_t K,
         pp->W[z] = W;
         pp->nseg[z] = phi - sh->p0;
         pp->kofs[z] = pp->ktotal;
-        if (fc__mul_size(pp->nseg[z], 2 * W + 2, &t) != FC_OK ||
+        /* blocks summed G at once (each kernel spectrum read once for G
+           blocks): up to FC_GROUP_MAX, at most the segments' count (the
+           window spectra kept grow by G - 1) */
+        pp->G[z] = pp->nseg[z] < FC_GROUP_MAX ? pp->nseg[z] : FC_GROUP_MAX;
+        if (pp->nseg[z] > FC_GROUP_SEGS || pp->G[z] < 2) pp->G[z] = 1;
+        /* ring nseg + G - 1, window, G sums, output */
+        size_t a;
+        if (fc__mul_size(pp->nseg[z] + 2 * pp->G[z] + 1, 2 * W + 2, &a) != FC_OK ||
+            fc__mul_size(pp->nseg[z], 2 * W + 2, &t) != FC_OK ||
             fc__add_size(pp->ktotal, t, &pp->ktotal) != FC_OK)
             return FC_ERR_SIZE;
+        if (a > pp->area) pp->area = a;
         pp->nsz++;
     }
     size_t total;
-    if (fc__mul_size(2 * sh->maxW + 2, sh->maxseg + 3, &pp->area) != FC_OK ||
-        fc__add_size(pp->area, 16, &pp->area) != FC_OK ||
+    if (fc__add_size(pp->area, 16, &pp->area) != FC_OK ||
         fc__add_size(pp->ktotal, pp->area, &total) != FC_OK)
         return FC_ERR_SIZE;
     for (size_t z = 0; z < pp->nsz; z++) {
@@ -463,9 +475,16 @@ static int part_prepare(fc_context *ctx, size_t n, const double *c, size_t K,
     return ensure_work(ctx, total);
 }
 
-/* buf[j] = x[(b-1)W + j] for j < 2W, zero outside [0, n). */
-static void window(const double *x, size_t n, size_t b, size_t W, double *buf)
+/* The spectrum of the window [(b-1)W, (b+1)W) of x (zero outside [0, n))
+   into spec: straight from x when the window lies inside it, else through
+   buf (the same samples, hence the same bits). */
+static void window_spectrum(fc_fft_plan *plan, const double *x, size_t n,
+                            size_t b, size_t W, double *buf, double *spec)
 {
+    if (b > 0 && (b + 1) * W <= n) {
+        fc__fft_forward(plan, x + (b - 1) * W, spec);
+        return;
+    }
     size_t lo = b > 0 ? (b - 1) * W : 0; /* first sample */
     size_t off = b > 0 ? 0 : W;          /* where it goes */
     size_t avail = lo < n ? n - lo : 0;
@@ -473,50 +492,63 @@ static void window(const double *x, size_t n, size_t b, size_t W, double *buf)
     memset(buf, 0, off * sizeof(double));
     memcpy(buf + off, x + lo, cnt * sizeof(double));
     memset(buf + off + cnt, 0, (2 * W - off - cnt) * sizeof(double));
+    fc__fft_forward(plan, buf, spec);
 }
 
 /*
  * Output blocks ia <= i < ib (ia >= p0) of size z of one signal: block i
  * is one inverse FFT of sum_p Z_{i-p} C_p, added to outputs [iW, iW+W).
- * The window spectra Z_b are computed once each and kept in a ring; a
- * range that starts past the first block first computes the windows its
- * first block needs. Each Z_b and each block's sum is computed the same
- * way whatever the range, so ranges may be done by different threads
- * with the bits of one pass.
+ * The window spectra Z_b are computed once each and kept in a ring of
+ * nseg + G - 1; once every segment has its window, G blocks at a time are
+ * summed by fc__spec_dot_frames (each kernel spectrum read once for the G
+ * blocks, every sum bit for bit that of fc__spec_dot). A range that starts
+ * past the first block first computes the windows its first block needs.
+ * Each Z_b and each block's sum is computed the same way whatever the
+ * range, so ranges may be done by different threads with the bits of one
+ * pass.
  */
 static void part_blocks(const part_plan *pp, size_t z, const double *kspec,
                         fc_fft_plan *plan, const double *xs, size_t n,
                         double *ys, size_t ia, size_t ib, double *area)
 {
     const size_t W = pp->W[z], n2 = 2 * W, sp = n2 + 2, p0 = pp->sh.p0;
-    const size_t nseg = pp->nseg[z];
-    double *ring = area;                    /* nseg window spectra */
-    double *buf = ring + nseg * sp;         /* 2W */
-    double *acc = buf + sp;                 /* 2W+2 */
-    double *out = acc + sp;                 /* 2W */
-    const double *zp[FC_MAX_SEGS], *cp[FC_MAX_SEGS];
+    const size_t nseg = pp->nseg[z], G = pp->G[z], L = nseg + G - 1;
+    double *ring = area;                    /* L window spectra */
+    double *buf = ring + L * sp;            /* 2W */
+    double *acc = buf + sp;                 /* G sums of 2W+2 */
+    double *out = acc + G * sp;             /* 2W */
+    const double *zp[FC_MAX_SEGS + FC_GROUP_MAX], *cp[FC_MAX_SEGS];
+    double *ap[FC_GROUP_MAX];
     if (ia >= ib) return;
     for (size_t b = ia - p0 > nseg - 1 ? ia - p0 - (nseg - 1) : 0;
-         b < ia - p0; b++) {
-        window(xs, n, b, W, buf);
-        fc__fft_forward(plan, buf, ring + (b % nseg) * sp);
-    }
-    for (size_t i = ia; i < ib; i++) {
+         b < ia - p0; b++)
+        window_spectrum(plan, xs, n, b, W, buf, ring + (b % L) * sp);
+    for (size_t j = 0; j < nseg; j++) cp[j] = kspec + j * sp;
+    for (size_t g = 0; g < G; g++) ap[g] = acc + g * sp;
+    for (size_t i = ia; i < ib;) {
         /* the newest window needed: b = i - p0, samples [(b-1)W, (b+1)W) */
         size_t b = i - p0;
-        window(xs, n, b, W, buf);
-        fc__fft_forward(plan, buf, ring + (b % nseg) * sp);
-        /* Y_i = sum_p Z_{i-p} C_p over the windows that exist */
-        size_t jmax = i - p0 + 1 < nseg ? i - p0 + 1 : nseg;
-        for (size_t j = 0; j < jmax; j++) {
-            zp[j] = ring + ((i - p0 - j) % nseg) * sp;
-            cp[j] = kspec + j * sp;
+        size_t ng = 1;
+        if (G > 1 && b + 1 >= nseg) ng = ib - i < G ? ib - i : G;
+        for (size_t g = 0; g < ng; g++)
+            window_spectrum(plan, xs, n, b + g, W, buf, ring + ((b + g) % L) * sp);
+        if (ng > 1) {
+            /* zp[t]: window b - (nseg - 1) + t, t < nseg + ng - 1 */
+            for (size_t t = 0; t < nseg + ng - 1; t++)
+                zp[t] = ring + ((b - (nseg - 1) + t) % L) * sp;
+            fc__spec_dot_frames(plan, zp, cp, nseg, ng, ap);
+        } else {
+            /* Y_i = sum_p Z_{i-p} C_p over the windows that exist */
+            size_t jmax = b + 1 < nseg ? b + 1 : nseg;
+            for (size_t j = 0; j < jmax; j++) zp[j] = ring + ((b - j) % L) * sp;
+            fc__spec_dot(plan, zp, cp, jmax, acc);
         }
-        fc__spec_dot(plan, zp, cp, jmax, acc);
-        fc__fft_inverse(plan, acc, out);
-        size_t r0 = i * W;
-        size_t cnt = n - r0 < W ? n - r0 : W;
-        for (size_t t = 0; t < cnt; t++) ys[r0 + t] += out[W + t];
+        for (size_t g = 0; g < ng; g++, i++) {
+            fc__fft_inverse(plan, ap[g], out);
+            size_t r0 = i * W;
+            size_t cnt = n - r0 < W ? n - r0 : W;
+            for (size_t t = 0; t < cnt; t++) ys[r0 + t] += out[W + t];
+        }
     }
 }
 
