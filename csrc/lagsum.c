@@ -193,6 +193,7 @@ static int ensure_work(fc_context *ctx, size_t doubles)
  * plain sum at K >> FC_DIRECT_GROUP.
  */
 #define FC_DIRECT_GROUP 128
+#define FC_DIRECT_REG 32 /* outputs kept in registers (the first group) */
 
 #if (defined(__GNUC__) || defined(__clang__)) \
     && (defined(__x86_64__) || defined(__i386__)) && !defined(FC_NO_SIMD)
@@ -219,9 +220,27 @@ direct_accumulate_body(const double *restrict x, size_t len,
         size_t i1 = i0 + FC_DIRECT_CHUNK < len ? i0 + FC_DIRECT_CHUNK : len;
         size_t mmax = K < i1 ? K : i1; /* lags 0 .. mmax-1 */
         size_t m1 = mmax < FC_DIRECT_GROUP ? mmax : FC_DIRECT_GROUP;
-        for (size_t m = 0; m < m1; m++) {
+        size_t jr = i0; /* outputs [i0, jr) done in registers */
+        if (i0 + 1 >= m1) {
+            /* every lag of the group reaches every output of the chunk:
+               FC_DIRECT_REG outputs at a time held in registers while the
+               lags are added, in the same order and with the same
+               operations as the axpy below (the same bits), without a
+               load and store of y per lag */
+            for (; jr + FC_DIRECT_REG <= i1; jr += FC_DIRECT_REG) {
+                double acc[FC_DIRECT_REG];
+                for (size_t j = 0; j < FC_DIRECT_REG; j++) acc[j] = y[jr + j];
+                for (size_t m = 0; m < m1; m++) {
+                    const double cm = c[m];
+                    const double *restrict xx = x + (jr - m);
+                    for (size_t j = 0; j < FC_DIRECT_REG; j++) acc[j] += cm * xx[j];
+                }
+                for (size_t j = 0; j < FC_DIRECT_REG; j++) y[jr + j] = acc[j];
+            }
+        }
+        for (size_t m = 0; m < m1 && jr < i1; m++) {
             const double cm = c[m];
-            size_t ib = i0 > m ? i0 : m;
+            size_t ib = jr > m ? jr : m;
             double *restrict yy = y + ib;
             const double *restrict xx = x + (ib - m);
             size_t cnt = i1 - ib;
