@@ -210,6 +210,41 @@ static int ensure_work(fc_context *ctx, size_t doubles)
    call with __builtin_cpu_supports (a read of the CPU model that the
    compiler's runtime fills in at start-up; no global state of ours, no
    ifunc resolver as target_clones would make). */
+/* d[i - base] += sum_{m = mlo}^{mhi-1} c[m] x[i-m] (lags m <= i only) for
+   i0 <= i < i1, the lags of each output added in increasing order. Once
+   every lag reaches every output (i0 >= mhi - 1), FC_DIRECT_REG outputs at
+   a time are held in registers while the lags are added (no load and store
+   of d per lag); the rest by one axpy per lag. Both do the same operations
+   in the same order on each output, so the bits do not depend on which. */
+static FC__DIRECT_INLINE void
+lags_into(const double *restrict x, const double *restrict c, size_t mlo,
+          size_t mhi, double *restrict d, size_t base, size_t i0, size_t i1)
+{
+    size_t jr = i0; /* outputs [i0, jr) done in registers */
+    if (i0 + 1 >= mhi) {
+        for (; jr + FC_DIRECT_REG <= i1; jr += FC_DIRECT_REG) {
+            double acc[FC_DIRECT_REG];
+            double *restrict dd = d + (jr - base);
+            for (size_t j = 0; j < FC_DIRECT_REG; j++) acc[j] = dd[j];
+            for (size_t m = mlo; m < mhi; m++) {
+                const double cm = c[m];
+                const double *restrict xx = x + (jr - m);
+                for (size_t j = 0; j < FC_DIRECT_REG; j++) acc[j] += cm * xx[j];
+            }
+            for (size_t j = 0; j < FC_DIRECT_REG; j++) dd[j] = acc[j];
+        }
+    }
+    for (size_t m = mlo; m < mhi && jr < i1; m++) {
+        const double cm = c[m];
+        size_t ib = jr > m ? jr : m;
+        if (ib >= i1) continue;
+        double *restrict dd = d + (ib - base);
+        const double *restrict xx = x + (ib - m);
+        size_t cnt = i1 - ib;
+        for (size_t j = 0; j < cnt; j++) dd[j] += cm * xx[j];
+    }
+}
+
 static FC__DIRECT_INLINE void
 direct_accumulate_body(const double *restrict x, size_t len,
                        const double *restrict c, size_t K,
@@ -220,32 +255,7 @@ direct_accumulate_body(const double *restrict x, size_t len,
         size_t i1 = i0 + FC_DIRECT_CHUNK < len ? i0 + FC_DIRECT_CHUNK : len;
         size_t mmax = K < i1 ? K : i1; /* lags 0 .. mmax-1 */
         size_t m1 = mmax < FC_DIRECT_GROUP ? mmax : FC_DIRECT_GROUP;
-        size_t jr = i0; /* outputs [i0, jr) done in registers */
-        if (i0 + 1 >= m1) {
-            /* every lag of the group reaches every output of the chunk:
-               FC_DIRECT_REG outputs at a time held in registers while the
-               lags are added, in the same order and with the same
-               operations as the axpy below (the same bits), without a
-               load and store of y per lag */
-            for (; jr + FC_DIRECT_REG <= i1; jr += FC_DIRECT_REG) {
-                double acc[FC_DIRECT_REG];
-                for (size_t j = 0; j < FC_DIRECT_REG; j++) acc[j] = y[jr + j];
-                for (size_t m = 0; m < m1; m++) {
-                    const double cm = c[m];
-                    const double *restrict xx = x + (jr - m);
-                    for (size_t j = 0; j < FC_DIRECT_REG; j++) acc[j] += cm * xx[j];
-                }
-                for (size_t j = 0; j < FC_DIRECT_REG; j++) y[jr + j] = acc[j];
-            }
-        }
-        for (size_t m = 0; m < m1 && jr < i1; m++) {
-            const double cm = c[m];
-            size_t ib = jr > m ? jr : m;
-            double *restrict yy = y + ib;
-            const double *restrict xx = x + (ib - m);
-            size_t cnt = i1 - ib;
-            for (size_t j = 0; j < cnt; j++) yy[j] += cm * xx[j];
-        }
+        lags_into(x, c, 0, m1, y, 0, i0, i1);
         if (mmax <= FC_DIRECT_GROUP) continue;
         size_t clen = i1 - i0;
         for (size_t j = 0; j < clen; j++) cor[j] = 0.0;
@@ -253,14 +263,7 @@ direct_accumulate_body(const double *restrict x, size_t len,
             size_t g1 = g0 + FC_DIRECT_GROUP < mmax ? g0 + FC_DIRECT_GROUP : mmax;
             size_t jb = (i0 > g0 ? i0 : g0) - i0; /* first output of lag g0 */
             for (size_t j = jb; j < clen; j++) grp[j] = 0.0;
-            for (size_t m = g0; m < g1; m++) {
-                const double cm = c[m];
-                size_t ib = i0 > m ? i0 : m;
-                double *restrict gg = grp + (ib - i0);
-                const double *restrict xx = x + (ib - m);
-                size_t cnt = i1 - ib;
-                for (size_t j = 0; j < cnt; j++) gg[j] += cm * xx[j];
-            }
+            lags_into(x, c, g0, g1, grp, i0, i0, i1);
             double *restrict yy = y + i0;
             for (size_t j = jb; j < clen; j++) {
                 /* TwoSum: s + e = yy[j] + grp[j] exactly */
@@ -518,9 +521,10 @@ static void window_spectrum(fc_fft_plan *plan, const double *x, size_t n,
  * Output blocks ia <= i < ib (ia >= p0) of size z of one signal: block i
  * is one inverse FFT of sum_p Z_{i-p} C_p, added to outputs [iW, iW+W).
  * The window spectra Z_b are computed once each and kept in a ring of
- * nseg + G - 1; once every segment has its window, G blocks at a time are
- * summed by fc__spec_dot_frames (each kernel spectrum read once for the G
- * blocks, every sum bit for bit that of fc__spec_dot). A range that starts
+ * nseg + G - 1; G blocks at a time are summed by fc__spec_dot_frames
+ * (..._lim near the start, where a block has fewer windows than segments):
+ * each kernel spectrum read once for the G blocks, every sum bit for bit
+ * that of fc__spec_dot over the same terms. A range that starts
  * past the first block first computes the windows its first block needs.
  * Each Z_b and each block's sum is computed the same way whatever the
  * range, so ranges may be done by different threads with the bits of one
@@ -547,15 +551,24 @@ static void part_blocks(const part_plan *pp, size_t z, const double *kspec,
     for (size_t i = ia; i < ib;) {
         /* the newest window needed: b = i - p0, samples [(b-1)W, (b+1)W) */
         size_t b = i - p0;
-        size_t ng = 1;
-        if (G > 1 && b + 1 >= nseg) ng = ib - i < G ? ib - i : G;
+        size_t ng = G > 1 ? (ib - i < G ? ib - i : G) : 1;
         for (size_t g = 0; g < ng; g++)
             window_spectrum(plan, xs, n, b + g, W, buf, ring + ((b + g) % L) * sp);
         if (ng > 1) {
-            /* zp[t]: window b - (nseg - 1) + t, t < nseg + ng - 1 */
+            /* zp[t]: window b - (nseg - 1) + t, t < nseg + ng - 1 (none
+               before window 0: near the start block b + g sums its
+               b + g + 1 windows only, lim[g]) */
+            size_t lim[FC_GROUP_MAX];
             for (size_t t = 0; t < nseg + ng - 1; t++)
-                zp[t] = ring + ((b - (nseg - 1) + t) % L) * sp;
-            fc__spec_dot_frames(plan, zp, cp, nseg, ng, ap);
+                zp[t] = b + t + 1 >= nseg ? ring + ((b + t + 1 - nseg) % L) * sp
+                                          : NULL;
+            if (b + 1 >= nseg) {
+                fc__spec_dot_frames(plan, zp, cp, nseg, ng, ap);
+            } else {
+                for (size_t g = 0; g < ng; g++)
+                    lim[g] = b + g + 1 < nseg ? b + g + 1 : nseg;
+                fc__spec_dot_frames_lim(plan, zp, cp, nseg, lim, ng, ap);
+            }
         } else {
             /* Y_i = sum_p Z_{i-p} C_p over the windows that exist */
             size_t jmax = b + 1 < nseg ? b + 1 : nseg;
