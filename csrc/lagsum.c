@@ -401,6 +401,41 @@ int fc__segment_start(fc__kernel_at at, const void *ctx, uint64_t m0,
     return FC_OK;
 }
 
+/*
+ * May segments start one block from their outputs (p0 = 1, R = 16, W0 =
+ * FC_DIRECT_BAND)? The window of segment p = 1 of size W (lags [W, 2W))
+ * reaches its outputs through lags 1 .. 3W - 1 (the window ends where the
+ * block starts), where the power law says nothing (the kernel's first
+ * values); so it is checked on the kernel itself: for every size W = W0,
+ * 16 W0, ... below K, max |c| over [W, 2W) <= 16 min |c| over [1, 3W)
+ * (within the lags in use), the factor the shapes of
+ * fc__segment_start allow. The segments p >= 2 of these sizes are those of
+ * p0 = 2 (the power-law exponent already <= 4). One pass over the kernel.
+ * True for the decaying kernels of the rules (rectangle and trapezoid at
+ * orders up to 1, Grunwald up to about 1.5, L1); false for a growing
+ * kernel (c_0 the smallest) or one with a near zero among its first lags.
+ */
+static int one_block_start(const double *c, size_t K)
+{
+    double lo = INFINITY; /* min |c| over [1, m) */
+    size_t m = 1;
+    for (size_t W = FC_DIRECT_BAND; W < K; W *= 16) {
+        size_t e3 = 3 * W < K ? 3 * W : K, e2 = 2 * W < K ? 2 * W : K;
+        for (; m < e3; m++) {
+            double v = fabs(c[m]);
+            if (v < lo) lo = v;
+        }
+        double hi = 0.0;
+        for (size_t j = W; j < e2; j++) {
+            double v = fabs(c[j]);
+            if (v > hi) hi = v;
+        }
+        if (!(hi <= 16.0 * lo)) return 0;
+        if (W > K / 16) break;
+    }
+    return 1;
+}
+
 static part_shape part_shape_of(size_t n, const double *c, size_t K)
 {
     part_shape sh;
@@ -410,6 +445,10 @@ static part_shape part_shape_of(size_t n, const double *c, size_t K)
     sh.K = K;
     (void)fc__segment_start(array_at, c, 8, K, &g, &sh.p0); /* cannot fail */
     sh.R = sh.p0 == 2 ? 8 : sh.p0 == 4 ? 4 : 2;
+    if (sh.p0 == 2 && one_block_start(c, K)) {
+        sh.p0 = 1; /* segments p = 1 .. 15 of each size */
+        sh.R = 16;
+    }
     sh.W0 = FC_DIRECT_BAND / sh.p0;
     sh.D = sh.p0 * sh.W0;
     sh.maxW = 0;

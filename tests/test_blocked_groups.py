@@ -80,3 +80,49 @@ def test_groups_same_bits_whatever_the_split(workers):
     # and the same as each signal alone
     for s in range(3):
         assert np.array_equal(pyfracconv.integral(x[s], 0.5, 1e-3), one[s])
+
+
+def near_integer_grunwald(K, a):
+    """Grunwald-Letnikov weights g_m = (-1)^m binom(a, m) by the recurrence
+    g_m = g_{m-1} (m - 1 - a) / m (common practice); at a = 1 + 1e-7 the
+    weight g_2 = a (a - 1) / 2 is about 5e-8, a near zero among the first
+    lags."""
+    g = np.empty(K)
+    g[0] = 1.0
+    for m in range(1, K):
+        g[m] = g[m - 1] * (m - 1 - a) / m
+    return g
+
+
+@pytest.mark.parametrize(
+    "shape", ["decaying", "decaying_zero_first", "growing", "tiny_lag_2", "near_integer_grunwald"]
+)
+@pytest.mark.parametrize("n", [300, 1100, 5000])
+def test_first_segment_one_block_away_or_not(shape, n):
+    # segments may start one block from their outputs only when the first
+    # lags are no smaller than 1/16 of the segment's kernel values (csrc/
+    # lagsum.c, one_block_start); each of these kernels goes one way or the
+    # other, and every output keeps the componentwise bound either way.
+    # Spikes two samples before a block of 64 or 1024 outputs: that block's
+    # first output then has one term, at lag 2, which a growing kernel or a
+    # tiny c_2 makes far smaller than the segment's kernel values.
+    rng = np.random.default_rng(n)
+    m = np.arange(n, dtype=float)
+    if shape == "decaying":
+        c = (m + 1.0) ** -0.5
+    elif shape == "decaying_zero_first":  # the rectangle rule's shape: c_0 = 0
+        c = np.concatenate([[0.0], (m[1:]) ** -0.5])
+    elif shape == "growing":  # power law m^3: exponent 3, the p0 = 2 class
+        c = (m + 1.0) ** 3
+    elif shape == "tiny_lag_2":  # a power law but for one early lag
+        c = (m + 1.0) ** -0.5
+        c[2] = 1e-9
+    else:
+        c = near_integer_grunwald(n, 1.0 + 1e-7)
+    idx = np.arange(n) if n <= 1100 else check_indices(n, rng, head=1100, random=300)
+    spikes = np.zeros(n)
+    spikes[[j for j in (62, 1022) if j < n]] = 1.0
+    for x in (spikes, spike_then_silence(n), rng.standard_normal(n), rng.random(n)):
+        y = pyfracconv.lagged_sum(x, c, engine="blocked")
+        ref, scale = lag_reference(x, c, idx)
+        assert componentwise_error(y[idx], ref, scale) <= TOL, shape
