@@ -402,12 +402,12 @@ int fc__segment_start(fc__kernel_at at, const void *ctx, uint64_t m0,
 }
 
 /*
- * May segments start one block from their outputs (p0 = 1, R = 16, W0 =
- * FC_DIRECT_BAND)? The window of segment p = 1 of size W (lags [W, 2W))
+ * May segments start one block from their outputs (p0 = 1, growth R = 8
+ * or 16, W0 = FC_DIRECT_BAND)? The window of segment p = 1 of size W (lags [W, 2W))
  * reaches its outputs through lags 1 .. 3W - 1 (the window ends where the
  * block starts), where the power law says nothing (the kernel's first
  * values); so it is checked on the kernel itself: for every size W = W0,
- * 16 W0, ... below K, max |c| over [W, 2W) <= 16 min |c| over [1, 3W)
+ * R W0, ... below K, max |c| over [W, 2W) <= 16 min |c| over [1, 3W)
  * (within the lags in use), the factor the shapes of
  * fc__segment_start allow. The segments p >= 2 of these sizes are those of
  * p0 = 2 (the power-law exponent already <= 4). One pass over the kernel.
@@ -415,11 +415,11 @@ int fc__segment_start(fc__kernel_at at, const void *ctx, uint64_t m0,
  * orders up to 1, Grunwald up to about 1.5, L1); false for a growing
  * kernel (c_0 the smallest) or one with a near zero among its first lags.
  */
-static int one_block_start(const double *c, size_t K)
+static int one_block_start(const double *c, size_t K, size_t R)
 {
     double lo = INFINITY; /* min |c| over [1, m) */
     size_t m = 1;
-    for (size_t W = FC_DIRECT_BAND; W < K; W *= 16) {
+    for (size_t W = FC_DIRECT_BAND; W < K; W *= R) {
         size_t e3 = 3 * W < K ? 3 * W : K, e2 = 2 * W < K ? 2 * W : K;
         for (; m < e3; m++) {
             double v = fabs(c[m]);
@@ -431,9 +431,29 @@ static int one_block_start(const double *c, size_t K)
             if (v > hi) hi = v;
         }
         if (!(hi <= 16.0 * lo)) return 0;
-        if (W > K / 16) break;
+        if (W > K / R) break;
     }
     return 1;
+}
+
+/* A model of the partitioned engine's work for n outputs with first
+   segment p0, growth R, first block size W0 and K lags: per block of size
+   W, two FFTs of size 2W (about 2W log2(2W) each, common practice
+   estimate) and nseg products of W + 1 bins, one product counted as 2.2
+   FFT points (the ratio measured here, AVX2). Used only to choose between
+   shapes that are all componentwise accurate. */
+static double part_cost(size_t n, size_t K, size_t p0, size_t R, size_t W0)
+{
+    double cost = 0.0;
+    for (size_t W = W0; p0 * W < K; W *= R) {
+        size_t phi = (K + W - 1) / W, nb = (n + W - 1) / W;
+        if (phi > R * p0) phi = R * p0;
+        double fft = 2.0 * (double)(2 * W) * log2((double)(2 * W));
+        double prod = 2.2 * (double)(phi - p0) * (double)(W + 1);
+        cost += (double)(nb > p0 ? nb - p0 : 0) * (fft + prod);
+        if (W > K / R) break;
+    }
+    return cost;
 }
 
 static part_shape part_shape_of(size_t n, const double *c, size_t K)
@@ -445,9 +465,18 @@ static part_shape part_shape_of(size_t n, const double *c, size_t K)
     sh.K = K;
     (void)fc__segment_start(array_at, c, 8, K, &g, &sh.p0); /* cannot fail */
     sh.R = sh.p0 == 2 ? 8 : sh.p0 == 4 ? 4 : 2;
-    if (sh.p0 == 2 && one_block_start(c, K)) {
-        sh.p0 = 1; /* segments p = 1 .. 15 of each size */
-        sh.R = 16;
+    if (sh.p0 == 2) {
+        /* segments p = 1 .. R - 1 of each size where the kernel allows:
+           R = 8 or 16, whichever the model finds cheaper for this n */
+        double best = part_cost(n, K, 2, 8, FC_DIRECT_BAND / 2);
+        for (size_t R = 8; R <= 16; R *= 2) {
+            double cost = part_cost(n, K, 1, R, FC_DIRECT_BAND);
+            if (cost < best && one_block_start(c, K, R)) {
+                best = cost;
+                sh.p0 = 1;
+                sh.R = R;
+            }
+        }
     }
     sh.W0 = FC_DIRECT_BAND / sh.p0;
     sh.D = sh.p0 * sh.W0;
