@@ -342,9 +342,18 @@ static void direct_accumulate(const double *restrict x, size_t len,
  * spans lags 1 .. 2s-1 and loses up to ~3 digits after a spike against a
  * fast-decaying Grunwald kernel; the same scheme of doubling partitions is
  * used for zero-latency convolution, Gardner, J. Audio Eng. Soc. 43 (1995).)
+ *
+ * Segments one block away (p0 = 1): the window of segment p = 1 reaches
+ * its block through lags 1 .. 3W-1, the kernel's first lags included, where
+ * the power law says nothing; where the kernel itself shows that its
+ * values there are no smaller than 1/16 of the segment's (one_block_start:
+ * the decaying kernels of the rules), p0 = 1 with R = 8 or 16 (a model of
+ * the work chooses) needs fewer sizes, hence fewer FFTs, for the same
+ * bound. Otherwise (growing kernels, a near zero among the first lags) the
+ * shapes of fc__segment_start.
  */
 #define FC_DIRECT_BAND 64
-#define FC_MAX_SEGS 32 /* most segments of one size: p0 */
+#define FC_MAX_SEGS 32 /* most segments of one size: R p0 - p0 */
 
 typedef struct {
     size_t K;     /* lags in use (trailing zeros trimmed, <= n) */
