@@ -424,21 +424,39 @@ int fc__segment_start(fc__kernel_at at, const void *ctx, uint64_t m0,
  * orders up to 1, Grunwald up to about 1.5, L1); false for a growing
  * kernel (c_0 the smallest) or one with a near zero among its first lags.
  */
+/* The least (most = 0) or largest (most = 1) |c[i]| over a <= i < b (b > a):
+   four running values, so that the loop is not one long chain. */
+static double abs_extreme(const double *c, size_t a, size_t b, int most)
+{
+    double r[4];
+    size_t i = a;
+    for (int l = 0; l < 4; l++) r[l] = fabs(c[a]);
+    for (; i + 4 <= b; i += 4)
+        for (int l = 0; l < 4; l++) {
+            double v = fabs(c[i + (size_t)l]);
+            r[l] = most ? (v > r[l] ? v : r[l]) : (v < r[l] ? v : r[l]);
+        }
+    for (; i < b; i++) {
+        double v = fabs(c[i]);
+        r[0] = most ? (v > r[0] ? v : r[0]) : (v < r[0] ? v : r[0]);
+    }
+    double x = most ? (r[0] > r[1] ? r[0] : r[1]) : (r[0] < r[1] ? r[0] : r[1]);
+    double y = most ? (r[2] > r[3] ? r[2] : r[3]) : (r[2] < r[3] ? r[2] : r[3]);
+    return most ? (x > y ? x : y) : (x < y ? x : y);
+}
+
 static int one_block_start(const double *c, size_t K, size_t R)
 {
     double lo = INFINITY; /* min |c| over [1, m) */
     size_t m = 1;
     for (size_t W = FC_DIRECT_BAND; W < K; W *= R) {
         size_t e3 = 3 * W < K ? 3 * W : K, e2 = 2 * W < K ? 2 * W : K;
-        for (; m < e3; m++) {
-            double v = fabs(c[m]);
+        if (m < e3) {
+            double v = abs_extreme(c, m, e3, 0);
             if (v < lo) lo = v;
+            m = e3;
         }
-        double hi = 0.0;
-        for (size_t j = W; j < e2; j++) {
-            double v = fabs(c[j]);
-            if (v > hi) hi = v;
-        }
+        double hi = abs_extreme(c, W, e2, 1);
         if (!(hi <= 16.0 * lo)) return 0;
         if (W > K / R) break;
     }
@@ -477,14 +495,17 @@ static part_shape part_shape_of(size_t n, const double *c, size_t K)
     if (sh.p0 == 2) {
         /* segments p = 1 .. R - 1 of each size where the kernel allows:
            R = 8 or 16, whichever the model finds cheaper for this n */
-        double best = part_cost(n, K, 2, 8, FC_DIRECT_BAND / 2);
-        for (size_t R = 8; R <= 16; R *= 2) {
-            double cost = part_cost(n, K, 1, R, FC_DIRECT_BAND);
-            if (cost < best && one_block_start(c, K, R)) {
-                best = cost;
-                sh.p0 = 1;
-                sh.R = R;
-            }
+        double c2 = part_cost(n, K, 2, 8, FC_DIRECT_BAND / 2);
+        double c8 = part_cost(n, K, 1, 8, FC_DIRECT_BAND);
+        double c16 = part_cost(n, K, 1, 16, FC_DIRECT_BAND);
+        size_t Ra = c8 <= c16 ? 8 : 16, Rb = 24 - Ra; /* cheaper first */
+        double ca = Ra == 8 ? c8 : c16, cb = Ra == 8 ? c16 : c8;
+        if (ca < c2 && one_block_start(c, K, Ra)) {
+            sh.p0 = 1;
+            sh.R = Ra;
+        } else if (cb < c2 && one_block_start(c, K, Rb)) {
+            sh.p0 = 1;
+            sh.R = Rb;
         }
     }
     sh.W0 = FC_DIRECT_BAND / sh.p0;
