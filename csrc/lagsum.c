@@ -331,10 +331,10 @@ static void direct_accumulate(const double *restrict x, size_t len,
  * and reused by every segment of its size (a frequency-domain delay line),
  * and output block i is one inverse FFT of sum_p Z_{i-p} C_p.
  *
- * Why segments start at p0 >= 2 blocks: the FFT's rounding error in output
- * block i is at the scale of the largest kernel value of the segment times
- * the window's samples, while those samples reach block i through lags
- * between (p-1)W and (p+2)W. With p >= p0 the kernel changes by at most a
+ * Why segments start at p0 >= 2 blocks (p0 = 1 below): the FFT's rounding
+ * error in output block i is at the scale of the largest kernel value of
+ * the segment times the window's samples, while those samples reach block
+ * i through lags between (p-1)W and (p+2)W. With p >= p0 the kernel changes by at most a
  * factor ((p0+2)/p0)^gamma over that range (gamma the kernel's power-law
  * exponent, estimated from the kernel itself), so each output keeps its
  * error at the scale of its own terms sum_k |c_{n-k} x_k|, as direct

@@ -82,6 +82,17 @@ def test_groups_same_bits_whatever_the_split(workers):
         assert np.array_equal(pyfracconv.integral(x[s], 0.5, 1e-3), one[s])
 
 
+@pytest.mark.parametrize("n", [2**17 + 5, 2**18])
+def test_one_long_signal_split_same_bits(n):
+    # one signal split into ranges of blocks per size (the phases of
+    # part_run), segments one block away and growth 16: the bits of one
+    # thread
+    x = np.random.default_rng(n).standard_normal(n)
+    one = pyfracconv.integral(x, 0.5, 1e-3)
+    assert np.array_equal(pyfracconv.integral(x, 0.5, 1e-3, workers=2), one)
+    assert np.array_equal(pyfracconv.derivative(x, 0.5, 1e-3, workers=2), pyfracconv.derivative(x, 0.5, 1e-3))
+
+
 def near_integer_grunwald(K, a):
     """Grunwald-Letnikov weights g_m = (-1)^m binom(a, m) by the recurrence
     g_m = g_{m-1} (m - 1 - a) / m (common practice); at a = 1 + 1e-7 the
