@@ -29,7 +29,7 @@ SUITES = {
     "workers": "test_bench_workers.py",
 }
 SCRIPTS = {
-    "batch": ["first_call.py"],
+    "batch": ["batch_sweep.py", "first_call.py"],
     "stream": ["stream_memory.py"],
     "compressed": ["soe_terms.py"],
     "records": ["records_1e8.py"],

@@ -2,6 +2,9 @@
 plus scipy.signal.fftconvolve (one full-length FFT, normwise accurate only).
 
     python -m pytest bench/test_bench_batch.py --benchmark-group-by=param:N
+
+Each contender is timed in its own rounds here; bench/batch_sweep.py times
+them in interleaved pairs (fairer on a busy machine) for the README table.
 """
 
 import numpy as np
@@ -23,7 +26,7 @@ def numpy_reference(x, a=A, h=H):
     return y
 
 
-@pytest.fixture(params=[2**12, 2**16, 2**20], ids=lambda n: f"N=2^{int(np.log2(n))}")
+@pytest.fixture(params=[2**e for e in range(8, 23, 2)], ids=lambda n: f"N=2^{int(np.log2(n))}")
 def N(request):
     return request.param
 

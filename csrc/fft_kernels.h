@@ -593,10 +593,11 @@ static FFT_TARGET void FFT_FN(spec_dot_frames)(size_t nb, const double *const *x
    lim[g]} x[cnt-1+g-j] * b[j], 1 <= lim[g] <= cnt (the frames at the start
    of a stream, before every segment has a block); x[i] is not read where
    no lim reaches it. */
-static FFT_TARGET void FFT_FN(spec_dot_frames_lim)(size_t nb, const double *const *x,
-                                        const double *const *b, size_t cnt,
-                                        const size_t *lim, size_t ng,
-                                        double *const *out)
+static FFT_TARGET FFT_ALWAYS_INLINE void
+FFT_FN(spec_dot_frames_lim_body)(size_t nb, const double *const *x,
+                                 const double *const *b, size_t cnt,
+                                 const size_t *lim, size_t ng,
+                                 double *const *out)
 {
     const double *xl[FC__SDF_X], *bl[FC__SDF_B];
     double *ol[8];
@@ -639,6 +640,24 @@ static FFT_TARGET void FFT_FN(spec_dot_frames_lim)(size_t nb, const double *cons
             out[g][2 * k] = re[g];
             out[g][2 * k + 1] = im[g];
         }
+    }
+}
+
+/* ng a constant in each case (as for spec_dot_frames): the frame loops
+   unroll and the sums stay in registers; the same operations. */
+static FFT_TARGET void FFT_FN(spec_dot_frames_lim)(size_t nb, const double *const *x,
+                                        const double *const *b, size_t cnt,
+                                        const size_t *lim, size_t ng,
+                                        double *const *out)
+{
+    switch (ng) {
+    case 2: FFT_FN(spec_dot_frames_lim_body)(nb, x, b, cnt, lim, 2, out); break;
+    case 3: FFT_FN(spec_dot_frames_lim_body)(nb, x, b, cnt, lim, 3, out); break;
+    case 4: FFT_FN(spec_dot_frames_lim_body)(nb, x, b, cnt, lim, 4, out); break;
+    case 5: FFT_FN(spec_dot_frames_lim_body)(nb, x, b, cnt, lim, 5, out); break;
+    case 6: FFT_FN(spec_dot_frames_lim_body)(nb, x, b, cnt, lim, 6, out); break;
+    case 7: FFT_FN(spec_dot_frames_lim_body)(nb, x, b, cnt, lim, 7, out); break;
+    default: FFT_FN(spec_dot_frames_lim_body)(nb, x, b, cnt, lim, 8, out); break;
     }
 }
 

@@ -193,6 +193,7 @@ static int ensure_work(fc_context *ctx, size_t doubles)
  * plain sum at K >> FC_DIRECT_GROUP.
  */
 #define FC_DIRECT_GROUP 128
+#define FC_DIRECT_REG 32 /* outputs kept in registers (the first group) */
 
 #if (defined(__GNUC__) || defined(__clang__)) \
     && (defined(__x86_64__) || defined(__i386__)) && !defined(FC_NO_SIMD)
@@ -209,6 +210,41 @@ static int ensure_work(fc_context *ctx, size_t doubles)
    call with __builtin_cpu_supports (a read of the CPU model that the
    compiler's runtime fills in at start-up; no global state of ours, no
    ifunc resolver as target_clones would make). */
+/* d[i - base] += sum_{m = mlo}^{mhi-1} c[m] x[i-m] (lags m <= i only) for
+   i0 <= i < i1, the lags of each output added in increasing order. Once
+   every lag reaches every output (i0 >= mhi - 1), FC_DIRECT_REG outputs at
+   a time are held in registers while the lags are added (no load and store
+   of d per lag); the rest by one axpy per lag. Both do the same operations
+   in the same order on each output, so the bits do not depend on which. */
+static FC__DIRECT_INLINE void
+lags_into(const double *restrict x, const double *restrict c, size_t mlo,
+          size_t mhi, double *restrict d, size_t base, size_t i0, size_t i1)
+{
+    size_t jr = i0; /* outputs [i0, jr) done in registers */
+    if (i0 + 1 >= mhi) {
+        for (; jr + FC_DIRECT_REG <= i1; jr += FC_DIRECT_REG) {
+            double acc[FC_DIRECT_REG];
+            double *restrict dd = d + (jr - base);
+            for (size_t j = 0; j < FC_DIRECT_REG; j++) acc[j] = dd[j];
+            for (size_t m = mlo; m < mhi; m++) {
+                const double cm = c[m];
+                const double *restrict xx = x + (jr - m);
+                for (size_t j = 0; j < FC_DIRECT_REG; j++) acc[j] += cm * xx[j];
+            }
+            for (size_t j = 0; j < FC_DIRECT_REG; j++) dd[j] = acc[j];
+        }
+    }
+    for (size_t m = mlo; m < mhi && jr < i1; m++) {
+        const double cm = c[m];
+        size_t ib = jr > m ? jr : m;
+        if (ib >= i1) continue;
+        double *restrict dd = d + (ib - base);
+        const double *restrict xx = x + (ib - m);
+        size_t cnt = i1 - ib;
+        for (size_t j = 0; j < cnt; j++) dd[j] += cm * xx[j];
+    }
+}
+
 static FC__DIRECT_INLINE void
 direct_accumulate_body(const double *restrict x, size_t len,
                        const double *restrict c, size_t K,
@@ -219,14 +255,7 @@ direct_accumulate_body(const double *restrict x, size_t len,
         size_t i1 = i0 + FC_DIRECT_CHUNK < len ? i0 + FC_DIRECT_CHUNK : len;
         size_t mmax = K < i1 ? K : i1; /* lags 0 .. mmax-1 */
         size_t m1 = mmax < FC_DIRECT_GROUP ? mmax : FC_DIRECT_GROUP;
-        for (size_t m = 0; m < m1; m++) {
-            const double cm = c[m];
-            size_t ib = i0 > m ? i0 : m;
-            double *restrict yy = y + ib;
-            const double *restrict xx = x + (ib - m);
-            size_t cnt = i1 - ib;
-            for (size_t j = 0; j < cnt; j++) yy[j] += cm * xx[j];
-        }
+        lags_into(x, c, 0, m1, y, 0, i0, i1);
         if (mmax <= FC_DIRECT_GROUP) continue;
         size_t clen = i1 - i0;
         for (size_t j = 0; j < clen; j++) cor[j] = 0.0;
@@ -234,14 +263,7 @@ direct_accumulate_body(const double *restrict x, size_t len,
             size_t g1 = g0 + FC_DIRECT_GROUP < mmax ? g0 + FC_DIRECT_GROUP : mmax;
             size_t jb = (i0 > g0 ? i0 : g0) - i0; /* first output of lag g0 */
             for (size_t j = jb; j < clen; j++) grp[j] = 0.0;
-            for (size_t m = g0; m < g1; m++) {
-                const double cm = c[m];
-                size_t ib = i0 > m ? i0 : m;
-                double *restrict gg = grp + (ib - i0);
-                const double *restrict xx = x + (ib - m);
-                size_t cnt = i1 - ib;
-                for (size_t j = 0; j < cnt; j++) gg[j] += cm * xx[j];
-            }
+            lags_into(x, c, g0, g1, grp, i0, i0, i1);
             double *restrict yy = y + i0;
             for (size_t j = jb; j < clen; j++) {
                 /* TwoSum: s + e = yy[j] + grp[j] exactly */
@@ -309,10 +331,10 @@ static void direct_accumulate(const double *restrict x, size_t len,
  * and reused by every segment of its size (a frequency-domain delay line),
  * and output block i is one inverse FFT of sum_p Z_{i-p} C_p.
  *
- * Why segments start at p0 >= 2 blocks: the FFT's rounding error in output
- * block i is at the scale of the largest kernel value of the segment times
- * the window's samples, while those samples reach block i through lags
- * between (p-1)W and (p+2)W. With p >= p0 the kernel changes by at most a
+ * Why segments start at p0 >= 2 blocks (p0 = 1 below): the FFT's rounding
+ * error in output block i is at the scale of the largest kernel value of
+ * the segment times the window's samples, while those samples reach block
+ * i through lags between (p-1)W and (p+2)W. With p >= p0 the kernel changes by at most a
  * factor ((p0+2)/p0)^gamma over that range (gamma the kernel's power-law
  * exponent, estimated from the kernel itself), so each output keeps its
  * error at the scale of its own terms sum_k |c_{n-k} x_k|, as direct
@@ -320,9 +342,18 @@ static void direct_accumulate(const double *restrict x, size_t len,
  * spans lags 1 .. 2s-1 and loses up to ~3 digits after a spike against a
  * fast-decaying Grunwald kernel; the same scheme of doubling partitions is
  * used for zero-latency convolution, Gardner, J. Audio Eng. Soc. 43 (1995).)
+ *
+ * Segments one block away (p0 = 1): the window of segment p = 1 reaches
+ * its block through lags 1 .. 3W-1, the kernel's first lags included, where
+ * the power law says nothing; where the kernel itself shows that its
+ * values there are no smaller than 1/16 of the segment's (one_block_start:
+ * the decaying kernels of the rules), p0 = 1 with R = 8 or 16 (a model of
+ * the work chooses) needs fewer sizes, hence fewer FFTs, for the same
+ * bound. Otherwise (growing kernels, a near zero among the first lags) the
+ * shapes of fc__segment_start.
  */
 #define FC_DIRECT_BAND 64
-#define FC_MAX_SEGS 32 /* most segments of one size: p0 */
+#define FC_MAX_SEGS 32 /* most segments of one size: R p0 - p0 */
 
 typedef struct {
     size_t K;     /* lags in use (trailing zeros trimmed, <= n) */
@@ -379,6 +410,79 @@ int fc__segment_start(fc__kernel_at at, const void *ctx, uint64_t m0,
     return FC_OK;
 }
 
+/*
+ * May segments start one block from their outputs (p0 = 1, growth R = 8
+ * or 16, W0 = FC_DIRECT_BAND)? The window of segment p = 1 of size W (lags [W, 2W))
+ * reaches its outputs through lags 1 .. 3W - 1 (the window ends where the
+ * block starts), where the power law says nothing (the kernel's first
+ * values); so it is checked on the kernel itself: for every size W = W0,
+ * R W0, ... below K, max |c| over [W, 2W) <= 16 min |c| over [1, 3W)
+ * (within the lags in use), the factor the shapes of
+ * fc__segment_start allow. The segments p >= 2 of these sizes are those of
+ * p0 = 2 (the power-law exponent already <= 4). One pass over the kernel.
+ * True for the decaying kernels of the rules (rectangle and trapezoid at
+ * orders up to 1, Grunwald up to about 1.5, L1); false for a growing
+ * kernel (c_0 the smallest) or one with a near zero among its first lags.
+ */
+/* The least (most = 0) or largest (most = 1) |c[i]| over a <= i < b (b > a):
+   four running values, so that the loop is not one long chain. */
+static double abs_extreme(const double *c, size_t a, size_t b, int most)
+{
+    double r[4];
+    size_t i = a;
+    for (int l = 0; l < 4; l++) r[l] = fabs(c[a]);
+    for (; i + 4 <= b; i += 4)
+        for (int l = 0; l < 4; l++) {
+            double v = fabs(c[i + (size_t)l]);
+            r[l] = most ? (v > r[l] ? v : r[l]) : (v < r[l] ? v : r[l]);
+        }
+    for (; i < b; i++) {
+        double v = fabs(c[i]);
+        r[0] = most ? (v > r[0] ? v : r[0]) : (v < r[0] ? v : r[0]);
+    }
+    double x = most ? (r[0] > r[1] ? r[0] : r[1]) : (r[0] < r[1] ? r[0] : r[1]);
+    double y = most ? (r[2] > r[3] ? r[2] : r[3]) : (r[2] < r[3] ? r[2] : r[3]);
+    return most ? (x > y ? x : y) : (x < y ? x : y);
+}
+
+static int one_block_start(const double *c, size_t K, size_t R)
+{
+    double lo = INFINITY; /* min |c| over [1, m) */
+    size_t m = 1;
+    for (size_t W = FC_DIRECT_BAND; W < K; W *= R) {
+        size_t e3 = 3 * W < K ? 3 * W : K, e2 = 2 * W < K ? 2 * W : K;
+        if (m < e3) {
+            double v = abs_extreme(c, m, e3, 0);
+            if (v < lo) lo = v;
+            m = e3;
+        }
+        double hi = abs_extreme(c, W, e2, 1);
+        if (!(hi <= 16.0 * lo)) return 0;
+        if (W > K / R) break;
+    }
+    return 1;
+}
+
+/* A model of the partitioned engine's work for n outputs with first
+   segment p0, growth R, first block size W0 and K lags: per block of size
+   W, two FFTs of size 2W (about 2W log2(2W) each, common practice
+   estimate) and nseg products of W + 1 bins, one product counted as 2.2
+   FFT points (the ratio measured here, AVX2). Used only to choose between
+   shapes that are all componentwise accurate. */
+static double part_cost(size_t n, size_t K, size_t p0, size_t R, size_t W0)
+{
+    double cost = 0.0;
+    for (size_t W = W0; p0 * W < K; W *= R) {
+        size_t phi = (K + W - 1) / W, nb = (n + W - 1) / W;
+        if (phi > R * p0) phi = R * p0;
+        double fft = 2.0 * (double)(2 * W) * log2((double)(2 * W));
+        double prod = 2.2 * (double)(phi - p0) * (double)(W + 1);
+        cost += (double)(nb > p0 ? nb - p0 : 0) * (fft + prod);
+        if (W > K / R) break;
+    }
+    return cost;
+}
+
 static part_shape part_shape_of(size_t n, const double *c, size_t K)
 {
     part_shape sh;
@@ -388,6 +492,22 @@ static part_shape part_shape_of(size_t n, const double *c, size_t K)
     sh.K = K;
     (void)fc__segment_start(array_at, c, 8, K, &g, &sh.p0); /* cannot fail */
     sh.R = sh.p0 == 2 ? 8 : sh.p0 == 4 ? 4 : 2;
+    if (sh.p0 == 2) {
+        /* segments p = 1 .. R - 1 of each size where the kernel allows:
+           R = 8 or 16, whichever the model finds cheaper for this n */
+        double c2 = part_cost(n, K, 2, 8, FC_DIRECT_BAND / 2);
+        double c8 = part_cost(n, K, 1, 8, FC_DIRECT_BAND);
+        double c16 = part_cost(n, K, 1, 16, FC_DIRECT_BAND);
+        size_t Ra = c8 <= c16 ? 8 : 16, Rb = 24 - Ra; /* cheaper first */
+        double ca = Ra == 8 ? c8 : c16, cb = Ra == 8 ? c16 : c8;
+        if (ca < c2 && one_block_start(c, K, Ra)) {
+            sh.p0 = 1;
+            sh.R = Ra;
+        } else if (cb < c2 && one_block_start(c, K, Rb)) {
+            sh.p0 = 1;
+            sh.R = Rb;
+        }
+    }
     sh.W0 = FC_DIRECT_BAND / sh.p0;
     sh.D = sh.p0 * sh.W0;
     sh.maxW = 0;
@@ -403,18 +523,22 @@ static part_shape part_shape_of(size_t n, const double *c, size_t K)
 
 /*
  * The sizes of the partitioned engine, where their kernel spectra lie in
- * the context's work space, and one worker's area (window spectra ring of
- * maxseg slots + window + sum + output). The kernel spectra (shared, read
+ * the context's work space, and one worker's area (the largest over the
+ * sizes of: window spectra ring of nseg + G - 1 slots, window, G sums,
+ * output; see part_blocks). The kernel spectra (shared, read
  * only while the threads run) come first in the calling thread's work
  * space, its area after them; a helper's area is its whole work space.
  */
 #define FC_MAX_SIZES 32
+#define FC_GROUP_MAX 8   /* frames of fc__spec_dot_frames at most */
+#define FC_GROUP_SEGS 16 /* segments it takes at most (FC__SDF_B) */
 typedef struct {
     part_shape sh;
     size_t nsz;                 /* sizes W[0] = W0, R W0, ..., maxW */
     size_t W[FC_MAX_SIZES];
     size_t nseg[FC_MAX_SIZES];  /* segments of each size */
     size_t kofs[FC_MAX_SIZES];  /* kernel spectra of size z at work + kofs[z] */
+    size_t G[FC_MAX_SIZES];     /* output blocks of size z summed at once */
     size_t ktotal;              /* doubles of all kernel spectra */
     size_t area;                /* doubles of one worker's area */
 } part_plan;
@@ -446,14 +570,22 @@ static int part_prepare(fc_context *ctx, size_t n, const double *c, size_t K,
         pp->W[z] = W;
         pp->nseg[z] = phi - sh->p0;
         pp->kofs[z] = pp->ktotal;
-        if (fc__mul_size(pp->nseg[z], 2 * W + 2, &t) != FC_OK ||
+        /* blocks summed G at once (each kernel spectrum read once for G
+           blocks): up to FC_GROUP_MAX, at most the segments' count (the
+           window spectra kept grow by G - 1) */
+        pp->G[z] = pp->nseg[z] < FC_GROUP_MAX ? pp->nseg[z] : FC_GROUP_MAX;
+        if (pp->nseg[z] > FC_GROUP_SEGS || pp->G[z] < 2) pp->G[z] = 1;
+        /* ring nseg + G - 1, window, G sums, output */
+        size_t a;
+        if (fc__mul_size(pp->nseg[z] + 2 * pp->G[z] + 1, 2 * W + 2, &a) != FC_OK ||
+            fc__mul_size(pp->nseg[z], 2 * W + 2, &t) != FC_OK ||
             fc__add_size(pp->ktotal, t, &pp->ktotal) != FC_OK)
             return FC_ERR_SIZE;
+        if (a > pp->area) pp->area = a;
         pp->nsz++;
     }
     size_t total;
-    if (fc__mul_size(2 * sh->maxW + 2, sh->maxseg + 3, &pp->area) != FC_OK ||
-        fc__add_size(pp->area, 16, &pp->area) != FC_OK ||
+    if (fc__add_size(pp->area, 16, &pp->area) != FC_OK ||
         fc__add_size(pp->ktotal, pp->area, &total) != FC_OK)
         return FC_ERR_SIZE;
     for (size_t z = 0; z < pp->nsz; z++) {
@@ -463,9 +595,16 @@ static int part_prepare(fc_context *ctx, size_t n, const double *c, size_t K,
     return ensure_work(ctx, total);
 }
 
-/* buf[j] = x[(b-1)W + j] for j < 2W, zero outside [0, n). */
-static void window(const double *x, size_t n, size_t b, size_t W, double *buf)
+/* The spectrum of the window [(b-1)W, (b+1)W) of x (zero outside [0, n))
+   into spec: straight from x when the window lies inside it, else through
+   buf (the same samples, hence the same bits). */
+static void window_spectrum(fc_fft_plan *plan, const double *x, size_t n,
+                            size_t b, size_t W, double *buf, double *spec)
 {
+    if (b > 0 && (b + 1) * W <= n) {
+        fc__fft_forward(plan, x + (b - 1) * W, spec);
+        return;
+    }
     size_t lo = b > 0 ? (b - 1) * W : 0; /* first sample */
     size_t off = b > 0 ? 0 : W;          /* where it goes */
     size_t avail = lo < n ? n - lo : 0;
@@ -473,50 +612,73 @@ static void window(const double *x, size_t n, size_t b, size_t W, double *buf)
     memset(buf, 0, off * sizeof(double));
     memcpy(buf + off, x + lo, cnt * sizeof(double));
     memset(buf + off + cnt, 0, (2 * W - off - cnt) * sizeof(double));
+    fc__fft_forward(plan, buf, spec);
 }
 
 /*
  * Output blocks ia <= i < ib (ia >= p0) of size z of one signal: block i
  * is one inverse FFT of sum_p Z_{i-p} C_p, added to outputs [iW, iW+W).
- * The window spectra Z_b are computed once each and kept in a ring; a
- * range that starts past the first block first computes the windows its
- * first block needs. Each Z_b and each block's sum is computed the same
- * way whatever the range, so ranges may be done by different threads
- * with the bits of one pass.
+ * The window spectra Z_b are computed once each and kept in a ring of
+ * nseg + G - 1; G blocks at a time are summed by fc__spec_dot_frames
+ * (..._lim near the start, where a block has fewer windows than segments):
+ * each kernel spectrum read once for the G blocks, every sum bit for bit
+ * that of fc__spec_dot over the same terms. A range that starts
+ * past the first block first computes the windows its first block needs.
+ * Each Z_b and each block's sum is computed the same way whatever the
+ * range, so ranges may be done by different threads with the bits of one
+ * pass.
  */
 static void part_blocks(const part_plan *pp, size_t z, const double *kspec,
                         fc_fft_plan *plan, const double *xs, size_t n,
                         double *ys, size_t ia, size_t ib, double *area)
 {
     const size_t W = pp->W[z], n2 = 2 * W, sp = n2 + 2, p0 = pp->sh.p0;
-    const size_t nseg = pp->nseg[z];
-    double *ring = area;                    /* nseg window spectra */
-    double *buf = ring + nseg * sp;         /* 2W */
-    double *acc = buf + sp;                 /* 2W+2 */
-    double *out = acc + sp;                 /* 2W */
-    const double *zp[FC_MAX_SEGS], *cp[FC_MAX_SEGS];
+    const size_t nseg = pp->nseg[z], G = pp->G[z], L = nseg + G - 1;
+    double *ring = area;                    /* L window spectra */
+    double *buf = ring + L * sp;            /* 2W */
+    double *acc = buf + sp;                 /* G sums of 2W+2 */
+    double *out = acc + G * sp;             /* 2W */
+    const double *zp[FC_MAX_SEGS + FC_GROUP_MAX], *cp[FC_MAX_SEGS];
+    double *ap[FC_GROUP_MAX];
     if (ia >= ib) return;
     for (size_t b = ia - p0 > nseg - 1 ? ia - p0 - (nseg - 1) : 0;
-         b < ia - p0; b++) {
-        window(xs, n, b, W, buf);
-        fc__fft_forward(plan, buf, ring + (b % nseg) * sp);
-    }
-    for (size_t i = ia; i < ib; i++) {
+         b < ia - p0; b++)
+        window_spectrum(plan, xs, n, b, W, buf, ring + (b % L) * sp);
+    for (size_t j = 0; j < nseg; j++) cp[j] = kspec + j * sp;
+    for (size_t g = 0; g < G; g++) ap[g] = acc + g * sp;
+    for (size_t i = ia; i < ib;) {
         /* the newest window needed: b = i - p0, samples [(b-1)W, (b+1)W) */
         size_t b = i - p0;
-        window(xs, n, b, W, buf);
-        fc__fft_forward(plan, buf, ring + (b % nseg) * sp);
-        /* Y_i = sum_p Z_{i-p} C_p over the windows that exist */
-        size_t jmax = i - p0 + 1 < nseg ? i - p0 + 1 : nseg;
-        for (size_t j = 0; j < jmax; j++) {
-            zp[j] = ring + ((i - p0 - j) % nseg) * sp;
-            cp[j] = kspec + j * sp;
+        size_t ng = G > 1 ? (ib - i < G ? ib - i : G) : 1;
+        for (size_t g = 0; g < ng; g++)
+            window_spectrum(plan, xs, n, b + g, W, buf, ring + ((b + g) % L) * sp);
+        if (ng > 1) {
+            /* zp[t]: window b - (nseg - 1) + t, t < nseg + ng - 1 (none
+               before window 0: near the start block b + g sums its
+               b + g + 1 windows only, lim[g]) */
+            size_t lim[FC_GROUP_MAX];
+            for (size_t t = 0; t < nseg + ng - 1; t++)
+                zp[t] = b + t + 1 >= nseg ? ring + ((b + t + 1 - nseg) % L) * sp
+                                          : NULL;
+            if (b + 1 >= nseg) {
+                fc__spec_dot_frames(plan, zp, cp, nseg, ng, ap);
+            } else {
+                for (size_t g = 0; g < ng; g++)
+                    lim[g] = b + g + 1 < nseg ? b + g + 1 : nseg;
+                fc__spec_dot_frames_lim(plan, zp, cp, nseg, lim, ng, ap);
+            }
+        } else {
+            /* Y_i = sum_p Z_{i-p} C_p over the windows that exist */
+            size_t jmax = b + 1 < nseg ? b + 1 : nseg;
+            for (size_t j = 0; j < jmax; j++) zp[j] = ring + ((b - j) % L) * sp;
+            fc__spec_dot(plan, zp, cp, jmax, acc);
         }
-        fc__spec_dot(plan, zp, cp, jmax, acc);
-        fc__fft_inverse(plan, acc, out);
-        size_t r0 = i * W;
-        size_t cnt = n - r0 < W ? n - r0 : W;
-        for (size_t t = 0; t < cnt; t++) ys[r0 + t] += out[W + t];
+        for (size_t g = 0; g < ng; g++, i++) {
+            fc__fft_inverse(plan, ap[g], out);
+            size_t r0 = i * W;
+            size_t cnt = n - r0 < W ? n - r0 : W;
+            for (size_t t = 0; t < cnt; t++) ys[r0 + t] += out[W + t];
+        }
     }
 }
 

@@ -204,6 +204,13 @@ def _rows(name: str, samples: object, axis: object) -> tuple[FloatArray, int, tu
     if arr.ndim == 0:
         raise ArgumentError(f"{name}: expected at least one dimension, got a scalar")
     ax = check_axis(axis, arr.ndim)
+    if ax == arr.ndim - 1 and arr.flags.c_contiguous:
+        # time already last and contiguous (as_float_array made it so for
+        # float64 input): a view, no axis moves (the common 1-D call)
+        nsig = 1
+        for d in arr.shape[:-1]:
+            nsig *= d
+        return arr, ax, arr.shape, arr.reshape(nsig, arr.shape[-1])
     moved = np.moveaxis(arr, ax, -1)
     nsig = int(np.prod(moved.shape[:-1], dtype=np.int64))
     block = contiguous_copy(name, moved).reshape(nsig, arr.shape[ax])
@@ -211,6 +218,8 @@ def _rows(name: str, samples: object, axis: object) -> tuple[FloatArray, int, tu
 
 
 def _unrows(block: FloatArray, moved_shape: tuple[int, ...], ax: int) -> FloatArray:
+    if ax == len(moved_shape) - 1:
+        return block.reshape(moved_shape)
     return np.moveaxis(block.reshape(moved_shape), -1, ax)
 
 
@@ -490,9 +499,10 @@ def _apply(
             f"samples (or step={show(step)}, order={show(order)}): the result "
             f"is beyond the double range (largest |sample| {_largest(block)})"
         )
-    raise_for_status(
-        st, f"{kind}(rule={show(rule)}, order={show(order)}, step={show(step)})", samples=("samples", arr)
-    )
+    if st != 0:  # the message only when there is one to give
+        raise_for_status(
+            st, f"{kind}(rule={show(rule)}, order={show(order)}, step={show(step)})", samples=("samples", arr)
+        )
     return _unrows(out, moved_shape, ax)
 
 
