@@ -207,9 +207,12 @@ FC_API int fc_trapezoid_start(double order, double step, uint64_t start,
  * context per thread.
  *
  * Threads: fc_context_set_threads(ctx, t) lets the batch calls given this
- * context (fc_lagged_sum, fc_apply) use up to t threads (POSIX threads,
- * started by the call and joined before it returns; the library keeps no
- * thread alive between calls). The work is split over the signals and,
+ * context (fc_lagged_sum, fc_apply) use up to t threads (POSIX threads
+ * started by the call; the call returns when its work is done, and a
+ * thread the system started too late to take any of it exits by itself
+ * right after and is joined by a later call or when the library is
+ * unloaded or the process exits: no thread waits for work between calls).
+ * The work is split over the signals and,
  * for fewer signals than threads, over the independent segment products
  * of the partitioned engine (and the output ranges of the direct
  * engine); every output is computed by the same operations in the same
