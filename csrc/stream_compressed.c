@@ -528,18 +528,19 @@ typedef struct {
     size_t count, q;
 } cs_job;
 
-static void cs_step0_channel(cs_engine *cs, size_t c, double xc, double *yout,
-                             uint64_t n, double corr, int inject,
+static void cs_step0_channel(cs_engine *cs, size_t c, double *v, double xc,
+                             double *yout, uint64_t n, double corr, int inject,
                              const double *xw)
 {
+    /* v: the channel's xprev, x0 and xfirst, held by the caller */
     const size_t B = CS_BAND, C = cs->C;
     const size_t pos = (size_t)(n % B);
     double u;
     double Xhi = 0.0, Xlo = 0.0;
-    if (cs->diffs) u = n == 0 ? 0.0 : xc - cs->xprev[c];
+    if (cs->diffs) u = n == 0 ? 0.0 : xc - v[0];
     else if (cs->cum) {
-        Xhi = cs->xprev[c];
-        Xlo = cs->x0[c];
+        Xhi = v[0];
+        Xlo = v[1];
         cs_dd_add(&Xhi, &Xlo, xc);
         u = Xhi;
     } else u = xc;
@@ -553,7 +554,7 @@ static void cs_step0_channel(cs_engine *cs, size_t c, double xc, double *yout,
         terms = cs_reduce8(acc);
     }
     double band = cs_band(cs, ring + pos + 1);
-    double x0 = n == 0 ? xc : cs->tcum ? cs->xfirst[c] : cs->x0[c];
+    double x0 = n == 0 ? xc : cs->tcum ? v[2] : v[1];
     double yc = ((terms + band) + cs->c0 * u) + corr * x0;
     for (size_t i = 0; i < cs->nx; i++)
         if (n >= cs->xj[i])
@@ -562,17 +563,23 @@ static void cs_step0_channel(cs_engine *cs, size_t c, double xc, double *yout,
     ring[pos] = u;
     ring[pos + B] = u;
     if (cs->cum) {
-        cs->xprev[c] = Xhi;
-        cs->x0[c] = Xlo;
-        if (cs->tcum && n == 0) cs->xfirst[c] = xc;
+        v[0] = Xhi;
+        v[1] = Xlo;
+        if (cs->tcum && n == 0) v[2] = xc;
     }
     else {
-        cs->xprev[c] = xc;
-        if (n == 0) cs->x0[c] = xc;
+        v[0] = xc;
+        if (n == 0) v[1] = xc;
     }
     for (size_t i = 0; i < cs->nx; i++)
         if (n == cs->xj[i]) cs->xs[i * C + c] = xc;
 }
+
+/* Fewest channels in a range a thread takes (8 doubles: a cache line). */
+#define CS_PAR_CHANNELS 8
+/* Time steps a thread runs on one channel before the next (its rows of the
+   samples and outputs stay in cache across the range's channels). */
+#define CS_PAR_TILE 256
 
 static void cs_task(void *arg, size_t k, size_t w)
 {
@@ -581,14 +588,24 @@ static void cs_task(void *arg, size_t k, size_t w)
     const size_t C = cs->C, c0 = k * C / J->q, c1 = (k + 1) * C / J->q;
     const size_t nx = cs->nx;
     (void)w;
-    for (size_t t = 0; t < J->count; t++) {
-        const uint64_t n = cs->n + t;
-        const int inject = cs->x0corr && !cs->tcum && n == CS_BAND;
-        const double *xt = J->x + t * C;
-        double *yt = J->y + t * C;
-        for (size_t c = c0; c < c1; c++)
-            cs_step0_channel(cs, c, xt[c], &yt[c], n, J->corr[t], inject,
-                             J->xw + t * nx);
+    /* channel by channel through the block's time steps: the channel's
+       states stay in cache, and the running values other threads' channels
+       share cache lines with (xprev, x0, xfirst) are written once, at the
+       end; the same operations in the same order as cs_step: same bits */
+    for (size_t t0 = 0; t0 < J->count; t0 += CS_PAR_TILE) {
+        const size_t t1 = J->count - t0 < CS_PAR_TILE ? J->count : t0 + CS_PAR_TILE;
+        for (size_t c = c0; c < c1; c++) {
+            double v[3] = {cs->xprev[c], cs->x0[c], cs->xfirst ? cs->xfirst[c] : 0.0};
+            for (size_t t = t0; t < t1; t++) {
+                const uint64_t n = cs->n + t;
+                const int inject = cs->x0corr && !cs->tcum && n == CS_BAND;
+                cs_step0_channel(cs, c, v, J->x[t * C + c], &J->y[t * C + c], n,
+                                 J->corr[t], inject, J->xw + t * nx);
+            }
+            cs->xprev[c] = v[0];
+            cs->x0[c] = v[1];
+            if (cs->xfirst) cs->xfirst[c] = v[2];
+        }
     }
 }
 
@@ -614,8 +631,13 @@ static int cs_push_block(void *eng, const double *x, size_t count, double *y,
         count <= ((size_t)-1) / sizeof(double) / (1 + cs->nx)) {
         double *corr = malloc(count * (1 + cs->nx) * sizeof(double));
         if (corr != NULL) { /* else: the calling thread alone, below */
-            /* up to 4 ranges of channels per thread, handed out in turn */
+            /* up to 4 ranges of channels per thread, handed out in turn,
+               each of at least CS_PAR_CHANNELS channels (ranges of one
+               or two channels put two threads on the cache lines of each
+               output row) */
             size_t q = 4 * threads < cs->C ? 4 * threads : cs->C;
+            if (q > cs->C / CS_PAR_CHANNELS) q = cs->C / CS_PAR_CHANNELS;
+            if (q < 1) q = 1;
             double *xw = corr + count;
             cs_job J = {cs, x, corr, xw, y, count, q};
             for (size_t t = 0; t < count; t++) {

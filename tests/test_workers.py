@@ -195,7 +195,7 @@ STREAM_CASES = [
 
 
 @pytest.mark.parametrize("mode", ["compressed", "exact"])
-@pytest.mark.parametrize("channels", [1, 2, 3, 5, 16])
+@pytest.mark.parametrize("channels", [1, 2, 3, 5, 16, 17, 24])
 @pytest.mark.parametrize("kind,rule,order", STREAM_CASES)
 def test_push_many_workers_same_outputs_and_state(mode, channels, kind, rule, order):
     rng = np.random.default_rng(channels * 31 + len(rule))
