@@ -35,33 +35,13 @@ import pytest
 
 import pyfracconv as pf
 from pyfracconv import grid
-from pyfracconv._fracconv import ffi, lib
+from pyfracconv._fracconv import lib
 from pyfracconv.grid import grid_weights
+from test_grid_fast import run_c  # fc_grid_apply through cffi, one copy
 
 EPS = 2.0**-52
 DIRECT = 2e-14  # the direct engine's weights: relative error <= 1e-14
-CODES = {"rectangle": lib.FC_RULE_RECTANGLE, "trapezoid": lib.FC_RULE_TRAPEZOID}
 ORDERS = [1.0, 1.0001, 1.3, 1.5, 1.9, 1.9999]
-
-
-def run_c(rule, a, t, x, tol):
-    """fc_grid_apply on rows x (nsig, n): (y, K, status)."""
-    x = np.ascontiguousarray(np.atleast_2d(x), dtype=float)
-    t = np.ascontiguousarray(t, dtype=float)
-    y = np.full_like(x, -7.0)
-    K = ffi.new("size_t *")
-    st = lib.fc_grid_apply(
-        CODES[rule],
-        a,
-        ffi.from_buffer("double[]", t),
-        ffi.from_buffer("double[]", x),
-        x.shape[0],
-        t.size,
-        tol,
-        ffi.from_buffer("double[]", y),
-        K,
-    )
-    return y, K[0], st
 
 
 def abs_terms(rule, a, t, x):
