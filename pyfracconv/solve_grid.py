@@ -256,6 +256,13 @@ class _CompressedSums:
         from .stream_timed import TimedStream
 
         self.t, self.m = t, m
+        self.rect = []
+        self.trap = []
+        self.wfac = []
+        self.zero = {}
+        self.tl = t.tolist()
+        if t.size < 2:  # no step: no sums
+            return
         span = float(t[-1] - t[0])
         hmin = float(np.min(np.diff(t)))
         rules = []
@@ -263,9 +270,6 @@ class _CompressedSums:
             rules.append("rectangle")
         if method in ("predictor-corrector", "trapezoid"):
             rules.append("trapezoid")
-        self.rect = []
-        self.trap = []
-        self.wfac = []
         for a, ix, _ in groups:
             for rule in rules:
                 # a group of one component: the scalar stream (floats, the
@@ -275,15 +279,15 @@ class _CompressedSums:
                     st = TimedStream(a, min_step=hmin, horizon=span, rule=rule, tol=tol, channels=ch)
                 except ArgumentError as exc:
                     raise ArgumentError(
-                        f"order={a!r}, memory='compressed' with t=: the {rule} rule's "
-                        f"stream with a time per sample refuses it ({exc}); use memory='exact'"
+                        f"memory='compressed' with t= (order={a!r}, smallest step {hmin!r}, "
+                        f"span {span!r}): the {rule} rule's stream with a time per sample "
+                        f"refuses this order or grid ({exc}); use memory='exact'"
                     ) from None
                 key = int(ix[0]) if ch is None else ix
                 st.push(float(t[0]), f0[key])
                 (self.rect if rule == "rectangle" else self.trap).append((key, st))
             self.wfac.append((ix, a, 1.0 / math.gamma(a + 2.0)))
         self.zero = {len(ix): (0.0 if len(ix) == 1 else np.zeros(len(ix))) for _, ix, _ in groups}
-        self.tl = t.tolist()
 
     def row(self, n):
         tn = self.tl[n + 1]

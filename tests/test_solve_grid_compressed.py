@@ -197,7 +197,7 @@ def test_orders_between_one_and_two(method):
 def test_order_two_is_refused_naming_the_order():
     # a = 2 is served by exact memory only (the streams with a time per
     # sample serve orders below 2)
-    with pytest.raises(ArgumentError, match=r"order=2\.0, memory='compressed' with t=.*use memory='exact'"):
+    with pytest.raises(ArgumentError, match=r"memory='compressed' with t= \(order=2\.0,.*use memory='exact'"):
         solve(lambda s, y: -y, 1.0, 2.0, t=[0.0, 0.1, 0.3], dy0=0.0, memory="compressed")
     ok = solve(lambda s, y: -y, 1.0, 2.0, t=[0.0, 0.1, 0.3], dy0=0.0)
     assert ok.y.shape == (3,)
@@ -218,3 +218,16 @@ def test_failures_keep_the_solution_with_compressed_memory():
     part = info.value.partial
     ex = solve(lambda s, y: -y, 1.0, 0.5, t=t[:11])
     assert part.memory == "compressed" and np.max(np.abs(part.y - ex.y)) < 1e-12
+
+
+def test_a_grid_of_one_time_and_an_extreme_grid():
+    # one time: y(t0) only, no step (as with exact memory)
+    for method in EXPLICIT_AND_TRAP:
+        res = solve(lambda s, y: -y, 2.0, 0.5, t=[3.0], method=method, memory="compressed")
+        assert np.array_equal(res.t, [3.0]) and np.array_equal(res.y, [2.0])
+    # a span of 1e300 smallest steps: beyond the streams' range, refused
+    # naming the grid (exact memory serves it)
+    t = [0.0, 1e-300, 1.0]
+    with pytest.raises(ArgumentError, match=r"smallest step 1e-300, span 1\.0.*use memory='exact'"):
+        solve(lambda s, y: -y, 1.0, 0.5, t=t, memory="compressed")
+    assert solve(lambda s, y: -y, 1.0, 0.5, t=t).y.shape == (3,)
