@@ -136,7 +136,10 @@ static void *run_member(void *p)
     work(m.t, m.worker);
     team_leave(m.t);
     pthread_mutex_lock(&pend_lock);
-    pend_exited[m.slot] = 1;
+    /* the slot is still this thread's unless a full reap (take_slot, the
+       destructor) has taken it to join, and a new helper has it now */
+    if (pend_used[m.slot] && pthread_equal(pend_thread[m.slot], pthread_self()))
+        pend_exited[m.slot] = 1;
     pthread_mutex_unlock(&pend_lock);
     return NULL;
 }
