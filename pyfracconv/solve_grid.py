@@ -259,7 +259,6 @@ class _CompressedSums:
         self.rect = []
         self.trap = []
         self.wfac = []
-        self.zero = {}
         self.tl = t.tolist()
         if t.size < 2:  # no step: no sums
             return
@@ -284,10 +283,10 @@ class _CompressedSums:
                         f"refuses this order or grid ({exc}); use memory='exact'"
                     ) from None
                 key = int(ix[0]) if ch is None else ix
+                zero = 0.0 if ch is None else np.zeros(ch)  # the sample of a preview
                 st.push(float(t[0]), f0[key])
-                (self.rect if rule == "rectangle" else self.trap).append((key, st))
+                (self.rect if rule == "rectangle" else self.trap).append((key, st, zero))
             self.wfac.append((ix, a, 1.0 / math.gamma(a + 2.0)))
-        self.zero = {len(ix): (0.0 if len(ix) == 1 else np.zeros(len(ix))) for _, ix, _ in groups}
 
     def row(self, n):
         tn = self.tl[n + 1]
@@ -296,10 +295,10 @@ class _CompressedSums:
         rsum = np.zeros(m)
         hist = np.zeros(m)
         last = np.zeros(m)
-        for key, st in self.rect:
-            rsum[key] = st.preview(tn, self.zero[1 if isinstance(key, int) else len(key)])
-        for key, st in self.trap:
-            hist[key] = st.preview(tn, self.zero[1 if isinstance(key, int) else len(key)])
+        for key, st, zero in self.rect:
+            rsum[key] = st.preview(tn, zero)
+        for key, st, zero in self.trap:
+            hist[key] = st.preview(tn, zero)
         if self.trap:
             for ix, a, g in self.wfac:
                 last[ix] = h**a * g
@@ -307,9 +306,7 @@ class _CompressedSums:
 
     def push(self, n, fn):
         tn = self.tl[n]
-        for key, st in self.rect:
-            st.push(tn, fn[key])
-        for key, st in self.trap:
+        for key, st, _ in self.rect + self.trap:
             st.push(tn, fn[key])
 
 
